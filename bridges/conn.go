@@ -1,0 +1,68 @@
+// Package bridges holds the links between the rig and a controller: the wire
+// protocol (package protocol) and one package per transport (serial, mqtt,
+// inproc, and the embedded broker). A bridge only moves bytes and messages;
+// it knows no physics. Every transport presents the same Conn interface to
+// the loop in package hil.
+package bridges
+
+import (
+	"errors"
+	"time"
+
+	"gaitrig/bridges/protocol"
+)
+
+// Conn is a message-level, full-duplex link to one controller.
+//
+// Send and Recv may be called from different goroutines (one sender, one
+// receiver). Neither allocates in steady state.
+type Conn interface {
+	// Send encodes and transmits one message.
+	Send(m *protocol.Message) error
+	// Recv blocks until a whole valid message arrives, the deadline passes
+	// (ErrTimeout) or the link fails. A frame that fails its CRC or does not
+	// decode is reported as a *FrameError and the link stays usable.
+	Recv(deadline time.Time, m *protocol.Message) error
+	// Stats returns counters of the link so far.
+	Stats() Stats
+	// Close releases the link. Recv then returns ErrClosed.
+	Close() error
+}
+
+// Stats counts what crossed a link, for the run summary and alarms.
+type Stats struct {
+	FramesSent     uint64
+	FramesReceived uint64
+	FrameErrors    uint64 // bad CRC, bad COBS, wrong type, truncated
+	BytesSent      uint64
+	BytesReceived  uint64
+	Reconnects     uint64
+}
+
+// ErrTimeout is returned by Recv when the deadline passes with no message.
+var ErrTimeout = errors.New("bridges: receive deadline passed")
+
+// ErrClosed is returned after Close, or when the peer closed the link.
+var ErrClosed = errors.New("bridges: link closed")
+
+// FrameError reports one rejected incoming frame. The link stays usable.
+type FrameError struct {
+	Reason string // short plain description, e.g. "bad CRC: got 0x1234, computed 0xBEEF"
+	Bytes  int    // length of the rejected frame
+}
+
+func (e *FrameError) Error() string { return "bridges: rejected frame: " + e.Reason }
+
+// LinkEvent reports a change of link health that the loop turns into an
+// alarm (unplug, reconnect with the gap, broker lost).
+type LinkEvent struct {
+	Kind string        // "disconnected" or "reconnected"
+	Gap  time.Duration // for "reconnected": how long the link was down
+	Err  error         // for "disconnected": the cause
+}
+
+// Notifier is implemented by links that can report LinkEvents. The loop
+// drains Events() without blocking.
+type Notifier interface {
+	Events() <-chan LinkEvent
+}

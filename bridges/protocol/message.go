@@ -1,0 +1,106 @@
+// Package protocol defines the gaitrig wire protocol: the messages exchanged
+// between the rig and the firmware, their binary layout, the CRC that guards
+// each frame and the COBS framing used on byte streams. The exact bytes are
+// specified in docs/protocol.md; this package is the reference implementation
+// of that document. Encoding and decoding never allocate.
+package protocol
+
+// Version is the protocol version this build speaks. A peer that announces a
+// different version is refused with an error naming both versions.
+const Version uint8 = 1
+
+// MaxJoints is the largest number of actuated joints a frame can carry.
+const MaxJoints = 8
+
+// MaxNameLen is the longest firmware name or build string, in bytes.
+const MaxNameLen = 32
+
+// Type is the one-byte message type at the start of every frame.
+type Type uint8
+
+// Message types. Values are part of the wire format: never renumber them.
+const (
+	TypeGreeting  Type = 0x01 // firmware → rig, first message after connect
+	TypeConfig    Type = 0x02 // rig → firmware, answer to the greeting
+	TypeState     Type = 0x10 // rig → firmware, once per tick
+	TypeCommand   Type = 0x11 // firmware → rig, answer to a state
+	TypeHeartbeat Type = 0x20 // either way, keeps a quiet link alive
+	TypeStop      Type = 0x30 // either way, ends the run with a reason
+)
+
+// Greeting is the firmware's first message: who it is and what it drives.
+type Greeting struct {
+	Version   uint8  // protocol version the firmware speaks
+	Actuators uint8  // number of torques the firmware will send
+	Name      string // firmware name, at most MaxNameLen bytes
+	Build     string // firmware build identifier, at most MaxNameLen bytes
+}
+
+// Config is the rig's answer to a greeting: how the run will go.
+type Config struct {
+	TickHz      uint16             // control rate in ticks per second
+	Lockstep    bool               // true: rig waits for each command before advancing
+	Joints      uint8              // number of joints in State and Command
+	JointNames  [MaxJoints]string  // joint order, each at most MaxNameLen bytes
+	TorqueLimit [MaxJoints]float32 // N·m, symmetric limit per joint
+}
+
+// Contact flag bits in State.Contacts.
+const (
+	ContactLeft  uint8 = 1 << 0 // left foot switch closed
+	ContactRight uint8 = 1 << 1 // right foot switch closed
+)
+
+// State is what the board's sensors would read at one tick.
+type State struct {
+	TimeUS   uint64             // simulated time, microseconds since run start
+	Joints   uint8              // number of valid entries in Angle and Rate
+	Angle    [MaxJoints]float32 // joint angles, rad, in Config.JointNames order
+	Rate     [MaxJoints]float32 // joint rates, rad/s
+	IMUPitch float32            // rad, absolute pitch of the IMU's link
+	IMURate  float32            // rad/s
+	Contacts uint8              // ContactLeft | ContactRight bits
+}
+
+// Firmware status bits in Command.Status.
+const (
+	StatusOK       uint16 = 0      // nothing to report
+	StatusFault    uint16 = 1 << 0 // firmware detected an internal fault
+	StatusSafeMode uint16 = 1 << 1 // firmware is in its own safe mode
+)
+
+// Command is the firmware's answer to a State: the torques to apply.
+type Command struct {
+	Joints uint8              // number of valid entries in Torque
+	Torque [MaxJoints]float32 // N·m, in Config.JointNames order
+	Status uint16             // firmware status bits
+}
+
+// Stop reason codes. Values are part of the wire format.
+const (
+	StopEnd        uint8 = 0 // run finished normally
+	StopEStop      uint8 = 1 // rig e-stopped (alarm at trip severity)
+	StopWatchdog   uint8 = 2 // no valid command within the watchdog time
+	StopAborted    uint8 = 3 // operator interrupt (SIGINT/SIGTERM)
+	StopFirmware   uint8 = 4 // firmware asked to stop
+	StopBadVersion uint8 = 5 // protocol version mismatch
+)
+
+// Stop ends a run; either side may send it.
+type Stop struct {
+	Reason uint8  // one of the Stop* codes
+	Text   string // human-readable detail, at most MaxNameLen bytes
+}
+
+// Message is one decoded frame. It is a plain value (no pointers to the
+// frame buffer) so it can be passed through channels without allocation.
+// Only the field that matches Type is meaningful.
+type Message struct {
+	Type     Type
+	Seq      uint32 // sender's sequence number; a Command echoes its State's Seq
+	Greeting Greeting
+	Config   Config
+	State    State
+	Command  Command
+	Stop     Stop
+}
