@@ -1,0 +1,137 @@
+// Command gaitrig is the hardware-in-the-loop harness for biped
+// walking-controller firmware: it runs the walker plant against firmware over
+// a serial line, MQTT or in-process, records every tick, raises alarms on
+// slip, lift-off, falls and link faults, and writes a run folder with a
+// report.
+//
+// Exit codes: 0 pass, 1 a criterion failed or the run tripped (or a
+// regression in a suite, NO-GO in preflight), 2 bad usage or configuration.
+//
+// Every sub-command prints its own help with --help.
+package main
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"sort"
+	"strings"
+)
+
+// Exit codes of every sub-command.
+const (
+	exitPass   = 0 // every criterion passed
+	exitFail   = 1 // a criterion failed, the run tripped, a regression, NO-GO
+	exitConfig = 2 // bad usage, bad scenario, link could not be opened
+)
+
+// command is one sub-command: its one-line summary and its entry point.
+type command struct {
+	summary string
+	run     func(args []string, stdout, stderr io.Writer) int
+}
+
+// commands is filled by the init functions of the sub-command files.
+var commands = map[string]command{}
+
+// usageError marks errors that come from the command line or configuration,
+// which exit with code 2.
+type usageError struct{ err error }
+
+func (e usageError) Error() string { return e.err.Error() }
+func (e usageError) Unwrap() error { return e.err }
+
+// badUsage wraps a formatted message as a usage error.
+func badUsage(format string, a ...any) error { return usageError{fmt.Errorf(format, a...)} }
+
+// exitCodeFor maps an error to the exit code the command line promises.
+func exitCodeFor(err error) int {
+	if err == nil {
+		return exitPass
+	}
+	var u usageError
+	if errors.As(err, &u) {
+		return exitConfig
+	}
+	return exitFail
+}
+
+func main() {
+	os.Exit(dispatch(os.Args[1:], os.Stdout, os.Stderr))
+}
+
+// dispatch picks the sub-command named by args[0] and runs it.
+func dispatch(args []string, stdout, stderr io.Writer) int {
+	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
+		printUsage(stdout)
+		if len(args) == 0 {
+			return exitConfig
+		}
+		return exitPass
+	}
+	if args[0] == "version" || args[0] == "--version" {
+		fmt.Fprintln(stdout, "gaitrig", toolVersion())
+		return exitPass
+	}
+	c, ok := commands[args[0]]
+	if !ok {
+		fmt.Fprintf(stderr, "gaitrig: unknown command %q\n\n", args[0])
+		printUsage(stderr)
+		return exitConfig
+	}
+	return c.run(args[1:], stdout, stderr)
+}
+
+func printUsage(w io.Writer) {
+	fmt.Fprintln(w, "gaitrig: hardware-in-the-loop harness for biped walking-controller firmware")
+	fmt.Fprintln(w, "\nUsage: gaitrig COMMAND [flags] [arguments]   (gaitrig COMMAND --help for details)")
+	fmt.Fprintln(w, "\nCommands:")
+	names := make([]string, 0, len(commands))
+	for n := range commands {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		fmt.Fprintf(w, "  %-10s %s\n", n, commands[n].summary)
+	}
+	fmt.Fprintln(w, "\nExit codes: 0 pass, 1 a criterion failed or the run tripped, 2 bad usage or configuration.")
+	fmt.Fprintln(w, "\n"+safetyCaution)
+}
+
+// newFlagSet builds a flag set whose --help prints the usage line, the
+// description and the flags, and whose errors are returned, not fatal.
+func newFlagSet(name, argsUsage, description string, stderr io.Writer) *flag.FlagSet {
+	fs := flag.NewFlagSet("gaitrig "+name, flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	fs.Usage = func() {
+		out := fs.Output()
+		fmt.Fprintf(out, "Usage: gaitrig %s [flags] %s\n\n%s\n", name, argsUsage, strings.TrimSpace(description))
+		hasFlags := false
+		fs.VisitAll(func(*flag.Flag) { hasFlags = true })
+		if hasFlags {
+			fmt.Fprintln(out, "\nFlags:")
+			fs.PrintDefaults()
+		}
+	}
+	return fs
+}
+
+// parseFlags parses args; it returns (done, code): done is true when the
+// command must return code right away (--help, or a flag error).
+func parseFlags(fs *flag.FlagSet, args []string) (bool, int) {
+	err := fs.Parse(args)
+	if err == nil {
+		return false, 0
+	}
+	if errors.Is(err, flag.ErrHelp) {
+		return true, exitPass
+	}
+	return true, exitConfig
+}
+
+// safetyCaution is printed by every command that reports a result.
+const safetyCaution = "Caution: a passing simulation is not a safety certificate. Treadmill and overground\n" +
+	"trials need the lab's own safety procedure, a fall-arrest harness or gantry, a hardware\n" +
+	"e-stop within reach, and the local rules and qualified staff that govern such trials."
