@@ -1,0 +1,69 @@
+package report
+
+import "math"
+
+// defaultMaxPoints is the most points drawn per line. Two thousand points is
+// finer than the pixel width of a plot on any common screen, and keeps a
+// 10-minute 1 kHz run's report to a few megabytes.
+const defaultMaxPoints = 2000
+
+// decimateMinMax thins (x, y) to at most maxPoints points. It splits the
+// samples into maxPoints/2 buckets of consecutive indices and keeps, from
+// each bucket, the samples with the smallest and the largest y, in their
+// original order, so peaks and dips are never lost to the thinning (a plain
+// stride would drop a one-tick friction spike). Samples whose x or y is NaN
+// or infinite are dropped. The input is not modified; when nothing needs
+// thinning the finite samples are returned as new slices.
+func decimateMinMax(x, y []float64, maxPoints int) (xs, ys []float64) {
+	n := min(len(x), len(y))
+	if maxPoints < 2 {
+		maxPoints = 2
+	}
+	finite := func(i int) bool {
+		return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
+	}
+	if n <= maxPoints {
+		xs = make([]float64, 0, n)
+		ys = make([]float64, 0, n)
+		for i := 0; i < n; i++ {
+			if finite(i) {
+				xs = append(xs, x[i])
+				ys = append(ys, y[i])
+			}
+		}
+		return xs, ys
+	}
+	buckets := maxPoints / 2
+	xs = make([]float64, 0, 2*buckets)
+	ys = make([]float64, 0, 2*buckets)
+	for b := 0; b < buckets; b++ {
+		lo := b * n / buckets
+		hi := (b + 1) * n / buckets
+		iMin, iMax := -1, -1
+		for i := lo; i < hi; i++ {
+			if !finite(i) {
+				continue
+			}
+			if iMin < 0 || y[i] < y[iMin] {
+				iMin = i
+			}
+			if iMax < 0 || y[i] > y[iMax] {
+				iMax = i
+			}
+		}
+		switch {
+		case iMin < 0:
+			// The whole bucket was NaN: nothing to draw.
+		case iMin == iMax:
+			xs = append(xs, x[iMin])
+			ys = append(ys, y[iMin])
+		case iMin < iMax:
+			xs = append(xs, x[iMin], x[iMax])
+			ys = append(ys, y[iMin], y[iMax])
+		default:
+			xs = append(xs, x[iMax], x[iMin])
+			ys = append(ys, y[iMax], y[iMin])
+		}
+	}
+	return xs, ys
+}

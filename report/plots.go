@@ -1,0 +1,267 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"image/color"
+	"math"
+	"regexp"
+	"sort"
+	"strings"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgsvg"
+)
+
+// Our own plain palette: a dark blue and a burnt orange for the two legs
+// (they stay apart for the common forms of colour blindness), a green and a
+// purple for further joints, a neutral grey for limits and reference lines.
+var (
+	colLeft    = color.RGBA{R: 0x1f, G: 0x4e, B: 0x8c, A: 0xff}
+	colRight   = color.RGBA{R: 0xc0, G: 0x5a, B: 0x12, A: 0xff}
+	colThird   = color.RGBA{R: 0x2e, G: 0x7d, B: 0x32, A: 0xff}
+	colFourth  = color.RGBA{R: 0x6a, G: 0x3d, B: 0x9a, A: 0xff}
+	colLimit   = color.RGBA{R: 0x55, G: 0x55, B: 0x55, A: 0xff}
+	colGround  = color.RGBA{R: 0x8a, G: 0x7a, B: 0x5c, A: 0xff}
+	colBody    = color.RGBA{R: 0x30, G: 0x30, B: 0x30, A: 0xff}
+	lineColors = []color.Color{colLeft, colRight, colThird, colFourth}
+)
+
+// severityColor gives the marker colour of an alarm severity. Unknown
+// severities are drawn in the neutral grey rather than refused: a report
+// must still render when a newer recorder adds a level.
+func severityColor(sev string) color.Color {
+	switch strings.ToLower(sev) {
+	case "info", "note", "notice":
+		return color.RGBA{R: 0x4a, G: 0x7f, B: 0xb5, A: 0xff}
+	case "warning", "warn":
+		return color.RGBA{R: 0xd9, G: 0x9a, B: 0x00, A: 0xff}
+	case "error", "critical", "trip", "fatal":
+		return color.RGBA{R: 0xb3, G: 0x1b, B: 0x1b, A: 0xff}
+	default:
+		return colLimit
+	}
+}
+
+// severityRank orders severities for the legend, mildest first.
+func severityRank(sev string) int {
+	switch strings.ToLower(sev) {
+	case "info", "note", "notice":
+		return 0
+	case "warning", "warn":
+		return 1
+	case "error", "critical", "trip", "fatal":
+		return 2
+	default:
+		return 3
+	}
+}
+
+// line is one curve on a time plot, held as plain slices so the plotting
+// code does not depend on how a run folder stores its columns.
+type line struct {
+	label  string
+	x, y   []float64
+	color  color.Color
+	dashed bool
+	width  vg.Length
+}
+
+// plotStats says how much a decimated plot drew out of what it was given;
+// the caption repeats it so a reader knows the plot is thinned.
+type plotStats struct {
+	recorded int // samples per line before thinning (largest line)
+	drawn    int // samples per line after thinning (largest line)
+}
+
+func (s plotStats) caption() string {
+	if s.recorded == s.drawn {
+		return fmt.Sprintf("All %d samples drawn.", s.recorded)
+	}
+	return fmt.Sprintf("Thinned for drawing: %d of %d samples per line (min/max kept in each of %d time buckets, so peaks and dips are not lost).",
+		s.drawn, s.recorded, s.drawn/2)
+}
+
+var sansFont = font.Font{Typeface: "Liberation", Variant: "Sans"}
+
+// newPlot makes a plot with our text style: sans-serif, modest sizes.
+func newPlot(title, xLabel, yLabel string) *plot.Plot {
+	p := plot.New()
+	p.Title.Text = title
+	p.Title.TextStyle.Font = font.From(sansFont, 12)
+	p.X.Label.Text = xLabel
+	p.Y.Label.Text = yLabel
+	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
+		ax.Label.TextStyle.Font = font.From(sansFont, 10)
+		ax.Tick.Label.Font = font.From(sansFont, 9)
+	}
+	p.Legend.TextStyle.Font = font.From(sansFont, 9)
+	p.Legend.Top = true
+	p.Legend.Left = false
+	p.Add(plotter.NewGrid())
+	return p
+}
+
+// linePlot draws time series, each thinned to at most maxPoints points.
+func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int) (*plot.Plot, plotStats, error) {
+	p := newPlot(title, xLabel, yLabel)
+	var st plotStats
+	for _, ln := range lines {
+		xs, ys := decimateMinMax(ln.x, ln.y, maxPoints)
+		st.recorded = max(st.recorded, min(len(ln.x), len(ln.y)))
+		st.drawn = max(st.drawn, len(xs))
+		if len(xs) == 0 {
+			continue
+		}
+		pts := make(plotter.XYs, len(xs))
+		for i := range xs {
+			pts[i].X, pts[i].Y = xs[i], ys[i]
+		}
+		l, err := plotter.NewLine(pts)
+		if err != nil {
+			return nil, st, fmt.Errorf("plot %q, line %q: %w", title, ln.label, err)
+		}
+		l.Color = ln.color
+		l.Width = vg.Points(1)
+		if ln.width > 0 {
+			l.Width = ln.width
+		}
+		if ln.dashed {
+			l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+		}
+		p.Add(l)
+		if ln.label != "" {
+			p.Legend.Add(ln.label, l)
+		}
+	}
+	return p, st, nil
+}
+
+// span returns the smallest and largest finite value of v, or (0, 1) when
+// there is none, so a reference line always has a range to cover.
+func span(v []float64) (lo, hi float64) {
+	lo, hi = math.Inf(1), math.Inf(-1)
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			continue
+		}
+		lo = math.Min(lo, x)
+		hi = math.Max(hi, x)
+	}
+	if lo > hi {
+		return 0, 1
+	}
+	return lo, hi
+}
+
+// svgHeader matches what vgsvg writes before the <svg> element: an XML
+// declaration and a generator comment, both out of place inside HTML.
+var svgHeader = regexp.MustCompile(`(?s)^\s*<\?xml[^>]*\?>\s*(<!--.*?-->\s*)?`)
+
+// renderSVG draws p into memory as SVG and returns markup ready to inline
+// in HTML: no XML prolog, the given id, class "plot", and an accessible
+// label. Sizes are in points; CSS scales the element to the page width.
+func renderSVG(p *plot.Plot, w, h vg.Length, id, label string) (string, error) {
+	c := vgsvg.New(w, h)
+	p.Draw(draw.New(c))
+	var buf bytes.Buffer
+	if _, err := c.WriteTo(&buf); err != nil {
+		return "", fmt.Errorf("render %s: %w", id, err)
+	}
+	out := svgHeader.ReplaceAllString(buf.String(), "")
+	if !strings.HasPrefix(out, "<svg ") {
+		return "", fmt.Errorf("render %s: unexpected SVG output starting %.40q", id, out)
+	}
+	attrs := fmt.Sprintf(`<svg id="%s" class="plot" role="img" aria-label="%s" `, htmlAttr(id), htmlAttr(label))
+	return attrs + strings.TrimPrefix(out, "<svg "), nil
+}
+
+// htmlAttr escapes s for use inside a double-quoted attribute.
+func htmlAttr(s string) string {
+	r := strings.NewReplacer(`&`, "&amp;", `"`, "&quot;", `<`, "&lt;", `>`, "&gt;")
+	return r.Replace(s)
+}
+
+// alarmMark is one alarm or event on the timeline.
+type alarmMark struct {
+	t        float64
+	kind     string
+	severity string
+}
+
+// alarmTimeline draws one row per alarm kind, time on x, one marker per
+// alarm coloured by severity. With no alarms it still draws the empty time
+// axis, titled so, because "nothing happened" is a result worth showing.
+func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
+	title := "Alarm timeline"
+	if len(marks) == 0 {
+		title = "Alarm timeline: no alarms raised"
+	}
+	p := newPlot(title, "time (s)", "")
+	p.X.Min, p.X.Max = t0, math.Max(t1, t0+1e-3)
+	kinds := map[string]int{}
+	var names []string
+	for _, m := range marks {
+		if _, ok := kinds[m.kind]; !ok {
+			kinds[m.kind] = 0
+			names = append(names, m.kind)
+		}
+	}
+	sort.Strings(names)
+	for i, n := range names {
+		kinds[n] = i
+	}
+	bySev := map[string]plotter.XYs{}
+	for _, m := range marks {
+		if math.IsNaN(m.t) || math.IsInf(m.t, 0) {
+			continue
+		}
+		bySev[m.severity] = append(bySev[m.severity], plotter.XY{X: m.t, Y: float64(kinds[m.kind])})
+	}
+	sevs := make([]string, 0, len(bySev))
+	for s := range bySev {
+		sevs = append(sevs, s)
+	}
+	sort.Slice(sevs, func(i, j int) bool {
+		ri, rj := severityRank(sevs[i]), severityRank(sevs[j])
+		if ri != rj {
+			return ri < rj
+		}
+		return sevs[i] < sevs[j]
+	})
+	for _, s := range sevs {
+		sc, err := plotter.NewScatter(bySev[s])
+		if err != nil {
+			return nil, fmt.Errorf("alarm timeline, severity %q: %w", s, err)
+		}
+		sc.GlyphStyle.Color = severityColor(s)
+		sc.GlyphStyle.Radius = vg.Points(3.5)
+		sc.GlyphStyle.Shape = draw.CircleGlyph{}
+		p.Add(sc)
+		label := s
+		if label == "" {
+			label = "(no severity)"
+		}
+		p.Legend.Add(label, sc)
+	}
+	p.Y.Min, p.Y.Max = -0.7, math.Max(float64(len(names))-0.3, 0.7)
+	p.Y.Tick.Marker = rowTicks(names)
+	p.Y.Padding = 0
+	return p, nil
+}
+
+// rowTicks labels integer rows with the alarm kind names.
+type rowTicks []string
+
+// Ticks implements plot.Ticker.
+func (r rowTicks) Ticks(min, max float64) []plot.Tick {
+	ts := make([]plot.Tick, 0, len(r))
+	for i, n := range r {
+		ts = append(ts, plot.Tick{Value: float64(i), Label: n})
+	}
+	return ts
+}

@@ -1,0 +1,170 @@
+package report
+
+import (
+	"fmt"
+	"math"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+)
+
+// stickPose is the walker at one heel strike, in world coordinates (m).
+type stickPose struct {
+	label    string
+	hip      [2]float64
+	feet     [2][2]float64 // foot ends: left, right
+	torsoTop [2]float64
+	hasTorso bool
+	// slope of the ground under the figure (rad, positive uphill), drawn
+	// as a short line through the lower foot.
+	slope float64
+}
+
+// maxStickFigures bounds the strip: a long run would otherwise give a strip
+// of hundreds of tiny figures. Above it, evenly spaced heel strikes are
+// drawn (always the first and the last) and the caption says so.
+const maxStickFigures = 40
+
+// stickColumns is the number of figures per row of the strip.
+const stickColumns = 10
+
+// pickEvenly returns at most k indices out of n, evenly spaced, including
+// the first and the last.
+func pickEvenly(n, k int) []int {
+	if n <= k {
+		idx := make([]int, n)
+		for i := range idx {
+			idx[i] = i
+		}
+		return idx
+	}
+	idx := make([]int, 0, k)
+	for i := 0; i < k; i++ {
+		j := int(math.Round(float64(i) * float64(n-1) / float64(k-1)))
+		if len(idx) == 0 || idx[len(idx)-1] != j {
+			idx = append(idx, j)
+		}
+	}
+	return idx
+}
+
+// stickStrip places each pose in its own slot of a grid (stickColumns per
+// row), shifted so its lower foot sits at the slot's origin; the shapes keep
+// their true proportions because the canvas is sized to the data's aspect.
+type stickStrip struct {
+	poses   []stickPose
+	scale   float64 // typical leg length, sets slot size
+	rows    int
+	columns int
+}
+
+func newStickStrip(poses []stickPose) *stickStrip {
+	scale := 0.0
+	for _, ps := range poses {
+		for _, f := range ps.feet {
+			scale = math.Max(scale, math.Hypot(f[0]-ps.hip[0], f[1]-ps.hip[1]))
+		}
+		if ps.hasTorso {
+			scale = math.Max(scale, math.Hypot(ps.torsoTop[0]-ps.hip[0], ps.torsoTop[1]-ps.hip[1]))
+		}
+	}
+	if scale == 0 || math.IsNaN(scale) || math.IsInf(scale, 0) {
+		scale = 1
+	}
+	cols := min(stickColumns, max(len(poses), 1))
+	rows := (len(poses) + cols - 1) / cols
+	return &stickStrip{poses: poses, scale: scale, rows: max(rows, 1), columns: cols}
+}
+
+func (s *stickStrip) slotW() float64 { return 1.6 * s.scale }
+func (s *stickStrip) slotH() float64 { return 2.9 * s.scale }
+
+// origin is the world point of pose i that is placed at its slot origin:
+// the lower of the two feet.
+func (s *stickStrip) origin(ps stickPose) [2]float64 {
+	if ps.feet[1][1] < ps.feet[0][1] {
+		return ps.feet[1]
+	}
+	return ps.feet[0]
+}
+
+// slot returns where pose i's origin goes in plot coordinates.
+func (s *stickStrip) slot(i int) (x, y float64) {
+	col, row := i%s.columns, i/s.columns
+	return (float64(col) + 0.5) * s.slotW(), -float64(row) * s.slotH()
+}
+
+// DataRange implements plot.DataRanger.
+func (s *stickStrip) DataRange() (xmin, xmax, ymin, ymax float64) {
+	return 0, float64(s.columns) * s.slotW(),
+		-float64(s.rows-1)*s.slotH() - 0.35*s.scale, 2.2 * s.scale
+}
+
+// Plot implements plot.Plotter.
+func (s *stickStrip) Plot(c draw.Canvas, p *plot.Plot) {
+	trX, trY := p.Transforms(&c)
+	pt := func(ox, oy float64, o, w [2]float64) vg.Point {
+		return vg.Point{X: trX(ox + w[0] - o[0]), Y: trY(oy + w[1] - o[1])}
+	}
+	ground := draw.LineStyle{Color: colGround, Width: vg.Points(1.5)}
+	body := draw.LineStyle{Color: colBody, Width: vg.Points(2)}
+	legs := [2]draw.LineStyle{
+		{Color: colLeft, Width: vg.Points(2.5)},
+		{Color: colRight, Width: vg.Points(2.5)},
+	}
+	for i, ps := range s.poses {
+		ox, oy := s.slot(i)
+		o := s.origin(ps)
+		half := 0.7 * s.scale
+		dx, dy := half*math.Cos(ps.slope), half*math.Sin(ps.slope)
+		c.StrokeLine2(ground, trX(ox-dx), trY(oy-dy), trX(ox+dx), trY(oy+dy))
+		if ps.hasTorso {
+			c.StrokeLines(body, []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.torsoTop)})
+		}
+		for leg := 0; leg < 2; leg++ {
+			c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.feet[leg])})
+		}
+		hip := pt(ox, oy, o, ps.hip)
+		c.DrawGlyph(draw.GlyphStyle{Color: colBody, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}, hip)
+	}
+}
+
+// stickFigurePlot builds the heel-strike strip and the canvas size that
+// keeps its proportions at the given width.
+func stickFigurePlot(poses []stickPose) (*plot.Plot, vg.Length, vg.Length, error) {
+	s := newStickStrip(poses)
+	title := "Walker at each heel strike (left leg blue, right leg orange)"
+	if len(poses) == 0 {
+		title = "Walker at each heel strike: no heel strikes recorded"
+	}
+	p := newPlot(title, "", "")
+	p.HideAxes()
+	p.Add(s)
+	labels := plotter.XYLabels{}
+	for i, ps := range poses {
+		x, y := s.slot(i)
+		labels.XYs = append(labels.XYs, plotter.XY{X: x, Y: y - 0.3*s.scale})
+		labels.Labels = append(labels.Labels, ps.label)
+	}
+	if len(poses) > 0 {
+		l, err := plotter.NewLabels(labels)
+		if err != nil {
+			return nil, 0, 0, fmt.Errorf("heel-strike labels: %w", err)
+		}
+		for i := range l.TextStyle {
+			l.TextStyle[i].Font.Size = vg.Points(8)
+			l.TextStyle[i].Font.Typeface = sansFont.Typeface
+			l.TextStyle[i].Font.Variant = sansFont.Variant
+			l.TextStyle[i].XAlign = draw.XCenter
+		}
+		p.Add(l)
+	}
+	xmin, xmax, ymin, ymax := s.DataRange()
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = xmin, xmax, ymin, ymax
+	w := vg.Points(720)
+	// Title and padding take about 40 pt; the rest keeps aspect 1:1.
+	h := vg.Length(float64(w)*(ymax-ymin)/(xmax-xmin)) + vg.Points(40)
+	return p, w, h, nil
+}
