@@ -1,0 +1,122 @@
+package record
+
+import (
+	"encoding/json"
+	"math"
+	"strconv"
+)
+
+// num is a float64 that survives JSON when it is not finite: NaN is written
+// as null, ±Inf as the strings "+Inf" and "-Inf", and read back the same way.
+// encoding/json refuses non-finite numbers, and a summary of a run without
+// a single contact has a minimum normal force of +Inf.
+type num float64
+
+func (x num) MarshalJSON() ([]byte, error) {
+	f := float64(x)
+	switch {
+	case math.IsNaN(f):
+		return []byte("null"), nil
+	case math.IsInf(f, 1):
+		return []byte(`"+Inf"`), nil
+	case math.IsInf(f, -1):
+		return []byte(`"-Inf"`), nil
+	}
+	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
+}
+
+func (x *num) UnmarshalJSON(b []byte) error {
+	f, err := parseJSONNumber(b)
+	*x = num(f)
+	return err
+}
+
+type latencyJSON struct {
+	P50 num `json:"p50"`
+	P99 num `json:"p99"`
+	Max num `json:"max"`
+}
+
+func (l *Latency) toJSON() *latencyJSON {
+	if l == nil {
+		return nil
+	}
+	return &latencyJSON{num(l.P50), num(l.P99), num(l.Max)}
+}
+
+func (l *latencyJSON) fromJSON() *Latency {
+	if l == nil {
+		return nil
+	}
+	return &Latency{float64(l.P50), float64(l.P99), float64(l.Max)}
+}
+
+type criterionJSON struct {
+	Name  string `json:"name"`
+	Pass  bool   `json:"pass"`
+	Value num    `json:"value"`
+	Limit num    `json:"limit"`
+}
+
+// summaryJSON mirrors Summary with every float as num; keep the two in step.
+type summaryJSON struct {
+	Outcome                 Outcome         `json:"outcome"`
+	Reason                  string          `json:"reason,omitempty"`
+	Steps                   int             `json:"steps"`
+	Ticks                   int64           `json:"ticks"`
+	SimTimeS                num             `json:"sim_time_s"`
+	WallTimeS               num             `json:"wall_time_s"`
+	Alarms                  map[string]int  `json:"alarms"`
+	PeakFrictionUtilization num             `json:"peak_friction_utilization"`
+	MinNormalForceN         num             `json:"min_normal_force_n"`
+	MeanSpeedMPS            num             `json:"mean_speed_mps"`
+	LatencyUS               *latencyJSON    `json:"latency_us"`
+	JitterUS                *latencyJSON    `json:"jitter_us,omitempty"`
+	DeadlineMisses          int             `json:"deadline_misses"`
+	Criteria                []criterionJSON `json:"criteria"`
+	Caution                 string          `json:"caution"`
+	ToolVersion             string          `json:"tool_version"`
+}
+
+// MarshalJSON writes the summary with non-finite numbers as null (NaN) or
+// "+Inf"/"-Inf".
+func (s Summary) MarshalJSON() ([]byte, error) {
+	j := summaryJSON{
+		Outcome: s.Outcome, Reason: s.Reason, Steps: s.Steps, Ticks: s.Ticks,
+		SimTimeS: num(s.SimTimeS), WallTimeS: num(s.WallTimeS), Alarms: s.Alarms,
+		PeakFrictionUtilization: num(s.PeakFrictionUtilization),
+		MinNormalForceN:         num(s.MinNormalForceN),
+		MeanSpeedMPS:            num(s.MeanSpeedMPS),
+		LatencyUS:               s.LatencyUS.toJSON(), JitterUS: s.JitterUS.toJSON(),
+		DeadlineMisses: s.DeadlineMisses, Caution: s.Caution, ToolVersion: s.ToolVersion,
+		Criteria: make([]criterionJSON, len(s.Criteria)),
+	}
+	if j.Alarms == nil {
+		j.Alarms = map[string]int{}
+	}
+	for i, c := range s.Criteria {
+		j.Criteria[i] = criterionJSON{c.Name, c.Pass, num(c.Value), num(c.Limit)}
+	}
+	return json.Marshal(j)
+}
+
+// UnmarshalJSON reads what MarshalJSON writes.
+func (s *Summary) UnmarshalJSON(b []byte) error {
+	var j summaryJSON
+	if err := json.Unmarshal(b, &j); err != nil {
+		return err
+	}
+	*s = Summary{
+		Outcome: j.Outcome, Reason: j.Reason, Steps: j.Steps, Ticks: j.Ticks,
+		SimTimeS: float64(j.SimTimeS), WallTimeS: float64(j.WallTimeS), Alarms: j.Alarms,
+		PeakFrictionUtilization: float64(j.PeakFrictionUtilization),
+		MinNormalForceN:         float64(j.MinNormalForceN),
+		MeanSpeedMPS:            float64(j.MeanSpeedMPS),
+		LatencyUS:               j.LatencyUS.fromJSON(), JitterUS: j.JitterUS.fromJSON(),
+		DeadlineMisses: j.DeadlineMisses, Caution: j.Caution, ToolVersion: j.ToolVersion,
+	}
+	for _, c := range j.Criteria {
+		s.Criteria = append(s.Criteria, Criterion{c.Name, c.Pass, float64(c.Value), float64(c.Limit)})
+	}
+	return nil
+}

@@ -1,0 +1,251 @@
+// Package record writes and reads run folders: one folder per run holding
+// everything needed to understand, report and replay it.
+//
+// Files in a run folder:
+//
+//	manifest.json     what ran: scenario text and hash, plant parameters,
+//	                  firmware greeting, tool version, seed, clock, host,
+//	                  start time, exact initial state, telemetry columns
+//	telemetry.csv     one row per tick, streamed; floats are written in the
+//	                  shortest form that parses back to the same bits
+//	events.jsonl      alarms and other events, one JSON object per line
+//	steps.csv         one row per completed step (heel strike to heel strike)
+//	summary.json      the outcome, written last and atomically
+//	telemetry.parquet on request (ExportParquet), for analysis tools
+//
+// Telemetry is flushed at least every FlushInterval of wall time, events and
+// steps at once, so a run killed with SIGKILL loses at most a fraction of a
+// second of telemetry and nothing else. Readers tolerate a truncated last
+// line and say how many complete rows they read.
+package record
+
+import (
+	"encoding/json"
+	"time"
+)
+
+// Fixed sizes of a telemetry row. The manifest says how many entries of each
+// array are in use.
+const (
+	MaxQ      = 10 // generalized coordinates and velocities per row
+	MaxJoints = 8  // sensed joints and torques per row
+)
+
+// File names inside a run folder.
+const (
+	ManifestFile  = "manifest.json"
+	TelemetryFile = "telemetry.csv"
+	EventsFile    = "events.jsonl"
+	StepsFile     = "steps.csv"
+	SummaryFile   = "summary.json"
+	ParquetFile   = "telemetry.parquet"
+)
+
+// FormatVersion is the version of the run-folder layout written by this
+// package. Open refuses folders from a newer version.
+const FormatVersion = 1
+
+// FlushInterval is the longest wall time telemetry rows stay buffered while
+// ticks keep arriving. A SIGKILL loses at most this plus the time of one
+// tick.
+const FlushInterval = 50 * time.Millisecond
+
+// Greeting is the firmware's self-description as received on the link.
+type Greeting struct {
+	Name      string `json:"name"`      // firmware name
+	Build     string `json:"build"`     // firmware build identifier
+	Protocol  int    `json:"protocol"`  // protocol version the firmware speaks
+	Actuators int    `json:"actuators"` // number of torques it sends
+}
+
+// Manifest describes a run. It is written by Create and, if the greeting
+// arrives later, rewritten by SetGreeting.
+type Manifest struct {
+	// Format is the run-folder format version; Create sets it.
+	Format int `json:"format"`
+	// Scenario is the scenario's name.
+	Scenario string `json:"scenario"`
+	// ScenarioFile is where the scenario was loaded from (a path, or
+	// builtin:NAME).
+	ScenarioFile string `json:"scenario_file"`
+	// ScenarioText is the exact text of the scenario file.
+	ScenarioText string `json:"scenario_text"`
+	// ScenarioHash is the hex SHA-256 of ScenarioText.
+	ScenarioHash string `json:"scenario_hash"`
+	// Plant is the plant parameters as JSON (the hil loop marshals
+	// plant.Params); kept raw so this package depends on no other.
+	Plant json.RawMessage `json:"plant,omitempty"`
+	// Greeting is the firmware's greeting, empty until it is known.
+	Greeting Greeting `json:"greeting"`
+	// ToolVersion is the gaitrig version that made the run.
+	ToolVersion string `json:"tool_version"`
+	// Seed is the random seed of sensor noise and fault injection.
+	Seed int64 `json:"seed"`
+	// Clock is lockstep or wallclock.
+	Clock string `json:"clock"`
+	// TickHz is the control rate, ticks per second.
+	TickHz float64 `json:"tick_hz"`
+	// Link describes the controller link (for example builtin, serial
+	// /dev/ttyUSB0 at 115200, mqtt embedded rig bench).
+	Link string `json:"link"`
+	// Host is the machine the run ran on.
+	Host string `json:"host"`
+	// StartTime is the wall-clock time the run started. Tick.WallS counts
+	// from it.
+	StartTime time.Time `json:"start_time"`
+	// NumQ is the number of generalized coordinates in use in Tick.Q and
+	// Tick.V and in InitialQ and InitialV.
+	NumQ int `json:"num_q"`
+	// JointNames names the joints in use in the sensed-joint and torque
+	// arrays of Tick, in order.
+	JointNames []string `json:"joint_names"`
+	// FootModes names the foot-contact mode codes of Tick.Feet[i].Mode:
+	// FootModes[code] is the word for that code.
+	FootModes []string `json:"foot_modes"`
+	// InitialQ and InitialV are the exact initial state.
+	InitialQ []float64 `json:"initial_q"`
+	// InitialV is the initial generalized velocity; see InitialQ.
+	InitialV []float64 `json:"initial_v"`
+	// Columns is the telemetry column list; Create fills it from NumQ and
+	// JointNames (see TickColumns).
+	Columns []string `json:"columns"`
+}
+
+// Foot is the contact of one foot in a telemetry row.
+type Foot struct {
+	Mode        int     // contact mode code; Manifest.FootModes names it
+	NormalN     float64 // normal ground force, N
+	TangentialN float64 // tangential (friction) ground force, N
+	Utilization float64 // |F_t| / (μ_s N), 0 when not in contact
+	CoP         float64 // centre of pressure along the foot arc, m from the arc's lowest point with the leg vertical
+	ContactX    float64 // x of the contact point, m
+}
+
+// Tick is one telemetry row. Rows have fixed-size arrays so writing one
+// allocates nothing; the manifest says how many entries are in use.
+type Tick struct {
+	Index     int64              // tick number from 0
+	T         float64            // simulated time, s
+	WallS     float64            // wall-clock time since Manifest.StartTime, s
+	Q         [MaxQ]float64      // generalized coordinates
+	V         [MaxQ]float64      // generalized velocities
+	Angle     [MaxJoints]float64 // joint angles as sensed (after the sensor model), rad
+	Rate      [MaxJoints]float64 // joint rates as sensed, rad/s
+	Commanded [MaxJoints]float64 // torques the firmware commanded, N·m
+	Applied   [MaxJoints]float64 // torques applied to the plant (after limits and lag), N·m
+	Push      [2]float64         // push force on the hip (x, y), N
+	Feet      [2]Foot            // left, right
+	Kinetic   float64            // kinetic energy, J
+	Potential float64            // potential energy, J
+	LatencyUS float64            // command round-trip latency, µs; NaN when no fresh command
+	Fresh     bool               // a fresh command arrived for this tick
+	Stance    int                // stance leg: 0 left, 1 right
+}
+
+// Pose is the walker's outline at an instant, for stick figures: world (x,
+// y) points in metres.
+type Pose struct {
+	Hip      [2]float64    `json:"hip"`
+	Feet     [2][2]float64 `json:"feet"`      // contact-side bottom of each foot (left, right)
+	TorsoTop [2]float64    `json:"torso_top"` // meaningful when HasTorso
+	HasTorso bool          `json:"has_torso"`
+}
+
+// Step is one row of the per-step table: from one heel strike to the next.
+type Step struct {
+	Index           int     // step number from 1
+	Stance          int     // stance leg during the step: 0 left, 1 right
+	StartS          float64 // simulated time of the heel strike that began the step, s
+	EndS            float64 // simulated time of the heel strike that ended it, s
+	DurationS       float64 // EndS − StartS, s
+	LengthM         float64 // forward distance between the two contact points, m
+	SpeedMPS        float64 // LengthM / DurationS, m/s
+	PeakUtilization float64 // peak friction utilization of the stance foot
+	MinNormalN      float64 // least normal force of the stance foot, N
+	ImpactLossJ     float64 // kinetic energy lost at the ending heel strike, J
+	PosWorkJ        float64 // positive actuator work, J
+	NegWorkJ        float64 // negative actuator work (≤ 0), J
+	CostOfTransport float64 // positive work / (weight × length), dimensionless
+	CoPTravelM      float64 // centre-of-pressure travel along the foot arc, heel to toe, m
+	Pose            Pose    // pose at the ending heel strike
+}
+
+// Severity of an event.
+type Severity string
+
+// Event severities.
+const (
+	Info Severity = "info" // something worth knowing, not an alarm
+	Warn Severity = "warn" // an alarm that does not end the run
+	Trip Severity = "trip" // an alarm that e-stopped the run
+)
+
+// NoSegment is the Event.Segment value of an event not tied to a terrain
+// segment.
+const NoSegment = -1
+
+// Event is one line of the event and alarm log.
+type Event struct {
+	Tick     int64              `json:"tick"`             // tick index
+	T        float64            `json:"t_s"`              // simulated time, s
+	Wall     time.Time          `json:"wall"`             // wall-clock time
+	Kind     string             `json:"kind"`             // alarm kind (see scenarios.AlarmKinds) or another event word
+	Severity Severity           `json:"severity"`         // info, warn or trip
+	Message  string             `json:"message"`          // a sentence a person understands
+	Foot     string             `json:"foot,omitempty"`   // left or right, empty when not relevant
+	Segment  int                `json:"segment"`          // terrain segment index, NoSegment when not relevant
+	Values   map[string]float64 `json:"values,omitempty"` // named numbers (measured value, limit, ...)
+}
+
+// Outcome of a run.
+type Outcome string
+
+// Run outcomes.
+const (
+	Pass    Outcome = "pass"    // every criterion met
+	Fail    Outcome = "fail"    // a criterion not met
+	Tripped Outcome = "tripped" // an alarm with severity trip e-stopped the run
+	Aborted Outcome = "aborted" // stopped by the user (SIGINT, SIGTERM) or an error
+)
+
+// Latency is a distribution summary in microseconds.
+type Latency struct {
+	P50 float64 `json:"p50"`
+	P99 float64 `json:"p99"`
+	Max float64 `json:"max"`
+}
+
+// Criterion is one pass criterion and how the run fared against it.
+type Criterion struct {
+	Name  string  `json:"name"`  // for example min_steps
+	Pass  bool    `json:"pass"`  // met or not
+	Value float64 `json:"value"` // what the run showed
+	Limit float64 `json:"limit"` // the scenario's limit
+}
+
+// Summary is the run's result, written last to summary.json. Non-finite
+// numbers are written as null and read back as NaN.
+type Summary struct {
+	Outcome                 Outcome        `json:"outcome"`
+	Reason                  string         `json:"reason,omitempty"` // why it failed, tripped or was aborted
+	Steps                   int            `json:"steps"`            // heel strikes completed
+	Ticks                   int64          `json:"ticks"`            // ticks run
+	SimTimeS                float64        `json:"sim_time_s"`
+	WallTimeS               float64        `json:"wall_time_s"`
+	Alarms                  map[string]int `json:"alarms"` // count per alarm kind
+	PeakFrictionUtilization float64        `json:"peak_friction_utilization"`
+	MinNormalForceN         float64        `json:"min_normal_force_n"`
+	MeanSpeedMPS            float64        `json:"mean_speed_mps"`
+	LatencyUS               *Latency       `json:"latency_us"`          // wall-clock mode; nil in lockstep
+	JitterUS                *Latency       `json:"jitter_us,omitempty"` // tick start jitter, wall-clock mode
+	DeadlineMisses          int            `json:"deadline_misses"`
+	Criteria                []Criterion    `json:"criteria"`
+	Caution                 string         `json:"caution"` // the safety caution
+	ToolVersion             string         `json:"tool_version"`
+}
+
+// Caution is the safety caution every summary and report carries.
+const Caution = "A passing simulation is not a certificate of safety. " +
+	"Treadmill and overground trials need the lab's own safety procedure, " +
+	"a fall-arrest harness or gantry, a hardware e-stop within reach, and " +
+	"the local rules and qualified staff that govern such trials."

@@ -1,0 +1,290 @@
+package record
+
+import (
+	"bufio"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strconv"
+	"sync"
+	"time"
+
+	"github.com/rs/zerolog"
+)
+
+// Writer streams one run into its folder. Its methods are safe for use from
+// several goroutines (the loop writes ticks, a link watcher may log events),
+// but the hot path is meant for one: Tick takes an uncontended lock and
+// allocates nothing.
+type Writer struct {
+	mu  sync.Mutex
+	dir string
+	m   Manifest
+
+	tele      *os.File
+	teleBuf   *bufio.Writer
+	row       []byte // reused row buffer
+	lastFlush time.Time
+	ticks     int64
+
+	events *os.File
+	log    zerolog.Logger
+
+	steps    *os.File
+	stepBuf  []byte
+	closed   bool
+	firstErr error
+}
+
+// Create makes the run folder dir (and its parents) and writes the manifest
+// and the headers of telemetry.csv and steps.csv. It refuses a folder that
+// exists and is not empty, so a run never overwrites another. m.Format and
+// m.Columns are filled in; a zero m.StartTime is set to now.
+func Create(dir string, m Manifest) (*Writer, error) {
+	if m.NumQ < 0 || m.NumQ > MaxQ {
+		return nil, fmt.Errorf("record: manifest num_q %d out of range 0..%d", m.NumQ, MaxQ)
+	}
+	if len(m.JointNames) > MaxJoints {
+		return nil, fmt.Errorf("record: %d joints, at most %d fit a telemetry row", len(m.JointNames), MaxJoints)
+	}
+	if entries, err := os.ReadDir(dir); err == nil && len(entries) > 0 {
+		return nil, fmt.Errorf("record: run folder %s already exists and is not empty; choose a new folder", dir)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	m.Format = FormatVersion
+	m.Columns = TickColumns(m.NumQ, m.JointNames)
+	if m.StartTime.IsZero() {
+		m.StartTime = time.Now()
+	}
+	w := &Writer{dir: dir, m: m, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
+	if err := writeJSONAtomic(filepath.Join(dir, ManifestFile), &w.m); err != nil {
+		return nil, err
+	}
+	var err error
+	if w.tele, err = os.OpenFile(filepath.Join(dir, TelemetryFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	w.teleBuf = bufio.NewWriterSize(w.tele, 64<<10)
+	w.teleBuf.WriteString(csvHeader(m.Columns))
+	if err := w.teleBuf.Flush(); err != nil {
+		w.closeFiles()
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	w.lastFlush = time.Now()
+	if w.events, err = os.OpenFile(filepath.Join(dir, EventsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+		w.closeFiles()
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	// The events file is unbuffered: each event is one write(2), on disk
+	// (in the page cache) the moment Event returns.
+	w.log = zerolog.New(w.events)
+	if w.steps, err = os.OpenFile(filepath.Join(dir, StepsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+		w.closeFiles()
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	if _, err := w.steps.WriteString(csvHeader(StepColumns)); err != nil {
+		w.closeFiles()
+		return nil, fmt.Errorf("record: %w", err)
+	}
+	return w, nil
+}
+
+// Dir returns the run folder.
+func (w *Writer) Dir() string { return w.dir }
+
+// Manifest returns the manifest as written (with Format, Columns and
+// StartTime filled in).
+func (w *Writer) Manifest() Manifest {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.m
+}
+
+// SetGreeting records the firmware greeting in the manifest and rewrites it
+// atomically. It must come before the first tick, so a reader never sees a
+// manifest that changes under a growing telemetry file.
+func (w *Writer) SetGreeting(g Greeting) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return errors.New("record: SetGreeting after Close")
+	}
+	if w.ticks > 0 {
+		return errors.New("record: SetGreeting after the first tick; the greeting must be known before the run starts")
+	}
+	w.m.Greeting = g
+	return writeJSONAtomic(filepath.Join(w.dir, ManifestFile), &w.m)
+}
+
+// Tick appends one telemetry row. It allocates nothing: the row is formatted
+// into a reused buffer. Rows are flushed to the file whenever FlushInterval
+// of wall time has passed since the last flush.
+func (w *Writer) Tick(t *Tick) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return errors.New("record: Tick after Close")
+	}
+	if w.firstErr != nil {
+		return w.firstErr
+	}
+	b := appendTick(w.row[:0], t, w.m.NumQ, len(w.m.JointNames))
+	w.row = b
+	if _, err := w.teleBuf.Write(b); err != nil {
+		w.firstErr = fmt.Errorf("record: telemetry: %w", err)
+		return w.firstErr
+	}
+	w.ticks++
+	if now := time.Now(); now.Sub(w.lastFlush) >= FlushInterval {
+		w.lastFlush = now
+		if err := w.teleBuf.Flush(); err != nil {
+			w.firstErr = fmt.Errorf("record: telemetry: %w", err)
+			return w.firstErr
+		}
+	}
+	return nil
+}
+
+// Flush writes buffered telemetry rows to the file now. The loop calls it
+// when it is about to wait (for example for a late command), so rows do not
+// sit in the buffer while no ticks arrive.
+func (w *Writer) Flush() error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return nil
+	}
+	w.lastFlush = time.Now()
+	return w.teleBuf.Flush()
+}
+
+// Event appends one event to events.jsonl and writes it through at once.
+// A zero e.Wall is set to now.
+func (w *Writer) Event(e Event) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return errors.New("record: Event after Close")
+	}
+	if e.Wall.IsZero() {
+		e.Wall = time.Now()
+	}
+	ev := w.log.Log().
+		Int64("tick", e.Tick).
+		Float64("t_s", e.T).
+		Str("wall", e.Wall.Format(time.RFC3339Nano)).
+		Str("kind", e.Kind).
+		Str("severity", string(e.Severity)).
+		Str("message", e.Message)
+	if e.Foot != "" {
+		ev = ev.Str("foot", e.Foot)
+	}
+	if e.Segment >= 0 {
+		ev = ev.Int("segment", e.Segment)
+	}
+	if len(e.Values) > 0 {
+		d := zerolog.Dict()
+		for _, k := range sortedKeys(e.Values) {
+			d = d.Float64(k, e.Values[k])
+		}
+		ev = ev.Dict("values", d)
+	}
+	ev.Send()
+	return nil
+}
+
+// Step appends one row to steps.csv and writes it through at once.
+func (w *Writer) Step(s Step) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return errors.New("record: Step after Close")
+	}
+	w.stepBuf = appendStep(w.stepBuf[:0], &s)
+	if _, err := w.steps.Write(w.stepBuf); err != nil {
+		return fmt.Errorf("record: steps: %w", err)
+	}
+	return nil
+}
+
+// Close flushes the telemetry, writes summary.json atomically (a temporary
+// file renamed into place) and closes every file. A zero s.Caution is set to
+// Caution. Close is safe to call once; later calls return an error.
+func (w *Writer) Close(s Summary) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.closed {
+		return errors.New("record: Close called twice")
+	}
+	w.closed = true
+	errs := []error{w.firstErr}
+	if err := w.teleBuf.Flush(); err != nil {
+		errs = append(errs, fmt.Errorf("record: telemetry: %w", err))
+	}
+	if s.Caution == "" {
+		s.Caution = Caution
+	}
+	if s.Ticks == 0 {
+		s.Ticks = w.ticks
+	}
+	if s.ToolVersion == "" {
+		s.ToolVersion = w.m.ToolVersion
+	}
+	if err := writeJSONAtomic(filepath.Join(w.dir, SummaryFile), &s); err != nil {
+		errs = append(errs, err)
+	}
+	errs = append(errs, w.closeFiles())
+	return errors.Join(errs...)
+}
+
+func (w *Writer) closeFiles() error {
+	var errs []error
+	for _, f := range []*os.File{w.tele, w.events, w.steps} {
+		if f != nil {
+			if err := f.Sync(); err != nil {
+				errs = append(errs, err)
+			}
+			if err := f.Close(); err != nil {
+				errs = append(errs, err)
+			}
+		}
+	}
+	return errors.Join(errs...)
+}
+
+// writeJSONAtomic writes v as indented JSON to a temporary file in the same
+// folder, syncs it and renames it over path, so a reader sees the old file
+// or the new one, never half of one.
+func writeJSONAtomic(path string, v any) error {
+	data, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
+		return fmt.Errorf("record: %s: %w", filepath.Base(path), err)
+	}
+	data = append(data, '\n')
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".*.tmp")
+	if err != nil {
+		return fmt.Errorf("record: %w", err)
+	}
+	_, werr := tmp.Write(data)
+	serr := tmp.Sync()
+	cerr := tmp.Close()
+	if err := errors.Join(werr, serr, cerr); err != nil {
+		os.Remove(tmp.Name())
+		return fmt.Errorf("record: %s: %w", filepath.Base(path), err)
+	}
+	if err := os.Rename(tmp.Name(), path); err != nil {
+		os.Remove(tmp.Name())
+		return fmt.Errorf("record: %w", err)
+	}
+	return nil
+}
+
+// appendFloat writes x in the shortest form that parses back to the same
+// float64; NaN and ±Inf as NaN, +Inf, -Inf.
+func appendFloat(b []byte, x float64) []byte {
+	return strconv.AppendFloat(b, x, 'g', -1, 64)
+}

@@ -1,0 +1,485 @@
+// Package scenarios holds the scenario schema, its strict YAML loader and the
+// built-in scenario library.
+//
+// A scenario is one YAML file that says which walker to simulate, on which
+// ground, against which controller link, for how long, with which sensor and
+// actuator models and injected faults, which alarms trip the run and what a
+// passing run must show. Units live in the field names (SI: _m, _kg, _s, _ms,
+// _rad, _radps, _n, _nm, ...), so a value is never ambiguous.
+//
+// Loading is strict: an unknown field, a wrong type, a missing required value
+// or an out-of-range number is an error that names the file, the line, the
+// field path and what is allowed. Defaults are filled in by the loader and
+// documented in docs/scenarios.md, a page generated from this file (see
+// reference_test.go).
+package scenarios
+
+// Scenario is one complete, validated test scenario. The zero value is not
+// useful: get one from Load, Parse or LoadBuiltin, which fill in defaults and
+// validate everything.
+type Scenario struct {
+	// Name is a short identifier of the scenario: letters, digits, '-' and
+	// '_' only, because it becomes part of run-folder and JUnit names.
+	// Required.
+	Name string `yaml:"name"`
+	// Description says in a sentence or two what the scenario exercises.
+	Description string `yaml:"description"`
+	// Plant is the walker: masses, lengths, inertias, feet, optional torso.
+	Plant Plant `yaml:"plant"`
+	// Terrain is the ground the walker walks on.
+	Terrain Terrain `yaml:"terrain"`
+	// Initial is the state the run starts from.
+	Initial Initial `yaml:"initial"`
+	// Controller says which firmware drives the walker and over which link.
+	Controller Controller `yaml:"controller"`
+	// Clock says how ticks are paced.
+	Clock Clock `yaml:"clock"`
+	// Run says how long the run lasts. At least one of duration_s and
+	// max_steps is required.
+	Run RunLength `yaml:"run"`
+	// WatchdogMS is how long the rig waits without a fresh command before it
+	// raises the watchdog alarm and e-stops, in milliseconds. Ignored when
+	// controller.link is none. Default 50 ms: fifty ticks at 1 kHz, long
+	// enough for a scheduler hiccup on a bench PC, short enough that a stalled
+	// board is caught within a fraction of a step (our choice).
+	WatchdogMS float64 `yaml:"watchdog_ms"`
+	// Physics says what the plant does after a contact alarm.
+	Physics Physics `yaml:"physics"`
+	// Sensors is the model of what the board's sensors read.
+	Sensors Sensors `yaml:"sensors"`
+	// Actuators is the model of the motors that apply the commanded torques.
+	Actuators Actuators `yaml:"actuators"`
+	// Faults are disturbances and link faults injected during the run.
+	Faults []Fault `yaml:"faults"`
+	// Alarms maps an alarm kind (see AlarmKinds) to its severity, warn or
+	// trip. Kinds not listed keep their default (see DefaultSeverity).
+	Alarms map[string]Severity `yaml:"alarms"`
+	// Pass lists the criteria a run must meet to pass.
+	Pass Criteria `yaml:"pass"`
+
+	// File is the path or name the scenario was loaded from (not a YAML
+	// field).
+	File string `yaml:"-"`
+	// Text is the exact bytes of the scenario file (not a YAML field); the
+	// run manifest stores it with its Hash.
+	Text []byte `yaml:"-"`
+}
+
+// Plant describes the walker. Both legs share one block; left and right may
+// override single values of it.
+type Plant struct {
+	// GravityMPS2 is the gravitational acceleration, m/s². Default 9.81
+	// (standard gravity is 9.80665 m/s², CGPM 1901; 9.81 is the usual
+	// rounded value, common practice).
+	GravityMPS2 float64 `yaml:"gravity_mps2"`
+	// HipMassKG is the point mass at the hip (pelvis), kg. Required, > 0.
+	HipMassKG float64 `yaml:"hip_mass_kg"`
+	// Legs is the leg both legs share. Required.
+	Legs Legs `yaml:"legs"`
+	// Torso is the optional torso link on the hip; omit it for a compass
+	// walker with a single hip joint.
+	Torso *Torso `yaml:"torso"`
+}
+
+// Leg holds the parameters of one leg with its rigid circular-arc foot.
+type Leg struct {
+	// LengthM is the distance from the hip to the bottom of the foot with
+	// the leg vertical, m. Required, > 0.
+	LengthM float64 `yaml:"length_m"`
+	// MassKG is the leg mass, kg. ≥ 0; 0 makes a massless leg.
+	MassKG float64 `yaml:"mass_kg"`
+	// COMM is the distance of the leg's centre of mass from the hip along
+	// the leg axis, m. 0 ≤ com_m ≤ length_m.
+	COMM float64 `yaml:"com_m"`
+	// InertiaKGM2 is the leg's moment of inertia about its centre of mass,
+	// kg·m². ≥ 0.
+	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
+	// FootRadiusM is the radius of the foot arc, m. 0 is a point foot;
+	// 0 ≤ foot_radius_m ≤ length_m. About 0.3 × leg length matches the
+	// roll-over shape of human feet (Hansen, Childress, Knox 2004, J. Biomech.
+	// 37:1467–1474, from memory).
+	FootRadiusM float64 `yaml:"foot_radius_m"`
+	// ArcOffsetM is the fore–aft offset of the foot-arc centre from the leg
+	// axis, m, positive forward. |arc_offset_m| ≤ foot_radius_m.
+	ArcOffsetM float64 `yaml:"arc_offset_m"`
+}
+
+// LegOverride replaces single values of the shared leg for one side. A field
+// left out keeps the shared value.
+type LegOverride struct {
+	// LengthM overrides legs.length_m, m.
+	LengthM *float64 `yaml:"length_m"`
+	// MassKG overrides legs.mass_kg, kg.
+	MassKG *float64 `yaml:"mass_kg"`
+	// COMM overrides legs.com_m, m.
+	COMM *float64 `yaml:"com_m"`
+	// InertiaKGM2 overrides legs.inertia_kgm2, kg·m².
+	InertiaKGM2 *float64 `yaml:"inertia_kgm2"`
+	// FootRadiusM overrides legs.foot_radius_m, m.
+	FootRadiusM *float64 `yaml:"foot_radius_m"`
+	// ArcOffsetM overrides legs.arc_offset_m, m.
+	ArcOffsetM *float64 `yaml:"arc_offset_m"`
+}
+
+// Legs is the shared leg block with optional per-side overrides.
+type Legs struct {
+	Leg `yaml:",inline"`
+	// Left overrides values of the shared leg for the left leg (leg 0).
+	Left *LegOverride `yaml:"left"`
+	// Right overrides values of the shared leg for the right leg (leg 1).
+	Right *LegOverride `yaml:"right"`
+}
+
+// Torso is the optional torso link, hinged at the hip and pointing up.
+type Torso struct {
+	// MassKG is the torso mass, kg. Required, > 0.
+	MassKG float64 `yaml:"mass_kg"`
+	// COMM is the distance of the torso's centre of mass above the hip
+	// along the torso axis, m. ≥ 0.
+	COMM float64 `yaml:"com_m"`
+	// InertiaKGM2 is the torso's moment of inertia about its centre of
+	// mass, kg·m². ≥ 0.
+	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
+	// LengthM is the drawn length of the torso, from the hip to its top, m,
+	// used for stick figures only. Default 2 × com_m.
+	LengthM float64 `yaml:"length_m"`
+}
+
+// Terrain is a polyline of straight segments starting at Start. Ground past
+// the last segment continues the last segment.
+type Terrain struct {
+	// StartM is the world point (x, y) where the first segment begins, m.
+	// Default [-1, 0]: one metre behind the origin, so a walker standing at
+	// x = 0 is on the first segment.
+	StartM [2]float64 `yaml:"start_m"`
+	// Segments are the pieces of ground in walking order. Required, at least
+	// one.
+	Segments []Segment `yaml:"segments"`
+}
+
+// Segment is one straight piece of ground.
+type Segment struct {
+	// LengthM is the length of the segment along its surface, m. > 0.
+	// Required.
+	LengthM float64 `yaml:"length_m"`
+	// SlopeRad is the slope, rad, positive uphill in the walking direction.
+	// -0.5 < slope_rad < 0.5.
+	SlopeRad float64 `yaml:"slope_rad"`
+	// MuStatic is the static friction coefficient. Required, > 0.
+	MuStatic float64 `yaml:"mu_static"`
+	// MuKinetic is the kinetic (sliding) friction coefficient. Default
+	// 0.8 × mu_static (a typical ratio, common practice);
+	// 0 ≤ mu_kinetic ≤ mu_static.
+	MuKinetic float64 `yaml:"mu_kinetic"`
+}
+
+// Initial is the initial state: either explicit, or the natural gait found by
+// the gait finder.
+type Initial struct {
+	// NaturalGait true starts the run from the period-one gait that the gait
+	// finder finds for this walker and controller, just after a heel strike.
+	// The explicit fields must then be left out.
+	NaturalGait bool `yaml:"natural_gait"`
+	// Stance is the leg in contact at the start: left or right. Default
+	// left.
+	Stance string `yaml:"stance"`
+	// XM is the forward position of the stance foot's contact point, m.
+	// Default 0.
+	XM float64 `yaml:"x_m"`
+	// LegAnglesRad are the absolute angles of the left and right leg from the
+	// vertical, rad, counter-clockwise positive (positive puts the foot ahead
+	// of the hip). Required unless natural_gait is true.
+	LegAnglesRad []float64 `yaml:"leg_angles_rad"`
+	// TorsoAngleRad is the absolute torso angle from the vertical, rad;
+	// forward lean is negative. Default 0.
+	TorsoAngleRad float64 `yaml:"torso_angle_rad"`
+	// LegRatesRadps are the absolute angular rates of the left and right
+	// leg, rad/s. Default [0, 0].
+	LegRatesRadps []float64 `yaml:"leg_rates_radps"`
+	// TorsoRateRadps is the torso's absolute angular rate, rad/s. Default 0.
+	TorsoRateRadps float64 `yaml:"torso_rate_radps"`
+}
+
+// Link kinds for Controller.Link.
+const (
+	LinkBuiltin = "builtin" // the in-process reference controller
+	LinkSerial  = "serial"  // a board on a serial port
+	LinkMQTT    = "mqtt"    // a controller process over MQTT
+	LinkNone    = "none"    // no controller: zero torques, a passive walker
+)
+
+// Controller says which controller drives the walker and how the rig reaches
+// it. Secrets never appear in a scenario: username_env and password_env name
+// environment variables that hold them.
+type Controller struct {
+	// Link is builtin, serial, mqtt or none. Required.
+	Link string `yaml:"link"`
+	// Mode is the built-in controller's mode: walk (default) or passive
+	// (the controller answers every state with zero torques, so the link and
+	// watchdog are exercised on a passive walker). Only for link builtin.
+	Mode string `yaml:"mode"`
+	// Settings are named tuning values for the built-in controller (for
+	// example target_speed_mps); their names and meaning belong to the
+	// reference controller. Only for link builtin.
+	Settings map[string]float64 `yaml:"settings"`
+	// Port is the serial device, for example /dev/ttyUSB0. Required for
+	// link serial.
+	Port string `yaml:"port"`
+	// Baud is the serial baud rate. Default 115200 (a common default of USB
+	// serial adapters, common practice). Only for link serial.
+	Baud int `yaml:"baud"`
+	// Broker is the MQTT broker URL (tcp://host:port, ssl://host:port) or
+	// the word embedded for the broker built into gaitrig. Default embedded.
+	// Only for link mqtt.
+	Broker string `yaml:"broker"`
+	// Rig is the rig id that names this rig's MQTT topic tree. Default
+	// bench. Only for link mqtt.
+	Rig string `yaml:"rig"`
+	// UsernameEnv names the environment variable that holds the MQTT user
+	// name. Only for link mqtt.
+	UsernameEnv string `yaml:"username_env"`
+	// PasswordEnv names the environment variable that holds the MQTT
+	// password. Only for link mqtt. A literal password field is an error:
+	// scenario files are shared, hashed and copied into every run record.
+	PasswordEnv string `yaml:"password_env"`
+}
+
+// Clock modes for Clock.Mode.
+const (
+	ClockLockstep  = "lockstep"  // virtual time: the plant waits for each reply
+	ClockWallclock = "wallclock" // ticks paced by the real clock
+)
+
+// Clock says how the loop paces its ticks.
+type Clock struct {
+	// Mode is lockstep (virtual time, bit-identical logs) or wallclock
+	// (paced by the real clock). Default lockstep.
+	Mode string `yaml:"mode"`
+	// TickHz is the control rate, ticks per second. Default 1000;
+	// 10 ≤ tick_hz ≤ 20000.
+	TickHz float64 `yaml:"tick_hz"`
+	// Substeps is the number of integrator steps per tick. Default 4;
+	// 1 ≤ substeps ≤ 100.
+	Substeps int `yaml:"substeps"`
+}
+
+// RunLength bounds the run. The run ends at whichever limit comes first.
+type RunLength struct {
+	// DurationS is the simulated duration, s. > 0 when given.
+	DurationS float64 `yaml:"duration_s"`
+	// MaxSteps ends the run after this many heel strikes. > 0 when given.
+	MaxSteps int `yaml:"max_steps"`
+}
+
+// Contact-alarm policies for Physics.OnSlip and Physics.OnLiftOff.
+const (
+	PolicyContinue = "continue" // keep integrating with the changed contact
+	PolicyStop     = "stop"     // stop the plant at the event
+)
+
+// Physics says what the plant does after a contact event. Whether the run
+// trips is the alarm severity's business (see Alarms); these options say
+// whether the physics carries on.
+type Physics struct {
+	// OnSlip is continue (the foot slides with kinetic friction) or stop.
+	// Default continue.
+	OnSlip string `yaml:"on_slip"`
+	// OnLiftOff is continue (the foot leaves the ground) or stop. Default
+	// continue.
+	OnLiftOff string `yaml:"on_lift_off"`
+	// IgnoreScuff true lets the swing foot pass through the ground mid-swing
+	// without a foot_scuff event, as the simplest walking models assume.
+	// Default false.
+	IgnoreScuff bool `yaml:"ignore_scuff"`
+	// FallHipHeightM is the hip height above the ground below which the
+	// walker has fallen, m. Default 0 means half the shorter leg length.
+	FallHipHeightM float64 `yaml:"fall_hip_height_m"`
+	// FallTorsoAngleRad is the torso angle from the vertical beyond which the
+	// walker has fallen, rad. Default 1.2 rad (about 69°, our choice);
+	// 0 < fall_torso_angle_rad ≤ 3.
+	FallTorsoAngleRad float64 `yaml:"fall_torso_angle_rad"`
+}
+
+// Sensors models what the board's encoders, IMU and foot switches read.
+type Sensors struct {
+	// EncoderCountsPerRev is the joint encoder resolution in counts per
+	// revolution; angles are quantized to it. 0 means no quantization.
+	// Default 4096 (a 12-bit encoder, common practice); 0 ≤ value ≤ 2^24.
+	EncoderCountsPerRev int `yaml:"encoder_counts_per_rev"`
+	// AngleNoiseRad is the standard deviation of white noise on joint
+	// angles, rad. Default 0; ≥ 0.
+	AngleNoiseRad float64 `yaml:"angle_noise_rad"`
+	// RateNoiseRadps is the standard deviation of white noise on joint
+	// rates, rad/s. Default 0; ≥ 0.
+	RateNoiseRadps float64 `yaml:"rate_noise_radps"`
+	// AngleBiasRad is a constant offset added to every joint angle, rad.
+	// Default 0.
+	AngleBiasRad float64 `yaml:"angle_bias_rad"`
+	// RateBiasRadps is a constant offset added to every joint rate, rad/s.
+	// Default 0.
+	RateBiasRadps float64 `yaml:"rate_bias_radps"`
+	// IMUPitchNoiseRad is the standard deviation of noise on the IMU pitch,
+	// rad. Default 0; ≥ 0.
+	IMUPitchNoiseRad float64 `yaml:"imu_pitch_noise_rad"`
+	// IMURateNoiseRadps is the standard deviation of noise on the IMU pitch
+	// rate, rad/s. Default 0; ≥ 0.
+	IMURateNoiseRadps float64 `yaml:"imu_rate_noise_radps"`
+	// IMUPitchBiasRad is a constant offset on the IMU pitch, rad. Default 0.
+	IMUPitchBiasRad float64 `yaml:"imu_pitch_bias_rad"`
+	// IMURateBiasRadps is a constant offset on the IMU rate, rad/s. Default
+	// 0.
+	IMURateBiasRadps float64 `yaml:"imu_rate_bias_radps"`
+	// ContactThresholdN is the normal force above which a foot switch reads
+	// closed, N. Default 5 N (our choice); ≥ 0.
+	ContactThresholdN float64 `yaml:"contact_threshold_n"`
+	// Seed seeds the random generator of sensor noise and of random fault
+	// injection (drops, corruption, jitter), so a run is repeatable. Default
+	// 1.
+	Seed int64 `yaml:"seed"`
+}
+
+// Actuators models the motors between the commanded and the applied torque.
+type Actuators struct {
+	// TorqueLimitNM is the symmetric torque limit of every joint, N·m;
+	// commands beyond it are saturated and raise torque_saturation. Default
+	// 50 N·m (our choice for a bench-size walker); > 0.
+	TorqueLimitNM float64 `yaml:"torque_limit_nm"`
+	// JointTorqueLimitsNM overrides the limit for single joints, by joint
+	// name (hip for a compass walker; hip_left and hip_right with a torso),
+	// N·m; each > 0.
+	JointTorqueLimitsNM map[string]float64 `yaml:"joint_torque_limits_nm"`
+	// LagS is the time constant of a first-order lag between commanded and
+	// applied torque, s. Default 0 (no lag); 0 ≤ lag_s ≤ 1.
+	LagS float64 `yaml:"lag_s"`
+}
+
+// Fault kinds for Fault.Kind.
+const (
+	FaultLatency = "latency" // added command latency: fixed_ms + uniform jitter_ms
+	FaultDrop    = "drop"    // drop frames with probability rate
+	FaultCorrupt = "corrupt" // corrupt frames with probability rate
+	FaultFreeze  = "freeze"  // a sensor holds its value from at_s for for_s
+	FaultPush    = "push"    // a push on the hip
+)
+
+// Fault is one injected disturbance or link fault. Kind says which of the
+// other fields apply; a field that does not apply to the kind is an error.
+type Fault struct {
+	// Kind is latency, drop, corrupt, freeze or push. Required.
+	Kind string `yaml:"kind"`
+	// FromS is when a latency, drop or corrupt fault starts, simulated
+	// seconds. Default 0.
+	FromS float64 `yaml:"from_s"`
+	// UntilS is when a latency, drop or corrupt fault ends, simulated
+	// seconds. Default 0 means until the end of the run.
+	UntilS float64 `yaml:"until_s"`
+	// FixedMS is the fixed added latency of a latency fault, ms. ≥ 0.
+	FixedMS float64 `yaml:"fixed_ms"`
+	// JitterMS is the width of uniformly distributed extra latency of a
+	// latency fault, ms. ≥ 0.
+	JitterMS float64 `yaml:"jitter_ms"`
+	// Rate is the probability per frame of a drop or corrupt fault.
+	// Required for those kinds; 0 < rate ≤ 1.
+	Rate float64 `yaml:"rate"`
+	// Sensor is what a freeze fault freezes: a joint name, imu, or contacts.
+	// Required for freeze.
+	Sensor string `yaml:"sensor"`
+	// AtS is when a freeze or push fault happens, simulated seconds. A push
+	// needs at_s or at_step.
+	AtS float64 `yaml:"at_s"`
+	// AtStep times a push at the heel strike that completes this step
+	// instead of at a time. ≥ 1 when given.
+	AtStep int `yaml:"at_step"`
+	// ForS is how long a freeze lasts, s. Required for freeze; > 0.
+	ForS float64 `yaml:"for_s"`
+	// ImpulseNS is the impulse of a push as (x, y), N·s, applied over one
+	// tick. A push needs impulse_ns or force_n.
+	ImpulseNS []float64 `yaml:"impulse_ns"`
+	// ForceN is the force of a push as (x, y), N, held for duration_s.
+	ForceN []float64 `yaml:"force_n"`
+	// DurationS is how long force_n is held, s. Required with force_n; > 0.
+	DurationS float64 `yaml:"duration_s"`
+}
+
+// Severity is what an alarm does to the run.
+type Severity string
+
+// Alarm severities a scenario can set.
+const (
+	SeverityWarn Severity = "warn" // logged and counted; the run goes on
+	SeverityTrip Severity = "trip" // e-stop: the run ends with outcome tripped
+)
+
+// Alarm kinds. The hil loop raises these; a scenario sets their severities.
+const (
+	AlarmFrictionLimit    = "friction_limit"    // demanded friction beyond μ_s·N at a rolling foot
+	AlarmLiftOff          = "lift_off"          // demanded normal force below zero
+	AlarmImpactSlip       = "impact_slip"       // heel-strike impulse outside the friction cone
+	AlarmFootScuff        = "foot_scuff"        // swing foot below ground mid-swing
+	AlarmFall             = "fall"              // hip too low or torso beyond its angle limit
+	AlarmNonFinite        = "non_finite"        // NaN or Inf in the plant state
+	AlarmWatchdog         = "watchdog"          // no fresh command within watchdog_ms
+	AlarmBadFrame         = "bad_frame"         // a frame failed its CRC, framing or layout check
+	AlarmBadTorque        = "bad_torque"        // a commanded torque is NaN or Inf
+	AlarmTorqueSaturation = "torque_saturation" // a commanded torque beyond its limit
+	AlarmLinkLost         = "link_lost"         // the link to the firmware went away
+	AlarmLinkRestored     = "link_restored"     // the link came back
+	AlarmDeadlineMiss     = "deadline_miss"     // a wall-clock tick started late
+	AlarmFirmwareFault    = "firmware_fault"    // the firmware set its fault status bit
+	AlarmVersionMismatch  = "version_mismatch"  // the firmware speaks another protocol version
+)
+
+// AlarmKinds lists every alarm kind in a fixed order (for tables and
+// reports).
+var AlarmKinds = []string{
+	AlarmFrictionLimit, AlarmLiftOff, AlarmImpactSlip, AlarmFootScuff,
+	AlarmFall, AlarmNonFinite, AlarmWatchdog, AlarmBadFrame, AlarmBadTorque,
+	AlarmTorqueSaturation, AlarmLinkLost, AlarmLinkRestored,
+	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
+}
+
+// DefaultSeverity is the severity of each alarm kind when a scenario does
+// not set it. Physical danger and a controller the rig cannot trust trip;
+// conditions the run survives warn.
+var DefaultSeverity = map[string]Severity{
+	AlarmFrictionLimit:    SeverityTrip,
+	AlarmLiftOff:          SeverityTrip,
+	AlarmImpactSlip:       SeverityWarn,
+	AlarmFootScuff:        SeverityWarn,
+	AlarmFall:             SeverityTrip,
+	AlarmNonFinite:        SeverityTrip,
+	AlarmWatchdog:         SeverityTrip,
+	AlarmBadFrame:         SeverityWarn,
+	AlarmBadTorque:        SeverityTrip,
+	AlarmTorqueSaturation: SeverityWarn,
+	AlarmLinkLost:         SeverityTrip,
+	AlarmLinkRestored:     SeverityWarn,
+	AlarmDeadlineMiss:     SeverityWarn,
+	AlarmFirmwareFault:    SeverityTrip,
+	AlarmVersionMismatch:  SeverityTrip,
+}
+
+// Criteria are the pass criteria of a run. A criterion left out is not
+// checked (except no_trip, which defaults to true).
+type Criteria struct {
+	// MinSteps is the least number of heel strikes a passing run completes.
+	// Default 0 (not checked); ≥ 0.
+	MinSteps int `yaml:"min_steps"`
+	// NoTrip true fails a run that tripped. Default true.
+	NoTrip *bool `yaml:"no_trip"`
+	// MinSpeedMPS is the lowest mean forward speed of a passing run, m/s.
+	MinSpeedMPS *float64 `yaml:"min_speed_mps"`
+	// MaxSpeedMPS is the highest mean forward speed of a passing run, m/s;
+	// ≥ min_speed_mps.
+	MaxSpeedMPS *float64 `yaml:"max_speed_mps"`
+	// MaxFrictionUtilization is the ceiling on the peak friction
+	// utilization |F_t|/(μ_s·N) over the run; 0 < value ≤ 1 is the useful
+	// range, and 1 is the slip limit itself.
+	MaxFrictionUtilization *float64 `yaml:"max_friction_utilization"`
+	// MinNormalForceN is the least normal force a stance foot may see, N
+	// (a margin before lift-off); ≥ 0.
+	MinNormalForceN *float64 `yaml:"min_normal_force_n"`
+	// MaxLatencyP99US is the ceiling on the 99th percentile of command
+	// round-trip latency, µs; > 0. Checked in wall-clock mode only.
+	MaxLatencyP99US *float64 `yaml:"max_latency_p99_us"`
+}
