@@ -67,3 +67,47 @@ func decimateMinMax(x, y []float64, maxPoints int) (xs, ys []float64) {
 	}
 	return xs, ys
 }
+
+// run is a stretch of consecutive finite samples: a line is drawn through
+// each run, and the line breaks between runs (a foot in the air has no
+// friction cone, so its envelope must not be joined across the swing).
+type run struct{ x, y []float64 }
+
+// decimateRuns splits (x, y) at non-finite samples into runs and thins
+// them with decimateMinMax, sharing the point budget between runs by their
+// length (at least two points each, so a short run is still drawn). It
+// returns the runs and the total number of points kept.
+func decimateRuns(x, y []float64, maxPoints int) ([]run, int) {
+	n := min(len(x), len(y))
+	finite := func(i int) bool {
+		return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
+	}
+	type span struct{ lo, hi int }
+	var spans []span
+	total := 0
+	for i := 0; i < n; {
+		if !finite(i) {
+			i++
+			continue
+		}
+		j := i
+		for j < n && finite(j) {
+			j++
+		}
+		spans = append(spans, span{i, j})
+		total += j - i
+		i = j
+	}
+	runs := make([]run, 0, len(spans))
+	kept := 0
+	for _, s := range spans {
+		budget := 2
+		if total > 0 {
+			budget = max(2, maxPoints*(s.hi-s.lo)/total)
+		}
+		xs, ys := decimateMinMax(x[s.lo:s.hi], y[s.lo:s.hi], budget)
+		runs = append(runs, run{xs, ys})
+		kept += len(xs)
+	}
+	return runs, kept
+}

@@ -106,37 +106,52 @@ func newPlot(title, xLabel, yLabel string) *plot.Plot {
 	return p
 }
 
-// linePlot draws time series, each thinned to at most maxPoints points.
+// linePlot draws time series, each thinned to at most about maxPoints
+// points and broken where a value is missing (NaN). It leaves headroom
+// above the data for the legend, so the legend never hides a peak.
 func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int) (*plot.Plot, plotStats, error) {
 	p := newPlot(title, xLabel, yLabel)
 	var st plotStats
+	ylo, yhi := math.Inf(1), math.Inf(-1)
+	entries := 0
 	for _, ln := range lines {
-		xs, ys := decimateMinMax(ln.x, ln.y, maxPoints)
+		runs, kept := decimateRuns(ln.x, ln.y, maxPoints)
 		st.recorded = max(st.recorded, min(len(ln.x), len(ln.y)))
-		st.drawn = max(st.drawn, len(xs))
-		if len(xs) == 0 {
-			continue
+		st.drawn = max(st.drawn, kept)
+		first := true
+		for _, r := range runs {
+			pts := make(plotter.XYs, len(r.x))
+			for i := range r.x {
+				pts[i].X, pts[i].Y = r.x[i], r.y[i]
+				ylo, yhi = math.Min(ylo, r.y[i]), math.Max(yhi, r.y[i])
+			}
+			l, err := plotter.NewLine(pts)
+			if err != nil {
+				return nil, st, fmt.Errorf("plot %q, line %q: %w", title, ln.label, err)
+			}
+			l.Color = ln.color
+			l.Width = vg.Points(1)
+			if ln.width > 0 {
+				l.Width = ln.width
+			}
+			if ln.dashed {
+				l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+			}
+			p.Add(l)
+			if first && ln.label != "" {
+				p.Legend.Add(ln.label, l)
+				entries++
+			}
+			first = false
 		}
-		pts := make(plotter.XYs, len(xs))
-		for i := range xs {
-			pts[i].X, pts[i].Y = xs[i], ys[i]
+	}
+	if ylo <= yhi {
+		h := yhi - ylo
+		if h == 0 {
+			h = math.Max(math.Abs(yhi), 1)
 		}
-		l, err := plotter.NewLine(pts)
-		if err != nil {
-			return nil, st, fmt.Errorf("plot %q, line %q: %w", title, ln.label, err)
-		}
-		l.Color = ln.color
-		l.Width = vg.Points(1)
-		if ln.width > 0 {
-			l.Width = ln.width
-		}
-		if ln.dashed {
-			l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
-		}
-		p.Add(l)
-		if ln.label != "" {
-			p.Legend.Add(ln.label, l)
-		}
+		p.Y.Min = ylo - 0.03*h
+		p.Y.Max = yhi + h*(0.03+0.085*float64(entries))
 	}
 	return p, st, nil
 }

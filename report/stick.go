@@ -56,6 +56,7 @@ func pickEvenly(n, k int) []int {
 type stickStrip struct {
 	poses   []stickPose
 	scale   float64 // typical leg length, sets slot size
+	top     float64 // highest point of any pose above its origin, m
 	rows    int
 	columns int
 }
@@ -75,11 +76,28 @@ func newStickStrip(poses []stickPose) *stickStrip {
 	}
 	cols := min(stickColumns, max(len(poses), 1))
 	rows := (len(poses) + cols - 1) / cols
-	return &stickStrip{poses: poses, scale: scale, rows: max(rows, 1), columns: cols}
+	s := &stickStrip{poses: poses, scale: scale, rows: max(rows, 1), columns: cols}
+	for _, ps := range poses {
+		o := s.origin(ps)
+		top := ps.hip[1]
+		if ps.hasTorso {
+			top = math.Max(top, ps.torsoTop[1])
+		}
+		if d := top - o[1]; d > s.top && !math.IsInf(d, 0) {
+			s.top = d
+		}
+	}
+	if s.top == 0 {
+		s.top = scale
+	}
+	s.top += 0.08 * scale
+	return s
 }
 
 func (s *stickStrip) slotW() float64 { return 1.6 * s.scale }
-func (s *stickStrip) slotH() float64 { return 2.9 * s.scale }
+
+// slotH leaves room for the tallest figure and its label below the ground.
+func (s *stickStrip) slotH() float64 { return s.top + 0.45*s.scale }
 
 // origin is the world point of pose i that is placed at its slot origin:
 // the lower of the two feet.
@@ -99,7 +117,7 @@ func (s *stickStrip) slot(i int) (x, y float64) {
 // DataRange implements plot.DataRanger.
 func (s *stickStrip) DataRange() (xmin, xmax, ymin, ymax float64) {
 	return 0, float64(s.columns) * s.slotW(),
-		-float64(s.rows-1)*s.slotH() - 0.35*s.scale, 2.2 * s.scale
+		-float64(s.rows-1)*s.slotH() - 0.4*s.scale, s.top
 }
 
 // Plot implements plot.Plotter.

@@ -1,0 +1,295 @@
+package report
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+
+	"gaitrig/record"
+)
+
+// terrainSeg is one straight piece of ground as the report needs it: its
+// horizontal extent, slope and static friction.
+type terrainSeg struct {
+	x0, x1 float64
+	slope  float64 // rad
+	muS    float64
+}
+
+// terrainOf reads the terrain from the manifest's plant parameters, which
+// record keeps as raw JSON so it depends on no other package. Keys are
+// matched without regard to case or underscores ("MuStatic", "mu_static"),
+// so the report keeps working whichever spelling the plant's JSON uses.
+// It returns nil when the manifest carries no usable terrain.
+func terrainOf(raw json.RawMessage) []terrainSeg {
+	if len(raw) == 0 {
+		return nil
+	}
+	var top any
+	if err := json.Unmarshal(raw, &top); err != nil {
+		return nil
+	}
+	terr, ok := lookup(top, "terrain").(map[string]any)
+	if !ok {
+		return nil
+	}
+	x := 0.0
+	if st, ok := lookup(terr, "start").([]any); ok && len(st) >= 1 {
+		if v, ok := st[0].(float64); ok {
+			x = v
+		}
+	}
+	segs, ok := lookup(terr, "segments").([]any)
+	if !ok {
+		return nil
+	}
+	var out []terrainSeg
+	for _, s := range segs {
+		m, ok := s.(map[string]any)
+		if !ok {
+			return nil
+		}
+		length, _ := lookup(m, "length").(float64)
+		slope, _ := lookup(m, "slope").(float64)
+		mu, ok := lookup(m, "mustatic").(float64)
+		if !ok {
+			mu, ok = lookup(m, "mus").(float64)
+		}
+		if !ok || length <= 0 {
+			return nil
+		}
+		// The segment length is along the ground; its horizontal extent is
+		// length·cos(slope).
+		dx := length * math.Cos(slope)
+		out = append(out, terrainSeg{x0: x, x1: x + dx, slope: slope, muS: mu})
+		x += dx
+	}
+	return out
+}
+
+// lookup finds key in a JSON object ignoring case and underscores.
+func lookup(v any, key string) any {
+	m, ok := v.(map[string]any)
+	if !ok {
+		return nil
+	}
+	norm := func(s string) string { return strings.ToLower(strings.ReplaceAll(s, "_", "")) }
+	want := norm(key)
+	for k, x := range m {
+		if norm(k) == want {
+			return x
+		}
+	}
+	return nil
+}
+
+// segmentAt returns the segment under horizontal position x: the last one
+// whose start is at or before x, clamped to the ends (beyond the last
+// segment the ground is taken to continue it).
+func segmentAt(segs []terrainSeg, x float64) (terrainSeg, bool) {
+	if len(segs) == 0 || math.IsNaN(x) {
+		return terrainSeg{}, false
+	}
+	i := sort.Search(len(segs), func(i int) bool { return segs[i].x0 > x }) - 1
+	i = max(0, min(i, len(segs)-1))
+	return segs[i], true
+}
+
+// tickSource is what the report needs of a telemetry stream; a
+// *record.TickReader is one.
+type tickSource interface {
+	Next() bool
+	Tick() *record.Tick
+}
+
+// sliceTicks streams ticks held in memory.
+type sliceTicks struct {
+	ticks []record.Tick
+	i     int
+}
+
+func (s *sliceTicks) Next() bool {
+	if s.i >= len(s.ticks) {
+		return false
+	}
+	s.i++
+	return true
+}
+
+func (s *sliceTicks) Tick() *record.Tick { return &s.ticks[s.i-1] }
+
+// collectTicks pulls the plotted columns out of a telemetry stream, one row
+// at a time, so the report never holds whole telemetry rows in memory.
+//
+// μ_s of each foot comes from the terrain under its contact point; where
+// the manifest has no terrain it is recovered from the recorded
+// utilization, |T| / (utilization · N), which is exact wherever the foot is
+// loaded and pushing sideways. A foot carrying no load has no friction cone
+// and gets NaN, which breaks the envelope line over the swing.
+func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg) {
+	v.joints = v.joints[:0]
+	for j := 0; j < nj; j++ {
+		v.joints = append(v.joints, jointSeries{})
+	}
+	for src != nil && src.Next() {
+		t := src.Tick()
+		v.t = append(v.t, t.T)
+		for j := range v.joints {
+			v.joints[j].angle = append(v.joints[j].angle, t.Angle[j])
+			v.joints[j].rate = append(v.joints[j].rate, t.Rate[j])
+		}
+		for k := range v.feet {
+			f := &t.Feet[k]
+			fs := &v.feet[k]
+			mu := math.NaN()
+			switch {
+			case f.NormalN == 0 && f.TangentialN == 0:
+			case len(segs) > 0:
+				if sg, ok := segmentAt(segs, f.ContactX); ok {
+					mu = sg.muS
+				}
+			case f.Utilization > 0 && f.NormalN > 0 && f.TangentialN != 0:
+				mu = math.Abs(f.TangentialN) / (f.Utilization * f.NormalN)
+			}
+			fs.normal = append(fs.normal, f.NormalN)
+			fs.tangential = append(fs.tangential, f.TangentialN)
+			fs.util = append(fs.util, f.Utilization)
+			fs.mu = append(fs.mu, mu)
+		}
+	}
+}
+
+// viewOf turns the parts of a run folder into what the page shows.
+func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []record.Event, s *record.Summary) *view {
+	v := &view{
+		Scenario: m.Scenario,
+		Hash:     m.ScenarioHash,
+		Greeting: greetingText(m.Greeting),
+		Caution:  Caution,
+	}
+	if v.Scenario == "" {
+		v.Scenario = "(unnamed scenario)"
+	}
+	if v.Hash == "" {
+		v.Hash = "(not recorded)"
+	}
+	v.Meta = []kv{
+		{"scenario file", m.ScenarioFile},
+		{"link", m.Link},
+		{"clock", m.Clock},
+		{"tick rate", fmtFloat(m.TickHz) + " Hz"},
+		{"seed", strconv.FormatInt(m.Seed, 10)},
+		{"tool version", m.ToolVersion},
+		{"host", m.Host},
+	}
+	if !m.StartTime.IsZero() {
+		v.Meta = append(v.Meta, kv{"started", m.StartTime.UTC().Format("2006-01-02 15:04:05 MST")})
+	}
+
+	if s == nil {
+		v.Outcome = "unfinished"
+		v.Headline = append(v.Headline, kv{"summary", "missing: the run did not finish (killed, or still running); the plots show what was recorded up to the last flush"})
+	} else {
+		v.Outcome = string(s.Outcome)
+		if s.Reason != "" {
+			v.Headline = append(v.Headline, kv{"reason", s.Reason})
+		}
+		v.Headline = append(v.Headline,
+			kv{"heel strikes", strconv.Itoa(s.Steps)},
+			kv{"ticks", strconv.FormatInt(s.Ticks, 10)},
+			kv{"simulated time", fmtFloat(s.SimTimeS) + " s"},
+			kv{"wall time", fmtFloat(s.WallTimeS) + " s"},
+			kv{"mean speed", fmtFloat(s.MeanSpeedMPS) + " m/s"},
+			kv{"peak friction utilization", fmtFloat(s.PeakFrictionUtilization)},
+			kv{"least normal force", fmtFloat(s.MinNormalForceN) + " N"},
+		)
+		if s.LatencyUS != nil {
+			v.Headline = append(v.Headline, kv{"round-trip latency p50 / p99 / max",
+				fmt.Sprintf("%s / %s / %s µs", fmtFloat(s.LatencyUS.P50), fmtFloat(s.LatencyUS.P99), fmtFloat(s.LatencyUS.Max))})
+		} else {
+			v.Headline = append(v.Headline, kv{"round-trip latency", "not measured (lockstep clock)"})
+		}
+		if s.JitterUS != nil {
+			v.Headline = append(v.Headline, kv{"tick jitter p50 / p99 / max",
+				fmt.Sprintf("%s / %s / %s µs", fmtFloat(s.JitterUS.P50), fmtFloat(s.JitterUS.P99), fmtFloat(s.JitterUS.Max))})
+		}
+		v.Headline = append(v.Headline, kv{"deadline misses", strconv.Itoa(s.DeadlineMisses)})
+		for _, c := range s.Criteria {
+			v.Criteria = append(v.Criteria, criterionRow{Name: c.Name, Pass: c.Pass, Value: fmtFloat(c.Value), Limit: fmtFloat(c.Limit)})
+		}
+		kinds := make([]string, 0, len(s.Alarms))
+		for k := range s.Alarms {
+			kinds = append(kinds, k)
+		}
+		sort.Strings(kinds)
+		for _, k := range kinds {
+			v.AlarmCounts = append(v.AlarmCounts, kv{k, strconv.Itoa(s.Alarms[k])})
+		}
+	}
+
+	// Telemetry columns.
+	nj := min(len(m.JointNames), record.MaxJoints)
+	segs := terrainOf(m.Plant)
+	collectTicks(v, nj, ticks, segs)
+	for j := range v.joints {
+		v.joints[j].name = m.JointNames[j]
+	}
+	if len(segs) > 0 {
+		v.Notes = append(v.Notes, "μs of the friction-cone lines is the static friction of the terrain segment under each foot's contact point, from the manifest's terrain.")
+	} else {
+		v.Notes = append(v.Notes, "The manifest has no terrain: μs of the friction-cone lines is recovered from the recorded utilization as |T| / (utilization · N), and is not drawn where the foot carries no sideways force.")
+	}
+
+	// Alarms and events.
+	for _, e := range events {
+		v.alarms = append(v.alarms, alarmMark{t: e.T, kind: e.Kind, severity: string(e.Severity)})
+	}
+
+	// Steps: table and poses.
+	v.StepCols = []string{"step", "stance", "start (s)", "duration (s)", "length (m)", "speed (m/s)",
+		"peak friction utilization", "least normal force (N)", "heel-strike loss (J)",
+		"positive work (J)", "negative work (J)", "cost of transport", "CoP travel (m)"}
+	v.stepsTotal = len(steps)
+	for _, st := range steps {
+		v.StepRows = append(v.StepRows, []string{
+			strconv.Itoa(st.Index), footName(st.Stance), fmtFloat(st.StartS), fmtFloat(st.DurationS),
+			fmtFloat(st.LengthM), fmtFloat(st.SpeedMPS), fmtFloat(st.PeakUtilization), fmtFloat(st.MinNormalN),
+			fmtFloat(st.ImpactLossJ), fmtFloat(st.PosWorkJ), fmtFloat(st.NegWorkJ), fmtFloat(st.CostOfTransport),
+			fmtFloat(st.CoPTravelM),
+		})
+		ps := stickPose{
+			label:    fmt.Sprintf("#%d  %.2f s", st.Index, st.EndS),
+			hip:      st.Pose.Hip,
+			feet:     st.Pose.Feet,
+			torsoTop: st.Pose.TorsoTop,
+			hasTorso: st.Pose.HasTorso,
+		}
+		low := ps.feet[0]
+		if ps.feet[1][1] < low[1] {
+			low = ps.feet[1]
+		}
+		if sg, ok := segmentAt(segs, low[0]); ok {
+			ps.slope = sg.slope
+		}
+		v.poses = append(v.poses, ps)
+	}
+	return v
+}
+
+func footName(i int) string {
+	if i == 0 || i == 1 {
+		return footNames[i]
+	}
+	return strconv.Itoa(i)
+}
+
+// greetingText prints the firmware greeting on one line.
+func greetingText(g record.Greeting) string {
+	if g == (record.Greeting{}) {
+		return "(no greeting received)"
+	}
+	return fmt.Sprintf("%s build %s, protocol %d, %d actuator(s)", g.Name, g.Build, g.Protocol, g.Actuators)
+}

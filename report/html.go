@@ -1,0 +1,316 @@
+package report
+
+import (
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	"gonum.org/v1/plot/vg"
+)
+
+// Caution is the safety caution printed at the top of every report.
+const Caution = "A passing simulation is not a safety certificate. " +
+	"This report shows how a model of the walker behaved against this firmware; it says nothing certain about the real machine. " +
+	"Treadmill and overground trials need the lab's own safety procedure, a fall-arrest harness or gantry, " +
+	"a hardware e-stop within reach of the operator, and the local rules and qualified staff that govern such trials."
+
+// kv is a labelled value in a small table.
+type kv struct{ Key, Value string }
+
+// criterionRow is one pass criterion as shown in the report.
+type criterionRow struct {
+	Name  string
+	Pass  bool
+	Value string
+	Limit string
+}
+
+// jointSeries is one joint's encoder angle and rate over time.
+type jointSeries struct {
+	name        string
+	angle, rate []float64
+}
+
+// footSeries is one foot's ground reaction over time. mu is the static
+// friction coefficient under the foot at each tick; NaN where unknown.
+type footSeries struct {
+	normal, tangential, mu, util []float64
+}
+
+// view is everything the page shows, as plain values: the run-folder
+// reader fills it, the page renders it, so neither depends on the other's
+// details.
+type view struct {
+	Outcome     string
+	Scenario    string
+	Hash        string
+	Greeting    string
+	Meta        []kv
+	Headline    []kv
+	Criteria    []criterionRow
+	AlarmCounts []kv
+	StepCols    []string
+	StepRows    [][]string
+	Notes       []string
+	Caution     string
+
+	t      []float64
+	joints []jointSeries
+	feet   [2]footSeries
+	alarms []alarmMark
+	poses  []stickPose
+	// stepsTotal is how many heel strikes the run had; poses may be fewer.
+	stepsTotal int
+}
+
+// figure is one inline SVG plot with its caption.
+type figure struct {
+	ID      string
+	Title   string
+	Caption string
+	SVG     template.HTML
+}
+
+// page is the template's data.
+type page struct {
+	*view
+	Figures []figure
+}
+
+var footNames = [2]string{"left", "right"}
+
+// buildFigures draws every plot of the report. Each gets a fixed id so
+// tests (and readers who link to a plot) can find it.
+func buildFigures(v *view, maxPoints int) ([]figure, error) {
+	var figs []figure
+	add := func(id, title, caption string, svg string) {
+		figs = append(figs, figure{ID: id, Title: title, Caption: caption, SVG: template.HTML(svg)})
+	}
+	const w, h = vg.Length(720), vg.Length(260)
+	tlo, thi := span(v.t)
+
+	// Joint angles and rates.
+	var angles, rates []line
+	for i, j := range v.joints {
+		col := lineColors[i%len(lineColors)]
+		angles = append(angles, line{label: j.name, x: v.t, y: j.angle, color: col})
+		rates = append(rates, line{label: j.name, x: v.t, y: j.rate, color: col})
+	}
+	for _, spec := range []struct {
+		id, title, unit string
+		lines        []line
+	}{
+		{"plot-joint-angles", "Joint angles (encoder reading)", "angle (rad)", angles},
+		{"plot-joint-rates", "Joint rates (encoder reading)", "rate (rad/s)", rates},
+	} {
+		p, st, err := linePlot(spec.title, "time (s)", spec.unit, spec.lines, maxPoints)
+		if err != nil {
+			return nil, err
+		}
+		svg, err := renderSVG(p, w, h, spec.id, spec.title)
+		if err != nil {
+			return nil, err
+		}
+		add(spec.id, spec.title, "Joint angle is child link minus parent link, counter-clockwise positive. "+st.caption(), svg)
+	}
+
+	// Ground reaction force per foot with the friction cone's edges.
+	for f := 0; f < 2; f++ {
+		fs := v.feet[f]
+		upper := make([]float64, len(fs.normal))
+		lower := make([]float64, len(fs.normal))
+		for i, n := range fs.normal {
+			mu := math.NaN()
+			if i < len(fs.mu) {
+				mu = fs.mu[i]
+			}
+			upper[i], lower[i] = mu*n, -mu*n
+		}
+		id := "plot-force-" + footNames[f]
+		title := fmt.Sprintf("Ground reaction force, %s foot", footNames[f])
+		p, st, err := linePlot(title, "time (s)", "force (N)", []line{
+			{label: "normal N", x: v.t, y: fs.normal, color: colLeft, width: vg.Points(1.2)},
+			{label: "tangential T", x: v.t, y: fs.tangential, color: colRight},
+			{label: "+μs·N", x: v.t, y: upper, color: colLimit, dashed: true},
+			{label: "−μs·N", x: v.t, y: lower, color: colLimit, dashed: true},
+		}, maxPoints)
+		if err != nil {
+			return nil, err
+		}
+		svg, err := renderSVG(p, w, h, id, title)
+		if err != nil {
+			return nil, err
+		}
+		add(id, title, "The foot holds without slipping while T stays between the dashed lines ±μs·N (the edges of the friction cone); "+
+			"N below zero would mean the ground has to pull the foot down. Zero while the foot is in the air. "+st.caption(), svg)
+	}
+
+	// Friction utilization |T|/(μs·N) against the slip limit 1.0.
+	{
+		title := "Friction utilization |T| / (μs·N)"
+		p, st, err := linePlot(title, "time (s)", "utilization", []line{
+			{label: "left foot", x: v.t, y: v.feet[0].util, color: colLeft},
+			{label: "right foot", x: v.t, y: v.feet[1].util, color: colRight},
+			{label: "slip limit 1.0", x: []float64{tlo, thi}, y: []float64{1, 1}, color: colLimit, dashed: true, width: vg.Points(1.2)},
+		}, maxPoints)
+		if err != nil {
+			return nil, err
+		}
+		p.Y.Min = math.Min(p.Y.Min, 0)
+		p.Y.Max = math.Max(p.Y.Max, 1.1)
+		svg, err := renderSVG(p, w, h, "plot-utilization", title)
+		if err != nil {
+			return nil, err
+		}
+		add("plot-utilization", title, "Above 1.0 the static friction cannot hold the foot: the slip alarm. "+st.caption(), svg)
+	}
+
+	// Alarm timeline.
+	{
+		p, err := alarmTimeline(v.alarms, tlo, thi)
+		if err != nil {
+			return nil, err
+		}
+		rows := map[string]bool{}
+		for _, a := range v.alarms {
+			rows[a.kind] = true
+		}
+		ah := vg.Length(90 + 22*len(rows))
+		svg, err := renderSVG(p, w, ah, "plot-alarms", "Alarm timeline")
+		if err != nil {
+			return nil, err
+		}
+		add("plot-alarms", "Alarm timeline", fmt.Sprintf("%d alarm(s) and event(s) of %d kind(s); one row per kind, marker colour by severity.", len(v.alarms), len(rows)), svg)
+	}
+
+	// Stick figures at heel strikes.
+	{
+		idx := pickEvenly(len(v.poses), maxStickFigures)
+		sel := make([]stickPose, 0, len(idx))
+		for _, i := range idx {
+			sel = append(sel, v.poses[i])
+		}
+		p, sw, sh, err := stickFigurePlot(sel)
+		if err != nil {
+			return nil, err
+		}
+		svg, err := renderSVG(p, sw, sh, "plot-heel-strikes", "Walker at each heel strike")
+		if err != nil {
+			return nil, err
+		}
+		cap := fmt.Sprintf("Pose just before each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope). %d of %d heel strikes shown", len(sel), v.stepsTotal)
+		if len(sel) < v.stepsTotal {
+			cap += ", evenly spaced, first and last included"
+		}
+		add("plot-heel-strikes", "Walker at each heel strike", cap+".", svg)
+	}
+	return figs, nil
+}
+
+// renderView writes the page for v.
+func renderView(w io.Writer, v *view, maxPoints int) error {
+	figs, err := buildFigures(v, maxPoints)
+	if err != nil {
+		return err
+	}
+	if v.Caution == "" {
+		v.Caution = Caution
+	}
+	if err := pageTemplate.Execute(w, page{view: v, Figures: figs}); err != nil {
+		return fmt.Errorf("write report: %w", err)
+	}
+	return nil
+}
+
+// fmtFloat prints a measured value with four significant digits, which is
+// what a reader compares at a glance; NaN is shown as a dash.
+func fmtFloat(x float64) string {
+	if math.IsNaN(x) {
+		return "–"
+	}
+	if math.IsInf(x, 0) {
+		return strconv.FormatFloat(x, 'g', -1, 64)
+	}
+	return strconv.FormatFloat(x, 'g', 4, 64)
+}
+
+var pageTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
+	"lower": strings.ToLower,
+}).Parse(`<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>gaitrig run report: {{.Scenario}} ({{.Outcome}})</title>
+<style>
+body{font-family:"Liberation Sans",Arial,Helvetica,sans-serif;color:#222;background:#fafaf7;margin:0;padding:1.2em 2em;max-width:68em}
+h1{font-size:1.5em;margin:.2em 0}
+h2{font-size:1.15em;margin:1.4em 0 .4em;border-bottom:1px solid #ccc;padding-bottom:.2em}
+table{border-collapse:collapse;margin:.4em 0;font-size:.9em}
+th,td{border:1px solid #ccc;padding:.25em .6em;text-align:left;vertical-align:top}
+th{background:#eeeae0}
+td.num{text-align:right;font-variant-numeric:tabular-nums}
+.outcome{display:inline-block;padding:.2em .8em;border-radius:.3em;font-weight:bold;color:#fff;letter-spacing:.05em}
+.outcome-pass{background:#2e7d32}
+.outcome-fail,.outcome-tripped{background:#b31b1b}
+.outcome-aborted{background:#6b6b6b}
+.caution{border:2px solid #b31b1b;background:#fff4f0;padding:.6em 1em;margin:1em 0;font-size:.95em}
+.caution strong{color:#b31b1b}
+.ok{color:#2e7d32;font-weight:bold}
+.bad{color:#b31b1b;font-weight:bold}
+figure{margin:1em 0;background:#fff;border:1px solid #ddd;padding:.5em}
+figure svg.plot{width:100%;height:auto;display:block}
+figcaption{font-size:.85em;color:#444;margin-top:.3em}
+.steps{max-height:40em;overflow:auto;display:block}
+.notes{font-size:.85em;color:#444}
+code{font-size:.95em}
+</style>
+</head>
+<body>
+<header>
+<h1>Run report: {{.Scenario}}</h1>
+<p>Outcome: <span id="outcome" class="outcome outcome-{{lower .Outcome}}">{{.Outcome}}</span></p>
+<div id="caution" class="caution"><strong>Safety caution.</strong> {{.Caution}}</div>
+<table id="run-identity">
+<tr><th>scenario</th><td>{{.Scenario}}</td></tr>
+<tr><th>scenario hash</th><td><code>{{.Hash}}</code></td></tr>
+<tr><th>firmware greeting</th><td><code>{{.Greeting}}</code></td></tr>
+{{range .Meta}}<tr><th>{{.Key}}</th><td>{{.Value}}</td></tr>
+{{end}}</table>
+</header>
+
+<h2>Pass criteria</h2>
+{{if .Criteria}}<table id="criteria">
+<tr><th>criterion</th><th>result</th><th>value</th><th>limit</th></tr>
+{{range .Criteria}}<tr><td>{{.Name}}</td><td>{{if .Pass}}<span class="ok">pass</span>{{else}}<span class="bad">FAIL</span>{{end}}</td><td class="num">{{.Value}}</td><td class="num">{{.Limit}}</td></tr>
+{{end}}</table>{{else}}<p id="criteria">The run recorded no pass criteria.</p>{{end}}
+
+<h2>Summary</h2>
+<table id="summary">
+{{range .Headline}}<tr><th>{{.Key}}</th><td class="num">{{.Value}}</td></tr>
+{{end}}</table>
+{{if .AlarmCounts}}<table id="alarm-counts">
+<tr><th>alarm kind</th><th>count</th></tr>
+{{range .AlarmCounts}}<tr><td>{{.Key}}</td><td class="num">{{.Value}}</td></tr>
+{{end}}</table>{{end}}
+{{if .Notes}}<ul class="notes">{{range .Notes}}<li>{{.}}</li>{{end}}</ul>{{end}}
+
+<h2>Plots</h2>
+{{range .Figures}}<figure id="fig-{{.ID}}">
+{{.SVG}}
+<figcaption><strong>{{.Title}}.</strong> {{.Caption}}</figcaption>
+</figure>
+{{end}}
+<h2>Steps</h2>
+{{if .StepRows}}<div class="steps"><table id="steps">
+<tr>{{range .StepCols}}<th>{{.}}</th>{{end}}</tr>
+{{range .StepRows}}<tr>{{range .}}<td class="num">{{.}}</td>{{end}}</tr>
+{{end}}</table></div>{{else}}<p id="steps">No heel strikes were recorded.</p>{{end}}
+
+<footer class="notes"><p>Made by gaitrig from the run folder. One file: plots are inline SVG, no scripts, no external links.</p></footer>
+</body>
+</html>
+`))
