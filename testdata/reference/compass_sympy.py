@@ -307,6 +307,29 @@ def check_state(p, fmp, pv, qm, vm, M, h, Js, jdvs, acc, lam, tau, fmath):
     Mf = numpy.array(to_float(M))
     assert numpy.allclose(Mf, Mf.T, rtol=0, atol=1e-13), "M not symmetric"
     assert numpy.linalg.eigvalsh(Mf).min() > 0, "M not positive definite"
+    # Closed forms written out by hand from the same geometry (the hip mass
+    # and two pendulum legs on a moving pivot): M and h do not involve the
+    # feet, so they must match these exactly.
+    Mh_, g_ = float(pv[0]), float(pv[1])
+    th = [float(qm[2]), float(qm[3])]
+    w = [float(vm[2]), float(vm[3])]
+    legs = p["legs"]
+    mt = Mh_ + legs[0]["mass"] + legs[1]["mass"]
+    Mc = numpy.zeros((4, 4))
+    hc = numpy.zeros(4)
+    Mc[0, 0] = Mc[1, 1] = mt
+    hc[1] = mt * g_
+    for i, leg in enumerate(legs):
+        mc = leg["mass"] * leg["com_dist"]
+        Mc[0, 2 + i] = Mc[2 + i, 0] = mc * numpy.cos(th[i])
+        Mc[1, 2 + i] = Mc[2 + i, 1] = mc * numpy.sin(th[i])
+        Mc[2 + i, 2 + i] = leg["mass"] * leg["com_dist"] ** 2 + leg["inertia"]
+        hc[0] += -mc * numpy.sin(th[i]) * w[i] ** 2
+        hc[1] += mc * numpy.cos(th[i]) * w[i] ** 2
+        hc[2 + i] = mc * g_ * numpy.sin(th[i])
+    assert numpy.allclose(Mf, Mc, rtol=1e-14, atol=1e-13), "M differs from the closed form"
+    hf = numpy.array([float(h[i, 0]) for i in range(4)])
+    assert numpy.allclose(hf, hc, rtol=1e-13, atol=1e-12), f"h differs from the closed form: {hf} vs {hc}"
     # T = 1/2 v^T M v.
     vcol = mpmath.matrix(vm)
     T = fmp["T"](pv, qm, vm)
