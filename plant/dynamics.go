@@ -1,0 +1,168 @@
+package plant
+
+import "math"
+
+// footGeom is the contact geometry of one foot at one state.
+type footGeom struct {
+	sp     surfacePoint
+	gap    float64
+	jt, jn [MaxDOF]float64 // contact Jacobian rows: t·v_p and n·v_p
+	gt, gn float64         // J̇ q̇ for the two rows
+	slip   float64         // t·v_p, tangential velocity of the material point
+	vn     float64         // n·v_p
+	cop    float64         // centre of pressure on the arc, m
+}
+
+// footGeometry computes the contact geometry of foot i. The material point
+// at the contact moves with v_centre + ω ẑ × (−R n) = v_centre + R ω t.
+func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
+	c, dc, ddc := m.footCentre(q, i)
+	m.closest(c, hint, &g.sp)
+	f := &m.feet[i]
+	g.gap = g.sp.dist - f.radius
+	t, nn := g.sp.t, g.sp.n
+	k := 2 + i
+	for j := 0; j < m.n; j++ {
+		g.jt[j], g.jn[j] = 0, 0
+	}
+	g.jt[0], g.jt[1] = t[0], t[1]
+	g.jn[0], g.jn[1] = nn[0], nn[1]
+	g.jt[k] = t[0]*dc[0] + t[1]*dc[1] + f.radius
+	g.jn[k] = nn[0]*dc[0] + nn[1]*dc[1]
+	w2 := v[k] * v[k]
+	g.gt = (t[0]*ddc[0] + t[1]*ddc[1]) * w2
+	g.gn = (nn[0]*ddc[0] + nn[1]*ddc[1]) * w2
+	g.slip = t[0]*v[0] + t[1]*v[1] + g.jt[k]*v[k]
+	g.vn = nn[0]*v[0] + nn[1]*v[1] + g.jn[k]*v[k]
+	g.cop = 0
+	if f.radius > 0 {
+		a, _ := axis(q[k])
+		// Angle from the leg axis direction to the contact direction −n,
+		// positive toward a⊥ (the toe).
+		g.cop = f.radius * math.Atan2(-(a[0]*nn[1] - a[1]*nn[0]), -(a[0]*nn[0] + a[1]*nn[1]))
+	}
+}
+
+// eval is one evaluation of the right-hand side: accelerations and, for
+// every foot, its geometry and contact force (F_t, N).
+type eval struct {
+	acc   [MaxDOF]float64
+	geom  [2]footGeom
+	force [2][2]float64
+	ok    bool
+}
+
+func dot(a, b *[MaxDOF]float64, n int) float64 {
+	s := 0.0
+	for i := 0; i < n; i++ {
+		s += a[i] * b[i]
+	}
+	return s
+}
+
+// rhs evaluates the constrained dynamics at (q, v) with the contact modes of
+// s: M q̈ + h = Q + Wᵀ λ with J q̈ + J̇ q̇ = 0 for the constrained rows, solved
+// by the Schur complement (J M⁻¹ Wᵀ) λ = −(J M⁻¹ (Q − h) + J̇ q̇). For a
+// rolling foot W = J (rows t and n); for a sliding foot only the normal row
+// is constrained and its force direction is W = J_n − μ_k σ J_t.
+func (m *Model) rhs(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval) {
+	var M, L [MaxDOF][MaxDOF]float64
+	var h [MaxDOF]float64
+	n := m.n
+	m.massBias(q, v, &M, &h)
+	ev.ok = cholesky(&M, n, &L)
+	if !ev.ok {
+		return
+	}
+	var a0 [MaxDOF]float64
+	m.generalizedInput(in, &a0)
+	for i := 0; i < n; i++ {
+		a0[i] -= h[i]
+	}
+	cholSolve(&L, n, &a0)
+
+	var rowJ, rowY [maxRows]*[MaxDOF]float64
+	var gam [maxRows]float64
+	var y [maxRows][MaxDOF]float64
+	var foot, kind [maxRows]int // kind 0: tangential, 1: normal
+	k := 0
+	for i := 0; i < m.nFeet; i++ {
+		g := &ev.geom[i]
+		m.footGeometry(q, v, i, s.Seg[i], g)
+		ev.force[i] = [2]float64{}
+		switch s.Mode[i] {
+		case Rolling:
+			y[k] = g.jt
+			rowJ[k], gam[k], foot[k], kind[k] = &g.jt, g.gt, i, 0
+			k++
+			y[k] = g.jn
+			rowJ[k], gam[k], foot[k], kind[k] = &g.jn, g.gn, i, 1
+			k++
+		case Sliding:
+			mu := m.terrain[g.sp.seg].muK * s.SlipDir[i]
+			for j := 0; j < n; j++ {
+				y[k][j] = g.jn[j] - mu*g.jt[j]
+			}
+			rowJ[k], gam[k], foot[k], kind[k] = &g.jn, g.gn, i, 1
+			k++
+		}
+	}
+	for r := 0; r < k; r++ {
+		cholSolve(&L, n, &y[r])
+		rowY[r] = &y[r]
+	}
+	ev.acc = a0
+	if k == 0 {
+		return
+	}
+	var A [maxRows][maxRows]float64
+	var b [maxRows]float64
+	for r := 0; r < k; r++ {
+		for c := 0; c < k; c++ {
+			A[r][c] = dot(rowJ[r], rowY[c], n)
+		}
+		b[r] = -(dot(rowJ[r], &a0, n) + gam[r])
+	}
+	if !solveSmall(&A, &b, k) {
+		ev.ok = false
+		return
+	}
+	for r := 0; r < k; r++ {
+		for j := 0; j < n; j++ {
+			ev.acc[j] += b[r] * y[r][j]
+		}
+		i := foot[r]
+		if kind[r] == 0 {
+			ev.force[i][0] = b[r]
+		} else {
+			ev.force[i][1] = b[r]
+			if s.Mode[i] == Sliding {
+				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * b[r]
+			}
+		}
+	}
+}
+
+// contactRecord fills the public contact record of foot i from an
+// evaluation.
+func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
+	g := &ev.geom[i]
+	ft, fn := ev.force[i][0], ev.force[i][1]
+	mu := m.terrain[g.sp.seg].muS
+	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, CoP: g.cop, Gap: g.gap,
+		SlipVel: g.slip, Segment: g.sp.seg, Point: g.sp.p}
+	fc.Utilization = utilization(ft, fn, mu)
+	if s.Mode[i] == Free {
+		fc.CoP = 0
+	}
+}
+
+func utilization(ft, fn, mu float64) float64 {
+	switch {
+	case ft == 0:
+		return 0
+	case fn <= 0 || mu == 0:
+		return math.Inf(1)
+	}
+	return math.Abs(ft) / (mu * fn)
+}

@@ -1,0 +1,201 @@
+package plant
+
+import "math"
+
+// impulseRows collects the constraint rows of an impact: J (the velocity
+// rows that must vanish after the impact) and W (the directions the
+// impulses act along; W = J except on the friction-cone boundary).
+type impulseRows struct {
+	k    int
+	j, w [maxRows][MaxDOF]float64
+	foot [maxRows]int
+	kind [maxRows]int // 0 tangential, 1 normal
+}
+
+// solveImpulse solves [M −Wᵀ; J 0][Δv; Λ] = [0; −J v⁻] for Λ and applies
+// Δv = M⁻¹ Wᵀ Λ to v. It reports false if the system is singular.
+func (m *Model) solveImpulse(q *[MaxDOF]float64, v *[MaxDOF]float64, rows *impulseRows, lam *[maxRows]float64) bool {
+	var M, L [MaxDOF][MaxDOF]float64
+	m.MassMatrix(q, &M)
+	n := m.n
+	if !cholesky(&M, n, &L) {
+		return false
+	}
+	var y [maxRows][MaxDOF]float64
+	for r := 0; r < rows.k; r++ {
+		y[r] = rows.w[r]
+		cholSolve(&L, n, &y[r])
+	}
+	var A [maxRows][maxRows]float64
+	for r := 0; r < rows.k; r++ {
+		for c := 0; c < rows.k; c++ {
+			A[r][c] = dot(&rows.j[r], &y[c], n)
+		}
+		lam[r] = -dot(&rows.j[r], v, n)
+	}
+	if !solveSmall(&A, lam, rows.k) {
+		return false
+	}
+	for r := 0; r < rows.k; r++ {
+		for i := 0; i < n; i++ {
+			v[i] += lam[r] * y[r][i]
+		}
+	}
+	return true
+}
+
+// touch handles a downward crossing of foot i's gap: a heel strike if it is
+// the swing foot landing ahead of the stance foot by more than MinStride,
+// otherwise a scuff (ignored when Options.IgnoreScuff) or a touchdown. It
+// reports whether the tick must stop.
+func (m *Model) touch(s *State, i int, ev *eval, r *TickResult) bool {
+	st := s.Stance
+	heel := false
+	if i != st {
+		gs, gi := &ev.geom[st], &ev.geom[i]
+		stride := gs.sp.t[0]*(gi.sp.p[0]-gs.sp.p[0]) + gs.sp.t[1]*(gi.sp.p[1]-gs.sp.p[1])
+		heel = stride > m.minStride
+		if !heel {
+			r.add(Event{Kind: Scuff, T: s.T, Foot: i, Segment: gi.sp.seg, Value: stride, Limit: m.minStride})
+			if m.o.IgnoreScuff {
+				return false
+			}
+		}
+	}
+	return m.impact(s, i, heel, ev, r)
+}
+
+// impact applies a perfectly plastic, no-slip impulse to foot i and to the
+// other feet in contact; a foot that would need a pulling impulse is
+// released and the impulse solved again; a foot whose impulse leaves the
+// friction cone (|Λ_t| > μ_s Λ_n) is resolved on the cone boundary.
+func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool {
+	ke0, _ := m.Energy(s)
+	var active [2]bool
+	active[i] = true
+	for f := 0; f < m.nFeet; f++ {
+		if f != i && s.Mode[f] != Free {
+			active[f] = true
+		}
+	}
+	var rows impulseRows
+	var lam [maxRows]float64
+	var slipSign [2]float64 // ≠ 0: foot on the cone boundary with Λ_t = μ_s σ Λ_n
+	var demanded [2]float64 // |Λ_t|/Λ_n of the no-slip solution
+	v := s.V
+	for attempt := 0; attempt < 6; attempt++ {
+		v = s.V
+		rows.k = 0
+		for f := 0; f < m.nFeet; f++ {
+			if !active[f] {
+				continue
+			}
+			g := &ev.geom[f]
+			if slipSign[f] == 0 {
+				rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+				rows.k++
+			}
+			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jn, f, 1
+			mu := m.terrain[g.sp.seg].muS * slipSign[f]
+			for d := 0; d < m.n; d++ {
+				rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
+			}
+			rows.k++
+		}
+		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
+			return m.stopNonFinite(s, r)
+		}
+		var lt, ln [2]float64
+		for k := 0; k < rows.k; k++ {
+			f := rows.foot[k]
+			if rows.kind[k] == 0 {
+				lt[f] = lam[k]
+			} else {
+				ln[f] = lam[k]
+			}
+		}
+		changed := false
+		for f := 0; f < m.nFeet; f++ {
+			if active[f] && f != i && ln[f] < 0 {
+				active[f] = false
+				slipSign[f] = 0
+				changed = true
+			}
+		}
+		if changed {
+			continue
+		}
+		for f := 0; f < m.nFeet; f++ {
+			if !active[f] || slipSign[f] != 0 {
+				continue
+			}
+			mu := m.terrain[ev.geom[f].sp.seg].muS
+			if ln[f] > 0 {
+				demanded[f] = math.Abs(lt[f]) / ln[f]
+			}
+			if ln[f] > 0 && math.Abs(lt[f]) > mu*ln[f] {
+				slipSign[f] = 1
+				if lt[f] < 0 {
+					slipSign[f] = -1
+				}
+				changed = true
+			}
+		}
+		if !changed {
+			break
+		}
+	}
+	s.V = v
+	ke1, _ := m.Energy(s)
+	stop := false
+	for f := 0; f < m.nFeet; f++ {
+		if slipSign[f] == 0 {
+			continue
+		}
+		mu := m.terrain[ev.geom[f].sp.seg].muS
+		r.add(Event{Kind: ImpactSlip, T: s.T, Foot: f, Segment: ev.geom[f].sp.seg, Value: demanded[f], Limit: mu})
+		if !m.o.ContinueOnSlip {
+			stop = true
+		}
+	}
+	kind := Touchdown
+	if heel {
+		kind = HeelStrike
+		s.Stance = i
+	}
+	gi := &ev.geom[i]
+	r.add(Event{Kind: kind, T: s.T, Foot: i, Segment: gi.sp.seg, Value: demanded[i],
+		Limit: m.terrain[gi.sp.seg].muS, EnergyLost: ke0 - ke1})
+	for f := 0; f < m.nFeet; f++ {
+		prev := s.Mode[f]
+		switch {
+		case !active[f]:
+			s.Mode[f] = Free
+		case slipSign[f] != 0:
+			s.Mode[f] = Sliding
+			var g footGeom
+			m.footGeometry(&s.Q, &s.V, f, ev.geom[f].sp.seg, &g)
+			s.SlipDir[f] = slipSign[f]
+			if g.slip != 0 {
+				s.SlipDir[f] = math.Copysign(1, g.slip)
+			}
+		default:
+			s.Mode[f] = Rolling
+			if prev != Rolling {
+				m.setAnchor(s, f, &ev.geom[f])
+			}
+		}
+		if s.Mode[f] != prev {
+			s.fired &^= 1<<(condNormal+f) | 1<<(condFriction+f)
+		}
+	}
+	if s.Mode[s.Stance] == Free && m.nFeet == 2 && s.Mode[1-s.Stance] != Free {
+		s.Stance = 1 - s.Stance
+	}
+	return stop
+}
+
+func (m *Model) stopNonFinite(s *State, r *TickResult) bool {
+	r.add(Event{Kind: NonFinite, T: s.T, Foot: -1, Segment: -1})
+	return true
+}

@@ -1,0 +1,219 @@
+package plant
+
+import (
+	"fmt"
+	"math"
+)
+
+// MaxLinks is the largest number of rigid links a model can have (two legs
+// and a torso today; the arrays leave room for knees).
+const MaxLinks = 5
+
+// MaxDOF is the size of the fixed arrays that hold q and q̇: two hip
+// coordinates plus one absolute angle per link.
+const MaxDOF = 2 + MaxLinks
+
+// MaxActuators is the largest number of joint torques a model takes.
+const MaxActuators = 4
+
+// Leg describes one leg: a rigid link from the hip to a circular-arc foot.
+type Leg struct {
+	Length     float64 // hip to the foot along the leg axis, m, > 0
+	Mass       float64 // kg, ≥ 0
+	COMDist    float64 // centre of mass distance from the hip along the leg axis, m
+	Inertia    float64 // about the leg's centre of mass, kg·m², ≥ 0
+	FootRadius float64 // arc radius R, m, 0 ≤ R ≤ Length (0: point foot)
+	ArcOffset  float64 // forward offset of the arc centre from the leg axis, m
+}
+
+// Torso describes the optional torso link, hinged at the hip and pointing up.
+type Torso struct {
+	Mass    float64 // kg, ≥ 0
+	COMDist float64 // centre of mass distance from the hip along the torso axis, m
+	Inertia float64 // about the torso's centre of mass, kg·m², ≥ 0
+}
+
+// Segment is one straight piece of the terrain polyline.
+type Segment struct {
+	Length    float64 // m, > 0
+	Slope     float64 // rad, positive = uphill going forward, |Slope| < π/2
+	MuStatic  float64 // static friction coefficient, ≥ 0
+	MuKinetic float64 // kinetic (Coulomb) friction coefficient, 0 ≤ μ_k ≤ μ_s
+}
+
+// Terrain is a polyline of straight segments starting at Start (x, y). The
+// first segment continues backward and the last one forward without end, so
+// a walker never runs off the terrain.
+type Terrain struct {
+	Start    [2]float64
+	Segments []Segment
+}
+
+// Params is the full description of a walker. Legs[0] is the left leg,
+// Legs[1] the right leg. With Torso nil the walker is a compass walker with
+// one hip actuator between the legs; with a torso it has one hip actuator
+// per leg, acting between the torso and that leg.
+type Params struct {
+	HipMass float64 // point mass at the hip, kg, ≥ 0
+	Legs    [2]Leg
+	Torso   *Torso
+	Gravity float64 // m/s², > 0
+	Terrain Terrain
+	// OneLeg keeps only Legs[0]: a single rigid body rolling on its foot
+	// arc, with no actuator. It exists for checks such as a rocking
+	// half-disk; Legs[1] and Torso are then ignored.
+	OneLeg bool
+}
+
+// ParamError reports an invalid parameter: which one and why.
+type ParamError struct {
+	Field  string  // e.g. "Legs[1].FootRadius"
+	Value  float64 // the offending value
+	Reason string  // e.g. "must be between 0 and the leg length 0.9"
+}
+
+func (e *ParamError) Error() string {
+	return fmt.Sprintf("plant: %s = %g: %s", e.Field, e.Value, e.Reason)
+}
+
+func perr(field string, v float64, format string, a ...any) error {
+	return &ParamError{Field: field, Value: v, Reason: fmt.Sprintf(format, a...)}
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// Validate checks every parameter and returns the first problem found as a
+// *ParamError naming the parameter and the reason.
+func (p Params) Validate() error {
+	if !finite(p.HipMass) || p.HipMass < 0 {
+		return perr("HipMass", p.HipMass, "must be a finite mass ≥ 0 kg")
+	}
+	if !finite(p.Gravity) || p.Gravity <= 0 {
+		return perr("Gravity", p.Gravity, "must be a finite acceleration > 0 m/s²")
+	}
+	nLegs := 2
+	if p.OneLeg {
+		nLegs = 1
+	}
+	total := p.HipMass
+	for i := 0; i < nLegs; i++ {
+		l := p.Legs[i]
+		f := fmt.Sprintf("Legs[%d].", i)
+		switch {
+		case !finite(l.Length) || l.Length <= 0:
+			return perr(f+"Length", l.Length, "must be a finite length > 0 m")
+		case !finite(l.Mass) || l.Mass < 0:
+			return perr(f+"Mass", l.Mass, "must be a finite mass ≥ 0 kg")
+		case !finite(l.COMDist) || math.Abs(l.COMDist) > 10*l.Length:
+			return perr(f+"COMDist", l.COMDist, "must be finite and within 10 leg lengths of the hip")
+		case !finite(l.Inertia) || l.Inertia < 0:
+			return perr(f+"Inertia", l.Inertia, "must be a finite inertia ≥ 0 kg·m²")
+		case !finite(l.FootRadius) || l.FootRadius < 0 || l.FootRadius > l.Length:
+			return perr(f+"FootRadius", l.FootRadius, "must be between 0 and the leg length %g m", l.Length)
+		case !finite(l.ArcOffset) || math.Abs(l.ArcOffset) > l.Length:
+			return perr(f+"ArcOffset", l.ArcOffset, "must be finite and no larger than the leg length %g m", l.Length)
+		case l.Mass*l.COMDist*l.COMDist+l.Inertia <= 0:
+			return perr(f+"Inertia", l.Inertia, "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia")
+		}
+		total += l.Mass
+	}
+	if p.Torso != nil && !p.OneLeg {
+		t := p.Torso
+		switch {
+		case !finite(t.Mass) || t.Mass < 0:
+			return perr("Torso.Mass", t.Mass, "must be a finite mass ≥ 0 kg")
+		case !finite(t.COMDist) || math.Abs(t.COMDist) > 100:
+			return perr("Torso.COMDist", t.COMDist, "must be finite and within 100 m of the hip")
+		case !finite(t.Inertia) || t.Inertia < 0:
+			return perr("Torso.Inertia", t.Inertia, "must be a finite inertia ≥ 0 kg·m²")
+		case t.Mass*t.COMDist*t.COMDist+t.Inertia <= 0:
+			return perr("Torso.Inertia", t.Inertia, "the torso has neither mass away from the hip nor inertia, so its angle would have no inertia")
+		}
+		total += t.Mass
+	}
+	if total <= 0 {
+		return perr("HipMass", p.HipMass, "the walker has no mass at all")
+	}
+	if len(p.Terrain.Segments) == 0 {
+		return perr("Terrain.Segments", 0, "needs at least one segment")
+	}
+	if !finite(p.Terrain.Start[0]) || !finite(p.Terrain.Start[1]) {
+		return perr("Terrain.Start", p.Terrain.Start[0]+p.Terrain.Start[1], "must be a finite point")
+	}
+	for i, s := range p.Terrain.Segments {
+		f := fmt.Sprintf("Terrain.Segments[%d].", i)
+		switch {
+		case !finite(s.Length) || s.Length <= 0:
+			return perr(f+"Length", s.Length, "must be a finite length > 0 m")
+		case !finite(s.Slope) || math.Abs(s.Slope) >= math.Pi/2:
+			return perr(f+"Slope", s.Slope, "must be finite with |slope| < π/2 rad")
+		case !finite(s.MuStatic) || s.MuStatic < 0:
+			return perr(f+"MuStatic", s.MuStatic, "must be a finite coefficient ≥ 0")
+		case !finite(s.MuKinetic) || s.MuKinetic < 0 || s.MuKinetic > s.MuStatic:
+			return perr(f+"MuKinetic", s.MuKinetic, "must be between 0 and MuStatic %g", s.MuStatic)
+		}
+	}
+	return nil
+}
+
+// Options choose how a Model integrates and what it does after contact
+// events. The zero value gives the defaults noted on each field.
+type Options struct {
+	// SubSteps is the number of RK4 sub-steps per tick; 0 means 4 (at a
+	// 1 kHz tick, a 0.25 ms sub-step).
+	SubSteps int
+	// ContinueOnSlip lets a foot whose friction demand exceeds the static
+	// limit slide with Coulomb friction; false stops the tick at the event.
+	ContinueOnSlip bool
+	// ContinueOnLiftOff lets a stance foot whose normal force would turn
+	// negative leave the ground; false stops the tick at the event.
+	ContinueOnLiftOff bool
+	// IgnoreScuff lets a swing foot pass through the ground mid-swing (as
+	// the simplest walking model assumes); false turns a scuff into an
+	// impact of that foot.
+	IgnoreScuff bool
+	// FallHipHeight: the walker has fallen when the hip is closer than this
+	// to the terrain below it, m; 0 means half the shorter leg length;
+	// negative disables the check.
+	FallHipHeight float64
+	// FallTorsoAngle: with a torso, the walker has fallen when |θ_torso|
+	// exceeds this, rad; 0 means π/2; negative disables the check.
+	FallTorsoAngle float64
+	// MinStride: a swing-foot touchdown counts as a heel strike only when
+	// its contact point is ahead of the stance foot's by more than this
+	// along the terrain, m; 0 means 0.1 × the mean leg length.
+	MinStride float64
+}
+
+func (o Options) validate() error {
+	switch {
+	case o.SubSteps < 0 || o.SubSteps > 10000:
+		return perr("Options.SubSteps", float64(o.SubSteps), "must be between 0 (default 4) and 10000")
+	case !finite(o.FallHipHeight):
+		return perr("Options.FallHipHeight", o.FallHipHeight, "must be finite")
+	case !finite(o.FallTorsoAngle):
+		return perr("Options.FallTorsoAngle", o.FallTorsoAngle, "must be finite")
+	case !finite(o.MinStride) || o.MinStride < 0:
+		return perr("Options.MinStride", o.MinStride, "must be finite and ≥ 0 (0 = default)")
+	}
+	return nil
+}
+
+// DemoParams returns a demonstration walker of this project's own choosing
+// (not a model of any person or product): a 10 kg hip, 0.9 m legs of 3 kg
+// with feet of radius 0.27 m (0.3 × leg length, near the human roll-over
+// shape radius, Hansen, Childress, Knox 2004, J. Biomech. 37:1467–1474,
+// from memory), a 15 kg torso, on 200 m of level ground with μ_s = 0.8 and
+// μ_k = 0.6.
+func DemoParams() Params {
+	leg := Leg{Length: 0.9, Mass: 3, COMDist: 0.35, Inertia: 0.15, FootRadius: 0.27}
+	return Params{
+		HipMass: 10,
+		Legs:    [2]Leg{leg, leg},
+		Torso:   &Torso{Mass: 15, COMDist: 0.3, Inertia: 0.6},
+		Gravity: 9.81,
+		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{
+			{Length: 200, Slope: 0, MuStatic: 0.8, MuKinetic: 0.6},
+		}},
+	}
+}

@@ -1,0 +1,106 @@
+package plant
+
+// projectRows builds the constraint rows of the feet in contact at q: the
+// normal row (gap) for every foot in contact, and the tangential row
+// (rolling anchor) for a rolling foot. With withAnchor, res receives the
+// position residuals.
+func (m *Model) projectRows(s *State, rows *impulseRows, res *[maxRows]float64) {
+	rows.k = 0
+	for f := 0; f < m.nFeet; f++ {
+		if s.Mode[f] == Free {
+			continue
+		}
+		var g footGeom
+		m.footGeometry(&s.Q, &s.V, f, s.Seg[f], &g)
+		if s.Mode[f] == Rolling {
+			if g.sp.seg != s.Seg[f] || g.sp.clamped {
+				// Rolled onto another segment: re-anchor there.
+				m.setAnchor(s, f, &g)
+			}
+			c, _, _ := m.footCentre(&s.Q, f)
+			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+			res[rows.k] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+f] - s.Anchor[f]
+			if g.sp.clamped {
+				res[rows.k] = 0
+			}
+			rows.k++
+		}
+		rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jn, g.jn, f, 1
+		res[rows.k] = g.gap
+		rows.k++
+		s.Seg[f] = g.sp.seg
+	}
+}
+
+// project moves s back onto the contact constraints: the positions by
+// M-weighted Gauss–Newton steps Δq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ g(q), then the
+// velocities by the same projection of J q̇ (the least kinetic-energy
+// change that satisfies the constraints).
+func (m *Model) project(s *State) {
+	var rows impulseRows
+	var res [maxRows]float64
+	for it := 0; it < 2; it++ {
+		m.projectRows(s, &rows, &res)
+		if rows.k == 0 {
+			return
+		}
+		// solveImpulse drives J·x to zero for x = v; to drive g to zero
+		// use a pseudo-velocity whose J·x equals the residual.
+		var dq [MaxDOF]float64
+		var lam [maxRows]float64
+		if !m.solveCorrection(&s.Q, &rows, &res, &dq, &lam) {
+			return
+		}
+		for i := 0; i < m.n; i++ {
+			s.Q[i] += dq[i]
+		}
+	}
+	m.projectVelocity(s)
+}
+
+// projectVelocity removes the constraint-violating part of q̇.
+func (m *Model) projectVelocity(s *State) {
+	var rows impulseRows
+	var res [maxRows]float64
+	m.projectRows(s, &rows, &res)
+	if rows.k == 0 {
+		return
+	}
+	var lam [maxRows]float64
+	v := s.V
+	if m.solveImpulse(&s.Q, &v, &rows, &lam) {
+		s.V = v
+	}
+}
+
+// solveCorrection finds dq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ res.
+func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *impulseRows, res *[maxRows]float64, dq *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	var M, L [MaxDOF][MaxDOF]float64
+	m.MassMatrix(q, &M)
+	n := m.n
+	if !cholesky(&M, n, &L) {
+		return false
+	}
+	var y [maxRows][MaxDOF]float64
+	var A [maxRows][maxRows]float64
+	for r := 0; r < rows.k; r++ {
+		y[r] = rows.w[r]
+		cholSolve(&L, n, &y[r])
+	}
+	for r := 0; r < rows.k; r++ {
+		for c := 0; c < rows.k; c++ {
+			A[r][c] = dot(&rows.j[r], &y[c], n)
+		}
+		lam[r] = -res[r]
+	}
+	if !solveSmall(&A, lam, rows.k) {
+		return false
+	}
+	*dq = [MaxDOF]float64{}
+	for r := 0; r < rows.k; r++ {
+		for i := 0; i < n; i++ {
+			dq[i] += lam[r] * y[r][i]
+		}
+	}
+	return true
+}

@@ -1,0 +1,238 @@
+package plant
+
+import (
+	"errors"
+	"fmt"
+	"math"
+)
+
+// State is the full dynamic state of a walker. Copy it by value to keep a
+// snapshot; a copy continues exactly like the original.
+type State struct {
+	T      float64         // simulated time, s
+	Q, V   [MaxDOF]float64 // q = (x_hip, y_hip, θ_left, θ_right[, θ_torso]) and q̇
+	Mode   [2]ContactMode  // per foot
+	Stance int             // the foot that carries the walker (0 left, 1 right)
+	// SlipDir is the sign of the slip velocity of a sliding foot (±1).
+	SlipDir [2]float64
+	// Anchor is t·c + R·θ of a rolling foot at the time it started rolling
+	// (c its arc centre): rolling keeps it constant, so the position
+	// projection removes tangential drift against it.
+	Anchor [2]float64
+	// Seg is the terrain segment each foot was last nearest to (search hint
+	// and the segment of Anchor).
+	Seg [2]int
+	// fired marks alarm conditions that have fired and not yet cleared, so
+	// a persisting condition raises its event once.
+	fired uint16
+}
+
+// Input is what the controller applies over one tick (zero-order hold).
+type Input struct {
+	Torque   [MaxActuators]float64 // N·m, in JointNames order
+	HipForce [2]float64            // external push on the hip (x, y), N
+}
+
+// ErrStand is wrapped by the errors Stand returns when it cannot place the
+// walker.
+var ErrStand = errors.New("plant: cannot stand the walker")
+
+// Stand builds a consistent state: the given leg angles (and torso angle,
+// ignored without a torso), the hip at horizontal position x, and the hip
+// height chosen so that the stance foot touches the terrain and rolls. rates
+// are the link angular rates in link order (left, right[, torso]); missing
+// ones are zero. The hip velocity follows from the rolling constraint. The
+// other foot is free; Stand fails if it would be below the ground by more
+// than 1 µm, unless Options.IgnoreScuff is set.
+func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle float64, rates ...float64) (State, error) {
+	var s State
+	if stance < 0 || stance >= m.nFeet {
+		return s, fmt.Errorf("%w: stance foot %d: must be 0 (left) or 1 (right) and the model has %d feet", ErrStand, stance, m.nFeet)
+	}
+	if len(rates) > m.nLinks {
+		return s, fmt.Errorf("%w: %d rates given, the model has %d links", ErrStand, len(rates), m.nLinks)
+	}
+	vals := []float64{x, legAngles[0], legAngles[1], torsoAngle}
+	for i, r := range rates {
+		if !finite(r) {
+			return s, fmt.Errorf("%w: rate %d is %g, must be finite", ErrStand, i, r)
+		}
+	}
+	for _, v := range vals {
+		if !finite(v) {
+			return s, fmt.Errorf("%w: position or angle %g must be finite", ErrStand, v)
+		}
+	}
+	s.Stance = stance
+	s.Q[0] = x
+	for i := 0; i < m.nFeet; i++ {
+		s.Q[2+i] = legAngles[i]
+	}
+	if m.torso >= 0 {
+		s.Q[2+m.torso] = torsoAngle
+	}
+	for i, r := range rates {
+		s.V[2+i] = r
+	}
+	// Hip height: start with the hip above the terrain under it and adjust
+	// until the stance foot's gap is zero.
+	s.Q[1] = m.p.Terrain.Start[1] + 2*m.reach
+	hint := m.segmentAtX(x)
+	s.Seg = [2]int{hint, hint}
+	var g footGeom
+	for it := 0; it < 50; it++ {
+		m.footGeometry(&s.Q, &s.V, stance, s.Seg[stance], &g)
+		s.Seg[stance] = g.sp.seg
+		if math.Abs(g.gap) < 1e-13 {
+			break
+		}
+		ny := g.sp.n[1]
+		if ny < 0.1 {
+			ny = 0.1
+		}
+		s.Q[1] -= g.gap / ny
+	}
+	if math.Abs(g.gap) > 1e-9 {
+		return s, fmt.Errorf("%w: the stance foot does not reach the terrain (gap %g m)", ErrStand, g.gap)
+	}
+	s.Mode[stance] = Rolling
+	m.setAnchor(&s, stance, &g)
+	// Hip velocity from J v = 0 on the stance foot: t and n are
+	// orthonormal, so v_hip = −t (J_t,θ θ̇) − n (J_n,θ θ̇).
+	m.footGeometry(&s.Q, &s.V, stance, s.Seg[stance], &g)
+	k := 2 + stance
+	wt := g.jt[k] * s.V[k]
+	wn := g.jn[k] * s.V[k]
+	s.V[0] = -g.sp.t[0]*wt - g.sp.n[0]*wn
+	s.V[1] = -g.sp.t[1]*wt - g.sp.n[1]*wn
+	if m.nFeet == 2 {
+		o := 1 - stance
+		m.footGeometry(&s.Q, &s.V, o, s.Seg[stance], &g)
+		s.Seg[o] = g.sp.seg
+		if g.gap < -1e-6 && !m.o.IgnoreScuff {
+			return s, fmt.Errorf("%w: the swing foot would be %g m below the ground", ErrStand, -g.gap)
+		}
+	}
+	return s, nil
+}
+
+// segmentAtX returns the terrain segment whose horizontal extent holds x.
+func (m *Model) segmentAtX(x float64) int {
+	for i := range m.terrain {
+		if x < m.terrain[i].p1[0] {
+			return i
+		}
+	}
+	return len(m.terrain) - 1
+}
+
+// setAnchor records the rolling reference of foot i from its geometry.
+func (m *Model) setAnchor(s *State, i int, g *footGeom) {
+	c, _, _ := m.footCentre(&s.Q, i)
+	s.Anchor[i] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[i].radius*s.Q[2+i]
+	s.Seg[i] = g.sp.seg
+}
+
+// JointState writes the joint angles and rates an encoder would read, in
+// JointNames order. It writes as many entries as the slices hold.
+func (m *Model) JointState(s *State, angle, rate []float64) {
+	for j := 0; j < m.nAct; j++ {
+		var a, r float64
+		if m.nAct == 1 {
+			a, r = s.Q[3]-s.Q[2], s.V[3]-s.V[2]
+		} else {
+			t := 2 + m.torso
+			a, r = s.Q[2+j]-s.Q[t], s.V[2+j]-s.V[t]
+		}
+		if j < len(angle) {
+			angle[j] = a
+		}
+		if j < len(rate) {
+			rate[j] = r
+		}
+	}
+}
+
+// IMU returns the absolute pitch angle and rate of the link carrying the
+// IMU: the torso, or the left leg of a compass walker.
+func (m *Model) IMU(s *State) (pitch, rate float64) {
+	k := 2
+	if m.torso >= 0 {
+		k = 2 + m.torso
+	}
+	return s.Q[k], s.V[k]
+}
+
+// Energy returns the kinetic energy ½ q̇ᵀ M q̇ and the gravitational potential
+// energy Σ m g y (zero at y = 0).
+func (m *Model) Energy(s *State) (kinetic, potential float64) {
+	var M [MaxDOF][MaxDOF]float64
+	m.MassMatrix(&s.Q, &M)
+	for i := 0; i < m.n; i++ {
+		for j := 0; j < m.n; j++ {
+			kinetic += 0.5 * s.V[i] * M[i][j] * s.V[j]
+		}
+	}
+	g := m.p.Gravity
+	potential = m.massTotal * g * s.Q[1]
+	for i := 0; i < m.nLinks; i++ {
+		a, _ := axis(s.Q[2+i])
+		potential += m.links[i].mass * g * m.links[i].rho * a[1]
+	}
+	return
+}
+
+// Pose holds the points of a stick figure of the walker.
+type Pose struct {
+	Hip       [2]float64
+	Foot      [2][2]float64 // end of each leg axis, hip + L·a(θ)
+	ArcCentre [2][2]float64 // centre of each foot arc
+	TorsoTop  [2]float64    // hip + 2·COMDist along the torso axis (hip if none)
+	COM       [2]float64    // centre of mass of the whole walker
+}
+
+// Points returns the stick-figure points of the state.
+func (m *Model) Points(s *State) Pose {
+	var p Pose
+	p.Hip = [2]float64{s.Q[0], s.Q[1]}
+	p.TorsoTop = p.Hip
+	p.COM = [2]float64{m.p.HipMass * s.Q[0], m.p.HipMass * s.Q[1]}
+	for i := 0; i < m.nFeet; i++ {
+		a, _ := axis(s.Q[2+i])
+		L := m.feet[i].length
+		p.Foot[i] = [2]float64{s.Q[0] + L*a[0], s.Q[1] + L*a[1]}
+		p.ArcCentre[i], _, _ = m.footCentre(&s.Q, i)
+	}
+	for i := 0; i < m.nLinks; i++ {
+		a, _ := axis(s.Q[2+i])
+		l := m.links[i]
+		p.COM[0] += l.mass * (s.Q[0] + l.rho*a[0])
+		p.COM[1] += l.mass * (s.Q[1] + l.rho*a[1])
+		if i == m.torso {
+			p.TorsoTop = [2]float64{s.Q[0] + 2*l.rho*a[0], s.Q[1] + 2*l.rho*a[1]}
+		}
+	}
+	p.COM[0] /= m.massTotal
+	p.COM[1] /= m.massTotal
+	return p
+}
+
+// Contacts evaluates the contact record of each foot at s without
+// advancing it (what Step would report for this state with zero input).
+func (m *Model) Contacts(s *State, in *Input) [2]FootContact {
+	var ev eval
+	var out [2]FootContact
+	m.rhs(s, &s.Q, &s.V, in, &ev)
+	for i := 0; i < m.nFeet; i++ {
+		m.contactRecord(s, &ev, i, &out[i])
+	}
+	return out
+}
+
+// Accel returns q̈ at s with input in (nil: none) and whether the
+// constrained dynamics could be solved.
+func (m *Model) Accel(s *State, in *Input) ([MaxDOF]float64, bool) {
+	var ev eval
+	m.rhs(s, &s.Q, &s.V, in, &ev)
+	return ev.acc, ev.ok
+}
