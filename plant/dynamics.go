@@ -39,7 +39,7 @@ func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
 		a, _ := axis(q[k])
 		// Angle from the leg axis direction to the contact direction −n,
 		// positive toward a⊥ (the toe).
-		g.cop = f.radius * math.Atan2(-(a[0]*nn[1] - a[1]*nn[0]), -(a[0]*nn[0] + a[1]*nn[1]))
+		g.cop = f.radius * math.Atan2(-(a[0]*nn[1]-a[1]*nn[0]), -(a[0]*nn[0]+a[1]*nn[1]))
 	}
 }
 
