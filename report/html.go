@@ -101,7 +101,7 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 	}
 	for _, spec := range []struct {
 		id, title, unit string
-		lines        []line
+		lines           []line
 	}{
 		{"plot-joint-angles", "Joint angles (encoder reading)", "angle (rad)", angles},
 		{"plot-joint-rates", "Joint rates (encoder reading)", "rate (rad/s)", rates},
@@ -201,11 +201,11 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 		if err != nil {
 			return nil, err
 		}
-		cap := fmt.Sprintf("Pose just before each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope). %d of %d heel strikes shown", len(sel), v.stepsTotal)
+		capText := fmt.Sprintf("Pose just before each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope). %d of %d heel strikes shown", len(sel), v.stepsTotal)
 		if len(sel) < v.stepsTotal {
-			cap += ", evenly spaced, first and last included"
+			capText += ", evenly spaced, first and last included"
 		}
-		add("plot-heel-strikes", "Walker at each heel strike", cap+".", svg)
+		add("plot-heel-strikes", "Walker at each heel strike", capText+".", svg)
 	}
 	return figs, nil
 }
