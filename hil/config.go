@@ -1,0 +1,354 @@
+package hil
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"time"
+
+	"gaitrig/plant"
+	"gaitrig/scenarios"
+)
+
+// ClockMode says how ticks are paced.
+type ClockMode string
+
+// Clock modes.
+const (
+	// Lockstep advances the plant only when the firmware's reply to the
+	// current state has arrived. Time is virtual: a run gives the same
+	// telemetry bit for bit every time.
+	Lockstep ClockMode = "lockstep"
+	// Wallclock paces ticks by the real clock; a late command is applied at
+	// the next tick and a tick without one holds the last torque.
+	Wallclock ClockMode = "wallclock"
+)
+
+// Defaults used when a Config field is zero.
+const (
+	DefaultTickHz           = 1000
+	DefaultWatchdog         = 50 * time.Millisecond
+	DefaultHandshakeTimeout = 5 * time.Second
+	// DefaultResend is how long a lockstep rig waits for a reply before it
+	// sends the same state again, so one lost frame costs a resend, not a
+	// watchdog trip.
+	DefaultResend = 10 * time.Millisecond
+	// DefaultAlarmInterval is the least simulated time between two logged
+	// alarms of one repeating kind (saturation, bad frames, deadline
+	// misses); occurrences in between are counted and reported with the next
+	// line, so the log stays readable and complete.
+	DefaultAlarmInterval = 0.5
+	// DefaultRealtimePriority is the SCHED_FIFO priority asked for in
+	// wall-clock mode: mid-range of Linux's 1–99, below kernel threads that
+	// run at 99 (common practice).
+	DefaultRealtimePriority = 50
+)
+
+// LinkFaultKind is a fault injected on the link.
+type LinkFaultKind string
+
+// Link fault kinds.
+const (
+	// FaultLatency delays each command by Fixed plus a uniform random part
+	// in [0, Jitter). In lockstep the delay is counted in ticks (rounded to
+	// the nearest tick): the command answering tick n is applied at tick
+	// n+k, and the ticks in between hold the torque before it.
+	FaultLatency LinkFaultKind = "latency"
+	// FaultDrop loses frames with probability Rate, states to the firmware
+	// and commands from it alike. A lockstep rig resends an unanswered state
+	// after Config.Resend.
+	FaultDrop LinkFaultKind = "drop"
+	// FaultCorrupt corrupts incoming commands with probability Rate. A
+	// corrupted frame is handled as a real link's CRC check handles it:
+	// rejected, counted and raised as bad_frame (CRC-16/CCITT-FALSE detects
+	// every single-bit error and every burst up to 16 bits, a property of
+	// CRCs of that degree, common practice). Torque bit-flips that keep the
+	// CRC valid are what bad_torque tests with a firmware that sends them.
+	FaultCorrupt LinkFaultKind = "corrupt"
+)
+
+// LinkFault is one fault on the link, active from From to Until simulated
+// seconds (Until 0: to the end).
+type LinkFault struct {
+	Kind          LinkFaultKind
+	From, Until   float64
+	Fixed, Jitter time.Duration // latency
+	Rate          float64       // drop, corrupt: probability per frame
+}
+
+func (f *LinkFault) active(t float64) bool {
+	return t >= f.From && (f.Until <= 0 || t < f.Until)
+}
+
+// Push is a disturbance on the hip: an impulse over one tick, or a force
+// held for Duration. It starts at time At, or, when AtStep > 0, at the tick
+// of the heel strike that completes step AtStep.
+type Push struct {
+	At       float64    // simulated seconds
+	AtStep   int        // heel strike number; overrides At when > 0
+	Impulse  [2]float64 // N·s, (x, y), spread over one tick
+	Force    [2]float64 // N, (x, y), held for Duration
+	Duration float64    // s
+}
+
+// Config is everything the loop needs besides the plant, the link and the
+// record. The zero value of a field means its default.
+type Config struct {
+	// Clock is Lockstep (default) or Wallclock.
+	Clock ClockMode
+	// TickHz is the control rate; default 1000.
+	TickHz float64
+	// Physics are the plant options: sub-steps per tick and what the plant
+	// does after contact events.
+	Physics plant.Options
+	// Watchdog is the longest time without a valid command before the
+	// watchdog alarm e-stops the run; default 50 ms. In lockstep it is
+	// measured on the real clock while the rig waits for a reply.
+	Watchdog time.Duration
+	// HandshakeTimeout is how long the rig waits for the firmware's
+	// greeting; default 5 s.
+	HandshakeTimeout time.Duration
+	// Resend is the lockstep resend interval; default 10 ms.
+	Resend time.Duration
+	// Sensors is the sensor model; Freezes are frozen-sensor faults.
+	Sensors SensorModel
+	Freezes []Freeze
+	// Actuators is the actuator model.
+	Actuators ActuatorModel
+	// LinkFaults are latency, drop and corrupt faults; Pushes push the hip.
+	LinkFaults []LinkFault
+	Pushes     []Push
+	// Severity sets the severity of alarm kinds; kinds not listed use
+	// scenarios.DefaultSeverity, and kinds unknown there warn.
+	Severity map[string]scenarios.Severity
+	// AlarmInterval is the least simulated time between two logged alarms
+	// of one kind; default DefaultAlarmInterval.
+	AlarmInterval float64
+	// Duration and MaxSteps end the run at whichever comes first; at least
+	// one must be set.
+	Duration float64
+	MaxSteps int
+	// Criteria are the pass criteria.
+	Criteria scenarios.Criteria
+	// Seed seeds sensor noise and random faults.
+	Seed int64
+	// RealtimePriority is the SCHED_FIFO priority asked for in wall-clock
+	// mode; default DefaultRealtimePriority; negative asks for nothing.
+	RealtimePriority int
+	// Alarms, when set, receives every logged alarm as one JSON object
+	// (the MQTT link publishes it on the rig's alarm topic).
+	Alarms AlarmSink
+	// OnStep, when set, is called after each completed step (a live line
+	// per step on a terminal). It runs on the loop: keep it short.
+	OnStep func(step StepInfo)
+	// Log, when set, receives plain sentences about the run that are not
+	// alarms (scheduling class granted or not, handshake).
+	Log func(line string)
+}
+
+// StepInfo is what OnStep receives: the step row and the run so far.
+type StepInfo struct {
+	Index     int
+	DurationS float64
+	LengthM   float64
+	SpeedMPS  float64
+	PeakUtil  float64
+	MinNormal float64
+	SimTimeS  float64
+}
+
+// AlarmSink receives alarms as they are logged, as one JSON object each
+// (the same object as the events.jsonl line). A sink that fails is noted in
+// the run log once; the run goes on, the record is the authority.
+type AlarmSink interface {
+	PublishAlarm(jsonObject []byte) error
+}
+
+// withDefaults fills zero fields and checks the rest.
+func (c Config) withDefaults() (Config, error) {
+	if c.Clock == "" {
+		c.Clock = Lockstep
+	}
+	if c.Clock != Lockstep && c.Clock != Wallclock {
+		return c, fmt.Errorf("hil: clock mode %q: want lockstep or wallclock", c.Clock)
+	}
+	if c.TickHz == 0 {
+		c.TickHz = DefaultTickHz
+	}
+	if !(c.TickHz >= 1 && c.TickHz <= 100000) {
+		return c, fmt.Errorf("hil: tick rate %g Hz: want 1 … 100000 Hz", c.TickHz)
+	}
+	if c.Watchdog == 0 {
+		c.Watchdog = DefaultWatchdog
+	}
+	if c.HandshakeTimeout == 0 {
+		c.HandshakeTimeout = DefaultHandshakeTimeout
+	}
+	if c.Resend == 0 {
+		c.Resend = DefaultResend
+	}
+	if c.AlarmInterval == 0 {
+		c.AlarmInterval = DefaultAlarmInterval
+	}
+	if c.RealtimePriority == 0 {
+		c.RealtimePriority = DefaultRealtimePriority
+	}
+	if c.Duration <= 0 && c.MaxSteps <= 0 {
+		return c, errors.New("hil: the run has no end: set a duration, a step count or both")
+	}
+	if math.IsNaN(c.Duration) || math.IsInf(c.Duration, 0) {
+		return c, fmt.Errorf("hil: run duration %g s is not a finite number", c.Duration)
+	}
+	for i, f := range c.LinkFaults {
+		switch f.Kind {
+		case FaultLatency:
+			if f.Fixed < 0 || f.Jitter < 0 {
+				return c, fmt.Errorf("hil: latency fault %d: fixed and jitter must be ≥ 0", i)
+			}
+		case FaultDrop, FaultCorrupt:
+			if !(f.Rate > 0 && f.Rate <= 1) {
+				return c, fmt.Errorf("hil: %s fault %d: rate %g must be in (0, 1]", f.Kind, i, f.Rate)
+			}
+		default:
+			return c, fmt.Errorf("hil: link fault %d has kind %q: want latency, drop or corrupt", i, f.Kind)
+		}
+	}
+	for i, p := range c.Pushes {
+		if p.Force != [2]float64{} && !(p.Duration > 0) {
+			return c, fmt.Errorf("hil: push %d has a force but no duration", i)
+		}
+	}
+	return c, nil
+}
+
+// severity of an alarm kind under this config.
+func (c *Config) severity(kind string) scenarios.Severity {
+	if s, ok := c.Severity[kind]; ok {
+		return s
+	}
+	if s, ok := scenarios.DefaultSeverity[kind]; ok {
+		return s
+	}
+	return scenarios.SeverityWarn
+}
+
+// FromScenario turns a loaded scenario into a loop configuration. The
+// plant, terrain, initial state and link of the scenario are the caller's
+// business (see PlantParams); this covers clock, watchdog, physics options,
+// sensors, actuators, faults, alarms, run length and criteria.
+func FromScenario(s *scenarios.Scenario) (Config, error) {
+	if s == nil {
+		return Config{}, errors.New("hil: no scenario")
+	}
+	c := Config{
+		Clock:  ClockMode(s.Clock.Mode),
+		TickHz: s.Clock.TickHz,
+		Physics: plant.Options{
+			SubSteps:          s.Clock.Substeps,
+			ContinueOnSlip:    s.Physics.OnSlip != scenarios.PolicyStop,
+			ContinueOnLiftOff: s.Physics.OnLiftOff != scenarios.PolicyStop,
+			IgnoreScuff:       s.Physics.IgnoreScuff,
+			FallHipHeight:     s.Physics.FallHipHeightM,
+			FallTorsoAngle:    s.Physics.FallTorsoAngleRad,
+		},
+		Watchdog: time.Duration(s.WatchdogMS * float64(time.Millisecond)),
+		Sensors: SensorModel{
+			CountsPerRev:     s.Sensors.EncoderCountsPerRev,
+			AngleNoise:       s.Sensors.AngleNoiseRad,
+			RateNoise:        s.Sensors.RateNoiseRadps,
+			AngleBias:        s.Sensors.AngleBiasRad,
+			RateBias:         s.Sensors.RateBiasRadps,
+			PitchNoise:       s.Sensors.IMUPitchNoiseRad,
+			PitchRateNoise:   s.Sensors.IMURateNoiseRadps,
+			PitchBias:        s.Sensors.IMUPitchBiasRad,
+			PitchRateBias:    s.Sensors.IMURateBiasRadps,
+			ContactThreshold: s.Sensors.ContactThresholdN,
+		},
+		Actuators: ActuatorModel{
+			TorqueLimit: s.Actuators.TorqueLimitNM,
+			JointLimits: s.Actuators.JointTorqueLimitsNM,
+			Lag:         s.Actuators.LagS,
+		},
+		Severity: map[string]scenarios.Severity{},
+		Duration: s.Run.DurationS,
+		MaxSteps: s.Run.MaxSteps,
+		Criteria: s.Pass,
+		Seed:     s.Sensors.Seed,
+	}
+	for k, v := range s.Alarms {
+		if !slices.Contains(scenarios.AlarmKinds, k) {
+			return c, fmt.Errorf("hil: scenario %s sets a severity for unknown alarm kind %q", s.Name, k)
+		}
+		if v != scenarios.SeverityWarn && v != scenarios.SeverityTrip {
+			return c, fmt.Errorf("hil: scenario %s: alarm %s has severity %q: want warn or trip", s.Name, k, v)
+		}
+		c.Severity[k] = v
+	}
+	for i, f := range s.Faults {
+		switch f.Kind {
+		case scenarios.FaultLatency:
+			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultLatency, From: f.FromS, Until: f.UntilS,
+				Fixed: msDuration(f.FixedMS), Jitter: msDuration(f.JitterMS)})
+		case scenarios.FaultDrop:
+			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultDrop, From: f.FromS, Until: f.UntilS, Rate: f.Rate})
+		case scenarios.FaultCorrupt:
+			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultCorrupt, From: f.FromS, Until: f.UntilS, Rate: f.Rate})
+		case scenarios.FaultFreeze:
+			c.Freezes = append(c.Freezes, Freeze{Sensor: f.Sensor, Start: f.AtS, Duration: f.ForS})
+		case scenarios.FaultPush:
+			p := Push{At: f.AtS, AtStep: f.AtStep, Duration: f.DurationS}
+			if len(f.ImpulseNS) == 2 {
+				p.Impulse = [2]float64{f.ImpulseNS[0], f.ImpulseNS[1]}
+			}
+			if len(f.ForceN) == 2 {
+				p.Force = [2]float64{f.ForceN[0], f.ForceN[1]}
+			}
+			c.Pushes = append(c.Pushes, p)
+		default:
+			return c, fmt.Errorf("hil: scenario %s: faults[%d] has unknown kind %q", s.Name, i, f.Kind)
+		}
+	}
+	return c.withDefaults()
+}
+
+func msDuration(ms float64) time.Duration { return time.Duration(ms * float64(time.Millisecond)) }
+
+// PlantParams turns the scenario's walker and terrain into plant
+// parameters.
+func PlantParams(s *scenarios.Scenario) plant.Params {
+	leg := func(o *scenarios.LegOverride) plant.Leg {
+		b := s.Plant.Legs.Leg
+		l := plant.Leg{Length: b.LengthM, Mass: b.MassKG, COMDist: b.COMM, Inertia: b.InertiaKGM2,
+			FootRadius: b.FootRadiusM, ArcOffset: b.ArcOffsetM}
+		if o == nil {
+			return l
+		}
+		set := func(dst *float64, src *float64) {
+			if src != nil {
+				*dst = *src
+			}
+		}
+		set(&l.Length, o.LengthM)
+		set(&l.Mass, o.MassKG)
+		set(&l.COMDist, o.COMM)
+		set(&l.Inertia, o.InertiaKGM2)
+		set(&l.FootRadius, o.FootRadiusM)
+		set(&l.ArcOffset, o.ArcOffsetM)
+		return l
+	}
+	p := plant.Params{
+		HipMass: s.Plant.HipMassKG,
+		Legs:    [2]plant.Leg{leg(s.Plant.Legs.Left), leg(s.Plant.Legs.Right)},
+		Gravity: s.Plant.GravityMPS2,
+		Terrain: plant.Terrain{Start: s.Terrain.StartM},
+	}
+	if t := s.Plant.Torso; t != nil {
+		p.Torso = &plant.Torso{Mass: t.MassKG, COMDist: t.COMM, Inertia: t.InertiaKGM2}
+	}
+	for _, g := range s.Terrain.Segments {
+		p.Terrain.Segments = append(p.Terrain.Segments, plant.Segment{Length: g.LengthM, Slope: g.SlopeRad,
+			MuStatic: g.MuStatic, MuKinetic: g.MuKinetic})
+	}
+	return p
+}
