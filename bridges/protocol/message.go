@@ -84,6 +84,7 @@ const (
 	StopAborted    uint8 = 3 // operator interrupt (SIGINT/SIGTERM)
 	StopFirmware   uint8 = 4 // firmware asked to stop
 	StopBadVersion uint8 = 5 // protocol version mismatch
+	StopMismatch   uint8 = 6 // greeting does not fit the rig (e.g. actuator count)
 )
 
 // Stop ends a run; either side may send it.
