@@ -140,9 +140,6 @@ type Torso struct {
 	// InertiaKGM2 is the torso's moment of inertia about its centre of
 	// mass, kg·m². ≥ 0.
 	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
-	// LengthM is the drawn length of the torso, from the hip to its top, m,
-	// used for stick figures only. Default 2 × com_m.
-	LengthM float64 `yaml:"length_m"`
 }
 
 // Terrain is a polyline of straight segments starting at Start. Ground past

@@ -1,0 +1,552 @@
+package scenarios
+
+import (
+	"fmt"
+	"math"
+	"net/url"
+	"regexp"
+	"slices"
+	"strings"
+)
+
+var (
+	namePattern = regexp.MustCompile(`^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$`)
+	envPattern  = regexp.MustCompile(`^[A-Za-z_][A-Za-z0-9_]*$`)
+)
+
+// checker validates a decoded scenario and reports problems at the lines of
+// the fields involved.
+type checker struct {
+	d *decoder
+	s *Scenario
+}
+
+// at returns the position of path, or of its nearest given ancestor.
+func (c *checker) at(path string) pos {
+	for p := path; p != ""; {
+		if q, ok := c.d.present[p]; ok {
+			return q
+		}
+		i := strings.LastIndexAny(p, ".[")
+		if i < 0 {
+			break
+		}
+		p = p[:i]
+	}
+	return pos{1, 1}
+}
+
+func (c *checker) has(path string) bool { _, ok := c.d.present[path]; return ok }
+
+func (c *checker) errf(path, format string, a ...any) {
+	c.d.add(c.at(path), path, format, a...)
+}
+
+// require reports a missing required field of the block at parent.
+func (c *checker) require(parent, name, what string) bool {
+	p := join(parent, name)
+	if c.has(p) || c.d.bad[p] {
+		return true
+	}
+	where := parent
+	if where == "" {
+		where = "the top level"
+	}
+	c.d.add(c.at(parent), p, "missing required field %s in %s (%s)", name, where, what)
+	return false
+}
+
+// num checks a number against a condition; allowed says what is allowed.
+func (c *checker) num(path string, x float64, ok bool, allowed string) {
+	if c.d.bad[path] || ok {
+		return
+	}
+	name := path[strings.LastIndexAny(path, ".")+1:]
+	c.errf(path, "%s is out of range; allowed %s", withUnit(x, unitOf(path)), strings.ReplaceAll(allowed, "X", name))
+}
+
+func withUnit(x float64, unit string) string {
+	s := fmt.Sprintf("%g", x)
+	if unit != "" {
+		s += " " + unit
+	}
+	return s
+}
+
+// oneOf checks a word against a list.
+func (c *checker) oneOf(path, val string, allowed ...string) {
+	if c.d.bad[path] || slices.Contains(allowed, val) {
+		return
+	}
+	c.errf(path, "%q is not allowed; allowed: %s", val, strings.Join(allowed, ", "))
+}
+
+// only reports fields given that do not apply (why says to what they apply).
+func (c *checker) only(parent string, fields []string, why string) {
+	for _, f := range fields {
+		if p := join(parent, f); c.has(p) {
+			c.errf(p, "%s applies only %s", f, why)
+		}
+	}
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+func (c *checker) validate() {
+	s := c.s
+	if c.require("", "name", "a short identifier") && !c.d.bad["name"] && !namePattern.MatchString(s.Name) {
+		c.errf("name", "%q is not a valid name; allowed: 1 to 64 letters, digits, '-' and '_', starting with a letter or digit", s.Name)
+	}
+	c.plant()
+	c.terrain()
+	c.initial()
+	c.controller()
+	c.clock()
+	c.run()
+	c.physics()
+	c.sensors()
+	c.actuators()
+	for i := range s.Faults {
+		c.fault(i)
+	}
+	c.alarms()
+	c.criteria()
+}
+
+func (c *checker) plant() {
+	p := &c.s.Plant
+	if !c.require("", "plant", "the walker") {
+		return
+	}
+	c.num("plant.gravity_mps2", p.GravityMPS2, p.GravityMPS2 > 0 && p.GravityMPS2 <= 100, "0 < X ≤ 100")
+	if c.require("plant", "hip_mass_kg", "point mass at the hip, kg") {
+		c.num("plant.hip_mass_kg", p.HipMassKG, p.HipMassKG >= 0 && p.HipMassKG <= 1e4, "0 ≤ X ≤ 10000")
+	}
+	if !c.require("plant", "legs", "the leg both legs share") {
+		return
+	}
+	if !c.require("plant.legs", "length_m", "hip to foot bottom, m") {
+		return
+	}
+	base := p.Legs.Leg
+	c.leg("plant.legs", base, base)
+	for side, o := range map[string]*LegOverride{"left": p.Legs.Left, "right": p.Legs.Right} {
+		if o == nil {
+			continue
+		}
+		c.leg("plant.legs."+side, applyOverride(base, o), base)
+	}
+	total := p.HipMassKG + p.Legs.Leg.MassKG*2
+	if t := p.Torso; t != nil {
+		if c.require("plant.torso", "mass_kg", "torso mass, kg") {
+			c.num("plant.torso.mass_kg", t.MassKG, t.MassKG >= 0 && t.MassKG <= 1e4, "0 ≤ X ≤ 10000")
+		}
+		c.num("plant.torso.com_m", t.COMM, t.COMM >= 0 && t.COMM <= 10, "0 ≤ X ≤ 10")
+		c.num("plant.torso.inertia_kgm2", t.InertiaKGM2, t.InertiaKGM2 >= 0 && t.InertiaKGM2 <= 1e4, "0 ≤ X ≤ 10000")
+		if t.MassKG*t.COMM*t.COMM+t.InertiaKGM2 <= 0 && !c.d.bad["plant.torso"] {
+			c.errf("plant.torso", "the torso has neither mass away from the hip nor inertia, so its angle would have no inertia; give com_m > 0 with mass_kg > 0, or inertia_kgm2 > 0")
+		}
+		total += t.MassKG
+	}
+	if total <= 0 && c.has("plant.hip_mass_kg") {
+		c.errf("plant.hip_mass_kg", "the walker has no mass at all; give the hip, legs or torso a mass")
+	}
+}
+
+// applyOverride returns the shared leg with one side's overrides applied.
+func applyOverride(l Leg, o *LegOverride) Leg {
+	set := func(dst *float64, src *float64) {
+		if src != nil {
+			*dst = *src
+		}
+	}
+	if o != nil {
+		set(&l.LengthM, o.LengthM)
+		set(&l.MassKG, o.MassKG)
+		set(&l.COMM, o.COMM)
+		set(&l.InertiaKGM2, o.InertiaKGM2)
+		set(&l.FootRadiusM, o.FootRadiusM)
+		set(&l.ArcOffsetM, o.ArcOffsetM)
+	}
+	return l
+}
+
+// leg checks one effective leg; path is where its own values are given
+// (plant.legs or plant.legs.left/right), shared is the shared block, whose
+// values an override inherits.
+func (c *checker) leg(path string, l, shared Leg) {
+	// A value the override does not give comes from plant.legs: report it
+	// there, unless the override changed something it depends on.
+	where := func(name string) string {
+		if c.has(join(path, name)) {
+			return join(path, name)
+		}
+		return join("plant.legs", name)
+	}
+	c.num(where("length_m"), l.LengthM, l.LengthM > 0 && l.LengthM <= 10, "0 < X ≤ 10")
+	c.num(where("mass_kg"), l.MassKG, l.MassKG >= 0 && l.MassKG <= 1e4, "0 ≤ X ≤ 10000")
+	c.num(where("inertia_kgm2"), l.InertiaKGM2, l.InertiaKGM2 >= 0 && l.InertiaKGM2 <= 1e4, "0 ≤ X ≤ 10000")
+	if !(l.LengthM > 0) {
+		return
+	}
+	if path != "plant.legs" && l == shared {
+		return
+	}
+	relational := func(name string, x float64, ok bool, msg string) {
+		p := where(name)
+		if ok || c.d.bad[p] {
+			return
+		}
+		c.errf(p, "%s", msg)
+	}
+	relational("com_m", l.COMM, l.COMM >= 0 && l.COMM <= l.LengthM,
+		fmt.Sprintf("%g m is outside the leg of length %g m; allowed 0 ≤ com_m ≤ length_m", l.COMM, l.LengthM))
+	switch {
+	case l.FootRadiusM < 0:
+		relational("foot_radius_m", l.FootRadiusM, false,
+			fmt.Sprintf("%g m is negative; allowed 0 ≤ foot_radius_m ≤ length_m (0 is a point foot)", l.FootRadiusM))
+	case l.FootRadiusM > l.LengthM:
+		relational("foot_radius_m", l.FootRadiusM, false,
+			fmt.Sprintf("%g m is larger than the leg length %g m; allowed 0 ≤ foot_radius_m ≤ length_m", l.FootRadiusM, l.LengthM))
+	}
+	relational("arc_offset_m", l.ArcOffsetM, math.Abs(l.ArcOffsetM) <= l.LengthM,
+		fmt.Sprintf("%g m is larger than the leg length %g m; allowed |arc_offset_m| ≤ length_m", l.ArcOffsetM, l.LengthM))
+	if l.MassKG*l.COMM*l.COMM+l.InertiaKGM2 <= 0 && l.MassKG > 0 {
+		c.errf(where("inertia_kgm2"), "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia; give com_m > 0 or inertia_kgm2 > 0")
+	}
+}
+
+func (c *checker) terrain() {
+	t := &c.s.Terrain
+	if !c.require("", "terrain", "the ground") {
+		return
+	}
+	c.num("terrain.start_m", t.StartM[0], finite(t.StartM[0]) && finite(t.StartM[1]) && math.Abs(t.StartM[0]) <= 1e6 && math.Abs(t.StartM[1]) <= 1e6, "|x|, |y| ≤ 1e6")
+	if !c.require("terrain", "segments", "at least one piece of ground") {
+		return
+	}
+	if len(t.Segments) == 0 && !c.d.bad["terrain.segments"] {
+		c.errf("terrain.segments", "the list is empty; give at least one segment")
+	}
+	for i, g := range t.Segments {
+		p := fmt.Sprintf("terrain.segments[%d]", i)
+		if c.require(p, "length_m", "length along the surface, m") {
+			c.num(p+".length_m", g.LengthM, g.LengthM > 0 && g.LengthM <= 1e5, "0 < X ≤ 100000")
+		}
+		c.num(p+".slope_rad", g.SlopeRad, math.Abs(g.SlopeRad) < math.Pi/2, "|X| < π/2 (1.5708)")
+		if c.require(p, "mu_static", "static friction coefficient") {
+			c.num(p+".mu_static", g.MuStatic, g.MuStatic > 0 && g.MuStatic <= 10, "0 < X ≤ 10")
+		}
+		if c.has(p+".mu_kinetic") && !c.d.bad[p+".mu_kinetic"] && !(g.MuKinetic >= 0 && g.MuKinetic <= g.MuStatic) {
+			c.errf(p+".mu_kinetic", "%g is outside 0 … mu_static (%g); kinetic friction never exceeds static friction; allowed 0 ≤ mu_kinetic ≤ mu_static", g.MuKinetic, g.MuStatic)
+		}
+	}
+}
+
+func (c *checker) initial() {
+	in := &c.s.Initial
+	if !c.require("", "initial", "the initial state: natural_gait: true, or explicit leg angles") {
+		return
+	}
+	explicit := []string{"stance", "x_m", "leg_angles_rad", "torso_angle_rad", "leg_rates_radps", "torso_rate_radps"}
+	if in.NaturalGait {
+		c.only("initial", explicit, "to an explicit initial state; with natural_gait: true the gait finder sets the state")
+		return
+	}
+	c.oneOf("initial.stance", in.Stance, "left", "right")
+	c.num("initial.x_m", in.XM, math.Abs(in.XM) <= 1e6, "|X| ≤ 1e6")
+	if c.require("initial", "leg_angles_rad", "[left, right] leg angles from the vertical, rad, or natural_gait: true") && !c.d.bad["initial.leg_angles_rad"] {
+		if len(in.LegAnglesRad) != 2 {
+			c.errf("initial.leg_angles_rad", "expected 2 numbers [left, right], got %d", len(in.LegAnglesRad))
+		}
+		for i, a := range in.LegAnglesRad {
+			c.num(fmt.Sprintf("initial.leg_angles_rad[%d]", i), a, math.Abs(a) < math.Pi/2, "|angle| < π/2 (1.5708)")
+		}
+	}
+	if c.has("initial.leg_rates_radps") && !c.d.bad["initial.leg_rates_radps"] {
+		if len(in.LegRatesRadps) != 2 {
+			c.errf("initial.leg_rates_radps", "expected 2 numbers [left, right], got %d", len(in.LegRatesRadps))
+		}
+		for i, a := range in.LegRatesRadps {
+			c.num(fmt.Sprintf("initial.leg_rates_radps[%d]", i), a, math.Abs(a) <= 100, "|rate| ≤ 100")
+		}
+	}
+	if c.s.Plant.Torso == nil {
+		c.only("initial", []string{"torso_angle_rad", "torso_rate_radps"}, "to a walker with a torso (plant.torso)")
+	} else {
+		c.num("initial.torso_angle_rad", in.TorsoAngleRad, math.Abs(in.TorsoAngleRad) < math.Pi/2, "|X| < π/2 (1.5708)")
+		c.num("initial.torso_rate_radps", in.TorsoRateRadps, math.Abs(in.TorsoRateRadps) <= 100, "|X| ≤ 100")
+	}
+}
+
+func (c *checker) controller() {
+	k := &c.s.Controller
+	if !c.require("", "controller", "which controller drives the walker") {
+		return
+	}
+	if !c.require("controller", "link", "builtin, serial, mqtt or none") {
+		return
+	}
+	c.oneOf("controller.link", k.Link, LinkBuiltin, LinkSerial, LinkMQTT, LinkNone)
+	builtin := []string{"mode", "settings"}
+	serial := []string{"port", "baud"}
+	mqtt := []string{"broker", "rig", "username_env", "password_env"}
+	switch k.Link {
+	case LinkBuiltin:
+		c.only("controller", append(serial, mqtt...), "to link serial or mqtt")
+		c.oneOf("controller.mode", k.Mode, "walk", "passive")
+		for name, v := range k.Settings {
+			c.num("controller.settings."+name, v, finite(v), "a finite number")
+		}
+	case LinkSerial:
+		c.only("controller", append(builtin, mqtt...), "to link builtin or mqtt")
+		if c.require("controller", "port", "the serial device, for example /dev/ttyUSB0") && k.Port == "" {
+			c.errf("controller.port", "is empty; give the serial device, for example /dev/ttyUSB0")
+		}
+		c.num("controller.baud", float64(k.Baud), k.Baud >= 300 && k.Baud <= 20_000_000, "300 ≤ X ≤ 20000000")
+	case LinkMQTT:
+		c.only("controller", append(builtin, serial...), "to link builtin or serial")
+		if k.Broker != "embedded" && !c.d.bad["controller.broker"] {
+			u, err := url.Parse(k.Broker)
+			if err != nil || u.Host == "" || !slices.Contains([]string{"tcp", "ssl", "tls", "mqtt", "mqtts", "ws", "wss"}, u.Scheme) {
+				c.errf("controller.broker", "%q is not a broker address; allowed: embedded, or a URL such as tcp://127.0.0.1:1883 (schemes tcp, ssl, tls, mqtt, mqtts, ws, wss)", k.Broker)
+			} else if u.User != nil {
+				c.errf("controller.broker", "the URL holds credentials; secrets never go in a scenario file: name environment variables with username_env and password_env")
+			}
+		}
+		if !c.d.bad["controller.rig"] && !namePattern.MatchString(k.Rig) {
+			c.errf("controller.rig", "%q is not a valid rig id; allowed: 1 to 64 letters, digits, '-' and '_' (it is one MQTT topic level)", k.Rig)
+		}
+		for _, f := range []string{"username_env", "password_env"} {
+			v := k.UsernameEnv
+			if f == "password_env" {
+				v = k.PasswordEnv
+			}
+			if c.has("controller."+f) && !envPattern.MatchString(v) {
+				c.errf("controller."+f, "%q is not an environment variable name; give the NAME of the variable that holds the secret (letters, digits, '_'), never the secret itself", v)
+			}
+		}
+	case LinkNone:
+		c.only("controller", append(append(builtin, serial...), mqtt...), "to a link; link none has no controller")
+	}
+}
+
+func (c *checker) clock() {
+	k := &c.s.Clock
+	c.oneOf("clock.mode", k.Mode, ClockLockstep, ClockWallclock)
+	c.num("clock.tick_hz", k.TickHz, k.TickHz >= 10 && k.TickHz <= 20000, "10 ≤ X ≤ 20000")
+	c.num("clock.substeps", float64(k.Substeps), k.Substeps >= 1 && k.Substeps <= 100, "1 ≤ X ≤ 100")
+	if c.s.Controller.Link == LinkNone && k.Mode == ClockWallclock && c.has("clock.mode") {
+		c.errf("clock.mode", "wallclock needs a controller to pace against; link none runs in lockstep")
+	}
+	if k.TickHz > 0 && !c.d.bad["watchdog_ms"] && !c.d.bad["clock.tick_hz"] {
+		period := 1000 / k.TickHz
+		c.num("watchdog_ms", c.s.WatchdogMS, c.s.WatchdogMS >= 2*period && c.s.WatchdogMS <= 60000,
+			fmt.Sprintf("2 ticks (%g ms at %g Hz) ≤ X ≤ 60000", 2*period, k.TickHz))
+	}
+}
+
+func (c *checker) run() {
+	r := &c.s.Run
+	if !c.require("", "run", "how long the run lasts: duration_s, max_steps or both") {
+		return
+	}
+	if !c.has("run.duration_s") && !c.has("run.max_steps") && !c.d.bad["run"] {
+		c.errf("run", "the run has no end; give duration_s, max_steps or both")
+	}
+	if c.has("run.duration_s") {
+		c.num("run.duration_s", r.DurationS, r.DurationS > 0 && r.DurationS <= 86400, "0 < X ≤ 86400")
+	}
+	if c.has("run.max_steps") {
+		c.num("run.max_steps", float64(r.MaxSteps), r.MaxSteps > 0 && r.MaxSteps <= 1_000_000, "0 < X ≤ 1000000")
+	}
+}
+
+func (c *checker) physics() {
+	p := &c.s.Physics
+	c.oneOf("physics.on_slip", p.OnSlip, PolicyContinue, PolicyStop)
+	c.oneOf("physics.on_lift_off", p.OnLiftOff, PolicyContinue, PolicyStop)
+	c.num("physics.fall_hip_height_m", p.FallHipHeightM, math.Abs(p.FallHipHeightM) <= 10, "|X| ≤ 10")
+	c.num("physics.fall_torso_angle_rad", p.FallTorsoAngleRad, p.FallTorsoAngleRad > 0 && p.FallTorsoAngleRad <= math.Pi, "0 < X ≤ π (3.1416)")
+}
+
+func (c *checker) sensors() {
+	s := &c.s.Sensors
+	c.num("sensors.encoder_counts_per_rev", float64(s.EncoderCountsPerRev), s.EncoderCountsPerRev >= 0 && s.EncoderCountsPerRev <= 1<<24, "0 ≤ X ≤ 16777216 (0: no quantization)")
+	for _, f := range []struct {
+		name string
+		x    float64
+	}{{"angle_noise_rad", s.AngleNoiseRad}, {"rate_noise_radps", s.RateNoiseRadps}, {"imu_pitch_noise_rad", s.IMUPitchNoiseRad}, {"imu_rate_noise_radps", s.IMURateNoiseRadps}} {
+		c.num("sensors."+f.name, f.x, f.x >= 0 && f.x <= 10, "0 ≤ X ≤ 10 (a standard deviation)")
+	}
+	for _, f := range []struct {
+		name string
+		x    float64
+	}{{"angle_bias_rad", s.AngleBiasRad}, {"rate_bias_radps", s.RateBiasRadps}, {"imu_pitch_bias_rad", s.IMUPitchBiasRad}, {"imu_rate_bias_radps", s.IMURateBiasRadps}} {
+		c.num("sensors."+f.name, f.x, math.Abs(f.x) <= 10, "|X| ≤ 10")
+	}
+	c.num("sensors.contact_threshold_n", s.ContactThresholdN, s.ContactThresholdN >= 0 && s.ContactThresholdN <= 1e5, "0 ≤ X ≤ 100000")
+}
+
+// JointNames returns the joint names of the scenario's walker, in the
+// plant's order: hip for a compass walker, hip_left and hip_right with a
+// torso.
+func (s *Scenario) JointNames() []string {
+	if s.Plant.Torso != nil {
+		return []string{"hip_left", "hip_right"}
+	}
+	return []string{"hip"}
+}
+
+func (c *checker) actuators() {
+	a := &c.s.Actuators
+	c.num("actuators.torque_limit_nm", a.TorqueLimitNM, a.TorqueLimitNM > 0 && a.TorqueLimitNM <= 1e4, "0 < X ≤ 10000")
+	c.num("actuators.lag_s", a.LagS, a.LagS >= 0 && a.LagS <= 1, "0 ≤ X ≤ 1")
+	joints := c.s.JointNames()
+	for name, v := range a.JointTorqueLimitsNM {
+		p := "actuators.joint_torque_limits_nm." + name
+		if !slices.Contains(joints, name) {
+			c.errf(p, "this walker has no joint %q; its joints are %s", name, strings.Join(joints, ", "))
+			continue
+		}
+		c.num(p, v, v > 0 && v <= 1e4, "0 < limit ≤ 10000")
+	}
+}
+
+// faultFields lists the fields that apply to each fault kind besides kind.
+var faultFields = map[string][]string{
+	FaultLatency: {"from_s", "until_s", "fixed_ms", "jitter_ms"},
+	FaultDrop:    {"from_s", "until_s", "rate"},
+	FaultCorrupt: {"from_s", "until_s", "rate"},
+	FaultFreeze:  {"sensor", "at_s", "for_s"},
+	FaultPush:    {"at_s", "at_step", "impulse_ns", "force_n", "duration_s"},
+}
+
+var allFaultFields = []string{"from_s", "until_s", "fixed_ms", "jitter_ms", "rate", "sensor", "at_s", "at_step", "for_s", "impulse_ns", "force_n", "duration_s"}
+
+func (c *checker) fault(i int) {
+	f := &c.s.Faults[i]
+	p := fmt.Sprintf("faults[%d]", i)
+	if !c.require(p, "kind", "latency, drop, corrupt, freeze or push") {
+		return
+	}
+	allowed, ok := faultFields[f.Kind]
+	if !ok {
+		c.oneOf(p+".kind", f.Kind, FaultLatency, FaultDrop, FaultCorrupt, FaultFreeze, FaultPush)
+		return
+	}
+	for _, name := range allFaultFields {
+		if !slices.Contains(allowed, name) && c.has(p+"."+name) {
+			c.errf(p+"."+name, "does not apply to a %s fault; allowed for %s: %s", f.Kind, f.Kind, strings.Join(allowed, ", "))
+		}
+	}
+	window := func() {
+		c.num(p+".from_s", f.FromS, f.FromS >= 0, "X ≥ 0")
+		if c.has(p+".until_s") && !c.d.bad[p+".until_s"] && !(f.UntilS > f.FromS) {
+			c.errf(p+".until_s", "%g s is not after from_s (%g s); allowed until_s > from_s, or leave it out for the end of the run", f.UntilS, f.FromS)
+		}
+	}
+	switch f.Kind {
+	case FaultLatency:
+		window()
+		c.num(p+".fixed_ms", f.FixedMS, f.FixedMS >= 0 && f.FixedMS <= 10000, "0 ≤ X ≤ 10000")
+		c.num(p+".jitter_ms", f.JitterMS, f.JitterMS >= 0 && f.JitterMS <= 10000, "0 ≤ X ≤ 10000")
+		if !c.has(p+".fixed_ms") && !c.has(p+".jitter_ms") {
+			c.errf(p, "a latency fault needs fixed_ms, jitter_ms or both")
+		}
+	case FaultDrop, FaultCorrupt:
+		window()
+		if c.require(p, "rate", "probability per frame, 0 < rate ≤ 1") {
+			c.num(p+".rate", f.Rate, f.Rate > 0 && f.Rate <= 1, "0 < X ≤ 1")
+		}
+	case FaultFreeze:
+		if c.require(p, "sensor", "a joint name, imu or contacts") {
+			c.oneOf(p+".sensor", f.Sensor, append(c.s.JointNames(), "imu", "contacts")...)
+		}
+		if c.require(p, "at_s", "when the sensor freezes, s") {
+			c.num(p+".at_s", f.AtS, f.AtS >= 0, "X ≥ 0")
+		}
+		if c.require(p, "for_s", "how long it stays frozen, s") {
+			c.num(p+".for_s", f.ForS, f.ForS > 0, "X > 0")
+		}
+	case FaultPush:
+		switch at, step := c.has(p+".at_s"), c.has(p+".at_step"); {
+		case at && step:
+			c.errf(p+".at_step", "a push happens at_s or at_step, not both")
+		case !at && !step:
+			c.errf(p, "a push needs at_s (a time) or at_step (a heel strike)")
+		case at:
+			c.num(p+".at_s", f.AtS, f.AtS >= 0, "X ≥ 0")
+		default:
+			c.num(p+".at_step", float64(f.AtStep), f.AtStep >= 1, "X ≥ 1")
+		}
+		imp, force := c.has(p+".impulse_ns"), c.has(p+".force_n")
+		switch {
+		case imp && force:
+			c.errf(p+".force_n", "a push is an impulse_ns or a force_n with duration_s, not both")
+		case !imp && !force:
+			c.errf(p, "a push needs impulse_ns [x, y] or force_n [x, y] with duration_s")
+		case imp:
+			c.pair(p+".impulse_ns", f.ImpulseNS, 1e4)
+			if c.has(p + ".duration_s") {
+				c.errf(p+".duration_s", "an impulse acts over one tick; duration_s goes with force_n")
+			}
+		default:
+			c.pair(p+".force_n", f.ForceN, 1e5)
+			if c.require(p, "duration_s", "how long force_n is held, s") {
+				c.num(p+".duration_s", f.DurationS, f.DurationS > 0 && f.DurationS <= 3600, "0 < X ≤ 3600")
+			}
+		}
+	}
+}
+
+// pair checks an (x, y) list with components up to limit in magnitude.
+func (c *checker) pair(path string, v []float64, limit float64) {
+	if c.d.bad[path] {
+		return
+	}
+	if len(v) != 2 {
+		c.errf(path, "expected 2 numbers [x, y], got %d", len(v))
+		return
+	}
+	for i, x := range v {
+		c.num(fmt.Sprintf("%s[%d]", path, i), x, math.Abs(x) <= limit, fmt.Sprintf("|component| ≤ %g", limit))
+	}
+}
+
+func (c *checker) alarms() {
+	for k, v := range c.s.Alarms {
+		p := "alarms." + k
+		if !c.has(p) {
+			continue
+		}
+		if !slices.Contains(AlarmKinds, k) {
+			c.errf(p, "unknown alarm kind %q; known kinds: %s", k, strings.Join(AlarmKinds, ", "))
+			continue
+		}
+		c.oneOf(p, string(v), string(SeverityWarn), string(SeverityTrip))
+	}
+}
+
+func (c *checker) criteria() {
+	k := &c.s.Pass
+	c.num("pass.min_steps", float64(k.MinSteps), k.MinSteps >= 0, "X ≥ 0")
+	if k.MinSpeedMPS != nil {
+		c.num("pass.min_speed_mps", *k.MinSpeedMPS, math.Abs(*k.MinSpeedMPS) <= 100, "|X| ≤ 100")
+	}
+	if k.MaxSpeedMPS != nil {
+		c.num("pass.max_speed_mps", *k.MaxSpeedMPS, math.Abs(*k.MaxSpeedMPS) <= 100, "|X| ≤ 100")
+		if k.MinSpeedMPS != nil && *k.MaxSpeedMPS < *k.MinSpeedMPS {
+			c.errf("pass.max_speed_mps", "%g m/s is below min_speed_mps %g m/s; allowed max_speed_mps ≥ min_speed_mps", *k.MaxSpeedMPS, *k.MinSpeedMPS)
+		}
+	}
+	if k.MaxFrictionUtilization != nil {
+		c.num("pass.max_friction_utilization", *k.MaxFrictionUtilization, *k.MaxFrictionUtilization > 0 && *k.MaxFrictionUtilization <= 1, "0 < X ≤ 1 (1 is the slip limit)")
+	}
+	if k.MinNormalForceN != nil {
+		c.num("pass.min_normal_force_n", *k.MinNormalForceN, *k.MinNormalForceN >= 0, "X ≥ 0")
+	}
+	if k.MaxLatencyP99US != nil {
+		c.num("pass.max_latency_p99_us", *k.MaxLatencyP99US, *k.MaxLatencyP99US > 0, "X > 0")
+	}
+}
