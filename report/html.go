@@ -72,6 +72,8 @@ type figure struct {
 	Title   string
 	Caption string
 	SVG     template.HTML
+	// Legend, when not empty, is drawn by the page under the plot.
+	Legend []legendItem
 }
 
 // page is the template's data.
@@ -184,6 +186,7 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 			return nil, err
 		}
 		add("plot-alarms", "Alarm timeline", fmt.Sprintf("%d alarm(s) and event(s) of %d kind(s); one row per kind, marker colour by severity.", len(v.alarms), len(rows)), svg)
+		figs[len(figs)-1].Legend = severityLegend(v.alarms)
 	}
 
 	// Stick figures at heel strikes.
@@ -239,6 +242,9 @@ func fmtFloat(x float64) string {
 
 var pageTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"lower": strings.ToLower,
+	// css passes a colour we made ourselves (cssColor) into a style
+	// attribute; html/template would otherwise refuse any dynamic CSS.
+	"css": func(s string) template.CSS { return template.CSS(s) },
 }).Parse(`<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -263,6 +269,8 @@ td.num{text-align:right;font-variant-numeric:tabular-nums}
 .bad{color:#b31b1b;font-weight:bold}
 figure{margin:1em 0;background:#fff;border:1px solid #ddd;padding:.5em}
 figure svg.plot{width:100%;height:auto;display:block}
+.legend{font-size:.85em;margin:.2em 0}
+.swatch{display:inline-block;width:.8em;height:.8em;border-radius:50%;margin:0 .3em 0 .8em;vertical-align:-.05em}
 figcaption{font-size:.85em;color:#444;margin-top:.3em}
 .steps{max-height:40em;overflow:auto;display:block}
 .notes{font-size:.85em;color:#444}
@@ -301,6 +309,7 @@ code{font-size:.95em}
 <h2>Plots</h2>
 {{range .Figures}}<figure id="fig-{{.ID}}">
 {{.SVG}}
+{{if .Legend}}<p class="legend">{{range .Legend}}<span class="swatch" style="background:{{.Color | css}}"></span>{{.Label}} {{end}}</p>{{end}}
 <figcaption><strong>{{.Title}}.</strong> {{.Caption}}</figcaption>
 </figure>
 {{end}}

@@ -211,6 +211,8 @@ type alarmMark struct {
 // alarmTimeline draws one row per alarm kind, time on x, one marker per
 // alarm coloured by severity. With no alarms it still draws the empty time
 // axis, titled so, because "nothing happened" is a result worth showing.
+// The severity legend is left to the page (see severityLegend): inside the
+// plot it would cover the markers at the end of the run, where a trip is.
 func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
 	title := "Alarm timeline"
 	if len(marks) == 0 {
@@ -257,16 +259,51 @@ func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
 		sc.GlyphStyle.Radius = vg.Points(3.5)
 		sc.GlyphStyle.Shape = draw.CircleGlyph{}
 		p.Add(sc)
-		label := s
-		if label == "" {
-			label = "(no severity)"
-		}
-		p.Legend.Add(label, sc)
 	}
 	p.Y.Min, p.Y.Max = -0.7, math.Max(float64(len(names))-0.3, 0.7)
 	p.Y.Tick.Marker = rowTicks(names)
 	p.Y.Padding = 0
 	return p, nil
+}
+
+// legendItem is one swatch of a legend drawn by the page.
+type legendItem struct {
+	Color string // CSS colour, #rrggbb
+	Label string
+}
+
+// severityLegend lists the severities present in marks, mildest first.
+func severityLegend(marks []alarmMark) []legendItem {
+	seen := map[string]bool{}
+	var sevs []string
+	for _, m := range marks {
+		if !seen[m.severity] {
+			seen[m.severity] = true
+			sevs = append(sevs, m.severity)
+		}
+	}
+	sort.Slice(sevs, func(i, j int) bool {
+		ri, rj := severityRank(sevs[i]), severityRank(sevs[j])
+		if ri != rj {
+			return ri < rj
+		}
+		return sevs[i] < sevs[j]
+	})
+	items := make([]legendItem, 0, len(sevs))
+	for _, s := range sevs {
+		label := s
+		if label == "" {
+			label = "(no severity)"
+		}
+		items = append(items, legendItem{Color: cssColor(severityColor(s)), Label: label})
+	}
+	return items
+}
+
+// cssColor writes c as #rrggbb.
+func cssColor(c color.Color) string {
+	r, g, b, _ := c.RGBA()
+	return fmt.Sprintf("#%02x%02x%02x", r>>8, g>>8, b>>8)
 }
 
 // rowTicks labels integer rows with the alarm kind names.
