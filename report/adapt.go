@@ -129,10 +129,21 @@ func (s *sliceTicks) Tick() *record.Tick { return &s.ticks[s.i-1] }
 // utilization, |T| / (utilization · N), which is exact wherever the foot is
 // loaded and pushing sideways. A foot carrying no load has no friction cone
 // and gets NaN, which breaks the envelope line over the swing.
-func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg) {
+//
+// sizeHint, when positive, is the expected number of rows (the summary's
+// tick count); it saves the slices regrowing through a long run.
+func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint int) {
+	n := max(sizeHint, 0)
+	v.t = make([]float64, 0, n)
 	v.joints = v.joints[:0]
 	for j := 0; j < nj; j++ {
-		v.joints = append(v.joints, jointSeries{})
+		v.joints = append(v.joints, jointSeries{angle: make([]float64, 0, n), rate: make([]float64, 0, n)})
+	}
+	for k := range v.feet {
+		v.feet[k] = footSeries{
+			normal: make([]float64, 0, n), tangential: make([]float64, 0, n),
+			mu: make([]float64, 0, n), util: make([]float64, 0, n),
+		}
 	}
 	for src != nil && src.Next() {
 		t := src.Tick()
@@ -233,7 +244,11 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 	// Telemetry columns.
 	nj := min(len(m.JointNames), record.MaxJoints)
 	segs := terrainOf(m.Plant)
-	collectTicks(v, nj, ticks, segs)
+	hint := 0
+	if s != nil && s.Ticks > 0 && s.Ticks < 1<<26 {
+		hint = int(s.Ticks)
+	}
+	collectTicks(v, nj, ticks, segs, hint)
 	for j := range v.joints {
 		v.joints[j].name = m.JointNames[j]
 	}

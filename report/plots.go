@@ -106,6 +106,52 @@ func newPlot(title, xLabel, yLabel string) *plot.Plot {
 	return p
 }
 
+// brokenLine draws one series as several polylines, one per run of
+// finite samples. One plotter per series (rather than one plotter.Line per
+// run) keeps the plot's layout work and allocations independent of how
+// often the series breaks.
+type brokenLine struct {
+	runs  []run
+	style draw.LineStyle
+	// pts is reused between runs while drawing.
+	pts []vg.Point
+}
+
+// Plot implements plot.Plotter.
+func (l *brokenLine) Plot(c draw.Canvas, p *plot.Plot) {
+	trX, trY := p.Transforms(&c)
+	for _, r := range l.runs {
+		l.pts = l.pts[:0]
+		for i := range r.x {
+			l.pts = append(l.pts, vg.Point{X: trX(r.x[i]), Y: trY(r.y[i])})
+		}
+		if len(l.pts) == 1 {
+			// A lone sample still shows, as a dot-sized stroke.
+			l.pts = append(l.pts, vg.Point{X: l.pts[0].X + l.style.Width/2, Y: l.pts[0].Y})
+		}
+		c.StrokeLines(l.style, c.ClipLinesXY(l.pts)...)
+	}
+}
+
+// DataRange implements plot.DataRanger.
+func (l *brokenLine) DataRange() (xmin, xmax, ymin, ymax float64) {
+	xmin, ymin = math.Inf(1), math.Inf(1)
+	xmax, ymax = math.Inf(-1), math.Inf(-1)
+	for _, r := range l.runs {
+		for i := range r.x {
+			xmin, xmax = math.Min(xmin, r.x[i]), math.Max(xmax, r.x[i])
+			ymin, ymax = math.Min(ymin, r.y[i]), math.Max(ymax, r.y[i])
+		}
+	}
+	return xmin, xmax, ymin, ymax
+}
+
+// Thumbnail implements plot.Thumbnailer, for the legend.
+func (l *brokenLine) Thumbnail(c *draw.Canvas) {
+	y := c.Center().Y
+	c.StrokeLine2(l.style, c.Min.X, y, c.Max.X, y)
+}
+
 // linePlot draws time series, each thinned to at most about maxPoints
 // points and broken where a value is missing (NaN). It leaves headroom
 // above the data for the legend, so the legend never hides a peak.
@@ -118,31 +164,22 @@ func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int) (*plot.
 		runs, kept := decimateRuns(ln.x, ln.y, maxPoints)
 		st.recorded = max(st.recorded, min(len(ln.x), len(ln.y)))
 		st.drawn = max(st.drawn, kept)
-		first := true
-		for _, r := range runs {
-			pts := make(plotter.XYs, len(r.x))
-			for i := range r.x {
-				pts[i].X, pts[i].Y = r.x[i], r.y[i]
-				ylo, yhi = math.Min(ylo, r.y[i]), math.Max(yhi, r.y[i])
-			}
-			l, err := plotter.NewLine(pts)
-			if err != nil {
-				return nil, st, fmt.Errorf("plot %q, line %q: %w", title, ln.label, err)
-			}
-			l.Color = ln.color
-			l.Width = vg.Points(1)
-			if ln.width > 0 {
-				l.Width = ln.width
-			}
-			if ln.dashed {
-				l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
-			}
-			p.Add(l)
-			if first && ln.label != "" {
-				p.Legend.Add(ln.label, l)
-				entries++
-			}
-			first = false
+		if kept == 0 {
+			continue
+		}
+		bl := &brokenLine{runs: runs, style: draw.LineStyle{Color: ln.color, Width: vg.Points(1)}}
+		if ln.width > 0 {
+			bl.style.Width = ln.width
+		}
+		if ln.dashed {
+			bl.style.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+		}
+		_, _, lo, hi := bl.DataRange()
+		ylo, yhi = math.Min(ylo, lo), math.Max(yhi, hi)
+		p.Add(bl)
+		if ln.label != "" {
+			p.Legend.Add(ln.label, bl)
+			entries++
 		}
 	}
 	if ylo <= yhi {
