@@ -6,9 +6,11 @@
  *                            rejection of damaged frames
  *   selftest frames FILE     decode every frame in FILE (one frame per line,
  *                            hex, spaces allowed, '#' starts a comment) and
- *                            print one line per frame describing the message;
- *                            each frame is re-encoded and must give the same
- *                            bytes back
+ *                            print "line N: " and the message in the JSON
+ *                            debug form of docs/protocol.md section 10, or
+ *                            "line N: refused: CODE TEXT ..." with CODE a
+ *                            proto_result number; each decoded frame is
+ *                            re-encoded and must give the same bytes back
  *   selftest cobs FILE       lines "RAW-HEX | ENCODED-HEX": encode RAW and
  *                            decode ENCODED and compare both ways
  *
@@ -235,64 +237,111 @@ static void test_packing(void)
 
 /* ---- messages ----------------------------------------------------------- */
 
-/* describe prints a message in one line, in the key order of the JSON debug
- * form of docs/protocol.md section 10 (arrays hold the valid slots only;
- * floats with %.9g, which round-trips a float32). The Go test prints the
- * same line from the Go decoder and compares. */
+/* json_str prints a JSON string: quotes, backslashes and control bytes are
+ * escaped, other bytes go out as they are (str32 fields are UTF-8). */
+static void json_str(const char *s)
+{
+    putchar('"');
+    for (; *s; s++) {
+        unsigned char c = (unsigned char)*s;
+        if (c == '"' || c == '\\') {
+            printf("\\%c", c);
+        } else if (c < 0x20) {
+            printf("\\u%04x", (unsigned)c);
+        } else {
+            putchar(c);
+        }
+    }
+    putchar('"');
+}
+
+/* json_f32 prints a float32 as section 10 asks: a number that round-trips
+ * (%.9g gives the 9 significant digits a float32 needs), or "NaN", "+Inf",
+ * "-Inf". */
+static void json_f32(float v)
+{
+    if (isnan(v)) {
+        printf("\"NaN\"");
+    } else if (isinf(v)) {
+        printf(v > 0 ? "\"+Inf\"" : "\"-Inf\"");
+    } else {
+        printf("%.9g", (double)v);
+    }
+}
+
+static void json_f32s(const char *key, const float *v, int n)
+{
+    int i;
+    printf(",\"%s\":[", key);
+    for (i = 0; i < n; i++) {
+        if (i) {
+            putchar(',');
+        }
+        json_f32(v[i]);
+    }
+    putchar(']');
+}
+
+/* describe prints a message as one line of the JSON debug form of
+ * docs/protocol.md section 10, so the Go test can read it with
+ * protocol.ParseJSON and compare it with the Go decoder's result. */
 static void describe(const struct proto_message *m)
 {
     int i;
     switch (m->type) {
     case PROTO_GREETING:
-        printf("greeting seq=%lu version=%u actuators=%u name=\"%s\" build=\"%s\"",
+        printf("{\"type\":\"greeting\",\"seq\":%lu,\"version\":%u,\"actuators\":%u,\"name\":",
                (unsigned long)m->seq, (unsigned)m->u.greeting.version,
-               (unsigned)m->u.greeting.actuators, m->u.greeting.name, m->u.greeting.build);
+               (unsigned)m->u.greeting.actuators);
+        json_str(m->u.greeting.name);
+        printf(",\"build\":");
+        json_str(m->u.greeting.build);
         break;
     case PROTO_CONFIG:
-        printf("config seq=%lu tick_hz=%u lockstep=%u joints=%u joint_names=",
+        printf("{\"type\":\"config\",\"seq\":%lu,\"tick_hz\":%u,\"lockstep\":%s,\"joints\":%u,"
+               "\"joint_names\":[",
                (unsigned long)m->seq, (unsigned)m->u.config.tick_hz,
-               (unsigned)m->u.config.lockstep, (unsigned)m->u.config.joints);
+               m->u.config.lockstep ? "true" : "false", (unsigned)m->u.config.joints);
         for (i = 0; i < m->u.config.joints; i++) {
-            printf("%s\"%s\"", i ? "," : "", m->u.config.joint_names[i]);
+            if (i) {
+                putchar(',');
+            }
+            json_str(m->u.config.joint_names[i]);
         }
-        printf(" torque_limit=");
-        for (i = 0; i < m->u.config.joints; i++) {
-            printf("%s%.9g", i ? "," : "", (double)m->u.config.torque_limit[i]);
-        }
+        putchar(']');
+        json_f32s("torque_limit", m->u.config.torque_limit, m->u.config.joints);
         break;
     case PROTO_STATE:
-        printf("state seq=%lu time_us=%llu joints=%u contacts=%u angle=", (unsigned long)m->seq,
-               (unsigned long long)m->u.state.time_us, (unsigned)m->u.state.joints,
-               (unsigned)m->u.state.contacts);
-        for (i = 0; i < m->u.state.joints; i++) {
-            printf("%s%.9g", i ? "," : "", (double)m->u.state.angle[i]);
-        }
-        printf(" rate=");
-        for (i = 0; i < m->u.state.joints; i++) {
-            printf("%s%.9g", i ? "," : "", (double)m->u.state.rate[i]);
-        }
-        printf(" imu_pitch=%.9g imu_rate=%.9g", (double)m->u.state.imu_pitch,
-               (double)m->u.state.imu_rate);
+        printf("{\"type\":\"state\",\"seq\":%lu,\"time_us\":%llu,\"joints\":%u,\"contacts\":%u",
+               (unsigned long)m->seq, (unsigned long long)m->u.state.time_us,
+               (unsigned)m->u.state.joints, (unsigned)m->u.state.contacts);
+        json_f32s("angle", m->u.state.angle, m->u.state.joints);
+        json_f32s("rate", m->u.state.rate, m->u.state.joints);
+        printf(",\"imu_pitch\":");
+        json_f32(m->u.state.imu_pitch);
+        printf(",\"imu_rate\":");
+        json_f32(m->u.state.imu_rate);
         break;
     case PROTO_COMMAND:
-        printf("command seq=%lu joints=%u status=%u torque=", (unsigned long)m->seq,
-               (unsigned)m->u.command.joints, (unsigned)m->u.command.status);
-        for (i = 0; i < m->u.command.joints; i++) {
-            printf("%s%.9g", i ? "," : "", (double)m->u.command.torque[i]);
-        }
+        printf("{\"type\":\"command\",\"seq\":%lu,\"joints\":%u,\"status\":%u",
+               (unsigned long)m->seq, (unsigned)m->u.command.joints,
+               (unsigned)m->u.command.status);
+        json_f32s("torque", m->u.command.torque, m->u.command.joints);
         break;
     case PROTO_HEARTBEAT:
-        printf("heartbeat seq=%lu", (unsigned long)m->seq);
+        printf("{\"type\":\"heartbeat\",\"seq\":%lu", (unsigned long)m->seq);
         break;
     case PROTO_STOP:
-        printf("stop seq=%lu reason=%u reason_name=%s text=\"%s\"", (unsigned long)m->seq,
-               (unsigned)m->u.stop.reason, proto_stop_reason_text(m->u.stop.reason),
-               m->u.stop.text);
+        printf("{\"type\":\"stop\",\"seq\":%lu,\"reason\":%u,\"reason_name\":\"%s\",\"text\":",
+               (unsigned long)m->seq, (unsigned)m->u.stop.reason,
+               proto_stop_reason_text(m->u.stop.reason));
+        json_str(m->u.stop.text);
         break;
     default:
-        printf("type 0x%02X", (unsigned)m->type);
+        printf("{\"type\":\"0x%02X\"", (unsigned)m->type);
         break;
     }
+    putchar('}');
 }
 
 /* roundtrip encodes m, decodes it back and re-encodes, expecting the same
@@ -491,7 +540,7 @@ static int run_frames_file(const char *path)
         return 1;
     }
     while (fgets(line, sizeof line, in) != NULL) {
-        uint8_t f[PROTO_MAX_FRAME + 1], again[PROTO_MAX_FRAME];
+        uint8_t f[PROTO_MAX_FRAME + 64], again[PROTO_MAX_FRAME];
         size_t n2 = 0;
         long n;
         struct proto_message m;
@@ -512,8 +561,8 @@ static int run_frames_file(const char *path)
         }
         rc = proto_decode(f, (size_t)n, &m, &diag);
         if (rc != PROTO_OK) {
-            printf("line %d: refused: %s (got %lu, want %lu)\n", lineno, proto_error_text(rc),
-                   diag.got, diag.want);
+            printf("line %d: refused: %d %s (got %lu, want %lu)\n", lineno, rc,
+                   proto_error_text(rc), diag.got, diag.want);
             continue;
         }
         printf("line %d: ", lineno);

@@ -1,0 +1,949 @@
+// Package e2e holds end-to-end tests that drive gaitrig against real outside
+// parts: the example C firmware compiled with gcc, over a real
+// pseudo-terminal pair.
+package e2e
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/creack/pty"
+	"golang.org/x/term"
+
+	"gaitrig/bridges/protocol"
+)
+
+// cSourceDir is the example firmware, relative to this package.
+const cSourceDir = "../testdata/firmware/c"
+
+// cflags are the flags the firmware must build with, warning-free
+// (testdata/firmware/c/Makefile uses the same).
+var cflags = []string{"-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-O2"}
+
+// requireTool finds an outside program. Missing, it fails the test when
+// GAITRIG_REQUIRE_TOOLS=1 (as .ci/run sets) and otherwise skips with a
+// message saying what is missing.
+func requireTool(t *testing.T, name string) string {
+	t.Helper()
+	p, err := exec.LookPath(name)
+	if err == nil {
+		return p
+	}
+	if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
+		t.Fatalf("%s is required (GAITRIG_REQUIRE_TOOLS=1) but not found: %v", name, err)
+	}
+	t.Skipf("%s not found (%v); install it or set GAITRIG_REQUIRE_TOOLS=1 to make this a failure", name, err)
+	return ""
+}
+
+// cBinaries are the firmware and self-test built for one test.
+type cBinaries struct {
+	firmware string
+	selftest string
+}
+
+// buildC compiles the firmware and the self-test into a temporary
+// directory with gcc and the project's warning flags.
+func buildC(t *testing.T) cBinaries {
+	t.Helper()
+	gcc := requireTool(t, "gcc")
+	dir := t.TempDir()
+	b := cBinaries{firmware: filepath.Join(dir, "gaitrig-cfw"), selftest: filepath.Join(dir, "selftest")}
+	build := func(out string, sources ...string) {
+		args := append(append([]string{}, cflags...), "-o", out)
+		for _, s := range sources {
+			args = append(args, filepath.Join(cSourceDir, s))
+		}
+		args = append(args, "-lm")
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+		defer cancel()
+		outb, err := exec.CommandContext(ctx, gcc, args...).CombinedOutput()
+		if err != nil {
+			t.Fatalf("gcc %s failed: %v\n%s", strings.Join(args, " "), err, outb)
+		}
+		if len(bytes.TrimSpace(outb)) > 0 {
+			t.Fatalf("gcc printed diagnostics for %s (the firmware must build silently):\n%s", out, outb)
+		}
+	}
+	build(b.firmware, "main_posix.c", "protocol.c", "controller.c")
+	build(b.selftest, "selftest.c", "protocol.c")
+	return b
+}
+
+// runSelftest runs the self-test with arguments and returns its output. A
+// non-zero exit fails the test with the output.
+func runSelftest(t *testing.T, bin string, args ...string) string {
+	t.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	out, err := exec.CommandContext(ctx, bin, args...).CombinedOutput()
+	if err != nil {
+		t.Fatalf("selftest %s: %v\n%s", strings.Join(args, " "), err, out)
+	}
+	return string(out)
+}
+
+// TestCProtocolSelftest runs the C self-test's built-in checks: the CRC
+// check value, COBS vectors, float packing, round trips of every message
+// and refusal of damaged frames.
+func TestCProtocolSelftest(t *testing.T) {
+	b := buildC(t)
+	out := runSelftest(t, b.selftest)
+	if strings.Contains(out, "FAIL") || !strings.HasPrefix(strings.TrimSpace(out), "ok:") {
+		t.Fatalf("C self-test reported failures:\n%s", out)
+	}
+	t.Logf("C self-test: %s", strings.TrimSpace(out))
+}
+
+// TestCCOBSMatchesGo checks the C COBS code against the Go one on inputs
+// chosen to hit the block boundaries (253, 254, 255 and 508 non-zero bytes)
+// and on seeded random inputs with few and many zeros: C must encode each
+// input to exactly the Go encoding and decode it back.
+func TestCCOBSMatchesGo(t *testing.T) {
+	b := buildC(t)
+	rng := rand.New(rand.NewPCG(3, 1999))
+	var inputs [][]byte
+	for _, n := range []int{0, 1, 2, 253, 254, 255, 256, 507, 508, 509, 600} {
+		nonzero := make([]byte, n)
+		for i := range nonzero {
+			nonzero[i] = byte(1 + rng.IntN(255))
+		}
+		inputs = append(inputs, nonzero)
+		zeros := make([]byte, n)
+		inputs = append(inputs, zeros)
+		if n > 0 {
+			endsZero := append([]byte(nil), nonzero...)
+			endsZero[n-1] = 0
+			inputs = append(inputs, endsZero)
+		}
+	}
+	for range 200 {
+		n := rng.IntN(520)
+		p := rng.Float64() // zero density from none to nearly all
+		in := make([]byte, n)
+		for i := range in {
+			if rng.Float64() >= p {
+				in[i] = byte(1 + rng.IntN(255))
+			}
+		}
+		inputs = append(inputs, in)
+	}
+	var file strings.Builder
+	file.WriteString("# raw | COBS from the Go encoder\n")
+	for _, in := range inputs {
+		enc := make([]byte, protocol.COBSMaxLen(len(in)))
+		k, err := protocol.EncodeCOBS(enc, in)
+		if err != nil {
+			t.Fatalf("Go EncodeCOBS of %d bytes: %v", len(in), err)
+		}
+		fmt.Fprintf(&file, "%s | %s\n", hex.EncodeToString(in), hex.EncodeToString(enc[:k]))
+	}
+	path := filepath.Join(t.TempDir(), "cobs.txt")
+	if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := runSelftest(t, b.selftest, "cobs", path)
+	want := fmt.Sprintf("ok: %d COBS checks, 0 failed", 2*len(inputs))
+	if !strings.Contains(out, want) {
+		t.Fatalf("C and Go COBS disagree; want %q in the output:\n%s", want, out)
+	}
+}
+
+// cResult is one line of "selftest frames": a decoded message or a refusal.
+type cResult struct {
+	msg     protocol.Message
+	refused int // proto_result code, 0 if decoded
+	text    string
+}
+
+var frameLine = regexp.MustCompile(`^line (\d+): (.*)$`)
+
+// decodeWithC feeds frames to the C decoder and returns its verdict on each.
+func decodeWithC(t *testing.T, selftest string, frames [][]byte) []cResult {
+	t.Helper()
+	var file strings.Builder
+	for _, f := range frames {
+		file.WriteString(hex.EncodeToString(f))
+		file.WriteByte('\n')
+	}
+	path := filepath.Join(t.TempDir(), "frames.txt")
+	if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := runSelftest(t, selftest, "frames", path)
+	res := make([]cResult, len(frames))
+	seen := make([]bool, len(frames))
+	for _, line := range strings.Split(strings.TrimSpace(out), "\n") {
+		m := frameLine.FindStringSubmatch(line)
+		if m == nil {
+			t.Fatalf("unexpected line from the C decoder: %q", line)
+		}
+		n, _ := strconv.Atoi(m[1])
+		if n < 1 || n > len(frames) {
+			t.Fatalf("C decoder answered for line %d of %d", n, len(frames))
+		}
+		r := &res[n-1]
+		seen[n-1] = true
+		r.text = m[2]
+		if rest, ok := strings.CutPrefix(m[2], "refused: "); ok {
+			code, _, _ := strings.Cut(rest, " ")
+			r.refused, _ = strconv.Atoi(code)
+			if r.refused == 0 {
+				t.Fatalf("C refusal without a code: %q", line)
+			}
+			continue
+		}
+		if err := protocol.ParseJSON([]byte(m[2]), &r.msg); err != nil {
+			t.Fatalf("the C decoder's JSON for frame %d does not parse: %v\n%s", n, err, m[2])
+		}
+	}
+	for i, ok := range seen {
+		if !ok {
+			t.Fatalf("the C decoder said nothing about frame %d (%x)", i+1, frames[i])
+		}
+	}
+	return res
+}
+
+// C result codes (testdata/firmware/c/protocol.h, enum proto_result) and
+// the Go error kinds each one corresponds to. Where the specification lists
+// a check under one heading and the Go code reports it under another, both
+// are accepted and named here: an extra byte (C "extra", Go KindLength), a
+// joint count out of range (C "field", Go KindTooManyJoints) and a greeting
+// whose payload version differs (C "field", Go KindVersion).
+var cCodeKinds = map[int][]protocol.Kind{
+	1: {protocol.KindTruncated},
+	2: {protocol.KindTooLong},
+	3: {protocol.KindLength},
+	4: {protocol.KindBadCRC},
+	5: {protocol.KindVersion},
+	6: {protocol.KindUnknownType},
+	7: {protocol.KindLength},
+	8: {protocol.KindBadField, protocol.KindTooManyJoints, protocol.KindVersion},
+}
+
+// sameMessage compares two decoded messages field by field, floats by
+// their bits (so NaN payloads and -0 count), and says what differs.
+func sameMessage(a, b *protocol.Message) string {
+	if a.Type != b.Type || a.Seq != b.Seq {
+		return fmt.Sprintf("type/seq %v/%d vs %v/%d", a.Type, a.Seq, b.Type, b.Seq)
+	}
+	f32 := func(name string, x, y []float32, n int) string {
+		for i := range n {
+			if math.Float32bits(x[i]) != math.Float32bits(y[i]) && !(math.IsNaN(float64(x[i])) && math.IsNaN(float64(y[i]))) {
+				return fmt.Sprintf("%s[%d] %v vs %v", name, i, x[i], y[i])
+			}
+		}
+		return ""
+	}
+	switch a.Type {
+	case protocol.TypeGreeting:
+		if a.Greeting != b.Greeting {
+			return fmt.Sprintf("greeting %+v vs %+v", a.Greeting, b.Greeting)
+		}
+	case protocol.TypeConfig:
+		x, y := a.Config, b.Config
+		if x.TickHz != y.TickHz || x.Lockstep != y.Lockstep || x.Joints != y.Joints || x.JointNames != y.JointNames {
+			return fmt.Sprintf("config %+v vs %+v", x, y)
+		}
+		return f32("torque_limit", x.TorqueLimit[:], y.TorqueLimit[:], int(x.Joints))
+	case protocol.TypeState:
+		x, y := a.State, b.State
+		if x.TimeUS != y.TimeUS || x.Joints != y.Joints || x.Contacts != y.Contacts {
+			return fmt.Sprintf("state %+v vs %+v", x, y)
+		}
+		n := int(x.Joints)
+		if d := f32("angle", x.Angle[:], y.Angle[:], n) + f32("rate", x.Rate[:], y.Rate[:], n); d != "" {
+			return d
+		}
+		return f32("imu", []float32{x.IMUPitch, x.IMURate}, []float32{y.IMUPitch, y.IMURate}, 2)
+	case protocol.TypeCommand:
+		x, y := a.Command, b.Command
+		if x.Joints != y.Joints || x.Status != y.Status {
+			return fmt.Sprintf("command %+v vs %+v", x, y)
+		}
+		return f32("torque", x.Torque[:], y.Torque[:], int(x.Joints))
+	case protocol.TypeStop:
+		if a.Stop != b.Stop {
+			return fmt.Sprintf("stop %+v vs %+v", a.Stop, b.Stop)
+		}
+	}
+	return ""
+}
+
+// compareDecoders decodes frames with Go and with C and requires the same
+// verdict: the same message, or a refusal of a corresponding kind.
+func compareDecoders(t *testing.T, selftest string, frames [][]byte, label func(i int) string) {
+	t.Helper()
+	res := decodeWithC(t, selftest, frames)
+	for i, f := range frames {
+		var gm protocol.Message
+		gerr := protocol.Decode(f, &gm)
+		c := res[i]
+		switch {
+		case gerr == nil && c.refused != 0:
+			t.Errorf("%s: Go decodes it, C refuses it: %s\nframe %x", label(i), c.text, f)
+		case gerr != nil && c.refused == 0:
+			t.Errorf("%s: Go refuses it (%v), C decodes it: %s\nframe %x", label(i), gerr, c.text, f)
+		case gerr != nil:
+			var pe *protocol.Error
+			if !errors.As(gerr, &pe) {
+				t.Errorf("%s: Go refusal is not a *protocol.Error: %v", label(i), gerr)
+				continue
+			}
+			ok := false
+			for _, k := range cCodeKinds[c.refused] {
+				ok = ok || k == pe.Kind
+			}
+			if !ok {
+				t.Errorf("%s: Go refuses it as %v (kind %d), C as %q\nframe %x", label(i), gerr, pe.Kind, c.text, f)
+			}
+		default:
+			if d := sameMessage(&gm, &c.msg); d != "" {
+				t.Errorf("%s: Go and C decode it differently: %s\nframe %x", label(i), d, f)
+			}
+		}
+	}
+}
+
+// randomMessages builds seeded messages of every type with fields across
+// their ranges, special floats included.
+func randomMessages(rng *rand.Rand, n int) []protocol.Message {
+	specials := []float32{0, float32(math.Copysign(0, -1)), 1, -1, float32(math.Inf(1)), float32(math.Inf(-1)),
+		float32(math.NaN()), math.MaxFloat32, math.SmallestNonzeroFloat32, 1e-20, 123456.789}
+	f := func() float32 {
+		if rng.IntN(4) == 0 {
+			return specials[rng.IntN(len(specials))]
+		}
+		return float32(rng.NormFloat64() * 10)
+	}
+	word := func(max int) string {
+		const letters = "abcdefghijklmnopqrstuvwxyz0123456789_-. "
+		b := make([]byte, rng.IntN(max+1))
+		for i := range b {
+			b[i] = letters[rng.IntN(len(letters))]
+		}
+		return string(b)
+	}
+	types := []protocol.Type{protocol.TypeGreeting, protocol.TypeConfig, protocol.TypeState,
+		protocol.TypeCommand, protocol.TypeHeartbeat, protocol.TypeStop}
+	out := make([]protocol.Message, 0, n)
+	for i := range n {
+		m := protocol.Message{Type: types[i%len(types)], Seq: rng.Uint32()}
+		joints := uint8(1 + rng.IntN(protocol.MaxJoints))
+		switch m.Type {
+		case protocol.TypeGreeting:
+			m.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: joints,
+				Name: word(protocol.MaxNameLen), Build: word(protocol.MaxNameLen)}
+		case protocol.TypeConfig:
+			m.Config = protocol.Config{TickHz: uint16(1 + rng.IntN(65535)), Lockstep: rng.IntN(2) == 1, Joints: joints}
+			for j := range int(joints) {
+				m.Config.JointNames[j] = word(protocol.MaxNameLen)
+				m.Config.TorqueLimit[j] = f()
+			}
+		case protocol.TypeState:
+			m.State = protocol.State{TimeUS: rng.Uint64(), Joints: joints, Contacts: uint8(rng.IntN(4)),
+				IMUPitch: f(), IMURate: f()}
+			for j := range int(joints) {
+				m.State.Angle[j], m.State.Rate[j] = f(), f()
+			}
+		case protocol.TypeCommand:
+			m.Command = protocol.Command{Joints: joints, Status: uint16(rng.IntN(4))}
+			for j := range int(joints) {
+				m.Command.Torque[j] = f()
+			}
+		case protocol.TypeStop:
+			m.Stop = protocol.Stop{Reason: uint8(rng.IntN(9)), Text: word(protocol.MaxNameLen)}
+		}
+		out = append(out, m)
+	}
+	return out
+}
+
+// TestCDecoderMatchesGo encodes seeded random messages of every type with
+// the Go encoder and requires the C decoder to read exactly the same
+// message (and re-encode it to the same bytes, which the self-test checks);
+// then damages frames in the ways section 5 of docs/protocol.md lists and
+// requires C to refuse each one as Go does.
+func TestCDecoderMatchesGo(t *testing.T) {
+	b := buildC(t)
+	rng := rand.New(rand.NewPCG(1, 2))
+	msgs := randomMessages(rng, 120)
+	var frames [][]byte
+	var labels []string
+	add := func(f []byte, label string) {
+		frames = append(frames, f)
+		labels = append(labels, label)
+	}
+	var buf [protocol.MaxFrameLen]byte
+	for i := range msgs {
+		n, err := protocol.Encode(buf[:], &msgs[i])
+		if err != nil {
+			t.Fatalf("Go Encode of random message %d (%v): %v", i, msgs[i].Type, err)
+		}
+		good := append([]byte(nil), buf[:n]...)
+		add(good, fmt.Sprintf("%v frame %d", msgs[i].Type, i))
+	}
+	resign := func(f []byte) []byte {
+		n := len(f)
+		crc := protocol.CRC16(f[:n-2])
+		f[n-2], f[n-1] = byte(crc), byte(crc>>8)
+		return f
+	}
+	good := len(frames)
+	for i := range good {
+		f := frames[i]
+		mut := func(label string, g func([]byte) []byte) {
+			add(g(append([]byte(nil), f...)), fmt.Sprintf("%s, %s", labels[i], label))
+		}
+		pos := rng.IntN(len(f))
+		mut(fmt.Sprintf("bit flip at byte %d", pos), func(g []byte) []byte { g[pos] ^= 1 << rng.IntN(8); return g })
+		mut("last byte cut", func(g []byte) []byte { return g[:len(g)-1] })
+		mut("one byte extra", func(g []byte) []byte { return append(g, 0) })
+		mut("version 2, CRC fixed", func(g []byte) []byte { g[0] = 2; return resign(g) })
+		mut("type 0x7E, CRC fixed", func(g []byte) []byte { g[1] = 0x7E; return resign(g) })
+		mut("header cut to 9 bytes", func(g []byte) []byte { return g[:9] })
+	}
+	// Field checks of section 5 item 8, reached with a valid CRC.
+	fieldCases := []struct {
+		label string
+		typ   protocol.Type
+		off   int // payload offset
+		val   byte
+	}{
+		{"greeting actuators 0", protocol.TypeGreeting, 1, 0},
+		{"greeting actuators 9", protocol.TypeGreeting, 1, 9},
+		{"greeting payload version 2", protocol.TypeGreeting, 0, 2},
+		{"config lockstep 2", protocol.TypeConfig, 2, 2},
+		{"config joints 0", protocol.TypeConfig, 3, 0},
+		{"config joints 9", protocol.TypeConfig, 3, 9},
+		{"state joints 0", protocol.TypeState, 8, 0},
+		{"command joints 9", protocol.TypeCommand, 0, 9},
+	}
+	for _, fc := range fieldCases {
+		for i := range good {
+			if frames[i][1] != byte(fc.typ) {
+				continue
+			}
+			g := append([]byte(nil), frames[i]...)
+			g[protocol.HeaderLen+fc.off] = fc.val
+			add(resign(g), fc.label)
+			break
+		}
+	}
+	{
+		// tick_hz 0: two bytes
+		for i := range good {
+			if frames[i][1] == byte(protocol.TypeConfig) {
+				g := append([]byte(nil), frames[i]...)
+				g[protocol.HeaderLen], g[protocol.HeaderLen+1] = 0, 0
+				add(resign(g), "config tick_hz 0")
+				break
+			}
+		}
+	}
+	// A frame longer than any version may send, and a heartbeat whose length
+	// field claims a stop's payload.
+	long := make([]byte, protocol.MaxFrameLen+1)
+	long[0], long[1] = protocol.Version, byte(protocol.TypeHeartbeat)
+	add(long, "513-byte frame")
+	hb := []byte{1, byte(protocol.TypeHeartbeat), 0, 0, 0, 0, protocol.StopLen, 0}
+	hb = append(hb, make([]byte, protocol.StopLen+2)...)
+	add(resign(hb), "heartbeat with a 33-byte payload")
+
+	compareDecoders(t, b.selftest, frames, func(i int) string { return labels[i] })
+	t.Logf("%d frames (%d valid, %d damaged) decoded alike by C and Go", len(frames), good, len(frames)-good)
+}
+
+// docExamples extracts the example frames of docs/protocol.md section 11:
+// every hex run in the examples block, paired as frame then byte-stream
+// form when the block gives both.
+func docExamples(t *testing.T) (frames, wire [][]byte) {
+	t.Helper()
+	doc, err := os.ReadFile("../docs/protocol.md")
+	if err != nil {
+		t.Fatalf("reading the protocol specification: %v", err)
+	}
+	_, rest, ok := bytes.Cut(doc, []byte("<!-- examples begin -->"))
+	if !ok {
+		t.Fatal("docs/protocol.md has no '<!-- examples begin -->' marker")
+	}
+	block, _, ok := bytes.Cut(rest, []byte("<!-- examples end -->"))
+	if !ok {
+		t.Fatal("docs/protocol.md has no '<!-- examples end -->' marker")
+	}
+	return parseExampleBlock(block)
+}
+
+// hexRun matches a line that is nothing but hex byte pairs separated by
+// spaces (at least ten bytes: the smallest frame).
+var hexRun = regexp.MustCompile(`^(?:[0-9A-Fa-f]{2}[ ]?){10,}$`)
+
+// parseExampleBlock reads the hex lines of the examples block. A line
+// ending in the 00 delimiter is a byte-stream form; others are frames.
+// Lines that continue a long frame are joined to it (a block of hex lines
+// with no blank line between is one run).
+func parseExampleBlock(block []byte) (frames, wire [][]byte) {
+	var cur []byte
+	flush := func() {
+		if len(cur) == 0 {
+			return
+		}
+		if cur[len(cur)-1] == 0 {
+			wire = append(wire, cur)
+		} else {
+			frames = append(frames, cur)
+		}
+		cur = nil
+	}
+	sc := bufio.NewScanner(bytes.NewReader(block))
+	for sc.Scan() {
+		line := strings.TrimSpace(sc.Text())
+		if hexRun.MatchString(line) {
+			b, err := hex.DecodeString(strings.ReplaceAll(line, " ", ""))
+			if err == nil {
+				cur = append(cur, b...)
+				continue
+			}
+		}
+		flush()
+	}
+	flush()
+	return frames, wire
+}
+
+// TestCDecodesDocExamples feeds the example frames of docs/protocol.md to
+// the C decoder: each must decode to what the Go decoder reads, and the
+// byte-stream form shown with it must be what the C COBS encoder writes.
+func TestCDecodesDocExamples(t *testing.T) {
+	b := buildC(t)
+	frames, wire := docExamples(t)
+	if len(frames) == 0 {
+		t.Fatal("docs/protocol.md section 11 holds no example frames yet; the C decoder cannot be checked against the document")
+	}
+	types := map[byte]bool{}
+	for _, f := range frames {
+		types[f[1]] = true
+	}
+	for _, ty := range []protocol.Type{protocol.TypeGreeting, protocol.TypeConfig, protocol.TypeState,
+		protocol.TypeCommand, protocol.TypeHeartbeat, protocol.TypeStop} {
+		if !types[byte(ty)] {
+			t.Errorf("docs/protocol.md has no example frame of type %v (0x%02X)", ty, byte(ty))
+		}
+	}
+	res := decodeWithC(t, b.selftest, frames)
+	for i, r := range res {
+		if r.refused != 0 {
+			t.Errorf("example frame %d of the document is refused by C: %s\n%x", i+1, r.text, frames[i])
+		}
+	}
+	compareDecoders(t, b.selftest, frames, func(i int) string { return fmt.Sprintf("doc example frame %d", i+1) })
+	if len(wire) > 0 {
+		if len(wire) != len(frames) {
+			t.Fatalf("the document shows %d frames and %d byte-stream forms; want one of each per example", len(frames), len(wire))
+		}
+		var file strings.Builder
+		for i := range frames {
+			w := wire[i]
+			fmt.Fprintf(&file, "%x | %x\n", frames[i], w[:len(w)-1])
+		}
+		path := filepath.Join(t.TempDir(), "doc-cobs.txt")
+		if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		out := runSelftest(t, b.selftest, "cobs", path)
+		if !strings.Contains(out, fmt.Sprintf("ok: %d COBS checks, 0 failed", 2*len(frames))) {
+			t.Fatalf("the C COBS code disagrees with the document's byte-stream forms:\n%s", out)
+		}
+	}
+	t.Logf("%d example frames of docs/protocol.md decoded by C (%d byte-stream forms checked)", len(frames), len(wire))
+}
+
+// ---- the firmware process over a real pty --------------------------------
+
+// firmwareProc is the C firmware running as a child process on the
+// follower side of a pty pair.
+type firmwareProc struct {
+	cmd    *exec.Cmd
+	stderr *syncBuffer
+	done   chan struct{}
+	err    error // of cmd.Wait, valid after done
+}
+
+// syncBuffer is a bytes.Buffer safe for the writer goroutine of exec and
+// the test reading it.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
+
+// openPty opens a real pty pair and puts the follower into raw mode, so no
+// byte is echoed or translated before the firmware sets its own mode. Both
+// ends are closed when the test ends.
+func openPty(t *testing.T) (leader, follower *os.File) {
+	t.Helper()
+	leader, follower, err := pty.Open()
+	if err != nil {
+		t.Fatalf("opening a pty pair: %v", err)
+	}
+	if _, err := term.MakeRaw(int(follower.Fd())); err != nil {
+		leader.Close()
+		follower.Close()
+		t.Fatalf("raw mode on %s: %v", follower.Name(), err)
+	}
+	t.Cleanup(func() {
+		leader.Close()
+		follower.Close()
+	})
+	return leader, follower
+}
+
+// startFirmware starts the C firmware on the tty path. The process is
+// killed when ctx ends or the test ends, whichever is first, and always
+// waited for, so no process outlives the test.
+func startFirmware(t *testing.T, ctx context.Context, bin, tty string) *firmwareProc {
+	t.Helper()
+	p := &firmwareProc{stderr: &syncBuffer{}, done: make(chan struct{})}
+	p.cmd = exec.CommandContext(ctx, bin, "-v", tty)
+	p.cmd.Stderr = p.stderr
+	p.cmd.WaitDelay = 2 * time.Second
+	if err := p.cmd.Start(); err != nil {
+		t.Fatalf("starting the C firmware: %v", err)
+	}
+	go func() {
+		p.err = p.cmd.Wait()
+		close(p.done)
+	}()
+	t.Cleanup(func() {
+		select {
+		case <-p.done:
+		default:
+			_ = p.cmd.Process.Kill()
+			<-p.done
+		}
+		if t.Failed() {
+			t.Logf("C firmware stderr:\n%s", p.stderr.String())
+		}
+	})
+	return p
+}
+
+// wait waits for the firmware to exit on its own within d and returns its
+// exit code.
+func (p *firmwareProc) wait(t *testing.T, d time.Duration) int {
+	t.Helper()
+	select {
+	case <-p.done:
+	case <-time.After(d):
+		t.Fatalf("the C firmware did not exit within %v\nstderr:\n%s", d, p.stderr.String())
+	}
+	var ee *exec.ExitError
+	if errors.As(p.err, &ee) {
+		return ee.ExitCode()
+	}
+	if p.err != nil {
+		t.Fatalf("waiting for the C firmware: %v", p.err)
+	}
+	return 0
+}
+
+// counters parses the firmware's "cfw: counters ..." line.
+func (p *firmwareProc) counters(t *testing.T) map[string]string {
+	t.Helper()
+	for _, line := range strings.Split(p.stderr.String(), "\n") {
+		rest, ok := strings.CutPrefix(line, "cfw: counters ")
+		if !ok {
+			continue
+		}
+		out := map[string]string{}
+		for _, kv := range strings.Fields(rest) {
+			k, v, _ := strings.Cut(kv, "=")
+			out[k] = v
+		}
+		return out
+	}
+	t.Fatalf("the C firmware printed no counters line\nstderr:\n%s", p.stderr.String())
+	return nil
+}
+
+// counter is one numeric counter.
+func counter(t *testing.T, c map[string]string, key string) uint64 {
+	t.Helper()
+	v, err := strconv.ParseUint(c[key], 10, 64)
+	if err != nil {
+		t.Fatalf("firmware counter %q is %q: %v", key, c[key], err)
+	}
+	return v
+}
+
+// rigEnd is a minimal rig speaking the protocol on the pty leader, for
+// session tests that need no plant.
+type rigEnd struct {
+	t       *testing.T
+	w       io.Writer
+	msgs    chan protocol.Message
+	errs    chan error
+	scratch [protocol.MaxFrameLen]byte
+}
+
+func newRigEnd(t *testing.T, f *os.File) *rigEnd {
+	r := &rigEnd{t: t, w: f, msgs: make(chan protocol.Message, 256), errs: make(chan error, 256)}
+	rd := protocol.NewReader(f)
+	go func() {
+		for {
+			var m protocol.Message
+			err := rd.ReadMessage(&m)
+			if err != nil {
+				var pe *protocol.Error
+				if errors.As(err, &pe) {
+					r.errs <- err
+					continue
+				}
+				close(r.msgs) // the leader was closed or the follower hung up
+				return
+			}
+			r.msgs <- m
+		}
+	}()
+	return r
+}
+
+func (r *rigEnd) send(m *protocol.Message) {
+	r.t.Helper()
+	wire, err := protocol.AppendWire(nil, r.scratch[:], m)
+	if err != nil {
+		r.t.Fatalf("encoding %v: %v", m.Type, err)
+	}
+	r.raw(wire)
+}
+
+func (r *rigEnd) raw(b []byte) {
+	r.t.Helper()
+	if _, err := r.w.Write(b); err != nil {
+		r.t.Fatalf("writing to the pty: %v", err)
+	}
+}
+
+// next returns the next message from the firmware, skipping heartbeats when
+// skipHeartbeats is set.
+func (r *rigEnd) next(d time.Duration, skipHeartbeats bool) protocol.Message {
+	r.t.Helper()
+	deadline := time.After(d)
+	for {
+		select {
+		case m, ok := <-r.msgs:
+			if !ok {
+				r.t.Fatalf("the firmware's side of the pty closed while a message was expected")
+			}
+			if skipHeartbeats && m.Type == protocol.TypeHeartbeat {
+				continue
+			}
+			return m
+		case err := <-r.errs:
+			r.t.Fatalf("the rig side refused a frame from the C firmware: %v", err)
+		case <-deadline:
+			r.t.Fatalf("no message from the C firmware within %v", d)
+		}
+	}
+}
+
+// demoConfig is the config a rig sends for a walker with a torso.
+func demoConfig() protocol.Message {
+	m := protocol.Message{Type: protocol.TypeConfig}
+	m.Config = protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2}
+	m.Config.JointNames[0], m.Config.JointNames[1] = "hip_left", "hip_right"
+	m.Config.TorqueLimit[0], m.Config.TorqueLimit[1] = 60, 60
+	return m
+}
+
+// TestCFirmwareSession drives the C firmware's session over a real pty
+// with a minimal rig: greeting, config, states answered with commands that
+// echo the seq, a resent state answered identically, garbage and damaged
+// frames counted without losing the next state, a heartbeat on a quiet
+// line, and a normal stop that ends the process with status 0.
+func TestCFirmwareSession(t *testing.T) {
+	b := buildC(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	leader, follower := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, follower.Name())
+	rig := newRigEnd(t, leader)
+
+	g := rig.next(5*time.Second, true)
+	if g.Type != protocol.TypeGreeting || g.Seq != 0 || g.Greeting.Version != protocol.Version || g.Greeting.Actuators != 2 {
+		t.Fatalf("first message: want a version-1 greeting with seq 0 and 2 actuators, got %+v", g)
+	}
+	// Without a config the greeting repeats (every 500 ms, section 6).
+	start := time.Now()
+	if g2 := rig.next(3*time.Second, true); g2.Type != protocol.TypeGreeting {
+		t.Fatalf("want the greeting repeated while no config came, got %v", g2.Type)
+	}
+	t.Logf("greeting repeated after %v", time.Since(start).Round(time.Millisecond))
+
+	cfg := demoConfig()
+	rig.send(&cfg)
+	state := func(seq uint32) protocol.Message {
+		m := protocol.Message{Type: protocol.TypeState, Seq: seq}
+		m.State = protocol.State{TimeUS: uint64(seq) * 1000, Joints: 2, Contacts: protocol.ContactLeft,
+			IMUPitch: -0.05, IMURate: 0.1}
+		m.State.Angle[0], m.State.Angle[1] = -0.1, 0.2
+		m.State.Rate[0], m.State.Rate[1] = -1, 1
+		return m
+	}
+	answer := func(seq uint32) protocol.Message {
+		t.Helper()
+		s := state(seq)
+		rig.send(&s)
+		for {
+			c := rig.next(5*time.Second, true)
+			if c.Type == protocol.TypeGreeting {
+				continue // a repeat sent before the config arrived
+			}
+			if c.Type != protocol.TypeCommand || c.Seq != seq || c.Command.Joints != 2 {
+				t.Fatalf("state %d: want a 2-joint command echoing seq %d, got %+v", seq, seq, c)
+			}
+			for j := range 2 {
+				tq := float64(c.Command.Torque[j])
+				if math.IsNaN(tq) || math.Abs(tq) > 60 {
+					t.Fatalf("state %d: torque %d is %v, outside the 60 N·m limit", seq, j, tq)
+				}
+			}
+			return c
+		}
+	}
+	for seq := uint32(1); seq <= 50; seq++ {
+		answer(seq)
+	}
+	// A state sent again with the same seq (the rig thought it lost the
+	// command) gets the same command back: the law does not advance twice.
+	first := answer(51)
+	again := answer(51)
+	if first.Command != again.Command {
+		t.Fatalf("resent state 51: commands differ, %+v then %+v", first.Command, again.Command)
+	}
+
+	// Damage: garbage that is not valid COBS, a state with one flipped bit
+	// (bad CRC), a truncated heartbeat, then two zeros in a row (ignored
+	// silently). The firmware must count exactly three errors and answer
+	// the next state normally.
+	rig.raw([]byte{0x13, 0x37, 0xC0, 0xFF, 0xEE, 0x00})
+	rig.raw(wireOf(t, ptr(state(52)), func(f []byte) []byte { f[20] ^= 0x40; return f }))
+	rig.raw(wireOf(t, &protocol.Message{Type: protocol.TypeHeartbeat}, func(f []byte) []byte { return f[:6] }))
+	rig.raw([]byte{0x00, 0x00})
+	answer(52)
+
+	// A quiet line gets heartbeats (section 6: after 100 ms without sending).
+	hb := rig.next(2*time.Second, false)
+	if hb.Type != protocol.TypeHeartbeat || hb.Seq != 52 {
+		t.Fatalf("on a quiet line: want a heartbeat with the last state's seq 52, got %+v", hb)
+	}
+
+	stop := protocol.Message{Type: protocol.TypeStop, Seq: 52, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "session test done"}}
+	rig.send(&stop)
+	if code := fw.wait(t, 5*time.Second); code != 0 {
+		t.Fatalf("after a normal stop the firmware must exit 0, got %d\nstderr:\n%s", code, fw.stderr.String())
+	}
+	c := fw.counters(t)
+	if got := counter(t, c, "frame_errors"); got != 3 {
+		t.Errorf("firmware frame_errors = %d, want 3 (garbage, bad CRC, truncated)\nstderr:\n%s", got, fw.stderr.String())
+	}
+	if got := counter(t, c, "repeats"); got != 1 {
+		t.Errorf("firmware repeats = %d, want 1", got)
+	}
+	if got := counter(t, c, "commands"); got != 53 {
+		t.Errorf("firmware commands = %d, want 53 (52 states and one resend)", got)
+	}
+	if c["end"] != "stop" {
+		t.Errorf("firmware end = %q, want \"stop\"", c["end"])
+	}
+}
+
+func ptr[T any](v T) *T { return &v }
+
+// wireOf encodes m, lets damage change the frame, and returns the damaged
+// frame COBS-encoded with its delimiter: damage to the frame, not to the
+// stuffing, so it reaches the frame checks.
+func wireOf(t *testing.T, m *protocol.Message, damage func([]byte) []byte) []byte {
+	t.Helper()
+	frame := make([]byte, protocol.MaxFrameLen)
+	n, err := protocol.Encode(frame, m)
+	if err != nil {
+		t.Fatalf("encoding %v: %v", m.Type, err)
+	}
+	f := damage(frame[:n])
+	wire := make([]byte, protocol.COBSMaxLen(len(f))+1)
+	k, err := protocol.EncodeCOBS(wire, f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return wire[:k+1]
+}
+
+// TestCFirmwareRefusesOtherVersion sends the firmware a valid frame of
+// protocol version 2: it must answer with a stop (bad_version) naming both
+// versions and exit 1 (docs/protocol.md section 8).
+func TestCFirmwareRefusesOtherVersion(t *testing.T) {
+	b := buildC(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	leader, follower := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, follower.Name())
+	rig := newRigEnd(t, leader)
+	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+		t.Fatalf("want a greeting first, got %v", g.Type)
+	}
+	rig.raw([]byte{0})
+	rig.raw(wireOf(t, ptr(demoConfig()), func(f []byte) []byte {
+		f[0] = 2
+		crc := protocol.CRC16(f[:len(f)-2])
+		f[len(f)-2], f[len(f)-1] = byte(crc), byte(crc>>8)
+		return f
+	}))
+	var stop protocol.Message
+	for {
+		stop = rig.next(5*time.Second, true)
+		if stop.Type != protocol.TypeGreeting {
+			break
+		}
+	}
+	if stop.Type != protocol.TypeStop || stop.Stop.Reason != protocol.StopBadVersion {
+		t.Fatalf("want stop(bad_version) after a version-2 frame, got %+v", stop)
+	}
+	if !strings.Contains(stop.Stop.Text, "1") || !strings.Contains(stop.Stop.Text, "2") {
+		t.Errorf("stop text %q should name both versions", stop.Stop.Text)
+	}
+	if code := fw.wait(t, 5*time.Second); code != 1 {
+		t.Fatalf("after a version mismatch the firmware must exit 1, got %d", code)
+	}
+	if !strings.Contains(fw.stderr.String(), "frame speaks version 2, this side speaks version 1") {
+		t.Errorf("firmware log should name both versions:\n%s", fw.stderr.String())
+	}
+}
