@@ -1,0 +1,129 @@
+package report
+
+import (
+	"encoding/json"
+	"math"
+	"strings"
+	"testing"
+
+	"gaitrig/record"
+)
+
+func TestTerrainOf(t *testing.T) {
+	tests := []struct {
+		name string
+		raw  string
+		want []terrainSeg
+	}{
+		{name: "no plant", raw: ``},
+		{name: "not JSON", raw: `{"Terrain":`},
+		{name: "no terrain", raw: `{"HipMass":10}`},
+		{name: "segment without mu", raw: `{"Terrain":{"Segments":[{"Length":1}]}}`},
+		{name: "segment with zero length", raw: `{"Terrain":{"Segments":[{"Length":0,"MuStatic":0.5}]}}`},
+		{
+			name: "Go field names, flat then uphill",
+			raw:  `{"Terrain":{"Start":[1,0],"Segments":[{"Length":2,"Slope":0,"MuStatic":0.7,"MuKinetic":0.5},{"Length":2,"Slope":0.5235987755982988,"MuStatic":0.2,"MuKinetic":0.1}]}}`,
+			// cos(30°) = √3/2, so the second segment spans √3 m of x.
+			want: []terrainSeg{{x0: 1, x1: 3, slope: 0, muS: 0.7}, {x0: 3, x1: 3 + math.Sqrt(3), slope: math.Pi / 6, muS: 0.2}},
+		},
+		{
+			name: "snake_case keys",
+			raw:  `{"terrain":{"start":[0,0],"segments":[{"length":5,"slope":0,"mu_static":0.4}]}}`,
+			want: []terrainSeg{{x0: 0, x1: 5, muS: 0.4}},
+		},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			got := terrainOf(json.RawMessage(tc.raw))
+			if len(got) != len(tc.want) {
+				t.Fatalf("got %d segments %+v, want %+v", len(got), got, tc.want)
+			}
+			for i := range got {
+				g, w := got[i], tc.want[i]
+				if math.Abs(g.x0-w.x0) > 1e-12 || math.Abs(g.x1-w.x1) > 1e-12 || math.Abs(g.slope-w.slope) > 1e-12 || g.muS != w.muS {
+					t.Errorf("segment %d = %+v, want %+v", i, g, w)
+				}
+			}
+		})
+	}
+}
+
+func TestSegmentAt(t *testing.T) {
+	segs := []terrainSeg{{x0: 0, x1: 2, muS: 0.6}, {x0: 2, x1: 3, muS: 0.1}, {x0: 3, x1: 9, muS: 0.5}}
+	tests := []struct {
+		x      float64
+		wantMu float64
+		ok     bool
+	}{
+		{-5, 0.6, true}, // before the start: the first segment continues backward
+		{0, 0.6, true},
+		{1.999, 0.6, true},
+		{2, 0.1, true},
+		{2.5, 0.1, true},
+		{3, 0.5, true},
+		{100, 0.5, true}, // past the end: the last segment continues
+		{math.NaN(), 0, false},
+	}
+	for _, tc := range tests {
+		s, ok := segmentAt(segs, tc.x)
+		if ok != tc.ok || (ok && s.muS != tc.wantMu) {
+			t.Errorf("segmentAt(%g) = %+v, %v; want μs %g, %v", tc.x, s, ok, tc.wantMu, tc.ok)
+		}
+	}
+	if _, ok := segmentAt(nil, 1); ok {
+		t.Error("segmentAt on no terrain said ok")
+	}
+}
+
+// TestFrictionEnvelopeSource checks both ways of finding μs per tick give
+// the friction the synthetic data was made with: from the terrain under
+// the contact point, and, with no terrain in the manifest, back from the
+// recorded utilization.
+func TestFrictionEnvelopeSource(t *testing.T) {
+	r := makeSynthRun(synthOpts{durationS: 6, hz: 500, patchMu: 0.15})
+	noTerrain := r.m
+	noTerrain.Plant = nil
+	tests := []struct {
+		name     string
+		m        *record.Manifest
+		wantNote string
+	}{
+		{"terrain in manifest", &r.m, "from the manifest's terrain"},
+		{"no terrain: recovered from utilization", &noTerrain, "recovered from the recorded utilization"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			v := viewOf(tc.m, &sliceTicks{ticks: r.ticks}, r.steps, r.events, &r.sum)
+			if !strings.Contains(strings.Join(v.Notes, " "), tc.wantNote) {
+				t.Errorf("notes %q lack %q", v.Notes, tc.wantNote)
+			}
+			checked, onPatch := 0, 0
+			for i, tk := range r.ticks {
+				st := tk.Stance
+				f := tk.Feet[st]
+				want := synthMuS
+				if f.ContactX >= synthPatch0 && f.ContactX < synthPatch1 {
+					want = 0.15
+					onPatch++
+				}
+				got := v.feet[st].mu[i]
+				if math.IsNaN(got) {
+					if tc.m.Plant != nil {
+						t.Fatalf("tick %d: no μs for the loaded stance foot", i)
+					}
+					continue // no sideways force at this instant
+				}
+				if math.Abs(got-want) > 1e-9 {
+					t.Fatalf("tick %d: μs %g, want %g", i, got, want)
+				}
+				if !math.IsNaN(v.feet[1-st].mu[i]) {
+					t.Fatalf("tick %d: swing foot has a friction cone", i)
+				}
+				checked++
+			}
+			if checked < len(r.ticks)/2 || onPatch == 0 {
+				t.Errorf("checked %d of %d ticks (%d on the patch)", checked, len(r.ticks), onPatch)
+			}
+		})
+	}
+}
