@@ -198,14 +198,29 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 		wantOutcome string
 		wantFail    int // failing criteria rows
 		wantThinned bool
+		edit        func(r *synthRun)
 	}{
 		{name: "low-friction patch fails the friction ceiling", opts: synthOpts{durationS: 8, hz: 1000, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: true},
 		{name: "good ground passes, with torso", opts: synthOpts{durationS: 3, hz: 500, patchMu: 0.6, withTorso: true}, wantOutcome: "pass", wantFail: 0, wantThinned: false},
+		{
+			name: "markup in names is shown as text", opts: synthOpts{durationS: 2, hz: 500, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: false,
+			edit: func(r *synthRun) {
+				r.m.Scenario = `<script>alert("x")</script>`
+				r.m.JointNames = []string{`hip <&> "joint"`}
+				r.m.Greeting.Name = `fw<img src=x>`
+				for i := range r.events {
+					r.events[i].Kind = `slip<b>`
+				}
+			},
+		},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := filepath.Join(t.TempDir(), "run")
 			r := makeSynthRun(tc.opts)
+			if tc.edit != nil {
+				tc.edit(&r)
+			}
 			writeSynthFolder(t, dir, r, true)
 			if err := WriteHTML(dir); err != nil {
 				t.Fatal(err)
@@ -227,7 +242,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 				}
 			}
 			ident := p.texts["run-identity"]
-			for _, w := range []string{r.m.Scenario, r.m.ScenarioHash, "synthetic-fw build test-1"} {
+			for _, w := range []string{r.m.Scenario, r.m.ScenarioHash, r.m.Greeting.Name + " build " + r.m.Greeting.Build} {
 				if !strings.Contains(ident, w) {
 					t.Errorf("run identity lacks %q: %q", w, ident)
 				}
@@ -255,6 +270,9 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 			}
 			if !strings.Contains(p.texts["fig-plot-heel-strikes"], "heel strikes shown") {
 				t.Errorf("heel-strike caption missing its count: %q", p.texts["fig-plot-heel-strikes"])
+			}
+			if !strings.Contains(p.texts["plot-joint-angles"], r.m.JointNames[0]) {
+				t.Errorf("joint name %q not in the angle plot's legend", r.m.JointNames[0])
 			}
 			if tc.opts.patchMu < 0.3 && !strings.Contains(p.texts["plot-alarms"], "slip") {
 				t.Errorf("alarm timeline has no slip row")
