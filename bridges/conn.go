@@ -37,6 +37,7 @@ type Stats struct {
 	BytesSent      uint64
 	BytesReceived  uint64
 	Reconnects     uint64
+	Dropped        uint64 // valid frames discarded because the receiver fell behind (oldest first)
 }
 
 // ErrTimeout is returned by Recv when the deadline passes with no message.
@@ -44,6 +45,12 @@ var ErrTimeout = errors.New("bridges: receive deadline passed")
 
 // ErrClosed is returned after Close, or when the peer closed the link.
 var ErrClosed = errors.New("bridges: link closed")
+
+// ErrDisconnected is wrapped by errors from links that lost their peer and
+// are trying to get it back (serial unplug). Send returns it at once while the
+// link is down; Recv returns it once when the link drops, and wrapped together
+// with ErrTimeout for deadlines that pass while it is still down.
+var ErrDisconnected = errors.New("bridges: link down")
 
 // FrameError reports one rejected incoming frame. The link stays usable.
 type FrameError struct {
