@@ -70,6 +70,25 @@ func terrainOf(raw json.RawMessage) []terrainSeg {
 	return out
 }
 
+// footRadiiOf reads each leg's foot radius from the plant parameters;
+// zero where it is not recorded.
+func footRadiiOf(raw json.RawMessage) (r [2]float64) {
+	var top any
+	if len(raw) == 0 || json.Unmarshal(raw, &top) != nil {
+		return r
+	}
+	legs, ok := lookup(top, "legs").([]any)
+	if !ok {
+		return r
+	}
+	for i := 0; i < len(legs) && i < 2; i++ {
+		if v, ok := lookup(legs[i], "footradius").(float64); ok && v > 0 && !math.IsInf(v, 0) {
+			r[i] = v
+		}
+	}
+	return r
+}
+
 // lookup finds key in a JSON object ignoring case and underscores.
 func lookup(v any, key string) any {
 	m, ok := v.(map[string]any)
@@ -268,6 +287,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		"peak friction utilization", "least normal force (N)", "heel-strike loss (J)",
 		"positive work (J)", "negative work (J)", "cost of transport", "CoP travel (m)"}
 	v.stepsTotal = len(steps)
+	radii := footRadiiOf(m.Plant)
 	for _, st := range steps {
 		v.StepRows = append(v.StepRows, []string{
 			strconv.Itoa(st.Index), footName(st.Stance), fmtFloat(st.StartS), fmtFloat(st.DurationS),
@@ -281,6 +301,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 			feet:     st.Pose.Feet,
 			torsoTop: st.Pose.TorsoTop,
 			hasTorso: st.Pose.HasTorso,
+			radius:   radii,
 		}
 		low := ps.feet[0]
 		if ps.feet[1][1] < low[1] {

@@ -204,7 +204,7 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 		if err != nil {
 			return nil, err
 		}
-		capText := fmt.Sprintf("Pose just before each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope). %d of %d heel strikes shown", len(sel), v.stepsTotal)
+		capText := fmt.Sprintf("Pose at each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope); curved feet drawn as arcs of the recorded foot radius. %d of %d heel strikes shown", len(sel), v.stepsTotal)
 		if len(sel) < v.stepsTotal {
 			capText += ", evenly spaced, first and last included"
 		}

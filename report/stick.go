@@ -20,7 +20,14 @@ type stickPose struct {
 	// slope of the ground under the figure (rad, positive uphill), drawn
 	// as a short line through the lower foot.
 	slope float64
+	// radius of each foot arc (m); 0 draws a point foot (a straight leg).
+	radius [2]float64
 }
+
+// footArcHalfSpan is half the angle of foot arc drawn, rad. It is only
+// drawing: the plant's foot is a full arc, but a rocker of ±40° reads as a
+// curved foot at a glance.
+const footArcHalfSpan = 0.7
 
 // maxStickFigures bounds the strip: a long run would otherwise give a strip
 // of hundreds of tiny figures. Above it, evenly spaced heel strikes are
@@ -142,7 +149,24 @@ func (s *stickStrip) Plot(c draw.Canvas, p *plot.Plot) {
 			c.StrokeLines(body, []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.torsoTop)})
 		}
 		for leg := 0; leg < 2; leg++ {
-			c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.feet[leg])})
+			r := ps.radius[leg]
+			if r <= 0 {
+				c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.feet[leg])})
+				continue
+			}
+			// The arc centre lies a radius above the contact point, along
+			// the ground normal; the leg axis runs from the hip through it.
+			nx, ny := -math.Sin(ps.slope), math.Cos(ps.slope)
+			ctr := [2]float64{ps.feet[leg][0] + r*nx, ps.feet[leg][1] + r*ny}
+			phi := math.Atan2(ctr[1]-ps.hip[1], ctr[0]-ps.hip[0])
+			const k = 16
+			arc := make([]vg.Point, 0, k+1)
+			for i := 0; i <= k; i++ {
+				a := phi - footArcHalfSpan + 2*footArcHalfSpan*float64(i)/k
+				arc = append(arc, pt(ox, oy, o, [2]float64{ctr[0] + r*math.Cos(a), ctr[1] + r*math.Sin(a)}))
+			}
+			c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ctr)})
+			c.StrokeLines(legs[leg], arc)
 		}
 		hip := pt(ox, oy, o, ps.hip)
 		c.DrawGlyph(draw.GlyphStyle{Color: colBody, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}, hip)

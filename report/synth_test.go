@@ -55,6 +55,10 @@ func makeSynthRun(o synthOpts) synthRun {
 	}
 	plantJSON, err := json.Marshal(map[string]any{
 		"HipMass": synthMass,
+		"Legs": []map[string]float64{
+			{"Length": synthLeg, "FootRadius": synthRadius},
+			{"Length": synthLeg, "FootRadius": synthRadius},
+		},
 		"Terrain": map[string]any{"Start": []float64{0, 0}, "Segments": segs},
 	})
 	if err != nil {
