@@ -61,29 +61,21 @@ func dot(a, b *[MaxDOF]float64, n int) float64 {
 }
 
 // rhs evaluates the constrained dynamics at (q, v) with the contact modes of
-// s: M q̈ + h = Q + Wᵀ λ with J q̈ + J̇ q̇ = 0 for the constrained rows, solved
-// by the Schur complement (J M⁻¹ Wᵀ) λ = −(J M⁻¹ (Q − h) + J̇ q̇). For a
+// s: M q̈ + h = Q + Wᵀ λ with J q̈ + J̇ q̇ = 0 for the constrained rows. For a
 // rolling foot W = J (rows t and n); for a sliding foot only the normal row
-// is constrained and its force direction is W = J_n − μ_k σ J_t.
+// is constrained and its force acts along W = J_n − μ_k σ J_t. The
+// saddle-point system is solved directly (see kkt).
 func (m *Model) rhs(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval) {
-	var M, L [MaxDOF][MaxDOF]float64
-	var h [MaxDOF]float64
+	var M [MaxDOF][MaxDOF]float64
+	var h, top [MaxDOF]float64
 	n := m.n
 	m.massBias(q, v, &M, &h)
-	ev.ok = cholesky(&M, n, &L)
-	if !ev.ok {
-		return
-	}
-	var a0 [MaxDOF]float64
-	m.generalizedInput(in, &a0)
+	m.generalizedInput(in, &top)
 	for i := 0; i < n; i++ {
-		a0[i] -= h[i]
+		top[i] -= h[i]
 	}
-	cholSolve(&L, n, &a0)
-
-	var rowJ, rowY [maxRows]*[MaxDOF]float64
-	var gam [maxRows]float64
-	var y [maxRows][MaxDOF]float64
+	var J, W [maxRows][MaxDOF]float64
+	var bottom [maxRows]float64
 	var foot, kind [maxRows]int // kind 0: tangential, 1: normal
 	k := 0
 	for i := 0; i < m.nFeet; i++ {
@@ -92,52 +84,35 @@ func (m *Model) rhs(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval) {
 		ev.force[i] = [2]float64{}
 		switch s.Mode[i] {
 		case Rolling:
-			y[k] = g.jt
-			rowJ[k], gam[k], foot[k], kind[k] = &g.jt, g.gt, i, 0
+			J[k], W[k], bottom[k], foot[k], kind[k] = g.jt, g.jt, -g.gt, i, 0
 			k++
-			y[k] = g.jn
-			rowJ[k], gam[k], foot[k], kind[k] = &g.jn, g.gn, i, 1
+			J[k], W[k], bottom[k], foot[k], kind[k] = g.jn, g.jn, -g.gn, i, 1
 			k++
 		case Sliding:
 			mu := m.terrain[g.sp.seg].muK * s.SlipDir[i]
 			for j := 0; j < n; j++ {
-				y[k][j] = g.jn[j] - mu*g.jt[j]
+				W[k][j] = g.jn[j] - mu*g.jt[j]
 			}
-			rowJ[k], gam[k], foot[k], kind[k] = &g.jn, g.gn, i, 1
+			J[k], bottom[k], foot[k], kind[k] = g.jn, -g.gn, i, 1
 			k++
 		}
 	}
-	for r := 0; r < k; r++ {
-		cholSolve(&L, n, &y[r])
-		rowY[r] = &y[r]
-	}
-	ev.acc = a0
-	if k == 0 {
+	var sys kkt
+	sys.setup(&M, n, &J, &W, k, &top, &bottom)
+	ev.ok = sys.solve(n + k)
+	if !ev.ok {
 		return
 	}
-	var A [maxRows][maxRows]float64
-	var b [maxRows]float64
+	copy(ev.acc[:n], sys.b[:n])
 	for r := 0; r < k; r++ {
-		for c := 0; c < k; c++ {
-			A[r][c] = dot(rowJ[r], rowY[c], n)
-		}
-		b[r] = -(dot(rowJ[r], &a0, n) + gam[r])
-	}
-	if !solveSmall(&A, &b, k) {
-		ev.ok = false
-		return
-	}
-	for r := 0; r < k; r++ {
-		for j := 0; j < n; j++ {
-			ev.acc[j] += b[r] * y[r][j]
-		}
+		lam := sys.b[n+r]
 		i := foot[r]
 		if kind[r] == 0 {
-			ev.force[i][0] = b[r]
+			ev.force[i][0] = lam
 		} else {
-			ev.force[i][1] = b[r]
+			ev.force[i][1] = lam
 			if s.Mode[i] == Sliding {
-				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * b[r]
+				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * lam
 			}
 		}
 	}

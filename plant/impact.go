@@ -13,33 +13,26 @@ type impulseRows struct {
 }
 
 // solveImpulse solves [M −Wᵀ; J 0][Δv; Λ] = [0; −J v⁻] for Λ and applies
-// Δv = M⁻¹ Wᵀ Λ to v. It reports false if the system is singular.
+// Δv to v. It reports false if the system is singular.
 func (m *Model) solveImpulse(q *[MaxDOF]float64, v *[MaxDOF]float64, rows *impulseRows, lam *[maxRows]float64) bool {
-	var M, L [MaxDOF][MaxDOF]float64
+	var M [MaxDOF][MaxDOF]float64
 	m.MassMatrix(q, &M)
 	n := m.n
-	if !cholesky(&M, n, &L) {
+	var top [MaxDOF]float64
+	var bottom [maxRows]float64
+	for r := 0; r < rows.k; r++ {
+		bottom[r] = -dot(&rows.j[r], v, n)
+	}
+	var sys kkt
+	sys.setup(&M, n, &rows.j, &rows.w, rows.k, &top, &bottom)
+	if !sys.solve(n + rows.k) {
 		return false
 	}
-	var y [maxRows][MaxDOF]float64
-	for r := 0; r < rows.k; r++ {
-		y[r] = rows.w[r]
-		cholSolve(&L, n, &y[r])
-	}
-	var A [maxRows][maxRows]float64
-	for r := 0; r < rows.k; r++ {
-		for c := 0; c < rows.k; c++ {
-			A[r][c] = dot(&rows.j[r], &y[c], n)
-		}
-		lam[r] = -dot(&rows.j[r], v, n)
-	}
-	if !solveSmall(&A, lam, rows.k) {
-		return false
+	for i := 0; i < n; i++ {
+		v[i] += sys.b[i]
 	}
 	for r := 0; r < rows.k; r++ {
-		for i := 0; i < n; i++ {
-			v[i] += lam[r] * y[r][i]
-		}
+		lam[r] = sys.b[n+r]
 	}
 	return true
 }

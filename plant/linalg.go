@@ -89,3 +89,100 @@ func solveSmall(A *[maxRows][maxRows]float64, b *[maxRows]float64, k int) bool {
 	}
 	return true
 }
+
+// maxKKT is the largest saddle-point system: all coordinates plus all
+// contact rows.
+const maxKKT = MaxDOF + maxRows
+
+// kkt is the saddle-point system of constrained dynamics or impacts,
+//
+//	[ M  −Wᵀ ] [ x ]   [ a ]
+//	[ J   0  ] [ λ ] = [ b ]
+//
+// solved directly rather than through the Schur complement J M⁻¹ Wᵀ: when a
+// link is nearly massless (the simplest walking model's legs), M⁻¹ has
+// entries of 1/m and the Schur complement loses digits in proportion,
+// while the saddle-point matrix stays well conditioned after row scaling.
+type kkt struct {
+	a [maxKKT][maxKKT]float64
+	b [maxKKT]float64
+}
+
+// setup fills the system for n coordinates and the k rows of J and W.
+func (s *kkt) setup(M *[MaxDOF][MaxDOF]float64, n int, J, W *[maxRows][MaxDOF]float64, k int, top *[MaxDOF]float64, bottom *[maxRows]float64) {
+	N := n + k
+	for i := 0; i < N; i++ {
+		for j := 0; j < N; j++ {
+			s.a[i][j] = 0
+		}
+	}
+	for i := 0; i < n; i++ {
+		for j := 0; j < n; j++ {
+			s.a[i][j] = M[i][j]
+		}
+		for r := 0; r < k; r++ {
+			s.a[i][n+r] = -W[r][i]
+		}
+		s.b[i] = top[i]
+	}
+	for r := 0; r < k; r++ {
+		for j := 0; j < n; j++ {
+			s.a[n+r][j] = J[r][j]
+		}
+		s.b[n+r] = bottom[r]
+	}
+}
+
+// solve solves the N×N system in place by Gaussian elimination with row
+// equilibration and partial pivoting; the solution is left in s.b. It
+// reports false when the matrix is singular to working precision.
+func (s *kkt) solve(N int) bool {
+	for i := 0; i < N; i++ {
+		mx := 0.0
+		for j := 0; j < N; j++ {
+			mx = math.Max(mx, math.Abs(s.a[i][j]))
+		}
+		if !(mx > 0) || !finite(mx) {
+			return false
+		}
+		inv := 1 / mx
+		for j := 0; j < N; j++ {
+			s.a[i][j] *= inv
+		}
+		s.b[i] *= inv
+	}
+	for c := 0; c < N; c++ {
+		p := c
+		for r := c + 1; r < N; r++ {
+			if math.Abs(s.a[r][c]) > math.Abs(s.a[p][c]) {
+				p = r
+			}
+		}
+		if !(math.Abs(s.a[p][c]) > 1e-13) {
+			return false
+		}
+		if p != c {
+			s.a[p], s.a[c] = s.a[c], s.a[p]
+			s.b[p], s.b[c] = s.b[c], s.b[p]
+		}
+		inv := 1 / s.a[c][c]
+		for r := c + 1; r < N; r++ {
+			f := s.a[r][c] * inv
+			if f == 0 {
+				continue
+			}
+			for j := c + 1; j < N; j++ {
+				s.a[r][j] -= f * s.a[c][j]
+			}
+			s.b[r] -= f * s.b[c]
+		}
+	}
+	for r := N - 1; r >= 0; r-- {
+		x := s.b[r]
+		for j := r + 1; j < N; j++ {
+			x -= s.a[r][j] * s.b[j]
+		}
+		s.b[r] = x / s.a[r][r]
+	}
+	return true
+}

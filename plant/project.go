@@ -73,34 +73,26 @@ func (m *Model) projectVelocity(s *State) {
 	}
 }
 
-// solveCorrection finds dq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ res.
+// solveCorrection finds the M-weighted least correction dq with J dq = −res:
+// [M −Jᵀ; J 0][dq; λ] = [0; −res].
 func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *impulseRows, res *[maxRows]float64, dq *[MaxDOF]float64, lam *[maxRows]float64) bool {
-	var M, L [MaxDOF][MaxDOF]float64
+	var M [MaxDOF][MaxDOF]float64
 	m.MassMatrix(q, &M)
 	n := m.n
-	if !cholesky(&M, n, &L) {
-		return false
-	}
-	var y [maxRows][MaxDOF]float64
-	var A [maxRows][maxRows]float64
+	var top [MaxDOF]float64
+	var bottom [maxRows]float64
 	for r := 0; r < rows.k; r++ {
-		y[r] = rows.w[r]
-		cholSolve(&L, n, &y[r])
+		bottom[r] = -res[r]
 	}
-	for r := 0; r < rows.k; r++ {
-		for c := 0; c < rows.k; c++ {
-			A[r][c] = dot(&rows.j[r], &y[c], n)
-		}
-		lam[r] = -res[r]
-	}
-	if !solveSmall(&A, lam, rows.k) {
+	var sys kkt
+	sys.setup(&M, n, &rows.j, &rows.w, rows.k, &top, &bottom)
+	if !sys.solve(n + rows.k) {
 		return false
 	}
 	*dq = [MaxDOF]float64{}
+	copy(dq[:n], sys.b[:n])
 	for r := 0; r < rows.k; r++ {
-		for i := 0; i < n; i++ {
-			dq[i] += lam[r] * y[r][i]
-		}
+		lam[r] = sys.b[n+r]
 	}
 	return true
 }

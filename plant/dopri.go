@@ -1,0 +1,269 @@
+package plant
+
+import "math"
+
+// Policy is a controller for the analysis tools: it sets the input from
+// the state alone (a pure function, no memory), so the closed loop is an
+// ordinary differential equation. nil means passive (zero input).
+type Policy func(m *Model, s *State, in *Input)
+
+// evalAt evaluates the right-hand side at (q, v) with the contact modes of
+// s and the input of the policy (or none).
+func (m *Model) evalAt(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
+	var in Input
+	if pol != nil {
+		tmp := *s
+		tmp.Q, tmp.V = *q, *v
+		pol(m, &tmp, &in)
+	}
+	m.rhs(s, q, v, &in, ev)
+}
+
+// Dormand–Prince 5(4) coefficients (Dormand and Prince 1980, J. Comput.
+// Appl. Math. 6:19–26; as tabulated in Hairer, Nørsett, Wanner, Solving
+// Ordinary Differential Equations I, 2nd ed., Table 5.2 — from memory,
+// checked by the order test in dopri_test.go).
+var (
+	dpC = [7]float64{0, 1.0 / 5, 3.0 / 10, 4.0 / 5, 8.0 / 9, 1, 1}
+	dpA = [7][6]float64{
+		{},
+		{1.0 / 5},
+		{3.0 / 40, 9.0 / 40},
+		{44.0 / 45, -56.0 / 15, 32.0 / 9},
+		{19372.0 / 6561, -25360.0 / 2187, 64448.0 / 6561, -212.0 / 729},
+		{9017.0 / 3168, -355.0 / 33, 46732.0 / 5247, 49.0 / 176, -5103.0 / 18656},
+		{35.0 / 384, 0, 500.0 / 1113, 125.0 / 192, -2187.0 / 6784, 11.0 / 84},
+	}
+	// dpE = b5 − b4: the embedded error estimate.
+	dpE = [7]float64{71.0 / 57600, 0, -71.0 / 16695, 71.0 / 1920, -17253.0 / 339200, 22.0 / 525, -1.0 / 40}
+)
+
+// dopriStep takes one Dormand–Prince step of size h from x0 (k1 its
+// evaluation). out receives the fifth-order solution, k7 the evaluation
+// there (first same as last), and the return value is the scaled error
+// norm (≤ 1: acceptable for rtol, atol), or +Inf if an evaluation failed.
+func (m *Model) dopriStep(s *State, x0 *phase, k1 *eval, h float64, pol Policy, rtol, atol float64, out *phase, k7 *eval) float64 {
+	n := m.n
+	var kq, kv [7][MaxDOF]float64 // stage derivatives of q and v
+	kq[0], kv[0] = x0.v, k1.acc
+	var x phase
+	var ev eval
+	for st := 1; st < 7; st++ {
+		for i := 0; i < n; i++ {
+			dq, dv := 0.0, 0.0
+			for j := 0; j < st; j++ {
+				a := dpA[st][j]
+				dq += a * kq[j][i]
+				dv += a * kv[j][i]
+			}
+			x.q[i] = x0.q[i] + h*dq
+			x.v[i] = x0.v[i] + h*dv
+		}
+		e := &ev
+		if st == 6 {
+			e = k7
+		}
+		m.evalAt(s, &x.q, &x.v, pol, e)
+		if !e.ok {
+			return math.Inf(1)
+		}
+		kq[st], kv[st] = x.v, e.acc
+	}
+	*out = x // stage 7 is evaluated at the fifth-order solution
+	sum := 0.0
+	for i := 0; i < n; i++ {
+		eq, evv := 0.0, 0.0
+		for j := 0; j < 7; j++ {
+			eq += dpE[j] * kq[j][i]
+			evv += dpE[j] * kv[j][i]
+		}
+		sq := atol + rtol*math.Max(math.Abs(x0.q[i]), math.Abs(x.q[i]))
+		sv := atol + rtol*math.Max(math.Abs(x0.v[i]), math.Abs(x.v[i]))
+		sum += (h*eq/sq)*(h*eq/sq) + (h*evv/sv)*(h*evv/sv)
+	}
+	return math.Sqrt(sum / float64(2*n))
+}
+
+// analysisStop says why an adaptive run ended.
+type analysisStop int
+
+const (
+	stopTime  analysisStop = iota // reached the end time
+	stopHeel                      // just after a heel strike
+	stopEvent                     // a stopping event (fall, lift-off, …)
+	stopFail                      // the integrator failed (non-finite, step too small)
+)
+
+// stepStats collects per-step quantities while integrating.
+type stepStats struct {
+	peakFriction float64 // max |F_t|/N over the stance foot
+	minNormal    float64
+	samples      int
+	onSample     func(s *State, ev *eval) // optional observer of accepted steps
+}
+
+func (st *stepStats) sample(m *Model, s *State, ev *eval) {
+	for i := 0; i < m.nFeet; i++ {
+		if s.Mode[i] == Free {
+			continue
+		}
+		n, f := ev.force[i][1], ev.force[i][0]
+		if st.samples == 0 || n < st.minNormal {
+			st.minNormal = n
+		}
+		if n > 0 {
+			st.peakFriction = math.Max(st.peakFriction, math.Abs(f)/n)
+		} else if f != 0 {
+			st.peakFriction = math.Inf(1)
+		}
+		st.samples++
+	}
+	if st.onSample != nil {
+		st.onSample(s, ev)
+	}
+}
+
+// adaptive integrates s with the Dormand–Prince 5(4) method and event
+// location until tEnd, or until just after the first heel strike when
+// untilHeel is set. Events go to r (its Events overflow into Dropped).
+func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, r *TickResult, st *stepStats) analysisStop {
+	var cur, nxt eval
+	m.evalAt(s, &s.Q, &s.V, pol, &cur)
+	if !cur.ok {
+		return stopFail
+	}
+	if st != nil {
+		st.sample(m, s, &cur)
+	}
+	h := 1e-3 * math.Sqrt(m.reach/m.p.Gravity)
+	var c0, c1 [numCond]float64
+	for s.T < tEnd {
+		if h > tEnd-s.T {
+			h = tEnd - s.T
+		}
+		x0 := phase{q: s.Q, v: s.V}
+		var x1 phase
+		errNorm := m.dopriStep(s, &x0, &cur, h, pol, rtol, atol, &x1, &nxt)
+		if !(errNorm <= 1) {
+			fac := 0.2
+			if finite(errNorm) {
+				fac = math.Max(0.2, 0.9*math.Pow(errNorm, -0.2))
+			}
+			h *= fac
+			if h < 1e-14*math.Max(1, math.Abs(s.T)) {
+				return stopFail
+			}
+			continue
+		}
+		m.conditions(s, &x0.q, &cur, &c0)
+		m.conditions(s, &x1.q, &nxt, &c1)
+		first, tau := -1, h
+		for k := 0; k < numCond; k++ {
+			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
+				continue
+			}
+			tk := 0.0
+			if !latched(k) || c0[k] > 0 {
+				tk = m.locateAdaptive(s, &x0, &cur, pol, k, c0[k], c1[k], h)
+			}
+			if first < 0 || tk < tau {
+				first, tau = k, tk
+			}
+		}
+		hNext := h * math.Min(5, math.Max(0.2, 0.9*math.Pow(math.Max(errNorm, 1e-10), -0.2)))
+		if first < 0 {
+			s.Q, s.V = x1.q, x1.v
+			s.T += h
+			cur = nxt
+			for i := 0; i < m.nFeet; i++ {
+				s.Seg[i] = cur.geom[i].sp.seg
+			}
+			for k := 0; k < numCond; k++ {
+				if !(c1[k] <= 0) {
+					s.fired &^= 1 << k
+				}
+			}
+			if st != nil {
+				st.sample(m, s, &cur)
+			}
+			h = hNext
+			continue
+		}
+		if tau > 0 {
+			var xe phase
+			var ee eval
+			m.dopriStep(s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee)
+			s.Q, s.V = xe.q, xe.v
+			s.T += tau
+		}
+		m.evalAt(s, &s.Q, &s.V, pol, &cur)
+		if st != nil {
+			st.sample(m, s, &cur)
+		}
+		var in Input
+		if pol != nil {
+			pol(m, s, &in)
+		}
+		before := r.NumEvents + r.Dropped
+		stop := m.handle(s, &in, first, &cur, r)
+		m.evalAt(s, &s.Q, &s.V, pol, &cur)
+		if !cur.ok {
+			return stopFail
+		}
+		if stop {
+			return stopEvent
+		}
+		if untilHeel && r.NumEvents+r.Dropped > before {
+			for e := before; e < r.NumEvents; e++ {
+				if r.Events[e].Kind == HeelStrike {
+					return stopHeel
+				}
+			}
+		}
+		if st != nil {
+			st.sample(m, s, &cur)
+		}
+		h = math.Max(hNext, 1e-9)
+	}
+	return stopTime
+}
+
+// locateAdaptive is locate for the Dormand–Prince step: the trial states
+// are fifth-order solutions from x0, so the event time is as accurate as
+// the integration.
+func (m *Model) locateAdaptive(s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64) float64 {
+	a, b := 0.0, h
+	side := 0
+	var x phase
+	var ev eval
+	var c [numCond]float64
+	for it := 0; it < 100 && b-a > 1e-14; it++ {
+		t := b - fb*(b-a)/(fb-fa)
+		if !(t > a && t < b) {
+			t = 0.5 * (a + b)
+		}
+		m.dopriStep(s, x0, k1, t, pol, 1, 1, &x, &ev)
+		m.conditions(s, &x.q, &ev, &c)
+		f := c[k]
+		if math.IsNaN(f) {
+			f = fb
+		}
+		if f <= 0 {
+			b, fb = t, f
+			if side == -1 {
+				fa *= 0.5
+			}
+			side = -1
+		} else {
+			a, fa = t, f
+			if side == +1 {
+				fb *= 0.5
+			}
+			side = +1
+		}
+		if f == 0 || math.Abs(f) < 1e-16*(math.Abs(fa)+math.Abs(fb)) {
+			return t
+		}
+	}
+	return b
+}

@@ -1,0 +1,323 @@
+package plant
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/cmplx"
+	"sort"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// GaitOptions tune the step-to-step map and the gait finder. The zero value
+// gives the defaults noted on each field.
+type GaitOptions struct {
+	Tol       float64 // relative and absolute tolerance of the adaptive integrator; 0 means 1e-11
+	NewtonTol float64 // fixed-point residual max|P(z) − z|; 0 means 1e-10
+	MaxIter   int     // Newton iterations; 0 means 30
+	MaxTime   float64 // longest step, s; 0 means 20 √(L/g)
+	// FDStep is the relative step of the central differences used for the
+	// Newton Jacobian; 0 means 1e-6.
+	FDStep float64
+}
+
+func (o GaitOptions) withDefaults(m *Model) GaitOptions {
+	if o.Tol == 0 {
+		o.Tol = 1e-11
+	}
+	if o.NewtonTol == 0 {
+		o.NewtonTol = 1e-10
+	}
+	if o.MaxIter == 0 {
+		o.MaxIter = 30
+	}
+	if o.MaxTime == 0 {
+		o.MaxTime = 20 * math.Sqrt(m.reach/m.p.Gravity)
+	}
+	if o.FDStep == 0 {
+		o.FDStep = 1e-6
+	}
+	return o
+}
+
+func (o GaitOptions) validate() error {
+	switch {
+	case !finite(o.Tol) || o.Tol < 0 || o.Tol > 1e-3:
+		return perr("GaitOptions.Tol", o.Tol, "must be between 0 (default 1e-11) and 1e-3")
+	case !finite(o.NewtonTol) || o.NewtonTol < 0:
+		return perr("GaitOptions.NewtonTol", o.NewtonTol, "must be finite and ≥ 0")
+	case o.MaxIter < 0:
+		return perr("GaitOptions.MaxIter", float64(o.MaxIter), "must be ≥ 0")
+	case !finite(o.MaxTime) || o.MaxTime < 0:
+		return perr("GaitOptions.MaxTime", o.MaxTime, "must be finite and ≥ 0")
+	case !finite(o.FDStep) || o.FDStep < 0 || o.FDStep > 0.1:
+		return perr("GaitOptions.FDStep", o.FDStep, "must be between 0 (default 1e-6) and 0.1")
+	}
+	return nil
+}
+
+// StepResult is one evaluation of the step-to-step map.
+type StepResult struct {
+	After        State   // just after the next heel strike (the new stance foot rolling)
+	Period       float64 // s
+	StepLength   float64 // m, stance contact point to the next one along the terrain
+	Speed        float64 // m/s, StepLength / Period
+	EnergyLost   float64 // J, kinetic energy lost at the heel strike
+	ImpulseRatio float64 // |Λ_t|/Λ_n of the heel-strike impulse
+	// PeakRequiredFriction is max |F_t|/N of the feet in contact, sampled
+	// at every accepted integration step and at the events.
+	PeakRequiredFriction float64
+	MinNormal            float64 // N, minimum normal force of the feet in contact
+	Events               []Event // every event of the step, in order
+}
+
+// ErrNoHeelStrike is wrapped by StepMap errors when the walker does not
+// reach a heel strike (it falls, lifts off, or the time runs out).
+var ErrNoHeelStrike = errors.New("plant: no heel strike")
+
+// StepMap integrates s with the adaptive Dormand–Prince 5(4) integrator
+// (with the policy's input, nil = passive) until just after the next heel
+// strike: the step-to-step (Poincaré) map of the gait.
+func (m *Model) StepMap(s State, policy Policy, o GaitOptions) (StepResult, error) {
+	if err := o.validate(); err != nil {
+		return StepResult{}, err
+	}
+	return m.stepMap(s, policy, o.withDefaults(m), nil)
+}
+
+func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*State, *eval)) (StepResult, error) {
+	var res StepResult
+	if !finitePhase(&phase{q: s.Q, v: s.V}, m.n) {
+		return res, fmt.Errorf("%w: the start state is not finite", ErrNoHeelStrike)
+	}
+	start := s
+	var r TickResult
+	st := stepStats{onSample: observe}
+	why := m.adaptive(&s, policy, s.T+o.MaxTime, o.Tol, o.Tol, true, &r, &st)
+	res.Events = append(res.Events, r.Events[:r.NumEvents]...)
+	switch why {
+	case stopTime:
+		return res, fmt.Errorf("%w within %g s", ErrNoHeelStrike, o.MaxTime)
+	case stopFail:
+		return res, fmt.Errorf("%w: the integration failed at t = %g s (non-finite state or step size underflow)", ErrNoHeelStrike, s.T)
+	case stopEvent:
+		e := r.Events[r.NumEvents-1]
+		return res, fmt.Errorf("%w: %s at t = %.6f s (foot %d, value %g)", ErrNoHeelStrike, e.Kind, e.T, e.Foot, e.Value)
+	}
+	heel := r.Events[r.NumEvents-1]
+	res.After = s
+	res.Period = s.T - start.T
+	var g0, g1 footGeom
+	m.footGeometry(&start.Q, &start.V, start.Stance, start.Seg[start.Stance], &g0)
+	m.footGeometry(&s.Q, &s.V, s.Stance, s.Seg[s.Stance], &g1)
+	res.StepLength = g0.sp.t[0]*(g1.sp.p[0]-g0.sp.p[0]) + g0.sp.t[1]*(g1.sp.p[1]-g0.sp.p[1])
+	res.Speed = res.StepLength / res.Period
+	res.EnergyLost = heel.EnergyLost
+	res.ImpulseRatio = heel.Value
+	res.PeakRequiredFriction = st.peakFriction
+	res.MinNormal = st.minNormal
+	return res, nil
+}
+
+// Reduced returns the map coordinates of a state: the link angles and
+// rates with the legs ordered stance first, z = (θ_stance, θ_swing[,
+// θ_torso], θ̇_stance, θ̇_swing[, θ̇_torso]). The hip position and velocity
+// follow from the stance foot rolling, so z describes the state on the
+// map's section up to the walker's position along the terrain.
+func (m *Model) Reduced(s *State) []float64 {
+	z := make([]float64, 2*m.nLinks)
+	m.reduced(s, z)
+	return z
+}
+
+func (m *Model) reduced(s *State, z []float64) {
+	nl := m.nLinks
+	for i := 0; i < nl; i++ {
+		k := m.linkOfReduced(s.Stance, i)
+		z[i] = s.Q[2+k]
+		z[nl+i] = s.V[2+k]
+	}
+}
+
+// linkOfReduced maps position i of z to a link index for a given stance.
+func (m *Model) linkOfReduced(stance, i int) int {
+	if m.nFeet == 2 && i < 2 {
+		if i == 0 {
+			return stance
+		}
+		return 1 - stance
+	}
+	return i
+}
+
+// FromReduced builds the state with map coordinates z, the given stance
+// foot rolling, and its hip at horizontal position x (see Reduced).
+func (m *Model) FromReduced(z []float64, stance int, x float64) (State, error) {
+	if len(z) != 2*m.nLinks {
+		return State{}, fmt.Errorf("%w: %d map coordinates, want %d", ErrStand, len(z), 2*m.nLinks)
+	}
+	nl := m.nLinks
+	var ang [2]float64
+	var rates [MaxLinks]float64
+	torso := 0.0
+	for i := 0; i < nl; i++ {
+		k := m.linkOfReduced(stance, i)
+		if k < m.nFeet {
+			ang[k] = z[i]
+		} else {
+			torso = z[i]
+		}
+		rates[k] = z[nl+i]
+	}
+	mm := *m
+	mm.o.IgnoreScuff = true // off the section the swing foot may be below ground
+	return mm.Stand(stance, x, ang, torso, rates[:nl]...)
+}
+
+// Gait is a period-one gait found by FindGait.
+type Gait struct {
+	Found  bool  // Newton converged to NewtonTol
+	Stable bool  // every eigenvalue of the map Jacobian inside the unit circle
+	State  State // just after heel strike, State.Stance the new stance foot
+	// Reduced is the fixed point in map coordinates (see Model.Reduced):
+	// stance-leg angle and swing-leg angle, [torso angle,] then their rates,
+	// absolute angles from the world vertical.
+	Reduced []float64
+	// Eigenvalues of the map Jacobian in the coordinates of Reduced, from
+	// the variational equations with the event-time (saltation)
+	// correction, largest magnitude first.
+	Eigenvalues []complex128
+	Jacobian    *mat.Dense // ∂P/∂z at the fixed point
+	Residual    float64    // max |P(z) − z|
+	Iterations  int
+	StepResult             // period, step length, speed, energy, friction, impulse of the gait's step
+}
+
+// FindGait looks for a period-one gait (a fixed point of the step-to-step
+// map) near guess by Newton's method on P(z) − z with a central-difference
+// Jacobian (gonum for the linear solves), then computes the eigenvalues of
+// the map from the variational equations. guess should be a state just
+// after heel strike (its stance foot rolling). An error explains a failure;
+// a Gait with Found false is returned with the last iterate when Newton did
+// not converge.
+func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error) {
+	if m == nil {
+		return Gait{}, errors.New("plant: FindGait needs a model")
+	}
+	if err := o.validate(); err != nil {
+		return Gait{}, err
+	}
+	o = o.withDefaults(m)
+	stance, x := guess.Stance, guess.Q[0]
+	dim := 2 * m.nLinks
+	z := m.Reduced(&guess)
+	mapZ := func(z []float64, out []float64) (StepResult, error) {
+		s, err := m.FromReduced(z, stance, x)
+		if err != nil {
+			return StepResult{}, err
+		}
+		res, err := m.stepMap(s, policy, o, nil)
+		if err != nil {
+			return res, err
+		}
+		m.reduced(&res.After, out)
+		return res, nil
+	}
+	var g Gait
+	pz := make([]float64, dim)
+	fz := make([]float64, dim)
+	zp := make([]float64, dim)
+	zm := make([]float64, dim)
+	pp := make([]float64, dim)
+	pm := make([]float64, dim)
+	J := mat.NewDense(dim, dim, nil)
+	for it := 0; ; it++ {
+		res, err := mapZ(z, pz)
+		if err != nil {
+			return g, fmt.Errorf("plant: gait finder, iteration %d: %w", it, err)
+		}
+		g.Iterations = it
+		g.Residual = 0
+		for i := range z {
+			fz[i] = pz[i] - z[i]
+			g.Residual = math.Max(g.Residual, math.Abs(fz[i]))
+		}
+		g.StepResult = res
+		g.Reduced = append(g.Reduced[:0], z...)
+		if g.Residual <= o.NewtonTol {
+			g.Found = true
+			break
+		}
+		if it >= o.MaxIter {
+			break
+		}
+		for j := 0; j < dim; j++ {
+			hj := o.FDStep * math.Max(1, math.Abs(z[j]))
+			copy(zp, z)
+			copy(zm, z)
+			zp[j] += hj
+			zm[j] -= hj
+			if _, err := mapZ(zp, pp); err != nil {
+				return g, fmt.Errorf("plant: gait finder, Jacobian column %d: %w", j, err)
+			}
+			if _, err := mapZ(zm, pm); err != nil {
+				return g, fmt.Errorf("plant: gait finder, Jacobian column %d: %w", j, err)
+			}
+			for i := 0; i < dim; i++ {
+				d := (pp[i] - pm[i]) / (2 * hj)
+				if i == j {
+					d -= 1
+				}
+				J.Set(i, j, d)
+			}
+		}
+		var dz mat.VecDense
+		if err := dz.SolveVec(J, mat.NewVecDense(dim, fz)); err != nil {
+			return g, fmt.Errorf("plant: gait finder, iteration %d: singular Newton system: %w", it, err)
+		}
+		// Damp steps that would leave the region where the linear model holds.
+		step := 0.0
+		for i := 0; i < dim; i++ {
+			step = math.Max(step, math.Abs(dz.AtVec(i)))
+		}
+		scale := 1.0
+		if step > 0.1 {
+			scale = 0.1 / step
+		}
+		for i := 0; i < dim; i++ {
+			z[i] -= scale * dz.AtVec(i)
+		}
+	}
+	s, err := m.FromReduced(g.Reduced, stance, x)
+	if err != nil {
+		return g, err
+	}
+	g.State = s
+	jac, err := m.MapJacobian(s, policy, o)
+	if err != nil {
+		return g, fmt.Errorf("plant: gait eigenvalues: %w", err)
+	}
+	g.Jacobian = jac
+	g.Eigenvalues = eigenvalues(jac)
+	g.Stable = len(g.Eigenvalues) > 0 && cmplx.Abs(g.Eigenvalues[0]) < 1
+	return g, nil
+}
+
+// eigenvalues returns the eigenvalues of a square matrix, largest
+// magnitude first.
+func eigenvalues(a *mat.Dense) []complex128 {
+	var e mat.Eigen
+	if !e.Factorize(a, mat.EigenNone) {
+		return nil
+	}
+	v := e.Values(nil)
+	sort.Slice(v, func(i, j int) bool {
+		ai, aj := cmplx.Abs(v[i]), cmplx.Abs(v[j])
+		if ai != aj {
+			return ai > aj
+		}
+		return imag(v[i]) > imag(v[j])
+	})
+	return v
+}
