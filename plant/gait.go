@@ -191,7 +191,7 @@ type Gait struct {
 	Jacobian    *mat.Dense // ∂P/∂z at the fixed point
 	Residual    float64    // max |P(z) − z|
 	Iterations  int
-	StepResult             // period, step length, speed, energy, friction, impulse of the gait's step
+	StepResult  // period, step length, speed, energy, friction, impulse of the gait's step
 }
 
 // FindGait looks for a period-one gait (a fixed point of the step-to-step
