@@ -233,25 +233,19 @@ func (c *Config) severity(kind string) scenarios.Severity {
 	return scenarios.SeverityWarn
 }
 
-// FromScenario turns a loaded scenario into a loop configuration. The
-// plant, terrain, initial state and link of the scenario are the caller's
-// business (see PlantParams); this covers clock, watchdog, physics options,
-// sensors, actuators, faults, alarms, run length and criteria.
+// FromScenario turns a loaded scenario into a loop configuration: clock,
+// watchdog, physics options, sensors, actuators, faults, alarms, run length
+// and criteria. The walker and terrain come from s.PlantParams, the model
+// from NewModel, the initial state from InitialState; the link is the
+// caller's.
 func FromScenario(s *scenarios.Scenario) (Config, error) {
 	if s == nil {
 		return Config{}, errors.New("hil: no scenario")
 	}
 	c := Config{
-		Clock:  ClockMode(s.Clock.Mode),
-		TickHz: s.Clock.TickHz,
-		Physics: plant.Options{
-			SubSteps:          s.Clock.Substeps,
-			ContinueOnSlip:    s.Physics.OnSlip != scenarios.PolicyStop,
-			ContinueOnLiftOff: s.Physics.OnLiftOff != scenarios.PolicyStop,
-			IgnoreScuff:       s.Physics.IgnoreScuff,
-			FallHipHeight:     s.Physics.FallHipHeightM,
-			FallTorsoAngle:    s.Physics.FallTorsoAngleRad,
-		},
+		Clock:    ClockMode(s.Clock.Mode),
+		TickHz:   s.Clock.TickHz,
+		Physics:  s.PlantOptions(),
 		Watchdog: time.Duration(s.WatchdogMS * float64(time.Millisecond)),
 		Sensors: SensorModel{
 			CountsPerRev:     s.Sensors.EncoderCountsPerRev,
@@ -313,42 +307,3 @@ func FromScenario(s *scenarios.Scenario) (Config, error) {
 }
 
 func msDuration(ms float64) time.Duration { return time.Duration(ms * float64(time.Millisecond)) }
-
-// PlantParams turns the scenario's walker and terrain into plant
-// parameters.
-func PlantParams(s *scenarios.Scenario) plant.Params {
-	leg := func(o *scenarios.LegOverride) plant.Leg {
-		b := s.Plant.Legs.Leg
-		l := plant.Leg{Length: b.LengthM, Mass: b.MassKG, COMDist: b.COMM, Inertia: b.InertiaKGM2,
-			FootRadius: b.FootRadiusM, ArcOffset: b.ArcOffsetM}
-		if o == nil {
-			return l
-		}
-		set := func(dst *float64, src *float64) {
-			if src != nil {
-				*dst = *src
-			}
-		}
-		set(&l.Length, o.LengthM)
-		set(&l.Mass, o.MassKG)
-		set(&l.COMDist, o.COMM)
-		set(&l.Inertia, o.InertiaKGM2)
-		set(&l.FootRadius, o.FootRadiusM)
-		set(&l.ArcOffset, o.ArcOffsetM)
-		return l
-	}
-	p := plant.Params{
-		HipMass: s.Plant.HipMassKG,
-		Legs:    [2]plant.Leg{leg(s.Plant.Legs.Left), leg(s.Plant.Legs.Right)},
-		Gravity: s.Plant.GravityMPS2,
-		Terrain: plant.Terrain{Start: s.Terrain.StartM},
-	}
-	if t := s.Plant.Torso; t != nil {
-		p.Torso = &plant.Torso{Mass: t.MassKG, COMDist: t.COMM, Inertia: t.InertiaKGM2}
-	}
-	for _, g := range s.Terrain.Segments {
-		p.Terrain.Segments = append(p.Terrain.Segments, plant.Segment{Length: g.LengthM, Slope: g.SlopeRad,
-			MuStatic: g.MuStatic, MuKinetic: g.MuKinetic})
-	}
-	return p
-}
