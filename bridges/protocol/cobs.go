@@ -58,7 +58,7 @@ func DecodeCOBS(dst, src []byte) (int, error) {
 		i++
 		end := i + int(code) - 1
 		if end > len(src) {
-			return o, &Error{Kind: KindCOBS, Got: int64(i - 1), Want: int64(len(src) - i), Detail: "code past end"}
+			return o, &Error{Kind: KindCOBS, Got: int64(i - 1), Want: int64(code), Detail: "code past end"}
 		}
 		if o+end-i > len(dst) {
 			return o, ErrShortBuffer

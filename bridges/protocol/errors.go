@@ -79,7 +79,7 @@ func (e *Error) Error() string {
 	switch e.Kind {
 	case KindCOBS:
 		if e.Detail == "code past end" {
-			return fmt.Sprintf("bad COBS: code byte at offset %d runs past the end of the frame (%d bytes left)", e.Got, e.Want)
+			return fmt.Sprintf("bad COBS: code byte 0x%02X at offset %d runs past the end of the frame", e.Want, e.Got)
 		}
 		return fmt.Sprintf("bad COBS: zero byte inside the encoded frame at offset %d", e.Got)
 	case KindTooLong:

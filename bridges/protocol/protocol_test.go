@@ -168,7 +168,7 @@ func TestCOBSErrors(t *testing.T) {
 	}{
 		{"zero code byte", []byte{0x00, 0x11}, "zero byte inside the encoded frame at offset 0"},
 		{"zero data byte", []byte{0x03, 0x11, 0x00}, "zero byte inside the encoded frame at offset 2"},
-		{"code past end", []byte{0x05, 0x11, 0x22}, "code byte at offset 0 runs past the end"},
+		{"code past end", []byte{0x05, 0x11, 0x22}, "code byte 0x05 at offset 0 runs past the end"},
 	}
 	for _, tc := range tests {
 		dst := make([]byte, 16)
