@@ -97,3 +97,31 @@ func TestSimplestWalkerFixedPoints(t *testing.T) {
 		})
 	}
 }
+
+func TestSimplestWalkerStabilityAlongSlope(t *testing.T) {
+	// Garcia et al. (1998): the stable period-one gait exists at small
+	// slopes and loses stability near γ ≈ 0.015 by period doubling (an
+	// eigenvalue leaves the unit circle through −1). Checked loosely:
+	// stable at 0.010 and 0.014, unstable at 0.016. Continuation in γ from
+	// the published fixed point at 0.009.
+	th, thd := 0.20031090049483, -0.19983247291764
+	want := map[float64]bool{0.010: true, 0.014: true, 0.016: false}
+	for _, gamma := range []float64{0.010, 0.011, 0.012, 0.013, 0.014, 0.015, 0.016} {
+		m := simplestWalker(t, gamma)
+		g, err := FindGait(m, nil, garciaState(t, m, gamma, th, thd), GaitOptions{})
+		if err != nil {
+			t.Fatalf("γ = %g: %v", gamma, err)
+		}
+		if !g.Found {
+			t.Fatalf("γ = %g: not converged (residual %g)", gamma, g.Residual)
+		}
+		th, thd = g.Reduced[0]+gamma, g.Reduced[2]
+		t.Logf("γ = %.3f: θ* = %.6f, θ̇* = %.6f, |λ|max = %.4f, λ = %.4f", gamma, th, thd, cmplx.Abs(g.Eigenvalues[0]), g.Eigenvalues[0])
+		if w, ok := want[gamma]; ok && g.Stable != w {
+			t.Errorf("γ = %g: stable = %v, want %v (eigenvalues %v)", gamma, g.Stable, w, g.Eigenvalues)
+		}
+		if gamma == 0.016 && !(real(g.Eigenvalues[0]) < -1 && math.Abs(imag(g.Eigenvalues[0])) < 1e-9) {
+			t.Errorf("γ = 0.016: expected a real eigenvalue below −1 (period doubling), have %v", g.Eigenvalues[0])
+		}
+	}
+}
