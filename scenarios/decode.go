@@ -27,7 +27,12 @@ type decoder struct {
 	present  map[string]pos  // field path → position of its key or entry
 	bad      map[string]bool // paths whose value could not be decoded
 	anchors  map[string]ast.Node
+	depth    int // nesting depth of value, bounded against alias cycles
 }
+
+// maxDepth bounds nesting; a scenario is at most five levels deep, so only
+// an alias that refers to itself gets near it.
+const maxDepth = 32
 
 func newDecoder(file string) *decoder {
 	return &decoder{file: file, present: map[string]pos{}, bad: map[string]bool{}, anchors: map[string]ast.Node{}}
@@ -156,6 +161,13 @@ func pairs(n ast.Node) ([]*ast.MappingValueNode, bool) {
 }
 
 func (d *decoder) value(n ast.Node, v reflect.Value, path string) {
+	d.depth++
+	defer func() { d.depth-- }()
+	if d.depth > maxDepth {
+		d.add(nodePos(n), path, "nested too deeply (an alias that refers to itself?)")
+		d.bad[path] = true
+		return
+	}
 	n = d.unwrap(n)
 	if _, ok := n.(*ast.AliasNode); ok {
 		d.add(nodePos(n), path, "alias %s refers to no anchor defined before it", n.GetToken().Value)

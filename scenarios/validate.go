@@ -148,7 +148,7 @@ func (c *checker) plant() {
 		}
 		total += t.MassKG
 	}
-	if total <= 0 && c.has("plant.hip_mass_kg") {
+	if total <= 0 && c.has("plant.hip_mass_kg") && p.HipMassKG >= 0 && p.Legs.Leg.MassKG >= 0 {
 		c.errf("plant.hip_mass_kg", "the walker has no mass at all; give the hip, legs or torso a mass")
 	}
 }
@@ -288,24 +288,25 @@ func (c *checker) controller() {
 		return
 	}
 	c.oneOf("controller.link", k.Link, LinkBuiltin, LinkSerial, LinkMQTT, LinkNone)
-	builtin := []string{"mode", "settings"}
-	serial := []string{"port", "baud"}
-	mqtt := []string{"broker", "rig", "username_env", "password_env"}
+	owner := map[string]string{"mode": LinkBuiltin, "settings": LinkBuiltin, "port": LinkSerial, "baud": LinkSerial,
+		"broker": LinkMQTT, "rig": LinkMQTT, "username_env": LinkMQTT, "password_env": LinkMQTT}
+	for _, f := range []string{"mode", "settings", "port", "baud", "broker", "rig", "username_env", "password_env"} {
+		if o := owner[f]; o != k.Link && c.has("controller."+f) && slices.Contains([]string{LinkBuiltin, LinkSerial, LinkMQTT, LinkNone}, k.Link) {
+			c.errf("controller."+f, "%s applies only to link %s; this controller has link %s", f, o, k.Link)
+		}
+	}
 	switch k.Link {
 	case LinkBuiltin:
-		c.only("controller", append(serial, mqtt...), "to link serial or mqtt")
 		c.oneOf("controller.mode", k.Mode, "walk", "passive")
 		for name, v := range k.Settings {
 			c.num("controller.settings."+name, v, finite(v), "a finite number")
 		}
 	case LinkSerial:
-		c.only("controller", append(builtin, mqtt...), "to link builtin or mqtt")
 		if c.require("controller", "port", "the serial device, for example /dev/ttyUSB0") && k.Port == "" {
 			c.errf("controller.port", "is empty; give the serial device, for example /dev/ttyUSB0")
 		}
 		c.num("controller.baud", float64(k.Baud), k.Baud >= 300 && k.Baud <= 20_000_000, "300 ≤ X ≤ 20000000")
 	case LinkMQTT:
-		c.only("controller", append(builtin, serial...), "to link builtin or serial")
 		if k.Broker != "embedded" && !c.d.bad["controller.broker"] {
 			u, err := url.Parse(k.Broker)
 			if err != nil || u.Host == "" || !slices.Contains([]string{"tcp", "ssl", "tls", "mqtt", "mqtts", "ws", "wss"}, u.Scheme) {
@@ -326,8 +327,6 @@ func (c *checker) controller() {
 				c.errf("controller."+f, "%q is not an environment variable name; give the NAME of the variable that holds the secret (letters, digits, '_'), never the secret itself", v)
 			}
 		}
-	case LinkNone:
-		c.only("controller", append(append(builtin, serial...), mqtt...), "to a link; link none has no controller")
 	}
 }
 
@@ -339,8 +338,12 @@ func (c *checker) clock() {
 	if c.s.Controller.Link == LinkNone && k.Mode == ClockWallclock && c.has("clock.mode") {
 		c.errf("clock.mode", "wallclock needs a controller to pace against; link none runs in lockstep")
 	}
-	if k.TickHz > 0 && !c.d.bad["watchdog_ms"] && !c.d.bad["clock.tick_hz"] {
+	if k.TickHz >= 10 && k.TickHz <= 20000 && !c.d.bad["watchdog_ms"] {
 		period := 1000 / k.TickHz
+		if !c.has("watchdog_ms") && c.s.WatchdogMS < 2*period {
+			c.errf("clock.tick_hz", "at %g Hz the default watchdog_ms (%g ms) is shorter than two ticks; set watchdog_ms ≥ %g", k.TickHz, c.s.WatchdogMS, 2*period)
+			return
+		}
 		c.num("watchdog_ms", c.s.WatchdogMS, c.s.WatchdogMS >= 2*period && c.s.WatchdogMS <= 60000,
 			fmt.Sprintf("2 ticks (%g ms at %g Hz) ≤ X ≤ 60000", 2*period, k.TickHz))
 	}

@@ -1,0 +1,307 @@
+package scenarios
+
+import (
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestBrokenFiles loads every file under testdata/broken and checks the
+// messages: each names the file, the line and the field, and says what is
+// allowed. Every broken file must appear in the table, so a new file without
+// an expectation fails.
+func TestBrokenFiles(t *testing.T) {
+	tests := []struct {
+		file string
+		want []string // substrings of the error, in order of appearance
+	}{
+		{"foot-radius-too-large.yaml", []string{"foot-radius-too-large.yaml:9: plant.legs.foot_radius_m: 1.2 m is larger than the leg length 0.9 m; allowed 0 ≤ foot_radius_m ≤ length_m"}},
+		{"unknown-field.yaml", []string{"unknown-field.yaml:8: plant.legs.colour: unknown field \"colour\"; allowed here: length_m"}},
+		{"unit-missing-in-name.yaml", []string{"unit-missing-in-name.yaml:9: plant.legs.foot_radius: unknown field", "did you mean foot_radius_m? units are part of field names"}},
+		{"unit-in-value.yaml", []string{"unit-in-value.yaml:6: plant.legs.mass_kg: \"4 kg\" has a unit written in the value; write a plain number in kg"}},
+		{"word-for-number.yaml", []string{"word-for-number.yaml:12: terrain.segments[0].length_m: expected a number in m, got the text \"twenty\""}},
+		{"missing-hip-mass.yaml", []string{"missing-hip-mass.yaml:2: plant.hip_mass_kg: missing required field hip_mass_kg in plant"}},
+		{"missing-run.yaml", []string{"missing-run.yaml:1: run: missing required field run"}},
+		{"literal-password.yaml", []string{"literal-password.yaml:18: controller.password: secrets never go in a scenario file", "password_env"}},
+		{"password-in-url.yaml", []string{"password-in-url.yaml:18: controller.broker: the URL holds credentials"}},
+		{"bad-link.yaml", []string{"bad-link.yaml:17: controller.link: \"carrier-pigeon\" is not allowed; allowed: builtin, serial, mqtt, none"}},
+		{"serial-without-port.yaml", []string{"serial-without-port.yaml:16: controller.port: missing required field port"}},
+		{"port-on-builtin.yaml", []string{"port-on-builtin.yaml:18: controller.port: port applies only to link serial"}},
+		{"kinetic-above-static.yaml", []string{"kinetic-above-static.yaml:14: terrain.segments[0].mu_kinetic: 0.7 is outside", "allowed 0 ≤ mu_kinetic ≤ mu_static"}},
+		{"fractional-steps.yaml", []string{"fractional-steps.yaml:19: run.max_steps: expected a whole number, got 10.5"}},
+		{"one-leg-angle.yaml", []string{"one-leg-angle.yaml:15: initial.leg_angles_rad: expected 2 numbers [left, right], got 1"}},
+		{"natural-gait-and-angles.yaml", []string{"natural-gait-and-angles.yaml:16: initial.leg_angles_rad: leg_angles_rad applies only to an explicit initial state"}},
+		{"torso-angle-without-torso.yaml", []string{"torso-angle-without-torso.yaml:16: initial.torso_angle_rad: torso_angle_rad applies only to a walker with a torso"}},
+		{"bad-faults.yaml", []string{
+			"bad-faults.yaml:22: faults[0].rate: 1.5 is out of range; allowed 0 < rate ≤ 1",
+			"bad-faults.yaml:23: faults[0].fixed_ms: does not apply to a drop fault; allowed for drop: from_s, until_s, rate",
+			"bad-faults.yaml:24: faults[1]: a push needs impulse_ns [x, y] or force_n [x, y] with duration_s"}},
+		{"bad-alarms.yaml", []string{
+			"bad-alarms.yaml:21: alarms.friction_limit: \"ignore\" is not allowed; allowed: warn, trip",
+			"bad-alarms.yaml:22: alarms.slipping: unknown alarm kind \"slipping\"; known kinds: friction_limit"}},
+		{"bad-clock.yaml", []string{
+			"bad-clock.yaml:21: clock.mode: \"realtime\" is not allowed; allowed: lockstep, wallclock",
+			"bad-clock.yaml:22: clock.tick_hz: 5 is out of range; allowed 10 ≤ tick_hz ≤ 20000"}},
+		{"bad-criteria.yaml", []string{
+			"bad-criteria.yaml:22: pass.max_speed_mps: 0.5 m/s is below min_speed_mps 1 m/s",
+			"bad-criteria.yaml:23: pass.max_friction_utilization: 1.5 is out of range; allowed 0 < max_friction_utilization ≤ 1"}},
+		{"unknown-joint.yaml", []string{"unknown-joint.yaml:22: actuators.joint_torque_limits_nm.knee: this walker has no joint \"knee\"; its joints are hip"}},
+		{"bad-name.yaml", []string{"bad-name.yaml:1: name: \"broken case!\" is not a valid name"}},
+		{"duplicate-key.yaml", []string{"duplicate-key.yaml:6: ", "\"length_m\" already defined"}},
+		{"syntax-error.yaml", []string{"syntax-error.yaml:2: YAML syntax error"}},
+		{"empty.yaml", []string{"empty.yaml:1: the file is empty"}},
+		{"several-problems.yaml", []string{
+			"several-problems.yaml:6: plant.legs.mass_kg: -4 kg is out of range; allowed 0 ≤ mass_kg ≤ 10000",
+			"several-problems.yaml:9: plant.legs.foot_radius_m: 1.2 m is larger than the leg length 0.9 m",
+			"several-problems.yaml:20: watchdog_ms: 0.5 ms is out of range; allowed 2 ticks (2 ms at 1000 Hz) ≤ watchdog_ms ≤ 60000"}},
+		{"override-too-large.yaml", []string{"override-too-large.yaml:11: plant.legs.right.foot_radius_m: 1.5 m is larger than the leg length 0.9 m"}},
+		{"bad-sensors.yaml", []string{
+			"bad-sensors.yaml:21: sensors.angle_noise_rad: -0.01 rad is out of range",
+			"bad-sensors.yaml:22: sensors.seed: expected a number, got the text \"lots\""}},
+	}
+	seen := map[string]bool{}
+	for _, tc := range tests {
+		seen[tc.file] = true
+		t.Run(tc.file, func(t *testing.T) {
+			path := filepath.Join("testdata", "broken", tc.file)
+			s, err := Load(path)
+			if err == nil {
+				t.Fatalf("loaded %s without error: %+v", path, s.Name)
+			}
+			var se *Error
+			if !errors.As(err, &se) {
+				t.Fatalf("error is %T, want *scenarios.Error: %v", err, err)
+			}
+			msg := err.Error()
+			at := 0
+			for _, w := range tc.want {
+				i := strings.Index(msg[at:], w)
+				if i < 0 {
+					t.Fatalf("error does not contain (after position %d)\n  %q\ngot:\n%s", at, w, msg)
+				}
+				at += i + len(w)
+			}
+			for _, p := range se.Problems {
+				if p.Line <= 0 || p.File != path {
+					t.Errorf("problem without file and line: %+v", p)
+				}
+			}
+		})
+	}
+	files, err := filepath.Glob(filepath.Join("testdata", "broken", "*.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range files {
+		if !seen[filepath.Base(f)] {
+			t.Errorf("%s has no expected message in the table", f)
+		}
+	}
+}
+
+func TestSeveralProblemsAtOnce(t *testing.T) {
+	_, err := Load(filepath.Join("testdata", "broken", "several-problems.yaml"))
+	var se *Error
+	if !errors.As(err, &se) {
+		t.Fatalf("want *Error, got %v", err)
+	}
+	if len(se.Problems) != 3 {
+		t.Fatalf("want 3 problems reported together, got %d:\n%v", len(se.Problems), err)
+	}
+}
+
+func TestDefaultsFilledIn(t *testing.T) {
+	s, err := Load(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	muS := 0.8 // runtime product, as the loader computes it
+	checks := []struct {
+		name      string
+		got, want any
+	}{
+		{"gravity", s.Plant.GravityMPS2, 9.81},
+		{"terrain start", s.Terrain.StartM, [2]float64{-1, 0}},
+		{"mu_kinetic", s.Terrain.Segments[0].MuKinetic, MuKineticRatio * muS},
+		{"stance", s.Initial.Stance, "left"},
+		{"mode", s.Controller.Mode, "walk"},
+		{"baud left empty for builtin", s.Controller.Baud, 0},
+		{"clock", s.Clock.Mode, ClockLockstep},
+		{"tick_hz", s.Clock.TickHz, 1000.0},
+		{"substeps", s.Clock.Substeps, 4},
+		{"watchdog", s.WatchdogMS, 50.0},
+		{"on_slip", s.Physics.OnSlip, PolicyContinue},
+		{"fall torso", s.Physics.FallTorsoAngleRad, 1.2},
+		{"encoder", s.Sensors.EncoderCountsPerRev, 4096},
+		{"contact threshold", s.Sensors.ContactThresholdN, 5.0},
+		{"seed", s.Sensors.Seed, int64(1)},
+		{"torque limit", s.Actuators.TorqueLimitNM, 50.0},
+		{"no_trip", s.Pass.NoTrip != nil && *s.Pass.NoTrip, true},
+		{"alarm severities complete", len(s.Alarms), len(AlarmKinds)},
+		{"friction_limit severity", s.Alarms[AlarmFrictionLimit], SeverityTrip},
+		{"joints", strings.Join(s.JointNames(), ","), "hip"},
+	}
+	for _, c := range checks {
+		if c.got != c.want {
+			t.Errorf("%s: got %v, want %v", c.name, c.got, c.want)
+		}
+	}
+}
+
+func TestLinkDefaults(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	tests := []struct {
+		link  string
+		check func(s *Scenario) string
+	}{
+		{"link: serial\n  port: /dev/ttyUSB0", func(s *Scenario) string {
+			if s.Controller.Baud != 115200 || s.Controller.Mode != "" {
+				return "serial: want baud 115200 and no mode"
+			}
+			return ""
+		}},
+		{"link: mqtt\n  username_env: RIG_USER\n  password_env: RIG_PASS", func(s *Scenario) string {
+			if s.Controller.Broker != "embedded" || s.Controller.Rig != "bench" || s.Controller.PasswordEnv != "RIG_PASS" {
+				return "mqtt: want broker embedded, rig bench, password_env RIG_PASS"
+			}
+			return ""
+		}},
+		{"link: none", func(s *Scenario) string {
+			if s.Controller.Mode != "" {
+				return "none: want no mode"
+			}
+			return ""
+		}},
+	}
+	for _, tc := range tests {
+		text := strings.Replace(string(base), "link: builtin", tc.link, 1)
+		s, err := Parse("link.yaml", []byte(text))
+		if err != nil {
+			t.Errorf("%s: %v", tc.link, err)
+			continue
+		}
+		if msg := tc.check(s); msg != "" {
+			t.Error(msg)
+		}
+	}
+}
+
+func TestLibraryLoadsAndValidates(t *testing.T) {
+	want := []string{"latency-stress", "level-demo", "low-friction-patch", "passive-downhill", "push-recovery", "slope-change"}
+	lib := Library()
+	if len(lib) < len(want) {
+		t.Fatalf("library has %d entries, want at least %d", len(lib), len(want))
+	}
+	names := map[string]bool{}
+	for _, e := range lib {
+		names[e.Name] = true
+		s, err := LoadBuiltin(e.Name)
+		if err != nil {
+			t.Errorf("%s: %v", e.Name, err)
+			continue
+		}
+		if s.Name != e.Name {
+			t.Errorf("%s: the name field says %q; keep file name and name field equal", e.File, s.Name)
+		}
+		if s.Description == "" || s.Description != e.Description {
+			t.Errorf("%s: description missing or not listed", e.Name)
+		}
+		if s.File != BuiltinPrefix+e.Name || Hash(s.Text) == "" {
+			t.Errorf("%s: file %q", e.Name, s.File)
+		}
+		if _, err := s.PlantParams(); err != nil {
+			t.Errorf("%s: plant rejects the parameters: %v", e.Name, err)
+		}
+	}
+	for _, n := range want {
+		if !names[n] {
+			t.Errorf("built-in scenario %s is missing", n)
+		}
+	}
+	demo, err := LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	l := demo.Leg(0)
+	if demo.Plant.Torso == nil || l.LengthM < 0.8 || l.LengthM > 1.0 || l.FootRadiusM/l.LengthM < 0.25 || l.FootRadiusM/l.LengthM > 0.35 {
+		t.Errorf("level-demo: want a torso walker with leg ≈ 0.9 m and foot radius ≈ 0.3 × leg, got %+v torso %v", l, demo.Plant.Torso)
+	}
+	if demo.Controller.Link != LinkBuiltin || demo.Clock.Mode != ClockLockstep {
+		t.Errorf("level-demo: want builtin link in lockstep")
+	}
+	if _, err := LoadBuiltin("no-such"); err == nil || !strings.Contains(err.Error(), "level-demo") {
+		t.Errorf("unknown built-in: want an error listing the library, got %v", err)
+	}
+	if _, err := LoadBuiltin("../scenario"); err == nil {
+		t.Error("a path is not a built-in name")
+	}
+}
+
+func TestPlantParamsOverrides(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(base), "    foot_radius_m: 0.27\n",
+		"    foot_radius_m: 0.27\n    left:\n      mass_kg: 5\n    right:\n      foot_radius_m: 0.2\n", 1)
+	text += "  duration_s: 12\n"
+	s, err := Parse("override.yaml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := s.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p.Legs[0].Mass != 5 || p.Legs[0].FootRadius != 0.27 || p.Legs[1].Mass != 4 || p.Legs[1].FootRadius != 0.2 {
+		t.Errorf("overrides not applied: %+v", p.Legs)
+	}
+	if p.HipMass != 8 || p.Gravity != 9.81 || len(p.Terrain.Segments) != 1 || p.Terrain.Segments[0].MuKinetic != MuKineticRatio*p.Terrain.Segments[0].MuStatic || p.Torso != nil {
+		t.Errorf("params: %+v", p)
+	}
+	if s.Run.DurationS != 12 || s.Run.MaxSteps != 10 {
+		t.Errorf("run: %+v", s.Run)
+	}
+}
+
+func TestHash(t *testing.T) {
+	// SHA-256 of the empty string and of "abc": FIPS 180-2 test vectors.
+	if got := Hash(nil); got != "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855" {
+		t.Errorf("Hash(empty) = %s", got)
+	}
+	if got := Hash([]byte("abc")); got != "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad" {
+		t.Errorf("Hash(abc) = %s", got)
+	}
+}
+
+// FuzzParse feeds arbitrary text to the loader: it must never panic, and a
+// rejected file must come with located problems.
+func FuzzParse(f *testing.F) {
+	files, _ := filepath.Glob(filepath.Join("testdata", "broken", "*.yaml"))
+	files = append(files, filepath.Join("testdata", "valid-minimal.yaml"))
+	for _, fn := range files {
+		if b, err := os.ReadFile(fn); err == nil {
+			f.Add(b)
+		}
+	}
+	f.Add([]byte("a: &x [1, *x]\n"))
+	f.Add([]byte("plant: !!str 5\n"))
+	f.Fuzz(func(t *testing.T, text []byte) {
+		s, err := Parse("fuzz.yaml", text)
+		if err == nil {
+			if s == nil {
+				t.Fatal("nil scenario without error")
+			}
+			return
+		}
+		var se *Error
+		if !errors.As(err, &se) || len(se.Problems) == 0 {
+			t.Fatalf("error without problems: %v", err)
+		}
+	})
+}
