@@ -27,6 +27,7 @@ import (
 	"golang.org/x/term"
 
 	"gaitrig/bridges/protocol"
+	"gaitrig/firmware/reference"
 )
 
 // cSourceDir is the example firmware, relative to this package.
@@ -82,7 +83,7 @@ func buildC(t *testing.T) cBinaries {
 		}
 	}
 	build(b.firmware, "main_posix.c", "protocol.c", "controller.c")
-	build(b.selftest, "selftest.c", "protocol.c")
+	build(b.selftest, "selftest.c", "protocol.c", "controller.c")
 	return b
 }
 
@@ -573,6 +574,118 @@ func TestCDecodesDocExamples(t *testing.T) {
 		}
 	}
 	t.Logf("%d example frames of docs/protocol.md decoded by C (%d byte-stream forms checked)", len(frames), len(wire))
+}
+
+// TestCLawMatchesGo runs the C port of the control law and the Go law
+// (firmware/reference.Law) on the same seeded readings and requires the
+// same stance leg and bit-identical torques, for the torso walker and the
+// compass walker, with the rig's torque limit above and below the law's
+// own. Readings are float32 values, as they arrive in a state frame, and
+// include saturating, tied and all-switches-open cases. A reading with a
+// NaN or infinite value is where the two deliberately part: the C firmware
+// answers zero torques with the fault and safe-mode bits.
+func TestCLawMatchesGo(t *testing.T) {
+	b := buildC(t)
+	rng := rand.New(rand.NewPCG(7, 11))
+	type reading struct {
+		joints, contacts int
+		limit            float32
+		v                [6]float32 // a0 a1 r0 r1 pitch pitch_rate
+	}
+	var rs []reading
+	limits := []float32{60, 50, 40, 0, float32(math.NaN())}
+	for i := range 3000 {
+		r := reading{joints: 1 + i%2, contacts: rng.IntN(4), limit: limits[rng.IntN(len(limits))]}
+		scale := []float64{0.05, 0.5, 3}[rng.IntN(3)]
+		for k := range r.v {
+			r.v[k] = float32(rng.NormFloat64() * scale * (1 + float64(k/2)))
+		}
+		if rng.IntN(10) == 0 {
+			r.v[1] = r.v[0] // both feet down with equal leg angles: the tie rule
+			r.v[3] = r.v[2]
+		}
+		rs = append(rs, r)
+	}
+	nonFinite := []float32{float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1))}
+	for k := range 6 {
+		r := reading{joints: 2, contacts: 1, limit: 60}
+		r.v[k] = nonFinite[k%3]
+		rs = append(rs, r)
+	}
+	var file strings.Builder
+	for _, r := range rs {
+		fmt.Fprintf(&file, "%d %d %08x", r.joints, r.contacts, math.Float32bits(r.limit))
+		for _, v := range r.v {
+			fmt.Fprintf(&file, " %08x", math.Float32bits(v))
+		}
+		file.WriteByte('\n')
+	}
+	path := filepath.Join(t.TempDir(), "law.txt")
+	if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := runSelftest(t, b.selftest, "law", path)
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if len(lines) != len(rs) {
+		t.Fatalf("C law printed %d lines for %d readings:\n%s", len(lines), len(rs), out)
+	}
+	mismatches := 0
+	for i, r := range rs {
+		var n, stance int
+		var t0, t1 uint64
+		var f0, f1 uint32
+		var status uint16
+		if _, err := fmt.Sscanf(lines[i], "line %d: %d %x %x | %x %x %d", &n, &stance, &t0, &t1, &f0, &f1, &status); err != nil || n != i+1 {
+			t.Fatalf("C law line %d unreadable (%v): %q", i+1, err, lines[i])
+		}
+		// The Go reference firmware's limit rule (reference.Serve): the
+		// rig's smallest limit replaces the law's when positive and lower.
+		g := reference.DefaultGains()
+		if lim := float64(r.limit); lim > 0 && lim < g.TorqueLimit {
+			g.TorqueLimit = lim
+		}
+		in := reference.Reading{Joints: r.joints, Contacts: uint8(r.contacts),
+			Pitch: float64(r.v[4]), PitchRate: float64(r.v[5])}
+		for j := range r.joints {
+			in.Angle[j], in.Rate[j] = float64(r.v[j]), float64(r.v[2+j])
+		}
+		var tau [2]float64
+		goStance := reference.Law(&g, &in, tau[:r.joints])
+		finite := true
+		for _, v := range r.v {
+			finite = finite && !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0)
+		}
+		bad := func(format string, a ...any) {
+			mismatches++
+			if mismatches <= 10 {
+				t.Errorf("reading %d %+v: "+format, append([]any{i + 1, r}, a...)...)
+			}
+		}
+		if stance != goStance {
+			bad("stance C %d, Go %d", stance, goStance)
+		}
+		// Bit-identical, except that NaN payloads may differ (C's NAN and Go's
+		// math.NaN() are different quiet NaNs).
+		same := func(c uint64, g float64) bool {
+			return c == math.Float64bits(g) || (math.IsNaN(math.Float64frombits(c)) && math.IsNaN(g))
+		}
+		if !same(t0, tau[0]) || (r.joints == 2 && !same(t1, tau[1])) {
+			bad("law torques C (%v, %v), Go (%v, %v)", math.Float64frombits(t0), math.Float64frombits(t1), tau[0], tau[1])
+		}
+		wantF := [2]uint32{math.Float32bits(float32(tau[0])), math.Float32bits(float32(tau[1]))}
+		wantStatus := protocol.StatusOK
+		if !finite {
+			wantF = [2]uint32{0, 0}
+			wantStatus = protocol.StatusFault | protocol.StatusSafeMode
+		}
+		if f0 != wantF[0] || (r.joints == 2 && f1 != wantF[1]) || status != wantStatus {
+			bad("command C (%08x %08x status %d), want (%08x %08x status %d)", f0, f1, status, wantF[0], wantF[1], wantStatus)
+		}
+	}
+	if mismatches > 0 {
+		t.Fatalf("%d of %d readings differ between the C and Go laws", mismatches, len(rs))
+	}
+	t.Logf("%d readings: C and Go laws agree to the bit", len(rs))
 }
 
 // ---- the firmware process over a real pty --------------------------------

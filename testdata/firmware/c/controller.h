@@ -1,52 +1,78 @@
 /*
- * controller.h - the walking control law of the example firmware, a C99 port
- * of the reference controller in firmware/reference (see controller.c for
- * the law and its constants).
+ * controller.h - the walking control law of the example firmware: an exact
+ * C99 port of the reference law of gaitrig/firmware/reference (func Law and
+ * the torque-limit rule of func Serve), with the same constants.
  *
  * Pure computation: no OS calls, no malloc, no globals beyond const tables.
- * Everything the law remembers between ticks lives in struct ctl_memory,
- * which the caller owns, so the same code runs on a host and on a
- * microcontroller, and two instances never share state.
+ * The law has no memory between ticks (the same reading gives the same
+ * torques), so the caller keeps nothing but the configuration.
  */
 #ifndef GAITRIG_CONTROLLER_H
 #define GAITRIG_CONTROLLER_H
 
 #include "protocol.h"
 
-/* The law drives the two hip joints of a walker with a torso. */
-#define CTL_ACTUATORS 2
+/* Constants of the law, named and documented as in the Go Gains type. */
+struct ctl_gains {
+    double target_speed;    /* m/s, the forward speed the law regulates */
+    double leg_length;      /* m, turns the stance leg rate into a speed */
+    double step_angle;      /* rad, swing-leg target at the target speed */
+    double step_speed_gain; /* rad per m/s, longer steps when fast */
+    double step_min;        /* rad, bounds of the swing-leg target */
+    double step_max;
+    double swing_kp;        /* N·m/rad, swing hip PD on the absolute leg angle */
+    double swing_kd;        /* N·m·s/rad */
+    double lean;            /* rad, torso pitch held at the target speed */
+    double lean_speed_gain; /* rad per m/s, leans further forward when slow */
+    double lean_min;        /* rad, bounds of the pitch target */
+    double lean_max;
+    double torso_kp;        /* N·m/rad, stance hip PD on the torso pitch */
+    double torso_kd;        /* N·m·s/rad */
+    double torque_limit;    /* N·m, the firmware's own clip on every torque */
+};
 
-/* What the law takes from the rig's configuration. */
+/* The tuned constants for the demo walker (Go: reference.DefaultGains). */
+extern const struct ctl_gains ctl_default_gains;
+
+/* One sensor reading in the units of the wire protocol (Go: Reading).
+ * joints 2: angle[0] hip_left, angle[1] hip_right, pitch of the torso.
+ * joints 1: angle[0] hip (right leg minus left leg), pitch of the left leg. */
+struct ctl_reading {
+    int joints;
+    double angle[2];
+    double rate[2];
+    double pitch;
+    double pitch_rate;
+    uint8_t contacts; /* bit 0 left foot switch, bit 1 right */
+};
+
+/* ctl_law is the law itself (Go: Law): it writes reading->joints torques to
+ * tau, in N·m, and returns the stance leg it chose (0 left, 1 right). For a
+ * joint count other than 1 or 2 it writes zeros to tau[0] and tau[1]. */
+int ctl_law(const struct ctl_gains *g, const struct ctl_reading *r, double tau[2]);
+
+/* What the firmware keeps from the rig's configuration. */
 struct ctl_config {
-    float dt;                     /* s per tick, 1 / tick_hz */
-    uint8_t joints;               /* joints in state and command */
-    uint8_t slot_left;            /* slot of hip_left in state and command */
-    uint8_t slot_right;           /* slot of hip_right */
-    float limit[PROTO_MAX_JOINTS]; /* N·m, the rig's torque limit per slot */
+    struct ctl_gains gains; /* torque_limit lowered to the rig's limit */
+    uint8_t joints;         /* 1 (compass walker) or 2 (torso walker) */
+    uint8_t slot[2];        /* wire slot of law joint 0 and 1 */
 };
 
-/* Everything the law remembers between ticks. */
-struct ctl_memory {
-    int stance;            /* 0 left, 1 right: the leg that carries the walker */
-    uint8_t last_contacts; /* contact bits of the previous tick */
-    float time_in_step;    /* s since the last heel strike */
-    float hold_off;        /* s left before a new heel strike is accepted */
-    unsigned long steps;   /* heel strikes seen */
-    int started;           /* 0 until the first state */
-};
+/* ctl_configure checks the rig's configuration against the actuator count
+ * the firmware announced and finds the joints by name: "hip_left" and
+ * "hip_right" for 2 actuators, "hip" for 1, in any slot order. It returns
+ * NULL on success, or a short reason (at most 32 bytes, so it fits a stop
+ * frame) why this firmware cannot drive the rig. As in the Go reference
+ * firmware, the smallest configured torque limit replaces the law's own
+ * limit when it is positive and lower. */
+const char *ctl_configure(struct ctl_config *cfg, const struct proto_config *rig, int actuators);
 
-/* ctl_configure reads the joint order and limits from the rig's config. It
- * returns NULL on success, or a short reason (at most 32 bytes, to fit a
- * stop frame) why the law cannot drive this rig. */
-const char *ctl_configure(struct ctl_config *cfg, const struct proto_config *rig);
-
-/* ctl_reset puts the memory into its start-of-run state. */
-void ctl_reset(const struct ctl_config *cfg, struct ctl_memory *mem);
-
-/* ctl_step computes the command for one state. It never produces NaN or
- * infinite torques and clamps to the configured limits. */
-void ctl_step(const struct ctl_config *cfg, struct ctl_memory *mem, const struct proto_state *s,
-              struct proto_command *out);
+/* ctl_step computes the command for one state: ctl_law on the state's
+ * values, torques rounded to float32 in the rig's slot order. A state with
+ * a NaN or infinite value gets zero torques and the fault and safe-mode
+ * status bits instead (the Go law would pass the NaN on; a board should not
+ * send what the rig is bound to reject). */
+void ctl_step(const struct ctl_config *cfg, const struct proto_state *s, struct proto_command *out);
 
 /* ctl_safe fills out with the firmware's own safe state: zero torque on
  * every joint. */

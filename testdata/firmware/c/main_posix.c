@@ -7,7 +7,11 @@
  * protocol (protocol.c) and the control law (controller.c) do no I/O, so a
  * port to a microcontroller replaces only this file (see README.md).
  *
- * Usage: gaitrig-cfw [-v] TTY
+ * Usage: gaitrig-cfw [-v] [-j 1|2] TTY
+ *
+ *   -v     also log the configuration (refused frames are always logged)
+ *   -j N   actuators to announce: 2 (default, a walker with a torso and
+ *          joints hip_left, hip_right) or 1 (a compass walker, joint hip)
  *
  * It follows the session of docs/protocol.md section 6: a zero byte when the
  * line opens, a greeting repeated every 500 ms until a config arrives, one
@@ -68,6 +72,7 @@ struct counters {
 struct link {
     int fd;
     int verbose;
+    int actuators; /* announced in the greeting: 2 torso walker, 1 compass */
     struct counters n;
     uint8_t rx[RX_LIMIT];
     size_t rx_len;
@@ -206,7 +211,7 @@ static int send_greeting(struct link *l)
     m.type = PROTO_GREETING;
     m.seq = 0; /* section 6: a greeting has seq 0 */
     m.u.greeting.version = PROTO_VERSION;
-    m.u.greeting.actuators = (uint8_t)CTL_ACTUATORS;
+    m.u.greeting.actuators = (uint8_t)l->actuators;
     strcpy(m.u.greeting.name, FIRMWARE_NAME);
     strcpy(m.u.greeting.build, FIRMWARE_BUILD);
     l->n.greetings++;
@@ -251,17 +256,16 @@ enum outcome { KEEP_GOING, STOPPED_NORMAL, STOPPED_OTHER, LINK_FAILED };
 struct session {
     int configured;
     struct ctl_config cfg;
-    struct ctl_memory mem;
     /* The last command sent, so a state that arrives again with the same seq
-     * (the rig resends a state it thinks was lost) gets the same answer and
-     * the law does not advance twice for one tick. */
+     * (a lockstep rig resends a state it thinks was lost) gets the same
+     * answer without running the law again. */
     int have_last;
     struct proto_message last;
 };
 
 static enum outcome on_config(struct link *l, struct session *s, const struct proto_config *c)
 {
-    const char *why = ctl_configure(&s->cfg, c);
+    const char *why = ctl_configure(&s->cfg, c, l->actuators);
     if (why != NULL) {
         /* We cannot drive this rig: say so and leave rather than send
          * torques to joints we do not understand. */
@@ -269,7 +273,6 @@ static enum outcome on_config(struct link *l, struct session *s, const struct pr
         send_stop(l, PROTO_STOP_FIRMWARE, why);
         return STOPPED_OTHER;
     }
-    ctl_reset(&s->cfg, &s->mem);
     s->configured = 1;
     s->have_last = 0;
     if (l->verbose) {
@@ -308,7 +311,7 @@ static enum outcome on_state(struct link *l, struct session *s, const struct pro
         fprintf(stderr, "cfw: state seq %lu has %u joints, config said %u\n",
                 (unsigned long)m->seq, (unsigned)m->u.state.joints, (unsigned)s->cfg.joints);
     } else {
-        ctl_step(&s->cfg, &s->mem, &m->u.state, &s->last.u.command);
+        ctl_step(&s->cfg, &m->u.state, &s->last.u.command);
     }
     s->have_last = 1;
     if (send_message(l, &s->last) != 0) {
@@ -498,25 +501,40 @@ static int run(struct link *l)
     }
 }
 
+static int usage(const char *prog)
+{
+    fprintf(stderr, "usage: %s [-v] [-j 1|2] TTY\n", prog);
+    return 2;
+}
+
 int main(int argc, char **argv)
 {
     static struct link l; /* static: the receive buffer is too big for some stacks */
     const char *path = NULL;
     int i, rc;
 
+    l.actuators = 2;
     for (i = 1; i < argc; i++) {
         if (strcmp(argv[i], "-v") == 0) {
             l.verbose = 1;
+        } else if (strcmp(argv[i], "-j") == 0 && i + 1 < argc) {
+            i++;
+            if (strcmp(argv[i], "1") == 0) {
+                l.actuators = 1;
+            } else if (strcmp(argv[i], "2") == 0) {
+                l.actuators = 2;
+            } else {
+                fprintf(stderr, "cfw: -j %s: this firmware drives 1 or 2 joints\n", argv[i]);
+                return usage(argv[0]);
+            }
         } else if (argv[i][0] == '-' || path != NULL) {
-            fprintf(stderr, "usage: %s [-v] TTY\n", argv[0]);
-            return 2;
+            return usage(argv[0]);
         } else {
             path = argv[i];
         }
     }
     if (path == NULL) {
-        fprintf(stderr, "usage: %s [-v] TTY\n", argv[0]);
-        return 2;
+        return usage(argv[0]);
     }
     l.fd = open(path, O_RDWR | O_NOCTTY);
     if (l.fd < 0) {

@@ -13,6 +13,15 @@
  *                            re-encoded and must give the same bytes back
  *   selftest cobs FILE       lines "RAW-HEX | ENCODED-HEX": encode RAW and
  *                            decode ENCODED and compare both ways
+ *   selftest law FILE        lines "JOINTS CONTACTS LIMIT A0 A1 R0 R1 P PR",
+ *                            JOINTS and CONTACTS decimal, the rest float32
+ *                            bit patterns in hex (LIMIT is the rig's torque
+ *                            limit, A/R joint angles and rates, P/PR the IMU
+ *                            pitch and rate); prints "line N: STANCE T0 T1 |
+ *                            F0 F1 STATUS": the stance leg and the law's
+ *                            double torques as 16-hex-digit bit patterns,
+ *                            then the float32 torques (8 hex digits) and
+ *                            status of the command ctl_step builds
  *
  * Exit status 0 when every check passed, 1 otherwise; each failure prints a
  * line starting with "FAIL".
@@ -23,6 +32,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "controller.h"
 #include "protocol.h"
 
 static int failures;
@@ -615,6 +625,112 @@ static int run_cobs_file(const char *path)
     return failures ? 1 : 0;
 }
 
+/* ---- the control law ----------------------------------------------------- */
+
+static uint64_t double_bits(double v)
+{
+    uint64_t b;
+    memcpy(&b, &v, sizeof b);
+    return b;
+}
+
+static uint32_t float_bits(float v)
+{
+    uint32_t b;
+    memcpy(&b, &v, sizeof b);
+    return b;
+}
+
+static float float_of_bits(unsigned long u)
+{
+    uint32_t b = (uint32_t)u;
+    float v;
+    memcpy(&v, &b, sizeof v);
+    return v;
+}
+
+static int run_law_file(const char *path)
+{
+    FILE *in = fopen(path, "r");
+    char line[512];
+    int lineno = 0;
+    if (in == NULL) {
+        printf("FAIL cannot open %s\n", path);
+        return 1;
+    }
+    while (fgets(line, sizeof line, in) != NULL) {
+        unsigned joints, contacts;
+        unsigned long v[7], lim;
+        struct proto_config rig;
+        struct proto_state st;
+        struct proto_command cmd;
+        struct ctl_config cfg;
+        struct ctl_reading r;
+        double tau[2] = {0, 0};
+        const char *why;
+        int stance, i;
+
+        lineno++;
+        if (line[0] == '#' || line[0] == '\n') {
+            continue;
+        }
+        if (sscanf(line, "%u %u %lx %lx %lx %lx %lx %lx %lx", &joints, &contacts, &lim, &v[0],
+                   &v[1], &v[2], &v[3], &v[4], &v[5]) != 9 ||
+            joints < 1 || joints > 2) {
+            printf("FAIL %s:%d: want JOINTS CONTACTS LIMIT A0 A1 R0 R1 P PR\n", path, lineno);
+            failures++;
+            continue;
+        }
+        memset(&rig, 0, sizeof rig);
+        rig.tick_hz = 1000;
+        rig.lockstep = 1;
+        rig.joints = (uint8_t)joints;
+        if (joints == 2) {
+            strcpy(rig.joint_names[0], "hip_left");
+            strcpy(rig.joint_names[1], "hip_right");
+        } else {
+            strcpy(rig.joint_names[0], "hip");
+        }
+        for (i = 0; i < (int)joints; i++) {
+            rig.torque_limit[i] = float_of_bits(lim);
+        }
+        why = ctl_configure(&cfg, &rig, (int)joints);
+        if (why != NULL) {
+            printf("FAIL %s:%d: configuration refused: %s\n", path, lineno, why);
+            failures++;
+            continue;
+        }
+        memset(&st, 0, sizeof st);
+        st.joints = (uint8_t)joints;
+        st.contacts = (uint8_t)contacts;
+        st.angle[0] = float_of_bits(v[0]);
+        st.angle[1] = joints == 2 ? float_of_bits(v[1]) : 0.0f;
+        st.rate[0] = float_of_bits(v[2]);
+        st.rate[1] = joints == 2 ? float_of_bits(v[3]) : 0.0f;
+        st.imu_pitch = float_of_bits(v[4]);
+        st.imu_rate = float_of_bits(v[5]);
+
+        /* The law on the same doubles the Go runner builds from a state. */
+        memset(&r, 0, sizeof r);
+        r.joints = (int)joints;
+        r.contacts = st.contacts;
+        r.pitch = (double)st.imu_pitch;
+        r.pitch_rate = (double)st.imu_rate;
+        for (i = 0; i < (int)joints; i++) {
+            r.angle[i] = (double)st.angle[i];
+            r.rate[i] = (double)st.rate[i];
+        }
+        stance = ctl_law(&cfg.gains, &r, tau);
+        ctl_step(&cfg, &st, &cmd);
+        printf("line %d: %d %016llx %016llx | %08lx %08lx %u\n", lineno, stance,
+               (unsigned long long)double_bits(tau[0]), (unsigned long long)double_bits(tau[1]),
+               (unsigned long)float_bits(cmd.torque[0]), (unsigned long)float_bits(cmd.torque[1]),
+               (unsigned)cmd.status);
+    }
+    fclose(in);
+    return failures ? 1 : 0;
+}
+
 int main(int argc, char **argv)
 {
     if (argc == 1) {
@@ -631,6 +747,9 @@ int main(int argc, char **argv)
     if (argc == 3 && strcmp(argv[1], "cobs") == 0) {
         return run_cobs_file(argv[2]);
     }
-    fprintf(stderr, "usage: %s [frames FILE | cobs FILE]\n", argv[0]);
+    if (argc == 3 && strcmp(argv[1], "law") == 0) {
+        return run_law_file(argv[2]);
+    }
+    fprintf(stderr, "usage: %s [frames FILE | cobs FILE | law FILE]\n", argv[0]);
     return 2;
 }
