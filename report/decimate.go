@@ -76,8 +76,9 @@ type run struct{ x, y []float64 }
 // decimateRuns splits (x, y) at non-finite samples into runs and thins
 // them with decimateMinMax, sharing the point budget between runs by their
 // length (at least two points each, so a short run is still drawn). It
-// returns the runs and the total number of points kept.
-func decimateRuns(x, y []float64, maxPoints int) ([]run, int) {
+// returns the runs, the number of points kept and the number of finite
+// samples there were.
+func decimateRuns(x, y []float64, maxPoints int) (runs []run, kept, finiteCount int) {
 	n := min(len(x), len(y))
 	finite := func(i int) bool {
 		return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
@@ -98,8 +99,7 @@ func decimateRuns(x, y []float64, maxPoints int) ([]run, int) {
 		total += j - i
 		i = j
 	}
-	runs := make([]run, 0, len(spans))
-	kept := 0
+	runs = make([]run, 0, len(spans))
 	for _, s := range spans {
 		budget := 2
 		if total > 0 {
@@ -109,5 +109,5 @@ func decimateRuns(x, y []float64, maxPoints int) ([]run, int) {
 		runs = append(runs, run{xs, ys})
 		kept += len(xs)
 	}
-	return runs, kept
+	return runs, kept, total
 }

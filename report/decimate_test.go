@@ -105,3 +105,73 @@ func TestPickEvenly(t *testing.T) {
 		}
 	}
 }
+
+func TestDecimateRuns(t *testing.T) {
+	nan := math.NaN()
+	tests := []struct {
+		name       string
+		y          []float64 // x is the index
+		max        int
+		wantRuns   int
+		wantFinite int
+		wantKept   int // exact when >= 0
+	}{
+		{name: "empty", y: nil, max: 10, wantRuns: 0, wantFinite: 0, wantKept: 0},
+		{name: "all NaN", y: []float64{nan, nan}, max: 10, wantRuns: 0, wantFinite: 0, wantKept: 0},
+		{name: "one run kept whole", y: []float64{1, 2, 3}, max: 10, wantRuns: 1, wantFinite: 3, wantKept: 3},
+		{name: "gap splits the line", y: []float64{1, 2, nan, nan, 3, 4, 5}, max: 10, wantRuns: 2, wantFinite: 5, wantKept: 5},
+		{name: "leading and trailing NaN", y: []float64{nan, 1, 2, nan}, max: 10, wantRuns: 1, wantFinite: 2, wantKept: 2},
+		{name: "lone sample is a run", y: []float64{1, nan, 2, nan, 3}, max: 10, wantRuns: 3, wantFinite: 3, wantKept: 3},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			x := make([]float64, len(tc.y))
+			for i := range x {
+				x[i] = float64(i)
+			}
+			runs, kept, finite := decimateRuns(x, tc.y, tc.max)
+			if len(runs) != tc.wantRuns || finite != tc.wantFinite || (tc.wantKept >= 0 && kept != tc.wantKept) {
+				t.Errorf("got %d runs, %d kept, %d finite; want %d, %d, %d", len(runs), kept, finite, tc.wantRuns, tc.wantKept, tc.wantFinite)
+			}
+			for _, r := range runs {
+				for _, v := range r.y {
+					if math.IsNaN(v) {
+						t.Errorf("NaN inside a run")
+					}
+				}
+			}
+		})
+	}
+
+	// A long line with one gap per "swing" is thinned to about the budget
+	// and keeps its spike.
+	n := 100000
+	x := make([]float64, n)
+	y := make([]float64, n)
+	for i := range x {
+		x[i] = float64(i)
+		y[i] = math.Sin(float64(i) / 300)
+		if (i/1000)%2 == 1 {
+			y[i] = nan
+		}
+	}
+	y[42420] = 99
+	runs, kept, finite := decimateRuns(x, y, 2000)
+	if len(runs) != 50 || finite != n/2 {
+		t.Fatalf("got %d runs, %d finite; want 50, %d", len(runs), finite, n/2)
+	}
+	if kept > 2000 {
+		t.Errorf("kept %d points, budget 2000", kept)
+	}
+	found := false
+	for _, r := range runs {
+		for i := range r.y {
+			if r.y[i] == 99 && r.x[i] == 42420 {
+				found = true
+			}
+		}
+	}
+	if !found {
+		t.Error("spike lost")
+	}
+}

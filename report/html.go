@@ -55,7 +55,10 @@ type view struct {
 	StepCols    []string
 	StepRows    [][]string
 	Notes       []string
-	Caution     string
+	// Warnings say what the run folder lacks (no summary, cut or
+	// unreadable telemetry); the page shows them near the top.
+	Warnings []string
+	Caution  string
 
 	t      []float64
 	joints []jointSeries
@@ -259,10 +262,11 @@ table{border-collapse:collapse;margin:.4em 0;font-size:.9em}
 th,td{border:1px solid #ccc;padding:.25em .6em;text-align:left;vertical-align:top}
 th{background:#eeeae0}
 td.num{text-align:right;font-variant-numeric:tabular-nums}
-.outcome{display:inline-block;padding:.2em .8em;border-radius:.3em;font-weight:bold;color:#fff;letter-spacing:.05em}
+.outcome{display:inline-block;padding:.2em .8em;border-radius:.3em;font-weight:bold;color:#fff;letter-spacing:.05em;background:#6b6b6b}
 .outcome-pass{background:#2e7d32}
 .outcome-fail,.outcome-tripped{background:#b31b1b}
 .outcome-aborted{background:#6b6b6b}
+.incomplete{border:2px solid #d99a00;background:#fff8e6;padding:.4em 1em;margin:1em 0;font-size:.95em}
 .caution{border:2px solid #b31b1b;background:#fff4f0;padding:.6em 1em;margin:1em 0;font-size:.95em}
 .caution strong{color:#b31b1b}
 .ok{color:#2e7d32;font-weight:bold}
@@ -281,7 +285,8 @@ code{font-size:.95em}
 <header>
 <h1>Run report: {{.Scenario}}</h1>
 <p>Outcome: <span id="outcome" class="outcome outcome-{{lower .Outcome}}">{{.Outcome}}</span></p>
-<div id="caution" class="caution"><strong>Safety caution.</strong> {{.Caution}}</div>
+{{if .Warnings}}<div id="incomplete" class="incomplete"><strong>This run folder is incomplete.</strong><ul>{{range .Warnings}}<li>{{.}}</li>{{end}}</ul></div>
+{{end}}<div id="caution" class="caution"><strong>Safety caution.</strong> {{.Caution}}</div>
 <table id="run-identity">
 <tr><th>scenario</th><td>{{.Scenario}}</td></tr>
 <tr><th>scenario hash</th><td><code>{{.Hash}}</code></td></tr>

@@ -72,18 +72,23 @@ type line struct {
 }
 
 // plotStats says how much a decimated plot drew out of what it was given;
-// the caption repeats it so a reader knows the plot is thinned.
+// the caption repeats it so a reader knows whether the plot is thinned.
 type plotStats struct {
-	recorded int // samples per line before thinning (largest line)
-	drawn    int // samples per line after thinning (largest line)
+	recorded int  // samples per line before thinning (longest line)
+	drawn    int  // points per line after thinning (most of any line)
+	thinned  bool // some line had more finite samples than its budget
 }
 
 func (s plotStats) caption() string {
-	if s.recorded == s.drawn {
-		return fmt.Sprintf("All %d samples drawn.", s.recorded)
+	switch {
+	case s.recorded == 0:
+		return "No telemetry samples to draw."
+	case !s.thinned:
+		return fmt.Sprintf("Every recorded sample drawn (%d per line).", s.recorded)
+	default:
+		return fmt.Sprintf("Thinned for drawing: at most %d of %d samples per line, keeping the least and greatest value of each short time bucket, so peaks and dips are not lost.",
+			s.drawn, s.recorded)
 	}
-	return fmt.Sprintf("Thinned for drawing: %d of %d samples per line (min/max kept in each of %d time buckets, so peaks and dips are not lost).",
-		s.drawn, s.recorded, s.drawn/2)
 }
 
 var sansFont = font.Font{Typeface: "Liberation", Variant: "Sans"}
@@ -161,9 +166,10 @@ func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int) (*plot.
 	ylo, yhi := math.Inf(1), math.Inf(-1)
 	entries := 0
 	for _, ln := range lines {
-		runs, kept := decimateRuns(ln.x, ln.y, maxPoints)
+		runs, kept, finite := decimateRuns(ln.x, ln.y, maxPoints)
 		st.recorded = max(st.recorded, min(len(ln.x), len(ln.y)))
 		st.drawn = max(st.drawn, kept)
+		st.thinned = st.thinned || kept < finite
 		if kept == 0 {
 			continue
 		}

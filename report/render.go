@@ -47,7 +47,7 @@ func Render(w io.Writer, run *record.Run) error {
 	}
 	// The run reader's own notes (truncated steps or events, missing
 	// summary) come first: they say what the whole report lacks.
-	v.Notes = append(append(append([]string{}, run.Notes...), notes...), v.Notes...)
+	v.Warnings = append(append(v.Warnings, run.Notes...), notes...)
 	return renderView(w, v, defaultMaxPoints)
 }
 

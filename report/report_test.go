@@ -177,6 +177,9 @@ func checkPlots(t *testing.T, p parsed) {
 		t.Errorf("found %d inline SVG parts, want %d", len(parts), len(plotIDs))
 	}
 	for i, s := range parts {
+		if strings.Contains(s, "NaN") || strings.Contains(s, "Inf") {
+			t.Errorf("SVG part %d has a NaN or Inf coordinate", i)
+		}
 		dec := xml.NewDecoder(strings.NewReader(s))
 		for {
 			_, err := dec.Token()
