@@ -60,6 +60,8 @@ func dedupe(ps []Problem) []Problem {
 	return out
 }
 
+//go:generate go test -run ^TestReferencePage$ -update
+
 // Load reads and parses a scenario file.
 func Load(file string) (*Scenario, error) {
 	text, err := os.ReadFile(file)

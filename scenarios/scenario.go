@@ -52,7 +52,8 @@ type Scenario struct {
 	// Faults are disturbances and link faults injected during the run.
 	Faults []Fault `yaml:"faults"`
 	// Alarms maps an alarm kind (see AlarmKinds) to its severity, warn or
-	// trip. Kinds not listed keep their default (see DefaultSeverity).
+	// trip. Kinds not listed keep their default (see DefaultSeverity);
+	// after loading, the map holds every kind.
 	Alarms map[string]Severity `yaml:"alarms"`
 	// Pass lists the criteria a run must meet to pass.
 	Pass Criteria `yaml:"pass"`
@@ -70,9 +71,10 @@ type Scenario struct {
 type Plant struct {
 	// GravityMPS2 is the gravitational acceleration, m/s². Default 9.81
 	// (standard gravity is 9.80665 m/s², CGPM 1901; 9.81 is the usual
-	// rounded value, common practice).
+	// rounded value, common practice); 0 < gravity_mps2 ≤ 100.
 	GravityMPS2 float64 `yaml:"gravity_mps2"`
-	// HipMassKG is the point mass at the hip (pelvis), kg. Required, > 0.
+	// HipMassKG is the point mass at the hip (pelvis), kg. Required;
+	// 0 ≤ hip_mass_kg ≤ 10000.
 	HipMassKG float64 `yaml:"hip_mass_kg"`
 	// Legs is the leg both legs share. Required.
 	Legs Legs `yaml:"legs"`
@@ -84,15 +86,16 @@ type Plant struct {
 // Leg holds the parameters of one leg with its rigid circular-arc foot.
 type Leg struct {
 	// LengthM is the distance from the hip to the bottom of the foot with
-	// the leg vertical, m. Required, > 0.
+	// the leg vertical, m. Required; 0 < length_m ≤ 10.
 	LengthM float64 `yaml:"length_m"`
-	// MassKG is the leg mass, kg. ≥ 0; 0 makes a massless leg.
+	// MassKG is the leg mass, kg. 0 ≤ mass_kg ≤ 10000; 0 makes a massless
+	// leg (then inertia_kgm2 must be > 0).
 	MassKG float64 `yaml:"mass_kg"`
 	// COMM is the distance of the leg's centre of mass from the hip along
 	// the leg axis, m. 0 ≤ com_m ≤ length_m.
 	COMM float64 `yaml:"com_m"`
 	// InertiaKGM2 is the leg's moment of inertia about its centre of mass,
-	// kg·m². ≥ 0.
+	// kg·m². 0 ≤ inertia_kgm2 ≤ 10000.
 	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
 	// FootRadiusM is the radius of the foot arc, m. 0 is a point foot;
 	// 0 ≤ foot_radius_m ≤ length_m. About 0.3 × leg length matches the
@@ -100,7 +103,7 @@ type Leg struct {
 	// 37:1467–1474, from memory).
 	FootRadiusM float64 `yaml:"foot_radius_m"`
 	// ArcOffsetM is the fore–aft offset of the foot-arc centre from the leg
-	// axis, m, positive forward. |arc_offset_m| ≤ foot_radius_m.
+	// axis, m, positive forward. |arc_offset_m| ≤ length_m.
 	ArcOffsetM float64 `yaml:"arc_offset_m"`
 }
 
@@ -132,13 +135,14 @@ type Legs struct {
 
 // Torso is the optional torso link, hinged at the hip and pointing up.
 type Torso struct {
-	// MassKG is the torso mass, kg. Required, > 0.
+	// MassKG is the torso mass, kg. Required; 0 ≤ mass_kg ≤ 10000.
 	MassKG float64 `yaml:"mass_kg"`
 	// COMM is the distance of the torso's centre of mass above the hip
-	// along the torso axis, m. ≥ 0.
+	// along the torso axis, m. 0 ≤ com_m ≤ 10.
 	COMM float64 `yaml:"com_m"`
 	// InertiaKGM2 is the torso's moment of inertia about its centre of
-	// mass, kg·m². ≥ 0.
+	// mass, kg·m². 0 ≤ inertia_kgm2 ≤ 10000; mass_kg·com_m² + inertia_kgm2
+	// must be > 0.
 	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
 }
 
@@ -156,13 +160,14 @@ type Terrain struct {
 
 // Segment is one straight piece of ground.
 type Segment struct {
-	// LengthM is the length of the segment along its surface, m. > 0.
-	// Required.
+	// LengthM is the length of the segment along its surface, m. Required;
+	// 0 < length_m ≤ 100000.
 	LengthM float64 `yaml:"length_m"`
 	// SlopeRad is the slope, rad, positive uphill in the walking direction.
-	// -0.5 < slope_rad < 0.5.
+	// |slope_rad| < π/2.
 	SlopeRad float64 `yaml:"slope_rad"`
-	// MuStatic is the static friction coefficient. Required, > 0.
+	// MuStatic is the static friction coefficient. Required;
+	// 0 < mu_static ≤ 10.
 	MuStatic float64 `yaml:"mu_static"`
 	// MuKinetic is the kinetic (sliding) friction coefficient. Default
 	// 0.8 × mu_static (a typical ratio, common practice);
@@ -211,9 +216,10 @@ const (
 type Controller struct {
 	// Link is builtin, serial, mqtt or none. Required.
 	Link string `yaml:"link"`
-	// Mode is the built-in controller's mode: walk (default) or passive
-	// (the controller answers every state with zero torques, so the link and
-	// watchdog are exercised on a passive walker). Only for link builtin.
+	// Mode is the built-in controller's mode: walk, or passive (the
+	// controller answers every state with zero torques, so the link and
+	// watchdog are exercised on a passive walker). Default walk. Only for
+	// link builtin.
 	Mode string `yaml:"mode"`
 	// Settings are named tuning values for the built-in controller (for
 	// example target_speed_mps); their names and meaning belong to the
@@ -289,11 +295,12 @@ type Physics struct {
 	// Default false.
 	IgnoreScuff bool `yaml:"ignore_scuff"`
 	// FallHipHeightM is the hip height above the ground below which the
-	// walker has fallen, m. Default 0 means half the shorter leg length.
+	// walker has fallen, m. 0 (the default) means half the shorter leg
+	// length; a negative value turns the check off. |fall_hip_height_m| ≤ 10.
 	FallHipHeightM float64 `yaml:"fall_hip_height_m"`
 	// FallTorsoAngleRad is the torso angle from the vertical beyond which the
 	// walker has fallen, rad. Default 1.2 rad (about 69°, our choice);
-	// 0 < fall_torso_angle_rad ≤ 3.
+	// 0 < fall_torso_angle_rad ≤ π.
 	FallTorsoAngleRad float64 `yaml:"fall_torso_angle_rad"`
 }
 
