@@ -26,8 +26,15 @@ import (
 	"github.com/creack/pty"
 	"golang.org/x/term"
 
+	"gaitrig/bridges"
+	"gaitrig/bridges/inproc"
 	"gaitrig/bridges/protocol"
+	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
+	"gaitrig/hil"
+	"gaitrig/plant"
+	"gaitrig/record"
+	"gaitrig/scenarios"
 )
 
 // cSourceDir is the example firmware, relative to this package.
@@ -1058,5 +1065,158 @@ func TestCFirmwareRefusesOtherVersion(t *testing.T) {
 	}
 	if !strings.Contains(fw.stderr.String(), "frame speaks version 2, this side speaks version 1") {
 		t.Errorf("firmware log should name both versions:\n%s", fw.stderr.String())
+	}
+}
+
+// demoRun is the walking run of the end-to-end test: the demo walker of
+// plant.DemoParams (the walker the reference gains are tuned for) starting
+// from reference.DemoStart on level ground, in lockstep at 1 kHz, until 25
+// heel strikes or 40 simulated seconds. (The level-demo scenario of the
+// library has a walker of other masses, on which the reference gains trip
+// on friction within two steps, with the Go firmware as with the C one.) The watchdog and resend times are
+// widened from their defaults: on a shared two-core machine under -race a
+// pty round trip can stall for tens of milliseconds, and this test checks
+// walking and framing, not the watchdog (which hil tests on its own).
+func demoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
+	t.Helper()
+	noTrip := true
+	cfg := hil.Config{
+		Clock:    hil.Lockstep,
+		TickHz:   1000,
+		Watchdog: 2 * time.Second,
+		Resend:   200 * time.Millisecond,
+		// The plant and sensor settings of the loop's own demo runs
+		// (hil/helpers_test.go): swing-foot scuffing ignored as in the
+		// simplest walking model, a 4096-count encoder, foot switches
+		// closing above 5 N, 60 N·m actuators.
+		Physics:   plant.Options{IgnoreScuff: true},
+		Sensors:   hil.SensorModel{CountsPerRev: 4096, ContactThreshold: 5},
+		Actuators: hil.ActuatorModel{TorqueLimit: 60},
+		Duration:  40,
+		MaxSteps:  25,
+		Criteria:  scenarios.Criteria{MinSteps: 20, NoTrip: &noTrip},
+		Seed:      1,
+	}
+	model, err := plant.New(plant.DemoParams(), cfg.Physics)
+	if err != nil {
+		t.Fatalf("demo plant: %v", err)
+	}
+	d := reference.DemoStart
+	initial, err := model.Stand(0, 0, d.LegAngles, d.TorsoAngle, d.Rates[:]...)
+	if err != nil {
+		t.Fatalf("demo start pose: %v", err)
+	}
+	return cfg, model, initial
+}
+
+// runLoop runs the hil loop over conn, recording into a run folder, and
+// returns the result and the folder.
+func runLoop(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State, conn bridges.Conn, link string) (hil.Result, string) {
+	t.Helper()
+	mf, err := hil.Manifest(nil, cfg, model, initial, link, "e2e-test")
+	if err != nil {
+		t.Fatalf("manifest: %v", err)
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	rec, err := record.Create(dir, mf)
+	if err != nil {
+		t.Fatalf("creating the run folder: %v", err)
+	}
+	res, err := hil.Run(ctx, cfg, model, initial, conn, rec)
+	if err != nil {
+		t.Fatalf("hil.Run over %s: %v", link, err)
+	}
+	return res, dir
+}
+
+// TestCFirmwareWalks is the end-to-end check of the example firmware: the C
+// firmware, compiled with gcc, runs as its own process on the follower side
+// of a real pty pair; the rig runs the hil loop in lockstep over the serial
+// link on the pty's leader side.
+// The demo walker (demoRun) must complete at least 20 heel strikes without falling, the
+// run must pass its criteria, and neither side may see a single frame
+// error. Because the C law is bit-identical to the Go reference law and
+// the loop is deterministic in lockstep, the same scenario driven by the
+// Go reference firmware over the in-process link must end in exactly the
+// same plant state after the same number of ticks.
+func TestCFirmwareWalks(t *testing.T) {
+	b := buildC(t)
+	cfg, model, initial := demoRun(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	defer cancel()
+
+	p, err := serial.NewPty()
+	if err != nil {
+		t.Fatalf("opening a pty pair: %v", err)
+	}
+	defer p.Close()
+	fw := startFirmware(t, ctx, b.firmware, p.Path)
+	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
+	defer conn.Close()
+
+	res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
+	sum := res.Summary
+	code := fw.wait(t, 10*time.Second)
+	fwc := fw.counters(t)
+	t.Logf("C firmware over pty: outcome %s, %d steps, %d ticks, %.1f s simulated in %.1f s; link %+v; firmware %v",
+		sum.Outcome, sum.Steps, sum.Ticks, sum.SimTimeS, sum.WallTimeS, res.Link, fwc)
+
+	if res.Greeting.Name != "gaitrig-example-c" || res.Greeting.Actuators != 2 {
+		t.Errorf("greeting: want gaitrig-example-c with 2 actuators, got %+v", res.Greeting)
+	}
+	if sum.Steps < 20 {
+		t.Errorf("the C firmware walked %d steps, want at least 20 (reason: %q)", sum.Steps, sum.Reason)
+	}
+	if n := sum.Alarms[scenarios.AlarmFall]; n != 0 {
+		t.Errorf("the walker fell (%d fall alarms)", n)
+	}
+	if sum.Outcome != record.Pass {
+		t.Errorf("run outcome %q (%s), want pass; criteria %+v; alarms %v", sum.Outcome, sum.Reason, sum.Criteria, sum.Alarms)
+	}
+	if st := conn.Stats(); st.FrameErrors != 0 {
+		t.Errorf("the rig's serial link counted %d frame errors, want 0 (%+v)", st.FrameErrors, st)
+	}
+	if res.Link.BadFrames != 0 || res.Link.BadTorques != 0 {
+		t.Errorf("the loop rejected %d frames and %d commands' torques, want none", res.Link.BadFrames, res.Link.BadTorques)
+	}
+	if n := counter(t, fwc, "frame_errors"); n != 0 {
+		t.Errorf("the C firmware counted %d frame errors, want 0", n)
+	}
+	if n := counter(t, fwc, "unexpected"); n != 0 {
+		t.Errorf("the C firmware got %d frames of a type the rig should not send", n)
+	}
+	if got, want := counter(t, fwc, "commands"), counter(t, fwc, "states"); got != want {
+		t.Errorf("the C firmware answered %d of %d states", got, want)
+	}
+	if code != 0 || fwc["end"] != "stop" {
+		t.Errorf("the C firmware must exit 0 on the rig's normal stop; exit %d, end %q", code, fwc["end"])
+	}
+	if res.Link.Commands < uint64(sum.Ticks) {
+		t.Errorf("the loop took %d commands for %d ticks; every tick needs one in lockstep", res.Link.Commands, sum.Ticks)
+	}
+	run, err := record.Open(dir)
+	if err != nil {
+		t.Fatalf("the run folder does not read back: %v", err)
+	}
+	if run.Summary.Steps != sum.Steps {
+		t.Errorf("summary.json has %d steps, the run returned %d", run.Summary.Steps, sum.Steps)
+	}
+
+	// The same run with the Go reference firmware in-process.
+	rigEnd, fwEnd := inproc.Pair()
+	served := make(chan error, 1)
+	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
+	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
+	rigEnd.Close()
+	if err := <-served; err != nil {
+		t.Errorf("the Go reference firmware ended with %v", err)
+	}
+	if goRes.Summary.Steps != sum.Steps || goRes.Summary.Ticks != sum.Ticks {
+		t.Errorf("Go reference in-process: %d steps in %d ticks; C over pty: %d steps in %d ticks; want the same",
+			goRes.Summary.Steps, goRes.Summary.Ticks, sum.Steps, sum.Ticks)
+	}
+	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
+		t.Errorf("final plant state differs between the C firmware over pty and the Go reference in-process:\nC:  q=%v v=%v\nGo: q=%v v=%v",
+			res.Final.Q, res.Final.V, goRes.Final.Q, goRes.Final.V)
 	}
 }
