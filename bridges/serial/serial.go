@@ -228,9 +228,9 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 			return
 		}
 		down := time.Now()
-		cause := fmt.Errorf("serial: %s: %w", c.name, err)
+		cause := fmt.Errorf("serial: %s went away (unplugged, or the other end closed): %w", c.name, err)
 		c.event(bridges.LinkEvent{Kind: "disconnected", Err: cause})
-		c.pushErr(fmt.Errorf("%w: %s: %v", bridges.ErrDisconnected, c.name, err))
+		c.pushErr(fmt.Errorf("%w: %s went away (unplugged, or the other end closed): %v", bridges.ErrDisconnected, c.name, err))
 		if !c.reconnect {
 			c.Close()
 			return
