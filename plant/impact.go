@@ -96,6 +96,17 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			rows.k++
 		}
 		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
+			// Redundant contacts (e.g. two arc feet whose centres are both
+			// the hip): keep the impacting foot alone.
+			released := false
+			for f := 0; f < m.nFeet; f++ {
+				if active[f] && f != i {
+					active[f], slipSign[f], released = false, 0, true
+				}
+			}
+			if released {
+				continue
+			}
 			return m.stopNonFinite(s, r)
 		}
 		var lt, ln [2]float64

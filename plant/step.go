@@ -40,7 +40,11 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]f
 			c[condGap+i] = g.gap
 		case Rolling:
 			c[condNormal+i] = ev.force[i][1]
-			c[condFriction+i] = m.terrain[g.sp.seg].muS*ev.force[i][1] - math.Abs(ev.force[i][0])
+			if ev.force[i][1] > 0 {
+				// Without a positive normal force the foot lifts off; the
+				// friction cone is then the lift-off's business.
+				c[condFriction+i] = m.terrain[g.sp.seg].muS*ev.force[i][1] - math.Abs(ev.force[i][0])
+			}
 		case Sliding:
 			c[condNormal+i] = ev.force[i][1]
 			c[condStick+i] = s.SlipDir[i] * g.slip
