@@ -41,8 +41,11 @@ func (r ReplayResult) String() string {
 // and hip push (dt = 1/tickHz) and compares the resulting q and q̇ with the
 // recorded ones bit for bit. Telemetry rows hold the state at the end of
 // their tick, so row k is compared after k+1 steps.
-func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz float64) ReplayResult {
+func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz float64) (ReplayResult, error) {
 	res := ReplayResult{Ticks: len(ticks), Match: true, FirstDivergence: -1}
+	if !(tickHz > 0) || math.IsInf(tickHz, 0) {
+		return res, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
+	}
 	s := initial
 	var in plant.Input
 	var tr plant.TickResult
@@ -57,16 +60,16 @@ func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz
 		model.Step(&s, &in, dt, &tr)
 		for i := 0; i < nq; i++ {
 			if name, a, b, ok := differ("q", i, row.Q[i], s.Q[i]); !ok {
-				return diverged(res, row.Index, name, a, b)
+				return diverged(res, row.Index, name, a, b), nil
 			}
 		}
 		for i := 0; i < nq; i++ {
 			if name, a, b, ok := differ("v", i, row.V[i], s.V[i]); !ok {
-				return diverged(res, row.Index, name, a, b)
+				return diverged(res, row.Index, name, a, b), nil
 			}
 		}
 	}
-	return res
+	return res, nil
 }
 
 func differ(p string, i int, rec, rep float64) (string, float64, float64, bool) {
@@ -122,7 +125,7 @@ func ReplayRun(dir string, initial func(*scenarios.Scenario, *plant.Model) (plan
 	if err != nil {
 		return ReplayResult{}, err
 	}
-	r := Replay(m, st, ticks, mf.TickHz)
+	r, err := Replay(m, st, ticks, mf.TickHz)
 	r.Truncated = truncated
-	return r, nil
+	return r, err
 }

@@ -196,7 +196,10 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		}
 	}
 	if err != nil && r.outcome == "" {
-		r.outcome, r.reason, r.stopCode = record.Aborted, err.Error(), protocol.StopAborted
+		r.outcome, r.reason = record.Aborted, err.Error()
+		if r.stopCode == protocol.StopEnd {
+			r.stopCode = protocol.StopAborted
+		}
 	}
 	r.sendStop()
 	return r.finish(err)
@@ -591,7 +594,9 @@ func (r *runner) plantEvent(e *plant.Event) {
 		return
 	}
 	kind, ok := alarmKind(e.Kind)
-	if !ok {
+	if !ok || (e.Kind == plant.Scuff && r.m.Options().IgnoreScuff) {
+		// The plant reports an ignored scuff for the record; the scenario
+		// chose to let the swing foot pass, so it is not an alarm.
 		return
 	}
 	ev := *e
@@ -745,9 +750,8 @@ func (r *runner) lockstep(ctx context.Context) error {
 		if r.pending.popDue(r.tick, &c) {
 			r.takeCommand(&c)
 		}
-		if r.outcome != "" {
-			break
-		}
+		// A command that trips still gets its tick, with the zero torque of
+		// the e-stop, so the log shows what was sent and what was applied.
 		r.advance(time.Time{})
 	}
 	return nil

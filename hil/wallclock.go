@@ -229,6 +229,9 @@ func (r *runner) wallclock(ctx context.Context) error {
 			}
 		}
 		if r.outcome != "" {
+			// The tripping command still gets its tick with the e-stop's
+			// zero torque, so the log shows what was sent and applied.
+			r.advance(now)
 			break
 		}
 		if silent := now.Sub(lastValid); silent > r.cfg.Watchdog {

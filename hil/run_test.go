@@ -1,0 +1,402 @@
+package hil
+
+import (
+	"context"
+	"errors"
+	"math"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
+	"gaitrig/record"
+	"gaitrig/scenarios"
+)
+
+func TestReferenceWalks30StepsLockstep(t *testing.T) {
+	m, s, cfg := demo(t, 30)
+	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ferr != nil {
+		t.Fatalf("firmware: %v", ferr)
+	}
+	sum := res.Summary
+	if sum.Outcome != record.Pass || sum.Steps < 30 {
+		t.Fatalf("outcome %s after %d steps (%s)", sum.Outcome, sum.Steps, sum.Reason)
+	}
+	for kind, n := range sum.Alarms {
+		t.Errorf("alarm %s raised %d times on a nominal walk", kind, n)
+	}
+	run := openRun(t, dir)
+	if len(run.Steps) != sum.Steps {
+		t.Errorf("steps.csv has %d rows, summary says %d steps", len(run.Steps), sum.Steps)
+	}
+	ticks, _, err := run.AllTicks()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if int64(len(ticks)) != sum.Ticks {
+		t.Errorf("telemetry has %d rows, summary says %d ticks", len(ticks), sum.Ticks)
+	}
+	last := run.Steps[len(run.Steps)-1]
+	t.Logf("%d steps in %.2f s, mean speed %.3f m/s, last step %.3f m in %.3f s, CoT %.3f, peak util %.3f, min N %.0f N; %d stale, %d resends",
+		sum.Steps, sum.SimTimeS, sum.MeanSpeedMPS, last.LengthM, last.DurationS, last.CostOfTransport,
+		sum.PeakFrictionUtilization, sum.MinNormalForceN, res.Link.StaleCommands, res.Link.Resends)
+	if !(last.PosWorkJ > 0) || !(last.CostOfTransport > 0) || !(last.ImpactLossJ > 0) || !(last.CoPTravelM > 0) {
+		t.Errorf("step metrics not filled: %+v", last)
+	}
+	if run.Summary.LatencyUS != nil {
+		t.Errorf("lockstep summary carries a latency %+v; latency is a wall-clock figure", run.Summary.LatencyUS)
+	}
+}
+
+func TestLockstepIsBitIdentical(t *testing.T) {
+	hash := func(seed int64) string {
+		m, s, cfg := demo(t, 8)
+		cfg.Seed = seed
+		cfg.Sensors.AngleNoise = 1e-3
+		cfg.Sensors.PitchRateNoise = 1e-2
+		_, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
+		if err != nil || ferr != nil {
+			t.Fatal(err, ferr)
+		}
+		return fileHash(t, filepath.Join(dir, record.TelemetryFile))
+	}
+	a, b := hash(11), hash(11)
+	if a != b {
+		t.Fatalf("two lockstep runs with seed 11 wrote different telemetry: %s vs %s", a, b)
+	}
+	// The hash must see the noise: another seed gives another log.
+	if c := hash(12); c == a {
+		t.Fatalf("seed 12 wrote the same telemetry as seed 11: the hash does not see the sensor noise")
+	}
+}
+
+func TestWatchdogTripsOnSilentFirmware(t *testing.T) {
+	m, s, cfg := demo(t, 30)
+	cfg.Watchdog = 30 * time.Millisecond
+	var got protocol.Stop
+	silent := func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		st, err := untilStop(conn, nil) // reads states, never answers
+		got = st
+		return err
+	}
+	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, silent)
+	if err != nil || ferr != nil {
+		t.Fatal(err, ferr)
+	}
+	if res.Summary.Outcome != record.Tripped {
+		t.Fatalf("outcome %s, want tripped", res.Summary.Outcome)
+	}
+	if got.Reason != protocol.StopWatchdog {
+		t.Errorf("firmware got stop reason %d (%q), want %d (watchdog)", got.Reason, got.Text, protocol.StopWatchdog)
+	}
+	run := openRun(t, dir)
+	if run.Summary.Outcome != record.Tripped || run.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+		t.Errorf("summary.json: outcome %s, alarms %v", run.Summary.Outcome, run.Summary.Alarms)
+	}
+	wd := eventsOf(t, dir, scenarios.AlarmWatchdog)
+	if len(wd) != 1 || wd[0].Severity != record.Trip || wd[0].Values["silent_ms"] < 30 {
+		t.Fatalf("watchdog events %+v", wd)
+	}
+	if len(eventsOf(t, dir, "e_stop")) != 1 || len(eventsOf(t, dir, "run_end")) != 1 {
+		t.Errorf("e_stop and run_end must be logged once each")
+	}
+	if res.Link.Resends == 0 {
+		t.Errorf("no resend before the watchdog tripped")
+	}
+}
+
+func TestBadTorquesRejected(t *testing.T) {
+	tests := []struct {
+		name   string
+		torque float32
+	}{
+		{"NaN", float32(math.NaN())},
+		{"+Inf", float32(math.Inf(1))},
+		{"-Inf", float32(math.Inf(-1))},
+		{"huge", 1e30},
+	}
+	for _, tc := range tests {
+		for _, sev := range []scenarios.Severity{scenarios.SeverityWarn, scenarios.SeverityTrip} {
+			t.Run(tc.name+"/"+string(sev), func(t *testing.T) {
+				m, s, cfg := demo(t, 0)
+				cfg.MaxSteps, cfg.Duration = 0, 0.2
+				cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: sev}
+				// A firmware that answers with a steady 5 N·m and sends the
+				// bad torque on hip_right at every 20th state.
+				fw := func(conn bridges.Conn) error {
+					if _, err := greet(conn, 2, protocol.Version); err != nil {
+						return err
+					}
+					_, err := untilStop(conn, func(in *protocol.Message) {
+						if in.Type != protocol.TypeState {
+							return
+						}
+						out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+						out.Command.Joints = 2
+						out.Command.Torque = [protocol.MaxJoints]float32{5, 5}
+						if in.Seq%20 == 0 {
+							out.Command.Torque[1] = tc.torque
+						}
+						conn.Send(&out)
+					})
+					return err
+				}
+				res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
+				if err != nil || ferr != nil {
+					t.Fatal(err, ferr)
+				}
+				run := openRun(t, dir)
+				ticks, _, err := run.AllTicks()
+				if err != nil {
+					t.Fatal(err)
+				}
+				bad := 0
+				for _, row := range ticks {
+					cmd := row.Commanded[1]
+					if !(math.IsNaN(cmd) || math.IsInf(cmd, 0) || math.Abs(cmd) > 1e4) {
+						if row.Applied[1] != 5 && row.Index > 0 {
+							t.Fatalf("tick %d: sound command 5 N·m applied as %g", row.Index, row.Applied[1])
+						}
+						continue
+					}
+					bad++
+					if row.Applied[0] != 0 || row.Applied[1] != 0 {
+						t.Fatalf("tick %d: bad torque %g commanded, applied %v (want zero)", row.Index, cmd, row.Applied[:2])
+					}
+				}
+				if bad == 0 {
+					t.Fatal("no bad command reached the telemetry")
+				}
+				alarms := eventsOf(t, dir, scenarios.AlarmBadTorque)
+				if len(alarms) == 0 {
+					t.Fatal("no bad_torque alarm logged")
+				}
+				switch sev {
+				case scenarios.SeverityTrip:
+					if res.Summary.Outcome != record.Tripped || bad != 1 {
+						t.Errorf("trip severity: outcome %s after %d bad commands", res.Summary.Outcome, bad)
+					}
+				case scenarios.SeverityWarn:
+					if res.Summary.Outcome == record.Tripped || res.Link.BadTorques != uint64(bad) || bad < 9 {
+						t.Errorf("warn severity: outcome %s, %d bad commands in telemetry, %d counted", res.Summary.Outcome, bad, res.Link.BadTorques)
+					}
+					if res.Summary.Alarms[scenarios.AlarmBadTorque] != bad {
+						t.Errorf("summary counts %d bad_torque alarms, telemetry shows %d", res.Summary.Alarms[scenarios.AlarmBadTorque], bad)
+					}
+				}
+			})
+		}
+	}
+}
+
+func TestFloodingFirmwareIsSurvived(t *testing.T) {
+	m, s, cfg := demo(t, 10)
+	// Each state is answered by the reference law's command plus a burst of
+	// duplicates and commands for sequence numbers that never existed.
+	fw := func(conn bridges.Conn) error {
+		rig := &floodConn{Conn: conn, extra: 6}
+		return referenceFirmware(rig)
+	}
+	res, _, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
+	if err != nil || ferr != nil {
+		t.Fatal(err, ferr)
+	}
+	if res.Summary.Outcome != record.Pass || res.Summary.Steps < 10 {
+		t.Fatalf("outcome %s, %d steps (%s)", res.Summary.Outcome, res.Summary.Steps, res.Summary.Reason)
+	}
+	if res.Link.StaleCommands == 0 {
+		t.Fatal("flood not counted as stale commands")
+	}
+	t.Logf("%d stale commands counted over %d ticks", res.Link.StaleCommands, res.Summary.Ticks)
+}
+
+// floodConn sends every command once more per extra, half with a wrong
+// sequence number.
+type floodConn struct {
+	bridges.Conn
+	extra int
+}
+
+func (f *floodConn) Send(m *protocol.Message) error {
+	if err := f.Conn.Send(m); err != nil || m.Type != protocol.TypeCommand {
+		return err
+	}
+	c := *m
+	for i := 0; i < f.extra; i++ {
+		if i%2 == 1 {
+			c.Seq = m.Seq + 1000 + uint32(i)
+		}
+		f.Conn.Send(&c)
+	}
+	return nil
+}
+
+// frameErrConn makes every nth Recv report a rejected frame, as a serial
+// link does after line noise.
+type frameErrConn struct {
+	bridges.Conn
+	every, n int
+}
+
+func (f *frameErrConn) Recv(d time.Time, m *protocol.Message) error {
+	f.n++
+	if f.n%f.every == 0 {
+		return &bridges.FrameError{Reason: "bad CRC: got 0x1234, computed 0xBEEF", Bytes: 40}
+	}
+	return f.Conn.Recv(d, m)
+}
+
+func TestBadFramesAlarmAndCount(t *testing.T) {
+	m, s, cfg := demo(t, 6)
+	rig, fwEnd := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fwEnd)
+	rec := newRecord(t, cfg, m, s)
+	conn := &frameErrConn{Conn: rig, every: 50}
+	res, err := Run(context.Background(), cfg, m, s, conn, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Summary.Outcome != record.Pass {
+		t.Fatalf("outcome %s (%s)", res.Summary.Outcome, res.Summary.Reason)
+	}
+	if res.Link.BadFrames == 0 || uint64(res.Summary.Alarms[scenarios.AlarmBadFrame]) != res.Link.BadFrames {
+		t.Fatalf("%d bad frames counted, %d alarms", res.Link.BadFrames, res.Summary.Alarms[scenarios.AlarmBadFrame])
+	}
+	logged := eventsOf(t, rec.Dir(), scenarios.AlarmBadFrame)
+	if len(logged) == 0 || len(logged) >= int(res.Link.BadFrames) {
+		t.Fatalf("%d bad_frame lines logged for %d bad frames: want rate-limited, at least one", len(logged), res.Link.BadFrames)
+	}
+	t.Logf("%d bad frames, %d log lines", res.Link.BadFrames, len(logged))
+}
+
+func TestAbortSendsStopAndWritesEverything(t *testing.T) {
+	m, s, cfg := demo(t, 1000)
+	ctx, cancel := context.WithCancelCause(context.Background())
+	var got protocol.Stop
+	fw := func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		st, err := untilStop(conn, func(in *protocol.Message) {
+			if in.Type != protocol.TypeState {
+				return
+			}
+			if in.Seq == 300 {
+				cancel(errors.New("SIGINT"))
+			}
+			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+			out.Command.Joints = 2
+			conn.Send(&out)
+		})
+		got = st
+		return err
+	}
+	res, dir, err, ferr := runWith(t, ctx, cfg, m, s, fw)
+	if err != nil || ferr != nil {
+		t.Fatal(err, ferr)
+	}
+	if res.Summary.Outcome != record.Aborted || got.Reason != protocol.StopAborted {
+		t.Fatalf("outcome %s, stop reason %d, want aborted", res.Summary.Outcome, got.Reason)
+	}
+	run := openRun(t, dir)
+	ticks, truncated, err := run.AllTicks()
+	if err != nil || truncated || int64(len(ticks)) != run.Summary.Ticks || len(ticks) < 299 {
+		t.Fatalf("telemetry after abort: %d rows, truncated %v, summary %d ticks, err %v", len(ticks), truncated, run.Summary.Ticks, err)
+	}
+}
+
+func TestHandshakeFailures(t *testing.T) {
+	tests := []struct {
+		name    string
+		fw      firmwareFunc
+		outcome record.Outcome
+		wantErr bool
+		stop    uint8
+	}{
+		{"wrong protocol version", func(c bridges.Conn) error {
+			_, err := greet(c, 2, protocol.Version+1)
+			return err
+		}, record.Tripped, false, protocol.StopBadVersion},
+		{"wrong actuator count", func(c bridges.Conn) error {
+			_, err := greet(c, 1, protocol.Version)
+			return err
+		}, record.Aborted, true, protocol.StopEStop},
+		{"no greeting", func(c bridges.Conn) error {
+			_, err := untilStop(c, nil)
+			return err
+		}, record.Aborted, true, protocol.StopAborted},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			m, s, cfg := demo(t, 5)
+			cfg.HandshakeTimeout = 100 * time.Millisecond
+			res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, tc.fw)
+			if (err != nil) != tc.wantErr {
+				t.Fatalf("Run error %v, want error %v", err, tc.wantErr)
+			}
+			if err != nil {
+				t.Logf("error says: %v", err)
+			}
+			var se *stopError
+			if tc.stop != protocol.StopAborted && (!errors.As(ferr, &se) || se.s.Reason != tc.stop) {
+				t.Fatalf("firmware saw %v, want a stop with reason %d", ferr, tc.stop)
+			}
+			run := openRun(t, dir)
+			if run.Summary.Outcome != tc.outcome || (res.Summary.Outcome != "" && res.Summary.Outcome != tc.outcome) {
+				t.Fatalf("outcome %s, want %s (%s)", run.Summary.Outcome, tc.outcome, run.Summary.Reason)
+			}
+		})
+	}
+}
+
+func TestReplayMatchesExactly(t *testing.T) {
+	m, s, cfg := demo(t, 6)
+	cfg.Sensors.AngleNoise = 1e-3
+	cfg.Actuators.Lag = 0.005
+	cfg.Pushes = []Push{{AtStep: 2, Force: [2]float64{30, 0}, Duration: 0.1}}
+	_, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
+	if err != nil || ferr != nil {
+		t.Fatal(err, ferr)
+	}
+	run := openRun(t, dir)
+	ticks, _, err := run.AllTicks()
+	if err != nil {
+		t.Fatal(err)
+	}
+	pushed := 0
+	for _, row := range ticks {
+		if row.Push[0] != 0 {
+			pushed++
+		}
+	}
+	if pushed != 100 {
+		t.Errorf("push held for %d ticks, want 100 (0.1 s at 1 kHz)", pushed)
+	}
+	r, err := Replay(m, s, ticks, DefaultTickHz)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Match || r.Ticks != len(ticks) {
+		t.Fatalf("replay of an untouched record: %s", r)
+	}
+	// A replay must notice a change: perturb one torque by 1 µN·m (one ulp
+	// can vanish in the rounding of a single tick).
+	k := len(ticks) / 2
+	ticks[k].Applied[0] += 1e-6
+	r, err = Replay(m, s, ticks, DefaultTickHz)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Match || r.FirstDivergence != ticks[k].Index {
+		t.Fatalf("replay with one torque changed by 1 µN·m at tick %d: %s", ticks[k].Index, r)
+	}
+}
