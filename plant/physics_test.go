@@ -70,7 +70,7 @@ func TestHalfDiskRocking(t *testing.T) {
 	const R, mass, g = 0.5, 2.0, 9.81
 	d := 4 * R / (3 * math.Pi)
 	p := Params{HipMass: 0, OneLeg: true, Gravity: g,
-		Legs: [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
+		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
 		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 1, MuKinetic: 1}}}}
 	m, err := New(p, Options{})
 	if err != nil {
@@ -118,7 +118,7 @@ func TestHalfDiskRocking(t *testing.T) {
 func invertedPendulum(t *testing.T, o Options) *Model {
 	t.Helper()
 	p := Params{HipMass: 1, Gravity: 9.81,
-		Legs: [2]Leg{{Length: 1, Mass: 1e-9, COMDist: 1}, {Length: 0.5, Mass: 1e-9, COMDist: 0.5}},
+		Legs:    [2]Leg{{Length: 1, Mass: 1e-9, COMDist: 1}, {Length: 0.5, Mass: 1e-9, COMDist: 0.5}},
 		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 1e9, MuKinetic: 1e9}}}} // friction never limits here
 	m, err := New(p, o)
 	if err != nil {
