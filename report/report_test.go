@@ -234,6 +234,9 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 			}
 			p := parseReport(t, raw)
 			checkPlots(t, p)
+			if _, ok := p.byID["incomplete"]; ok {
+				t.Errorf("a complete run folder is reported incomplete: %q", p.texts["incomplete"])
+			}
 
 			if got := strings.TrimSpace(p.texts["outcome"]); got != tc.wantOutcome {
 				t.Errorf("outcome %q, want %q", got, tc.wantOutcome)
@@ -403,10 +406,10 @@ func TestWriteHTMLBadFolders(t *testing.T) {
 			}
 			p := parseReport(t, raw)
 			checkPlots(t, p)
-			all := textOf(p.doc)
+			warn := p.texts["incomplete"]
 			for _, w := range tc.wantNotes {
-				if !strings.Contains(all, w) {
-					t.Errorf("report does not say %q", w)
+				if !strings.Contains(warn, w) {
+					t.Errorf("the incomplete-folder box does not say %q: %q", w, warn)
 				}
 			}
 			if !strings.Contains(p.texts["caution"], "not a safety certificate") {
