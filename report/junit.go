@@ -21,6 +21,10 @@ type Case struct {
 	Seconds float64
 	// Failure is the one-line failure message; empty means the case passed.
 	Failure string
+	// Error, when not empty, says the case could not be run at all (a
+	// missing scenario, a link that never came up). It is written as an
+	// <error> element, which CI systems tell apart from a failure.
+	Error string
 	// Detail is the longer text inside the failure element (or, for a
 	// passing case, written to system-out).
 	Detail string
@@ -43,6 +47,9 @@ type ScenarioResult struct {
 	Scenario string
 	// Outcome is the run outcome: pass, fail, tripped or aborted.
 	Outcome string
+	// Expected is the outcome the baseline records; empty means "pass". A
+	// scenario built to trip (a watchdog test) expects "tripped".
+	Expected string
 	// Seconds is the wall time the scenario took.
 	Seconds float64
 	// Regressions lists, one per entry, what got worse than the baseline
@@ -52,19 +59,27 @@ type ScenarioResult struct {
 	Err error
 }
 
-// ScenarioSuite makes one test case per scenario: a case fails when the
-// scenario could not run, when its outcome is not "pass", or when anything
-// regressed; the failure message lists what regressed.
+// ScenarioSuite makes one test case per scenario: a case is an error when
+// the scenario could not run, and fails when its outcome differs from the
+// expected one or when anything regressed; the failure message lists what
+// regressed.
 func ScenarioSuite(name string, results []ScenarioResult) Suite {
 	s := Suite{Name: name}
 	for _, r := range results {
 		c := Case{Name: r.Scenario, Class: name, Seconds: r.Seconds}
-		var why []string
 		if r.Err != nil {
-			why = append(why, "could not run: "+r.Err.Error())
+			c.Error = "could not run: " + r.Err.Error()
+			c.Detail = c.Error
+			s.Cases = append(s.Cases, c)
+			continue
 		}
-		if r.Err == nil && r.Outcome != "pass" {
-			why = append(why, "outcome "+strconv.Quote(r.Outcome)+", want \"pass\"")
+		want := r.Expected
+		if want == "" {
+			want = "pass"
+		}
+		var why []string
+		if r.Outcome != want {
+			why = append(why, "outcome "+strconv.Quote(r.Outcome)+", want "+strconv.Quote(want))
 		}
 		why = append(why, r.Regressions...)
 		if len(why) > 0 {
@@ -104,6 +119,7 @@ type xmlTestCase struct {
 	ClassName string      `xml:"classname,attr"`
 	Time      string      `xml:"time,attr"`
 	Failure   *xmlFailure `xml:"failure,omitempty"`
+	Error     *xmlFailure `xml:"error,omitempty"`
 	Skipped   *xmlSkipped `xml:"skipped,omitempty"`
 	SystemOut string      `xml:"system-out,omitempty"`
 }
@@ -156,6 +172,9 @@ func WriteJUnit(w io.Writer, suites ...Suite) error {
 				xc.ClassName = xs.Name
 			}
 			switch {
+			case c.Error != "":
+				xc.Error = &xmlFailure{Message: xmlSafe(c.Error), Type: "error", Text: xmlSafe(c.Detail)}
+				xs.Errors++
 			case c.Failure != "":
 				xc.Failure = &xmlFailure{Message: xmlSafe(c.Failure), Type: "failure", Text: xmlSafe(c.Detail)}
 				xs.Failures++
@@ -172,6 +191,7 @@ func WriteJUnit(w io.Writer, suites ...Suite) error {
 		total += st
 		doc.Tests += xs.Tests
 		doc.Failures += xs.Failures
+		doc.Errors += xs.Errors
 		doc.Skipped += xs.Skipped
 		doc.Suites = append(doc.Suites, xs)
 	}

@@ -13,6 +13,7 @@ func TestWriteJUnitParsesBack(t *testing.T) {
 		name                          string
 		suites                        []Suite
 		wantTests, wantFail, wantSkip int
+		wantErrors                    int
 		wantInFailure                 []string
 	}{
 		{
@@ -30,6 +31,12 @@ func TestWriteJUnitParsesBack(t *testing.T) {
 			wantInFailure: []string{"value 0.93 above limit 0.8"},
 		},
 		{
+			name:      "a scenario that could not run is an error",
+			suites:    []Suite{ScenarioSuite("library", []ScenarioResult{{Scenario: "broken", Err: errors.New("scenario file missing")}})},
+			wantTests: 1, wantErrors: 1,
+			wantInFailure: []string{"could not run: scenario file missing"},
+		},
+		{
 			name: "suite of scenarios with regressions",
 			suites: []Suite{ScenarioSuite("library", []ScenarioResult{
 				{Scenario: "flat", Outcome: "pass", Seconds: 3},
@@ -37,9 +44,11 @@ func TestWriteJUnitParsesBack(t *testing.T) {
 				{Scenario: "push", Outcome: "tripped"},
 				{Scenario: "broken", Err: errors.New("scenario file missing")},
 				{Scenario: "greeting\x01with control byte", Outcome: "pass"},
+				{Scenario: "watchdog-test", Outcome: "tripped", Expected: "tripped"},
+				{Scenario: "watchdog-test-no-trip", Outcome: "pass", Expected: "tripped"},
 			})},
-			wantTests: 5, wantFail: 3,
-			wantInFailure: []string{"steps 14 < baseline 20", "peak friction utilization 0.91", `outcome "tripped"`, "could not run: scenario file missing"},
+			wantTests: 7, wantFail: 3, wantErrors: 1,
+			wantInFailure: []string{"steps 14 < baseline 20", "peak friction utilization 0.91", `outcome "tripped", want "pass"`, `outcome "pass", want "tripped"`},
 		},
 	}
 	for _, tc := range tests {
@@ -52,12 +61,12 @@ func TestWriteJUnitParsesBack(t *testing.T) {
 			if err := xml.Unmarshal(buf.Bytes(), &doc); err != nil {
 				t.Fatalf("output does not parse back: %v\n%s", err, buf.String())
 			}
-			if doc.Tests != tc.wantTests || doc.Failures != tc.wantFail || doc.Skipped != tc.wantSkip {
-				t.Errorf("totals tests=%d failures=%d skipped=%d, want %d %d %d",
-					doc.Tests, doc.Failures, doc.Skipped, tc.wantTests, tc.wantFail, tc.wantSkip)
+			if doc.Tests != tc.wantTests || doc.Failures != tc.wantFail || doc.Skipped != tc.wantSkip || doc.Errors != tc.wantErrors {
+				t.Errorf("totals tests=%d failures=%d skipped=%d errors=%d, want %d %d %d %d",
+					doc.Tests, doc.Failures, doc.Skipped, doc.Errors, tc.wantTests, tc.wantFail, tc.wantSkip, tc.wantErrors)
 			}
 			// Count the elements themselves, not only the totals we wrote.
-			var cases, fails, skips int
+			var cases, fails, skips, errs int
 			var msgs []string
 			for _, s := range doc.Suites {
 				if s.Tests != len(s.Cases) {
@@ -72,10 +81,15 @@ func TestWriteJUnitParsesBack(t *testing.T) {
 					if c.Skipped != nil {
 						skips++
 					}
+					if c.Error != nil {
+						errs++
+						msgs = append(msgs, c.Error.Message)
+					}
 				}
 			}
-			if cases != tc.wantTests || fails != tc.wantFail || skips != tc.wantSkip {
-				t.Errorf("elements: %d testcase, %d failure, %d skipped; want %d %d %d", cases, fails, skips, tc.wantTests, tc.wantFail, tc.wantSkip)
+			if cases != tc.wantTests || fails != tc.wantFail || skips != tc.wantSkip || errs != tc.wantErrors {
+				t.Errorf("elements: %d testcase, %d failure, %d skipped, %d error; want %d %d %d %d",
+					cases, fails, skips, errs, tc.wantTests, tc.wantFail, tc.wantSkip, tc.wantErrors)
 			}
 			all := strings.Join(msgs, "\n")
 			for _, w := range tc.wantInFailure {
