@@ -495,3 +495,60 @@ func TestEncodeErrorIsReturned(t *testing.T) {
 		t.Fatalf("got %+v", got)
 	}
 }
+
+// TestCloseWhileBusy closes both ends while a sender and a receiver are
+// working on each; every call must return (no hang, no panic) and Recv must
+// end with ErrClosed or a disconnect.
+func TestCloseWhileBusy(t *testing.T) {
+	p := newPair(t, Config{})
+	go echoFirmware(p.fw)
+	stop := make(chan struct{})
+	sendDone := make(chan struct{})
+	go func() {
+		defer close(sendDone)
+		st := messages()[2]
+		for i := uint32(0); ; i++ {
+			select {
+			case <-stop:
+				return
+			default:
+			}
+			st.Seq = i
+			if err := p.rig.Send(&st); errors.Is(err, bridges.ErrClosed) {
+				return
+			}
+			time.Sleep(100 * time.Microsecond)
+		}
+	}()
+	recvDone := make(chan error, 1)
+	go func() {
+		var m protocol.Message
+		for {
+			err := p.rig.Recv(time.Time{}, &m) // no deadline: only Close ends it
+			if errors.Is(err, bridges.ErrClosed) {
+				recvDone <- err
+				return
+			}
+		}
+	}()
+	time.Sleep(50 * time.Millisecond)
+	if p.rig.Stats().FramesReceived == 0 {
+		t.Error("no commands came back before Close")
+	}
+	p.rig.Close()
+	p.fw.Close()
+	select {
+	case <-recvDone:
+	case <-time.After(3 * time.Second):
+		t.Fatal("Recv without deadline did not return after Close")
+	}
+	close(stop)
+	select {
+	case <-sendDone:
+	case <-time.After(3 * time.Second):
+		t.Fatal("sender did not finish")
+	}
+	if err := p.rig.Close(); err != nil {
+		t.Errorf("second Close: %v", err)
+	}
+}
