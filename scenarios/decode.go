@@ -216,7 +216,11 @@ func (d *decoder) value(n ast.Node, v reflect.Value, path string) {
 	case reflect.Slice, reflect.Array:
 		seq, ok := n.(*ast.SequenceNode)
 		if !ok {
-			d.add(nodePos(n), path, "expected a list such as [0.1, -0.1], got %s", kindWord(n))
+			example := "such as [0.1, -0.1]"
+			if v.Type().Elem().Kind() == reflect.Struct {
+				example = "of blocks, each entry starting with '- '"
+			}
+			d.add(nodePos(n), path, "expected a list %s, got %s", example, kindWord(n))
 			d.bad[path] = true
 			return
 		}

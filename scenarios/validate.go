@@ -36,6 +36,22 @@ func (c *checker) at(path string) pos {
 	return pos{1, 1}
 }
 
+// isBad reports whether path or one of its ancestors failed to decode, so
+// its checks would only repeat that error.
+func (c *checker) isBad(path string) bool {
+	for p := path; p != ""; {
+		if c.d.bad[p] {
+			return true
+		}
+		i := strings.LastIndexAny(p, ".[")
+		if i < 0 {
+			break
+		}
+		p = p[:i]
+	}
+	return false
+}
+
 func (c *checker) has(path string) bool { _, ok := c.d.present[path]; return ok }
 
 func (c *checker) errf(path, format string, a ...any) {
@@ -45,7 +61,7 @@ func (c *checker) errf(path, format string, a ...any) {
 // require reports a missing required field of the block at parent.
 func (c *checker) require(parent, name, what string) bool {
 	p := join(parent, name)
-	if c.has(p) || c.d.bad[p] {
+	if c.has(p) || c.isBad(p) {
 		return true
 	}
 	where := parent
@@ -58,7 +74,7 @@ func (c *checker) require(parent, name, what string) bool {
 
 // num checks a number against a condition; allowed says what is allowed.
 func (c *checker) num(path string, x float64, ok bool, allowed string) {
-	if c.d.bad[path] || ok {
+	if ok || c.isBad(path) {
 		return
 	}
 	name := path[strings.LastIndexAny(path, ".")+1:]
@@ -75,7 +91,7 @@ func withUnit(x float64, unit string) string {
 
 // oneOf checks a word against a list.
 func (c *checker) oneOf(path, val string, allowed ...string) {
-	if c.d.bad[path] || slices.Contains(allowed, val) {
+	if slices.Contains(allowed, val) || c.isBad(path) {
 		return
 	}
 	c.errf(path, "%q is not allowed; allowed: %s", val, strings.Join(allowed, ", "))
