@@ -4,7 +4,6 @@
 package e2e
 
 import (
-	"bufio"
 	"bytes"
 	"context"
 	"encoding/hex"
@@ -479,10 +478,23 @@ func TestCDecoderMatchesGo(t *testing.T) {
 	t.Logf("%d frames (%d valid, %d damaged) decoded alike by C and Go", len(frames), good, len(frames)-good)
 }
 
-// docExamples extracts the example frames of docs/protocol.md section 11:
-// every hex run in the examples block, paired as frame then byte-stream
-// form when the block gives both.
-func docExamples(t *testing.T) (frames, wire [][]byte) {
+// docExample is one example of docs/protocol.md section 11: a frame and
+// the same frame as it goes on a byte stream.
+type docExample struct {
+	name        string // message type name, as in the marker
+	frame, wire []byte
+}
+
+// exampleMarker opens each hex dump of section 11.
+var exampleMarker = regexp.MustCompile(`^<!-- example (\w+) (frame|wire) -->$`)
+
+// dumpLine is one line of a hex dump: an offset, then hex byte pairs.
+var dumpLine = regexp.MustCompile(`^([0-9a-fA-F]{4}): ((?:[0-9a-fA-F]{2} ?)+)$`)
+
+// docExamples reads the example frames of docs/protocol.md section 11: each
+// "<!-- example NAME frame|wire -->" marker followed by a fenced hex dump
+// with offsets.
+func docExamples(t *testing.T) []docExample {
 	t.Helper()
 	doc, err := os.ReadFile("../docs/protocol.md")
 	if err != nil {
@@ -496,91 +508,135 @@ func docExamples(t *testing.T) (frames, wire [][]byte) {
 	if !ok {
 		t.Fatal("docs/protocol.md has no '<!-- examples end -->' marker")
 	}
-	return parseExampleBlock(block)
-}
-
-// hexRun matches a line that is nothing but hex byte pairs separated by
-// spaces (at least ten bytes: the smallest frame).
-var hexRun = regexp.MustCompile(`^(?:[0-9A-Fa-f]{2}[ ]?){10,}$`)
-
-// parseExampleBlock reads the hex lines of the examples block. A line
-// ending in the 00 delimiter is a byte-stream form; others are frames.
-// Lines that continue a long frame are joined to it (a block of hex lines
-// with no blank line between is one run).
-func parseExampleBlock(block []byte) (frames, wire [][]byte) {
-	var cur []byte
-	flush := func() {
-		if len(cur) == 0 {
-			return
+	var out []docExample
+	byName := map[string]int{}
+	lines := strings.Split(string(block), "\n")
+	for i := 0; i < len(lines); i++ {
+		m := exampleMarker.FindStringSubmatch(strings.TrimSpace(lines[i]))
+		if m == nil {
+			continue
 		}
-		if cur[len(cur)-1] == 0 {
-			wire = append(wire, cur)
-		} else {
-			frames = append(frames, cur)
+		// The dump is the next fenced block.
+		for i++; i < len(lines) && strings.TrimSpace(lines[i]) != "```"; i++ {
 		}
-		cur = nil
-	}
-	sc := bufio.NewScanner(bytes.NewReader(block))
-	for sc.Scan() {
-		line := strings.TrimSpace(sc.Text())
-		if hexRun.MatchString(line) {
-			b, err := hex.DecodeString(strings.ReplaceAll(line, " ", ""))
-			if err == nil {
-				cur = append(cur, b...)
-				continue
+		var data []byte
+		for i++; i < len(lines) && strings.TrimSpace(lines[i]) != "```"; i++ {
+			d := dumpLine.FindStringSubmatch(strings.TrimSpace(lines[i]))
+			if d == nil {
+				t.Fatalf("docs/protocol.md: example %s %s: line %q is not \"OFFSET: hex bytes\"", m[1], m[2], lines[i])
 			}
+			if off, _ := strconv.ParseUint(d[1], 16, 32); int(off) != len(data) {
+				t.Fatalf("docs/protocol.md: example %s %s: offset %s after %d bytes", m[1], m[2], d[1], len(data))
+			}
+			b, err := hex.DecodeString(strings.ReplaceAll(d[2], " ", ""))
+			if err != nil {
+				t.Fatalf("docs/protocol.md: example %s %s: %v", m[1], m[2], err)
+			}
+			data = append(data, b...)
 		}
-		flush()
+		k, seen := byName[m[1]]
+		if !seen {
+			k = len(out)
+			byName[m[1]] = k
+			out = append(out, docExample{name: m[1]})
+		}
+		if m[2] == "frame" {
+			out[k].frame = data
+		} else {
+			out[k].wire = data
+		}
 	}
-	flush()
-	return frames, wire
+	return out
 }
 
-// TestCDecodesDocExamples feeds the example frames of docs/protocol.md to
-// the C decoder: each must decode to what the Go decoder reads, and the
-// byte-stream form shown with it must be what the C COBS encoder writes.
+// docJSON reads the JSON debug lines of docs/protocol.md section 10, one
+// per message type: the document's own statement of what the example frames
+// of section 11 hold.
+func docJSON(t *testing.T) map[string]protocol.Message {
+	t.Helper()
+	doc, err := os.ReadFile("../docs/protocol.md")
+	if err != nil {
+		t.Fatalf("reading the protocol specification: %v", err)
+	}
+	_, rest, ok := bytes.Cut(doc, []byte("## 10. JSON debug encoding"))
+	if !ok {
+		t.Fatal("docs/protocol.md has no section 10 (JSON debug encoding)")
+	}
+	_, rest, _ = bytes.Cut(rest, []byte("```json"))
+	body, _, _ := bytes.Cut(rest, []byte("```"))
+	out := map[string]protocol.Message{}
+	for _, line := range strings.Split(strings.TrimSpace(string(body)), "\n") {
+		var m protocol.Message
+		if err := protocol.ParseJSON([]byte(line), &m); err != nil {
+			t.Fatalf("docs/protocol.md section 10 line %q: %v", line, err)
+		}
+		out[m.Type.Name()] = m
+	}
+	return out
+}
+
+// TestCDecodesDocExamples feeds the example frames of docs/protocol.md
+// section 11 to the C decoder. Each must decode to the message the
+// document's JSON form (section 10) describes and to what the Go decoder
+// reads, and the C COBS encoder must produce the byte-stream form the
+// document shows, delimiter aside.
 func TestCDecodesDocExamples(t *testing.T) {
 	b := buildC(t)
-	frames, wire := docExamples(t)
-	if len(frames) == 0 {
-		t.Fatal("docs/protocol.md section 11 holds no example frames yet; the C decoder cannot be checked against the document")
-	}
-	types := map[byte]bool{}
-	for _, f := range frames {
-		types[f[1]] = true
-	}
-	for _, ty := range []protocol.Type{protocol.TypeGreeting, protocol.TypeConfig, protocol.TypeState,
-		protocol.TypeCommand, protocol.TypeHeartbeat, protocol.TypeStop} {
-		if !types[byte(ty)] {
-			t.Errorf("docs/protocol.md has no example frame of type %v (0x%02X)", ty, byte(ty))
+	examples := docExamples(t)
+	described := docJSON(t)
+	types := []protocol.Type{protocol.TypeGreeting, protocol.TypeConfig, protocol.TypeState,
+		protocol.TypeCommand, protocol.TypeHeartbeat, protocol.TypeStop}
+	have := map[string]bool{}
+	for _, e := range examples {
+		have[e.name] = true
+		if len(e.frame) == 0 || len(e.wire) == 0 {
+			t.Fatalf("docs/protocol.md example %s lacks its frame or its byte-stream form", e.name)
 		}
+	}
+	for _, ty := range types {
+		if !have[ty.Name()] {
+			t.Errorf("docs/protocol.md has no example frame of type %s (0x%02X)", ty.Name(), byte(ty))
+		}
+	}
+	frames := make([][]byte, len(examples))
+	for i, e := range examples {
+		frames[i] = e.frame
 	}
 	res := decodeWithC(t, b.selftest, frames)
-	for i, r := range res {
+	for i, e := range examples {
+		r := res[i]
 		if r.refused != 0 {
-			t.Errorf("example frame %d of the document is refused by C: %s\n%x", i+1, r.text, frames[i])
+			t.Errorf("example %s of the document is refused by C: %s\n%x", e.name, r.text, e.frame)
+			continue
+		}
+		want, ok := described[e.name]
+		if !ok {
+			t.Errorf("docs/protocol.md section 10 has no JSON line for %s", e.name)
+			continue
+		}
+		if d := sameMessage(&want, &r.msg); d != "" {
+			t.Errorf("example %s: C decodes something else than section 10 describes: %s", e.name, d)
 		}
 	}
-	compareDecoders(t, b.selftest, frames, func(i int) string { return fmt.Sprintf("doc example frame %d", i+1) })
-	if len(wire) > 0 {
-		if len(wire) != len(frames) {
-			t.Fatalf("the document shows %d frames and %d byte-stream forms; want one of each per example", len(frames), len(wire))
+	compareDecoders(t, b.selftest, frames, func(i int) string { return "doc example " + examples[i].name })
+
+	var file strings.Builder
+	for _, e := range examples {
+		if e.wire[len(e.wire)-1] != 0 || bytes.IndexByte(e.wire[:len(e.wire)-1], 0) >= 0 {
+			t.Errorf("example %s: the byte-stream form must hold exactly one zero, at the end", e.name)
+			continue
 		}
-		var file strings.Builder
-		for i := range frames {
-			w := wire[i]
-			fmt.Fprintf(&file, "%x | %x\n", frames[i], w[:len(w)-1])
-		}
-		path := filepath.Join(t.TempDir(), "doc-cobs.txt")
-		if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		out := runSelftest(t, b.selftest, "cobs", path)
-		if !strings.Contains(out, fmt.Sprintf("ok: %d COBS checks, 0 failed", 2*len(frames))) {
-			t.Fatalf("the C COBS code disagrees with the document's byte-stream forms:\n%s", out)
-		}
+		fmt.Fprintf(&file, "%x | %x\n", e.frame, e.wire[:len(e.wire)-1])
 	}
-	t.Logf("%d example frames of docs/protocol.md decoded by C (%d byte-stream forms checked)", len(frames), len(wire))
+	path := filepath.Join(t.TempDir(), "doc-cobs.txt")
+	if err := os.WriteFile(path, []byte(file.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := runSelftest(t, b.selftest, "cobs", path)
+	if !strings.Contains(out, fmt.Sprintf("ok: %d COBS checks, 0 failed", 2*len(examples))) {
+		t.Fatalf("the C COBS code disagrees with the document's byte-stream forms:\n%s", out)
+	}
+	t.Logf("%d example frames of docs/protocol.md: C decodes each to its section-10 description and writes its byte-stream form", len(examples))
 }
 
 // TestCLawMatchesGo runs the C port of the control law and the Go law
