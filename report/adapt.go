@@ -278,8 +278,17 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 	}
 
 	// Alarms and events.
+	v.ScenarioText = m.ScenarioText
 	for _, e := range events {
 		v.alarms = append(v.alarms, alarmMark{t: e.T, kind: e.Kind, severity: string(e.Severity)})
+		if e.Severity == record.Info {
+			continue
+		}
+		if len(v.AlarmRows) >= maxAlarmRows {
+			v.AlarmRowsCut++
+			continue
+		}
+		v.AlarmRows = append(v.AlarmRows, alarmRow{T: fmtFloat(e.T), Kind: e.Kind, Severity: string(e.Severity), Foot: e.Foot, Message: e.Message})
 	}
 
 	// Steps: table and poses.

@@ -59,6 +59,12 @@ type view struct {
 	// unreadable telemetry); the page shows them near the top.
 	Warnings []string
 	Caution  string
+	// ScenarioText is the scenario file exactly as it ran.
+	ScenarioText string
+	// AlarmRows is the alarm log (events that are not plain information),
+	// at most maxAlarmRows of them; AlarmRowsCut says how many were left out.
+	AlarmRows    []alarmRow
+	AlarmRowsCut int
 
 	t      []float64
 	joints []jointSeries
@@ -68,6 +74,15 @@ type view struct {
 	// stepsTotal is how many heel strikes the run had; poses may be fewer.
 	stepsTotal int
 }
+
+// alarmRow is one line of the alarm log table.
+type alarmRow struct {
+	T, Kind, Severity, Foot, Message string
+}
+
+// maxAlarmRows bounds the alarm log table; a run that slips on every step
+// for ten minutes would otherwise make the page a log file.
+const maxAlarmRows = 200
 
 // figure is one inline SVG plot with its caption.
 type figure struct {
@@ -279,6 +294,7 @@ figcaption{font-size:.85em;color:#444;margin-top:.3em}
 .steps{max-height:40em;overflow:auto;display:block}
 .notes{font-size:.85em;color:#444}
 code{font-size:.95em}
+pre{background:#fff;border:1px solid #ddd;padding:.6em;overflow:auto;font-size:.85em}
 </style>
 </head>
 <body>
@@ -311,6 +327,12 @@ code{font-size:.95em}
 {{end}}</table>{{end}}
 {{if .Notes}}<ul class="notes">{{range .Notes}}<li>{{.}}</li>{{end}}</ul>{{end}}
 
+<h2>Alarm log</h2>
+{{if .AlarmRows}}<div class="steps"><table id="alarm-log">
+<tr><th>time (s)</th><th>kind</th><th>severity</th><th>foot</th><th>message</th></tr>
+{{range .AlarmRows}}<tr><td class="num">{{.T}}</td><td>{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Foot}}</td><td>{{.Message}}</td></tr>
+{{end}}</table></div>{{if .AlarmRowsCut}}<p class="notes">{{.AlarmRowsCut}} more alarm(s) not listed; every one is in events.jsonl and on the timeline.</p>{{end}}{{else}}<p id="alarm-log">No alarms were raised.</p>{{end}}
+
 <h2>Plots</h2>
 {{range .Figures}}<figure id="fig-{{.ID}}">
 {{.SVG}}
@@ -323,6 +345,9 @@ code{font-size:.95em}
 <tr>{{range .StepCols}}<th>{{.}}</th>{{end}}</tr>
 {{range .StepRows}}<tr>{{range .}}<td class="num">{{.}}</td>{{end}}</tr>
 {{end}}</table></div>{{else}}<p id="steps">No heel strikes were recorded.</p>{{end}}
+
+<h2>Scenario</h2>
+<details id="scenario-text"><summary>Scenario file as it ran</summary><pre>{{.ScenarioText}}</pre></details>
 
 <footer class="notes"><p>Made by gaitrig from the run folder. One file: plots are inline SVG, no scripts, no external links.</p></footer>
 </body>

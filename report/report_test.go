@@ -277,6 +277,20 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 			if !strings.Contains(p.texts["fig-plot-heel-strikes"], "heel strikes shown") {
 				t.Errorf("heel-strike caption missing its count: %q", p.texts["fig-plot-heel-strikes"])
 			}
+			alarms := 0
+			for _, e := range r.events {
+				if e.Severity != record.Info {
+					alarms++
+				}
+			}
+			if log := p.byID["alarm-log"]; log == nil {
+				t.Error("no alarm log")
+			} else if rows := countElements(log, "tr"); alarms > 0 && rows-1 != alarms {
+				t.Errorf("alarm log has %d rows, want %d", rows-1, alarms)
+			}
+			if !strings.Contains(p.texts["scenario-text"], r.m.ScenarioText) {
+				t.Error("scenario text not in the report")
+			}
 			if !strings.Contains(p.texts["plot-joint-angles"], r.m.JointNames[0]) {
 				t.Errorf("joint name %q not in the angle plot's legend", r.m.JointNames[0])
 			}
