@@ -6,6 +6,7 @@ import (
 	"strings"
 	"testing"
 
+	"gaitrig/plant"
 	"gaitrig/record"
 )
 
@@ -125,5 +126,42 @@ func TestFrictionEnvelopeSource(t *testing.T) {
 				t.Errorf("checked %d of %d ticks (%d on the patch)", checked, len(r.ticks), onPatch)
 			}
 		})
+	}
+}
+
+// TestPlantParamsJSON reads the terrain and foot radii from plant.Params
+// marshalled the way the hil loop fills Manifest.Plant, so the report
+// follows the real format rather than one of its own making. (Only this
+// test imports plant; the report itself depends on record alone.)
+func TestPlantParamsJSON(t *testing.T) {
+	p := plant.Params{
+		HipMass: 10,
+		Legs: [2]plant.Leg{
+			{Length: 1, Mass: 2, COMDist: 0.5, Inertia: 0.1, FootRadius: 0.3},
+			{Length: 1, Mass: 2, COMDist: 0.5, Inertia: 0.1, FootRadius: 0.25},
+		},
+		Gravity: 9.81,
+		Terrain: plant.Terrain{Start: [2]float64{-1, 0}, Segments: []plant.Segment{
+			{Length: 3, Slope: 0, MuStatic: 0.8, MuKinetic: 0.6},
+			{Length: 2, Slope: -0.1, MuStatic: 0.2, MuKinetic: 0.15},
+		}},
+	}
+	raw, err := json.Marshal(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	segs := terrainOf(raw)
+	want := []terrainSeg{{x0: -1, x1: 2, slope: 0, muS: 0.8}, {x0: 2, x1: 2 + 2*math.Cos(-0.1), slope: -0.1, muS: 0.2}}
+	if len(segs) != len(want) {
+		t.Fatalf("got %+v, want %+v", segs, want)
+	}
+	for i := range want {
+		g, w := segs[i], want[i]
+		if math.Abs(g.x0-w.x0) > 1e-12 || math.Abs(g.x1-w.x1) > 1e-12 || g.slope != w.slope || g.muS != w.muS {
+			t.Errorf("segment %d = %+v, want %+v", i, g, w)
+		}
+	}
+	if r := footRadiiOf(raw); r != [2]float64{0.3, 0.25} {
+		t.Errorf("foot radii %v, want [0.3 0.25]", r)
 	}
 }
