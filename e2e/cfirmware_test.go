@@ -808,7 +808,14 @@ func openPty(t *testing.T) (leader, follower *os.File) {
 func startFirmware(t *testing.T, ctx context.Context, bin, tty string) *firmwareProc {
 	t.Helper()
 	p := &firmwareProc{stderr: &syncBuffer{}, done: make(chan struct{})}
-	p.cmd = exec.CommandContext(ctx, bin, "-v", tty)
+	args := []string{bin, "-v", tty}
+	// GAITRIG_CFW_WRAPPER runs the firmware under a checker, for example
+	// "valgrind --error-exitcode=99 -q": the checker's complaints land in
+	// the firmware's stderr and its exit status fails the test.
+	if w := strings.Fields(os.Getenv("GAITRIG_CFW_WRAPPER")); len(w) > 0 {
+		args = append(w, args...)
+	}
+	p.cmd = exec.CommandContext(ctx, args[0], args[1:]...)
 	p.cmd.Stderr = p.stderr
 	p.cmd.WaitDelay = 2 * time.Second
 	if err := p.cmd.Start(); err != nil {
