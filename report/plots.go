@@ -103,6 +103,7 @@ func newPlot(title, xLabel, yLabel string) *plot.Plot {
 	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
 		ax.Label.TextStyle.Font = font.From(sansFont, 10)
 		ax.Tick.Label.Font = font.From(sansFont, 9)
+		ax.Tick.Marker = niceTicks{}
 	}
 	p.Legend.TextStyle.Font = font.From(sansFont, 9)
 	p.Legend.Top = true

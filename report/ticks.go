@@ -1,0 +1,59 @@
+package report
+
+import (
+	"math"
+	"strconv"
+
+	"gonum.org/v1/plot"
+)
+
+// niceTicks puts labelled ticks at round numbers (1, 2 or 5 times a power
+// of ten) about five to eight per axis, with four unlabelled ticks between
+// each pair, and labels printed with no more decimals than the step needs:
+// "0 5 10 15 s" reads faster than "2.50 10.00 17.50".
+type niceTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (niceTicks) Ticks(lo, hi float64) []plot.Tick {
+	if !(hi > lo) || math.IsInf(lo, 0) || math.IsInf(hi, 0) {
+		return nil
+	}
+	step := niceStep((hi - lo) / 6)
+	minor := step / 5
+	decimals := max(0, -int(math.Floor(math.Log10(step)+1e-9)))
+	var ts []plot.Tick
+	start := math.Ceil(lo/minor-1e-9) * minor
+	for i := 0; ; i++ {
+		v := start + float64(i)*minor
+		if v > hi+minor*1e-9 || i > 1000 {
+			break
+		}
+		// Decide "major" on the integer count of minor steps from zero, so
+		// rounding never drops a label.
+		k := math.Round(v / minor)
+		if int64(k)%5 == 0 {
+			v = k * minor
+			if v == 0 {
+				v = 0 // no "-0"
+			}
+			ts = append(ts, plot.Tick{Value: v, Label: strconv.FormatFloat(v, 'f', decimals, 64)})
+		} else {
+			ts = append(ts, plot.Tick{Value: v})
+		}
+	}
+	return ts
+}
+
+// niceStep rounds raw up to 1, 2 or 5 times a power of ten.
+func niceStep(raw float64) float64 {
+	if raw <= 0 || math.IsNaN(raw) {
+		return 1
+	}
+	p := math.Pow(10, math.Floor(math.Log10(raw)))
+	for _, m := range []float64{1, 2, 5, 10} {
+		if m*p >= raw*(1-1e-9) {
+			return m * p
+		}
+	}
+	return 10 * p
+}
