@@ -10,13 +10,18 @@ type footGeom struct {
 	gt, gn float64         // J̇ q̇ for the two rows
 	slip   float64         // t·v_p, tangential velocity of the material point
 	vn     float64         // n·v_p
-	cop    float64         // centre of pressure on the arc, m
 }
 
 // footGeometry computes the contact geometry of foot i. The material point
 // at the contact moves with v_centre + ω ẑ × (−R n) = v_centre + R ω t.
 func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
-	c, dc, ddc := m.footCentre(q, i)
+	var tr trig
+	tr.a[i], tr.ap[i] = axis(q[2+i])
+	m.footGeometryTrig(q, v, &tr, i, hint, g)
+}
+
+func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, g *footGeom) {
+	c, dc, ddc := m.footCentreTrig(q, tr, i)
 	m.closest(c, hint, &g.sp)
 	f := &m.feet[i]
 	g.gap = g.sp.dist - f.radius
@@ -34,13 +39,18 @@ func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
 	g.gn = (nn[0]*ddc[0] + nn[1]*ddc[1]) * w2
 	g.slip = t[0]*v[0] + t[1]*v[1] + g.jt[k]*v[k]
 	g.vn = nn[0]*v[0] + nn[1]*v[1] + g.jn[k]*v[k]
-	g.cop = 0
-	if f.radius > 0 {
-		a, _ := axis(q[k])
-		// Angle from the leg axis direction to the contact direction −n,
-		// positive toward a⊥ (the toe).
-		g.cop = f.radius * math.Atan2(-(a[0]*nn[1]-a[1]*nn[0]), -(a[0]*nn[0]+a[1]*nn[1]))
+}
+
+// centreOfPressure is the arc length from the point of the arc under the
+// leg axis to the contact point, positive toward a⊥ (the toe).
+func (m *Model) centreOfPressure(q *[MaxDOF]float64, i int, g *footGeom) float64 {
+	R := m.feet[i].radius
+	if R == 0 {
+		return 0
 	}
+	a, _ := axis(q[2+i])
+	nn := g.sp.n
+	return R * math.Atan2(-(a[0]*nn[1] - a[1]*nn[0]), -(a[0]*nn[0] + a[1]*nn[1]))
 }
 
 // eval is one evaluation of the right-hand side: accelerations and, for
@@ -63,56 +73,50 @@ func dot(a, b *[MaxDOF]float64, n int) float64 {
 // rhs evaluates the constrained dynamics at (q, v) with the contact modes of
 // s: M q̈ + h = Q + Wᵀ λ with J q̈ + J̇ q̇ = 0 for the constrained rows. For a
 // rolling foot W = J (rows t and n); for a sliding foot only the normal row
-// is constrained and its force acts along W = J_n − μ_k σ J_t. The
-// saddle-point system is solved directly (see kkt).
+// is constrained and its force acts along W = J_n − μ_k σ J_t. See
+// solveSaddle for how the system is solved.
 func (m *Model) rhs(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval) {
-	var M [MaxDOF][MaxDOF]float64
-	var h, top [MaxDOF]float64
+	var tr trig
+	m.trigOf(q, &tr)
+	var f [MaxDOF]float64
 	n := m.n
-	m.massBias(q, v, &M, &h)
-	m.generalizedInput(in, &top)
-	for i := 0; i < n; i++ {
-		top[i] -= h[i]
-	}
-	var J, W [maxRows][MaxDOF]float64
-	var bottom [maxRows]float64
-	var foot, kind [maxRows]int // kind 0: tangential, 1: normal
+	m.generalizedInput(in, &f)
+	m.biasTrig(&tr, v, &f)
+	var sd saddle
 	k := 0
 	for i := 0; i < m.nFeet; i++ {
 		g := &ev.geom[i]
-		m.footGeometry(q, v, i, s.Seg[i], g)
+		m.footGeometryTrig(q, v, &tr, i, s.Seg[i], g)
 		ev.force[i] = [2]float64{}
 		switch s.Mode[i] {
 		case Rolling:
-			J[k], W[k], bottom[k], foot[k], kind[k] = g.jt, g.jt, -g.gt, i, 0
+			sd.j[k], sd.w[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jt, g.jt, -g.gt, i, 0
 			k++
-			J[k], W[k], bottom[k], foot[k], kind[k] = g.jn, g.jn, -g.gn, i, 1
+			sd.j[k], sd.w[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jn, g.jn, -g.gn, i, 1
 			k++
 		case Sliding:
 			mu := m.terrain[g.sp.seg].muK * s.SlipDir[i]
 			for j := 0; j < n; j++ {
-				W[k][j] = g.jn[j] - mu*g.jt[j]
+				sd.w[k][j] = g.jn[j] - mu*g.jt[j]
 			}
-			J[k], bottom[k], foot[k], kind[k] = g.jn, -g.gn, i, 1
+			sd.j[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jn, -g.gn, i, 1
 			k++
 		}
 	}
-	var sys kkt
-	sys.setup(&M, n, &J, &W, k, &top, &bottom)
-	ev.ok = sys.solve(n + k)
+	sd.k = k
+	var lam [maxRows]float64
+	ev.ok = m.solveSaddle(&tr, &f, &sd, &ev.acc, &lam)
 	if !ev.ok {
 		return
 	}
-	copy(ev.acc[:n], sys.b[:n])
 	for r := 0; r < k; r++ {
-		lam := sys.b[n+r]
-		i := foot[r]
-		if kind[r] == 0 {
-			ev.force[i][0] = lam
+		i := sd.foot[r]
+		if sd.kind[r] == 0 {
+			ev.force[i][0] = lam[r]
 		} else {
-			ev.force[i][1] = lam
+			ev.force[i][1] = lam[r]
 			if s.Mode[i] == Sliding {
-				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * lam
+				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * lam[r]
 			}
 		}
 	}
@@ -124,7 +128,7 @@ func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
 	g := &ev.geom[i]
 	ft, fn := ev.force[i][0], ev.force[i][1]
 	mu := m.terrain[g.sp.seg].muS
-	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, CoP: g.cop, Gap: g.gap,
+	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, CoP: m.centreOfPressure(&s.Q, i, g), Gap: g.gap,
 		SlipVel: g.slip, Segment: g.sp.seg, Point: g.sp.p}
 	fc.Utilization = utilization(ft, fn, mu)
 	if s.Mode[i] == Free {

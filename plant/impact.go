@@ -2,37 +2,20 @@ package plant
 
 import "math"
 
-// impulseRows collects the constraint rows of an impact: J (the velocity
-// rows that must vanish after the impact) and W (the directions the
-// impulses act along; W = J except on the friction-cone boundary).
-type impulseRows struct {
-	k    int
-	j, w [maxRows][MaxDOF]float64
-	foot [maxRows]int
-	kind [maxRows]int // 0 tangential, 1 normal
-}
-
 // solveImpulse solves [M −Wᵀ; J 0][Δv; Λ] = [0; −J v⁻] for Λ and applies
 // Δv to v. It reports false if the system is singular.
-func (m *Model) solveImpulse(q *[MaxDOF]float64, v *[MaxDOF]float64, rows *impulseRows, lam *[maxRows]float64) bool {
-	var M [MaxDOF][MaxDOF]float64
-	m.MassMatrix(q, &M)
-	n := m.n
-	var top [MaxDOF]float64
-	var bottom [maxRows]float64
+func (m *Model) solveImpulse(q *[MaxDOF]float64, v *[MaxDOF]float64, rows *saddle, lam *[maxRows]float64) bool {
+	var tr trig
+	m.trigOf(q, &tr)
 	for r := 0; r < rows.k; r++ {
-		bottom[r] = -dot(&rows.j[r], v, n)
+		rows.bottom[r] = -dot(&rows.j[r], v, m.n)
 	}
-	var sys kkt
-	sys.setup(&M, n, &rows.j, &rows.w, rows.k, &top, &bottom)
-	if !sys.solve(n + rows.k) {
+	var f, dv [MaxDOF]float64
+	if !m.solveSaddle(&tr, &f, rows, &dv, lam) {
 		return false
 	}
-	for i := 0; i < n; i++ {
-		v[i] += sys.b[i]
-	}
-	for r := 0; r < rows.k; r++ {
-		lam[r] = sys.b[n+r]
+	for i := 0; i < m.n; i++ {
+		v[i] += dv[i]
 	}
 	return true
 }
@@ -71,7 +54,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			active[f] = true
 		}
 	}
-	var rows impulseRows
+	var rows saddle
 	var lam [maxRows]float64
 	var slipSign [2]float64 // ≠ 0: foot on the cone boundary with Λ_t = μ_s σ Λ_n
 	var demanded [2]float64 // |Λ_t|/Λ_n of the no-slip solution

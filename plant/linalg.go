@@ -137,50 +137,63 @@ func (s *kkt) setup(M *[MaxDOF][MaxDOF]float64, n int, J, W *[maxRows][MaxDOF]fl
 // equilibration and partial pivoting; the solution is left in s.b. It
 // reports false when the matrix is singular to working precision.
 func (s *kkt) solve(N int) bool {
+	if N > maxKKT {
+		return false
+	}
 	for i := 0; i < N; i++ {
+		row := s.a[i][:N]
 		mx := 0.0
-		for j := 0; j < N; j++ {
-			mx = math.Max(mx, math.Abs(s.a[i][j]))
+		for _, x := range row {
+			if x < 0 {
+				x = -x
+			}
+			if x > mx {
+				mx = x
+			}
 		}
-		if !(mx > 0) || !finite(mx) {
+		if !(mx > 0) || mx > math.MaxFloat64 {
 			return false
 		}
 		inv := 1 / mx
-		for j := 0; j < N; j++ {
-			s.a[i][j] *= inv
+		for j := range row {
+			row[j] *= inv
 		}
 		s.b[i] *= inv
 	}
 	for c := 0; c < N; c++ {
-		p := c
+		p, best := c, math.Abs(s.a[c][c])
 		for r := c + 1; r < N; r++ {
-			if math.Abs(s.a[r][c]) > math.Abs(s.a[p][c]) {
-				p = r
+			if x := math.Abs(s.a[r][c]); x > best {
+				p, best = r, x
 			}
 		}
-		if !(math.Abs(s.a[p][c]) > 1e-13) {
+		if !(best > 1e-13) {
 			return false
 		}
 		if p != c {
 			s.a[p], s.a[c] = s.a[c], s.a[p]
 			s.b[p], s.b[c] = s.b[c], s.b[p]
 		}
+		pivot := s.a[c][c+1 : N]
 		inv := 1 / s.a[c][c]
+		bc := s.b[c]
 		for r := c + 1; r < N; r++ {
 			f := s.a[r][c] * inv
 			if f == 0 {
 				continue
 			}
-			for j := c + 1; j < N; j++ {
-				s.a[r][j] -= f * s.a[c][j]
+			row := s.a[r][c+1 : N]
+			for j, x := range pivot {
+				row[j] -= f * x
 			}
-			s.b[r] -= f * s.b[c]
+			s.b[r] -= f * bc
 		}
 	}
 	for r := N - 1; r >= 0; r-- {
 		x := s.b[r]
-		for j := r + 1; j < N; j++ {
-			x -= s.a[r][j] * s.b[j]
+		row := s.a[r][r+1 : N]
+		for j, a := range row {
+			x -= a * s.b[r+1+j]
 		}
 		s.b[r] = x / s.a[r][r]
 	}

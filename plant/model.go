@@ -168,6 +168,32 @@ func (m *Model) footCentre(q *[MaxDOF]float64, i int) (c, dc, ddc [2]float64) {
 	return
 }
 
+// footCentreTrig is footCentre with the link's sine and cosine given.
+func (m *Model) footCentreTrig(q *[MaxDOF]float64, tr *trig, i int) (c, dc, ddc [2]float64) {
+	f := &m.feet[i]
+	a, ap := tr.a[i], tr.ap[i]
+	k := f.length - f.radius
+	c = [2]float64{q[0] + k*a[0] + f.offset*ap[0], q[1] + k*a[1] + f.offset*ap[1]}
+	dc = [2]float64{k*ap[0] - f.offset*a[0], k*ap[1] - f.offset*a[1]}
+	ddc = [2]float64{-k*a[0] - f.offset*ap[0], -k*a[1] - f.offset*ap[1]}
+	return
+}
+
+// biasTrig subtracts h(q, q̇) from f (the same terms as massBias).
+func (m *Model) biasTrig(tr *trig, v *[MaxDOF]float64, f *[MaxDOF]float64) {
+	g := m.p.Gravity
+	f[1] -= m.massTotal * g
+	for i := 0; i < m.nLinks; i++ {
+		l := &m.links[i]
+		k := 2 + i
+		mr := l.mass * l.rho
+		w2 := v[k] * v[k]
+		f[0] += mr * tr.a[i][0] * w2
+		f[1] += mr * tr.a[i][1] * w2
+		f[k] -= mr * g * tr.ap[i][1]
+	}
+}
+
 // massBias fills the mass matrix M(q) and the bias h(q, q̇) (velocity
 // products and gravity). With absolute angles the links couple only through
 // the hip, so M has an arrow shape.

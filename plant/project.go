@@ -4,7 +4,7 @@ package plant
 // normal row (gap) for every foot in contact, and the tangential row
 // (rolling anchor) for a rolling foot. With withAnchor, res receives the
 // position residuals.
-func (m *Model) projectRows(s *State, rows *impulseRows, res *[maxRows]float64) {
+func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 	rows.k = 0
 	for f := 0; f < m.nFeet; f++ {
 		if s.Mode[f] == Free {
@@ -37,7 +37,7 @@ func (m *Model) projectRows(s *State, rows *impulseRows, res *[maxRows]float64) 
 // velocities by the same projection of J q̇ (the least kinetic-energy
 // change that satisfies the constraints).
 func (m *Model) project(s *State) {
-	var rows impulseRows
+	var rows saddle
 	var res [maxRows]float64
 	for it := 0; it < 2; it++ {
 		m.projectRows(s, &rows, &res)
@@ -60,7 +60,7 @@ func (m *Model) project(s *State) {
 
 // projectVelocity removes the constraint-violating part of q̇.
 func (m *Model) projectVelocity(s *State) {
-	var rows impulseRows
+	var rows saddle
 	var res [maxRows]float64
 	m.projectRows(s, &rows, &res)
 	if rows.k == 0 {
@@ -75,24 +75,13 @@ func (m *Model) projectVelocity(s *State) {
 
 // solveCorrection finds the M-weighted least correction dq with J dq = −res:
 // [M −Jᵀ; J 0][dq; λ] = [0; −res].
-func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *impulseRows, res *[maxRows]float64, dq *[MaxDOF]float64, lam *[maxRows]float64) bool {
-	var M [MaxDOF][MaxDOF]float64
-	m.MassMatrix(q, &M)
-	n := m.n
-	var top [MaxDOF]float64
-	var bottom [maxRows]float64
+func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *saddle, res *[maxRows]float64, dq *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	var tr trig
+	m.trigOf(q, &tr)
 	for r := 0; r < rows.k; r++ {
-		bottom[r] = -res[r]
+		rows.bottom[r] = -res[r]
 	}
-	var sys kkt
-	sys.setup(&M, n, &rows.j, &rows.w, rows.k, &top, &bottom)
-	if !sys.solve(n + rows.k) {
-		return false
-	}
+	var f [MaxDOF]float64
 	*dq = [MaxDOF]float64{}
-	copy(dq[:n], sys.b[:n])
-	for r := 0; r < rows.k; r++ {
-		lam[r] = sys.b[n+r]
-	}
-	return true
+	return m.solveSaddle(&tr, &f, rows, dq, lam)
 }

@@ -78,7 +78,7 @@ type sympyFixture struct {
 	} `json:"cases"`
 }
 
-func readFixture(t *testing.T, name string, v any) {
+func readFixture(t testing.TB, name string, v any) {
 	t.Helper()
 	path := filepath.Join("..", "testdata", "reference", name)
 	b, err := os.ReadFile(path)

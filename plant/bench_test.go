@@ -1,0 +1,112 @@
+package plant
+
+import (
+	"math"
+	"testing"
+)
+
+// benchWalker builds a walker with arc feet standing on its left foot
+// (rolling, contact forces computed every evaluation) with the swing leg
+// clear of the ground, so every tick is a plain stance tick.
+func benchWalker(b *testing.B, torso bool) (*Model, State) {
+	p := DemoParams()
+	if !torso {
+		p.Torso = nil
+	}
+	// Rocking on a foot whose arc centre is the hip keeps the walker
+	// upright for as long as the benchmark runs; a short swing leg never
+	// touches down.
+	p.Legs[0].FootRadius = p.Legs[0].Length
+	p.Legs[1].Length = 0.5
+	p.Legs[1].FootRadius = 0.1
+	p.Legs[1].COMDist = 0.2
+	if torso {
+		// A passive upright torso falls over within a second; hang its
+		// centre of mass below the hip instead so it swings for as long as
+		// the benchmark runs (same number of links and equations).
+		p.Torso.COMDist = -0.3
+	}
+	m, err := New(p, Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	rates := []float64{0.3, -0.5, 0.1}[:m.NumLinks()]
+	s, err := m.Stand(0, 0, [2]float64{0.1, -0.2}, 0, rates...)
+	if err != nil {
+		b.Fatal(err)
+	}
+	return m, s
+}
+
+func benchTick(b *testing.B, torso bool) {
+	m, s := benchWalker(b, torso)
+	start := s
+	var in Input
+	var r TickResult
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		m.Step(&s, &in, 1e-3, &r)
+		if r.NumEvents > 0 || r.Contacts[0].Mode != Rolling {
+			b.Fatalf("tick %d: events %v, stance mode %v", i, r.Events[:r.NumEvents], r.Contacts[0].Mode)
+		}
+		if s.T > 60 {
+			s = start
+		}
+	}
+}
+
+// BenchmarkTickCompass: one 1 ms tick of the compass walker with arc feet,
+// one foot rolling, contact forces computed, 4 RK4 sub-steps, projection.
+func BenchmarkTickCompass(b *testing.B) { benchTick(b, false) }
+
+// BenchmarkTickTorso: the same with a torso (5 degrees of freedom).
+func BenchmarkTickTorso(b *testing.B) { benchTick(b, true) }
+
+// BenchmarkStepMap: one full step-to-step map of the passive arc-foot
+// walker of the SciPy fixture with the adaptive integrator (tolerance
+// 1e-11), event location included.
+func BenchmarkStepMap(b *testing.B) {
+	var fx scipyFixture
+	readFixture(b, "passive_step_scipy.json", &fx)
+	m := fixtureModel(b, &fx)
+	fp := fx.FixedPoint
+	s := fixtureState(m, 0, fp.Q, fp.V, fp.Stance)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		if _, err := m.StepMap(s, nil, GaitOptions{}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+// BenchmarkTenStepsSciPyTolerance integrates the same ten passive steps as
+// the SciPy timing run of passive_step_scipy.json at its tolerance
+// (rtol = atol from the fixture), for the side-by-side speed comparison.
+func BenchmarkTenStepsSciPyTolerance(b *testing.B) {
+	var fx scipyFixture
+	readFixture(b, "passive_step_scipy.json", &fx)
+	m := fixtureModel(b, &fx)
+	s0 := fixtureState(m, fx.Initial.T, fx.Initial.Q, fx.Initial.V, fx.Initial.Stance)
+	o := GaitOptions{Tol: fx.Timing.Rtol}
+	b.ReportAllocs()
+	b.ResetTimer()
+	var last State
+	for i := 0; i < b.N; i++ {
+		s := s0
+		for k := 0; k < fx.Timing.Steps; k++ {
+			res, err := m.StepMap(s, nil, o)
+			if err != nil {
+				b.Fatal(err)
+			}
+			s = res.After
+		}
+		last = s
+	}
+	b.StopTimer()
+	b.ReportMetric(fx.Timing.WallTimeS*1e9, "scipy-ns/op")
+	if math.Abs(last.T-fx.TenSteps.Steps[9].HeelStrikeTime) > 1e-6 {
+		b.Fatalf("ten steps end at %g, SciPy %g", last.T, fx.TenSteps.Steps[9].HeelStrikeTime)
+	}
+}
