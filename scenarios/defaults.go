@@ -27,7 +27,7 @@ func linkIs(kind string) func(s *Scenario) bool {
 var defaults = []fieldDefault{
 	{"plant.gravity_mps2", 9.81, nil},
 	{"terrain.start_m", [2]float64{-1, 0}, nil},
-	{"initial.stance", "left", func(s *Scenario) bool { return !s.Initial.NaturalGait }},
+	{"initial.stance", "left", nil},
 	{"controller.mode", "walk", linkIs(LinkBuiltin)},
 	{"controller.baud", 115200, linkIs(LinkSerial)},
 	{"controller.broker", "embedded", linkIs(LinkMQTT)},

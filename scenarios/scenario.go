@@ -180,7 +180,8 @@ type Segment struct {
 type Initial struct {
 	// NaturalGait true starts the run from the period-one gait that the gait
 	// finder finds for this walker and controller, just after a heel strike.
-	// The explicit fields must then be left out.
+	// The explicit fields below are then optional and, when given, are the
+	// guess the gait finder starts from.
 	NaturalGait bool `yaml:"natural_gait"`
 	// Stance is the leg in contact at the start: left or right. Default
 	// left.
@@ -190,7 +191,7 @@ type Initial struct {
 	XM float64 `yaml:"x_m"`
 	// LegAnglesRad are the absolute angles of the left and right leg from the
 	// vertical, rad, counter-clockwise positive (positive puts the foot ahead
-	// of the hip). Required unless natural_gait is true.
+	// of the hip). Required unless natural_gait is true; |angle| < π/2.
 	LegAnglesRad []float64 `yaml:"leg_angles_rad"`
 	// TorsoAngleRad is the absolute torso angle from the vertical, rad;
 	// forward lean is negative. Default 0.

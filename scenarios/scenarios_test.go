@@ -32,7 +32,6 @@ func TestBrokenFiles(t *testing.T) {
 		{"kinetic-above-static.yaml", []string{"kinetic-above-static.yaml:14: terrain.segments[0].mu_kinetic: 0.7 is outside", "allowed 0 ≤ mu_kinetic ≤ mu_static"}},
 		{"fractional-steps.yaml", []string{"fractional-steps.yaml:19: run.max_steps: expected a whole number, got 10.5"}},
 		{"one-leg-angle.yaml", []string{"one-leg-angle.yaml:15: initial.leg_angles_rad: expected 2 numbers [left, right], got 1"}},
-		{"natural-gait-and-angles.yaml", []string{"natural-gait-and-angles.yaml:16: initial.leg_angles_rad: leg_angles_rad applies only to an explicit initial state"}},
 		{"torso-angle-without-torso.yaml", []string{"torso-angle-without-torso.yaml:16: initial.torso_angle_rad: torso_angle_rad applies only to a walker with a torso"}},
 		{"bad-faults.yaml", []string{
 			"bad-faults.yaml:22: faults[0].rate: 1.5 is out of range; allowed 0 < rate ≤ 1",

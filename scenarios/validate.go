@@ -264,14 +264,15 @@ func (c *checker) initial() {
 	if !c.require("", "initial", "the initial state: natural_gait: true, or explicit leg angles") {
 		return
 	}
-	explicit := []string{"stance", "x_m", "leg_angles_rad", "torso_angle_rad", "leg_rates_radps", "torso_rate_radps"}
-	if in.NaturalGait {
-		c.only("initial", explicit, "to an explicit initial state; with natural_gait: true the gait finder sets the state")
-		return
-	}
 	c.oneOf("initial.stance", in.Stance, "left", "right")
 	c.num("initial.x_m", in.XM, math.Abs(in.XM) <= 1e6, "|X| ≤ 1e6")
-	if c.require("initial", "leg_angles_rad", "[left, right] leg angles from the vertical, rad, or natural_gait: true") && !c.d.bad["initial.leg_angles_rad"] {
+	// With natural_gait the angles are an optional guess for the gait
+	// finder; without it they are the state itself.
+	given := c.has("initial.leg_angles_rad") || c.isBad("initial.leg_angles_rad")
+	if !in.NaturalGait {
+		given = c.require("initial", "leg_angles_rad", "[left, right] leg angles from the vertical, rad, or natural_gait: true")
+	}
+	if given && !c.isBad("initial.leg_angles_rad") {
 		if len(in.LegAnglesRad) != 2 {
 			c.errf("initial.leg_angles_rad", "expected 2 numbers [left, right], got %d", len(in.LegAnglesRad))
 		}
