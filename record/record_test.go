@@ -479,3 +479,41 @@ func killChild(dir string) {
 	w.Close(Summary{Outcome: Aborted, Reason: "child was not killed"})
 	os.Exit(0)
 }
+
+// BenchmarkTickRead measures streaming one telemetry row back from disk.
+func BenchmarkTickRead(b *testing.B) {
+	dir := filepath.Join(b.TempDir(), "run")
+	w, err := Create(dir, testManifest())
+	if err != nil {
+		b.Fatal(err)
+	}
+	r := rand.New(rand.NewPCG(9, 10))
+	const rows = 20000
+	for i := int64(0); i < rows; i++ {
+		tk := randomTick(r, i)
+		w.Tick(&tk)
+	}
+	w.Close(Summary{Outcome: Pass})
+	run, err := Open(dir)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.ResetTimer()
+	var tr *TickReader
+	for i := 0; i < b.N; i++ {
+		if tr == nil || !tr.Next() {
+			if tr != nil {
+				tr.Close()
+			}
+			if tr, err = run.Ticks(); err != nil {
+				b.Fatal(err)
+			}
+			if !tr.Next() {
+				b.Fatal("no rows")
+			}
+		}
+	}
+	b.StopTimer()
+	tr.Close()
+}
