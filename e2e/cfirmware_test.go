@@ -19,6 +19,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"syscall"
 	"testing"
 	"time"
 
@@ -1128,6 +1129,47 @@ func TestCFirmwareRefusesOtherVersion(t *testing.T) {
 	}
 	if !strings.Contains(fw.stderr.String(), "frame speaks version 2, this side speaks version 1") {
 		t.Errorf("firmware log should name both versions:\n%s", fw.stderr.String())
+	}
+}
+
+// TestCFirmwareStopsOnSIGTERM interrupts a configured firmware: it must
+// tell the rig with a stop frame (reason firmware), print its counters and
+// exit 1, rather than vanish and leave the rig to a watchdog trip.
+func TestCFirmwareStopsOnSIGTERM(t *testing.T) {
+	b := buildC(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	leader, follower := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, follower.Name())
+	rig := newRigEnd(t, leader)
+	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+		t.Fatalf("want a greeting first, got %v", g.Type)
+	}
+	rig.send(ptr(demoConfig()))
+	// A heartbeat after the config shows the firmware took it and idles.
+	for {
+		m := rig.next(5*time.Second, false)
+		if m.Type == protocol.TypeHeartbeat {
+			break
+		}
+	}
+	if err := fw.cmd.Process.Signal(syscall.SIGTERM); err != nil {
+		t.Fatalf("signalling the firmware: %v", err)
+	}
+	for {
+		m := rig.next(5*time.Second, true)
+		if m.Type == protocol.TypeStop {
+			if m.Stop.Reason != protocol.StopFirmware {
+				t.Fatalf("want stop reason %d (firmware), got %+v", protocol.StopFirmware, m.Stop)
+			}
+			break
+		}
+	}
+	if code := fw.wait(t, 5*time.Second); code != 1 {
+		t.Fatalf("an interrupted firmware must exit 1, got %d", code)
+	}
+	if c := fw.counters(t); c["end"] != "interrupted" {
+		t.Fatalf("counters end = %q, want \"interrupted\"", c["end"])
 	}
 }
 

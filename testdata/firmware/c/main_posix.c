@@ -20,7 +20,8 @@
  *
  * Exit status: 0 after a stop with reason "end" from the rig; 1 after any
  * other stop reason, a frame of another protocol version, a config it cannot
- * drive, a link closed under it or a rig silent for 10 s; 2 for bad usage or
+ * drive, a link closed under it, a rig silent for 10 s, or SIGINT/SIGTERM
+ * (after sending a stop with reason "firmware"); 2 for bad usage or
  * a tty that cannot be opened. On every exit after the tty opened it prints
  * one line of counters to stderr, starting "cfw: counters", which the
  * end-to-end test reads.
@@ -30,6 +31,7 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <poll.h>
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -80,6 +82,17 @@ struct link {
     uint32_t last_state_seq; /* seq of heartbeat and stop frames (section 6) */
     long last_tx_ms;         /* when we last sent a frame, for heartbeats */
 };
+
+/* Set by SIGINT or SIGTERM: the loop sees it when poll or read returns with
+ * EINTR, tells the rig, prints its counters and exits. The only global of
+ * the shim, as a signal handler can reach nothing else. */
+static volatile sig_atomic_t interrupted;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    interrupted = 1;
+}
 
 static long now_ms(void)
 {
@@ -439,6 +452,13 @@ static int run(struct link *l)
         p.revents = 0;
         pr = poll(&p, 1, timeout);
         t = now_ms();
+        if (interrupted) {
+            /* Tell the rig why we leave, so its run ends with a reason
+             * instead of a watchdog trip. */
+            fprintf(stderr, "cfw: interrupted, sending stop\n");
+            send_stop(l, PROTO_STOP_FIRMWARE, "firmware interrupted");
+            return finish(l, "interrupted", 1);
+        }
         if (pr < 0 && errno != EINTR) {
             fprintf(stderr, "cfw: poll failed: %s\n", strerror(errno));
             return finish(l, "poll-failed", 1);
@@ -545,6 +565,16 @@ int main(int argc, char **argv)
         fprintf(stderr, "cfw: cannot set raw mode on %s: %s\n", path, strerror(errno));
         close(l.fd);
         return 2;
+    }
+    {
+        /* No SA_RESTART: poll and read must return EINTR so the loop sees
+         * the flag at once. */
+        struct sigaction sa;
+        memset(&sa, 0, sizeof sa);
+        sa.sa_handler = on_signal;
+        sigemptyset(&sa.sa_mask);
+        sigaction(SIGINT, &sa, NULL);
+        sigaction(SIGTERM, &sa, NULL);
     }
     rc = run(&l);
     close(l.fd);
