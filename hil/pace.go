@@ -1,25 +1,23 @@
 package hil
 
-import (
-	"runtime"
-	"time"
-)
+import "time"
 
 // spinWindow is how long before a deadline the pacer stops sleeping and
-// spins: Go's timer wake-ups on a loaded Linux host are late by tens of
-// microseconds (common practice for soft real-time loops), so a sleep that
-// ends this early and a short spin land on the deadline far more tightly
-// than a sleep alone.
+// spins. A thread woken from clock_nanosleep is late by some tens of
+// microseconds on a loaded Linux host (measured here: see the package
+// benchmarks), so a sleep that ends this early and a short spin land on
+// the deadline far more tightly than a sleep alone.
 const spinWindow = 50 * time.Microsecond
 
 // waitUntil blocks until the monotonic clock reaches t: it sleeps until
-// spinWindow before t, then spins, yielding the processor so the receiver
-// goroutine can still run on a 2-core host.
+// spinWindow before t, then spins.
 func waitUntil(t time.Time) {
 	if d := time.Until(t) - spinWindow; d > 0 {
-		time.Sleep(d)
+		sleepThread(d)
 	}
 	for time.Now().Before(t) {
-		runtime.Gosched()
+		// Pure spin: on a goroutine locked to its thread, Gosched would hand
+		// the goroutine to another thread and back, which costs more than
+		// the window itself.
 	}
 }

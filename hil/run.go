@@ -96,9 +96,10 @@ type runner struct {
 	tick      int64
 	seq       uint32
 	tr        truth
-	out       protocol.Message // state sent
-	msg       protocol.Message // received
-	cmd       protocol.Command // last valid command taken
+	out       protocol.Message    // state sent
+	msg       protocol.Message    // received
+	fe        *bridges.FrameError // target of errors.As, kept here so it is not allocated per Recv
+	cmd       protocol.Command    // last valid command taken
 	commanded [protocol.MaxJoints]float64
 	row       record.Tick
 	fresh     bool
@@ -120,6 +121,8 @@ type runner struct {
 	realtime string
 
 	peakUtil, minNormal float64
+
+	onTick func() // called after each tick (MeasureLatency counts fresh commands)
 
 	outcome  record.Outcome
 	reason   string
@@ -216,15 +219,14 @@ func (r *runner) handshake() error {
 	deadline := time.Now().Add(r.cfg.HandshakeTimeout)
 	for {
 		err := r.conn.Recv(deadline, &r.msg)
-		var fe *bridges.FrameError
 		switch {
 		case errors.Is(err, bridges.ErrTimeout):
 			return fmt.Errorf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
 		case errors.Is(err, bridges.ErrClosed):
 			r.linkLost(0, "the link closed before the firmware greeted")
 			return errors.New("hil: the link closed before the firmware greeted")
-		case errors.As(err, &fe):
-			r.badFrame(fe.Reason)
+		case errors.As(err, &r.fe):
+			r.badFrame(r.fe.Reason)
 			continue
 		case err != nil:
 			return fmt.Errorf("hil: waiting for the greeting: %w", err)
@@ -523,6 +525,9 @@ func (r *runner) advance(wall time.Time) {
 			}
 		}
 	}
+	if r.onTick != nil {
+		r.onTick()
+	}
 	r.tick++
 }
 
@@ -761,17 +766,7 @@ func (r *runner) lockstep(ctx context.Context) error {
 // sequence number, resending after cfg.Resend and tripping the watchdog
 // after cfg.Watchdog. It returns false when the run must end.
 func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
-	send := func() {
-		if r.chance(FaultDrop, r.s.T, r.frng) {
-			r.counts.DroppedStates++
-			return
-		}
-		r.counts.StatesSent++
-		if err := r.conn.Send(&r.out); err != nil && errors.Is(err, bridges.ErrClosed) {
-			r.linkLost(0, "link to the firmware closed while sending a state")
-		}
-	}
-	send()
+	r.sendState()
 	resendAt := time.Now().Add(r.cfg.Resend)
 	for r.outcome == "" {
 		if r.aborted(ctx) {
@@ -788,7 +783,6 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			deadline = wd
 		}
 		err := r.conn.Recv(deadline, &r.msg)
-		var fe *bridges.FrameError
 		switch {
 		case err == nil:
 		case errors.Is(err, bridges.ErrTimeout):
@@ -797,7 +791,7 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 					r.rec.Flush() // rows must not sit in the buffer while the rig waits
 				}
 				r.counts.Resends++
-				send()
+				r.sendState()
 				resendAt = time.Now().Add(r.cfg.Resend)
 			}
 			r.drainLinkEvents()
@@ -808,8 +802,8 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 				r.outcome, r.reason, r.stopCode = record.Aborted, "the link to the firmware closed", protocol.StopEStop
 			}
 			return false
-		case errors.As(err, &fe):
-			r.badFrame(fe.Reason)
+		case errors.As(err, &r.fe):
+			r.badFrame(r.fe.Reason)
 			continue
 		default:
 			r.linkLost(0, "link to the firmware failed: "+err.Error())
@@ -848,6 +842,18 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 		}
 	}
 	return false
+}
+
+// sendState sends the tick's state unless a drop fault eats it.
+func (r *runner) sendState() {
+	if r.chance(FaultDrop, r.s.T, r.frng) {
+		r.counts.DroppedStates++
+		return
+	}
+	r.counts.StatesSent++
+	if err := r.conn.Send(&r.out); err != nil && errors.Is(err, bridges.ErrClosed) {
+		r.linkLost(0, "link to the firmware closed while sending a state")
+	}
 }
 
 // sendStop tells the firmware the run is over and why.
