@@ -154,9 +154,13 @@ func (s *sliceTicks) Tick() *record.Tick { return &s.ticks[s.i-1] }
 func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint int) {
 	n := max(sizeHint, 0)
 	v.t = make([]float64, 0, n)
+	v.latency = make([]float64, 0, n)
 	v.joints = v.joints[:0]
 	for j := 0; j < nj; j++ {
-		v.joints = append(v.joints, jointSeries{angle: make([]float64, 0, n), rate: make([]float64, 0, n)})
+		v.joints = append(v.joints, jointSeries{
+			angle: make([]float64, 0, n), rate: make([]float64, 0, n),
+			commanded: make([]float64, 0, n), applied: make([]float64, 0, n),
+		})
 	}
 	for k := range v.feet {
 		v.feet[k] = footSeries{
@@ -167,9 +171,12 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 	for src != nil && src.Next() {
 		t := src.Tick()
 		v.t = append(v.t, t.T)
+		v.latency = append(v.latency, t.LatencyUS)
 		for j := range v.joints {
 			v.joints[j].angle = append(v.joints[j].angle, t.Angle[j])
 			v.joints[j].rate = append(v.joints[j].rate, t.Rate[j])
+			v.joints[j].commanded = append(v.joints[j].commanded, t.Commanded[j])
+			v.joints[j].applied = append(v.joints[j].applied, t.Applied[j])
 		}
 		for k := range v.feet {
 			f := &t.Feet[k]

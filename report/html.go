@@ -28,10 +28,12 @@ type criterionRow struct {
 	Limit string
 }
 
-// jointSeries is one joint's encoder angle and rate over time.
+// jointSeries is one joint's encoder angle and rate, and the torque the
+// firmware commanded and the plant received, over time.
 type jointSeries struct {
-	name        string
-	angle, rate []float64
+	name               string
+	angle, rate        []float64
+	commanded, applied []float64
 }
 
 // footSeries is one foot's ground reaction over time. mu is the static
@@ -66,11 +68,14 @@ type view struct {
 	AlarmRows    []alarmRow
 	AlarmRowsCut int
 
-	t      []float64
-	joints []jointSeries
-	feet   [2]footSeries
-	alarms []alarmMark
-	poses  []stickPose
+	t []float64
+	// latency is the command round trip per tick, µs; NaN where there was
+	// no fresh command or no measurement (lockstep).
+	latency []float64
+	joints  []jointSeries
+	feet    [2]footSeries
+	alarms  []alarmMark
+	poses   []stickPose
 	// stepsTotal is how many heel strikes the run had; poses may be fewer.
 	stepsTotal int
 }
@@ -135,6 +140,46 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 			return nil, err
 		}
 		add(spec.id, spec.title, "Joint angle is child link minus parent link, counter-clockwise positive. "+st.caption(), svg)
+	}
+
+	// Torques: what the firmware asked for and what the plant got after
+	// the actuator model (limits, lag). A gap between the two is saturation
+	// or lag the firmware may not know about.
+	{
+		var tl []line
+		for i, j := range v.joints {
+			col := lineColors[i%len(lineColors)]
+			tl = append(tl,
+				line{label: j.name + " commanded", x: v.t, y: j.commanded, color: col, dashed: true},
+				line{label: j.name + " applied", x: v.t, y: j.applied, color: col})
+		}
+		title := "Joint torques, commanded and applied"
+		p, st, err := linePlot(title, "time (s)", "torque (N·m)", tl, maxPoints)
+		if err != nil {
+			return nil, err
+		}
+		svg, err := renderSVG(p, w, h, "plot-torques", title)
+		if err != nil {
+			return nil, err
+		}
+		add("plot-torques", title, "Dashed: what the firmware commanded; solid: what the plant received after the actuator model's limits and lag. "+st.caption(), svg)
+	}
+
+	// Round-trip latency, only where it was measured (wall-clock runs).
+	if finiteCount(v.latency) > 0 {
+		title := "Command round-trip latency"
+		p, st, err := linePlot(title, "time (s)", "latency (µs)", []line{
+			{label: "round trip", x: v.t, y: v.latency, color: colFourth},
+		}, maxPoints)
+		if err != nil {
+			return nil, err
+		}
+		p.Y.Min = math.Min(p.Y.Min, 0)
+		svg, err := renderSVG(p, w, h, "plot-latency", title)
+		if err != nil {
+			return nil, err
+		}
+		add("plot-latency", title, "State sent to command received, per tick with a fresh command; gaps are ticks that held the last command. "+st.caption(), svg)
 	}
 
 	// Ground reaction force per foot with the friction cone's edges.
@@ -229,6 +274,17 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 		add("plot-heel-strikes", "Walker at each heel strike", capText+".", svg)
 	}
 	return figs, nil
+}
+
+// finiteCount counts the finite values of v.
+func finiteCount(v []float64) int {
+	k := 0
+	for _, x := range v {
+		if !math.IsNaN(x) && !math.IsInf(x, 0) {
+			k++
+		}
+	}
+	return k
 }
 
 // renderView writes the page for v.

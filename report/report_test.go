@@ -18,9 +18,12 @@ import (
 
 // plotIDs are the ids of the SVG plots every report carries.
 var plotIDs = []string{
-	"plot-joint-angles", "plot-joint-rates", "plot-force-left", "plot-force-right",
+	"plot-joint-angles", "plot-joint-rates", "plot-torques", "plot-force-left", "plot-force-right",
 	"plot-utilization", "plot-alarms", "plot-heel-strikes",
 }
+
+// latencyPlotID is the plot a run with measured latency adds.
+const latencyPlotID = "plot-latency"
 
 // writeSynthFolder writes the synthetic run r into a run folder with the
 // real record writer. close=false leaves it as a killed run leaves it: no
@@ -153,10 +156,12 @@ func countElements(n *html.Node, tag string) int {
 var svgPart = regexp.MustCompile(`(?s)<svg id="[^"]*".*?</svg>`)
 
 // checkPlots checks every plot is there, is an <svg> with drawn content,
-// and that each inline SVG part is well-formed XML on its own.
-func checkPlots(t *testing.T, p parsed) {
+// and that each inline SVG part is well-formed XML on its own; extra names
+// plots this report must have beyond the usual ones.
+func checkPlots(t *testing.T, p parsed, extra ...string) {
 	t.Helper()
-	for _, id := range plotIDs {
+	ids := append(append([]string{}, plotIDs...), extra...)
+	for _, id := range ids {
 		n, ok := p.byID[id]
 		if !ok {
 			t.Errorf("plot %s missing", id)
@@ -173,8 +178,8 @@ func checkPlots(t *testing.T, p parsed) {
 		}
 	}
 	parts := svgPart.FindAllString(p.raw, -1)
-	if len(parts) != len(plotIDs) {
-		t.Errorf("found %d inline SVG parts, want %d", len(parts), len(plotIDs))
+	if len(parts) != len(ids) {
+		t.Errorf("found %d inline SVG parts, want %d", len(parts), len(ids))
 	}
 	for i, s := range parts {
 		if strings.Contains(s, "NaN") || strings.Contains(s, "Inf") {
@@ -202,9 +207,23 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 		wantFail    int // failing criteria rows
 		wantThinned bool
 		edit        func(r *synthRun)
+		wantExtra   []string
 	}{
 		{name: "low-friction patch fails the friction ceiling", opts: synthOpts{durationS: 8, hz: 1000, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: true},
 		{name: "good ground passes, with torso", opts: synthOpts{durationS: 3, hz: 500, patchMu: 0.6, withTorso: true}, wantOutcome: "pass", wantFail: 0, wantThinned: false},
+		{
+			name: "wall-clock run adds the latency plot", opts: synthOpts{durationS: 4, hz: 1000, patchMu: 0.6}, wantOutcome: "pass", wantThinned: true,
+			edit: func(r *synthRun) {
+				r.m.Clock = "wallclock"
+				for i := range r.ticks {
+					if i%3 != 2 { // every third tick holds the last command
+						r.ticks[i].LatencyUS = 90 + float64(i%17)
+					}
+				}
+				r.sum.LatencyUS = &record.Latency{P50: 98, P99: 106, Max: 106}
+			},
+			wantExtra: []string{latencyPlotID},
+		},
 		{
 			name: "markup in names is shown as text", opts: synthOpts{durationS: 2, hz: 500, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: false,
 			edit: func(r *synthRun) {
@@ -233,7 +252,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 				t.Fatal(err)
 			}
 			p := parseReport(t, raw)
-			checkPlots(t, p)
+			checkPlots(t, p, tc.wantExtra...)
 			if _, ok := p.byID["incomplete"]; ok {
 				t.Errorf("a complete run folder is reported incomplete: %q", p.texts["incomplete"])
 			}
