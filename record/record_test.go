@@ -242,6 +242,50 @@ func TestCreateRefusesNonEmptyFolder(t *testing.T) {
 	}
 }
 
+// TestCreateClaimsFolder starts several runs on one folder at once: exactly
+// one may own it, and the manifest on disk is that one's.
+func TestCreateClaimsFolder(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "run")
+	const n = 8
+	type result struct {
+		w   *Writer
+		err error
+		id  int
+	}
+	results := make(chan result, n)
+	for i := 0; i < n; i++ {
+		go func(i int) {
+			m := testManifest()
+			m.Seed = int64(i)
+			w, err := Create(dir, m)
+			results <- result{w, err, i}
+		}(i)
+	}
+	winner := -1
+	for i := 0; i < n; i++ {
+		r := <-results
+		if r.err == nil {
+			if winner >= 0 {
+				t.Errorf("runs %d and %d both own %s", winner, r.id, dir)
+			}
+			winner = r.id
+			defer r.w.Close(Summary{Outcome: Pass})
+		} else if !strings.Contains(r.err.Error(), "choose a new folder") {
+			t.Errorf("run %d: unclear refusal: %v", r.id, r.err)
+		}
+	}
+	if winner < 0 {
+		t.Fatal("no run got the folder")
+	}
+	run, err := Open(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if run.Manifest.Seed != int64(winner) {
+		t.Errorf("manifest is run %d's, the folder belongs to run %d", run.Manifest.Seed, winner)
+	}
+}
+
 // writeSmallRun writes n ticks, n/10 steps and events, and closes the run.
 func writeSmallRun(t *testing.T, n int) string {
 	t.Helper()

@@ -61,12 +61,19 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		m.StartTime = time.Now()
 	}
 	w := &Writer{dir: dir, m: m, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
-	if err := writeJSONAtomic(filepath.Join(dir, ManifestFile), &w.m); err != nil {
-		return nil, err
-	}
+	// Creating telemetry.csv exclusively claims the folder: of two runs
+	// started on one folder at once, exactly one gets past here, before
+	// either has written a manifest the other could overwrite.
 	var err error
 	if w.tele, err = os.OpenFile(filepath.Join(dir, TelemetryFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+		if errors.Is(err, os.ErrExist) {
+			return nil, fmt.Errorf("record: run folder %s is already in use by another run; choose a new folder", dir)
+		}
 		return nil, fmt.Errorf("record: %w", err)
+	}
+	if err := writeJSONAtomic(filepath.Join(dir, ManifestFile), &w.m); err != nil {
+		w.closeFiles()
+		return nil, err
 	}
 	w.teleBuf = bufio.NewWriterSize(w.tele, 64<<10)
 	w.teleBuf.WriteString(csvHeader(m.Columns))

@@ -121,6 +121,26 @@ func LoadBuiltin(name string) (*Scenario, error) {
 	return Parse(BuiltinPrefix+name, text)
 }
 
+// Resolve loads what a user typed on the command line: a scenario file
+// path, a built-in name such as level-demo, or builtin:NAME. A path that
+// exists wins over a built-in of the same name.
+func Resolve(arg string) (*Scenario, error) {
+	if name, ok := strings.CutPrefix(arg, BuiltinPrefix); ok {
+		return LoadBuiltin(name)
+	}
+	if _, err := os.Stat(arg); err == nil {
+		return Load(arg)
+	}
+	if _, err := library.ReadFile(path.Join("library", arg+".yaml")); err == nil && !strings.ContainsAny(arg, "/\\") {
+		return LoadBuiltin(arg)
+	}
+	var names []string
+	for _, e := range Library() {
+		names = append(names, e.Name)
+	}
+	return nil, fmt.Errorf("scenario: %s is neither a file nor a built-in scenario; built-in: %s", arg, strings.Join(names, ", "))
+}
+
 // BuiltinText returns the YAML text of a built-in scenario, for a user who
 // wants a starting point of their own.
 func BuiltinText(name string) ([]byte, error) {

@@ -304,3 +304,29 @@ func FuzzParse(f *testing.F) {
 		}
 	})
 }
+
+func TestResolve(t *testing.T) {
+	tests := []struct {
+		arg, wantFile, wantErr string
+	}{
+		{"level-demo", "builtin:level-demo", ""},
+		{"builtin:push-recovery", "builtin:push-recovery", ""},
+		{filepath.Join("testdata", "valid-minimal.yaml"), filepath.Join("testdata", "valid-minimal.yaml"), ""},
+		{"no-such-scenario", "", "neither a file nor a built-in scenario; built-in: latency-stress, level-demo"},
+		{filepath.Join("testdata", "broken", "bad-link.yaml"), "", "bad-link.yaml:17: controller.link"},
+		{"builtin:nope", "", "no built-in scenario \"nope\""},
+	}
+	for _, tc := range tests {
+		s, err := Resolve(tc.arg)
+		switch {
+		case tc.wantErr != "":
+			if err == nil || !strings.Contains(err.Error(), tc.wantErr) {
+				t.Errorf("%s: want error containing %q, got %v", tc.arg, tc.wantErr, err)
+			}
+		case err != nil:
+			t.Errorf("%s: %v", tc.arg, err)
+		case s.File != tc.wantFile:
+			t.Errorf("%s: file %q, want %q", tc.arg, s.File, tc.wantFile)
+		}
+	}
+}
