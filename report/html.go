@@ -403,7 +403,7 @@ pre{background:#fff;border:1px solid #ddd;padding:.6em;overflow:auto;font-size:.
 {{end}}</table></div>{{else}}<p id="steps">No heel strikes were recorded.</p>{{end}}
 
 <h2>Scenario</h2>
-<details id="scenario-text"><summary>Scenario file as it ran</summary><pre>{{.ScenarioText}}</pre></details>
+{{if .ScenarioText}}<details id="scenario-text"><summary>Scenario file as it ran</summary><pre>{{.ScenarioText}}</pre></details>{{else}}<p id="scenario-text">The manifest does not carry the scenario text.</p>{{end}}
 
 <footer class="notes"><p>Made by gaitrig from the run folder. One file: plots are inline SVG, no scripts, no external links.</p></footer>
 </body>
