@@ -71,8 +71,12 @@ func WriteHTML(dir string) error {
 // criterion, named after it, failing when the criterion was not met. A run
 // that has no summary (killed) gets one failing case saying so; a run that
 // tripped or was aborted while every criterion passed gets a failing
-// "outcome" case too, so CI never shows such a run as green.
+// "outcome" case too, so CI never shows such a run as green. A nil run
+// gives one case in error.
 func RunSuite(run *record.Run) Suite {
+	if run == nil {
+		return Suite{Name: "gaitrig", Cases: []Case{{Name: "run", Error: "no run folder was read"}}}
+	}
 	name := run.Manifest.Scenario
 	if name == "" {
 		name = filepath.Base(run.Dir)

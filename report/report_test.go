@@ -458,9 +458,13 @@ func TestWriteHTMLBadFolders(t *testing.T) {
 	}
 }
 
-func TestRenderNilRun(t *testing.T) {
+func TestNilRun(t *testing.T) {
 	if err := Render(io.Discard, nil); err == nil {
-		t.Fatal("Render(nil) gave no error")
+		t.Error("Render(nil) gave no error")
+	}
+	s := RunSuite(nil)
+	if len(s.Cases) != 1 || s.Cases[0].Error == "" {
+		t.Errorf("RunSuite(nil) = %+v, want one case in error", s)
 	}
 }
 
