@@ -12,6 +12,7 @@ import (
 // a single contact has a minimum normal force of +Inf.
 type num float64
 
+// MarshalJSON writes x, non-finite values as null or "±Inf".
 func (x num) MarshalJSON() ([]byte, error) {
 	f := float64(x)
 	switch {
@@ -25,6 +26,7 @@ func (x num) MarshalJSON() ([]byte, error) {
 	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
 }
 
+// UnmarshalJSON reads what MarshalJSON writes.
 func (x *num) UnmarshalJSON(b []byte) error {
 	f, err := parseJSONNumber(b)
 	*x = num(f)

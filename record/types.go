@@ -145,10 +145,10 @@ type Tick struct {
 // Pose is the walker's outline at an instant, for stick figures: world (x,
 // y) points in metres.
 type Pose struct {
-	Hip      [2]float64    `json:"hip"`
+	Hip      [2]float64    `json:"hip"`       // hip joint
 	Feet     [2][2]float64 `json:"feet"`      // contact-side bottom of each foot (left, right)
 	TorsoTop [2]float64    `json:"torso_top"` // meaningful when HasTorso
-	HasTorso bool          `json:"has_torso"`
+	HasTorso bool          `json:"has_torso"` // the walker has a torso
 }
 
 // Step is one row of the per-step table: from one heel strike to the next.
@@ -210,9 +210,9 @@ const (
 
 // Latency is a distribution summary in microseconds.
 type Latency struct {
-	P50 float64 `json:"p50"`
-	P99 float64 `json:"p99"`
-	Max float64 `json:"max"`
+	P50 float64 `json:"p50"` // median
+	P99 float64 `json:"p99"` // 99th percentile
+	Max float64 `json:"max"` // largest seen
 }
 
 // Criterion is one pass criterion and how the run fared against it.
@@ -226,22 +226,22 @@ type Criterion struct {
 // Summary is the run's result, written last to summary.json. Non-finite
 // numbers are written as null and read back as NaN.
 type Summary struct {
-	Outcome                 Outcome        `json:"outcome"`
-	Reason                  string         `json:"reason,omitempty"` // why it failed, tripped or was aborted
-	Steps                   int            `json:"steps"`            // heel strikes completed
-	Ticks                   int64          `json:"ticks"`            // ticks run
-	SimTimeS                float64        `json:"sim_time_s"`
-	WallTimeS               float64        `json:"wall_time_s"`
-	Alarms                  map[string]int `json:"alarms"` // count per alarm kind
-	PeakFrictionUtilization float64        `json:"peak_friction_utilization"`
-	MinNormalForceN         float64        `json:"min_normal_force_n"`
-	MeanSpeedMPS            float64        `json:"mean_speed_mps"`
-	LatencyUS               *Latency       `json:"latency_us"`          // wall-clock mode; nil in lockstep
-	JitterUS                *Latency       `json:"jitter_us,omitempty"` // tick start jitter, wall-clock mode
-	DeadlineMisses          int            `json:"deadline_misses"`
-	Criteria                []Criterion    `json:"criteria"`
-	Caution                 string         `json:"caution"` // the safety caution
-	ToolVersion             string         `json:"tool_version"`
+	Outcome                 Outcome        `json:"outcome"`                   // pass, fail, tripped or aborted
+	Reason                  string         `json:"reason,omitempty"`          // why it failed, tripped or was aborted
+	Steps                   int            `json:"steps"`                     // heel strikes completed
+	Ticks                   int64          `json:"ticks"`                     // ticks run
+	SimTimeS                float64        `json:"sim_time_s"`                // simulated time reached, s
+	WallTimeS               float64        `json:"wall_time_s"`               // wall-clock duration of the run, s
+	Alarms                  map[string]int `json:"alarms"`                    // count per alarm kind
+	PeakFrictionUtilization float64        `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N) of a stance foot
+	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N (+Inf: no contact)
+	MeanSpeedMPS            float64        `json:"mean_speed_mps"`            // mean forward speed over completed steps, m/s
+	LatencyUS               *Latency       `json:"latency_us"`                // wall-clock mode; nil in lockstep
+	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, wall-clock mode
+	DeadlineMisses          int            `json:"deadline_misses"`           // wall-clock ticks that started late
+	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
+	Caution                 string         `json:"caution"`                   // the safety caution
+	ToolVersion             string         `json:"tool_version"`              // gaitrig version
 }
 
 // Caution is the safety caution every summary and report carries.

@@ -36,7 +36,7 @@ func (p Problem) String() string {
 // Error is returned by the loader when a scenario is malformed. It carries
 // every problem found, in file order.
 type Error struct {
-	Problems []Problem
+	Problems []Problem // sorted by line
 }
 
 // Error joins the problems one per line.

@@ -126,6 +126,8 @@ type LegOverride struct {
 
 // Legs is the shared leg block with optional per-side overrides.
 type Legs struct {
+	// Leg holds the shared values; its fields sit directly in the legs
+	// block.
 	Leg `yaml:",inline"`
 	// Left overrides values of the shared leg for the left leg (leg 0).
 	Left *LegOverride `yaml:"left"`
