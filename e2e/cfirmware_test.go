@@ -971,8 +971,9 @@ func demoConfig() protocol.Message {
 // TestCFirmwareSession drives the C firmware's session over a real pty
 // with a minimal rig: greeting, config, states answered with commands that
 // echo the seq, a resent state answered identically, garbage and damaged
-// frames counted without losing the next state, a heartbeat on a quiet
-// line, and a normal stop that ends the process with status 0.
+// frames counted without losing the next state, a burst of states answered
+// newest first, a heartbeat on a quiet line, and a normal stop that ends
+// the process with status 0.
 func TestCFirmwareSession(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
@@ -1044,13 +1045,34 @@ func TestCFirmwareSession(t *testing.T) {
 	rig.raw([]byte{0x00, 0x00})
 	answer(52)
 
+	// A burst of states in one write, as from a wall-clock rig that got
+	// ahead: the firmware answers the newest it has read and skips older
+	// ones (section 7). How the pty splits the burst between reads is up to
+	// the kernel, so the test asks for increasing seqs ending at the newest,
+	// not for a fixed number of answers.
+	var burst []byte
+	for seq := uint32(53); seq <= 57; seq++ {
+		burst = append(burst, wireOf(t, ptr(state(seq)), func(f []byte) []byte { return f })...)
+	}
+	rig.raw(burst)
+	burstAnswers := 0
+	for last := uint32(52); last != 57; {
+		c := rig.next(5*time.Second, true)
+		if c.Type != protocol.TypeCommand || c.Seq <= last || c.Seq > 57 {
+			t.Fatalf("burst of states 53…57: want commands with increasing seqs up to 57, got %+v after seq %d", c, last)
+		}
+		last = c.Seq
+		burstAnswers++
+	}
+	t.Logf("burst of 5 states answered with %d commands", burstAnswers)
+
 	// A quiet line gets heartbeats (section 6: after 100 ms without sending).
 	hb := rig.next(2*time.Second, false)
-	if hb.Type != protocol.TypeHeartbeat || hb.Seq != 52 {
-		t.Fatalf("on a quiet line: want a heartbeat with the last state's seq 52, got %+v", hb)
+	if hb.Type != protocol.TypeHeartbeat || hb.Seq != 57 {
+		t.Fatalf("on a quiet line: want a heartbeat with the last state's seq 57, got %+v", hb)
 	}
 
-	stop := protocol.Message{Type: protocol.TypeStop, Seq: 52, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "session test done"}}
+	stop := protocol.Message{Type: protocol.TypeStop, Seq: 57, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "session test done"}}
 	rig.send(&stop)
 	if code := fw.wait(t, 5*time.Second); code != 0 {
 		t.Fatalf("after a normal stop the firmware must exit 0, got %d\nstderr:\n%s", code, fw.stderr.String())
@@ -1062,8 +1084,11 @@ func TestCFirmwareSession(t *testing.T) {
 	if got := counter(t, c, "repeats"); got != 1 {
 		t.Errorf("firmware repeats = %d, want 1", got)
 	}
-	if got := counter(t, c, "commands"); got != 53 {
-		t.Errorf("firmware commands = %d, want 53 (52 states and one resend)", got)
+	if got, want := counter(t, c, "commands"), uint64(53+burstAnswers); got != want {
+		t.Errorf("firmware commands = %d, want %d (52 states, one resend, %d answers to the burst)", got, want, burstAnswers)
+	}
+	if got, want := counter(t, c, "skipped"), uint64(5-burstAnswers); got != want {
+		t.Errorf("firmware skipped = %d states, want %d of the burst", got, want)
 	}
 	if c["end"] != "stop" {
 		t.Errorf("firmware end = %q, want \"stop\"", c["end"])
@@ -1290,8 +1315,8 @@ func TestCFirmwareWalks(t *testing.T) {
 	if n := counter(t, fwc, "unexpected"); n != 0 {
 		t.Errorf("the C firmware got %d frames of a type the rig should not send", n)
 	}
-	if got, want := counter(t, fwc, "commands"), counter(t, fwc, "states"); got != want {
-		t.Errorf("the C firmware answered %d of %d states", got, want)
+	if got, want := counter(t, fwc, "commands"), counter(t, fwc, "states"); got != want || counter(t, fwc, "skipped") != 0 {
+		t.Errorf("the C firmware answered %d of %d states (%s skipped); in lockstep it must answer each", got, want, fwc["skipped"])
 	}
 	if code != 0 || fwc["end"] != "stop" {
 		t.Errorf("the C firmware must exit 0 on the rig's normal stop; exit %d, end %q", code, fwc["end"])

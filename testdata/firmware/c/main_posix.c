@@ -66,6 +66,7 @@ struct counters {
     unsigned long states;
     unsigned long commands;
     unsigned long repeats;      /* states received again with the same seq */
+    unsigned long skipped;      /* states left unanswered: superseded by a newer one, or before a config */
     unsigned long heartbeats_in;
     unsigned long heartbeats_out;
     unsigned long greetings;
@@ -105,10 +106,11 @@ static void print_counters(const struct link *l, const char *end)
 {
     fprintf(stderr,
             "cfw: counters bytes_in=%lu bytes_out=%lu frames_in=%lu frames_out=%lu "
-            "frame_errors=%lu unexpected=%lu states=%lu commands=%lu repeats=%lu "
+            "frame_errors=%lu unexpected=%lu states=%lu commands=%lu repeats=%lu skipped=%lu "
             "heartbeats_in=%lu heartbeats_out=%lu greetings=%lu end=%s\n",
             l->n.bytes_in, l->n.bytes_out, l->n.frames_in, l->n.frames_out, l->n.frame_errors,
-            l->n.unexpected, l->n.states, l->n.commands, l->n.repeats, l->n.heartbeats_in,
+            l->n.unexpected, l->n.states, l->n.commands, l->n.repeats, l->n.skipped,
+            l->n.heartbeats_in,
             l->n.heartbeats_out, l->n.greetings, end);
 }
 
@@ -274,6 +276,12 @@ struct session {
      * answer without running the law again. */
     int have_last;
     struct proto_message last;
+    /* The newest state of the bytes read so far, answered once the read
+     * buffer has been split. A wall-clock rig that got ahead of us may have
+     * several states waiting; section 7 asks for an answer to the newest
+     * and none to the older ones. In lockstep there is one at a time. */
+    int have_pending;
+    struct proto_message pending;
 };
 
 static enum outcome on_config(struct link *l, struct session *s, const struct proto_config *c)
@@ -288,6 +296,10 @@ static enum outcome on_config(struct link *l, struct session *s, const struct pr
     }
     s->configured = 1;
     s->have_last = 0;
+    if (s->have_pending) {
+        l->n.skipped++; /* a state from before this config: not ours to answer */
+        s->have_pending = 0;
+    }
     if (l->verbose) {
         fprintf(stderr, "cfw: configured: %u Hz, %s, %u joints\n", (unsigned)c->tick_hz,
                 c->lockstep ? "lockstep" : "wall-clock", (unsigned)c->joints);
@@ -302,8 +314,25 @@ static enum outcome on_state(struct link *l, struct session *s, const struct pro
         /* A state before any config: the rig missed the config exchange.
          * Section 6 forbids commands before a config; the greeting repeats
          * on its timer. */
+        l->n.skipped++;
         return KEEP_GOING;
     }
+    if (s->have_pending) {
+        l->n.skipped++;
+    }
+    s->pending = *m;
+    s->have_pending = 1;
+    return KEEP_GOING;
+}
+
+/* answer_pending answers the newest state received, if any. */
+static enum outcome answer_pending(struct link *l, struct session *s)
+{
+    const struct proto_message *m = &s->pending;
+    if (!s->have_pending) {
+        return KEEP_GOING;
+    }
+    s->have_pending = 0;
     if (s->have_last && m->seq == s->last.seq) {
         l->n.repeats++;
         if (send_message(l, &s->last) != 0) {
@@ -517,6 +546,9 @@ static int run(struct link *l)
             case LINK_FAILED:
                 return finish(l, "write-failed", 1);
             }
+        }
+        if (answer_pending(l, &s) != KEEP_GOING) {
+            return finish(l, "write-failed", 1);
         }
     }
 }
