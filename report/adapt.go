@@ -319,6 +319,11 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 			hasTorso: st.Pose.HasTorso,
 			radius:   radii,
 		}
+		if !poseFinite(ps) {
+			// A pose with a NaN in it (a run that went non-finite) cannot be
+			// drawn; the step stays in the table.
+			continue
+		}
 		low := ps.feet[0]
 		if ps.feet[1][1] < low[1] {
 			low = ps.feet[1]
@@ -329,6 +334,20 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		v.poses = append(v.poses, ps)
 	}
 	return v
+}
+
+// poseFinite reports whether every coordinate of ps is a finite number.
+func poseFinite(ps stickPose) bool {
+	vals := []float64{ps.hip[0], ps.hip[1], ps.feet[0][0], ps.feet[0][1], ps.feet[1][0], ps.feet[1][1]}
+	if ps.hasTorso {
+		vals = append(vals, ps.torsoTop[0], ps.torsoTop[1])
+	}
+	for _, x := range vals {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
 }
 
 func footName(i int) string {

@@ -233,9 +233,22 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 		add("plot-utilization", title, "Above 1.0 the static friction cannot hold the foot: the slip alarm. "+st.caption(), svg)
 	}
 
-	// Alarm timeline.
+	// Alarm timeline, over the telemetry's time span widened to every
+	// alarm (a run whose telemetry is lost still shows when alarms came).
 	{
-		p, err := alarmTimeline(v.alarms, tlo, thi)
+		alo, ahi := tlo, thi
+		if len(v.t) == 0 && len(v.alarms) > 0 {
+			alo, ahi = math.Inf(1), math.Inf(-1)
+		}
+		for _, a := range v.alarms {
+			if !math.IsNaN(a.t) && !math.IsInf(a.t, 0) {
+				alo, ahi = math.Min(alo, a.t), math.Max(ahi, a.t)
+			}
+		}
+		if alo > ahi {
+			alo, ahi = tlo, thi
+		}
+		p, err := alarmTimeline(v.alarms, alo, ahi)
 		if err != nil {
 			return nil, err
 		}

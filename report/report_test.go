@@ -4,7 +4,9 @@ import (
 	"bytes"
 	"encoding/xml"
 	"errors"
+	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -553,4 +555,44 @@ func BenchmarkRender60s(b *testing.B) {
 		size = buf.Len()
 	}
 	b.ReportMetric(float64(size), "html-bytes")
+}
+
+// TestNonFiniteValues renders a run whose numbers went bad (a plant that
+// blew up): NaN and Inf must not reach the SVG, and nothing is dropped from
+// the tables.
+func TestNonFiniteValues(t *testing.T) {
+	r := makeSynthRun(synthOpts{durationS: 4, hz: 500, patchMu: 0.15})
+	nan := math.NaN()
+	r.steps[2].Pose.Hip[0] = nan
+	r.steps[3].PeakUtilization = math.Inf(1)
+	for i := 1500; i < 1600; i++ {
+		r.ticks[i].Angle[0] = nan
+		r.ticks[i].Feet[0].NormalN = math.Inf(1)
+		r.ticks[i].Feet[1].Utilization = nan
+	}
+	// (The event's time stays finite: simulated time does not go NaN, and
+	// record cannot read back a NaN t_s at present.)
+	r.events = append(r.events, record.Event{Tick: 1999, T: 3.998, Kind: "non_finite_state", Severity: record.Trip, Message: "state is not finite", Segment: record.NoSegment})
+	r.sum.PeakFrictionUtilization = math.Inf(1)
+	dir := filepath.Join(t.TempDir(), "run")
+	writeSynthFolder(t, dir, r, true)
+	if err := WriteHTML(dir); err != nil {
+		t.Fatal(err)
+	}
+	raw, err := os.ReadFile(filepath.Join(dir, HTMLFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := parseReport(t, raw)
+	checkPlots(t, p)
+	if rows := countElements(p.byID["steps"], "tr") - 1; rows != len(r.steps) {
+		t.Errorf("steps table has %d rows, want all %d", rows, len(r.steps))
+	}
+	want := fmt.Sprintf("%d of %d heel strikes shown", len(r.steps)-1, len(r.steps))
+	if c := p.texts["fig-plot-heel-strikes"]; !strings.Contains(c, want) {
+		t.Errorf("heel-strike caption %q, want %q", c, want)
+	}
+	if !strings.Contains(p.texts["alarm-log"], "state is not finite") {
+		t.Error("the non-finite-state alarm is missing from the alarm log")
+	}
 }
