@@ -627,7 +627,7 @@ func plantMessage(e *plant.Event) string {
 	f := footName(e.Foot)
 	switch e.Kind {
 	case plant.FrictionLimit:
-		return fmt.Sprintf("%s foot needs %.3g of the static friction limit (μ_s = %.3g): it would slip", f, e.Value, e.Limit)
+		return fmt.Sprintf("%s foot demands %.3g× the static friction limit μ_s·N (μ_s = %.3g): it would slip", f, e.Value, e.Limit)
 	case plant.LiftOff:
 		return fmt.Sprintf("%s foot would need the ground to pull (normal force %.4g N): it lifts off", f, e.Value)
 	case plant.ImpactSlip:

@@ -1,0 +1,91 @@
+package hil
+
+import (
+	"context"
+	"errors"
+	"testing"
+	"time"
+
+	"gaitrig/bridges"
+	"gaitrig/firmware/reference"
+	"gaitrig/plant"
+	"gaitrig/scenarios"
+)
+
+// libraryFirmware is the firmware a scenario's controller block asks for:
+// the reference law (walk or passive) with the scenario's settings; link
+// none is the passive mode (zero torques).
+func libraryFirmware(t testing.TB, s *scenarios.Scenario, actuators int) firmwareFunc {
+	t.Helper()
+	g, err := reference.GainsFromSettings(s.Controller.Settings)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mode := s.Controller.Mode
+	if s.Controller.Link == scenarios.LinkNone {
+		mode = reference.ModePassive
+	}
+	return func(c bridges.Conn) error {
+		return reference.Serve(c, reference.Options{Gains: &g, Mode: mode, Actuators: actuators, IdleTimeout: 5 * time.Second})
+	}
+}
+
+// Every built-in scenario runs through the loop against the reference
+// firmware (lockstep, so the suite stays fast; latency faults then count
+// in ticks) and leaves a complete run folder with an outcome. Whether each
+// scenario passes depends on its tuning and is the scenario library's
+// business; this test checks that the harness carries every one of them
+// through without an error and that the record agrees with the result.
+func TestLibraryScenariosRunToCompleteRecords(t *testing.T) {
+	for _, e := range scenarios.Library() {
+		t.Run(e.Name, func(t *testing.T) {
+			s, err := scenarios.LoadBuiltin(e.Name)
+			if err != nil {
+				t.Fatal(err)
+			}
+			cfg, err := FromScenario(s)
+			if err != nil {
+				t.Fatal(err)
+			}
+			cfg.Clock = Lockstep
+			cfg.Watchdog = 2 * time.Second
+			m, err := NewModel(s, cfg)
+			if err != nil {
+				t.Fatal(err)
+			}
+			init, err := InitialState(s, m)
+			if errors.Is(err, ErrNaturalGait) {
+				init, err = naturalGait(s, m)
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			res, dir, err, _ := runWith(t, context.Background(), cfg, m, init, libraryFirmware(t, s, m.NumActuators()))
+			if err != nil {
+				t.Fatal(err)
+			}
+			run := openRun(t, dir)
+			ticks, truncated, err := run.AllTicks()
+			if err != nil || truncated || int64(len(ticks)) != run.Summary.Ticks || run.Summary.Outcome != res.Summary.Outcome {
+				t.Fatalf("record: %d rows (truncated %v, err %v), summary %d ticks, outcome %s vs %s",
+					len(ticks), truncated, err, run.Summary.Ticks, run.Summary.Outcome, res.Summary.Outcome)
+			}
+			t.Logf("%s: %s%s; %d steps in %.1f s, mean speed %.3f m/s, peak friction utilization %.3f, alarms %v",
+				e.Name, res.Summary.Outcome, reasonSuffix(res.Summary.Reason), res.Summary.Steps, res.Summary.SimTimeS,
+				res.Summary.MeanSpeedMPS, res.Summary.PeakFrictionUtilization, res.Summary.Alarms)
+		})
+	}
+}
+
+// naturalGait finds the passive period-one gait from the scenario's guess.
+func naturalGait(s *scenarios.Scenario, m *plant.Model) (plant.State, error) {
+	in := s.Initial
+	var a [2]float64
+	copy(a[:], in.LegAnglesRad)
+	guess, err := m.Stand(s.StanceLeg(), in.XM, a, in.TorsoAngleRad, in.LegRatesRadps...)
+	if err != nil {
+		return guess, err
+	}
+	g, err := plant.FindGait(m, nil, guess, plant.GaitOptions{})
+	return g.State, err
+}
