@@ -1285,12 +1285,38 @@ func TestCFirmwareWalks(t *testing.T) {
 	defer conn.Close()
 
 	res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
+	checkWalk(t, "over a pty pair", res, dir, conn, fw)
+
+	// The same run with the Go reference firmware in-process.
+	rigEnd, fwEnd := inproc.Pair()
+	served := make(chan error, 1)
+	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
+	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
+	rigEnd.Close()
+	if err := <-served; err != nil {
+		t.Errorf("the Go reference firmware ended with %v", err)
+	}
+	if goRes.Summary.Steps != res.Summary.Steps || goRes.Summary.Ticks != res.Summary.Ticks {
+		t.Errorf("Go reference in-process: %d steps in %d ticks; C over pty: %d steps in %d ticks; want the same",
+			goRes.Summary.Steps, goRes.Summary.Ticks, res.Summary.Steps, res.Summary.Ticks)
+	}
+	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
+		t.Errorf("final plant state differs between the C firmware over pty and the Go reference in-process:\nC:  q=%v v=%v\nGo: q=%v v=%v",
+			res.Final.Q, res.Final.V, goRes.Final.Q, goRes.Final.V)
+	}
+}
+
+// checkWalk asserts what every walking run of the C firmware must show: at
+// least 20 heel strikes, no fall, outcome pass, no frame error on either
+// side, every state answered, exit 0 on the rig's normal stop, and a run
+// folder that reads back.
+func checkWalk(t *testing.T, label string, res hil.Result, dir string, conn bridges.Conn, fw *firmwareProc) {
+	t.Helper()
 	sum := res.Summary
 	code := fw.wait(t, 10*time.Second)
 	fwc := fw.counters(t)
-	t.Logf("C firmware over pty: outcome %s, %d steps, %d ticks, %.1f s simulated in %.1f s; link %+v; firmware %v",
-		sum.Outcome, sum.Steps, sum.Ticks, sum.SimTimeS, sum.WallTimeS, res.Link, fwc)
-
+	t.Logf("C firmware %s: outcome %s, %d steps, %d ticks, %.1f s simulated in %.1f s; link %+v; firmware %v",
+		label, sum.Outcome, sum.Steps, sum.Ticks, sum.SimTimeS, sum.WallTimeS, res.Link, fwc)
 	if res.Greeting.Name != "gaitrig-example-c" || res.Greeting.Actuators != 2 {
 		t.Errorf("greeting: want gaitrig-example-c with 2 actuators, got %+v", res.Greeting)
 	}
@@ -1331,22 +1357,65 @@ func TestCFirmwareWalks(t *testing.T) {
 	if run.Summary.Steps != sum.Steps {
 		t.Errorf("summary.json has %d steps, the run returned %d", run.Summary.Steps, sum.Steps)
 	}
+}
 
-	// The same run with the Go reference firmware in-process.
+// TestCFirmwareWalksOverSerialPort is the bench set-up with a cable: socat
+// links two pseudo-terminals, the C firmware opens one path, and the rig
+// opens the other with serial.Open, that is with go.bug.st/serial, exactly
+// as it opens /dev/ttyACM0 for a board. The walk must meet the same checks
+// as over a single pty pair, and end in the same plant state.
+func TestCFirmwareWalksOverSerialPort(t *testing.T) {
+	b := buildC(t)
+	socat := requireTool(t, "socat")
+	cfg, model, initial := demoRun(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	defer cancel()
+
+	dir := t.TempDir()
+	fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
+	relay := exec.CommandContext(ctx, socat,
+		"pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
+	relayErr := &syncBuffer{}
+	relay.Stderr = relayErr
+	relay.WaitDelay = 2 * time.Second
+	if err := relay.Start(); err != nil {
+		t.Fatalf("starting socat: %v", err)
+	}
+	relayDone := make(chan struct{})
+	go func() { _ = relay.Wait(); close(relayDone) }()
+	defer func() {
+		_ = relay.Process.Kill()
+		<-relayDone
+	}()
+	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+		_, e1 := os.Stat(fwPath)
+		_, e2 := os.Stat(rigPath)
+		if e1 == nil && e2 == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+		}
+	}
+
+	fw := startFirmware(t, ctx, b.firmware, fwPath)
+	conn, err := serial.Open(serial.Config{Port: rigPath, OpenTimeout: 2 * time.Second})
+	if err != nil {
+		t.Fatalf("the rig could not open %s: %v", rigPath, err)
+	}
+	defer conn.Close()
+	res, runDir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+rigPath)
+	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, runDir, conn, fw)
+
+	// The pty-pair run and this one differ only in the bytes' path, so the
+	// plant must end in the same state as with the Go reference in-process.
 	rigEnd, fwEnd := inproc.Pair()
 	served := make(chan error, 1)
 	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
 	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
 	rigEnd.Close()
-	if err := <-served; err != nil {
-		t.Errorf("the Go reference firmware ended with %v", err)
-	}
-	if goRes.Summary.Steps != sum.Steps || goRes.Summary.Ticks != sum.Ticks {
-		t.Errorf("Go reference in-process: %d steps in %d ticks; C over pty: %d steps in %d ticks; want the same",
-			goRes.Summary.Steps, goRes.Summary.Ticks, sum.Steps, sum.Ticks)
-	}
+	<-served
 	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
-		t.Errorf("final plant state differs between the C firmware over pty and the Go reference in-process:\nC:  q=%v v=%v\nGo: q=%v v=%v",
-			res.Final.Q, res.Final.V, goRes.Final.Q, goRes.Final.V)
+		t.Errorf("final plant state differs between the C firmware over socat and the Go reference in-process")
 	}
 }
