@@ -225,6 +225,11 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 	if !m.StartTime.IsZero() {
 		v.Meta = append(v.Meta, kv{"started", m.StartTime.UTC().Format("2006-01-02 15:04:05 MST")})
 	}
+	for i := range v.Meta {
+		if strings.TrimSpace(v.Meta[i].Value) == "" {
+			v.Meta[i].Value = "(not recorded)"
+		}
+	}
 
 	if s == nil {
 		v.Outcome = "unfinished"
