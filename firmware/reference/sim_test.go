@@ -21,8 +21,9 @@ type walkResult struct {
 	maxTauLate float64
 }
 
-// reading makes the noise-free Reading of a plant state, as PlantPolicy
-// does.
+// readingOf makes the noise-free Reading of a plant state with foot
+// switches that close above 5 N, as the rig's default sensor model does
+// (ReadingOf, for the gait finder, closes them on contact mode instead).
 func readingOf(m *plant.Model, s *plant.State, c [2]plant.FootContact) Reading {
 	var r Reading
 	r.Joints = m.NumActuators()

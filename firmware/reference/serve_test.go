@@ -1,0 +1,180 @@
+package reference
+
+import (
+	"errors"
+	"math"
+	"testing"
+	"time"
+
+	"gaitrig/bridges/inproc"
+	"gaitrig/bridges/protocol"
+)
+
+// rigSide plays the rig over an in-process link: greeting check, config,
+// a few states, then a stop with the given reason.
+func TestServeSpeaksTheProtocol(t *testing.T) {
+	tests := []struct {
+		name    string
+		stop    uint8
+		wantErr error
+	}{
+		{"normal end", protocol.StopEnd, nil},
+		{"e-stop", protocol.StopEStop, ErrRigStopped},
+		{"watchdog", protocol.StopWatchdog, ErrRigStopped},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			rig, fw := inproc.Pair()
+			defer rig.Close()
+			done := make(chan error, 1)
+			go func() { done <- Serve(fw, Options{IdleTimeout: 2 * time.Second}) }()
+			var m protocol.Message
+			if err := rig.Recv(time.Now().Add(2*time.Second), &m); err != nil || m.Type != protocol.TypeGreeting {
+				t.Fatalf("first message %v, type %#x: want a greeting", err, m.Type)
+			}
+			if m.Greeting.Version != protocol.Version || m.Greeting.Actuators != 2 || m.Greeting.Name == "" {
+				t.Fatalf("greeting %+v", m.Greeting)
+			}
+			cfg := protocol.Message{Type: protocol.TypeConfig}
+			cfg.Config = protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2, TorqueLimit: [protocol.MaxJoints]float32{30, 30}}
+			rig.Send(&cfg)
+			// A torso pitched 0.3 rad back with the left foot down: the
+			// stance hip must pull the torso forward, clipped at the rig's
+			// 30 N·m, which the firmware adopts.
+			st := protocol.Message{Type: protocol.TypeState}
+			st.State = protocol.State{Joints: 2, Angle: [protocol.MaxJoints]float32{0.1, -0.4}, IMUPitch: 0.3, Contacts: protocol.ContactLeft}
+			for seq := uint32(1); seq <= 3; seq++ {
+				st.Seq = seq
+				rig.Send(&st)
+				if err := rig.Recv(time.Now().Add(2*time.Second), &m); err != nil {
+					t.Fatal(err)
+				}
+				if m.Type != protocol.TypeCommand || m.Seq != seq || m.Command.Joints != 2 {
+					t.Fatalf("answer to state %d: %+v", seq, m)
+				}
+			}
+			r := Reading{Joints: 2, Angle: [2]float64{float64(float32(0.1)), float64(float32(-0.4))}, Pitch: float64(float32(0.3)), Contacts: 1}
+			g := DefaultGains()
+			g.TorqueLimit = 30
+			var want [2]float64
+			Law(&g, &r, want[:])
+			for i := 0; i < 2; i++ {
+				if m.Command.Torque[i] != float32(want[i]) {
+					t.Errorf("torque %d = %g, the law gives %g", i, m.Command.Torque[i], want[i])
+				}
+			}
+			if math.Abs(float64(m.Command.Torque[0])) != 30 {
+				t.Errorf("stance torque %g: want clipped at the rig's 30 N·m", m.Command.Torque[0])
+			}
+			stop := protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: tc.stop, Text: "test"}}
+			rig.Send(&stop)
+			select {
+			case err := <-done:
+				if !errors.Is(err, tc.wantErr) || (tc.wantErr == nil && err != nil) {
+					t.Fatalf("Serve returned %v, want %v", err, tc.wantErr)
+				}
+			case <-time.After(2 * time.Second):
+				t.Fatal("Serve did not return after the stop")
+			}
+		})
+	}
+}
+
+func TestServeRefusesAndTimesOut(t *testing.T) {
+	t.Run("joint count mismatch", func(t *testing.T) {
+		rig, fw := inproc.Pair()
+		defer rig.Close()
+		done := make(chan error, 1)
+		go func() { done <- Serve(fw, Options{IdleTimeout: time.Second}) }()
+		var m protocol.Message
+		rig.Recv(time.Now().Add(time.Second), &m)
+		cfg := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{Joints: 3}}
+		rig.Send(&cfg)
+		if err := rig.Recv(time.Now().Add(time.Second), &m); err != nil || m.Type != protocol.TypeStop || m.Stop.Reason != protocol.StopFirmware {
+			t.Fatalf("want a firmware stop, got %v %+v", err, m)
+		}
+		if err := <-done; err == nil {
+			t.Fatal("Serve accepted 3 joints")
+		}
+	})
+	t.Run("silent rig", func(t *testing.T) {
+		rig, fw := inproc.Pair()
+		defer rig.Close()
+		err := Serve(fw, Options{IdleTimeout: 20 * time.Millisecond})
+		if err == nil {
+			t.Fatal("Serve returned nil although the rig never answered")
+		}
+		t.Log(err)
+	})
+	t.Run("closed link", func(t *testing.T) {
+		rig, fw := inproc.Pair()
+		rig.Close()
+		if err := Serve(fw, Options{}); err == nil {
+			t.Fatal("Serve returned nil on a closed link")
+		}
+	})
+}
+
+func TestGainsFromSettings(t *testing.T) {
+	tests := []struct {
+		name     string
+		settings map[string]float64
+		ok       bool
+		check    func(g Gains) bool
+	}{
+		{"none", nil, true, func(g Gains) bool { return g == DefaultGains() }},
+		{"target speed", map[string]float64{"target_speed_mps": 0.6}, true, func(g Gains) bool { return g.TargetSpeed == 0.6 }},
+		{"unknown name", map[string]float64{"speed": 1}, false, nil},
+		{"crossed step bounds", map[string]float64{"step_min_rad": 0.5, "step_max_rad": 0.2}, false, nil},
+		{"zero limit", map[string]float64{"firmware_torque_limit_nm": 0}, false, nil},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			g, err := GainsFromSettings(tc.settings)
+			if (err == nil) != tc.ok {
+				t.Fatalf("error %v, want ok %v", err, tc.ok)
+			}
+			if tc.check != nil && !tc.check(g) {
+				t.Fatalf("gains %+v", g)
+			}
+		})
+	}
+}
+
+func TestStanceChoice(t *testing.T) {
+	tests := []struct {
+		contacts uint8
+		th, w    [2]float64
+		want     int
+	}{
+		{1, [2]float64{0, 0}, [2]float64{0, 0}, 0},
+		{2, [2]float64{0, 0}, [2]float64{0, 0}, 1},
+		{3, [2]float64{-0.2, 0.2}, [2]float64{0, 0}, 1}, // right leg ahead has just landed
+		{3, [2]float64{0.2, -0.2}, [2]float64{0, 0}, 0},
+		{0, [2]float64{0, 0}, [2]float64{1, -0.8}, 1}, // no switch: the leg rotating back
+		{0, [2]float64{0, 0}, [2]float64{-0.8, 1}, 0},
+	}
+	for _, tc := range tests {
+		if got := pickStance(tc.contacts, tc.th, tc.w); got != tc.want {
+			t.Errorf("contacts %d, θ %v, ω %v: stance %d, want %d", tc.contacts, tc.th, tc.w, got, tc.want)
+		}
+	}
+}
+
+// The law is a pure function: the same reading gives the same torques,
+// whatever came before.
+func TestLawIsPure(t *testing.T) {
+	g := DefaultGains()
+	a := Reading{Joints: 2, Angle: [2]float64{0.2, -0.3}, Rate: [2]float64{-1, 2}, Pitch: -0.1, PitchRate: 0.2, Contacts: 1}
+	b := Reading{Joints: 2, Angle: [2]float64{-0.3, 0.2}, Rate: [2]float64{3, -1}, Pitch: 0.2, Contacts: 2}
+	var t1, t2, tb [2]float64
+	Law(&g, &a, t1[:])
+	Law(&g, &b, tb[:])
+	Law(&g, &a, t2[:])
+	if t1 != t2 {
+		t.Fatalf("same reading, different torques: %v then %v", t1, t2)
+	}
+	if n := testing.AllocsPerRun(100, func() { Law(&g, &a, t1[:]) }); n != 0 {
+		t.Fatalf("Law allocates %.0f times", n)
+	}
+}
