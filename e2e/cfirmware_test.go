@@ -47,7 +47,7 @@ var cflags = []string{"-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-
 // requireTool finds an outside program. Missing, it fails the test when
 // GAITRIG_REQUIRE_TOOLS=1 (as .ci/run sets) and otherwise skips with a
 // message saying what is missing.
-func requireTool(t *testing.T, name string) string {
+func requireTool(t testing.TB, name string) string {
 	t.Helper()
 	p, err := exec.LookPath(name)
 	if err == nil {
@@ -68,7 +68,7 @@ type cBinaries struct {
 
 // buildC compiles the firmware and the self-test into a temporary
 // directory with gcc and the project's warning flags.
-func buildC(t *testing.T) cBinaries {
+func buildC(t testing.TB) cBinaries {
 	t.Helper()
 	gcc := requireTool(t, "gcc")
 	dir := t.TempDir()
@@ -806,7 +806,7 @@ func openPty(t *testing.T) (leader, follower *os.File) {
 // startFirmware starts the C firmware on the tty path. The process is
 // killed when ctx ends or the test ends, whichever is first, and always
 // waited for, so no process outlives the test.
-func startFirmware(t *testing.T, ctx context.Context, bin, tty string) *firmwareProc {
+func startFirmware(t testing.TB, ctx context.Context, bin, tty string) *firmwareProc {
 	t.Helper()
 	p := &firmwareProc{stderr: &syncBuffer{}, done: make(chan struct{})}
 	args := []string{bin, "-v", tty}
@@ -842,7 +842,7 @@ func startFirmware(t *testing.T, ctx context.Context, bin, tty string) *firmware
 
 // wait waits for the firmware to exit on its own within d and returns its
 // exit code.
-func (p *firmwareProc) wait(t *testing.T, d time.Duration) int {
+func (p *firmwareProc) wait(t testing.TB, d time.Duration) int {
 	t.Helper()
 	select {
 	case <-p.done:
@@ -860,7 +860,7 @@ func (p *firmwareProc) wait(t *testing.T, d time.Duration) int {
 }
 
 // counters parses the firmware's "cfw: counters ..." line.
-func (p *firmwareProc) counters(t *testing.T) map[string]string {
+func (p *firmwareProc) counters(t testing.TB) map[string]string {
 	t.Helper()
 	for _, line := range strings.Split(p.stderr.String(), "\n") {
 		rest, ok := strings.CutPrefix(line, "cfw: counters ")
@@ -879,7 +879,7 @@ func (p *firmwareProc) counters(t *testing.T) map[string]string {
 }
 
 // counter is one numeric counter.
-func counter(t *testing.T, c map[string]string, key string) uint64 {
+func counter(t testing.TB, c map[string]string, key string) uint64 {
 	t.Helper()
 	v, err := strconv.ParseUint(c[key], 10, 64)
 	if err != nil {
@@ -1417,5 +1417,74 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	<-served
 	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
 		t.Errorf("final plant state differs between the C firmware over socat and the Go reference in-process")
+	}
+}
+
+// BenchmarkCFirmwareRoundTrip measures the state-to-command round trip
+// through a real pty to the C firmware process, with the rig's serial link
+// on the leader side: back to back, one state in flight, as in lockstep.
+// It reports the p50, p99 and largest round trip in microseconds.
+//
+//	go test ./e2e -run '^$' -bench CFirmwareRoundTrip -benchtime 10000x
+func BenchmarkCFirmwareRoundTrip(b *testing.B) {
+	bins := buildC(b)
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
+	defer cancel()
+	p, err := serial.NewPty()
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer p.Close()
+	fw := startFirmware(b, ctx, bins.firmware, p.Path)
+	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
+	defer conn.Close()
+
+	var m protocol.Message
+	recv := func(want protocol.Type) {
+		for {
+			if err := conn.Recv(time.Now().Add(5*time.Second), &m); err != nil {
+				b.Fatalf("waiting for %v from the C firmware: %v", want, err)
+			}
+			if m.Type == want {
+				return
+			}
+		}
+	}
+	recv(protocol.TypeGreeting)
+	cfg := demoConfig()
+	if err := conn.Send(&cfg); err != nil {
+		b.Fatal(err)
+	}
+	st := protocol.Message{Type: protocol.TypeState}
+	st.State = protocol.State{Joints: 2, Contacts: protocol.ContactLeft, IMUPitch: -0.1}
+	st.State.Angle[0], st.State.Angle[1] = 0.25, -0.25
+	var h hil.Histogram
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := range b.N {
+		st.Seq = uint32(i + 1)
+		st.State.TimeUS = uint64(i+1) * 1000
+		start := time.Now()
+		if err := conn.Send(&st); err != nil {
+			b.Fatal(err)
+		}
+		for {
+			recv(protocol.TypeCommand)
+			if m.Seq == st.Seq {
+				break
+			}
+		}
+		h.Add(time.Since(start))
+	}
+	b.StopTimer()
+	b.ReportMetric(float64(h.Quantile(0.5).Microseconds()), "p50-µs")
+	b.ReportMetric(float64(h.Quantile(0.99).Microseconds()), "p99-µs")
+	b.ReportMetric(float64(h.Max().Microseconds()), "max-µs")
+	stop := protocol.Message{Type: protocol.TypeStop, Seq: st.Seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "benchmark done"}}
+	if err := conn.Send(&stop); err != nil {
+		b.Fatal(err)
+	}
+	if code := fw.wait(b, 10*time.Second); code != 0 {
+		b.Fatalf("the C firmware exited %d after the benchmark", code)
 	}
 }
