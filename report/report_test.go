@@ -325,9 +325,6 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 // TestLongRunReportStaysSmall checks the decimation keeps a 60 s, 1 kHz
 // run's report within a size a browser opens at once.
 func TestLongRunReportStaysSmall(t *testing.T) {
-	if testing.Short() {
-		t.Skip("-short: writes a 60 000-tick run folder")
-	}
 	dir := filepath.Join(t.TempDir(), "run")
 	writeSynthFolder(t, dir, makeSynthRun(synthOpts{durationS: 60, hz: 1000, patchMu: 0.15}), true)
 	if err := WriteHTML(dir); err != nil {
