@@ -1157,6 +1157,86 @@ func TestCFirmwareRefusesOtherVersion(t *testing.T) {
 	}
 }
 
+// TestCFirmwareSurvivesGarbage floods a configured firmware with 256 kB of
+// seeded random bytes (stretches with few zeros, giving overlong runs, and
+// with many, giving short and truncated frames), then sends a valid state.
+// The firmware must answer it, and it must count exactly as many refused
+// frames as the Go stream reader and decoder find in the same bytes: the
+// two implementations of section 4 and 5 resynchronize alike.
+func TestCFirmwareSurvivesGarbage(t *testing.T) {
+	b := buildC(t)
+	rng := rand.New(rand.NewPCG(42, 4242))
+	var garbage []byte
+	for len(garbage) < 256<<10 {
+		n := 1 + rng.IntN(4096)
+		zeroRate := []float64{0, 0.001, 0.01, 0.1, 0.5}[rng.IntN(5)]
+		for range n {
+			if rng.Float64() < zeroRate {
+				garbage = append(garbage, 0)
+			} else {
+				garbage = append(garbage, byte(1+rng.IntN(255)))
+			}
+		}
+	}
+	garbage = append(garbage, 0) // end the last stretch before the valid state
+
+	// What the Go side makes of the same bytes.
+	want := 0
+	rd := protocol.NewReader(bytes.NewReader(garbage))
+	for {
+		f, err := rd.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			want++
+			continue
+		}
+		var m protocol.Message
+		if err := protocol.Decode(f, &m); err != nil {
+			want++
+			continue
+		}
+		t.Fatalf("seeded garbage holds a valid %v frame; choose another seed", m.Type)
+	}
+
+	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
+	defer cancel()
+	leader, follower := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, follower.Name())
+	rig := newRigEnd(t, leader)
+	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+		t.Fatalf("want a greeting first, got %v", g.Type)
+	}
+	rig.send(ptr(demoConfig()))
+	// Written in pieces, as a noisy line delivers it; the firmware reads
+	// concurrently, so the pty buffer never fills.
+	for off := 0; off < len(garbage); off += 1000 {
+		rig.raw(garbage[off:min(off+1000, len(garbage))])
+	}
+	st := protocol.Message{Type: protocol.TypeState, Seq: 1, State: protocol.State{Joints: 2, Contacts: protocol.ContactLeft}}
+	rig.send(&st)
+	for {
+		c := rig.next(10*time.Second, true)
+		if c.Type == protocol.TypeGreeting {
+			continue
+		}
+		if c.Type != protocol.TypeCommand || c.Seq != 1 {
+			t.Fatalf("after the garbage: want the command for state 1, got %+v", c)
+		}
+		break
+	}
+	rig.send(&protocol.Message{Type: protocol.TypeStop, Seq: 1, Stop: protocol.Stop{Reason: protocol.StopEnd}})
+	if code := fw.wait(t, 10*time.Second); code != 0 {
+		t.Fatalf("the firmware must survive garbage and exit 0 on the stop, got %d", code)
+	}
+	c := fw.counters(t)
+	if got := counter(t, c, "frame_errors"); got != uint64(want) {
+		t.Errorf("the C firmware counted %d refused frames in the garbage, the Go reader and decoder %d", got, want)
+	}
+	t.Logf("%d bytes of garbage: %d refused frames on both sides", len(garbage), want)
+}
+
 // TestCFirmwareStopsOnSIGTERM interrupts a configured firmware: it must
 // tell the rig with a stop frame (reason firmware), print its counters and
 // exit 1, rather than vanish and leave the rig to a watchdog trip.

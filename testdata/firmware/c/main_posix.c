@@ -387,6 +387,21 @@ static enum outcome handle(struct link *l, struct session *s, const struct proto
     }
 }
 
+/* reject counts a refused frame and logs it. A noisy line can refuse
+ * thousands of frames a second, so after the first 20 only every 1000th is
+ * logged; the counter keeps the exact number. */
+static void reject(struct link *l, const char *why)
+{
+    l->n.frame_errors++;
+    if (l->n.frame_errors <= 20 || l->n.frame_errors % 1000 == 0) {
+        fprintf(stderr, "cfw: rejected frame: %s (%lu refused so far)\n", why,
+                l->n.frame_errors);
+    }
+    if (l->n.frame_errors == 20) {
+        fprintf(stderr, "cfw: from now on only every 1000th refused frame is logged\n");
+    }
+}
+
 /* on_block handles the bytes between two zero delimiters. */
 static enum outcome on_block(struct link *l, struct session *s)
 {
@@ -398,9 +413,9 @@ static enum outcome on_block(struct link *l, struct session *s)
     int rc;
 
     if (l->rx_overlong) {
-        l->n.frame_errors++;
-        fprintf(stderr, "cfw: rejected frame: too long (more than %u bytes without a zero)\n",
-                (unsigned)RX_LIMIT);
+        snprintf(why, sizeof why, "too long (more than %u bytes without a zero)",
+                 (unsigned)RX_LIMIT);
+        reject(l, why);
         return KEEP_GOING;
     }
     if (l->rx_len == 0) {
@@ -408,22 +423,21 @@ static enum outcome on_block(struct link *l, struct session *s)
     }
     rc = proto_cobs_decode(l->rx, l->rx_len, raw, sizeof raw, &raw_len);
     if (rc == PROTO_COBS_OVERFLOW) {
-        l->n.frame_errors++;
-        fprintf(stderr, "cfw: rejected frame: too long (over 512 bytes)\n");
+        reject(l, "too long (decodes to over 512 bytes)");
         return KEEP_GOING;
     }
     if (rc != PROTO_COBS_OK) {
-        l->n.frame_errors++;
-        fprintf(stderr, "cfw: rejected frame: bad COBS (%s in %lu bytes)\n",
-                rc == PROTO_COBS_ZERO ? "zero code byte" : "code past the end",
-                (unsigned long)l->rx_len);
+        /* The block holds no zero (the zeros split the stream), so the only
+         * COBS fault left is a code byte that runs past the end. */
+        snprintf(why, sizeof why, "bad COBS (a code byte runs past the end of %lu bytes)",
+                 (unsigned long)l->rx_len);
+        reject(l, why);
         return KEEP_GOING;
     }
     rc = proto_decode(raw, raw_len, &m, &diag);
     if (rc != PROTO_OK) {
-        l->n.frame_errors++;
         describe_error(rc, &diag, why, sizeof why);
-        fprintf(stderr, "cfw: rejected frame: %s\n", why);
+        reject(l, why);
         if (rc == PROTO_ERR_VERSION) {
             /* Section 8: a firmware that gets a frame of a version it does
              * not speak stops and tells its user. */
