@@ -431,9 +431,10 @@ func (r *runner) takeCommand(c *protocol.Command) {
 // firmwareStop handles a Stop from the firmware: the run cannot go on.
 func (r *runner) firmwareStop(st protocol.Stop) {
 	text := st.Text
-	if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
-		return fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), map[string]float64{"reason": float64(st.Reason)}
-	}) {
+	// The run ends here, so this alarm is logged even inside the rate limit.
+	r.al.counts[scenarios.AlarmFirmwareFault]++
+	if r.al.emit(alarm{kind: scenarios.AlarmFirmwareFault, tick: r.tick, t: r.s.T, foot: -1, segment: -1,
+		message: fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), values: map[string]float64{"reason": float64(st.Reason)}}) {
 		r.trip(protocol.StopFirmware)
 		return
 	}

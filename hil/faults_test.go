@@ -1,0 +1,291 @@
+package hil
+
+import (
+	"context"
+	"encoding/json"
+	"math"
+	"sync"
+	"testing"
+	"time"
+
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
+	"gaitrig/record"
+	"gaitrig/scenarios"
+)
+
+// scripted is a firmware that answers every state with answer(seq).
+func scripted(answer func(seq uint32, out *protocol.Command)) firmwareFunc {
+	return func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		_, err := untilStop(conn, func(in *protocol.Message) {
+			if in.Type != protocol.TypeState {
+				return
+			}
+			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+			out.Command.Joints = 2
+			answer(in.Seq, &out.Command)
+			conn.Send(&out)
+		})
+		return err
+	}
+}
+
+// seqTorque answers with a tiny torque that encodes the sequence number.
+func seqTorque(seq uint32, c *protocol.Command) { c.Torque[0] = float32(seq) * 1e-3 }
+
+func shortRun(t *testing.T, ticks int) (Config, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string)) {
+	m, s, cfg := demo(t, 0)
+	cfg.MaxSteps, cfg.Duration = 0, float64(ticks)/DefaultTickHz
+	return cfg, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string) {
+		t.Helper()
+		res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
+		if err != nil || ferr != nil {
+			t.Fatal(err, ferr)
+		}
+		run := openRun(t, dir)
+		ticks, _, err := run.AllTicks()
+		if err != nil {
+			t.Fatal(err)
+		}
+		return res, ticks, dir
+	}
+}
+
+func TestLatencyFaultDelaysCommandsByWholeTicks(t *testing.T) {
+	cfg, run := shortRun(t, 60)
+	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: 5 * time.Millisecond}}
+	_, ticks, _ := run(cfg, scripted(seqTorque))
+	for _, row := range ticks {
+		k := row.Index
+		if k < 5 {
+			if row.Fresh || row.Commanded[0] != 0 {
+				t.Fatalf("tick %d: a command arrived before the 5 ms latency passed (%g)", k, row.Commanded[0])
+			}
+			continue
+		}
+		// Tick k applies the answer to the state of tick k−5, sequence k−4.
+		if want := float64(float32(k-4) * 1e-3); !row.Fresh || row.Commanded[0] != want {
+			t.Fatalf("tick %d: commanded %g (fresh %v), want %g", k, row.Commanded[0], row.Fresh, want)
+		}
+	}
+}
+
+func TestDropFaultResendsAndKeepsLockstep(t *testing.T) {
+	cfg, run := shortRun(t, 200)
+	cfg.Resend = time.Millisecond
+	cfg.LinkFaults = []LinkFault{{Kind: FaultDrop, Rate: 0.2}}
+	res, ticks, _ := run(cfg, scripted(seqTorque))
+	if res.Summary.Outcome != record.Pass {
+		t.Fatalf("outcome %s (%s)", res.Summary.Outcome, res.Summary.Reason)
+	}
+	l := res.Link
+	if l.DroppedStates == 0 || l.DroppedCommand == 0 || l.Resends < l.DroppedStates {
+		t.Fatalf("counts %+v", l)
+	}
+	for _, row := range ticks {
+		// Lockstep: every tick still gets the answer to its own state.
+		if want := float64(float32(row.Index+1) * 1e-3); row.Commanded[0] != want {
+			t.Fatalf("tick %d: commanded %g, want %g", row.Index, row.Commanded[0], want)
+		}
+	}
+	t.Logf("%d states and %d commands dropped, %d resends, %d stale", l.DroppedStates, l.DroppedCommand, l.Resends, l.StaleCommands)
+}
+
+func TestCorruptFaultIsABadFrame(t *testing.T) {
+	cfg, run := shortRun(t, 200)
+	cfg.Resend = time.Millisecond
+	cfg.LinkFaults = []LinkFault{{Kind: FaultCorrupt, Rate: 0.1, From: 0.05}}
+	res, _, dir := run(cfg, scripted(seqTorque))
+	if res.Link.Corrupted == 0 || res.Link.BadFrames != res.Link.Corrupted {
+		t.Fatalf("counts %+v", res.Link)
+	}
+	if uint64(res.Summary.Alarms[scenarios.AlarmBadFrame]) != res.Link.BadFrames {
+		t.Fatalf("alarms %v for %d bad frames", res.Summary.Alarms, res.Link.BadFrames)
+	}
+	ev := eventsOf(t, dir, scenarios.AlarmBadFrame)
+	if len(ev) == 0 || ev[0].T < 0.05 {
+		t.Fatalf("bad_frame events %+v: want at least one, none before from_s", ev)
+	}
+}
+
+func TestFreezeHoldsOneSensor(t *testing.T) {
+	cfg, run := shortRun(t, 80)
+	cfg.Freezes = []Freeze{{Sensor: "hip_left", Start: 0.020, Duration: 0.030}}
+	_, ticks, _ := run(cfg, referenceFirmware)
+	held := ticks[19].Angle[0] // row 19: state sent at t = 0.019, the last before the freeze
+	frozen := 0
+	for _, row := range ticks {
+		start := row.T - 1e-3 // readings are taken at the tick's start
+		in := start >= 0.020-1e-9 && start < 0.050-1e-9
+		if in {
+			frozen++
+			if row.Angle[0] != held || row.Rate[0] != ticks[19].Rate[0] {
+				t.Fatalf("tick %d inside the freeze reads %g, want the held %g", row.Index, row.Angle[0], held)
+			}
+		}
+	}
+	if frozen != 30 {
+		t.Fatalf("%d frozen ticks, want 30", frozen)
+	}
+	if ticks[55].Angle[0] == held {
+		t.Fatal("the sensor stayed frozen after the freeze ended")
+	}
+	if ticks[30].Angle[1] == ticks[19].Angle[1] {
+		t.Fatal("hip_right froze too")
+	}
+}
+
+func TestSaturationAndLag(t *testing.T) {
+	cfg, run := shortRun(t, 100)
+	cfg.Actuators = ActuatorModel{TorqueLimit: 20, Lag: 0.01}
+	res, ticks, dir := run(cfg, scripted(func(seq uint32, c *protocol.Command) { c.Torque[0] = 100 }))
+	for _, row := range ticks {
+		// First-order lag toward the clipped 20 N·m; the command answering
+		// tick k is applied over tick k (lockstep), k+1 lag steps so far.
+		want := 20 * (1 - math.Pow(math.Exp(-1e-3/0.01), float64(row.Index+1)))
+		if math.Abs(row.Applied[0]-want) > 1e-9 {
+			t.Fatalf("tick %d: applied %.12g, want %.12g", row.Index, row.Applied[0], want)
+		}
+	}
+	if n := res.Summary.Alarms[scenarios.AlarmTorqueSaturation]; n != 1 {
+		t.Fatalf("%d torque_saturation alarms for one continuous episode, want 1", n)
+	}
+	ev := eventsOf(t, dir, scenarios.AlarmTorqueSaturation)
+	if len(ev) != 1 || ev[0].Values["limit_nm"] != 20 || ev[0].Values["torque_nm"] != 100 {
+		t.Fatalf("events %+v", ev)
+	}
+}
+
+func TestPushImpulseOverOneTick(t *testing.T) {
+	cfg, run := shortRun(t, 40)
+	cfg.Pushes = []Push{{At: 0.0105, Impulse: [2]float64{5, 0}}}
+	_, ticks, _ := run(cfg, referenceFirmware)
+	for _, row := range ticks {
+		want := 0.0
+		if row.Index == 10 { // the tick from 0.010 to 0.011 holds 0.0105
+			want = 5 / 1e-3
+		}
+		if math.Abs(row.Push[0]-want) > 1e-6 {
+			t.Fatalf("tick %d push %g N, want %g", row.Index, row.Push[0], want)
+		}
+	}
+}
+
+// notifyConn is a link that reports link events the test feeds it.
+type notifyConn struct {
+	bridges.Conn
+	ev chan bridges.LinkEvent
+}
+
+func (n *notifyConn) Events() <-chan bridges.LinkEvent { return n.ev }
+
+func TestLinkEventsBecomeAlarms(t *testing.T) {
+	tests := []struct {
+		name    string
+		gap     time.Duration
+		outcome record.Outcome
+	}{
+		{"short gap warns", 10 * time.Millisecond, record.Pass},
+		{"gap beyond the watchdog trips", 5 * time.Second, record.Tripped},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			m, s, cfg := demo(t, 0)
+			cfg.MaxSteps, cfg.Duration = 0, 0.1
+			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
+			rig, fw := inprocPair()
+			defer rig.Close()
+			conn := &notifyConn{Conn: rig, ev: make(chan bridges.LinkEvent, 4)}
+			conn.ev <- bridges.LinkEvent{Kind: "disconnected", Err: errTest("serial port unplugged")}
+			conn.ev <- bridges.LinkEvent{Kind: "reconnected", Gap: tc.gap}
+			go referenceFirmware(fw)
+			rec := newRecord(t, cfg, m, s)
+			res, err := Run(context.Background(), cfg, m, s, conn, rec)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if res.Summary.Outcome != tc.outcome {
+				t.Fatalf("outcome %s (%s), want %s", res.Summary.Outcome, res.Summary.Reason, tc.outcome)
+			}
+			lost := eventsOf(t, rec.Dir(), scenarios.AlarmLinkLost)
+			back := eventsOf(t, rec.Dir(), scenarios.AlarmLinkRestored)
+			if len(lost) != 1 || len(back) != 1 || back[0].Values["gap_ms"] != float64(tc.gap)/1e6 {
+				t.Fatalf("link_lost %+v, link_restored %+v", lost, back)
+			}
+			if tc.outcome == record.Tripped && res.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+				t.Fatalf("alarms %v: the long gap must trip the watchdog", res.Summary.Alarms)
+			}
+		})
+	}
+}
+
+type errTest string
+
+func (e errTest) Error() string { return string(e) }
+
+// sink collects alarms as the MQTT link would publish them.
+type sink struct {
+	mu   sync.Mutex
+	msgs [][]byte
+}
+
+func (s *sink) PublishAlarm(b []byte) error {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	s.msgs = append(s.msgs, append([]byte(nil), b...))
+	return nil
+}
+
+func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
+	cfg, run := shortRun(t, 500)
+	var sk sink
+	cfg.Alarms = &sink{}
+	cfg.Alarms = &sk
+	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmFirmwareFault: scenarios.SeverityWarn}
+	fw := func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		var m protocol.Message
+		for {
+			if err := conn.Recv(time.Now().Add(5*time.Second), &m); err != nil {
+				return err
+			}
+			if m.Type != protocol.TypeState {
+				continue
+			}
+			if m.Seq == 50 {
+				stop := protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: protocol.StopFirmware, Text: "motor driver fault"}}
+				conn.Send(&stop)
+				_, err := untilStop(conn, nil)
+				return err
+			}
+			out := protocol.Message{Type: protocol.TypeCommand, Seq: m.Seq}
+			out.Command.Joints = 2
+			if m.Seq >= 20 {
+				out.Command.Status = protocol.StatusFault
+			}
+			conn.Send(&out)
+		}
+	}
+	res, _, dir := run(cfg, fw)
+	if res.Summary.Outcome != record.Fail || res.Summary.Ticks != 49 {
+		t.Fatalf("outcome %s after %d ticks (%s): want fail at tick 49", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+	}
+	ev := eventsOf(t, dir, scenarios.AlarmFirmwareFault)
+	if len(ev) != 2 {
+		t.Fatalf("firmware_fault events %+v: want the status bit's rising edge and the stop", ev)
+	}
+	if len(sk.msgs) != 2 {
+		t.Fatalf("sink got %d alarms, want 2", len(sk.msgs))
+	}
+	for _, b := range sk.msgs {
+		var v map[string]any
+		if err := json.Unmarshal(b, &v); err != nil || v["kind"] != scenarios.AlarmFirmwareFault || v["message"] == "" {
+			t.Fatalf("sink payload %s: %v", b, err)
+		}
+	}
+}
