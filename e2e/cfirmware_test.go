@@ -1237,6 +1237,90 @@ func TestCFirmwareSurvivesGarbage(t *testing.T) {
 	t.Logf("%d bytes of garbage: %d refused frames on both sides", len(garbage), want)
 }
 
+// TestCFirmwareRefusesConfig sends configurations the firmware cannot
+// drive: it must answer each with a stop (reason firmware) that says why,
+// send no command, and exit 1.
+func TestCFirmwareRefusesConfig(t *testing.T) {
+	b := buildC(t)
+	tests := []struct {
+		name   string
+		change func(c *protocol.Config)
+		reason string
+	}{
+		{"three joints", func(c *protocol.Config) {
+			c.Joints = 3
+			c.JointNames[2], c.TorqueLimit[2] = "knee", 30
+		}, "joint count mismatch"},
+		{"unknown joint names", func(c *protocol.Config) {
+			c.JointNames[0], c.JointNames[1] = "shoulder", "elbow"
+		}, "need joints hip_left, hip_right"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+			defer cancel()
+			leader, follower := openPty(t)
+			fw := startFirmware(t, ctx, b.firmware, follower.Name())
+			rig := newRigEnd(t, leader)
+			if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+				t.Fatalf("want a greeting first, got %v", g.Type)
+			}
+			cfg := demoConfig()
+			tc.change(&cfg.Config)
+			rig.send(&cfg)
+			for {
+				m := rig.next(5*time.Second, true)
+				if m.Type == protocol.TypeGreeting {
+					continue
+				}
+				if m.Type != protocol.TypeStop || m.Stop.Reason != protocol.StopFirmware || m.Stop.Text != tc.reason {
+					t.Fatalf("want stop(firmware, %q), got %+v", tc.reason, m)
+				}
+				break
+			}
+			if code := fw.wait(t, 5*time.Second); code != 1 {
+				t.Fatalf("a firmware that refuses the config must exit 1, got %d", code)
+			}
+			if n := counter(t, fw.counters(t), "commands"); n != 0 {
+				t.Fatalf("the firmware sent %d commands after refusing the config", n)
+			}
+		})
+	}
+}
+
+// TestCFirmwareNoticesUnplug closes the rig's end of the pty in the middle
+// of a run, as a pulled cable does: the firmware must notice, print its
+// counters and exit 1 instead of spinning on a dead line.
+func TestCFirmwareNoticesUnplug(t *testing.T) {
+	b := buildC(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	leader, follower := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, follower.Name())
+	rig := newRigEnd(t, leader)
+	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+		t.Fatalf("want a greeting first, got %v", g.Type)
+	}
+	rig.send(ptr(demoConfig()))
+	st := protocol.Message{Type: protocol.TypeState, Seq: 1, State: protocol.State{Joints: 2, Contacts: protocol.ContactLeft}}
+	rig.send(&st)
+	for {
+		if c := rig.next(5*time.Second, true); c.Type == protocol.TypeCommand {
+			break
+		}
+	}
+	// The test's own handle of the follower is closed too, or the line
+	// would stay up for the firmware.
+	follower.Close()
+	leader.Close()
+	if code := fw.wait(t, 10*time.Second); code != 1 {
+		t.Fatalf("after an unplug the firmware must exit 1, got %d", code)
+	}
+	if c := fw.counters(t); c["end"] != "link-closed" {
+		t.Fatalf("counters end = %q, want \"link-closed\"", c["end"])
+	}
+}
+
 // TestCFirmwareStopsOnSIGTERM interrupts a configured firmware: it must
 // tell the rig with a stop frame (reason firmware), print its counters and
 // exit 1, rather than vanish and leave the rig to a watchdog trip.
