@@ -76,18 +76,46 @@ func dot(a, b *[MaxDOF]float64, n int) float64 {
 // is constrained and its force acts along W = J_n − μ_k σ J_t. See
 // solveSaddle for how the system is solved.
 func (m *Model) rhs(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval) {
+	m.rhsGeom(s, q, v, in, ev, true)
+}
+
+// rhsGeom is rhs; with freeGeom false the geometry of free feet is not
+// computed (the inner stages of a Runge–Kutta step need only q̈, and a
+// free foot does not enter the dynamics).
+func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, freeGeom bool) {
 	var tr trig
 	m.trigOf(q, &tr)
 	var f [MaxDOF]float64
 	n := m.n
 	m.generalizedInput(in, &f)
 	m.biasTrig(&tr, v, &f)
+	rolling, other := -1, 0
+	for i := 0; i < m.nFeet; i++ {
+		if freeGeom || s.Mode[i] != Free {
+			m.footGeometryTrig(q, v, &tr, i, s.Seg[i], &ev.geom[i])
+		}
+		ev.force[i] = [2]float64{}
+		switch s.Mode[i] {
+		case Rolling:
+			if rolling < 0 {
+				rolling = i
+			} else {
+				other++
+			}
+		case Sliding:
+			other++
+		}
+	}
+	if rolling >= 0 && other == 0 {
+		var lam [maxRows]float64
+		ev.ok = m.rhsOneFoot(&tr, &f, rolling, &ev.geom[rolling], &ev.acc, &lam)
+		ev.force[rolling] = [2]float64{lam[0], lam[1]}
+		return
+	}
 	var sd saddle
 	k := 0
 	for i := 0; i < m.nFeet; i++ {
 		g := &ev.geom[i]
-		m.footGeometryTrig(q, v, &tr, i, s.Seg[i], g)
-		ev.force[i] = [2]float64{}
 		switch s.Mode[i] {
 		case Rolling:
 			sd.j[k], sd.w[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jt, g.jt, -g.gt, i, 0
@@ -128,11 +156,11 @@ func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
 	g := &ev.geom[i]
 	ft, fn := ev.force[i][0], ev.force[i][1]
 	mu := m.terrain[g.sp.seg].muS
-	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, CoP: m.centreOfPressure(&s.Q, i, g), Gap: g.gap,
+	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, Gap: g.gap,
 		SlipVel: g.slip, Segment: g.sp.seg, Point: g.sp.p}
 	fc.Utilization = utilization(ft, fn, mu)
-	if s.Mode[i] == Free {
-		fc.CoP = 0
+	if s.Mode[i] != Free {
+		fc.CoP = m.centreOfPressure(&s.Q, i, g)
 	}
 }
 

@@ -90,9 +90,10 @@ func solveSmall(A *[maxRows][maxRows]float64, b *[maxRows]float64, k int) bool {
 	return true
 }
 
-// maxKKT is the largest saddle-point system: all coordinates plus all
+// maxKKT is the largest saddle-point system solveSaddle builds: the hip
+// coordinates, the angles of the (at most two) legs in contact, and the
 // contact rows.
-const maxKKT = MaxDOF + maxRows
+const maxKKT = 2 + 2 + maxRows
 
 // kkt is the saddle-point system of constrained dynamics or impacts,
 //
@@ -106,31 +107,6 @@ const maxKKT = MaxDOF + maxRows
 type kkt struct {
 	a [maxKKT][maxKKT]float64
 	b [maxKKT]float64
-}
-
-// setup fills the system for n coordinates and the k rows of J and W.
-func (s *kkt) setup(M *[MaxDOF][MaxDOF]float64, n int, J, W *[maxRows][MaxDOF]float64, k int, top *[MaxDOF]float64, bottom *[maxRows]float64) {
-	N := n + k
-	for i := 0; i < N; i++ {
-		for j := 0; j < N; j++ {
-			s.a[i][j] = 0
-		}
-	}
-	for i := 0; i < n; i++ {
-		for j := 0; j < n; j++ {
-			s.a[i][j] = M[i][j]
-		}
-		for r := 0; r < k; r++ {
-			s.a[i][n+r] = -W[r][i]
-		}
-		s.b[i] = top[i]
-	}
-	for r := 0; r < k; r++ {
-		for j := 0; j < n; j++ {
-			s.a[n+r][j] = J[r][j]
-		}
-		s.b[n+r] = bottom[r]
-	}
 }
 
 // solve solves the N×N system in place by Gaussian elimination with row

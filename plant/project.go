@@ -1,5 +1,13 @@
 package plant
 
+import "math"
+
+// projectTol is the constraint residual, relative to the leg length (and
+// for velocities to √(gL)), below which a projection is skipped: a
+// correction that small changes nothing a caller can see, and skipping it
+// saves work in most ticks. Residuals never accumulate beyond it.
+const projectTol = 1e-13
+
 // projectRows builds the constraint rows of the feet in contact at q: the
 // normal row (gap) for every foot in contact, and the tangential row
 // (rolling anchor) for a rolling foot. With withAnchor, res receives the
@@ -35,27 +43,37 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 // project moves s back onto the contact constraints: the positions by
 // M-weighted Gauss–Newton steps Δq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ g(q), then the
 // velocities by the same projection of J q̇ (the least kinetic-energy
-// change that satisfies the constraints).
-func (m *Model) project(s *State) {
+// change that satisfies the constraints). It reports whether it changed s.
+func (m *Model) project(s *State) bool {
 	var rows saddle
 	var res [maxRows]float64
+	changed := false
 	for it := 0; it < 2; it++ {
 		m.projectRows(s, &rows, &res)
 		if rows.k == 0 {
-			return
+			return changed
 		}
-		// solveImpulse drives J·x to zero for x = v; to drive g to zero
-		// use a pseudo-velocity whose J·x equals the residual.
+		worst := 0.0
+		for r := 0; r < rows.k; r++ {
+			worst = math.Max(worst, math.Abs(res[r]))
+		}
+		if worst <= projectTol*m.reach {
+			break
+		}
 		var dq [MaxDOF]float64
 		var lam [maxRows]float64
 		if !m.solveCorrection(&s.Q, &rows, &res, &dq, &lam) {
-			return
+			return changed
 		}
 		for i := 0; i < m.n; i++ {
 			s.Q[i] += dq[i]
 		}
+		changed = true
 	}
-	m.projectVelocity(s)
+	if changed {
+		m.projectRows(s, &rows, &res)
+	}
+	return m.projectVelocityRows(s, &rows) || changed
 }
 
 // projectVelocity removes the constraint-violating part of q̇.
@@ -63,14 +81,29 @@ func (m *Model) projectVelocity(s *State) {
 	var rows saddle
 	var res [maxRows]float64
 	m.projectRows(s, &rows, &res)
+	m.projectVelocityRows(s, &rows)
+}
+
+// projectVelocityRows projects q̇ with rows built at the current q and
+// reports whether it changed it.
+func (m *Model) projectVelocityRows(s *State, rows *saddle) bool {
 	if rows.k == 0 {
-		return
+		return false
+	}
+	worst := 0.0
+	for r := 0; r < rows.k; r++ {
+		worst = math.Max(worst, math.Abs(dot(&rows.j[r], &s.V, m.n)))
+	}
+	if worst <= projectTol*math.Sqrt(m.reach*m.p.Gravity) {
+		return false
 	}
 	var lam [maxRows]float64
 	v := s.V
-	if m.solveImpulse(&s.Q, &v, &rows, &lam) {
+	if m.solveImpulse(&s.Q, &v, rows, &lam) {
 		s.V = v
+		return true
 	}
+	return false
 }
 
 // solveCorrection finds the M-weighted least correction dq with J dq = −res:

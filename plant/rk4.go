@@ -12,28 +12,34 @@ type phase struct {
 func (m *Model) rk4(s *State, x0 *phase, k1 *eval, h float64, in *Input, out *phase) bool {
 	n := m.n
 	var x phase
-	var k2, k3, k4 eval
+	var k eval // one scratch evaluation: each stage needs only its q̈
+	var sumV, sumA [MaxDOF]float64
 	for i := 0; i < n; i++ {
 		x.q[i] = x0.q[i] + 0.5*h*x0.v[i]
 		x.v[i] = x0.v[i] + 0.5*h*k1.acc[i]
+		sumV[i], sumA[i] = x0.v[i], k1.acc[i]
 	}
-	v2 := x.v
-	m.rhs(s, &x.q, &x.v, in, &k2)
+	ok := true
+	for stage, c := range [3]float64{0.5, 1, 0} {
+		m.rhsGeom(s, &x.q, &x.v, in, &k, false)
+		ok = ok && k.ok
+		w := 2.0
+		if stage == 2 {
+			w = 1
+		}
+		for i := 0; i < n; i++ {
+			vi := x.v[i]
+			sumV[i] += w * vi
+			sumA[i] += w * k.acc[i]
+			if stage < 2 {
+				x.q[i] = x0.q[i] + c*h*vi
+				x.v[i] = x0.v[i] + c*h*k.acc[i]
+			}
+		}
+	}
 	for i := 0; i < n; i++ {
-		x.q[i] = x0.q[i] + 0.5*h*v2[i]
-		x.v[i] = x0.v[i] + 0.5*h*k2.acc[i]
+		out.q[i] = x0.q[i] + h/6*sumV[i]
+		out.v[i] = x0.v[i] + h/6*sumA[i]
 	}
-	v3 := x.v
-	m.rhs(s, &x.q, &x.v, in, &k3)
-	for i := 0; i < n; i++ {
-		x.q[i] = x0.q[i] + h*v3[i]
-		x.v[i] = x0.v[i] + h*k3.acc[i]
-	}
-	v4 := x.v
-	m.rhs(s, &x.q, &x.v, in, &k4)
-	for i := 0; i < n; i++ {
-		out.q[i] = x0.q[i] + h/6*(x0.v[i]+2*v2[i]+2*v3[i]+v4[i])
-		out.v[i] = x0.v[i] + h/6*(k1.acc[i]+2*k2.acc[i]+2*k3.acc[i]+k4.acc[i])
-	}
-	return k2.ok && k3.ok && k4.ok
+	return ok
 }

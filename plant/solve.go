@@ -59,21 +59,10 @@ func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF
 		}
 	}
 	N := nu + sd.k
-	for i := 0; i < N; i++ {
-		row := &sys.a[i]
-		for j := 0; j < N; j++ {
-			row[j] = 0
-		}
-	}
 	hxx, hxy, hyy := m.massTotal, 0.0, m.massTotal
 	fx, fy := f[0], f[1]
 	for k := 0; k < m.nLinks; k++ {
 		if inContact[k] {
-			c := col[k]
-			sys.a[0][c], sys.a[1][c] = B[k][0], B[k][1]
-			sys.a[c][0], sys.a[c][1] = B[k][0], B[k][1]
-			sys.a[c][c] = D[k]
-			sys.b[c] = f[2+k]
 			continue
 		}
 		inv := 1 / D[k]
@@ -82,6 +71,27 @@ func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF
 		hyy -= B[k][1] * B[k][1] * inv
 		fx -= B[k][0] * f[2+k] * inv
 		fy -= B[k][1] * f[2+k] * inv
+	}
+	if sd.k == 2 && sd.kind[0] == 0 && sd.kind[1] == 1 && sd.foot[0] == sd.foot[1] &&
+		sd.j[0] == sd.w[0] && sd.j[1] == sd.w[1] {
+		k := sd.foot[0]
+		return m.solveOneFoot(k, sd.j[0][0], sd.j[0][1], sd.j[1][0], sd.j[1][1], sd.j[0][2+k], sd.j[1][2+k],
+			sd.bottom[0], sd.bottom[1], &B, &D, f, hxx, hxy, hyy, fx, fy, x, lam)
+	}
+	for i := 0; i < N; i++ {
+		row := &sys.a[i]
+		for j := 0; j < N; j++ {
+			row[j] = 0
+		}
+	}
+	for k := 0; k < m.nLinks; k++ {
+		if inContact[k] {
+			c := col[k]
+			sys.a[0][c], sys.a[1][c] = B[k][0], B[k][1]
+			sys.a[c][0], sys.a[c][1] = B[k][0], B[k][1]
+			sys.a[c][c] = D[k]
+			sys.b[c] = f[2+k]
+		}
 	}
 	sys.a[0][0], sys.a[0][1], sys.a[1][0], sys.a[1][1] = hxx, hxy, hxy, hyy
 	sys.b[0], sys.b[1] = fx, fy
@@ -110,4 +120,68 @@ func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF
 		lam[r] = sys.b[nu+r]
 	}
 	return true
+}
+
+// solveOneFoot is solveSaddle for the common case of one rolling foot, in
+// closed form. The two contact rows have the orthonormal hip parts t and n,
+// so they fix the hip acceleration as a_h = c₀ − ℓ θ̈ (ℓ = t J_t,θ + n J_n,θ,
+// c₀ = t b_t + n b_n), the contact force is the hip residual
+// λ = [t n]ᵀ (H a_h + B θ̈ − F), and the leg angle obeys one scalar equation
+// whose coefficient ℓᵀHℓ − 2 B·ℓ + D is the walker's inertia about the
+// contact point: well conditioned however light the leg is.
+func (m *Model) solveOneFoot(k int, tx, ty, nx, ny, jt, jn, bt, bn float64, B *[MaxLinks][2]float64, D *[MaxLinks]float64,
+	f *[MaxDOF]float64, hxx, hxy, hyy, fx, fy float64, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	t := [2]float64{tx, ty}
+	n := [2]float64{nx, ny}
+	l := [2]float64{t[0]*jt + n[0]*jn, t[1]*jt + n[1]*jn}
+	c0 := [2]float64{t[0]*bt + n[0]*bn, t[1]*bt + n[1]*bn}
+	Hl := [2]float64{hxx*l[0] + hxy*l[1], hxy*l[0] + hyy*l[1]}
+	Hc := [2]float64{hxx*c0[0] + hxy*c0[1], hxy*c0[0] + hyy*c0[1]}
+	bk := B[k]
+	alpha := l[0]*Hl[0] + l[1]*Hl[1] - 2*(bk[0]*l[0]+bk[1]*l[1]) + D[k]
+	beta := f[2+k] - (bk[0]*c0[0] + bk[1]*c0[1]) + l[0]*(Hc[0]-fx) + l[1]*(Hc[1]-fy)
+	if !(alpha > 0) {
+		return false
+	}
+	th := beta / alpha
+	ax, ay := c0[0]-l[0]*th, c0[1]-l[1]*th
+	rx := hxx*ax + hxy*ay + bk[0]*th - fx
+	ry := hxy*ax + hyy*ay + bk[1]*th - fy
+	lam[0] = t[0]*rx + t[1]*ry
+	lam[1] = n[0]*rx + n[1]*ry
+	x[0], x[1] = ax, ay
+	for j := 0; j < m.nLinks; j++ {
+		if j == k {
+			x[2+j] = th
+		} else {
+			x[2+j] = (f[2+j] - B[j][0]*ax - B[j][1]*ay) / D[j]
+		}
+	}
+	return true
+}
+
+// rhsOneFoot is the hot path of rhs: foot k rolls and every other foot is
+// free, so no saddle system is assembled at all.
+func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	var B [MaxLinks][2]float64
+	var D [MaxLinks]float64
+	hxx, hxy, hyy := m.massTotal, 0.0, m.massTotal
+	fx, fy := f[0], f[1]
+	for j := 0; j < m.nLinks; j++ {
+		l := &m.links[j]
+		mr := l.mass * l.rho
+		B[j] = [2]float64{mr * tr.ap[j][0], mr * tr.ap[j][1]}
+		D[j] = mr*l.rho + l.inertia
+		if j == k {
+			continue
+		}
+		inv := 1 / D[j]
+		hxx -= B[j][0] * B[j][0] * inv
+		hxy -= B[j][0] * B[j][1] * inv
+		hyy -= B[j][1] * B[j][1] * inv
+		fx -= B[j][0] * f[2+j] * inv
+		fy -= B[j][1] * f[2+j] * inv
+	}
+	t, n := g.sp.t, g.sp.n
+	return m.solveOneFoot(k, t[0], t[1], n[0], n[1], g.jt[2+k], g.jn[2+k], -g.gt, -g.gn, &B, &D, f, hxx, hxy, hyy, fx, fy, x, lam)
 }

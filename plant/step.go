@@ -112,28 +112,29 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 	}
 	h := dt / float64(m.o.SubSteps)
 	tEnd := s.T + dt
-	var cur, nxt eval
-	m.rhs(s, &s.Q, &s.V, in, &cur)
+	var evA, evB eval
+	cur, nxt := &evA, &evB // swapped, not copied, after each sub-step
+	m.rhs(s, &s.Q, &s.V, in, cur)
 	if !cur.ok {
 		m.nonFinite(s, r)
 		return
 	}
 	events := 0
 	var c0, c1 [numCond]float64
+	m.conditions(s, &s.Q, cur, &c0)
 	for s.T < tEnd-1e-9*h {
 		hh := math.Min(h, tEnd-s.T)
 		x0 := phase{q: s.Q, v: s.V}
 		var x1 phase
-		ok := m.rk4(s, &x0, &cur, hh, in, &x1)
+		ok := m.rk4(s, &x0, cur, hh, in, &x1)
 		if ok {
-			m.rhs(s, &x1.q, &x1.v, in, &nxt)
+			m.rhs(s, &x1.q, &x1.v, in, nxt)
 		}
 		if !ok || !nxt.ok || !finitePhase(&x1, m.n) {
 			m.nonFinite(s, r)
 			return
 		}
-		m.conditions(s, &x0.q, &cur, &c0)
-		m.conditions(s, &x1.q, &nxt, &c1)
+		m.conditions(s, &x1.q, nxt, &c1)
 		first, tau := -1, hh
 		for k := 0; k < numCond; k++ {
 			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
@@ -141,7 +142,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 			}
 			tk := 0.0
 			if !latched(k) || c0[k] > 0 {
-				tk = m.locate(s, &x0, &cur, in, k, c0[k], c1[k], hh)
+				tk = m.locate(s, &x0, cur, in, k, c0[k], c1[k], hh)
 			}
 			if first < 0 || tk < tau {
 				first, tau = k, tk
@@ -150,7 +151,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 		if first < 0 {
 			s.Q, s.V = x1.q, x1.v
 			s.T += hh
-			cur = nxt
+			cur, nxt = nxt, cur
 			for i := 0; i < m.nFeet; i++ {
 				s.Seg[i] = cur.geom[i].sp.seg
 			}
@@ -159,42 +160,45 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 					s.fired &^= 1 << k
 				}
 			}
+			c0 = c1
 			continue
 		}
 		events++
 		if events > maxTickEvents {
 			r.add(Event{Kind: Chatter, T: s.T, Foot: -1, Segment: -1, Value: float64(events)})
 			r.Stopped = true
-			m.fillContacts(s, &cur, r)
+			m.fillContacts(s, cur, r)
 			return
 		}
 		if tau > 0 {
 			var xe phase
-			m.rk4(s, &x0, &cur, tau, in, &xe)
+			m.rk4(s, &x0, cur, tau, in, &xe)
 			s.Q, s.V = xe.q, xe.v
 			s.T += tau
 		}
-		m.rhs(s, &s.Q, &s.V, in, &cur)
-		stop := m.handle(s, in, first, &cur, r)
-		m.rhs(s, &s.Q, &s.V, in, &cur)
+		m.rhs(s, &s.Q, &s.V, in, cur)
+		stop := m.handle(s, in, first, cur, r)
+		m.rhs(s, &s.Q, &s.V, in, cur)
+		m.conditions(s, &s.Q, cur, &c0)
 		if stop || !cur.ok {
 			if !cur.ok {
 				m.nonFinite(s, r)
 				return
 			}
 			r.Stopped = true
-			m.fillContacts(s, &cur, r)
+			m.fillContacts(s, cur, r)
 			return
 		}
 	}
 	s.T = tEnd
-	m.project(s)
-	m.rhs(s, &s.Q, &s.V, in, &cur)
-	if !cur.ok {
-		m.nonFinite(s, r)
-		return
+	if m.project(s) {
+		m.rhs(s, &s.Q, &s.V, in, cur)
+		if !cur.ok {
+			m.nonFinite(s, r)
+			return
+		}
 	}
-	m.fillContacts(s, &cur, r)
+	m.fillContacts(s, cur, r)
 }
 
 func (m *Model) fillContacts(s *State, ev *eval, r *TickResult) {
