@@ -50,7 +50,7 @@ func (m *Model) centreOfPressure(q *[MaxDOF]float64, i int, g *footGeom) float64
 	}
 	a, _ := axis(q[2+i])
 	nn := g.sp.n
-	return R * math.Atan2(-(a[0]*nn[1] - a[1]*nn[0]), -(a[0]*nn[0] + a[1]*nn[1]))
+	return R * math.Atan2(-(a[0]*nn[1]-a[1]*nn[0]), -(a[0]*nn[0]+a[1]*nn[1]))
 }
 
 // eval is one evaluation of the right-hand side: accelerations and, for
