@@ -1,0 +1,39 @@
+package main
+
+import (
+	"testing"
+
+	"gaitrig/scenarios"
+)
+
+func TestVariantIsValidatedAndKeepsItsText(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	v, err := variantOf(base, "half-friction", func(s *scenarios.Scenario) {
+		for i := range s.Terrain.Segments {
+			s.Terrain.Segments[i].MuStatic *= 0.5
+			s.Terrain.Segments[i].MuKinetic *= 0.5
+		}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got, want := v.Terrain.Segments[0].MuStatic, base.Terrain.Segments[0].MuStatic/2; got != want {
+		t.Errorf("variant μ_s = %v, want %v", got, want)
+	}
+	if base.Terrain.Segments[0].MuStatic == v.Terrain.Segments[0].MuStatic {
+		t.Error("the variant changed the base scenario")
+	}
+	again, err := scenarios.Parse("again", v.Text)
+	if err != nil {
+		t.Fatalf("variant text does not load again: %v", err)
+	}
+	if again.Terrain.Segments[0].MuStatic != v.Terrain.Segments[0].MuStatic || again.Name != "half-friction" {
+		t.Error("variant text does not describe the variant")
+	}
+	if _, err := variantOf(base, "broken", func(s *scenarios.Scenario) { s.Plant.Legs.FootRadiusM = 5 }); err == nil {
+		t.Error("a variant with a foot radius beyond the leg length was accepted")
+	}
+}
