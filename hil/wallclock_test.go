@@ -2,10 +2,15 @@ package hil
 
 import (
 	"context"
+	"errors"
+	"math"
 	"testing"
 	"time"
 
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
 	"gaitrig/record"
+	"gaitrig/scenarios"
 )
 
 // A bounded wall-clock run at 1 kHz against the reference firmware over
@@ -52,4 +57,72 @@ func TestWallclockInproc1kHz(t *testing.T) {
 	}
 	t.Logf("%s; %d of 500 ticks had a fresh command; latency p50 %.0f µs p99 %.0f µs max %.0f µs; jitter p50 %.0f p99 %.0f max %.0f µs; %d deadline misses",
 		res.Realtime, fresh, sum.LatencyUS.P50, sum.LatencyUS.P99, sum.LatencyUS.Max, sum.JitterUS.P50, sum.JitterUS.P99, sum.JitterUS.Max, sum.DeadlineMisses)
+}
+
+// In wall-clock mode too, a bad torque is rejected with zero torque, bad
+// frames are counted, and an interrupt ends the run with everything
+// written and a Stop sent.
+func TestWallclockBadInputAndAbort(t *testing.T) {
+	m, s, cfg := demo(t, 0)
+	cfg.Clock = Wallclock
+	cfg.MaxSteps, cfg.Duration = 0, 5
+	cfg.Watchdog = time.Second
+	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: scenarios.SeverityWarn}
+	ctx, cancel := context.WithCancelCause(context.Background())
+	defer cancel(nil)
+	var stop protocol.Stop
+	fw := func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		st, err := untilStop(conn, func(in *protocol.Message) {
+			if in.Type != protocol.TypeState {
+				return
+			}
+			if in.Seq == 300 {
+				cancel(errors.New("SIGINT"))
+			}
+			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+			out.Command.Joints = 2
+			out.Command.Torque[0] = 3
+			if in.Seq%50 == 0 {
+				out.Command.Torque[0] = float32(math.NaN())
+			}
+			conn.Send(&out)
+		})
+		stop = st
+		return err
+	}
+	rig, fwEnd := inprocPair()
+	defer rig.Close()
+	conn := &frameErrConn{Conn: rig, every: 97}
+	done := make(chan error, 1)
+	go func() { done <- fw(fwEnd) }()
+	rec := newRecord(t, cfg, m, s)
+	res, err := Run(ctx, cfg, m, s, conn, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ferr := <-done; ferr != nil {
+		t.Fatal(ferr)
+	}
+	if res.Summary.Outcome != record.Aborted || stop.Reason != protocol.StopAborted {
+		t.Fatalf("outcome %s, stop reason %d", res.Summary.Outcome, stop.Reason)
+	}
+	if res.Link.BadTorques == 0 || res.Link.BadFrames == 0 {
+		t.Fatalf("counts %+v", res.Link)
+	}
+	run := openRun(t, rec.Dir())
+	ticks, truncated, err := run.AllTicks()
+	if err != nil || truncated || int64(len(ticks)) != run.Summary.Ticks {
+		t.Fatalf("%d rows, truncated %v, err %v, summary %d ticks", len(ticks), truncated, err, run.Summary.Ticks)
+	}
+	for _, row := range ticks {
+		if math.IsNaN(row.Commanded[0]) && (row.Applied[0] != 0 || row.Applied[1] != 0) {
+			t.Fatalf("tick %d: NaN commanded, %v applied", row.Index, row.Applied[:2])
+		}
+	}
+	if len(eventsOf(t, rec.Dir(), "aborted")) != 1 {
+		t.Error("the interrupt is not in the event log")
+	}
 }
