@@ -330,3 +330,18 @@ func TestResolve(t *testing.T) {
 		}
 	}
 }
+
+// BenchmarkParse measures loading the level-demo scenario from its text.
+func BenchmarkParse(b *testing.B) {
+	text, err := BuiltinText("level-demo")
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		if _, err := Parse("level-demo.yaml", text); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
