@@ -320,6 +320,9 @@ static enum outcome on_state(struct link *l, struct session *s, const struct pro
     if (s->have_pending) {
         l->n.skipped++;
     }
+    /* Heartbeats and stops carry the seq of the latest state received
+     * (section 6), answered or not. */
+    l->last_state_seq = m->seq;
     s->pending = *m;
     s->have_pending = 1;
     return KEEP_GOING;
@@ -341,7 +344,6 @@ static enum outcome answer_pending(struct link *l, struct session *s)
         l->n.commands++;
         return KEEP_GOING;
     }
-    l->last_state_seq = m->seq;
     memset(&s->last, 0, sizeof s->last);
     s->last.type = PROTO_COMMAND;
     s->last.seq = m->seq; /* a command echoes its state's seq */
