@@ -206,6 +206,10 @@ func (c Config) withDefaults() (Config, error) {
 			if f.Fixed < 0 || f.Jitter < 0 {
 				return c, fmt.Errorf("hil: latency fault %d: fixed and jitter must be ≥ 0", i)
 			}
+			if ticks := (f.Fixed + f.Jitter).Seconds() * c.TickHz; ticks >= latencyQueueCap-1 {
+				return c, fmt.Errorf("hil: latency fault %d: %v + %v is %.0f ticks at %g Hz; the loop holds at most %d ticks of delayed commands",
+					i, f.Fixed, f.Jitter, ticks, c.TickHz, latencyQueueCap-2)
+			}
 		case FaultDrop, FaultCorrupt:
 			if !(f.Rate > 0 && f.Rate <= 1) {
 				return c, fmt.Errorf("hil: %s fault %d: rate %g must be in (0, 1]", f.Kind, i, f.Rate)

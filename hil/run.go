@@ -9,6 +9,7 @@ import (
 	"slices"
 	"strings"
 	"time"
+	"unicode/utf8"
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
@@ -43,7 +44,7 @@ type Result struct {
 type LinkCounts struct {
 	StatesSent     uint64 // states sent, resends included
 	Resends        uint64 // lockstep states sent again after Resend with no reply
-	Commands       uint64 // valid commands taken
+	Commands       uint64 // commands taken (bad torques included; stale, dropped and corrupted ones not)
 	StaleCommands  uint64 // commands whose sequence number was not the one awaited (duplicates, floods, late replies)
 	BadFrames      uint64 // frames the link rejected (*bridges.FrameError) plus injected corruptions
 	BadTorques     uint64 // commands rejected for a NaN, Inf or absurd torque
@@ -868,7 +869,12 @@ func (r *runner) sendStop() {
 		text = "run finished"
 	}
 	if len(text) > protocol.MaxNameLen {
-		text = text[:protocol.MaxNameLen]
+		// Cut at a rune boundary so the firmware never gets half a "μ".
+		cut := protocol.MaxNameLen
+		for cut > 0 && !utf8.RuneStart(text[cut]) {
+			cut--
+		}
+		text = text[:cut]
 	}
 	m.Stop.Text = text
 	r.conn.Send(&m)
