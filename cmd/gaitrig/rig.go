@@ -304,6 +304,15 @@ func newRunDir(root, name string) string {
 	}
 }
 
+// lockstepWatchdogFloor is the shortest watchdog of a lockstep run. In
+// lockstep simulated time stands still while the rig waits, so a slow reply
+// costs nothing physical; the watchdog there only has to tell a dead
+// firmware from a busy host. A loaded CI machine stalls a process for tens
+// of milliseconds, and a 50 ms watchdog would trip on that and make lockstep
+// results depend on the machine. One second tells the two apart (our
+// choice). Wall-clock runs keep the scenario's watchdog as written.
+const lockstepWatchdogFloor = time.Second
+
 // runScenario carries out one scenario run end to end: model, initial state,
 // link, run folder, loop, report.
 func runScenario(ctx context.Context, sc *scenarios.Scenario, o runOptions) (runResult, error) {
@@ -313,6 +322,9 @@ func runScenario(ctx context.Context, sc *scenarios.Scenario, o runOptions) (run
 	}
 	if o.Clock != "" {
 		cfg.Clock = hil.ClockMode(o.Clock)
+	}
+	if cfg.Clock == hil.Lockstep && cfg.Watchdog < lockstepWatchdogFloor {
+		cfg.Watchdog = lockstepWatchdogFloor
 	}
 	model, err := hil.NewModel(sc, cfg)
 	if err != nil {
