@@ -20,9 +20,9 @@
  *
  * Exit status: 0 after a stop with reason "end" from the rig; 1 after any
  * other stop reason, a frame of another protocol version, a config it cannot
- * drive, a link closed under it, a rig silent for 10 s, or SIGINT/SIGTERM
- * (after sending a stop with reason "firmware"); 2 for bad usage or
- * a tty that cannot be opened. On every exit after the tty opened it prints
+ * drive, a link closed under it, a rig silent for 10 s after its config, or
+ * SIGINT/SIGTERM (after sending a stop with reason "firmware"); 2 for bad
+ * usage or a tty that cannot be opened. On every exit after the tty opened it prints
  * one line of counters to stderr, starting "cfw: counters", which the
  * end-to-end test reads.
  */
@@ -48,8 +48,8 @@
 /* Session timing of docs/protocol.md section 6. */
 #define GREETING_REPEAT_MS 500
 #define HEARTBEAT_MS 100
-/* Give up if the rig says nothing at all for this long: a firmware on a bench
- * must not spin forever on an abandoned line. */
+/* Once configured, give up if the rig says nothing at all for this long: a
+ * firmware on a bench must not spin forever on an abandoned run. */
 #define SILENCE_LIMIT_MS 10000
 /* A receiver that collects more than this without a zero drops the bytes
  * (section 4): the COBS size of a 512-byte frame. */
@@ -508,21 +508,26 @@ static int run(struct link *l)
             fprintf(stderr, "cfw: poll failed: %s\n", strerror(errno));
             return finish(l, "poll-failed", 1);
         }
+        /* Timers run whether or not bytes came: a line with noise on it
+         * must not hold back the greeting or the heartbeat. */
+        if (!s.configured && t - last_greeting >= GREETING_REPEAT_MS) {
+            if (send_greeting(l) != 0) {
+                return finish(l, "write-failed", 1);
+            }
+            last_greeting = t;
+        } else if (s.configured && t - l->last_tx_ms >= HEARTBEAT_MS) {
+            if (send_heartbeat(l) != 0) {
+                return finish(l, "write-failed", 1);
+            }
+        }
         if (pr <= 0) {
-            if (t - last_rx > SILENCE_LIMIT_MS) {
+            /* Before a config the firmware waits for a rig as long as it
+             * takes, as a board on the bench does; once configured, a rig
+             * that says nothing for this long has gone. */
+            if (s.configured && t - last_rx > SILENCE_LIMIT_MS) {
                 fprintf(stderr, "cfw: the rig has been silent for %d ms, giving up\n",
                         SILENCE_LIMIT_MS);
                 return finish(l, "silence", 1);
-            }
-            if (!s.configured && t - last_greeting >= GREETING_REPEAT_MS) {
-                if (send_greeting(l) != 0) {
-                    return finish(l, "write-failed", 1);
-                }
-                last_greeting = t;
-            } else if (s.configured && t - l->last_tx_ms >= HEARTBEAT_MS) {
-                if (send_heartbeat(l) != 0) {
-                    return finish(l, "write-failed", 1);
-                }
             }
             continue;
         }
