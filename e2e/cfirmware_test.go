@@ -986,12 +986,26 @@ func TestCFirmwareSession(t *testing.T) {
 	if g.Type != protocol.TypeGreeting || g.Seq != 0 || g.Greeting.Version != protocol.Version || g.Greeting.Actuators != 2 {
 		t.Fatalf("first message: want a version-1 greeting with seq 0 and 2 actuators, got %+v", g)
 	}
-	// Without a config the greeting repeats (every 500 ms, section 6).
+	// Without a config the greeting repeats (every 500 ms, section 6), also
+	// while noise keeps arriving: a bad block every 50 ms.
 	start := time.Now()
-	if g2 := rig.next(3*time.Second, true); g2.Type != protocol.TypeGreeting {
-		t.Fatalf("want the greeting repeated while no config came, got %v", g2.Type)
+	noise := 0
+	for repeated := false; !repeated; {
+		rig.raw([]byte{0x05, 0x11, 0x00}) // a code byte that runs past the end
+		noise++
+		select {
+		case m, ok := <-rig.msgs:
+			if !ok || m.Type != protocol.TypeGreeting {
+				t.Fatalf("want the greeting repeated while no config came, got %+v (open %v)", m, ok)
+			}
+			repeated = true
+		case <-time.After(50 * time.Millisecond):
+			if time.Since(start) > 3*time.Second {
+				t.Fatal("the greeting was not repeated within 3 s while noise arrived")
+			}
+		}
 	}
-	t.Logf("greeting repeated after %v", time.Since(start).Round(time.Millisecond))
+	t.Logf("greeting repeated after %v, with %d noise blocks in between", time.Since(start).Round(time.Millisecond), noise)
 
 	cfg := demoConfig()
 	rig.send(&cfg)
@@ -1078,8 +1092,8 @@ func TestCFirmwareSession(t *testing.T) {
 		t.Fatalf("after a normal stop the firmware must exit 0, got %d\nstderr:\n%s", code, fw.stderr.String())
 	}
 	c := fw.counters(t)
-	if got := counter(t, c, "frame_errors"); got != 3 {
-		t.Errorf("firmware frame_errors = %d, want 3 (garbage, bad CRC, truncated)\nstderr:\n%s", got, fw.stderr.String())
+	if got, want := counter(t, c, "frame_errors"), uint64(3+noise); got != want {
+		t.Errorf("firmware frame_errors = %d, want %d (%d noise blocks, garbage, bad CRC, truncated)\nstderr:\n%s", got, want, noise, fw.stderr.String())
 	}
 	if got := counter(t, c, "repeats"); got != 1 {
 		t.Errorf("firmware repeats = %d, want 1", got)
