@@ -3,12 +3,14 @@ package hil
 import (
 	"context"
 	"errors"
+	"path/filepath"
 	"testing"
 	"time"
 
 	"gaitrig/bridges"
 	"gaitrig/firmware/reference"
 	"gaitrig/plant"
+	"gaitrig/record"
 	"gaitrig/scenarios"
 )
 
@@ -88,4 +90,51 @@ func naturalGait(s *scenarios.Scenario, m *plant.Model) (plant.State, error) {
 	}
 	g, err := plant.FindGait(m, nil, guess, plant.GaitOptions{})
 	return g.State, err
+}
+
+// A run folder made from a scenario replays exactly from what it holds:
+// the scenario text in the manifest rebuilds model and initial state, the
+// telemetry supplies the applied torques and pushes.
+func TestReplayRunFromFolder(t *testing.T) {
+	s, err := scenarios.LoadBuiltin("push-recovery")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := FromScenario(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg.Watchdog = 2 * time.Second
+	cfg.MaxSteps = 10
+	m, err := NewModel(s, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	init, err := InitialState(s, m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mf, err := Manifest(s, cfg, m, init, "inproc", "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	rec, err := record.Create(filepath.Join(t.TempDir(), "run"), mf)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go libraryFirmware(t, s, m.NumActuators())(fw)
+	res, err := Run(context.Background(), cfg, m, init, rig, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := ReplayRun(rec.Dir(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Match || int64(r.Ticks) != res.Summary.Ticks {
+		t.Fatalf("%s (run had %d ticks)", r, res.Summary.Ticks)
+	}
+	t.Log(r)
 }

@@ -178,3 +178,27 @@ func TestLawIsPure(t *testing.T) {
 		t.Fatalf("Law allocates %.0f times", n)
 	}
 }
+
+// Compass walker: the single hip torque acts +τ on the right leg and −τ on
+// the left, so the law flips its sign when the left leg swings.
+func TestCompassLawSigns(t *testing.T) {
+	g := DefaultGains()
+	tests := []struct {
+		name     string
+		contacts uint8
+		pitch    float64 // left leg angle (IMU on the left leg)
+		hip      float64 // θ_right − θ_left
+		sign     float64
+	}{
+		{"right leg swings from behind", protocol.ContactLeft, 0.2, -0.4, +1},
+		{"left leg swings from behind", protocol.ContactRight, -0.2, 0.4, -1},
+	}
+	for _, tc := range tests {
+		r := Reading{Joints: 1, Angle: [2]float64{tc.hip}, Pitch: tc.pitch, Contacts: tc.contacts}
+		var tau [1]float64
+		Law(&g, &r, tau[:])
+		if tau[0]*tc.sign <= 0 {
+			t.Errorf("%s: hip torque %g, want sign %+g", tc.name, tau[0], tc.sign)
+		}
+	}
+}
