@@ -1379,9 +1379,7 @@ func TestCFirmwareStopsOnSIGTERM(t *testing.T) {
 // demoRun is the walking run of the end-to-end test: the demo walker of
 // plant.DemoParams (the walker the reference gains are tuned for) starting
 // from reference.DemoStart on level ground, in lockstep at 1 kHz, until 25
-// heel strikes or 40 simulated seconds. (The level-demo scenario of the
-// library has a walker of other masses, on which the reference gains trip
-// on friction within two steps, with the Go firmware as with the C one.) The watchdog and resend times are
+// heel strikes or 40 simulated seconds. The watchdog and resend times are
 // widened from their defaults: on a shared two-core machine under -race a
 // pty round trip can stall for tens of milliseconds, and this test checks
 // walking and framing, not the watchdog (which hil tests on its own).
@@ -1537,15 +1535,45 @@ func checkWalk(t *testing.T, label string, res hil.Result, dir string, conn brid
 	}
 }
 
+// levelDemoRun is the level-demo scenario of the library, loaded as the
+// command line loads it, with the watchdog and resend times widened for
+// the reason given at demoRun.
+func levelDemoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
+	t.Helper()
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatalf("loading the level-demo scenario: %v", err)
+	}
+	cfg, err := hil.FromScenario(sc)
+	if err != nil {
+		t.Fatalf("loop configuration of level-demo: %v", err)
+	}
+	if cfg.Clock != hil.Lockstep {
+		t.Fatalf("level-demo runs in clock mode %q; this test needs lockstep", cfg.Clock)
+	}
+	cfg.Watchdog = 2 * time.Second
+	cfg.Resend = 200 * time.Millisecond
+	model, err := hil.NewModel(sc, cfg)
+	if err != nil {
+		t.Fatalf("plant of level-demo: %v", err)
+	}
+	initial, err := hil.InitialState(sc, model)
+	if err != nil {
+		t.Fatalf("initial state of level-demo: %v", err)
+	}
+	return cfg, model, initial
+}
+
 // TestCFirmwareWalksOverSerialPort is the bench set-up with a cable: socat
 // links two pseudo-terminals, the C firmware opens one path, and the rig
 // opens the other with serial.Open, that is with go.bug.st/serial, exactly
-// as it opens /dev/ttyACM0 for a board. The walk must meet the same checks
-// as over a single pty pair, and end in the same plant state.
+// as it opens /dev/ttyACM0 for a board. It runs the library's level-demo
+// scenario; the walk must meet the same checks as over a single pty pair,
+// and end in the same plant state as the Go reference in-process.
 func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	b := buildC(t)
 	socat := requireTool(t, "socat")
-	cfg, model, initial := demoRun(t)
+	cfg, model, initial := levelDemoRun(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
@@ -1585,16 +1613,19 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	res, runDir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+rigPath)
 	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, runDir, conn, fw)
 
-	// The pty-pair run and this one differ only in the bytes' path, so the
-	// plant must end in the same state as with the Go reference in-process.
+	// Same law to the bit, deterministic loop: the same end state as the Go
+	// reference in-process.
 	rigEnd, fwEnd := inproc.Pair()
 	served := make(chan error, 1)
 	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
 	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
 	rigEnd.Close()
-	<-served
-	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
-		t.Errorf("final plant state differs between the C firmware over socat and the Go reference in-process")
+	if err := <-served; err != nil {
+		t.Errorf("the Go reference firmware ended with %v", err)
+	}
+	if goRes.Summary.Ticks != res.Summary.Ticks || goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
+		t.Errorf("level-demo: the C firmware over socat ended after %d ticks in q=%v v=%v, the Go reference in-process after %d ticks in q=%v v=%v",
+			res.Summary.Ticks, res.Final.Q, res.Final.V, goRes.Summary.Ticks, goRes.Final.Q, goRes.Final.V)
 	}
 }
 
