@@ -1,0 +1,303 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+
+	"gaitrig/record"
+)
+
+// run calls the command line in-process and returns its exit code and output.
+func run(t *testing.T, args ...string) (int, string, string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code := dispatch(args, &out, &errb)
+	return code, out.String(), errb.String()
+}
+
+// onlyRunDir returns the single run folder below root.
+func onlyRunDir(t *testing.T, root string) string {
+	t.Helper()
+	entries, err := os.ReadDir(root)
+	if err != nil || len(entries) != 1 {
+		t.Fatalf("want exactly one run folder in %s, got %v (%v)", root, entries, err)
+	}
+	return filepath.Join(root, entries[0].Name())
+}
+
+func readSummary(t *testing.T, dir string) record.Summary {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(dir, "summary.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var s record.Summary
+	if err := json.Unmarshal(b, &s); err != nil {
+		t.Fatalf("summary.json: %v", err)
+	}
+	return s
+}
+
+func TestHelpOnEveryCommand(t *testing.T) {
+	for name := range commands {
+		code, _, errOut := run(t, name, "--help")
+		if code != exitPass {
+			t.Errorf("gaitrig %s --help: exit %d, want 0", name, code)
+		}
+		if !strings.Contains(errOut, "Usage: gaitrig "+name) {
+			t.Errorf("gaitrig %s --help does not print its usage line:\n%s", name, errOut)
+		}
+	}
+	if code, _, _ := run(t, "no-such-command"); code != exitConfig {
+		t.Errorf("unknown command: exit %d, want %d", code, exitConfig)
+	}
+}
+
+func TestDemoWalksOverTheEmbeddedBroker(t *testing.T) {
+	root := t.TempDir()
+	code, out, errOut := run(t, "demo", "--out", root)
+	if code != exitPass {
+		t.Fatalf("gaitrig demo: exit %d\nstdout:\n%s\nstderr:\n%s", code, out, errOut)
+	}
+	dir := onlyRunDir(t, root)
+	s := readSummary(t, dir)
+	if s.Outcome != record.Pass || s.Steps < 20 {
+		t.Errorf("demo outcome %s with %d steps, want pass with ≥ 20", s.Outcome, s.Steps)
+	}
+	for _, f := range []string{"manifest.json", "telemetry.csv", "events.jsonl", "steps.csv", "report.html", "junit.xml"} {
+		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
+			t.Errorf("demo run folder lacks %s", f)
+		}
+	}
+	for _, want := range []string{"step   1", "outcome: PASS", "report:", "not a safety certificate"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("demo output lacks %q:\n%s", want, out)
+		}
+	}
+	if !strings.Contains(errOut, "mqtt") && !strings.Contains(out, "mqtt") {
+		// The link name is in the manifest either way; the log line says it too.
+		m, _ := os.ReadFile(filepath.Join(dir, "manifest.json"))
+		if !bytes.Contains(m, []byte("mqtt:embedded")) {
+			t.Errorf("the demo did not run over the embedded broker (manifest link missing)")
+		}
+	}
+}
+
+func TestCheckPointsToFileLineAndField(t *testing.T) {
+	dir := t.TempDir()
+	bad := filepath.Join(dir, "bad.yaml")
+	text, err := os.ReadFile("../../scenarios/library/level-demo.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	broken := strings.Replace(string(text), "foot_radius_m: 0.27", "foot_radius_m: 1.5", 1)
+	if broken == string(text) {
+		t.Fatal("the demo scenario no longer has the line this test edits")
+	}
+	if err := os.WriteFile(bad, []byte(broken), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, errOut := run(t, "check", bad)
+	if code != exitConfig {
+		t.Errorf("check of a broken file: exit %d, want %d", code, exitConfig)
+	}
+	line := 1 + strings.Count(broken[:strings.Index(broken, "foot_radius_m: 1.5")], "\n")
+	want := bad + ":" + itoaN(line) + ":"
+	if !strings.Contains(errOut, want) || !strings.Contains(errOut, "foot_radius") {
+		t.Errorf("check output does not point to %s and the field:\n%s", want, errOut)
+	}
+	if code, out, _ := run(t, "check", "level-demo", "passive-downhill"); code != exitPass || strings.Count(out, ": ok") != 2 {
+		t.Errorf("check of built-in scenarios: exit %d\n%s", code, out)
+	}
+}
+
+func itoaN(n int) string { return strconv.Itoa(n) }
+
+func TestCycleFindsThePassiveGait(t *testing.T) {
+	code, out, errOut := run(t, "cycle", "--json", "passive-downhill")
+	if code != exitPass {
+		t.Fatalf("cycle: exit %d\n%s\n%s", code, out, errOut)
+	}
+	var r map[string]any
+	if err := json.Unmarshal([]byte(out), &r); err != nil {
+		t.Fatalf("cycle --json is not JSON: %v\n%s", err, out)
+	}
+	for _, k := range []string{"found", "stable", "eigenvalues", "period_s", "step_length_m", "speed_mps",
+		"energy_lost_per_step_j", "peak_required_friction", "min_normal_force_n", "impulse_ratio", "state_after_heel_strike"} {
+		if _, ok := r[k]; !ok {
+			t.Errorf("cycle --json lacks %q", k)
+		}
+	}
+	if r["found"] != true {
+		t.Errorf("passive downhill gait not found: %s", out)
+	}
+	if p, _ := r["period_s"].(float64); p <= 0 {
+		t.Errorf("period_s = %v, want > 0", r["period_s"])
+	}
+}
+
+func TestReplayMatchesARecordedRun(t *testing.T) {
+	root := t.TempDir()
+	dir := filepath.Join(root, "run")
+	if code, out, errOut := run(t, "run", "--quiet", "--report=false", "--dir", dir, "level-demo"); code != exitPass {
+		t.Fatalf("run: exit %d\n%s\n%s", code, out, errOut)
+	}
+	code, out, errOut := run(t, "replay", dir)
+	if code != exitPass {
+		t.Errorf("replay of an untouched run: exit %d\n%s\n%s", code, out, errOut)
+	}
+}
+
+func TestSuiteComparesWithBaseline(t *testing.T) {
+	root := t.TempDir()
+	lib := filepath.Join(root, "lib")
+	if err := os.MkdirAll(lib, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	text, err := os.ReadFile("../../scenarios/library/slope-change.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(lib, "slope-change.yaml"), text, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	base := filepath.Join(root, "baseline.json")
+	code, out, errOut := run(t, "suite", "--out", filepath.Join(root, "runs1"), "--no-report", "--write-baseline", base, lib)
+	if code != exitPass {
+		t.Fatalf("first suite run: exit %d\n%s\n%s", code, out, errOut)
+	}
+	// Same firmware, same scenario: no regression against its own baseline.
+	code, out, errOut = run(t, "suite", "--out", filepath.Join(root, "runs2"), "--no-report", "--baseline", base, lib)
+	if code != exitPass {
+		t.Fatalf("suite against its own baseline: exit %d\n%s\n%s", code, out, errOut)
+	}
+	// A baseline that walked further makes this run a regression.
+	bl, err := readBaseline(base)
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := bl.Scenarios["slope-change"]
+	e.Steps += 10
+	bl.Scenarios["slope-change"] = e
+	if err := writeBaseline(base, bl.Tolerances, bl.Scenarios); err != nil {
+		t.Fatal(err)
+	}
+	junit := filepath.Join(root, "junit.xml")
+	code, out, _ = run(t, "suite", "--out", filepath.Join(root, "runs3"), "--no-report", "--baseline", base, "--junit", junit, lib)
+	if code != exitFail || !strings.Contains(out, "REGRESSED") {
+		t.Errorf("suite with a better baseline: exit %d, want %d and a REGRESSED line\n%s", code, exitFail, out)
+	}
+	x, err := os.ReadFile(junit)
+	if err != nil || !bytes.Contains(x, []byte("<failure")) {
+		t.Errorf("JUnit XML lacks the failure: %v\n%s", err, x)
+	}
+}
+
+func TestCompareNamesWhatRegressed(t *testing.T) {
+	p := func(v float64) *float64 { return &v }
+	want := baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, LatencyP99US: p(300)}
+	tests := []struct {
+		name string
+		got  baselineEntry
+		msg  string // substring of the regression, "" for none
+	}{
+		{"same", want, ""},
+		{"better", baselineEntry{Outcome: "pass", Steps: 31, MeanSpeedMPS: 0.81, PeakFrictionUtilization: 0.2, MinNormalForceN: 250, LatencyP99US: p(200)}, ""},
+		{"tripped", baselineEntry{Outcome: "tripped", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "outcome tripped"},
+		{"fewer steps", baselineEntry{Outcome: "pass", Steps: 29, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "steps 29"},
+		{"slower", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.7, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "mean speed"},
+		{"more friction", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.4, MinNormalForceN: 200}, "friction"},
+		{"less normal force", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 150}, "normal force"},
+		{"slower link", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, LatencyP99US: p(600)}, "latency"},
+		{"new alarm", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, Alarms: map[string]int{"bad_frame": 2}}, "new alarm kind bad_frame"},
+	}
+	for _, tt := range tests {
+		got := compare(want, tt.got, defaultTolerances)
+		joined := strings.Join(got, "; ")
+		if tt.msg == "" && len(got) != 0 {
+			t.Errorf("%s: unexpected regressions %q", tt.name, joined)
+		}
+		if tt.msg != "" && !strings.Contains(joined, tt.msg) {
+			t.Errorf("%s: regressions %q do not mention %q", tt.name, joined, tt.msg)
+		}
+	}
+}
+
+// TestInterruptEndsTheRunCleanly sends SIGINT to a real gaitrig process in
+// the middle of a wall-clock run: the run must end with outcome aborted and
+// a complete, readable run folder.
+func TestInterruptEndsTheRunCleanly(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the command; skipped with -short")
+	}
+	bin := filepath.Join(t.TempDir(), "gaitrig")
+	build := exec.Command("go", "build", "-o", bin, ".")
+	if out, err := build.CombinedOutput(); err != nil {
+		t.Fatalf("go build: %v\n%s", err, out)
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	cmd := exec.Command(bin, "run", "--quiet", "--clock", "wallclock", "--dir", dir, "level-demo")
+	var out bytes.Buffer
+	cmd.Stdout, cmd.Stderr = &out, &out
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	// Wait until ticks are being recorded, then interrupt.
+	deadline := time.Now().Add(20 * time.Second)
+	for {
+		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 10000 {
+			break
+		}
+		if time.Now().After(deadline) {
+			cmd.Process.Kill()
+			cmd.Wait()
+			t.Fatalf("no telemetry after 20 s:\n%s", out.String())
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	if err := cmd.Process.Signal(syscall.SIGINT); err != nil {
+		t.Fatal(err)
+	}
+	done := make(chan error, 1)
+	go func() { done <- cmd.Wait() }()
+	select {
+	case <-done:
+	case <-time.After(20 * time.Second):
+		cmd.Process.Kill()
+		t.Fatalf("gaitrig did not end within 20 s of SIGINT:\n%s", out.String())
+	}
+	if code := cmd.ProcessState.ExitCode(); code != exitFail {
+		t.Errorf("exit code after SIGINT %d, want %d\n%s", code, exitFail, out.String())
+	}
+	s := readSummary(t, dir)
+	if s.Outcome != record.Aborted {
+		t.Errorf("outcome %q after SIGINT, want aborted", s.Outcome)
+	}
+	r, err := record.Open(dir)
+	if err != nil {
+		t.Fatalf("run folder unreadable after SIGINT: %v", err)
+	}
+	n := 0
+	it, err := r.Ticks()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer it.Close()
+	for it.Next() {
+		n++
+	}
+	if err := it.Err(); err != nil {
+		t.Errorf("telemetry after SIGINT: %v", err)
+	}
+	if int64(n) != s.Ticks {
+		t.Errorf("telemetry has %d rows, the summary counts %d ticks", n, s.Ticks)
+	}
+}
