@@ -73,8 +73,12 @@ func buildC(t testing.TB) cBinaries {
 	gcc := requireTool(t, "gcc")
 	dir := t.TempDir()
 	b := cBinaries{firmware: filepath.Join(dir, "gaitrig-cfw"), selftest: filepath.Join(dir, "selftest")}
+	// GAITRIG_CFW_EXTRA_CFLAGS adds flags after the project's, for example
+	// "-g -fsanitize=address,undefined" to run every test on an
+	// instrumented build.
+	extra := strings.Fields(os.Getenv("GAITRIG_CFW_EXTRA_CFLAGS"))
 	build := func(out string, sources ...string) {
-		args := append(append([]string{}, cflags...), "-o", out)
+		args := append(append(append([]string{}, cflags...), extra...), "-o", out)
 		for _, s := range sources {
 			args = append(args, filepath.Join(cSourceDir, s))
 		}
