@@ -176,7 +176,7 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 			s.T += h
 			cur = nxt
 			for i := 0; i < m.nFeet; i++ {
-				s.Seg[i] = cur.geom[i].sp.seg
+				m.setRegion(s, i, &cur.geom[i])
 			}
 			for k := 0; k < numCond; k++ {
 				if !(c1[k] <= 0) {
@@ -261,7 +261,7 @@ func (m *Model) locateAdaptive(s *State, x0 *phase, k1 *eval, pol Policy, k int,
 			}
 			side = +1
 		}
-		if f == 0 || math.Abs(f) < 1e-16*(math.Abs(fa)+math.Abs(fb)) {
+		if f <= 0 && (f == 0 || -f < 1e-16*(math.Abs(fa)+math.Abs(fb))) {
 			return t
 		}
 	}

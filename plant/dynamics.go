@@ -5,6 +5,7 @@ import "math"
 // footGeom is the contact geometry of one foot at one state.
 type footGeom struct {
 	sp     surfacePoint
+	c      [2]float64 // arc centre
 	gap    float64
 	jt, jn [MaxDOF]float64 // contact Jacobian rows: t·v_p and n·v_p
 	gt, gn float64         // J̇ q̇ for the two rows
@@ -14,15 +15,38 @@ type footGeom struct {
 
 // footGeometry computes the contact geometry of foot i. The material point
 // at the contact moves with v_centre + ω ẑ × (−R n) = v_centre + R ω t.
+// The terrain point is the closest one, searched from segment hint.
 func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
 	var tr trig
 	tr.a[i], tr.ap[i] = axis(q[2+i])
-	m.footGeometryTrig(q, v, &tr, i, hint, g)
+	m.footGeometryTrig(q, v, &tr, i, hint, -1, g)
 }
 
-func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, g *footGeom) {
+// footGeometryOf is footGeometry for foot i of state s at (q, v): a foot in
+// contact keeps the terrain region recorded in s (so the contact geometry
+// is smooth until a located region change), a free foot searches.
+func (m *Model) footGeometryOf(s *State, q, v *[MaxDOF]float64, tr *trig, i int, g *footGeom) {
+	region := int8(-1)
+	if s.Mode[i] != Free {
+		region = 0
+		if s.vertex[i] {
+			region = 1
+		}
+	}
+	m.footGeometryTrig(q, v, tr, i, s.Seg[i], region, g)
+}
+
+// footGeometryTrig computes the geometry with the link trigonometry given.
+// region −1 searches the closest terrain point from segment hint; 0 uses
+// the line of segment hint; 1 the vertex at the end of segment hint.
+func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, region int8, g *footGeom) {
 	c, dc, ddc := m.footCentreTrig(q, tr, i)
-	m.closest(c, hint, &g.sp)
+	g.c = c
+	if region < 0 {
+		m.closest(c, hint, &g.sp)
+	} else {
+		m.surfaceInRegion(c, hint, region == 1, &g.sp)
+	}
 	f := &m.feet[i]
 	g.gap = g.sp.dist - f.radius
 	t, nn := g.sp.t, g.sp.n
@@ -39,6 +63,15 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, g
 	g.gn = (nn[0]*ddc[0] + nn[1]*ddc[1]) * w2
 	g.slip = t[0]*v[0] + t[1]*v[1] + g.jt[k]*v[k]
 	g.vn = nn[0]*v[0] + nn[1]*v[1] + g.jn[k]*v[k]
+	if g.sp.clamped && g.sp.dist > 0 {
+		// Contact at a convex vertex: the normal turns with the arc centre
+		// about the vertex at the rate (t·ċ)/d, which adds (t·ċ)²/d to the
+		// normal row's J̇q̇ and −(t·ċ)(n·ċ)/d to the tangential row's.
+		ct := t[0]*(v[0]+dc[0]*v[k]) + t[1]*(v[1]+dc[1]*v[k])
+		cn := nn[0]*(v[0]+dc[0]*v[k]) + nn[1]*(v[1]+dc[1]*v[k])
+		g.gn += ct * ct / g.sp.dist
+		g.gt -= ct * cn / g.sp.dist
+	}
 }
 
 // centreOfPressure is the arc length from the point of the arc under the
@@ -92,7 +125,7 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 	rolling, other := -1, 0
 	for i := 0; i < m.nFeet; i++ {
 		if freeGeom || s.Mode[i] != Free {
-			m.footGeometryTrig(q, v, &tr, i, s.Seg[i], &ev.geom[i])
+			m.footGeometryOf(s, q, v, &tr, i, &ev.geom[i])
 		}
 		ev.force[i] = [2]float64{}
 		switch s.Mode[i] {

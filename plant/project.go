@@ -19,12 +19,11 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 			continue
 		}
 		var g footGeom
-		m.footGeometry(&s.Q, &s.V, f, s.Seg[f], &g)
+		var tr trig
+		m.trigOf(&s.Q, &tr)
+		m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
+		m.setRegion(s, f, &g) // re-anchors a rolling foot that changed region
 		if s.Mode[f] == Rolling {
-			if g.sp.seg != s.Seg[f] || g.sp.clamped {
-				// Rolled onto another segment: re-anchor there.
-				m.setAnchor(s, f, &g)
-			}
 			c, _, _ := m.footCentre(&s.Q, f)
 			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
 			res[rows.k] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+f] - s.Anchor[f]
@@ -36,7 +35,6 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 		rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jn, g.jn, f, 1
 		res[rows.k] = g.gap
 		rows.k++
-		s.Seg[f] = g.sp.seg
 	}
 }
 

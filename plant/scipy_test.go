@@ -207,3 +207,36 @@ func TestGaitFinderMatchesSciPy(t *testing.T) {
 		t.Logf("period %.10f (SciPy %.10f), eigenvalues %v (SciPy %v)", g.Period, fp.Period, g.Eigenvalues, fp.Eigenvalues)
 	}
 }
+
+// TestRealTimeHeelStrikeTime: the real-time Step (1 kHz ticks, 4 RK4
+// sub-steps) locates the heel strike inside its tick; the located time and
+// the state after the impact must agree with SciPy's solve_ivp (event
+// location at rtol = atol = 1e-12) far below the 1 ms tick, to 1e-7 s.
+func TestRealTimeHeelStrikeTime(t *testing.T) {
+	var fx scipyFixture
+	readFixture(t, "passive_step_scipy.json", &fx)
+	m := fixtureModel(t, &fx)
+	s := fixtureState(m, fx.Initial.T, fx.Initial.Q, fx.Initial.V, fx.Initial.Stance)
+	var r TickResult
+	for i := 0; i < 2000; i++ {
+		m.Step(&s, nil, 1e-3, &r)
+		for k := 0; k < r.NumEvents; k++ {
+			e := r.Events[k]
+			if e.Kind != HeelStrike {
+				continue
+			}
+			if d := math.Abs(e.T - fx.Step.HeelStrikeTime); d > 1e-7 {
+				t.Errorf("heel strike at %.12f s, SciPy %.12f s (difference %.3g s)", e.T, fx.Step.HeelStrikeTime, d)
+			}
+			if d := math.Abs(e.EnergyLost - fx.Step.EnergyLost); d > 1e-6*fx.Step.EnergyLost {
+				t.Errorf("energy lost %.9f J, SciPy %.9f J", e.EnergyLost, fx.Step.EnergyLost)
+			}
+			t.Logf("heel strike located at %.12f s (SciPy %.12f s)", e.T, fx.Step.HeelStrikeTime)
+			return
+		}
+		if r.Stopped {
+			t.Fatalf("stopped: %v", r.Events[:r.NumEvents])
+		}
+	}
+	t.Fatal("no heel strike in 2 s")
+}

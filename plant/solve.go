@@ -38,6 +38,12 @@ type saddle struct {
 // solved by Gaussian elimination with row equilibration and partial
 // pivoting. It reports false if the system is singular.
 func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	return m.solveSaddleWith(tr, f, sd, x, lam, true)
+}
+
+// solveSaddleWith is solveSaddle; with oneFoot false it never takes the
+// closed-form path (so tests can compare the two).
+func (m *Model) solveSaddleWith(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF]float64, lam *[maxRows]float64, oneFoot bool) bool {
 	var inContact [MaxLinks]bool
 	for r := 0; r < sd.k; r++ {
 		inContact[sd.foot[r]] = true
@@ -72,7 +78,7 @@ func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF
 		fx -= B[k][0] * f[2+k] * inv
 		fy -= B[k][1] * f[2+k] * inv
 	}
-	if sd.k == 2 && sd.kind[0] == 0 && sd.kind[1] == 1 && sd.foot[0] == sd.foot[1] &&
+	if oneFoot && sd.k == 2 && sd.kind[0] == 0 && sd.kind[1] == 1 && sd.foot[0] == sd.foot[1] &&
 		sd.j[0] == sd.w[0] && sd.j[1] == sd.w[1] {
 		k := sd.foot[0]
 		return m.solveOneFoot(k, sd.j[0][0], sd.j[0][1], sd.j[1][0], sd.j[1][1], sd.j[0][2+k], sd.j[1][2+k],

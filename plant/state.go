@@ -25,6 +25,9 @@ type State struct {
 	// fired marks alarm conditions that have fired and not yet cleared, so
 	// a persisting condition raises its event once.
 	fired uint16
+	// vertex marks a foot whose contact is the vertex at the end of
+	// segment Seg (rather than the inside of Seg).
+	vertex [2]bool
 }
 
 // Input is what the controller applies over one tick (zero-order hold).
@@ -126,11 +129,12 @@ func (m *Model) segmentAtX(x float64) int {
 	return len(m.terrain) - 1
 }
 
-// setAnchor records the rolling reference of foot i from its geometry.
+// setAnchor records the rolling reference of foot i from its geometry, and
+// its terrain region.
 func (m *Model) setAnchor(s *State, i int, g *footGeom) {
 	c, _, _ := m.footCentre(&s.Q, i)
 	s.Anchor[i] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[i].radius*s.Q[2+i]
-	s.Seg[i] = g.sp.seg
+	s.Seg[i], s.vertex[i] = m.regionOf(g)
 }
 
 // JointState writes the joint angles and rates an encoder would read, in

@@ -6,13 +6,14 @@ import "math"
 // "fine", ≤ 0 means "the event happened", NaN means "does not apply in the
 // current contact mode".
 const (
-	condGap      = 0 // + foot: free foot gap (impact on a downward crossing)
-	condNormal   = 2 // + foot: normal force of a foot in contact (lift-off)
-	condFriction = 4 // + foot: μ_s N − |F_t| of a rolling foot
-	condStick    = 6 // + foot: SlipDir·slip velocity of a sliding foot
-	condHip      = 8 // hip height above terrain − fall limit
-	condTorso    = 9 // torso angle limit − |θ_torso|
-	numCond      = 10
+	condGap      = 0  // + foot: free foot gap (impact on a downward crossing)
+	condNormal   = 2  // + foot: normal force of a foot in contact (lift-off)
+	condFriction = 4  // + foot: μ_s N − |F_t| of a rolling foot
+	condStick    = 6  // + foot: SlipDir·slip velocity of a sliding foot
+	condHip      = 8  // hip height above terrain − fall limit
+	condTorso    = 9  // torso angle limit − |θ_torso|
+	condRegion   = 10 // + foot: distance of a foot in contact to the edge of its terrain region
+	numCond      = 12
 )
 
 // latched reports whether condition c raises its event once and then waits
@@ -48,6 +49,11 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]f
 		case Sliding:
 			c[condNormal+i] = ev.force[i][1]
 			c[condStick+i] = s.SlipDir[i] * g.slip
+		}
+	}
+	for i := 0; i < m.nFeet; i++ {
+		if s.Mode[i] != Free {
+			c[condRegion+i] = m.regionMargin(s, i, &ev.geom[i])
 		}
 	}
 	if m.fallHip >= 0 {
@@ -153,7 +159,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 			s.T += hh
 			cur, nxt = nxt, cur
 			for i := 0; i < m.nFeet; i++ {
-				s.Seg[i] = cur.geom[i].sp.seg
+				m.setRegion(s, i, &cur.geom[i])
 			}
 			for k := 0; k < numCond; k++ {
 				if !(c1[k] <= 0) {
@@ -216,7 +222,8 @@ func (m *Model) nonFinite(s *State, r *TickResult) {
 // the RK4 sub-step from x0, by the Illinois variant of regula falsi on the
 // step length (each trial re-integrates from x0, so the located state is as
 // accurate as the sub-step itself). It returns a time at or just after the
-// crossing, within 1e-12 s of it.
+// crossing (where the condition is ≤ 0, so the state handed to the event
+// is on the far side of it), within 1e-12 s.
 func (m *Model) locate(s *State, x0 *phase, k1 *eval, in *Input, k int, fa, fb, h float64) float64 {
 	a, b := 0.0, h
 	side := 0
@@ -248,7 +255,7 @@ func (m *Model) locate(s *State, x0 *phase, k1 *eval, in *Input, k int, fa, fb, 
 			}
 			side = +1
 		}
-		if f == 0 || math.Abs(f) < 1e-15*(math.Abs(fa)+math.Abs(fb)) {
+		if f <= 0 && (f == 0 || -f < 1e-15*(math.Abs(fa)+math.Abs(fb))) {
 			return t
 		}
 	}
@@ -314,6 +321,8 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		}
 		s.SlipDir[i] = -s.SlipDir[i]
 		return false
+	case k == condRegion || k == condRegion+1:
+		return m.crossRegion(s, in, k-condRegion, ev, r)
 	case k == condHip:
 		r.add(Event{Kind: Fall, T: s.T, Foot: s.Stance, Segment: ev.geom[s.Stance].sp.seg,
 			Value: m.heightAbove([2]float64{s.Q[0], s.Q[1]}, ev.geom[s.Stance].sp.seg), Limit: m.fallHip})
@@ -323,4 +332,37 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		return true
 	}
 	return false
+}
+
+// crossRegion moves foot i's contact across the edge of its terrain region
+// that it reached: onto a convex vertex or the next segment (a break point
+// for the integrator, no event), or, at a concave corner, into an impact
+// with the next segment (a Touchdown event on that segment).
+func (m *Model) crossRegion(s *State, in *Input, i int, ev *eval, r *TickResult) bool {
+	val, kind, seg, vertex := m.regionEdges(s, i, ev.geom[i].c)
+	e := 1
+	if math.IsNaN(val[1]) || (!math.IsNaN(val[0]) && val[0] < val[1]) {
+		e = 0
+	}
+	if kind[e] == edgeNone {
+		return false
+	}
+	s.Seg[i], s.vertex[i] = seg[e], vertex[e]
+	var tr trig
+	m.trigOf(&s.Q, &tr)
+	var g footGeom
+	m.footGeometryOf(s, &s.Q, &s.V, &tr, i, &g)
+	if kind[e] != edgeImpact {
+		if s.Mode[i] == Rolling {
+			m.setAnchor(s, i, &g)
+		}
+		return false
+	}
+	var ne eval
+	m.rhs(s, &s.Q, &s.V, in, &ne)
+	stop := m.impact(s, i, false, &ne, r)
+	if s.Mode[i] == Rolling {
+		m.setAnchor(s, i, &ne.geom[i])
+	}
+	return stop
 }

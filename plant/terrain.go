@@ -96,3 +96,126 @@ func (m *Model) heightAbove(c [2]float64, hint int) float64 {
 	m.closest(c, hint, &sp)
 	return sp.dist
 }
+
+// setRegion records the terrain region of foot i's contact: the inside of
+// a segment, or the vertex at the end of one.
+// When a rolling foot changes region its rolling anchor is taken afresh,
+// since the anchor is measured along the region's tangent.
+func (m *Model) setRegion(s *State, i int, g *footGeom) {
+	seg, vertex := m.regionOf(g)
+	if seg == s.Seg[i] && vertex == s.vertex[i] {
+		return
+	}
+	s.Seg[i], s.vertex[i] = seg, vertex
+	if s.Mode[i] == Rolling {
+		m.setAnchor(s, i, g)
+	}
+}
+
+// regionOf returns the region of a contact: the segment, and whether the
+// contact is the vertex at that segment's end.
+func (m *Model) regionOf(g *footGeom) (seg int, vertex bool) {
+	seg = g.sp.seg
+	if g.sp.clamped {
+		if g.sp.p == m.terrain[seg].p0 && seg > 0 {
+			seg--
+		}
+		return seg, true
+	}
+	return seg, false
+}
+
+// surfaceInRegion is the contact point of a foot in a fixed terrain region:
+// the line of segment j (not clamped to its ends), or the vertex at the end
+// of segment j with the normal pointing from the vertex to c.
+func (m *Model) surfaceInRegion(c [2]float64, j int, vertex bool, sp *surfacePoint) {
+	sg := &m.terrain[j]
+	sp.seg = j
+	if !vertex || j == len(m.terrain)-1 {
+		u := (c[0]-sg.p0[0])*sg.t[0] + (c[1]-sg.p0[1])*sg.t[1]
+		sp.p = [2]float64{sg.p0[0] + u*sg.t[0], sg.p0[1] + u*sg.t[1]}
+		sp.t, sp.n, sp.clamped = sg.t, sg.n, false
+		sp.dist = (c[0]-sg.p0[0])*sg.n[0] + (c[1]-sg.p0[1])*sg.n[1]
+		return
+	}
+	sp.p, sp.clamped = sg.p1, true
+	w := [2]float64{c[0] - sg.p1[0], c[1] - sg.p1[1]}
+	d := math.Hypot(w[0], w[1])
+	sp.t, sp.n = sg.t, sg.n
+	if d > 1e-300 {
+		sp.n = [2]float64{w[0] / d, w[1] / d}
+		sp.t = [2]float64{sp.n[1], -sp.n[0]}
+	}
+	sp.dist = d
+}
+
+// What happens when a contact leaves its terrain region across an edge.
+const (
+	edgeNone       = iota
+	edgeToVertex   // onto the convex vertex at a segment end
+	edgeToInterior // onto the inside of a segment (from a vertex, or across a straight joint)
+	edgeImpact     // the foot meets the next segment at a concave corner: an impact
+)
+
+// regionEdges returns, for the backward (0) and forward (1) edge of foot
+// i's region, how far the foot is from it (positive inside), what crossing
+// it means, and the region on the other side.
+func (m *Model) regionEdges(s *State, i int, c [2]float64) (val [2]float64, kind [2]int, seg [2]int, vertex [2]bool) {
+	j := s.Seg[i]
+	last := len(m.terrain) - 1
+	val = [2]float64{math.NaN(), math.NaN()}
+	along := func(k int) float64 {
+		sg := &m.terrain[k]
+		return (c[0]-sg.p0[0])*sg.t[0] + (c[1]-sg.p0[1])*sg.t[1]
+	}
+	above := func(k int) float64 {
+		sg := &m.terrain[k]
+		return (c[0]-sg.p0[0])*sg.n[0] + (c[1]-sg.p0[1])*sg.n[1] - m.feet[i].radius
+	}
+	// turn is sin of the slope change at the vertex after segment a:
+	// negative convex, positive concave.
+	turn := func(a int) float64 {
+		ta, tb := m.terrain[a].t, m.terrain[a+1].t
+		return ta[0]*tb[1] - ta[1]*tb[0]
+	}
+	const straight = 1e-12
+	if s.vertex[i] && j < last {
+		val[0], kind[0], seg[0] = along(j)-m.terrain[j].length, edgeToInterior, j
+		val[1], kind[1], seg[1] = -along(j+1), edgeToInterior, j+1
+		return
+	}
+	if j > 0 {
+		switch tr := turn(j - 1); {
+		case tr < -straight:
+			val[0], kind[0], seg[0], vertex[0] = along(j), edgeToVertex, j-1, true
+		case tr <= straight:
+			val[0], kind[0], seg[0] = along(j), edgeToInterior, j-1
+		default:
+			val[0], kind[0], seg[0] = above(j-1), edgeImpact, j-1
+		}
+	}
+	if j < last {
+		switch tr := turn(j); {
+		case tr < -straight:
+			val[1], kind[1], seg[1], vertex[1] = m.terrain[j].length-along(j), edgeToVertex, j, true
+		case tr <= straight:
+			val[1], kind[1], seg[1] = m.terrain[j].length-along(j), edgeToInterior, j+1
+		default:
+			val[1], kind[1], seg[1] = above(j+1), edgeImpact, j+1
+		}
+	}
+	return
+}
+
+// regionMargin is the distance of foot i to the nearer edge of its terrain
+// region (positive inside), NaN when the region has no edge.
+func (m *Model) regionMargin(s *State, i int, g *footGeom) float64 {
+	val, _, _, _ := m.regionEdges(s, i, g.c)
+	switch {
+	case math.IsNaN(val[0]):
+		return val[1]
+	case math.IsNaN(val[1]):
+		return val[0]
+	}
+	return math.Min(val[0], val[1])
+}
