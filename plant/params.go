@@ -72,6 +72,7 @@ type ParamError struct {
 	Reason string  // e.g. "must be between 0 and the leg length 0.9"
 }
 
+// Error says which parameter is invalid and why.
 func (e *ParamError) Error() string {
 	return fmt.Sprintf("plant: %s = %g: %s", e.Field, e.Value, e.Reason)
 }
