@@ -5,20 +5,57 @@
 // analysis, gait events, energy, and the step-to-step map with its gait
 // finder.
 //
-// The walker is a general tree of rigid links hanging from a hip point mass
-// (two legs, optionally a torso), described by floating-base coordinates
-// q = (x_hip, y_hip, θ_1 … θ_n) with absolute link angles measured
-// counter-clockwise from the world vertical. World x points forward, y up,
-// gravity is −g ŷ. The equations of motion are
+// # Model
+//
+// The walker is a tree of rigid links hanging from a hip point mass (two
+// legs, optionally a torso; Params.OneLeg keeps a single rolling body),
+// described by floating-base coordinates q = (x_hip, y_hip, θ_1 … θ_n) with
+// absolute link angles measured counter-clockwise from the world vertical.
+// World x points forward, y up, gravity is −g ŷ. A leg's axis is
+// a(θ) = (sin θ, −cos θ) from the hip to the foot; its foot is a circular
+// arc of radius R whose centre sits at hip + (L − R)·a(θ) + d·a⊥(θ). The
+// equations of motion are
 //
 //	M(q) q̈ + h(q, q̇) = B τ + J_cᵀ λ (+ J_hipᵀ F_hip)
 //
 // where h holds the velocity-product and gravity terms and λ = (F_t, N) per
-// foot in contact is the force of the ground on the foot in the tangent and
-// normal directions of the terrain segment it touches.
+// foot in contact is the force of the ground on the foot along the tangent
+// and normal of the terrain it touches. A rolling foot's material point at
+// the contact has zero velocity (two constraint rows); a sliding foot keeps
+// only the normal row and feels Coulomb friction −μ_k N sign(v_slip).
+//
+// # Numerics
+//
+// Each evaluation solves the saddle-point system for q̈ and λ together:
+// links without contact are eliminated through the arrow shape of M, one
+// rolling foot has a closed form, anything else is a small Gaussian
+// elimination with row equilibration and partial pivoting. This stays
+// accurate for the nearly massless legs of the simplest walking model,
+// where the Schur complement J M⁻¹ Jᵀ would lose digits in proportion to
+// the mass ratio.
+//
+// Model.Step advances one control tick with Options.SubSteps classical RK4
+// sub-steps (default 4) and the input held constant. Contact events are
+// functions of the state that change sign; a sign change inside a sub-step
+// is located by regula falsi (Illinois) on the sub-step length, to 1e-12 s,
+// and handled at its time: heel strike (a plastic, no-slip impulse, the
+// foot that would need a pulling impulse released, an impulse outside the
+// friction cone resolved on its boundary), lift-off, friction limit,
+// re-sticking, scuff, fall, and crossing from one terrain region to the next
+// (segment line, convex vertex, or an impact at a concave corner). After
+// each tick the state is projected back onto the contact constraints. Step
+// does not allocate.
+//
+// StepMap, FindGait and MapJacobian use an adaptive Dormand–Prince 5(4)
+// integrator with the same right-hand side and event handling. The map
+// Jacobian comes from the variational equations with the event-time
+// (saltation) correction at the heel strike.
 //
 // The package is pure computation: no I/O, no clocks, no logging, no
-// goroutines. Model.Step does not allocate, so it can run inside a 1 kHz
-// loop. A Model is read-only after New and may be shared between
+// goroutines. A Model is read-only after New and may be shared between
 // goroutines; each goroutine keeps its own State.
+//
+// A passing simulation is not a certificate of safety: treadmill and
+// overground trials of real hardware need the lab's own safety procedure,
+// local rules and qualified staff.
 package plant
