@@ -289,3 +289,54 @@ func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
 		}
 	}
 }
+
+// downOnceConn reports the peer gone once, as the serial link does on an
+// unplug, without link events of its own.
+type downOnceConn struct {
+	bridges.Conn
+	n, at int
+}
+
+func (d *downOnceConn) Recv(deadline time.Time, m *protocol.Message) error {
+	d.n++
+	switch d.n {
+	case d.at:
+		return &wrapped{bridges.ErrDisconnected}
+	case d.at + 1:
+		return errTest("read /dev/ttyUSB0: input/output error") // unclassified: the same outage
+	}
+	return d.Conn.Recv(deadline, m)
+}
+
+type wrapped struct{ err error }
+
+func (w *wrapped) Error() string { return "serial port went away: " + w.err.Error() }
+func (w *wrapped) Unwrap() error { return w.err }
+
+func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
+	for _, clock := range []ClockMode{Lockstep, Wallclock} {
+		t.Run(string(clock), func(t *testing.T) {
+			m, s, cfg := demo(t, 0)
+			cfg.Clock = clock
+			cfg.MaxSteps, cfg.Duration = 0, 0.1
+			cfg.Watchdog = time.Second
+			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
+			rig, fw := inprocPair()
+			defer rig.Close()
+			go referenceFirmware(fw)
+			rec := newRecord(t, cfg, m, s)
+			// Recv number 3 is the one after the greeting and the first
+			// state's command in lockstep; any early one will do.
+			res, err := Run(context.Background(), cfg, m, s, &downOnceConn{Conn: rig, at: 3}, rec)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if res.Summary.Outcome != record.Pass || res.Summary.Ticks != 100 {
+				t.Fatalf("outcome %s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+			}
+			if res.Summary.Alarms[scenarios.AlarmLinkLost] != 1 {
+				t.Fatalf("alarms %v: want one link_lost for the outage", res.Summary.Alarms)
+			}
+		})
+	}
+}

@@ -123,7 +123,8 @@ type runner struct {
 
 	peakUtil, minNormal float64
 
-	onTick func() // called after each tick (MeasureLatency counts fresh commands)
+	onTick   func() // called after each tick (MeasureLatency counts fresh commands)
+	linkDown bool   // an outage was raised and no valid command has come since
 
 	outcome  record.Outcome
 	reason   string
@@ -223,6 +224,9 @@ func (r *runner) handshake() error {
 		switch {
 		case errors.Is(err, bridges.ErrTimeout):
 			return fmt.Errorf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
+		case errors.Is(err, bridges.ErrDisconnected):
+			r.disconnected(err)
+			continue
 		case errors.Is(err, bridges.ErrClosed):
 			r.linkLost(0, "the link closed before the firmware greeted")
 			return errors.New("hil: the link closed before the firmware greeted")
@@ -334,6 +338,21 @@ func (r *runner) drainLinkEvents() {
 			return
 		}
 	}
+}
+
+// disconnected handles a Recv that reports the peer gone on a link that
+// reconnects by itself. A link that reports link events raises its own
+// link_lost through them; for one that does not, the loop raises it here.
+func (r *runner) disconnected(err error) {
+	if _, ok := r.conn.(bridges.Notifier); ok {
+		r.drainLinkEvents()
+		return
+	}
+	if r.linkDown {
+		return // raised once per outage; a valid command ends it
+	}
+	r.linkDown = true
+	r.linkLost(0, "link to the firmware lost: "+err.Error())
 }
 
 func (r *runner) linkLost(gap time.Duration, msg string) {
@@ -798,6 +817,11 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			}
 			r.drainLinkEvents()
 			continue
+		case errors.Is(err, bridges.ErrDisconnected):
+			// The link lost its peer and is trying to get it back: the link
+			// events say so, and the watchdog decides whether to wait.
+			r.disconnected(err)
+			continue
 		case errors.Is(err, bridges.ErrClosed):
 			r.linkLost(0, "link to the firmware closed")
 			if r.outcome == "" {
@@ -808,11 +832,12 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			r.badFrame(r.fe.Reason)
 			continue
 		default:
-			r.linkLost(0, "link to the firmware failed: "+err.Error())
-			if r.outcome == "" {
-				r.outcome, r.reason, r.stopCode = record.Aborted, "the link failed: "+err.Error(), protocol.StopEStop
-			}
-			return false
+			// An error the link does not classify: treat it as an outage.
+			// If it lasts, the watchdog ends the run; the short pause keeps
+			// a link that fails at once from spinning the loop.
+			r.disconnected(err)
+			time.Sleep(time.Millisecond)
+			continue
 		}
 		switch r.msg.Type {
 		case protocol.TypeCommand:
@@ -830,6 +855,7 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 				continue
 			}
 			*lastValid = time.Now()
+			r.linkDown = false
 			delay := r.latencyDelay(r.s.T, r.frng)
 			k := int64(math.Round(delay.Seconds() * r.cfg.TickHz))
 			if !r.pending.push(r.tick+k, &r.msg.Command) {
@@ -853,9 +879,9 @@ func (r *runner) sendState() {
 		return
 	}
 	r.counts.StatesSent++
-	if err := r.conn.Send(&r.out); err != nil && errors.Is(err, bridges.ErrClosed) {
-		r.linkLost(0, "link to the firmware closed while sending a state")
-	}
+	// A Send that fails because the link is down or closed loses this
+	// state; Recv reports the link's condition and the watchdog decides.
+	r.conn.Send(&r.out)
 }
 
 // sendStop tells the firmware the run is over and why.

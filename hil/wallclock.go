@@ -91,6 +91,7 @@ type receiver struct {
 	corrupted atomic.Uint64
 	dropped   atomic.Uint64
 	closed    atomic.Bool
+	down      atomic.Bool // Recv reported bridges.ErrDisconnected
 	fwStop    atomic.Pointer[protocol.Stop]
 	simT      atomic.Uint64 // tick index, for fault windows
 }
@@ -108,6 +109,9 @@ func (rc *receiver) loop() {
 		case err == nil:
 		case errors.Is(err, bridges.ErrTimeout):
 			continue
+		case errors.Is(err, bridges.ErrDisconnected):
+			rc.down.Store(true) // the loop raises link_lost if the link has no events of its own
+			continue
 		case errors.Is(err, bridges.ErrClosed):
 			rc.closed.Store(true)
 			return
@@ -117,8 +121,11 @@ func (rc *receiver) loop() {
 			rc.badFrames.Add(1)
 			continue
 		default:
-			rc.closed.Store(true)
-			return
+			// Unclassified link error: an outage until the watchdog says
+			// otherwise; pause so a link that fails at once cannot spin.
+			rc.down.Store(true)
+			time.Sleep(time.Millisecond)
+			continue
 		}
 		switch m.Type {
 		case protocol.TypeCommand:
@@ -202,6 +209,9 @@ func (r *runner) wallclock(ctx context.Context) error {
 			lastBad = n
 			r.badFrame(reason)
 		}
+		if rc.down.Swap(false) {
+			r.disconnected(bridges.ErrDisconnected)
+		}
 		if st := rc.fwStop.Load(); st != nil {
 			r.firmwareStop(*st)
 			break
@@ -219,6 +229,7 @@ func (r *runner) wallclock(ctx context.Context) error {
 			if in.seq > appliedSeq {
 				appliedSeq = in.seq
 				lastValid = now
+				r.linkDown = false
 				if in.timed {
 					r.latUS = float64(in.latency) / float64(time.Microsecond)
 				}
@@ -248,9 +259,7 @@ func (r *runner) wallclock(ctx context.Context) error {
 			rc.sentAt[slot].Store(int64(time.Since(rc.base)))
 			rc.sentSeq[slot].Store(r.seq)
 			r.counts.StatesSent++
-			if err := r.conn.Send(&r.out); err != nil && errors.Is(err, bridges.ErrClosed) {
-				r.linkLost(0, "link to the firmware closed while sending a state")
-			}
+			r.conn.Send(&r.out) // a failed send loses this state; the receiver reports the link
 		}
 		rc.simT.Store(uint64(r.tick))
 		r.advance(now)

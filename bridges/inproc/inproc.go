@@ -19,9 +19,10 @@ import (
 )
 
 // DefaultCapacity is the number of messages each direction buffers. A sender
-// that finds the buffer full loses the message, as a UART whose receive FIFO
-// overflows would; 64 ticks is far more than a healthy lockstep or 1 kHz
-// wall-clock loop ever has in flight.
+// that finds the buffer full discards the oldest waiting message to make
+// room, as the serial link does when its reader falls behind: for a control
+// link the newest state or command is the one that matters. 64 ticks is far
+// more than a healthy lockstep or 1 kHz wall-clock loop has in flight.
 const DefaultCapacity = 64
 
 // Pair returns the two ends of a new in-process link with DefaultCapacity
@@ -38,6 +39,7 @@ func PairSize(capacity int) (rig, firmware *End) {
 	shared := &link{closed: make(chan struct{})}
 	rig = &End{link: shared, in: b2a, out: a2b, name: "rig"}
 	firmware = &End{link: shared, in: a2b, out: b2a, name: "firmware"}
+	rig.peer, firmware.peer = firmware, rig
 	return rig, firmware
 }
 
@@ -52,33 +54,44 @@ type link struct {
 // goroutine may Send while another Recvs.
 type End struct {
 	*link
-	in   <-chan protocol.Message
-	out  chan<- protocol.Message
+	in   chan protocol.Message
+	out  chan protocol.Message // the peer's in
+	peer *End
 	name string
 
 	timer *time.Timer // reused by Recv so a deadline does not allocate
 
-	sent, received, dropped atomic.Uint64
+	sent, received atomic.Uint64
+	dropped        atomic.Uint64 // messages discarded from this end's buffer
 }
 
 var _ bridges.Conn = (*End)(nil)
 
 // Send copies m into the peer's buffer. It never blocks: if the peer's
-// buffer is full the message is lost and counted (see Dropped), like an
-// overflowing receive FIFO. After Close it returns bridges.ErrClosed.
+// buffer is full, the oldest message waiting there is discarded to make room
+// and counted in the peer's Stats().Dropped. After Close it returns
+// bridges.ErrClosed.
 func (e *End) Send(m *protocol.Message) error {
 	select {
 	case <-e.closed:
 		return bridges.ErrClosed
 	default:
 	}
-	select {
-	case e.out <- *m:
-		e.sent.Add(1)
-	default:
-		e.dropped.Add(1)
+	for {
+		select {
+		case e.out <- *m:
+			e.sent.Add(1)
+			return nil
+		default:
+		}
+		// Full: take the oldest out of the peer's buffer. The peer may have
+		// emptied a slot meanwhile, so only count what was really taken.
+		select {
+		case <-e.out:
+			e.peer.dropped.Add(1)
+		default:
+		}
 	}
-	return nil
 }
 
 // Recv waits for the next message until deadline. A zero deadline waits
@@ -130,14 +143,12 @@ func (e *End) Recv(deadline time.Time, m *protocol.Message) error {
 	}
 }
 
-// Stats reports the messages that crossed this end. No bytes cross an
+// Stats reports the messages that crossed this end and the ones discarded
+// from its buffer because it fell behind (Dropped). No bytes cross an
 // in-process link and no frame can be malformed, so those counters stay 0.
 func (e *End) Stats() bridges.Stats {
-	return bridges.Stats{FramesSent: e.sent.Load(), FramesReceived: e.received.Load()}
+	return bridges.Stats{FramesSent: e.sent.Load(), FramesReceived: e.received.Load(), Dropped: e.dropped.Load()}
 }
-
-// Dropped is the number of messages this end sent into a full buffer.
-func (e *End) Dropped() uint64 { return e.dropped.Load() }
 
 // Close ends the link for both ends. It is safe to call more than once.
 func (e *End) Close() error {

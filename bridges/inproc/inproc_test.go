@@ -103,7 +103,7 @@ func TestBufferedMessagesSurviveClose(t *testing.T) {
 	}
 }
 
-func TestFullBufferDropsAndCounts(t *testing.T) {
+func TestFullBufferDropsOldestAndCounts(t *testing.T) {
 	rig, fw := PairSize(3)
 	defer rig.Close()
 	var m protocol.Message
@@ -113,15 +113,15 @@ func TestFullBufferDropsAndCounts(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	if fw.Dropped() != 2 {
-		t.Fatalf("Dropped = %d, want 2", fw.Dropped())
+	if d := rig.Stats().Dropped; d != 2 {
+		t.Fatalf("rig Stats().Dropped = %d, want 2", d)
 	}
-	for want := uint32(0); want < 3; want++ {
+	for want := uint32(2); want < 5; want++ {
 		if err := rig.Recv(time.Now().Add(time.Second), &m); err != nil {
 			t.Fatal(err)
 		}
 		if m.Seq != want {
-			t.Fatalf("got seq %d, want %d (oldest kept, newest dropped)", m.Seq, want)
+			t.Fatalf("got seq %d, want %d (oldest dropped, newest kept)", m.Seq, want)
 		}
 	}
 }
