@@ -91,6 +91,7 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	if !finitePhase(&phase{q: s.Q, v: s.V}, m.n) {
 		return res, fmt.Errorf("%w: the start state is not finite", ErrNoHeelStrike)
 	}
+	m.sanitize(&s)
 	start := s
 	var r TickResult
 	st := stepStats{onSample: observe}

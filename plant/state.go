@@ -226,9 +226,11 @@ func (m *Model) Points(s *State) Pose {
 func (m *Model) Contacts(s *State, in *Input) [2]FootContact {
 	var ev eval
 	var out [2]FootContact
-	m.rhs(s, &s.Q, &s.V, in, &ev)
+	c := *s
+	m.sanitize(&c)
+	m.rhs(&c, &c.Q, &c.V, in, &ev)
 	for i := 0; i < m.nFeet; i++ {
-		m.contactRecord(s, &ev, i, &out[i])
+		m.contactRecord(&c, &ev, i, &out[i])
 	}
 	return out
 }
@@ -237,6 +239,8 @@ func (m *Model) Contacts(s *State, in *Input) [2]FootContact {
 // constrained dynamics could be solved.
 func (m *Model) Accel(s *State, in *Input) ([MaxDOF]float64, bool) {
 	var ev eval
-	m.rhs(s, &s.Q, &s.V, in, &ev)
+	c := *s
+	m.sanitize(&c)
+	m.rhs(&c, &c.Q, &c.V, in, &ev)
 	return ev.acc, ev.ok
 }

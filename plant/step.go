@@ -97,6 +97,7 @@ func finitePhase(x *phase, n int) bool {
 // Step does not allocate.
 func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 	*r = TickResult{}
+	m.sanitize(s)
 	if !(dt > 0) || !finite(dt) {
 		r.add(Event{Kind: BadInput, T: s.T, Foot: -1, Segment: -1, Value: dt})
 		r.Stopped = true
@@ -365,4 +366,29 @@ func (m *Model) crossRegion(s *State, in *Input, i int, ev *eval, r *TickResult)
 		m.setAnchor(s, i, &ne.geom[i])
 	}
 	return stop
+}
+
+// sanitize repairs the bookkeeping fields of a state a caller may have
+// built or edited by hand (segment indices, stance, modes, slip
+// directions), so that a bad value gives sensible physics or a clear event
+// instead of an index out of range.
+func (m *Model) sanitize(s *State) {
+	last := len(m.terrain) - 1
+	if s.Stance < 0 || s.Stance >= m.nFeet {
+		s.Stance = 0
+	}
+	for i := 0; i < 2; i++ {
+		if s.Seg[i] < 0 || s.Seg[i] > last {
+			s.Seg[i], s.vertex[i] = m.segmentAtX(s.Q[0]), false
+		}
+		if s.vertex[i] && s.Seg[i] == last {
+			s.vertex[i] = false
+		}
+		if s.Mode[i] > Sliding || i >= m.nFeet {
+			s.Mode[i] = Free
+		}
+		if s.SlipDir[i] != 1 && s.SlipDir[i] != -1 {
+			s.SlipDir[i] = 1
+		}
+	}
 }

@@ -3,6 +3,7 @@ package plant
 import (
 	"errors"
 	"math"
+	"math/rand"
 	"strings"
 	"testing"
 )
@@ -211,5 +212,44 @@ func TestSlidingCoulomb(t *testing.T) {
 		if want := -0.08 * c.Normal * math.Copysign(1, c.SlipVel); math.Abs(c.Tangential-want) > 1e-9*c.Normal {
 			t.Errorf("sliding F_t = %g, want −μ_k N sign(v) = %g", c.Tangential, want)
 		}
+	}
+}
+
+// TestStepSurvivesGarbageStates: states with random, huge, NaN or infinite
+// values and bad bookkeeping fields must never panic; Step reports what it
+// can (usually a fall or a non-finite state).
+func TestStepSurvivesGarbageStates(t *testing.T) {
+	rng := rand.New(rand.NewSource(3))
+	m, err := New(DemoParams(), Options{ContinueOnSlip: true, ContinueOnLiftOff: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pick := func() float64 {
+		switch rng.Intn(8) {
+		case 0:
+			return math.NaN()
+		case 1:
+			return math.Inf(1 - 2*rng.Intn(2))
+		case 2:
+			return 1e300 * (rng.Float64() - 0.5)
+		default:
+			return 4 * (rng.Float64() - 0.5)
+		}
+	}
+	for trial := 0; trial < 2000; trial++ {
+		var s State
+		for i := range s.Q {
+			s.Q[i], s.V[i] = pick(), pick()
+		}
+		s.Mode = [2]ContactMode{ContactMode(rng.Intn(5)), ContactMode(rng.Intn(5))}
+		s.Stance = rng.Intn(5) - 2
+		s.Seg = [2]int{rng.Intn(7) - 3, rng.Intn(7) - 3}
+		s.SlipDir = [2]float64{pick(), pick()}
+		in := Input{Torque: [MaxActuators]float64{pick(), pick()}}
+		var r TickResult
+		m.Step(&s, &in, 1e-3, &r)
+		m.Contacts(&s, &in)
+		m.Energy(&s)
+		m.Points(&s)
 	}
 }
