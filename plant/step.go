@@ -387,7 +387,7 @@ func (m *Model) sanitize(s *State) {
 		if s.Mode[i] > Sliding || i >= m.nFeet {
 			s.Mode[i] = Free
 		}
-		if s.SlipDir[i] != 1 && s.SlipDir[i] != -1 {
+		if s.Mode[i] == Sliding && s.SlipDir[i] != 1 && s.SlipDir[i] != -1 {
 			s.SlipDir[i] = 1
 		}
 	}
