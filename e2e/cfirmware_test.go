@@ -23,9 +23,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/creack/pty"
-	"golang.org/x/term"
-
 	"gaitrig/bridges"
 	"gaitrig/bridges/inproc"
 	"gaitrig/bridges/protocol"
@@ -786,25 +783,29 @@ func (s *syncBuffer) String() string {
 	return s.b.String()
 }
 
-// openPty opens a real pty pair and puts the follower into raw mode, so no
-// byte is echoed or translated before the firmware sets its own mode. Both
-// ends are closed when the test ends.
-func openPty(t *testing.T) (leader, follower *os.File) {
+// openPty opens a real pty pair with serial.NewPty, which puts the
+// follower into raw mode at once, so no byte is echoed or translated before
+// the firmware sets its own mode. Both ends are closed when the test ends.
+//
+// The leader is marked close-on-exec here: serial.NewPty makes it with
+// unix.Dup, which clears that flag, so without this every child process
+// (the firmware) would inherit the leader and keep the line up after the
+// rig closes its end, and an unplug would go unnoticed.
+func openPty(t testing.TB) *serial.Pty {
 	t.Helper()
-	leader, follower, err := pty.Open()
+	p, err := serial.NewPty()
 	if err != nil {
 		t.Fatalf("opening a pty pair: %v", err)
 	}
-	if _, err := term.MakeRaw(int(follower.Fd())); err != nil {
-		leader.Close()
-		follower.Close()
-		t.Fatalf("raw mode on %s: %v", follower.Name(), err)
+	t.Cleanup(func() { p.Close() })
+	sc, err := p.Master.SyscallConn()
+	if err == nil {
+		err = sc.Control(func(fd uintptr) { syscall.CloseOnExec(int(fd)) })
 	}
-	t.Cleanup(func() {
-		leader.Close()
-		follower.Close()
-	})
-	return leader, follower
+	if err != nil {
+		t.Fatalf("marking the pty leader close-on-exec: %v", err)
+	}
+	return p
 }
 
 // startFirmware starts the C firmware on the tty path. The process is
@@ -982,9 +983,9 @@ func TestCFirmwareSession(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	leader, follower := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, follower.Name())
-	rig := newRigEnd(t, leader)
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, tty.Path)
+	rig := newRigEnd(t, tty.Master)
 
 	g := rig.next(5*time.Second, true)
 	if g.Type != protocol.TypeGreeting || g.Seq != 0 || g.Greeting.Version != protocol.Version || g.Greeting.Actuators != 2 {
@@ -1141,9 +1142,9 @@ func TestCFirmwareRefusesOtherVersion(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	leader, follower := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, follower.Name())
-	rig := newRigEnd(t, leader)
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, tty.Path)
+	rig := newRigEnd(t, tty.Master)
 	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
 		t.Fatalf("want a greeting first, got %v", g.Type)
 	}
@@ -1220,9 +1221,9 @@ func TestCFirmwareSurvivesGarbage(t *testing.T) {
 
 	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
 	defer cancel()
-	leader, follower := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, follower.Name())
-	rig := newRigEnd(t, leader)
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, tty.Path)
+	rig := newRigEnd(t, tty.Master)
 	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
 		t.Fatalf("want a greeting first, got %v", g.Type)
 	}
@@ -1277,9 +1278,9 @@ func TestCFirmwareRefusesConfig(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 			defer cancel()
-			leader, follower := openPty(t)
-			fw := startFirmware(t, ctx, b.firmware, follower.Name())
-			rig := newRigEnd(t, leader)
+			tty := openPty(t)
+			fw := startFirmware(t, ctx, b.firmware, tty.Path)
+			rig := newRigEnd(t, tty.Master)
 			if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
 				t.Fatalf("want a greeting first, got %v", g.Type)
 			}
@@ -1313,9 +1314,9 @@ func TestCFirmwareNoticesUnplug(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	leader, follower := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, follower.Name())
-	rig := newRigEnd(t, leader)
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, tty.Path)
+	rig := newRigEnd(t, tty.Master)
 	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
 		t.Fatalf("want a greeting first, got %v", g.Type)
 	}
@@ -1327,10 +1328,9 @@ func TestCFirmwareNoticesUnplug(t *testing.T) {
 			break
 		}
 	}
-	// The test's own handle of the follower is closed too, or the line
-	// would stay up for the firmware.
-	follower.Close()
-	leader.Close()
+	// Close closes the leader and the Pty's own handle of the follower,
+	// which would otherwise keep the line up for the firmware.
+	tty.Close()
 	if code := fw.wait(t, 10*time.Second); code != 1 {
 		t.Fatalf("after an unplug the firmware must exit 1, got %d", code)
 	}
@@ -1346,9 +1346,9 @@ func TestCFirmwareStopsOnSIGTERM(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	leader, follower := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, follower.Name())
-	rig := newRigEnd(t, leader)
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, tty.Path)
+	rig := newRigEnd(t, tty.Master)
 	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
 		t.Fatalf("want a greeting first, got %v", g.Type)
 	}
@@ -1455,11 +1455,7 @@ func TestCFirmwareWalks(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
-	p, err := serial.NewPty()
-	if err != nil {
-		t.Fatalf("opening a pty pair: %v", err)
-	}
-	defer p.Close()
+	p := openPty(t)
 	fw := startFirmware(t, ctx, b.firmware, p.Path)
 	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
 	defer conn.Close()
@@ -1643,11 +1639,7 @@ func BenchmarkCFirmwareRoundTrip(b *testing.B) {
 	bins := buildC(b)
 	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
 	defer cancel()
-	p, err := serial.NewPty()
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer p.Close()
+	p := openPty(b)
 	fw := startFirmware(b, ctx, bins.firmware, p.Path)
 	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
 	defer conn.Close()
