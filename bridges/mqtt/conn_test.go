@@ -35,7 +35,7 @@ var brokerCases = []brokerCase{
 	}},
 }
 
-func dialT(t *testing.T, cfg Config) *Conn {
+func dialT(t testing.TB, cfg Config) *Conn {
 	t.Helper()
 	c, err := Dial(cfg)
 	if err != nil {
@@ -46,7 +46,7 @@ func dialT(t *testing.T, cfg Config) *Conn {
 }
 
 // pair dials the rig and the firmware ends of rig id on url.
-func pair(t *testing.T, url, rig string) (r, f *Conn) {
+func pair(t testing.TB, url, rig string) (r, f *Conn) {
 	t.Helper()
 	r = dialT(t, Config{Broker: url, Rig: rig, Role: RoleRig})
 	f = dialT(t, Config{Broker: url, Rig: rig, Role: RoleFirmware})
@@ -495,8 +495,8 @@ func TestBrokerKilledAndRestarted(t *testing.T) {
 	if got := mustRecv(t, f); got.Seq != 1 {
 		t.Fatalf("before the kill: %+v", got)
 	}
-	m.kill()
 	killed := time.Now()
+	m.kill()
 	for _, c := range []*Conn{r, f} {
 		e := nextEvent(t, c, "disconnected")
 		if e.Err == nil {
@@ -549,51 +549,60 @@ func TestEmbeddedBrokerRestarted(t *testing.T) {
 }
 
 func TestAccessRulesOnEmbeddedBroker(t *testing.T) {
-	b := embedded(t, broker.Config{})
+	// Accounts, so that outside peers can log in as a rig's firmware with
+	// client ids of their own (two clients with one id would take the
+	// session from each other).
+	b := embedded(t, broker.Config{Accounts: []broker.Account{
+		{Username: "bench1", Password: "pw-r1", Role: broker.RoleRig, Rig: "b1"},
+		{Username: "board1", Password: "pw-f1", Role: broker.RoleFirmware, Rig: "b1"},
+		{Username: "bench2", Password: "pw-r2", Role: broker.RoleRig, Rig: "b2"},
+		{Username: "board2", Password: "pw-f2", Role: broker.RoleFirmware, Rig: "b2"},
+	}})
 	url, port := "tcp://"+b.Addr(), embeddedPort(t, b)
-	// A firmware client of b1 cannot subscribe to b2's state topic. (This
-	// runs before the real firmware.b1 connects: two clients with one id
-	// would take the session from each other.)
-	_, err := Dial(Config{Broker: url, Rig: "b2", Role: RoleFirmware, ClientID: "firmware.b1"})
-	if err == nil || !strings.Contains(err.Error(), "refused the subscription") {
-		t.Fatalf("Dial as firmware.b1 onto rig b2 = %v, want a refused subscription", err)
+	login := func(role Role, rig, user, pass string) Config {
+		return Config{Broker: url, Rig: rig, Role: role, Username: user, Password: pass}
 	}
-	r1, f1 := pair(t, url, "b1")
-	r2 := dialT(t, Config{Broker: url, Rig: "b2", Role: RoleRig})
 
-	// Outside peers with mosquitto_pub: the firmware of b1 tries rig b2's
-	// command topic and its own rig's state topic; both are dropped. Then
-	// a legitimate publish proves the path works.
+	// The firmware of b1 cannot attach itself to rig b2.
+	_, err := Dial(login(RoleFirmware, "b2", "board1", "pw-f1"))
+	if err == nil || !strings.Contains(err.Error(), "refused the subscription") {
+		t.Fatalf("Dial as board1 onto rig b2 = %v, want a refused subscription", err)
+	}
+	r1 := dialT(t, login(RoleRig, "b1", "bench1", "pw-r1"))
+	f1 := dialT(t, login(RoleFirmware, "b1", "board1", "pw-f1"))
+	r2 := dialT(t, login(RoleRig, "b2", "bench2", "pw-r2"))
+
+	// Outside peers with mosquitto_pub: the firmware of b1 publishes on rig
+	// b2's command topic and on its own rig's state topic; both are
+	// dropped. Then the firmware of b2 proves the path works.
 	dir := t.TempDir()
 	frame := func(name string, m protocol.Message) string {
-		var buf [protocol.MaxFrameLen]byte
-		n, err := protocol.Encode(buf[:], &m)
-		if err != nil {
-			t.Fatal(err)
-		}
 		p := filepath.Join(dir, name)
-		if err := os.WriteFile(p, buf[:n], 0o600); err != nil {
+		if err := os.WriteFile(p, encoded(t, m), 0o600); err != nil {
 			t.Fatal(err)
 		}
 		return p
 	}
 	cmdFile, stateFile := frame("command.bin", command(11)), frame("state.bin", state(11))
 	refusedBefore := b.Refusals()
-	mosquittoPub(t, port, "-i", "firmware.b1", "-t", "gaitrig/b2/command", "-f", cmdFile)
-	mosquittoPub(t, port, "-i", "firmware.b1", "-t", "gaitrig/b1/state", "-f", stateFile)
-	mosquittoPub(t, port, "-i", "firmware.b2", "-t", "gaitrig/b2/command", "-f", cmdFile)
+	mosquittoPub(t, port, "-i", "outside-1", "-u", "board1", "-P", "pw-f1", "-t", "gaitrig/b2/command", "-f", cmdFile)
+	mosquittoPub(t, port, "-i", "outside-2", "-u", "board1", "-P", "pw-f1", "-t", "gaitrig/b1/state", "-f", stateFile)
+	mosquittoPub(t, port, "-i", "outside-3", "-u", "board2", "-P", "pw-f2", "-t", "gaitrig/b2/command", "-f", cmdFile)
 	got := mustRecv(t, r2)
 	if want := command(11); !same(&got, &want) {
 		t.Fatalf("rig b2 got %+v", got)
 	}
-	// The refused publishes came earlier from other connections; give the
-	// broker a bounded moment, then nothing must be waiting anywhere.
-	expectQuiet(t, r2, 100*time.Millisecond)
-	expectQuiet(t, f1, 100*time.Millisecond)
-	expectQuiet(t, r1, 100*time.Millisecond)
+	// The refused publishes came on other connections; give the broker a
+	// bounded time to count them, then nothing must be waiting anywhere.
+	for deadline := time.Now().Add(wait); b.Refusals()-refusedBefore < 2 && time.Now().Before(deadline); {
+		time.Sleep(time.Millisecond)
+	}
 	if got := b.Refusals() - refusedBefore; got != 2 {
 		t.Fatalf("broker refused %d publishes, want 2", got)
 	}
+	expectQuiet(t, r2, 100*time.Millisecond)
+	expectQuiet(t, f1, 100*time.Millisecond)
+	expectQuiet(t, r1, 100*time.Millisecond)
 }
 
 func TestCredentials(t *testing.T) {
