@@ -64,6 +64,9 @@ type LinkCounts struct {
 // (bad configuration, no greeting, wrong actuator count, record failure);
 // alarms and trips are results, not errors.
 func Run(ctx context.Context, cfg Config, model *plant.Model, initial plant.State, conn bridges.Conn, rec *record.Writer) (Result, error) {
+	if ctx == nil {
+		ctx = context.Background()
+	}
 	r, err := newRunner(cfg, model, initial, conn, rec)
 	if err != nil {
 		if rec != nil {
@@ -182,6 +185,9 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 		r.pushes = append(r.pushes, ps)
 	}
 	r.peakUtil, r.minNormal = 0, math.Inf(1)
+	// The foot switches of the first tick read the contact forces of the
+	// initial state, as every later tick reads those of the last step.
+	r.res.Contacts = model.Contacts(&r.s, &plant.Input{})
 	r.steps.init(model, &r.s)
 	if rec != nil {
 		r.recStart = rec.Manifest().StartTime
