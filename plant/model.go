@@ -7,6 +7,11 @@ import "math"
 // (axis from hip to foot), −COMDist for the torso (axis from hip up).
 type link struct {
 	mass, rho, inertia float64
+	mr, d              float64 // m·ρ and m·ρ² + I, precomputed for the hot loop
+}
+
+func newLink(mass, rho, inertia float64) link {
+	return link{mass: mass, rho: rho, inertia: inertia, mr: mass * rho, d: mass*rho*rho + inertia}
 }
 
 // foot is the arc geometry of one leg: arc centre at hip + (L−R)·a(θ) +
@@ -60,7 +65,7 @@ func New(p Params, o Options) (*Model, error) {
 	meanLen := 0.0
 	for i := 0; i < m.nFeet; i++ {
 		l := p.Legs[i]
-		m.links[i] = link{mass: l.Mass, rho: l.COMDist, inertia: l.Inertia}
+		m.links[i] = newLink(l.Mass, l.COMDist, l.Inertia)
 		m.feet[i] = foot{length: l.Length, radius: l.FootRadius, offset: l.ArcOffset}
 		m.massTotal += l.Mass
 		m.reach = math.Max(m.reach, l.Length+math.Abs(l.ArcOffset))
@@ -73,7 +78,7 @@ func New(p Params, o Options) (*Model, error) {
 	case m.p.Torso != nil:
 		m.torso = m.nLinks
 		t := m.p.Torso
-		m.links[m.torso] = link{mass: t.Mass, rho: -t.COMDist, inertia: t.Inertia}
+		m.links[m.torso] = newLink(t.Mass, -t.COMDist, t.Inertia)
 		m.massTotal += t.Mass
 		m.nLinks++
 		m.nAct = 2

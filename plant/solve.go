@@ -56,9 +56,8 @@ func (m *Model) solveSaddleWith(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[Ma
 	nu := 2
 	for k := 0; k < m.nLinks; k++ {
 		l := &m.links[k]
-		mr := l.mass * l.rho
-		B[k] = [2]float64{mr * tr.ap[k][0], mr * tr.ap[k][1]}
-		D[k] = mr*l.rho + l.inertia
+		B[k] = [2]float64{l.mr * tr.ap[k][0], l.mr * tr.ap[k][1]}
+		D[k] = l.d
 		if inContact[k] {
 			col[k] = nu
 			nu++
@@ -175,9 +174,8 @@ func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, x *
 	fx, fy := f[0], f[1]
 	for j := 0; j < m.nLinks; j++ {
 		l := &m.links[j]
-		mr := l.mass * l.rho
-		B[j] = [2]float64{mr * tr.ap[j][0], mr * tr.ap[j][1]}
-		D[j] = mr*l.rho + l.inertia
+		B[j] = [2]float64{l.mr * tr.ap[j][0], l.mr * tr.ap[j][1]}
+		D[j] = l.d
 		if j == k {
 			continue
 		}

@@ -57,7 +57,7 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]f
 		}
 	}
 	if m.fallHip >= 0 {
-		c[condHip] = m.heightAbove([2]float64{q[0], q[1]}, ev.geom[s.Stance].sp.seg) - m.fallHip
+		c[condHip] = m.hipHeight(s, q, ev) - m.fallHip
 	}
 	if m.fallTorso >= 0 {
 		c[condTorso] = m.fallTorso - math.Abs(q[2+m.torso])
@@ -326,7 +326,7 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		return m.crossRegion(s, in, k-condRegion, ev, r)
 	case k == condHip:
 		r.add(Event{Kind: Fall, T: s.T, Foot: s.Stance, Segment: ev.geom[s.Stance].sp.seg,
-			Value: m.heightAbove([2]float64{s.Q[0], s.Q[1]}, ev.geom[s.Stance].sp.seg), Limit: m.fallHip})
+			Value: m.hipHeight(s, &s.Q, ev), Limit: m.fallHip})
 		return true
 	case k == condTorso:
 		r.add(Event{Kind: Fall, T: s.T, Foot: -1, Segment: -1, Value: s.Q[2+m.torso], Limit: m.fallTorso})
@@ -391,4 +391,16 @@ func (m *Model) sanitize(s *State) {
 			s.SlipDir[i] = 1
 		}
 	}
+}
+
+// hipHeight is the distance of the hip above the terrain: measured to the
+// stance foot's terrain line while that foot is inside a segment region
+// (cheap, and the same terrain the walker stands on), else by a search.
+func (m *Model) hipHeight(s *State, q *[MaxDOF]float64, ev *eval) float64 {
+	st := s.Stance
+	if s.Mode[st] != Free && !s.vertex[st] {
+		sg := &m.terrain[s.Seg[st]]
+		return (q[0]-sg.p0[0])*sg.n[0] + (q[1]-sg.p0[1])*sg.n[1]
+	}
+	return m.heightAbove([2]float64{q[0], q[1]}, ev.geom[st].sp.seg)
 }

@@ -2,6 +2,9 @@ package plant
 
 import "testing"
 
+// Micro-benchmarks of the pieces of a tick, to see where the time goes.
+
+// BenchmarkKKT5: one 5×5 saddle-point elimination (the general path).
 func BenchmarkKKT5(b *testing.B) {
 	var base kkt
 	for i := 0; i < 5; i++ {
@@ -18,6 +21,7 @@ func BenchmarkKKT5(b *testing.B) {
 	}
 }
 
+// BenchmarkRHS: one right-hand-side evaluation with one foot rolling.
 func BenchmarkRHS(b *testing.B) {
 	m, s := benchWalker(b, false)
 	var ev eval
@@ -28,6 +32,7 @@ func BenchmarkRHS(b *testing.B) {
 	}
 }
 
+// BenchmarkConditions: the event conditions at one state.
 func BenchmarkConditions(b *testing.B) {
 	m, s := benchWalker(b, false)
 	var ev eval
