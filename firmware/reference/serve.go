@@ -34,6 +34,17 @@ type Options struct {
 	IdleTimeout time.Duration
 }
 
+// finite reports whether every value of the reading is a finite number.
+func (r *Reading) finite() bool {
+	ok := func(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+	for i := 0; i < r.Joints && i < len(r.Angle); i++ {
+		if !ok(r.Angle[i]) || !ok(r.Rate[i]) {
+			return false
+		}
+	}
+	return ok(r.Pitch) && ok(r.PitchRate)
+}
+
 // ErrRigStopped is wrapped by the error Serve returns when the rig ended
 // the run with a reason other than a normal end.
 var ErrRigStopped = errors.New("reference: the rig stopped the run")
@@ -41,7 +52,10 @@ var ErrRigStopped = errors.New("reference: the rig stopped the run")
 // Serve runs the firmware side of the protocol over conn, exactly as a
 // board would: send the greeting, take the rig's configuration, then answer
 // every State with the Command that echoes its sequence number, until the
-// rig sends Stop. It returns nil after a normal end (StopEnd), an error
+// rig sends Stop. A state with a NaN or infinite reading is answered with
+// zero torques and the StatusFault bit. The firmware's torque limit is
+// lowered to the smallest limit in the rig's configuration when that is
+// lower. It returns nil after a normal end (StopEnd), an error
 // wrapping ErrRigStopped for any other stop reason (e-stop, watchdog,
 // abort), and the link's error if it closes or stays silent for
 // IdleTimeout. Serve does not close conn.
@@ -122,12 +136,18 @@ func Serve(conn bridges.Conn, o Options) error {
 				r.Rate[i] = float64(m.State.Rate[i])
 			}
 			tau = [2]float64{}
-			if o.Mode == ModeWalk {
+			status := protocol.StatusOK
+			switch {
+			case !r.finite():
+				// A reading with NaN or Inf is a sensor fault: a board answers
+				// with zero torque and says so rather than pass it on.
+				status = protocol.StatusFault
+			case o.Mode == ModeWalk:
 				Law(&g, &r, tau[:o.Actuators])
 			}
 			out.Seq = m.Seq
 			out.Command.Joints = uint8(o.Actuators)
-			out.Command.Status = protocol.StatusOK
+			out.Command.Status = status
 			for i := 0; i < o.Actuators; i++ {
 				out.Command.Torque[i] = float32(tau[i])
 			}

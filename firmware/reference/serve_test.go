@@ -66,6 +66,16 @@ func TestServeSpeaksTheProtocol(t *testing.T) {
 			if math.Abs(float64(m.Command.Torque[0])) != 30 {
 				t.Errorf("stance torque %g: want clipped at the rig's 30 N·m", m.Command.Torque[0])
 			}
+			// A non-finite reading: zero torque and the fault bit.
+			st.Seq = 4
+			st.State.IMURate = float32(math.NaN())
+			rig.Send(&st)
+			if err := rig.Recv(time.Now().Add(2*time.Second), &m); err != nil {
+				t.Fatal(err)
+			}
+			if m.Command.Status != protocol.StatusFault || m.Command.Torque[0] != 0 || m.Command.Torque[1] != 0 {
+				t.Fatalf("answer to a NaN reading: %+v", m.Command)
+			}
 			stop := protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: tc.stop, Text: "test"}}
 			rig.Send(&stop)
 			select {
