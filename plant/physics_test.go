@@ -232,10 +232,19 @@ func TestPassiveStanceEnergy(t *testing.T) {
 	e0 := k0 + p0
 	var r TickResult
 	maxK, drift := k0, 0.0
+	// Rolling without slipping: the arc centre stays R above the ground
+	// and moves by −R Δθ along it.
+	c0, _, _ := m.footCentre(&s.Q, 0)
+	th0 := s.Q[2]
+	R := p.Legs[0].FootRadius
 	for i := 0; i < 10000; i++ {
 		m.Step(&s, nil, 1e-3, &r)
 		if r.NumEvents > 0 {
 			t.Fatalf("t = %g: unexpected event %v", s.T, r.Events[0].Kind)
+		}
+		c, _, _ := m.footCentre(&s.Q, 0)
+		if dh, dx := c[1]-R, (c[0]-c0[0])+R*(s.Q[2]-th0); math.Abs(dh) > 1e-12 || math.Abs(dx) > 1e-12 {
+			t.Fatalf("t = %g: arc centre %.3g m off its height, %.3g m off the rolling distance", s.T, dh, dx)
 		}
 		k, pe := m.Energy(&s)
 		maxK = math.Max(maxK, k)
