@@ -81,6 +81,15 @@ func (f *LinkFault) active(t float64) bool {
 	return t >= f.From && (f.Until <= 0 || t < f.Until)
 }
 
+// EStopPolicy is what the motors do after an e-stop.
+type EStopPolicy string
+
+// E-stop policies.
+const (
+	EStopZero EStopPolicy = "zero" // all torques to zero
+	EStopDamp EStopPolicy = "damp" // joint damping −c·rate, clipped to the torque limits
+)
+
 // Push is a disturbance on the hip: an impulse over one tick, or a force
 // held for Duration. It starts at time At, or, when AtStep > 0, at the tick
 // of the heel strike that completes step AtStep.
@@ -136,6 +145,17 @@ type Config struct {
 	// RealtimePriority is the SCHED_FIFO priority asked for in wall-clock
 	// mode; default DefaultRealtimePriority; negative asks for nothing.
 	RealtimePriority int
+	// EStop is what the motors do after an e-stop: EStopZero (default,
+	// torques to zero) or EStopDamp (each joint brakes with
+	// −EStopDamping·rate, as a motor drive shorting its windings does).
+	EStop EStopPolicy
+	// EStopDamping is the joint damping of EStopDamp, N·m·s/rad.
+	EStopDamping float64
+	// EStopCoast keeps the plant running for this much simulated time after
+	// an e-stop, under the e-stop policy and without the firmware, so the
+	// record shows what the e-stop led to (a fall, a stop). 0 ends the run
+	// at the tripping tick.
+	EStopCoast float64
 	// Alarms, when set, receives every logged alarm as one JSON object
 	// (the MQTT link publishes it on the rig's alarm topic).
 	Alarms AlarmSink
@@ -217,6 +237,20 @@ func (c Config) withDefaults() (Config, error) {
 		default:
 			return c, fmt.Errorf("hil: link fault %d has kind %q: want latency, drop or corrupt", i, f.Kind)
 		}
+	}
+	switch c.EStop {
+	case "":
+		c.EStop = EStopZero
+	case EStopZero:
+	case EStopDamp:
+		if !(c.EStopDamping > 0) {
+			return c, fmt.Errorf("hil: e-stop policy damp needs a damping > 0 N·m·s/rad, got %g", c.EStopDamping)
+		}
+	default:
+		return c, fmt.Errorf("hil: e-stop policy %q: want zero or damp", c.EStop)
+	}
+	if c.EStopCoast < 0 || math.IsNaN(c.EStopCoast) || c.EStopCoast > 60 {
+		return c, fmt.Errorf("hil: e-stop coast %g s: want 0 … 60 s", c.EStopCoast)
 	}
 	for i, p := range c.Pushes {
 		if p.Force != [2]float64{} && !(p.Duration > 0) {

@@ -43,8 +43,10 @@
 // trip; defaults in scenarios.DefaultSeverity). A warn kind that repeats is
 // logged at most once per Config.AlarmInterval of simulated time; the
 // summary counts every occurrence and the next line says how many were
-// not logged. The first trip e-stops: torques to zero, a Stop with the
-// reason to the firmware, outcome tripped. Alarms go to the record's
+// not logged. The first trip e-stops: torques to zero (or joint damping,
+// Config.EStop), a Stop with the reason to the firmware, outcome tripped.
+// The run ends at the tripping tick, or, with Config.EStopCoast, the plant
+// runs on without the firmware so the record shows what the e-stop led to. Alarms go to the record's
 // events.jsonl with tick, simulated time, wall time and the values that
 // caused them, and to Config.Alarms (an AlarmSink such as the MQTT link's
 // alarm topic) as JSON.

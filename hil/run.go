@@ -213,7 +213,34 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		}
 	}
 	r.sendStop()
+	if err == nil && r.outcome == record.Tripped && r.cfg.EStopCoast > 0 {
+		r.coast()
+	}
 	return r.finish(err)
+}
+
+// coast runs the plant on after an e-stop under the e-stop policy, with no
+// firmware, so the record shows the consequence. Alarms still count; the
+// outcome stays tripped.
+func (r *runner) coast() {
+	n := int64(math.Round(r.cfg.EStopCoast * r.cfg.TickHz))
+	r.al.info("e_stop_coast", r.tick, r.s.T, fmt.Sprintf("plant runs on %.3g s after the e-stop with policy %s", r.cfg.EStopCoast, r.cfg.EStop), nil)
+	r.commanded = [protocol.MaxJoints]float64{} // no firmware: nothing is commanded
+	for i := int64(0); i < n && !r.res.Stopped; i++ {
+		r.fresh = false
+		if r.cfg.EStop == EStopDamp {
+			r.m.JointState(&r.s, r.angleTmp, r.rate0)
+			for j := 0; j < r.n; j++ {
+				tq := -r.cfg.EStopDamping * r.rate0[j]
+				if lim := r.act.limit[j]; lim > 0 {
+					tq = math.Max(-lim, math.Min(lim, tq))
+				}
+				r.act.target[j] = tq
+			}
+		}
+		r.sense() // what the sensors read, for the log; nothing is sent
+		r.advance(time.Now())
+	}
 }
 
 func (r *runner) logf(format string, a ...any) {

@@ -400,3 +400,73 @@ func TestReplayMatchesExactly(t *testing.T) {
 		t.Fatalf("replay with one torque changed by 1 µN·m at tick %d: %s", ticks[k].Index, r)
 	}
 }
+
+// After a watchdog trip the plant can run on under the e-stop policy, so
+// the record shows what the e-stop leads to.
+func TestEStopCoast(t *testing.T) {
+	tests := []struct {
+		policy  EStopPolicy
+		damping float64
+	}{
+		{EStopZero, 0},
+		{EStopDamp, 20},
+	}
+	for _, tc := range tests {
+		t.Run(string(tc.policy), func(t *testing.T) {
+			m, s, cfg := demo(t, 30)
+			cfg.Watchdog = 30 * time.Millisecond
+			cfg.EStop, cfg.EStopDamping, cfg.EStopCoast = tc.policy, tc.damping, 1.0
+			silentAfter := func(conn bridges.Conn) error {
+				if _, err := greet(conn, 2, protocol.Version); err != nil {
+					return err
+				}
+				_, err := untilStop(conn, func(in *protocol.Message) {
+					if in.Type != protocol.TypeState || in.Seq > 200 {
+						return // answers 200 states, then falls silent
+					}
+					out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+					out.Command.Joints = 2
+					conn.Send(&out)
+				})
+				return err
+			}
+			res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, silentAfter)
+			if err != nil || ferr != nil {
+				t.Fatal(err, ferr)
+			}
+			// The coast lasts 1 s unless the walker falls first (the plant
+			// stops at a fall); either way it must have gone past the trip.
+			fell := res.Summary.Alarms[scenarios.AlarmFall] == 1
+			if res.Summary.Outcome != record.Tripped || res.Summary.Ticks < 260 || (!fell && res.Summary.Ticks < 1200) {
+				t.Fatalf("outcome %s after %d ticks, alarms %v: want tripped, then coasting until a fall or for 1 s", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms)
+			}
+			ticks, _, err := openRun(t, dir).AllTicks()
+			if err != nil {
+				t.Fatal(err)
+			}
+			checked := 0
+			for k := 201; k < len(ticks); k++ {
+				row, prev := &ticks[k], &ticks[k-1]
+				if row.Commanded[0] != 0 || row.Commanded[1] != 0 {
+					t.Fatalf("tick %d after the e-stop has a commanded torque %v", row.Index, row.Commanded[:2])
+				}
+				if tc.policy == EStopZero && (row.Applied[0] != 0 || row.Applied[1] != 0) {
+					t.Fatalf("tick %d: applied %v after a zero e-stop", row.Index, row.Applied[:2])
+				}
+				if tc.policy == EStopDamp && row.Index > 240 && row.Index < 400 {
+					// Joint rate at the tick start = leg rate − torso rate of
+					// the previous row's end state; the demo limit is 60 N·m.
+					want := math.Max(-60, math.Min(60, -tc.damping*(prev.V[2]-prev.V[4])))
+					if row.Applied[0] != want {
+						t.Fatalf("tick %d: applied %g, want −c·rate = %g", row.Index, row.Applied[0], want)
+					}
+					checked++
+				}
+			}
+			if tc.policy == EStopDamp && checked == 0 {
+				t.Fatal("no coasting tick checked")
+			}
+			t.Logf("%s: %d ticks, alarms %v", tc.policy, res.Summary.Ticks, res.Summary.Alarms)
+		})
+	}
+}
