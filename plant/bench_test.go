@@ -1,6 +1,7 @@
 package plant
 
 import (
+	"fmt"
 	"math"
 	"testing"
 )
@@ -9,6 +10,10 @@ import (
 // (rolling, contact forces computed every evaluation) with the swing leg
 // clear of the ground, so every tick is a plain stance tick.
 func benchWalker(b *testing.B, torso bool) (*Model, State) {
+	return benchWalkerSub(b, torso, 0)
+}
+
+func benchWalkerSub(b *testing.B, torso bool, subSteps int) (*Model, State) {
 	p := DemoParams()
 	if !torso {
 		p.Torso = nil
@@ -26,7 +31,7 @@ func benchWalker(b *testing.B, torso bool) (*Model, State) {
 		// the benchmark runs (same number of links and equations).
 		p.Torso.COMDist = -0.3
 	}
-	m, err := New(p, Options{})
+	m, err := New(p, Options{SubSteps: subSteps})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -38,8 +43,10 @@ func benchWalker(b *testing.B, torso bool) (*Model, State) {
 	return m, s
 }
 
-func benchTick(b *testing.B, torso bool) {
-	m, s := benchWalker(b, torso)
+func benchTick(b *testing.B, torso bool) { benchTickSub(b, torso, 0) }
+
+func benchTickSub(b *testing.B, torso bool, subSteps int) {
+	m, s := benchWalkerSub(b, torso, subSteps)
 	start := s
 	var in Input
 	var r TickResult
@@ -62,6 +69,14 @@ func BenchmarkTickCompass(b *testing.B) { benchTick(b, false) }
 
 // BenchmarkTickTorso: the same with a torso (5 degrees of freedom).
 func BenchmarkTickTorso(b *testing.B) { benchTick(b, true) }
+
+// BenchmarkTickCompassSubSteps: the compass tick with other numbers of RK4
+// sub-steps per 1 ms tick (the default is 4), for choosing the trade-off.
+func BenchmarkTickCompassSubSteps(b *testing.B) {
+	for _, n := range []int{2, 3, 4, 8} {
+		b.Run(fmt.Sprintf("substeps=%d", n), func(b *testing.B) { benchTickSub(b, false, n) })
+	}
+}
 
 // BenchmarkStepMap: one full step-to-step map of the passive arc-foot
 // walker of the SciPy fixture with the adaptive integrator (tolerance
