@@ -1,6 +1,7 @@
 package broker
 
 import (
+	"bytes"
 	"crypto/ecdsa"
 	"crypto/elliptic"
 	"crypto/rand"
@@ -8,6 +9,7 @@ import (
 	"crypto/x509"
 	"crypto/x509/pkix"
 	"encoding/pem"
+	"log/slog"
 	"math/big"
 	"net"
 	"os"
@@ -477,4 +479,40 @@ func TestTLS(t *testing.T) {
 			}
 		})
 	}
+}
+
+func TestRefusalsAreLoggedAtWarn(t *testing.T) {
+	var buf syncBuffer
+	logger := slog.New(slog.NewTextHandler(&buf, &slog.HandlerOptions{Level: slog.LevelWarn}))
+	b := startBroker(t, Config{Logger: logger})
+	c := mustDial(t, b, clientOpts{id: "firmware.b1"})
+	tok := c.Subscribe("gaitrig/b2/state", 0, nil)
+	if !tok.WaitTimeout(wait) || tok.Error() != nil {
+		t.Fatalf("subscribe: %v", tok.Error())
+	}
+	out := buf.String()
+	if !strings.Contains(out, "level=WARN") || !strings.Contains(out, "broker refused subscribe") || !strings.Contains(out, "gaitrig/b2/state") {
+		t.Fatalf("log %q lacks the refusal", out)
+	}
+	if strings.Contains(out, "level=INFO") {
+		t.Fatalf("info lines got through a warn-level logger: %q", out)
+	}
+}
+
+// syncBuffer is a bytes.Buffer safe for the broker's goroutines.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
 }

@@ -58,9 +58,11 @@ type Config struct {
 	// and the wait for a broker's acknowledgement. Zero means
 	// DefaultConnectTimeout.
 	ConnectTimeout time.Duration
-	// KeepAlive is the MQTT keep-alive interval; a broker that stops
-	// answering pings for about this long is declared lost. Zero means
-	// DefaultKeepAlive.
+	// KeepAlive is the MQTT keep-alive interval, in whole seconds (MQTT
+	// counts it in seconds; a fraction is rounded up). When nothing has
+	// arrived for this long a ping is sent, and a broker that does not
+	// answer within another KeepAlive is declared lost, so a hung broker is
+	// noticed after about twice KeepAlive. Zero means DefaultKeepAlive.
 	KeepAlive time.Duration
 	// MaxReconnectInterval caps the back-off between reconnection attempts.
 	// Zero means DefaultMaxReconnectInterval.
@@ -105,6 +107,9 @@ func (cfg *Config) normalize() (*url.URL, error) {
 	}
 	if cfg.KeepAlive <= 0 {
 		cfg.KeepAlive = DefaultKeepAlive
+	}
+	if r := cfg.KeepAlive % time.Second; r != 0 {
+		cfg.KeepAlive += time.Second - r // paho would truncate it, 0 s meaning off
 	}
 	if cfg.MaxReconnectInterval <= 0 {
 		cfg.MaxReconnectInterval = DefaultMaxReconnectInterval

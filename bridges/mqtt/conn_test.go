@@ -10,6 +10,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 
@@ -696,5 +697,74 @@ func TestTLS(t *testing.T) {
 				t.Fatal("plain TCP Dial to a TLS listener succeeded")
 			}
 		})
+	}
+}
+
+func TestBrokerStalled(t *testing.T) {
+	m := startMosquitto(t, "")
+	r := dialT(t, Config{Broker: m.url("tcp"), Rig: "b6", Role: RoleRig,
+		KeepAlive: 1 * time.Second, MaxReconnectInterval: 200 * time.Millisecond, ConnectTimeout: time.Second})
+	// SIGSTOP: the broker keeps its sockets open but answers nothing, as a
+	// hung broker host would. Only the keep-alive can notice.
+	if err := m.signal(syscall.SIGSTOP); err != nil {
+		t.Fatal(err)
+	}
+	stalled := time.Now()
+	e := nextEvent(t, r, "disconnected")
+	if e.Err == nil || !strings.Contains(e.Err.Error(), "lost the connection") {
+		t.Fatalf("disconnected event %+v lacks a clear cause", e)
+	}
+	if err := m.signal(syscall.SIGCONT); err != nil {
+		t.Fatal(err)
+	}
+	e = nextEvent(t, r, "reconnected")
+	if e.Gap <= 0 || e.Gap > time.Since(stalled) {
+		t.Fatalf("gap %v, want between 0 and %v", e.Gap, time.Since(stalled))
+	}
+	f := dialT(t, Config{Broker: m.url("tcp"), Rig: "b6", Role: RoleFirmware})
+	mustSend(t, f, command(1))
+	if got := mustRecv(t, r); got.Type != protocol.TypeCommand || got.Seq != 1 {
+		t.Fatalf("after the stall: %+v", got)
+	}
+}
+
+func TestOperatorStopFromOutside(t *testing.T) {
+	m := startMosquitto(t, "")
+	r := dialT(t, Config{Broker: m.url("tcp"), Rig: "b8", Role: RoleRig})
+	p := filepath.Join(t.TempDir(), "stop.bin")
+	want := stop(0, protocol.StopAborted, "operator e-stop")
+	if err := os.WriteFile(p, encoded(t, want), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	mosquittoPub(t, m.port, "-t", "gaitrig/b8/stop", "-q", "1", "-f", p)
+	if got := mustRecv(t, r); !same(&got, &want) {
+		t.Fatalf("rig got %+v, want the operator's stop", got)
+	}
+}
+
+func TestConfigDefaults(t *testing.T) {
+	cases := []struct {
+		keepAlive, want time.Duration
+		clientID        string
+	}{
+		{0, DefaultKeepAlive, "rig.b1"},
+		{500 * time.Millisecond, time.Second, "rig.b1"},
+		{1200 * time.Millisecond, 2 * time.Second, "rig.b1"},
+		{3 * time.Second, 3 * time.Second, "rig.b1"},
+	}
+	for _, tc := range cases {
+		cfg := Config{Broker: "tcp://127.0.0.1", Rig: "b1", Role: RoleRig, KeepAlive: tc.keepAlive}
+		u, err := cfg.normalize()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if cfg.KeepAlive != tc.want || cfg.ClientID != tc.clientID || u.Host != "127.0.0.1:1883" || cfg.Root != DefaultRoot {
+			t.Errorf("KeepAlive %v: got %v, client %q, host %q, root %q", tc.keepAlive, cfg.KeepAlive, cfg.ClientID, u.Host, cfg.Root)
+		}
+	}
+	cfg := Config{Broker: "mqtts://broker.lab", Rig: "b1", Role: RoleFirmware}
+	u, err := cfg.normalize()
+	if err != nil || u.Host != "broker.lab:8883" || cfg.ClientID != "firmware.b1" {
+		t.Fatalf("TLS defaults: %v %v %q", err, u, cfg.ClientID)
 	}
 }

@@ -22,6 +22,7 @@ import (
 	"strings"
 	"sync"
 	"sync/atomic"
+	"syscall"
 	"testing"
 	"time"
 
@@ -143,9 +144,20 @@ func (m *mosquitto) kill() {
 	if m.cmd == nil {
 		return
 	}
+	_ = m.cmd.Process.Signal(syscall.SIGCONT) // a stopped process must run to die
 	_ = m.cmd.Process.Kill()
 	<-m.done
 	m.cmd = nil
+}
+
+// signal sends sig to the running broker.
+func (m *mosquitto) signal(sig os.Signal) error {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if m.cmd == nil {
+		return fmt.Errorf("mosquitto is not running")
+	}
+	return m.cmd.Process.Signal(sig)
 }
 
 // sub runs mosquitto_sub as an outside client and streams its output lines.
