@@ -163,6 +163,12 @@ func TestJointStateAndIMU(t *testing.T) {
 	if c[1].Mode != Rolling || math.Abs(c[1].Gap) > 1e-12 || c[1].Normal <= 0 {
 		t.Errorf("stance contact %+v", c[1])
 	}
+	// On level ground the contact is straight below the arc centre, so with
+	// the right leg 0.2 rad forward the centre of pressure sits 0.2 R back
+	// along the arc, toward the heel (geometry of the arc).
+	if want := -0.2 * DemoParams().Legs[1].FootRadius; math.Abs(c[1].CoP-want) > 1e-12 {
+		t.Errorf("centre of pressure %g m, want %g m", c[1].CoP, want)
+	}
 }
 
 // TestSlidingCoulomb: an inverted pendulum leaning forward on ground with
