@@ -33,13 +33,28 @@
 // {"state":"offline",...,"reason":"closed"} on Close. The firmware role sets
 // no will and may not publish alarms or status.
 //
+// Client ids must be unique on a broker: by the MQTT rules a second client
+// with the same id takes over the session and the first is disconnected
+// (and, reconnecting, takes it back). Run one rig and one firmware per rig
+// id, or give outside tools their own ids.
+//
 // # Reconnecting
 //
 // paho's automatic reconnect is on. A lost connection is reported on Events
 // as a "disconnected" LinkEvent with the cause; when the link is back (and
 // the subscriptions are renewed) a "reconnected" event carries the length of
 // the gap. While disconnected, Send returns an error instead of silently
-// dropping the message.
+// dropping the message. A broker that dies or a line that breaks is noticed
+// at once; a broker that hangs with its sockets open is noticed only by the
+// keep-alive, after about twice Config.KeepAlive, and until then Send may
+// wait up to Config.WriteTimeout. The loop's own watchdog covers that time.
+//
+// # Mosquitto
+//
+// Mosquitto 2.0 leaves Nagle's algorithm on by default; on loopback that
+// holds back some of its small writes by about 40 ms (measured by
+// BenchmarkRoundTripMosquitto/nagle). Put "set_tcp_nodelay true" in
+// mosquitto.conf for a bench rig.
 //
 // # Allocations
 //
