@@ -20,6 +20,7 @@ import (
 	"time"
 
 	paho "github.com/eclipse/paho.mqtt.golang"
+	mochi "github.com/mochi-mqtt/server/v2"
 )
 
 // wait bounds every broker operation in these tests.
@@ -515,4 +516,50 @@ func (s *syncBuffer) String() string {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	return s.b.String()
+}
+
+// TestAllowedChecksDoNotAllocate: mochi runs the access check for every
+// publish and every delivery, so an allowed check must not allocate.
+func TestAllowedChecksDoNotAllocate(t *testing.T) {
+	r := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler)}
+	withAccounts := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler),
+		accounts: map[string]Account{"board": {Username: "board", Password: "pw", Role: RoleFirmware, Rig: "b1"}}}
+	rig := &mochi.Client{ID: "rig.b1"}
+	fw := &mochi.Client{ID: "x"}
+	fw.Properties.Username = []byte("board")
+	cases := []struct {
+		name  string
+		r     *rules
+		cl    *mochi.Client
+		topic string
+		write bool
+	}{
+		{"rig publishes state", r, rig, "gaitrig/b1/state", true},
+		{"rig receives command", r, rig, "gaitrig/b1/command", false},
+		{"account firmware publishes command", withAccounts, fw, "gaitrig/b1/command", true},
+		{"account firmware receives state", withAccounts, fw, "gaitrig/b1/state", false},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			ok := true
+			allocs := testing.AllocsPerRun(1000, func() { ok = ok && tc.r.OnACLCheck(tc.cl, tc.topic, tc.write) })
+			if !ok {
+				t.Fatal("refused")
+			}
+			if allocs != 0 {
+				t.Fatalf("%v allocations per check, want 0", allocs)
+			}
+		})
+	}
+}
+
+func BenchmarkAllowedCheck(b *testing.B) {
+	r := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler)}
+	cl := &mochi.Client{ID: "firmware.bench1"}
+	b.ReportAllocs()
+	for i := 0; i < b.N; i++ {
+		if !r.OnACLCheck(cl, "gaitrig/bench1/command", true) {
+			b.Fatal("refused")
+		}
+	}
 }

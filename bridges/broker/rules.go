@@ -38,102 +38,124 @@ func (r *rules) Provides(b byte) bool {
 // configured) and that the last will, if any, names a topic the client may
 // publish to.
 func (r *rules) OnConnectAuthenticate(cl *mochi.Client, pk packets.Packet) bool {
-	user := string(pk.Connect.Username)
 	if len(r.accounts) > 0 {
-		a, ok := r.accounts[user]
+		a, ok := r.accounts[string(pk.Connect.Username)]
 		if !ok || subtle.ConstantTimeCompare([]byte(a.Password), pk.Connect.Password) != 1 {
-			r.refuse(cl.ID, user, "", "connect", "unknown username or wrong password")
+			r.refuse(cl.ID, pk.Connect.Username, "", "connect", "unknown username or wrong password")
 			return false
 		}
 	}
 	if pk.Connect.WillFlag {
-		id := r.identify(pk.Connect.ClientIdentifier, user)
-		if ok, why := r.mayPublish(id, pk.Connect.WillTopic); !ok {
-			r.refuse(cl.ID, user, pk.Connect.WillTopic, "connect", "last will refused: "+why)
+		id := r.identify(pk.Connect.ClientIdentifier, pk.Connect.Username)
+		if !r.may(id, pk.Connect.WillTopic, true) {
+			r.refuse(cl.ID, pk.Connect.Username, pk.Connect.WillTopic, "connect", "last will refused: "+r.why(id, true))
 			return false
 		}
 	}
 	return true
 }
 
-// OnACLCheck applies the per-role publish and subscribe rules.
+// OnACLCheck applies the per-role publish and subscribe rules. mochi calls
+// it for every publish and for every delivery, so the allowed path does not
+// allocate.
 func (r *rules) OnACLCheck(cl *mochi.Client, topic string, write bool) bool {
-	user := string(cl.Properties.Username)
-	id := r.identify(cl.ID, user)
+	id := r.identify(cl.ID, cl.Properties.Username)
+	if r.may(id, topic, write) {
+		return true
+	}
+	action := "subscribe"
 	if write {
-		ok, why := r.mayPublish(id, topic)
-		if !ok {
-			r.refuse(cl.ID, user, topic, "publish", why)
-		}
-		return ok
+		action = "publish"
 	}
-	ok, why := r.maySubscribe(id, topic)
-	if !ok {
-		r.refuse(cl.ID, user, topic, "subscribe", why)
-	}
-	return ok
+	r.refuse(cl.ID, cl.Properties.Username, topic, action, r.why(id, write))
+	return false
 }
 
 // identify maps a client to its role and rig: by account when accounts are
 // configured, by client id ("rig.<rig>", "firmware.<rig>") otherwise.
-func (r *rules) identify(clientID, user string) identity {
+func (r *rules) identify(clientID string, user []byte) identity {
 	if len(r.accounts) > 0 {
-		a := r.accounts[user]
+		a := r.accounts[string(user)]
 		return identity{role: a.Role, rig: a.Rig}
 	}
-	for _, role := range []Role{RoleRig, RoleFirmware} {
-		if rig, ok := strings.CutPrefix(clientID, string(role)+"."); ok && validLevel(rig) == nil {
-			return identity{role: role, rig: rig}
-		}
+	if rig, ok := strings.CutPrefix(clientID, "rig."); ok && validLevel(rig) == nil {
+		return identity{role: RoleRig, rig: rig}
+	}
+	if rig, ok := strings.CutPrefix(clientID, "firmware."); ok && validLevel(rig) == nil {
+		return identity{role: RoleFirmware, rig: rig}
 	}
 	return identity{role: RoleMonitor}
 }
 
-func (r *rules) rigTopic(rig, leaf string) string { return r.root + "/" + rig + "/" + leaf }
+// The last topic level each role may publish to or subscribe to, below its
+// own <root>/<rig>.
+var (
+	rigPublish        = []string{"state", "alarm", "status", "stop"}
+	rigSubscribe      = []string{"command", "stop"}
+	firmwarePublish   = []string{"command", "stop"}
+	firmwareSubscribe = []string{"state", "stop", "status"}
+)
 
-// allowed lists the exact topics a rig or firmware client may publish to or
-// subscribe to.
-func (r *rules) allowed(id identity, write bool) []string {
+func leaves(id identity, write bool) []string {
 	switch {
 	case id.role == RoleRig && write:
-		return []string{r.rigTopic(id.rig, "state"), r.rigTopic(id.rig, "alarm"), r.rigTopic(id.rig, "status"), r.rigTopic(id.rig, "stop")}
+		return rigPublish
 	case id.role == RoleRig:
-		return []string{r.rigTopic(id.rig, "command"), r.rigTopic(id.rig, "stop")}
+		return rigSubscribe
 	case id.role == RoleFirmware && write:
-		return []string{r.rigTopic(id.rig, "command"), r.rigTopic(id.rig, "stop")}
+		return firmwarePublish
 	case id.role == RoleFirmware:
-		return []string{r.rigTopic(id.rig, "state"), r.rigTopic(id.rig, "stop"), r.rigTopic(id.rig, "status")}
+		return firmwareSubscribe
 	}
 	return nil
 }
 
-func (r *rules) mayPublish(id identity, topic string) (bool, string) {
+// may reports whether id may publish to (write) or subscribe to topic. A
+// monitor may subscribe to anything and publish nothing; rig and firmware
+// clients only to exact topics of their own rig.
+func (r *rules) may(id identity, topic string, write bool) bool {
 	if id.role == RoleMonitor {
-		return false, "a monitor client may not publish"
+		return !write
 	}
-	list := r.allowed(id, true)
-	for _, t := range list {
-		if topic == t {
-			return true, ""
+	rest, ok := strings.CutPrefix(topic, r.root)
+	if ok {
+		rest, ok = strings.CutPrefix(rest, "/")
+	}
+	if ok {
+		rest, ok = strings.CutPrefix(rest, id.rig)
+	}
+	if ok {
+		rest, ok = strings.CutPrefix(rest, "/")
+	}
+	if !ok {
+		return false
+	}
+	for _, leaf := range leaves(id, write) {
+		if rest == leaf {
+			return true
 		}
 	}
-	return false, fmt.Sprintf("the %s of rig %q may publish only to %s", id.role, id.rig, strings.Join(list, ", "))
+	return false
 }
 
-func (r *rules) maySubscribe(id identity, filter string) (bool, string) {
+// why explains a refusal to a person.
+func (r *rules) why(id identity, write bool) string {
+	verb := "subscribe"
+	if write {
+		verb = "publish"
+	}
 	if id.role == RoleMonitor {
-		return true, ""
+		return "a monitor client may not publish"
 	}
-	list := r.allowed(id, false)
-	for _, t := range list {
-		if filter == t {
-			return true, ""
-		}
+	var topics []string
+	for _, leaf := range leaves(id, write) {
+		topics = append(topics, r.root+"/"+id.rig+"/"+leaf)
 	}
-	return false, fmt.Sprintf("the %s of rig %q may subscribe only to %s", id.role, id.rig, strings.Join(list, ", "))
+	return fmt.Sprintf("the %s of rig %q may %s only to %s", id.role, id.rig, verb, strings.Join(topics, ", "))
 }
 
-func (r *rules) refuse(clientID, user, topic, action, why string) {
+func (r *rules) refuse(clientID string, username []byte, topic, action, why string) {
+	user := string(username)
 	r.refused.Add(1)
 	r.log.Warn("broker refused "+action, "client", clientID, "username", user, "topic", topic, "reason", why)
 	if r.onRefusal != nil {
