@@ -135,3 +135,50 @@ func TestGaitWithPolicy(t *testing.T) {
 	}
 	t.Logf("damped gait: eigenvalues %v, Jacobian agreement %.2g", g1.Eigenvalues, worst/scale)
 }
+
+// TestSlipAndStickAgain: a half-disk resting on its curved face is pushed
+// sideways at its centre (40 N for 50 ms) harder than static friction can
+// hold while it rolls (it needs about 4.6 N; μ_s m g = 2.9 N): the friction
+// alarm fires and,
+// with ContinueOnSlip, the
+// disk slides; once the push ends, kinetic friction stops the slip and the
+// foot sticks again (Coulomb's law, common practice).
+func TestSlipAndStickAgain(t *testing.T) {
+	const R, mass = 0.5, 2.0
+	d := 4 * R / (3 * math.Pi)
+	p := Params{OneLeg: true, Gravity: 9.81,
+		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
+		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 0.15, MuKinetic: 0.1}}}}
+	m, err := New(p, Options{ContinueOnSlip: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := m.Stand(0, 0, [2]float64{}, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var r TickResult
+	var kinds []EventKind
+	for i := 0; i < 2000; i++ {
+		in := Input{}
+		if i < 50 {
+			in.HipForce[0] = 40
+		}
+		m.Step(&s, &in, 1e-3, &r)
+		for k := 0; k < r.NumEvents; k++ {
+			kinds = append(kinds, r.Events[k].Kind)
+		}
+		if r.Stopped {
+			t.Fatalf("stopped: %v", r.Events[:r.NumEvents])
+		}
+		if i == 40 && r.Contacts[0].Mode != Sliding {
+			t.Fatalf("during the push the foot is %v, want sliding (events %v)", r.Contacts[0].Mode, kinds)
+		}
+	}
+	if len(kinds) < 2 || kinds[0] != FrictionLimit || kinds[1] != Stick {
+		t.Fatalf("events %v, want friction_limit then stick", kinds)
+	}
+	if c := r.Contacts[0]; c.Mode != Rolling || math.Abs(c.SlipVel) > 1e-12 {
+		t.Errorf("at the end: mode %v slip %g m/s", c.Mode, c.SlipVel)
+	}
+}
