@@ -4,6 +4,7 @@ import (
 	"context"
 	"encoding/json"
 	"math"
+	"math/rand/v2"
 	"sync"
 	"testing"
 	"time"
@@ -337,6 +338,82 @@ func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
 			if res.Summary.Alarms[scenarios.AlarmLinkLost] != 1 {
 				t.Fatalf("alarms %v: want one link_lost for the outage", res.Summary.Alarms)
 			}
+		})
+	}
+}
+
+// A firmware that answers with seeded garbage (random message types,
+// sequence numbers, joint counts, torques including NaN, Inf and huge
+// values, status bits) never crashes the loop, and the run folder stays
+// complete and consistent with the result.
+func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
+	for _, clock := range []ClockMode{Lockstep, Wallclock} {
+		t.Run(string(clock), func(t *testing.T) {
+			m, s, cfg := demo(t, 0)
+			cfg.Clock = clock
+			cfg.MaxSteps, cfg.Duration = 0, 0.3
+			cfg.Watchdog = time.Second
+			cfg.Severity = map[string]scenarios.Severity{}
+			for _, k := range scenarios.AlarmKinds {
+				cfg.Severity[k] = scenarios.SeverityWarn // see everything, trip on nothing
+			}
+			rng := rand.New(rand.NewPCG(42, 1))
+			values := []float32{0, 1, -1, 59, 61, 1e30, float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1))}
+			types := []protocol.Type{protocol.TypeCommand, protocol.TypeCommand, protocol.TypeCommand, protocol.TypeHeartbeat,
+				protocol.TypeGreeting, protocol.TypeConfig, protocol.TypeState, protocol.Type(0x77)}
+			fw := func(conn bridges.Conn) error {
+				if _, err := greet(conn, 2, protocol.Version); err != nil {
+					return err
+				}
+				_, err := untilStop(conn, func(in *protocol.Message) {
+					if in.Type != protocol.TypeState {
+						return
+					}
+					for n := rng.IntN(4); n >= 0; n-- {
+						out := protocol.Message{Type: types[rng.IntN(len(types))], Seq: in.Seq}
+						if rng.IntN(3) == 0 {
+							out.Seq = rng.Uint32()
+						}
+						out.Command.Joints = uint8(rng.IntN(4))
+						if rng.IntN(2) == 0 {
+							out.Command.Joints = 2
+						}
+						for j := range out.Command.Torque {
+							out.Command.Torque[j] = values[rng.IntN(len(values))]
+						}
+						out.Command.Status = uint16(rng.IntN(4))
+						conn.Send(&out)
+					}
+				})
+				return err
+			}
+			res, ticks, dir := func() (Result, []record.Tick, string) {
+				res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
+				if err != nil || ferr != nil {
+					t.Fatal(err, ferr)
+				}
+				run := openRun(t, dir)
+				ticks, truncated, err := run.AllTicks()
+				if err != nil || truncated {
+					t.Fatalf("telemetry: truncated %v, %v", truncated, err)
+				}
+				return res, ticks, dir
+			}()
+			if int64(len(ticks)) != res.Summary.Ticks {
+				t.Fatalf("%d rows for %d ticks", len(ticks), res.Summary.Ticks)
+			}
+			for _, row := range ticks {
+				for j := 0; j < 2; j++ {
+					a := row.Applied[j]
+					if math.IsNaN(a) || math.IsInf(a, 0) || math.Abs(a) > 60 {
+						t.Fatalf("tick %d applied %g N·m: garbage reached the plant", row.Index, a)
+					}
+				}
+			}
+			if res.Link.BadTorques == 0 || len(eventsOf(t, dir, scenarios.AlarmBadTorque)) == 0 {
+				t.Fatalf("no bad torque seen in %+v", res.Link)
+			}
+			t.Logf("%s: %s after %d ticks; alarms %v; link %+v", clock, res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms, res.Link)
 		})
 	}
 }

@@ -52,9 +52,11 @@ func (b *mailbox) put(in *inbound) {
 	b.mu.Unlock()
 }
 
-// takeDue removes every command released by now; each one's latency goes
-// to lat and the newest is copied to out.
-func (b *mailbox) takeDue(now int64, out *inbound, lat *Histogram) (got int) {
+// takeDue removes every command released by now. Each one's latency goes
+// to lat; the newest one answering a state that was sent (seq ≤ maxSeq) is
+// copied to out. It returns how many were taken and whether out was set; a
+// command for a sequence number never sent is garbage and only counted.
+func (b *mailbox) takeDue(now int64, maxSeq uint32, out *inbound, lat *Histogram) (taken int, ok bool) {
 	b.mu.Lock()
 	for b.n > 0 {
 		it := &b.items[b.head]
@@ -64,15 +66,16 @@ func (b *mailbox) takeDue(now int64, out *inbound, lat *Histogram) (got int) {
 		if it.timed {
 			lat.Add(it.latency)
 		}
-		if got == 0 || it.seq > out.seq {
+		if it.seq <= maxSeq && (!ok || it.seq > out.seq) {
 			*out = *it
+			ok = true
 		}
-		got++
+		taken++
 		b.head = (b.head + 1) % len(b.items)
 		b.n--
 	}
 	b.mu.Unlock()
-	return got
+	return taken, ok
 }
 
 // receiver reads the link on its own goroutine in wall-clock mode.
@@ -225,8 +228,8 @@ func (r *runner) wallclock(ctx context.Context) error {
 		}
 		r.fresh = false
 		r.latUS = nan
-		if k := rc.box.takeDue(int64(now.Sub(rc.base)), &in, r.latency); k > 0 {
-			if in.seq > appliedSeq {
+		if k, ok := rc.box.takeDue(int64(now.Sub(rc.base)), r.seq, &in, r.latency); k > 0 {
+			if ok && in.seq > appliedSeq {
 				appliedSeq = in.seq
 				lastValid = now
 				r.linkDown = false
