@@ -139,10 +139,9 @@ func TestGaitWithPolicy(t *testing.T) {
 // TestSlipAndStickAgain: a half-disk resting on its curved face is pushed
 // sideways at its centre (40 N for 50 ms) harder than static friction can
 // hold while it rolls (it needs about 4.6 N; μ_s m g = 2.9 N): the friction
-// alarm fires and,
-// with ContinueOnSlip, the
-// disk slides; once the push ends, kinetic friction stops the slip and the
-// foot sticks again (Coulomb's law, common practice).
+// alarm fires and, with ContinueOnSlip, the disk slides; once the push
+// ends, kinetic friction stops the slip and the foot sticks again
+// (Coulomb's law, common practice).
 func TestSlipAndStickAgain(t *testing.T) {
 	const R, mass = 0.5, 2.0
 	d := 4 * R / (3 * math.Pi)
