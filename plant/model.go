@@ -7,11 +7,12 @@ import "math"
 // (axis from hip to foot), −COMDist for the torso (axis from hip up).
 type link struct {
 	mass, rho, inertia float64
-	mr, d              float64 // m·ρ and m·ρ² + I, precomputed for the hot loop
+	mr, d, invD        float64 // m·ρ, m·ρ² + I and its inverse, precomputed for the hot loop
 }
 
 func newLink(mass, rho, inertia float64) link {
-	return link{mass: mass, rho: rho, inertia: inertia, mr: mass * rho, d: mass*rho*rho + inertia}
+	d := mass*rho*rho + inertia
+	return link{mass: mass, rho: rho, inertia: inertia, mr: mass * rho, d: d, invD: 1 / d}
 }
 
 // foot is the arc geometry of one leg: arc centre at hip + (L−R)·a(θ) +

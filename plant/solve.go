@@ -1,5 +1,7 @@
 package plant
 
+import "math"
+
 // trig holds a(θ) and a⊥(θ) of every link at one configuration, so that an
 // evaluation computes each sine and cosine once.
 type trig struct {
@@ -8,7 +10,9 @@ type trig struct {
 
 func (m *Model) trigOf(q *[MaxDOF]float64, t *trig) {
 	for k := 0; k < m.nLinks; k++ {
-		t.a[k], t.ap[k] = axis(q[2+k])
+		sn, cs := math.Sincos(q[2+k])
+		t.a[k] = [2]float64{sn, -cs}
+		t.ap[k] = [2]float64{cs, sn}
 	}
 }
 
@@ -159,7 +163,7 @@ func (m *Model) solveOneFoot(k int, tx, ty, nx, ny, jt, jn, bt, bn float64, B *[
 		if j == k {
 			x[2+j] = th
 		} else {
-			x[2+j] = (f[2+j] - B[j][0]*ax - B[j][1]*ay) / D[j]
+			x[2+j] = (f[2+j] - B[j][0]*ax - B[j][1]*ay) * m.links[j].invD
 		}
 	}
 	return true
@@ -179,7 +183,7 @@ func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, x *
 		if j == k {
 			continue
 		}
-		inv := 1 / D[j]
+		inv := l.invD
 		hxx -= B[j][0] * B[j][0] * inv
 		hxy -= B[j][0] * B[j][1] * inv
 		hyy -= B[j][1] * B[j][1] * inv
