@@ -828,17 +828,30 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 		}
 		now := time.Now()
 		wd := lastValid.Add(r.cfg.Watchdog)
-		if !now.Before(wd) {
-			r.watchdog(now.Sub(*lastValid))
-			return false
-		}
+		// Past the watchdog, look once more without waiting: after a stall
+		// of the rig itself the answer may already be in the buffer, and
+		// that is not the firmware's fault.
+		final := !now.Before(wd)
 		deadline := resendAt
 		if wd.Before(deadline) {
 			deadline = wd
 		}
 		err := r.conn.Recv(deadline, &r.msg)
+		if err == nil && r.validReply(lastValid) {
+			return true
+		}
+		if final || (errors.Is(err, bridges.ErrTimeout) && !time.Now().Before(wd)) {
+			r.watchdog(time.Since(*lastValid))
+			return false
+		}
 		switch {
 		case err == nil:
+			if r.msg.Type == protocol.TypeStop {
+				r.firmwareStop(r.msg.Stop)
+				return false
+			}
+			// A stale, dropped or corrupted command, a heartbeat, a repeated
+			// greeting: keep waiting.
 		case errors.Is(err, bridges.ErrTimeout):
 			if !time.Now().Before(resendAt) {
 				if r.rec != nil {
@@ -849,12 +862,10 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 				resendAt = time.Now().Add(r.cfg.Resend)
 			}
 			r.drainLinkEvents()
-			continue
 		case errors.Is(err, bridges.ErrDisconnected):
 			// The link lost its peer and is trying to get it back: the link
 			// events say so, and the watchdog decides whether to wait.
 			r.disconnected(err)
-			continue
 		case errors.Is(err, bridges.ErrClosed):
 			r.linkLost(0, "link to the firmware closed")
 			if r.outcome == "" {
@@ -863,46 +874,45 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			return false
 		case errors.As(err, &r.fe):
 			r.badFrame(r.fe.Reason)
-			continue
 		default:
 			// An error the link does not classify: treat it as an outage.
 			// If it lasts, the watchdog ends the run; the short pause keeps
 			// a link that fails at once from spinning the loop.
 			r.disconnected(err)
 			time.Sleep(time.Millisecond)
-			continue
-		}
-		switch r.msg.Type {
-		case protocol.TypeCommand:
-			if r.msg.Seq != r.seq {
-				r.counts.StaleCommands++
-				continue
-			}
-			if r.chance(FaultDrop, r.s.T, r.frng) {
-				r.counts.DroppedCommand++
-				continue
-			}
-			if r.chance(FaultCorrupt, r.s.T, r.frng) {
-				r.counts.Corrupted++
-				r.badFrame("injected corruption (a real link's CRC check rejects such a frame)")
-				continue
-			}
-			*lastValid = time.Now()
-			r.linkDown = false
-			delay := r.latencyDelay(r.s.T, r.frng)
-			k := int64(math.Round(delay.Seconds() * r.cfg.TickHz))
-			if !r.pending.push(r.tick+k, &r.msg.Command) {
-				r.counts.DroppedCommand++
-			}
-			return true
-		case protocol.TypeStop:
-			r.firmwareStop(r.msg.Stop)
-			return false
-		default:
-			// Heartbeats and repeated greetings carry no torque.
 		}
 	}
 	return false
+}
+
+// validReply checks a received message against the awaited sequence number
+// and the drop and corrupt faults. A valid command is queued for its tick
+// (now, or later under a latency fault) and resets the watchdog.
+func (r *runner) validReply(lastValid *time.Time) bool {
+	if r.msg.Type != protocol.TypeCommand {
+		return false
+	}
+	if r.msg.Seq != r.seq {
+		r.counts.StaleCommands++
+		return false
+	}
+	if r.chance(FaultDrop, r.s.T, r.frng) {
+		r.counts.DroppedCommand++
+		return false
+	}
+	if r.chance(FaultCorrupt, r.s.T, r.frng) {
+		r.counts.Corrupted++
+		r.badFrame("injected corruption (a real link's CRC check rejects such a frame)")
+		return false
+	}
+	*lastValid = time.Now()
+	r.linkDown = false
+	delay := r.latencyDelay(r.s.T, r.frng)
+	k := int64(math.Round(delay.Seconds() * r.cfg.TickHz))
+	if !r.pending.push(r.tick+k, &r.msg.Command) {
+		r.counts.DroppedCommand++
+	}
+	return true
 }
 
 // sendState sends the tick's state unless a drop fault eats it.
