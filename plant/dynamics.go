@@ -40,14 +40,21 @@ func (m *Model) footGeometryOf(s *State, q, v *[MaxDOF]float64, tr *trig, i int,
 // region −1 searches the closest terrain point from segment hint; 0 uses
 // the line of segment hint; 1 the vertex at the end of segment hint.
 func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, region int8, g *footGeom) {
-	c, dc, ddc := m.footCentreTrig(q, tr, i)
+	// The arc centre and its first and second derivatives with respect to
+	// the leg angle, written out here (as in footCentreTrig) because this
+	// is the innermost loop.
+	f := &m.feet[i]
+	a, ap := &tr.a[i], &tr.ap[i]
+	kk := f.length - f.radius
+	c := [2]float64{q[0] + kk*a[0] + f.offset*ap[0], q[1] + kk*a[1] + f.offset*ap[1]}
+	dc := [2]float64{kk*ap[0] - f.offset*a[0], kk*ap[1] - f.offset*a[1]}
+	ddc := [2]float64{-kk*a[0] - f.offset*ap[0], -kk*a[1] - f.offset*ap[1]}
 	g.c = c
 	if region < 0 {
 		m.closest(c, hint, &g.sp)
 	} else {
 		m.surfaceInRegion(c, hint, region == 1, &g.sp)
 	}
-	f := &m.feet[i]
 	g.gap = g.sp.dist - f.radius
 	t, nn := g.sp.t, g.sp.n
 	k := 2 + i
