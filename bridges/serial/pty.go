@@ -45,9 +45,11 @@ func NewPty() (*Pty, error) {
 // pollable returns a non-blocking copy of f handled by Go's poller, and
 // closes f. pty.Open leaves the master in blocking mode (it calls Fd()),
 // and a blocking read cannot be interrupted: Close would then never take
-// effect while a reader waits, and a test could not pull the cable.
+// effect while a reader waits, and a test could not pull the cable. The copy
+// keeps close-on-exec (plain dup clears it): a firmware process started by
+// the rig must not inherit the master, or it would never see the rig hang up.
 func pollable(f *os.File) (*os.File, error) {
-	fd, err := unix.Dup(int(f.Fd()))
+	fd, err := unix.FcntlInt(f.Fd(), unix.F_DUPFD_CLOEXEC, 0)
 	f.Close()
 	if err != nil {
 		return nil, err
