@@ -46,34 +46,19 @@ type runResult struct {
 	Result  hil.Result
 }
 
-// resolveScenario loads a scenario by file path, or by built-in name (with or
-// without the builtin: prefix) when no such file exists.
+// resolveScenario loads a scenario by file path or built-in name; every
+// failure is a usage error (exit code 2).
 func resolveScenario(arg string) (*scenarios.Scenario, error) {
-	if name, ok := strings.CutPrefix(arg, scenarios.BuiltinPrefix); ok {
-		return loadBuiltin(name)
-	}
-	if _, err := os.Stat(arg); err == nil {
-		sc, err := scenarios.Load(arg)
-		if err != nil {
-			return nil, usageError{err}
-		}
-		return sc, nil
-	} else if strings.ContainsAny(arg, `/\`) || strings.HasSuffix(arg, ".yaml") || strings.HasSuffix(arg, ".yml") {
-		return nil, badUsage("scenario %s: no such file", arg)
-	}
-	return loadBuiltin(arg)
-}
-
-func loadBuiltin(name string) (*scenarios.Scenario, error) {
-	sc, err := scenarios.LoadBuiltin(name)
+	sc, err := scenarios.Resolve(arg)
 	if err != nil {
-		var names []string
-		for _, e := range scenarios.Library() {
-			names = append(names, e.Name)
-		}
-		return nil, badUsage("scenario %q: not a file and not a built-in scenario (built-in: %s)", name, strings.Join(names, ", "))
+		return nil, usageError{err}
 	}
 	return sc, nil
+}
+
+// loadBuiltin loads a scenario of the built-in library.
+func loadBuiltin(name string) (*scenarios.Scenario, error) {
+	return resolveScenario(scenarios.BuiltinPrefix + name)
 }
 
 // initialState gives the state a scenario starts from: the explicit one, or
