@@ -53,7 +53,6 @@ import (
 	"sync/atomic"
 
 	mochi "github.com/mochi-mqtt/server/v2"
-	"github.com/mochi-mqtt/server/v2/listeners"
 )
 
 // DefaultAddr is where the broker listens when Config.Addr is empty: the
@@ -120,7 +119,7 @@ type Config struct {
 // Broker is a running embedded broker.
 type Broker struct {
 	server   *mochi.Server
-	listener *listeners.TCP
+	listener *tcpListener
 	rules    *rules
 	closed   atomic.Bool
 }
@@ -178,7 +177,7 @@ func Start(cfg Config) (*Broker, error) {
 	if err := server.AddHook(r, nil); err != nil {
 		return nil, fmt.Errorf("broker: installing access rules: %w", err)
 	}
-	l := listeners.NewTCP(listeners.Config{ID: "gaitrig", Address: cfg.Addr, TLSConfig: tlsCfg})
+	l := newTCPListener("gaitrig", cfg.Addr, tlsCfg)
 	if err := server.AddListener(l); err != nil {
 		return nil, fmt.Errorf("broker: cannot listen on %s: %w", cfg.Addr, err)
 	}

@@ -563,3 +563,43 @@ func BenchmarkAllowedCheck(b *testing.B) {
 		}
 	}
 }
+
+// TestCloseWhileClientsConnect closes the broker while clients are still
+// connecting. Under -race it checks that Close and the accept path do not
+// race (mochi's own listener did); in any mode Close must return.
+func TestCloseWhileClientsConnect(t *testing.T) {
+	for round := 0; round < 5; round++ {
+		b, err := Start(Config{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		addr := b.Addr()
+		var wg sync.WaitGroup
+		for g := 0; g < 4; g++ {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				for i := 0; i < 20; i++ {
+					c, err := net.DialTimeout("tcp", addr, time.Second)
+					if err != nil {
+						return // closed
+					}
+					_, _ = c.Write([]byte{0x10, 0x00}) // start of a CONNECT, then hang up
+					_ = c.Close()
+				}
+			}()
+		}
+		time.Sleep(time.Duration(round) * time.Millisecond)
+		closed := make(chan error, 1)
+		go func() { closed <- b.Close() }()
+		select {
+		case err := <-closed:
+			if err != nil {
+				t.Fatalf("Close: %v", err)
+			}
+		case <-time.After(wait):
+			t.Fatal("Close did not return")
+		}
+		wg.Wait()
+	}
+}
