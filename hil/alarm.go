@@ -3,6 +3,8 @@ package hil
 import (
 	"encoding/json"
 	"math"
+	"strconv"
+	"sync/atomic"
 	"time"
 
 	"gaitrig/record"
@@ -32,13 +34,61 @@ type alarmer struct {
 	suppressed map[string]int
 	trip       *alarm
 	tripKind   string
-	sinkFailed bool
 	logErr     error
+
+	// The sink is fed through a queue and its own goroutine: publishing
+	// over MQTT at QoS 1 waits for the broker, and the tick loop must not.
+	sinkQ       chan []byte
+	sinkDone    chan struct{}
+	sinkFailed  atomic.Bool
+	sinkDropped int
 }
 
+// sinkQueue is how many alarms may wait for the sink; more are dropped from
+// the sink (never from the record) and counted.
+const sinkQueue = 256
+
+// sinkDrain is how long the end of a run waits for queued alarms to reach
+// the sink.
+const sinkDrain = 2 * time.Second
+
 func newAlarmer(cfg *Config, rec *record.Writer) *alarmer {
-	return &alarmer{cfg: cfg, rec: rec, counts: map[string]int{},
+	a := &alarmer{cfg: cfg, rec: rec, counts: map[string]int{},
 		lastLogged: map[string]float64{}, suppressed: map[string]int{}}
+	if cfg.Alarms != nil {
+		a.sinkQ = make(chan []byte, sinkQueue)
+		a.sinkDone = make(chan struct{})
+		go a.publish(cfg.Alarms)
+	}
+	return a
+}
+
+// publish forwards queued alarms to the sink until the queue closes.
+func (a *alarmer) publish(s AlarmSink) {
+	defer close(a.sinkDone)
+	for b := range a.sinkQ {
+		if err := s.PublishAlarm(b); err != nil && !a.sinkFailed.Swap(true) && a.cfg.Log != nil {
+			a.cfg.Log("alarm sink failed, alarms stay in the run record only: " + err.Error())
+		}
+	}
+}
+
+// close ends the sink queue and waits a bounded time for it to drain.
+func (a *alarmer) close() {
+	if a.sinkQ == nil {
+		return
+	}
+	close(a.sinkQ)
+	select {
+	case <-a.sinkDone:
+	case <-time.After(sinkDrain):
+		if a.cfg.Log != nil {
+			a.cfg.Log("alarm sink still busy after " + sinkDrain.String() + "; the run record holds every alarm")
+		}
+	}
+	if a.sinkDropped > 0 && a.cfg.Log != nil {
+		a.cfg.Log(strconv.Itoa(a.sinkDropped) + " alarms did not fit the sink queue; the run record holds every alarm")
+	}
 }
 
 // occur counts one occurrence of kind at simulated time t and says whether
@@ -114,16 +164,15 @@ func (a *alarmer) write(al alarm, sev record.Severity) {
 			a.logErr = err
 		}
 	}
-	if a.cfg.Alarms != nil && sev != record.Info {
+	if a.sinkQ != nil && sev != record.Info {
 		b, err := json.Marshal(sinkEvent(ev))
-		if err == nil {
-			err = a.cfg.Alarms.PublishAlarm(b)
+		if err != nil {
+			return // cannot happen: sinkEvent holds only JSON-safe values
 		}
-		if err != nil && !a.sinkFailed {
-			a.sinkFailed = true
-			if a.cfg.Log != nil {
-				a.cfg.Log("alarm sink failed, alarms stay in the run record only: " + err.Error())
-			}
+		select {
+		case a.sinkQ <- b:
+		default:
+			a.sinkDropped++
 		}
 	}
 }

@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -416,4 +417,42 @@ func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
 			t.Logf("%s: %s after %d ticks; alarms %v; link %+v", clock, res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms, res.Link)
 		})
 	}
+}
+
+// stuckSink never returns from its first publish until released, then fails.
+type stuckSink struct{ release chan struct{} }
+
+func (s *stuckSink) PublishAlarm([]byte) error {
+	<-s.release
+	return errTest("broker gone")
+}
+
+// A sink that hangs does not hold up the loop: the run ends, the record has
+// every alarm, and the log says the sink lagged.
+func TestStuckAlarmSinkDoesNotBlockTheLoop(t *testing.T) {
+	cfg, run := shortRun(t, 300)
+	sk := &stuckSink{release: make(chan struct{})}
+	defer close(sk.release)
+	cfg.Alarms = sk
+	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: scenarios.SeverityWarn}
+	cfg.AlarmInterval = 1e-9 // log every occurrence
+	var logs []string
+	cfg.Log = func(l string) { logs = append(logs, l) }
+	start := time.Now()
+	res, _, dir := run(cfg, scripted(func(seq uint32, c *protocol.Command) {
+		if seq%10 == 0 {
+			c.Torque[0] = float32(math.NaN())
+		}
+	}))
+	if res.Summary.Ticks != 300 {
+		t.Fatalf("%d ticks (%s)", res.Summary.Ticks, res.Summary.Reason)
+	}
+	if n := len(eventsOf(t, dir, scenarios.AlarmBadTorque)); n != 30 {
+		t.Fatalf("%d bad_torque lines in the record, want 30", n)
+	}
+	joined := strings.Join(logs, "\n")
+	if !strings.Contains(joined, "alarm sink still busy") {
+		t.Fatalf("log does not mention the stuck sink:\n%s", joined)
+	}
+	t.Logf("run with a stuck sink took %v", time.Since(start).Round(time.Millisecond))
 }

@@ -986,6 +986,7 @@ func (r *runner) finish(runErr error) (Result, error) {
 	r.al.info("run_end", r.tick, r.s.T, "run ended: "+string(sum.Outcome)+reasonSuffix(sum.Reason),
 		map[string]float64{"steps": float64(sum.Steps), "ticks": float64(sum.Ticks)})
 	res.Summary = sum
+	r.al.close()
 	var errs []error
 	if runErr != nil {
 		errs = append(errs, runErr)
