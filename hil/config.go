@@ -179,8 +179,11 @@ type StepInfo struct {
 }
 
 // AlarmSink receives alarms as they are logged, as one JSON object each
-// (the same object as the events.jsonl line). A sink that fails is noted in
-// the run log once; the run goes on, the record is the authority.
+// (the same object as the events.jsonl line, non-finite values as strings).
+// PublishAlarm is called from a goroutine of its own, fed by a bounded
+// queue, so a sink that waits for a broker never holds up a tick. A sink
+// that fails or lags is noted in the run log; the run goes on, and the
+// record is the authority.
 type AlarmSink interface {
 	PublishAlarm(jsonObject []byte) error
 }
