@@ -227,11 +227,49 @@ func TestJSONDebugMode(t *testing.T) {
 			if err := json.Unmarshal([]byte(l), &doc); err != nil || doc["type"] != "state" {
 				t.Fatalf("mosquitto_sub saw %q, want the JSON form of a state (%v)", l, err)
 			}
+			// mosquitto_pub now stands in for the firmware, under its
+			// client id, so the firmware client leaves first.
+			if err := f.Close(); err != nil {
+				t.Fatal(err)
+			}
+			jsonFromOutside(t, r, embeddedPort(t, b))
 			return
 		case <-time.After(100 * time.Millisecond):
 		}
 	}
 	t.Fatal("mosquitto_sub never saw a JSON state")
+}
+
+// jsonFromOutside types commands by hand with mosquitto_pub, as a firmware
+// engineer might while debugging, and checks what the rig makes of them.
+func jsonFromOutside(t *testing.T, r *Conn, port int) {
+	cases := []struct {
+		name, payload string
+		want          string // "" means a command with seq 8 and torque 1.5
+	}{
+		{"valid command", `{"type":"command","seq":8,"joints":1,"status":0,"torque":[1.5]}`, ""},
+		{"not JSON", `torque 1.5 please`, "rejected frame"},
+		{"unknown field", `{"type":"command","seq":9,"joints":1,"status":0,"torque":[1.5],"speed":3}`, "rejected frame"},
+		{"too few torques", `{"type":"command","seq":9,"joints":2,"status":0,"torque":[1.5]}`, "rejected frame"},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			mosquittoPub(t, port, "-i", "firmware.b1", "-t", "gaitrig/b1/command", "-m", tc.payload)
+			var m protocol.Message
+			err := r.Recv(time.Now().Add(wait), &m)
+			if tc.want == "" {
+				if err != nil || m.Type != protocol.TypeCommand || m.Seq != 8 || m.Command.Torque[0] != 1.5 {
+					t.Fatalf("Recv = %v, %+v", err, m)
+				}
+				return
+			}
+			var fe *bridges.FrameError
+			if !errors.As(err, &fe) || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("Recv = %v, want a FrameError", err)
+			}
+			t.Logf("%s: %v", tc.name, err)
+		})
+	}
 }
 
 func TestBadFramesAndWrongDirection(t *testing.T) {
@@ -653,6 +691,7 @@ func TestCredentials(t *testing.T) {
 				if msg := err.Error(); !strings.Contains(msg, "refused") || !strings.Contains(msg, "username or password") {
 					t.Fatalf("error %q does not explain the refused login", msg)
 				}
+				t.Logf("user %q: %v", bad.user, err)
 			}
 		})
 	}
