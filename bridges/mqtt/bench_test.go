@@ -35,9 +35,14 @@ func echoFirmware(f *Conn) <-chan struct{} {
 }
 
 // benchRoundTrip measures state out, command back through the broker at
-// url. Allocations include both paho clients (and the broker, when it runs
-// in this process).
-func benchRoundTrip(b *testing.B, url string) {
+// url, back to back. Allocations include both paho clients (and the broker,
+// when it runs in this process).
+func benchRoundTrip(b *testing.B, url string) { benchPaced(b, url, 0) }
+
+// benchPaced is benchRoundTrip with one state per period (0: back to
+// back). With a period it also reports the share of round trips longer than
+// the period ("miss-%"): at that rate those commands would be late.
+func benchPaced(b *testing.B, url string, period time.Duration) {
 	r, f := pair(b, url, "bench")
 	done := echoFirmware(f)
 	defer func() { _ = f.Close(); <-done }()
@@ -47,7 +52,12 @@ func benchRoundTrip(b *testing.B, url string) {
 	var in protocol.Message
 	b.ReportAllocs()
 	b.ResetTimer()
+	next := time.Now()
 	for i := 0; i < b.N; i++ {
+		if period > 0 {
+			next = next.Add(period)
+			time.Sleep(time.Until(next))
+		}
 		st.Seq = uint32(i + 1)
 		t0 := time.Now()
 		if err := r.Send(&st); err != nil {
@@ -69,6 +79,17 @@ func benchRoundTrip(b *testing.B, url string) {
 	b.ReportMetric(us(0.50), "p50-µs")
 	b.ReportMetric(us(0.99), "p99-µs")
 	b.ReportMetric(us(1), "max-µs")
+	if period > 0 {
+		late := len(lat) - sort.Search(len(lat), func(i int) bool { return lat[i] > period })
+		b.ReportMetric(100*float64(late)/float64(len(lat)), "miss-%")
+	}
+}
+
+// BenchmarkRoundTripEmbedded1kHz sends one state per millisecond, as a
+// wall-clock run at 1 kHz does; -benchtime=10000x is ten seconds of ticks.
+func BenchmarkRoundTripEmbedded1kHz(b *testing.B) {
+	br := embedded(b, broker.Config{})
+	benchPaced(b, "tcp://"+br.Addr(), time.Millisecond)
 }
 
 func BenchmarkRoundTripEmbedded(b *testing.B) {
@@ -161,4 +182,11 @@ func BenchmarkRecvPath(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
+}
+
+// BenchmarkRoundTripMosquitto1kHz is the 1 kHz paced round trip through
+// Mosquitto with set_tcp_nodelay.
+func BenchmarkRoundTripMosquitto1kHz(b *testing.B) {
+	m := startMosquitto(b, "set_tcp_nodelay true\n")
+	benchPaced(b, m.url("tcp"), time.Millisecond)
 }
