@@ -45,12 +45,18 @@ func (r *Reading) finite() bool {
 	return ok(r.Pitch) && ok(r.PitchRate)
 }
 
+// GreetEvery is how often Serve repeats its greeting until the rig answers
+// with its configuration.
+const GreetEvery = 250 * time.Millisecond
+
 // ErrRigStopped is wrapped by the error Serve returns when the rig ended
 // the run with a reason other than a normal end.
 var ErrRigStopped = errors.New("reference: the rig stopped the run")
 
 // Serve runs the firmware side of the protocol over conn, exactly as a
-// board would: send the greeting, take the rig's configuration, then answer
+// board would: send the greeting (repeated every GreetEvery until the rig
+// answers, since a rig that starts listening late misses the first), take
+// the rig's configuration, then answer
 // every State with the Command that echoes its sequence number, until the
 // rig sends Stop. A state with a NaN or infinite reading is answered with
 // zero torques and the StatusFault bit. The firmware's torque limit is
@@ -91,19 +97,42 @@ func Serve(conn bridges.Conn, o Options) error {
 	if err := conn.Send(&m); err != nil {
 		return fmt.Errorf("reference: sending the greeting: %w", err)
 	}
+	greeting := m
 	var out protocol.Message
 	out.Type = protocol.TypeCommand
 	var fe *bridges.FrameError
 	configured := false
 	var tau [2]float64
+	lastHeard := time.Now()
 	for {
-		err := conn.Recv(time.Now().Add(o.IdleTimeout), &m)
+		// Until the rig configures it, the firmware repeats its greeting
+		// every GreetEvery, as a board that boots before the rig listens
+		// must: over MQTT or a freshly opened port the first one may be
+		// lost.
+		deadline := lastHeard.Add(o.IdleTimeout)
+		if !configured {
+			if next := time.Now().Add(GreetEvery); next.Before(deadline) {
+				deadline = next
+			}
+		}
+		err := conn.Recv(deadline, &m)
 		switch {
 		case err == nil:
+			lastHeard = time.Now()
 		case errors.As(err, &fe):
 			continue // a board drops a bad frame and waits for the next one
 		case errors.Is(err, bridges.ErrTimeout):
-			return fmt.Errorf("reference: nothing from the rig for %v", o.IdleTimeout)
+			if time.Since(lastHeard) >= o.IdleTimeout {
+				return fmt.Errorf("reference: nothing from the rig for %v", o.IdleTimeout)
+			}
+			if !configured {
+				if err := conn.Send(&greeting); err != nil && errors.Is(err, bridges.ErrClosed) {
+					return fmt.Errorf("reference: link: %w", err)
+				}
+			}
+			continue
+		case errors.Is(err, bridges.ErrDisconnected):
+			continue // the link is getting its peer back; the idle timeout decides
 		default:
 			return fmt.Errorf("reference: link: %w", err)
 		}

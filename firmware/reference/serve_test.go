@@ -212,3 +212,37 @@ func TestCompassLawSigns(t *testing.T) {
 		}
 	}
 }
+
+// A rig that starts listening late still gets a greeting: Serve repeats it
+// until the configuration arrives, and stops repeating afterwards.
+func TestServeRepeatsGreetingUntilConfigured(t *testing.T) {
+	rig, fw := inproc.Pair()
+	defer rig.Close()
+	done := make(chan error, 1)
+	go func() { done <- Serve(fw, Options{IdleTimeout: 2 * time.Second}) }()
+	var m protocol.Message
+	greetings := 0
+	deadline := time.Now().Add(2 * time.Second)
+	for greetings < 3 {
+		if err := rig.Recv(deadline, &m); err != nil {
+			t.Fatalf("after %d greetings: %v", greetings, err)
+		}
+		if m.Type == protocol.TypeGreeting {
+			greetings++
+		}
+	}
+	cfg := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{Joints: 2, TickHz: 1000}}
+	rig.Send(&cfg)
+	// Drain greetings sent before the config landed, then expect silence.
+	time.Sleep(50 * time.Millisecond)
+	for rig.Recv(time.Now(), &m) == nil {
+	}
+	if err := rig.Recv(time.Now().Add(3*GreetEvery), &m); err == nil {
+		t.Fatalf("got a %#x after the configuration, want silence until a state", m.Type)
+	}
+	stop := protocol.Message{Type: protocol.TypeStop}
+	rig.Send(&stop)
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+}
