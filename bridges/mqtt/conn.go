@@ -125,6 +125,8 @@ type Conn struct {
 	connected atomic.Bool
 	firstDone atomic.Bool
 	mu        sync.Mutex // guards the fields below
+	down      bool       // a gap has started and not yet ended
+	announced bool       // its "disconnected" event has been sent
 	lostAt    time.Time
 	lostErr   error
 	status    []byte // last status from PublishStatus, republished on reconnect
@@ -183,7 +185,8 @@ func Dial(cfg Config) (*Conn, error) {
 		SetMaxReconnectInterval(cfg.MaxReconnectInterval).
 		SetCustomOpenConnectionFn(c.open).
 		SetOnConnectHandler(c.onConnect).
-		SetConnectionLostHandler(c.onLost)
+		SetConnectionLostHandler(c.onLost).
+		SetReconnectingHandler(c.onReconnecting)
 	if cfg.Role == RoleRig {
 		opts.SetBinaryWill(c.statusTopic, c.statusJSON("offline", "connection lost"), 1, true)
 	}
@@ -292,7 +295,14 @@ func (c *Conn) onConnect(cl paho.Client) {
 	}
 	c.mu.Lock()
 	gap := time.Since(c.lostAt)
+	announce := !c.announced
+	c.down, c.announced = false, false
 	c.mu.Unlock()
+	if announce {
+		// paho runs its lost-connection callback on a goroutine of its
+		// own, which has not run yet; keep the events in order.
+		c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s", c.url.Host)})
+	}
 	c.connected.Store(true)
 	c.reconnects.Add(1)
 	c.event(bridges.LinkEvent{Kind: "reconnected", Gap: gap})
@@ -316,14 +326,41 @@ func (c *Conn) subscribe(cl paho.Client) error {
 	return nil
 }
 
-// onLost records the start of a gap and reports it.
-func (c *Conn) onLost(_ paho.Client, err error) {
+// goneDown marks the start of a gap, once per gap. Both paho callbacks
+// below call it: the reconnect callback runs in order before any
+// reconnection, the lost-connection callback (which knows the cause) on a
+// goroutine of its own that may run late.
+func (c *Conn) goneDown() {
 	c.connected.Store(false)
+	if !c.down {
+		c.down, c.announced = true, false
+		c.lostAt, c.lostErr = time.Now(), nil
+	}
+}
+
+// onReconnecting runs before every reconnection attempt.
+func (c *Conn) onReconnecting(paho.Client, *paho.ClientOptions) {
 	c.mu.Lock()
-	c.lostAt = time.Now()
-	c.lostErr = err
+	c.goneDown()
 	c.mu.Unlock()
-	c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s: %w", c.url.Host, err)})
+}
+
+// onLost reports the start of a gap with its cause, unless the link is
+// already back (then onConnect has reported the gap).
+func (c *Conn) onLost(cl paho.Client, err error) {
+	c.mu.Lock()
+	if !c.down && cl.IsConnectionOpen() {
+		c.mu.Unlock()
+		return
+	}
+	c.goneDown()
+	c.lostErr = err
+	announce := !c.announced
+	c.announced = true
+	c.mu.Unlock()
+	if announce {
+		c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s: %w", c.url.Host, err)})
+	}
 }
 
 func (c *Conn) event(e bridges.LinkEvent) {
@@ -366,8 +403,12 @@ func (c *Conn) notConnected(what string) error {
 	if c.lostAt.IsZero() {
 		return fmt.Errorf("mqtt: %s not sent: not connected to broker %s", what, c.url.Host)
 	}
-	return fmt.Errorf("mqtt: %s not sent: connection to broker %s lost %v ago (%v); reconnecting",
-		what, c.url.Host, time.Since(c.lostAt).Round(time.Millisecond), c.lostErr)
+	cause := ""
+	if c.lostErr != nil {
+		cause = " (" + c.lostErr.Error() + ")"
+	}
+	return fmt.Errorf("mqtt: %s not sent: connection to broker %s lost %v ago%s; reconnecting",
+		what, c.url.Host, time.Since(c.lostAt).Round(time.Millisecond), cause)
 }
 
 // SendFrame publishes one already encoded frame as it is: stop frames (type
