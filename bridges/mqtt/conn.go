@@ -28,9 +28,10 @@
 // when it runs without accounts; with accounts, the login decides. The rig's
 // client sets a retained last will on R/status,
 // {"state":"offline","rig":...,"client":...,"reason":"connection lost"},
-// publishes {"state":"online",...} (or the last status given to
-// PublishStatus) retained on every (re)connect, and a retained
-// {"state":"offline",...,"reason":"closed"} on Close. The firmware role sets
+// publishes {"state":"online","rig":...,"client":...,"time":...} (or the
+// last status given to PublishStatus) retained on every (re)connect, and a
+// retained {"state":"offline",...,"reason":"closed","time":...} on Close;
+// "time" is UTC in RFC 3339 form. The firmware role sets
 // no will and may not publish alarms or status.
 //
 // Client ids must be unique on a broker: by the MQTT rules a second client
@@ -131,8 +132,7 @@ type Conn struct {
 	lostErr   error
 	status    []byte // last status from PublishStatus, republished on reconnect
 	first     chan error
-	echo      [echoSlots][]byte
-	echoLen   [echoSlots]int
+	echo      [echoSlots][]byte // our recent stop payloads; empty slot = none
 	echoNext  int
 
 	framesSent, framesReceived, frameErrors atomic.Uint64
@@ -188,7 +188,7 @@ func Dial(cfg Config) (*Conn, error) {
 		SetConnectionLostHandler(c.onLost).
 		SetReconnectingHandler(c.onReconnecting)
 	if cfg.Role == RoleRig {
-		opts.SetBinaryWill(c.statusTopic, c.statusJSON("offline", "connection lost"), 1, true)
+		opts.SetBinaryWill(c.statusTopic, c.statusJSON("offline", "connection lost", false), 1, true)
 	}
 	c.client = paho.NewClient(opts)
 
@@ -272,7 +272,7 @@ func (c *Conn) onConnect(cl paho.Client) {
 		status := c.status
 		c.mu.Unlock()
 		if status == nil {
-			status = c.statusJSON("online", "")
+			status = c.statusJSON("online", "", true)
 		}
 		tok := cl.Publish(c.statusTopic, 1, true, status)
 		if !tok.WaitTimeout(c.cfg.ConnectTimeout) {
@@ -472,7 +472,6 @@ func (c *Conn) await(tok paho.Token, what string) error {
 func (c *Conn) rememberStop(frame []byte) {
 	c.mu.Lock()
 	c.echo[c.echoNext] = append(c.echo[c.echoNext][:0], frame...)
-	c.echoLen[c.echoNext] = len(frame)
 	c.echoNext = (c.echoNext + 1) % echoSlots
 	c.mu.Unlock()
 }
@@ -482,8 +481,8 @@ func (c *Conn) isOwnEcho(p []byte) bool {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	for i := range c.echo {
-		if c.echoLen[i] > 0 && bytes.Equal(c.echo[i][:c.echoLen[i]], p) {
-			c.echoLen[i] = 0
+		if len(c.echo[i]) > 0 && bytes.Equal(c.echo[i], p) {
+			c.echo[i] = c.echo[i][:0]
 			return true
 		}
 	}
@@ -593,15 +592,20 @@ func (c *Conn) publishJSON(what, topic string, doc []byte, retain bool) error {
 	return c.await(tok, what+" on "+topic)
 }
 
-// statusJSON builds the rig's own status documents.
-func (c *Conn) statusJSON(state, reason string) []byte {
+// statusJSON builds the rig's own status documents; stamped ones carry the
+// current time (the last will does not: it is written at connect time but
+// published whenever the connection dies).
+func (c *Conn) statusJSON(state, reason string, stamped bool) []byte {
 	doc := struct {
 		State  string `json:"state"`
 		Rig    string `json:"rig"`
 		Client string `json:"client"`
 		Reason string `json:"reason,omitempty"`
-		Time   string `json:"time"`
-	}{state, c.cfg.Rig, c.cfg.ClientID, reason, time.Now().UTC().Format(time.RFC3339Nano)}
+		Time   string `json:"time,omitempty"`
+	}{State: state, Rig: c.cfg.Rig, Client: c.cfg.ClientID, Reason: reason}
+	if stamped {
+		doc.Time = time.Now().UTC().Format(time.RFC3339Nano)
+	}
 	b, _ := json.Marshal(doc) // a struct of strings always marshals
 	return b
 }
@@ -614,7 +618,7 @@ func (c *Conn) Close() error {
 	c.once.Do(func() {
 		if c.cfg.Role == RoleRig && c.connected.Load() {
 			// Bounded short: if the broker is gone, its answer never comes.
-			tok := c.client.Publish(c.statusTopic, 1, true, c.statusJSON("offline", "closed"))
+			tok := c.client.Publish(c.statusTopic, 1, true, c.statusJSON("offline", "closed", true))
 			if !tok.WaitTimeout(closeWait) {
 				err = fmt.Errorf("mqtt: broker %s did not acknowledge the offline status within %v", c.url.Host, closeWait)
 			} else if tok.Error() != nil {
