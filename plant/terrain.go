@@ -78,7 +78,12 @@ func (m *Model) closest(c [2]float64, hint int, sp *surfacePoint) {
 	for dir := -1; dir <= 1; dir += 2 {
 		for j := hint + dir; j >= 0 && j <= last; j += dir {
 			m.closestOnSegment(j, c, &trial)
-			if trial.dist < sp.dist-1e-15 || (trial.dist <= sp.dist && !trial.clamped && sp.clamped) {
+			// Compare unsigned distances: the sign of a clamped (vertex)
+			// distance comes from that segment's own line, which says
+			// nothing about points far from it; a distant downhill segment
+			// whose line passes above the query point would otherwise win
+			// with a large negative distance.
+			if a, b := math.Abs(trial.dist), math.Abs(sp.dist); a < b-1e-15 || (a <= b && !trial.clamped && sp.clamped) {
 				*sp = trial
 				continue
 			}

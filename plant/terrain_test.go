@@ -107,3 +107,33 @@ func TestRollingIntoConcaveCorner(t *testing.T) {
 	}
 	t.Fatal("the disk never reached the corner")
 }
+
+// TestStandBeforeAHill: a hill further along (up, then down) must not pull
+// the contact search away from the ground under the foot. The downhill
+// segment's line passes above the foot, so its far vertex has a large
+// negative signed distance; the nearest ground is the one under the foot.
+func TestStandBeforeAHill(t *testing.T) {
+	p := DemoParams()
+	p.Terrain = Terrain{Start: [2]float64{-1, 0}, Segments: []Segment{
+		{Length: 3, MuStatic: 0.8, MuKinetic: 0.6},
+		{Length: 4, Slope: 0.03, MuStatic: 0.8, MuKinetic: 0.6},
+		{Length: 4, Slope: -0.03, MuStatic: 0.8, MuKinetic: 0.6},
+		{Length: 50, MuStatic: 0.8, MuKinetic: 0.6}}}
+	m, err := New(p, Options{IgnoreScuff: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := m.Stand(0, 0, [2]float64{0.25, -0.25}, -0.1, -0.9, 0.5, 0)
+	if err != nil {
+		t.Fatalf("cannot stand in front of a hill: %v", err)
+	}
+	var r TickResult
+	in := Input{}
+	m.Step(&s, &in, 1e-3, &r)
+	if r.Contacts[0].Segment != 0 {
+		t.Errorf("stance foot on segment %d, want 0 (the flat ground under it)", r.Contacts[0].Segment)
+	}
+	if g := r.Contacts[0].Gap; math.Abs(g) > 1e-9 {
+		t.Errorf("stance foot gap %.3g m after a tick, want 0", g)
+	}
+}
