@@ -75,6 +75,7 @@ import (
 	"fmt"
 	"net"
 	"net/url"
+	"os"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -226,8 +227,16 @@ func (c *Conn) explainConnect(err error) error {
 		return fmt.Errorf("mqtt: broker refused %s: not authorized (wrong username or password, or this client may not connect): %w", who, err)
 	case errors.Is(err, packets.ErrorRefusedIDRejected):
 		return fmt.Errorf("mqtt: broker %s rejected the client id: %w", who, err)
+	case isReadTimeout(err):
+		return fmt.Errorf("mqtt: cannot connect to %s: the connection was accepted but no MQTT answer came within %v (a hung broker, or not an MQTT port?): %w", who, c.cfg.ConnectTimeout, err)
 	}
 	return fmt.Errorf("mqtt: cannot connect to %s: %w", who, err)
+}
+
+// isReadTimeout reports a connection that was made but stayed silent.
+func isReadTimeout(err error) bool {
+	var op *net.OpError
+	return errors.As(err, &op) && op.Op == "read" && errors.Is(err, os.ErrDeadlineExceeded)
 }
 
 // open dials the broker for paho, through cfg.Dialer when set, and adds TLS

@@ -5,6 +5,7 @@ import (
 	"crypto/x509"
 	"encoding/json"
 	"errors"
+	"net"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -806,4 +807,40 @@ func TestConfigDefaults(t *testing.T) {
 	if err != nil || u.Host != "broker.lab:8883" || cfg.ClientID != "firmware.b1" {
 		t.Fatalf("TLS defaults: %v %v %q", err, u, cfg.ClientID)
 	}
+}
+
+// TestDialSilentBroker: something accepts the TCP connection but never
+// answers the MQTT CONNECT (a hung broker, or the wrong service on the
+// port). Dial must give up within its timeout with a clear error.
+func TestDialSilentBroker(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	accepted := make(chan net.Conn, 4)
+	go func() {
+		for {
+			c, err := ln.Accept()
+			if err != nil {
+				close(accepted)
+				return
+			}
+			accepted <- c // hold it open, say nothing
+		}
+	}()
+	defer func() {
+		ln.Close()
+		for c := range accepted {
+			c.Close()
+		}
+	}()
+	_, err = Dial(Config{Broker: "tcp://" + ln.Addr().String(), Rig: "b1", Role: RoleRig, ConnectTimeout: 500 * time.Millisecond})
+	if err == nil {
+		t.Fatal("Dial to a silent listener succeeded")
+	}
+	if !strings.Contains(err.Error(), ln.Addr().String()) || !strings.Contains(err.Error(), "no MQTT answer came within 500ms") {
+		t.Fatalf("error %q does not name the broker and the silence", err)
+	}
+	t.Logf("silent broker: %v", err)
 }
