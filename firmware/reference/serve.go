@@ -126,7 +126,7 @@ func Serve(conn bridges.Conn, o Options) error {
 				return fmt.Errorf("reference: nothing from the rig for %v", o.IdleTimeout)
 			}
 			if !configured {
-				if err := conn.Send(&greeting); err != nil && errors.Is(err, bridges.ErrClosed) {
+				if err := conn.Send(&greeting); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
 					return fmt.Errorf("reference: link: %w", err)
 				}
 			}
@@ -180,7 +180,10 @@ func Serve(conn bridges.Conn, o Options) error {
 			for i := 0; i < o.Actuators; i++ {
 				out.Command.Torque[i] = float32(tau[i])
 			}
-			if err := conn.Send(&out); err != nil {
+			if err := conn.Send(&out); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
+				// A link that is down and reconnecting loses this command;
+				// the rig's watchdog judges the gap. Anything else ends the
+				// session.
 				return fmt.Errorf("reference: sending a command: %w", err)
 			}
 		case protocol.TypeStop:
