@@ -36,7 +36,9 @@ type runOptions struct {
 	Log        io.Writer // plain sentences about the run (handshake, scheduling)
 	Rig        string    // MQTT rig id override
 	Firmware   *reference.Options
-	PrintAlarm bool // print trip alarms to Log
+	MaxSteps   int     // overrides the scenario's run.max_steps when > 0
+	Duration   float64 // overrides the scenario's run.duration_s when > 0
+	PrintAlarm bool    // print trip alarms to Log
 }
 
 // runResult is what one run gives back to a command.
@@ -307,6 +309,12 @@ func runScenario(ctx context.Context, sc *scenarios.Scenario, o runOptions) (run
 	}
 	if o.Clock != "" {
 		cfg.Clock = hil.ClockMode(o.Clock)
+	}
+	if o.MaxSteps > 0 {
+		cfg.MaxSteps = o.MaxSteps
+	}
+	if o.Duration > 0 {
+		cfg.Duration = o.Duration
 	}
 	if cfg.Clock == hil.Lockstep && cfg.Watchdog < lockstepWatchdogFloor {
 		cfg.Watchdog = lockstepWatchdogFloor

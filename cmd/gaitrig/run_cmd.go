@@ -38,8 +38,14 @@ everything written.`, stderr)
 	junit := fs.Bool("junit", false, "write junit.xml, one test case per criterion")
 	parquet := fs.Bool("parquet", false, "also export telemetry.parquet")
 	quiet := fs.Bool("quiet", false, "no line per step")
+	maxSteps := fs.Int("max-steps", 0, "end after this many steps (overrides the scenario's run.max_steps)")
+	duration := fs.Float64("duration", 0, "end after this many simulated seconds (overrides run.duration_s)")
 	if done, code := parseFlags(fs, args); done {
 		return code
+	}
+	if *maxSteps < 0 || *duration < 0 {
+		fmt.Fprintln(stderr, "gaitrig run: --max-steps and --duration must be ≥ 0")
+		return exitConfig
 	}
 	if fs.NArg() != 1 {
 		fmt.Fprintln(stderr, "gaitrig run: want exactly one SCENARIO (a file or a built-in name)")
@@ -51,7 +57,8 @@ everything written.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig run:", err)
 		return exitCodeFor(err)
 	}
-	o := runOptions{OutRoot: *out, RunDir: *dir, Report: *rep, JUnit: *junit, Parquet: *parquet, Log: stderr, Rig: *rig}
+	o := runOptions{OutRoot: *out, RunDir: *dir, Report: *rep, JUnit: *junit, Parquet: *parquet, Log: stderr, Rig: *rig,
+		MaxSteps: *maxSteps, Duration: *duration}
 	if *link != "" {
 		spec, err := parseLinkSpec(*link)
 		if err != nil {
