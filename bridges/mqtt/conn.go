@@ -53,9 +53,11 @@
 // # Mosquitto
 //
 // Mosquitto 2.0 leaves Nagle's algorithm on by default; on loopback that
-// holds back some of its small writes by about 40 ms (measured by
-// BenchmarkRoundTripMosquitto/nagle). Put "set_tcp_nodelay true" in
-// mosquitto.conf for a bench rig.
+// holds back some of its small writes by about 40 ms, so the slowest round
+// trips take 40 ms or more (BenchmarkRoundTripMosquitto/nagle). With
+// "set_tcp_nodelay true" in mosquitto.conf those outliers go away (the
+// slowest were a few ms in our runs), although the median round trip was
+// higher. A rig with a tight watchdog wants the bounded worst case.
 //
 // # Allocations
 //
