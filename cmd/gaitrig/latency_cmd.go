@@ -172,7 +172,10 @@ func measureLink(name string, ticks int, hz float64, mosqAddr string) (hil.Resul
 }
 
 // startMosquitto starts /usr/sbin/mosquitto on a free loopback port and
-// returns its address and a function that stops it.
+// returns its address and a function that stops it. set_tcp_nodelay matters:
+// without it Mosquitto's sends wait for Nagle's algorithm and the round trip
+// of a 1 kHz state/command exchange grows from about 0.2 ms to over 1 ms
+// (measured with this command on the development machine).
 func startMosquitto() (string, func(), error) {
 	bin, err := exec.LookPath("mosquitto")
 	if err != nil {
