@@ -196,7 +196,7 @@ func startMosquitto() (string, func(), error) {
 		return "", nil, err
 	}
 	conf := filepath.Join(dir, "mosquitto.conf")
-	if err := os.WriteFile(conf, []byte("listener "+port+" 127.0.0.1\nallow_anonymous true\npersistence false\n"), 0o600); err != nil {
+	if err := os.WriteFile(conf, []byte("listener "+port+" 127.0.0.1\nallow_anonymous true\npersistence false\nset_tcp_nodelay true\n"), 0o600); err != nil {
 		return "", nil, err
 	}
 	cmd := exec.Command(bin, "-c", conf)
