@@ -456,3 +456,59 @@ func TestStuckAlarmSinkDoesNotBlockTheLoop(t *testing.T) {
 	}
 	t.Logf("run with a stuck sink took %v", time.Since(start).Round(time.Millisecond))
 }
+
+// A firmware that missed the configuration greets again and gets it again,
+// with no alarm; one that restarts mid-run (greets after answering) raises
+// firmware_fault and is configured again.
+func TestGreetingAfterHandshake(t *testing.T) {
+	tests := []struct {
+		name      string
+		restartAt uint32 // 0: lose the first configuration instead
+		alarms    int
+	}{
+		{"configuration lost", 0, 0},
+		{"restart mid-run", 100, 1},
+	}
+	for _, tc := range tests {
+		for _, clock := range []ClockMode{Lockstep, Wallclock} {
+			t.Run(tc.name+"/"+string(clock), func(t *testing.T) {
+				cfg, run := shortRun(t, 300)
+				cfg.Clock = clock
+				cfg.Watchdog = time.Second
+				cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmFirmwareFault: scenarios.SeverityWarn}
+				fw := func(conn bridges.Conn) error {
+					if tc.restartAt == 0 {
+						if _, err := greet(conn, 2, protocol.Version); err != nil {
+							return err // this configuration is "lost": greet again
+						}
+					}
+					if _, err := greet(conn, 2, protocol.Version); err != nil {
+						return err
+					}
+					restarted := false
+					_, err := untilStop(conn, func(in *protocol.Message) {
+						if in.Type != protocol.TypeState {
+							return
+						}
+						if in.Seq == tc.restartAt && !restarted {
+							restarted = true
+							greet(conn, 2, protocol.Version) // reboot: greet, wait for the configuration
+							return
+						}
+						out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+						out.Command.Joints = 2
+						conn.Send(&out)
+					})
+					return err
+				}
+				res, _, _ := run(cfg, fw)
+				if res.Summary.Ticks != 300 || res.Summary.Outcome == record.Tripped || res.Summary.Outcome == record.Aborted {
+					t.Fatalf("%s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+				}
+				if n := res.Summary.Alarms[scenarios.AlarmFirmwareFault]; n != tc.alarms {
+					t.Fatalf("%d firmware_fault alarms, want %d", n, tc.alarms)
+				}
+			})
+		}
+	}
+}

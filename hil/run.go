@@ -133,6 +133,7 @@ type runner struct {
 	reason   string
 	stopCode uint8
 	greeting protocol.Greeting
+	config   protocol.Message // the configuration sent, kept to send again
 }
 
 type pushState struct {
@@ -297,7 +298,7 @@ func (r *runner) handshake() error {
 		return fmt.Errorf("hil: firmware %q drives %d actuators, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
 	}
 	r.logf("firmware %q build %q greeted with protocol v%d, %d actuators", g.Name, g.Build, g.Version, g.Actuators)
-	var c protocol.Message
+	c := &r.config
 	c.Type = protocol.TypeConfig
 	c.Config.TickHz = uint16(math.Min(math.Round(r.cfg.TickHz), math.MaxUint16))
 	c.Config.Lockstep = r.cfg.Clock == Lockstep
@@ -306,10 +307,26 @@ func (r *runner) handshake() error {
 		c.Config.JointNames[i] = name
 		c.Config.TorqueLimit[i] = float32(r.act.limit[i])
 	}
-	if err := r.conn.Send(&c); err != nil {
+	if err := r.conn.Send(c); err != nil {
 		return fmt.Errorf("hil: sending the configuration: %w", err)
 	}
 	return nil
+}
+
+// greetedAgain handles a greeting after the handshake. Before the first
+// command it means the configuration was lost on the way: send it again.
+// After commands have come it means the firmware restarted mid-run: an
+// alarm, and the configuration again so it can go on.
+func (r *runner) greetedAgain() {
+	if r.counts.Commands > 0 {
+		if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(r.counts.Commands)}
+		}) {
+			r.trip(protocol.StopEStop)
+			return
+		}
+	}
+	r.conn.Send(&r.config)
 }
 
 // done reports whether the run has reached its end or an outcome.
@@ -846,9 +863,12 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 		}
 		switch {
 		case err == nil:
-			if r.msg.Type == protocol.TypeStop {
+			switch r.msg.Type {
+			case protocol.TypeStop:
 				r.firmwareStop(r.msg.Stop)
 				return false
+			case protocol.TypeGreeting:
+				r.greetedAgain()
 			}
 			// A stale, dropped or corrupted command, a heartbeat, a repeated
 			// greeting: keep waiting.

@@ -95,6 +95,7 @@ type receiver struct {
 	dropped   atomic.Uint64
 	closed    atomic.Bool
 	down      atomic.Bool // Recv reported bridges.ErrDisconnected
+	greeted   atomic.Bool // a greeting came after the handshake
 	fwStop    atomic.Pointer[protocol.Stop]
 	simT      atomic.Uint64 // tick index, for fault windows
 }
@@ -156,6 +157,8 @@ func (rc *receiver) loop() {
 		case protocol.TypeStop:
 			st := m.Stop
 			rc.fwStop.Store(&st)
+		case protocol.TypeGreeting:
+			rc.greeted.Store(true)
 		}
 	}
 }
@@ -214,6 +217,9 @@ func (r *runner) wallclock(ctx context.Context) error {
 		}
 		if rc.down.Swap(false) {
 			r.disconnected(bridges.ErrDisconnected)
+		}
+		if rc.greeted.Swap(false) {
+			r.greetedAgain()
 		}
 		if st := rc.fwStop.Load(); st != nil {
 			r.firmwareStop(*st)
