@@ -26,6 +26,16 @@
 // scheduled start) and deadline misses (a tick's work ending after the next
 // tick was due) go into fixed histograms.
 //
+// # The session
+//
+// Before the first tick the rig waits for the firmware's Greeting
+// (Config.HandshakeTimeout), refuses a different protocol version
+// (version_mismatch, a Stop naming both versions) or actuator count, and
+// sends its Config. A greeting that comes later gets the Config again:
+// before the first command the first one was lost; after it the firmware
+// restarted, which raises firmware_fault. Every run ends with a Stop whose
+// reason says why: end, e-stop, watchdog, aborted, firmware, bad version.
+//
 // # What a telemetry row holds
 //
 // Row k (record.Tick with Index k) holds the plant state at the END of
