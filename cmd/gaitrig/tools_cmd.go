@@ -192,6 +192,6 @@ only to its own rig's command and stop topics.`, stderr)
 	ctx, stop := signalContext()
 	defer stop()
 	<-ctx.Done()
-	fmt.Fprintf(stdout, "broker stopped; %d publishes refused by the access rules\n", b.Refusals())
+	fmt.Fprintf(stdout, "broker stopped; %d requests (connections, subscriptions, publishes) refused by the access rules\n", b.Refusals())
 	return exitPass
 }
