@@ -113,7 +113,9 @@ type Config struct {
 	Physics plant.Options
 	// Watchdog is the longest time without a valid command before the
 	// watchdog alarm e-stops the run; default 50 ms. In lockstep it is
-	// measured on the real clock while the rig waits for a reply.
+	// measured on the real clock while the rig waits for a reply; a wait
+	// that ends more than 5 ms after its deadline is taken as a stall of
+	// the rig's own process, and that time is not counted.
 	Watchdog time.Duration
 	// HandshakeTimeout is how long the rig waits for the firmware's
 	// greeting; default 5 s.
