@@ -512,3 +512,39 @@ func TestGreetingAfterHandshake(t *testing.T) {
 		}
 	}
 }
+
+// stallConn oversleeps some Recv deadlines by 100 ms, as a rig process that
+// the host did not run for a while would.
+type stallConn struct {
+	bridges.Conn
+	n int
+}
+
+func (s *stallConn) Recv(deadline time.Time, m *protocol.Message) error {
+	s.n++
+	if s.n >= 5 && s.n < 8 && time.Until(deadline) > 0 {
+		time.Sleep(time.Until(deadline) + 100*time.Millisecond)
+		return bridges.ErrTimeout
+	}
+	return s.Conn.Recv(deadline, m)
+}
+
+// A stall of the rig's own process is not firmware silence: with a 30 ms
+// watchdog, three 100 ms stalls of the rig do not trip it, while a silent
+// firmware still does (TestWatchdogTripsOnSilentFirmware).
+func TestLockstepWatchdogIgnoresRigStalls(t *testing.T) {
+	m, s, cfg := demo(t, 0)
+	cfg.MaxSteps, cfg.Duration = 0, 0.05
+	cfg.Watchdog = 30 * time.Millisecond
+	cfg.Resend = time.Second // no resends: only the stall logic can save the run
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fw)
+	res, err := Run(context.Background(), cfg, m, s, &stallConn{Conn: rig}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Summary.Outcome != record.Pass || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 {
+		t.Fatalf("%s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+	}
+}

@@ -864,7 +864,7 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			// watchdog counts only the time the rig was listening.
 			if late := time.Since(deadline); late > stallSlack {
 				*lastValid = lastValid.Add(late)
-				wd = wd.Add(late)
+				continue // and look again: the answer may have come meanwhile
 			}
 		}
 		if final || (errors.Is(err, bridges.ErrTimeout) && !time.Now().Before(wd)) {
