@@ -11,11 +11,6 @@ import (
 	"strings"
 	"time"
 
-	"gaitrig/bridges"
-	"gaitrig/bridges/broker"
-	"gaitrig/bridges/inproc"
-	"gaitrig/bridges/mqtt"
-	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
 	"gaitrig/hil"
 )
@@ -99,68 +94,33 @@ func measureLink(name string, ticks int, hz float64, mosqAddr string) (hil.Resul
 	if err != nil {
 		return hil.Result{}, err
 	}
-	fw := reference.Options{Actuators: len(sc.JointNames())}
-
-	var rigConn bridges.Conn
-	var cleanup []func()
-	defer func() {
-		for i := len(cleanup) - 1; i >= 0; i-- {
-			cleanup[i]()
-		}
-	}()
+	ls := linkSetup{Rig: "latency", Firmware: reference.Options{Actuators: len(sc.JointNames())}}
 	switch name {
 	case "inproc":
-		r, f := inproc.Pair()
-		rigConn = r
-		cleanup = append(cleanup, func() { r.Close() }, startFirmware(f, fw))
+		ls.Spec = linkSpec{Kind: linkBuiltin}
 	case "pty":
-		p, err := serial.NewPty()
-		if err != nil {
-			return hil.Result{}, err
-		}
-		cleanup = append(cleanup, func() { p.Close() })
-		f := serial.NewConn(p.Master, "pty master", serial.Config{})
-		r, err := serial.Open(serial.Config{Port: p.Path})
-		if err != nil {
-			return hil.Result{}, err
-		}
-		if err := p.ReleaseFollower(); err != nil {
-			return hil.Result{}, err
-		}
-		rigConn = r
-		cleanup = append(cleanup, func() { r.Close() }, startFirmware(f, fw))
-	case "embedded", "mosquitto":
+		ls.Spec = linkSpec{Kind: linkPty}
+	case "embedded":
+		ls.Spec = linkSpec{Kind: linkEmbedded}
+	case "mosquitto":
 		addr := mosqAddr
-		if name == "embedded" {
-			b, err := broker.Start(broker.Config{})
-			if err != nil {
-				return hil.Result{}, err
-			}
-			cleanup = append(cleanup, func() { b.Close() })
-			addr = b.Addr()
-		} else if addr == "" {
+		if addr == "" {
 			a, stop, err := startMosquitto()
 			if err != nil {
 				return hil.Result{}, err
 			}
-			cleanup = append(cleanup, stop)
+			defer stop()
 			addr = a
 		}
-		url := "tcp://" + addr
-		r, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: "latency", Role: mqtt.RoleRig})
-		if err != nil {
-			return hil.Result{}, err
-		}
-		cleanup = append(cleanup, func() { r.Close() })
-		f, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: "latency", Role: mqtt.RoleFirmware})
-		if err != nil {
-			return hil.Result{}, err
-		}
-		rigConn = r
-		cleanup = append(cleanup, func() { f.Close() }, startFirmware(f, fw))
+		ls.Spec, ls.LocalFirmware = linkSpec{Kind: linkMQTT, URL: "tcp://" + addr}, true
 	default:
 		return hil.Result{}, badUsage("unknown link %q (want one of %s)", name, strings.Join(latencyLinks, ", "))
 	}
+	l, err := dialLink(ls)
+	if err != nil {
+		return hil.Result{}, err
+	}
+	defer l.Close()
 	cfg.Log = func(line string) {
 		if firstRealtime == "" && strings.Contains(strings.ToLower(line), "sched") {
 			firstRealtime = line
@@ -168,7 +128,7 @@ func measureLink(name string, ticks int, hz float64, mosqAddr string) (hil.Resul
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), time.Duration(float64(time.Second)*cfg.Duration*3)+10*time.Second)
 	defer cancel()
-	return hil.Run(ctx, cfg, model, initial, rigConn, nil)
+	return hil.Run(ctx, cfg, model, initial, l.Conn, nil)
 }
 
 // startMosquitto starts /usr/sbin/mosquitto on a free loopback port and

@@ -12,6 +12,7 @@ type linkKind string
 const (
 	linkBuiltin  linkKind = "builtin"  // reference firmware in this process, no wire
 	linkEmbedded linkKind = "embedded" // reference firmware over the embedded MQTT broker
+	linkPty      linkKind = "pty"      // reference firmware over a real pseudo-terminal pair
 	linkSerial   linkKind = "serial"   // a board on a serial port
 	linkMQTT     linkKind = "mqtt"     // controller code on an MQTT broker
 )
@@ -27,7 +28,8 @@ type linkSpec struct {
 // linkHelp documents the --link syntax; it is shown by every command that
 // takes the flag.
 const linkHelp = `controller link: "builtin" (reference firmware in-process), "embedded"
-(reference firmware over the embedded MQTT broker), "serial:PORT[@BAUD]"
+(reference firmware over the embedded MQTT broker), "pty" (reference firmware
+over a real pseudo-terminal pair, COBS frames as on a board), "serial:PORT[@BAUD]"
 (a board, e.g. serial:/dev/ttyACM0@921600), or "mqtt:URL" (e.g.
 mqtt:tcp://127.0.0.1:1883). Empty: what the scenario says.`
 
@@ -38,6 +40,8 @@ func parseLinkSpec(s string) (linkSpec, error) {
 		return linkSpec{Kind: linkBuiltin}, nil
 	case s == string(linkEmbedded), s == "mqtt:embedded":
 		return linkSpec{Kind: linkEmbedded}, nil
+	case s == string(linkPty):
+		return linkSpec{Kind: linkPty}, nil
 	case strings.HasPrefix(s, "serial:"):
 		rest := strings.TrimPrefix(s, "serial:")
 		spec := linkSpec{Kind: linkSerial, Baud: 115200}
@@ -60,7 +64,7 @@ func parseLinkSpec(s string) (linkSpec, error) {
 		}
 		return linkSpec{Kind: linkMQTT, URL: u}, nil
 	}
-	return linkSpec{}, badUsage("--link %q: unknown link; allowed: builtin, embedded, serial:PORT[@BAUD], mqtt:URL", s)
+	return linkSpec{}, badUsage("--link %q: unknown link; allowed: builtin, embedded, pty, serial:PORT[@BAUD], mqtt:URL", s)
 }
 
 // shard is one slice of a scenario list: the K-th of N (1-based), for CI

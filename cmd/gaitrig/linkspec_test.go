@@ -1,6 +1,7 @@
 package main
 
 import (
+	"io"
 	"strings"
 	"testing"
 )
@@ -67,3 +68,26 @@ func TestShardSplitsEveryItemOnce(t *testing.T) {
 }
 
 func itoa(i int) string { return string(rune('0' + i)) }
+
+func TestFlagsAndArgumentsInAnyOrder(t *testing.T) {
+	tests := []struct {
+		args []string
+		out  string
+		pos  []string
+	}{
+		{[]string{"--out", "x", "a"}, "x", []string{"a"}},
+		{[]string{"a", "--out", "x"}, "x", []string{"a"}},
+		{[]string{"a", "--out", "x", "b"}, "x", []string{"a", "b"}},
+		{[]string{"--", "--out"}, "", []string{"--out"}},
+	}
+	for _, tt := range tests {
+		fs := newFlagSet("t", "", "", io.Discard)
+		out := fs.String("out", "", "")
+		if done, _ := parseFlags(fs, tt.args); done {
+			t.Fatalf("%v: parse stopped", tt.args)
+		}
+		if *out != tt.out || strings.Join(fs.Args(), ",") != strings.Join(tt.pos, ",") {
+			t.Errorf("%v: out=%q args=%v, want out=%q args=%v", tt.args, *out, fs.Args(), tt.out, tt.pos)
+		}
+	}
+}

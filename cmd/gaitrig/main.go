@@ -118,17 +118,32 @@ func newFlagSet(name, argsUsage, description string, stderr io.Writer) *flag.Fla
 	return fs
 }
 
-// parseFlags parses args; it returns (done, code): done is true when the
+// parseFlags parses args, flags and arguments in any order (gaitrig run
+// SCENARIO --out DIR works as well as gaitrig run --out DIR SCENARIO); a
+// lone "--" ends the flags. It returns (done, code): done is true when the
 // command must return code right away (--help, or a flag error).
 func parseFlags(fs *flag.FlagSet, args []string) (bool, int) {
-	err := fs.Parse(args)
-	if err == nil {
-		return false, 0
+	var positional []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			if errors.Is(err, flag.ErrHelp) {
+				return true, exitPass
+			}
+			return true, exitConfig
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			break
+		}
+		if len(args) > len(rest) && args[len(args)-len(rest)-1] == "--" {
+			positional = append(positional, rest...)
+			break
+		}
+		positional = append(positional, rest[0])
+		args = rest[1:]
 	}
-	if errors.Is(err, flag.ErrHelp) {
-		return true, exitPass
-	}
-	return true, exitConfig
+	_ = fs.Parse(append([]string{"--"}, positional...))
+	return false, 0
 }
 
 // safetyCaution is printed by every command that reports a result.

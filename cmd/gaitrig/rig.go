@@ -11,10 +11,6 @@ import (
 	"time"
 
 	"gaitrig/bridges"
-	"gaitrig/bridges/broker"
-	"gaitrig/bridges/inproc"
-	"gaitrig/bridges/mqtt"
-	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
 	"gaitrig/hil"
 	"gaitrig/plant"
@@ -140,82 +136,42 @@ func openLink(sc *scenarios.Scenario, o runOptions, cfg *hil.Config) (bridges.Co
 	if err != nil {
 		return nil, "", nil, err
 	}
-	fwOpts := reference.Options{}
+	ls := linkSetup{Spec: spec, Rig: o.Rig}
 	if o.Firmware != nil {
-		fwOpts = *o.Firmware
+		ls.Firmware = *o.Firmware
 	}
-	if fwOpts.Gains == nil && (spec.Kind == linkBuiltin || spec.Kind == linkEmbedded) {
+	if ls.Firmware.Gains == nil {
 		g, err := reference.GainsFromSettings(sc.Controller.Settings)
 		if err != nil {
 			return nil, "", nil, usageError{fmt.Errorf("scenario %s: controller.settings: %w", sc.Name, err)}
 		}
-		fwOpts.Gains = &g
+		ls.Firmware.Gains = &g
 	}
-	if fwOpts.Mode == "" {
-		fwOpts.Mode = sc.Controller.Mode
+	if ls.Firmware.Mode == "" {
+		ls.Firmware.Mode = sc.Controller.Mode
 		if sc.Controller.Link == scenarios.LinkNone {
-			fwOpts.Mode = reference.ModePassive
+			ls.Firmware.Mode = reference.ModePassive
 		}
 	}
-	if fwOpts.Actuators == 0 {
-		fwOpts.Actuators = len(sc.JointNames())
+	if ls.Firmware.Actuators == 0 {
+		ls.Firmware.Actuators = len(sc.JointNames())
 	}
-	rig := o.Rig
-	if rig == "" {
-		rig = sc.Controller.Rig
+	if ls.Rig == "" {
+		ls.Rig = sc.Controller.Rig
 	}
-	if rig == "" {
-		rig = "bench"
-	}
-
-	switch spec.Kind {
-	case linkBuiltin:
-		rigConn, fwConn := inproc.Pair()
-		done := startFirmware(fwConn, fwOpts)
-		return rigConn, spec.String(), func() { rigConn.Close(); done() }, nil
-
-	case linkEmbedded:
-		b, err := broker.Start(broker.Config{})
-		if err != nil {
-			return nil, "", nil, fmt.Errorf("embedded broker: %w", err)
-		}
-		url := "tcp://" + b.Addr()
-		rigConn, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: rig, Role: mqtt.RoleRig})
-		if err != nil {
-			b.Close()
-			return nil, "", nil, fmt.Errorf("rig client on the embedded broker: %w", err)
-		}
-		fwConn, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: rig, Role: mqtt.RoleFirmware})
-		if err != nil {
-			rigConn.Close()
-			b.Close()
-			return nil, "", nil, fmt.Errorf("reference firmware client on the embedded broker: %w", err)
-		}
-		cfg.Alarms = rigConn
-		done := startFirmware(fwConn, fwOpts)
-		closer := func() { rigConn.Close(); done(); fwConn.Close(); b.Close() }
-		return rigConn, "mqtt:embedded (" + url + ", rig " + rig + ")", closer, nil
-
-	case linkSerial:
-		c, err := serial.Open(serial.Config{Port: spec.Port, Baud: spec.Baud, OpenTimeout: 2 * time.Second})
-		if err != nil {
-			return nil, "", nil, usageError{fmt.Errorf("serial link %s: %w", spec.Port, err)}
-		}
-		return c, spec.String(), func() { c.Close() }, nil
-
-	case linkMQTT:
-		user, pass, err := mqttCredentials(sc)
-		if err != nil {
+	if spec.Kind == linkMQTT {
+		if ls.User, ls.Password, err = mqttCredentials(sc); err != nil {
 			return nil, "", nil, err
 		}
-		c, err := mqtt.Dial(mqtt.Config{Broker: spec.URL, Rig: rig, Role: mqtt.RoleRig, Username: user, Password: pass})
-		if err != nil {
-			return nil, "", nil, usageError{fmt.Errorf("MQTT link %s: %w", spec.URL, err)}
-		}
-		cfg.Alarms = c
-		return c, spec.String() + " (rig " + rig + ")", func() { c.Close() }, nil
 	}
-	return nil, "", nil, badUsage("unknown link %q", spec.Kind)
+	l, err := dialLink(ls)
+	if err != nil {
+		return nil, "", nil, err
+	}
+	if l.Alarms != nil {
+		cfg.Alarms = l.Alarms
+	}
+	return l.Conn, l.Name, l.Close, nil
 }
 
 // scenarioLink is the link a run uses: the override, else the scenario's.
@@ -257,23 +213,6 @@ func mqttCredentials(sc *scenarios.Scenario) (string, string, error) {
 	}
 	p, err := get(sc.Controller.PasswordEnv)
 	return u, p, err
-}
-
-// startFirmware runs the reference firmware on conn in a goroutine; the
-// returned function waits (bounded) for it to end.
-func startFirmware(conn bridges.Conn, o reference.Options) func() {
-	done := make(chan struct{})
-	go func() {
-		defer close(done)
-		_ = reference.Serve(conn, o) // the rig's record holds what matters
-	}()
-	return func() {
-		conn.Close()
-		select {
-		case <-done:
-		case <-time.After(2 * time.Second):
-		}
-	}
 }
 
 // newRunDir picks a fresh run folder below root.
