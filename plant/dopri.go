@@ -232,38 +232,12 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 // are fifth-order solutions from x0, so the event time is as accurate as
 // the integration.
 func (m *Model) locateAdaptive(s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64) float64 {
-	a, b := 0.0, h
-	side := 0
 	var x phase
 	var ev eval
 	var c [numCond]float64
-	for it := 0; it < 100 && b-a > 1e-14; it++ {
-		t := b - fb*(b-a)/(fb-fa)
-		if !(t > a && t < b) {
-			t = 0.5 * (a + b)
-		}
+	return illinois(fa, fb, h, 1e-14, 1e-16, func(t float64) float64 {
 		m.dopriStep(s, x0, k1, t, pol, 1, 1, &x, &ev)
 		m.conditions(s, &x.q, &ev, &c)
-		f := c[k]
-		if math.IsNaN(f) {
-			f = fb
-		}
-		if f <= 0 {
-			b, fb = t, f
-			if side == -1 {
-				fa *= 0.5
-			}
-			side = -1
-		} else {
-			a, fa = t, f
-			if side == +1 {
-				fb *= 0.5
-			}
-			side = +1
-		}
-		if f <= 0 && (f == 0 || -f < 1e-16*(math.Abs(fa)+math.Abs(fb))) {
-			return t
-		}
-	}
-	return b
+		return c[k]
+	})
 }

@@ -143,41 +143,15 @@ func (m *Model) nonFinite(s *State, r *TickResult) {
 // crossing (where the condition is ≤ 0, so the state handed to the event
 // is on the far side of it), within 1e-12 s.
 func (m *Model) locate(s *State, x0 *phase, k1 *eval, in *Input, k int, fa, fb, h float64) float64 {
-	a, b := 0.0, h
-	side := 0
 	var x phase
 	var ev eval
 	var c [numCond]float64
-	for it := 0; it < 100 && b-a > 1e-13; it++ {
-		t := b - fb*(b-a)/(fb-fa)
-		if !(t > a && t < b) {
-			t = 0.5 * (a + b)
-		}
+	return illinois(fa, fb, h, 1e-13, 1e-15, func(t float64) float64 {
 		m.rk4(s, x0, k1, t, in, &x)
 		m.rhs(s, &x.q, &x.v, in, &ev)
 		m.conditions(s, &x.q, &ev, &c)
-		f := c[k]
-		if math.IsNaN(f) {
-			f = fb
-		}
-		if f <= 0 {
-			b, fb = t, f
-			if side == -1 {
-				fa *= 0.5
-			}
-			side = -1
-		} else {
-			a, fa = t, f
-			if side == +1 {
-				fb *= 0.5
-			}
-			side = +1
-		}
-		if f <= 0 && (f == 0 || -f < 1e-15*(math.Abs(fa)+math.Abs(fb))) {
-			return t
-		}
-	}
-	return b
+		return c[k]
+	})
 }
 
 // sanitize repairs the bookkeeping fields of a state a caller may have
