@@ -51,14 +51,14 @@ func (c *Conn) Recv(deadline time.Time, m *protocol.Message) error {
 		err = protocol.Decode(in.payload, m)
 	}
 	if err != nil {
-		c.frameErrors.Add(1)
+		c.counts.FrameErrors.Add(1)
 		return &bridges.FrameError{Reason: err.Error(), Bytes: len(in.payload)}
 	}
 	if !c.expected(m.Type, in.stop) {
-		c.frameErrors.Add(1)
+		c.counts.FrameErrors.Add(1)
 		return &bridges.FrameError{Reason: c.wrongTopic(m.Type, in.stop), Bytes: len(in.payload)}
 	}
-	c.framesReceived.Add(1)
+	c.counts.FramesReceived.Add(1)
 	return nil
 }
 

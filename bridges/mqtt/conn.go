@@ -124,6 +124,9 @@ type Conn struct {
 	once    sync.Once
 	timer   *time.Timer    // Recv's reused deadline timer
 	sendBuf [maxFrame]byte // Send's encoding buffer (one sender at a time)
+	// dropped counts messages the full receive queue turned away since Recv
+	// last reported them; Recv moves them into counts.FrameErrors with a
+	// FrameError, so they are not lost from Stats.
 	dropped atomic.Uint64
 
 	connected atomic.Bool
@@ -138,8 +141,7 @@ type Conn struct {
 	echo      [echoSlots][]byte // our recent stop payloads; empty slot = none
 	echoNext  int
 
-	framesSent, framesReceived, frameErrors atomic.Uint64
-	bytesSent, bytesReceived, reconnects    atomic.Uint64
+	counts bridges.Counters // counts.Dropped stays 0: see dropped
 }
 
 // Dial connects to the broker, subscribes to the topics of cfg.Role and
@@ -315,7 +317,7 @@ func (c *Conn) onConnect(cl paho.Client) {
 		c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s", c.url.Host)})
 	}
 	c.connected.Store(true)
-	c.reconnects.Add(1)
+	c.counts.Reconnects.Add(1)
 	c.event(bridges.LinkEvent{Kind: "reconnected", Gap: gap})
 }
 
@@ -396,16 +398,7 @@ func (c *Conn) handle(_ paho.Client, m paho.Message) {
 func (c *Conn) Events() <-chan bridges.LinkEvent { return c.events }
 
 // Stats returns the link's counters so far.
-func (c *Conn) Stats() bridges.Stats {
-	return bridges.Stats{
-		FramesSent:     c.framesSent.Load(),
-		FramesReceived: c.framesReceived.Load(),
-		FrameErrors:    c.frameErrors.Load(),
-		BytesSent:      c.bytesSent.Load(),
-		BytesReceived:  c.bytesReceived.Load(),
-		Reconnects:     c.reconnects.Load(),
-	}
-}
+func (c *Conn) Stats() bridges.Stats { return c.counts.Snapshot() }
 
 // notConnected explains why nothing can be sent right now.
 func (c *Conn) notConnected(what string) error {
@@ -463,8 +456,8 @@ func (c *Conn) publish(p []byte, stop bool) error {
 		default:
 		}
 	}
-	c.framesSent.Add(1)
-	c.bytesSent.Add(uint64(len(p)))
+	c.counts.FramesSent.Add(1)
+	c.counts.BytesSent.Add(uint64(len(p)))
 	return nil
 }
 
@@ -503,7 +496,7 @@ func (c *Conn) isOwnEcho(p []byte) bool {
 // next waits for the next incoming payload other than our own stop echoes.
 func (c *Conn) next(deadline time.Time) (inbound, error) {
 	if n := c.dropped.Swap(0); n > 0 {
-		c.frameErrors.Add(n)
+		c.counts.FrameErrors.Add(n)
 		return inbound{}, &bridges.FrameError{Reason: fmt.Sprintf("receive queue full: %d messages dropped before Recv read them", n)}
 	}
 	armed := false
@@ -543,7 +536,7 @@ func (c *Conn) next(deadline time.Time) (inbound, error) {
 		if in.stop && c.isOwnEcho(in.payload) {
 			continue
 		}
-		c.bytesReceived.Add(uint64(len(in.payload)))
+		c.counts.BytesReceived.Add(uint64(len(in.payload)))
 		return in, nil
 	}
 }
@@ -557,10 +550,10 @@ func (c *Conn) RecvFrame(deadline time.Time, dst []byte) (int, error) {
 		return 0, err
 	}
 	if len(in.payload) > len(dst) {
-		c.frameErrors.Add(1)
+		c.counts.FrameErrors.Add(1)
 		return 0, &bridges.FrameError{Reason: fmt.Sprintf("frame of %d bytes does not fit the %d-byte buffer", len(in.payload), len(dst)), Bytes: len(in.payload)}
 	}
-	c.framesReceived.Add(1)
+	c.counts.FramesReceived.Add(1)
 	return copy(dst, in.payload), nil
 }
 

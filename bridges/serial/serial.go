@@ -104,10 +104,8 @@ type Conn struct {
 	scratch    [protocol.MaxFrameLen]byte // Send side only (one sender)
 	timer      *time.Timer                // Recv side only (one receiver)
 
-	framesSent, framesReceived, frameErrors atomic.Uint64
-	bytesSent, bytesReceived                atomic.Uint64
-	reconnects, dropped                     atomic.Uint64
-	writeErr                                atomic.Pointer[error]
+	counts   bridges.Counters
+	writeErr atomic.Pointer[error]
 }
 
 // Open opens cfg.Port and starts the link. If the port is missing it keeps
@@ -180,7 +178,7 @@ func (c *Conn) start(p io.ReadWriteCloser) {
 // half frame the peer may hold from before (docs/protocol.md section 4).
 func (c *Conn) attach(p io.ReadWriteCloser) {
 	if _, err := p.Write([]byte{0}); err == nil {
-		c.bytesSent.Add(1)
+		c.counts.BytesSent.Add(1)
 	}
 	c.port.Store(&portBox{p: p})
 	c.up.Store(true)
@@ -194,7 +192,7 @@ type countingReader struct {
 
 func (r *countingReader) Read(b []byte) (int, error) {
 	n, err := r.p.Read(b)
-	r.c.bytesReceived.Add(uint64(n))
+	r.c.counts.BytesReceived.Add(uint64(n))
 	return n, err
 }
 
@@ -207,7 +205,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 		frame, err := rd.Next()
 		if err == nil {
 			if err = protocol.Decode(frame, &item.msg); err == nil {
-				c.framesReceived.Add(1)
+				c.counts.FramesReceived.Add(1)
 				item.err = nil
 				c.push(&item)
 				continue
@@ -215,7 +213,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 		}
 		var pe *protocol.Error
 		if errors.As(err, &pe) {
-			c.frameErrors.Add(1)
+			c.counts.FrameErrors.Add(1)
 			n := rd.WireLen()
 			c.pushErr(&bridges.FrameError{Reason: pe.Error(), Bytes: n})
 			continue
@@ -248,7 +246,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 			_ = p.Close()
 			return
 		}
-		c.reconnects.Add(1)
+		c.counts.Reconnects.Add(1)
 		c.event(bridges.LinkEvent{Kind: "reconnected", Gap: time.Since(down)})
 	}
 }
@@ -285,7 +283,7 @@ func (c *Conn) push(it *rxItem) {
 		}
 		select {
 		case <-c.rx:
-			c.dropped.Add(1)
+			c.counts.Dropped.Add(1)
 		default:
 		}
 	}
@@ -318,9 +316,9 @@ func (c *Conn) writeLoop() {
 		case buf := <-c.full:
 			if box := c.port.Load(); box != nil {
 				n, err := box.p.Write(buf.b)
-				c.bytesSent.Add(uint64(n))
+				c.counts.BytesSent.Add(uint64(n))
 				if err == nil {
-					c.framesSent.Add(1)
+					c.counts.FramesSent.Add(1)
 				} else {
 					e := fmt.Errorf("serial: writing to %s: %w", c.name, err)
 					c.writeErr.Store(&e)
@@ -457,17 +455,7 @@ func (c *Conn) deliver(it *rxItem, m *protocol.Message) error {
 }
 
 // Stats returns the link's counters so far.
-func (c *Conn) Stats() bridges.Stats {
-	return bridges.Stats{
-		FramesSent:     c.framesSent.Load(),
-		FramesReceived: c.framesReceived.Load(),
-		FrameErrors:    c.frameErrors.Load(),
-		BytesSent:      c.bytesSent.Load(),
-		BytesReceived:  c.bytesReceived.Load(),
-		Reconnects:     c.reconnects.Load(),
-		Dropped:        c.dropped.Load(),
-	}
-}
+func (c *Conn) Stats() bridges.Stats { return c.counts.Snapshot() }
 
 // Events reports disconnects and reconnects. The channel is never closed;
 // if nobody drains it, the oldest events are dropped.
