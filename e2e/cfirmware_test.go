@@ -493,15 +493,23 @@ var exampleMarker = regexp.MustCompile(`^<!-- example (\w+) (frame|wire) -->$`)
 // dumpLine is one line of a hex dump: an offset, then hex byte pairs.
 var dumpLine = regexp.MustCompile(`^([0-9a-fA-F]{4}): ((?:[0-9a-fA-F]{2} ?)+)$`)
 
-// docExamples reads the example frames of docs/protocol.md section 11: each
-// "<!-- example NAME frame|wire -->" marker followed by a fenced hex dump
-// with offsets.
-func docExamples(t *testing.T) []docExample {
+// readSpec reads docs/protocol.md, the protocol specification the C and
+// Go codecs are both checked against.
+func readSpec(t *testing.T) []byte {
 	t.Helper()
 	doc, err := os.ReadFile("../docs/protocol.md")
 	if err != nil {
 		t.Fatalf("reading the protocol specification: %v", err)
 	}
+	return doc
+}
+
+// docExamples reads the example frames of docs/protocol.md section 11: each
+// "<!-- example NAME frame|wire -->" marker followed by a fenced hex dump
+// with offsets.
+func docExamples(t *testing.T) []docExample {
+	t.Helper()
+	doc := readSpec(t)
 	_, rest, ok := bytes.Cut(doc, []byte("<!-- examples begin -->"))
 	if !ok {
 		t.Fatal("docs/protocol.md has no '<!-- examples begin -->' marker")
@@ -556,10 +564,7 @@ func docExamples(t *testing.T) []docExample {
 // of section 11 hold.
 func docJSON(t *testing.T) map[string]protocol.Message {
 	t.Helper()
-	doc, err := os.ReadFile("../docs/protocol.md")
-	if err != nil {
-		t.Fatalf("reading the protocol specification: %v", err)
-	}
+	doc := readSpec(t)
 	_, rest, ok := bytes.Cut(doc, []byte("## 10. JSON debug encoding"))
 	if !ok {
 		t.Fatal("docs/protocol.md has no section 10 (JSON debug encoding)")
@@ -964,6 +969,25 @@ func (r *rigEnd) next(d time.Duration, skipHeartbeats bool) protocol.Message {
 	}
 }
 
+// awaitGreeting requires the firmware's first message (heartbeats aside)
+// to be its greeting, as every session with the firmware begins.
+func (r *rigEnd) awaitGreeting() {
+	r.t.Helper()
+	if g := r.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
+		r.t.Fatalf("want a greeting first, got %v", g.Type)
+	}
+}
+
+// startSession is the set-up of the session tests: a fresh pty pair, the
+// C firmware bin on its follower (killed when ctx ends or the test ends)
+// and a minimal rig on its leader.
+func startSession(t *testing.T, ctx context.Context, bin string) (*serial.Pty, *firmwareProc, *rigEnd) {
+	t.Helper()
+	tty := openPty(t)
+	fw := startFirmware(t, ctx, bin, tty.Path)
+	return tty, fw, newRigEnd(t, tty.Master)
+}
+
 // demoConfig is the config a rig sends for a walker with a torso.
 func demoConfig() protocol.Message {
 	m := protocol.Message{Type: protocol.TypeConfig}
@@ -983,9 +1007,7 @@ func TestCFirmwareSession(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	tty := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, tty.Path)
-	rig := newRigEnd(t, tty.Master)
+	_, fw, rig := startSession(t, ctx, b.firmware)
 
 	g := rig.next(5*time.Second, true)
 	if g.Type != protocol.TypeGreeting || g.Seq != 0 || g.Greeting.Version != protocol.Version || g.Greeting.Actuators != 2 {
@@ -1142,12 +1164,8 @@ func TestCFirmwareRefusesOtherVersion(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	tty := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, tty.Path)
-	rig := newRigEnd(t, tty.Master)
-	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
-		t.Fatalf("want a greeting first, got %v", g.Type)
-	}
+	_, fw, rig := startSession(t, ctx, b.firmware)
+	rig.awaitGreeting()
 	rig.raw([]byte{0})
 	rig.raw(wireOf(t, ptr(demoConfig()), func(f []byte) []byte {
 		f[0] = 2
@@ -1221,12 +1239,8 @@ func TestCFirmwareSurvivesGarbage(t *testing.T) {
 
 	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
 	defer cancel()
-	tty := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, tty.Path)
-	rig := newRigEnd(t, tty.Master)
-	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
-		t.Fatalf("want a greeting first, got %v", g.Type)
-	}
+	_, fw, rig := startSession(t, ctx, b.firmware)
+	rig.awaitGreeting()
 	rig.send(ptr(demoConfig()))
 	// Written in pieces, as a noisy line delivers it; the firmware reads
 	// concurrently, so the pty buffer never fills.
@@ -1278,12 +1292,8 @@ func TestCFirmwareRefusesConfig(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 			defer cancel()
-			tty := openPty(t)
-			fw := startFirmware(t, ctx, b.firmware, tty.Path)
-			rig := newRigEnd(t, tty.Master)
-			if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
-				t.Fatalf("want a greeting first, got %v", g.Type)
-			}
+			_, fw, rig := startSession(t, ctx, b.firmware)
+			rig.awaitGreeting()
 			cfg := demoConfig()
 			tc.change(&cfg.Config)
 			rig.send(&cfg)
@@ -1314,12 +1324,8 @@ func TestCFirmwareNoticesUnplug(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	tty := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, tty.Path)
-	rig := newRigEnd(t, tty.Master)
-	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
-		t.Fatalf("want a greeting first, got %v", g.Type)
-	}
+	tty, fw, rig := startSession(t, ctx, b.firmware)
+	rig.awaitGreeting()
 	rig.send(ptr(demoConfig()))
 	st := protocol.Message{Type: protocol.TypeState, Seq: 1, State: protocol.State{Joints: 2, Contacts: protocol.ContactLeft}}
 	rig.send(&st)
@@ -1346,12 +1352,8 @@ func TestCFirmwareStopsOnSIGTERM(t *testing.T) {
 	b := buildC(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	tty := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, tty.Path)
-	rig := newRigEnd(t, tty.Master)
-	if g := rig.next(5*time.Second, true); g.Type != protocol.TypeGreeting {
-		t.Fatalf("want a greeting first, got %v", g.Type)
-	}
+	_, fw, rig := startSession(t, ctx, b.firmware)
+	rig.awaitGreeting()
 	rig.send(ptr(demoConfig()))
 	// A heartbeat after the config shows the firmware took it and idles.
 	for {
@@ -1464,14 +1466,7 @@ func TestCFirmwareWalks(t *testing.T) {
 	checkWalk(t, "over a pty pair", res, dir, conn, fw)
 
 	// The same run with the Go reference firmware in-process.
-	rigEnd, fwEnd := inproc.Pair()
-	served := make(chan error, 1)
-	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
-	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
-	rigEnd.Close()
-	if err := <-served; err != nil {
-		t.Errorf("the Go reference firmware ended with %v", err)
-	}
+	goRes := runGoReference(t, ctx, cfg, model, initial)
 	if goRes.Summary.Steps != res.Summary.Steps || goRes.Summary.Ticks != res.Summary.Ticks {
 		t.Errorf("Go reference in-process: %d steps in %d ticks; C over pty: %d steps in %d ticks; want the same",
 			goRes.Summary.Steps, goRes.Summary.Ticks, res.Summary.Steps, res.Summary.Ticks)
@@ -1480,6 +1475,21 @@ func TestCFirmwareWalks(t *testing.T) {
 		t.Errorf("final plant state differs between the C firmware over pty and the Go reference in-process:\nC:  q=%v v=%v\nGo: q=%v v=%v",
 			res.Final.Q, res.Final.V, goRes.Final.Q, goRes.Final.V)
 	}
+}
+
+// runGoReference runs the same scenario with the Go reference firmware
+// over the in-process link, the run a C firmware run must match to the bit.
+func runGoReference(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State) hil.Result {
+	t.Helper()
+	rigEnd, fwEnd := inproc.Pair()
+	served := make(chan error, 1)
+	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
+	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
+	rigEnd.Close()
+	if err := <-served; err != nil {
+		t.Errorf("the Go reference firmware ended with %v", err)
+	}
+	return goRes
 }
 
 // checkWalk asserts what every walking run of the C firmware must show: at
@@ -1615,14 +1625,7 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 
 	// Same law to the bit, deterministic loop: the same end state as the Go
 	// reference in-process.
-	rigEnd, fwEnd := inproc.Pair()
-	served := make(chan error, 1)
-	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
-	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
-	rigEnd.Close()
-	if err := <-served; err != nil {
-		t.Errorf("the Go reference firmware ended with %v", err)
-	}
+	goRes := runGoReference(t, ctx, cfg, model, initial)
 	if goRes.Summary.Ticks != res.Summary.Ticks || goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
 		t.Errorf("level-demo: the C firmware over socat ended after %d ticks in q=%v v=%v, the Go reference in-process after %d ticks in q=%v v=%v",
 			res.Summary.Ticks, res.Final.Q, res.Final.V, goRes.Summary.Ticks, goRes.Final.Q, goRes.Final.V)
