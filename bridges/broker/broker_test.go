@@ -193,20 +193,11 @@ type received struct {
 	got  chan struct{}
 }
 
+// watch subscribes a monitor client, "watcher", to filter and collects
+// what it receives.
 func watch(t *testing.T, b *Broker, filter string) *received {
 	t.Helper()
-	r := &received{got: make(chan struct{}, 64)}
-	c := mustDial(t, b, clientOpts{id: "watcher"})
-	tok := c.Subscribe(filter, 0, func(_ paho.Client, m paho.Message) {
-		r.mu.Lock()
-		r.msgs = append(r.msgs, m.Topic()+" "+string(m.Payload()))
-		r.mu.Unlock()
-		r.got <- struct{}{}
-	})
-	if !tok.WaitTimeout(wait) || tok.Error() != nil {
-		t.Fatalf("monitor subscribe %q: %v", filter, tok.Error())
-	}
-	return r
+	return watchAs(t, b, clientOpts{id: "watcher"}, filter)
 }
 
 // next waits for the next message and returns all seen so far.
@@ -369,7 +360,7 @@ func TestAccountsDecideIdentity(t *testing.T) {
 		{Username: "board", Password: "pw", Role: RoleFirmware, Rig: "b1"},
 		{Username: "viewer", Password: "pw2", Role: RoleMonitor},
 	}})
-	mon := watch2(t, b, clientOpts{id: "any", user: "viewer", pass: "pw2"}, "gaitrig/#")
+	mon := watchAs(t, b, clientOpts{id: "any", user: "viewer", pass: "pw2"}, "gaitrig/#")
 	// The client id claims to be a rig, but the account is firmware of b1:
 	// its publish to the state topic must be dropped.
 	c := mustDial(t, b, clientOpts{id: "rig.b1", user: "board", pass: "pw"})
@@ -388,7 +379,9 @@ func TestAccountsDecideIdentity(t *testing.T) {
 	}
 }
 
-func watch2(t *testing.T, b *Broker, o clientOpts, filter string) *received {
+// watchAs subscribes a client dialled with o to filter and collects what
+// it receives, so a test can watch as a user with limited rights.
+func watchAs(t *testing.T, b *Broker, o clientOpts, filter string) *received {
 	t.Helper()
 	r := &received{got: make(chan struct{}, 64)}
 	c := mustDial(t, b, o)
