@@ -93,6 +93,23 @@ type parsed struct {
 	texts map[string]string // text content by id
 }
 
+// renderAndParse writes the report of the run folder dir and parses the
+// page it wrote.
+func renderAndParse(t *testing.T, dir string) parsed {
+	t.Helper()
+	if err := WriteHTML(dir); err != nil {
+		t.Fatal(err)
+	}
+	raw, err := os.ReadFile(filepath.Join(dir, HTMLFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return parseReport(t, raw)
+}
+
+// parseReport parses a report page and indexes its elements by id, and
+// fails the test where the page repeats an id or needs anything from
+// outside itself (a script, an image, an outside link).
 func parseReport(t *testing.T, raw []byte) parsed {
 	t.Helper()
 	doc, err := html.Parse(bytes.NewReader(raw))
@@ -246,14 +263,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 				tc.edit(&r)
 			}
 			writeSynthFolder(t, dir, r, true)
-			if err := WriteHTML(dir); err != nil {
-				t.Fatal(err)
-			}
-			raw, err := os.ReadFile(filepath.Join(dir, HTMLFile))
-			if err != nil {
-				t.Fatal(err)
-			}
-			p := parseReport(t, raw)
+			p := renderAndParse(t, dir)
 			checkPlots(t, p, tc.wantExtra...)
 			if _, ok := p.byID["incomplete"]; ok {
 				t.Errorf("a complete run folder is reported incomplete: %q", p.texts["incomplete"])
@@ -573,14 +583,7 @@ func TestNonFiniteValues(t *testing.T) {
 	r.sum.PeakFrictionUtilization = math.Inf(1)
 	dir := filepath.Join(t.TempDir(), "run")
 	writeSynthFolder(t, dir, r, true)
-	if err := WriteHTML(dir); err != nil {
-		t.Fatal(err)
-	}
-	raw, err := os.ReadFile(filepath.Join(dir, HTMLFile))
-	if err != nil {
-		t.Fatal(err)
-	}
-	p := parseReport(t, raw)
+	p := renderAndParse(t, dir)
 	checkPlots(t, p)
 	if rows := countElements(p.byID["steps"], "tr") - 1; rows != len(r.steps) {
 		t.Errorf("steps table has %d rows, want all %d", rows, len(r.steps))
