@@ -107,35 +107,35 @@ const MaxEvents = 8
 
 // Event is one plant event inside a tick.
 type Event struct {
-	Kind       EventKind
-	T          float64 // simulated time of the event, s (located inside the tick)
-	Foot       int     // 0 left, 1 right, −1 none
-	Segment    int     // terrain segment index, −1 none
-	Value      float64 // see EventKind
-	Limit      float64 // see EventKind
-	EnergyLost float64 // J, impacts only
+	Kind       EventKind // what happened; it says what Value and Limit hold
+	T          float64   // simulated time of the event, s (located inside the tick)
+	Foot       int       // 0 left, 1 right, −1 none
+	Segment    int       // terrain segment index, −1 none
+	Value      float64   // see EventKind
+	Limit      float64   // see EventKind
+	EnergyLost float64   // J, impacts only
 }
 
 // FootContact is the contact record of one foot at the end of a tick.
 type FootContact struct {
-	Mode        ContactMode
-	Normal      float64    // N: normal force of the ground on the foot (0 when free)
-	Tangential  float64    // F_t along the terrain tangent, N (positive forward along the slope)
-	Utilization float64    // |F_t|/(μ_s N); +Inf when N ≤ 0 with F_t ≠ 0
-	CoP         float64    // centre of pressure: arc length along the foot from the point under the leg axis, m, positive toward the toe
-	Gap         float64    // distance from the arc to the terrain, m (negative = penetration)
-	SlipVel     float64    // tangential velocity of the foot's material point at the contact, m/s
-	Segment     int        // index of the terrain segment nearest the foot
-	Point       [2]float64 // contact point (closest terrain point to the arc), m
+	Mode        ContactMode // free, rolling or sliding at the end of the tick
+	Normal      float64     // N: normal force of the ground on the foot (0 when free)
+	Tangential  float64     // F_t along the terrain tangent, N (positive forward along the slope)
+	Utilization float64     // |F_t|/(μ_s N); +Inf when N ≤ 0 with F_t ≠ 0
+	CoP         float64     // centre of pressure: arc length along the foot from the point under the leg axis, m, positive toward the toe
+	Gap         float64     // distance from the arc to the terrain, m (negative = penetration)
+	SlipVel     float64     // tangential velocity of the foot's material point at the contact, m/s
+	Segment     int         // index of the terrain segment nearest the foot
+	Point       [2]float64  // contact point (closest terrain point to the arc), m
 }
 
 // TickResult is everything Step reports about one tick.
 type TickResult struct {
-	Contacts  [2]FootContact
-	Events    [MaxEvents]Event
-	NumEvents int
-	Dropped   int  // events that did not fit in Events
-	Stopped   bool // a stopping event happened; the state is at that event
+	Contacts  [2]FootContact   // each foot's contact at the end of the tick, left first
+	Events    [MaxEvents]Event // the tick's events in time order; only the first NumEvents are set
+	NumEvents int              // how many of Events are set (a fixed array keeps Step allocation-free)
+	Dropped   int              // events that did not fit in Events
+	Stopped   bool             // a stopping event happened; the state is at that event
 }
 
 func (r *TickResult) add(e Event) {

@@ -191,8 +191,8 @@ type Gait struct {
 	Eigenvalues []complex128
 	Jacobian    *mat.Dense // ∂P/∂z at the fixed point
 	Residual    float64    // max |P(z) − z|
-	Iterations  int
-	StepResult  // period, step length, speed, energy, friction, impulse of the gait's step
+	Iterations  int        // Newton updates made (0 when the guess already met the tolerance)
+	StepResult             // period, step length, speed, energy, friction, impulse of the gait's step
 }
 
 // FindGait looks for a period-one gait (a fixed point of the step-to-step

@@ -45,8 +45,8 @@ type Segment struct {
 // first segment continues backward and the last one forward without end, so
 // a walker never runs off the terrain.
 type Terrain struct {
-	Start    [2]float64
-	Segments []Segment
+	Start    [2]float64 // first vertex (x, y), m
+	Segments []Segment  // the segments in order, each starting where the last one ends
 }
 
 // Params is the full description of a walker. Legs[0] is the left leg,
@@ -55,10 +55,10 @@ type Terrain struct {
 // per leg, acting between the torso and that leg.
 type Params struct {
 	HipMass float64 // point mass at the hip, kg, ≥ 0
-	Legs    [2]Leg
-	Torso   *Torso
+	Legs    [2]Leg  // left, right
+	Torso   *Torso  // nil: a compass walker without a torso
 	Gravity float64 // m/s², > 0
-	Terrain Terrain
+	Terrain Terrain // the ground the walker walks on
 	// OneLeg keeps only Legs[0]: a single rigid body rolling on its foot
 	// arc, with no actuator. It exists for checks such as a rocking
 	// half-disk; Legs[1] and Torso are then ignored.

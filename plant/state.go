@@ -188,7 +188,7 @@ func (m *Model) Energy(s *State) (kinetic, potential float64) {
 
 // Pose holds the points of a stick figure of the walker.
 type Pose struct {
-	Hip       [2]float64
+	Hip       [2]float64    // hip joint, m
 	Foot      [2][2]float64 // end of each leg axis, hip + L·a(θ)
 	ArcCentre [2][2]float64 // centre of each foot arc
 	TorsoTop  [2]float64    // hip + 2·COMDist along the torso axis (hip if none)
