@@ -31,12 +31,12 @@ type Conn interface {
 
 // Stats counts what crossed a link, for the run summary and alarms.
 type Stats struct {
-	FramesSent     uint64
-	FramesReceived uint64
+	FramesSent     uint64 // whole frames handed to the transport
+	FramesReceived uint64 // frames that passed their checks and decoded
 	FrameErrors    uint64 // bad CRC, bad COBS, wrong type, truncated
-	BytesSent      uint64
-	BytesReceived  uint64
-	Reconnects     uint64
+	BytesSent      uint64 // bytes written, delimiters and framing included
+	BytesReceived  uint64 // bytes read, garbage included
+	Reconnects     uint64 // times the link came back after it was lost
 	Dropped        uint64 // valid frames discarded because the receiver fell behind (oldest first)
 }
 
@@ -58,6 +58,8 @@ type FrameError struct {
 	Bytes  int    // length of the rejected frame
 }
 
+// Error says why the frame was rejected, in words a person reading the
+// alarm understands.
 func (e *FrameError) Error() string { return "bridges: rejected frame: " + e.Reason }
 
 // LinkEvent reports a change of link health that the loop turns into an
@@ -71,5 +73,6 @@ type LinkEvent struct {
 // Notifier is implemented by links that can report LinkEvents. The loop
 // drains Events() without blocking.
 type Notifier interface {
+	// Events returns the channel the link reports its health changes on.
 	Events() <-chan LinkEvent
 }

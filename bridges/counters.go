@@ -7,13 +7,13 @@ import "sync/atomic"
 // can count without a lock and Stats() can read them at any time. The zero
 // value is ready to use; a transport embeds one and counts on it directly.
 type Counters struct {
-	FramesSent     atomic.Uint64
-	FramesReceived atomic.Uint64
-	FrameErrors    atomic.Uint64
-	BytesSent      atomic.Uint64
-	BytesReceived  atomic.Uint64
-	Reconnects     atomic.Uint64
-	Dropped        atomic.Uint64
+	FramesSent     atomic.Uint64 // Stats.FramesSent
+	FramesReceived atomic.Uint64 // Stats.FramesReceived
+	FrameErrors    atomic.Uint64 // Stats.FrameErrors
+	BytesSent      atomic.Uint64 // Stats.BytesSent
+	BytesReceived  atomic.Uint64 // Stats.BytesReceived
+	Reconnects     atomic.Uint64 // Stats.Reconnects
+	Dropped        atomic.Uint64 // Stats.Dropped
 }
 
 // Snapshot returns the counts as they are now, for Conn.Stats. Each field

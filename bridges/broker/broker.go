@@ -78,17 +78,17 @@ const (
 // environment variables read by the command line), never from files in the
 // repository.
 type Account struct {
-	Username string
-	Password string
-	Role     Role
+	Username string // the login name a client presents
+	Password string // must not be empty; compared in constant time
+	Role     Role   // what the account may read and write (see the package comment)
 	Rig      string // rig id for RoleRig and RoleFirmware; ignored for RoleMonitor
 }
 
 // Refusal describes one publish, subscription or connection the access rules
 // refused.
 type Refusal struct {
-	ClientID string
-	Username string
+	ClientID string // the MQTT client identifier of the refused client
+	Username string // the username it logged in with; empty if anonymous
 	Topic    string // topic or filter; for a refused connection, the will topic if any
 	Action   string // "publish", "subscribe" or "connect"
 	Reason   string // plain sentence for a person

@@ -58,7 +58,7 @@ var kindSentinel = [...]error{
 // Error is a refused frame or message, with the numbers a person needs to see
 // what went wrong. The text is built only when Error() is called.
 type Error struct {
-	Kind   Kind
+	Kind   Kind   // which check refused it; Unwrap gives the matching sentinel
 	Type   Type   // message type, when known (0 otherwise)
 	Field  string // field name, for field errors
 	Got    int64  // the value found (meaning depends on Kind)

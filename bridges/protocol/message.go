@@ -97,11 +97,11 @@ type Stop struct {
 // frame buffer) so it can be passed through channels without allocation.
 // Only the field that matches Type is meaningful.
 type Message struct {
-	Type     Type
-	Seq      uint32 // sender's sequence number; a Command echoes its State's Seq
-	Greeting Greeting
-	Config   Config
-	State    State
-	Command  Command
-	Stop     Stop
+	Type     Type     // which of the parts below the frame carries (none for a heartbeat)
+	Seq      uint32   // sender's sequence number; a Command echoes its State's Seq
+	Greeting Greeting // for TypeGreeting
+	Config   Config   // for TypeConfig
+	State    State    // for TypeState
+	Command  Command  // for TypeCommand
+	Stop     Stop     // for TypeStop
 }
