@@ -1,13 +1,17 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"encoding/json"
+	"fmt"
+	"io"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"strconv"
 	"strings"
+	"sync"
 	"syscall"
 	"testing"
 	"time"
@@ -238,11 +242,7 @@ func TestInterruptEndsTheRunCleanly(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds the command; skipped with -short")
 	}
-	bin := filepath.Join(t.TempDir(), "gaitrig")
-	build := exec.Command("go", "build", "-o", bin, ".")
-	if out, err := build.CombinedOutput(); err != nil {
-		t.Fatalf("go build: %v\n%s", err, out)
-	}
+	bin := buildCommand(t)
 	dir := filepath.Join(t.TempDir(), "run")
 	cmd := exec.Command(bin, "run", "--quiet", "--clock", "wallclock", "--dir", dir, "level-demo")
 	var out bytes.Buffer
@@ -299,5 +299,118 @@ func TestInterruptEndsTheRunCleanly(t *testing.T) {
 	}
 	if int64(n) != s.Ticks {
 		t.Errorf("telemetry has %d rows, the summary counts %d ticks", n, s.Ticks)
+	}
+}
+
+var (
+	buildOnce sync.Once
+	builtBin  string
+	buildErr  error
+)
+
+// buildCommand builds the gaitrig binary once per test process.
+func buildCommand(t *testing.T) string {
+	t.Helper()
+	buildOnce.Do(func() {
+		dir, err := os.MkdirTemp("", "gaitrig-bin")
+		if err != nil {
+			buildErr = err
+			return
+		}
+		builtBin = filepath.Join(dir, "gaitrig")
+		out, err := exec.Command("go", "build", "-o", builtBin, ".").CombinedOutput()
+		if err != nil {
+			buildErr = fmt.Errorf("go build: %v\n%s", err, out)
+		}
+	})
+	if buildErr != nil {
+		t.Fatal(buildErr)
+	}
+	return builtBin
+}
+
+// TestFirmwareProcessUnpluggedMidRun: the reference firmware runs as its own
+// process on a real pty pair, the rig opens the pty's port with the serial
+// link, and the firmware process is killed in the middle of a wall-clock
+// run, as a board whose USB cable is pulled. The rig must raise link_lost,
+// e-stop through the watchdog, and leave a complete run folder.
+func TestFirmwareProcessUnpluggedMidRun(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the command; skipped with -short")
+	}
+	bin := buildCommand(t)
+	fw := exec.Command(bin, "firmware", "--link", "pty")
+	stdout, err := fw.StdoutPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := fw.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer func() { fw.Process.Kill(); fw.Wait() }()
+	// The firmware prints the port for the rig: "... --link serial:/dev/pts/N".
+	portCh := make(chan string, 1)
+	go func() {
+		sc := bufio.NewScanner(stdout)
+		for sc.Scan() {
+			if _, after, ok := strings.Cut(sc.Text(), "--link "); ok {
+				portCh <- strings.TrimSpace(after)
+				break
+			}
+		}
+		io.Copy(io.Discard, stdout)
+	}()
+	var link string
+	select {
+	case link = <-portCh:
+	case <-time.After(20 * time.Second):
+		t.Fatal("the firmware process did not print its port within 20 s")
+	}
+
+	dir := filepath.Join(t.TempDir(), "run")
+	type result struct {
+		code     int
+		out, err string
+	}
+	done := make(chan result, 1)
+	go func() {
+		c, o, e := run(t, "run", "--quiet", "--report=false", "--clock", "wallclock", "--link", link, "--dir", dir, "level-demo")
+		done <- result{c, o, e}
+	}()
+	deadline := time.Now().Add(20 * time.Second)
+	for {
+		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 20000 {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal("no telemetry from the serial run within 20 s")
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	if err := fw.Process.Kill(); err != nil {
+		t.Fatal(err)
+	}
+	var r result
+	select {
+	case r = <-done:
+	case <-time.After(30 * time.Second):
+		t.Fatal("the rig did not end the run within 30 s of the unplug")
+	}
+	if r.code != exitFail {
+		t.Errorf("exit code %d after the unplug, want %d\n%s\n%s", r.code, exitFail, r.out, r.err)
+	}
+	s := readSummary(t, dir)
+	if s.Outcome != record.Tripped {
+		t.Errorf("outcome %s (%s), want tripped", s.Outcome, s.Reason)
+	}
+	if s.Alarms["link_lost"] == 0 && s.Alarms["watchdog"] == 0 {
+		t.Errorf("alarms %v: want link_lost or watchdog after the unplug", s.Alarms)
+	}
+	rr, err := record.Open(dir)
+	if err != nil {
+		t.Fatalf("run folder unreadable after the unplug: %v", err)
+	}
+	if len(rr.Notes) > 0 {
+		t.Errorf("run folder incomplete after the unplug: %v", rr.Notes)
 	}
 }

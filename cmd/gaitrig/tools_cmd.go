@@ -103,11 +103,11 @@ MQTT. Ends when the rig sends stop.`, stderr)
 		defer p.Close()
 		c := serial.NewConn(p.Master, "pty master", serial.Config{})
 		defer c.Close()
+		// The follower stays open here for the whole run: with no process
+		// holding it, the master reads EIO until the rig opens the port, and
+		// the firmware would take that for an unplugged cable. A rig that
+		// goes away is noticed by its stop message or the idle timeout.
 		fmt.Fprintf(stdout, "reference firmware waiting on a pty: run the rig with --link serial:%s\n", p.Path)
-		if err := p.ReleaseFollower(); err != nil {
-			fmt.Fprintln(stderr, "gaitrig firmware:", err)
-			return exitConfig
-		}
 		conn = c
 	case strings.HasPrefix(*link, "serial:"):
 		spec, err := parseLinkSpec(*link)
