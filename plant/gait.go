@@ -228,10 +228,6 @@ func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error)
 	var g Gait
 	pz := make([]float64, dim)
 	fz := make([]float64, dim)
-	zp := make([]float64, dim)
-	zm := make([]float64, dim)
-	pp := make([]float64, dim)
-	pm := make([]float64, dim)
 	J := mat.NewDense(dim, dim, nil)
 	for it := 0; ; it++ {
 		res, err := mapZ(z, pz)
@@ -253,25 +249,15 @@ func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error)
 		if it >= o.MaxIter {
 			break
 		}
+		// The Newton matrix is ∂(P(z) − z)/∂z = ∂P/∂z − I.
+		if j, err := centralDiff(J, z, o.FDStep, func(zin, out []float64) error {
+			_, err := mapZ(zin, out)
+			return err
+		}); err != nil {
+			return g, fmt.Errorf("plant: gait finder, Jacobian column %d: %w", j, err)
+		}
 		for j := 0; j < dim; j++ {
-			hj := o.FDStep * math.Max(1, math.Abs(z[j]))
-			copy(zp, z)
-			copy(zm, z)
-			zp[j] += hj
-			zm[j] -= hj
-			if _, err := mapZ(zp, pp); err != nil {
-				return g, fmt.Errorf("plant: gait finder, Jacobian column %d: %w", j, err)
-			}
-			if _, err := mapZ(zm, pm); err != nil {
-				return g, fmt.Errorf("plant: gait finder, Jacobian column %d: %w", j, err)
-			}
-			for i := 0; i < dim; i++ {
-				d := (pp[i] - pm[i]) / (2 * hj)
-				if i == j {
-					d -= 1
-				}
-				J.Set(i, j, d)
-			}
+			J.Set(j, j, J.At(j, j)-1)
 		}
 		var dz mat.VecDense
 		if err := dz.SolveVec(J, mat.NewVecDense(dim, fz)); err != nil {

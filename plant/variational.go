@@ -62,21 +62,17 @@ func (m *Model) MapJacobian(s State, policy Policy, o GaitOptions) (*mat.Dense, 
 
 	// DC = ∂x₀/∂z by central differences of FromReduced.
 	DC := mat.NewDense(nx, dim, nil)
-	for j := 0; j < dim; j++ {
-		hj := 1e-6 * math.Max(1, math.Abs(z0[j]))
-		zp := append([]float64(nil), z0...)
-		zm := append([]float64(nil), z0...)
-		zp[j] += hj
-		zm[j] -= hj
-		sp, err1 := m.FromReduced(zp, stance, x)
-		sm, err2 := m.FromReduced(zm, stance, x)
-		if err1 != nil || err2 != nil {
-			return nil, fmt.Errorf("plant: map Jacobian: cannot perturb coordinate %d", j)
+	if j, err := centralDiff(DC, z0, 1e-6, func(z, out []float64) error {
+		st, err := m.FromReduced(z, stance, x)
+		if err != nil {
+			return err
 		}
 		for i := 0; i < n; i++ {
-			DC.Set(i, j, (sp.Q[i]-sm.Q[i])/(2*hj))
-			DC.Set(n+i, j, (sp.V[i]-sm.V[i])/(2*hj))
+			out[i], out[n+i] = st.Q[i], st.V[i]
 		}
+		return nil
+	}); err != nil {
+		return nil, fmt.Errorf("plant: map Jacobian: cannot perturb coordinate %d", j)
 	}
 
 	// Φ(t*) by RK4 on the augmented system (x, Φ), modes of the start state.
@@ -193,22 +189,13 @@ func (m *Model) MapJacobian(s State, policy Policy, o GaitOptions) (*mat.Dense, 
 		}
 		return true
 	}
-	xp := make([]float64, nx)
-	xm := make([]float64, nx)
-	op := make([]float64, nx)
-	om := make([]float64, nx)
-	for j := 0; j < nx; j++ {
-		hj := 1e-6 * math.Max(1, math.Abs(xb[j]))
-		copy(xp, xb)
-		copy(xm, xb)
-		xp[j] += hj
-		xm[j] -= hj
-		if !impactOf(xp, op) || !impactOf(xm, om) {
-			return nil, fmt.Errorf("plant: map Jacobian: the impact changes character under a small perturbation")
+	if _, err := centralDiff(DD, xb, 1e-6, func(xin, out []float64) error {
+		if !impactOf(xin, out) {
+			return errNoValue
 		}
-		for i := 0; i < nx; i++ {
-			DD.Set(i, j, (op[i]-om[i])/(2*hj))
-		}
+		return nil
+	}); err != nil {
+		return nil, fmt.Errorf("plant: map Jacobian: the impact changes character under a small perturbation")
 	}
 
 	// DE: select the link angles and rates, stance first for the new stance.
@@ -248,22 +235,13 @@ func (m *Model) field(s *State, pol Policy, x []float64, dx []float64) bool {
 func (m *Model) fieldJacobian(s *State, pol Policy, x []float64) *mat.Dense {
 	nx := 2 * m.n
 	A := mat.NewDense(nx, nx, nil)
-	xp := make([]float64, nx)
-	xm := make([]float64, nx)
-	fp := make([]float64, nx)
-	fm := make([]float64, nx)
-	for j := 0; j < nx; j++ {
-		h := 1e-6 * math.Max(1, math.Abs(x[j]))
-		copy(xp, x)
-		copy(xm, x)
-		xp[j] += h
-		xm[j] -= h
-		if !m.field(s, pol, xp, fp) || !m.field(s, pol, xm, fm) {
-			return nil
+	if _, err := centralDiff(A, x, 1e-6, func(xin, out []float64) error {
+		if !m.field(s, pol, xin, out) {
+			return errNoValue
 		}
-		for i := 0; i < nx; i++ {
-			A.Set(i, j, (fp[i]-fm[i])/(2*h))
-		}
+		return nil
+	}); err != nil {
+		return nil
 	}
 	return A
 }
@@ -281,26 +259,19 @@ func (m *Model) MapJacobianFD(s State, policy Policy, o GaitOptions, h float64) 
 	dim := 2 * m.nLinks
 	z0 := m.Reduced(&s)
 	J := mat.NewDense(dim, dim, nil)
-	pp := make([]float64, dim)
-	pm := make([]float64, dim)
-	for j := 0; j < dim; j++ {
-		hj := h * math.Max(1, math.Abs(z0[j]))
-		for sign, out := range [2][]float64{pp, pm} {
-			z := append([]float64(nil), z0...)
-			z[j] += hj * float64(1-2*sign)
-			st, err := m.FromReduced(z, s.Stance, s.Q[0])
-			if err != nil {
-				return nil, err
-			}
-			res, err := m.stepMap(st, policy, o, nil)
-			if err != nil {
-				return nil, err
-			}
-			m.reduced(&res.After, out)
+	if _, err := centralDiff(J, z0, h, func(z, out []float64) error {
+		st, err := m.FromReduced(z, s.Stance, s.Q[0])
+		if err != nil {
+			return err
 		}
-		for i := 0; i < dim; i++ {
-			J.Set(i, j, (pp[i]-pm[i])/(2*hj))
+		res, err := m.stepMap(st, policy, o, nil)
+		if err != nil {
+			return err
 		}
+		m.reduced(&res.After, out)
+		return nil
+	}); err != nil {
+		return nil, err
 	}
 	return J, nil
 }
