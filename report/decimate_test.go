@@ -2,6 +2,7 @@ package report
 
 import (
 	"math"
+	"slices"
 	"testing"
 )
 
@@ -92,16 +93,8 @@ func TestPickEvenly(t *testing.T) {
 		{100, 2, []int{0, 99}},
 	}
 	for _, tc := range tests {
-		got := pickEvenly(tc.n, tc.k)
-		if len(got) != len(tc.want) {
+		if got := pickEvenly(tc.n, tc.k); !slices.Equal(got, tc.want) {
 			t.Errorf("pickEvenly(%d,%d) = %v, want %v", tc.n, tc.k, got, tc.want)
-			continue
-		}
-		for i := range got {
-			if got[i] != tc.want[i] {
-				t.Errorf("pickEvenly(%d,%d) = %v, want %v", tc.n, tc.k, got, tc.want)
-				break
-			}
 		}
 	}
 }

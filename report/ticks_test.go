@@ -2,6 +2,7 @@ package report
 
 import (
 	"math"
+	"slices"
 	"testing"
 )
 
@@ -28,15 +29,8 @@ func TestNiceTicks(t *testing.T) {
 				t.Errorf("[%g, %g]: tick %g outside the range", tc.lo, tc.hi, tk.Value)
 			}
 		}
-		if len(got) != len(tc.wantMajor) {
+		if !slices.Equal(got, tc.wantMajor) {
 			t.Errorf("[%g, %g]: labels %v, want %v", tc.lo, tc.hi, got, tc.wantMajor)
-			continue
-		}
-		for i := range got {
-			if got[i] != tc.wantMajor[i] {
-				t.Errorf("[%g, %g]: labels %v, want %v", tc.lo, tc.hi, got, tc.wantMajor)
-				break
-			}
 		}
 	}
 }
