@@ -271,6 +271,9 @@ func runScenario(ctx context.Context, sc *scenarios.Scenario, o runOptions) (run
 		return runResult{}, err
 	}
 	defer closeLink()
+	if o.Log != nil {
+		fmt.Fprintf(o.Log, "link: %s\n", linkName)
+	}
 
 	if o.Live != nil {
 		live := o.Live

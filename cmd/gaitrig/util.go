@@ -28,6 +28,8 @@ func fmtNum(v float64) string {
 	switch {
 	case a == 0:
 		return "0"
+	case v == math.Trunc(v) && a < 1e6:
+		return strconv.FormatFloat(v, 'f', 0, 64)
 	case a >= 1e5 || a < 1e-3:
 		return strconv.FormatFloat(v, 'g', 4, 64)
 	case a >= 100:
