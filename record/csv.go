@@ -88,11 +88,7 @@ func appendTick(b []byte, t *Tick, nq, nj int) []byte {
 	b = append(b, ',')
 	b = appendFloat(b, t.LatencyUS)
 	b = append(b, ',')
-	if t.Fresh {
-		b = append(b, '1')
-	} else {
-		b = append(b, '0')
-	}
+	b = appendBit(b, t.Fresh)
 	b = append(b, ',')
 	b = strconv.AppendInt(b, int64(t.Stance), 10)
 	return append(b, '\n')
@@ -111,11 +107,7 @@ func appendStep(b []byte, s *Step) []byte {
 		b = appendFloat(b, x)
 	}
 	b = append(b, ',')
-	if p.HasTorso {
-		b = append(b, '1')
-	} else {
-		b = append(b, '0')
-	}
+	b = appendBit(b, p.HasTorso)
 	b = append(b, ',')
 	b = appendFloat(b, p.TorsoTop[0])
 	b = append(b, ',')

@@ -295,3 +295,12 @@ func writeJSONAtomic(path string, v any) error {
 func appendFloat(b []byte, x float64) []byte {
 	return strconv.AppendFloat(b, x, 'g', -1, 64)
 }
+
+// appendBit appends a flag as the CSV column value 1 or 0, which every
+// spreadsheet and plotting tool reads as a number.
+func appendBit(b []byte, v bool) []byte {
+	if v {
+		return append(b, '1')
+	}
+	return append(b, '0')
+}
