@@ -17,8 +17,7 @@ import (
 // true, and returns the mallocs the process made during the run.
 func runTicks(tb testing.TB, n int, rec bool) (mallocs uint64, elapsed time.Duration) {
 	tb.Helper()
-	m, s, cfg := demo(tb, 0)
-	cfg.MaxSteps, cfg.Duration = 0, float64(n)/DefaultTickHz
+	m, s, cfg := timedDemo(tb, float64(n)/DefaultTickHz)
 	rig, fw := inproc.Pair()
 	defer rig.Close()
 	done := make(chan error, 1)

@@ -16,46 +16,6 @@ import (
 	"gaitrig/scenarios"
 )
 
-// scripted is a firmware that answers every state with answer(seq).
-func scripted(answer func(seq uint32, out *protocol.Command)) firmwareFunc {
-	return func(conn bridges.Conn) error {
-		if _, err := greet(conn, 2, protocol.Version); err != nil {
-			return err
-		}
-		_, err := untilStop(conn, func(in *protocol.Message) {
-			if in.Type != protocol.TypeState {
-				return
-			}
-			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-			out.Command.Joints = 2
-			answer(in.Seq, &out.Command)
-			conn.Send(&out)
-		})
-		return err
-	}
-}
-
-// seqTorque answers with a tiny torque that encodes the sequence number.
-func seqTorque(seq uint32, c *protocol.Command) { c.Torque[0] = float32(seq) * 1e-3 }
-
-func shortRun(t *testing.T, ticks int) (Config, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string)) {
-	m, s, cfg := demo(t, 0)
-	cfg.MaxSteps, cfg.Duration = 0, float64(ticks)/DefaultTickHz
-	return cfg, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string) {
-		t.Helper()
-		res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
-		if err != nil || ferr != nil {
-			t.Fatal(err, ferr)
-		}
-		run := openRun(t, dir)
-		ticks, _, err := run.AllTicks()
-		if err != nil {
-			t.Fatal(err)
-		}
-		return res, ticks, dir
-	}
-}
-
 func TestLatencyFaultDelaysCommandsByWholeTicks(t *testing.T) {
 	cfg, run := shortRun(t, 60)
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: 5 * time.Millisecond}}
@@ -195,25 +155,25 @@ func TestLinkEventsBecomeAlarms(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			m, s, cfg := demo(t, 0)
-			cfg.MaxSteps, cfg.Duration = 0, 0.1
+			m, s, cfg := timedDemo(t, 0.1)
 			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
-			rig, fw := inprocPair()
-			defer rig.Close()
-			conn := &notifyConn{Conn: rig, ev: make(chan bridges.LinkEvent, 4)}
-			conn.ev <- bridges.LinkEvent{Kind: "disconnected", Err: errTest("serial port unplugged")}
-			conn.ev <- bridges.LinkEvent{Kind: "reconnected", Gap: tc.gap}
-			go referenceFirmware(fw)
-			rec := newRecord(t, cfg, m, s)
-			res, err := Run(context.Background(), cfg, m, s, conn, rec)
+			withEvents := func(rig bridges.Conn) bridges.Conn {
+				conn := &notifyConn{Conn: rig, ev: make(chan bridges.LinkEvent, 4)}
+				conn.ev <- bridges.LinkEvent{Kind: "disconnected", Err: errTest("serial port unplugged")}
+				conn.ev <- bridges.LinkEvent{Kind: "reconnected", Gap: tc.gap}
+				return conn
+			}
+			// The firmware's own error is not checked: after a trip the
+			// reference firmware reports the rig's stop.
+			res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, withEvents, referenceFirmware)
 			if err != nil {
 				t.Fatal(err)
 			}
 			if res.Summary.Outcome != tc.outcome {
 				t.Fatalf("outcome %s (%s), want %s", res.Summary.Outcome, res.Summary.Reason, tc.outcome)
 			}
-			lost := eventsOf(t, rec.Dir(), scenarios.AlarmLinkLost)
-			back := eventsOf(t, rec.Dir(), scenarios.AlarmLinkRestored)
+			lost := eventsOf(t, dir, scenarios.AlarmLinkLost)
+			back := eventsOf(t, dir, scenarios.AlarmLinkRestored)
 			if len(lost) != 1 || len(back) != 1 || back[0].Values["gap_ms"] != float64(tc.gap)/1e6 {
 				t.Fatalf("link_lost %+v, link_restored %+v", lost, back)
 			}
@@ -244,35 +204,26 @@ func (s *sink) PublishAlarm(b []byte) error {
 func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
 	cfg, run := shortRun(t, 500)
 	var sk sink
-	cfg.Alarms = &sink{}
 	cfg.Alarms = &sk
 	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmFirmwareFault: scenarios.SeverityWarn}
-	fw := func(conn bridges.Conn) error {
-		if _, err := greet(conn, 2, protocol.Version); err != nil {
-			return err
+	// Answers with the fault status bit set from state 20 on, stops itself
+	// with a motor driver fault at state 50 and answers nothing after.
+	stopped := false
+	fw := hooked(func(conn bridges.Conn, seq uint32, c *protocol.Command) bool {
+		if stopped {
+			return false
 		}
-		var m protocol.Message
-		for {
-			if err := conn.Recv(time.Now().Add(5*time.Second), &m); err != nil {
-				return err
-			}
-			if m.Type != protocol.TypeState {
-				continue
-			}
-			if m.Seq == 50 {
-				stop := protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: protocol.StopFirmware, Text: "motor driver fault"}}
-				conn.Send(&stop)
-				_, err := untilStop(conn, nil)
-				return err
-			}
-			out := protocol.Message{Type: protocol.TypeCommand, Seq: m.Seq}
-			out.Command.Joints = 2
-			if m.Seq >= 20 {
-				out.Command.Status = protocol.StatusFault
-			}
-			conn.Send(&out)
+		if seq == 50 {
+			stopped = true
+			stop := protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: protocol.StopFirmware, Text: "motor driver fault"}}
+			conn.Send(&stop)
+			return false
 		}
-	}
+		if seq >= 20 {
+			c.Status = protocol.StatusFault
+		}
+		return true
+	}, nil)
 	res, _, dir := run(cfg, fw)
 	if res.Summary.Outcome != record.Fail || res.Summary.Ticks != 49 {
 		t.Fatalf("outcome %s after %d ticks (%s): want fail at tick 49", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
@@ -318,18 +269,14 @@ func (w *wrapped) Unwrap() error { return w.err }
 func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
 	for _, clock := range []ClockMode{Lockstep, Wallclock} {
 		t.Run(string(clock), func(t *testing.T) {
-			m, s, cfg := demo(t, 0)
+			m, s, cfg := timedDemo(t, 0.1)
 			cfg.Clock = clock
-			cfg.MaxSteps, cfg.Duration = 0, 0.1
 			cfg.Watchdog = time.Second
 			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
-			rig, fw := inprocPair()
-			defer rig.Close()
-			go referenceFirmware(fw)
-			rec := newRecord(t, cfg, m, s)
 			// Recv number 3 is the one after the greeting and the first
 			// state's command in lockstep; any early one will do.
-			res, err := Run(context.Background(), cfg, m, s, &downOnceConn{Conn: rig, at: 3}, rec)
+			downOnce := func(rig bridges.Conn) bridges.Conn { return &downOnceConn{Conn: rig, at: 3} }
+			res, _, err, _ := runWrapped(t, context.Background(), cfg, m, s, downOnce, referenceFirmware)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -350,9 +297,8 @@ func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
 func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
 	for _, clock := range []ClockMode{Lockstep, Wallclock} {
 		t.Run(string(clock), func(t *testing.T) {
-			m, s, cfg := demo(t, 0)
+			cfg, run := shortRun(t, 300)
 			cfg.Clock = clock
-			cfg.MaxSteps, cfg.Duration = 0, 0.3
 			cfg.Watchdog = time.Second
 			cfg.Severity = map[string]scenarios.Severity{}
 			for _, k := range scenarios.AlarmKinds {
@@ -388,18 +334,7 @@ func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
 				})
 				return err
 			}
-			res, ticks, dir := func() (Result, []record.Tick, string) {
-				res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
-				if err != nil || ferr != nil {
-					t.Fatal(err, ferr)
-				}
-				run := openRun(t, dir)
-				ticks, truncated, err := run.AllTicks()
-				if err != nil || truncated {
-					t.Fatalf("telemetry: truncated %v, %v", truncated, err)
-				}
-				return res, ticks, dir
-			}()
+			res, ticks, dir := run(cfg, fw)
 			if int64(len(ticks)) != res.Summary.Ticks {
 				t.Fatalf("%d rows for %d ticks", len(ticks), res.Summary.Ticks)
 			}
@@ -482,24 +417,15 @@ func TestGreetingAfterHandshake(t *testing.T) {
 							return err // this configuration is "lost": greet again
 						}
 					}
-					if _, err := greet(conn, 2, protocol.Version); err != nil {
-						return err
-					}
 					restarted := false
-					_, err := untilStop(conn, func(in *protocol.Message) {
-						if in.Type != protocol.TypeState {
-							return
-						}
-						if in.Seq == tc.restartAt && !restarted {
+					return hooked(func(conn bridges.Conn, seq uint32, _ *protocol.Command) bool {
+						if seq == tc.restartAt && !restarted {
 							restarted = true
 							greet(conn, 2, protocol.Version) // reboot: greet, wait for the configuration
-							return
+							return false
 						}
-						out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-						out.Command.Joints = 2
-						conn.Send(&out)
-					})
-					return err
+						return true
+					}, nil)(conn)
 				}
 				res, _, _ := run(cfg, fw)
 				if res.Summary.Ticks != 300 || res.Summary.Outcome == record.Tripped || res.Summary.Outcome == record.Aborted {
@@ -533,8 +459,7 @@ func (s *stallConn) Recv(deadline time.Time, m *protocol.Message) error {
 // watchdog, three 100 ms stalls of the rig do not trip it, while a silent
 // firmware still does (TestWatchdogTripsOnSilentFirmware).
 func TestLockstepWatchdogIgnoresRigStalls(t *testing.T) {
-	m, s, cfg := demo(t, 0)
-	cfg.MaxSteps, cfg.Duration = 0, 0.05
+	m, s, cfg := timedDemo(t, 0.05)
 	cfg.Watchdog = 30 * time.Millisecond
 	cfg.Resend = time.Second // no resends: only the stall logic can save the run
 	rig, fw := inprocPair()

@@ -46,6 +46,15 @@ func demo(t testing.TB, steps int) (*plant.Model, plant.State, Config) {
 	return m, s, cfg
 }
 
+// timedDemo is demo for a run that ends on time alone: the given simulated
+// seconds, no step limit.
+func timedDemo(t testing.TB, seconds float64) (*plant.Model, plant.State, Config) {
+	t.Helper()
+	m, s, cfg := demo(t, 0)
+	cfg.MaxSteps, cfg.Duration = 0, seconds
+	return m, s, cfg
+}
+
 // newRecord creates a run folder in a temporary directory.
 func newRecord(t testing.TB, cfg Config, m *plant.Model, s plant.State) *record.Writer {
 	t.Helper()
@@ -67,12 +76,24 @@ type firmwareFunc func(conn bridges.Conn) error
 // result, the run folder and what the firmware returned.
 func runWith(t testing.TB, ctx context.Context, cfg Config, m *plant.Model, s plant.State, fw firmwareFunc) (Result, string, error, error) {
 	t.Helper()
+	return runWrapped(t, ctx, cfg, m, s, nil, fw)
+}
+
+// runWrapped is runWith with the rig's end of the link seen through wrap
+// (nil: as it is), for links that misbehave on purpose.
+func runWrapped(t testing.TB, ctx context.Context, cfg Config, m *plant.Model, s plant.State,
+	wrap func(rig bridges.Conn) bridges.Conn, fw firmwareFunc) (Result, string, error, error) {
+	t.Helper()
 	rig, fwEnd := inproc.Pair()
 	defer rig.Close()
+	var conn bridges.Conn = rig
+	if wrap != nil {
+		conn = wrap(rig)
+	}
 	rec := newRecord(t, cfg, m, s)
 	fwErr := make(chan error, 1)
 	go func() { fwErr <- fw(fwEnd) }()
-	res, err := Run(ctx, cfg, m, s, rig, rec)
+	res, err := Run(ctx, cfg, m, s, conn, rec)
 	rig.Close()
 	var ferr error
 	select {
@@ -81,6 +102,46 @@ func runWith(t testing.TB, ctx context.Context, cfg Config, m *plant.Model, s pl
 		t.Fatal("test firmware did not end within 10 s of the run")
 	}
 	return res, rec.Dir(), err, ferr
+}
+
+// runAndRead is runWith for a run that must end without an error from the
+// loop or the firmware; it returns the result and the run folder read back
+// with its telemetry, which must be complete.
+func runAndRead(t testing.TB, ctx context.Context, cfg Config, m *plant.Model, s plant.State, fw firmwareFunc) (Result, *record.Run, []record.Tick) {
+	t.Helper()
+	res, dir, err, ferr := runWith(t, ctx, cfg, m, s, fw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ferr != nil {
+		t.Fatalf("firmware: %v", ferr)
+	}
+	run, ticks := readRun(t, dir)
+	return res, run, ticks
+}
+
+// readRun opens a finished run folder and reads all its telemetry rows,
+// failing the test when the summary is missing or the last row is cut.
+func readRun(t testing.TB, dir string) (*record.Run, []record.Tick) {
+	t.Helper()
+	run := openRun(t, dir)
+	ticks, truncated, err := run.AllTicks()
+	if err != nil || truncated {
+		t.Fatalf("telemetry of %s: truncated %v, %v", dir, truncated, err)
+	}
+	return run, ticks
+}
+
+// shortRun returns a lockstep config of the demo walker that runs for the
+// given number of ticks, and a function that runs it against a firmware
+// and returns the result, the telemetry and the run folder.
+func shortRun(t *testing.T, ticks int) (Config, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string)) {
+	m, s, cfg := timedDemo(t, float64(ticks)/DefaultTickHz)
+	return cfg, func(cfg Config, fw firmwareFunc) (Result, []record.Tick, string) {
+		t.Helper()
+		res, run, rows := runAndRead(t, context.Background(), cfg, m, s, fw)
+		return res, rows, run.Dir
+	}
 }
 
 // reference firmware with default gains.
@@ -113,6 +174,47 @@ type stopError struct{ s protocol.Stop }
 
 func (e *stopError) Error() string { return "stopped: " + e.s.Text }
 
+// answerHook sees each state a scripted firmware receives, with the link,
+// and fills the command that answers it (two joints, the state's sequence
+// number already set); it returns false to leave the state unanswered.
+type answerHook func(conn bridges.Conn, seq uint32, out *protocol.Command) bool
+
+// hooked is a firmware that greets, then hands every state to hook and
+// sends the command it filled unless hook declines. When stop is not nil it
+// receives the rig's Stop that ended the run.
+func hooked(hook answerHook, stop *protocol.Stop) firmwareFunc {
+	return func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		st, err := untilStop(conn, func(in *protocol.Message) {
+			if in.Type != protocol.TypeState {
+				return
+			}
+			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
+			out.Command.Joints = 2
+			if hook(conn, in.Seq, &out.Command) {
+				conn.Send(&out)
+			}
+		})
+		if stop != nil {
+			*stop = st
+		}
+		return err
+	}
+}
+
+// scripted is a firmware that answers every state with answer(seq).
+func scripted(answer func(seq uint32, out *protocol.Command)) firmwareFunc {
+	return hooked(func(_ bridges.Conn, seq uint32, out *protocol.Command) bool {
+		answer(seq, out)
+		return true
+	}, nil)
+}
+
+// seqTorque answers with a tiny torque that encodes the sequence number.
+func seqTorque(seq uint32, c *protocol.Command) { c.Torque[0] = float32(seq) * 1e-3 }
+
 // untilStop reads messages until a Stop arrives and returns it.
 func untilStop(conn bridges.Conn, each func(m *protocol.Message)) (protocol.Stop, error) {
 	var m protocol.Message
@@ -130,6 +232,7 @@ func untilStop(conn bridges.Conn, each func(m *protocol.Message)) (protocol.Stop
 	}
 }
 
+// fileHash returns the SHA-256 of a file in hex.
 func fileHash(t testing.TB, path string) string {
 	t.Helper()
 	b, err := os.ReadFile(path)
@@ -156,6 +259,7 @@ func eventsOf(t testing.TB, dir, kind string) []record.Event {
 	return out
 }
 
+// openRun opens a run folder that must have closed with a summary.
 func openRun(t testing.TB, dir string) *record.Run {
 	t.Helper()
 	run, err := record.Open(dir)

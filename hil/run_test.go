@@ -16,13 +16,7 @@ import (
 
 func TestReferenceWalks30StepsLockstep(t *testing.T) {
 	m, s, cfg := demo(t, 30)
-	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if ferr != nil {
-		t.Fatalf("firmware: %v", ferr)
-	}
+	res, run, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
 	sum := res.Summary
 	if sum.Outcome != record.Pass || sum.Steps < 30 {
 		t.Fatalf("outcome %s after %d steps (%s)", sum.Outcome, sum.Steps, sum.Reason)
@@ -30,13 +24,8 @@ func TestReferenceWalks30StepsLockstep(t *testing.T) {
 	for kind, n := range sum.Alarms {
 		t.Errorf("alarm %s raised %d times on a nominal walk", kind, n)
 	}
-	run := openRun(t, dir)
 	if len(run.Steps) != sum.Steps {
 		t.Errorf("steps.csv has %d rows, summary says %d steps", len(run.Steps), sum.Steps)
-	}
-	ticks, _, err := run.AllTicks()
-	if err != nil {
-		t.Fatal(err)
 	}
 	if int64(len(ticks)) != sum.Ticks {
 		t.Errorf("telemetry has %d rows, summary says %d ticks", len(ticks), sum.Ticks)
@@ -79,14 +68,8 @@ func TestWatchdogTripsOnSilentFirmware(t *testing.T) {
 	m, s, cfg := demo(t, 30)
 	cfg.Watchdog = 30 * time.Millisecond
 	var got protocol.Stop
-	silent := func(conn bridges.Conn) error {
-		if _, err := greet(conn, 2, protocol.Version); err != nil {
-			return err
-		}
-		st, err := untilStop(conn, nil) // reads states, never answers
-		got = st
-		return err
-	}
+	// Reads states, never answers.
+	silent := hooked(func(bridges.Conn, uint32, *protocol.Command) bool { return false }, &got)
 	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, silent)
 	if err != nil || ferr != nil {
 		t.Fatal(err, ferr)
@@ -126,38 +109,17 @@ func TestBadTorquesRejected(t *testing.T) {
 	for _, tc := range tests {
 		for _, sev := range []scenarios.Severity{scenarios.SeverityWarn, scenarios.SeverityTrip} {
 			t.Run(tc.name+"/"+string(sev), func(t *testing.T) {
-				m, s, cfg := demo(t, 0)
-				cfg.MaxSteps, cfg.Duration = 0, 0.2
+				m, s, cfg := timedDemo(t, 0.2)
 				cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: sev}
 				// A firmware that answers with a steady 5 N·m and sends the
 				// bad torque on hip_right at every 20th state.
-				fw := func(conn bridges.Conn) error {
-					if _, err := greet(conn, 2, protocol.Version); err != nil {
-						return err
+				fw := scripted(func(seq uint32, c *protocol.Command) {
+					c.Torque = [protocol.MaxJoints]float32{5, 5}
+					if seq%20 == 0 {
+						c.Torque[1] = tc.torque
 					}
-					_, err := untilStop(conn, func(in *protocol.Message) {
-						if in.Type != protocol.TypeState {
-							return
-						}
-						out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-						out.Command.Joints = 2
-						out.Command.Torque = [protocol.MaxJoints]float32{5, 5}
-						if in.Seq%20 == 0 {
-							out.Command.Torque[1] = tc.torque
-						}
-						conn.Send(&out)
-					})
-					return err
-				}
-				res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, fw)
-				if err != nil || ferr != nil {
-					t.Fatal(err, ferr)
-				}
-				run := openRun(t, dir)
-				ticks, _, err := run.AllTicks()
-				if err != nil {
-					t.Fatal(err)
-				}
+				})
+				res, run, ticks := runAndRead(t, context.Background(), cfg, m, s, fw)
 				bad := 0
 				for _, row := range ticks {
 					cmd := row.Commanded[1]
@@ -175,7 +137,7 @@ func TestBadTorquesRejected(t *testing.T) {
 				if bad == 0 {
 					t.Fatal("no bad command reached the telemetry")
 				}
-				alarms := eventsOf(t, dir, scenarios.AlarmBadTorque)
+				alarms := eventsOf(t, run.Dir, scenarios.AlarmBadTorque)
 				if len(alarms) == 0 {
 					t.Fatal("no bad_torque alarm logged")
 				}
@@ -256,12 +218,8 @@ func (f *frameErrConn) Recv(d time.Time, m *protocol.Message) error {
 
 func TestBadFramesAlarmAndCount(t *testing.T) {
 	m, s, cfg := demo(t, 6)
-	rig, fwEnd := inprocPair()
-	defer rig.Close()
-	go referenceFirmware(fwEnd)
-	rec := newRecord(t, cfg, m, s)
-	conn := &frameErrConn{Conn: rig, every: 50}
-	res, err := Run(context.Background(), cfg, m, s, conn, rec)
+	noisy := func(rig bridges.Conn) bridges.Conn { return &frameErrConn{Conn: rig, every: 50} }
+	res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, noisy, referenceFirmware)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -271,7 +229,7 @@ func TestBadFramesAlarmAndCount(t *testing.T) {
 	if res.Link.BadFrames == 0 || uint64(res.Summary.Alarms[scenarios.AlarmBadFrame]) != res.Link.BadFrames {
 		t.Fatalf("%d bad frames counted, %d alarms", res.Link.BadFrames, res.Summary.Alarms[scenarios.AlarmBadFrame])
 	}
-	logged := eventsOf(t, rec.Dir(), scenarios.AlarmBadFrame)
+	logged := eventsOf(t, dir, scenarios.AlarmBadFrame)
 	if len(logged) == 0 || len(logged) >= int(res.Link.BadFrames) {
 		t.Fatalf("%d bad_frame lines logged for %d bad frames: want rate-limited, at least one", len(logged), res.Link.BadFrames)
 	}
@@ -282,35 +240,18 @@ func TestAbortSendsStopAndWritesEverything(t *testing.T) {
 	m, s, cfg := demo(t, 1000)
 	ctx, cancel := context.WithCancelCause(context.Background())
 	var got protocol.Stop
-	fw := func(conn bridges.Conn) error {
-		if _, err := greet(conn, 2, protocol.Version); err != nil {
-			return err
+	fw := hooked(func(_ bridges.Conn, seq uint32, _ *protocol.Command) bool {
+		if seq == 300 {
+			cancel(errors.New("SIGINT"))
 		}
-		st, err := untilStop(conn, func(in *protocol.Message) {
-			if in.Type != protocol.TypeState {
-				return
-			}
-			if in.Seq == 300 {
-				cancel(errors.New("SIGINT"))
-			}
-			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-			out.Command.Joints = 2
-			conn.Send(&out)
-		})
-		got = st
-		return err
-	}
-	res, dir, err, ferr := runWith(t, ctx, cfg, m, s, fw)
-	if err != nil || ferr != nil {
-		t.Fatal(err, ferr)
-	}
+		return true
+	}, &got)
+	res, run, ticks := runAndRead(t, ctx, cfg, m, s, fw)
 	if res.Summary.Outcome != record.Aborted || got.Reason != protocol.StopAborted {
 		t.Fatalf("outcome %s, stop reason %d, want aborted", res.Summary.Outcome, got.Reason)
 	}
-	run := openRun(t, dir)
-	ticks, truncated, err := run.AllTicks()
-	if err != nil || truncated || int64(len(ticks)) != run.Summary.Ticks || len(ticks) < 299 {
-		t.Fatalf("telemetry after abort: %d rows, truncated %v, summary %d ticks, err %v", len(ticks), truncated, run.Summary.Ticks, err)
+	if int64(len(ticks)) != run.Summary.Ticks || len(ticks) < 299 {
+		t.Fatalf("telemetry after abort: %d rows, summary %d ticks", len(ticks), run.Summary.Ticks)
 	}
 }
 
@@ -363,15 +304,7 @@ func TestReplayMatchesExactly(t *testing.T) {
 	cfg.Sensors.AngleNoise = 1e-3
 	cfg.Actuators.Lag = 0.005
 	cfg.Pushes = []Push{{AtStep: 2, Force: [2]float64{30, 0}, Duration: 0.1}}
-	_, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
-	if err != nil || ferr != nil {
-		t.Fatal(err, ferr)
-	}
-	run := openRun(t, dir)
-	ticks, _, err := run.AllTicks()
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
 	pushed := 0
 	for _, row := range ticks {
 		if row.Push[0] != 0 {
@@ -416,33 +349,14 @@ func TestEStopCoast(t *testing.T) {
 			m, s, cfg := demo(t, 30)
 			cfg.Watchdog = 30 * time.Millisecond
 			cfg.EStop, cfg.EStopDamping, cfg.EStopCoast = tc.policy, tc.damping, 1.0
-			silentAfter := func(conn bridges.Conn) error {
-				if _, err := greet(conn, 2, protocol.Version); err != nil {
-					return err
-				}
-				_, err := untilStop(conn, func(in *protocol.Message) {
-					if in.Type != protocol.TypeState || in.Seq > 200 {
-						return // answers 200 states, then falls silent
-					}
-					out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-					out.Command.Joints = 2
-					conn.Send(&out)
-				})
-				return err
-			}
-			res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, silentAfter)
-			if err != nil || ferr != nil {
-				t.Fatal(err, ferr)
-			}
+			// Answers 200 states, then falls silent.
+			silentAfter := hooked(func(_ bridges.Conn, seq uint32, _ *protocol.Command) bool { return seq <= 200 }, nil)
+			res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, silentAfter)
 			// The coast lasts 1 s unless the walker falls first (the plant
 			// stops at a fall); either way it must have gone past the trip.
 			fell := res.Summary.Alarms[scenarios.AlarmFall] == 1
 			if res.Summary.Outcome != record.Tripped || res.Summary.Ticks < 260 || (!fell && res.Summary.Ticks < 1200) {
 				t.Fatalf("outcome %s after %d ticks, alarms %v: want tripped, then coasting until a fall or for 1 s", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms)
-			}
-			ticks, _, err := openRun(t, dir).AllTicks()
-			if err != nil {
-				t.Fatal(err)
 			}
 			checked := 0
 			for k := 201; k < len(ticks); k++ {

@@ -18,16 +18,12 @@ import (
 // jitter figures are filled. Timing numbers are only logged: speed is for
 // benchmarks, not for asserts.
 func TestWallclockInproc1kHz(t *testing.T) {
-	m, s, cfg := demo(t, 0)
+	m, s, cfg := timedDemo(t, 0.5)
 	cfg.Clock = Wallclock
-	cfg.MaxSteps, cfg.Duration = 0, 0.5
 	cfg.Watchdog = time.Second // generous: other tests share the 2 cores
 	var lines []string
 	cfg.Log = func(l string) { lines = append(lines, l) }
-	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, referenceFirmware)
-	if err != nil || ferr != nil {
-		t.Fatal(err, ferr)
-	}
+	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
 	sum := res.Summary
 	if sum.Ticks != 500 {
 		t.Fatalf("%d ticks in 0.5 s at 1 kHz, want 500", sum.Ticks)
@@ -41,10 +37,8 @@ func TestWallclockInproc1kHz(t *testing.T) {
 	if res.Realtime == "" {
 		t.Error("no word on the scheduling class")
 	}
-	run := openRun(t, dir)
-	ticks, _, err := run.AllTicks()
-	if err != nil || len(ticks) != 500 {
-		t.Fatalf("%d telemetry rows, err %v", len(ticks), err)
+	if len(ticks) != 500 {
+		t.Fatalf("%d telemetry rows, want 500", len(ticks))
 	}
 	fresh := 0
 	for _, row := range ticks {
@@ -63,48 +57,27 @@ func TestWallclockInproc1kHz(t *testing.T) {
 // frames are counted, and an interrupt ends the run with everything
 // written and a Stop sent.
 func TestWallclockBadInputAndAbort(t *testing.T) {
-	m, s, cfg := demo(t, 0)
+	m, s, cfg := timedDemo(t, 5)
 	cfg.Clock = Wallclock
-	cfg.MaxSteps, cfg.Duration = 0, 5
 	cfg.Watchdog = time.Second
 	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: scenarios.SeverityWarn}
 	ctx, cancel := context.WithCancelCause(context.Background())
 	defer cancel(nil)
 	var stop protocol.Stop
-	fw := func(conn bridges.Conn) error {
-		if _, err := greet(conn, 2, protocol.Version); err != nil {
-			return err
+	fw := hooked(func(_ bridges.Conn, seq uint32, c *protocol.Command) bool {
+		if seq == 300 {
+			cancel(errors.New("SIGINT"))
 		}
-		st, err := untilStop(conn, func(in *protocol.Message) {
-			if in.Type != protocol.TypeState {
-				return
-			}
-			if in.Seq == 300 {
-				cancel(errors.New("SIGINT"))
-			}
-			out := protocol.Message{Type: protocol.TypeCommand, Seq: in.Seq}
-			out.Command.Joints = 2
-			out.Command.Torque[0] = 3
-			if in.Seq%50 == 0 {
-				out.Command.Torque[0] = float32(math.NaN())
-			}
-			conn.Send(&out)
-		})
-		stop = st
-		return err
-	}
-	rig, fwEnd := inprocPair()
-	defer rig.Close()
-	conn := &frameErrConn{Conn: rig, every: 97}
-	done := make(chan error, 1)
-	go func() { done <- fw(fwEnd) }()
-	rec := newRecord(t, cfg, m, s)
-	res, err := Run(ctx, cfg, m, s, conn, rec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if ferr := <-done; ferr != nil {
-		t.Fatal(ferr)
+		c.Torque[0] = 3
+		if seq%50 == 0 {
+			c.Torque[0] = float32(math.NaN())
+		}
+		return true
+	}, &stop)
+	noisy := func(rig bridges.Conn) bridges.Conn { return &frameErrConn{Conn: rig, every: 97} }
+	res, dir, err, ferr := runWrapped(t, ctx, cfg, m, s, noisy, fw)
+	if err != nil || ferr != nil {
+		t.Fatal(err, ferr)
 	}
 	if res.Summary.Outcome != record.Aborted || stop.Reason != protocol.StopAborted {
 		t.Fatalf("outcome %s, stop reason %d", res.Summary.Outcome, stop.Reason)
@@ -112,17 +85,16 @@ func TestWallclockBadInputAndAbort(t *testing.T) {
 	if res.Link.BadTorques == 0 || res.Link.BadFrames == 0 {
 		t.Fatalf("counts %+v", res.Link)
 	}
-	run := openRun(t, rec.Dir())
-	ticks, truncated, err := run.AllTicks()
-	if err != nil || truncated || int64(len(ticks)) != run.Summary.Ticks {
-		t.Fatalf("%d rows, truncated %v, err %v, summary %d ticks", len(ticks), truncated, err, run.Summary.Ticks)
+	run, ticks := readRun(t, dir)
+	if int64(len(ticks)) != run.Summary.Ticks {
+		t.Fatalf("%d rows, summary %d ticks", len(ticks), run.Summary.Ticks)
 	}
 	for _, row := range ticks {
 		if math.IsNaN(row.Commanded[0]) && (row.Applied[0] != 0 || row.Applied[1] != 0) {
 			t.Fatalf("tick %d: NaN commanded, %v applied", row.Index, row.Applied[:2])
 		}
 	}
-	if len(eventsOf(t, rec.Dir(), "aborted")) != 1 {
+	if len(eventsOf(t, dir, "aborted")) != 1 {
 		t.Error("the interrupt is not in the event log")
 	}
 }
