@@ -3,14 +3,12 @@ package hil
 import (
 	"context"
 	"errors"
-	"path/filepath"
 	"testing"
 	"time"
 
 	"gaitrig/bridges"
 	"gaitrig/firmware/reference"
 	"gaitrig/plant"
-	"gaitrig/record"
 	"gaitrig/scenarios"
 )
 
@@ -32,6 +30,35 @@ func libraryFirmware(t testing.TB, s *scenarios.Scenario, actuators int) firmwar
 	}
 }
 
+// loadBuiltin loads a built-in scenario and returns it with its config
+// (watchdog widened to 2 s, as other test binaries load the 2-core host),
+// its model and its initial state; a scenario that starts from the natural
+// gait gets that gait found.
+func loadBuiltin(t testing.TB, name string) (*scenarios.Scenario, Config, *plant.Model, plant.State) {
+	t.Helper()
+	s, err := scenarios.LoadBuiltin(name)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := FromScenario(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg.Watchdog = 2 * time.Second
+	m, err := NewModel(s, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	init, err := InitialState(s, m)
+	if errors.Is(err, ErrNaturalGait) {
+		init, err = naturalGait(s, m)
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s, cfg, m, init
+}
+
 // Every built-in scenario runs through the loop against the reference
 // firmware (lockstep, so the suite stays fast; latency faults then count
 // in ticks) and leaves a complete run folder with an outcome. Whether each
@@ -41,27 +68,8 @@ func libraryFirmware(t testing.TB, s *scenarios.Scenario, actuators int) firmwar
 func TestLibraryScenariosRunToCompleteRecords(t *testing.T) {
 	for _, e := range scenarios.Library() {
 		t.Run(e.Name, func(t *testing.T) {
-			s, err := scenarios.LoadBuiltin(e.Name)
-			if err != nil {
-				t.Fatal(err)
-			}
-			cfg, err := FromScenario(s)
-			if err != nil {
-				t.Fatal(err)
-			}
+			s, cfg, m, init := loadBuiltin(t, e.Name)
 			cfg.Clock = Lockstep
-			cfg.Watchdog = 2 * time.Second
-			m, err := NewModel(s, cfg)
-			if err != nil {
-				t.Fatal(err)
-			}
-			init, err := InitialState(s, m)
-			if errors.Is(err, ErrNaturalGait) {
-				init, err = naturalGait(s, m)
-			}
-			if err != nil {
-				t.Fatal(err)
-			}
 			res, dir, err, _ := runWith(t, context.Background(), cfg, m, init, libraryFirmware(t, s, m.NumActuators()))
 			if err != nil {
 				t.Fatal(err)
@@ -96,32 +104,9 @@ func naturalGait(s *scenarios.Scenario, m *plant.Model) (plant.State, error) {
 // the scenario text in the manifest rebuilds model and initial state, the
 // telemetry supplies the applied torques and pushes.
 func TestReplayRunFromFolder(t *testing.T) {
-	s, err := scenarios.LoadBuiltin("push-recovery")
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg, err := FromScenario(s)
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg.Watchdog = 2 * time.Second
+	s, cfg, m, init := loadBuiltin(t, "push-recovery")
 	cfg.MaxSteps = 10
-	m, err := NewModel(s, cfg)
-	if err != nil {
-		t.Fatal(err)
-	}
-	init, err := InitialState(s, m)
-	if err != nil {
-		t.Fatal(err)
-	}
-	mf, err := Manifest(s, cfg, m, init, "inproc", "test")
-	if err != nil {
-		t.Fatal(err)
-	}
-	rec, err := record.Create(filepath.Join(t.TempDir(), "run"), mf)
-	if err != nil {
-		t.Fatal(err)
-	}
+	rec := newScenarioRecord(t, s, cfg, m, init)
 	rig, fw := inprocPair()
 	defer rig.Close()
 	go libraryFirmware(t, s, m.NumActuators())(fw)
