@@ -150,11 +150,8 @@ func Law(g *Gains, r *Reading, tau []float64) (stance int) {
 		thT, wT := r.Pitch, r.PitchRate
 		th := [2]float64{r.Angle[0] + thT, r.Angle[1] + thT}
 		w := [2]float64{r.Rate[0] + wT, r.Rate[1] + wT}
-		st := pickStance(r.Contacts, th, w)
+		st, e, tSw := placeSwing(g, r.Contacts, th, w)
 		sw := 1 - st
-		e := -g.LegLength*w[st] - g.TargetSpeed
-		phi := clamp(g.StepAngle+g.StepSpeedGain*e, g.StepMin, g.StepMax)
-		tSw := g.SwingKp*(phi-th[sw]) - g.SwingKd*w[sw]
 		lean := clamp(g.Lean+g.LeanSpeedGain*e, g.LeanMin, g.LeanMax)
 		tSt := g.TorsoKp*(thT-lean) + g.TorsoKd*wT - tSw
 		tau[st] = clamp(tSt, -g.TorqueLimit, g.TorqueLimit)
@@ -163,12 +160,8 @@ func Law(g *Gains, r *Reading, tau []float64) (stance int) {
 	case 1:
 		th := [2]float64{r.Pitch, r.Angle[0] + r.Pitch}
 		w := [2]float64{r.PitchRate, r.Rate[0] + r.PitchRate}
-		st := pickStance(r.Contacts, th, w)
-		sw := 1 - st
-		e := -g.LegLength*w[st] - g.TargetSpeed
-		phi := clamp(g.StepAngle+g.StepSpeedGain*e, g.StepMin, g.StepMax)
-		tSw := g.SwingKp*(phi-th[sw]) - g.SwingKd*w[sw]
-		if sw == 0 {
+		st, _, tSw := placeSwing(g, r.Contacts, th, w)
+		if st == 1 { // the left leg swings
 			tSw = -tSw
 		}
 		tau[0] = clamp(tSw, -g.TorqueLimit, g.TorqueLimit)
@@ -178,6 +171,20 @@ func Law(g *Gains, r *Reading, tau []float64) (stance int) {
 		tau[i] = 0
 	}
 	return 0
+}
+
+// placeSwing is the part of Law both walkers share: it picks the stance leg
+// from the foot switches and the absolute leg angles th and rates w, and
+// aims the swing leg at the step angle for the speed error. It returns the
+// stance leg, the speed error e (the torso lean uses it too) and the
+// swing-leg torque τ_sw.
+func placeSwing(g *Gains, contacts uint8, th, w [2]float64) (stance int, e, tSw float64) {
+	st := pickStance(contacts, th, w)
+	sw := 1 - st
+	e = -g.LegLength*w[st] - g.TargetSpeed
+	phi := clamp(g.StepAngle+g.StepSpeedGain*e, g.StepMin, g.StepMax)
+	tSw = g.SwingKp*(phi-th[sw]) - g.SwingKd*w[sw]
+	return st, e, tSw
 }
 
 // pickStance decides the stance leg from the foot switches, falling back to
