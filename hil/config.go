@@ -71,10 +71,16 @@ const (
 // LinkFault is one fault on the link, active from From to Until simulated
 // seconds (Until 0: to the end).
 type LinkFault struct {
-	Kind          LinkFaultKind
-	From, Until   float64
-	Fixed, Jitter time.Duration // latency
-	Rate          float64       // drop, corrupt: probability per frame
+	// Kind is latency, drop or corrupt.
+	Kind LinkFaultKind
+	// From and Until bound the fault in simulated seconds; Until 0 keeps
+	// it on to the end of the run.
+	From, Until float64
+	// Fixed and Jitter are a latency fault's added delay: Fixed plus a
+	// uniform random part in [0, Jitter) (see FaultLatency).
+	Fixed, Jitter time.Duration
+	// Rate is a drop or corrupt fault's probability per frame.
+	Rate float64
 }
 
 func (f *LinkFault) active(t float64) bool {
@@ -122,23 +128,27 @@ type Config struct {
 	HandshakeTimeout time.Duration
 	// Resend is the lockstep resend interval; default 10 ms.
 	Resend time.Duration
-	// Sensors is the sensor model; Freezes are frozen-sensor faults.
+	// Sensors is the sensor model.
 	Sensors SensorModel
+	// Freezes are frozen-sensor faults.
 	Freezes []Freeze
 	// Actuators is the actuator model.
 	Actuators ActuatorModel
-	// LinkFaults are latency, drop and corrupt faults; Pushes push the hip.
+	// LinkFaults are latency, drop and corrupt faults on the link.
 	LinkFaults []LinkFault
-	Pushes     []Push
+	// Pushes are disturbances on the hip.
+	Pushes []Push
 	// Severity sets the severity of alarm kinds; kinds not listed use
 	// scenarios.DefaultSeverity, and kinds unknown there warn.
 	Severity map[string]scenarios.Severity
 	// AlarmInterval is the least simulated time between two logged alarms
 	// of one kind; default DefaultAlarmInterval.
 	AlarmInterval float64
-	// Duration and MaxSteps end the run at whichever comes first; at least
-	// one must be set.
+	// Duration (simulated seconds) and MaxSteps end the run at whichever
+	// comes first; at least one must be set.
 	Duration float64
+	// MaxSteps is the number of completed steps that ends the run; 0: no
+	// step limit.
 	MaxSteps int
 	// Criteria are the pass criteria.
 	Criteria scenarios.Criteria
@@ -171,13 +181,13 @@ type Config struct {
 
 // StepInfo is what OnStep receives: the step row and the run so far.
 type StepInfo struct {
-	Index     int
-	DurationS float64
-	LengthM   float64
-	SpeedMPS  float64
-	PeakUtil  float64
-	MinNormal float64
-	SimTimeS  float64
+	Index     int     // step number from 1, as in steps.csv
+	DurationS float64 // time between the heel strikes that began and ended the step, s
+	LengthM   float64 // forward distance between the two contact points, m
+	SpeedMPS  float64 // LengthM / DurationS, m/s
+	PeakUtil  float64 // peak friction utilization of the stance foot
+	MinNormal float64 // least normal force of the stance foot, N
+	SimTimeS  float64 // simulated time of the run when the step completed, s
 }
 
 // AlarmSink receives alarms as they are logged, as one JSON object each
@@ -187,6 +197,8 @@ type StepInfo struct {
 // that fails or lags is noted in the run log; the run goes on, and the
 // record is the authority.
 type AlarmSink interface {
+	// PublishAlarm sends one alarm object; each call gets a slice of its
+	// own, which the sink may keep.
 	PublishAlarm(jsonObject []byte) error
 }
 

@@ -81,11 +81,11 @@ func (h *Histogram) Quantile(q float64) time.Duration {
 
 // Summary is the figures a report shows for one histogram, in microseconds.
 type Summary struct {
-	Count uint64  `json:"count"`
-	P50   float64 `json:"p50"`
-	P99   float64 `json:"p99"`
-	Max   float64 `json:"max"`
-	Mean  float64 `json:"mean"`
+	Count uint64  `json:"count"` // samples recorded
+	P50   float64 `json:"p50"`   // median, µs
+	P99   float64 `json:"p99"`   // 99th percentile, µs
+	Max   float64 `json:"max"`   // largest sample, µs
+	Mean  float64 `json:"mean"`  // arithmetic mean, µs
 }
 
 // Summarize returns count, p50, p99, max and mean in microseconds.

@@ -19,9 +19,10 @@ type ReplayResult struct {
 	Match bool
 	// FirstDivergence is the first tick whose state differs, −1 if none.
 	FirstDivergence int64
-	// Field names the first differing coordinate (q2, v0, …) and Recorded
-	// and Replayed its two values.
-	Field              string
+	// Field names the first differing coordinate (q2, v0, …).
+	Field string
+	// Recorded and Replayed are that coordinate's value in the telemetry
+	// and in the replay.
 	Recorded, Replayed float64
 	// Truncated is true when the telemetry's last row was cut (a killed
 	// run); the rows before it were replayed.

@@ -24,12 +24,12 @@ import "math"
 //     IMU: the torso, or the left leg of a compass walker.
 //   - Contacts: bit 0 left foot switch closed, bit 1 right foot switch.
 type Reading struct {
-	Joints    int
-	Angle     [2]float64
-	Rate      [2]float64
-	Pitch     float64
-	PitchRate float64
-	Contacts  uint8
+	Joints    int        // joints the rig configured: 2 torso walker, 1 compass walker
+	Angle     [2]float64 // joint angles, rad
+	Rate      [2]float64 // joint rates, rad/s
+	Pitch     float64    // IMU link's absolute angle, rad
+	PitchRate float64    // IMU link's absolute rate, rad/s
+	Contacts  uint8      // foot switches: bit 0 left, bit 1 right
 }
 
 // Gains are the constants of the control law. Every one is a plain number
