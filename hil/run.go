@@ -124,7 +124,7 @@ type runner struct {
 	recStart time.Time // the record's start time, origin of Tick.WallS
 	realtime string
 
-	peakUtil, minNormal float64
+	contact contactExtremes // of the stance foot over the whole run
 
 	onTick   func() // called after each tick (MeasureLatency counts fresh commands)
 	linkDown bool   // an outage was raised and no valid command has come since
@@ -185,7 +185,7 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 		}
 		r.pushes = append(r.pushes, ps)
 	}
-	r.peakUtil, r.minNormal = 0, math.Inf(1)
+	r.contact.reset()
 	// The foot switches of the first tick read the contact forces of the
 	// initial state, as every later tick reads those of the last step.
 	r.res.Contacts = model.Contacts(&r.s, &plant.Input{})
@@ -571,14 +571,7 @@ func (r *runner) advance(wall time.Time) {
 	}
 	st := r.s.Stance
 	fc := &r.res.Contacts[st]
-	if fc.Mode != plant.Free {
-		if fc.Utilization > r.peakUtil || math.IsNaN(fc.Utilization) {
-			r.peakUtil = fc.Utilization
-		}
-		if fc.Normal < r.minNormal {
-			r.minNormal = fc.Normal
-		}
-	}
+	r.contact.add(fc)
 	r.steps.tick(pos, neg, fc)
 	r.record(wall)
 	for i := 0; i < r.res.NumEvents; i++ {
@@ -997,8 +990,8 @@ func (r *runner) finish(runErr error) (Result, error) {
 		SimTimeS:                r.s.T,
 		WallTimeS:               time.Since(r.started).Seconds(),
 		Alarms:                  r.al.counts,
-		PeakFrictionUtilization: r.peakUtil,
-		MinNormalForceN:         r.minNormal,
+		PeakFrictionUtilization: r.contact.peakUtil,
+		MinNormalForceN:         r.contact.minNormal,
 		MeanSpeedMPS:            r.steps.meanSpeed(),
 		DeadlineMisses:          int(r.misses),
 	}

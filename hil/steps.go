@@ -13,8 +13,7 @@ type stepTracker struct {
 	startT     float64
 	startX     float64 // contact point x of the stance foot at the step's start
 	stance     int
-	peakUtil   float64
-	minNormal  float64
+	contact    contactExtremes
 	pos, neg   float64
 	copMin     float64
 	copMax     float64
@@ -23,6 +22,30 @@ type stepTracker struct {
 	sumLength  float64
 	sumTime    float64
 	haveStance bool
+}
+
+// contactExtremes tracks the peak friction utilization and the least normal
+// force of a foot while it touches the ground, over a step or a whole run.
+// A NaN utilization is kept as the peak (no later finite value replaces it),
+// so a non-finite contact shows in the figures instead of hiding behind a
+// later peak.
+type contactExtremes struct {
+	peakUtil, minNormal float64
+}
+
+func (c *contactExtremes) reset() { c.peakUtil, c.minNormal = 0, math.Inf(1) }
+
+// add takes one tick's contact; a foot in the air counts for neither figure.
+func (c *contactExtremes) add(fc *plant.FootContact) {
+	if fc.Mode == plant.Free {
+		return
+	}
+	if fc.Utilization > c.peakUtil || math.IsNaN(fc.Utilization) {
+		c.peakUtil = fc.Utilization
+	}
+	if fc.Normal < c.minNormal {
+		c.minNormal = fc.Normal
+	}
 }
 
 func (t *stepTracker) init(m *plant.Model, s *plant.State) {
@@ -44,7 +67,7 @@ func (t *stepTracker) init(m *plant.Model, s *plant.State) {
 }
 
 func (t *stepTracker) reset() {
-	t.peakUtil, t.minNormal = 0, math.Inf(1)
+	t.contact.reset()
 	t.pos, t.neg = 0, 0
 	t.copMin, t.copMax = math.Inf(1), math.Inf(-1)
 }
@@ -53,14 +76,9 @@ func (t *stepTracker) reset() {
 func (t *stepTracker) tick(pos, neg float64, fc *plant.FootContact) {
 	t.pos += pos
 	t.neg += neg
+	t.contact.add(fc)
 	if fc.Mode == plant.Free {
 		return
-	}
-	if fc.Utilization > t.peakUtil || math.IsNaN(fc.Utilization) {
-		t.peakUtil = fc.Utilization
-	}
-	if fc.Normal < t.minNormal {
-		t.minNormal = fc.Normal
 	}
 	t.copMin = math.Min(t.copMin, fc.CoP)
 	t.copMax = math.Max(t.copMax, fc.CoP)
@@ -82,8 +100,8 @@ func (t *stepTracker) strike(m *plant.Model, s *plant.State, e *plant.Event, res
 		EndS:            e.T,
 		DurationS:       e.T - t.startT,
 		LengthM:         x - t.startX,
-		PeakUtilization: t.peakUtil,
-		MinNormalN:      t.minNormal,
+		PeakUtilization: t.contact.peakUtil,
+		MinNormalN:      t.contact.minNormal,
 		ImpactLossJ:     e.EnergyLost,
 		PosWorkJ:        t.pos,
 		NegWorkJ:        t.neg,
