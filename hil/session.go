@@ -1,0 +1,198 @@
+package hil
+
+// This file holds the protocol session with the firmware: handshake, commands
+// and stop messages.
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strings"
+	"time"
+	"unicode/utf8"
+
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
+	"gaitrig/record"
+	"gaitrig/scenarios"
+)
+
+// handshake waits for the greeting, checks it and sends the configuration.
+func (r *runner) handshake() error {
+	deadline := time.Now().Add(r.cfg.HandshakeTimeout)
+	for {
+		err := r.conn.Recv(deadline, &r.msg)
+		switch {
+		case errors.Is(err, bridges.ErrTimeout):
+			return fmt.Errorf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
+		case errors.Is(err, bridges.ErrDisconnected):
+			r.disconnected(err)
+			continue
+		case errors.Is(err, bridges.ErrClosed):
+			r.linkLost(0, "the link closed before the firmware greeted")
+			return errors.New("hil: the link closed before the firmware greeted")
+		case errors.As(err, &r.fe):
+			r.badFrame(r.fe.Reason)
+			continue
+		case err != nil:
+			return fmt.Errorf("hil: waiting for the greeting: %w", err)
+		}
+		if r.msg.Type == protocol.TypeGreeting {
+			break
+		}
+		// Anything else before the greeting (a stray command from a previous
+		// run, a heartbeat) is not an error: the firmware may still be
+		// finishing its last session.
+	}
+	g := r.msg.Greeting
+	r.greeting = g
+	if r.rec != nil {
+		if err := r.rec.SetGreeting(record.Greeting{Name: g.Name, Build: g.Build, Protocol: int(g.Version), Actuators: int(g.Actuators)}); err != nil {
+			return err
+		}
+	}
+	if g.Version != protocol.Version {
+		msg := fmt.Sprintf("firmware %q speaks protocol version %d, this rig speaks version %d", g.Name, g.Version, protocol.Version)
+		r.al.raise(scenarios.AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
+			return msg, map[string]float64{"firmware_version": float64(g.Version), "rig_version": float64(protocol.Version)}
+		})
+		r.stopCode = protocol.StopBadVersion
+		r.outcome, r.reason = record.Tripped, msg
+		return nil
+	}
+	if int(g.Actuators) != r.n {
+		r.stopCode = protocol.StopEStop
+		return fmt.Errorf("hil: firmware %q drives %d actuators, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
+	}
+	r.logf("firmware %q build %q greeted with protocol v%d, %d actuators", g.Name, g.Build, g.Version, g.Actuators)
+	c := &r.config
+	c.Type = protocol.TypeConfig
+	c.Config.TickHz = uint16(math.Min(math.Round(r.cfg.TickHz), math.MaxUint16))
+	c.Config.Lockstep = r.cfg.Clock == Lockstep
+	c.Config.Joints = uint8(r.n)
+	for i, name := range r.names {
+		c.Config.JointNames[i] = name
+		c.Config.TorqueLimit[i] = float32(r.act.limit[i])
+	}
+	if err := r.conn.Send(c); err != nil {
+		return fmt.Errorf("hil: sending the configuration: %w", err)
+	}
+	return nil
+}
+
+// greetedAgain handles a greeting after the handshake. Before the first
+// command it means the configuration was lost on the way: send it again.
+// After commands have come it means the firmware restarted mid-run: an
+// alarm, and the configuration again so it can go on.
+func (r *runner) greetedAgain() {
+	if r.counts.Commands > 0 {
+		if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(r.counts.Commands)}
+		}) {
+			r.trip(protocol.StopEStop)
+			return
+		}
+	}
+	r.conn.Send(&r.config)
+}
+
+// takeCommand applies one valid command from the firmware: torque checks,
+// saturation and status alarms.
+func (r *runner) takeCommand(c *protocol.Command) {
+	r.counts.Commands++
+	r.fresh = true
+	for i := 0; i < protocol.MaxJoints; i++ {
+		r.commanded[i] = float64(c.Torque[i])
+	}
+	chk := r.act.command(c)
+	switch {
+	case chk.wrongJoints:
+		r.counts.BadTorques++
+		n := c.Joints
+		if r.al.raise(scenarios.AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return fmt.Sprintf("command carries %d torques, this walker has %d joints: rejected, zero torque applied", n, r.n),
+				map[string]float64{"torques": float64(n), "joints": float64(r.n)}
+		}) {
+			r.trip(protocol.StopEStop)
+		}
+		return
+	case chk.bad:
+		r.counts.BadTorques++
+		j, v := chk.badJoint, chk.badValue
+		if r.al.raise(scenarios.AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return fmt.Sprintf("commanded torque %s = %g N·m is not a usable torque (NaN, infinite or beyond %g N·m): command rejected, zero torque applied", r.names[j], v, r.act.model.Sanity),
+				map[string]float64{"joint": float64(j), "torque_nm": v, "sanity_nm": r.act.model.Sanity}
+		}) {
+			r.trip(protocol.StopEStop)
+		}
+		return
+	}
+	if chk.saturated && !r.satNow {
+		j, v := chk.satJoint, chk.satValue
+		if r.al.raise(scenarios.AlarmTorqueSaturation, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return fmt.Sprintf("commanded torque %s = %.4g N·m beyond the limit %.4g N·m: clipped", r.names[j], v, r.act.limit[j]),
+				map[string]float64{"joint": float64(j), "torque_nm": v, "limit_nm": r.act.limit[j]}
+		}) {
+			r.trip(protocol.StopEStop)
+		}
+	}
+	r.satNow = chk.saturated
+	if c.Status&protocol.StatusFault != 0 && r.lastFW&protocol.StatusFault == 0 {
+		st := c.Status
+		if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			return "the firmware reports an internal fault (status bit 0 set)", map[string]float64{"status": float64(st)}
+		}) {
+			r.trip(protocol.StopEStop)
+		}
+	}
+	r.lastFW = c.Status
+}
+
+// firmwareStop handles a Stop from the firmware: the run cannot go on.
+func (r *runner) firmwareStop(st protocol.Stop) {
+	text := st.Text
+	// The run ends here, so this alarm is logged even inside the rate limit.
+	r.al.counts[scenarios.AlarmFirmwareFault]++
+	if r.al.emit(alarm{kind: scenarios.AlarmFirmwareFault, tick: r.tick, t: r.s.T, foot: -1, segment: -1,
+		message: fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), values: map[string]float64{"reason": float64(st.Reason)}}) {
+		r.trip(protocol.StopFirmware)
+		return
+	}
+	if r.outcome == "" {
+		r.outcome, r.reason, r.stopCode = record.Fail, fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), protocol.StopFirmware
+	}
+}
+
+// sendState sends the tick's state unless a drop fault eats it.
+func (r *runner) sendState() {
+	if r.chance(FaultDrop, r.s.T, r.frng) {
+		r.counts.DroppedStates++
+		return
+	}
+	r.counts.StatesSent++
+	// A Send that fails because the link is down or closed loses this
+	// state; Recv reports the link's condition and the watchdog decides.
+	r.conn.Send(&r.out)
+}
+
+// sendStop tells the firmware the run is over and why.
+func (r *runner) sendStop() {
+	var m protocol.Message
+	m.Type = protocol.TypeStop
+	m.Seq = r.seq + 1
+	m.Stop.Reason = r.stopCode
+	text := r.reason
+	if text == "" {
+		text = "run finished"
+	}
+	if len(text) > protocol.MaxNameLen {
+		// Cut at a rune boundary so the firmware never gets half a "μ".
+		cut := protocol.MaxNameLen
+		for cut > 0 && !utf8.RuneStart(text[cut]) {
+			cut--
+		}
+		text = text[:cut]
+	}
+	m.Stop.Text = text
+	r.conn.Send(&m)
+}
