@@ -459,7 +459,7 @@ var DefaultSeverity = map[string]Severity{
 	AlarmBadFrame:         SeverityWarn,
 	AlarmBadTorque:        SeverityTrip,
 	AlarmTorqueSaturation: SeverityWarn,
-	AlarmLinkLost:         SeverityTrip,
+	AlarmLinkLost:         SeverityWarn, // the watchdog e-stops if the gap outlasts it
 	AlarmLinkRestored:     SeverityWarn,
 	AlarmDeadlineMiss:     SeverityWarn,
 	AlarmFirmwareFault:    SeverityTrip,
