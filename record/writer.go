@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/rs/zerolog"
@@ -16,18 +17,19 @@ import (
 
 // Writer streams one run into its folder. Its methods are safe for use from
 // several goroutines (the loop writes ticks, a link watcher may log events),
-// but the hot path is meant for one: Tick takes an uncontended lock and
-// allocates nothing.
+// but Tick is meant for one: it hands the row to the telemetry goroutine
+// (see telemetry.go) and allocates nothing.
 type Writer struct {
 	mu  sync.Mutex
 	dir string
 	m   Manifest
 
 	tele      *os.File
-	teleBuf   *bufio.Writer
-	row       []byte // reused row buffer
-	lastFlush time.Time
-	ticks     int64
+	teleBuf   *bufio.Writer // owned by the telemetry goroutine once it runs
+	row       []byte        // reused row buffer, likewise
+	lastFlush time.Time     // likewise
+	ticks     atomic.Int64  // rows handed to Tick
+	pipe      telePipe
 
 	events *os.File
 	log    zerolog.Logger
@@ -97,6 +99,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
+	w.startTelemetry()
 	return w, nil
 }
 
@@ -120,53 +123,39 @@ func (w *Writer) SetGreeting(g Greeting) error {
 	if w.closed {
 		return errors.New("record: SetGreeting after Close")
 	}
-	if w.ticks > 0 {
+	if w.ticks.Load() > 0 {
 		return errors.New("record: SetGreeting after the first tick; the greeting must be known before the run starts")
 	}
 	w.m.Greeting = g
 	return writeJSONAtomic(filepath.Join(w.dir, ManifestFile), &w.m)
 }
 
-// Tick appends one telemetry row. It allocates nothing: the row is formatted
-// into a reused buffer. Rows are flushed to the file whenever FlushInterval
-// of wall time has passed since the last flush.
+// Tick appends one telemetry row. It allocates nothing: the row is copied
+// into a fixed queue and formatted by the telemetry goroutine, so the loop
+// does not wait for number formatting. Rows reach the file at least every
+// FlushInterval of wall time. An error of the telemetry file is returned by
+// the next Tick (and by Close); rows after it are not written.
 func (w *Writer) Tick(t *Tick) error {
-	w.mu.Lock()
-	defer w.mu.Unlock()
-	if w.closed {
+	if w.pipe.closed.Load() {
 		return errors.New("record: Tick after Close")
 	}
-	if w.firstErr != nil {
-		return w.firstErr
+	if err := w.pipe.err.Load(); err != nil {
+		return *err
 	}
-	b := appendTick(w.row[:0], t, w.m.NumQ, len(w.m.JointNames))
-	w.row = b
-	if _, err := w.teleBuf.Write(b); err != nil {
-		w.firstErr = fmt.Errorf("record: telemetry: %w", err)
-		return w.firstErr
-	}
-	w.ticks++
-	if now := time.Now(); now.Sub(w.lastFlush) >= FlushInterval {
-		w.lastFlush = now
-		if err := w.teleBuf.Flush(); err != nil {
-			w.firstErr = fmt.Errorf("record: telemetry: %w", err)
-			return w.firstErr
-		}
-	}
+	w.ticks.Add(1)
+	w.pipe.rows <- *t
 	return nil
 }
 
-// Flush writes buffered telemetry rows to the file now. The loop calls it
-// when it is about to wait (for example for a late command), so rows do not
-// sit in the buffer while no ticks arrive.
+// Flush writes every telemetry row handed to Tick so far to the file, and
+// returns when it is there. The loop calls it when it is about to wait (for
+// example for a late command), so rows do not sit in memory while no ticks
+// arrive.
 func (w *Writer) Flush() error {
-	w.mu.Lock()
-	defer w.mu.Unlock()
-	if w.closed {
+	if w.pipe.closed.Load() {
 		return nil
 	}
-	w.lastFlush = time.Now()
-	return w.teleBuf.Flush()
+	return w.flushTelemetry()
 }
 
 // Event appends one event to events.jsonl and writes it through at once.
@@ -228,15 +217,12 @@ func (w *Writer) Close(s Summary) error {
 		return errors.New("record: Close called twice")
 	}
 	w.closed = true
-	errs := []error{w.firstErr}
-	if err := w.teleBuf.Flush(); err != nil {
-		errs = append(errs, fmt.Errorf("record: telemetry: %w", err))
-	}
+	errs := []error{w.firstErr, w.stopTelemetry()}
 	if s.Caution == "" {
 		s.Caution = Caution
 	}
 	if s.Ticks == 0 {
-		s.Ticks = w.ticks
+		s.Ticks = w.ticks.Load()
 	}
 	if s.ToolVersion == "" {
 		s.ToolVersion = w.m.ToolVersion
