@@ -36,6 +36,7 @@ bench PC that will host the rig.`, stderr)
 	ticks := fs.Int("ticks", 10000, "ticks per link")
 	hz := fs.Float64("hz", 1000, "tick rate")
 	links := fs.String("links", strings.Join(latencyLinks, ","), "comma-separated links to measure")
+	prio := fs.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO priority asked for the loop thread; negative asks for none")
 	mosq := fs.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "host:port of a running Mosquitto broker (empty: start one)")
 	if done, code := parseFlags(fs, args); done {
 		return code
@@ -48,7 +49,7 @@ bench PC that will host the rig.`, stderr)
 	code := exitPass
 	for _, name := range strings.Split(*links, ",") {
 		name = strings.TrimSpace(name)
-		res, err := measureLink(name, *ticks, *hz, *mosq)
+		res, err := measureLink(name, *ticks, *hz, *mosq, *prio)
 		if err != nil {
 			fmt.Fprintf(stdout, "%-10s could not measure: %v\n", name, err)
 			code = exitFail
@@ -72,7 +73,7 @@ bench PC that will host the rig.`, stderr)
 var firstRealtime string
 
 // measureLink runs one wall-clock measurement over the named link.
-func measureLink(name string, ticks int, hz float64, mosqAddr string) (hil.Result, error) {
+func measureLink(name string, ticks int, hz float64, mosqAddr string, prio int) (hil.Result, error) {
 	sc, err := loadBuiltin("level-demo")
 	if err != nil {
 		return hil.Result{}, err
@@ -86,6 +87,7 @@ func measureLink(name string, ticks int, hz float64, mosqAddr string) (hil.Resul
 	cfg.Duration = float64(ticks) / hz
 	cfg.MaxSteps = 0
 	cfg.Watchdog = time.Second // measure, do not trip on a slow outlier
+	cfg.RealtimePriority = prio
 	model, err := hil.NewModel(sc, cfg)
 	if err != nil {
 		return hil.Result{}, err
