@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"net"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -11,6 +12,7 @@ import (
 	"testing"
 	"time"
 
+	"gaitrig/record"
 	"gaitrig/scenarios"
 )
 
@@ -118,4 +120,119 @@ func TestRunOverMosquittoWithFirmwareProcessSide(t *testing.T) {
 			t.Errorf("alarm seen by mosquitto_sub has no kind: %v", alarm)
 		}
 	}
+}
+
+// startMosquittoOn starts Mosquitto on the given loopback port and returns a
+// function that kills it (SIGKILL, as a crash would).
+func startMosquittoOn(t *testing.T, port string) func() {
+	t.Helper()
+	bin, err := exec.LookPath("mosquitto")
+	if err != nil {
+		bin = "/usr/sbin/mosquitto"
+	}
+	conf := filepath.Join(t.TempDir(), "mosquitto.conf")
+	if err := os.WriteFile(conf, []byte("listener "+port+" 127.0.0.1\nallow_anonymous true\npersistence false\nset_tcp_nodelay true\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	cmd := exec.Command(bin, "-c", conf)
+	if err := cmd.Start(); err != nil {
+		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
+			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
+		}
+		t.Skipf("no Mosquitto: %v", err)
+	}
+	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(20 * time.Millisecond) {
+		if c, err := net.Dial("tcp", "127.0.0.1:"+port); err == nil {
+			c.Close()
+			break
+		}
+		if time.Now().After(deadline) {
+			cmd.Process.Kill()
+			cmd.Wait()
+			t.Fatalf("Mosquitto did not listen on port %s within 5 s", port)
+		}
+	}
+	var once sync.Once
+	kill := func() { once.Do(func() { cmd.Process.Kill(); cmd.Wait() }) }
+	t.Cleanup(kill)
+	return kill
+}
+
+// TestBrokerKilledMidRun kills the Mosquitto broker in the middle of a run
+// and starts it again on the same port: the rig must report the lost link,
+// end or continue as the watchdog decides, never hang or crash, and leave a
+// complete run folder.
+func TestBrokerKilledMidRun(t *testing.T) {
+	if _, err := exec.LookPath("mosquitto"); err != nil {
+		if _, err := os.Stat("/usr/sbin/mosquitto"); err != nil {
+			if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
+				t.Fatal("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1)")
+			}
+			t.Skip("no Mosquitto (install the Debian package mosquitto)")
+		}
+	}
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, port, _ := net.SplitHostPort(l.Addr().String())
+	l.Close()
+	kill := startMosquittoOn(t, port)
+	url := "mqtt:tcp://127.0.0.1:" + port
+
+	fwDone := make(chan int, 1)
+	go func() {
+		var o, e bytes.Buffer
+		fwDone <- dispatch([]string{"firmware", "--link", url, "--rig", "crash"}, &o, &e)
+	}()
+	dir := filepath.Join(t.TempDir(), "run")
+	type result struct {
+		code     int
+		out, err string
+	}
+	done := make(chan result, 1)
+	go func() {
+		c, o, e := run(t, "run", "--quiet", "--report=false", "--link", url, "--rig", "crash", "--dir", dir, "--max-steps", "200", "level-demo")
+		done <- result{c, o, e}
+	}()
+	deadline := time.Now().Add(30 * time.Second)
+	for {
+		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 20000 {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal("no telemetry over Mosquitto within 30 s")
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	kill()
+	time.Sleep(300 * time.Millisecond)
+	startMosquittoOn(t, port)
+
+	var r result
+	select {
+	case r = <-done:
+	case <-time.After(60 * time.Second):
+		t.Fatal("the run did not end within 60 s of the broker crash")
+	}
+	select {
+	case <-fwDone:
+	case <-time.After(15 * time.Second):
+		t.Error("the firmware client did not end within 15 s of the run")
+	}
+	s := readSummary(t, dir)
+	if s.Alarms["link_lost"] == 0 {
+		t.Errorf("alarms %v after a broker crash: want link_lost\n%s\n%s", s.Alarms, r.out, r.err)
+	}
+	if s.Outcome == record.Aborted || s.Outcome == "" {
+		t.Errorf("outcome %q (%s): the run must end on its own terms (pass, fail or tripped)", s.Outcome, s.Reason)
+	}
+	rr, err := record.Open(dir)
+	if err != nil {
+		t.Fatalf("run folder unreadable after the broker crash: %v", err)
+	}
+	if len(rr.Notes) > 0 {
+		t.Errorf("run folder incomplete after the broker crash: %v", rr.Notes)
+	}
+	t.Logf("outcome %s (%s), alarms %v", s.Outcome, s.Reason, s.Alarms)
 }
