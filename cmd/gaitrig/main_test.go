@@ -251,17 +251,10 @@ func TestInterruptEndsTheRunCleanly(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Wait until ticks are being recorded, then interrupt.
-	deadline := time.Now().Add(20 * time.Second)
-	for {
-		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 10000 {
-			break
-		}
-		if time.Now().After(deadline) {
-			cmd.Process.Kill()
-			cmd.Wait()
-			t.Fatalf("no telemetry after 20 s:\n%s", out.String())
-		}
-		time.Sleep(20 * time.Millisecond)
+	if !waitForTelemetry(dir, 10000, 20*time.Second) {
+		cmd.Process.Kill()
+		cmd.Wait()
+		t.Fatalf("no telemetry after 20 s:\n%s", out.String())
 	}
 	if err := cmd.Process.Signal(syscall.SIGINT); err != nil {
 		t.Fatal(err)
@@ -377,15 +370,8 @@ func TestFirmwareProcessUnpluggedMidRun(t *testing.T) {
 		c, o, e := run(t, "run", "--quiet", "--report=false", "--clock", "wallclock", "--link", link, "--dir", dir, "level-demo")
 		done <- result{c, o, e}
 	}()
-	deadline := time.Now().Add(20 * time.Second)
-	for {
-		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 20000 {
-			break
-		}
-		if time.Now().After(deadline) {
-			t.Fatal("no telemetry from the serial run within 20 s")
-		}
-		time.Sleep(20 * time.Millisecond)
+	if !waitForTelemetry(dir, 20000, 20*time.Second) {
+		t.Fatal("no telemetry from the serial run within 20 s")
 	}
 	if err := fw.Process.Kill(); err != nil {
 		t.Fatal(err)
@@ -413,4 +399,15 @@ func TestFirmwareProcessUnpluggedMidRun(t *testing.T) {
 	if len(rr.Notes) > 0 {
 		t.Errorf("run folder incomplete after the unplug: %v", rr.Notes)
 	}
+}
+
+// waitForTelemetry waits until the run folder's telemetry holds at least
+// size bytes (ticks are being recorded), or gives up after timeout.
+func waitForTelemetry(dir string, size int64, timeout time.Duration) bool {
+	for deadline := time.Now().Add(timeout); time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
+		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() >= size {
+			return true
+		}
+	}
+	return false
 }

@@ -195,15 +195,8 @@ func TestBrokerKilledMidRun(t *testing.T) {
 		c, o, e := run(t, "run", "--quiet", "--report=false", "--link", url, "--rig", "crash", "--dir", dir, "--max-steps", "200", "level-demo")
 		done <- result{c, o, e}
 	}()
-	deadline := time.Now().Add(30 * time.Second)
-	for {
-		if st, err := os.Stat(filepath.Join(dir, "telemetry.csv")); err == nil && st.Size() > 20000 {
-			break
-		}
-		if time.Now().After(deadline) {
-			t.Fatal("no telemetry over Mosquitto within 30 s")
-		}
-		time.Sleep(20 * time.Millisecond)
+	if !waitForTelemetry(dir, 20000, 30*time.Second) {
+		t.Fatal("no telemetry over Mosquitto within 30 s")
 	}
 	kill()
 	time.Sleep(300 * time.Millisecond)
