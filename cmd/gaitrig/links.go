@@ -23,6 +23,11 @@ type linkSetup struct {
 	// someone else's.
 	LocalFirmware  bool
 	User, Password string // MQTT login of the rig
+	// Lockstep lets the builtin link run the firmware inside the rig's
+	// Send (inproc.Direct): no goroutine hand-over per tick, the same
+	// results. A wall-clock run keeps the firmware on its own goroutine so
+	// its answers take the time they take.
+	Lockstep bool
 }
 
 // openedLink is a connected link and what it started.
@@ -51,6 +56,15 @@ func dialLink(ls linkSetup) (openedLink, error) {
 
 	switch ls.Spec.Kind {
 	case linkBuiltin:
+		if ls.Lockstep {
+			fw, err := reference.New(ls.Firmware)
+			if err != nil {
+				return fail(usageError{err})
+			}
+			d := inproc.NewDirect(fw)
+			undo = append(undo, func() { d.Close() })
+			return openedLink{Conn: d, Name: ls.Spec.String() + " (synchronous)", Close: closeAll}, nil
+		}
 		rigConn, fwConn := inproc.Pair()
 		undo = append(undo, func() { rigConn.Close() }, startFirmware(fwConn, ls.Firmware))
 		return openedLink{Conn: rigConn, Name: ls.Spec.String(), Close: closeAll}, nil

@@ -136,7 +136,7 @@ func openLink(sc *scenarios.Scenario, o runOptions, cfg *hil.Config) (bridges.Co
 	if err != nil {
 		return nil, "", nil, err
 	}
-	ls := linkSetup{Spec: spec, Rig: o.Rig}
+	ls := linkSetup{Spec: spec, Rig: o.Rig, Lockstep: cfg.Clock == hil.Lockstep}
 	if o.Firmware != nil {
 		ls.Firmware = *o.Firmware
 	}

@@ -53,19 +53,22 @@ const GreetEvery = 250 * time.Millisecond
 // the run with a reason other than a normal end.
 var ErrRigStopped = errors.New("reference: the rig stopped the run")
 
-// Serve runs the firmware side of the protocol over conn, exactly as a
-// board would: send the greeting (repeated every GreetEvery until the rig
-// answers, since a rig that starts listening late misses the first), take
-// the rig's configuration, then answer
-// every State with the Command that echoes its sequence number, until the
-// rig sends Stop. A state with a NaN or infinite reading is answered with
-// zero torques and the StatusFault bit. The firmware's torque limit is
-// lowered to the smallest limit in the rig's configuration when that is
-// lower. It returns nil after a normal end (StopEnd), an error
-// wrapping ErrRigStopped for any other stop reason (e-stop, watchdog,
-// abort), and the link's error if it closes or stays silent for
-// IdleTimeout. Serve does not close conn.
-func Serve(conn bridges.Conn, o Options) error {
+// Firmware is the reference firmware's protocol logic without a link: it
+// makes the greeting and turns each message from the rig into the answer a
+// board would give. Serve drives it over any bridges.Conn; inproc.Direct
+// drives it synchronously, with no goroutine between rig and firmware, for
+// fast lockstep suites. A Firmware is used by one goroutine at a time.
+type Firmware struct {
+	o          Options
+	g          Gains
+	configured bool
+	greeting   protocol.Message
+	out        protocol.Message
+}
+
+// New checks o, fills in its defaults and returns a firmware waiting for the
+// rig's configuration.
+func New(o Options) (*Firmware, error) {
 	g := DefaultGains()
 	if o.Gains != nil {
 		g = *o.Gains
@@ -74,13 +77,13 @@ func Serve(conn bridges.Conn, o Options) error {
 		o.Mode = ModeWalk
 	}
 	if o.Mode != ModeWalk && o.Mode != ModePassive {
-		return fmt.Errorf("reference: mode %q: want walk or passive", o.Mode)
+		return nil, fmt.Errorf("reference: mode %q: want walk or passive", o.Mode)
 	}
 	if o.Actuators == 0 {
 		o.Actuators = 2
 	}
 	if o.Actuators < 1 || o.Actuators > 2 {
-		return fmt.Errorf("reference: %d actuators: the reference law drives 1 (compass) or 2 (torso walker)", o.Actuators)
+		return nil, fmt.Errorf("reference: %d actuators: the reference law drives 1 (compass) or 2 (torso walker)", o.Actuators)
 	}
 	if o.Name == "" {
 		o.Name = "gaitrig-reference"
@@ -91,18 +94,101 @@ func Serve(conn bridges.Conn, o Options) error {
 	if o.IdleTimeout == 0 {
 		o.IdleTimeout = 10 * time.Second
 	}
-	var m protocol.Message
-	m.Type = protocol.TypeGreeting
-	m.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: uint8(o.Actuators), Name: o.Name, Build: o.Build}
-	if err := conn.Send(&m); err != nil {
+	f := &Firmware{o: o, g: g}
+	f.greeting.Type = protocol.TypeGreeting
+	f.greeting.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: uint8(o.Actuators), Name: o.Name, Build: o.Build}
+	f.out.Type = protocol.TypeCommand
+	return f, nil
+}
+
+// Greeting returns the greeting the firmware sends until it is configured.
+func (f *Firmware) Greeting() *protocol.Message { return &f.greeting }
+
+// Configured reports whether the rig's configuration has arrived.
+func (f *Firmware) Configured() bool { return f.configured }
+
+// Handle takes one message from the rig and returns the firmware's answer
+// (nil when there is none; the message is the Firmware's own and valid until
+// the next call). end is true when the session is over; err is then nil
+// after a normal end (StopEnd), wraps ErrRigStopped for any other stop, or
+// says why the firmware refused the rig's configuration (the answer is then
+// a Stop). It allocates nothing for a state.
+func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end bool, err error) {
+	o := &f.o
+	switch in.Type {
+	case protocol.TypeConfig:
+		if int(in.Config.Joints) != o.Actuators {
+			f.out.Type = protocol.TypeStop
+			f.out.Stop = protocol.Stop{Reason: protocol.StopFirmware, Text: "joint count mismatch"}
+			return &f.out, true, fmt.Errorf("reference: the rig configured %d joints, this firmware drives %d", in.Config.Joints, o.Actuators)
+		}
+		f.configured = true
+		// The firmware keeps the rig's limits to itself: its own
+		// TorqueLimit clips first, and the rig clips again.
+		lim := math.Inf(1)
+		for i := 0; i < o.Actuators; i++ {
+			lim = math.Min(lim, float64(in.Config.TorqueLimit[i]))
+		}
+		if lim > 0 && lim < f.g.TorqueLimit {
+			f.g.TorqueLimit = lim
+		}
+	case protocol.TypeState:
+		if !f.configured {
+			return nil, false, nil
+		}
+		r := Reading{Joints: o.Actuators, Pitch: float64(in.State.IMUPitch), PitchRate: float64(in.State.IMURate), Contacts: in.State.Contacts}
+		for i := 0; i < o.Actuators; i++ {
+			r.Angle[i] = float64(in.State.Angle[i])
+			r.Rate[i] = float64(in.State.Rate[i])
+		}
+		var tau [2]float64
+		status := protocol.StatusOK
+		switch {
+		case !r.finite():
+			// A reading with NaN or Inf is a sensor fault: a board answers
+			// with zero torque and says so rather than pass it on.
+			status = protocol.StatusFault
+		case o.Mode == ModeWalk:
+			Law(&f.g, &r, tau[:o.Actuators])
+		}
+		f.out.Type = protocol.TypeCommand
+		f.out.Seq = in.Seq
+		f.out.Command = protocol.Command{Joints: uint8(o.Actuators), Status: status}
+		for i := 0; i < o.Actuators; i++ {
+			f.out.Command.Torque[i] = float32(tau[i])
+		}
+		return &f.out, false, nil
+	case protocol.TypeStop:
+		if in.Stop.Reason == protocol.StopEnd {
+			return nil, true, nil
+		}
+		return nil, true, fmt.Errorf("%w: reason %d (%s)", ErrRigStopped, in.Stop.Reason, in.Stop.Text)
+	}
+	return nil, false, nil
+}
+
+// Serve runs the firmware side of the protocol over conn, exactly as a
+// board would: send the greeting (repeated every GreetEvery until the rig
+// answers, since a rig that starts listening late misses the first), take
+// the rig's configuration, then answer every State with the Command that
+// echoes its sequence number, until the rig sends Stop. A state with a NaN
+// or infinite reading is answered with zero torques and the StatusFault
+// bit. The firmware's torque limit is lowered to the smallest limit in the
+// rig's configuration when that is lower. It returns nil after a normal end
+// (StopEnd), an error wrapping ErrRigStopped for any other stop reason
+// (e-stop, watchdog, abort), and the link's error if it closes or stays
+// silent for IdleTimeout. Serve does not close conn.
+func Serve(conn bridges.Conn, o Options) error {
+	f, err := New(o)
+	if err != nil {
+		return err
+	}
+	o = f.o
+	if err := conn.Send(f.Greeting()); err != nil {
 		return fmt.Errorf("reference: sending the greeting: %w", err)
 	}
-	greeting := m
-	var out protocol.Message
-	out.Type = protocol.TypeCommand
+	var m protocol.Message
 	var fe *bridges.FrameError
-	configured := false
-	var tau [2]float64
 	lastHeard := time.Now()
 	for {
 		// Until the rig configures it, the firmware repeats its greeting
@@ -110,7 +196,7 @@ func Serve(conn bridges.Conn, o Options) error {
 		// must: over MQTT or a freshly opened port the first one may be
 		// lost.
 		deadline := lastHeard.Add(o.IdleTimeout)
-		if !configured {
+		if !f.configured {
 			if next := time.Now().Add(GreetEvery); next.Before(deadline) {
 				deadline = next
 			}
@@ -125,8 +211,8 @@ func Serve(conn bridges.Conn, o Options) error {
 			if time.Since(lastHeard) >= o.IdleTimeout {
 				return fmt.Errorf("reference: nothing from the rig for %v", o.IdleTimeout)
 			}
-			if !configured {
-				if err := conn.Send(&greeting); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
+			if !f.configured {
+				if err := conn.Send(f.Greeting()); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
 					return fmt.Errorf("reference: link: %w", err)
 				}
 			}
@@ -136,61 +222,17 @@ func Serve(conn bridges.Conn, o Options) error {
 		default:
 			return fmt.Errorf("reference: link: %w", err)
 		}
-		switch m.Type {
-		case protocol.TypeConfig:
-			if int(m.Config.Joints) != o.Actuators {
-				var stop protocol.Message
-				stop.Type = protocol.TypeStop
-				stop.Stop = protocol.Stop{Reason: protocol.StopFirmware, Text: "joint count mismatch"}
-				conn.Send(&stop)
-				return fmt.Errorf("reference: the rig configured %d joints, this firmware drives %d", m.Config.Joints, o.Actuators)
-			}
-			configured = true
-			// The firmware keeps the rig's limits to itself: its own
-			// TorqueLimit clips first, and the rig clips again.
-			lim := math.Inf(1)
-			for i := 0; i < o.Actuators; i++ {
-				lim = math.Min(lim, float64(m.Config.TorqueLimit[i]))
-			}
-			if lim > 0 && lim < g.TorqueLimit {
-				g.TorqueLimit = lim
-			}
-		case protocol.TypeState:
-			if !configured {
-				continue
-			}
-			r := Reading{Joints: o.Actuators, Pitch: float64(m.State.IMUPitch), PitchRate: float64(m.State.IMURate), Contacts: m.State.Contacts}
-			for i := 0; i < o.Actuators; i++ {
-				r.Angle[i] = float64(m.State.Angle[i])
-				r.Rate[i] = float64(m.State.Rate[i])
-			}
-			tau = [2]float64{}
-			status := protocol.StatusOK
-			switch {
-			case !r.finite():
-				// A reading with NaN or Inf is a sensor fault: a board answers
-				// with zero torque and says so rather than pass it on.
-				status = protocol.StatusFault
-			case o.Mode == ModeWalk:
-				Law(&g, &r, tau[:o.Actuators])
-			}
-			out.Seq = m.Seq
-			out.Command.Joints = uint8(o.Actuators)
-			out.Command.Status = status
-			for i := 0; i < o.Actuators; i++ {
-				out.Command.Torque[i] = float32(tau[i])
-			}
-			if err := conn.Send(&out); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
+		answer, end, herr := f.Handle(&m)
+		if answer != nil {
+			if err := conn.Send(answer); err != nil && !errors.Is(err, bridges.ErrDisconnected) && !end {
 				// A link that is down and reconnecting loses this command;
 				// the rig's watchdog judges the gap. Anything else ends the
 				// session.
 				return fmt.Errorf("reference: sending a command: %w", err)
 			}
-		case protocol.TypeStop:
-			if m.Stop.Reason == protocol.StopEnd {
-				return nil
-			}
-			return fmt.Errorf("%w: reason %d (%s)", ErrRigStopped, m.Stop.Reason, m.Stop.Text)
+		}
+		if end {
+			return herr
 		}
 	}
 }
