@@ -21,20 +21,18 @@ import (
 
 // runOptions are what a command asks of one scenario run.
 type runOptions struct {
-	Link       *linkSpec // overrides the scenario's controller link; nil keeps it
-	Clock      string    // overrides the scenario's clock mode when set
-	OutRoot    string    // parent folder of run folders (default "runs")
-	RunDir     string    // exact run folder; empty: OutRoot/<scenario>-<time>
-	Report     bool      // write report.html at the end
-	JUnit      bool      // write junit.xml (one case per criterion)
-	Parquet    bool      // write telemetry.parquet
-	Live       io.Writer // a line per step, nil for none
-	Log        io.Writer // plain sentences about the run (handshake, scheduling)
-	Rig        string    // MQTT rig id override
-	Firmware   *reference.Options
-	MaxSteps   int     // overrides the scenario's run.max_steps when > 0
-	Duration   float64 // overrides the scenario's run.duration_s when > 0
-	PrintAlarm bool    // print trip alarms to Log
+	Link     *linkSpec // overrides the scenario's controller link; nil keeps it
+	Clock    string    // overrides the scenario's clock mode when set
+	OutRoot  string    // parent folder of run folders (default "runs")
+	RunDir   string    // exact run folder; empty: OutRoot/<scenario>-<time>
+	Report   bool      // write report.html at the end
+	JUnit    bool      // write junit.xml (one case per criterion)
+	Parquet  bool      // write telemetry.parquet
+	Live     io.Writer // a line per step, nil for none
+	Log      io.Writer // plain sentences about the run (handshake, scheduling)
+	Rig      string    // MQTT rig id override
+	MaxSteps int       // overrides the scenario's run.max_steps when > 0
+	Duration float64   // overrides the scenario's run.duration_s when > 0
 }
 
 // runResult is what one run gives back to a command.
@@ -137,9 +135,6 @@ func openLink(sc *scenarios.Scenario, o runOptions, cfg *hil.Config) (bridges.Co
 		return nil, "", nil, err
 	}
 	ls := linkSetup{Spec: spec, Rig: o.Rig, Lockstep: cfg.Clock == hil.Lockstep}
-	if o.Firmware != nil {
-		ls.Firmware = *o.Firmware
-	}
 	if ls.Firmware.Gains == nil {
 		g, err := reference.GainsFromSettings(sc.Controller.Settings)
 		if err != nil {
