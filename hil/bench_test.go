@@ -6,7 +6,6 @@ import (
 	"testing"
 	"time"
 
-	"gaitrig/bridges/inproc"
 	"gaitrig/firmware/reference"
 	"gaitrig/plant"
 	"gaitrig/record"
@@ -16,12 +15,16 @@ import (
 // reference firmware over inproc, recording into a run folder when rec is
 // true, and returns the mallocs the process made during the run.
 func runTicks(tb testing.TB, n int, rec bool) (mallocs uint64, elapsed time.Duration) {
+	return runTicksOver(tb, n, rec, false)
+}
+
+// runTicksOver is runTicks over the goroutine pair (direct false) or the
+// synchronous in-process link (direct true).
+func runTicksOver(tb testing.TB, n int, rec, direct bool) (mallocs uint64, elapsed time.Duration) {
 	tb.Helper()
 	m, s, cfg := timedDemo(tb, float64(n)/DefaultTickHz)
-	rig, fw := inproc.Pair()
-	defer rig.Close()
-	done := make(chan error, 1)
-	go func() { done <- referenceFirmware(fw) }()
+	conn, done := lockstepLink(tb, direct)
+	defer conn.Close()
 	var w *record.Writer
 	if rec {
 		w = newRecord(tb, cfg, m, s)
@@ -29,7 +32,7 @@ func runTicks(tb testing.TB, n int, rec bool) (mallocs uint64, elapsed time.Dura
 	var before, after runtime.MemStats
 	runtime.ReadMemStats(&before)
 	start := time.Now()
-	res, err := Run(context.Background(), cfg, m, s, rig, w)
+	res, err := Run(context.Background(), cfg, m, s, conn, w)
 	elapsed = time.Since(start)
 	runtime.ReadMemStats(&after)
 	if err != nil {
@@ -63,7 +66,14 @@ func TestTickLoopDoesNotAllocate(t *testing.T) {
 // BenchmarkLockstepInproc runs the demo walker in lockstep against the
 // reference firmware over the in-process link, one benchmark op per tick,
 // and reports how many times faster than real time it simulates.
-func BenchmarkLockstepInproc(b *testing.B) {
+func BenchmarkLockstepInproc(b *testing.B) { benchLockstep(b, false) }
+
+// BenchmarkLockstepDirect is BenchmarkLockstepInproc over the synchronous
+// in-process link: the firmware answers inside the rig's Send, so no tick
+// waits for a goroutine hand-over.
+func BenchmarkLockstepDirect(b *testing.B) { benchLockstep(b, true) }
+
+func benchLockstep(b *testing.B, direct bool) {
 	for _, rec := range []bool{false, true} {
 		name := "no-record"
 		if rec {
@@ -73,7 +83,7 @@ func BenchmarkLockstepInproc(b *testing.B) {
 			n := max(b.N, 100)
 			b.ReportAllocs()
 			b.ResetTimer()
-			mallocs, elapsed := runTicks(b, n, rec)
+			mallocs, elapsed := runTicksOver(b, n, rec, direct)
 			b.StopTimer()
 			sim := float64(n) / DefaultTickHz
 			b.ReportMetric(sim/elapsed.Seconds(), "x_realtime")
