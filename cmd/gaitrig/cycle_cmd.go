@@ -55,7 +55,9 @@ Jacobian (variational equations with the heel-strike saltation correction)
 say whether it is stable. Passive walkers are analysed as they are; with the
 built-in controller the closed loop is analysed (its law is a pure function
 of the measured state). Firmware authors use the result to seed a controller
-with the walker's natural gait. The scenario's initial state is the guess.`, stderr)
+with the walker's natural gait. The scenario's initial state is the guess.
+Exit code 0 when a gait is found (stable or not: the output says which), 1
+when none is found from the guess.`, stderr)
 	asJSON := fs.Bool("json", false, "print JSON instead of a table")
 	if done, code := parseFlags(fs, args); done {
 		return code
