@@ -242,6 +242,47 @@ func TestCreateRefusesNonEmptyFolder(t *testing.T) {
 	}
 }
 
+// TestEventReportsWriteError makes the events file refuse a write: Event
+// must say so (zerolog alone only prints such an error to stderr), and the
+// next event that does get written reports no error.
+func TestEventReportsWriteError(t *testing.T) {
+	dir := t.TempDir()
+	w, err := Create(dir, testManifest())
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev := Event{Kind: "watchdog", Severity: Trip, Message: "no command", Segment: NoSegment}
+	if err := w.Event(ev); err != nil {
+		t.Fatalf("first event: %v", err)
+	}
+	// A descriptor opened for reading only fails every write, as a file on
+	// a failed disk would.
+	ro, err := os.Open(filepath.Join(dir, EventsFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ro.Close()
+	good := w.eventsOut.f
+	w.eventsOut.f = ro
+	if err := w.Event(ev); err == nil || !strings.Contains(err.Error(), "record: events") {
+		t.Fatalf("an event that could not be written returned %v, want a record: events error", err)
+	}
+	w.eventsOut.f = good
+	if err := w.Event(ev); err != nil {
+		t.Fatalf("event after the failure: %v", err)
+	}
+	if err := w.Close(Summary{Outcome: Pass}); err != nil {
+		t.Fatal(err)
+	}
+	data, err := os.ReadFile(filepath.Join(dir, EventsFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(string(data), "\n"); n != 2 {
+		t.Fatalf("events.jsonl holds %d lines, want the 2 that were written", n)
+	}
+}
+
 // TestCreateClaimsFolder starts several runs on one folder at once: exactly
 // one may own it, and the manifest on disk is that one's.
 func TestCreateClaimsFolder(t *testing.T) {

@@ -31,8 +31,9 @@ type Writer struct {
 	ticks     atomic.Int64  // rows handed to Tick
 	pipe      telePipe
 
-	events *os.File
-	log    zerolog.Logger
+	events    *os.File
+	eventsOut eventWriter // between log and events, to catch write errors
+	log       zerolog.Logger
 
 	steps    *os.File
 	stepBuf  []byte
@@ -90,7 +91,8 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	}
 	// The events file is unbuffered: each event is one write(2), on disk
 	// (in the page cache) the moment Event returns.
-	w.log = zerolog.New(w.events)
+	w.eventsOut.f = w.events
+	w.log = zerolog.New(&w.eventsOut)
 	if w.steps, err = os.OpenFile(filepath.Join(dir, StepsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
@@ -189,8 +191,31 @@ func (w *Writer) Event(e Event) error {
 		}
 		ev = ev.Dict("values", d)
 	}
+	w.eventsOut.err = nil
 	ev.Send()
+	if err := w.eventsOut.err; err != nil {
+		return fmt.Errorf("record: events: %w", err)
+	}
 	return nil
+}
+
+// eventWriter is the events file as zerolog sees it. zerolog does not
+// return a write error to the caller (it prints it to stderr), so the
+// writer keeps it for Event to return: an event that did not reach the
+// file must be reported, not lost in silence.
+type eventWriter struct {
+	f   *os.File
+	err error // of the last write; Event clears it before each event
+}
+
+func (e *eventWriter) Write(p []byte) (int, error) {
+	n, err := e.f.Write(p)
+	if err != nil {
+		e.err = err
+	}
+	// The error goes back through Event; handing it to zerolog as well
+	// would only print it a second time on stderr.
+	return n, nil
 }
 
 // Step appends one row to steps.csv and writes it through at once.
