@@ -22,9 +22,10 @@ func (m *Model) evalAt(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
 // Dormand–Prince 5(4) coefficients (Dormand and Prince 1980, J. Comput.
 // Appl. Math. 6:19–26; as tabulated in Hairer, Nørsett, Wanner, Solving
 // Ordinary Differential Equations I, 2nd ed., Table 5.2 — from memory,
-// checked by the order test in dopri_test.go).
+// checked by the order test in dopri_test.go). The nodes c_i are not
+// needed: the right-hand side does not depend on time (a Policy sees only
+// the state).
 var (
-	dpC = [7]float64{0, 1.0 / 5, 3.0 / 10, 4.0 / 5, 8.0 / 9, 1, 1}
 	dpA = [7][6]float64{
 		{},
 		{1.0 / 5},

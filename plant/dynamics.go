@@ -41,7 +41,7 @@ func (m *Model) footGeometryOf(s *State, q, v *[MaxDOF]float64, tr *trig, i int,
 // the line of segment hint; 1 the vertex at the end of segment hint.
 func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, region int8, g *footGeom) {
 	// The arc centre and its first and second derivatives with respect to
-	// the leg angle, written out here (as in footCentreTrig) because this
+	// the leg angle, written out here (as in footCentre) because this
 	// is the innermost loop.
 	f := &m.feet[i]
 	a, ap := &tr.a[i], &tr.ap[i]

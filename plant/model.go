@@ -90,7 +90,6 @@ func New(p Params, o Options) (*Model, error) {
 	}
 	m.n = 2 + m.nLinks
 	m.terrain = compileTerrain(m.p.Terrain)
-	m.o.SubSteps = o.SubSteps
 	if m.o.SubSteps == 0 {
 		m.o.SubSteps = 4
 	}
@@ -167,17 +166,6 @@ func axis(th float64) (a, ap [2]float64) {
 func (m *Model) footCentre(q *[MaxDOF]float64, i int) (c, dc, ddc [2]float64) {
 	f := &m.feet[i]
 	a, ap := axis(q[2+i])
-	k := f.length - f.radius
-	c = [2]float64{q[0] + k*a[0] + f.offset*ap[0], q[1] + k*a[1] + f.offset*ap[1]}
-	dc = [2]float64{k*ap[0] - f.offset*a[0], k*ap[1] - f.offset*a[1]}
-	ddc = [2]float64{-k*a[0] - f.offset*ap[0], -k*a[1] - f.offset*ap[1]}
-	return
-}
-
-// footCentreTrig is footCentre with the link's sine and cosine given.
-func (m *Model) footCentreTrig(q *[MaxDOF]float64, tr *trig, i int) (c, dc, ddc [2]float64) {
-	f := &m.feet[i]
-	a, ap := tr.a[i], tr.ap[i]
 	k := f.length - f.radius
 	c = [2]float64{q[0] + k*a[0] + f.offset*ap[0], q[1] + k*a[1] + f.offset*ap[1]}
 	dc = [2]float64{k*ap[0] - f.offset*a[0], k*ap[1] - f.offset*a[1]}
