@@ -326,8 +326,10 @@ func (c *checker) controller() {
 	case LinkMQTT:
 		if k.Broker != "embedded" && !c.d.bad["controller.broker"] {
 			u, err := url.Parse(k.Broker)
-			if err != nil || u.Host == "" || !slices.Contains([]string{"tcp", "ssl", "tls", "mqtt", "mqtts", "ws", "wss"}, u.Scheme) {
-				c.errf("controller.broker", "%q is not a broker address; allowed: embedded, or a URL such as tcp://127.0.0.1:1883 (schemes tcp, ssl, tls, mqtt, mqtts, ws, wss)", k.Broker)
+			// The schemes the MQTT link dials (bridges/mqtt Config.Broker); a
+			// scheme it refuses must fail here, with the line, not at run time.
+			if err != nil || u.Host == "" || !slices.Contains([]string{"tcp", "ssl", "tls", "mqtt", "mqtts"}, u.Scheme) {
+				c.errf("controller.broker", "%q is not a broker address; allowed: embedded, or a URL such as tcp://127.0.0.1:1883 (schemes tcp, ssl, tls, mqtt, mqtts)", k.Broker)
 			} else if u.User != nil {
 				c.errf("controller.broker", "the URL holds credentials; secrets never go in a scenario file: name environment variables with username_env and password_env")
 			}
