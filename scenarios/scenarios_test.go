@@ -27,6 +27,7 @@ func TestBrokenFiles(t *testing.T) {
 		{"literal-password.yaml", []string{"literal-password.yaml:18: controller.password: secrets never go in a scenario file", "password_env"}},
 		{"password-in-url.yaml", []string{"password-in-url.yaml:18: controller.broker: the URL holds credentials"}},
 		{"broker-websocket.yaml", []string{"broker-websocket.yaml:18: controller.broker: \"ws://127.0.0.1:8080\" is not a broker address", "schemes tcp, ssl, tls, mqtt, mqtts)"}},
+		{"massless-leg-no-inertia.yaml", []string{"massless-leg-no-inertia.yaml:8: plant.legs.inertia_kgm2: a massless leg (mass_kg 0) needs inertia_kgm2 > 0"}},
 		{"bad-link.yaml", []string{"bad-link.yaml:17: controller.link: \"carrier-pigeon\" is not allowed; allowed: builtin, serial, mqtt, none"}},
 		{"serial-without-port.yaml", []string{"serial-without-port.yaml:16: controller.port: missing required field port"}},
 		{"port-on-builtin.yaml", []string{"port-on-builtin.yaml:18: controller.port: port applies only to link serial"}},

@@ -227,7 +227,12 @@ func (c *checker) leg(path string, l, shared Leg) {
 	}
 	relational("arc_offset_m", l.ArcOffsetM, math.Abs(l.ArcOffsetM) <= l.LengthM,
 		fmt.Sprintf("%g m is larger than the leg length %g m; allowed |arc_offset_m| ≤ length_m", l.ArcOffsetM, l.LengthM))
-	if l.MassKG*l.COMM*l.COMM+l.InertiaKGM2 <= 0 && l.MassKG > 0 {
+	switch {
+	case l.MassKG < 0 || l.InertiaKGM2 < 0 || c.isBad(where("mass_kg")) || c.isBad(where("inertia_kgm2")):
+		// already reported (out of range, or not a number)
+	case l.MassKG == 0 && l.InertiaKGM2 == 0:
+		c.errf(where("inertia_kgm2"), "a massless leg (mass_kg 0) needs inertia_kgm2 > 0, or its angle would have no inertia")
+	case l.MassKG*l.COMM*l.COMM+l.InertiaKGM2 <= 0:
 		c.errf(where("inertia_kgm2"), "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia; give com_m > 0 or inertia_kgm2 > 0")
 	}
 }
