@@ -8,23 +8,23 @@ import "math"
 // saves work in most ticks. Residuals never accumulate beyond it.
 const projectTol = 1e-13
 
-// projectRows builds the constraint rows of the feet in contact at q: the
+// projectRows builds the constraint rows of the feet in contact at s.Q: the
 // normal row (gap) for every foot in contact, and the tangential row
-// (rolling anchor) for a rolling foot. With withAnchor, res receives the
-// position residuals.
+// (rolling anchor) for a rolling foot; res receives the position residuals.
+// A foot in contact keeps its recorded terrain region (footGeometryOf), so
+// its region, and with it the anchor, cannot change here.
 func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 	rows.k = 0
+	var tr trig
+	m.trigOf(&s.Q, &tr)
 	for f := 0; f < m.nFeet; f++ {
 		if s.Mode[f] == Free {
 			continue
 		}
 		var g footGeom
-		var tr trig
-		m.trigOf(&s.Q, &tr)
 		m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
-		m.setRegion(s, f, &g) // re-anchors a rolling foot that changed region
 		if s.Mode[f] == Rolling {
-			c, _, _ := m.footCentre(&s.Q, f)
+			c := g.c
 			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
 			res[rows.k] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+f] - s.Anchor[f]
 			if g.sp.clamped {
