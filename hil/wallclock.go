@@ -37,7 +37,7 @@ type mailbox struct {
 	items [256]inbound
 	head  int
 	n     int
-	lost  uint64 // overwritten because the loop did not keep up
+	lost  int // overwritten because the loop did not keep up, not yet reported
 }
 
 func (b *mailbox) put(in *inbound) {
@@ -56,8 +56,11 @@ func (b *mailbox) put(in *inbound) {
 // to lat; the newest one answering a state that was sent (seq ≤ maxSeq) is
 // copied to out. It returns how many were taken and whether out was set; a
 // command for a sequence number never sent is garbage and only counted.
+// Commands overwritten in a full mailbox since the last call count as taken
+// (and not applied), so the loop's stale count includes them.
 func (b *mailbox) takeDue(now int64, maxSeq uint32, out *inbound, lat *Histogram) (taken int, ok bool) {
 	b.mu.Lock()
+	taken, b.lost = b.lost, 0
 	for b.n > 0 {
 		it := &b.items[b.head]
 		if it.release > now {

@@ -98,3 +98,27 @@ func TestWallclockBadInputAndAbort(t *testing.T) {
 		t.Error("the interrupt is not in the event log")
 	}
 }
+
+// A flood that overfills the mailbox before the loop takes from it: the
+// newest command is applied and every other one, the overwritten ones
+// included, is counted, so the stale count matches what arrived.
+func TestMailboxCountsOverwrittenCommands(t *testing.T) {
+	var b mailbox
+	const sent = uint32(3*len(b.items)/2 + 7)
+	for i := uint32(1); i <= sent; i++ {
+		b.put(&inbound{seq: i})
+	}
+	var out inbound
+	var lat Histogram
+	taken, ok := b.takeDue(0, sent, &out, &lat)
+	if !ok || out.seq != sent {
+		t.Fatalf("applied seq %d (ok %v), want the newest, %d", out.seq, ok, sent)
+	}
+	if taken != int(sent) {
+		t.Fatalf("took %d commands, want all %d that arrived", taken, sent)
+	}
+	b.put(&inbound{seq: sent + 1})
+	if taken, _ := b.takeDue(0, sent+1, &out, &lat); taken != 1 {
+		t.Fatalf("next take counted %d, want 1: overwritten commands are reported once", taken)
+	}
+}
