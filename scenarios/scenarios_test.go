@@ -270,6 +270,33 @@ func TestPlantParamsOverrides(t *testing.T) {
 	}
 }
 
+// TestMassOnlyInAnOverride checks that the whole-walker mass check counts
+// the per-side overrides: a walker whose only mass is one leg's override has
+// mass and loads.
+func TestMassOnlyInAnOverride(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(base), "  hip_mass_kg: 8\n", "  hip_mass_kg: 0\n", 1)
+	text = strings.Replace(text, "    mass_kg: 4\n", "    mass_kg: 0\n", 1)
+	text = strings.Replace(text, "    foot_radius_m: 0.27\n", "    foot_radius_m: 0.27\n    left:\n      mass_kg: 2\n", 1)
+	s, err := Parse("override-mass.yaml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m := s.Leg(0).MassKG + s.Leg(1).MassKG + s.Plant.HipMassKG; m != 2 {
+		t.Errorf("walker mass %g kg, want 2", m)
+	}
+	// With the override gone the walker has no mass, and the message says so
+	// at the hip mass line.
+	text = strings.Replace(text, "    left:\n      mass_kg: 2\n", "", 1)
+	_, err = Parse("no-mass.yaml", []byte(text))
+	if err == nil || !strings.Contains(err.Error(), "no-mass.yaml:3: plant.hip_mass_kg: the walker has no mass at all") {
+		t.Errorf("want the no-mass problem at line 3, got %v", err)
+	}
+}
+
 func TestHash(t *testing.T) {
 	// SHA-256 of the empty string and of "abc": FIPS 180-2 test vectors.
 	if got := Hash(nil); got != "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855" {

@@ -152,7 +152,8 @@ func (c *checker) plant() {
 		}
 		c.leg("plant.legs."+side, applyOverride(base, o), base)
 	}
-	total := p.HipMassKG + p.Legs.Leg.MassKG*2
+	left, right := c.s.Leg(0), c.s.Leg(1) // with the per-side overrides
+	total := p.HipMassKG + left.MassKG + right.MassKG
 	if t := p.Torso; t != nil {
 		if c.require("plant.torso", "mass_kg", "torso mass, kg") {
 			c.num("plant.torso.mass_kg", t.MassKG, t.MassKG >= 0 && t.MassKG <= 1e4, "0 ≤ X ≤ 10000")
@@ -164,7 +165,7 @@ func (c *checker) plant() {
 		}
 		total += t.MassKG
 	}
-	if total <= 0 && c.has("plant.hip_mass_kg") && p.HipMassKG >= 0 && p.Legs.Leg.MassKG >= 0 {
+	if total <= 0 && c.has("plant.hip_mass_kg") && p.HipMassKG >= 0 && left.MassKG >= 0 && right.MassKG >= 0 {
 		c.errf("plant.hip_mass_kg", "the walker has no mass at all; give the hip, legs or torso a mass")
 	}
 }
