@@ -90,7 +90,8 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			if released {
 				continue
 			}
-			return m.stopNonFinite(s, r)
+			m.nonFinite(s, r)
+			return true
 		}
 		var lt, ln [2]float64
 		for k := 0; k < rows.k; k++ {
@@ -180,9 +181,4 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 		s.Stance = 1 - s.Stance
 	}
 	return stop
-}
-
-func (m *Model) stopNonFinite(s *State, r *TickResult) bool {
-	r.add(Event{Kind: NonFinite, T: s.T, Foot: -1, Segment: -1})
-	return true
 }
