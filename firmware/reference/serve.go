@@ -124,12 +124,16 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 		}
 		f.configured = true
 		// The firmware keeps the rig's limits to itself: its own
-		// TorqueLimit clips first, and the rig clips again.
+		// TorqueLimit clips first, and the rig clips again. A limit of 0
+		// is a joint the rig does not limit; it must not hide the limits
+		// of the others.
 		lim := math.Inf(1)
 		for i := 0; i < o.Actuators; i++ {
-			lim = math.Min(lim, float64(in.Config.TorqueLimit[i]))
+			if l := float64(in.Config.TorqueLimit[i]); l > 0 {
+				lim = math.Min(lim, l)
+			}
 		}
-		if lim > 0 && lim < f.g.TorqueLimit {
+		if lim < f.g.TorqueLimit {
 			f.g.TorqueLimit = lim
 		}
 	case protocol.TypeState:
@@ -174,7 +178,8 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 // echoes its sequence number, until the rig sends Stop. A state with a NaN
 // or infinite reading is answered with zero torques and the StatusFault
 // bit. The firmware's torque limit is lowered to the smallest limit in the
-// rig's configuration when that is lower. It returns nil after a normal end
+// rig's configuration when that is lower (0, a joint the rig does not
+// limit, does not count). It returns nil after a normal end
 // (StopEnd), an error wrapping ErrRigStopped for any other stop reason
 // (e-stop, watchdog, abort), and the link's error if it closes or stays
 // silent for IdleTimeout. Serve does not close conn.

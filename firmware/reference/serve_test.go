@@ -90,6 +90,39 @@ func TestServeSpeaksTheProtocol(t *testing.T) {
 	}
 }
 
+// The firmware adopts the smallest torque limit the rig configures; a
+// joint the rig leaves unlimited (limit 0) does not hide the others'.
+func TestHandleAdoptsTheRigsLimit(t *testing.T) {
+	tests := []struct {
+		name   string
+		limits [2]float32
+		want   float64
+	}{
+		{"both limited", [2]float32{30, 40}, 30},
+		{"first unlimited", [2]float32{0, 30}, 30},
+		{"second unlimited", [2]float32{30, 0}, 30},
+		{"none limited", [2]float32{0, 0}, DefaultGains().TorqueLimit},
+		{"above the firmware's own", [2]float32{80, 90}, DefaultGains().TorqueLimit},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			f, err := New(Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			cfg := protocol.Message{Type: protocol.TypeConfig}
+			cfg.Config = protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2}
+			copy(cfg.Config.TorqueLimit[:], tc.limits[:])
+			if _, end, err := f.Handle(&cfg); end || err != nil {
+				t.Fatalf("config refused: end %v, %v", end, err)
+			}
+			if f.g.TorqueLimit != tc.want {
+				t.Fatalf("firmware torque limit %g N·m, want %g", f.g.TorqueLimit, tc.want)
+			}
+		})
+	}
+}
+
 func TestServeRefusesAndTimesOut(t *testing.T) {
 	t.Run("joint count mismatch", func(t *testing.T) {
 		rig, fw := inproc.Pair()
