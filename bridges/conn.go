@@ -37,7 +37,7 @@ type Stats struct {
 	BytesSent      uint64 // bytes written, delimiters and framing included
 	BytesReceived  uint64 // bytes read, garbage included
 	Reconnects     uint64 // times the link came back after it was lost
-	Dropped        uint64 // valid frames discarded because the receiver fell behind (oldest first)
+	Dropped        uint64 // valid frames discarded because the receiver fell behind (serial and inproc drop the oldest, mqtt the newest)
 }
 
 // ErrTimeout is returned by Recv when the deadline passes with no message.

@@ -125,8 +125,7 @@ type Conn struct {
 	timer   *time.Timer    // Recv's reused deadline timer
 	sendBuf [maxFrame]byte // Send's encoding buffer (one sender at a time)
 	// dropped counts messages the full receive queue turned away since Recv
-	// last reported them; Recv moves them into counts.FrameErrors with a
-	// FrameError, so they are not lost from Stats.
+	// last reported them (with a FrameError); counts.Dropped keeps the total.
 	dropped atomic.Uint64
 
 	connected atomic.Bool
@@ -141,7 +140,7 @@ type Conn struct {
 	echo      [echoSlots][]byte // our recent stop payloads; empty slot = none
 	echoNext  int
 
-	counts bridges.Counters // counts.Dropped stays 0: see dropped
+	counts bridges.Counters
 }
 
 // Dial connects to the broker, subscribes to the topics of cfg.Role and
@@ -391,6 +390,7 @@ func (c *Conn) handle(_ paho.Client, m paho.Message) {
 	case c.rx <- in:
 	default:
 		c.dropped.Add(1)
+		c.counts.Dropped.Add(1)
 	}
 }
 
@@ -496,7 +496,6 @@ func (c *Conn) isOwnEcho(p []byte) bool {
 // next waits for the next incoming payload other than our own stop echoes.
 func (c *Conn) next(deadline time.Time) (inbound, error) {
 	if n := c.dropped.Swap(0); n > 0 {
-		c.counts.FrameErrors.Add(n)
 		return inbound{}, &bridges.FrameError{Reason: fmt.Sprintf("receive queue full: %d messages dropped before Recv read them", n)}
 	}
 	armed := false

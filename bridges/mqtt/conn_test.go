@@ -350,6 +350,11 @@ func TestRecvQueueFull(t *testing.T) {
 	if err == nil || !strings.Contains(err.Error(), "receive queue full: 36 messages dropped") {
 		t.Fatalf("first Recv = %v, want the drop report", err)
 	}
+	// Discarded valid messages are Stats.Dropped, not frame errors (which
+	// are damaged or misplaced frames).
+	if st := r.Stats(); st.Dropped != sent-4 || st.FrameErrors != 0 {
+		t.Errorf("Stats after the drops: Dropped %d, FrameErrors %d; want %d and 0", st.Dropped, st.FrameErrors, sent-4)
+	}
 	for i := 1; i <= 4; i++ {
 		got := mustRecv(t, r)
 		if want := command(uint32(i)); !same(&got, &want) {
