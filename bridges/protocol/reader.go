@@ -20,7 +20,6 @@ type Reader struct {
 	enc      [MaxWireLen]byte
 	n        int  // bytes collected in enc for the current frame
 	skipping bool // discarding an overlong run until the next zero
-	skipped  int  // bytes discarded in the current overlong run
 
 	frame   [MaxFrameLen]byte
 	wireLen int
@@ -37,7 +36,7 @@ func (r *Reader) Reset(src io.Reader) {
 	r.r = src
 	r.pending = nil
 	r.start, r.end = 0, 0
-	r.n, r.skipping, r.skipped = 0, false, 0
+	r.n, r.skipping = 0, false
 }
 
 // WireLen returns the number of encoded bytes (delimiter excluded) of the
@@ -57,18 +56,13 @@ func (r *Reader) Next() ([]byte, error) {
 			b := r.in[r.start]
 			r.start++
 			if r.skipping {
-				if b == 0 {
-					r.skipping = false
-					r.skipped = 0
-				} else {
-					r.skipped++
-				}
+				r.skipping = b != 0
 				continue
 			}
 			if b != 0 {
 				if r.n == len(r.enc) {
 					r.wireLen = r.n + 1
-					r.skipping, r.skipped, r.n = true, r.n+1, 0
+					r.skipping, r.n = true, 0
 					return nil, &Error{Kind: KindTooLong, Got: int64(r.wireLen), Want: MaxWireLen,
 						Detail: "no delimiter"}
 				}
