@@ -95,7 +95,6 @@ type Conn struct {
 	up     atomic.Bool
 	closed chan struct{}
 	once   sync.Once
-	done   chan struct{} // reader goroutine finished
 
 	rx     chan rxItem
 	events chan bridges.LinkEvent
@@ -154,7 +153,6 @@ func newConn(cfg Config, name string, reconnect bool) *Conn {
 		name:      name,
 		reconnect: reconnect,
 		closed:    make(chan struct{}),
-		done:      make(chan struct{}),
 		rx:        make(chan rxItem, cfg.QueueLen),
 		events:    make(chan bridges.LinkEvent, 32),
 		free:      make(chan *txBuf, cfg.SendQueueLen),
@@ -197,7 +195,6 @@ func (r *countingReader) Read(b []byte) (int, error) {
 }
 
 func (c *Conn) readLoop(p io.ReadWriteCloser) {
-	defer close(c.done)
 	cr := &countingReader{c: c, p: p}
 	rd := protocol.NewReader(cr)
 	var item rxItem // decoded in place; strings are reused when unchanged
