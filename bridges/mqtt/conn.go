@@ -92,9 +92,6 @@ import (
 // maxFrame is the largest frame any protocol version sends.
 const maxFrame = protocol.MaxFrameLen
 
-// stopType is the protocol's stop message type byte (frame offset 1).
-const stopType = 0x30
-
 // closeWait bounds how long Close waits for the offline status to be
 // acknowledged.
 const closeWait = time.Second
@@ -423,7 +420,7 @@ func (c *Conn) SendFrame(frame []byte) error {
 	if len(frame) > maxFrame {
 		return fmt.Errorf("mqtt: frame of %d bytes is longer than the %d-byte limit", len(frame), maxFrame)
 	}
-	return c.publish(frame, len(frame) >= 2 && frame[1] == stopType)
+	return c.publish(frame, len(frame) >= 2 && protocol.Type(frame[1]) == protocol.TypeStop)
 }
 
 // publish sends one payload on the stop topic (QoS 1, waiting for the
