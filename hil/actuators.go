@@ -33,14 +33,13 @@ const DefaultTorqueSanity = 1e4
 
 // commandCheck says what the actuator bank made of one command.
 type commandCheck struct {
-	bad          bool    // a torque was NaN, Inf or beyond the sanity bound
-	badJoint     int     // the first bad joint
-	badValue     float64 // its value
-	saturated    bool    // some torque was clipped
-	satJoint     int     // the first clipped joint
-	satValue     float64 // its commanded value
-	wrongJoints  bool    // the command carried another number of torques
-	commandedMax float64 // largest |τ| commanded, for logs
+	bad         bool    // a torque was NaN, Inf or beyond the sanity bound
+	badJoint    int     // the first bad joint
+	badValue    float64 // its value
+	saturated   bool    // some torque was clipped
+	satJoint    int     // the first clipped joint
+	satValue    float64 // its commanded value
+	wrongJoints bool    // the command carried another number of torques
 }
 
 // actuatorBank holds the torque each motor currently applies.
@@ -97,9 +96,6 @@ func (a *actuatorBank) command(c *protocol.Command) commandCheck {
 			r.bad, r.badJoint, r.badValue = true, i, v
 			a.zero()
 			return r
-		}
-		if math.Abs(v) > r.commandedMax {
-			r.commandedMax = math.Abs(v)
 		}
 	}
 	for i := 0; i < a.n; i++ {

@@ -28,7 +28,7 @@ func (r *runner) drainLinkEvents() {
 				if ev.Err != nil {
 					cause = ev.Err.Error()
 				}
-				r.linkLost(0, "link to the firmware lost: "+cause)
+				r.linkLost("link to the firmware lost: " + cause)
 			case "reconnected":
 				gap := ev.Gap
 				if r.al.raise(scenarios.AlarmLinkRestored, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
@@ -58,10 +58,12 @@ func (r *runner) disconnected(err error) {
 		return // raised once per outage; a valid command ends it
 	}
 	r.linkDown = true
-	r.linkLost(0, "link to the firmware lost: "+err.Error())
+	r.linkLost("link to the firmware lost: " + err.Error())
 }
 
-func (r *runner) linkLost(gap time.Duration, msg string) {
+// linkLost raises link_lost with msg, and trips if the scenario makes it a
+// trip.
+func (r *runner) linkLost(msg string) {
 	if r.al.raise(scenarios.AlarmLinkLost, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 		return msg, nil
 	}) {

@@ -62,7 +62,8 @@ func (q *latencyQueue) popDue(tick int64, out *protocol.Command) bool {
 	return got
 }
 
-// latencyTicks draws the added latency for one command in whole ticks.
+// latencyDelay draws the latency the active latency faults add to one
+// command; lockstep rounds it to whole ticks, wall-clock holds it exactly.
 func (r *runner) latencyDelay(t float64, rng *rand.Rand) time.Duration {
 	var d time.Duration
 	for i := range r.cfg.LinkFaults {
@@ -181,7 +182,7 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 			// events say so, and the watchdog decides whether to wait.
 			r.disconnected(err)
 		case errors.Is(err, bridges.ErrClosed):
-			r.linkLost(0, "link to the firmware closed")
+			r.linkLost("link to the firmware closed")
 			if r.outcome == "" {
 				r.outcome, r.reason, r.stopCode = record.Aborted, "the link to the firmware closed", protocol.StopEStop
 			}

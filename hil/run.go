@@ -102,7 +102,6 @@ type runner struct {
 	out       protocol.Message    // state sent
 	msg       protocol.Message    // received
 	fe        *bridges.FrameError // target of errors.As, kept here so it is not allocated per Recv
-	cmd       protocol.Command    // last valid command taken
 	commanded [protocol.MaxJoints]float64
 	row       record.Tick
 	fresh     bool

@@ -124,13 +124,3 @@ func (b *sensorBank) read(t float64, tr *truth, out *protocol.State) {
 	b.last = *out
 	b.started = true
 }
-
-// frozen reports whether any freeze is active at t (for telemetry).
-func (b *sensorBank) frozen(t float64) bool {
-	for i := range b.freezes {
-		if f := &b.freezes[i]; t >= f.Start && t < f.Start+f.Duration {
-			return true
-		}
-	}
-	return false
-}

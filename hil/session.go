@@ -29,7 +29,7 @@ func (r *runner) handshake() error {
 			r.disconnected(err)
 			continue
 		case errors.Is(err, bridges.ErrClosed):
-			r.linkLost(0, "the link closed before the firmware greeted")
+			r.linkLost("the link closed before the firmware greeted")
 			return errors.New("hil: the link closed before the firmware greeted")
 		case errors.As(err, &r.fe):
 			r.badFrame(r.fe.Reason)

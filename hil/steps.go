@@ -9,19 +9,18 @@ import (
 
 // stepTracker accumulates the per-step metrics between heel strikes.
 type stepTracker struct {
-	count      int
-	startT     float64
-	startX     float64 // contact point x of the stance foot at the step's start
-	stance     int
-	contact    contactExtremes
-	pos, neg   float64
-	copMin     float64
-	copMax     float64
-	weight     float64 // m g, N
-	radius     [2]float64
-	sumLength  float64
-	sumTime    float64
-	haveStance bool
+	count     int
+	startT    float64
+	startX    float64 // contact point x of the stance foot at the step's start
+	stance    int
+	contact   contactExtremes
+	pos, neg  float64
+	copMin    float64
+	copMax    float64
+	weight    float64 // m g, N
+	radius    [2]float64
+	sumLength float64
+	sumTime   float64
 }
 
 // contactExtremes tracks the peak friction utilization and the least normal

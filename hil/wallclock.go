@@ -229,7 +229,7 @@ func (r *runner) wallclock(ctx context.Context) error {
 			break
 		}
 		if rc.closed.Load() {
-			r.linkLost(0, "link to the firmware closed")
+			r.linkLost("link to the firmware closed")
 			if r.outcome == "" {
 				r.outcome, r.reason, r.stopCode = record.Aborted, "the link to the firmware closed", protocol.StopEStop
 			}
