@@ -35,10 +35,9 @@ type Writer struct {
 	eventsOut eventWriter // between log and events, to catch write errors
 	log       zerolog.Logger
 
-	steps    *os.File
-	stepBuf  []byte
-	closed   bool
-	firstErr error
+	steps   *os.File
+	stepBuf []byte
+	closed  bool
 }
 
 // Create makes the run folder dir (and its parents) and writes the manifest
@@ -242,7 +241,7 @@ func (w *Writer) Close(s Summary) error {
 		return errors.New("record: Close called twice")
 	}
 	w.closed = true
-	errs := []error{w.firstErr, w.stopTelemetry()}
+	errs := []error{w.stopTelemetry()}
 	if s.Caution == "" {
 		s.Caution = Caution
 	}
