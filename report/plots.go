@@ -287,13 +287,7 @@ func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
 	for s := range bySev {
 		sevs = append(sevs, s)
 	}
-	sort.Slice(sevs, func(i, j int) bool {
-		ri, rj := severityRank(sevs[i]), severityRank(sevs[j])
-		if ri != rj {
-			return ri < rj
-		}
-		return sevs[i] < sevs[j]
-	})
+	sortSeverities(sevs)
 	for _, s := range sevs {
 		sc, err := plotter.NewScatter(bySev[s])
 		if err != nil {
@@ -308,6 +302,19 @@ func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
 	p.Y.Tick.Marker = rowTicks(names)
 	p.Y.Padding = 0
 	return p, nil
+}
+
+// sortSeverities orders severity names from the mildest to the most severe
+// (unknown words last), alphabetically within a rank, so the timeline's
+// markers and its legend list the severities in the same order.
+func sortSeverities(sevs []string) {
+	sort.Slice(sevs, func(i, j int) bool {
+		ri, rj := severityRank(sevs[i]), severityRank(sevs[j])
+		if ri != rj {
+			return ri < rj
+		}
+		return sevs[i] < sevs[j]
+	})
 }
 
 // legendItem is one swatch of a legend drawn by the page.
@@ -326,13 +333,7 @@ func severityLegend(marks []alarmMark) []legendItem {
 			sevs = append(sevs, m.severity)
 		}
 	}
-	sort.Slice(sevs, func(i, j int) bool {
-		ri, rj := severityRank(sevs[i]), severityRank(sevs[j])
-		if ri != rj {
-			return ri < rj
-		}
-		return sevs[i] < sevs[j]
-	})
+	sortSeverities(sevs)
 	items := make([]legendItem, 0, len(sevs))
 	for _, s := range sevs {
 		label := s
