@@ -19,14 +19,11 @@ func decimateMinMax(x, y []float64, maxPoints int) (xs, ys []float64) {
 	if maxPoints < 2 {
 		maxPoints = 2
 	}
-	finite := func(i int) bool {
-		return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
-	}
 	if n <= maxPoints {
 		xs = make([]float64, 0, n)
 		ys = make([]float64, 0, n)
 		for i := 0; i < n; i++ {
-			if finite(i) {
+			if finitePoint(x, y, i) {
 				xs = append(xs, x[i])
 				ys = append(ys, y[i])
 			}
@@ -41,7 +38,7 @@ func decimateMinMax(x, y []float64, maxPoints int) (xs, ys []float64) {
 		hi := (b + 1) * n / buckets
 		iMin, iMax := -1, -1
 		for i := lo; i < hi; i++ {
-			if !finite(i) {
+			if !finitePoint(x, y, i) {
 				continue
 			}
 			if iMin < 0 || y[i] < y[iMin] {
@@ -68,6 +65,11 @@ func decimateMinMax(x, y []float64, maxPoints int) (xs, ys []float64) {
 	return xs, ys
 }
 
+// finitePoint reports whether sample i has a finite x and a finite y.
+func finitePoint(x, y []float64, i int) bool {
+	return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
+}
+
 // run is a stretch of consecutive finite samples: a line is drawn through
 // each run, and the line breaks between runs (a foot in the air has no
 // friction cone, so its envelope must not be joined across the swing).
@@ -80,19 +82,16 @@ type run struct{ x, y []float64 }
 // samples there were.
 func decimateRuns(x, y []float64, maxPoints int) (runs []run, kept, finiteCount int) {
 	n := min(len(x), len(y))
-	finite := func(i int) bool {
-		return !math.IsNaN(x[i]) && !math.IsInf(x[i], 0) && !math.IsNaN(y[i]) && !math.IsInf(y[i], 0)
-	}
 	type span struct{ lo, hi int }
 	var spans []span
 	total := 0
 	for i := 0; i < n; {
-		if !finite(i) {
+		if !finitePoint(x, y, i) {
 			i++
 			continue
 		}
 		j := i
-		for j < n && finite(j) {
+		for j < n && finitePoint(x, y, j) {
 			j++
 		}
 		spans = append(spans, span{i, j})
