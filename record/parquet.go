@@ -5,17 +5,21 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"strings"
 
 	"github.com/parquet-go/parquet-go"
 )
 
-// parquetKind says how a telemetry column is stored in Parquet.
+// footModeColumns are the telemetry columns of the two foot contact modes.
+var footModeColumns = [2]string{FootNames[0] + "_mode", FootNames[1] + "_mode"}
+
+// parquetNode says how a telemetry column is stored in Parquet.
 func parquetNode(col string) parquet.Node {
 	switch {
 	case col == "tick":
 		return parquet.Leaf(parquet.Int64Type)
-	case col == "stance" || strings.HasSuffix(col, "_mode"):
+	case col == "stance" || col == footModeColumns[0] || col == footModeColumns[1]:
+		// Only the two foot mode columns: a joint named like "hip_mode"
+		// gives angle_hip_mode and friends, which are doubles.
 		return parquet.Leaf(parquet.Int32Type)
 	case col == "fresh":
 		return parquet.Leaf(parquet.BooleanType)
@@ -87,9 +91,9 @@ func ExportParquet(dir string) (rows int, err error) {
 				v = parquet.Int64Value(t.Index)
 			case c == "stance":
 				v = parquet.Int32Value(int32(t.Stance))
-			case c == "left_mode":
+			case c == footModeColumns[0]:
 				v = parquet.Int32Value(int32(t.Feet[0].Mode))
-			case c == "right_mode":
+			case c == footModeColumns[1]:
 				v = parquet.Int32Value(int32(t.Feet[1].Mode))
 			case c == "fresh":
 				v = parquet.BooleanValue(t.Fresh)

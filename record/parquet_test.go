@@ -98,3 +98,45 @@ func TestExportParquet(t *testing.T) {
 		t.Fatalf("read back %d rows", k)
 	}
 }
+
+// A joint whose name ends in _mode gives columns such as angle_hip_mode:
+// they are joint readings (doubles), not foot contact modes.
+func TestExportParquetJointNamedMode(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "run")
+	m := testManifest()
+	m.JointNames = []string{"hip_mode", "hip_right"}
+	w, err := Create(dir, m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tk := Tick{Index: 0, Stance: 1, LatencyUS: math.NaN()}
+	tk.Angle[0], tk.Feet[0].Mode = 0.25, 2
+	w.Tick(&tk)
+	if err := w.Close(Summary{Outcome: Pass}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ExportParquet(dir); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.Open(filepath.Join(dir, ParquetFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	pr := parquet.NewReader(f)
+	defer pr.Close()
+	idx := map[string]int{}
+	for i, fl := range pr.Schema().Fields() {
+		idx[fl.Name()] = i
+	}
+	rows := make([]parquet.Row, 1)
+	if n, err := pr.ReadRows(rows); n != 1 {
+		t.Fatalf("read %d rows: %v", n, err)
+	}
+	if v := rows[0][idx["angle_hip_mode"]]; v.Kind() != parquet.Double || v.Double() != 0.25 {
+		t.Errorf("angle_hip_mode = %v (kind %v), want the double 0.25", v, v.Kind())
+	}
+	if v := rows[0][idx["left_mode"]]; v.Kind() != parquet.Int32 || v.Int32() != 2 {
+		t.Errorf("left_mode = %v (kind %v), want the int32 2", v, v.Kind())
+	}
+}
