@@ -8,14 +8,20 @@ import "math"
 // "fine", ≤ 0 means "the event happened", NaN means "does not apply in the
 // current contact mode".
 const (
-	condGap      = 0  // + foot: free foot gap (impact on a downward crossing)
-	condNormal   = 2  // + foot: normal force of a foot in contact (lift-off)
-	condFriction = 4  // + foot: μ_s N − |F_t| of a rolling foot
-	condStick    = 6  // + foot: SlipDir·slip velocity of a sliding foot
-	condHip      = 8  // hip height above terrain − fall limit
-	condTorso    = 9  // torso angle limit − |θ_torso|
-	condRegion   = 10 // + foot: distance of a foot in contact to the edge of its terrain region
-	numCond      = 12
+	condGap      = 0 // + foot: free foot gap (impact on a downward crossing)
+	condNormal   = 2 // + foot: normal force of a foot in contact (lift-off)
+	condFriction = 4 // + foot: μ_s N − |F_t| of a rolling foot
+	condStick    = 6 // + foot: SlipDir·slip velocity of a sliding foot
+	condHip      = 8 // hip height above terrain − fall limit
+	condTorso    = 9 // torso angle limit − |θ_torso|
+	// + 2·foot + edge: distance of a foot in contact to the backward (edge
+	// 0) or forward (edge 1) edge of its terrain region. Each edge has its
+	// own condition because just after a crossing the foot sits on the
+	// edge behind it (margin ≈ 0, possibly a rounding below): a single
+	// nearer-edge margin would start a step at ≤ 0, and a step long enough
+	// to pass the next edge too would see no sign change and miss it.
+	condRegion = 10
+	numCond    = 14
 )
 
 // latched reports whether condition c raises its event once and then waits
@@ -55,7 +61,8 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]f
 	}
 	for i := 0; i < m.nFeet; i++ {
 		if s.Mode[i] != Free {
-			c[condRegion+i] = m.regionMargin(s, i, &ev.geom[i])
+			val, _, _, _ := m.regionEdges(s, i, ev.geom[i].c)
+			c[condRegion+2*i], c[condRegion+2*i+1] = val[0], val[1]
 		}
 	}
 	if m.fallHip >= 0 {
@@ -146,8 +153,8 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		}
 		s.SlipDir[i] = -s.SlipDir[i]
 		return false
-	case k == condRegion || k == condRegion+1:
-		return m.crossRegion(s, in, k-condRegion, ev, r)
+	case k >= condRegion && k < condRegion+4:
+		return m.crossRegion(s, in, (k-condRegion)/2, (k-condRegion)%2, ev, r)
 	case k == condHip:
 		r.add(Event{Kind: Fall, T: s.T, Foot: s.Stance, Segment: ev.geom[s.Stance].sp.seg,
 			Value: m.hipHeight(s, &s.Q, ev), Limit: m.fallHip})
@@ -159,16 +166,12 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 	return false
 }
 
-// crossRegion moves foot i's contact across the edge of its terrain region
-// that it reached: onto a convex vertex or the next segment (a break point
-// for the integrator, no event), or, at a concave corner, into an impact
-// with the next segment (a Touchdown event on that segment).
-func (m *Model) crossRegion(s *State, in *Input, i int, ev *eval, r *TickResult) bool {
-	val, kind, seg, vertex := m.regionEdges(s, i, ev.geom[i].c)
-	e := 1
-	if math.IsNaN(val[1]) || (!math.IsNaN(val[0]) && val[0] < val[1]) {
-		e = 0
-	}
+// crossRegion moves foot i's contact across edge e (0 backward, 1
+// forward) of its terrain region: onto a convex vertex or the next segment
+// (a break point for the integrator, no event), or, at a concave corner,
+// into an impact with the next segment (a Touchdown event on that segment).
+func (m *Model) crossRegion(s *State, in *Input, i, e int, ev *eval, r *TickResult) bool {
+	_, kind, seg, vertex := m.regionEdges(s, i, ev.geom[i].c)
 	if kind[e] == edgeNone {
 		return false
 	}

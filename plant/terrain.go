@@ -211,16 +211,3 @@ func (m *Model) regionEdges(s *State, i int, c [2]float64) (val [2]float64, kind
 	}
 	return
 }
-
-// regionMargin is the distance of foot i to the nearer edge of its terrain
-// region (positive inside), NaN when the region has no edge.
-func (m *Model) regionMargin(s *State, i int, g *footGeom) float64 {
-	val, _, _, _ := m.regionEdges(s, i, g.c)
-	switch {
-	case math.IsNaN(val[0]):
-		return val[1]
-	case math.IsNaN(val[1]):
-		return val[0]
-	}
-	return math.Min(val[0], val[1])
-}
