@@ -346,6 +346,10 @@ func Decode(frame []byte, m *Message) error {
 		getString(&m.Stop.Text, p[1:])
 	}
 	if err != nil {
+		if e, ok := err.(*Error); ok && e.Kind == KindVersion {
+			// the greeting's own version field: as for the header's version
+			m.Type, m.Seq = t, le.Uint32(frame[2:])
+		}
 		return err
 	}
 	m.Type = t

@@ -326,6 +326,14 @@ func TestDecodeVersionKeepsType(t *testing.T) {
 	if !errors.Is(err, ErrVersion) || m.Type != TypeGreeting || m.Seq != 9 {
 		t.Fatalf("err %v, type %v, seq %d; want ErrVersion, greeting, 9", err, m.Type, m.Seq)
 	}
+	// The same when only the greeting's own version field differs from the
+	// header's (docs/protocol.md section 6.1, item 8).
+	f = frame(t, exampleMessages()[0].msg, func(b []byte) []byte { b[8], b[2] = 3, 7; return b }, true)
+	m = Message{}
+	err = Decode(f, &m)
+	if !errors.Is(err, ErrVersion) || m.Type != TypeGreeting || m.Seq != 7 {
+		t.Fatalf("payload version 3: err %v, type %v, seq %d; want ErrVersion, greeting, 7", err, m.Type, m.Seq)
+	}
 }
 
 func TestBadCRCNamesBothValues(t *testing.T) {
