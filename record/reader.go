@@ -49,6 +49,9 @@ func Open(dir string) (*Run, error) {
 	if r.Manifest.Format > FormatVersion {
 		return nil, fmt.Errorf("record: %s has format %d; this build reads up to %d", dir, r.Manifest.Format, FormatVersion)
 	}
+	if err := r.Manifest.checkSizes(); err != nil {
+		return nil, fmt.Errorf("%w (%s)", err, filepath.Join(dir, ManifestFile))
+	}
 	if err := r.readSteps(); err != nil {
 		return nil, err
 	}

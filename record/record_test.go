@@ -9,6 +9,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"reflect"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -394,6 +395,56 @@ func TestTruncatedLastLine(t *testing.T) {
 	}
 	if tr.Err() != nil || !tr.Truncated() || tr.Rows() != 100 || last != 99 {
 		t.Errorf("err %v truncated %v rows %d last %d", tr.Err(), tr.Truncated(), tr.Rows(), last)
+	}
+}
+
+// A manifest whose sizes do not fit a telemetry row is refused by Open with
+// an error, even when the telemetry header and rows agree with it (a file
+// from another build, or edited by hand): reading its rows would index past
+// the row's fixed arrays.
+func TestOpenRefusesOversizedManifest(t *testing.T) {
+	tests := []struct {
+		name   string
+		numQ   int
+		joints int
+	}{
+		{"too many coordinates", MaxQ + 1, 2},
+		{"negative coordinates", -1, 2},
+		{"too many joints", 5, MaxJoints + 1},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			dir := writeSmallRun(t, 1)
+			var m Manifest
+			data, err := os.ReadFile(filepath.Join(dir, ManifestFile))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := json.Unmarshal(data, &m); err != nil {
+				t.Fatal(err)
+			}
+			m.NumQ = tc.numQ
+			m.JointNames = nil
+			for i := 0; i < tc.joints; i++ {
+				m.JointNames = append(m.JointNames, "j"+strconv.Itoa(i))
+			}
+			if err := writeJSONAtomic(filepath.Join(dir, ManifestFile), &m); err != nil {
+				t.Fatal(err)
+			}
+			cols := TickColumns(m.NumQ, m.JointNames)
+			row := strings.Repeat("0,", len(cols)-1) + "0\n"
+			if err := os.WriteFile(filepath.Join(dir, TelemetryFile), []byte(csvHeader(cols)+row), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			run, err := Open(dir)
+			if err == nil {
+				_, _, err = run.AllTicks()
+				t.Fatalf("Open accepted num_q %d with %d joints (rows: %v)", tc.numQ, tc.joints, err)
+			}
+			if !strings.Contains(err.Error(), "manifest") {
+				t.Fatalf("error %q does not name the manifest", err)
+			}
+		})
 	}
 }
 

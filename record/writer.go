@@ -45,11 +45,8 @@ type Writer struct {
 // exists and is not empty, so a run never overwrites another. m.Format and
 // m.Columns are filled in; a zero m.StartTime is set to now.
 func Create(dir string, m Manifest) (*Writer, error) {
-	if m.NumQ < 0 || m.NumQ > MaxQ {
-		return nil, fmt.Errorf("record: manifest num_q %d out of range 0..%d", m.NumQ, MaxQ)
-	}
-	if len(m.JointNames) > MaxJoints {
-		return nil, fmt.Errorf("record: %d joints, at most %d fit a telemetry row", len(m.JointNames), MaxJoints)
+	if err := m.checkSizes(); err != nil {
+		return nil, err
 	}
 	if entries, err := os.ReadDir(dir); err == nil && len(entries) > 0 {
 		return nil, fmt.Errorf("record: run folder %s already exists and is not empty; choose a new folder", dir)
@@ -102,6 +99,19 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	}
 	w.startTelemetry()
 	return w, nil
+}
+
+// checkSizes refuses a manifest whose coordinates or joints do not fit the
+// fixed arrays of a telemetry row. Create checks what it is given, Open what
+// it reads, so a row is never indexed past its arrays.
+func (m *Manifest) checkSizes() error {
+	if m.NumQ < 0 || m.NumQ > MaxQ {
+		return fmt.Errorf("record: manifest num_q %d out of range 0..%d", m.NumQ, MaxQ)
+	}
+	if len(m.JointNames) > MaxJoints {
+		return fmt.Errorf("record: manifest has %d joints, at most %d fit a telemetry row", len(m.JointNames), MaxJoints)
+	}
+	return nil
 }
 
 // Dir returns the run folder.
