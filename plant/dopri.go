@@ -126,8 +126,11 @@ func (st *stepStats) sample(m *Model, s *State, ev *eval) {
 
 // adaptive integrates s with the Dormand–Prince 5(4) method and event
 // location until tEnd, or until just after the first heel strike when
-// untilHeel is set. Events go to r (its Events overflow into Dropped).
-func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, r *TickResult, st *stepStats) analysisStop {
+// untilHeel is set. Every event is appended to events: an analysis run may
+// hold more events than one TickResult, so each handled event's records
+// are moved out of a scratch TickResult at once.
+func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, events *[]Event, st *stepStats) analysisStop {
+	var r TickResult
 	var cur, nxt eval
 	m.evalAt(s, &s.Q, &s.V, pol, &cur)
 	if !cur.ok {
@@ -205,8 +208,12 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 		if pol != nil {
 			pol(m, s, &in)
 		}
-		before := r.NumEvents + r.Dropped
-		stop := m.handle(s, &in, first, &cur, r)
+		// One handle call adds at most four events (scuff, two impact
+		// slips, the impact), well within a TickResult.
+		r = TickResult{}
+		stop := m.handle(s, &in, first, &cur, &r)
+		added := r.Events[:r.NumEvents]
+		*events = append(*events, added...)
 		m.evalAt(s, &s.Q, &s.V, pol, &cur)
 		if !cur.ok {
 			return stopFail
@@ -214,9 +221,9 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 		if stop {
 			return stopEvent
 		}
-		if untilHeel && r.NumEvents+r.Dropped > before {
-			for e := before; e < r.NumEvents; e++ {
-				if r.Events[e].Kind == HeelStrike {
+		if untilHeel {
+			for _, e := range added {
+				if e.Kind == HeelStrike {
 					return stopHeel
 				}
 			}

@@ -93,20 +93,18 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	}
 	m.sanitize(&s)
 	start := s
-	var r TickResult
 	st := stepStats{onSample: observe}
-	why := m.adaptive(&s, policy, s.T+o.MaxTime, o.Tol, o.Tol, true, &r, &st)
-	res.Events = append(res.Events, r.Events[:r.NumEvents]...)
+	why := m.adaptive(&s, policy, s.T+o.MaxTime, o.Tol, o.Tol, true, &res.Events, &st)
 	switch why {
 	case stopTime:
 		return res, fmt.Errorf("%w within %g s", ErrNoHeelStrike, o.MaxTime)
 	case stopFail:
 		return res, fmt.Errorf("%w: the integration failed at t = %g s (non-finite state or step size underflow)", ErrNoHeelStrike, s.T)
 	case stopEvent:
-		e := r.Events[r.NumEvents-1]
+		e := stoppingEvent(res.Events)
 		return res, fmt.Errorf("%w: %s at t = %.6f s (foot %d, value %g)", ErrNoHeelStrike, e.Kind, e.T, e.Foot, e.Value)
 	}
-	heel := r.Events[r.NumEvents-1]
+	heel := res.Events[len(res.Events)-1]
 	res.After = s
 	res.Period = s.T - start.T
 	var g0, g1 footGeom
@@ -119,6 +117,22 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	res.PeakRequiredFriction = st.peakFriction
 	res.MinNormal = st.minNormal
 	return res, nil
+}
+
+// stoppingEvent picks the event that stopped an analysis run from its
+// events: the last one other than an impact record. An impact that slips
+// adds its ImpactSlip first and its HeelStrike or Touchdown record last,
+// and the slip is what stopped the run.
+func stoppingEvent(events []Event) Event {
+	for i := len(events) - 1; i >= 0; i-- {
+		if k := events[i].Kind; k != HeelStrike && k != Touchdown {
+			return events[i]
+		}
+	}
+	if len(events) == 0 {
+		return Event{Foot: -1, Segment: -1}
+	}
+	return events[len(events)-1]
 }
 
 // Reduced returns the map coordinates of a state: the link angles and

@@ -3,6 +3,7 @@ package plant
 import (
 	"errors"
 	"math"
+	"strings"
 	"testing"
 )
 
@@ -74,5 +75,67 @@ func TestStepMapFollowsTerrainRegions(t *testing.T) {
 		if d := math.Abs(got[i] - want[i]); d > 1e-9 {
 			t.Errorf("touchdown %d at %.12f s, Step %.12f s (difference %.3g s)", i+1, got[i], want[i], d)
 		}
+	}
+}
+
+// TestStepMapKeepsEveryEvent: an analysis run may hold more events than
+// one TickResult (MaxEvents); StepMap must return all of them, in order.
+// This is a bookkeeping check; no physical value is compared.
+func TestStepMapKeepsEveryEvent(t *testing.T) {
+	const corners = 12
+	if corners <= MaxEvents {
+		t.Fatalf("the test needs more corners than MaxEvents (%d)", MaxEvents)
+	}
+	m, s := cornerDisk(t, corners)
+	res, err := m.StepMap(s, nil, GaitOptions{MaxTime: 5})
+	if !errors.Is(err, ErrNoHeelStrike) {
+		t.Fatalf("got error %v, want ErrNoHeelStrike (a single leg has no heel strike)", err)
+	}
+	touchdowns := 0
+	for _, e := range res.Events {
+		if e.Kind == Touchdown {
+			touchdowns++
+			if e.Segment != touchdowns {
+				t.Errorf("touchdown %d on segment %d, want %d", touchdowns, e.Segment, touchdowns)
+			}
+		}
+	}
+	if touchdowns != corners {
+		t.Errorf("%d touchdowns in %d events, want one per corner (%d)", touchdowns, len(res.Events), corners)
+	}
+}
+
+// TestStepMapNamesTheStoppingEvent: when the heel-strike impulse leaves the
+// friction cone and slips are not continued, the step ends at an impact
+// slip, and the error must say so (the impact adds its own heel-strike
+// record after the slip). The friction coefficient lies between the peak
+// stance friction ratio and the heel-strike impulse ratio of the SciPy
+// reference step (testdata/reference/passive_step_scipy.json), so nothing
+// else can stop the step first.
+func TestStepMapNamesTheStoppingEvent(t *testing.T) {
+	var fx scipyFixture
+	readFixture(t, "passive_step_scipy.json", &fx)
+	mu := 0.5 * (fx.Step.PeakFrictionRatio + fx.Step.ImpulseRatio)
+	if !(fx.Step.PeakFrictionRatio < mu && mu < fx.Step.ImpulseRatio) {
+		t.Fatalf("fixture: peak friction %g, impulse ratio %g leave no room between them", fx.Step.PeakFrictionRatio, fx.Step.ImpulseRatio)
+	}
+	m, err := New(fx.Params.plantParams(mu), Options{IgnoreScuff: true, MinStride: fx.HeelStrikeRule.MinAhead})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := fixtureState(m, fx.Initial.T, fx.Initial.Q, fx.Initial.V, fx.Initial.Stance)
+	res, err := m.StepMap(s, nil, GaitOptions{})
+	if !errors.Is(err, ErrNoHeelStrike) {
+		t.Fatalf("got error %v, want ErrNoHeelStrike", err)
+	}
+	if !strings.Contains(err.Error(), ImpactSlip.String()) {
+		t.Errorf("error %q does not name the %s that stopped the step", err, ImpactSlip)
+	}
+	slip := false
+	for _, e := range res.Events {
+		slip = slip || e.Kind == ImpactSlip
+	}
+	if !slip {
+		t.Errorf("events %v hold no %s", res.Events, ImpactSlip)
 	}
 }
