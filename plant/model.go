@@ -6,13 +6,13 @@ import "math"
 // hip + rho·a(θ) with a(θ) = (sin θ, −cos θ): rho = +COMDist for a leg
 // (axis from hip to foot), −COMDist for the torso (axis from hip up).
 type link struct {
-	mass, rho, inertia float64
-	mr, d, invD        float64 // m·ρ, m·ρ² + I and its inverse, precomputed for the hot loop
+	mass, rho   float64
+	mr, d, invD float64 // m·ρ, m·ρ² + I and its inverse, precomputed for the hot loop
 }
 
 func newLink(mass, rho, inertia float64) link {
 	d := mass*rho*rho + inertia
-	return link{mass: mass, rho: rho, inertia: inertia, mr: mass * rho, d: d, invD: 1 / d}
+	return link{mass: mass, rho: rho, mr: mass * rho, d: d, invD: 1 / d}
 }
 
 // foot is the arc geometry of one leg: arc centre at hip + (L−R)·a(θ) +
@@ -180,7 +180,7 @@ func (m *Model) biasTrig(tr *trig, v *[MaxDOF]float64, f *[MaxDOF]float64) {
 	for i := 0; i < m.nLinks; i++ {
 		l := &m.links[i]
 		k := 2 + i
-		mr := l.mass * l.rho
+		mr := l.mr
 		w2 := v[k] * v[k]
 		f[0] += mr * tr.a[i][0] * w2
 		f[1] += mr * tr.a[i][1] * w2
@@ -206,10 +206,10 @@ func (m *Model) massBias(q, v *[MaxDOF]float64, M *[MaxDOF][MaxDOF]float64, h *[
 		l := &m.links[i]
 		k := 2 + i
 		a, ap := axis(q[k])
-		mr := l.mass * l.rho
+		mr := l.mr
 		M[0][k], M[1][k] = mr*ap[0], mr*ap[1]
 		M[k][0], M[k][1] = M[0][k], M[1][k]
-		M[k][k] = mr*l.rho + l.inertia
+		M[k][k] = l.d
 		w2 := v[k] * v[k]
 		h[0] -= mr * a[0] * w2
 		h[1] -= mr * a[1] * w2
