@@ -221,8 +221,9 @@ func (m *Model) Points(s *State) Pose {
 	return p
 }
 
-// Contacts evaluates the contact record of each foot at s without
-// advancing it (what Step would report for this state with zero input).
+// Contacts evaluates the contact record of each foot at s with input in
+// (nil: none) without advancing it: what Step reports at the end of a tick
+// that ends in this state with this input.
 func (m *Model) Contacts(s *State, in *Input) [2]FootContact {
 	var ev eval
 	var out [2]FootContact
