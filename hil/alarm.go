@@ -153,11 +153,8 @@ func (a *alarmer) write(al alarm, sev record.Severity) {
 	if al.segment >= 0 {
 		ev.Segment = al.segment
 	}
-	switch al.foot {
-	case 0:
-		ev.Foot = "left"
-	case 1:
-		ev.Foot = "right"
+	if al.foot == 0 || al.foot == 1 {
+		ev.Foot = record.FootNames[al.foot]
 	}
 	if a.rec != nil {
 		if err := a.rec.Event(ev); err != nil && a.logErr == nil {

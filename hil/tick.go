@@ -177,12 +177,10 @@ func (r *runner) plantEvent(e *plant.Event) {
 	}
 }
 
+// footName names foot i in a message, with the record's words for the feet.
 func footName(i int) string {
-	switch i {
-	case 0:
-		return "left"
-	case 1:
-		return "right"
+	if i == 0 || i == 1 {
+		return record.FootNames[i]
 	}
 	return "no"
 }
