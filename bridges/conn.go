@@ -56,11 +56,20 @@ var ErrDisconnected = errors.New("bridges: link down")
 type FrameError struct {
 	Reason string // short plain description, e.g. "bad CRC: got 0x1234, computed 0xBEEF"
 	Bytes  int    // length of the rejected frame
+	// Err is the decoder's refusal (a *protocol.Error, or the JSON parser's
+	// error) when the frame did not decode, so that errors.Is(err,
+	// protocol.ErrVersion) tells a peer of another protocol version from
+	// line noise; nil for rejections of a transport's own (a frame on the
+	// wrong topic, a receive queue that overflowed).
+	Err error
 }
 
 // Error says why the frame was rejected, in words a person reading the
 // alarm understands.
 func (e *FrameError) Error() string { return "bridges: rejected frame: " + e.Reason }
+
+// Unwrap returns the decoder's error, if any.
+func (e *FrameError) Unwrap() error { return e.Err }
 
 // LinkEvent reports a change of link health that the loop turns into an
 // alarm (unplug, reconnect with the gap, broker lost).

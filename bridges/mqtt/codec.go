@@ -52,7 +52,7 @@ func (c *Conn) Recv(deadline time.Time, m *protocol.Message) error {
 	}
 	if err != nil {
 		c.counts.FrameErrors.Add(1)
-		return &bridges.FrameError{Reason: err.Error(), Bytes: len(in.payload)}
+		return &bridges.FrameError{Reason: err.Error(), Bytes: len(in.payload), Err: err}
 	}
 	if !c.expected(m.Type, in.stop) {
 		c.counts.FrameErrors.Add(1)

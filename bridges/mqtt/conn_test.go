@@ -313,6 +313,9 @@ func TestBadFramesAndWrongDirection(t *testing.T) {
 			if !errors.As(err, &fe) || !strings.Contains(err.Error(), tc.error) {
 				t.Fatalf("Recv error %v, want a FrameError containing %q", err, tc.error)
 			}
+			if tc.name == "bit flip" && !errors.Is(err, protocol.ErrBadCRC) {
+				t.Errorf("FrameError %v does not unwrap to protocol.ErrBadCRC", err)
+			}
 		})
 	}
 	if got := r.Stats().FrameErrors; got != 5 {

@@ -212,7 +212,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 		if errors.As(err, &pe) {
 			c.counts.FrameErrors.Add(1)
 			n := rd.WireLen()
-			c.pushErr(&bridges.FrameError{Reason: pe.Error(), Bytes: n})
+			c.pushErr(&bridges.FrameError{Reason: pe.Error(), Bytes: n, Err: pe})
 			continue
 		}
 		// The stream failed: unplugged, hung up or closed by us.

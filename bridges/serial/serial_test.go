@@ -150,13 +150,14 @@ func TestBadFramesThenGoodFrame(t *testing.T) {
 		name   string
 		bytes  []byte
 		reason string
+		kind   error // the protocol sentinel the FrameError unwraps to
 	}{
-		{"bad CRC", rawFrame(t, cmd, func(b []byte) []byte { b[12] ^= 1; return b }, false), "bad CRC: got 0x"},
-		{"truncated", rawFrame(t, cmd, func(b []byte) []byte { return b[:30] }, false), "truncated command frame"},
-		{"wrong type", rawFrame(t, cmd, func(b []byte) []byte { b[1] = 0x66; return b }, true), "unknown message type 0x66"},
-		{"wrong version", rawFrame(t, cmd, func(b []byte) []byte { b[0] = 9; return b }, true), "frame speaks version 9, this side speaks version 1"},
-		{"bad COBS", []byte{0x07, 0x01, 0x02, 0x00}, "bad COBS"},
-		{"too many joints", rawFrame(t, cmd, func(b []byte) []byte { b[8] = 12; return b }, true), "joints 12 is outside 1…8"},
+		{"bad CRC", rawFrame(t, cmd, func(b []byte) []byte { b[12] ^= 1; return b }, false), "bad CRC: got 0x", protocol.ErrBadCRC},
+		{"truncated", rawFrame(t, cmd, func(b []byte) []byte { return b[:30] }, false), "truncated command frame", protocol.ErrTruncated},
+		{"wrong type", rawFrame(t, cmd, func(b []byte) []byte { b[1] = 0x66; return b }, true), "unknown message type 0x66", protocol.ErrUnknownType},
+		{"wrong version", rawFrame(t, cmd, func(b []byte) []byte { b[0] = 9; return b }, true), "frame speaks version 9, this side speaks version 1", protocol.ErrVersion},
+		{"bad COBS", []byte{0x07, 0x01, 0x02, 0x00}, "bad COBS", protocol.ErrCOBS},
+		{"too many joints", rawFrame(t, cmd, func(b []byte) []byte { b[8] = 12; return b }, true), "joints 12 is outside 1…8", protocol.ErrTooManyJoints},
 	}
 	p := newPair(t, Config{})
 	for i, tc := range tests {
@@ -168,6 +169,9 @@ func TestBadFramesThenGoodFrame(t *testing.T) {
 		var fe *bridges.FrameError
 		if !errors.As(err, &fe) || !strings.Contains(fe.Reason, tc.reason) || fe.Bytes == 0 {
 			t.Fatalf("%s: err = %v, want a FrameError mentioning %q", tc.name, err, tc.reason)
+		}
+		if !errors.Is(err, tc.kind) {
+			t.Errorf("%s: FrameError does not unwrap to %v", tc.name, tc.kind)
 		}
 		// The link stays usable: the next good frame arrives.
 		good := cmd
