@@ -55,15 +55,17 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	if len(rates) > m.nLinks {
 		return s, fmt.Errorf("%w: %d rates given, the model has %d links", ErrStand, len(rates), m.nLinks)
 	}
-	vals := []float64{x, legAngles[0], legAngles[1], torsoAngle}
 	for i, r := range rates {
 		if !finite(r) {
 			return s, fmt.Errorf("%w: rate %d is %g, must be finite", ErrStand, i, r)
 		}
 	}
-	for _, v := range vals {
-		if !finite(v) {
-			return s, fmt.Errorf("%w: position or angle %g must be finite", ErrStand, v)
+	for _, v := range [...]struct {
+		name  string
+		value float64
+	}{{"hip position x", x}, {"left leg angle", legAngles[0]}, {"right leg angle", legAngles[1]}, {"torso angle", torsoAngle}} {
+		if !finite(v.value) {
+			return s, fmt.Errorf("%w: %s is %g, must be finite", ErrStand, v.name, v.value)
 		}
 	}
 	s.Stance = stance
