@@ -9,8 +9,9 @@ import "math"
 // from there. At the end of the tick the state is projected back onto the
 // contact constraints (positions, then velocities, M-weighted). r receives
 // the contact records at the end of the tick and the events. If a stopping
-// event happens (a fall, a non-finite state, or a slip or lift-off that the
-// options do not continue), r.Stopped is set and s is left at the event.
+// event happens (a fall, a non-finite state, contact chatter, a bad input,
+// or a slip or lift-off that the options do not continue), r.Stopped is set
+// and s is left at the event.
 // Step does not allocate.
 func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 	*r = TickResult{}
@@ -104,11 +105,11 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 		stop := m.handle(s, in, first, cur, r)
 		m.rhs(s, &s.Q, &s.V, in, cur)
 		m.conditions(s, &s.Q, cur, &c0)
-		if stop || !cur.ok {
-			if !cur.ok {
-				m.nonFinite(s, r)
-				return
-			}
+		if !cur.ok {
+			m.nonFinite(s, r)
+			return
+		}
+		if stop {
 			r.Stopped = true
 			m.fillContacts(s, cur, r)
 			return
