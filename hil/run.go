@@ -227,6 +227,7 @@ func (r *runner) coast() {
 	r.commanded = [protocol.MaxJoints]float64{} // no firmware: nothing is commanded
 	for i := int64(0); i < n && !r.res.Stopped; i++ {
 		r.fresh = false
+		r.latUS = nan // no command, so no round trip (wall-clock rows log latUS)
 		if r.cfg.EStop == EStopDamp {
 			r.m.JointState(&r.s, r.angleTmp, r.rate0)
 			for j := 0; j < r.n; j++ {

@@ -122,3 +122,41 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 		t.Fatalf("next take counted %d, want 1: overwritten commands are reported once", taken)
 	}
 }
+
+// After a wall-clock e-stop the plant coasts with no firmware: the coast
+// rows have no fresh command and so no round-trip latency, not the latency
+// of the command that tripped.
+func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
+	m, s, cfg := timedDemo(t, 2)
+	cfg.Clock = Wallclock
+	cfg.Watchdog = time.Second
+	cfg.EStopCoast = 0.1
+	fw := scripted(func(seq uint32, c *protocol.Command) {
+		if seq == 100 {
+			c.Torque[0] = float32(math.NaN()) // bad_torque trips by default
+		}
+	})
+	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, fw)
+	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[scenarios.AlarmBadTorque] != 1 {
+		t.Fatalf("outcome %s, alarms %v: want a bad_torque trip", res.Summary.Outcome, res.Summary.Alarms)
+	}
+	trip := -1
+	for k := range ticks {
+		if math.IsNaN(ticks[k].Commanded[0]) {
+			trip = k
+			break
+		}
+	}
+	if trip < 0 || !ticks[trip].Fresh || math.IsNaN(ticks[trip].LatencyUS) {
+		t.Fatalf("tripping row %d not found with a fresh, timed command", trip)
+	}
+	coast := ticks[trip+1:]
+	if len(coast) < 50 {
+		t.Fatalf("%d rows after the trip, want the 0.1 s coast", len(coast))
+	}
+	for _, row := range coast {
+		if row.Fresh || !math.IsNaN(row.LatencyUS) {
+			t.Fatalf("coast row %d: fresh %v, latency %g µs; want no command and NaN latency", row.Index, row.Fresh, row.LatencyUS)
+		}
+	}
+}
