@@ -139,10 +139,14 @@ func stoppingEvent(events []Event) Event {
 // rates with the legs ordered stance first, z = (θ_stance, θ_swing[,
 // θ_torso], θ̇_stance, θ̇_swing[, θ̇_torso]). The hip position and velocity
 // follow from the stance foot rolling, so z describes the state on the
-// map's section up to the walker's position along the terrain.
+// map's section up to the walker's position along the terrain. Like Step,
+// it repairs the bookkeeping fields of a hand-made state (on a copy; s is
+// not changed), so a stance index that is not a foot counts as 0.
 func (m *Model) Reduced(s *State) []float64 {
+	c := *s
+	m.sanitize(&c)
 	z := make([]float64, 2*m.nLinks)
-	m.reduced(s, z)
+	m.reduced(&c, z)
 	return z
 }
 
@@ -171,6 +175,9 @@ func (m *Model) linkOfReduced(stance, i int) int {
 func (m *Model) FromReduced(z []float64, stance int, x float64) (State, error) {
 	if len(z) != 2*m.nLinks {
 		return State{}, fmt.Errorf("%w: %d map coordinates, want %d", ErrStand, len(z), 2*m.nLinks)
+	}
+	if err := m.checkStance(stance); err != nil {
+		return State{}, err
 	}
 	nl := m.nLinks
 	var ang [2]float64

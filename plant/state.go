@@ -49,8 +49,8 @@ var ErrStand = errors.New("plant: cannot stand the walker")
 // than 1 µm, unless Options.IgnoreScuff is set.
 func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle float64, rates ...float64) (State, error) {
 	var s State
-	if stance < 0 || stance >= m.nFeet {
-		return s, fmt.Errorf("%w: stance foot %d: must be 0 (left) or 1 (right) and the model has %d feet", ErrStand, stance, m.nFeet)
+	if err := m.checkStance(stance); err != nil {
+		return s, err
 	}
 	if len(rates) > m.nLinks {
 		return s, fmt.Errorf("%w: %d rates given, the model has %d links", ErrStand, len(rates), m.nLinks)
@@ -119,6 +119,14 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 		}
 	}
 	return s, nil
+}
+
+// checkStance refuses a stance index that is not one of the model's feet.
+func (m *Model) checkStance(stance int) error {
+	if stance < 0 || stance >= m.nFeet {
+		return fmt.Errorf("%w: stance foot %d: must be 0 (left) or 1 (right) and the model has %d feet", ErrStand, stance, m.nFeet)
+	}
+	return nil
 }
 
 // segmentAtX returns the terrain segment whose horizontal extent holds x.
