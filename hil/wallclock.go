@@ -31,10 +31,12 @@ type inbound struct {
 
 // mailbox carries commands from the receiver goroutine to the loop: a
 // fixed ring under a mutex, so a burst (a flood, or commands held back by a
-// latency fault) is kept in order and nothing allocates.
+// latency fault) is kept in order and nothing allocates. It holds as many
+// commands as the lockstep latency queue, the bound Config checks latency
+// faults against, so the longest allowed delay loses nothing here either.
 type mailbox struct {
 	mu    sync.Mutex
-	items [256]inbound
+	items [latencyQueueCap]inbound
 	head  int
 	n     int
 	lost  int // overwritten because the loop did not keep up, not yet reported

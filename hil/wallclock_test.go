@@ -160,3 +160,34 @@ func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
 		}
 	}
 }
+
+// A wall-clock latency fault holds every command back; the loop must keep
+// them all until they are due, not lose the oldest (the ones due first) to
+// the newest. At 2 kHz a 200 ms delay keeps 400 commands in flight, more
+// than the mailbox once held.
+func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
+	const delay = 200 * time.Millisecond
+	m, s, cfg := timedDemo(t, 0.35)
+	cfg.Clock = Wallclock
+	cfg.TickHz = 2000
+	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
+	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
+	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 {
+		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+	}
+	fresh := 0
+	for _, row := range ticks {
+		if row.Fresh {
+			fresh++
+			if row.WallS < delay.Seconds() {
+				t.Fatalf("tick %d took a command %.3f s into the run, before the %v delay", row.Index, row.WallS, delay)
+			}
+		}
+	}
+	// 150 ms of commands, 300 at 2 kHz, come due before the end; allow for
+	// a slow host.
+	if fresh < 100 {
+		t.Fatalf("%d ticks had a fresh command (link %+v); the delayed commands were lost", fresh, res.Link)
+	}
+	t.Logf("%d of %d ticks had a fresh command; outcome %s; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Link)
+}
