@@ -108,7 +108,7 @@ func DefaultGains() Gains {
 }
 
 // Law computes the joint torques for one reading. It is a pure function:
-// the result depends on g and r only. It writes len(r.Joints) torques to
+// the result depends on g and r only. It writes r.Joints torques to
 // tau in joint order and returns the stance leg it decided on (0 left,
 // 1 right).
 //
