@@ -3,12 +3,18 @@ package hil
 import (
 	"context"
 	"errors"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
 	"testing"
 	"time"
 
 	"gaitrig/bridges"
 	"gaitrig/firmware/reference"
 	"gaitrig/plant"
+	"gaitrig/record"
 	"gaitrig/scenarios"
 )
 
@@ -118,8 +124,37 @@ func TestReplayRunFromFolder(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !r.Match || int64(r.Ticks) != res.Summary.Ticks {
-		t.Fatalf("%s (run had %d ticks)", r, res.Summary.Ticks)
+	if !r.Match || int64(r.Ticks) != res.Summary.Ticks || r.Truncated {
+		t.Fatalf("%s (run had %d ticks, truncated %v)", r, res.Summary.Ticks, r.Truncated)
 	}
 	t.Log(r)
+
+	// One applied torque changed in the file, and a cut last line as a
+	// killed run leaves: the replay diverges at that row, still counts
+	// every complete row and says the telemetry was cut.
+	path := filepath.Join(rec.Dir(), record.TelemetryFile)
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(string(data), "\n")
+	col := slices.Index(strings.Split(lines[0], ","), "torque_"+m.JointNames()[0])
+	const changed = 500
+	fields := strings.Split(lines[1+changed], ",")
+	v, err := strconv.ParseFloat(fields[col], 64)
+	if col < 0 || err != nil {
+		t.Fatalf("torque column %d of row %d: %v", col, changed, err)
+	}
+	fields[col] = strconv.FormatFloat(v+1e-3, 'g', -1, 64)
+	lines[1+changed] = strings.Join(fields, ",")
+	if err := os.WriteFile(path, []byte(strings.Join(lines, "\n")+"6035,6.0"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	r, err = ReplayRun(rec.Dir(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Match || r.FirstDivergence != changed || int64(r.Ticks) != res.Summary.Ticks || !r.Truncated {
+		t.Fatalf("after changing row %d: %s (ticks %d of %d, truncated %v)", changed, r, r.Ticks, res.Summary.Ticks, r.Truncated)
+	}
 }

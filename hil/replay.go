@@ -43,34 +43,59 @@ func (r ReplayResult) String() string {
 // recorded ones bit for bit. Telemetry rows hold the state at the end of
 // their tick, so row k is compared after k+1 steps.
 func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz float64) (ReplayResult, error) {
-	res := ReplayResult{Ticks: len(ticks), Match: true, FirstDivergence: -1}
-	if !(tickHz > 0) || math.IsInf(tickHz, 0) {
-		return res, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
+	p, err := newReplayer(model, initial, tickHz)
+	if err != nil {
+		return ReplayResult{Ticks: len(ticks), Match: true, FirstDivergence: -1}, err
 	}
-	s := initial
-	var in plant.Input
-	var tr plant.TickResult
-	dt := 1 / tickHz
-	nq, na := model.NumDOF(), model.NumActuators()
 	for k := range ticks {
-		row := &ticks[k]
-		for j := 0; j < na; j++ {
-			in.Torque[j] = row.Applied[j]
-		}
-		in.HipForce = row.Push
-		model.Step(&s, &in, dt, &tr)
-		for i := 0; i < nq; i++ {
-			if name, a, b, ok := differ("q", i, row.Q[i], s.Q[i]); !ok {
-				return diverged(res, row.Index, name, a, b), nil
-			}
-		}
-		for i := 0; i < nq; i++ {
-			if name, a, b, ok := differ("v", i, row.V[i], s.V[i]); !ok {
-				return diverged(res, row.Index, name, a, b), nil
-			}
+		p.row(&ticks[k])
+	}
+	return p.res, nil
+}
+
+// replayer re-runs the plant one recorded row at a time, so a replay from a
+// run folder holds one row in memory, not the whole run.
+type replayer struct {
+	m   *plant.Model
+	s   plant.State
+	in  plant.Input
+	tr  plant.TickResult
+	dt  float64
+	res ReplayResult
+}
+
+func newReplayer(model *plant.Model, initial plant.State, tickHz float64) (*replayer, error) {
+	if !(tickHz > 0) || math.IsInf(tickHz, 0) {
+		return nil, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
+	}
+	return &replayer{m: model, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
+}
+
+// row counts one recorded row and, until the first divergence, steps the
+// plant with its inputs and compares the state with it.
+func (p *replayer) row(row *record.Tick) {
+	p.res.Ticks++
+	if !p.res.Match {
+		return
+	}
+	nq, na := p.m.NumDOF(), p.m.NumActuators()
+	for j := 0; j < na; j++ {
+		p.in.Torque[j] = row.Applied[j]
+	}
+	p.in.HipForce = row.Push
+	p.m.Step(&p.s, &p.in, p.dt, &p.tr)
+	for i := 0; i < nq; i++ {
+		if name, a, b, ok := differ("q", i, row.Q[i], p.s.Q[i]); !ok {
+			p.res = diverged(p.res, row.Index, name, a, b)
+			return
 		}
 	}
-	return res, nil
+	for i := 0; i < nq; i++ {
+		if name, a, b, ok := differ("v", i, row.V[i], p.s.V[i]); !ok {
+			p.res = diverged(p.res, row.Index, name, a, b)
+			return
+		}
+	}
 }
 
 func differ(p string, i int, rec, rep float64) (string, float64, float64, bool) {
@@ -122,11 +147,22 @@ func ReplayRun(dir string, initial func(*scenarios.Scenario, *plant.Model) (plan
 				dir, i, st.Q[i], mf.InitialQ[i], st.V[i], mf.InitialV[i])
 		}
 	}
-	ticks, truncated, err := run.AllTicks()
+	p, err := newReplayer(m, st, mf.TickHz)
 	if err != nil {
 		return ReplayResult{}, err
 	}
-	r, err := Replay(m, st, ticks, mf.TickHz)
-	r.Truncated = truncated
-	return r, err
+	// Stream the rows: a long run's telemetry need not fit in memory.
+	tr, err := run.Ticks()
+	if err != nil {
+		return ReplayResult{}, err
+	}
+	defer tr.Close()
+	for tr.Next() {
+		p.row(tr.Tick())
+	}
+	if err := tr.Err(); err != nil {
+		return ReplayResult{}, err
+	}
+	p.res.Truncated = tr.Truncated()
+	return p.res, nil
 }
