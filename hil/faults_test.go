@@ -473,3 +473,91 @@ func TestLockstepWatchdogIgnoresRigStalls(t *testing.T) {
 		t.Fatalf("%s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 	}
 }
+
+// staleAfterStallConn stalls the rig once, inside the Send of state 50, for
+// longer than the watchdog, and then hands the loop a stale command before
+// the firmware's real answer, as a buffer holding an answer to a resent
+// state would.
+type staleAfterStallConn struct {
+	bridges.Conn
+	stall time.Duration
+	stale bool
+}
+
+func (s *staleAfterStallConn) Send(m *protocol.Message) error {
+	err := s.Conn.Send(m)
+	if m.Type == protocol.TypeState && m.Seq == 50 {
+		time.Sleep(s.stall)
+		s.stale = true
+	}
+	return err
+}
+
+func (s *staleAfterStallConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if s.stale {
+		s.stale = false
+		*m = protocol.Message{Type: protocol.TypeCommand, Seq: 49}
+		m.Command.Joints = 2
+		return nil
+	}
+	return s.Conn.Recv(deadline, m)
+}
+
+// floodStaleConn, once the rig sends its first state, answers every Recv at
+// once with a stale command, as a firmware flooding the link with answers
+// to old states faster than the rig reads would: no Recv ever waits.
+type floodStaleConn struct {
+	bridges.Conn
+	flooding bool
+}
+
+func (f *floodStaleConn) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState {
+		f.flooding = true
+	}
+	return f.Conn.Send(m)
+}
+
+func (f *floodStaleConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if !f.flooding {
+		return f.Conn.Recv(deadline, m)
+	}
+	*m = protocol.Message{Type: protocol.TypeCommand, Seq: 0}
+	m.Command.Joints = 2
+	return nil
+}
+
+// Past the watchdog after a stall of the rig, the loop reads through what is
+// already waiting: a stale answer ahead of the valid one does not trip the
+// watchdog. A link that never stops delivering stale answers still trips it.
+func TestLockstepWatchdogReadsPastStaleAfterStall(t *testing.T) {
+	t.Run("stale then valid", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.1)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.Resend = time.Second
+		rig, fw := inprocPair()
+		defer rig.Close()
+		go referenceFirmware(fw)
+		res, err := Run(context.Background(), cfg, m, s, &staleAfterStallConn{Conn: rig, stall: 60 * time.Millisecond}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Pass || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 || res.Link.StaleCommands == 0 {
+			t.Fatalf("%s (%s), alarms %v, link %+v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms, res.Link)
+		}
+	})
+	t.Run("endless stale flood", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.1)
+		cfg.Watchdog = 30 * time.Millisecond
+		rig, fw := inprocPair()
+		defer rig.Close()
+		go referenceFirmware(fw)
+		res, err := Run(context.Background(), cfg, m, s, &floodStaleConn{Conn: rig}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+			t.Fatalf("%s (%s), alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+	})
+}

@@ -25,6 +25,13 @@ const latencyQueueCap = 1024
 // (measured here), so 5 ms is well clear of normal lateness.
 const stallSlack = 5 * time.Millisecond
 
+// finalLooks is how many waiting messages the loop reads, past the
+// watchdog, before it trips: after a stall of the rig a stale answer (to a
+// resent state) may sit in the link's buffer ahead of the valid one. The
+// bound keeps a firmware that floods the link from holding the loop there;
+// 64 is the in-process link's whole buffer.
+const finalLooks = 64
+
 // latencyQueue holds commands delayed by a latency fault in lockstep, as
 // (release tick, command) in arrival order. Fixed size: a delay longer than
 // its capacity in ticks is refused at configuration time.
@@ -124,15 +131,16 @@ func (r *runner) lockstep(ctx context.Context) error {
 func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 	r.sendState()
 	resendAt := time.Now().Add(r.cfg.Resend)
+	looks := 0 // messages read past the watchdog
 	for r.outcome == "" {
 		if r.aborted(ctx) {
 			return false
 		}
 		now := time.Now()
 		wd := lastValid.Add(r.cfg.Watchdog)
-		// Past the watchdog, look once more without waiting: after a stall
-		// of the rig itself the answer may already be in the buffer, and
-		// that is not the firmware's fault.
+		// Past the watchdog, read what is already waiting, without
+		// waiting for more: after a stall of the rig itself the answer may
+		// be in the buffer, and that is not the firmware's fault.
 		final := !now.Before(wd)
 		deadline := resendAt
 		if wd.Before(deadline) {
@@ -152,7 +160,11 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 				continue // and look again: the answer may have come meanwhile
 			}
 		}
-		if final || (errors.Is(err, bridges.ErrTimeout) && !time.Now().Before(wd)) {
+		if final {
+			looks++
+		}
+		if (final && (errors.Is(err, bridges.ErrTimeout) || looks > finalLooks)) ||
+			(errors.Is(err, bridges.ErrTimeout) && !time.Now().Before(wd)) {
 			r.watchdog(time.Since(*lastValid))
 			return false
 		}
