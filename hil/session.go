@@ -32,6 +32,15 @@ func (r *runner) handshake() error {
 			r.linkLost("the link closed before the firmware greeted")
 			return errors.New("hil: the link closed before the firmware greeted")
 		case errors.As(err, &r.fe):
+			// A greeting of another protocol version does not decode on a
+			// byte link; the link says so in the frame error. It is a
+			// version mismatch to refuse with stop(bad_version), not noise
+			// to wait through.
+			var pe *protocol.Error
+			if errors.As(r.fe, &pe) && pe.Kind == protocol.KindVersion && pe.Type == protocol.TypeGreeting {
+				r.versionMismatch("the firmware", int(pe.Got))
+				return nil
+			}
 			r.badFrame(r.fe.Reason)
 			continue
 		case err != nil:
@@ -52,12 +61,7 @@ func (r *runner) handshake() error {
 		}
 	}
 	if g.Version != protocol.Version {
-		msg := fmt.Sprintf("firmware %q speaks protocol version %d, this rig speaks version %d", g.Name, g.Version, protocol.Version)
-		r.al.raise(scenarios.AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
-			return msg, map[string]float64{"firmware_version": float64(g.Version), "rig_version": float64(protocol.Version)}
-		})
-		r.stopCode = protocol.StopBadVersion
-		r.outcome, r.reason = record.Tripped, msg
+		r.versionMismatch(fmt.Sprintf("firmware %q", g.Name), int(g.Version))
 		return nil
 	}
 	if int(g.Actuators) != r.n {
@@ -78,6 +82,18 @@ func (r *runner) handshake() error {
 		return fmt.Errorf("hil: sending the configuration: %w", err)
 	}
 	return nil
+}
+
+// versionMismatch refuses a firmware that speaks another protocol version:
+// alarm, outcome tripped, and a stop with reason bad_version (which every
+// version can read).
+func (r *runner) versionMismatch(who string, version int) {
+	msg := fmt.Sprintf("%s speaks protocol version %d, this rig speaks version %d", who, version, protocol.Version)
+	r.al.raise(scenarios.AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
+		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version)}
+	})
+	r.stopCode = protocol.StopBadVersion
+	r.outcome, r.reason = record.Tripped, msg
 }
 
 // greetedAgain handles a greeting after the handshake. Before the first
