@@ -163,7 +163,10 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			s.Mode[f] = Sliding
 			var g footGeom
 			m.footGeometry(&s.Q, &s.V, f, ev.geom[f].sp.seg, &g)
-			s.SlipDir[f] = slipSign[f]
+			// slipSign is the sign of the friction impulse, which opposes
+			// the slip: with no slip velocity to read yet, the foot slides
+			// the other way.
+			s.SlipDir[f] = -slipSign[f]
 			if g.slip != 0 {
 				s.SlipDir[f] = math.Copysign(1, g.slip)
 			}
