@@ -37,6 +37,8 @@ type Direct struct {
 	ended    bool  // the firmware ended the session
 	endErr   error // why, when not a normal end
 	closed   bool
+	closedCh chan struct{} // closed by Close, wakes a waiting Recv
+	timer    *time.Timer   // reused by a waiting Recv
 	sent     uint64
 	received uint64
 	dropped  uint64
@@ -47,7 +49,7 @@ var _ bridges.Conn = (*Direct)(nil)
 // NewDirect returns the rig's end of a direct link to fw, with fw's greeting
 // already waiting to be received.
 func NewDirect(fw Responder) *Direct {
-	d := &Direct{fw: fw}
+	d := &Direct{fw: fw, closedCh: make(chan struct{})}
 	d.push(fw.Greeting())
 	return d
 }
@@ -89,9 +91,9 @@ func (d *Direct) Send(m *protocol.Message) error {
 
 // Recv returns the oldest waiting answer. With none waiting it waits until
 // the deadline (nothing can arrive meanwhile: the firmware only speaks when
-// spoken to) and returns bridges.ErrTimeout; a zero deadline returns the
-// timeout at once rather than wait for ever. After Close it returns
-// bridges.ErrClosed.
+// spoken to) and returns bridges.ErrTimeout, or returns bridges.ErrClosed as
+// soon as the link is closed; a zero deadline returns the timeout at once
+// rather than wait for ever.
 func (d *Direct) Recv(deadline time.Time, m *protocol.Message) error {
 	d.mu.Lock()
 	if d.n > 0 {
@@ -107,10 +109,23 @@ func (d *Direct) Recv(deadline time.Time, m *protocol.Message) error {
 	if closed {
 		return bridges.ErrClosed
 	}
-	if w := time.Until(deadline); !deadline.IsZero() && w > 0 {
-		time.Sleep(w)
+	w := time.Until(deadline)
+	if deadline.IsZero() || w <= 0 {
+		return bridges.ErrTimeout
 	}
-	return bridges.ErrTimeout
+	// Only one goroutine receives, so the timer needs no lock.
+	if d.timer == nil {
+		d.timer = time.NewTimer(w)
+	} else {
+		d.timer.Reset(w)
+	}
+	select {
+	case <-d.timer.C:
+		return bridges.ErrTimeout
+	case <-d.closedCh:
+		d.timer.Stop()
+		return bridges.ErrClosed
+	}
 }
 
 // Stats reports the messages that crossed the link and the answers
@@ -133,6 +148,9 @@ func (d *Direct) Ended() (bool, error) {
 func (d *Direct) Close() error {
 	d.mu.Lock()
 	defer d.mu.Unlock()
-	d.closed = true
+	if !d.closed {
+		d.closed = true
+		close(d.closedCh)
+	}
 	return nil
 }

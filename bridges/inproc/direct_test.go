@@ -96,3 +96,21 @@ func TestDirectSendDoesNotAllocate(t *testing.T) {
 		t.Errorf("%v allocations per exchange, want 0", allocs)
 	}
 }
+
+func TestDirectRecvWakesOnClose(t *testing.T) {
+	d := NewDirect(&echo{})
+	var m protocol.Message
+	d.Recv(time.Time{}, &m) // the greeting
+	go func() {
+		time.Sleep(20 * time.Millisecond)
+		d.Close()
+	}()
+	start := time.Now()
+	err := d.Recv(time.Now().Add(5*time.Second), &m)
+	if !errors.Is(err, bridges.ErrClosed) {
+		t.Fatalf("Recv during Close = %v, want ErrClosed", err)
+	}
+	if took := time.Since(start); took > 2*time.Second {
+		t.Errorf("Recv noticed Close only after %v", took)
+	}
+}
