@@ -88,7 +88,7 @@ func (w *Writer) writeRow(t *Tick) {
 	if w.pipe.err.Load() != nil {
 		return // the file failed; keep draining so Tick never blocks
 	}
-	w.row = appendTick(w.row[:0], t, w.m.NumQ, len(w.m.JointNames))
+	w.row = appendRow(w.row[:0], w.cols, t)
 	if _, err := w.teleBuf.Write(w.row); err != nil {
 		w.setTeleErr(err)
 	}

@@ -23,6 +23,9 @@ type Writer struct {
 	mu  sync.Mutex
 	dir string
 	m   Manifest
+	// cols is the telemetry column table of this run, built once so
+	// formatting a row allocates nothing.
+	cols table[Tick]
 
 	tele      *os.File
 	teleBuf   *bufio.Writer // owned by the telemetry goroutine once it runs
@@ -42,8 +45,8 @@ type Writer struct {
 
 // Create makes the run folder dir (and its parents) and writes the manifest
 // and the headers of telemetry.csv and steps.csv. It refuses a folder that
-// exists and is not empty, so a run never overwrites another. m.Format and
-// m.Columns are filled in; a zero m.StartTime is set to now.
+// exists and is not empty, so a run never overwrites another.
+// m.SchemaVersion and m.Columns are filled in; a zero m.StartTime is set to now.
 func Create(dir string, m Manifest) (*Writer, error) {
 	if err := m.checkSizes(); err != nil {
 		return nil, err
@@ -54,12 +57,13 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	m.Format = FormatVersion
-	m.Columns = TickColumns(m.NumQ, m.JointNames)
+	m.SchemaVersion = SchemaVersion
+	cols := tickFields(m.NumQ, m.JointNames)
+	m.Columns = cols.names(SchemaVersion)
 	if m.StartTime.IsZero() {
 		m.StartTime = time.Now()
 	}
-	w := &Writer{dir: dir, m: m, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
+	w := &Writer{dir: dir, m: m, cols: cols, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
 	// Creating telemetry.csv exclusively claims the folder: of two runs
 	// started on one folder at once, exactly one gets past here, before
 	// either has written a manifest the other could overwrite.
@@ -93,7 +97,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	if _, err := w.steps.WriteString(csvHeader(StepColumns)); err != nil {
+	if _, err := w.steps.WriteString(csvHeader(stepTable.names(SchemaVersion))); err != nil {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
@@ -117,7 +121,7 @@ func (m *Manifest) checkSizes() error {
 // Dir returns the run folder.
 func (w *Writer) Dir() string { return w.dir }
 
-// Manifest returns the manifest as written (with Format, Columns and
+// Manifest returns the manifest as written (with SchemaVersion, Columns and
 // StartTime filled in).
 func (w *Writer) Manifest() Manifest {
 	w.mu.Lock()
@@ -234,7 +238,7 @@ func (w *Writer) Step(s Step) error {
 	if w.closed {
 		return errors.New("record: Step after Close")
 	}
-	w.stepBuf = appendStep(w.stepBuf[:0], &s)
+	w.stepBuf = appendRow(w.stepBuf[:0], stepTable, &s)
 	if _, err := w.steps.Write(w.stepBuf); err != nil {
 		return fmt.Errorf("record: steps: %w", err)
 	}
