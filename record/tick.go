@@ -99,9 +99,9 @@ type Column struct {
 // is a number.
 type field[R any] struct {
 	Column
-	real    func(r *R) float64 // Real columns
-	setReal func(r *R, v float64)
-	whole   func(r *R) int64 // Count, Code and Flag columns
+	real     func(r *R) float64 // Real columns
+	setReal  func(r *R, v float64)
+	whole    func(r *R) int64 // Count, Code and Flag columns
 	setWhole func(r *R, v int64)
 }
 
