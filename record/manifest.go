@@ -31,8 +31,8 @@ type Greeting struct {
 // Manifest describes a run. It is written by Create and, if the greeting
 // arrives later, rewritten by SetGreeting.
 type Manifest struct {
-	// SchemaVersion is the run-folder schema (SchemaVersion when written
-	// by this build; 1 for an older folder read back). Create sets it.
+	// SchemaVersion is the run-folder schema: 2 when written by this
+	// build, 1 for an older folder read back.
 	SchemaVersion int `json:"schema_version"`
 	// Scenario is the scenario's name.
 	Scenario string `json:"scenario"`
@@ -41,11 +41,11 @@ type Manifest struct {
 	ScenarioFile string `json:"scenario_file"`
 	// ScenarioText is the exact text of the scenario file.
 	ScenarioText string `json:"scenario_text"`
-	// ScenarioHash is the hex SHA-256 of ScenarioText.
+	// ScenarioHash is the hex SHA-256 of the scenario text.
 	ScenarioHash string `json:"scenario_hash"`
 	// Plant is the walker and its ground as the plant ran them (after
-	// scenario defaults and per-leg overrides), in scenario units; nil
-	// when not recorded.
+	// scenario defaults and per-leg overrides), in scenario units;
+	// absent when not recorded.
 	Plant *Plant `json:"plant,omitempty"`
 	// Greeting is the firmware's greeting, empty until it is known.
 	Greeting Greeting `json:"greeting"`
@@ -65,15 +65,15 @@ type Manifest struct {
 	// StartTime is the wall-clock time the run started (RFC 3339). The
 	// wall_s column counts from it.
 	StartTime time.Time `json:"start_time"`
-	// NumQ is the number of generalized coordinates (x_hip, y_hip, then
-	// one absolute angle per link: left, right, torso) in use in Tick.Q
-	// and Tick.V and in InitialQ and InitialV.
+	// NumQ is the number of generalized coordinates: x_hip, y_hip, then
+	// one absolute angle per link (left, right, torso). It sets the
+	// coordinate and velocity columns and the length of the initial state.
 	NumQ int `json:"num_q"`
-	// JointNames names the joints in use in the sensed-joint and torque
-	// arrays of Tick and in the per-joint column names, in order.
+	// JointNames are the walker's joints in order; the per-joint columns
+	// carry these names.
 	JointNames []string `json:"joint_names"`
-	// FootModes names the foot-contact mode codes of the mode_left and
-	// mode_right columns: FootModes[code] is the word for that code.
+	// FootModes are the words for the contact mode codes of the mode_left
+	// and mode_right columns, indexed by code.
 	FootModes []string `json:"foot_modes"`
 	// InitialQ is the exact initial generalized coordinates, in the order
 	// of the x_hip_m, y_hip_m, theta_… columns.
@@ -81,8 +81,8 @@ type Manifest struct {
 	// InitialV is the exact initial generalized velocity, in the order of
 	// the vx_hip_mps, vy_hip_mps, omega_… columns.
 	InitialV []float64 `json:"initial_v"`
-	// Columns is the telemetry header, in file order; Create fills it from
-	// NumQ and JointNames (see TickColumns).
+	// Columns is the telemetry header, in file order; Create fills it in
+	// from the coordinates and joints.
 	Columns []string `json:"columns"`
 }
 
@@ -100,8 +100,8 @@ type Plant struct {
 	Torso *Torso `json:"torso,omitempty"`
 	// Terrain is the ground.
 	Terrain Terrain `json:"terrain"`
-	// OneLeg is true for a single rolling body (plant checks only): Legs[1]
-	// and Torso are then unused.
+	// OneLeg is true for a single rolling body (plant checks only): the
+	// second leg and the torso are then unused.
 	OneLeg bool `json:"one_leg,omitempty"`
 }
 

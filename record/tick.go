@@ -4,6 +4,8 @@ import (
 	"strconv"
 )
 
+//go:generate go test -run ^TestReferencePage$ -update
+
 // This file is the one home of the telemetry row: the Tick type and the
 // column table that the CSV writer and reader, the Parquet export and the
 // reference page docs/run-folder.md are all driven from. To add a column,

@@ -90,11 +90,11 @@ type Event struct {
 	Tick     int64              `json:"tick"`             // tick index
 	T        float64            `json:"t_s"`              // simulated time, s
 	Wall     time.Time          `json:"wall"`             // wall-clock time
-	Kind     string             `json:"kind"`             // alarm kind (see scenarios.AlarmKinds) or another event word
+	Kind     string             `json:"kind"`             // alarm kind (see docs/scenarios.md) or another event word
 	Severity Severity           `json:"severity"`         // info, warn or trip
 	Message  string             `json:"message"`          // a sentence a person understands
 	Foot     string             `json:"foot,omitempty"`   // left or right, empty when not relevant
-	Segment  int                `json:"segment"`          // terrain segment index, NoSegment when not relevant
+	Segment  int                `json:"segment"`          // terrain segment index; NoSegment (absent in the file) when not relevant
 	Values   map[string]float64 `json:"values,omitempty"` // named numbers (measured value, limit, ...)
 }
 
@@ -137,8 +137,8 @@ type Summary struct {
 	PeakFrictionUtilization float64        `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N) of a stance foot
 	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N (+Inf: no contact)
 	MeanSpeedMPS            float64        `json:"mean_speed_mps"`            // mean forward speed over completed steps, m/s
-	LatencyUS               *Latency       `json:"latency_us"`                // wall-clock mode; nil in lockstep
-	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, wall-clock mode
+	LatencyUS               *Latency       `json:"latency_us"`                // command round trip, µs, in wall-clock mode; null in lockstep
+	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, µs, in wall-clock mode; left out in lockstep
 	DeadlineMisses          int            `json:"deadline_misses"`           // wall-clock ticks that started late
 	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
 	Caution                 string         `json:"caution"`                   // the safety caution
