@@ -172,3 +172,38 @@ func TestPlantFromRunFolder(t *testing.T) {
 		t.Errorf("foot radii %v, want [0.3 0.25]", r)
 	}
 }
+
+// TestSchema1RunFolder renders the report of a real run folder of schema
+// 1 (record's fixture): the terrain comes from its old plant block and the
+// joint plots from its old column names.
+func TestSchema1RunFolder(t *testing.T) {
+	run, err := record.Open(filepath.Join("..", "record", "testdata", "v1-level-demo"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if run.Manifest.SchemaVersion != 1 {
+		t.Fatalf("fixture has schema %d, want 1", run.Manifest.SchemaVersion)
+	}
+	tr, err := run.Ticks()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer tr.Close()
+	v := viewOf(&run.Manifest, tr, run.Steps, run.Events, run.Summary)
+	if err := tr.Err(); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(strings.Join(v.Notes, " "), "from the manifest's terrain") {
+		t.Errorf("notes %q: the terrain of the old plant block was not used", v.Notes)
+	}
+	if len(v.t) != 250 || len(v.joints) != 2 || v.joints[0].name != "hip_left" || len(v.joints[1].applied) != 250 {
+		t.Fatalf("view: %d ticks, joints %d", len(v.t), len(v.joints))
+	}
+	if r := footRadiiOf(run.Manifest.Plant); r != [2]float64{0.27, 0.27} {
+		t.Errorf("foot radii %v, want the level-demo's 0.27 m", r)
+	}
+	var b strings.Builder
+	if err := Render(&b, run); err != nil || !strings.Contains(b.String(), "<svg") {
+		t.Fatalf("render: %v", err)
+	}
+}
