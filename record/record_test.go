@@ -9,6 +9,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"reflect"
+	"runtime"
 	"strconv"
 	"strings"
 	"testing"
@@ -558,6 +559,49 @@ func TestTickAllocatesNothing(t *testing.T) {
 	})
 	if allocs != 0 {
 		t.Errorf("Tick allocates %v times per row, want 0", allocs)
+	}
+}
+
+// writeRows writes n rows and n/100 steps through a Writer and returns the
+// process's allocations in that time, the telemetry goroutine's included
+// (Flush waits for it to format every row).
+func writeRows(t *testing.T, n int) uint64 {
+	w, err := Create(filepath.Join(t.TempDir(), "run"), testManifest())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Close(Summary{Outcome: Pass})
+	tk := randomTick(rand.New(rand.NewPCG(11, 12)), 0)
+	st := Step{Index: 1, MinNormalN: 3, Pose: Pose{HasTorso: true}}
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	for i := 0; i < n; i++ {
+		tk.Index = int64(i)
+		if err := w.Tick(&tk); err != nil {
+			t.Fatal(err)
+		}
+		if i%100 == 0 {
+			if err := w.Step(st); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	if err := w.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	runtime.ReadMemStats(&after)
+	return after.Mallocs - before.Mallocs
+}
+
+// Formatting rows and steps allocates nothing either: a run four times
+// longer makes no more allocations than a short one beyond a small slack
+// (the flush handshake, timers).
+func TestWriterAllocatesNothingPerRow(t *testing.T) {
+	short, long := writeRows(t, 1000), writeRows(t, 4000)
+	perRow := (float64(long) - float64(short)) / 3000
+	t.Logf("%d mallocs for 1000 rows, %d for 4000: %.4f per row", short, long, perRow)
+	if perRow > 0.01 {
+		t.Errorf("%.3f allocations per row, want 0", perRow)
 	}
 }
 

@@ -75,8 +75,11 @@ func (w *Writer) telemetryLoop() {
 func (w *Writer) drainRows() {
 	for {
 		select {
-		case t := <-w.pipe.rows:
-			w.writeRow(&t)
+		case w.cur = <-w.pipe.rows:
+			// Into a field of the Writer, not a local: the column getters
+			// are called through function values, so a local row would
+			// escape to the heap, one allocation per row.
+			w.writeRow(&w.cur)
 		default:
 			return
 		}

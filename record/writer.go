@@ -30,6 +30,7 @@ type Writer struct {
 	tele      *os.File
 	teleBuf   *bufio.Writer // owned by the telemetry goroutine once it runs
 	row       []byte        // reused row buffer, likewise
+	cur       Tick          // the row being formatted, likewise
 	lastFlush time.Time     // likewise
 	ticks     atomic.Int64  // rows handed to Tick
 	pipe      telePipe
@@ -40,6 +41,7 @@ type Writer struct {
 
 	steps   *os.File
 	stepBuf []byte
+	step    Step // the step being formatted (under mu), so Step allocates nothing
 	closed  bool
 }
 
@@ -238,7 +240,8 @@ func (w *Writer) Step(s Step) error {
 	if w.closed {
 		return errors.New("record: Step after Close")
 	}
-	w.stepBuf = appendRow(w.stepBuf[:0], stepTable, &s)
+	w.step = s
+	w.stepBuf = appendRow(w.stepBuf[:0], stepTable, &w.step)
 	if _, err := w.steps.Write(w.stepBuf); err != nil {
 		return fmt.Errorf("record: steps: %w", err)
 	}
