@@ -734,6 +734,20 @@ func killChild(dir string) {
 	os.Exit(0)
 }
 
+// BenchmarkFormatRow measures formatting one telemetry row from the
+// column table: the telemetry goroutine's cost per row without the file.
+func BenchmarkFormatRow(b *testing.B) {
+	m := testManifest()
+	tk := randomTick(rand.New(rand.NewPCG(5, 6)), 0)
+	cols := tickFields(m.NumQ, m.JointNames)
+	buf := make([]byte, 0, 4096)
+	b.ReportAllocs()
+	for i := 0; i < b.N; i++ {
+		tk.Index = int64(i)
+		buf = appendRow(buf[:0], cols, &tk)
+	}
+}
+
 // BenchmarkTickRead measures streaming one telemetry row back from disk.
 func BenchmarkTickRead(b *testing.B) {
 	dir := filepath.Join(b.TempDir(), "run")
