@@ -13,6 +13,10 @@
 //	summary.json      the outcome, written last and atomically
 //	telemetry.parquet on request (ExportParquet), for analysis tools
 //
+// docs/run-folder.md describes every file, manifest field and column; it is
+// generated from this package (go generate ./record). The telemetry and
+// step columns are defined once, in the tables of tick.go.
+//
 // Telemetry is flushed at least every FlushInterval of wall time, events and
 // steps at once, so a run killed with SIGKILL loses at most a fraction of a
 // second of telemetry and nothing else. Readers tolerate a truncated last
