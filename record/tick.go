@@ -229,7 +229,7 @@ func tickFields(numQ int, joints []string) table[Tick] {
 		func(t *Tick) float64 { return t.Potential }, func(t *Tick, v float64) { t.Potential = v })
 	// Derived: the sum of the two columns before it, so a reader need not
 	// add them; it has no setter and no Tick field of its own.
-	c.real("energy_total_j", "J", "", "total mechanical energy, energy_kinetic_j + energy_potential_j (derived; falls at each heel strike by the impact loss)",
+	c.real("energy_total_j", "J", "", "total mechanical energy of the walker, energy_kinetic_j + energy_potential_j (derived: not stored separately, computed when written)",
 		func(t *Tick) float64 { return t.Kinetic + t.Potential }, nil)
 
 	c.real("latency_us", "µs", "latency_us", "command round trip of the command used this tick (wall-clock runs); empty (NaN) in lockstep and when no fresh command arrived",
