@@ -138,7 +138,7 @@ func TestReplayRunFromFolder(t *testing.T) {
 		t.Fatal(err)
 	}
 	lines := strings.Split(string(data), "\n")
-	col := slices.Index(strings.Split(lines[0], ","), "torque_"+m.JointNames()[0])
+	col := slices.Index(strings.Split(lines[0], ","), "tau_applied_"+m.JointNames()[0]+"_nm")
 	const changed = 500
 	fields := strings.Split(lines[1+changed], ",")
 	v, err := strconv.ParseFloat(fields[col], 64)

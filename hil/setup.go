@@ -1,7 +1,6 @@
 package hil
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"os"
@@ -54,14 +53,10 @@ func Manifest(s *scenarios.Scenario, cfg Config, m *plant.Model, initial plant.S
 	if err != nil {
 		return record.Manifest{}, err
 	}
-	pj, err := json.Marshal(m.Params())
-	if err != nil {
-		return record.Manifest{}, fmt.Errorf("hil: plant parameters: %w", err)
-	}
 	host, _ := os.Hostname()
 	n := m.NumDOF()
 	mf := record.Manifest{
-		Plant:       pj,
+		Plant:       record.PlantOf(m.Params()),
 		ToolVersion: toolVersion,
 		Seed:        c.Seed,
 		Clock:       string(c.Clock),

@@ -41,5 +41,5 @@ func Example() {
 	fmt.Println(run.Manifest.Columns[:5])
 	// Output:
 	// example 3 false torque_saturation pass
-	// [tick t_s wall_s q0 q1]
+	// [tick t_s wall_s x_hip_m y_hip_m]
 }

@@ -9,38 +9,34 @@ import (
 	"github.com/parquet-go/parquet-go"
 )
 
-// footModeColumns are the telemetry columns of the two foot contact modes.
-var footModeColumns = [2]string{FootNames[0] + "_mode", FootNames[1] + "_mode"}
-
-// parquetNode says how a telemetry column is stored in Parquet.
-func parquetNode(col string) parquet.Node {
-	switch {
-	case col == "tick":
+// parquetNode says how a column of a kind is stored in Parquet.
+func parquetNode(k Kind) parquet.Node {
+	switch k {
+	case Count:
 		return parquet.Leaf(parquet.Int64Type)
-	case col == "stance" || col == footModeColumns[0] || col == footModeColumns[1]:
-		// Only the two foot mode columns: a joint named like "hip_mode"
-		// gives angle_hip_mode and friends, which are doubles.
+	case Code:
 		return parquet.Leaf(parquet.Int32Type)
-	case col == "fresh":
+	case Flag:
 		return parquet.Leaf(parquet.BooleanType)
 	}
 	return parquet.Leaf(parquet.DoubleType)
 }
 
 // ExportParquet writes the run's telemetry as telemetry.parquet in the run
-// folder, one row per complete telemetry row, with the same column names
-// (tick as int64, modes and stance as int32, fresh as boolean, the rest as
-// double; Zstandard-compressed). It returns the number of rows written. A
+// folder, one row per complete telemetry row, with the columns of the
+// current schema (TickColumns; a schema 1 folder gets the current names
+// and the derived columns too): count columns as int64, code columns as
+// int32, flags as boolean, the rest as double; Zstandard-compressed. It returns the number of rows written. A
 // truncated last line is left out, as Open leaves it out.
 func ExportParquet(dir string) (rows int, err error) {
 	run, err := Open(dir)
 	if err != nil {
 		return 0, err
 	}
-	cols := TickColumns(run.Manifest.NumQ, run.Manifest.JointNames)
+	cols := tickFields(run.Manifest.NumQ, run.Manifest.JointNames)
 	group := parquet.Group{}
 	for _, c := range cols {
-		group[c] = parquetNode(c)
+		group[c.Name] = parquetNode(c.Kind)
 	}
 	schema := parquet.NewSchema("telemetry", group)
 	// A Group orders its columns by name; map each file column to its
@@ -51,7 +47,7 @@ func ExportParquet(dir string) (rows int, err error) {
 	}
 	order := make([]int, len(cols))
 	for i, c := range cols {
-		order[i] = index[c]
+		order[i] = index[c.Name]
 	}
 
 	tr, err := run.Ticks()
@@ -71,7 +67,6 @@ func ExportParquet(dir string) (rows int, err error) {
 		}
 	}()
 	w := parquet.NewWriter(tmp, schema, parquet.Compression(&parquet.Zstd))
-	vals := make([]float64, len(cols))
 	batch := make([]parquet.Row, 0, 1024)
 	flush := func() error {
 		if _, err := w.WriteRows(batch); err != nil {
@@ -82,23 +77,19 @@ func ExportParquet(dir string) (rows int, err error) {
 	}
 	for tr.Next() {
 		t := tr.Tick()
-		vals = tickValues(vals[:0], t, run.Manifest.NumQ, len(run.Manifest.JointNames))
 		row := make(parquet.Row, len(cols))
-		for i, c := range cols {
+		for i := range cols {
+			c := &cols[i]
 			var v parquet.Value
-			switch {
-			case c == "tick":
-				v = parquet.Int64Value(t.Index)
-			case c == "stance":
-				v = parquet.Int32Value(int32(t.Stance))
-			case c == footModeColumns[0]:
-				v = parquet.Int32Value(int32(t.Feet[0].Mode))
-			case c == footModeColumns[1]:
-				v = parquet.Int32Value(int32(t.Feet[1].Mode))
-			case c == "fresh":
-				v = parquet.BooleanValue(t.Fresh)
-			default:
-				v = parquet.DoubleValue(vals[i])
+			switch c.Kind {
+			case Real:
+				v = parquet.DoubleValue(c.real(t))
+			case Count:
+				v = parquet.Int64Value(c.whole(t))
+			case Code:
+				v = parquet.Int32Value(int32(c.whole(t)))
+			case Flag:
+				v = parquet.BooleanValue(c.whole(t) != 0)
 			}
 			row[order[i]] = v.Level(0, 0, order[i])
 		}
@@ -126,25 +117,4 @@ func ExportParquet(dir string) (rows int, err error) {
 		return rows, fmt.Errorf("record: %w", err)
 	}
 	return rows, nil
-}
-
-// tickValues lists a row's values as float64 in column order (integer and
-// boolean columns included as numbers), matching TickColumns.
-func tickValues(dst []float64, t *Tick, nq, nj int) []float64 {
-	dst = append(dst, float64(t.Index), t.T, t.WallS)
-	dst = append(dst, t.Q[:nq]...)
-	dst = append(dst, t.V[:nq]...)
-	dst = append(dst, t.Angle[:nj]...)
-	dst = append(dst, t.Rate[:nj]...)
-	dst = append(dst, t.Commanded[:nj]...)
-	dst = append(dst, t.Applied[:nj]...)
-	dst = append(dst, t.Push[0], t.Push[1])
-	for _, f := range t.Feet {
-		dst = append(dst, float64(f.Mode), f.NormalN, f.TangentialN, f.Utilization, f.CoP, f.ContactX)
-	}
-	fresh := 0.0
-	if t.Fresh {
-		fresh = 1
-	}
-	return append(dst, t.Kinetic, t.Potential, t.LatencyUS, fresh, float64(t.Stance))
 }

@@ -50,7 +50,7 @@ func TestExportParquet(t *testing.T) {
 	if pr.NumRows() != int64(len(want)) {
 		t.Fatalf("file says %d rows", pr.NumRows())
 	}
-	cols := TickColumns(5, testManifest().JointNames)
+	cols, _ := expectedRow(&Tick{}, 5, testManifest().JointNames)
 	idx := map[string]int{}
 	for i, fl := range pr.Schema().Fields() {
 		idx[fl.Name()] = i
@@ -63,7 +63,7 @@ func TestExportParquet(t *testing.T) {
 	for {
 		m, err := pr.ReadRows(rows)
 		for _, row := range rows[:m] {
-			exp := tickValues(nil, &want[k], 5, 2)
+			_, exp := expectedRow(&want[k], 5, testManifest().JointNames)
 			for ci, c := range cols {
 				v := row[idx[c]]
 				var got float64
@@ -99,12 +99,13 @@ func TestExportParquet(t *testing.T) {
 	}
 }
 
-// A joint whose name ends in _mode gives columns such as angle_hip_mode:
-// they are joint readings (doubles), not foot contact modes.
+// A joint whose name starts with mode_ gives columns such as
+// angle_mode_left_rad: they are joint readings (doubles), not foot contact
+// modes; the column kind comes from the table, not from the name.
 func TestExportParquetJointNamedMode(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "run")
 	m := testManifest()
-	m.JointNames = []string{"hip_mode", "hip_right"}
+	m.JointNames = []string{"mode_left", "hip_right"}
 	w, err := Create(dir, m)
 	if err != nil {
 		t.Fatal(err)
@@ -133,10 +134,10 @@ func TestExportParquetJointNamedMode(t *testing.T) {
 	if n, err := pr.ReadRows(rows); n != 1 {
 		t.Fatalf("read %d rows: %v", n, err)
 	}
-	if v := rows[0][idx["angle_hip_mode"]]; v.Kind() != parquet.Double || v.Double() != 0.25 {
-		t.Errorf("angle_hip_mode = %v (kind %v), want the double 0.25", v, v.Kind())
+	if v := rows[0][idx["angle_mode_left_rad"]]; v.Kind() != parquet.Double || v.Double() != 0.25 {
+		t.Errorf("angle_mode_left_rad = %v (kind %v), want the double 0.25", v, v.Kind())
 	}
-	if v := rows[0][idx["left_mode"]]; v.Kind() != parquet.Int32 || v.Int32() != 2 {
-		t.Errorf("left_mode = %v (kind %v), want the int32 2", v, v.Kind())
+	if v := rows[0][idx["mode_left"]]; v.Kind() != parquet.Int32 || v.Int32() != 2 {
+		t.Errorf("mode_left = %v (kind %v), want the int32 2", v, v.Kind())
 	}
 }

@@ -43,11 +43,8 @@ func Open(dir string) (*Run, error) {
 	if err != nil {
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	if err := json.Unmarshal(data, &r.Manifest); err != nil {
-		return nil, fmt.Errorf("record: %s: %w", filepath.Join(dir, ManifestFile), err)
-	}
-	if r.Manifest.Format > FormatVersion {
-		return nil, fmt.Errorf("record: %s has format %d; this build reads up to %d", dir, r.Manifest.Format, FormatVersion)
+	if r.Manifest, err = readManifest(filepath.Join(dir, ManifestFile), data); err != nil {
+		return nil, err
 	}
 	if err := r.Manifest.checkSizes(); err != nil {
 		return nil, fmt.Errorf("%w (%s)", err, filepath.Join(dir, ManifestFile))
@@ -113,26 +110,14 @@ func (r *Run) readSteps() error {
 	var f fields
 	n, trunc, err := lines(path, func(n int, line []byte) error {
 		if n == 1 {
-			return checkHeader(line, StepColumns)
+			return checkHeader(line, stepTable.names(SchemaVersion))
 		}
-		if err := f.split(line, len(StepColumns)); err != nil {
+		if err := f.split(line, len(stepTable)); err != nil {
 			return err
 		}
 		var s Step
-		s.Index = int(f.int(0))
-		s.Stance = int(f.int(1))
-		dst := [...]*float64{&s.StartS, &s.EndS, &s.DurationS, &s.LengthM, &s.SpeedMPS,
-			&s.PeakUtilization, &s.MinNormalN, &s.ImpactLossJ, &s.PosWorkJ, &s.NegWorkJ,
-			&s.CostOfTransport, &s.CoPTravelM,
-			&s.Pose.Hip[0], &s.Pose.Hip[1], &s.Pose.Feet[0][0], &s.Pose.Feet[0][1], &s.Pose.Feet[1][0], &s.Pose.Feet[1][1]}
-		for i, p := range dst {
-			*p = f.float(2 + i)
-		}
-		s.Pose.HasTorso = f.int(20) != 0
-		s.Pose.TorsoTop[0] = f.float(21)
-		s.Pose.TorsoTop[1] = f.float(22)
-		if f.err != nil {
-			return f.err
+		if err := parseRow(&f, stepTable, &s); err != nil {
+			return err
 		}
 		r.Steps = append(r.Steps, s)
 		return nil
@@ -272,8 +257,7 @@ func (f *fields) int(i int) int64 {
 type TickReader struct {
 	f         *os.File
 	br        *bufio.Reader
-	nq, nj    int
-	cols      int
+	cols      table[Tick] // the columns of the file's schema, in file order
 	line      int
 	rows      int
 	truncated bool
@@ -282,23 +266,23 @@ type TickReader struct {
 	fs        fields
 }
 
-// Ticks opens telemetry.csv for streaming. The header must match the
-// manifest's column list.
+// Ticks opens telemetry.csv for streaming. The header must be the columns
+// of the manifest's schema for its coordinates and joints: current names,
+// or the schema 1 names for a folder of schema 1.
 func (r *Run) Ticks() (*TickReader, error) {
 	path := filepath.Join(r.Dir, TelemetryFile)
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	tr := &TickReader{f: f, br: bufio.NewReaderSize(f, 64<<10), nq: r.Manifest.NumQ, nj: len(r.Manifest.JointNames)}
-	cols := TickColumns(tr.nq, r.Manifest.JointNames)
-	tr.cols = len(cols)
+	all := tickFields(r.Manifest.NumQ, r.Manifest.JointNames)
+	tr := &TickReader{f: f, br: bufio.NewReaderSize(f, 64<<10), cols: all.inVersion(r.Manifest.SchemaVersion)}
 	head, err := tr.br.ReadSlice('\n')
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("record: %s: no complete header line: %v", path, err)
 	}
-	if err := checkHeader(head[:len(head)-1], cols); err != nil {
+	if err := checkHeader(head[:len(head)-1], all.names(r.Manifest.SchemaVersion)); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("record: %s:1: %w", path, err)
 	}
@@ -331,49 +315,11 @@ func (tr *TickReader) Next() bool {
 }
 
 func (tr *TickReader) parse(line []byte) error {
-	f := &tr.fs
-	if err := f.split(line, tr.cols); err != nil {
+	if err := tr.fs.split(line, len(tr.cols)); err != nil {
 		return err
 	}
-	t := &tr.t
-	*t = Tick{}
-	t.Index = f.int(0)
-	t.T = f.float(1)
-	t.WallS = f.float(2)
-	k := 3
-	for i := 0; i < tr.nq; i++ {
-		t.Q[i] = f.float(k)
-		k++
-	}
-	for i := 0; i < tr.nq; i++ {
-		t.V[i] = f.float(k)
-		k++
-	}
-	for _, a := range [...]*[MaxJoints]float64{&t.Angle, &t.Rate, &t.Commanded, &t.Applied} {
-		for i := 0; i < tr.nj; i++ {
-			a[i] = f.float(k)
-			k++
-		}
-	}
-	t.Push[0] = f.float(k)
-	t.Push[1] = f.float(k + 1)
-	k += 2
-	for i := range t.Feet {
-		ft := &t.Feet[i]
-		ft.Mode = int(f.int(k))
-		ft.NormalN = f.float(k + 1)
-		ft.TangentialN = f.float(k + 2)
-		ft.Utilization = f.float(k + 3)
-		ft.CoP = f.float(k + 4)
-		ft.ContactX = f.float(k + 5)
-		k += 6
-	}
-	t.Kinetic = f.float(k)
-	t.Potential = f.float(k + 1)
-	t.LatencyUS = f.float(k + 2)
-	t.Fresh = f.int(k+3) != 0
-	t.Stance = int(f.int(k + 4))
-	return f.err
+	tr.t = Tick{}
+	return parseRow(&tr.fs, tr.cols, &tr.t)
 }
 
 // Tick returns the row read by the last successful Next. The pointer stays

@@ -75,8 +75,11 @@ func (w *Writer) telemetryLoop() {
 func (w *Writer) drainRows() {
 	for {
 		select {
-		case t := <-w.pipe.rows:
-			w.writeRow(&t)
+		case w.cur = <-w.pipe.rows:
+			// Into a field of the Writer, not a local: the column getters
+			// are called through function values, so a local row would
+			// escape to the heap, one allocation per row.
+			w.writeRow(&w.cur)
 		default:
 			return
 		}
@@ -88,7 +91,7 @@ func (w *Writer) writeRow(t *Tick) {
 	if w.pipe.err.Load() != nil {
 		return // the file failed; keep draining so Tick never blocks
 	}
-	w.row = appendTick(w.row[:0], t, w.m.NumQ, len(w.m.JointNames))
+	w.row = appendRow(w.row[:0], w.cols, t)
 	if _, err := w.teleBuf.Write(w.row); err != nil {
 		w.setTeleErr(err)
 	}

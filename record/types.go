@@ -13,16 +13,17 @@
 //	summary.json      the outcome, written last and atomically
 //	telemetry.parquet on request (ExportParquet), for analysis tools
 //
+// docs/run-folder.md describes every file, manifest field and column; it is
+// generated from this package (go generate ./record). The telemetry and
+// step columns are defined once, in the tables of tick.go.
+//
 // Telemetry is flushed at least every FlushInterval of wall time, events and
 // steps at once, so a run killed with SIGKILL loses at most a fraction of a
 // second of telemetry and nothing else. Readers tolerate a truncated last
 // line and say how many complete rows they read.
 package record
 
-import (
-	"encoding/json"
-	"time"
-)
+import "time"
 
 // Fixed sizes of a telemetry row. The manifest says how many entries of each
 // array are in use.
@@ -41,106 +42,10 @@ const (
 	ParquetFile   = "telemetry.parquet"
 )
 
-// FormatVersion is the version of the run-folder layout written by this
-// package. Open refuses folders from a newer version.
-const FormatVersion = 1
-
 // FlushInterval is the longest wall time telemetry rows stay buffered while
 // ticks keep arriving. A SIGKILL loses at most this plus the time of one
 // tick.
 const FlushInterval = 50 * time.Millisecond
-
-// Greeting is the firmware's self-description as received on the link.
-type Greeting struct {
-	Name      string `json:"name"`      // firmware name
-	Build     string `json:"build"`     // firmware build identifier
-	Protocol  int    `json:"protocol"`  // protocol version the firmware speaks
-	Actuators int    `json:"actuators"` // number of torques it sends
-}
-
-// Manifest describes a run. It is written by Create and, if the greeting
-// arrives later, rewritten by SetGreeting.
-type Manifest struct {
-	// Format is the run-folder format version; Create sets it.
-	Format int `json:"format"`
-	// Scenario is the scenario's name.
-	Scenario string `json:"scenario"`
-	// ScenarioFile is where the scenario was loaded from (a path, or
-	// builtin:NAME).
-	ScenarioFile string `json:"scenario_file"`
-	// ScenarioText is the exact text of the scenario file.
-	ScenarioText string `json:"scenario_text"`
-	// ScenarioHash is the hex SHA-256 of ScenarioText.
-	ScenarioHash string `json:"scenario_hash"`
-	// Plant is the plant parameters as JSON (the hil loop marshals
-	// plant.Params); kept raw so this package depends on no other.
-	Plant json.RawMessage `json:"plant,omitempty"`
-	// Greeting is the firmware's greeting, empty until it is known.
-	Greeting Greeting `json:"greeting"`
-	// ToolVersion is the gaitrig version that made the run.
-	ToolVersion string `json:"tool_version"`
-	// Seed is the random seed of sensor noise and fault injection.
-	Seed int64 `json:"seed"`
-	// Clock is lockstep or wallclock.
-	Clock string `json:"clock"`
-	// TickHz is the control rate, ticks per second.
-	TickHz float64 `json:"tick_hz"`
-	// Link describes the controller link (for example builtin, serial
-	// /dev/ttyUSB0 at 115200, mqtt embedded rig bench).
-	Link string `json:"link"`
-	// Host is the machine the run ran on.
-	Host string `json:"host"`
-	// StartTime is the wall-clock time the run started. Tick.WallS counts
-	// from it.
-	StartTime time.Time `json:"start_time"`
-	// NumQ is the number of generalized coordinates in use in Tick.Q and
-	// Tick.V and in InitialQ and InitialV.
-	NumQ int `json:"num_q"`
-	// JointNames names the joints in use in the sensed-joint and torque
-	// arrays of Tick, in order.
-	JointNames []string `json:"joint_names"`
-	// FootModes names the foot-contact mode codes of Tick.Feet[i].Mode:
-	// FootModes[code] is the word for that code.
-	FootModes []string `json:"foot_modes"`
-	// InitialQ and InitialV are the exact initial state.
-	InitialQ []float64 `json:"initial_q"`
-	// InitialV is the initial generalized velocity; see InitialQ.
-	InitialV []float64 `json:"initial_v"`
-	// Columns is the telemetry column list; Create fills it from NumQ and
-	// JointNames (see TickColumns).
-	Columns []string `json:"columns"`
-}
-
-// Foot is the contact of one foot in a telemetry row.
-type Foot struct {
-	Mode        int     // contact mode code; Manifest.FootModes names it
-	NormalN     float64 // normal ground force, N
-	TangentialN float64 // tangential (friction) ground force, N
-	Utilization float64 // |F_t| / (μ_s N), 0 when not in contact
-	CoP         float64 // centre of pressure along the foot arc, m from the arc's lowest point with the leg vertical
-	ContactX    float64 // x of the contact point, m
-}
-
-// Tick is one telemetry row. Rows have fixed-size arrays so writing one
-// allocates nothing; the manifest says how many entries are in use.
-type Tick struct {
-	Index     int64              // tick number from 0
-	T         float64            // simulated time, s
-	WallS     float64            // wall-clock time since Manifest.StartTime, s
-	Q         [MaxQ]float64      // generalized coordinates
-	V         [MaxQ]float64      // generalized velocities
-	Angle     [MaxJoints]float64 // joint angles as sensed (after the sensor model), rad
-	Rate      [MaxJoints]float64 // joint rates as sensed, rad/s
-	Commanded [MaxJoints]float64 // torques the firmware commanded, N·m
-	Applied   [MaxJoints]float64 // torques applied to the plant (after limits and lag), N·m
-	Push      [2]float64         // push force on the hip (x, y), N
-	Feet      [2]Foot            // left, right
-	Kinetic   float64            // kinetic energy, J
-	Potential float64            // potential energy, J
-	LatencyUS float64            // command round-trip latency, µs; NaN when no fresh command
-	Fresh     bool               // a fresh command arrived for this tick
-	Stance    int                // stance leg: 0 left, 1 right
-}
 
 // Pose is the walker's outline at an instant, for stick figures: world (x,
 // y) points in metres.
@@ -189,11 +94,11 @@ type Event struct {
 	Tick     int64              `json:"tick"`             // tick index
 	T        float64            `json:"t_s"`              // simulated time, s
 	Wall     time.Time          `json:"wall"`             // wall-clock time
-	Kind     string             `json:"kind"`             // alarm kind (see scenarios.AlarmKinds) or another event word
+	Kind     string             `json:"kind"`             // alarm kind (see docs/scenarios.md) or another event word
 	Severity Severity           `json:"severity"`         // info, warn or trip
 	Message  string             `json:"message"`          // a sentence a person understands
 	Foot     string             `json:"foot,omitempty"`   // left or right, empty when not relevant
-	Segment  int                `json:"segment"`          // terrain segment index, NoSegment when not relevant
+	Segment  int                `json:"segment"`          // terrain segment index; NoSegment (absent in the file) when not relevant
 	Values   map[string]float64 `json:"values,omitempty"` // named numbers (measured value, limit, ...)
 }
 
@@ -236,8 +141,8 @@ type Summary struct {
 	PeakFrictionUtilization float64        `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N) of a stance foot
 	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N (+Inf: no contact)
 	MeanSpeedMPS            float64        `json:"mean_speed_mps"`            // mean forward speed over completed steps, m/s
-	LatencyUS               *Latency       `json:"latency_us"`                // wall-clock mode; nil in lockstep
-	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, wall-clock mode
+	LatencyUS               *Latency       `json:"latency_us"`                // command round trip, µs, in wall-clock mode; null in lockstep
+	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, µs, in wall-clock mode; left out in lockstep
 	DeadlineMisses          int            `json:"deadline_misses"`           // wall-clock ticks that started late
 	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
 	Caution                 string         `json:"caution"`                   // the safety caution

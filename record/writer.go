@@ -23,10 +23,14 @@ type Writer struct {
 	mu  sync.Mutex
 	dir string
 	m   Manifest
+	// cols is the telemetry column table of this run, built once so
+	// formatting a row allocates nothing.
+	cols table[Tick]
 
 	tele      *os.File
 	teleBuf   *bufio.Writer // owned by the telemetry goroutine once it runs
 	row       []byte        // reused row buffer, likewise
+	cur       Tick          // the row being formatted, likewise
 	lastFlush time.Time     // likewise
 	ticks     atomic.Int64  // rows handed to Tick
 	pipe      telePipe
@@ -37,13 +41,14 @@ type Writer struct {
 
 	steps   *os.File
 	stepBuf []byte
+	step    Step // the step being formatted (under mu), so Step allocates nothing
 	closed  bool
 }
 
 // Create makes the run folder dir (and its parents) and writes the manifest
 // and the headers of telemetry.csv and steps.csv. It refuses a folder that
-// exists and is not empty, so a run never overwrites another. m.Format and
-// m.Columns are filled in; a zero m.StartTime is set to now.
+// exists and is not empty, so a run never overwrites another.
+// m.SchemaVersion and m.Columns are filled in; a zero m.StartTime is set to now.
 func Create(dir string, m Manifest) (*Writer, error) {
 	if err := m.checkSizes(); err != nil {
 		return nil, err
@@ -54,12 +59,13 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	m.Format = FormatVersion
-	m.Columns = TickColumns(m.NumQ, m.JointNames)
+	m.SchemaVersion = SchemaVersion
+	cols := tickFields(m.NumQ, m.JointNames)
+	m.Columns = cols.names(SchemaVersion)
 	if m.StartTime.IsZero() {
 		m.StartTime = time.Now()
 	}
-	w := &Writer{dir: dir, m: m, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
+	w := &Writer{dir: dir, m: m, cols: cols, row: make([]byte, 0, 4096), stepBuf: make([]byte, 0, 1024)}
 	// Creating telemetry.csv exclusively claims the folder: of two runs
 	// started on one folder at once, exactly one gets past here, before
 	// either has written a manifest the other could overwrite.
@@ -93,7 +99,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	if _, err := w.steps.WriteString(csvHeader(StepColumns)); err != nil {
+	if _, err := w.steps.WriteString(csvHeader(stepTable.names(SchemaVersion))); err != nil {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
@@ -117,7 +123,7 @@ func (m *Manifest) checkSizes() error {
 // Dir returns the run folder.
 func (w *Writer) Dir() string { return w.dir }
 
-// Manifest returns the manifest as written (with Format, Columns and
+// Manifest returns the manifest as written (with SchemaVersion, Columns and
 // StartTime filled in).
 func (w *Writer) Manifest() Manifest {
 	w.mu.Lock()
@@ -234,7 +240,8 @@ func (w *Writer) Step(s Step) error {
 	if w.closed {
 		return errors.New("record: Step after Close")
 	}
-	w.stepBuf = appendStep(w.stepBuf[:0], &s)
+	w.step = s
+	w.stepBuf = appendRow(w.stepBuf[:0], stepTable, &w.step)
 	if _, err := w.steps.Write(w.stepBuf); err != nil {
 		return fmt.Errorf("record: steps: %w", err)
 	}

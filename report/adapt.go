@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"fmt"
 	"math"
 	"sort"
@@ -19,90 +18,40 @@ type terrainSeg struct {
 	muS    float64
 }
 
-// terrainOf reads the terrain from the manifest's plant parameters, which
-// record keeps as raw JSON so it depends on no other package. Keys are
-// matched without regard to case or underscores ("MuStatic", "mu_static"),
-// so the report keeps working whichever spelling the plant's JSON uses.
-// It returns nil when the manifest carries no usable terrain.
-func terrainOf(raw json.RawMessage) []terrainSeg {
-	if len(raw) == 0 {
+// terrainOf lays the manifest's terrain out along x for lookups by
+// position. It returns nil when the manifest records no plant, or a
+// terrain the report cannot place (a segment without a positive length).
+func terrainOf(p *record.Plant) []terrainSeg {
+	if p == nil || len(p.Terrain.Segments) == 0 {
 		return nil
 	}
-	var top any
-	if err := json.Unmarshal(raw, &top); err != nil {
-		return nil
-	}
-	terr, ok := lookup(top, "terrain").(map[string]any)
-	if !ok {
-		return nil
-	}
-	x := 0.0
-	if st, ok := lookup(terr, "start").([]any); ok && len(st) >= 1 {
-		if v, ok := st[0].(float64); ok {
-			x = v
-		}
-	}
-	segs, ok := lookup(terr, "segments").([]any)
-	if !ok {
-		return nil
-	}
-	var out []terrainSeg
-	for _, s := range segs {
-		m, ok := s.(map[string]any)
-		if !ok {
-			return nil
-		}
-		length, _ := lookup(m, "length").(float64)
-		slope, _ := lookup(m, "slope").(float64)
-		mu, ok := lookup(m, "mustatic").(float64)
-		if !ok {
-			mu, ok = lookup(m, "mus").(float64)
-		}
-		if !ok || length <= 0 {
+	x := p.Terrain.StartM[0]
+	out := make([]terrainSeg, 0, len(p.Terrain.Segments))
+	for _, s := range p.Terrain.Segments {
+		if !(s.LengthM > 0) {
 			return nil
 		}
 		// The segment length is along the ground; its horizontal extent is
 		// length·cos(slope).
-		dx := length * math.Cos(slope)
-		out = append(out, terrainSeg{x0: x, x1: x + dx, slope: slope, muS: mu})
+		dx := s.LengthM * math.Cos(s.SlopeRad)
+		out = append(out, terrainSeg{x0: x, x1: x + dx, slope: s.SlopeRad, muS: s.MuStatic})
 		x += dx
 	}
 	return out
 }
 
-// footRadiiOf reads each leg's foot radius from the plant parameters;
-// zero where it is not recorded.
-func footRadiiOf(raw json.RawMessage) (r [2]float64) {
-	var top any
-	if len(raw) == 0 || json.Unmarshal(raw, &top) != nil {
+// footRadiiOf returns each leg's foot radius from the manifest; zero where
+// it is not recorded or not a usable radius.
+func footRadiiOf(p *record.Plant) (r [2]float64) {
+	if p == nil {
 		return r
 	}
-	legs, ok := lookup(top, "legs").([]any)
-	if !ok {
-		return r
-	}
-	for i := 0; i < len(legs) && i < 2; i++ {
-		if v, ok := lookup(legs[i], "footradius").(float64); ok && v > 0 && !math.IsInf(v, 0) {
+	for i, l := range p.Legs {
+		if v := l.FootRadiusM; v > 0 && !math.IsInf(v, 0) {
 			r[i] = v
 		}
 	}
 	return r
-}
-
-// lookup finds key in a JSON object ignoring case and underscores.
-func lookup(v any, key string) any {
-	m, ok := v.(map[string]any)
-	if !ok {
-		return nil
-	}
-	norm := func(s string) string { return strings.ToLower(strings.ReplaceAll(s, "_", "")) }
-	want := norm(key)
-	for k, x := range m {
-		if norm(k) == want {
-			return x
-		}
-	}
-	return nil
 }
 
 // segmentAt returns the segment under horizontal position x: the last one

@@ -1,8 +1,8 @@
 package report
 
 import (
-	"encoding/json"
 	"math"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -11,31 +11,29 @@ import (
 )
 
 func TestTerrainOf(t *testing.T) {
+	seg := func(l, slope, mu float64) record.TerrainSegment {
+		return record.TerrainSegment{LengthM: l, SlopeRad: slope, MuStatic: mu, MuKinetic: mu / 2}
+	}
 	tests := []struct {
 		name string
-		raw  string
+		p    *record.Plant
 		want []terrainSeg
 	}{
-		{name: "no plant", raw: ``},
-		{name: "not JSON", raw: `{"Terrain":`},
-		{name: "no terrain", raw: `{"HipMass":10}`},
-		{name: "segment without mu", raw: `{"Terrain":{"Segments":[{"Length":1}]}}`},
-		{name: "segment with zero length", raw: `{"Terrain":{"Segments":[{"Length":0,"MuStatic":0.5}]}}`},
+		{name: "no plant"},
+		{name: "no segments", p: &record.Plant{HipMassKG: 10}},
+		{name: "segment with zero length", p: &record.Plant{Terrain: record.Terrain{Segments: []record.TerrainSegment{seg(0, 0, 0.5)}}}},
+		{name: "segment with NaN length", p: &record.Plant{Terrain: record.Terrain{Segments: []record.TerrainSegment{seg(math.NaN(), 0, 0.5)}}}},
 		{
-			name: "Go field names, flat then uphill",
-			raw:  `{"Terrain":{"Start":[1,0],"Segments":[{"Length":2,"Slope":0,"MuStatic":0.7,"MuKinetic":0.5},{"Length":2,"Slope":0.5235987755982988,"MuStatic":0.2,"MuKinetic":0.1}]}}`,
+			name: "flat then uphill",
+			p: &record.Plant{Terrain: record.Terrain{StartM: [2]float64{1, 0},
+				Segments: []record.TerrainSegment{seg(2, 0, 0.7), seg(2, 0.5235987755982988, 0.2)}}},
 			// cos(30°) = √3/2, so the second segment spans √3 m of x.
 			want: []terrainSeg{{x0: 1, x1: 3, slope: 0, muS: 0.7}, {x0: 3, x1: 3 + math.Sqrt(3), slope: math.Pi / 6, muS: 0.2}},
-		},
-		{
-			name: "snake_case keys",
-			raw:  `{"terrain":{"start":[0,0],"segments":[{"length":5,"slope":0,"mu_static":0.4}]}}`,
-			want: []terrainSeg{{x0: 0, x1: 5, muS: 0.4}},
 		},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			got := terrainOf(json.RawMessage(tc.raw))
+			got := terrainOf(tc.p)
 			if len(got) != len(tc.want) {
 				t.Fatalf("got %d segments %+v, want %+v", len(got), got, tc.want)
 			}
@@ -129,11 +127,12 @@ func TestFrictionEnvelopeSource(t *testing.T) {
 	}
 }
 
-// TestPlantParamsJSON reads the terrain and foot radii from plant.Params
-// marshalled the way the hil loop fills Manifest.Plant, so the report
-// follows the real format rather than one of its own making. (Only this
-// test imports plant; the report itself depends on record alone.)
-func TestPlantParamsJSON(t *testing.T) {
+// TestPlantFromRunFolder reads the terrain and foot radii of plant.Params
+// recorded the way the hil loop fills Manifest.Plant (record.PlantOf) and
+// read back from manifest.json, so the report follows the real format
+// rather than one of its own making. (Only this test imports plant; the
+// report itself depends on record alone.)
+func TestPlantFromRunFolder(t *testing.T) {
 	p := plant.Params{
 		HipMass: 10,
 		Legs: [2]plant.Leg{
@@ -146,11 +145,19 @@ func TestPlantParamsJSON(t *testing.T) {
 			{Length: 2, Slope: -0.1, MuStatic: 0.2, MuKinetic: 0.15},
 		}},
 	}
-	raw, err := json.Marshal(p)
+	dir := filepath.Join(t.TempDir(), "run")
+	w, err := record.Create(dir, record.Manifest{NumQ: 4, JointNames: []string{"hip"}, Plant: record.PlantOf(p)})
 	if err != nil {
 		t.Fatal(err)
 	}
-	segs := terrainOf(raw)
+	if err := w.Close(record.Summary{Outcome: record.Pass}); err != nil {
+		t.Fatal(err)
+	}
+	run, err := record.Open(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	segs := terrainOf(run.Manifest.Plant)
 	want := []terrainSeg{{x0: -1, x1: 2, slope: 0, muS: 0.8}, {x0: 2, x1: 2 + 2*math.Cos(-0.1), slope: -0.1, muS: 0.2}}
 	if len(segs) != len(want) {
 		t.Fatalf("got %+v, want %+v", segs, want)
@@ -161,7 +168,42 @@ func TestPlantParamsJSON(t *testing.T) {
 			t.Errorf("segment %d = %+v, want %+v", i, g, w)
 		}
 	}
-	if r := footRadiiOf(raw); r != [2]float64{0.3, 0.25} {
+	if r := footRadiiOf(run.Manifest.Plant); r != [2]float64{0.3, 0.25} {
 		t.Errorf("foot radii %v, want [0.3 0.25]", r)
+	}
+}
+
+// TestSchema1RunFolder renders the report of a real run folder of schema
+// 1 (record's fixture): the terrain comes from its old plant block and the
+// joint plots from its old column names.
+func TestSchema1RunFolder(t *testing.T) {
+	run, err := record.Open(filepath.Join("..", "record", "testdata", "v1-level-demo"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if run.Manifest.SchemaVersion != 1 {
+		t.Fatalf("fixture has schema %d, want 1", run.Manifest.SchemaVersion)
+	}
+	tr, err := run.Ticks()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer tr.Close()
+	v := viewOf(&run.Manifest, tr, run.Steps, run.Events, run.Summary)
+	if err := tr.Err(); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(strings.Join(v.Notes, " "), "from the manifest's terrain") {
+		t.Errorf("notes %q: the terrain of the old plant block was not used", v.Notes)
+	}
+	if len(v.t) != 250 || len(v.joints) != 2 || v.joints[0].name != "hip_left" || len(v.joints[1].applied) != 250 {
+		t.Fatalf("view: %d ticks, joints %d", len(v.t), len(v.joints))
+	}
+	if r := footRadiiOf(run.Manifest.Plant); r != [2]float64{0.27, 0.27} {
+		t.Errorf("foot radii %v, want the level-demo's 0.27 m", r)
+	}
+	var b strings.Builder
+	if err := Render(&b, run); err != nil || !strings.Contains(b.String(), "<svg") {
+		t.Fatalf("render: %v", err)
 	}
 }

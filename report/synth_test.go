@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"fmt"
 	"math"
 	"time"
@@ -48,28 +47,22 @@ const (
 
 func makeSynthRun(o synthOpts) synthRun {
 	r := synthRun{}
-	segs := []map[string]float64{
-		{"Length": synthPatch0, "Slope": 0, "MuStatic": synthMuS, "MuKinetic": 0.5},
-		{"Length": synthPatch1 - synthPatch0, "Slope": 0, "MuStatic": o.patchMu, "MuKinetic": o.patchMu * 0.8},
-		{"Length": 200, "Slope": synthSlope2, "MuStatic": synthMuS, "MuKinetic": 0.5},
-	}
-	plantJSON, err := json.Marshal(map[string]any{
-		"HipMass": synthMass,
-		"Legs": []map[string]float64{
-			{"Length": synthLeg, "FootRadius": synthRadius},
-			{"Length": synthLeg, "FootRadius": synthRadius},
-		},
-		"Terrain": map[string]any{"Start": []float64{0, 0}, "Segments": segs},
-	})
-	if err != nil {
-		panic(err) // static data; cannot fail
+	pl := &record.Plant{
+		HipMassKG:   synthMass,
+		GravityMPS2: synthG,
+		Legs:        [2]record.Leg{{LengthM: synthLeg, FootRadiusM: synthRadius}, {LengthM: synthLeg, FootRadiusM: synthRadius}},
+		Terrain: record.Terrain{Segments: []record.TerrainSegment{
+			{LengthM: synthPatch0, SlopeRad: 0, MuStatic: synthMuS, MuKinetic: 0.5},
+			{LengthM: synthPatch1 - synthPatch0, SlopeRad: 0, MuStatic: o.patchMu, MuKinetic: o.patchMu * 0.8},
+			{LengthM: 200, SlopeRad: synthSlope2, MuStatic: synthMuS, MuKinetic: 0.5},
+		}},
 	}
 	r.m = record.Manifest{
 		Scenario:     "synthetic-level-walk",
 		ScenarioFile: "synthetic (made by the report tests)",
 		ScenarioText: "synthetic: no scenario file\n",
 		ScenarioHash: "0f3c1e9a5b7d2468ace013579bdf2468ace013579bdf2468ace013579bdf2468",
-		Plant:        plantJSON,
+		Plant:        pl,
 		Greeting:     record.Greeting{Name: "synthetic-fw", Build: "test-1", Protocol: 1, Actuators: 1},
 		ToolVersion:  "test",
 		Seed:         7,
