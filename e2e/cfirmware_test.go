@@ -31,6 +31,7 @@ import (
 	"gaitrig/hil"
 	"gaitrig/plant"
 	"gaitrig/record"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -1425,7 +1426,7 @@ func demoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 // returns the result and the folder.
 func runLoop(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State, conn bridges.Conn, link string) (hil.Result, string) {
 	t.Helper()
-	mf, err := hil.Manifest(nil, cfg, model, initial, link, "e2e-test")
+	mf, err := hil.Manifest(cfg, model, initial, link, "e2e-test")
 	if err != nil {
 		t.Fatalf("manifest: %v", err)
 	}
@@ -1554,7 +1555,7 @@ func levelDemoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 	if err != nil {
 		t.Fatalf("loading the level-demo scenario: %v", err)
 	}
-	cfg, err := hil.FromScenario(sc)
+	cfg, err := rig.FromScenario(sc)
 	if err != nil {
 		t.Fatalf("loop configuration of level-demo: %v", err)
 	}
@@ -1563,11 +1564,11 @@ func levelDemoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 	}
 	cfg.Watchdog = 2 * time.Second
 	cfg.Resend = 200 * time.Millisecond
-	model, err := hil.NewModel(sc, cfg)
+	model, err := rig.NewModel(sc, cfg)
 	if err != nil {
 		t.Fatalf("plant of level-demo: %v", err)
 	}
-	initial, err := hil.InitialState(sc, model)
+	initial, err := rig.InitialState(sc, model)
 	if err != nil {
 		t.Fatalf("initial state of level-demo: %v", err)
 	}

@@ -66,9 +66,12 @@ func newRecord(t testing.TB, cfg Config, m *plant.Model, s plant.State) *record.
 // whose text the manifest then carries.
 func newScenarioRecord(t testing.TB, sc *scenarios.Scenario, cfg Config, m *plant.Model, s plant.State) *record.Writer {
 	t.Helper()
-	mf, err := Manifest(sc, cfg, m, s, "inproc", "test")
+	mf, err := Manifest(cfg, m, s, "inproc", "test")
 	if err != nil {
 		t.Fatal(err)
+	}
+	if sc != nil {
+		mf.Scenario, mf.ScenarioFile, mf.ScenarioText = sc.Name, sc.File, string(sc.Text)
 	}
 	w, err := record.Create(filepath.Join(t.TempDir(), "run"), mf)
 	if err != nil {

@@ -6,8 +6,8 @@ import (
 	"io"
 	"math/cmplx"
 
-	"gaitrig/hil"
 	"gaitrig/plant"
+	"gaitrig/rig"
 )
 
 func init() {
@@ -72,22 +72,22 @@ when none is found from the guess.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitCodeFor(err)
 	}
-	cfg, err := hil.FromScenario(sc)
+	cfg, err := rig.FromScenario(sc)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitConfig
 	}
-	model, err := hil.NewModel(sc, cfg)
+	model, err := rig.NewModel(sc, cfg)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitConfig
 	}
-	policy, _, err := gaitPolicy(sc, model)
+	policy, _, err := rig.GaitPolicy(sc, model)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitCodeFor(err)
 	}
-	g, err := findGait(sc, model)
+	g, err := rig.FindGait(sc, model)
 	if err != nil && !g.Found {
 		if exitCodeFor(err) == exitConfig {
 			fmt.Fprintln(stderr, "gaitrig cycle:", err)

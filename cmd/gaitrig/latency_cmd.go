@@ -11,8 +11,8 @@ import (
 	"strings"
 	"time"
 
-	"gaitrig/firmware/reference"
 	"gaitrig/hil"
+	"gaitrig/rig"
 )
 
 func init() {
@@ -72,38 +72,21 @@ bench PC that will host the rig.`, stderr)
 // class, printed once under the table.
 var firstRealtime string
 
-// measureLink runs one wall-clock measurement over the named link.
+// measureLink runs one wall-clock measurement of the level-ground demo
+// over the named link, with no run folder.
 func measureLink(name string, ticks int, hz float64, mosqAddr string, prio int) (hil.Result, error) {
 	sc, err := loadBuiltin("level-demo")
 	if err != nil {
 		return hil.Result{}, err
 	}
-	cfg, err := hil.FromScenario(sc)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	cfg.Clock = hil.Wallclock
-	cfg.TickHz = hz
-	cfg.Duration = float64(ticks) / hz
-	cfg.MaxSteps = 0
-	cfg.Watchdog = time.Second // measure, do not trip on a slow outlier
-	cfg.RealtimePriority = prio
-	model, err := hil.NewModel(sc, cfg)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	initial, err := hil.InitialState(sc, model)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	ls := linkSetup{Rig: "latency", Firmware: reference.Options{Actuators: len(sc.JointNames())}}
+	o := rig.Options{Clock: hil.Wallclock, TickHz: hz, Duration: float64(ticks) / hz, MaxSteps: -1,
+		Watchdog:         time.Second, // measure, do not trip on a slow outlier
+		RealtimePriority: prio, Rig: "latency", NoRecord: true}
 	switch name {
 	case "inproc":
-		ls.Spec = linkSpec{Kind: linkBuiltin}
-	case "pty":
-		ls.Spec = linkSpec{Kind: linkPty}
-	case "embedded":
-		ls.Spec = linkSpec{Kind: linkEmbedded}
+		o.Link = "builtin"
+	case "pty", "embedded":
+		o.Link = name
 	case "mosquitto":
 		addr := mosqAddr
 		if addr == "" {
@@ -114,23 +97,19 @@ func measureLink(name string, ticks int, hz float64, mosqAddr string, prio int) 
 			defer stop()
 			addr = a
 		}
-		ls.Spec, ls.LocalFirmware = linkSpec{Kind: linkMQTT, URL: "tcp://" + addr}, true
+		o.Link, o.LocalFirmware = "mqtt:tcp://"+addr, true
 	default:
 		return hil.Result{}, badUsage("unknown link %q (want one of %s)", name, strings.Join(latencyLinks, ", "))
 	}
-	l, err := dialLink(ls)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	defer l.Close()
-	cfg.Log = func(line string) {
+	o.Log = func(line string) {
 		if firstRealtime == "" && strings.Contains(strings.ToLower(line), "sched") {
 			firstRealtime = line
 		}
 	}
-	ctx, cancel := context.WithTimeout(context.Background(), time.Duration(float64(time.Second)*cfg.Duration*3)+10*time.Second)
+	ctx, cancel := context.WithTimeout(context.Background(), time.Duration(float64(time.Second)*o.Duration*3)+10*time.Second)
 	defer cancel()
-	return hil.Run(ctx, cfg, model, initial, l.Conn, nil)
+	r, err := rig.Run(ctx, sc, o)
+	return r.Loop, err
 }
 
 // startMosquitto starts /usr/sbin/mosquitto on a free loopback port and

@@ -18,6 +18,8 @@ import (
 	"os"
 	"sort"
 	"strings"
+
+	"gaitrig/rig"
 )
 
 // Exit codes of every sub-command.
@@ -36,23 +38,16 @@ type command struct {
 // commands is filled by the init functions of the sub-command files.
 var commands = map[string]command{}
 
-// usageError marks errors that come from the command line or configuration,
-// which exit with code 2.
-type usageError struct{ err error }
-
-func (e usageError) Error() string { return e.err.Error() }
-func (e usageError) Unwrap() error { return e.err }
-
-// badUsage wraps a formatted message as a usage error.
-func badUsage(format string, a ...any) error { return usageError{fmt.Errorf(format, a...)} }
+// badUsage formats an error that comes from the command line or the
+// configuration (rig.ErrConfig), which exits with code 2.
+func badUsage(format string, a ...any) error { return rig.Configf(format, a...) }
 
 // exitCodeFor maps an error to the exit code the command line promises.
 func exitCodeFor(err error) int {
-	if err == nil {
+	switch {
+	case err == nil:
 		return exitPass
-	}
-	var u usageError
-	if errors.As(err, &u) {
+	case errors.Is(err, rig.ErrConfig):
 		return exitConfig
 	}
 	return exitFail

@@ -13,8 +13,8 @@ import (
 	"gaitrig/bridges/mqtt"
 	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
-	"gaitrig/hil"
 	"gaitrig/report"
+	"gaitrig/rig"
 )
 
 func init() {
@@ -64,7 +64,7 @@ diverge. Exit code 0 on an exact match, 1 on a divergence.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig replay: want exactly one RUNDIR")
 		return exitConfig
 	}
-	res, err := hil.ReplayRun(fs.Arg(0), initialState)
+	res, err := rig.Replay(fs.Arg(0))
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig replay:", err)
 		return exitConfig
@@ -83,7 +83,7 @@ exactly as a board or controller process would: over a serial port, over a
 new pseudo-terminal pair (--pty prints the port the rig should open), or over
 MQTT. Ends when the rig sends stop.`, stderr)
 	link := fs.String("link", "", `"serial:PORT[@BAUD]", "pty" or "mqtt:URL"`)
-	rig := fs.String("rig", "bench", "MQTT rig id")
+	rigID := fs.String("rig", "bench", "MQTT rig id")
 	mode := fs.String("mode", reference.ModeWalk, `"walk" or "passive" (zero torques)`)
 	actuators := fs.Int("actuators", 2, "number of torques announced (2 for the torso walker, 1 for a compass walker)")
 	userEnv := fs.String("user-env", "", "environment variable holding the MQTT user name")
@@ -110,12 +110,12 @@ MQTT. Ends when the rig sends stop.`, stderr)
 		fmt.Fprintf(stdout, "reference firmware waiting on a pty: run the rig with --link serial:%s\n", p.Path)
 		conn = c
 	case strings.HasPrefix(*link, "serial:"):
-		spec, err := parseLinkSpec(*link)
+		spec, err := rig.ParseLink(*link)
 		if err != nil {
 			fmt.Fprintln(stderr, "gaitrig firmware:", err)
 			return exitConfig
 		}
-		c, err := serial.Open(serial.Config{Port: spec.Port, Baud: spec.Baud})
+		c, err := serial.Open(serial.Config{Port: spec.Addr, Baud: spec.Baud})
 		if err != nil {
 			fmt.Fprintln(stderr, "gaitrig firmware:", err)
 			return exitConfig
@@ -123,12 +123,12 @@ MQTT. Ends when the rig sends stop.`, stderr)
 		defer c.Close()
 		conn = c
 	case strings.HasPrefix(*link, "mqtt:"):
-		spec, err := parseLinkSpec(*link)
-		if err != nil || spec.Kind != linkMQTT {
+		spec, err := rig.ParseLink(*link)
+		if err != nil || spec.Kind != "mqtt" {
 			fmt.Fprintln(stderr, "gaitrig firmware: --link wants mqtt:URL, e.g. mqtt:tcp://127.0.0.1:1883")
 			return exitConfig
 		}
-		c, err := mqtt.Dial(mqtt.Config{Broker: spec.URL, Rig: *rig, Role: mqtt.RoleFirmware,
+		c, err := mqtt.Dial(mqtt.Config{Broker: spec.Addr, Rig: *rigID, Role: mqtt.RoleFirmware,
 			Username: os.Getenv(*userEnv), Password: os.Getenv(*passEnv)})
 		if err != nil {
 			fmt.Fprintln(stderr, "gaitrig firmware:", err)
