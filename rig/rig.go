@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"time"
 
+	"gaitrig/bridges"
 	"gaitrig/firmware/reference"
 	"gaitrig/hil"
 	"gaitrig/plant"
@@ -52,6 +53,10 @@ type Options struct {
 	// Watchdog > 0 overrides the scenario's watchdog (and the lockstep
 	// floor, see LockstepWatchdogFloor).
 	Watchdog time.Duration
+	// Resend > 0 overrides the lockstep resend interval (hil.DefaultResend):
+	// how long the rig waits for an answer before it sends the same state
+	// again.
+	Resend time.Duration
 	// RealtimePriority, when not 0, overrides the SCHED_FIFO priority a
 	// wall-clock run asks for (negative: ask for none).
 	RealtimePriority int
@@ -200,6 +205,9 @@ func applyOverrides(cfg *hil.Config, o Options) error {
 	if o.TickHz > 0 {
 		cfg.TickHz = o.TickHz
 	}
+	if o.Resend > 0 {
+		cfg.Resend = o.Resend
+	}
 	if o.RealtimePriority != 0 {
 		cfg.RealtimePriority = o.RealtimePriority
 	}
@@ -289,6 +297,11 @@ func NewRunDir(root, name string) string {
 		dir = fmt.Sprintf("%s-%d", base, i)
 	}
 }
+
+// Conn is the rig's end of the open link, for callers that check the
+// link's own counters (bridges.Conn.Stats) after the run. It stays owned by
+// the Prepared: do not close it.
+func (p *Prepared) Conn() bridges.Conn { return p.open.Conn }
 
 // Run runs the prepared loop to its end and writes what the options asked
 // for on top of the record. The record is closed with the summary whatever
