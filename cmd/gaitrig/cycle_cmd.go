@@ -109,7 +109,7 @@ when none is found from the guess.`, stderr)
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
-		if err := enc.Encode(jsonSafe(rep)); err != nil {
+		if err := enc.Encode(rig.JSONSafe(rep)); err != nil {
 			fmt.Fprintln(stderr, "gaitrig cycle:", err)
 			return exitFail
 		}

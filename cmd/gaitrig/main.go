@@ -18,7 +18,9 @@ import (
 	"os"
 	"sort"
 	"strings"
+	"unicode/utf8"
 
+	"gaitrig/report"
 	"gaitrig/rig"
 )
 
@@ -141,7 +143,28 @@ func parseFlags(fs *flag.FlagSet, args []string) (bool, int) {
 	return false, 0
 }
 
-// safetyCaution is printed by every command that reports a result.
-const safetyCaution = "Caution: a passing simulation is not a safety certificate. Treadmill and overground\n" +
-	"trials need the lab's own safety procedure, a fall-arrest harness or gantry, a hardware\n" +
-	"e-stop within reach, and the local rules and qualified staff that govern such trials."
+// safetyCaution is printed by every command that reports a result: the
+// one caution text (report.Caution, also at the top of every report),
+// wrapped for a terminal.
+var safetyCaution = wrapWords("Caution: "+report.Caution, 90)
+
+// wrapWords breaks text into lines of at most width characters at spaces.
+func wrapWords(text string, width int) string {
+	var b strings.Builder
+	n := 0
+	for i, w := range strings.Fields(text) {
+		l := utf8.RuneCountInString(w)
+		if i > 0 {
+			if n+1+l > width {
+				b.WriteByte('\n')
+				n = 0
+			} else {
+				b.WriteByte(' ')
+				n++
+			}
+		}
+		b.WriteString(w)
+		n += l
+	}
+	return b.String()
+}
