@@ -36,8 +36,9 @@ func init() {
 	})
 	RegisterLinkKind(LinkKind{
 		Name: "pty", Syntax: "pty", Help: "reference firmware over a real pseudo-terminal pair, COBS frames as on a board",
-		Parse: exactly("pty"),
-		Dial:  dialPty,
+		Parse:       exactly("pty"),
+		Dial:        dialPty,
+		FirmwareEnd: firmwareOnPty,
 	})
 	RegisterLinkKind(LinkKind{
 		Name: "serial", Syntax: "serial:PORT[@BAUD]", Help: "a board, e.g. serial:/dev/ttyACM0@921600",
@@ -49,6 +50,13 @@ func init() {
 			return Link{Kind: "serial", Addr: c.Port, Baud: c.Baud}, c.Link == scenarios.LinkSerial
 		},
 		Dial: dialSerial,
+		FirmwareEnd: func(d DialSetup, _ func(string)) (bridges.Conn, func(), error) {
+			c, err := serial.Open(serial.Config{Port: d.Link.Addr, Baud: d.Link.Baud})
+			if err != nil {
+				return nil, nil, ConfigError(err)
+			}
+			return c, func() { c.Close() }, nil
+		},
 	})
 	RegisterLinkKind(LinkKind{
 		Name: "mqtt", Syntax: "mqtt:URL", Help: "controller code on an MQTT broker, e.g. mqtt:tcp://127.0.0.1:1883",
@@ -58,6 +66,13 @@ func init() {
 			return Link{Kind: "mqtt", Addr: c.Broker}, c.Link == scenarios.LinkMQTT && c.Broker != "" && c.Broker != "embedded"
 		},
 		Dial: dialMQTTLink,
+		FirmwareEnd: func(d DialSetup, _ func(string)) (bridges.Conn, func(), error) {
+			c, err := mqtt.Dial(mqtt.Config{Broker: d.Link.Addr, Rig: d.Rig, Role: mqtt.RoleFirmware, Username: d.User, Password: d.Password})
+			if err != nil {
+				return nil, nil, ConfigError(err)
+			}
+			return c, func() { c.Close() }, nil
+		},
 	})
 }
 
@@ -156,6 +171,22 @@ func dialPty(d DialSetup) (Opened, error) {
 	}
 	undo.add(func() { rigConn.Close() }, startFirmware(fwConn, d.Firmware))
 	return Opened{Conn: rigConn, Name: "pty (" + p.Path + ", built-in firmware)", Close: undo.run}, nil
+}
+
+// firmwareOnPty makes a new pty pair and serves the firmware on its leader;
+// the rig opens the follower by its path.
+func firmwareOnPty(_ DialSetup, announce func(string)) (bridges.Conn, func(), error) {
+	p, err := serial.NewPty()
+	if err != nil {
+		return nil, nil, ConfigError(err)
+	}
+	c := serial.NewConn(p.Master, "pty master", serial.Config{})
+	// The follower stays open here for the whole run: with no process
+	// holding it, the leader reads EIO until the rig opens the port, and
+	// the firmware would take that for an unplugged cable. A rig that goes
+	// away is noticed by its stop message or the idle timeout.
+	announce(fmt.Sprintf("reference firmware waiting on a pty: run the rig with --link serial:%s", p.Path))
+	return c, func() { c.Close(); p.Close() }, nil
 }
 
 func dialEmbedded(d DialSetup) (Opened, error) {

@@ -64,6 +64,11 @@ type LinkKind struct {
 	// Dial opens the link. The returned Opened's Close tears down
 	// everything Dial started (firmware goroutine, broker, pty).
 	Dial func(d DialSetup) (Opened, error)
+	// FirmwareEnd opens the firmware's end of the link, for the built-in
+	// firmware run as its own process (ServeFirmware). announce tells the
+	// person where the rig should connect when the link is new (a pty).
+	// nil: a firmware cannot be served over this kind from outside.
+	FirmwareEnd func(d DialSetup, announce func(string)) (bridges.Conn, func(), error)
 }
 
 // DialSetup is what a LinkKind's Dial gets: the parsed link and, for kinds
