@@ -7,7 +7,6 @@ import (
 	"time"
 
 	"gaitrig/plant"
-	"gaitrig/scenarios"
 )
 
 // ClockMode says how ticks are paced.
@@ -138,8 +137,8 @@ type Config struct {
 	// Pushes are disturbances on the hip.
 	Pushes []Push
 	// Severity sets the severity of alarm kinds; kinds not listed use
-	// scenarios.DefaultSeverity, and kinds unknown there warn.
-	Severity map[string]scenarios.Severity
+	// DefaultSeverity, and kinds unknown there warn.
+	Severity map[string]Severity
 	// AlarmInterval is the least simulated time between two logged alarms
 	// of one kind; default DefaultAlarmInterval.
 	AlarmInterval float64
@@ -150,7 +149,7 @@ type Config struct {
 	// step limit.
 	MaxSteps int
 	// Criteria are the pass criteria.
-	Criteria scenarios.Criteria
+	Criteria Criteria
 	// Seed seeds sensor noise and random faults.
 	Seed int64
 	// RealtimePriority is the SCHED_FIFO priority asked for in wall-clock
@@ -283,12 +282,12 @@ func (c Config) withDefaults() (Config, error) {
 }
 
 // severity of an alarm kind under this config.
-func (c *Config) severity(kind string) scenarios.Severity {
+func (c *Config) severity(kind string) Severity {
 	if s, ok := c.Severity[kind]; ok {
 		return s
 	}
-	if s, ok := scenarios.DefaultSeverity[kind]; ok {
+	if s, ok := DefaultSeverity[kind]; ok {
 		return s
 	}
-	return scenarios.SeverityWarn
+	return SeverityWarn
 }

@@ -49,8 +49,8 @@
 //
 // Every plant event that is not normal walking (heel strike, toe-off and
 // re-sticking are) and every link event becomes an alarm of a kind listed
-// in scenarios.AlarmKinds, with the severity the scenario sets (warn or
-// trip; defaults in scenarios.DefaultSeverity). A warn kind that repeats is
+// in AlarmKinds (hil/alarmkinds.go), with the severity the scenario sets (warn or
+// trip; defaults in DefaultSeverity). A warn kind that repeats is
 // logged at most once per Config.AlarmInterval of simulated time; the
 // summary counts every occurrence and the next line says how many were
 // not logged. The first trip e-stops: torques to zero (or joint damping,

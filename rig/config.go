@@ -43,17 +43,17 @@ func FromScenario(s *scenarios.Scenario) (hil.Config, error) {
 			JointLimits: s.Actuators.JointTorqueLimitsNM,
 			Lag:         s.Actuators.LagS,
 		},
-		Severity: map[string]scenarios.Severity{},
+		Severity: map[string]hil.Severity{},
 		Duration: s.Run.DurationS,
 		MaxSteps: s.Run.MaxSteps,
 		Criteria: s.Pass,
 		Seed:     s.Sensors.Seed,
 	}
 	for k, v := range s.Alarms {
-		if !slices.Contains(scenarios.AlarmKinds, k) {
+		if !slices.Contains(hil.AlarmKinds, k) {
 			return c, fmt.Errorf("rig: scenario %s sets a severity for unknown alarm kind %q", s.Name, k)
 		}
-		if v != scenarios.SeverityWarn && v != scenarios.SeverityTrip {
+		if v != hil.SeverityWarn && v != hil.SeverityTrip {
 			return c, fmt.Errorf("rig: scenario %s: alarm %s has severity %q: want warn or trip", s.Name, k, v)
 		}
 		c.Severity[k] = v

@@ -16,28 +16,24 @@ import (
 	"gaitrig/scenarios"
 )
 
-// TestEveryBuiltinRuns runs each built-in scenario as a user's `gaitrig run`
-// does, through Run against the built-in reference firmware over the link
-// its controller block names, writes its run folder and reads it back. Each
-// must pass its own criteria, and the folder must agree with the result. A
-// scenario paced by the wall clock also runs once in lockstep, so the loop
-// carries every scenario through both clocks.
+// TestEveryBuiltinRuns runs each built-in scenario as `gaitrig run NAME
+// --clock lockstep` does, through Run against the built-in reference
+// firmware over the link its controller block names, writes its run folder
+// and reads it back. In lockstep the outcome does not depend on how busy
+// the machine is, so each scenario must pass its own criteria, and the
+// folder must agree with the result. A scenario written for the wall clock
+// also runs once as written: there the outcome depends on the host (a
+// loaded machine may miss a latency ceiling or trip the watchdog), so only
+// the record is checked.
 func TestEveryBuiltinRuns(t *testing.T) {
 	for _, e := range scenarios.Library() {
 		s, err := scenarios.LoadBuiltin(e.Name)
 		if err != nil {
 			t.Fatal(err)
 		}
-		clocks := []hil.ClockMode{""}
+		t.Run(e.Name, func(t *testing.T) { runBuiltin(t, s, hil.Lockstep) })
 		if s.Clock.Mode == scenarios.ClockWallclock {
-			clocks = append(clocks, hil.Lockstep)
-		}
-		for _, clock := range clocks {
-			name := e.Name
-			if clock != "" {
-				name += "/" + string(clock)
-			}
-			t.Run(name, func(t *testing.T) { runBuiltin(t, s, clock) })
+			t.Run(e.Name+"/as-written", func(t *testing.T) { runBuiltin(t, s, "") })
 		}
 	}
 }
@@ -59,17 +55,13 @@ func runBuiltin(t *testing.T, s *scenarios.Scenario, clock hil.ClockMode) {
 			failed = append(failed, c.Name)
 		}
 	}
-	wallclock := s.Clock.Mode == scenarios.ClockWallclock && clock == ""
-	switch {
-	case sum.Outcome == record.Pass:
-	case wallclock && sum.Outcome == record.Fail && strings.Join(failed, ",") == "max_latency_p99_us":
-		// Wall-clock latency depends on the host; a loaded test
-		// machine may miss the ceiling. Everything else must hold.
-		t.Logf("latency ceiling missed on this host: %+v", sum.LatencyUS)
-	default:
+	lockstep := clock == hil.Lockstep || (clock == "" && s.Clock.Mode == scenarios.ClockLockstep)
+	if !lockstep {
+		t.Logf("wall clock on this host: outcome %s (%s), failed criteria %v, latency %+v", sum.Outcome, sum.Reason, failed, sum.LatencyUS)
+	} else if sum.Outcome != record.Pass {
 		t.Fatalf("outcome %s (%s); failed criteria %v", sum.Outcome, sum.Reason, failed)
 	}
-	if sum.Steps < s.Pass.MinSteps {
+	if lockstep && sum.Steps < s.Pass.MinSteps {
 		t.Errorf("%d steps, want at least %d", sum.Steps, s.Pass.MinSteps)
 	}
 	if res.Dir != dir {
