@@ -1,9 +1,16 @@
 package rig
 
 import (
+	"context"
 	"errors"
 	"strings"
 	"testing"
+	"time"
+
+	"gaitrig/firmware/reference"
+	"gaitrig/hil"
+	"gaitrig/record"
+	"gaitrig/scenarios"
 )
 
 func TestParseLink(t *testing.T) {
@@ -69,4 +76,82 @@ func TestRegisterLinkKindRefusesDuplicates(t *testing.T) {
 		}
 	}()
 	RegisterLinkKind(LinkKind{Name: "builtin", Parse: parseSerial, Dial: dialSerial})
+}
+
+// Every link kind that starts its own peer carries a short lockstep run of
+// the demo to its end: the registry's Dial wires the built-in firmware to
+// the other end of a real pty pair, of the embedded broker on loopback, or
+// of the in-process link, and closes everything afterwards.
+func TestLocalLinkKindsCarryARun(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, link := range []string{"builtin", "pty", "embedded"} {
+		t.Run(link, func(t *testing.T) {
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			res, err := Run(ctx, sc, Options{Link: link, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			s := res.Summary
+			if s.Steps != 3 || s.Outcome == record.Tripped || res.Loop.Link.Commands < uint64(s.Ticks) {
+				t.Fatalf("over %s: %d steps, outcome %s (%s), %d commands for %d ticks", link, s.Steps, s.Outcome, s.Reason, res.Loop.Link.Commands, s.Ticks)
+			}
+		})
+	}
+}
+
+// ServeFirmware serves the built-in firmware on a new pty as `gaitrig
+// firmware --link pty` does, and a rig run over serial:PATH (the path the
+// announcement names) walks against it; then the firmware ends, by the
+// rig's stop or by its idle timeout (see the note at the end).
+func TestServeFirmwareOverPty(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	paths := make(chan string, 1)
+	served := make(chan error, 1)
+	go func() {
+		served <- ServeFirmware("pty", "", "", "", reference.Options{Actuators: len(sc.JointNames()), IdleTimeout: 3 * time.Second}, func(line string) {
+			_, path, _ := strings.Cut(line, "--link serial:")
+			paths <- path
+		})
+	}()
+	var path string
+	select {
+	case path = <-paths:
+	case err := <-served:
+		t.Fatalf("the firmware ended before it announced its pty: %v", err)
+	case <-time.After(10 * time.Second):
+		t.Fatal("no pty announced within 10 s")
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	res, err := Run(ctx, sc, Options{Link: "serial:" + path, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Summary.Steps != 3 {
+		t.Errorf("%d steps over serial:%s, want 3 (%s)", res.Summary.Steps, path, res.Summary.Reason)
+	}
+	select {
+	case err := <-served:
+		// Known defect, outside rig: serial.Conn.Close does not drain its
+		// send queue, so the rig's final stop can be lost when the rig
+		// closes the port right after sending it, and the firmware then
+		// ends on its idle timeout instead. Either end is accepted here;
+		// anything else is not.
+		if err != nil && !strings.Contains(err.Error(), "nothing from the rig") {
+			t.Errorf("the firmware ended with %v, want a normal end or its idle timeout", err)
+		}
+		t.Logf("the firmware ended with %v", err)
+	case <-time.After(30 * time.Second):
+		t.Error("the firmware did not end within 30 s of the run")
+	}
+	if err := ServeFirmware("embedded", "", "", "", reference.Options{}, func(string) {}); !errors.Is(err, ErrConfig) {
+		t.Errorf("serving the firmware over the embedded kind: %v, want a configuration error", err)
+	}
 }
