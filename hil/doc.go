@@ -5,6 +5,13 @@
 // falls, the link itself), raises alarms by the scenario's policy, e-stops
 // on a trip, and records every tick, step and event into a run folder.
 //
+// hil takes its Config, the plant model, the initial state and an open
+// bridges.Conn as given: reading a scenario file, finding the natural gait
+// and choosing a link are the job of package rig, which every command and
+// scenario test goes through. hil owns the alarm vocabulary the loop acts
+// on (alarm kinds, severities, pass criteria; alarmkinds.go), which
+// scenario files name.
+//
 // # One tick
 //
 // Lockstep (virtual time, bit-identical logs): read the sensors from the
