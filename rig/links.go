@@ -152,18 +152,15 @@ func ParseLink(text string) (Link, error) {
 }
 
 // LinkHelp documents the --link syntax for every command that takes the
-// flag, from the registry.
+// flag, from the registry: one kind per line.
 func LinkHelp() string {
 	var b strings.Builder
-	b.WriteString("controller link: ")
-	for i, n := range linkOrder {
+	b.WriteString("controller link, one of:")
+	for _, n := range linkOrder {
 		k := linkKinds[n]
-		if i > 0 {
-			b.WriteString(", ")
-		}
-		fmt.Fprintf(&b, "%q (%s)", k.Syntax, k.Help)
+		fmt.Fprintf(&b, "\n%q: %s", k.Syntax, k.Help)
 	}
-	b.WriteString(". Empty: what the scenario says.")
+	b.WriteString("\nEmpty: what the scenario says.")
 	return b.String()
 }
 

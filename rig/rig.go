@@ -129,6 +129,9 @@ func Run(ctx context.Context, sc *scenarios.Scenario, o Options) (Result, error)
 // through the registry of link kinds) and the run folder with its
 // manifest. On an error nothing stays open.
 func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared, error) {
+	if ctx == nil {
+		ctx = context.Background()
+	}
 	if sc == nil {
 		return nil, Configf("rig: no scenario")
 	}
