@@ -106,11 +106,11 @@ type Prepared struct {
 	// Dir is the run folder ("" with Options.NoRecord).
 	Dir string
 
-	opts  Options
-	open  Opened
-	rec   *record.Writer
-	ran   bool
-	close bool
+	opts   Options
+	open   Opened
+	rec    *record.Writer
+	ran    bool
+	closed bool
 }
 
 // Run is Prepare, (*Prepared).Run and Close in one call.
@@ -314,7 +314,7 @@ func (p *Prepared) Run(ctx context.Context) (Result, error) {
 	if p.ran {
 		return Result{Dir: p.Dir}, fmt.Errorf("rig: run %s: already run", p.Scenario.Name)
 	}
-	if p.close {
+	if p.closed {
 		return Result{Dir: p.Dir}, fmt.Errorf("rig: run %s: already closed", p.Scenario.Name)
 	}
 	p.ran = true
@@ -347,10 +347,10 @@ func (p *Prepared) Run(ctx context.Context) (Result, error) {
 // was never run is closed with an aborted summary, so it is complete and
 // says why it holds no ticks. Close is safe to call more than once.
 func (p *Prepared) Close() error {
-	if p.close {
+	if p.closed {
 		return nil
 	}
-	p.close = true
+	p.closed = true
 	var err error
 	if p.rec != nil {
 		err = p.rec.Close(record.Summary{Outcome: record.Aborted, Reason: "prepared but never run"})
