@@ -3,6 +3,7 @@ package rig
 import (
 	"context"
 	"errors"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -153,5 +154,40 @@ func TestServeFirmwareOverPty(t *testing.T) {
 	}
 	if err := ServeFirmware("embedded", "", "", "", reference.Options{}, func(string) {}); !errors.Is(err, ErrConfig) {
 		t.Errorf("serving the firmware over the embedded kind: %v, want a configuration error", err)
+	}
+}
+
+// A new link kind needs nothing but its registration: --link parses it,
+// the help lists it, and a run dials it. The kind here is the in-process
+// pair under another name, registered for this test only.
+func TestRegisteredKindIsUsableEverywhere(t *testing.T) {
+	RegisterLinkKind(LinkKind{
+		Name: "loop", Syntax: "loop", Help: "test kind",
+		Parse: exactly("loop"),
+		Dial: func(d DialSetup) (Opened, error) {
+			d.Lockstep = false // the goroutine firmware, as a link with a wire would have
+			d.Link = Link{Kind: "builtin"}
+			return dialBuiltin(d)
+		},
+	})
+	t.Cleanup(func() {
+		delete(linkKinds, "loop")
+		linkOrder = slices.DeleteFunc(linkOrder, func(n string) bool { return n == "loop" })
+	})
+	if l, err := ParseLink("loop"); err != nil || l.Kind != "loop" {
+		t.Fatalf("ParseLink(loop) = %+v, %v", l, err)
+	}
+	if !strings.Contains(LinkHelp(), `"loop": test kind`) {
+		t.Errorf("help does not list the new kind:\n%s", LinkHelp())
+	}
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	res, err := Run(ctx, sc, Options{Link: "loop", MaxSteps: 2, NoRecord: true})
+	if err != nil || res.Summary.Steps != 2 {
+		t.Fatalf("run over the new kind: %d steps, %v", res.Summary.Steps, err)
 	}
 }
