@@ -31,6 +31,7 @@ import (
 	"gaitrig/hil"
 	"gaitrig/plant"
 	"gaitrig/record"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -1425,7 +1426,7 @@ func demoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 // returns the result and the folder.
 func runLoop(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State, conn bridges.Conn, link string) (hil.Result, string) {
 	t.Helper()
-	mf, err := hil.Manifest(nil, cfg, model, initial, link, "e2e-test")
+	mf, err := hil.Manifest(cfg, model, initial, link, "e2e-test")
 	if err != nil {
 		t.Fatalf("manifest: %v", err)
 	}
@@ -1545,33 +1546,19 @@ func checkWalk(t *testing.T, label string, res hil.Result, dir string, conn brid
 	}
 }
 
-// levelDemoRun is the level-demo scenario of the library, loaded as the
-// command line loads it, with the watchdog and resend times widened for
-// the reason given at demoRun.
-func levelDemoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
+// levelDemo is the level-demo scenario of the library, run as the command
+// line runs it (through rig), with the watchdog and resend times widened
+// for the reason given at demoRun.
+func levelDemo(t *testing.T, link string) (*scenarios.Scenario, rig.Options) {
 	t.Helper()
 	sc, err := scenarios.LoadBuiltin("level-demo")
 	if err != nil {
 		t.Fatalf("loading the level-demo scenario: %v", err)
 	}
-	cfg, err := hil.FromScenario(sc)
-	if err != nil {
-		t.Fatalf("loop configuration of level-demo: %v", err)
+	if sc.Clock.Mode != scenarios.ClockLockstep {
+		t.Fatalf("level-demo runs in clock mode %q; this test needs lockstep", sc.Clock.Mode)
 	}
-	if cfg.Clock != hil.Lockstep {
-		t.Fatalf("level-demo runs in clock mode %q; this test needs lockstep", cfg.Clock)
-	}
-	cfg.Watchdog = 2 * time.Second
-	cfg.Resend = 200 * time.Millisecond
-	model, err := hil.NewModel(sc, cfg)
-	if err != nil {
-		t.Fatalf("plant of level-demo: %v", err)
-	}
-	initial, err := hil.InitialState(sc, model)
-	if err != nil {
-		t.Fatalf("initial state of level-demo: %v", err)
-	}
-	return cfg, model, initial
+	return sc, rig.Options{Link: link, RunDir: filepath.Join(t.TempDir(), "run"), Watchdog: 2 * time.Second, Resend: 200 * time.Millisecond}
 }
 
 // TestCFirmwareWalksOverSerialPort is the bench set-up with a cable: socat
@@ -1583,7 +1570,6 @@ func levelDemoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	b := buildC(t)
 	socat := requireTool(t, "socat")
-	cfg, model, initial := levelDemoRun(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
@@ -1615,17 +1601,27 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	}
 
 	fw := startFirmware(t, ctx, b.firmware, fwPath)
-	conn, err := serial.Open(serial.Config{Port: rigPath, OpenTimeout: 2 * time.Second})
+	sc, o := levelDemo(t, "serial:"+rigPath)
+	run, err := rig.Prepare(ctx, sc, o)
 	if err != nil {
-		t.Fatalf("the rig could not open %s: %v", rigPath, err)
+		t.Fatalf("the rig could not prepare a run over %s: %v", rigPath, err)
 	}
-	defer conn.Close()
-	res, runDir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+rigPath)
-	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, runDir, conn, fw)
+	defer run.Close()
+	r, err := run.Run(ctx)
+	if err != nil {
+		t.Fatalf("run over %s: %v", rigPath, err)
+	}
+	res := r.Loop
+	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, r.Dir, run.Conn(), fw)
 
 	// Same law to the bit, deterministic loop: the same end state as the Go
-	// reference in-process.
-	goRes := runGoReference(t, ctx, cfg, model, initial)
+	// reference in-process, run as `gaitrig run level-demo --link builtin`.
+	sc, o = levelDemo(t, "builtin")
+	goRun, err := rig.Run(ctx, sc, o)
+	if err != nil {
+		t.Fatalf("level-demo with the Go reference in-process: %v", err)
+	}
+	goRes := goRun.Loop
 	if goRes.Summary.Ticks != res.Summary.Ticks || goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
 		t.Errorf("level-demo: the C firmware over socat ended after %d ticks in q=%v v=%v, the Go reference in-process after %d ticks in q=%v v=%v",
 			res.Summary.Ticks, res.Final.Q, res.Final.V, goRes.Summary.Ticks, goRes.Final.Q, goRes.Final.V)

@@ -8,7 +8,6 @@ import (
 	"time"
 
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // alarm is one alarm about to be logged.
@@ -97,7 +96,7 @@ func (a *alarmer) close() {
 // with the next line. It does not allocate once the kind has been seen.
 func (a *alarmer) occur(kind string, t float64) bool {
 	a.counts[kind]++
-	if a.cfg.severity(kind) == scenarios.SeverityTrip {
+	if a.cfg.severity(kind) == SeverityTrip {
 		return true
 	}
 	if last, ok := a.lastLogged[kind]; ok && t-last < a.cfg.AlarmInterval {
@@ -119,11 +118,11 @@ func (a *alarmer) emit(al alarm) bool {
 		a.suppressed[al.kind] = 0
 	}
 	rs := record.Warn
-	if sev == scenarios.SeverityTrip {
+	if sev == SeverityTrip {
 		rs = record.Trip
 	}
 	a.write(al, rs)
-	if sev == scenarios.SeverityTrip && a.trip == nil {
+	if sev == SeverityTrip && a.trip == nil {
 		c := al
 		a.trip = &c
 		a.tripKind = al.kind

@@ -4,11 +4,9 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"slices"
 	"time"
 
 	"gaitrig/plant"
-	"gaitrig/scenarios"
 )
 
 // ClockMode says how ticks are paced.
@@ -139,8 +137,8 @@ type Config struct {
 	// Pushes are disturbances on the hip.
 	Pushes []Push
 	// Severity sets the severity of alarm kinds; kinds not listed use
-	// scenarios.DefaultSeverity, and kinds unknown there warn.
-	Severity map[string]scenarios.Severity
+	// DefaultSeverity, and kinds unknown there warn.
+	Severity map[string]Severity
 	// AlarmInterval is the least simulated time between two logged alarms
 	// of one kind; default DefaultAlarmInterval.
 	AlarmInterval float64
@@ -151,7 +149,7 @@ type Config struct {
 	// step limit.
 	MaxSteps int
 	// Criteria are the pass criteria.
-	Criteria scenarios.Criteria
+	Criteria Criteria
 	// Seed seeds sensor noise and random faults.
 	Seed int64
 	// RealtimePriority is the SCHED_FIFO priority asked for in wall-clock
@@ -201,6 +199,12 @@ type AlarmSink interface {
 	// own, which the sink may keep.
 	PublishAlarm(jsonObject []byte) error
 }
+
+// WithDefaults returns c with its zero fields set to their defaults, or an
+// error naming the first field that makes no sense. Run calls it; callers
+// that build a manifest or show the configuration before the run call it
+// to see the values the run will use.
+func (c Config) WithDefaults() (Config, error) { return c.withDefaults() }
 
 // withDefaults fills zero fields and checks the rest.
 func (c Config) withDefaults() (Config, error) {
@@ -278,87 +282,12 @@ func (c Config) withDefaults() (Config, error) {
 }
 
 // severity of an alarm kind under this config.
-func (c *Config) severity(kind string) scenarios.Severity {
+func (c *Config) severity(kind string) Severity {
 	if s, ok := c.Severity[kind]; ok {
 		return s
 	}
-	if s, ok := scenarios.DefaultSeverity[kind]; ok {
+	if s, ok := DefaultSeverity[kind]; ok {
 		return s
 	}
-	return scenarios.SeverityWarn
+	return SeverityWarn
 }
-
-// FromScenario turns a loaded scenario into a loop configuration: clock,
-// watchdog, physics options, sensors, actuators, faults, alarms, run length
-// and criteria. The walker and terrain come from s.PlantParams, the model
-// from NewModel, the initial state from InitialState; the link is the
-// caller's.
-func FromScenario(s *scenarios.Scenario) (Config, error) {
-	if s == nil {
-		return Config{}, errors.New("hil: no scenario")
-	}
-	c := Config{
-		Clock:    ClockMode(s.Clock.Mode),
-		TickHz:   s.Clock.TickHz,
-		Physics:  s.PlantOptions(),
-		Watchdog: time.Duration(s.WatchdogMS * float64(time.Millisecond)),
-		Sensors: SensorModel{
-			CountsPerRev:     s.Sensors.EncoderCountsPerRev,
-			AngleNoise:       s.Sensors.AngleNoiseRad,
-			RateNoise:        s.Sensors.RateNoiseRadps,
-			AngleBias:        s.Sensors.AngleBiasRad,
-			RateBias:         s.Sensors.RateBiasRadps,
-			PitchNoise:       s.Sensors.IMUPitchNoiseRad,
-			PitchRateNoise:   s.Sensors.IMURateNoiseRadps,
-			PitchBias:        s.Sensors.IMUPitchBiasRad,
-			PitchRateBias:    s.Sensors.IMURateBiasRadps,
-			ContactThreshold: s.Sensors.ContactThresholdN,
-		},
-		Actuators: ActuatorModel{
-			TorqueLimit: s.Actuators.TorqueLimitNM,
-			JointLimits: s.Actuators.JointTorqueLimitsNM,
-			Lag:         s.Actuators.LagS,
-		},
-		Severity: map[string]scenarios.Severity{},
-		Duration: s.Run.DurationS,
-		MaxSteps: s.Run.MaxSteps,
-		Criteria: s.Pass,
-		Seed:     s.Sensors.Seed,
-	}
-	for k, v := range s.Alarms {
-		if !slices.Contains(scenarios.AlarmKinds, k) {
-			return c, fmt.Errorf("hil: scenario %s sets a severity for unknown alarm kind %q", s.Name, k)
-		}
-		if v != scenarios.SeverityWarn && v != scenarios.SeverityTrip {
-			return c, fmt.Errorf("hil: scenario %s: alarm %s has severity %q: want warn or trip", s.Name, k, v)
-		}
-		c.Severity[k] = v
-	}
-	for i, f := range s.Faults {
-		switch f.Kind {
-		case scenarios.FaultLatency:
-			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultLatency, From: f.FromS, Until: f.UntilS,
-				Fixed: msDuration(f.FixedMS), Jitter: msDuration(f.JitterMS)})
-		case scenarios.FaultDrop:
-			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultDrop, From: f.FromS, Until: f.UntilS, Rate: f.Rate})
-		case scenarios.FaultCorrupt:
-			c.LinkFaults = append(c.LinkFaults, LinkFault{Kind: FaultCorrupt, From: f.FromS, Until: f.UntilS, Rate: f.Rate})
-		case scenarios.FaultFreeze:
-			c.Freezes = append(c.Freezes, Freeze{Sensor: f.Sensor, Start: f.AtS, Duration: f.ForS})
-		case scenarios.FaultPush:
-			p := Push{At: f.AtS, AtStep: f.AtStep, Duration: f.DurationS}
-			if len(f.ImpulseNS) == 2 {
-				p.Impulse = [2]float64{f.ImpulseNS[0], f.ImpulseNS[1]}
-			}
-			if len(f.ForceN) == 2 {
-				p.Force = [2]float64{f.ForceN[0], f.ForceN[1]}
-			}
-			c.Pushes = append(c.Pushes, p)
-		default:
-			return c, fmt.Errorf("hil: scenario %s: faults[%d] has unknown kind %q", s.Name, i, f.Kind)
-		}
-	}
-	return c.withDefaults()
-}
-
-func msDuration(ms float64) time.Duration { return time.Duration(ms * float64(time.Millisecond)) }

@@ -4,50 +4,7 @@ import (
 	"strings"
 	"testing"
 	"time"
-
-	"gaitrig/scenarios"
 )
-
-func TestFromScenarioMapsFaults(t *testing.T) {
-	s, err := scenarios.LoadBuiltin("latency-stress")
-	if err != nil {
-		t.Fatal(err)
-	}
-	c, err := FromScenario(s)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if c.Clock != Wallclock || c.TickHz != 500 || c.Watchdog != 100*time.Millisecond {
-		t.Errorf("clock %s at %g Hz, watchdog %v", c.Clock, c.TickHz, c.Watchdog)
-	}
-	want := []LinkFault{
-		{Kind: FaultLatency, Fixed: 4 * time.Millisecond, Jitter: 2 * time.Millisecond},
-		{Kind: FaultDrop, Rate: 0.01, From: 2},
-	}
-	if len(c.LinkFaults) != len(want) {
-		t.Fatalf("link faults %+v", c.LinkFaults)
-	}
-	for i := range want {
-		if c.LinkFaults[i] != want[i] {
-			t.Errorf("fault %d = %+v, want %+v", i, c.LinkFaults[i], want[i])
-		}
-	}
-	if c.severity(scenarios.AlarmDeadlineMiss) != scenarios.SeverityWarn || c.severity(scenarios.AlarmWatchdog) != scenarios.SeverityTrip {
-		t.Error("severities not taken from the scenario and its defaults")
-	}
-
-	s, err = scenarios.LoadBuiltin("push-recovery")
-	if err != nil {
-		t.Fatal(err)
-	}
-	if c, err = FromScenario(s); err != nil {
-		t.Fatal(err)
-	}
-	f := s.Faults[0]
-	if len(c.Pushes) != 1 || c.Pushes[0].AtStep != f.AtStep || c.Pushes[0].Force != [2]float64{f.ForceN[0], f.ForceN[1]} || c.Pushes[0].Duration != f.DurationS {
-		t.Errorf("pushes %+v from scenario fault %+v", c.Pushes, f)
-	}
-}
 
 func TestConfigRefusesNonsense(t *testing.T) {
 	base := Config{Duration: 1}

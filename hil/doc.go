@@ -5,6 +5,13 @@
 // falls, the link itself), raises alarms by the scenario's policy, e-stops
 // on a trip, and records every tick, step and event into a run folder.
 //
+// hil takes its Config, the plant model, the initial state and an open
+// bridges.Conn as given: reading a scenario file, finding the natural gait
+// and choosing a link are the job of package rig, which every command and
+// scenario test goes through. hil owns the alarm vocabulary the loop acts
+// on (alarm kinds, severities, pass criteria; alarmkinds.go), which
+// scenario files name.
+//
 // # One tick
 //
 // Lockstep (virtual time, bit-identical logs): read the sensors from the
@@ -49,8 +56,8 @@
 //
 // Every plant event that is not normal walking (heel strike, toe-off and
 // re-sticking are) and every link event becomes an alarm of a kind listed
-// in scenarios.AlarmKinds, with the severity the scenario sets (warn or
-// trip; defaults in scenarios.DefaultSeverity). A warn kind that repeats is
+// in AlarmKinds (hil/alarmkinds.go), with the severity the scenario sets (warn or
+// trip; defaults in DefaultSeverity). A warn kind that repeats is
 // logged at most once per Config.AlarmInterval of simulated time; the
 // summary counts every occurrence and the next line says how many were
 // not logged. The first trip e-stops: torques to zero (or joint damping,

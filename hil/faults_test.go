@@ -13,7 +13,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 func TestLatencyFaultDelaysCommandsByWholeTicks(t *testing.T) {
@@ -64,10 +63,10 @@ func TestCorruptFaultIsABadFrame(t *testing.T) {
 	if res.Link.Corrupted == 0 || res.Link.BadFrames != res.Link.Corrupted {
 		t.Fatalf("counts %+v", res.Link)
 	}
-	if uint64(res.Summary.Alarms[scenarios.AlarmBadFrame]) != res.Link.BadFrames {
+	if uint64(res.Summary.Alarms[AlarmBadFrame]) != res.Link.BadFrames {
 		t.Fatalf("alarms %v for %d bad frames", res.Summary.Alarms, res.Link.BadFrames)
 	}
-	ev := eventsOf(t, dir, scenarios.AlarmBadFrame)
+	ev := eventsOf(t, dir, AlarmBadFrame)
 	if len(ev) == 0 || ev[0].T < 0.05 {
 		t.Fatalf("bad_frame events %+v: want at least one, none before from_s", ev)
 	}
@@ -112,10 +111,10 @@ func TestSaturationAndLag(t *testing.T) {
 			t.Fatalf("tick %d: applied %.12g, want %.12g", row.Index, row.Applied[0], want)
 		}
 	}
-	if n := res.Summary.Alarms[scenarios.AlarmTorqueSaturation]; n != 1 {
+	if n := res.Summary.Alarms[AlarmTorqueSaturation]; n != 1 {
 		t.Fatalf("%d torque_saturation alarms for one continuous episode, want 1", n)
 	}
-	ev := eventsOf(t, dir, scenarios.AlarmTorqueSaturation)
+	ev := eventsOf(t, dir, AlarmTorqueSaturation)
 	if len(ev) != 1 || ev[0].Values["limit_nm"] != 20 || ev[0].Values["torque_nm"] != 100 {
 		t.Fatalf("events %+v", ev)
 	}
@@ -156,7 +155,7 @@ func TestLinkEventsBecomeAlarms(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			m, s, cfg := timedDemo(t, 0.1)
-			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
+			cfg.Severity = map[string]Severity{AlarmLinkLost: SeverityWarn}
 			withEvents := func(rig bridges.Conn) bridges.Conn {
 				conn := &notifyConn{Conn: rig, ev: make(chan bridges.LinkEvent, 4)}
 				conn.ev <- bridges.LinkEvent{Kind: "disconnected", Err: errTest("serial port unplugged")}
@@ -172,12 +171,12 @@ func TestLinkEventsBecomeAlarms(t *testing.T) {
 			if res.Summary.Outcome != tc.outcome {
 				t.Fatalf("outcome %s (%s), want %s", res.Summary.Outcome, res.Summary.Reason, tc.outcome)
 			}
-			lost := eventsOf(t, dir, scenarios.AlarmLinkLost)
-			back := eventsOf(t, dir, scenarios.AlarmLinkRestored)
+			lost := eventsOf(t, dir, AlarmLinkLost)
+			back := eventsOf(t, dir, AlarmLinkRestored)
 			if len(lost) != 1 || len(back) != 1 || back[0].Values["gap_ms"] != float64(tc.gap)/1e6 {
 				t.Fatalf("link_lost %+v, link_restored %+v", lost, back)
 			}
-			if tc.outcome == record.Tripped && res.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+			if tc.outcome == record.Tripped && res.Summary.Alarms[AlarmWatchdog] != 1 {
 				t.Fatalf("alarms %v: the long gap must trip the watchdog", res.Summary.Alarms)
 			}
 		})
@@ -205,7 +204,7 @@ func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
 	cfg, run := shortRun(t, 500)
 	var sk sink
 	cfg.Alarms = &sk
-	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmFirmwareFault: scenarios.SeverityWarn}
+	cfg.Severity = map[string]Severity{AlarmFirmwareFault: SeverityWarn}
 	// Answers with the fault status bit set from state 20 on, stops itself
 	// with a motor driver fault at state 50 and answers nothing after.
 	stopped := false
@@ -228,7 +227,7 @@ func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
 	if res.Summary.Outcome != record.Fail || res.Summary.Ticks != 49 {
 		t.Fatalf("outcome %s after %d ticks (%s): want fail at tick 49", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
 	}
-	ev := eventsOf(t, dir, scenarios.AlarmFirmwareFault)
+	ev := eventsOf(t, dir, AlarmFirmwareFault)
 	if len(ev) != 2 {
 		t.Fatalf("firmware_fault events %+v: want the status bit's rising edge and the stop", ev)
 	}
@@ -237,7 +236,7 @@ func TestFirmwareFaultAndStopWithAlarmSink(t *testing.T) {
 	}
 	for _, b := range sk.msgs {
 		var v map[string]any
-		if err := json.Unmarshal(b, &v); err != nil || v["kind"] != scenarios.AlarmFirmwareFault || v["message"] == "" {
+		if err := json.Unmarshal(b, &v); err != nil || v["kind"] != AlarmFirmwareFault || v["message"] == "" {
 			t.Fatalf("sink payload %s: %v", b, err)
 		}
 	}
@@ -272,7 +271,7 @@ func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
 			m, s, cfg := timedDemo(t, 0.1)
 			cfg.Clock = clock
 			cfg.Watchdog = time.Second
-			cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmLinkLost: scenarios.SeverityWarn}
+			cfg.Severity = map[string]Severity{AlarmLinkLost: SeverityWarn}
 			// Recv number 3 is the one after the greeting and the first
 			// state's command in lockstep; any early one will do.
 			downOnce := func(rig bridges.Conn) bridges.Conn { return &downOnceConn{Conn: rig, at: 3} }
@@ -283,7 +282,7 @@ func TestDisconnectedRecvRaisesLinkLostAndWaits(t *testing.T) {
 			if res.Summary.Outcome != record.Pass || res.Summary.Ticks != 100 {
 				t.Fatalf("outcome %s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
 			}
-			if res.Summary.Alarms[scenarios.AlarmLinkLost] != 1 {
+			if res.Summary.Alarms[AlarmLinkLost] != 1 {
 				t.Fatalf("alarms %v: want one link_lost for the outage", res.Summary.Alarms)
 			}
 		})
@@ -300,9 +299,9 @@ func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
 			cfg, run := shortRun(t, 300)
 			cfg.Clock = clock
 			cfg.Watchdog = time.Second
-			cfg.Severity = map[string]scenarios.Severity{}
-			for _, k := range scenarios.AlarmKinds {
-				cfg.Severity[k] = scenarios.SeverityWarn // see everything, trip on nothing
+			cfg.Severity = map[string]Severity{}
+			for _, k := range AlarmKinds {
+				cfg.Severity[k] = SeverityWarn // see everything, trip on nothing
 			}
 			rng := rand.New(rand.NewPCG(42, 1))
 			values := []float32{0, 1, -1, 59, 61, 1e30, float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1))}
@@ -346,7 +345,7 @@ func TestGarbageFirmwareLeavesCompleteRecord(t *testing.T) {
 					}
 				}
 			}
-			if res.Link.BadTorques == 0 || len(eventsOf(t, dir, scenarios.AlarmBadTorque)) == 0 {
+			if res.Link.BadTorques == 0 || len(eventsOf(t, dir, AlarmBadTorque)) == 0 {
 				t.Fatalf("no bad torque seen in %+v", res.Link)
 			}
 			t.Logf("%s: %s after %d ticks; alarms %v; link %+v", clock, res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms, res.Link)
@@ -369,7 +368,7 @@ func TestStuckAlarmSinkDoesNotBlockTheLoop(t *testing.T) {
 	sk := &stuckSink{release: make(chan struct{})}
 	defer close(sk.release)
 	cfg.Alarms = sk
-	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: scenarios.SeverityWarn}
+	cfg.Severity = map[string]Severity{AlarmBadTorque: SeverityWarn}
 	cfg.AlarmInterval = 1e-9 // log every occurrence
 	var logs []string
 	cfg.Log = func(l string) { logs = append(logs, l) }
@@ -382,7 +381,7 @@ func TestStuckAlarmSinkDoesNotBlockTheLoop(t *testing.T) {
 	if res.Summary.Ticks != 300 {
 		t.Fatalf("%d ticks (%s)", res.Summary.Ticks, res.Summary.Reason)
 	}
-	if n := len(eventsOf(t, dir, scenarios.AlarmBadTorque)); n != 30 {
+	if n := len(eventsOf(t, dir, AlarmBadTorque)); n != 30 {
 		t.Fatalf("%d bad_torque lines in the record, want 30", n)
 	}
 	joined := strings.Join(logs, "\n")
@@ -410,7 +409,7 @@ func TestGreetingAfterHandshake(t *testing.T) {
 				cfg, run := shortRun(t, 300)
 				cfg.Clock = clock
 				cfg.Watchdog = time.Second
-				cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmFirmwareFault: scenarios.SeverityWarn}
+				cfg.Severity = map[string]Severity{AlarmFirmwareFault: SeverityWarn}
 				fw := func(conn bridges.Conn) error {
 					if tc.restartAt == 0 {
 						if _, err := greet(conn, 2, protocol.Version); err != nil {
@@ -431,7 +430,7 @@ func TestGreetingAfterHandshake(t *testing.T) {
 				if res.Summary.Ticks != 300 || res.Summary.Outcome == record.Tripped || res.Summary.Outcome == record.Aborted {
 					t.Fatalf("%s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
 				}
-				if n := res.Summary.Alarms[scenarios.AlarmFirmwareFault]; n != tc.alarms {
+				if n := res.Summary.Alarms[AlarmFirmwareFault]; n != tc.alarms {
 					t.Fatalf("%d firmware_fault alarms, want %d", n, tc.alarms)
 				}
 			})
@@ -469,7 +468,7 @@ func TestLockstepWatchdogIgnoresRigStalls(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if res.Summary.Outcome != record.Pass || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 {
+	if res.Summary.Outcome != record.Pass || res.Summary.Alarms[AlarmWatchdog] != 0 {
 		t.Fatalf("%s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 	}
 }
@@ -542,7 +541,7 @@ func TestLockstepWatchdogReadsPastStaleAfterStall(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if res.Summary.Outcome != record.Pass || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 || res.Link.StaleCommands == 0 {
+		if res.Summary.Outcome != record.Pass || res.Summary.Alarms[AlarmWatchdog] != 0 || res.Link.StaleCommands == 0 {
 			t.Fatalf("%s (%s), alarms %v, link %+v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms, res.Link)
 		}
 	})
@@ -556,7 +555,7 @@ func TestLockstepWatchdogReadsPastStaleAfterStall(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 {
 			t.Fatalf("%s (%s), alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 		}
 	})

@@ -10,7 +10,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // drainLinkEvents turns the link's health reports into alarms.
@@ -31,7 +30,7 @@ func (r *runner) drainLinkEvents() {
 				r.linkLost("link to the firmware lost: " + cause)
 			case "reconnected":
 				gap := ev.Gap
-				if r.al.raise(scenarios.AlarmLinkRestored, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+				if r.al.raise(AlarmLinkRestored, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 					return fmt.Sprintf("link to the firmware restored after %v", gap), map[string]float64{"gap_ms": float64(gap) / 1e6}
 				}) {
 					r.trip(protocol.StopEStop)
@@ -64,7 +63,7 @@ func (r *runner) disconnected(err error) {
 // linkLost raises link_lost with msg, and trips if the scenario makes it a
 // trip.
 func (r *runner) linkLost(msg string) {
-	if r.al.raise(scenarios.AlarmLinkLost, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+	if r.al.raise(AlarmLinkLost, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 		return msg, nil
 	}) {
 		r.trip(protocol.StopEStop)
@@ -73,7 +72,7 @@ func (r *runner) linkLost(msg string) {
 
 func (r *runner) badFrame(reason string) {
 	r.counts.BadFrames++
-	if r.al.raise(scenarios.AlarmBadFrame, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+	if r.al.raise(AlarmBadFrame, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 		return "rejected a frame from the firmware: " + reason, map[string]float64{"bad_frames_so_far": float64(r.counts.BadFrames)}
 	}) {
 		r.trip(protocol.StopEStop)
@@ -82,7 +81,7 @@ func (r *runner) badFrame(reason string) {
 
 func (r *runner) watchdog(silent time.Duration) {
 	ms := float64(silent) / 1e6
-	if r.al.raise(scenarios.AlarmWatchdog, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+	if r.al.raise(AlarmWatchdog, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 		return fmt.Sprintf("no valid command from the firmware for %.1f ms (watchdog %v): e-stop", ms, r.cfg.Watchdog),
 			map[string]float64{"silent_ms": ms, "watchdog_ms": float64(r.cfg.Watchdog) / 1e6}
 	}) {

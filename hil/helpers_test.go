@@ -16,7 +16,6 @@ import (
 	"gaitrig/firmware/reference"
 	"gaitrig/plant"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // demo returns the demo walker, its start state and a lockstep config that
@@ -59,14 +58,7 @@ func timedDemo(t testing.TB, seconds float64) (*plant.Model, plant.State, Config
 // newRecord creates a run folder in a temporary directory.
 func newRecord(t testing.TB, cfg Config, m *plant.Model, s plant.State) *record.Writer {
 	t.Helper()
-	return newScenarioRecord(t, nil, cfg, m, s)
-}
-
-// newScenarioRecord is newRecord for a run made from a scenario (nil: none),
-// whose text the manifest then carries.
-func newScenarioRecord(t testing.TB, sc *scenarios.Scenario, cfg Config, m *plant.Model, s plant.State) *record.Writer {
-	t.Helper()
-	mf, err := Manifest(sc, cfg, m, s, "inproc", "test")
+	mf, err := Manifest(cfg, m, s, "inproc", "test")
 	if err != nil {
 		t.Fatal(err)
 	}

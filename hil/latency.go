@@ -7,7 +7,6 @@ import (
 	"time"
 
 	"gaitrig/bridges"
-	"gaitrig/bridges/inproc"
 	"gaitrig/plant"
 )
 
@@ -98,20 +97,5 @@ func MeasureLatency(ctx context.Context, conn bridges.Conn, link string, ticks i
 		rep.FreshRate = float64(fresh) / float64(rep.Ticks)
 		rep.MallocsPerTick = float64(after.Mallocs-before.Mallocs) / float64(rep.Ticks)
 	}
-	return rep, err
-}
-
-// MeasureLatencyInproc is MeasureLatency against the reference firmware
-// in this process over the in-process link. serve is the firmware's
-// runner (reference.Serve with its options); it is passed in so this
-// package does not depend on the firmware.
-func MeasureLatencyInproc(ctx context.Context, ticks int, hz float64, serve func(bridges.Conn) error) (LatencyReport, error) {
-	rig, fw := inproc.Pair()
-	defer rig.Close()
-	done := make(chan error, 1)
-	go func() { done <- serve(fw) }()
-	rep, err := MeasureLatency(ctx, rig, "in-process link", ticks, hz)
-	rig.Close()
-	<-done
 	return rep, err
 }

@@ -7,7 +7,6 @@ import (
 
 	"gaitrig/plant"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // ReplayResult says whether re-running the plant with a run's recorded
@@ -43,19 +42,20 @@ func (r ReplayResult) String() string {
 // recorded ones bit for bit. Telemetry rows hold the state at the end of
 // their tick, so row k is compared after k+1 steps.
 func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz float64) (ReplayResult, error) {
-	p, err := newReplayer(model, initial, tickHz)
+	p, err := NewReplayer(model, initial, tickHz)
 	if err != nil {
 		return ReplayResult{Ticks: len(ticks), Match: true, FirstDivergence: -1}, err
 	}
 	for k := range ticks {
-		p.row(&ticks[k])
+		p.Row(&ticks[k])
 	}
 	return p.res, nil
 }
 
-// replayer re-runs the plant one recorded row at a time, so a replay from a
-// run folder holds one row in memory, not the whole run.
-type replayer struct {
+// Replayer re-runs the plant one recorded row at a time, so a replay from a
+// run folder (rig.Replay streams its telemetry) holds one row in memory,
+// not the whole run.
+type Replayer struct {
 	m   *plant.Model
 	s   plant.State
 	in  plant.Input
@@ -64,16 +64,19 @@ type replayer struct {
 	res ReplayResult
 }
 
-func newReplayer(model *plant.Model, initial plant.State, tickHz float64) (*replayer, error) {
+// NewReplayer starts a replay of model from initial at tickHz (the run's
+// tick rate, from its manifest).
+func NewReplayer(model *plant.Model, initial plant.State, tickHz float64) (*Replayer, error) {
 	if !(tickHz > 0) || math.IsInf(tickHz, 0) {
 		return nil, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
 	}
-	return &replayer{m: model, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
+	return &Replayer{m: model, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
 }
 
-// row counts one recorded row and, until the first divergence, steps the
-// plant with its inputs and compares the state with it.
-func (p *replayer) row(row *record.Tick) {
+// Row counts one recorded row and, until the first divergence, steps the
+// plant with its inputs and compares the state with it. Rows come in
+// recorded order.
+func (p *Replayer) Row(row *record.Tick) {
 	p.res.Ticks++
 	if !p.res.Match {
 		return
@@ -108,61 +111,7 @@ func diverged(r ReplayResult, tick int64, field string, a, b float64) ReplayResu
 	return r
 }
 
-// ReplayRun replays a run folder: it rebuilds the model from the scenario
-// text in the manifest, the initial state with initial (nil: InitialState,
-// which covers scenarios with an explicit initial state), checks that state
-// against the manifest's exact initial q and q̇, and replays the telemetry.
-func ReplayRun(dir string, initial func(*scenarios.Scenario, *plant.Model) (plant.State, error)) (ReplayResult, error) {
-	run, err := record.Open(dir)
-	if err != nil {
-		return ReplayResult{}, err
-	}
-	mf := &run.Manifest
-	s, err := scenarios.Parse(mf.ScenarioFile, []byte(mf.ScenarioText))
-	if err != nil {
-		return ReplayResult{}, fmt.Errorf("hil: replay %s: the scenario stored in the manifest does not load: %w", dir, err)
-	}
-	cfg, err := FromScenario(s)
-	if err != nil {
-		return ReplayResult{}, err
-	}
-	m, err := NewModel(s, cfg)
-	if err != nil {
-		return ReplayResult{}, err
-	}
-	if initial == nil {
-		initial = InitialState
-	}
-	st, err := initial(s, m)
-	if err != nil {
-		return ReplayResult{}, fmt.Errorf("hil: replay %s: %w", dir, err)
-	}
-	n := m.NumDOF()
-	if len(mf.InitialQ) != n || len(mf.InitialV) != n {
-		return ReplayResult{}, fmt.Errorf("hil: replay %s: the manifest holds %d/%d initial coordinates, the model has %d", dir, len(mf.InitialQ), len(mf.InitialV), n)
-	}
-	for i := 0; i < n; i++ {
-		if math.Float64bits(mf.InitialQ[i]) != math.Float64bits(st.Q[i]) || math.Float64bits(mf.InitialV[i]) != math.Float64bits(st.V[i]) {
-			return ReplayResult{}, fmt.Errorf("hil: replay %s: the rebuilt initial state differs from the manifest's at coordinate %d (q %v vs %v, v %v vs %v)",
-				dir, i, st.Q[i], mf.InitialQ[i], st.V[i], mf.InitialV[i])
-		}
-	}
-	p, err := newReplayer(m, st, mf.TickHz)
-	if err != nil {
-		return ReplayResult{}, err
-	}
-	// Stream the rows: a long run's telemetry need not fit in memory.
-	tr, err := run.Ticks()
-	if err != nil {
-		return ReplayResult{}, err
-	}
-	defer tr.Close()
-	for tr.Next() {
-		p.row(tr.Tick())
-	}
-	if err := tr.Err(); err != nil {
-		return ReplayResult{}, err
-	}
-	p.res.Truncated = tr.Truncated()
-	return p.res, nil
-}
+// Result is the replay so far: every row given to Row counted, the first
+// divergence if any. Truncated is the caller's to set (it knows whether the
+// telemetry was cut).
+func (p *Replayer) Result() ReplayResult { return p.res }

@@ -14,7 +14,6 @@ import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/plant"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // Result is what a run ended with. The same figures are in the record's
@@ -338,7 +337,7 @@ func reasonSuffix(s string) string {
 }
 
 // evaluate checks the criteria against the summary.
-func evaluate(c *scenarios.Criteria, s *record.Summary) []record.Criterion {
+func evaluate(c *Criteria, s *record.Summary) []record.Criterion {
 	out := []record.Criterion{}
 	if c.MinSteps > 0 {
 		out = append(out, record.Criterion{Name: "min_steps", Value: float64(s.Steps), Limit: float64(c.MinSteps), Pass: s.Steps >= c.MinSteps})

@@ -11,7 +11,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 func TestReferenceWalks30StepsLockstep(t *testing.T) {
@@ -81,10 +80,10 @@ func TestWatchdogTripsOnSilentFirmware(t *testing.T) {
 		t.Errorf("firmware got stop reason %d (%q), want %d (watchdog)", got.Reason, got.Text, protocol.StopWatchdog)
 	}
 	run := openRun(t, dir)
-	if run.Summary.Outcome != record.Tripped || run.Summary.Alarms[scenarios.AlarmWatchdog] != 1 {
+	if run.Summary.Outcome != record.Tripped || run.Summary.Alarms[AlarmWatchdog] != 1 {
 		t.Errorf("summary.json: outcome %s, alarms %v", run.Summary.Outcome, run.Summary.Alarms)
 	}
-	wd := eventsOf(t, dir, scenarios.AlarmWatchdog)
+	wd := eventsOf(t, dir, AlarmWatchdog)
 	if len(wd) != 1 || wd[0].Severity != record.Trip || wd[0].Values["silent_ms"] < 30 {
 		t.Fatalf("watchdog events %+v", wd)
 	}
@@ -107,10 +106,10 @@ func TestBadTorquesRejected(t *testing.T) {
 		{"huge", 1e30},
 	}
 	for _, tc := range tests {
-		for _, sev := range []scenarios.Severity{scenarios.SeverityWarn, scenarios.SeverityTrip} {
+		for _, sev := range []Severity{SeverityWarn, SeverityTrip} {
 			t.Run(tc.name+"/"+string(sev), func(t *testing.T) {
 				m, s, cfg := timedDemo(t, 0.2)
-				cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: sev}
+				cfg.Severity = map[string]Severity{AlarmBadTorque: sev}
 				// A firmware that answers with a steady 5 N·m and sends the
 				// bad torque on hip_right at every 20th state.
 				fw := scripted(func(seq uint32, c *protocol.Command) {
@@ -137,21 +136,21 @@ func TestBadTorquesRejected(t *testing.T) {
 				if bad == 0 {
 					t.Fatal("no bad command reached the telemetry")
 				}
-				alarms := eventsOf(t, run.Dir, scenarios.AlarmBadTorque)
+				alarms := eventsOf(t, run.Dir, AlarmBadTorque)
 				if len(alarms) == 0 {
 					t.Fatal("no bad_torque alarm logged")
 				}
 				switch sev {
-				case scenarios.SeverityTrip:
+				case SeverityTrip:
 					if res.Summary.Outcome != record.Tripped || bad != 1 {
 						t.Errorf("trip severity: outcome %s after %d bad commands", res.Summary.Outcome, bad)
 					}
-				case scenarios.SeverityWarn:
+				case SeverityWarn:
 					if res.Summary.Outcome == record.Tripped || res.Link.BadTorques != uint64(bad) || bad < 9 {
 						t.Errorf("warn severity: outcome %s, %d bad commands in telemetry, %d counted", res.Summary.Outcome, bad, res.Link.BadTorques)
 					}
-					if res.Summary.Alarms[scenarios.AlarmBadTorque] != bad {
-						t.Errorf("summary counts %d bad_torque alarms, telemetry shows %d", res.Summary.Alarms[scenarios.AlarmBadTorque], bad)
+					if res.Summary.Alarms[AlarmBadTorque] != bad {
+						t.Errorf("summary counts %d bad_torque alarms, telemetry shows %d", res.Summary.Alarms[AlarmBadTorque], bad)
 					}
 				}
 			})
@@ -226,10 +225,10 @@ func TestBadFramesAlarmAndCount(t *testing.T) {
 	if res.Summary.Outcome != record.Pass {
 		t.Fatalf("outcome %s (%s)", res.Summary.Outcome, res.Summary.Reason)
 	}
-	if res.Link.BadFrames == 0 || uint64(res.Summary.Alarms[scenarios.AlarmBadFrame]) != res.Link.BadFrames {
-		t.Fatalf("%d bad frames counted, %d alarms", res.Link.BadFrames, res.Summary.Alarms[scenarios.AlarmBadFrame])
+	if res.Link.BadFrames == 0 || uint64(res.Summary.Alarms[AlarmBadFrame]) != res.Link.BadFrames {
+		t.Fatalf("%d bad frames counted, %d alarms", res.Link.BadFrames, res.Summary.Alarms[AlarmBadFrame])
 	}
-	logged := eventsOf(t, dir, scenarios.AlarmBadFrame)
+	logged := eventsOf(t, dir, AlarmBadFrame)
 	if len(logged) == 0 || len(logged) >= int(res.Link.BadFrames) {
 		t.Fatalf("%d bad_frame lines logged for %d bad frames: want rate-limited, at least one", len(logged), res.Link.BadFrames)
 	}
@@ -354,7 +353,7 @@ func TestEStopCoast(t *testing.T) {
 			res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, silentAfter)
 			// The coast lasts 1 s unless the walker falls first (the plant
 			// stops at a fall); either way it must have gone past the trip.
-			fell := res.Summary.Alarms[scenarios.AlarmFall] == 1
+			fell := res.Summary.Alarms[AlarmFall] == 1
 			if res.Summary.Outcome != record.Tripped || res.Summary.Ticks < 260 || (!fell && res.Summary.Ticks < 1200) {
 				t.Fatalf("outcome %s after %d ticks, alarms %v: want tripped, then coasting until a fall or for 1 s", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms)
 			}

@@ -14,7 +14,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // handshake waits for the greeting, checks it and sends the configuration.
@@ -89,7 +88,7 @@ func (r *runner) handshake() error {
 // version can read).
 func (r *runner) versionMismatch(who string, version int) {
 	msg := fmt.Sprintf("%s speaks protocol version %d, this rig speaks version %d", who, version, protocol.Version)
-	r.al.raise(scenarios.AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
+	r.al.raise(AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
 		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version)}
 	})
 	r.stopCode = protocol.StopBadVersion
@@ -102,7 +101,7 @@ func (r *runner) versionMismatch(who string, version int) {
 // alarm, and the configuration again so it can go on.
 func (r *runner) greetedAgain() {
 	if r.counts.Commands > 0 {
-		if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(r.counts.Commands)}
 		}) {
 			r.trip(protocol.StopEStop)
@@ -125,7 +124,7 @@ func (r *runner) takeCommand(c *protocol.Command) {
 	case chk.wrongJoints:
 		r.counts.BadTorques++
 		n := c.Joints
-		if r.al.raise(scenarios.AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("command carries %d torques, this walker has %d joints: rejected, zero torque applied", n, r.n),
 				map[string]float64{"torques": float64(n), "joints": float64(r.n)}
 		}) {
@@ -135,7 +134,7 @@ func (r *runner) takeCommand(c *protocol.Command) {
 	case chk.bad:
 		r.counts.BadTorques++
 		j, v := chk.badJoint, chk.badValue
-		if r.al.raise(scenarios.AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("commanded torque %s = %g N·m is not a usable torque (NaN, infinite or beyond %g N·m): command rejected, zero torque applied", r.names[j], v, r.act.model.Sanity),
 				map[string]float64{"joint": float64(j), "torque_nm": v, "sanity_nm": r.act.model.Sanity}
 		}) {
@@ -145,7 +144,7 @@ func (r *runner) takeCommand(c *protocol.Command) {
 	}
 	if chk.saturated && !r.satNow {
 		j, v := chk.satJoint, chk.satValue
-		if r.al.raise(scenarios.AlarmTorqueSaturation, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmTorqueSaturation, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("commanded torque %s = %.4g N·m beyond the limit %.4g N·m: clipped", r.names[j], v, r.act.limit[j]),
 				map[string]float64{"joint": float64(j), "torque_nm": v, "limit_nm": r.act.limit[j]}
 		}) {
@@ -155,7 +154,7 @@ func (r *runner) takeCommand(c *protocol.Command) {
 	r.satNow = chk.saturated
 	if c.Status&protocol.StatusFault != 0 && r.lastFW&protocol.StatusFault == 0 {
 		st := c.Status
-		if r.al.raise(scenarios.AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 			return "the firmware reports an internal fault (status bit 0 set)", map[string]float64{"status": float64(st)}
 		}) {
 			r.trip(protocol.StopEStop)
@@ -168,8 +167,8 @@ func (r *runner) takeCommand(c *protocol.Command) {
 func (r *runner) firmwareStop(st protocol.Stop) {
 	text := st.Text
 	// The run ends here, so this alarm is logged even inside the rate limit.
-	r.al.counts[scenarios.AlarmFirmwareFault]++
-	if r.al.emit(alarm{kind: scenarios.AlarmFirmwareFault, tick: r.tick, t: r.s.T, foot: -1, segment: -1,
+	r.al.counts[AlarmFirmwareFault]++
+	if r.al.emit(alarm{kind: AlarmFirmwareFault, tick: r.tick, t: r.s.T, foot: -1, segment: -1,
 		message: fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), values: map[string]float64{"reason": float64(st.Reason)}}) {
 		r.trip(protocol.StopFirmware)
 		return

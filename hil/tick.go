@@ -11,7 +11,6 @@ import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/plant"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // sense fills r.out with the state the firmware will see this tick.
@@ -142,17 +141,17 @@ func (r *runner) record(wall time.Time) {
 func alarmKind(k plant.EventKind) (string, bool) {
 	switch k {
 	case plant.FrictionLimit:
-		return scenarios.AlarmFrictionLimit, true
+		return AlarmFrictionLimit, true
 	case plant.LiftOff:
-		return scenarios.AlarmLiftOff, true
+		return AlarmLiftOff, true
 	case plant.ImpactSlip:
-		return scenarios.AlarmImpactSlip, true
+		return AlarmImpactSlip, true
 	case plant.Scuff, plant.Touchdown:
-		return scenarios.AlarmFootScuff, true
+		return AlarmFootScuff, true
 	case plant.Fall:
-		return scenarios.AlarmFall, true
+		return AlarmFall, true
 	case plant.NonFinite, plant.BadInput:
-		return scenarios.AlarmNonFinite, true
+		return AlarmNonFinite, true
 	}
 	return "", false
 }

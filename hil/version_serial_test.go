@@ -11,7 +11,6 @@ import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/bridges/serial"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // TestOtherVersionGreetingOverSerial: over a real pty, a firmware of another
@@ -68,7 +67,7 @@ func TestOtherVersionGreetingOverSerial(t *testing.T) {
 	if took := time.Since(start); took > 2*time.Second {
 		t.Errorf("the rig took %v to refuse the greeting: it waited for the handshake to time out", took)
 	}
-	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[scenarios.AlarmVersionMismatch] != 1 {
+	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmVersionMismatch] != 1 {
 		t.Errorf("outcome %s (%s), alarms %v; want tripped with one version_mismatch", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 	}
 	var got protocol.Message

@@ -12,7 +12,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // sentRing remembers when each recent state was sent, indexed by sequence
@@ -279,7 +278,7 @@ func (r *runner) wallclock(ctx context.Context) error {
 		r.advance(now)
 		if time.Now().After(due.Add(period)) {
 			r.misses++
-			if r.al.raise(scenarios.AlarmDeadlineMiss, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+			if r.al.raise(AlarmDeadlineMiss, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
 				return "a tick's work ended after the next tick was due", map[string]float64{"misses_so_far": float64(r.misses)}
 			}) {
 				r.trip(protocol.StopEStop)

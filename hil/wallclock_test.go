@@ -10,7 +10,6 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/record"
-	"gaitrig/scenarios"
 )
 
 // A bounded wall-clock run at 1 kHz against the reference firmware over
@@ -60,7 +59,7 @@ func TestWallclockBadInputAndAbort(t *testing.T) {
 	m, s, cfg := timedDemo(t, 5)
 	cfg.Clock = Wallclock
 	cfg.Watchdog = time.Second
-	cfg.Severity = map[string]scenarios.Severity{scenarios.AlarmBadTorque: scenarios.SeverityWarn}
+	cfg.Severity = map[string]Severity{AlarmBadTorque: SeverityWarn}
 	ctx, cancel := context.WithCancelCause(context.Background())
 	defer cancel(nil)
 	var stop protocol.Stop
@@ -137,7 +136,7 @@ func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
 		}
 	})
 	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, fw)
-	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[scenarios.AlarmBadTorque] != 1 {
+	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmBadTorque] != 1 {
 		t.Fatalf("outcome %s, alarms %v: want a bad_torque trip", res.Summary.Outcome, res.Summary.Alarms)
 	}
 	trip := -1
@@ -172,7 +171,7 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	cfg.TickHz = 2000
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
 	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
-	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[scenarios.AlarmWatchdog] != 0 {
+	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
 		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 	}
 	fresh := 0

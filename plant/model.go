@@ -91,7 +91,7 @@ func New(p Params, o Options) (*Model, error) {
 	m.n = 2 + m.nLinks
 	m.terrain = compileTerrain(m.p.Terrain)
 	if m.o.SubSteps == 0 {
-		m.o.SubSteps = 4
+		m.o.SubSteps = DefaultSubSteps
 	}
 	m.minStride = o.MinStride
 	if m.minStride == 0 {
@@ -107,7 +107,7 @@ func New(p Params, o Options) (*Model, error) {
 	}
 	m.fallTorso = o.FallTorsoAngle
 	if m.fallTorso == 0 {
-		m.fallTorso = math.Pi / 2
+		m.fallTorso = DefaultFallTorsoAngle
 	}
 	if m.torso < 0 {
 		m.fallTorso = -1

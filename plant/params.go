@@ -157,11 +157,27 @@ func (p Params) Validate() error {
 	return nil
 }
 
+// Defaults of Options (the scenario loader refers to these, so a scenario
+// that leaves a field out and a caller of New that leaves it zero get the
+// same plant).
+const (
+	// DefaultSubSteps is the number of RK4 sub-steps per tick: at a 1 kHz
+	// tick a 0.25 ms sub-step.
+	DefaultSubSteps = 4
+	// DefaultFallTorsoAngle is the torso angle from the vertical beyond
+	// which a walker with a torso has fallen, rad: about 69° (our choice).
+	// It is the value every scenario has run with since the schema began
+	// (so no scenario's result changes with the plant's default), and it
+	// declares the fall well before the trunk reaches the horizontal
+	// (π/2), where on a bench the fall-arrest harness takes the load.
+	DefaultFallTorsoAngle = 1.2
+)
+
 // Options choose how a Model integrates and what it does after contact
 // events. The zero value gives the defaults noted on each field.
 type Options struct {
-	// SubSteps is the number of RK4 sub-steps per tick; 0 means 4 (at a
-	// 1 kHz tick, a 0.25 ms sub-step).
+	// SubSteps is the number of RK4 sub-steps per tick; 0 means
+	// DefaultSubSteps (4: at a 1 kHz tick, a 0.25 ms sub-step).
 	SubSteps int
 	// ContinueOnSlip lets a foot whose friction demand exceeds the static
 	// limit slide with Coulomb friction; false stops the tick at the event.
@@ -178,7 +194,8 @@ type Options struct {
 	// negative disables the check.
 	FallHipHeight float64
 	// FallTorsoAngle: with a torso, the walker has fallen when |θ_torso|
-	// exceeds this, rad; 0 means π/2; negative disables the check.
+	// exceeds this, rad; 0 means DefaultFallTorsoAngle (1.2); negative
+	// disables the check.
 	FallTorsoAngle float64
 	// MinStride: a swing-foot touchdown counts as a heel strike only when
 	// its contact point is ahead of the stance foot's by more than this

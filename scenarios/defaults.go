@@ -5,6 +5,10 @@ import (
 	"reflect"
 	"strconv"
 	"strings"
+	"time"
+
+	"gaitrig/hil"
+	"gaitrig/plant"
 )
 
 // fieldDefault is the value a field takes when a scenario leaves it out.
@@ -23,7 +27,10 @@ func linkIs(kind string) func(s *Scenario) bool {
 }
 
 // defaults are the fixed-path defaults. Defaults that depend on other
-// values (mu_kinetic, alarm severities) are applied in applyDefaults.
+// values (mu_kinetic, alarm severities) are applied in applyDefaults. The
+// tick rate and the watchdog are the loop's defaults (hil), the sub-steps
+// and the fall limit the plant's: one home each, whether a run comes from
+// a scenario or from code.
 var defaults = []fieldDefault{
 	{"plant.gravity_mps2", 9.81, nil},
 	{"terrain.start_m", [2]float64{-1, 0}, nil},
@@ -33,12 +40,12 @@ var defaults = []fieldDefault{
 	{"controller.broker", "embedded", linkIs(LinkMQTT)},
 	{"controller.rig", "bench", linkIs(LinkMQTT)},
 	{"clock.mode", ClockLockstep, nil},
-	{"clock.tick_hz", 1000.0, nil},
-	{"clock.substeps", 4, nil},
-	{"watchdog_ms", 50.0, nil},
+	{"clock.tick_hz", float64(hil.DefaultTickHz), nil},
+	{"clock.substeps", plant.DefaultSubSteps, nil},
+	{"watchdog_ms", float64(hil.DefaultWatchdog) / float64(time.Millisecond), nil},
 	{"physics.on_slip", PolicyContinue, nil},
 	{"physics.on_lift_off", PolicyContinue, nil},
-	{"physics.fall_torso_angle_rad", 1.2, nil},
+	{"physics.fall_torso_angle_rad", plant.DefaultFallTorsoAngle, nil},
 	{"sensors.encoder_counts_per_rev", 4096, nil},
 	{"sensors.contact_threshold_n", 5.0, nil},
 	{"sensors.seed", 1, nil},

@@ -20,15 +20,28 @@ var update = flag.Bool("update", false, "rewrite docs/scenarios.md from the code
 // referencePath is the generated scenario reference page.
 var referencePath = filepath.Join("..", "docs", "scenarios.md")
 
+// schemaFiles are the files whose doc comments document the schema:
+// scenario.go, and the pass criteria, which the loop owns (hil.Criteria).
+var schemaFiles = []string{"scenario.go", filepath.Join("..", "hil", "alarmkinds.go")}
+
 // fieldDocs reads the doc comments of the struct fields and constants in
-// scenario.go: docs["Plant.HipMassKG"], docs["const AlarmFall"].
+// schemaFiles: docs["Plant.HipMassKG"], docs["const AlarmFall"].
 func fieldDocs(t testing.TB) map[string]string {
+	docs := map[string]string{}
+	for _, file := range schemaFiles {
+		fileDocs(t, file, docs)
+	}
+	return docs
+}
+
+// fileDocs adds the doc comments of one file to docs; a name already there
+// (an alias in scenario.go of a constant in hil) keeps its first comment.
+func fileDocs(t testing.TB, file string, docs map[string]string) {
 	fset := token.NewFileSet()
-	f, err := parser.ParseFile(fset, "scenario.go", nil, parser.ParseComments)
+	f, err := parser.ParseFile(fset, file, nil, parser.ParseComments)
 	if err != nil {
 		t.Fatal(err)
 	}
-	docs := map[string]string{}
 	for _, decl := range f.Decls {
 		g, ok := decl.(*ast.GenDecl)
 		if !ok {
@@ -48,12 +61,13 @@ func fieldDocs(t testing.TB) map[string]string {
 				}
 			case *ast.ValueSpec:
 				for _, n := range s.Names {
-					docs["const "+n.Name] = oneLine(s.Comment.Text())
+					if _, seen := docs["const "+n.Name]; !seen {
+						docs["const "+n.Name] = oneLine(s.Comment.Text())
+					}
 				}
 			}
 		}
 	}
-	return docs
 }
 
 func oneLine(s string) string { return strings.Join(strings.Fields(s), " ") }

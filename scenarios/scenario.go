@@ -14,6 +14,8 @@
 // reference_test.go).
 package scenarios
 
+import "gaitrig/hil"
+
 // Scenario is one complete, validated test scenario. The zero value is not
 // useful: get one from Load, Parse or LoadBuiltin, which fill in defaults and
 // validate everything.
@@ -250,10 +252,10 @@ type Controller struct {
 	PasswordEnv string `yaml:"password_env"`
 }
 
-// Clock modes for Clock.Mode.
+// Clock modes for Clock.Mode: the loop's own (hil.ClockMode).
 const (
-	ClockLockstep  = "lockstep"  // virtual time: the plant waits for each reply
-	ClockWallclock = "wallclock" // ticks paced by the real clock
+	ClockLockstep  = string(hil.Lockstep)  // virtual time: the plant waits for each reply
+	ClockWallclock = string(hil.Wallclock) // ticks paced by the real clock
 )
 
 // Clock says how the loop paces its ticks.
@@ -360,13 +362,14 @@ type Actuators struct {
 	LagS float64 `yaml:"lag_s"`
 }
 
-// Fault kinds for Fault.Kind.
+// Fault kinds for Fault.Kind: the loop's own (hil), so a scenario and the
+// loop cannot spell a kind two ways.
 const (
-	FaultLatency = "latency" // added command latency: fixed_ms + uniform jitter_ms
-	FaultDrop    = "drop"    // drop frames with probability rate
-	FaultCorrupt = "corrupt" // corrupt frames with probability rate
-	FaultFreeze  = "freeze"  // a sensor holds its value from at_s for for_s
-	FaultPush    = "push"    // a push on the hip
+	FaultLatency = string(hil.FaultLatency) // added command latency: fixed_ms + uniform jitter_ms
+	FaultDrop    = string(hil.FaultDrop)    // drop frames with probability rate
+	FaultCorrupt = string(hil.FaultCorrupt) // corrupt frames with probability rate
+	FaultFreeze  = hil.FaultFreeze          // a sensor holds its value from at_s for for_s
+	FaultPush    = hil.FaultPush            // a push on the hip
 )
 
 // Fault is one injected disturbance or link fault. Kind says which of the
@@ -408,85 +411,45 @@ type Fault struct {
 	DurationS float64 `yaml:"duration_s"`
 }
 
-// Severity is what an alarm does to the run.
-type Severity string
+// Severity is what an alarm does to the run (hil.Severity: the loop acts
+// on it).
+type Severity = hil.Severity
 
 // Alarm severities a scenario can set.
 const (
-	SeverityWarn Severity = "warn" // logged and counted; the run goes on
-	SeverityTrip Severity = "trip" // e-stop: the run ends with outcome tripped
+	SeverityWarn = hil.SeverityWarn // logged and counted; the run goes on
+	SeverityTrip = hil.SeverityTrip // e-stop: the run ends with outcome tripped
 )
 
-// Alarm kinds. The hil loop raises these; a scenario sets their severities.
+// Alarm kinds, as the loop raises them (hil); a scenario sets their
+// severities. The comments are the scenario reference's descriptions.
 const (
-	AlarmFrictionLimit    = "friction_limit"    // demanded friction beyond μ_s·N at a rolling foot
-	AlarmLiftOff          = "lift_off"          // demanded normal force below zero
-	AlarmImpactSlip       = "impact_slip"       // heel-strike impulse outside the friction cone
-	AlarmFootScuff        = "foot_scuff"        // swing foot below ground mid-swing
-	AlarmFall             = "fall"              // hip too low or torso beyond its angle limit
-	AlarmNonFinite        = "non_finite"        // NaN or Inf in the plant state
-	AlarmWatchdog         = "watchdog"          // no fresh command within watchdog_ms
-	AlarmBadFrame         = "bad_frame"         // a frame failed its CRC, framing or layout check
-	AlarmBadTorque        = "bad_torque"        // a commanded torque is NaN or Inf
-	AlarmTorqueSaturation = "torque_saturation" // a commanded torque beyond its limit
-	AlarmLinkLost         = "link_lost"         // the link to the firmware went away
-	AlarmLinkRestored     = "link_restored"     // the link came back
-	AlarmDeadlineMiss     = "deadline_miss"     // a wall-clock tick started late
-	AlarmFirmwareFault    = "firmware_fault"    // the firmware set its fault status bit
-	AlarmVersionMismatch  = "version_mismatch"  // the firmware speaks another protocol version
+	AlarmFrictionLimit    = hil.AlarmFrictionLimit    // demanded friction beyond μ_s·N at a rolling foot
+	AlarmLiftOff          = hil.AlarmLiftOff          // demanded normal force below zero
+	AlarmImpactSlip       = hil.AlarmImpactSlip       // heel-strike impulse outside the friction cone
+	AlarmFootScuff        = hil.AlarmFootScuff        // swing foot below ground mid-swing
+	AlarmFall             = hil.AlarmFall             // hip too low or torso beyond its angle limit
+	AlarmNonFinite        = hil.AlarmNonFinite        // NaN or Inf in the plant state
+	AlarmWatchdog         = hil.AlarmWatchdog         // no fresh command within watchdog_ms
+	AlarmBadFrame         = hil.AlarmBadFrame         // a frame failed its CRC, framing or layout check
+	AlarmBadTorque        = hil.AlarmBadTorque        // a commanded torque is NaN or Inf
+	AlarmTorqueSaturation = hil.AlarmTorqueSaturation // a commanded torque beyond its limit
+	AlarmLinkLost         = hil.AlarmLinkLost         // the link to the firmware went away
+	AlarmLinkRestored     = hil.AlarmLinkRestored     // the link came back
+	AlarmDeadlineMiss     = hil.AlarmDeadlineMiss     // a wall-clock tick started late
+	AlarmFirmwareFault    = hil.AlarmFirmwareFault    // the firmware set its fault status bit
+	AlarmVersionMismatch  = hil.AlarmVersionMismatch  // the firmware speaks another protocol version
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
 // reports).
-var AlarmKinds = []string{
-	AlarmFrictionLimit, AlarmLiftOff, AlarmImpactSlip, AlarmFootScuff,
-	AlarmFall, AlarmNonFinite, AlarmWatchdog, AlarmBadFrame, AlarmBadTorque,
-	AlarmTorqueSaturation, AlarmLinkLost, AlarmLinkRestored,
-	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
-}
+var AlarmKinds = hil.AlarmKinds
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
-// not set it. Physical danger and a controller the rig cannot trust trip;
-// conditions the run survives warn.
-var DefaultSeverity = map[string]Severity{
-	AlarmFrictionLimit:    SeverityTrip,
-	AlarmLiftOff:          SeverityTrip,
-	AlarmImpactSlip:       SeverityWarn,
-	AlarmFootScuff:        SeverityWarn,
-	AlarmFall:             SeverityTrip,
-	AlarmNonFinite:        SeverityTrip,
-	AlarmWatchdog:         SeverityTrip,
-	AlarmBadFrame:         SeverityWarn,
-	AlarmBadTorque:        SeverityTrip,
-	AlarmTorqueSaturation: SeverityWarn,
-	AlarmLinkLost:         SeverityWarn, // the watchdog e-stops if the gap outlasts it
-	AlarmLinkRestored:     SeverityWarn,
-	AlarmDeadlineMiss:     SeverityWarn,
-	AlarmFirmwareFault:    SeverityTrip,
-	AlarmVersionMismatch:  SeverityTrip,
-}
+// not set it (hil.DefaultSeverity).
+var DefaultSeverity = hil.DefaultSeverity
 
-// Criteria are the pass criteria of a run. A criterion left out is not
-// checked (except no_trip, which defaults to true).
-type Criteria struct {
-	// MinSteps is the least number of heel strikes a passing run completes.
-	// Default 0 (not checked); ≥ 0.
-	MinSteps int `yaml:"min_steps"`
-	// NoTrip true fails a run that tripped. Default true.
-	NoTrip *bool `yaml:"no_trip"`
-	// MinSpeedMPS is the lowest mean forward speed of a passing run, m/s.
-	MinSpeedMPS *float64 `yaml:"min_speed_mps"`
-	// MaxSpeedMPS is the highest mean forward speed of a passing run, m/s;
-	// ≥ min_speed_mps.
-	MaxSpeedMPS *float64 `yaml:"max_speed_mps"`
-	// MaxFrictionUtilization is the ceiling on the peak friction
-	// utilization |F_t|/(μ_s·N) over the run; 0 < value ≤ 1 is the useful
-	// range, and 1 is the slip limit itself.
-	MaxFrictionUtilization *float64 `yaml:"max_friction_utilization"`
-	// MinNormalForceN is the least normal force a stance foot may see, N
-	// (a margin before lift-off); ≥ 0.
-	MinNormalForceN *float64 `yaml:"min_normal_force_n"`
-	// MaxLatencyP99US is the ceiling on the 99th percentile of command
-	// round-trip latency, µs; > 0. Checked in wall-clock mode only.
-	MaxLatencyP99US *float64 `yaml:"max_latency_p99_us"`
-}
+// Criteria are the pass criteria of a run (hil.Criteria, which the loop
+// evaluates). A criterion left out is not checked (except no_trip, which
+// defaults to true).
+type Criteria = hil.Criteria

@@ -7,6 +7,7 @@ import (
 	"os"
 
 	"gaitrig/record"
+	"gaitrig/rig"
 )
 
 // baseline is the file a nightly suite compares against: the figures of a
@@ -120,7 +121,7 @@ func compare(want, got baselineEntry, tol tolerances) []string {
 
 // writeBaseline writes entries as a baseline file with the tolerances given.
 func writeBaseline(path string, tol tolerances, entries map[string]baselineEntry) error {
-	b, err := json.MarshalIndent(jsonSafe(baseline{Tolerances: tol, Scenarios: entries}), "", "  ")
+	b, err := json.MarshalIndent(rig.JSONSafe(baseline{Tolerances: tol, Scenarios: entries}), "", "  ")
 	if err != nil {
 		return err
 	}

@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"io"
 
-	"gaitrig/hil"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -58,18 +58,7 @@ func checkOne(arg string) error {
 	if err != nil {
 		return err
 	}
-	cfg, err := hil.FromScenario(sc)
-	if err != nil {
-		return err
-	}
-	model, err := hil.NewModel(sc, cfg)
-	if err != nil {
-		return err
-	}
-	if _, err := hil.InitialState(sc, model); err != nil && !errors.Is(err, hil.ErrNaturalGait) {
-		return err
-	}
-	return nil
+	return rig.Check(sc)
 }
 
 func cmdScenarios(args []string, stdout, stderr io.Writer) int {

@@ -2,50 +2,17 @@ package main
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"math/cmplx"
 
-	"gaitrig/hil"
-	"gaitrig/plant"
+	"gaitrig/rig"
 )
 
 func init() {
 	commands["cycle"] = command{"find the walker's period-one gait and its stability", cmdCycle}
 }
-
-// cycleReport is the JSON form of a found gait.
-type cycleReport struct {
-	Scenario             string       `json:"scenario"`
-	Loop                 string       `json:"loop"` // passive or closed loop with the built-in controller
-	Found                bool         `json:"found"`
-	Stable               bool         `json:"stable"`
-	Eigenvalues          [][2]float64 `json:"eigenvalues"`
-	SpectralRadius       float64      `json:"spectral_radius"`
-	PeriodS              float64      `json:"period_s"`
-	StepLengthM          float64      `json:"step_length_m"`
-	SpeedMPS             float64      `json:"speed_mps"`
-	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`
-	PeakRequiredFriction float64      `json:"peak_required_friction"`
-	MinNormalForceN      float64      `json:"min_normal_force_n"`
-	ImpulseRatio         float64      `json:"impulse_ratio"`
-	Residual             float64      `json:"residual"`
-	Iterations           int          `json:"iterations"`
-	State                cycleState   `json:"state_after_heel_strike"`
-}
-
-// cycleState is the gait's state just after heel strike, with its convention.
-type cycleState struct {
-	Convention string    `json:"convention"`
-	Stance     string    `json:"stance"`
-	Q          []float64 `json:"q"`
-	V          []float64 `json:"v"`
-	Reduced    []float64 `json:"reduced"`
-}
-
-const stateConvention = "just after heel strike, the new stance foot rolling; q = (x_hip m, y_hip m, θ_left, θ_right[, θ_torso]) " +
-	"absolute angles in rad counter-clockwise from the world vertical (a leg with θ > 0 has its foot ahead of the hip; " +
-	"torso forward lean is θ < 0), v = dq/dt; reduced = (θ_stance, θ_swing[, θ_torso], their rates)"
 
 func cmdCycle(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("cycle", "SCENARIO", `
@@ -72,44 +39,15 @@ when none is found from the guess.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitCodeFor(err)
 	}
-	cfg, err := hil.FromScenario(sc)
-	if err != nil {
+	rep, err := rig.AnalyseGait(sc)
+	if errors.Is(err, rig.ErrConfig) {
 		fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		return exitConfig
 	}
-	model, err := hil.NewModel(sc, cfg)
-	if err != nil {
-		fmt.Fprintln(stderr, "gaitrig cycle:", err)
-		return exitConfig
-	}
-	policy, _, err := gaitPolicy(sc, model)
-	if err != nil {
-		fmt.Fprintln(stderr, "gaitrig cycle:", err)
-		return exitCodeFor(err)
-	}
-	g, err := findGait(sc, model)
-	if err != nil && !g.Found {
-		if exitCodeFor(err) == exitConfig {
-			fmt.Fprintln(stderr, "gaitrig cycle:", err)
-			return exitConfig
-		}
-	}
-	rep := cycleReport{Scenario: sc.Name, Loop: "passive", Found: g.Found && err == nil, Stable: g.Stable,
-		PeriodS: g.Period, StepLengthM: g.StepLength, SpeedMPS: g.Speed, EnergyLostPerStepJ: g.EnergyLost,
-		PeakRequiredFriction: g.PeakRequiredFriction, MinNormalForceN: g.MinNormal, ImpulseRatio: g.ImpulseRatio,
-		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}}
-	if policy != nil {
-		rep.Loop = "closed loop with the built-in reference controller"
-	}
-	for _, e := range g.Eigenvalues {
-		rep.Eigenvalues = append(rep.Eigenvalues, [2]float64{real(e), imag(e)})
-		rep.SpectralRadius = max(rep.SpectralRadius, cmplx.Abs(e))
-	}
-	rep.State = stateOf(model, g.State)
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
-		if err := enc.Encode(jsonSafe(rep)); err != nil {
+		if err := enc.Encode(rig.JSONSafe(rep)); err != nil {
 			fmt.Fprintln(stderr, "gaitrig cycle:", err)
 			return exitFail
 		}
@@ -125,17 +63,7 @@ when none is found from the guess.`, stderr)
 	return exitPass
 }
 
-func stateOf(m *plant.Model, s plant.State) cycleState {
-	n := m.NumDOF()
-	st := "left"
-	if s.Stance == 1 {
-		st = "right"
-	}
-	return cycleState{Convention: stateConvention, Stance: st,
-		Q: append([]float64(nil), s.Q[:n]...), V: append([]float64(nil), s.V[:n]...), Reduced: m.Reduced(&s)}
-}
-
-func printCycle(w io.Writer, r cycleReport, err error) {
+func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	fmt.Fprintf(w, "gait of %s (%s)\n", r.Scenario, r.Loop)
 	if !r.Found {
 		fmt.Fprintf(w, "  no period-one gait found from the scenario's guess (%v)\n", err)

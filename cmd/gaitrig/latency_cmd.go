@@ -1,27 +1,18 @@
 package main
 
 import (
-	"context"
 	"fmt"
 	"io"
-	"net"
 	"os"
-	"os/exec"
-	"path/filepath"
 	"strings"
-	"time"
 
-	"gaitrig/firmware/reference"
 	"gaitrig/hil"
+	"gaitrig/rig"
 )
 
 func init() {
 	commands["latency"] = command{"measure round-trip latency, tick jitter and deadline misses per link at 1 kHz", cmdLatency}
 }
-
-// latencyLinks are the links the latency command can measure, in the order
-// it measures them.
-var latencyLinks = []string{"inproc", "pty", "embedded", "mosquitto"}
 
 func cmdLatency(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("latency", "", `
@@ -35,7 +26,7 @@ loopback port). The figures depend on the machine and its load: run it on the
 bench PC that will host the rig.`, stderr)
 	ticks := fs.Int("ticks", 10000, "ticks per link")
 	hz := fs.Float64("hz", 1000, "tick rate")
-	links := fs.String("links", strings.Join(latencyLinks, ","), "comma-separated links to measure")
+	links := fs.String("links", strings.Join(rig.LatencyLinks, ","), "comma-separated links to measure")
 	prio := fs.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO priority asked for the loop thread; negative asks for none")
 	mosq := fs.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "host:port of a running Mosquitto broker (empty: start one)")
 	if done, code := parseFlags(fs, args); done {
@@ -47,9 +38,13 @@ bench PC that will host the rig.`, stderr)
 	}
 	fmt.Fprintf(stdout, "%-10s %8s %9s %9s %9s %9s %9s %9s %8s\n", "link", "ticks", "rtt p50", "rtt p99", "rtt max", "jit p50", "jit p99", "jit max", "misses")
 	code := exitPass
+	realtime := ""
 	for _, name := range strings.Split(*links, ",") {
 		name = strings.TrimSpace(name)
-		res, err := measureLink(name, *ticks, *hz, *mosq, *prio)
+		res, sched, err := rig.MeasureLink(name, *ticks, *hz, *mosq, *prio)
+		if realtime == "" {
+			realtime = sched
+		}
 		if err != nil {
 			fmt.Fprintf(stdout, "%-10s could not measure: %v\n", name, err)
 			code = exitFail
@@ -62,116 +57,8 @@ bench PC that will host the rig.`, stderr)
 			fmt.Fprintf(stdout, "%-10s note: the run tripped (%s)\n", "", res.Summary.Reason)
 		}
 	}
-	if res := firstRealtime; res != "" {
-		fmt.Fprintln(stdout, "scheduling:", res)
+	if realtime != "" {
+		fmt.Fprintln(stdout, "scheduling:", realtime)
 	}
 	return code
-}
-
-// firstRealtime remembers what the loop said about the real-time scheduling
-// class, printed once under the table.
-var firstRealtime string
-
-// measureLink runs one wall-clock measurement over the named link.
-func measureLink(name string, ticks int, hz float64, mosqAddr string, prio int) (hil.Result, error) {
-	sc, err := loadBuiltin("level-demo")
-	if err != nil {
-		return hil.Result{}, err
-	}
-	cfg, err := hil.FromScenario(sc)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	cfg.Clock = hil.Wallclock
-	cfg.TickHz = hz
-	cfg.Duration = float64(ticks) / hz
-	cfg.MaxSteps = 0
-	cfg.Watchdog = time.Second // measure, do not trip on a slow outlier
-	cfg.RealtimePriority = prio
-	model, err := hil.NewModel(sc, cfg)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	initial, err := hil.InitialState(sc, model)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	ls := linkSetup{Rig: "latency", Firmware: reference.Options{Actuators: len(sc.JointNames())}}
-	switch name {
-	case "inproc":
-		ls.Spec = linkSpec{Kind: linkBuiltin}
-	case "pty":
-		ls.Spec = linkSpec{Kind: linkPty}
-	case "embedded":
-		ls.Spec = linkSpec{Kind: linkEmbedded}
-	case "mosquitto":
-		addr := mosqAddr
-		if addr == "" {
-			a, stop, err := startMosquitto()
-			if err != nil {
-				return hil.Result{}, err
-			}
-			defer stop()
-			addr = a
-		}
-		ls.Spec, ls.LocalFirmware = linkSpec{Kind: linkMQTT, URL: "tcp://" + addr}, true
-	default:
-		return hil.Result{}, badUsage("unknown link %q (want one of %s)", name, strings.Join(latencyLinks, ", "))
-	}
-	l, err := dialLink(ls)
-	if err != nil {
-		return hil.Result{}, err
-	}
-	defer l.Close()
-	cfg.Log = func(line string) {
-		if firstRealtime == "" && strings.Contains(strings.ToLower(line), "sched") {
-			firstRealtime = line
-		}
-	}
-	ctx, cancel := context.WithTimeout(context.Background(), time.Duration(float64(time.Second)*cfg.Duration*3)+10*time.Second)
-	defer cancel()
-	return hil.Run(ctx, cfg, model, initial, l.Conn, nil)
-}
-
-// startMosquitto starts /usr/sbin/mosquitto on a free loopback port and
-// returns its address and a function that stops it. set_tcp_nodelay matters:
-// without it Mosquitto's sends wait for Nagle's algorithm and the round trip
-// of a 1 kHz state/command exchange grows from about 0.2 ms to over 1 ms
-// (measured with this command on the development machine).
-func startMosquitto() (string, func(), error) {
-	bin, err := exec.LookPath("mosquitto")
-	if err != nil {
-		if _, e := os.Stat("/usr/sbin/mosquitto"); e != nil {
-			return "", nil, fmt.Errorf("mosquitto is not installed (Debian package mosquitto), or pass --mosquitto ADDR")
-		}
-		bin = "/usr/sbin/mosquitto"
-	}
-	l, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		return "", nil, err
-	}
-	addr := l.Addr().String()
-	l.Close()
-	_, port, _ := net.SplitHostPort(addr)
-	dir, err := os.MkdirTemp("", "gaitrig-mosquitto")
-	if err != nil {
-		return "", nil, err
-	}
-	conf := filepath.Join(dir, "mosquitto.conf")
-	if err := os.WriteFile(conf, []byte("listener "+port+" 127.0.0.1\nallow_anonymous true\npersistence false\nset_tcp_nodelay true\n"), 0o600); err != nil {
-		return "", nil, err
-	}
-	cmd := exec.Command(bin, "-c", conf)
-	if err := cmd.Start(); err != nil {
-		return "", nil, err
-	}
-	stop := func() { cmd.Process.Kill(); cmd.Wait(); os.RemoveAll(dir) }
-	for deadline := time.Now().Add(5 * time.Second); time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
-		if c, err := net.Dial("tcp", addr); err == nil {
-			c.Close()
-			return addr, stop, nil
-		}
-	}
-	stop()
-	return "", nil, fmt.Errorf("mosquitto did not start listening on %s within 5 s", addr)
 }

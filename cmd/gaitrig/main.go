@@ -18,6 +18,10 @@ import (
 	"os"
 	"sort"
 	"strings"
+	"unicode/utf8"
+
+	"gaitrig/report"
+	"gaitrig/rig"
 )
 
 // Exit codes of every sub-command.
@@ -36,23 +40,16 @@ type command struct {
 // commands is filled by the init functions of the sub-command files.
 var commands = map[string]command{}
 
-// usageError marks errors that come from the command line or configuration,
-// which exit with code 2.
-type usageError struct{ err error }
-
-func (e usageError) Error() string { return e.err.Error() }
-func (e usageError) Unwrap() error { return e.err }
-
-// badUsage wraps a formatted message as a usage error.
-func badUsage(format string, a ...any) error { return usageError{fmt.Errorf(format, a...)} }
+// badUsage formats an error that comes from the command line or the
+// configuration (rig.ErrConfig), which exits with code 2.
+func badUsage(format string, a ...any) error { return rig.Configf(format, a...) }
 
 // exitCodeFor maps an error to the exit code the command line promises.
 func exitCodeFor(err error) int {
-	if err == nil {
+	switch {
+	case err == nil:
 		return exitPass
-	}
-	var u usageError
-	if errors.As(err, &u) {
+	case errors.Is(err, rig.ErrConfig):
 		return exitConfig
 	}
 	return exitFail
@@ -146,7 +143,28 @@ func parseFlags(fs *flag.FlagSet, args []string) (bool, int) {
 	return false, 0
 }
 
-// safetyCaution is printed by every command that reports a result.
-const safetyCaution = "Caution: a passing simulation is not a safety certificate. Treadmill and overground\n" +
-	"trials need the lab's own safety procedure, a fall-arrest harness or gantry, a hardware\n" +
-	"e-stop within reach, and the local rules and qualified staff that govern such trials."
+// safetyCaution is printed by every command that reports a result: the
+// one caution text (report.Caution, also at the top of every report),
+// wrapped for a terminal.
+var safetyCaution = wrapWords("Caution: "+report.Caution, 90)
+
+// wrapWords breaks text into lines of at most width characters at spaces.
+func wrapWords(text string, width int) string {
+	var b strings.Builder
+	n := 0
+	for i, w := range strings.Fields(text) {
+		l := utf8.RuneCountInString(w)
+		if i > 0 {
+			if n+1+l > width {
+				b.WriteByte('\n')
+				n = 0
+			} else {
+				b.WriteByte(' ')
+				n++
+			}
+		}
+		b.WriteString(w)
+		n += l
+	}
+	return b.String()
+}

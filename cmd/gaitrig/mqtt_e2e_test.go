@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"gaitrig/record"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -23,7 +24,7 @@ func mosquittoAddr(t *testing.T) string {
 	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
 		return a
 	}
-	addr, stop, err := startMosquitto()
+	addr, stop, err := rig.StartMosquitto()
 	if err != nil {
 		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
 			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)

@@ -11,6 +11,7 @@ import (
 
 	"gaitrig/record"
 	"gaitrig/report"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -91,13 +92,13 @@ added command latency; tripled sensor noise. Each check must pass the
 scenario's own criteria (default scenario: the level-ground demo). Prints a
 table of margins (friction utilization, normal-force margin, steps, latency)
 and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
-	link := fs.String("link", "builtin", linkHelp)
+	link := fs.String("link", "builtin", rig.LinkHelp())
 	scenario := fs.String("scenario", "level-demo", "base scenario (file or built-in name)")
 	out := fs.String("out", "runs", "parent folder for the run folders")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
-	spec, err := parseLinkSpec(*link)
+	spec, err := rig.ParseLink(*link)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight:", err)
 		return exitConfig
@@ -126,10 +127,10 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 	ctx, stop := signalContext()
 	defer stop()
 	parallel := 1
-	if spec.Kind == linkBuiltin {
+	if spec.InProcess() {
 		parallel = runtime.NumCPU()
 	}
-	runSuite(ctx, items, dir, &spec, true, parallel, stdout)
+	runSuite(ctx, items, dir, spec.String(), true, parallel, stdout)
 
 	fmt.Fprintf(stdout, "\n%-14s %-8s %5s %12s %10s %12s %12s  %s\n", "check", "outcome", "steps", "friction use", "margin", "min normal", "latency p99", "what")
 	go_ := true

@@ -8,6 +8,8 @@ import (
 	"os/signal"
 	"syscall"
 
+	"gaitrig/hil"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -29,11 +31,11 @@ the controller its controller block names, or the one --link names. Writes a
 run folder (manifest, telemetry, events, steps, summary) and, with --report,
 an HTML report. SIGINT or SIGTERM ends the run with outcome "aborted" and
 everything written.`, stderr)
-	link := fs.String("link", "", linkHelp)
+	link := fs.String("link", "", rig.LinkHelp())
 	out := fs.String("out", "runs", "parent folder for the run folder")
 	dir := fs.String("dir", "", "exact run folder to create (overrides --out)")
 	clock := fs.String("clock", "", `clock mode override: "lockstep" or "wallclock"`)
-	rig := fs.String("rig", "", "MQTT rig id override")
+	rigID := fs.String("rig", "", "MQTT rig id override")
 	rep := fs.Bool("report", true, "write report.html")
 	junit := fs.Bool("junit", false, "write junit.xml, one test case per criterion")
 	parquet := fs.Bool("parquet", false, "also export telemetry.parquet")
@@ -57,36 +59,34 @@ everything written.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig run:", err)
 		return exitCodeFor(err)
 	}
-	o := runOptions{OutRoot: *out, RunDir: *dir, Report: *rep, JUnit: *junit, Parquet: *parquet, Log: stderr, Rig: *rig,
+	o := rig.Options{Link: *link, OutRoot: *out, RunDir: *dir, Report: *rep, JUnit: *junit, Parquet: *parquet, Log: lineLogger(stderr), Rig: *rigID,
 		MaxSteps: *maxSteps, Duration: *duration}
 	if *link != "" {
-		spec, err := parseLinkSpec(*link)
-		if err != nil {
+		if _, err := rig.ParseLink(*link); err != nil {
 			fmt.Fprintln(stderr, "gaitrig run:", err)
 			return exitConfig
 		}
-		o.Link = &spec
 	}
 	if *clock != "" {
-		if *clock != "lockstep" && *clock != "wallclock" {
+		if *clock != string(hil.Lockstep) && *clock != string(hil.Wallclock) {
 			fmt.Fprintf(stderr, "gaitrig run: --clock %q: want lockstep or wallclock\n", *clock)
 			return exitConfig
 		}
-		o.Clock = *clock
+		o.Clock = hil.ClockMode(*clock)
 	}
 	if !*quiet {
-		o.Live = stdout
+		o.OnStep = stepPrinter(stdout)
 	}
 	return runAndReport(sc, o, stdout, stderr, "run")
 }
 
 // runAndReport runs one scenario under a signal context and prints its
 // verdict; it returns the exit code.
-func runAndReport(sc *scenarios.Scenario, o runOptions, stdout, stderr io.Writer, cmd string) int {
+func runAndReport(sc *scenarios.Scenario, o rig.Options, stdout, stderr io.Writer, cmd string) int {
 	ctx, stop := signalContext()
 	defer stop()
 	fmt.Fprintf(stdout, "scenario %s: %s\n", sc.Name, sc.Description)
-	r, err := runScenario(ctx, sc, o)
+	r, err := rig.Run(ctx, sc, o)
 	if r.Dir != "" && r.Summary.Outcome != "" {
 		printSummary(stdout, r)
 	}
@@ -122,10 +122,9 @@ per step, then the verdict and the path of the run folder with its report.`, std
 		fmt.Fprintln(stderr, "gaitrig demo:", err)
 		return exitCodeFor(err)
 	}
-	link := linkSpec{Kind: linkEmbedded}
-	o := runOptions{Link: &link, OutRoot: *out, Report: true, JUnit: true, Log: stderr}
+	o := rig.Options{Link: "embedded", OutRoot: *out, Report: true, JUnit: true, Log: lineLogger(stderr)}
 	if !*quiet {
-		o.Live = stdout
+		o.OnStep = stepPrinter(stdout)
 	}
 	return runAndReport(sc, o, stdout, stderr, "demo")
 }

@@ -14,6 +14,7 @@ import (
 
 	"gaitrig/record"
 	"gaitrig/report"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -25,7 +26,7 @@ func init() {
 type suiteItem struct {
 	Source   string // file path or builtin:name
 	Scenario *scenarios.Scenario
-	Result   runResult
+	Result   rig.Result
 	Err      error
 	Seconds  float64
 }
@@ -62,14 +63,12 @@ every scenario must pass its own criteria.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig suite:", err)
 		return exitConfig
 	}
-	var linkOverride *linkSpec
+	linkOverride := *link
 	if *link != "" {
-		l, err := parseLinkSpec(*link)
-		if err != nil {
+		if _, err := rig.ParseLink(*link); err != nil {
 			fmt.Fprintln(stderr, "gaitrig suite:", err)
 			return exitConfig
 		}
-		linkOverride = &l
 	}
 	sources, err := collectScenarios(fs.Args())
 	if err != nil {
@@ -192,12 +191,12 @@ every scenario must pass its own criteria.`, stderr)
 
 // runSuite runs the items: in-process lockstep ones on a worker pool, the
 // rest one at a time afterwards so their timing is not disturbed.
-func runSuite(ctx context.Context, items []*suiteItem, dir string, link *linkSpec, withReport bool, parallel int, stdout io.Writer) {
+func runSuite(ctx context.Context, items []*suiteItem, dir string, link string, withReport bool, parallel int, stdout io.Writer) {
 	var mu sync.Mutex
 	runOne := func(it *suiteItem) {
 		start := time.Now()
-		o := runOptions{Link: link, RunDir: filepath.Join(dir, it.Scenario.Name), Report: withReport}
-		it.Result, it.Err = runScenario(ctx, it.Scenario, o)
+		o := rig.Options{Link: link, RunDir: filepath.Join(dir, it.Scenario.Name), Report: withReport}
+		it.Result, it.Err = rig.Run(ctx, it.Scenario, o)
 		it.Seconds = time.Since(start).Seconds()
 		mu.Lock()
 		defer mu.Unlock()
@@ -242,8 +241,8 @@ func runSuite(ctx context.Context, items []*suiteItem, dir string, link *linkSpe
 
 // canRunInParallel: only lockstep runs against the in-process firmware share
 // the machine without changing their results.
-func canRunInParallel(sc *scenarios.Scenario, link *linkSpec) bool {
-	if link != nil && link.Kind != linkBuiltin {
+func canRunInParallel(sc *scenarios.Scenario, link string) bool {
+	if l, err := rig.ParseLink(link); link != "" && (err != nil || !l.InProcess()) {
 		return false
 	}
 	l := sc.Controller.Link

@@ -6,15 +6,11 @@ import (
 	"io"
 	"os"
 	"path/filepath"
-	"strings"
 
-	"gaitrig/bridges"
 	"gaitrig/bridges/broker"
-	"gaitrig/bridges/mqtt"
-	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
-	"gaitrig/hil"
 	"gaitrig/report"
+	"gaitrig/rig"
 )
 
 func init() {
@@ -64,7 +60,7 @@ diverge. Exit code 0 on an exact match, 1 on a divergence.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig replay: want exactly one RUNDIR")
 		return exitConfig
 	}
-	res, err := hil.ReplayRun(fs.Arg(0), initialState)
+	res, err := rig.Replay(fs.Arg(0))
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig replay:", err)
 		return exitConfig
@@ -80,10 +76,10 @@ func cmdFirmware(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("firmware", "", `
 Runs the built-in reference firmware as its own process and connects to a rig
 exactly as a board or controller process would: over a serial port, over a
-new pseudo-terminal pair (--pty prints the port the rig should open), or over
+new pseudo-terminal pair (--link pty prints the port the rig should open), or over
 MQTT. Ends when the rig sends stop.`, stderr)
 	link := fs.String("link", "", `"serial:PORT[@BAUD]", "pty" or "mqtt:URL"`)
-	rig := fs.String("rig", "bench", "MQTT rig id")
+	rigID := fs.String("rig", "bench", "MQTT rig id")
 	mode := fs.String("mode", reference.ModeWalk, `"walk" or "passive" (zero torques)`)
 	actuators := fs.Int("actuators", 2, "number of torques announced (2 for the torso walker, 1 for a compass walker)")
 	userEnv := fs.String("user-env", "", "environment variable holding the MQTT user name")
@@ -91,56 +87,13 @@ MQTT. Ends when the rig sends stop.`, stderr)
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
-	o := reference.Options{Mode: *mode, Actuators: *actuators}
-	var conn bridges.Conn
-	switch {
-	case *link == "pty":
-		p, err := serial.NewPty()
-		if err != nil {
-			fmt.Fprintln(stderr, "gaitrig firmware:", err)
-			return exitConfig
-		}
-		defer p.Close()
-		c := serial.NewConn(p.Master, "pty master", serial.Config{})
-		defer c.Close()
-		// The follower stays open here for the whole run: with no process
-		// holding it, the master reads EIO until the rig opens the port, and
-		// the firmware would take that for an unplugged cable. A rig that
-		// goes away is noticed by its stop message or the idle timeout.
-		fmt.Fprintf(stdout, "reference firmware waiting on a pty: run the rig with --link serial:%s\n", p.Path)
-		conn = c
-	case strings.HasPrefix(*link, "serial:"):
-		spec, err := parseLinkSpec(*link)
-		if err != nil {
-			fmt.Fprintln(stderr, "gaitrig firmware:", err)
-			return exitConfig
-		}
-		c, err := serial.Open(serial.Config{Port: spec.Port, Baud: spec.Baud})
-		if err != nil {
-			fmt.Fprintln(stderr, "gaitrig firmware:", err)
-			return exitConfig
-		}
-		defer c.Close()
-		conn = c
-	case strings.HasPrefix(*link, "mqtt:"):
-		spec, err := parseLinkSpec(*link)
-		if err != nil || spec.Kind != linkMQTT {
-			fmt.Fprintln(stderr, "gaitrig firmware: --link wants mqtt:URL, e.g. mqtt:tcp://127.0.0.1:1883")
-			return exitConfig
-		}
-		c, err := mqtt.Dial(mqtt.Config{Broker: spec.URL, Rig: *rig, Role: mqtt.RoleFirmware,
-			Username: os.Getenv(*userEnv), Password: os.Getenv(*passEnv)})
-		if err != nil {
-			fmt.Fprintln(stderr, "gaitrig firmware:", err)
-			return exitConfig
-		}
-		defer c.Close()
-		conn = c
-	default:
+	if *link == "" {
 		fmt.Fprintln(stderr, "gaitrig firmware: --link is required: serial:PORT[@BAUD], pty or mqtt:URL")
 		return exitConfig
 	}
-	err := reference.Serve(conn, o)
+	o := reference.Options{Mode: *mode, Actuators: *actuators}
+	announce := func(line string) { fmt.Fprintln(stdout, line) }
+	err := rig.ServeFirmware(*link, *rigID, os.Getenv(*userEnv), os.Getenv(*passEnv), o, announce)
 	switch {
 	case err == nil:
 		fmt.Fprintln(stdout, "reference firmware: the rig ended the run normally")
@@ -150,7 +103,7 @@ MQTT. Ends when the rig sends stop.`, stderr)
 		return exitFail
 	}
 	fmt.Fprintln(stderr, "gaitrig firmware:", err)
-	return exitFail
+	return exitCodeFor(err)
 }
 
 func cmdBroker(args []string, stdout, stderr io.Writer) int {

@@ -1,38 +1,15 @@
 package main
 
-import "runtime/debug"
+import "gaitrig/rig"
 
-// version is set at link time with -ldflags "-X main.version=…"; otherwise
-// the module's build information is used.
+// version is set at link time with -ldflags "-X main.version=…" (or
+// "-X gaitrig/rig.Version=…"); it then names the build in manifests too.
 var version = ""
 
-// toolVersion names this build for manifests and reports.
+// toolVersion names this build for the version command.
 func toolVersion() string {
 	if version != "" {
-		return version
+		rig.Version = version
 	}
-	if bi, ok := debug.ReadBuildInfo(); ok {
-		rev, dirty := "", false
-		for _, s := range bi.Settings {
-			switch s.Key {
-			case "vcs.revision":
-				rev = s.Value
-			case "vcs.modified":
-				dirty = s.Value == "true"
-			}
-		}
-		if rev != "" {
-			if len(rev) > 12 {
-				rev = rev[:12]
-			}
-			if dirty {
-				rev += "-dirty"
-			}
-			return "dev+" + rev
-		}
-		if bi.Main.Version != "" && bi.Main.Version != "(devel)" {
-			return bi.Main.Version
-		}
-	}
-	return "dev"
+	return rig.ToolVersion()
 }

@@ -6,40 +6,6 @@ import (
 	"testing"
 )
 
-func TestParseLinkSpec(t *testing.T) {
-	tests := []struct {
-		in      string
-		want    linkSpec
-		wantErr string
-	}{
-		{in: "builtin", want: linkSpec{Kind: linkBuiltin}},
-		{in: "embedded", want: linkSpec{Kind: linkEmbedded}},
-		{in: "mqtt:embedded", want: linkSpec{Kind: linkEmbedded}},
-		{in: "serial:/dev/ttyACM0", want: linkSpec{Kind: linkSerial, Port: "/dev/ttyACM0", Baud: 115200}},
-		{in: "serial:/dev/ttyACM0@921600", want: linkSpec{Kind: linkSerial, Port: "/dev/ttyACM0", Baud: 921600}},
-		{in: "mqtt:tcp://127.0.0.1:1883", want: linkSpec{Kind: linkMQTT, URL: "tcp://127.0.0.1:1883"}},
-		{in: "serial:", wantErr: "no serial port"},
-		{in: "serial:/dev/x@fast", wantErr: "baud rate"},
-		{in: "mqtt:127.0.0.1", wantErr: "scheme"},
-		{in: "usb", wantErr: "unknown link"},
-	}
-	for _, tt := range tests {
-		got, err := parseLinkSpec(tt.in)
-		if tt.wantErr != "" {
-			if err == nil || !strings.Contains(err.Error(), tt.wantErr) {
-				t.Errorf("parseLinkSpec(%q) error = %v, want it to mention %q", tt.in, err, tt.wantErr)
-			}
-			if exitCodeFor(err) != exitConfig {
-				t.Errorf("parseLinkSpec(%q): exit code %d, want %d", tt.in, exitCodeFor(err), exitConfig)
-			}
-			continue
-		}
-		if err != nil || got != tt.want {
-			t.Errorf("parseLinkSpec(%q) = %+v, %v; want %+v", tt.in, got, err, tt.want)
-		}
-	}
-}
-
 func TestShardSplitsEveryItemOnce(t *testing.T) {
 	for n := 1; n <= 4; n++ {
 		seen := make([]int, 11)

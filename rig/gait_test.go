@@ -1,28 +1,30 @@
-package scenarios
+package rig
 
 import (
 	"math/cmplx"
 	"testing"
 
-	"gaitrig/plant"
+	"gaitrig/scenarios"
 )
 
 // TestLibraryInitialStates builds the plant of every built-in scenario and
-// places the walker in its initial state (or its gait-finder guess): the
-// plant must accept both. A passive scenario that starts from the natural
-// gait must have a stable one near its guess, or it could not run.
+// the state it starts from as a run does (InitialState), and places the
+// walker in the scenario's explicit fields (its initial state, or with
+// natural_gait the gait finder's guess): the plant must accept both. A
+// passive scenario that starts from the natural gait must have a stable
+// one near its guess, or it could not run.
 func TestLibraryInitialStates(t *testing.T) {
-	for _, e := range Library() {
+	for _, e := range scenarios.Library() {
 		t.Run(e.Name, func(t *testing.T) {
-			s, err := LoadBuiltin(e.Name)
+			s, err := scenarios.LoadBuiltin(e.Name)
 			if err != nil {
 				t.Fatal(err)
 			}
-			p, err := s.PlantParams()
+			cfg, err := FromScenario(s)
 			if err != nil {
 				t.Fatal(err)
 			}
-			m, err := plant.New(p, s.PlantOptions())
+			m, err := NewModel(s, cfg)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -34,23 +36,19 @@ func TestLibraryInitialStates(t *testing.T) {
 					t.Errorf("joint %d: plant calls it %s, scenario %s", i, n, s.JointNames()[i])
 				}
 			}
-			in := s.Initial
-			if len(in.LegAnglesRad) != 2 {
+			if len(s.Initial.LegAnglesRad) != 2 {
 				t.Fatal("a built-in scenario gives two leg angles: its initial state, or with natural_gait its gait-finder guess, so this test can check it")
 			}
-			rates := []float64{0, 0}
-			copy(rates, in.LegRatesRadps)
-			if m.HasTorso() {
-				rates = append(rates, in.TorsoRateRadps)
+			if _, err := gaitGuess(s, m); err != nil {
+				t.Fatalf("plant cannot stand the walker in the scenario's initial fields: %v", err)
 			}
-			st, err := m.Stand(s.StanceLeg(), in.XM, [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}, in.TorsoAngleRad, rates...)
-			if err != nil {
-				t.Fatalf("plant cannot stand the walker in the initial state: %v", err)
+			if _, err := InitialState(s, m); err != nil {
+				t.Fatalf("initial state: %v", err)
 			}
-			if !in.NaturalGait || s.Controller.Link != LinkNone {
+			if !s.Initial.NaturalGait || s.Controller.Link != scenarios.LinkNone {
 				return
 			}
-			g, err := plant.FindGait(m, nil, st, plant.GaitOptions{})
+			g, err := FindGait(s, m)
 			if err != nil {
 				t.Fatalf("gait finder: %v", err)
 			}

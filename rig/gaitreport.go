@@ -1,0 +1,92 @@
+package rig
+
+import (
+	"errors"
+	"math/cmplx"
+
+	"gaitrig/plant"
+	"gaitrig/scenarios"
+)
+
+// GaitReport is what the gait finder found for a scenario's walker, in the
+// form the cycle command prints and writes as JSON: the period-one gait,
+// its step figures and the eigenvalues of its step-to-step map.
+type GaitReport struct {
+	Scenario             string       `json:"scenario"`
+	Loop                 string       `json:"loop"` // passive or closed loop with the built-in controller
+	Found                bool         `json:"found"`
+	Stable               bool         `json:"stable"`
+	Eigenvalues          [][2]float64 `json:"eigenvalues"`
+	SpectralRadius       float64      `json:"spectral_radius"`
+	PeriodS              float64      `json:"period_s"`
+	StepLengthM          float64      `json:"step_length_m"`
+	SpeedMPS             float64      `json:"speed_mps"`
+	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`
+	PeakRequiredFriction float64      `json:"peak_required_friction"`
+	MinNormalForceN      float64      `json:"min_normal_force_n"`
+	ImpulseRatio         float64      `json:"impulse_ratio"`
+	Residual             float64      `json:"residual"`
+	Iterations           int          `json:"iterations"`
+	State                GaitState    `json:"state_after_heel_strike"`
+}
+
+// GaitState is the gait's state just after heel strike, with its convention.
+type GaitState struct {
+	Convention string    `json:"convention"`
+	Stance     string    `json:"stance"`
+	Q          []float64 `json:"q"`
+	V          []float64 `json:"v"`
+	Reduced    []float64 `json:"reduced"`
+}
+
+// stateConvention explains GaitState for a reader of the JSON alone.
+const stateConvention = "just after heel strike, the new stance foot rolling; q = (x_hip m, y_hip m, θ_left, θ_right[, θ_torso]) " +
+	"absolute angles in rad counter-clockwise from the world vertical (a leg with θ > 0 has its foot ahead of the hip; " +
+	"torso forward lean is θ < 0), v = dq/dt; reduced = (θ_stance, θ_swing[, θ_torso], their rates)"
+
+// AnalyseGait runs the gait finder on a scenario's walker (see FindGait)
+// and reports the gait. A scenario that cannot be analysed is a
+// configuration error (ErrConfig) with an empty report; a finder that finds
+// no gait from the guess gives its error with the report (Found false).
+func AnalyseGait(sc *scenarios.Scenario) (GaitReport, error) {
+	cfg, err := FromScenario(sc)
+	if err != nil {
+		return GaitReport{}, ConfigError(err)
+	}
+	model, err := NewModel(sc, cfg)
+	if err != nil {
+		return GaitReport{}, ConfigError(err)
+	}
+	policy, _, err := GaitPolicy(sc, model)
+	if err != nil {
+		return GaitReport{}, err
+	}
+	g, err := FindGait(sc, model)
+	if errors.Is(err, ErrConfig) && !g.Found {
+		return GaitReport{}, err
+	}
+	rep := GaitReport{Scenario: sc.Name, Loop: "passive", Found: g.Found && err == nil, Stable: g.Stable,
+		PeriodS: g.Period, StepLengthM: g.StepLength, SpeedMPS: g.Speed, EnergyLostPerStepJ: g.EnergyLost,
+		PeakRequiredFriction: g.PeakRequiredFriction, MinNormalForceN: g.MinNormal, ImpulseRatio: g.ImpulseRatio,
+		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}}
+	if policy != nil {
+		rep.Loop = "closed loop with the built-in reference controller"
+	}
+	for _, e := range g.Eigenvalues {
+		rep.Eigenvalues = append(rep.Eigenvalues, [2]float64{real(e), imag(e)})
+		rep.SpectralRadius = max(rep.SpectralRadius, cmplx.Abs(e))
+	}
+	rep.State = gaitStateOf(model, g.State)
+	return rep, err
+}
+
+// gaitStateOf is s in the report's terms.
+func gaitStateOf(m *plant.Model, s plant.State) GaitState {
+	n := m.NumDOF()
+	st := "left"
+	if s.Stance == 1 {
+		st = "right"
+	}
+	return GaitState{Convention: stateConvention, Stance: st,
+		Q: append([]float64(nil), s.Q[:n]...), V: append([]float64(nil), s.V[:n]...), Reduced: m.Reduced(&s)}
+}
