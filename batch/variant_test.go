@@ -8,7 +8,7 @@ import (
 	"gaitrig/scenarios"
 )
 
-// zerosText is the level-demo scenario with every explicit zero we could
+// zerosScenario is the level-demo scenario with every explicit zero we could
 // give a field whose default is not zero (or which is required), plus a few
 // whose default is zero anyway. Each must survive into every variant.
 func zerosScenario(t *testing.T) *scenarios.Scenario {
@@ -24,6 +24,10 @@ func zerosScenario(t *testing.T) *scenarios.Scenario {
 		{"  no_trip: true\n", "  no_trip: false\n"},
 		{"physics:\n", "physics:\n  fall_hip_height_m: 0\n"},
 		{"actuators:\n", "actuators:\n  lag_s: 0\n"},
+		// Required fields that may be zero: left out, the loader refuses
+		// the file.
+		{"  hip_mass_kg: 10         # demo value (plant.DemoParams)\n", "  hip_mass_kg: 0\n"},
+		{"    mass_kg: 15           # demo value\n", "    mass_kg: 0\n"},
 	} {
 		if !strings.Contains(s, r.old) {
 			t.Fatalf("level-demo no longer has %q, which this test edits", r.old)
@@ -52,6 +56,8 @@ var explicitZeros = []struct {
 	{"pass.no_trip", func(s *scenarios.Scenario) any { return *s.Pass.NoTrip }},
 	{"physics.fall_hip_height_m", func(s *scenarios.Scenario) any { return s.Physics.FallHipHeightM }},
 	{"actuators.lag_s", func(s *scenarios.Scenario) any { return s.Actuators.LagS }},
+	{"plant.hip_mass_kg", func(s *scenarios.Scenario) any { return s.Plant.HipMassKG }},
+	{"plant.torso.mass_kg", func(s *scenarios.Scenario) any { return s.Plant.Torso.MassKG }},
 }
 
 func TestEveryExplicitZeroSurvivesIntoEveryVariant(t *testing.T) {
