@@ -37,8 +37,12 @@ const (
 // variant's text), and the change it makes to the base scenario (nil for
 // none).
 type Check struct {
-	Name   string
-	What   string
+	// Name is short and plain (letters, digits, '-'): the variant is
+	// named BASE-NAME.
+	Name string
+	// What says the change in words.
+	What string
+	// Change edits the variant (a deep copy of the base); nil for none.
 	Change func(*scenarios.Scenario)
 }
 

@@ -138,16 +138,24 @@ func Sources(args []string) ([]string, error) {
 
 // Load loads every source (file path or built-in name). It returns the
 // scenarios in order and one error per source that does not load (each
-// wrapping rig.ErrConfig), so a person sees every bad file at once.
+// wrapping rig.ErrConfig), so a person sees every bad file at once. Two
+// scenarios with the same name are an error too: a suite keeps run
+// folders and baseline entries by name, and one would overwrite the other.
 func Load(sources []string) ([]*scenarios.Scenario, []error) {
 	out := make([]*scenarios.Scenario, len(sources))
 	var errs []error
+	first := map[string]string{} // scenario name → source that has it
 	for i, src := range sources {
 		sc, err := scenarios.Resolve(src)
 		if err != nil {
 			errs = append(errs, rig.ConfigError(err))
 			continue
 		}
+		if other, dup := first[sc.Name]; dup {
+			errs = append(errs, rig.Configf("%s: scenario name %s is also the name of %s; a suite keeps run folders and baseline entries by name", src, sc.Name, other))
+			continue
+		}
+		first[sc.Name] = src
 		out[i] = sc
 	}
 	return out, errs
