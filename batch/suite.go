@@ -177,17 +177,33 @@ func DefaultBaselinePath(args []string) string {
 	return ""
 }
 
-// NewDir creates root/<kind>-<UTC time> (root "" means "runs") for the run
-// folders of one batch and returns its path.
+// NewDir creates a new folder root/<kind>-<UTC time> (root "" means
+// "runs") for the run folders of one batch and returns its path. When that
+// exists (two batches started in the same second), it appends -2, -3, …:
+// the run folders of one batch must never land in another's, where they
+// could not be created.
 func NewDir(root, kind string) (string, error) {
 	if root == "" {
 		root = "runs"
 	}
-	dir := filepath.Join(root, kind+"-"+time.Now().UTC().Format("20060102-150405"))
-	if err := os.MkdirAll(dir, 0o755); err != nil {
+	if err := os.MkdirAll(root, 0o755); err != nil {
 		return "", err
 	}
-	return dir, nil
+	base := filepath.Join(root, kind+"-"+time.Now().UTC().Format("20060102-150405"))
+	dir := base
+	// os.Mkdir fails on an existing folder, so two processes racing for
+	// one name cannot both get it. The bound only stops a runaway loop.
+	for i := 2; i < 10000; i++ {
+		err := os.Mkdir(dir, 0o755)
+		if err == nil {
+			return dir, nil
+		}
+		if !os.IsExist(err) {
+			return "", err
+		}
+		dir = fmt.Sprintf("%s-%d", base, i)
+	}
+	return "", fmt.Errorf("%s: too many folders of that name", base)
 }
 
 // WriteJUnit writes results as a JUnit XML file at path (one test case per

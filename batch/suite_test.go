@@ -76,3 +76,21 @@ func TestDefaultBaselinePath(t *testing.T) {
 		t.Errorf("only the first argument counts: got %q", p)
 	}
 }
+
+func TestNewDirNeverReusesAFolder(t *testing.T) {
+	root := filepath.Join(t.TempDir(), "runs")
+	seen := map[string]bool{}
+	for i := 0; i < 3; i++ {
+		dir, err := NewDir(root, "suite")
+		if err != nil {
+			t.Fatal(err)
+		}
+		if seen[dir] || !strings.HasPrefix(filepath.Base(dir), "suite-") {
+			t.Errorf("NewDir gave %s (twice, or not named suite-TIME)", dir)
+		}
+		seen[dir] = true
+		if st, err := os.Stat(dir); err != nil || !st.IsDir() {
+			t.Errorf("%s was not created: %v", dir, err)
+		}
+	}
+}
