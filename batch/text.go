@@ -32,7 +32,7 @@ func variantText(v, base *scenarios.Scenario, what string) ([]byte, error) {
 	tail := commentedBase(base)
 	force := map[string]bool{}
 	// Each pass can only add fields to force; a scenario has a few dozen
-	// leaves, so a handful of passes is plenty (two in practice).
+	// leaves, so a handful of passes is plenty (two or three in practice).
 	for pass := 0; pass < 8; pass++ {
 		w := textWriter{force: force, omitted: map[string]bool{}}
 		body := w.write(reflect.ValueOf(v).Elem())
