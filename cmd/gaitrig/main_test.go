@@ -16,6 +16,7 @@ import (
 	"testing"
 	"time"
 
+	"gaitrig/batch"
 	"gaitrig/record"
 )
 
@@ -184,14 +185,14 @@ func TestSuiteComparesWithBaseline(t *testing.T) {
 		t.Fatalf("suite against its own baseline: exit %d\n%s\n%s", code, out, errOut)
 	}
 	// A baseline that walked further makes this run a regression.
-	bl, err := readBaseline(base)
+	bl, err := batch.ReadBaseline(base)
 	if err != nil {
 		t.Fatal(err)
 	}
 	e := bl.Scenarios["slope-change"]
 	e.Steps += 10
 	bl.Scenarios["slope-change"] = e
-	if err := writeBaseline(base, bl.Tolerances, bl.Scenarios); err != nil {
+	if err := batch.WriteBaseline(base, bl.Tolerances, bl.Scenarios); err != nil {
 		t.Fatal(err)
 	}
 	junit := filepath.Join(root, "junit.xml")
@@ -202,36 +203,6 @@ func TestSuiteComparesWithBaseline(t *testing.T) {
 	x, err := os.ReadFile(junit)
 	if err != nil || !bytes.Contains(x, []byte("<failure")) {
 		t.Errorf("JUnit XML lacks the failure: %v\n%s", err, x)
-	}
-}
-
-func TestCompareNamesWhatRegressed(t *testing.T) {
-	p := func(v float64) *float64 { return &v }
-	want := baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, LatencyP99US: p(300)}
-	tests := []struct {
-		name string
-		got  baselineEntry
-		msg  string // substring of the regression, "" for none
-	}{
-		{"same", want, ""},
-		{"better", baselineEntry{Outcome: "pass", Steps: 31, MeanSpeedMPS: 0.81, PeakFrictionUtilization: 0.2, MinNormalForceN: 250, LatencyP99US: p(200)}, ""},
-		{"tripped", baselineEntry{Outcome: "tripped", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "outcome tripped"},
-		{"fewer steps", baselineEntry{Outcome: "pass", Steps: 29, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "steps 29"},
-		{"slower", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.7, PeakFrictionUtilization: 0.3, MinNormalForceN: 200}, "mean speed"},
-		{"more friction", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.4, MinNormalForceN: 200}, "friction"},
-		{"less normal force", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 150}, "normal force"},
-		{"slower link", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, LatencyP99US: p(600)}, "latency"},
-		{"new alarm", baselineEntry{Outcome: "pass", Steps: 30, MeanSpeedMPS: 0.8, PeakFrictionUtilization: 0.3, MinNormalForceN: 200, Alarms: map[string]int{"bad_frame": 2}}, "new alarm kind bad_frame"},
-	}
-	for _, tt := range tests {
-		got := compare(want, tt.got, defaultTolerances)
-		joined := strings.Join(got, "; ")
-		if tt.msg == "" && len(got) != 0 {
-			t.Errorf("%s: unexpected regressions %q", tt.name, joined)
-		}
-		if tt.msg != "" && !strings.Contains(joined, tt.msg) {
-			t.Errorf("%s: regressions %q do not mention %q", tt.name, joined, tt.msg)
-		}
 	}
 }
 
