@@ -75,7 +75,7 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 		}
 		fmt.Fprintf(stdout, "%-14s %-8s %5d %12s %10s %10s N %12s  %s\n", c.Check.Name, s.Outcome, s.Steps,
 			fmt.Sprintf("%.0f%%", 100*s.PeakFrictionUtilization), fmt.Sprintf("%.0f%%", 100*(1-s.PeakFrictionUtilization)),
-			fmtNum(s.MinNormalForceN), lat, c.Check.What)
+			report.FormatNumber(s.MinNormalForceN), lat, c.Check.What)
 	}
 	if err := batch.WriteJUnit(filepath.Join(pf.Dir, report.JUnitFile), "gaitrig preflight", res.Results); err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight:", err)

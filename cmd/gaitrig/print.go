@@ -75,7 +75,7 @@ func printSummary(w io.Writer, r rig.Result) {
 		if !c.Pass {
 			mark = "FAIL"
 		}
-		fmt.Fprintf(w, "  [%s] %-28s value %-12s limit %s\n", mark, c.Name, fmtNum(c.Value), fmtNum(c.Limit))
+		fmt.Fprintf(w, "  [%s] %-28s value %-12s limit %s\n", mark, c.Name, report.FormatNumber(c.Value), report.FormatNumber(c.Limit))
 	}
 	fmt.Fprintf(w, "run folder: %s\n", r.Dir)
 	if _, err := os.Stat(filepath.Join(r.Dir, report.HTMLFile)); err == nil {

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"path/filepath"
+	"runtime"
 	"strings"
 
 	"gaitrig/batch"
@@ -32,8 +33,8 @@ criteria.`, stderr)
 	junit := fs.String("junit", "", "JUnit XML output file (default OUT/suite-TIME/junit.xml)")
 	out := fs.String("out", "runs", "parent folder for the suite's run folders")
 	shardFlag := fs.String("shard", "", "K/N: run the K-th of N slices of the scenario list")
-	jobs := fs.Int("jobs", 1, "scenarios run at once (in-process lockstep runs; the others run one at a time)")
-	fs.IntVar(jobs, "parallel", 1, "old name of --jobs")
+	jobs := fs.Int("jobs", runtime.NumCPU(), "scenarios run at once (in-process lockstep runs; the others run one at a time)")
+	fs.IntVar(jobs, "parallel", runtime.NumCPU(), "old name of --jobs")
 	link := fs.String("link", "", "run every scenario against this link instead of the scenario's ("+"see gaitrig run --help)")
 	noReport := fs.Bool("no-report", false, "skip the HTML report of each run")
 	if done, code := parseFlags(fs, args); done {
