@@ -16,5 +16,5 @@
 //
 // A passing batch, like a passing run, is not a safety certificate:
 // treadmill and overground trials follow the lab's own safety procedure,
-// local rules and qualified staff (see report.Caution).
+// local rules and qualified staff (see record.Caution).
 package batch

@@ -181,9 +181,7 @@ func referencePage(t testing.TB) []byte {
 		"column with its unit, and the fields of `steps.csv`, `events.jsonl` and\n"+
 		"`summary.json`. The `record` package writes and reads these folders; `gaitrig\n"+
 		"report` and `gaitrig replay` work from a folder alone.\n\n", SchemaVersion)
-	b.WriteString("> A passing simulation is not a certificate of safety. Treadmill and overground\n" +
-		"> trials need the lab's own safety procedure, local rules and qualified staff;\n" +
-		"> every `summary.json` and report carries this caution.\n\n")
+	b.WriteString("> " + Caution + " Every `summary.json` and report carries this caution.\n\n")
 
 	b.WriteString("## Files\n\n| file | what it holds |\n| --- | --- |\n")
 	for _, f := range []struct{ name, doc string }{

@@ -149,8 +149,9 @@ type Summary struct {
 	ToolVersion             string         `json:"tool_version"`              // gaitrig version
 }
 
-// Caution is the safety caution every summary and report carries.
-const Caution = "A passing simulation is not a certificate of safety. " +
-	"Treadmill and overground trials need the lab's own safety procedure, " +
-	"a fall-arrest harness or gantry, a hardware e-stop within reach, and " +
-	"the local rules and qualified staff that govern such trials."
+// Caution is the safety caution: the one wording that summary.json, every
+// report, the reference pages and the command line carry.
+const Caution = "A passing simulation is not a safety certificate: it shows how a model of the walker " +
+	"behaved against this firmware and says nothing certain about the real machine. " +
+	"Treadmill and overground trials need the lab's own safety procedure, a fall-arrest harness or gantry, " +
+	"a hardware e-stop within reach of the operator, and the local rules and qualified staff that govern such trials."

@@ -154,7 +154,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		Scenario: m.Scenario,
 		Hash:     m.ScenarioHash,
 		Greeting: greetingText(m.Greeting),
-		Caution:  Caution,
+		Caution:  record.Caution,
 	}
 	if v.Scenario == "" {
 		v.Scenario = "(unnamed scenario)"

@@ -2,6 +2,7 @@ package report
 
 import (
 	"fmt"
+	"gaitrig/record"
 	"html/template"
 	"io"
 	"math"
@@ -10,12 +11,6 @@ import (
 
 	"gonum.org/v1/plot/vg"
 )
-
-// Caution is the safety caution printed at the top of every report.
-const Caution = "A passing simulation is not a safety certificate. " +
-	"This report shows how a model of the walker behaved against this firmware; it says nothing certain about the real machine. " +
-	"Treadmill and overground trials need the lab's own safety procedure, a fall-arrest harness or gantry, " +
-	"a hardware e-stop within reach of the operator, and the local rules and qualified staff that govern such trials."
 
 // kv is a labelled value in a small table.
 type kv struct{ Key, Value string }
@@ -307,7 +302,7 @@ func renderView(w io.Writer, v *view, maxPoints int) error {
 		return err
 	}
 	if v.Caution == "" {
-		v.Caution = Caution
+		v.Caution = record.Caution
 	}
 	if err := pageTemplate.Execute(w, page{view: v, Figures: figs}); err != nil {
 		return fmt.Errorf("write report: %w", err)

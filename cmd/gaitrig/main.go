@@ -20,7 +20,7 @@ import (
 	"strings"
 	"unicode/utf8"
 
-	"gaitrig/report"
+	"gaitrig/record"
 	"gaitrig/rig"
 )
 
@@ -144,9 +144,9 @@ func parseFlags(fs *flag.FlagSet, args []string) (bool, int) {
 }
 
 // safetyCaution is printed by every command that reports a result: the
-// one caution text (report.Caution, also at the top of every report),
+// one caution text (record.Caution, also at the top of every report),
 // wrapped for a terminal.
-var safetyCaution = wrapWords("Caution: "+report.Caution, 90)
+var safetyCaution = wrapWords("Caution: "+record.Caution, 90)
 
 // wrapWords breaks text into lines of at most width characters at spaces.
 func wrapWords(text string, width int) string {
