@@ -49,10 +49,11 @@ import (
 	"fmt"
 	"log/slog"
 	"net"
-	"strings"
 	"sync/atomic"
 
 	mochi "github.com/mochi-mqtt/server/v2"
+
+	"gaitrig/bridges/topics"
 )
 
 // DefaultAddr is where the broker listens when Config.Addr is empty: the
@@ -61,16 +62,17 @@ const DefaultAddr = "127.0.0.1:0"
 
 // DefaultRoot is the first level of every gaitrig topic when Config.Root is
 // empty.
-const DefaultRoot = "gaitrig"
+const DefaultRoot = topics.DefaultRoot
 
-// Role says what a client is allowed to do on the broker.
-type Role string
+// Role says what a client is allowed to do on the broker. The roles and
+// their rights are the topic contract of package bridges/topics.
+type Role = topics.Role
 
 // The roles a client can have. See the package comment for their rights.
 const (
-	RoleRig      Role = "rig"      // the harness side of one rig
-	RoleFirmware Role = "firmware" // the controller under test on one rig
-	RoleMonitor  Role = "monitor"  // read-only observer of every topic
+	RoleRig      = topics.RoleRig      // the harness side of one rig
+	RoleFirmware = topics.RoleFirmware // the controller under test on one rig
+	RoleMonitor  = topics.RoleMonitor  // read-only observer of every topic
 )
 
 // Account is one username and password the broker accepts, with the role
@@ -133,7 +135,7 @@ func Start(cfg Config) (*Broker, error) {
 	if cfg.Root == "" {
 		cfg.Root = DefaultRoot
 	}
-	if err := validLevel(cfg.Root); err != nil {
+	if err := topics.ValidLevel(cfg.Root); err != nil {
 		return nil, fmt.Errorf("broker: root topic %q: %w", cfg.Root, err)
 	}
 	host, _, err := net.SplitHostPort(cfg.Addr)
@@ -224,23 +226,12 @@ func checkAccount(a Account) error {
 	}
 	switch a.Role {
 	case RoleRig, RoleFirmware:
-		if err := validLevel(a.Rig); err != nil {
+		if err := topics.ValidLevel(a.Rig); err != nil {
 			return fmt.Errorf("rig id %q: %w", a.Rig, err)
 		}
 	case RoleMonitor:
 	default:
 		return fmt.Errorf("role %q is not one of %q, %q, %q", a.Role, RoleRig, RoleFirmware, RoleMonitor)
-	}
-	return nil
-}
-
-// validLevel checks that s can be used as one topic level.
-func validLevel(s string) error {
-	if s == "" {
-		return errors.New("must not be empty")
-	}
-	if strings.ContainsAny(s, "/+#\x00") {
-		return errors.New("must not contain '/', '+', '#' or NUL")
 	}
 	return nil
 }

@@ -9,6 +9,8 @@ import (
 
 	mochi "github.com/mochi-mqtt/server/v2"
 	"github.com/mochi-mqtt/server/v2/packets"
+
+	"gaitrig/bridges/topics"
 )
 
 // rules is the mochi hook that logs clients in and applies the access rules
@@ -78,36 +80,17 @@ func (r *rules) identify(clientID string, user []byte) identity {
 		a := r.accounts[string(user)]
 		return identity{role: a.Role, rig: a.Rig}
 	}
-	if rig, ok := strings.CutPrefix(clientID, "rig."); ok && validLevel(rig) == nil {
-		return identity{role: RoleRig, rig: rig}
-	}
-	if rig, ok := strings.CutPrefix(clientID, "firmware."); ok && validLevel(rig) == nil {
-		return identity{role: RoleFirmware, rig: rig}
+	if role, rig, ok := topics.ParseClientID(clientID); ok && role != RoleMonitor {
+		return identity{role: role, rig: rig}
 	}
 	return identity{role: RoleMonitor}
 }
 
-// The last topic level each role may publish to or subscribe to, below its
-// own <root>/<rig>.
-var (
-	rigPublish        = []string{"state", "alarm", "status", "stop"}
-	rigSubscribe      = []string{"command", "stop"}
-	firmwarePublish   = []string{"command", "stop"}
-	firmwareSubscribe = []string{"state", "stop", "status"}
-)
-
-func leaves(id identity, write bool) []string {
-	switch {
-	case id.role == RoleRig && write:
-		return rigPublish
-	case id.role == RoleRig:
-		return rigSubscribe
-	case id.role == RoleFirmware && write:
-		return firmwarePublish
-	case id.role == RoleFirmware:
-		return firmwareSubscribe
+func leaves(id identity, write bool) []topics.Leaf {
+	if write {
+		return id.role.Publishes()
 	}
-	return nil
+	return id.role.Subscribes()
 }
 
 // may reports whether id may publish to (write) or subscribe to topic. A
@@ -131,7 +114,7 @@ func (r *rules) may(id identity, topic string, write bool) bool {
 		return false
 	}
 	for _, leaf := range leaves(id, write) {
-		if rest == leaf {
+		if rest == string(leaf) {
 			return true
 		}
 	}
@@ -147,11 +130,11 @@ func (r *rules) why(id identity, write bool) string {
 	if id.role == RoleMonitor {
 		return "a monitor client may not publish"
 	}
-	var topics []string
+	var names []string
 	for _, leaf := range leaves(id, write) {
-		topics = append(topics, r.root+"/"+id.rig+"/"+leaf)
+		names = append(names, topics.Topic(r.root, id.rig, leaf))
 	}
-	return fmt.Sprintf("the %s of rig %q may %s only to %s", id.role, id.rig, verb, strings.Join(topics, ", "))
+	return fmt.Sprintf("the %s of rig %q may %s only to %s", id.role, id.rig, verb, strings.Join(names, ", "))
 }
 
 func (r *rules) refuse(clientID string, username []byte, topic, action, why string) {
