@@ -611,8 +611,9 @@ func (c *checker) stand(p plant.Params) []Problem {
 	if err == nil {
 		return nil
 	}
-	seg := c.s.Terrain.Segments[min(max(st.Seg[stance], 0), len(c.s.Terrain.Segments)-1)]
-	segPath := fmt.Sprintf("terrain.segments[%d]", st.Seg[stance])
+	k := min(max(st.Seg[stance], 0), len(c.s.Terrain.Segments)-1) // the segment under the stance foot
+	seg := c.s.Terrain.Segments[k]
+	segPath := fmt.Sprintf("terrain.segments[%d]", k)
 	onSlope := ""
 	if seg.SlopeRad != 0 {
 		onSlope = fmt.Sprintf(" on a slope of %g rad (%s.slope_rad, line %d)", seg.SlopeRad, segPath, c.at(segPath+".slope_rad").line)
