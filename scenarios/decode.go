@@ -27,12 +27,8 @@ type decoder struct {
 	present  map[string]pos  // field path → position of its key or entry
 	bad      map[string]bool // paths whose value could not be decoded
 	anchors  map[string]ast.Node
-	depth    int // nesting depth of value, bounded against alias cycles
+	depth    int // nesting depth of value, bounded by MaxNesting against alias cycles
 }
-
-// maxDepth bounds nesting; a scenario is at most five levels deep, so only
-// an alias that refers to itself gets near it.
-const maxDepth = 32
 
 func newDecoder(file string) *decoder {
 	return &decoder{file: file, present: map[string]pos{}, bad: map[string]bool{}, anchors: map[string]ast.Node{}}
@@ -144,9 +140,22 @@ func kindWord(n ast.Node) string {
 	case *ast.IntegerNode, *ast.FloatNode, *ast.InfinityNode, *ast.NanNode:
 		return "the number " + t.GetToken().Value
 	case *ast.StringNode, *ast.LiteralNode:
-		return "the text " + strconv.Quote(t.GetToken().Value)
+		return "the text " + clip(t.GetToken().Value)
 	}
 	return "a " + n.Type().String()
+}
+
+// clipRunes is how much of a text value a message quotes: enough to
+// recognise it, never a whole file read the wrong way.
+const clipRunes = 60
+
+// clip quotes s for a message, cut to clipRunes characters.
+func clip(s string) string {
+	r := []rune(s)
+	if len(r) <= clipRunes {
+		return strconv.Quote(s)
+	}
+	return strconv.Quote(string(r[:clipRunes])) + fmt.Sprintf("… (%d characters)", len(r))
 }
 
 // pairs returns the key/value pairs of a mapping node, or ok = false.
@@ -163,14 +172,20 @@ func pairs(n ast.Node) ([]*ast.MappingValueNode, bool) {
 func (d *decoder) value(n ast.Node, v reflect.Value, path string) {
 	d.depth++
 	defer func() { d.depth-- }()
-	if d.depth > maxDepth {
+	// The text was checked against MaxNesting before parsing; aliases can
+	// still nest deeper (one that refers to itself never ends).
+	if d.depth > MaxNesting {
 		d.add(nodePos(n), path, "nested too deeply (an alias that refers to itself?)")
 		d.bad[path] = true
 		return
 	}
 	n = d.unwrap(n)
-	if _, ok := n.(*ast.AliasNode); ok {
-		d.add(nodePos(n), path, "alias %s refers to no anchor defined before it", n.GetToken().Value)
+	if a, ok := n.(*ast.AliasNode); ok {
+		name := ""
+		if a.Value != nil {
+			name = a.Value.GetToken().Value
+		}
+		d.add(nodePos(n), path, "alias *%s refers to no anchor defined before it; define it with &%s on an earlier value", name, name)
 		d.bad[path] = true
 		return
 	}
@@ -414,20 +429,45 @@ func unitOf(path string) string {
 
 var numberWithUnit = regexp.MustCompile(`^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*[^\d\s.].*$`)
 
+// exponentNumber matches a number in exponent notation without a decimal
+// point (1e-9, -1e-2, 5E3). YAML 1.2 reads it as a number, but the parser
+// follows YAML 1.1 here and reads it as text.
+var exponentNumber = regexp.MustCompile(`^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$`)
+
+// plainExponent reads an unquoted text node that is a number in exponent
+// notation. ok is false for anything else; err says why a number in that
+// notation cannot be used (it overflows, or a non-zero value underflows to
+// zero).
+func plainExponent(n ast.Node) (f float64, ok bool, err error) {
+	s, isStr := n.(*ast.StringNode)
+	if !isStr || s.GetToken().Type != token.StringType || !exponentNumber.MatchString(s.Value) {
+		return 0, false, nil
+	}
+	f, perr := strconv.ParseFloat(s.Value, 64)
+	mantissa, _, _ := strings.Cut(strings.ToLower(s.Value), "e")
+	switch {
+	case perr != nil || math.IsInf(f, 0):
+		return 0, true, fmt.Errorf("%s is too large: it overflows a 64-bit number (largest about 1.8e308)", s.Value)
+	case f == 0 && strings.ContainsAny(mantissa, "123456789"):
+		return 0, true, fmt.Errorf("%s is too small: it underflows to 0 (smallest about 4.9e-324)", s.Value)
+	}
+	return f, true, nil
+}
+
 func (d *decoder) notNumber(n ast.Node, path string) {
 	d.bad[path] = true
 	unit := unitOf(path)
 	if s, ok := n.(*ast.StringNode); ok {
 		txt := s.Value
 		if _, err := strconv.ParseFloat(strings.TrimSpace(txt), 64); err == nil {
-			d.add(nodePos(n), path, "%q is quoted text; write the number without quotes", txt)
+			d.add(nodePos(n), path, "%s is quoted text; write the number without quotes", clip(txt))
 			return
 		}
 		if numberWithUnit.MatchString(txt) {
 			if unit != "" {
-				d.add(nodePos(n), path, "%q has a unit written in the value; write a plain number in %s (the unit is part of the field name)", txt, unit)
+				d.add(nodePos(n), path, "%s has a unit written in the value; write a plain number in %s (the unit is part of the field name)", clip(txt), unit)
 			} else {
-				d.add(nodePos(n), path, "%q has a unit written in the value; write a plain number", txt)
+				d.add(nodePos(n), path, "%s has a unit written in the value; write a plain number", clip(txt))
 			}
 			return
 		}
@@ -454,7 +494,16 @@ func (d *decoder) float(n ast.Node, v reflect.Value, path string) {
 		d.add(nodePos(n), path, "%s is not a finite number", n.GetToken().Value)
 		d.bad[path] = true
 	default:
-		d.notNumber(n, path)
+		f, ok, err := plainExponent(n)
+		switch {
+		case !ok:
+			d.notNumber(n, path)
+		case err != nil:
+			d.add(nodePos(n), path, "%v", err)
+			d.bad[path] = true
+		default:
+			v.SetFloat(f)
+		}
 	}
 	if f := v.Float(); math.IsInf(f, 0) {
 		d.add(nodePos(n), path, "%s is too large to be a number here", n.GetToken().Value)
@@ -482,15 +531,30 @@ func (d *decoder) integer(n ast.Node, v reflect.Value, path string) {
 			v.SetInt(int64(x))
 		}
 	case *ast.FloatNode:
-		if t.Value != math.Trunc(t.Value) || math.Abs(t.Value) > 1<<53 {
-			d.add(nodePos(n), path, "expected a whole number, got %s", t.GetToken().Value)
-			d.bad[path] = true
-			return
-		}
-		v.SetInt(int64(t.Value))
+		d.whole(n, v, path, t.Value)
 	default:
-		d.notNumber(n, path)
+		f, ok, err := plainExponent(n)
+		switch {
+		case !ok:
+			d.notNumber(n, path)
+		case err != nil:
+			d.add(nodePos(n), path, "%v", err)
+			d.bad[path] = true
+		default:
+			d.whole(n, v, path, f)
+		}
 	}
+}
+
+// whole stores a number written as a float (2.0, 1e3) in an integer field
+// when it is a whole number that fits.
+func (d *decoder) whole(n ast.Node, v reflect.Value, path string, f float64) {
+	if f != math.Trunc(f) || math.Abs(f) > 1<<53 || v.OverflowInt(int64(f)) {
+		d.add(nodePos(n), path, "expected a whole number, got %s", n.GetToken().Value)
+		d.bad[path] = true
+		return
+	}
+	v.SetInt(int64(f))
 }
 
 // sortProblems orders problems by line, then column, keeping the order of

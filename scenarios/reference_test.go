@@ -210,6 +210,7 @@ func referencePage(t testing.TB) []byte {
 		"is negative. Secrets never appear in a scenario: `username_env` and\n" +
 		"`password_env` name environment variables; a literal `password` field is\n" +
 		"an error.\n\n")
+	b.WriteString(loadingNotes())
 	// Top-level scalars share one table; each block gets its own.
 	var order []string
 	groups := map[string][]row{}

@@ -66,10 +66,21 @@ func TestBrokenFiles(t *testing.T) {
 		{"bad-sensors.yaml", []string{
 			"bad-sensors.yaml:21: sensors.angle_noise_rad: -0.01 rad is out of range",
 			"bad-sensors.yaml:22: sensors.seed: expected a number, got the text \"lots\""}},
+		{"exponent-overflow.yaml", []string{"exponent-overflow.yaml:6: plant.legs.mass_kg: 1e400 is too large: it overflows a 64-bit number"}},
+		{"exponent-underflow.yaml", []string{"exponent-underflow.yaml:8: plant.legs.inertia_kgm2: 1e-400 is too small: it underflows to 0"}},
+		{"swing-foot-in-ground.yaml", []string{"swing-foot-in-ground.yaml:16: initial.leg_angles_rad: cannot stand the walker: " +
+			"with the left (stance) leg at 0.2 rad and the right (swing) leg at -0.2 rad on a slope of -0.15 rad (terrain.segments[0].slope_rad, line 14) " +
+			"the swing foot would be 0.03741 m below the ground"}},
+		{"slope-too-steep.yaml", []string{"slope-too-steep.yaml:14: terrain.segments[0].slope_rad: cannot stand the walker on this segment: at 1.57 rad it is too steep"}},
+		{"undefined-alias.yaml", []string{"undefined-alias.yaml:6: plant.legs.mass_kg: alias *legmass refers to no anchor defined before it; define it with &legmass"}},
+		{"utf16.yaml", []string{"utf16.yaml:1: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8"}},
+		{"utf16-without-bom.yaml", []string{"utf16-without-bom.yaml:1: the file holds NUL bytes: it is UTF-16 or binary, not text; save it as UTF-8"}},
+		{"nested-too-deep.yaml", []string{"nested-too-deep.yaml:3: nested more than 32 levels deep"}},
 	}
 	// Files whose problems are counted exactly: several reported together,
 	// nothing repeated or cascaded from a bad parent.
-	counts := map[string]int{"several-problems.yaml": 3, "wrong-block-types.yaml": 2, "bad-faults.yaml": 3}
+	counts := map[string]int{"several-problems.yaml": 3, "wrong-block-types.yaml": 2, "bad-faults.yaml": 3,
+		"utf16.yaml": 1, "utf16-without-bom.yaml": 1, "nested-too-deep.yaml": 1, "swing-foot-in-ground.yaml": 1}
 	seen := map[string]bool{}
 	for _, tc := range tests {
 		seen[tc.file] = true
@@ -98,6 +109,11 @@ func TestBrokenFiles(t *testing.T) {
 			for _, p := range se.Problems {
 				if p.Line <= 0 || p.File != path {
 					t.Errorf("problem without file and line: %+v", p)
+				}
+				// A message quotes what it must to be understood, never
+				// kilobytes of the file (a UTF-16 file once printed 8 KB).
+				if len(p.Msg) > 500 {
+					t.Errorf("message of %d bytes: %.200q…", len(p.Msg), p.Msg)
 				}
 			}
 		})
@@ -372,5 +388,211 @@ func BenchmarkParse(b *testing.B) {
 		if _, err := Parse("level-demo.yaml", text); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// variant returns valid-minimal.yaml with each old text replaced by new.
+func variant(t testing.TB, pairs ...string) []byte {
+	t.Helper()
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := string(base)
+	for i := 0; i < len(pairs); i += 2 {
+		if !strings.Contains(text, pairs[i]) {
+			t.Fatalf("valid-minimal.yaml has no %q", pairs[i])
+		}
+		text = strings.Replace(text, pairs[i], pairs[i+1], 1)
+	}
+	return []byte(text)
+}
+
+// TestExponentNotation: YAML 1.2 reads 1e-9 as a number; the parser reads
+// it as text, and the loader used to call it "quoted text".
+func TestExponentNotation(t *testing.T) {
+	text := variant(t,
+		"    mass_kg: 4\n", "    mass_kg: 1e1\n",
+		"    inertia_kgm2: 0.25\n", "    inertia_kgm2: 25E-2\n",
+		"[0.2, -0.2]", "[2e-1, -2e-1]\n  leg_rates_radps: [-1e-2, +1e-2]",
+		"  max_steps: 10\n", "  max_steps: 1e1\n")
+	s, err := Parse("exponent.yaml", text)
+	if err != nil {
+		t.Fatal(err)
+	}
+	l := s.Leg(0)
+	if l.MassKG != 10 || l.InertiaKGM2 != 0.25 || s.Initial.LegAnglesRad[0] != 0.2 || s.Initial.LegAnglesRad[1] != -0.2 ||
+		s.Initial.LegRatesRadps[0] != -0.01 || s.Initial.LegRatesRadps[1] != 0.01 || s.Run.MaxSteps != 10 {
+		t.Errorf("decoded mass %g, inertia %g, angles %v, rates %v, max_steps %d", l.MassKG, l.InertiaKGM2,
+			s.Initial.LegAnglesRad, s.Initial.LegRatesRadps, s.Run.MaxSteps)
+	}
+	// Quoted, it is still text, and a fraction is no step count.
+	for _, c := range []struct{ text, want string }{
+		{`    mass_kg: "1e1"` + "\n", `plant.legs.mass_kg: "1e1" is quoted text`},
+		{"    mass_kg: '1e1'\n", `plant.legs.mass_kg: "1e1" is quoted text`},
+	} {
+		_, err := Parse("quoted.yaml", variant(t, "    mass_kg: 4\n", c.text))
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%q: got %v, want %q", c.text, err, c.want)
+		}
+	}
+	_, err = Parse("steps.yaml", variant(t, "  max_steps: 10\n", "  max_steps: 15e-1\n"))
+	if err == nil || !strings.Contains(err.Error(), "run.max_steps: expected a whole number, got 15e-1") {
+		t.Errorf("fractional step count: %v", err)
+	}
+}
+
+// TestByteOrderMark: a UTF-8 file saved with a byte-order mark loads, and
+// the scenario keeps the file's exact bytes (its hash is the file's).
+func TestByteOrderMark(t *testing.T) {
+	text := append([]byte("\xEF\xBB\xBF"), variant(t)...)
+	s, err := Parse("bom.yaml", text)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.Name != "broken-case" || Hash(s.Text) != Hash(text) {
+		t.Errorf("name %q, text hash differs from the file's: %v", s.Name, Hash(s.Text) != Hash(text))
+	}
+}
+
+// TestNearlyMasslessLegs: the point-foot limit the plant does support, a
+// tiny mass at the foot written in exponent notation, loads and stands.
+func TestNearlyMasslessLegs(t *testing.T) {
+	s, err := Parse("point-foot.yaml", variant(t,
+		"  hip_mass_kg: 8\n", "  hip_mass_kg: 1\n",
+		"    mass_kg: 4\n", "    mass_kg: 1e-8\n",
+		"    com_m: 0.35\n", "    com_m: 0.9\n",
+		"    inertia_kgm2: 0.25\n", "    inertia_kgm2: 0\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m := s.Leg(1).MassKG; m != 1e-8 {
+		t.Errorf("leg mass %g", m)
+	}
+}
+
+// TestRefusedBeforeParsing: input the parser cannot handle in bounded time
+// and memory is refused by the loader before the parser sees it (a 200 KB
+// nested file used to take minutes and gigabytes). Speed is measured in the
+// benchmarks below, not asserted here.
+func TestRefusedBeforeParsing(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name string, text []byte) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, text, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	deep := write("deep.yaml", deepText(100_000))
+	fields := write("fields.yaml", manyFields(MaxFields+1))
+	huge := filepath.Join(dir, "huge.yaml")
+	f, err := os.Create(huge)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Truncate(50 << 20); err != nil { // 50 MB, sparse: nothing to read if the size is checked first
+		t.Fatal(err)
+	}
+	f.Close()
+	cases := []struct {
+		file, want string
+	}{
+		{deep, deep + ":2: nested more than 32 levels deep"},
+		{fields, fields + ":5001: more than 5000 fields (name: value pairs)"},
+		{huge, huge + ": the file is 52428800 bytes; a scenario file may be at most 1048576 bytes (1 MiB)"},
+	}
+	if _, err := os.Stat("/dev/zero"); err == nil {
+		// Not a regular file: its size says nothing, so the limit is on
+		// what is read.
+		cases = append(cases, struct{ file, want string }{"/dev/zero", "/dev/zero: the file is more than 1048576 bytes"})
+	}
+	for _, c := range cases {
+		_, err := Load(c.file)
+		var se *Error
+		if !errors.As(err, &se) || len(se.Problems) != 1 || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("Load(%s) = %v, want one problem %q", filepath.Base(c.file), err, c.want)
+		}
+	}
+	if _, err := Parse("huge.yaml", make([]byte, 50<<20)); err == nil || !strings.Contains(err.Error(), "huge.yaml: the file is 52428800 bytes") {
+		t.Errorf("Parse of 50 MB: %v", err)
+	}
+}
+
+// deepText is a scenario whose plant nests n brackets deep.
+func deepText(n int) []byte {
+	return []byte("name: deep\nplant: " + strings.Repeat("[", n) + strings.Repeat("]", n) + "\n")
+}
+
+// manyFields is a file of n unknown fields after the name.
+func manyFields(n int) []byte {
+	var b strings.Builder
+	b.WriteString("name: fields\n")
+	for i := 0; i < n; i++ {
+		b.WriteString("k")
+		b.WriteString(strings.Repeat("x", i%7))
+		b.WriteString(": 1\n")
+	}
+	return []byte(b.String())
+}
+
+// TestMeasure checks the pre-parse estimate of depth and field count on
+// layouts whose structure is known by hand, and that text which only looks
+// like structure (brackets and colons in quoted or plain text, comments)
+// is not counted.
+func TestMeasure(t *testing.T) {
+	cases := []struct {
+		text          string
+		depth, fields int
+	}{
+		{"a: 1\n", 1, 1},
+		{"a:\n  b:\n    c: 1\n", 3, 3},
+		{"a:\n  b: [1, [2, {c: 3}]]\n", 5, 3},      // two block levels, three brackets
+		{"- - - x\n", 4, 0},                        // compact list entries: one level each
+		{"s:\n  - a: 1\n    b: 2\n", 3, 3},         // the list entry and its block
+		{"d: a [draft] {note}: x\n", 1, 2},         // plain text: brackets are not flow, "}:" is a field to the scan
+		{"d: \"[[[ a: b\"\n", 1, 1},                // quoted: nothing inside counts
+		{"d: 'it''s [x'\n", 1, 1},                  // doubled quote inside single quotes
+		{"# [[[[ a: b\n\nd: 1 # [[[ c: d\n", 1, 1}, // comments
+		{"a: [x,\n  [y,\n   [z]]]\n", 4, 1},        // flow spanning lines
+	}
+	for _, c := range cases {
+		sh := measure([]byte(c.text))
+		if sh.depth != c.depth || sh.fields != c.fields {
+			t.Errorf("measure(%q) = depth %d, fields %d; want %d, %d", c.text, sh.depth, sh.fields, c.depth, c.fields)
+		}
+	}
+	// Every built-in scenario is far inside the limits.
+	for _, e := range Library() {
+		text, err := BuiltinText(e.Name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if sh := measure(text); sh.depth > 8 || sh.fields > 200 {
+			t.Errorf("%s: depth %d, fields %d", e.Name, sh.depth, sh.fields)
+		}
+	}
+}
+
+// BenchmarkRefuse measures how fast, and with how much memory, the loader
+// refuses input it must not parse.
+func BenchmarkRefuse(b *testing.B) {
+	inputs := []struct {
+		name string
+		text []byte
+	}{
+		{"deep-200KB", deepText(100_000)},
+		{"fields", manyFields(MaxFields + 1)},
+		{"size-50MB", make([]byte, 50<<20)},
+	}
+	for _, in := range inputs {
+		b.Run(in.name, func(b *testing.B) {
+			b.ReportAllocs()
+			for i := 0; i < b.N; i++ {
+				if _, err := Parse("x.yaml", in.text); err == nil {
+					b.Fatal("accepted")
+				}
+			}
+		})
 	}
 }

@@ -7,6 +7,8 @@ import (
 	"regexp"
 	"slices"
 	"strings"
+
+	"gaitrig/plant"
 )
 
 var (
@@ -232,7 +234,9 @@ func (c *checker) leg(path string, l, shared Leg) {
 	case l.MassKG < 0 || l.InertiaKGM2 < 0 || c.isBad(where("mass_kg")) || c.isBad(where("inertia_kgm2")):
 		// already reported (out of range, or not a number)
 	case l.MassKG == 0 && l.InertiaKGM2 == 0:
-		c.errf(where("inertia_kgm2"), "a massless leg (mass_kg 0) needs inertia_kgm2 > 0, or its angle would have no inertia")
+		c.errf(where("inertia_kgm2"), "a massless leg (mass_kg 0) needs inertia_kgm2 > 0, or its angle would have no inertia "+
+			"and its swing would be undetermined; for the point-foot model approach the limit with a tiny mass at the foot "+
+			"(for example mass_kg: 1e-8 with com_m equal to length_m and inertia_kgm2: 0)")
 	case l.MassKG*l.COMM*l.COMM+l.InertiaKGM2 <= 0:
 		c.errf(where("inertia_kgm2"), "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia; give com_m > 0 or inertia_kgm2 > 0")
 	}
@@ -577,4 +581,62 @@ func (c *checker) criteria() {
 	if k.MaxLatencyP99US != nil {
 		c.num("pass.max_latency_p99_us", *k.MaxLatencyP99US, *k.MaxLatencyP99US > 0, "X > 0")
 	}
+}
+
+// stand checks that the walker can be placed in the initial state the way
+// the rig places it (plant.Model.Stand, as hil.InitialState calls it), and
+// when it cannot, points at the fields that decide it: the leg angles, and
+// the slope of the segment under the walker. Without this the failure comes
+// later, from the plant, naming no field. A scenario that starts from the
+// natural gait gets its state from the gait finder and is not checked here.
+func (c *checker) stand(p plant.Params) []Problem {
+	in := c.s.Initial
+	if in.NaturalGait || len(in.LegAnglesRad) != 2 {
+		return nil
+	}
+	opts := c.s.PlantOptions()
+	m, err := plant.New(p, opts)
+	if err != nil {
+		c.errf("plant", "%v", err)
+		return c.d.problems
+	}
+	rates := []float64{0, 0}
+	copy(rates, in.LegRatesRadps)
+	if m.HasTorso() {
+		rates = append(rates, in.TorsoRateRadps)
+	}
+	angles := [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}
+	stance := c.s.StanceLeg()
+	st, err := m.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...)
+	if err == nil {
+		return nil
+	}
+	k := min(max(st.Seg[stance], 0), len(c.s.Terrain.Segments)-1) // the segment under the stance foot
+	seg := c.s.Terrain.Segments[k]
+	segPath := fmt.Sprintf("terrain.segments[%d]", k)
+	onSlope := ""
+	if seg.SlopeRad != 0 {
+		onSlope = fmt.Sprintf(" on a slope of %g rad (%s.slope_rad, line %d)", seg.SlopeRad, segPath, c.at(segPath+".slope_rad").line)
+	}
+	sides := [2]string{"left", "right"}
+	// The same placement with scuffing allowed tells the two failures
+	// apart: if it succeeds, only the swing foot was in the ground.
+	opts.IgnoreScuff = true
+	if loose, lerr := plant.New(p, opts); lerr == nil {
+		if st, serr := loose.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...); serr == nil {
+			var none plant.Input
+			gap := loose.Contacts(&st, &none)[1-stance].Gap
+			c.errf("initial.leg_angles_rad", "cannot stand the walker: with the %s (stance) leg at %g rad and the %s (swing) leg at %g rad%s "+
+				"the swing foot would be %.4g m below the ground; choose angles that put the swing foot at or above the ground, "+
+				"or set physics.ignore_scuff", sides[stance], angles[stance], sides[1-stance], angles[1-stance], onSlope, -gap)
+			return c.d.problems
+		}
+	}
+	if seg.SlopeRad != 0 {
+		c.errf(segPath+".slope_rad", "cannot stand the walker on this segment: at %g rad it is too steep for the stance foot to rest on "+
+			"(no hip height puts the foot on the ground)", seg.SlopeRad)
+	} else {
+		c.errf("initial.leg_angles_rad", "cannot stand the walker with leg angles [%g, %g] rad: %v", angles[0], angles[1], err)
+	}
+	return c.d.problems
 }

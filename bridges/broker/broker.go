@@ -15,15 +15,30 @@
 //
 // # Who is who
 //
-// Every client has a role and, for rig and firmware clients, a rig id:
+// Every client has a role and, for rig and firmware clients, a rig id, and
+// its client id is bound to them:
 //
-//   - With accounts configured (Config.Accounts), a client must log in with a
-//     username and password of one of them; the account's Role and Rig decide
-//     what it may do. The client id is free.
-//   - Without accounts (loopback only), the client id decides: "rig.<rig>" is
-//     the rig's own client for rig <rig>, "firmware.<rig>" the firmware of rig
-//     <rig>; any other client id is a read-only monitor. These are the client
-//     ids package bridges/mqtt uses by default.
+//   - Without accounts (loopback only), the client id decides: "rig.<rig>"
+//     is the rig's own client for rig <rig>, "firmware.<rig>" the firmware of
+//     rig <rig>, "monitor" or "monitor.<name>" a read-only observer. These
+//     forms are defined in package bridges/topics; bridges/mqtt uses them by
+//     default. Any other client id is refused at CONNECT with return code
+//     0x02 "identifier rejected" (MQTT 5: 0x85 with our sentence as the
+//     reason string), so a firmware with a guessed id learns it at once
+//     instead of having its publishes dropped.
+//   - With accounts configured (Config.Accounts), a client must log in with
+//     a username and password of one of them; the account's Role and Rig
+//     decide what it may do. Account.ClientIDs, when set, lists the only
+//     client ids it may use; otherwise any id will do except one of the forms
+//     above naming another role or rig (a firmware account connecting as
+//     "rig.<rig>" is refused).
+//
+// A client id that is already connected is refused (0x02 again): nobody
+// can take over another client's session. With accounts, the same account
+// may take its own id back, which is how a client that lost its line
+// reconnects before the broker has noticed; without accounts such a client
+// is refused until the broker drops the dead connection (after 1.5 × its
+// keep-alive) and gets in on its next attempt.
 //
 // # What each role may do
 //
@@ -38,9 +53,28 @@
 // connection is refused. A refused publish at QoS 0 is dropped (MQTT 3.1.1
 // has no way to tell the sender); at QoS 1 or 2 an MQTT 3.1.1 client is
 // disconnected and an MQTT 5 client gets a "not authorized" acknowledgement.
-// A refused subscription gets a failure code in the SUBACK. Every refusal is
-// counted (Refusals), logged at warn level and passed to Config.OnRefusal
-// with a plain sentence saying what was refused and why.
+// A refused subscription gets a failure code in the SUBACK.
+//
+// # Limits
+//
+// Nothing a client sends makes the broker grow without bound (Config.Limits,
+// defaults in DefaultLimits): a packet larger than MaxPacketBytes closes the
+// connection as soon as its fixed header announces the size, before any of
+// it is read or stored; at most MaxClients clients are connected, and at most
+// MaxPending more connections wait (ConnectWait at most) for their CONNECT;
+// each client has at most MaxInflight unacknowledged QoS 1/2 messages stored
+// for it, may send at most ReceiveMaximum of its own before waiting for
+// acknowledgements, and at most MaxQueued messages wait to be written to it
+// (more are dropped for that client, not for the others); a disconnected
+// session is forgotten after SessionExpiry.
+//
+// # Refusals
+//
+// Every refused connection, publish, subscription and oversized or
+// malformed packet is counted per kind (Refusals, RefusalsByKind), logged
+// at warn level when it happens (the first few of each kind at once, then at
+// most one per second, with the count of those not logged; a summary per
+// kind when the broker closes) and passed to Config.OnRefusal as a Refusal.
 package broker
 
 import (
@@ -49,10 +83,12 @@ import (
 	"fmt"
 	"log/slog"
 	"net"
-	"strings"
 	"sync/atomic"
+	"time"
 
 	mochi "github.com/mochi-mqtt/server/v2"
+
+	"gaitrig/bridges/topics"
 )
 
 // DefaultAddr is where the broker listens when Config.Addr is empty: the
@@ -61,16 +97,17 @@ const DefaultAddr = "127.0.0.1:0"
 
 // DefaultRoot is the first level of every gaitrig topic when Config.Root is
 // empty.
-const DefaultRoot = "gaitrig"
+const DefaultRoot = topics.DefaultRoot
 
-// Role says what a client is allowed to do on the broker.
-type Role string
+// Role says what a client is allowed to do on the broker. The roles and
+// their rights are the topic contract of package bridges/topics.
+type Role = topics.Role
 
 // The roles a client can have. See the package comment for their rights.
 const (
-	RoleRig      Role = "rig"      // the harness side of one rig
-	RoleFirmware Role = "firmware" // the controller under test on one rig
-	RoleMonitor  Role = "monitor"  // read-only observer of every topic
+	RoleRig      = topics.RoleRig      // the harness side of one rig
+	RoleFirmware = topics.RoleFirmware // the controller under test on one rig
+	RoleMonitor  = topics.RoleMonitor  // read-only observer of every topic
 )
 
 // Account is one username and password the broker accepts, with the role
@@ -82,16 +119,81 @@ type Account struct {
 	Password string // must not be empty; compared in constant time
 	Role     Role   // what the account may read and write (see the package comment)
 	Rig      string // rig id for RoleRig and RoleFirmware; ignored for RoleMonitor
+	// ClientIDs, when not empty, are the only client ids the account may
+	// connect with. Empty allows any id except the "rig.", "firmware." and
+	// "monitor" forms of another role or rig.
+	ClientIDs []string
 }
 
-// Refusal describes one publish, subscription or connection the access rules
-// refused.
-type Refusal struct {
-	ClientID string // the MQTT client identifier of the refused client
-	Username string // the username it logged in with; empty if anonymous
-	Topic    string // topic or filter; for a refused connection, the will topic if any
-	Action   string // "publish", "subscribe" or "connect"
-	Reason   string // plain sentence for a person
+// Limits bound what clients can make the broker hold. A zero field means
+// the value in DefaultLimits.
+type Limits struct {
+	// MaxPacketBytes is the largest MQTT packet accepted, fixed header
+	// included. Protocol frames are at most 512 bytes and alarm and status
+	// documents a few hundred.
+	MaxPacketBytes uint32
+	// MaxClients is how many clients may be connected at once.
+	MaxClients int
+	// MaxPending is how many further connections may wait for their
+	// CONNECT at once; more are closed at once.
+	MaxPending int
+	// ConnectWait is how long a new connection may take to send its CONNECT.
+	ConnectWait time.Duration
+	// MaxInflight is how many unacknowledged QoS 1/2 messages the broker
+	// stores for one client.
+	MaxInflight uint16
+	// ReceiveMaximum is how many QoS 1/2 messages a client may send before
+	// waiting for the broker's acknowledgements; a client that sends more is
+	// disconnected.
+	ReceiveMaximum uint16
+	// MaxQueued is how many messages may wait to be written to one client;
+	// more are dropped for that client.
+	MaxQueued int32
+	// SessionExpiry is how long the session of a disconnected client that
+	// asked to keep it (clean session off) is kept.
+	SessionExpiry time.Duration
+}
+
+// DefaultLimits are the limits used for zero fields of Config.Limits.
+var DefaultLimits = Limits{
+	MaxPacketBytes: 4096,
+	MaxClients:     128,
+	MaxPending:     64,
+	ConnectWait:    10 * time.Second,
+	MaxInflight:    64,
+	ReceiveMaximum: 64,
+	MaxQueued:      256,
+	SessionExpiry:  time.Minute,
+}
+
+// withDefaults returns l with every zero field set from DefaultLimits.
+func (l Limits) withDefaults() Limits {
+	d := DefaultLimits
+	if l.MaxPacketBytes == 0 {
+		l.MaxPacketBytes = d.MaxPacketBytes
+	}
+	if l.MaxClients <= 0 {
+		l.MaxClients = d.MaxClients
+	}
+	if l.MaxPending <= 0 {
+		l.MaxPending = d.MaxPending
+	}
+	if l.ConnectWait <= 0 {
+		l.ConnectWait = d.ConnectWait
+	}
+	if l.MaxInflight == 0 {
+		l.MaxInflight = d.MaxInflight
+	}
+	if l.ReceiveMaximum == 0 {
+		l.ReceiveMaximum = d.ReceiveMaximum
+	}
+	if l.MaxQueued <= 0 {
+		l.MaxQueued = d.MaxQueued
+	}
+	if l.SessionExpiry <= 0 {
+		l.SessionExpiry = d.SessionExpiry
+	}
+	return l
 }
 
 // Config configures the embedded broker. The zero value is a valid,
@@ -111,9 +213,13 @@ type Config struct {
 	// Logger receives the broker's log lines. Nil discards them; pass a
 	// handler at warn level to see refusals and failures only.
 	Logger *slog.Logger
-	// OnRefusal, when set, is called for every refusal by the access rules.
-	// It runs on the broker's connection goroutine and must not block.
+	// OnRefusal, when set, is called for every refusal (not rate-limited),
+	// when it happens. It runs on the broker's connection goroutine, possibly
+	// on several at once, and must not block.
 	OnRefusal func(Refusal)
+	// Limits bound packets, clients and queues; zero fields mean
+	// DefaultLimits.
+	Limits Limits
 }
 
 // Broker is a running embedded broker.
@@ -133,7 +239,7 @@ func Start(cfg Config) (*Broker, error) {
 	if cfg.Root == "" {
 		cfg.Root = DefaultRoot
 	}
-	if err := validLevel(cfg.Root); err != nil {
+	if err := topics.ValidLevel(cfg.Root); err != nil {
 		return nil, fmt.Errorf("broker: root topic %q: %w", cfg.Root, err)
 	}
 	host, _, err := net.SplitHostPort(cfg.Addr)
@@ -172,12 +278,21 @@ func Start(cfg Config) (*Broker, error) {
 	if logger == nil {
 		logger = slog.New(slog.DiscardHandler)
 	}
-	server := mochi.New(&mochi.Options{Logger: logger})
-	r := &rules{root: cfg.Root, accounts: accounts, onRefusal: cfg.OnRefusal, log: logger}
+	lim := cfg.Limits.withDefaults()
+	caps := mochi.NewDefaultServerCapabilities()
+	caps.MaximumPacketSize = lim.MaxPacketBytes
+	caps.MaximumClients = int64(lim.MaxClients)
+	caps.MaximumInflight = lim.MaxInflight
+	caps.ReceiveMaximum = lim.ReceiveMaximum
+	caps.MaximumClientWritesPending = lim.MaxQueued
+	caps.MaximumSessionExpiryInterval = uint32((lim.SessionExpiry + time.Second - 1) / time.Second)
+	server := mochi.New(&mochi.Options{Logger: logger, Capabilities: caps})
+	r := &rules{server: server, root: cfg.Root, accounts: accounts, limits: lim,
+		refusals: newRefusalLog(logger, cfg.OnRefusal), claims: make(map[string]claim)}
 	if err := server.AddHook(r, nil); err != nil {
 		return nil, fmt.Errorf("broker: installing access rules: %w", err)
 	}
-	l := newTCPListener("gaitrig", cfg.Addr, tlsCfg)
+	l := newTCPListener("gaitrig", cfg.Addr, tlsCfg, lim, r)
 	if err := server.AddListener(l); err != nil {
 		return nil, fmt.Errorf("broker: cannot listen on %s: %w", cfg.Addr, err)
 	}
@@ -192,17 +307,23 @@ func Start(cfg Config) (*Broker, error) {
 // port when port 0 was asked for).
 func (b *Broker) Addr() string { return b.listener.Address() }
 
-// Refusals returns how many publishes, subscriptions and connections the
-// access rules have refused so far.
-func (b *Broker) Refusals() uint64 { return b.rules.refused.Load() }
+// Refusals returns how many connections, publishes, subscriptions and
+// packets the broker has refused so far, of every kind.
+func (b *Broker) Refusals() uint64 { return b.rules.refusals.total.Load() }
 
-// Close disconnects every client and stops listening. It is safe to call
-// more than once.
+// RefusalsByKind returns a snapshot of the refusals so far, counted per
+// kind; kinds never refused are absent.
+func (b *Broker) RefusalsByKind() map[RefusalKind]uint64 { return b.rules.refusals.snapshot() }
+
+// Close disconnects every client and stops listening, then logs the count
+// of each kind of refusal. It is safe to call more than once.
 func (b *Broker) Close() error {
 	if b.closed.Swap(true) {
 		return nil
 	}
-	return b.server.Close()
+	err := b.server.Close()
+	b.rules.refusals.summarize()
+	return err
 }
 
 // isLoopback reports whether host (as written in a listen address) names
@@ -224,23 +345,12 @@ func checkAccount(a Account) error {
 	}
 	switch a.Role {
 	case RoleRig, RoleFirmware:
-		if err := validLevel(a.Rig); err != nil {
+		if err := topics.ValidLevel(a.Rig); err != nil {
 			return fmt.Errorf("rig id %q: %w", a.Rig, err)
 		}
 	case RoleMonitor:
 	default:
 		return fmt.Errorf("role %q is not one of %q, %q, %q", a.Role, RoleRig, RoleFirmware, RoleMonitor)
-	}
-	return nil
-}
-
-// validLevel checks that s can be used as one topic level.
-func validLevel(s string) error {
-	if s == "" {
-		return errors.New("must not be empty")
-	}
-	if strings.ContainsAny(s, "/+#\x00") {
-		return errors.New("must not contain '/', '+', '#' or NUL")
 	}
 	return nil
 }

@@ -94,7 +94,7 @@ func TestStartDefaultsToLoopbackFreePort(t *testing.T) {
 	if host != "127.0.0.1" || port == "0" || port == "" {
 		t.Fatalf("Addr = %q, want 127.0.0.1 with a real port", b.Addr())
 	}
-	mustDial(t, b, clientOpts{id: "watcher"})
+	mustDial(t, b, clientOpts{id: "monitor.watcher"})
 	if err := b.Close(); err != nil {
 		t.Fatalf("Close: %v", err)
 	}
@@ -193,11 +193,11 @@ type received struct {
 	got  chan struct{}
 }
 
-// watch subscribes a monitor client, "watcher", to filter and collects
-// what it receives.
+// watch subscribes a monitor client, "monitor.watcher", to filter and
+// collects what it receives.
 func watch(t *testing.T, b *Broker, filter string) *received {
 	t.Helper()
-	return watchAs(t, b, clientOpts{id: "watcher"}, filter)
+	return watchAs(t, b, clientOpts{id: "monitor.watcher"}, filter)
 }
 
 // next waits for the next message and returns all seen so far.
@@ -218,7 +218,7 @@ func TestPublishRules(t *testing.T) {
 	var reasons []string
 	b := startBroker(t, Config{OnRefusal: func(r Refusal) {
 		mu.Lock()
-		reasons = append(reasons, r.Action+" "+r.Topic+": "+r.Reason)
+		reasons = append(reasons, r.Kind.String()+" "+r.Topic+": "+r.Reason)
 		mu.Unlock()
 	}})
 	mon := watch(t, b, "gaitrig/#")
@@ -239,7 +239,7 @@ func TestPublishRules(t *testing.T) {
 		{"rig.b1", "gaitrig/b1/stop", true},
 		{"rig.b1", "gaitrig/b1/command", false},
 		{"rig.b1", "gaitrig/b2/state", false},
-		{"someone", "gaitrig/b1/command", false},
+		{"monitor.someone", "gaitrig/b1/command", false},
 	}
 	clients := map[string]paho.Client{}
 	refusedBefore := b.Refusals()
@@ -261,7 +261,7 @@ func TestPublishRules(t *testing.T) {
 		// A marker the client may publish follows on the same connection,
 		// so a wrongly delivered message would arrive before the marker.
 		marker := "gaitrig/b1/stop"
-		if tc.client == "someone" {
+		if tc.client == "monitor.someone" {
 			marker = ""
 		}
 		if marker != "" {
@@ -325,7 +325,7 @@ func TestSubscribeRules(t *testing.T) {
 		{"rig.b1", "gaitrig/b1/stop", true},
 		{"rig.b1", "gaitrig/b2/command", false},
 		{"rig.b1", "gaitrig/b1/alarm", false},
-		{"someone", "gaitrig/#", true},
+		{"monitor.someone", "gaitrig/#", true},
 	}
 	clients := map[string]paho.Client{}
 	for _, tc := range cases {
@@ -361,9 +361,9 @@ func TestAccountsDecideIdentity(t *testing.T) {
 		{Username: "viewer", Password: "pw2", Role: RoleMonitor},
 	}})
 	mon := watchAs(t, b, clientOpts{id: "any", user: "viewer", pass: "pw2"}, "gaitrig/#")
-	// The client id claims to be a rig, but the account is firmware of b1:
-	// its publish to the state topic must be dropped.
-	c := mustDial(t, b, clientOpts{id: "rig.b1", user: "board", pass: "pw"})
+	// A free client id: the account, firmware of b1, decides the rights,
+	// so its publish to the state topic is dropped.
+	c := mustDial(t, b, clientOpts{id: "bench-board", user: "board", pass: "pw"})
 	for _, p := range []struct{ topic, payload string }{
 		{"gaitrig/b1/state", "forged"},
 		{"gaitrig/b1/command", "real"},
@@ -457,7 +457,7 @@ func TestTLS(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			c, err := dial(t, b, clientOpts{id: "watcher", scheme: tc.scheme, tls: tc.tls})
+			c, err := dial(t, b, clientOpts{id: "monitor.watcher", scheme: tc.scheme, tls: tc.tls})
 			if tc.ok {
 				if err != nil {
 					t.Fatalf("connect: %v", err)
@@ -514,8 +514,8 @@ func (s *syncBuffer) String() string {
 // TestAllowedChecksDoNotAllocate: mochi runs the access check for every
 // publish and every delivery, so an allowed check must not allocate.
 func TestAllowedChecksDoNotAllocate(t *testing.T) {
-	r := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler)}
-	withAccounts := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler),
+	r := &rules{root: DefaultRoot}
+	withAccounts := &rules{root: DefaultRoot,
 		accounts: map[string]Account{"board": {Username: "board", Password: "pw", Role: RoleFirmware, Rig: "b1"}}}
 	rig := &mochi.Client{ID: "rig.b1"}
 	fw := &mochi.Client{ID: "x"}
@@ -547,7 +547,7 @@ func TestAllowedChecksDoNotAllocate(t *testing.T) {
 }
 
 func BenchmarkAllowedCheck(b *testing.B) {
-	r := &rules{root: DefaultRoot, log: slog.New(slog.DiscardHandler)}
+	r := &rules{root: DefaultRoot}
 	cl := &mochi.Client{ID: "firmware.bench1"}
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {

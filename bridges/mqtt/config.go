@@ -6,21 +6,23 @@ import (
 	"fmt"
 	"net"
 	"net/url"
-	"strings"
 	"time"
+
+	"gaitrig/bridges/topics"
 )
 
-// Role says which end of the link a Conn is.
-type Role string
+// Role says which end of the link a Conn is. The roles are defined by the
+// topic contract in package bridges/topics.
+type Role = topics.Role
 
 // The two ends of a rig's link.
 const (
-	RoleRig      Role = "rig"      // gaitrig itself: sends states, receives commands
-	RoleFirmware Role = "firmware" // the controller: sends commands, receives states
+	RoleRig      = topics.RoleRig      // gaitrig itself: sends states, receives commands
+	RoleFirmware = topics.RoleFirmware // the controller: sends commands, receives states
 )
 
 // DefaultRoot is the first topic level when Config.Root is empty.
-const DefaultRoot = "gaitrig"
+const DefaultRoot = topics.DefaultRoot
 
 // Defaults for the timing fields of Config.
 const (
@@ -88,10 +90,10 @@ func (cfg *Config) normalize() (*url.URL, error) {
 	if cfg.Root == "" {
 		cfg.Root = DefaultRoot
 	}
-	if err := validLevel(cfg.Root); err != nil {
+	if err := topics.ValidLevel(cfg.Root); err != nil {
 		return nil, fmt.Errorf("mqtt: root topic %q: %w", cfg.Root, err)
 	}
-	if err := validLevel(cfg.Rig); err != nil {
+	if err := topics.ValidLevel(cfg.Rig); err != nil {
 		return nil, fmt.Errorf("mqtt: rig id %q: %w", cfg.Rig, err)
 	}
 	switch cfg.Role {
@@ -100,7 +102,7 @@ func (cfg *Config) normalize() (*url.URL, error) {
 		return nil, fmt.Errorf("mqtt: role %q is not %q or %q", cfg.Role, RoleRig, RoleFirmware)
 	}
 	if cfg.ClientID == "" {
-		cfg.ClientID = string(cfg.Role) + "." + cfg.Rig
+		cfg.ClientID = topics.ClientID(cfg.Role, cfg.Rig)
 	}
 	if cfg.ConnectTimeout <= 0 {
 		cfg.ConnectTimeout = DefaultConnectTimeout
@@ -146,14 +148,3 @@ func (cfg *Config) normalize() (*url.URL, error) {
 }
 
 func secureScheme(s string) bool { return s == "ssl" || s == "tls" || s == "mqtts" }
-
-// validLevel checks that s can be used as one topic level.
-func validLevel(s string) error {
-	if s == "" {
-		return errors.New("must not be empty")
-	}
-	if strings.ContainsAny(s, "/+#\x00") {
-		return errors.New("must not contain '/', '+', '#' or NUL")
-	}
-	return nil
-}

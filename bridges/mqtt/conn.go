@@ -87,6 +87,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/bridges/topics"
 )
 
 // maxFrame is the largest frame any protocol version sends.
@@ -149,23 +150,22 @@ func Dial(cfg Config) (*Conn, error) {
 	if err != nil {
 		return nil, err
 	}
-	root := cfg.Root + "/" + cfg.Rig + "/"
 	c := &Conn{
 		cfg:         cfg,
 		url:         u,
-		stopTopic:   root + "stop",
-		alarmTopic:  root + "alarm",
-		statusTopic: root + "status",
+		stopTopic:   topics.Topic(cfg.Root, cfg.Rig, topics.Stop),
+		alarmTopic:  topics.Topic(cfg.Root, cfg.Rig, topics.Alarm),
+		statusTopic: topics.Topic(cfg.Root, cfg.Rig, topics.Status),
 		rx:          make(chan inbound, cfg.QueueLen),
 		events:      make(chan bridges.LinkEvent, 32),
 		closed:      make(chan struct{}),
 		first:       make(chan error, 1),
 	}
-	if cfg.Role == RoleRig {
-		c.outTopic, c.inTopic = root+"state", root+"command"
-	} else {
-		c.outTopic, c.inTopic = root+"command", root+"state"
+	out, in := topics.State, topics.Command
+	if cfg.Role == RoleFirmware {
+		out, in = in, out
 	}
+	c.outTopic, c.inTopic = topics.Topic(cfg.Root, cfg.Rig, out), topics.Topic(cfg.Root, cfg.Rig, in)
 	c.timer = time.NewTimer(time.Hour)
 	c.timer.Stop()
 
@@ -189,7 +189,7 @@ func Dial(cfg Config) (*Conn, error) {
 		SetConnectionLostHandler(c.onLost).
 		SetReconnectingHandler(c.onReconnecting)
 	if cfg.Role == RoleRig {
-		opts.SetBinaryWill(c.statusTopic, c.statusJSON("offline", "connection lost", false), 1, true)
+		opts.SetBinaryWill(c.statusTopic, c.statusJSON(topics.Offline, "connection lost", false), topics.Status.QoS(), topics.Status.Retained())
 	}
 	c.client = paho.NewClient(opts)
 
@@ -281,9 +281,9 @@ func (c *Conn) onConnect(cl paho.Client) {
 		status := c.status
 		c.mu.Unlock()
 		if status == nil {
-			status = c.statusJSON("online", "", true)
+			status = c.statusJSON(topics.Online, "", true)
 		}
-		tok := cl.Publish(c.statusTopic, 1, true, status)
+		tok := cl.Publish(c.statusTopic, topics.Status.QoS(), topics.Status.Retained(), status)
 		if !tok.WaitTimeout(c.cfg.ConnectTimeout) {
 			err = fmt.Errorf("mqtt: broker did not acknowledge the status on %s within %v", c.statusTopic, c.cfg.ConnectTimeout)
 		} else if tok.Error() != nil {
@@ -319,7 +319,7 @@ func (c *Conn) onConnect(cl paho.Client) {
 
 // subscribe asks for the incoming and stop topics and checks the answer.
 func (c *Conn) subscribe(cl paho.Client) error {
-	filters := map[string]byte{c.inTopic: 0, c.stopTopic: 1}
+	filters := map[string]byte{c.inTopic: 0, c.stopTopic: topics.Stop.QoS()}
 	tok := cl.SubscribeMultiple(filters, c.handle)
 	if !tok.WaitTimeout(c.cfg.ConnectTimeout) {
 		return fmt.Errorf("mqtt: broker did not answer the subscription to %s and %s within %v", c.inTopic, c.stopTopic, c.cfg.ConnectTimeout)
@@ -437,12 +437,12 @@ func (c *Conn) publish(p []byte, stop bool) error {
 	payload := append([]byte(nil), p...) // paho writes it after Publish returns
 	if stop {
 		c.rememberStop(p)
-		tok := c.client.Publish(c.stopTopic, 1, false, payload)
+		tok := c.client.Publish(c.stopTopic, topics.Stop.QoS(), false, payload)
 		if err := c.await(tok, "stop on "+c.stopTopic); err != nil {
 			return err
 		}
 	} else {
-		tok := c.client.Publish(c.outTopic, 0, false, payload)
+		tok := c.client.Publish(c.outTopic, topics.State.QoS(), false, payload) // state and command share QoS 0
 		// A QoS 0 token is done at once only when Publish failed outright;
 		// otherwise it completes after the write, which Send does not wait for.
 		select {
@@ -557,14 +557,14 @@ func (c *Conn) RecvFrame(deadline time.Time, dst []byte) (int, error) {
 // QoS 1 and waits for the broker's acknowledgement. Only the rig role
 // publishes alarms.
 func (c *Conn) PublishAlarm(alarm []byte) error {
-	return c.publishJSON("alarm", c.alarmTopic, alarm, false)
+	return c.publishJSON("alarm", c.alarmTopic, alarm, topics.Alarm.Retained())
 }
 
 // PublishStatus publishes the rig's status (a JSON object with at least a
 // "state" field, by convention) retained on R/status at QoS 1, and keeps it
 // to republish after a reconnect. Only the rig role publishes status.
 func (c *Conn) PublishStatus(status []byte) error {
-	if err := c.publishJSON("status", c.statusTopic, status, true); err != nil {
+	if err := c.publishJSON("status", c.statusTopic, status, topics.Status.Retained()); err != nil {
 		return err
 	}
 	c.mu.Lock()
@@ -588,7 +588,7 @@ func (c *Conn) publishJSON(what, topic string, doc []byte, retain bool) error {
 	if !c.connected.Load() {
 		return c.notConnected(what)
 	}
-	tok := c.client.Publish(topic, 1, retain, append([]byte(nil), doc...))
+	tok := c.client.Publish(topic, topics.Alarm.QoS(), retain, append([]byte(nil), doc...)) // alarm and status share QoS 1
 	return c.await(tok, what+" on "+topic)
 }
 
@@ -596,13 +596,7 @@ func (c *Conn) publishJSON(what, topic string, doc []byte, retain bool) error {
 // current time (the last will does not: it is written at connect time but
 // published whenever the connection dies).
 func (c *Conn) statusJSON(state, reason string, stamped bool) []byte {
-	doc := struct {
-		State  string `json:"state"`
-		Rig    string `json:"rig"`
-		Client string `json:"client"`
-		Reason string `json:"reason,omitempty"`
-		Time   string `json:"time,omitempty"`
-	}{State: state, Rig: c.cfg.Rig, Client: c.cfg.ClientID, Reason: reason}
+	doc := topics.RigStatus{State: state, Rig: c.cfg.Rig, Client: c.cfg.ClientID, Reason: reason}
 	if stamped {
 		doc.Time = time.Now().UTC().Format(time.RFC3339Nano)
 	}
@@ -618,7 +612,7 @@ func (c *Conn) Close() error {
 	c.once.Do(func() {
 		if c.cfg.Role == RoleRig && c.connected.Load() {
 			// Bounded short: if the broker is gone, its answer never comes.
-			tok := c.client.Publish(c.statusTopic, 1, true, c.statusJSON("offline", "closed", true))
+			tok := c.client.Publish(c.statusTopic, topics.Status.QoS(), topics.Status.Retained(), c.statusJSON(topics.Offline, "closed", true))
 			if !tok.WaitTimeout(closeWait) {
 				err = fmt.Errorf("mqtt: broker %s did not acknowledge the offline status within %v", c.url.Host, closeWait)
 			} else if tok.Error() != nil {

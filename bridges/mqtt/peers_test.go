@@ -174,13 +174,19 @@ func (s *sub) wait() error {
 	return s.err
 }
 
+// subIDs numbers the mosquitto_sub clients so that their ids differ.
+var subIDs atomic.Int64
+
 // startSub runs mosquitto_sub -C count -W 5 on topic; extra arguments
 // follow. Lines of its output arrive on lines; done receives its exit.
 func startSub(t testing.TB, port int, topic string, count int, extra ...string) *sub {
 	t.Helper()
 	bin := requireTool(t, "/usr/bin/mosquitto_sub")
 	ctx, cancel := context.WithTimeout(context.Background(), 2*wait)
-	args := append([]string{"-h", "127.0.0.1", "-p", strconv.Itoa(port), "-t", topic, "-C", strconv.Itoa(count), "-W", "5", "-V", "mqttv311"}, extra...)
+	// A monitor client id: the embedded broker refuses ids that are not of
+	// the forms in package bridges/topics.
+	id := "monitor.sub-" + strconv.FormatInt(subIDs.Add(1), 10)
+	args := append([]string{"-h", "127.0.0.1", "-p", strconv.Itoa(port), "-i", id, "-t", topic, "-C", strconv.Itoa(count), "-W", "5", "-V", "mqttv311"}, extra...)
 	cmd := exec.CommandContext(ctx, bin, args...)
 	out, err := cmd.StdoutPipe()
 	if err != nil {
