@@ -104,11 +104,11 @@ func TestWallclockBadInputAndAbort(t *testing.T) {
 // included, is counted, so the stale count matches what arrived.
 func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 	var b mailbox
-	const sent = uint32(3*len(b.items)/2 + 7)
+	const sent = uint32(3*len(b.ring.items)/2 + 7)
 	for i := uint32(1); i <= sent; i++ {
-		b.put(&inbound{seq: i})
+		b.put(&heldCommand{seq: i})
 	}
-	var out inbound
+	var out heldCommand
 	var lat Histogram
 	taken, ok := b.takeDue(0, sent, &out, &lat)
 	if !ok || out.seq != sent {
@@ -117,7 +117,7 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 	if taken != int(sent) {
 		t.Fatalf("took %d commands, want all %d that arrived", taken, sent)
 	}
-	b.put(&inbound{seq: sent + 1})
+	b.put(&heldCommand{seq: sent + 1})
 	if taken, _ := b.takeDue(0, sent+1, &out, &lat); taken != 1 {
 		t.Fatalf("next take counted %d, want 1: overwritten commands are reported once", taken)
 	}
