@@ -60,7 +60,7 @@ func (r *runner) linkCounts() LinkCounts {
 	f := r.sess.link
 	c.StatesSent = f.statesSent.Load()
 	c.DroppedStates = f.droppedStates.Load()
-	c.DroppedCommand += f.droppedCommands.Load()
+	c.DroppedCommand = f.droppedCommands.Load()
 	c.Corrupted = f.corrupted.Load()
 	return c
 }
