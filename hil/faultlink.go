@@ -39,12 +39,14 @@ const injectedCorruption = "injected corruption (a real link's CRC check rejects
 //     reads on until its deadline);
 //   - corrupt: a command comes out of Recv as a *bridges.FrameError, as a
 //     real link's CRC check reports it;
-//   - latency: each command that passes gets a delay, which delay() returns
+//   - latency: each command that passes gets a delay, left in the delay field
 //     after Recv. The clock holds the command in a commandRing until it is
 //     due in its own time (lockstep: whole ticks, so a run stays
 //     bit-identical; wall-clock: the exact delay on the real clock), while
 //     the reply still counts as arrived for the watchdog: the firmware did
-//     answer, the wire is slow.
+//     answer, the wire is slow. The link draws the delay but does not hold
+//     the command, because lockstep's virtual time waits on the answer
+//     having come and counts the delay in ticks the link does not see.
 //
 // Only states and the commands the loop awaits are exposed: in lockstep the
 // command echoing the awaited sequence number, so that stale replies (whose
@@ -100,8 +102,8 @@ func (f *faultLink) Send(m *protocol.Message) error {
 
 // Recv returns the next message of the real link after the faults had
 // their say: a dropped command is skipped, a corrupted one is a
-// *bridges.FrameError, a delayed one comes with delay() set. It does not
-// allocate.
+// *bridges.FrameError, a delayed one comes with the delay field set. It
+// does not allocate.
 func (f *faultLink) Recv(deadline time.Time, m *protocol.Message) error {
 	for {
 		err := f.Conn.Recv(deadline, m)
