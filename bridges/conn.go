@@ -23,7 +23,10 @@ type Conn interface {
 	// (ErrTimeout) or the link fails. A frame that fails its CRC or does not
 	// decode is reported as a *FrameError and the link stays usable.
 	Recv(deadline time.Time, m *protocol.Message) error
-	// Stats returns counters of the link so far.
+	// Stats returns counters of the link so far. The loop reads them once
+	// at the end of a run into hil.Result.Transport: they count what the
+	// transport itself did (bytes, frames it dropped because the reader fell
+	// behind, reconnects), which the loop cannot see from messages.
 	Stats() Stats
 	// Close releases the link. Recv then returns ErrClosed.
 	Close() error
@@ -71,12 +74,25 @@ func (e *FrameError) Error() string { return "bridges: rejected frame: " + e.Rea
 // Unwrap returns the decoder's error, if any.
 func (e *FrameError) Unwrap() error { return e.Err }
 
+// LinkEventKind says what changed in a link's health.
+type LinkEventKind string
+
+// Link event kinds. The values are the words the events are logged with.
+const (
+	// LinkDisconnected: the link lost its peer (port unplugged, broker
+	// gone) and is trying to get it back; LinkEvent.Err holds the cause.
+	LinkDisconnected LinkEventKind = "disconnected"
+	// LinkReconnected: the link is back; LinkEvent.Gap is how long it was
+	// down.
+	LinkReconnected LinkEventKind = "reconnected"
+)
+
 // LinkEvent reports a change of link health that the loop turns into an
 // alarm (unplug, reconnect with the gap, broker lost).
 type LinkEvent struct {
-	Kind string        // "disconnected" or "reconnected"
-	Gap  time.Duration // for "reconnected": how long the link was down
-	Err  error         // for "disconnected": the cause
+	Kind LinkEventKind
+	Gap  time.Duration // for LinkReconnected: how long the link was down
+	Err  error         // for LinkDisconnected: the cause
 }
 
 // Notifier is implemented by links that can report LinkEvents. The loop

@@ -1,23 +1,17 @@
 package hil
 
-// This file holds the lockstep clock: one exchange per tick, the latency
-// queue and random link faults.
+// This file holds the lockstep clock: ticks in virtual time, each waiting
+// for the command that answers its own state, with resends, the watchdog
+// on the time the rig was listening, and commands held back by a latency
+// fault counted in whole ticks.
 
 import (
 	"context"
-	"errors"
 	"math"
-	"math/rand/v2"
 	"time"
 
-	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
-	"gaitrig/record"
 )
-
-// latencyQueueCap is how many delayed commands a lockstep latency fault can
-// hold: at 1 kHz, about a second of delay.
-const latencyQueueCap = 1024
 
 // stallSlack is how late a lockstep wait may end before the loop treats the
 // lateness as a stall of its own process rather than firmware silence; Go
@@ -32,112 +26,55 @@ const stallSlack = 5 * time.Millisecond
 // 64 is the in-process link's whole buffer.
 const finalLooks = 64
 
-// latencyQueue holds commands delayed by a latency fault in lockstep, as
-// (release tick, command) in arrival order. Fixed size: a delay longer than
-// its capacity in ticks is refused at configuration time.
-type latencyQueue struct {
-	items [latencyQueueCap]struct {
-		release int64
-		cmd     protocol.Command
-	}
-	head, n int
+// lockstep runs the ticks in virtual time.
+func (r *runner) lockstep(ctx context.Context) {
+	src := &lockstepSource{r: r, lastValid: time.Now()}
+	r.ticks(ctx, virtualPacer{}, src)
 }
 
-func (q *latencyQueue) push(release int64, c *protocol.Command) bool {
-	if q.n == latencyQueueCap {
+// lockstepSource obtains each tick's command by waiting for the answer to
+// the tick's own state.
+type lockstepSource struct {
+	r         *runner
+	lastValid time.Time   // when the last valid command came, moved on by the rig's own stalls
+	held      commandRing // commands in flight under a latency fault, released by tick index
+	take      heldCommand // the command due this tick
+}
+
+// beforeState ends the run without a tick when link events ended it.
+func (l *lockstepSource) beforeState(time.Time) bool { return !l.r.end.set() }
+
+// sending exposes the answer to this state, and only it, to the link
+// faults.
+func (l *lockstepSource) sending(seq uint32) { l.r.sess.link.await(int64(seq)) }
+
+// afterState waits for the answer and applies the command due this tick:
+// the answer itself, or under a latency fault the one released now.
+func (l *lockstepSource) afterState(ctx context.Context) bool {
+	r := l.r
+	if !l.exchange(ctx) {
 		return false
 	}
-	it := &q.items[(q.head+q.n)%latencyQueueCap]
-	it.release, it.cmd = release, *c
-	q.n++
+	if _, ok := l.held.takeDue(r.pt.tick, r.sess.seq, &l.take, r.times.latency); ok {
+		r.takeCommand(&l.take.cmd)
+	}
 	return true
 }
 
-// popDue removes every command due by tick and returns the newest of them.
-func (q *latencyQueue) popDue(tick int64, out *protocol.Command) bool {
-	got := false
-	for q.n > 0 {
-		it := &q.items[q.head]
-		if it.release > tick {
-			break
-		}
-		*out = it.cmd
-		got = true
-		q.head = (q.head + 1) % latencyQueueCap
-		q.n--
-	}
-	return got
-}
-
-// latencyDelay draws the latency the active latency faults add to one
-// command; lockstep rounds it to whole ticks, wall-clock holds it exactly.
-func (r *runner) latencyDelay(t float64, rng *rand.Rand) time.Duration {
-	var d time.Duration
-	for i := range r.cfg.LinkFaults {
-		f := &r.cfg.LinkFaults[i]
-		if f.Kind != FaultLatency || !f.active(t) {
-			continue
-		}
-		d += f.Fixed
-		if f.Jitter > 0 {
-			d += time.Duration(rng.Float64() * float64(f.Jitter))
-		}
-	}
-	return d
-}
-
-// chance reports whether an active fault of the kind fires for one frame.
-func (r *runner) chance(kind LinkFaultKind, t float64, rng *rand.Rand) bool {
-	for i := range r.cfg.LinkFaults {
-		f := &r.cfg.LinkFaults[i]
-		if f.Kind == kind && f.active(t) && rng.Float64() < f.Rate {
-			return true
-		}
-	}
-	return false
-}
-
-// lockstep runs ticks in virtual time: each tick waits for the reply to its
-// state.
-func (r *runner) lockstep(ctx context.Context) error {
-	lastValid := time.Now()
-	for !r.done() {
-		if r.aborted(ctx) {
-			break
-		}
-		r.drainLinkEvents()
-		if r.outcome != "" {
-			break
-		}
-		r.sense()
-		if !r.exchange(ctx, &lastValid) {
-			break
-		}
-		r.fresh = false
-		var c protocol.Command
-		if r.pending.popDue(r.tick, &c) {
-			r.takeCommand(&c)
-		}
-		// A command that trips still gets its tick, with the zero torque of
-		// the e-stop, so the log shows what was sent and what was applied.
-		r.advance(time.Time{})
-	}
-	return nil
-}
-
-// exchange sends the tick's state and waits for the command that echoes its
-// sequence number, resending after cfg.Resend and tripping the watchdog
-// after cfg.Watchdog. It returns false when the run must end.
-func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
-	r.sendState()
+// exchange waits for the command that echoes the state's sequence number,
+// resending the state after cfg.Resend and tripping the watchdog after
+// cfg.Watchdog. It returns false when the run must end.
+func (l *lockstepSource) exchange(ctx context.Context) bool {
+	r := l.r
+	ss := &r.sess
 	resendAt := time.Now().Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
-	for r.outcome == "" {
+	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
 		}
 		now := time.Now()
-		wd := lastValid.Add(r.cfg.Watchdog)
+		wd := l.lastValid.Add(r.cfg.Watchdog)
 		// Past the watchdog, read what is already waiting, without
 		// waiting for more: after a stall of the rig itself the answer may
 		// be in the buffer, and that is not the firmware's fault.
@@ -146,62 +83,61 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 		if wd.Before(deadline) {
 			deadline = wd
 		}
-		err := r.conn.Recv(deadline, &r.msg)
-		if err == nil && r.validReply(lastValid) {
+		err := ss.link.Recv(deadline, &ss.msg)
+		kind := classify(err, &ss.fe)
+		if kind == linkOK && l.validReply() {
 			return true
 		}
-		if errors.Is(err, bridges.ErrTimeout) && deadline.After(now) {
+		if kind == linkTimeout && deadline.After(now) {
 			// A wait that ended far later than its deadline means the rig
 			// process itself was not running (an overloaded host). A
 			// lockstep run does not blame the firmware for that: the
 			// watchdog counts only the time the rig was listening.
 			if late := time.Since(deadline); late > stallSlack {
-				*lastValid = lastValid.Add(late)
+				l.lastValid = l.lastValid.Add(late)
 				continue // and look again: the answer may have come meanwhile
 			}
 		}
 		if final {
 			looks++
 		}
-		if (final && (errors.Is(err, bridges.ErrTimeout) || looks > finalLooks)) ||
-			(errors.Is(err, bridges.ErrTimeout) && !time.Now().Before(wd)) {
-			r.watchdog(time.Since(*lastValid))
+		if (final && (kind == linkTimeout || looks > finalLooks)) ||
+			(kind == linkTimeout && !time.Now().Before(wd)) {
+			r.watchdog(time.Since(l.lastValid))
 			return false
 		}
-		switch {
-		case err == nil:
-			switch r.msg.Type {
+		switch kind {
+		case linkOK:
+			switch ss.msg.Type {
 			case protocol.TypeStop:
-				r.firmwareStop(r.msg.Stop)
+				r.firmwareStop(ss.msg.Stop)
 				return false
 			case protocol.TypeGreeting:
 				r.greetedAgain()
 			}
-			// A stale, dropped or corrupted command, a heartbeat, a repeated
-			// greeting: keep waiting.
-		case errors.Is(err, bridges.ErrTimeout):
+			// A stale command, a heartbeat, a repeated greeting: keep
+			// waiting. (Dropped and corrupted commands never get here: the
+			// fault link lost them or made them frame errors.)
+		case linkTimeout:
 			if !time.Now().Before(resendAt) {
 				if r.rec != nil {
 					r.rec.Flush() // rows must not sit in the buffer while the rig waits
 				}
-				r.counts.Resends++
+				r.health.counts.Resends++
 				r.sendState()
 				resendAt = time.Now().Add(r.cfg.Resend)
 			}
 			r.drainLinkEvents()
-		case errors.Is(err, bridges.ErrDisconnected):
+		case linkDisconnected:
 			// The link lost its peer and is trying to get it back: the link
 			// events say so, and the watchdog decides whether to wait.
 			r.disconnected(err)
-		case errors.Is(err, bridges.ErrClosed):
-			r.linkLost("link to the firmware closed")
-			if r.outcome == "" {
-				r.outcome, r.reason, r.stopCode = record.Aborted, "the link to the firmware closed", protocol.StopEStop
-			}
+		case linkClosed:
+			r.linkClosed()
 			return false
-		case errors.As(err, &r.fe):
-			r.badFrame(r.fe.Reason)
-		default:
+		case linkFrame:
+			r.badFrame(ss.fe.Reason)
+		case linkOther:
 			// An error the link does not classify: treat it as an outage.
 			// If it lasts, the watchdog ends the run; the short pause keeps
 			// a link that fails at once from spinning the loop.
@@ -212,32 +148,23 @@ func (r *runner) exchange(ctx context.Context, lastValid *time.Time) bool {
 	return false
 }
 
-// validReply checks a received message against the awaited sequence number
-// and the drop and corrupt faults. A valid command is queued for its tick
-// (now, or later under a latency fault) and resets the watchdog.
-func (r *runner) validReply(lastValid *time.Time) bool {
-	if r.msg.Type != protocol.TypeCommand {
+// validReply checks a received message against the awaited sequence
+// number. A valid command resets the watchdog and is held for its tick:
+// now, or later under a latency fault (rounded to whole ticks, so a run
+// stays bit-identical).
+func (l *lockstepSource) validReply() bool {
+	r := l.r
+	m := &r.sess.msg
+	if m.Type != protocol.TypeCommand {
 		return false
 	}
-	if r.msg.Seq != r.seq {
-		r.counts.StaleCommands++
+	if m.Seq != r.sess.seq {
+		r.health.counts.StaleCommands++
 		return false
 	}
-	if r.chance(FaultDrop, r.s.T, r.frng) {
-		r.counts.DroppedCommand++
-		return false
-	}
-	if r.chance(FaultCorrupt, r.s.T, r.frng) {
-		r.counts.Corrupted++
-		r.badFrame("injected corruption (a real link's CRC check rejects such a frame)")
-		return false
-	}
-	*lastValid = time.Now()
-	r.linkDown = false
-	delay := r.latencyDelay(r.s.T, r.frng)
-	k := int64(math.Round(delay.Seconds() * r.cfg.TickHz))
-	if !r.pending.push(r.tick+k, &r.msg.Command) {
-		r.counts.DroppedCommand++
-	}
+	l.lastValid = time.Now()
+	r.validCommand()
+	k := int64(math.Round(r.sess.link.delay.Seconds() * r.cfg.TickHz))
+	l.held.put(&heldCommand{cmd: m.Command, seq: m.Seq, release: r.pt.tick + k})
 	return true
 }

@@ -1,7 +1,9 @@
 package hil
 
-// This file holds the protocol session with the firmware: handshake, commands
-// and stop messages.
+// This file owns the protocol session with the firmware: the link (seen
+// through the fault decorator), sequence numbers, the message buffers, the
+// greeting and configuration, and what the firmware's command stream says
+// (torques, status bits, stops).
 
 import (
 	"errors"
@@ -16,44 +18,61 @@ import (
 	"gaitrig/record"
 )
 
+// session is the conversation with the firmware.
+type session struct {
+	link     *faultLink          // the firmware link with the injected faults
+	seq      uint32              // sequence number of the latest state
+	out      protocol.Message    // the state sent this tick
+	msg      protocol.Message    // the message received last
+	fe       *bridges.FrameError // target of errors.As, kept here so it is not allocated per Recv
+	greeting protocol.Greeting
+	config   protocol.Message // the configuration sent, kept to send again
+
+	// Edges of the command stream, so a condition that persists raises
+	// one alarm per episode.
+	lastFW uint16 // last firmware status, for firmware_fault on the rising edge
+	satNow bool   // the last command saturated
+}
+
 // handshake waits for the greeting, checks it and sends the configuration.
 func (r *runner) handshake() error {
+	ss := &r.sess
 	deadline := time.Now().Add(r.cfg.HandshakeTimeout)
 	for {
-		err := r.conn.Recv(deadline, &r.msg)
-		switch {
-		case errors.Is(err, bridges.ErrTimeout):
+		err := ss.link.Recv(deadline, &ss.msg)
+		switch classify(err, &ss.fe) {
+		case linkTimeout:
 			return fmt.Errorf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
-		case errors.Is(err, bridges.ErrDisconnected):
+		case linkDisconnected:
 			r.disconnected(err)
 			continue
-		case errors.Is(err, bridges.ErrClosed):
+		case linkClosed:
 			r.linkLost("the link closed before the firmware greeted")
 			return errors.New("hil: the link closed before the firmware greeted")
-		case errors.As(err, &r.fe):
+		case linkFrame:
 			// A greeting of another protocol version does not decode on a
 			// byte link; the link says so in the frame error. It is a
 			// version mismatch to refuse with stop(bad_version), not noise
 			// to wait through.
 			var pe *protocol.Error
-			if errors.As(r.fe, &pe) && pe.Kind == protocol.KindVersion && pe.Type == protocol.TypeGreeting {
+			if errors.As(ss.fe, &pe) && pe.Kind == protocol.KindVersion && pe.Type == protocol.TypeGreeting {
 				r.versionMismatch("the firmware", int(pe.Got))
 				return nil
 			}
-			r.badFrame(r.fe.Reason)
+			r.badFrame(ss.fe.Reason)
 			continue
-		case err != nil:
+		case linkOther:
 			return fmt.Errorf("hil: waiting for the greeting: %w", err)
 		}
-		if r.msg.Type == protocol.TypeGreeting {
+		if ss.msg.Type == protocol.TypeGreeting {
 			break
 		}
 		// Anything else before the greeting (a stray command from a previous
 		// run, a heartbeat) is not an error: the firmware may still be
 		// finishing its last session.
 	}
-	g := r.msg.Greeting
-	r.greeting = g
+	g := ss.msg.Greeting
+	ss.greeting = g
 	if r.rec != nil {
 		if err := r.rec.SetGreeting(record.Greeting{Name: g.Name, Build: g.Build, Protocol: int(g.Version), Actuators: int(g.Actuators)}); err != nil {
 			return err
@@ -64,11 +83,12 @@ func (r *runner) handshake() error {
 		return nil
 	}
 	if int(g.Actuators) != r.n {
-		r.stopCode = protocol.StopEStop
-		return fmt.Errorf("hil: firmware %q drives %d actuators, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
+		err := fmt.Errorf("hil: firmware %q drives %d actuators, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
+		r.end.end(record.Aborted, err.Error(), protocol.StopEStop)
+		return err
 	}
 	r.logf("firmware %q build %q greeted with protocol v%d, %d actuators", g.Name, g.Build, g.Version, g.Actuators)
-	c := &r.config
+	c := &ss.config
 	c.Type = protocol.TypeConfig
 	c.Config.TickHz = uint16(math.Min(math.Round(r.cfg.TickHz), math.MaxUint16))
 	c.Config.Lockstep = r.cfg.Clock == Lockstep
@@ -77,7 +97,7 @@ func (r *runner) handshake() error {
 		c.Config.JointNames[i] = name
 		c.Config.TorqueLimit[i] = float32(r.act.limit[i])
 	}
-	if err := r.conn.Send(c); err != nil {
+	if err := ss.link.Send(c); err != nil {
 		return fmt.Errorf("hil: sending the configuration: %w", err)
 	}
 	return nil
@@ -91,8 +111,7 @@ func (r *runner) versionMismatch(who string, version int) {
 	r.al.raise(AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
 		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version)}
 	})
-	r.stopCode = protocol.StopBadVersion
-	r.outcome, r.reason = record.Tripped, msg
+	r.end.end(record.Tripped, msg, protocol.StopBadVersion)
 }
 
 // greetedAgain handles a greeting after the handshake. Before the first
@@ -100,31 +119,32 @@ func (r *runner) versionMismatch(who string, version int) {
 // After commands have come it means the firmware restarted mid-run: an
 // alarm, and the configuration again so it can go on.
 func (r *runner) greetedAgain() {
-	if r.counts.Commands > 0 {
-		if r.al.raise(AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
-			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(r.counts.Commands)}
+	if n := r.health.counts.Commands; n > 0 {
+		if r.al.raise(AlarmFirmwareFault, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(n)}
 		}) {
 			r.trip(protocol.StopEStop)
 			return
 		}
 	}
-	r.conn.Send(&r.config)
+	r.sess.link.Send(&r.sess.config)
 }
 
 // takeCommand applies one valid command from the firmware: torque checks,
 // saturation and status alarms.
 func (r *runner) takeCommand(c *protocol.Command) {
-	r.counts.Commands++
+	ss := &r.sess
+	r.health.counts.Commands++
 	r.fresh = true
 	for i := 0; i < protocol.MaxJoints; i++ {
-		r.commanded[i] = float64(c.Torque[i])
+		r.pt.commanded[i] = float64(c.Torque[i])
 	}
 	chk := r.act.command(c)
 	switch {
 	case chk.wrongJoints:
-		r.counts.BadTorques++
+		r.health.counts.BadTorques++
 		n := c.Joints
-		if r.al.raise(AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmBadTorque, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("command carries %d torques, this walker has %d joints: rejected, zero torque applied", n, r.n),
 				map[string]float64{"torques": float64(n), "joints": float64(r.n)}
 		}) {
@@ -132,9 +152,9 @@ func (r *runner) takeCommand(c *protocol.Command) {
 		}
 		return
 	case chk.bad:
-		r.counts.BadTorques++
+		r.health.counts.BadTorques++
 		j, v := chk.badJoint, chk.badValue
-		if r.al.raise(AlarmBadTorque, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmBadTorque, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("commanded torque %s = %g N·m is not a usable torque (NaN, infinite or beyond %g N·m): command rejected, zero torque applied", r.names[j], v, r.act.model.Sanity),
 				map[string]float64{"joint": float64(j), "torque_nm": v, "sanity_nm": r.act.model.Sanity}
 		}) {
@@ -142,61 +162,54 @@ func (r *runner) takeCommand(c *protocol.Command) {
 		}
 		return
 	}
-	if chk.saturated && !r.satNow {
+	if chk.saturated && !ss.satNow {
 		j, v := chk.satJoint, chk.satValue
-		if r.al.raise(AlarmTorqueSaturation, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmTorqueSaturation, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
 			return fmt.Sprintf("commanded torque %s = %.4g N·m beyond the limit %.4g N·m: clipped", r.names[j], v, r.act.limit[j]),
 				map[string]float64{"joint": float64(j), "torque_nm": v, "limit_nm": r.act.limit[j]}
 		}) {
 			r.trip(protocol.StopEStop)
 		}
 	}
-	r.satNow = chk.saturated
-	if c.Status&protocol.StatusFault != 0 && r.lastFW&protocol.StatusFault == 0 {
+	ss.satNow = chk.saturated
+	if c.Status&protocol.StatusFault != 0 && ss.lastFW&protocol.StatusFault == 0 {
 		st := c.Status
-		if r.al.raise(AlarmFirmwareFault, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmFirmwareFault, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
 			return "the firmware reports an internal fault (status bit 0 set)", map[string]float64{"status": float64(st)}
 		}) {
 			r.trip(protocol.StopEStop)
 		}
 	}
-	r.lastFW = c.Status
+	ss.lastFW = c.Status
 }
 
 // firmwareStop handles a Stop from the firmware: the run cannot go on.
 func (r *runner) firmwareStop(st protocol.Stop) {
-	text := st.Text
+	msg := fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, st.Text)
 	// The run ends here, so this alarm is logged even inside the rate limit.
 	r.al.counts[AlarmFirmwareFault]++
-	if r.al.emit(alarm{kind: AlarmFirmwareFault, tick: r.tick, t: r.s.T, foot: -1, segment: -1,
-		message: fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), values: map[string]float64{"reason": float64(st.Reason)}}) {
+	if r.al.emit(alarm{kind: AlarmFirmwareFault, tick: r.pt.tick, t: r.pt.s.T, foot: -1, segment: -1,
+		message: msg, values: map[string]float64{"reason": float64(st.Reason)}}) {
 		r.trip(protocol.StopFirmware)
 		return
 	}
-	if r.outcome == "" {
-		r.outcome, r.reason, r.stopCode = record.Fail, fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, text), protocol.StopFirmware
-	}
+	r.end.end(record.Fail, msg, protocol.StopFirmware)
 }
 
-// sendState sends the tick's state unless a drop fault eats it.
+// sendState sends the tick's state; the fault link may lose it. A Send
+// that fails because the link is down or closed loses this state too;
+// Recv reports the link's condition and the watchdog decides.
 func (r *runner) sendState() {
-	if r.chance(FaultDrop, r.s.T, r.frng) {
-		r.counts.DroppedStates++
-		return
-	}
-	r.counts.StatesSent++
-	// A Send that fails because the link is down or closed loses this
-	// state; Recv reports the link's condition and the watchdog decides.
-	r.conn.Send(&r.out)
+	r.sess.link.Send(&r.sess.out)
 }
 
 // sendStop tells the firmware the run is over and why.
 func (r *runner) sendStop() {
 	var m protocol.Message
 	m.Type = protocol.TypeStop
-	m.Seq = r.seq + 1
-	m.Stop.Reason = r.stopCode
-	text := r.reason
+	m.Seq = r.sess.seq + 1
+	m.Stop.Reason = r.end.stopCode
+	text := r.end.reason
 	if text == "" {
 		text = "run finished"
 	}
@@ -209,5 +222,5 @@ func (r *runner) sendStop() {
 		text = text[:cut]
 	}
 	m.Stop.Text = text
-	r.conn.Send(&m)
+	r.sess.link.Send(&m)
 }

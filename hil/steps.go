@@ -1,5 +1,9 @@
 package hil
 
+// This file owns step tracking: the per-step metrics accumulated between
+// heel strikes (duration, length, work, friction and normal-force extremes,
+// centre-of-pressure travel) and the run's mean speed.
+
 import (
 	"math"
 

@@ -1,7 +1,9 @@
 package hil
 
-// This file holds one tick of the plant: sensing, pushes, integration,
-// telemetry and plant events.
+// This file owns one tick of the plant and its telemetry row: the plant
+// state, input and result, what the sensors read, the hip pushes, the
+// contact extremes of the run, and the row written to the record; and it
+// turns plant events into step boundaries and alarms.
 
 import (
 	"fmt"
@@ -13,24 +15,52 @@ import (
 	"gaitrig/record"
 )
 
-// sense fills r.out with the state the firmware will see this tick.
+// plantTick is the plant side of the loop: everything one tick of the
+// plant reads and writes, allocated once in newRunner.
+type plantTick struct {
+	tick int64 // index of the tick being run; after the loop, the number of ticks run
+	s    plant.State
+	in   plant.Input
+	res  plant.TickResult
+	tr   truth // noise-free reading of the plant, for the sensor bank
+
+	pushes  []pushState
+	contact contactExtremes // of the stance foot over the whole run
+
+	// The row of the tick just stepped, and what it logs besides the plant.
+	row       record.Tick
+	recStart  time.Time                   // the record's start time, origin of Tick.WallS
+	commanded [protocol.MaxJoints]float64 // torques of the command in force, as sent
+	latUS     float64                     // round trip of this tick's command, µs (wall-clock; NaN without one)
+
+	rate0, rate1, angleTmp []float64 // joint rates before and after the step, scratch angles
+}
+
+type pushState struct {
+	Push
+	start float64 // resolved start time, NaN until known
+}
+
+// sense fills the session's outgoing state with what the firmware's
+// sensors read this tick, under the next sequence number.
 func (r *runner) sense() {
-	r.m.JointState(&r.s, r.tr.angle[:r.n], r.tr.rate[:r.n])
-	r.tr.joints = r.n
-	r.tr.pitch, r.tr.pitchV = r.m.IMU(&r.s)
-	r.tr.normal = [2]float64{r.res.Contacts[0].Normal, r.res.Contacts[1].Normal}
-	r.tr.timeUS = uint64(math.Round(r.s.T * 1e6))
-	r.out.Type = protocol.TypeState
-	r.seq++
-	r.out.Seq = r.seq
-	r.sens.read(r.s.T, &r.tr, &r.out.State)
+	pt, ss := &r.pt, &r.sess
+	r.m.JointState(&pt.s, pt.tr.angle[:r.n], pt.tr.rate[:r.n])
+	pt.tr.joints = r.n
+	pt.tr.pitch, pt.tr.pitchV = r.m.IMU(&pt.s)
+	pt.tr.normal = [2]float64{pt.res.Contacts[0].Normal, pt.res.Contacts[1].Normal}
+	pt.tr.timeUS = uint64(math.Round(pt.s.T * 1e6))
+	ss.out.Type = protocol.TypeState
+	ss.seq++
+	ss.out.Seq = ss.seq
+	r.sens.read(pt.s.T, &pt.tr, &ss.out.State)
 }
 
 // pushForce is the hip force over the tick that starts at t.
 func (r *runner) pushForce(t float64) [2]float64 {
 	var f [2]float64
-	for i := range r.pushes {
-		p := &r.pushes[i]
+	for i := range r.pt.pushes {
+		p := &r.pt.pushes[i]
 		if math.IsNaN(p.start) || t+r.dt <= p.start {
 			continue
 		}
@@ -50,49 +80,50 @@ func (r *runner) pushForce(t float64) [2]float64 {
 // advance steps the plant one tick with the applied torque, then records
 // the tick, raises plant alarms and closes steps.
 func (r *runner) advance(wall time.Time) {
+	pt := &r.pt
 	applied := r.act.step()
 	for i := 0; i < r.n; i++ {
-		r.in.Torque[i] = applied[i]
+		pt.in.Torque[i] = applied[i]
 	}
-	t0 := r.s.T
-	r.in.HipForce = r.pushForce(t0)
-	r.m.JointState(&r.s, r.angleTmp, r.rate0)
-	r.m.Step(&r.s, &r.in, r.dt, &r.res)
-	r.m.JointState(&r.s, r.angleTmp, r.rate1)
+	t0 := pt.s.T
+	pt.in.HipForce = r.pushForce(t0)
+	r.m.JointState(&pt.s, pt.angleTmp, pt.rate0)
+	r.m.Step(&pt.s, &pt.in, r.dt, &pt.res)
+	r.m.JointState(&pt.s, pt.angleTmp, pt.rate1)
 	// Actuator work by the midpoint rule on the joint rate over the tick.
 	var pos, neg float64
 	for i := 0; i < r.n; i++ {
-		p := applied[i] * 0.5 * (r.rate0[i] + r.rate1[i]) * r.dt
+		p := applied[i] * 0.5 * (pt.rate0[i] + pt.rate1[i]) * r.dt
 		if p > 0 {
 			pos += p
 		} else {
 			neg += p
 		}
 	}
-	st := r.s.Stance
-	fc := &r.res.Contacts[st]
-	r.contact.add(fc)
+	fc := &pt.res.Contacts[pt.s.Stance]
+	pt.contact.add(fc)
 	r.steps.tick(pos, neg, fc)
 	r.record(wall)
-	for i := 0; i < r.res.NumEvents; i++ {
-		r.plantEvent(&r.res.Events[i])
+	for i := 0; i < pt.res.NumEvents; i++ {
+		r.plantEvent(&pt.res.Events[i])
 	}
-	if r.res.Dropped > 0 {
-		r.al.info("events_dropped", r.tick, r.s.T, fmt.Sprintf("%d plant events in one tick did not fit the tick record", r.res.Dropped), nil)
+	if pt.res.Dropped > 0 {
+		r.al.info("events_dropped", pt.tick, pt.s.T, fmt.Sprintf("%d plant events in one tick did not fit the tick record", pt.res.Dropped), nil)
 	}
-	if r.res.Stopped && r.outcome == "" {
-		r.outcome, r.reason, r.stopCode = record.Fail, "the plant stopped at an event it was told not to continue past", protocol.StopEnd
-		for i := r.res.NumEvents - 1; i >= 0; i-- {
-			if k, ok := alarmKind(r.res.Events[i].Kind); ok {
-				r.reason = "the plant stopped at " + k + " (physics set to stop there)"
+	if pt.res.Stopped && !r.end.set() {
+		reason := "the plant stopped at an event it was told not to continue past"
+		for i := pt.res.NumEvents - 1; i >= 0; i-- {
+			if k, ok := alarmKind(pt.res.Events[i].Kind); ok {
+				reason = "the plant stopped at " + k + " (physics set to stop there)"
 				break
 			}
 		}
+		r.end.end(record.Fail, reason, protocol.StopEnd)
 	}
 	if r.onTick != nil {
 		r.onTick()
 	}
-	r.tick++
+	pt.tick++
 }
 
 // record writes the telemetry row of the tick just stepped. The row holds
@@ -102,37 +133,39 @@ func (r *runner) record(wall time.Time) {
 	if r.rec == nil {
 		return
 	}
-	row := &r.row
-	row.Index = r.tick
-	row.T = r.s.T
+	pt := &r.pt
+	row := &pt.row
+	row.Index = pt.tick
+	row.T = pt.s.T
 	if r.cfg.Clock == Wallclock {
-		row.WallS = wall.Sub(r.recStart).Seconds()
-		row.LatencyUS = r.latUS
+		row.WallS = wall.Sub(pt.recStart).Seconds()
+		row.LatencyUS = pt.latUS
 	} else {
 		// Lockstep logs must be identical run to run: no wall time, no latency.
 		row.WallS = 0
 		row.LatencyUS = math.NaN()
 	}
 	nq := r.m.NumDOF()
-	copy(row.Q[:nq], r.s.Q[:nq])
-	copy(row.V[:nq], r.s.V[:nq])
+	copy(row.Q[:nq], pt.s.Q[:nq])
+	copy(row.V[:nq], pt.s.V[:nq])
+	sent := &r.sess.out.State
 	for i := 0; i < r.n; i++ {
-		row.Angle[i] = float64(r.out.State.Angle[i])
-		row.Rate[i] = float64(r.out.State.Rate[i])
-		row.Commanded[i] = r.commanded[i]
-		row.Applied[i] = r.in.Torque[i]
+		row.Angle[i] = float64(sent.Angle[i])
+		row.Rate[i] = float64(sent.Rate[i])
+		row.Commanded[i] = pt.commanded[i]
+		row.Applied[i] = pt.in.Torque[i]
 	}
-	row.Push = r.in.HipForce
+	row.Push = pt.in.HipForce
 	for i := 0; i < 2; i++ {
-		c := &r.res.Contacts[i]
+		c := &pt.res.Contacts[i]
 		row.Feet[i] = record.Foot{Mode: int(c.Mode), NormalN: c.Normal, TangentialN: c.Tangential,
 			Utilization: c.Utilization, CoP: c.CoP, ContactX: c.Point[0]}
 	}
-	row.Kinetic, row.Potential = r.m.Energy(&r.s)
+	row.Kinetic, row.Potential = r.m.Energy(&pt.s)
 	row.Fresh = r.fresh
-	row.Stance = r.s.Stance
-	if err := r.rec.Tick(row); err != nil && r.outcome == "" {
-		r.outcome, r.reason, r.stopCode = record.Aborted, "telemetry could not be written: "+err.Error(), protocol.StopAborted
+	row.Stance = pt.s.Stance
+	if err := r.rec.Tick(row); err != nil && !r.end.set() {
+		r.end.end(record.Aborted, "telemetry could not be written: "+err.Error(), protocol.StopAborted)
 	}
 }
 
@@ -169,7 +202,7 @@ func (r *runner) plantEvent(e *plant.Event) {
 		return
 	}
 	ev := *e
-	if r.al.raise(kind, r.tick, e.T, e.Foot, e.Segment, func() (string, map[string]float64) {
+	if r.al.raise(kind, r.pt.tick, e.T, e.Foot, e.Segment, func() (string, map[string]float64) {
 		return plantMessage(&ev), map[string]float64{"value": ev.Value, "limit": ev.Limit}
 	}) {
 		r.trip(protocol.StopEStop)
@@ -213,19 +246,20 @@ func plantMessage(e *plant.Event) string {
 
 // heelStrike closes a step.
 func (r *runner) heelStrike(e *plant.Event) {
-	st := r.steps.strike(r.m, &r.s, e, &r.res)
+	pt := &r.pt
+	st := r.steps.strike(r.m, &pt.s, e, &pt.res)
 	if r.rec != nil {
-		if err := r.rec.Step(st); err != nil && r.outcome == "" {
-			r.outcome, r.reason, r.stopCode = record.Aborted, "steps table could not be written: "+err.Error(), protocol.StopAborted
+		if err := r.rec.Step(st); err != nil && !r.end.set() {
+			r.end.end(record.Aborted, "steps table could not be written: "+err.Error(), protocol.StopAborted)
 		}
 	}
-	for i := range r.pushes {
-		if p := &r.pushes[i]; p.AtStep == st.Index {
-			p.start = r.s.T
+	for i := range pt.pushes {
+		if p := &pt.pushes[i]; p.AtStep == st.Index {
+			p.start = pt.s.T
 		}
 	}
 	if r.cfg.OnStep != nil {
 		r.cfg.OnStep(StepInfo{Index: st.Index, DurationS: st.DurationS, LengthM: st.LengthM, SpeedMPS: st.SpeedMPS,
-			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: r.s.T})
+			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: pt.s.T})
 	}
 }

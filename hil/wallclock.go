@@ -1,9 +1,12 @@
 package hil
 
+// This file holds the wall-clock clock: ticks paced by the real clock, a
+// receiver goroutine that reads the link into a mailbox, and each tick
+// applying the newest command that has arrived (it answers an earlier
+// state; none holds the last torque).
+
 import (
 	"context"
-	"errors"
-	"math/rand/v2"
 	"runtime"
 	"sync"
 	"sync/atomic"
@@ -11,7 +14,6 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
-	"gaitrig/record"
 )
 
 // sentRing remembers when each recent state was sent, indexed by sequence
@@ -19,138 +21,118 @@ import (
 // without locks or allocation.
 const sentRing = 1024
 
-// inbound is one command on its way from the receiver to the loop.
-type inbound struct {
-	cmd     protocol.Command
-	seq     uint32
-	release int64 // ns since loop start when it may be applied (latency fault)
-	latency time.Duration
-	timed   bool // latency is known (the state it answers was in the ring)
+// receivePoll is how long one Recv of the receiver waits, so it sees the
+// end of the run soon after the loop asks.
+const receivePoll = 5 * time.Millisecond
+
+// wallclock runs the ticks paced by the real clock, on a thread of its own
+// with the real-time scheduling class if granted.
+func (r *runner) wallclock(ctx context.Context) {
+	runtime.LockOSThread()
+	defer runtime.UnlockOSThread()
+	tm := &r.times
+	if r.cfg.RealtimePriority > 0 {
+		var granted bool
+		granted, tm.realtime = requestRealtime(r.cfg.RealtimePriority)
+		if granted {
+			defer dropRealtime()
+		}
+	} else {
+		tm.realtime = "real-time scheduling not requested"
+	}
+	r.logf("%s", tm.realtime)
+	r.al.info("scheduling", 0, 0, tm.realtime, nil)
+
+	r.sess.link.await(awaitAny) // every command meets the link faults
+	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{})}
+	go rc.loop()
+	defer func() {
+		rc.stop.Store(true)
+		<-rc.done
+	}()
+	period := time.Duration(float64(time.Second) / r.cfg.TickHz)
+	p := &realPacer{start: rc.base.Add(period), period: period, jitter: tm.jitter} // first tick one period after the receiver started
+	src := &wallclockSource{r: r, rc: rc, lastValid: p.start}
+	r.ticks(ctx, p, src)
 }
 
 // mailbox carries commands from the receiver goroutine to the loop: a
-// fixed ring under a mutex, so a burst (a flood, or commands held back by a
-// latency fault) is kept in order and nothing allocates. It holds as many
-// commands as the lockstep latency queue, the bound Config checks latency
-// faults against, so the longest allowed delay loses nothing here either.
+// commandRing under a mutex, released by nanoseconds since the receiver
+// started.
 type mailbox struct {
-	mu    sync.Mutex
-	items [latencyQueueCap]inbound
-	head  int
-	n     int
-	lost  int // overwritten because the loop did not keep up, not yet reported
+	mu   sync.Mutex
+	ring commandRing
 }
 
-func (b *mailbox) put(in *inbound) {
+func (b *mailbox) put(c *heldCommand) {
 	b.mu.Lock()
-	if b.n == len(b.items) {
-		b.head = (b.head + 1) % len(b.items)
-		b.n--
-		b.lost++
-	}
-	b.items[(b.head+b.n)%len(b.items)] = *in
-	b.n++
+	b.ring.put(c)
 	b.mu.Unlock()
 }
 
-// takeDue removes every command released by now. Each one's latency goes
-// to lat; the newest one answering a state that was sent (seq ≤ maxSeq) is
-// copied to out. It returns how many were taken and whether out was set; a
-// command for a sequence number never sent is garbage and only counted.
-// Commands overwritten in a full mailbox since the last call count as taken
-// (and not applied), so the loop's stale count includes them.
-func (b *mailbox) takeDue(now int64, maxSeq uint32, out *inbound, lat *Histogram) (taken int, ok bool) {
+// takeDue is commandRing.takeDue under the lock.
+func (b *mailbox) takeDue(now int64, maxSeq uint32, out *heldCommand, lat *Histogram) (taken int, ok bool) {
 	b.mu.Lock()
-	taken, b.lost = b.lost, 0
-	for b.n > 0 {
-		it := &b.items[b.head]
-		if it.release > now {
-			break
-		}
-		if it.timed {
-			lat.Add(it.latency)
-		}
-		if it.seq <= maxSeq && (!ok || it.seq > out.seq) {
-			*out = *it
-			ok = true
-		}
-		taken++
-		b.head = (b.head + 1) % len(b.items)
-		b.n--
-	}
+	taken, ok = b.ring.takeDue(now, maxSeq, out, lat)
 	b.mu.Unlock()
 	return taken, ok
 }
 
-// receiver reads the link on its own goroutine in wall-clock mode.
+// receiver reads the link on its own goroutine in wall-clock mode and
+// reports to the loop through atomics; the loop acts on the reports at its
+// next tick.
 type receiver struct {
 	r       *runner
 	base    time.Time
 	sentAt  [sentRing]atomic.Int64
 	sentSeq [sentRing]atomic.Uint32
 	box     mailbox
-	rng     *rand.Rand // drop, corrupt and latency draws (this goroutine only)
 	stop    atomic.Bool
 	done    chan struct{}
 
 	badFrames atomic.Uint64
 	lastBad   atomic.Pointer[string]
-	corrupted atomic.Uint64
-	dropped   atomic.Uint64
 	closed    atomic.Bool
-	down      atomic.Bool // Recv reported bridges.ErrDisconnected
+	down      atomic.Bool // Recv reported the peer gone, or an error the link does not classify
 	greeted   atomic.Bool // a greeting came after the handshake
 	fwStop    atomic.Pointer[protocol.Stop]
-	simT      atomic.Uint64 // tick index, for fault windows
 }
 
 func (rc *receiver) loop() {
 	defer close(rc.done)
 	var m protocol.Message
-	var in inbound
+	var in heldCommand
 	var fe *bridges.FrameError
-	r := rc.r
+	link := rc.r.sess.link
 	for !rc.stop.Load() {
-		err := r.conn.Recv(time.Now().Add(5*time.Millisecond), &m)
+		err := link.Recv(time.Now().Add(receivePoll), &m)
 		now := time.Since(rc.base)
-		switch {
-		case err == nil:
-		case errors.Is(err, bridges.ErrTimeout):
+		switch classify(err, &fe) {
+		case linkOK:
+		case linkTimeout:
 			continue
-		case errors.Is(err, bridges.ErrDisconnected):
+		case linkDisconnected:
 			rc.down.Store(true) // the loop raises link_lost if the link has no events of its own
 			continue
-		case errors.Is(err, bridges.ErrClosed):
+		case linkClosed:
 			rc.closed.Store(true)
 			return
-		case errors.As(err, &fe):
+		case linkFrame:
 			reason := fe.Reason
 			rc.lastBad.Store(&reason)
 			rc.badFrames.Add(1)
 			continue
-		default:
-			// Unclassified link error: an outage until the watchdog says
-			// otherwise; pause so a link that fails at once cannot spin.
+		case linkOther:
+			// An outage until the watchdog says otherwise; pause so a link
+			// that fails at once cannot spin.
 			rc.down.Store(true)
 			time.Sleep(time.Millisecond)
 			continue
 		}
 		switch m.Type {
 		case protocol.TypeCommand:
-			t := float64(rc.simT.Load()) * r.dt
-			if r.chance(FaultDrop, t, rc.rng) {
-				rc.dropped.Add(1)
-				continue
-			}
-			if r.chance(FaultCorrupt, t, rc.rng) {
-				reason := "injected corruption (a real link's CRC check rejects such a frame)"
-				rc.lastBad.Store(&reason)
-				rc.corrupted.Add(1)
-				rc.badFrames.Add(1)
-				continue
-			}
 			in.cmd, in.seq = m.Command, m.Seq
-			release := now + r.latencyDelay(t, rc.rng)
+			release := now + link.delay
 			in.release = int64(release)
 			slot := m.Seq % sentRing
 			in.timed = rc.sentSeq[slot].Load() == m.Seq
@@ -167,124 +149,76 @@ func (rc *receiver) loop() {
 	}
 }
 
-// wallclock runs ticks paced by the real clock.
-func (r *runner) wallclock(ctx context.Context) error {
-	runtime.LockOSThread()
-	defer runtime.UnlockOSThread()
-	if r.cfg.RealtimePriority > 0 {
-		var granted bool
-		granted, r.realtime = requestRealtime(r.cfg.RealtimePriority)
-		if granted {
-			defer dropRealtime()
-		}
-	} else {
-		r.realtime = "real-time scheduling not requested"
-	}
-	r.logf("%s", r.realtime)
-	r.al.info("scheduling", 0, 0, r.realtime, nil)
-
-	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{}),
-		rng: rand.New(rand.NewPCG(uint64(r.cfg.Seed), 0x2ec5))}
-	go rc.loop()
-	defer func() {
-		rc.stop.Store(true)
-		<-rc.done
-	}()
-
-	period := time.Duration(float64(time.Second) / r.cfg.TickHz)
-	start := rc.base.Add(period) // first tick one period after the receiver started
-	lastValid := start
-	var lastBad, lastCorrupt uint64
-	var in inbound
-	var appliedSeq uint32
-	for !r.done() {
-		due := start.Add(time.Duration(r.tick) * period)
-		waitUntil(due)
-		now := time.Now()
-		r.jitter.Add(now.Sub(due))
-		if r.aborted(ctx) {
-			break
-		}
-		r.drainLinkEvents()
-		if n := rc.badFrames.Load(); n != lastBad {
-			c := rc.corrupted.Load()
-			r.counts.Corrupted += c - lastCorrupt
-			lastCorrupt = c
-			reason := "a frame failed its checks"
-			if p := rc.lastBad.Load(); p != nil {
-				reason = *p
-			}
-			// One alarm per tick at most; the count is exact.
-			r.counts.BadFrames += n - lastBad - 1
-			lastBad = n
-			r.badFrame(reason)
-		}
-		if rc.down.Swap(false) {
-			r.disconnected(bridges.ErrDisconnected)
-		}
-		if rc.greeted.Swap(false) {
-			r.greetedAgain()
-		}
-		if st := rc.fwStop.Load(); st != nil {
-			r.firmwareStop(*st)
-			break
-		}
-		if rc.closed.Load() {
-			r.linkLost("link to the firmware closed")
-			if r.outcome == "" {
-				r.outcome, r.reason, r.stopCode = record.Aborted, "the link to the firmware closed", protocol.StopEStop
-			}
-			break
-		}
-		r.fresh = false
-		r.latUS = nan
-		if k, ok := rc.box.takeDue(int64(now.Sub(rc.base)), r.seq, &in, r.latency); k > 0 {
-			if ok && in.seq > appliedSeq {
-				appliedSeq = in.seq
-				lastValid = now
-				r.linkDown = false
-				if in.timed {
-					r.latUS = float64(in.latency) / float64(time.Microsecond)
-				}
-				r.takeCommand(&in.cmd)
-				r.counts.StaleCommands += uint64(k - 1)
-			} else {
-				r.counts.StaleCommands += uint64(k)
-			}
-		}
-		if r.outcome != "" {
-			// The tripping command still gets its tick with the e-stop's
-			// zero torque, so the log shows what was sent and applied.
-			r.advance(now)
-			break
-		}
-		if silent := now.Sub(lastValid); silent > r.cfg.Watchdog {
-			r.watchdog(silent)
-			break
-		}
-		// Send this tick's state, then step the plant while the firmware
-		// computes; its answer is applied at the next tick.
-		r.sense()
-		if r.chance(FaultDrop, r.s.T, r.frng) {
-			r.counts.DroppedStates++
-		} else {
-			slot := r.seq % sentRing
-			rc.sentAt[slot].Store(int64(time.Since(rc.base)))
-			rc.sentSeq[slot].Store(r.seq)
-			r.counts.StatesSent++
-			r.conn.Send(&r.out) // a failed send loses this state; the receiver reports the link
-		}
-		rc.simT.Store(uint64(r.tick))
-		r.advance(now)
-		if time.Now().After(due.Add(period)) {
-			r.misses++
-			if r.al.raise(AlarmDeadlineMiss, r.tick, r.s.T, -1, -1, func() (string, map[string]float64) {
-				return "a tick's work ended after the next tick was due", map[string]float64{"misses_so_far": float64(r.misses)}
-			}) {
-				r.trip(protocol.StopEStop)
-			}
-		}
-	}
-	r.counts.DroppedCommand += rc.dropped.Load()
-	return nil
+// wallclockSource obtains each tick's command from the mailbox.
+type wallclockSource struct {
+	r          *runner
+	rc         *receiver
+	lastValid  time.Time // tick start at which the last valid command was applied
+	lastBad    uint64    // receiver's bad-frame count already reported
+	appliedSeq uint32    // sequence number of the newest command applied
+	take       heldCommand
 }
+
+// beforeState acts on what the receiver reported, applies the newest due
+// command and checks the watchdog.
+func (w *wallclockSource) beforeState(now time.Time) bool {
+	r, rc := w.r, w.rc
+	if n := rc.badFrames.Load(); n != w.lastBad {
+		reason := "a frame failed its checks"
+		if p := rc.lastBad.Load(); p != nil {
+			reason = *p
+		}
+		// One alarm per tick at most; the count is exact.
+		r.health.counts.BadFrames += n - w.lastBad - 1
+		w.lastBad = n
+		r.badFrame(reason)
+	}
+	if rc.down.Swap(false) {
+		r.disconnected(bridges.ErrDisconnected)
+	}
+	if rc.greeted.Swap(false) {
+		r.greetedAgain()
+	}
+	if st := rc.fwStop.Load(); st != nil {
+		r.firmwareStop(*st)
+		return false
+	}
+	if rc.closed.Load() {
+		r.linkClosed()
+		return false
+	}
+	if k, ok := rc.box.takeDue(int64(now.Sub(rc.base)), r.sess.seq, &w.take, r.times.latency); k > 0 {
+		if ok && w.take.seq > w.appliedSeq {
+			w.appliedSeq = w.take.seq
+			w.lastValid = now
+			r.validCommand()
+			if w.take.timed {
+				r.pt.latUS = float64(w.take.latency) / float64(time.Microsecond)
+			}
+			r.takeCommand(&w.take.cmd)
+			r.health.counts.StaleCommands += uint64(k - 1)
+		} else {
+			r.health.counts.StaleCommands += uint64(k)
+		}
+	}
+	if r.end.set() {
+		return true // the tick runs, with the e-stop's torque
+	}
+	if silent := now.Sub(w.lastValid); silent > r.cfg.Watchdog {
+		r.watchdog(silent)
+		return false
+	}
+	return true
+}
+
+// sending notes when the state went out, for the round trip of its
+// answer.
+func (w *wallclockSource) sending(seq uint32) {
+	slot := seq % sentRing
+	w.rc.sentAt[slot].Store(int64(time.Since(w.rc.base)))
+	w.rc.sentSeq[slot].Store(seq)
+}
+
+// afterState returns at once: the answer to this state is applied at a
+// later tick.
+func (w *wallclockSource) afterState(context.Context) bool { return true }

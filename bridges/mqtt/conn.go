@@ -42,8 +42,8 @@
 // # Reconnecting
 //
 // paho's automatic reconnect is on. A lost connection is reported on Events
-// as a "disconnected" LinkEvent with the cause; when the link is back (and
-// the subscriptions are renewed) a "reconnected" event carries the length of
+// as a bridges.LinkDisconnected event with the cause; when the link is back (and
+// the subscriptions are renewed) a bridges.LinkReconnected event carries the length of
 // the gap. While disconnected, Send returns an error instead of silently
 // dropping the message. A broker that dies or a line that breaks is noticed
 // at once; a broker that hangs with its sockets open is noticed only by the
@@ -130,7 +130,7 @@ type Conn struct {
 	firstDone atomic.Bool
 	mu        sync.Mutex // guards the fields below
 	down      bool       // a gap has started and not yet ended
-	announced bool       // its "disconnected" event has been sent
+	announced bool       // its LinkDisconnected event has been sent
 	lostAt    time.Time
 	lostErr   error
 	status    []byte // last status from PublishStatus, republished on reconnect
@@ -299,7 +299,7 @@ func (c *Conn) onConnect(cl paho.Client) {
 		return
 	}
 	if err != nil {
-		c.event(bridges.LinkEvent{Kind: "disconnected", Err: err})
+		c.event(bridges.LinkEvent{Kind: bridges.LinkDisconnected, Err: err})
 		return
 	}
 	c.mu.Lock()
@@ -310,11 +310,11 @@ func (c *Conn) onConnect(cl paho.Client) {
 	if announce {
 		// paho runs its lost-connection callback on a goroutine of its
 		// own, which has not run yet; keep the events in order.
-		c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s", c.url.Host)})
+		c.event(bridges.LinkEvent{Kind: bridges.LinkDisconnected, Err: fmt.Errorf("mqtt: lost the connection to broker %s", c.url.Host)})
 	}
 	c.connected.Store(true)
 	c.counts.Reconnects.Add(1)
-	c.event(bridges.LinkEvent{Kind: "reconnected", Gap: gap})
+	c.event(bridges.LinkEvent{Kind: bridges.LinkReconnected, Gap: gap})
 }
 
 // subscribe asks for the incoming and stop topics and checks the answer.
@@ -368,7 +368,7 @@ func (c *Conn) onLost(cl paho.Client, err error) {
 	c.announced = true
 	c.mu.Unlock()
 	if announce {
-		c.event(bridges.LinkEvent{Kind: "disconnected", Err: fmt.Errorf("mqtt: lost the connection to broker %s: %w", c.url.Host, err)})
+		c.event(bridges.LinkEvent{Kind: bridges.LinkDisconnected, Err: fmt.Errorf("mqtt: lost the connection to broker %s: %w", c.url.Host, err)})
 	}
 }
 

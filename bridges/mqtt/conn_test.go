@@ -458,7 +458,7 @@ func statusState(t *testing.T, line string) (state, reason string) {
 	return doc.State, doc.Reason
 }
 
-func nextEvent(t *testing.T, c *Conn, kind string) bridges.LinkEvent {
+func nextEvent(t *testing.T, c *Conn, kind bridges.LinkEventKind) bridges.LinkEvent {
 	t.Helper()
 	timeout := time.After(3 * wait)
 	for {
@@ -498,7 +498,7 @@ func TestStatusAndLastWill(t *testing.T) {
 			if st, why := statusState(t, s.line(t)); st != "offline" || why != "connection lost" {
 				t.Fatalf("after the cut: state %q reason %q, want offline / connection lost", st, why)
 			}
-			e := nextEvent(t, r, "disconnected")
+			e := nextEvent(t, r, bridges.LinkDisconnected)
 			if e.Err == nil || !strings.Contains(e.Err.Error(), "lost the connection") {
 				t.Fatalf("disconnected event %+v lacks a clear cause", e)
 			}
@@ -508,7 +508,7 @@ func TestStatusAndLastWill(t *testing.T) {
 			}
 			time.Sleep(300 * time.Millisecond) // the cable stays out a while
 			p.push()
-			e = nextEvent(t, r, "reconnected")
+			e = nextEvent(t, r, bridges.LinkReconnected)
 			if min := 300 * time.Millisecond; e.Gap < min || e.Gap > time.Since(cut) {
 				t.Fatalf("gap %v, want between %v and %v", e.Gap, min, time.Since(cut))
 			}
@@ -546,7 +546,7 @@ func TestBrokerKilledAndRestarted(t *testing.T) {
 	killed := time.Now()
 	m.kill()
 	for _, c := range []*Conn{r, f} {
-		e := nextEvent(t, c, "disconnected")
+		e := nextEvent(t, c, bridges.LinkDisconnected)
 		if e.Err == nil {
 			t.Fatalf("%s: disconnected event without a cause", c.cfg.Role)
 		}
@@ -558,7 +558,7 @@ func TestBrokerKilledAndRestarted(t *testing.T) {
 	time.Sleep(200 * time.Millisecond)
 	m.start()
 	for _, c := range []*Conn{r, f} {
-		e := nextEvent(t, c, "reconnected")
+		e := nextEvent(t, c, bridges.LinkReconnected)
 		if e.Gap <= 200*time.Millisecond || e.Gap > time.Since(killed) {
 			t.Fatalf("%s: gap %v, want more than 200ms and at most %v", c.cfg.Role, e.Gap, time.Since(killed))
 		}
@@ -582,10 +582,10 @@ func TestEmbeddedBrokerRestarted(t *testing.T) {
 	addr := b.Addr()
 	r := dialT(t, Config{Broker: "tcp://" + addr, Rig: "b5", Role: RoleRig, MaxReconnectInterval: 200 * time.Millisecond})
 	_ = b.Close()
-	nextEvent(t, r, "disconnected")
+	nextEvent(t, r, bridges.LinkDisconnected)
 	b2 := embedded(t, broker.Config{Addr: addr})
 	_ = b2
-	e := nextEvent(t, r, "reconnected")
+	e := nextEvent(t, r, bridges.LinkReconnected)
 	if e.Gap <= 0 {
 		t.Fatalf("gap %v", e.Gap)
 	}
@@ -759,14 +759,14 @@ func TestBrokerStalled(t *testing.T) {
 		t.Fatal(err)
 	}
 	stalled := time.Now()
-	e := nextEvent(t, r, "disconnected")
+	e := nextEvent(t, r, bridges.LinkDisconnected)
 	if e.Err == nil || !strings.Contains(e.Err.Error(), "lost the connection") {
 		t.Fatalf("disconnected event %+v lacks a clear cause", e)
 	}
 	if err := m.signal(syscall.SIGCONT); err != nil {
 		t.Fatal(err)
 	}
-	e = nextEvent(t, r, "reconnected")
+	e = nextEvent(t, r, bridges.LinkReconnected)
 	if e.Gap <= 0 || e.Gap > time.Since(stalled) {
 		t.Fatalf("gap %v, want between 0 and %v", e.Gap, time.Since(stalled))
 	}

@@ -4,8 +4,8 @@
 //
 // Open opens a port by path with go.bug.st/serial and keeps it: when the
 // port disappears (a USB cable pulled, the far end of a pty closed) the link
-// reports a "disconnected" LinkEvent, keeps trying to open the same path every
-// ReconnectWait, and reports "reconnected" with the length of the gap when it
+// reports a bridges.LinkDisconnected event, keeps trying to open the same path every
+// ReconnectWait, and reports bridges.LinkReconnected with the length of the gap when it
 // is back. NewConn runs the same link over any byte stream that is already
 // open (the master end of a pty held by a test or a firmware process); such a
 // link ends when its stream fails.
@@ -224,7 +224,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 		}
 		down := time.Now()
 		cause := fmt.Errorf("serial: %s went away (unplugged, or the other end closed): %w", c.name, err)
-		c.event(bridges.LinkEvent{Kind: "disconnected", Err: cause})
+		c.event(bridges.LinkEvent{Kind: bridges.LinkDisconnected, Err: cause})
 		c.pushErr(fmt.Errorf("%w: %s went away (unplugged, or the other end closed): %v", bridges.ErrDisconnected, c.name, err))
 		if !c.reconnect {
 			c.Close()
@@ -244,7 +244,7 @@ func (c *Conn) readLoop(p io.ReadWriteCloser) {
 			return
 		}
 		c.counts.Reconnects.Add(1)
-		c.event(bridges.LinkEvent{Kind: "reconnected", Gap: time.Since(down)})
+		c.event(bridges.LinkEvent{Kind: bridges.LinkReconnected, Gap: time.Since(down)})
 	}
 }
 

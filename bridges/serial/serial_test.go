@@ -295,7 +295,7 @@ func TestSilentPeerTimesOut(t *testing.T) {
 	}
 }
 
-func waitEvent(t *testing.T, c *Conn, kind string) bridges.LinkEvent {
+func waitEvent(t *testing.T, c *Conn, kind bridges.LinkEventKind) bridges.LinkEvent {
 	t.Helper()
 	select {
 	case e := <-c.Events():
@@ -323,7 +323,7 @@ func TestUnplugMidRun(t *testing.T) {
 	if !errors.Is(err, bridges.ErrDisconnected) || !strings.Contains(err.Error(), p.pty.Path) {
 		t.Fatalf("Recv after unplug: %v, want ErrDisconnected naming %s", err, p.pty.Path)
 	}
-	e := waitEvent(t, p.rig, "disconnected")
+	e := waitEvent(t, p.rig, bridges.LinkDisconnected)
 	if e.Err == nil {
 		t.Error("disconnected event without a cause")
 	}
@@ -351,7 +351,7 @@ func TestRigSideCloseEndsFirmwareConn(t *testing.T) {
 	if !errors.Is(err, bridges.ErrDisconnected) {
 		t.Fatalf("firmware Recv after the rig closed: %v", err)
 	}
-	waitEvent(t, p.fw, "disconnected")
+	waitEvent(t, p.fw, bridges.LinkDisconnected)
 	if err := p.fw.Recv(soon(), &m); err != bridges.ErrClosed {
 		t.Fatalf("then: %v, want ErrClosed", err)
 	}
@@ -392,14 +392,14 @@ func TestReconnectAfterUnplug(t *testing.T) {
 	recvMsg(t, rig)
 
 	fw1.Close() // unplug
-	waitEvent(t, rig, "disconnected")
+	waitEvent(t, rig, bridges.LinkDisconnected)
 	time.Sleep(30 * time.Millisecond) // the rig retries against a dead path meanwhile
 	p2, err := NewPty()
 	if err != nil {
 		t.Fatal(err)
 	}
 	repoint(p2.Path)
-	e := waitEvent(t, rig, "reconnected")
+	e := waitEvent(t, rig, bridges.LinkReconnected)
 	if e.Gap < 30*time.Millisecond {
 		t.Errorf("gap %v, want at least the 30 ms the cable was out", e.Gap)
 	}
