@@ -18,7 +18,8 @@ type ReplayResult struct {
 	Match bool
 	// FirstDivergence is the first tick whose state differs, −1 if none.
 	FirstDivergence int64
-	// Field names the first differing coordinate (q2, v0, …).
+	// Field names the first differing coordinate by its telemetry column
+	// (theta_left_rad, vx_hip_mps, …).
 	Field string
 	// Recorded and Replayed are that coordinate's value in the telemetry
 	// and in the replay.
@@ -56,12 +57,15 @@ func Replay(model *plant.Model, initial plant.State, ticks []record.Tick, tickHz
 // run folder (rig.Replay streams its telemetry) holds one row in memory,
 // not the whole run.
 type Replayer struct {
-	m   *plant.Model
-	s   plant.State
-	in  plant.Input
-	tr  plant.TickResult
-	dt  float64
-	res ReplayResult
+	m *plant.Model
+	// qName and vName are the telemetry columns of q and q̇, for the
+	// divergence message.
+	qName, vName []string
+	s            plant.State
+	in           plant.Input
+	tr           plant.TickResult
+	dt           float64
+	res          ReplayResult
 }
 
 // NewReplayer starts a replay of model from initial at tickHz (the run's
@@ -70,7 +74,8 @@ func NewReplayer(model *plant.Model, initial plant.State, tickHz float64) (*Repl
 	if !(tickHz > 0) || math.IsInf(tickHz, 0) {
 		return nil, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
 	}
-	return &Replayer{m: model, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
+	q, v := record.StateColumns(model.NumDOF())
+	return &Replayer{m: model, qName: q, vName: v, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
 }
 
 // Row counts one recorded row and, until the first divergence, steps the
@@ -88,22 +93,22 @@ func (p *Replayer) Row(row *record.Tick) {
 	p.in.HipForce = row.Push
 	p.m.Step(&p.s, &p.in, p.dt, &p.tr)
 	for i := 0; i < nq; i++ {
-		if name, a, b, ok := differ("q", i, row.Q[i], p.s.Q[i]); !ok {
+		if name, a, b, ok := differ(p.qName[i], row.Q[i], p.s.Q[i]); !ok {
 			p.res = diverged(p.res, row.Index, name, a, b)
 			return
 		}
 	}
 	for i := 0; i < nq; i++ {
-		if name, a, b, ok := differ("v", i, row.V[i], p.s.V[i]); !ok {
+		if name, a, b, ok := differ(p.vName[i], row.V[i], p.s.V[i]); !ok {
 			p.res = diverged(p.res, row.Index, name, a, b)
 			return
 		}
 	}
 }
 
-func differ(p string, i int, rec, rep float64) (string, float64, float64, bool) {
+func differ(name string, rec, rep float64) (string, float64, float64, bool) {
 	same := math.Float64bits(rec) == math.Float64bits(rep) || (math.IsNaN(rec) && math.IsNaN(rep))
-	return p + strconv.Itoa(i), rec, rep, same
+	return name, rec, rep, same
 }
 
 func diverged(r ReplayResult, tick int64, field string, a, b float64) ReplayResult {

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"math"
 	"path/filepath"
+	"slices"
 	"testing"
 	"time"
 
@@ -330,6 +331,11 @@ func TestReplayMatchesExactly(t *testing.T) {
 	}
 	if r.Match || r.FirstDivergence != ticks[k].Index {
 		t.Fatalf("replay with one torque changed by 1 µN·m at tick %d: %s", ticks[k].Index, r)
+	}
+	// The divergence is named by the telemetry column a person looks up.
+	qNames, vNames := record.StateColumns(m.NumDOF())
+	if !slices.Contains(qNames, r.Field) && !slices.Contains(vNames, r.Field) {
+		t.Fatalf("divergence field %q is not a telemetry column of the state (%v, %v)", r.Field, qNames, vNames)
 	}
 }
 

@@ -2,6 +2,7 @@ package record
 
 import (
 	"strconv"
+	"strings"
 )
 
 //go:generate go test -run ^TestReferencePage$ -update
@@ -379,3 +380,22 @@ var stepTable = stepFields()
 
 // StepColumns returns the columns of steps.csv, in file order.
 func StepColumns() []Column { return columnsOf(stepTable) }
+
+// StateColumns names the telemetry columns of the generalized coordinates
+// (q) and velocities (v) of a walker with numQ coordinates, in the plant's
+// order, so a message about coordinate i can use the name a person finds
+// in telemetry.csv.
+func StateColumns(numQ int) (q, v []string) {
+	for _, c := range columnsOf(tickFields(numQ, nil)) {
+		if len(c.V1Name) < 2 || strings.TrimLeft(c.V1Name[1:], "0123456789") != "" {
+			continue
+		}
+		switch c.V1Name[0] {
+		case 'q':
+			q = append(q, c.Name)
+		case 'v':
+			v = append(v, c.Name)
+		}
+	}
+	return q, v
+}
