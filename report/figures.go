@@ -171,7 +171,7 @@ func latencyFigures(fs *figureSet, v *view) error {
 	tlo, thi := span(v.t)
 	lines := []line{{label: "round trip", x: v.t, y: pos, color: colFourth}}
 	if hasLimit {
-		lines = append(lines, line{label: "p99 limit " + fmtFloat(limit) + " µs", x: []float64{tlo, thi}, y: []float64{limit, limit}, color: colLimit, dashed: true, width: vg.Points(1.2)})
+		lines = append(lines, line{label: "p99 limit " + FormatNumber(limit) + " µs", x: []float64{tlo, thi}, y: []float64{limit, limit}, color: colLimit, dashed: true, width: vg.Points(1.2)})
 	}
 	title := "Command round-trip latency"
 	p, st, err := linePlot(title, "time (s)", "latency (µs, log scale)", lines, fs.max, marksFor(v))
@@ -199,17 +199,17 @@ func latencyFigures(fs *figureSet, v *view) error {
 	if hasLimit {
 		lim := &brokenLine{runs: []run{{[]float64{limit, limit}, []float64{0, 1}}}, style: draw.LineStyle{Color: colLimit, Width: vg.Points(1.2), Dashes: []vg.Length{vg.Points(4), vg.Points(3)}}}
 		p.Add(lim)
-		p.Legend.Add("p99 limit "+fmtFloat(limit)+" µs", lim)
+		p.Legend.Add("p99 limit "+FormatNumber(limit)+" µs", lim)
 	}
 	p.Legend.Top, p.Legend.Left = false, true
 	p.Legend.XOffs, p.Legend.YOffs = vg.Points(6), vg.Points(-6)
 	p.Y.Min, p.Y.Max = 0, 1.02
 	logAxis(&p.X, lo, hi, 0)
 	caption := fmt.Sprintf("Empirical distribution of the %d measured round trips from the latency_us column: p50 %s µs, p99 %s µs, max %s µs (nearest rank). The dashed vertical line is the scenario's p99 limit; the distribution crosses the dotted 0.99 line left of it when the criterion holds.",
-		len(e.sorted), fmtFloat(e.quantile(0.5)), fmtFloat(e.quantile(0.99)), fmtFloat(hi))
+		len(e.sorted), FormatNumber(e.quantile(0.5)), FormatNumber(e.quantile(0.99)), FormatNumber(hi))
 	if !hasLimit {
 		caption = fmt.Sprintf("Empirical distribution of the %d measured round trips from the latency_us column: p50 %s µs, p99 %s µs, max %s µs (nearest rank). The scenario sets no latency limit.",
-			len(e.sorted), fmtFloat(e.quantile(0.5)), fmtFloat(e.quantile(0.99)), fmtFloat(e.sorted[len(e.sorted)-1]))
+			len(e.sorted), FormatNumber(e.quantile(0.5)), FormatNumber(e.quantile(0.99)), FormatNumber(e.sorted[len(e.sorted)-1]))
 	}
 	if dropped > 0 {
 		caption += fmt.Sprintf(" %d value(s) of zero or less left out: a log axis cannot show them.", dropped)

@@ -150,9 +150,9 @@ func faultWindows(name, text string, tEnd float64) ([]window, string) {
 	var out []window
 	for _, f := range sc.Faults {
 		switch f.Kind {
-		case "push":
+		case scenarios.FaultPush:
 			continue
-		case "freeze":
+		case scenarios.FaultFreeze:
 			out = append(out, window{from: f.AtS, until: f.AtS + f.ForS, label: "freeze " + f.Sensor})
 		default:
 			until := f.UntilS
