@@ -41,7 +41,23 @@ func (fs *figureSet) timePlot(v *view, id, title, unit, caption string, lines []
 	if err != nil {
 		return nil, err
 	}
+	roomForStrips(p, v, h)
 	return p, fs.add(p, figW, h, id, title, caption+" "+st.caption(), false)
+}
+
+// roomForStrips raises the top of a linear time plot of height h and moves
+// its legend down so the fault strips along the top edge (markdraw.go)
+// cover neither the data nor the legend.
+func roomForStrips(p *plot.Plot, v *view, h vg.Length) {
+	lanes := min(len(v.faults), maxStripLanes)
+	if lanes == 0 {
+		return
+	}
+	room := stripLane * vg.Length(lanes)
+	inner := max(h-70, 60) // about the data area: less title, axis and labels
+	frac := float64(room / inner)
+	p.Y.Max += (p.Y.Max - p.Y.Min) * frac / (1 - frac)
+	p.Legend.YOffs -= room
 }
 
 // buildFigures draws every plot of the report. Each gets a fixed id so
@@ -217,14 +233,62 @@ func latencyFigures(fs *figureSet, v *view) error {
 	if len(x) < len(e.sorted) {
 		caption += fmt.Sprintf(" Drawn through %d points evenly spaced in rank, the smallest and largest included.", len(x))
 	}
-	return fs.add(p, figW, figH, "plot-latency-cdf", title, caption, false)
+	if err := fs.add(p, figW, figH, "plot-latency-cdf", title, caption, false); err != nil {
+		return err
+	}
+	return latencyTail(fs, e, x, pr, lo, hi, limit, hasLimit)
+}
+
+// latencyTail draws the same distribution as the fraction of commands
+// slower than each latency, on log axes both ways: the last percent, which
+// a p99 criterion is about and which the distribution function squeezes
+// against 1.0, gets as much room as the bulk.
+func latencyTail(fs *figureSet, e ecdf, x, pr []float64, lo, hi, limit float64, hasLimit bool) error {
+	n := float64(len(e.sorted))
+	var tx, ty []float64
+	for i := range x {
+		if ex := 1 - pr[i]; ex > 0.5/n {
+			tx, ty = append(tx, x[i]), append(ty, ex)
+		}
+	}
+	title := "Round-trip latency tail"
+	p := newPlot(title, "latency (µs, log scale)", "fraction of commands slower (log scale)")
+	floor := 1 / n
+	if len(tx) > 0 {
+		tail := &brokenLine{runs: []run{{tx, ty}}, style: draw.LineStyle{Color: colFourth, Width: vg.Points(1.4)}}
+		p.Add(tail)
+		p.Legend.Add("measured", tail)
+	}
+	one := &brokenLine{runs: []run{{[]float64{lo / 2, hi * 2}, []float64{0.01, 0.01}}}, style: draw.LineStyle{Color: colLimit, Width: vg.Points(0.6), Dashes: []vg.Length{vg.Points(1), vg.Points(2)}}}
+	p.Add(one)
+	p.Legend.Add("1 % slower (p99)", one)
+	if hasLimit {
+		lim := &brokenLine{runs: []run{{[]float64{limit, limit}, []float64{floor / 2, 1}}}, style: draw.LineStyle{Color: colLimit, Width: vg.Points(1.2), Dashes: []vg.Length{vg.Points(4), vg.Points(3)}}}
+		p.Add(lim)
+		p.Legend.Add("p99 limit "+FormatNumber(limit)+" µs", lim)
+	}
+	logAxis(&p.X, lo, hi, 0)
+	p.Y.Scale = plot.LogScale{}
+	p.Y.Tick.Marker = logTicks{}
+	p.Y.Min, p.Y.Max = math.Min(floor/1.5, 0.005), 1.5
+	p.Legend.Top, p.Legend.Left = false, true
+	p.Legend.XOffs, p.Legend.YOffs = vg.Points(6), vg.Points(6)
+	slower := 0
+	if hasLimit {
+		slower = len(e.sorted) - sort.SearchFloat64s(e.sorted, math.Nextafter(limit, math.Inf(1)))
+	}
+	caption := fmt.Sprintf("The same %d round trips as the fraction slower than each latency, both axes logarithmic, so the slowest percent is drawn as large as the bulk; the curve ends at the slowest command but one (a fraction of 1/%d).", len(e.sorted), len(e.sorted))
+	if hasLimit {
+		caption += fmt.Sprintf(" %d command(s) were slower than the limit of %s µs; the criterion holds while the curve crosses the dotted 1 %% line left of the dashed limit.", slower, FormatNumber(limit))
+	}
+	return fs.add(p, figW, figH, "plot-latency-tail", title, caption, false)
 }
 
 // logAxis puts a log scale on ax covering [lo, hi] with some room, and
 // headroom above for legend entries when entries > 0.
 func logAxis(ax *plot.Axis, lo, hi float64, entries int) {
 	ax.Scale = plot.LogScale{}
-	ax.Tick.Marker = plot.LogTicks{Prec: -1}
+	ax.Tick.Marker = logTicks{}
 	if !(lo > 0) {
 		lo = 1
 	}
@@ -421,6 +485,7 @@ func utilizationFigure(fs *figureSet, v *view) error {
 	}
 	p.Y.Min = math.Min(p.Y.Min, 0)
 	p.Y.Max = math.Max(p.Y.Max, ymax)
+	roomForStrips(p, v, figH)
 	slips := len(v.slips[0]) + len(v.slips[1])
 	caption := fmt.Sprintf("Above 1.0 the static friction cannot hold the foot. %d slip episode(s) shaded where the foot's contact mode was sliding (a sliding foot's row holds the friction it gets, not what the gait asked); triangles mark %d demand(s) the events report beyond the rows (a slipping heel strike's impulse ratio over μs, a friction-limit alarm's utilization). ",
 		slips, len(v.demands))

@@ -16,7 +16,7 @@ import (
 // words, so nothing is told by colour alone.
 var (
 	bandPush  = color.NRGBA{R: 0xe0, G: 0x90, B: 0x20, A: 0x40}
-	bandFault = color.NRGBA{R: 0x6a, G: 0x3d, B: 0x9a, A: 0x2a}
+	bandFault = color.NRGBA{R: 0x6a, G: 0x3d, B: 0x9a, A: 0x40}
 	markSeg   = color.RGBA{R: 0x6b, G: 0x5a, B: 0x3c, A: 0xff}
 )
 
@@ -26,6 +26,11 @@ type band struct {
 	fill color.Color
 	// row staggers the labels of overlapping bands: 0 at the top, 1 below.
 	row int
+	// strip draws the band as a labelled strip along the top edge, in
+	// lane row, with dashed lines where it switches on and off, instead of
+	// filling the plot's height: a fault that lasts the whole run would
+	// otherwise tint every curve.
+	strip bool
 }
 
 // timeMarks draws what happened behind a time plot: shaded bands (pushes,
@@ -41,12 +46,43 @@ type timeMarks struct {
 // markFont is the small text of the mark labels.
 var markFont = font.From(sansFont, 7.5)
 
+// stripLane is the height of one lane of fault strips; faults take lanes
+// in turn, up to maxStripLanes (a fifth shares the first lane).
+const (
+	stripLane     = vg.Length(7.5 * 1.5)
+	maxStripLanes = 4
+)
+
 // Plot implements plot.Plotter.
 func (m *timeMarks) Plot(c draw.Canvas, p *plot.Plot) {
 	trX, _ := p.Transforms(&c)
 	inside := func(x vg.Length) bool { return x >= c.Min.X-0.5 && x <= c.Max.X+0.5 }
 	sty := text.Style{Color: color.RGBA{R: 0x33, G: 0x33, B: 0x33, A: 0xff}, Font: markFont, Handler: p.Title.TextStyle.Handler}
+	edge := draw.LineStyle{Color: color.NRGBA{R: 0x6a, G: 0x3d, B: 0x9a, A: 0xb0}, Width: vg.Points(0.8), Dashes: []vg.Length{vg.Points(3), vg.Points(2)}}
 	for _, b := range m.bands {
+		if !b.strip {
+			continue
+		}
+		lane := stripLane
+		top := c.Max.Y - lane*vg.Length(b.row)
+		x0, x1 := trX(b.from), trX(b.until)
+		for _, x := range []vg.Length{x0, x1} {
+			if inside(x) && x > c.Min.X+0.5 && x < c.Max.X-0.5 {
+				c.StrokeLine2(edge, x, c.Min.Y, x, c.Max.Y)
+			}
+		}
+		x0, x1 = vg.Length(math.Max(float64(x0), float64(c.Min.X))), vg.Length(math.Min(float64(x1), float64(c.Max.X)))
+		if x1 < x0 {
+			continue
+		}
+		x1 = max(x1, x0+1.5)
+		c.FillPolygon(b.fill, []vg.Point{{X: x0, Y: top - lane}, {X: x1, Y: top - lane}, {X: x1, Y: top}, {X: x0, Y: top}})
+		c.FillText(sty, vg.Point{X: x0 + 2, Y: top - lane + sty.Font.Size*0.35}, b.label)
+	}
+	for _, b := range m.bands {
+		if b.strip {
+			continue
+		}
 		x0, x1 := trX(b.from), trX(b.until)
 		x0, x1 = vg.Length(math.Max(float64(x0), float64(c.Min.X))), vg.Length(math.Min(float64(x1), float64(c.Max.X)))
 		if x1 < x0 {
@@ -86,11 +122,11 @@ func (m *timeMarks) Plot(c draw.Canvas, p *plot.Plot) {
 // shade them; elsewhere they would hide the curves for no reason).
 func marksFor(v *view, slips ...int) *timeMarks {
 	m := &timeMarks{segs: v.segMarks, alarms: v.alarmLines}
-	for _, w := range v.faults {
-		m.bands = append(m.bands, band{window: w, fill: bandFault, row: 0})
+	for i, w := range v.faults {
+		m.bands = append(m.bands, band{window: w, fill: bandFault, row: i % maxStripLanes, strip: true})
 	}
 	for _, w := range v.pushes {
-		m.bands = append(m.bands, band{window: w, fill: bandPush, row: 1})
+		m.bands = append(m.bands, band{window: w, fill: bandPush, row: 0})
 	}
 	for _, f := range slips {
 		fill := color.NRGBAModel.Convert(lineColors[f]).(color.NRGBA)
@@ -114,7 +150,7 @@ func marksCaption(v *view) string {
 		s += "Orange bands labelled push: a push force acted on the hip. "
 	}
 	if len(v.faults) > 0 {
-		s += "Purple bands: a scenario fault was active (labelled with its kind). "
+		s += "Purple strips along the top, labelled with the fault's kind, between dashed purple lines where it switches on and off: a scenario fault was active. "
 	}
 	if len(v.slips[0]) > 0 || len(v.slips[1]) > 0 {
 		s += "Bands labelled slip left or slip right (on the force, utilization and alarm plots): that foot was sliding. "

@@ -314,7 +314,7 @@ func TestLatencyDistributionFigure(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "run")
 	writeSynthFolder(t, dir, r, true)
 	p := renderAndParse(t, dir)
-	checkPlots(t, p, latencyPlotID, latencyCDFID)
+	checkPlots(t, p, latencyPlotID, latencyCDFID, latencyTailID)
 	c := p.texts["fig-"+latencyCDFID]
 	for _, w := range []string{
 		"distribution of the " + strconv.Itoa(len(s)) + " measured",
@@ -324,7 +324,16 @@ func TestLatencyDistributionFigure(t *testing.T) {
 			t.Errorf("distribution caption %q lacks %q", c, w)
 		}
 	}
-	for _, id := range []string{latencyCDFID, latencyPlotID} {
+	slower := 0
+	for _, x := range s {
+		if x > 10000 {
+			slower++
+		}
+	}
+	if c := p.texts["fig-"+latencyTailID]; !strings.Contains(c, strconv.Itoa(slower)+" command(s) were slower than the limit of 10000 µs") {
+		t.Errorf("tail caption %q: want %d slower than the limit", c, slower)
+	}
+	for _, id := range []string{latencyCDFID, latencyPlotID, latencyTailID} {
 		if !strings.Contains(p.texts[id], "p99 limit 10000 µs") {
 			t.Errorf("%s does not draw the p99 limit", id)
 		}

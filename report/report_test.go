@@ -30,6 +30,7 @@ var plotIDs = []string{
 const (
 	latencyPlotID = "plot-latency"
 	latencyCDFID  = "plot-latency-cdf"
+	latencyTailID = "plot-latency-tail"
 	torsoPlotID   = "plot-torso-pitch"
 )
 
@@ -247,7 +248,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 				}
 				r.sum.LatencyUS = &record.Latency{P50: 98, P99: 106, Max: 106}
 			},
-			wantExtra: []string{latencyPlotID, latencyCDFID},
+			wantExtra: []string{latencyPlotID, latencyCDFID, latencyTailID},
 		},
 		{
 			name: "markup in names is shown as text", opts: synthOpts{durationS: 2, hz: 500, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: false,
