@@ -252,7 +252,7 @@ func latencyTail(fs *figureSet, e ecdf, x, pr []float64, lo, hi, limit float64, 
 		}
 	}
 	title := "Round-trip latency tail"
-	p := newPlot(title, "latency (µs, log scale)", "fraction of commands slower (log scale)")
+	p := newPlot(title, "latency (µs, log scale)", "fraction slower (log)")
 	floor := 1 / n
 	if len(tx) > 0 {
 		tail := &brokenLine{runs: []run{{tx, ty}}, style: draw.LineStyle{Color: colFourth, Width: vg.Points(1.4)}}
@@ -481,7 +481,7 @@ func utilizationFigure(fs *figureSet, v *view) error {
 		}
 		sc.GlyphStyle = draw.GlyphStyle{Color: lineColors[f], Radius: vg.Points(3.5), Shape: draw.PyramidGlyph{}}
 		p.Add(sc)
-		p.Legend.Add(footNames[f]+" demand at an event", sc)
+		p.Legend.Add(footNames[f]+": event demand", sc)
 	}
 	p.Y.Min = math.Min(p.Y.Min, 0)
 	p.Y.Max = math.Max(p.Y.Max, ymax)
