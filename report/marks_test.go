@@ -442,3 +442,45 @@ func TestRatesCaptionIsItsOwn(t *testing.T) {
 		t.Errorf("angles caption %q", a)
 	}
 }
+
+// TestPushAndAlarmMarksOnThePage pushes the synthetic walker and checks
+// the push band is labelled on the time plots and explained in the key.
+func TestPushAndAlarmMarksOnThePage(t *testing.T) {
+	r := makeSynthRun(synthOpts{durationS: 5, hz: 500, patchMu: 0.15}) // long enough to slip on the patch
+	for i := 600; i < 650; i++ {
+		r.ticks[i].Push = [2]float64{100, 0}
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	writeSynthFolder(t, dir, r, true)
+	p := renderAndParse(t, dir)
+	for _, id := range []string{"plot-joint-angles", "plot-torques", "plot-hip-speed"} {
+		if n := strings.Count(p.texts[id], "push"); n != 1 {
+			t.Errorf("%s has %d push labels, want 1", id, n)
+		}
+	}
+	key := p.texts["marks-key"]
+	for _, w := range []string{"push", "alarms"} {
+		if !strings.Contains(key, w) {
+			t.Errorf("marks key %q does not mention %s", key, w)
+		}
+	}
+}
+
+// TestAlarmLines keeps alarms apart by at least the gap per severity and
+// leaves out information events.
+func TestAlarmLines(t *testing.T) {
+	marks := []alarmMark{
+		{t: 1, severity: "warn"}, {t: 1.05, severity: "warn"}, {t: 1.05, severity: "trip"},
+		{t: 1.2, severity: "warn"}, {t: 2, severity: "info"}, {t: math.NaN(), severity: "warn"},
+	}
+	got := alarmLines(marks, 0.1)
+	want := []alarmLine{{1, "warn"}, {1.05, "trip"}, {1.2, "warn"}}
+	if len(got) != len(want) {
+		t.Fatalf("got %+v, want %+v", got, want)
+	}
+	for i := range got {
+		if got[i] != want[i] {
+			t.Errorf("line %d %+v, want %+v", i, got[i], want[i])
+		}
+	}
+}
