@@ -314,6 +314,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		v.Notes = append(v.Notes, note)
 	}
 	v.alarmLines = alarmLines(v.alarms, (thi-tlo)/400)
+	v.markGap = (thi - tlo) / 1500
 
 	// Steps: table and poses.
 	v.StepCols = []string{"step", "stance", "start (s)", "duration (s)", "length (m)", "speed (m/s)",

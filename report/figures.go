@@ -487,7 +487,7 @@ func utilizationFigure(fs *figureSet, v *view) error {
 	p.Y.Max = math.Max(p.Y.Max, ymax)
 	roomForStrips(p, v, figH)
 	slips := len(v.slips[0]) + len(v.slips[1])
-	caption := fmt.Sprintf("Above 1.0 the static friction cannot hold the foot. %d slip episode(s) shaded where the foot's contact mode was sliding (a sliding foot's row holds the friction it gets, not what the gait asked); triangles mark %d demand(s) the events report beyond the rows (a slipping heel strike's impulse ratio over μs, a friction-limit alarm's utilization). ",
+	caption := fmt.Sprintf("Above 1.0 the static friction cannot hold the foot. %d slip episode(s) shaded where the foot's contact mode was sliding, read from the mode column whatever a row records as a sliding foot's utilization; triangles mark %d demand(s) the events report beyond the rows (a slipping heel strike's impulse ratio over μs, a friction-limit alarm's utilization). ",
 		slips, len(v.demands))
 	return fs.add(p, figW, figH, "plot-utilization", title, caption+st.caption(), false)
 }

@@ -94,6 +94,9 @@ type view struct {
 	faults     []window
 	slips      [2][]window
 	alarmLines []alarmLine
+	// markGap is the time a pixel or so of a time axis covers: bands
+	// closer than this are drawn as one.
+	markGap float64
 	// demands are the friction demands the events report beyond the
 	// telemetry (a heel-strike impulse ratio over μs).
 	demands []demandMark

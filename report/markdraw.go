@@ -79,6 +79,10 @@ func (m *timeMarks) Plot(c draw.Canvas, p *plot.Plot) {
 		c.FillPolygon(b.fill, []vg.Point{{X: x0, Y: top - lane}, {X: x1, Y: top - lane}, {X: x1, Y: top}, {X: x0, Y: top}})
 		c.FillText(sty, vg.Point{X: x0 + 2, Y: top - lane + sty.Font.Size*0.35}, b.label)
 	}
+	// A label is written only where it does not run into the one before
+	// it in the same row: a run that slips at every step still gets one
+	// band per slip, and labels as often as they fit.
+	lastLabel := map[int]vg.Length{}
 	for _, b := range m.bands {
 		if b.strip {
 			continue
@@ -92,9 +96,10 @@ func (m *timeMarks) Plot(c draw.Canvas, p *plot.Plot) {
 			x1 = x0 + 1.5 // a one-tick push stays visible
 		}
 		c.FillPolygon(b.fill, []vg.Point{{X: x0, Y: c.Min.Y}, {X: x1, Y: c.Min.Y}, {X: x1, Y: c.Max.Y}, {X: x0, Y: c.Max.Y}})
-		if b.label != "" && inside(x0) {
+		if last, ok := lastLabel[b.row]; b.label != "" && inside(x0) && (!ok || x0 > last) {
 			y := c.Max.Y - sty.Font.Size*(1.2+1.2*vg.Length(b.row))
 			c.FillText(sty, vg.Point{X: x0 + 2, Y: y}, b.label)
+			lastLabel[b.row] = x0 + 2 + sty.Width(b.label) + 4
 		}
 	}
 	for _, a := range m.alarms {
@@ -125,13 +130,13 @@ func marksFor(v *view, slips ...int) *timeMarks {
 	for i, w := range v.faults {
 		m.bands = append(m.bands, band{window: w, fill: bandFault, row: i % maxStripLanes, strip: true})
 	}
-	for _, w := range v.pushes {
+	for _, w := range mergeWindows(v.pushes, v.markGap) {
 		m.bands = append(m.bands, band{window: w, fill: bandPush, row: 0})
 	}
 	for _, f := range slips {
 		fill := color.NRGBAModel.Convert(lineColors[f]).(color.NRGBA)
 		fill.A = 0x38
-		for _, w := range v.slips[f] {
+		for _, w := range mergeWindows(v.slips[f], v.markGap) {
 			w.label = "slip " + footNames[f]
 			m.bands = append(m.bands, band{window: w, fill: fill, row: f})
 		}
@@ -162,4 +167,24 @@ func marksCaption(v *view) string {
 		return "Nothing to mark on the time axes: one terrain segment, no pushes, faults or alarms."
 	}
 	return "Marks on the time axes. " + s
+}
+
+// mergeWindows joins windows less than gap apart: closer than that they
+// are one band on the page anyway (gap is about a pixel of the time axis),
+// and a long run that slips at every step then draws a band per slip
+// rather than thousands of overlapping ones.
+func mergeWindows(ws []window, gap float64) []window {
+	if len(ws) < 2 || !(gap > 0) {
+		return ws
+	}
+	out := []window{ws[0]}
+	for _, w := range ws[1:] {
+		last := &out[len(out)-1]
+		if w.from-last.until < gap {
+			last.until = math.Max(last.until, w.until)
+			continue
+		}
+		out = append(out, w)
+	}
+	return out
 }

@@ -484,3 +484,21 @@ func TestAlarmLines(t *testing.T) {
 		}
 	}
 }
+
+// TestMergeWindows joins windows closer than the gap and keeps the rest.
+func TestMergeWindows(t *testing.T) {
+	ws := []window{{0, 1, "a"}, {1.05, 2, "a"}, {3, 3, "a"}, {3.2, 4, "a"}}
+	got := mergeWindows(ws, 0.1)
+	want := []window{{0, 2, "a"}, {3, 3, "a"}, {3.2, 4, "a"}}
+	if len(got) != len(want) {
+		t.Fatalf("got %+v, want %+v", got, want)
+	}
+	for i := range got {
+		if got[i] != want[i] {
+			t.Errorf("window %d %+v, want %+v", i, got[i], want[i])
+		}
+	}
+	if got := mergeWindows(ws, 0); len(got) != len(ws) {
+		t.Errorf("gap 0 merged %d windows into %d", len(ws), len(got))
+	}
+}
