@@ -104,6 +104,13 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 	n := max(sizeHint, 0)
 	v.t = make([]float64, 0, n)
 	v.latency = make([]float64, 0, n)
+	mk := func() []float64 { return make([]float64, 0, n) }
+	v.hipY, v.hipVX = mk(), mk()
+	v.kinetic, v.potential = mk(), mk()
+	v.pushX, v.pushY = mk(), mk()
+	if v.torso != nil {
+		v.torso = mk()
+	}
 	v.joints = v.joints[:0]
 	for j := 0; j < nj; j++ {
 		v.joints = append(v.joints, jointSeries{
@@ -115,12 +122,22 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 		v.feet[k] = footSeries{
 			normal: make([]float64, 0, n), tangential: make([]float64, 0, n),
 			mu: make([]float64, 0, n), util: make([]float64, 0, n),
+			cop: make([]float64, 0, n), contactX: make([]float64, 0, n), mode: make([]int, 0, n),
 		}
 	}
 	for src != nil && src.Next() {
 		t := src.Tick()
 		v.t = append(v.t, t.T)
 		v.latency = append(v.latency, t.LatencyUS)
+		v.hipY = append(v.hipY, t.Q[1])
+		v.hipVX = append(v.hipVX, t.V[0])
+		if v.torso != nil {
+			v.torso = append(v.torso, t.Q[4])
+		}
+		v.kinetic = append(v.kinetic, t.Kinetic)
+		v.potential = append(v.potential, t.Potential)
+		v.pushX = append(v.pushX, t.Push[0])
+		v.pushY = append(v.pushY, t.Push[1])
 		for j := range v.joints {
 			v.joints[j].angle = append(v.joints[j].angle, t.Angle[j])
 			v.joints[j].rate = append(v.joints[j].rate, t.Rate[j])
@@ -142,8 +159,21 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 			}
 			fs.normal = append(fs.normal, f.NormalN)
 			fs.tangential = append(fs.tangential, f.TangentialN)
-			fs.util = append(fs.util, f.Utilization)
+			util := f.Utilization
+			if f.Mode == v.modeFree {
+				// A foot in the air has no friction to use; its row says
+				// 0, which would draw a line along the axis all swing.
+				util = math.NaN()
+			}
+			fs.util = append(fs.util, util)
 			fs.mu = append(fs.mu, mu)
+			cop := f.CoP
+			if f.Mode == v.modeFree {
+				cop = math.NaN() // a foot in the air has no centre of pressure
+			}
+			fs.cop = append(fs.cop, cop)
+			fs.contactX = append(fs.contactX, f.ContactX)
+			fs.mode = append(fs.mode, f.Mode)
 		}
 	}
 }
@@ -228,6 +258,21 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 	if s != nil && s.Ticks > 0 && s.Ticks < 1<<26 {
 		hint = int(s.Ticks)
 	}
+	v.modeFree = modeCode(m.FootModes, "free")
+	v.modeSliding = modeCode(m.FootModes, "sliding")
+	if m.NumQ >= 5 && (m.Plant == nil || m.Plant.Torso != nil) {
+		// q4 is the torso's absolute angle (the plant's link order: left,
+		// right, torso); an empty, non-nil slice asks collectTicks for it.
+		v.torso = []float64{}
+	}
+	v.latencyLimit = math.NaN()
+	if s != nil {
+		for _, c := range s.Criteria {
+			if c.Name == latencyCriterion {
+				v.latencyLimit = c.Limit
+			}
+		}
+	}
 	collectTicks(v, nj, ticks, segs, hint)
 	for j := range v.joints {
 		v.joints[j].name = m.JointNames[j]
@@ -251,6 +296,25 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		}
 		v.AlarmRows = append(v.AlarmRows, alarmRow{T: fmtFloat(e.T), Kind: e.Kind, Severity: string(e.Severity), Foot: e.Foot, Message: e.Message})
 	}
+	v.demands = demandsOf(events)
+
+	// What happened when, for the marks on every time axis.
+	var cx [2][]float64
+	var modes [2][]int
+	for f := range v.feet {
+		cx[f], modes[f] = v.feet[f].contactX, v.feet[f].mode
+		v.slips[f] = slipWindows(v.t, v.feet[f].mode, v.modeSliding)
+	}
+	v.segMarks = segmentEntries(segs, v.t, cx, modes, v.modeFree)
+	v.pushes = pushWindows(v.t, v.pushX, v.pushY)
+	tlo, thi := span(v.t)
+	var note string
+	v.faults, note = faultWindows(v.Scenario, m.ScenarioText, thi)
+	if note != "" {
+		v.Notes = append(v.Notes, note)
+	}
+	v.alarmLines = alarmLines(v.alarms, (thi-tlo)/400)
+	v.markGap = (thi - tlo) / 1500
 
 	// Steps: table and poses.
 	v.StepCols = []string{"step", "stance", "start (s)", "duration (s)", "length (m)", "speed (m/s)",

@@ -131,7 +131,7 @@ func TestFrictionEnvelopeSource(t *testing.T) {
 // recorded the way the hil loop fills Manifest.Plant (record.PlantOf) and
 // read back from manifest.json, so the report follows the real format
 // rather than one of its own making. (Only this test imports plant; the
-// report itself depends on record alone.)
+// report itself reads the plant through record alone.)
 func TestPlantFromRunFolder(t *testing.T) {
 	p := plant.Params{
 		HipMass: 10,

@@ -15,6 +15,8 @@ import (
 	"time"
 
 	"golang.org/x/net/html"
+
+	"gaitrig/record"
 )
 
 // findChromium returns the path of the headless browser, failing the test
@@ -77,7 +79,16 @@ func tail(s string, n int) string {
 func TestReportInChromium(t *testing.T) {
 	bin := findChromium(t)
 	dir := filepath.Join(t.TempDir(), "run")
-	writeSynthFolder(t, dir, makeSynthRun(synthOpts{durationS: 8, hz: 1000, patchMu: 0.15}), true)
+	// A walker with a torso and measured latency, so every figure the
+	// report can draw is on the page.
+	r := makeSynthRun(synthOpts{durationS: 8, hz: 1000, patchMu: 0.15, withTorso: true})
+	r.m.Clock = "wallclock"
+	for i := range r.ticks {
+		r.ticks[i].LatencyUS = 900 + float64((i*53)%400)
+	}
+	r.sum.Criteria = append(r.sum.Criteria, record.Criterion{Name: latencyCriterion, Pass: true, Value: 1290, Limit: 2000})
+	writeSynthFolder(t, dir, r, true)
+	ids := append(append([]string{}, plotIDs...), torsoPlotID, latencyPlotID, latencyCDFID, latencyTailID)
 	if err := WriteHTML(dir); err != nil {
 		t.Fatal(err)
 	}
@@ -113,13 +124,13 @@ func TestReportInChromium(t *testing.T) {
 			}
 		}
 		walk(doc)
-		for _, id := range plotIDs {
+		for _, id := range ids {
 			if found[id] != 1 {
 				t.Errorf("browser DOM has %d <svg id=%q>, want 1", found[id], id)
 			}
 		}
-		if svgs != len(plotIDs) {
-			t.Errorf("browser DOM has %d <svg> elements, want %d", svgs, len(plotIDs))
+		if svgs != len(ids) {
+			t.Errorf("browser DOM has %d <svg> elements, want %d", svgs, len(ids))
 		}
 		if !strings.Contains(textOf(doc), "not a safety certificate") {
 			t.Error("safety caution not in the browser DOM")

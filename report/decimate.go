@@ -110,3 +110,51 @@ func decimateRuns(x, y []float64, maxPoints int) (runs []run, kept, finiteCount 
 	}
 	return runs, kept, total
 }
+
+// thinPath thins a curve drawn in the plane (a phase portrait, where x is
+// not time and the min/max buckets of decimateMinMax would join points of
+// different loops) to at most about maxPoints points: it keeps a point only
+// when it has moved at least eps of either axis's span from the last kept
+// one, doubling eps until the budget is met. Every turn of the curve larger
+// than eps survives; the first and last finite points of each run of
+// finite samples are always kept. Non-finite samples split the curve.
+func thinPath(x, y []float64, maxPoints int) (runs []run, kept, finite int) {
+	n := min(len(x), len(y))
+	xlo, xhi := span(x[:n])
+	ylo, yhi := span(y[:n])
+	sx, sy := math.Max(xhi-xlo, 1e-300), math.Max(yhi-ylo, 1e-300)
+	for eps := 1.0 / 2000; ; eps *= 2 {
+		runs, kept, finite = runs[:0], 0, 0
+		var cur run
+		lastX, lastY := math.NaN(), math.NaN()
+		flush := func(i int) {
+			if len(cur.x) == 0 {
+				return
+			}
+			if cur.x[len(cur.x)-1] != x[i] || cur.y[len(cur.y)-1] != y[i] {
+				cur.x, cur.y = append(cur.x, x[i]), append(cur.y, y[i])
+			}
+			kept += len(cur.x)
+			runs = append(runs, cur)
+			cur = run{}
+		}
+		for i := 0; i < n; i++ {
+			if !finitePoint(x, y, i) {
+				flush(i - 1)
+				lastX = math.NaN()
+				continue
+			}
+			finite++
+			if math.IsNaN(lastX) || math.Abs(x[i]-lastX) >= eps*sx || math.Abs(y[i]-lastY) >= eps*sy {
+				cur.x, cur.y = append(cur.x, x[i]), append(cur.y, y[i])
+				lastX, lastY = x[i], y[i]
+			}
+		}
+		if n > 0 && finitePoint(x, y, n-1) {
+			flush(n - 1)
+		}
+		if kept <= maxPoints || eps > 1 {
+			return runs, kept, finite
+		}
+	}
+}

@@ -8,8 +8,6 @@ import (
 	"math"
 	"strconv"
 	"strings"
-
-	"gonum.org/v1/plot/vg"
 )
 
 // kv is a labelled value in a small table.
@@ -35,6 +33,10 @@ type jointSeries struct {
 // friction coefficient under the foot at each tick; NaN where unknown.
 type footSeries struct {
 	normal, tangential, mu, util []float64
+	// cop is the centre of pressure along the foot, NaN in the air;
+	// contactX the contact point's x; mode the contact-mode code.
+	cop, contactX []float64
+	mode          []int
 }
 
 // view is everything the page shows, as plain values: the run-folder
@@ -56,6 +58,8 @@ type view struct {
 	// unreadable telemetry); the page shows them near the top.
 	Warnings []string
 	Caution  string
+	// MarksKey says what the marks on the time axes mean.
+	MarksKey string
 	// ScenarioText is the scenario file exactly as it ran.
 	ScenarioText string
 	// AlarmRows is the alarm log (events that are not plain information),
@@ -71,6 +75,31 @@ type view struct {
 	feet    [2]footSeries
 	alarms  []alarmMark
 	poses   []stickPose
+	// hipY and hipVX are the hip's height and forward speed; torso is
+	// the torso's absolute angle (nil for a compass walker).
+	hipY, hipVX, torso []float64
+	// kinetic and potential are the walker's energies, J.
+	kinetic, potential []float64
+	// pushX and pushY are the push force on the hip, N.
+	pushX, pushY []float64
+	// latencyLimit is the scenario's p99 latency limit, µs; NaN without one.
+	latencyLimit float64
+	// modeFree and modeSliding are the contact-mode codes of a foot in
+	// the air and a sliding foot (-1 when the manifest does not name them).
+	modeFree, modeSliding int
+
+	// What happened, for the marks on the time axes (marks.go).
+	segMarks   []segmentMark
+	pushes     []window
+	faults     []window
+	slips      [2][]window
+	alarmLines []alarmLine
+	// markGap is the time a pixel or so of a time axis covers: bands
+	// closer than this are drawn as one.
+	markGap float64
+	// demands are the friction demands the events report beyond the
+	// telemetry (a heel-strike impulse ratio over μs).
+	demands []demandMark
 	// stepsTotal is how many heel strikes the run had; poses may be fewer.
 	stepsTotal int
 }
@@ -92,6 +121,9 @@ type figure struct {
 	SVG     template.HTML
 	// Legend, when not empty, is drawn by the page under the plot.
 	Legend []legendItem
+	// Half puts the figure beside the next one (square plots: phase
+	// portraits, force pairs).
+	Half bool
 }
 
 // page is the template's data.
@@ -101,188 +133,6 @@ type page struct {
 }
 
 var footNames = [2]string{"left", "right"}
-
-// buildFigures draws every plot of the report. Each gets a fixed id so
-// tests (and readers who link to a plot) can find it.
-func buildFigures(v *view, maxPoints int) ([]figure, error) {
-	var figs []figure
-	add := func(id, title, caption string, svg string) {
-		figs = append(figs, figure{ID: id, Title: title, Caption: caption, SVG: template.HTML(svg)})
-	}
-	const w, h = vg.Length(720), vg.Length(260)
-	tlo, thi := span(v.t)
-
-	// Joint angles and rates.
-	var angles, rates []line
-	for i, j := range v.joints {
-		col := lineColors[i%len(lineColors)]
-		angles = append(angles, line{label: j.name, x: v.t, y: j.angle, color: col})
-		rates = append(rates, line{label: j.name, x: v.t, y: j.rate, color: col})
-	}
-	for _, spec := range []struct {
-		id, title, unit string
-		lines           []line
-	}{
-		{"plot-joint-angles", "Joint angles (encoder reading)", "angle (rad)", angles},
-		{"plot-joint-rates", "Joint rates (encoder reading)", "rate (rad/s)", rates},
-	} {
-		p, st, err := linePlot(spec.title, "time (s)", spec.unit, spec.lines, maxPoints)
-		if err != nil {
-			return nil, err
-		}
-		svg, err := renderSVG(p, w, h, spec.id, spec.title)
-		if err != nil {
-			return nil, err
-		}
-		add(spec.id, spec.title, "Joint angle is child link minus parent link, counter-clockwise positive. "+st.caption(), svg)
-	}
-
-	// Torques: what the firmware asked for and what the plant got after
-	// the actuator model (limits, lag). A gap between the two is saturation
-	// or lag the firmware may not know about.
-	{
-		var tl []line
-		for i, j := range v.joints {
-			col := lineColors[i%len(lineColors)]
-			tl = append(tl,
-				line{label: j.name + " commanded", x: v.t, y: j.commanded, color: col, dashed: true},
-				line{label: j.name + " applied", x: v.t, y: j.applied, color: col})
-		}
-		title := "Joint torques, commanded and applied"
-		p, st, err := linePlot(title, "time (s)", "torque (N·m)", tl, maxPoints)
-		if err != nil {
-			return nil, err
-		}
-		svg, err := renderSVG(p, w, h, "plot-torques", title)
-		if err != nil {
-			return nil, err
-		}
-		add("plot-torques", title, "Dashed: what the firmware commanded; solid: what the plant received after the actuator model's limits and lag. "+st.caption(), svg)
-	}
-
-	// Round-trip latency, only where it was measured (wall-clock runs).
-	if finiteCount(v.latency) > 0 {
-		title := "Command round-trip latency"
-		p, st, err := linePlot(title, "time (s)", "latency (µs)", []line{
-			{label: "round trip", x: v.t, y: v.latency, color: colFourth},
-		}, maxPoints)
-		if err != nil {
-			return nil, err
-		}
-		p.Y.Min = math.Min(p.Y.Min, 0)
-		svg, err := renderSVG(p, w, h, "plot-latency", title)
-		if err != nil {
-			return nil, err
-		}
-		add("plot-latency", title, "State sent to command received, per tick with a fresh command; gaps are ticks that held the last command. "+st.caption(), svg)
-	}
-
-	// Ground reaction force per foot with the friction cone's edges.
-	for f := 0; f < 2; f++ {
-		fs := v.feet[f]
-		upper := make([]float64, len(fs.normal))
-		lower := make([]float64, len(fs.normal))
-		for i, n := range fs.normal {
-			mu := math.NaN()
-			if i < len(fs.mu) {
-				mu = fs.mu[i]
-			}
-			upper[i], lower[i] = mu*n, -mu*n
-		}
-		id := "plot-force-" + footNames[f]
-		title := fmt.Sprintf("Ground reaction force, %s foot", footNames[f])
-		p, st, err := linePlot(title, "time (s)", "force (N)", []line{
-			{label: "normal N", x: v.t, y: fs.normal, color: colLeft, width: vg.Points(1.2)},
-			{label: "tangential T", x: v.t, y: fs.tangential, color: colRight},
-			{label: "+μs·N", x: v.t, y: upper, color: colLimit, dashed: true},
-			{label: "−μs·N", x: v.t, y: lower, color: colLimit, dashed: true},
-		}, maxPoints)
-		if err != nil {
-			return nil, err
-		}
-		svg, err := renderSVG(p, w, h, id, title)
-		if err != nil {
-			return nil, err
-		}
-		add(id, title, "The foot holds without slipping while T stays between the dashed lines ±μs·N (the edges of the friction cone); "+
-			"N below zero would mean the ground has to pull the foot down. Zero while the foot is in the air. "+st.caption(), svg)
-	}
-
-	// Friction utilization |T|/(μs·N) against the slip limit 1.0.
-	{
-		title := "Friction utilization |T| / (μs·N)"
-		p, st, err := linePlot(title, "time (s)", "utilization", []line{
-			{label: "left foot", x: v.t, y: v.feet[0].util, color: colLeft},
-			{label: "right foot", x: v.t, y: v.feet[1].util, color: colRight},
-			{label: "slip limit 1.0", x: []float64{tlo, thi}, y: []float64{1, 1}, color: colLimit, dashed: true, width: vg.Points(1.2)},
-		}, maxPoints)
-		if err != nil {
-			return nil, err
-		}
-		p.Y.Min = math.Min(p.Y.Min, 0)
-		p.Y.Max = math.Max(p.Y.Max, 1.1)
-		svg, err := renderSVG(p, w, h, "plot-utilization", title)
-		if err != nil {
-			return nil, err
-		}
-		add("plot-utilization", title, "Above 1.0 the static friction cannot hold the foot: the slip alarm. "+st.caption(), svg)
-	}
-
-	// Alarm timeline, over the telemetry's time span widened to every
-	// alarm (a run whose telemetry is lost still shows when alarms came).
-	{
-		alo, ahi := tlo, thi
-		if len(v.t) == 0 && len(v.alarms) > 0 {
-			alo, ahi = math.Inf(1), math.Inf(-1)
-		}
-		for _, a := range v.alarms {
-			if !math.IsNaN(a.t) && !math.IsInf(a.t, 0) {
-				alo, ahi = math.Min(alo, a.t), math.Max(ahi, a.t)
-			}
-		}
-		if alo > ahi {
-			alo, ahi = tlo, thi
-		}
-		p, err := alarmTimeline(v.alarms, alo, ahi)
-		if err != nil {
-			return nil, err
-		}
-		rows := map[string]bool{}
-		for _, a := range v.alarms {
-			rows[a.kind] = true
-		}
-		ah := vg.Length(90 + 22*len(rows))
-		svg, err := renderSVG(p, w, ah, "plot-alarms", "Alarm timeline")
-		if err != nil {
-			return nil, err
-		}
-		add("plot-alarms", "Alarm timeline", fmt.Sprintf("%d alarm(s) and event(s) of %d kind(s); one row per kind, marker colour by severity.", len(v.alarms), len(rows)), svg)
-		figs[len(figs)-1].Legend = severityLegend(v.alarms)
-	}
-
-	// Stick figures at heel strikes.
-	{
-		idx := pickEvenly(len(v.poses), maxStickFigures)
-		sel := make([]stickPose, 0, len(idx))
-		for _, i := range idx {
-			sel = append(sel, v.poses[i])
-		}
-		p, sw, sh, err := stickFigurePlot(sel)
-		if err != nil {
-			return nil, err
-		}
-		svg, err := renderSVG(p, sw, sh, "plot-heel-strikes", "Walker at each heel strike")
-		if err != nil {
-			return nil, err
-		}
-		capText := fmt.Sprintf("Pose at each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope); curved feet drawn as arcs of the recorded foot radius. %d of %d heel strikes shown", len(sel), v.stepsTotal)
-		if len(sel) < v.stepsTotal {
-			capText += ", evenly spaced, first and last included"
-		}
-		add("plot-heel-strikes", "Walker at each heel strike", capText+".", svg)
-	}
-	return figs, nil
-}
 
 // finiteCount counts the finite values of v.
 func finiteCount(v []float64) int {
@@ -352,6 +202,7 @@ td.num{text-align:right;font-variant-numeric:tabular-nums}
 .bad{color:#b31b1b;font-weight:bold}
 figure{margin:1em 0;background:#fff;border:1px solid #ddd;padding:.5em}
 figure svg.plot{width:100%;height:auto;display:block}
+figure.half{display:inline-block;box-sizing:border-box;width:calc(50% - .8em);vertical-align:top;margin-right:.4em}
 .legend{font-size:.85em;margin:.2em 0}
 .swatch{display:inline-block;width:.8em;height:.8em;border-radius:50%;margin:0 .3em 0 .8em;vertical-align:-.05em}
 figcaption{font-size:.85em;color:#444;margin-top:.3em}
@@ -398,7 +249,8 @@ pre{background:#fff;border:1px solid #ddd;padding:.6em;overflow:auto;font-size:.
 {{end}}</table></div>{{if .AlarmRowsCut}}<p class="notes">{{.AlarmRowsCut}} more alarm(s) not listed; every one is in events.jsonl and on the timeline.</p>{{end}}{{else}}<p id="alarm-log">No alarms were raised.</p>{{end}}
 
 <h2>Plots</h2>
-{{range .Figures}}<figure id="fig-{{.ID}}">
+<p id="marks-key" class="notes">{{.MarksKey}}</p>
+{{range .Figures}}<figure id="fig-{{.ID}}"{{if .Half}} class="half"{{end}}>
 {{.SVG}}
 {{if .Legend}}<p class="legend">{{range .Legend}}<span class="swatch" style="background:{{.Color | css}}"></span>{{.Label}} {{end}}</p>{{end}}
 <figcaption><strong>{{.Title}}.</strong> {{.Caption}}</figcaption>

@@ -161,8 +161,15 @@ func (l *brokenLine) Thumbnail(c *draw.Canvas) {
 // linePlot draws time series, each thinned to at most about maxPoints
 // points and broken where a value is missing (NaN). It leaves headroom
 // above the data for the legend, so the legend never hides a peak.
-func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int) (*plot.Plot, plotStats, error) {
+//
+// under are drawn first, beneath the lines (the marks of what happened).
+func linePlot(title, xLabel, yLabel string, lines []line, maxPoints int, under ...plot.Plotter) (*plot.Plot, plotStats, error) {
 	p := newPlot(title, xLabel, yLabel)
+	for _, u := range under {
+		if u != nil {
+			p.Add(u)
+		}
+	}
 	var st plotStats
 	ylo, yhi := math.Inf(1), math.Inf(-1)
 	entries := 0
@@ -257,12 +264,17 @@ type alarmMark struct {
 // axis, titled so, because "nothing happened" is a result worth showing.
 // The severity legend is left to the page (see severityLegend): inside the
 // plot it would cover the markers at the end of the run, where a trip is.
-func alarmTimeline(marks []alarmMark, t0, t1 float64) (*plot.Plot, error) {
+//
+// under is drawn beneath the markers (the marks of what happened).
+func alarmTimeline(marks []alarmMark, t0, t1 float64, under plot.Plotter) (*plot.Plot, error) {
 	title := "Alarm timeline"
 	if len(marks) == 0 {
 		title = "Alarm timeline: no alarms raised"
 	}
 	p := newPlot(title, "time (s)", "")
+	if under != nil {
+		p.Add(under)
+	}
 	p.X.Min, p.X.Max = t0, math.Max(t1, t0+1e-3)
 	kinds := map[string]int{}
 	var names []string

@@ -20,12 +20,19 @@ import (
 
 // plotIDs are the ids of the SVG plots every report carries.
 var plotIDs = []string{
-	"plot-joint-angles", "plot-joint-rates", "plot-torques", "plot-force-left", "plot-force-right",
-	"plot-utilization", "plot-alarms", "plot-heel-strikes",
+	"plot-joint-angles", "plot-joint-rates", "plot-torques", "plot-hip-height", "plot-hip-speed", "plot-energy",
+	"plot-force-left", "plot-force-right", "plot-cone-left", "plot-cone-right",
+	"plot-utilization", "plot-cop", "plot-phase-0", "plot-alarms", "plot-heel-strikes",
 }
 
-// latencyPlotID is the plot a run with measured latency adds.
-const latencyPlotID = "plot-latency"
+// latencyPlotID and latencyCDFID are the plots a run with measured latency
+// adds; torsoPlotID the plot a walker with a torso adds.
+const (
+	latencyPlotID = "plot-latency"
+	latencyCDFID  = "plot-latency-cdf"
+	latencyTailID = "plot-latency-tail"
+	torsoPlotID   = "plot-torso-pitch"
+)
 
 // writeSynthFolder writes the synthetic run r into a run folder with the
 // real record writer. close=false leaves it as a killed run leaves it: no
@@ -229,7 +236,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 		wantExtra   []string
 	}{
 		{name: "low-friction patch fails the friction ceiling", opts: synthOpts{durationS: 8, hz: 1000, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: true},
-		{name: "good ground passes, with torso", opts: synthOpts{durationS: 3, hz: 500, patchMu: 0.6, withTorso: true}, wantOutcome: "pass", wantFail: 0, wantThinned: false},
+		{name: "good ground passes, with torso", opts: synthOpts{durationS: 3, hz: 500, patchMu: 0.6, withTorso: true}, wantOutcome: "pass", wantFail: 0, wantThinned: false, wantExtra: []string{torsoPlotID}},
 		{
 			name: "wall-clock run adds the latency plot", opts: synthOpts{durationS: 4, hz: 1000, patchMu: 0.6}, wantOutcome: "pass", wantThinned: true,
 			edit: func(r *synthRun) {
@@ -241,7 +248,7 @@ func TestWriteHTMLFromRunFolder(t *testing.T) {
 				}
 				r.sum.LatencyUS = &record.Latency{P50: 98, P99: 106, Max: 106}
 			},
-			wantExtra: []string{latencyPlotID},
+			wantExtra: []string{latencyPlotID, latencyCDFID, latencyTailID},
 		},
 		{
 			name: "markup in names is shown as text", opts: synthOpts{durationS: 2, hz: 500, patchMu: 0.15}, wantOutcome: "fail", wantFail: 1, wantThinned: false,

@@ -57,6 +57,9 @@ func makeSynthRun(o synthOpts) synthRun {
 			{LengthM: 200, SlopeRad: synthSlope2, MuStatic: synthMuS, MuKinetic: 0.5},
 		}},
 	}
+	if o.withTorso {
+		pl.Torso = &record.Torso{MassKG: 8, COMM: 0.3, InertiaKGM2: 0.5}
+	}
 	r.m = record.Manifest{
 		Scenario:     "synthetic-level-walk",
 		ScenarioFile: "synthetic (made by the report tests)",
@@ -74,6 +77,9 @@ func makeSynthRun(o synthOpts) synthRun {
 		NumQ:         4,
 		JointNames:   []string{"hip"},
 		FootModes:    []string{"free", "rolling", "sliding"},
+	}
+	if o.withTorso {
+		r.m.NumQ = 5
 	}
 	theta := [2]float64{synthAlpha, -synthAlpha}
 	mu := func(x float64) float64 {
@@ -151,6 +157,9 @@ func makeSynthRun(o synthOpts) synthRun {
 		tick.T = t
 		tick.WallS = t
 		tick.Q = [record.MaxQ]float64{hipX, hipY, theta[0], theta[1]}
+		if o.withTorso {
+			tick.Q[4] = -0.1 + 0.03*math.Sin(2*math.Pi*tau/synthPeriod) // a gentle forward lean that rocks with the step
+		}
 		rates := [2]float64{}
 		rates[stance], rates[1-stance] = w, thwDot
 		tick.V = [record.MaxQ]float64{vx, vy, rates[0], rates[1]}

@@ -57,3 +57,34 @@ func niceStep(raw float64) float64 {
 	}
 	return 10 * p
 }
+
+// logTicks marks a log axis at 1, 2 and 5 times each power of ten with
+// labels, and at the other whole multiples without, so a range of less than
+// a decade (latencies from 3 to 12 ms) still gets several labelled ticks;
+// over many decades only the powers of ten are labelled.
+type logTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (logTicks) Ticks(lo, hi float64) []plot.Tick {
+	if !(lo > 0) || !(hi > lo) || math.IsInf(hi, 0) {
+		return nil
+	}
+	decades := math.Log10(hi / lo)
+	var ts []plot.Tick
+	for e := math.Floor(math.Log10(lo)); e <= math.Ceil(math.Log10(hi)); e++ {
+		p := math.Pow(10, e)
+		for m := 1; m <= 9; m++ {
+			v := float64(m) * p
+			if v < lo*(1-1e-12) || v > hi*(1+1e-12) {
+				continue
+			}
+			label := m == 1 || (decades < 3 && (m == 2 || m == 5)) || decades < 1
+			t := plot.Tick{Value: v}
+			if label {
+				t.Label = strconv.FormatFloat(v, 'f', max(0, int(-e)), 64)
+			}
+			ts = append(ts, t)
+		}
+	}
+	return ts
+}

@@ -3,6 +3,7 @@ package report
 import (
 	"math"
 	"slices"
+	"strings"
 	"testing"
 )
 
@@ -42,6 +43,34 @@ func TestNiceStep(t *testing.T) {
 	for _, tc := range tests {
 		if got := niceStep(tc.raw); math.Abs(got-tc.want) > 1e-12 {
 			t.Errorf("niceStep(%g) = %g, want %g", tc.raw, got, tc.want)
+		}
+	}
+}
+
+func TestLogTicks(t *testing.T) {
+	labels := func(lo, hi float64) []string {
+		var out []string
+		for _, tk := range (logTicks{}).Ticks(lo, hi) {
+			if tk.Value < lo || tk.Value > hi {
+				t.Errorf("tick %g outside [%g, %g]", tk.Value, lo, hi)
+			}
+			if tk.Label != "" {
+				out = append(out, tk.Label)
+			}
+		}
+		return out
+	}
+	for _, tc := range []struct {
+		lo, hi float64
+		want   string
+	}{
+		{2500, 14000, "3000 4000 5000 6000 7000 8000 9000 10000"}, // under a decade: every multiple
+		{1500, 150000, "2000 5000 10000 20000 50000 100000"},      // two decades: 1, 2, 5
+		{0.05, 2e4, "0.1 1 10 100 1000 10000"},                    // many: powers of ten only
+		{3, 2, ""},
+	} {
+		if got := strings.Join(labels(tc.lo, tc.hi), " "); got != tc.want {
+			t.Errorf("[%g, %g]: labels %q, want %q", tc.lo, tc.hi, got, tc.want)
 		}
 	}
 }
