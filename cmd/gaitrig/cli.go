@@ -237,7 +237,7 @@ func isZeroDefault(def string) bool {
 
 // quoteDefault quotes a string flag's default, as the flag package does.
 func quoteDefault(f *flag.Flag) string {
-	if value, _ := flag.UnquoteUsage(f); value == "string" {
+	if fmt.Sprintf("%T", f.Value) == "*flag.stringValue" {
 		return fmt.Sprintf("%q", f.DefValue)
 	}
 	return f.DefValue

@@ -355,3 +355,25 @@ func TestDeprecatedSpellingsStillWork(t *testing.T) {
 		t.Errorf("run --report=false wrote a report")
 	}
 }
+
+// TestOneActuatorIsNotPlural: a compass walker under the built-in
+// controller has one actuator, and the run's log says so without "1
+// actuators".
+func TestOneActuatorIsNotPlural(t *testing.T) {
+	sc, err := resolveScenario("passive-downhill")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(sc.Text), "link: none", "link: builtin", 1)
+	if text == string(sc.Text) {
+		t.Fatal("passive-downhill has no controller.link none to replace")
+	}
+	file := filepath.Join(t.TempDir(), "compass.yaml")
+	if err := os.WriteFile(file, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, _, errOut := run(t, "run", "--quiet", "--no-report", "--max-steps", "1", "--out", t.TempDir(), file)
+	if !strings.Contains(errOut, "actuators: 1") || strings.Contains(errOut, "1 actuators") {
+		t.Errorf("the handshake line does not say one actuator plainly:\n%s", errOut)
+	}
+}

@@ -28,7 +28,7 @@ terrain segment, extended without end; by default the segment under the
 initial stance foot, or the one --segment names. The output says which.
 Exit code 0 when a gait is found (stable or not: the output says which), 1
 when none is found from the guess, 2 for bad usage.`, stdout, stderr)
-	segment := c.Int("segment", -1, "terrain segment to analyse on, 0-based as in terrain.segments (-1: the one under the initial stance foot)")
+	segment := c.Int("segment", -1, "terrain segment `INDEX` to analyse on, 0-based as in terrain.segments (-1: the one under the initial stance foot)")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code

@@ -47,11 +47,11 @@ Mosquitto broker: --mosquitto ADDR, or /usr/sbin/mosquitto started on a free
 loopback port). The figures depend on the machine and its load: run it on the
 bench PC that will host the rig. Exit code 0 when every link was measured, 1
 when one could not be, 2 for bad usage.`, stdout, stderr)
-	ticks := c.Int("ticks", 10000, "ticks per link (at least 100)")
-	hz := c.Float64("hz", 1000, "tick rate")
-	links := c.String("links", strings.Join(rig.LatencyLinks, ","), "comma-separated links to measure, from: "+strings.Join(rig.LatencyLinks, ", "))
-	prio := c.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO priority asked for the loop thread; negative asks for none")
-	mosq := c.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "host:port of a running Mosquitto broker")
+	ticks := c.Int("ticks", 10000, "`N` ticks per link (at least 100)")
+	hz := c.Float64("hz", 1000, "tick rate in `HZ`")
+	links := c.String("links", strings.Join(rig.LatencyLinks, ","), "`LINKS` to measure, comma-separated, from: "+strings.Join(rig.LatencyLinks, ", "))
+	prio := c.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO `PRIORITY` asked for the loop thread; negative asks for none")
+	mosq := c.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "`HOST:PORT` of a running Mosquitto broker")
 	c.defaultIs("mosquitto", "$GAITRIG_MOSQUITTO_ADDR; when empty, start one")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {

@@ -54,9 +54,9 @@ table per check: peak friction use and the friction headroom left (1 minus
 the peak use; not a margin found by searching), least normal force, steps and
 latency, and GO only when every check passed; exit code 0 for GO, 1 for
 NO-GO, 2 for bad usage.`, stdout, stderr)
-	link := c.String("link", "builtin", "the firmware's link for every check, syntax as in gaitrig run --help")
-	scenario := c.String("scenario", "level-demo", "base scenario (file or built-in name)")
-	out := c.String("out", "runs", "parent folder for the run folders")
+	link := c.String("link", "builtin", "the firmware's `LINK` for every check, syntax as in gaitrig run --help")
+	scenario := c.String("scenario", "level-demo", "base `SCENARIO` (file or built-in name)")
+	out := c.String("out", "runs", "parent `FOLDER` for the run folders")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code

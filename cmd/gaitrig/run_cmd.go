@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"strings"
 	"syscall"
 
 	"gaitrig/hil"
@@ -33,6 +34,10 @@ type runResult struct {
 	Summary   *record.Summary `json:"summary"`          // summary.json; null when the run never started
 }
 
+// linkHelp is the help of a --link that may be left empty, from the
+// registry of link kinds.
+var linkHelp = "the `LINK` to the controller, one of:" + strings.TrimPrefix(rig.LinkHelp(), "controller link, one of:")
+
 // signalContext is cancelled by SIGINT or SIGTERM, so a run ends cleanly
 // with outcome aborted and its folder complete. A second signal kills.
 func signalContext() (context.Context, func()) {
@@ -47,19 +52,19 @@ run folder (manifest, telemetry, events, steps, summary) and an HTML report
 unless --no-report. SIGINT or SIGTERM ends the run with outcome "aborted" and
 everything written. Exit code 0 pass, 1 fail or tripped, 2 bad usage or
 configuration.`, stdout, stderr)
-	link := c.String("link", "", rig.LinkHelp())
-	out := c.String("out", "runs", "parent folder for the run folder")
-	dir := c.String("dir", "", "exact run folder to create; it must not exist yet (overrides --out)")
-	clock := c.String("clock", "", `clock mode override: "lockstep" or "wallclock"`)
-	rigID := c.String("rig", "", "MQTT rig id override")
+	link := c.String("link", "", linkHelp)
+	out := c.String("out", "runs", "parent `FOLDER` for the run folder")
+	dir := c.String("dir", "", "exact run `FOLDER` to create; it must not exist yet (overrides --out)")
+	clock := c.String("clock", "", "clock `MODE` override: lockstep or wallclock")
+	rigID := c.String("rig", "", "MQTT rig `ID` override")
 	noReport := c.Bool("no-report", false, "do not write report.html")
 	oldReport := c.Bool("report", true, "")
 	c.deprecate("report", "--report=false is now --no-report (the report is written by default)")
 	junit := c.Bool("junit", false, "also write junit.xml in the run folder, one test case per criterion")
 	parquet := c.Bool("parquet", false, "also export telemetry.parquet")
 	quiet := c.Bool("quiet", false, "no line per step")
-	maxSteps := c.Int("max-steps", 0, "end after this many steps (overrides the scenario's run.max_steps)")
-	duration := c.Float64("duration", 0, "end after this many simulated seconds (overrides run.duration_s)")
+	maxSteps := c.Int("max-steps", 0, "end after `N` steps (overrides the scenario's run.max_steps)")
+	duration := c.Float64("duration", 0, "end after `SECONDS` of simulated time (overrides run.duration_s)")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -173,8 +178,8 @@ The main job on the embedded default: the built-in reference firmware
 connects over the embedded MQTT broker (loopback only) exactly as separate
 controller code would, and walks the level-ground demo walker. Prints a line
 per step, then the verdict and the path of the run folder with its report.`, stdout, stderr)
-	out := c.String("out", "runs", "parent folder for the run folder")
-	scenario := c.String("scenario", "level-demo", "built-in scenario or file to run instead of the level-ground demo")
+	out := c.String("out", "runs", "parent `FOLDER` for the run folder")
+	scenario := c.String("scenario", "level-demo", "built-in `SCENARIO` or file to run instead of the level-ground demo")
 	quiet := c.Bool("quiet", false, "no line per step")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
