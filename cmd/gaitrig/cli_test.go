@@ -167,6 +167,12 @@ func TestMaxStepsBelowMinStepsWarnsBeforeTheRun(t *testing.T) {
 	if !strings.Contains(stdout, "link: builtin") {
 		t.Errorf("the run does not say which link it used:\n%s", stdout)
 	}
+	// Over another link the run names that link, and the scenario's
+	// description no longer claims a controller.
+	_, stdout, errOut = run(t, "run", "--quiet", "--no-report", "--out", out, "--link", "pty", "--max-steps", "2", "level-demo")
+	if !strings.Contains(stdout, "\nlink: pty") || strings.Contains(stdout, "built-in reference controller") {
+		t.Errorf("a run over a pty does not say so:\n%s%s", stdout, errOut)
+	}
 }
 
 // decodeJSON decodes a command's stdout strictly into v: one document,
@@ -375,5 +381,42 @@ func TestOneActuatorIsNotPlural(t *testing.T) {
 	_, _, errOut := run(t, "run", "--quiet", "--no-report", "--max-steps", "1", "--out", t.TempDir(), file)
 	if !strings.Contains(errOut, "actuators: 1") || strings.Contains(errOut, "1 actuators") {
 		t.Errorf("the handshake line does not say one actuator plainly:\n%s", errOut)
+	}
+}
+
+// TestJSONOfDemoAndLatency decodes the two remaining result commands: a
+// short demo over the embedded broker (a three-step variant of
+// passive-downhill) and a latency measurement of the in-process link over
+// 200 ticks. Neither asserts a timing: the latency figures are only
+// required to be there, and consistent (p50 ≤ p99 ≤ max).
+func TestJSONOfDemoAndLatency(t *testing.T) {
+	sc, err := resolveScenario("passive-downhill")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(sc.Text), "max_steps: 30", "max_steps: 3", 1)
+	text = strings.Replace(text, "min_steps: 20", "min_steps: 3", 1)
+	file := filepath.Join(t.TempDir(), "short.yaml")
+	if err := os.WriteFile(file, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, stdout, errOut := run(t, "demo", "--json", "--scenario", file, "--out", t.TempDir())
+	var r runResult
+	decodeJSON(t, "demo", stdout, &r)
+	if code != exitPass || !strings.HasPrefix(r.Link, "mqtt:") || r.Summary == nil || r.Summary.Steps != 3 {
+		t.Errorf("demo --json: exit %d, %+v\n%s", code, r, errOut)
+	}
+	if !strings.Contains(errOut, "step   1") {
+		t.Errorf("demo --json: the step lines did not go to stderr:\n%s", errOut)
+	}
+
+	code, stdout, errOut = run(t, "latency", "--json", "--links", "inproc", "--ticks", "200", "--rt-priority", "-1")
+	var l latencyResult
+	decodeJSON(t, "latency", stdout, &l)
+	if code != exitPass || len(l.Links) != 1 || l.Links[0].Link != "inproc" || l.Links[0].Ticks == 0 {
+		t.Fatalf("latency --json: exit %d, %+v\n%s", code, l, errOut)
+	}
+	if rt := l.Links[0].RoundTripUS; rt == nil || !(rt.P50 <= rt.P99 && rt.P99 <= rt.Max) || rt.Count == 0 {
+		t.Errorf("latency --json: round trip %+v, want measured figures with p50 ≤ p99 ≤ max", rt)
 	}
 }

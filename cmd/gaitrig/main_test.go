@@ -67,7 +67,7 @@ func TestDemoWalksOverTheEmbeddedBroker(t *testing.T) {
 			t.Errorf("demo run folder lacks %s", f)
 		}
 	}
-	for _, want := range []string{"step   1", "outcome: PASS", "report:", "not a safety certificate"} {
+	for _, want := range []string{"step   1", "link: mqtt:", "outcome: PASS", "report:", "not a safety certificate"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("demo output lacks %q:\n%s", want, out)
 		}
