@@ -13,23 +13,23 @@ import (
 // form the cycle command prints and writes as JSON: the period-one gait,
 // its step figures and the eigenvalues of its step-to-step map.
 type GaitReport struct {
-	Scenario             string       `json:"scenario"`
-	Loop                 string       `json:"loop"` // passive or closed loop with the built-in controller
-	Found                bool         `json:"found"`
-	Stable               bool         `json:"stable"`
-	Eigenvalues          [][2]float64 `json:"eigenvalues"`
-	SpectralRadius       float64      `json:"spectral_radius"`
-	PeriodS              float64      `json:"period_s"`
-	StepLengthM          float64      `json:"step_length_m"`
-	SpeedMPS             float64      `json:"speed_mps"`
-	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`
-	PeakRequiredFriction float64      `json:"peak_required_friction"`
-	MinNormalForceN      float64      `json:"min_normal_force_n"`
-	ImpulseRatio         float64      `json:"impulse_ratio"`
-	Residual             float64      `json:"residual"`
-	Iterations           int          `json:"iterations"`
-	Segment              GaitSegment  `json:"segment"`
-	State                GaitState    `json:"state_after_heel_strike"`
+	Scenario             string       `json:"scenario"`                // scenario name
+	Loop                 string       `json:"loop"`                    // passive or closed loop with the built-in controller
+	Found                bool         `json:"found"`                   // a period-one gait was found from the guess
+	Stable               bool         `json:"stable"`                  // every eigenvalue inside the unit circle
+	Eigenvalues          [][2]float64 `json:"eigenvalues"`             // of the step-to-step map's Jacobian, each [real, imaginary]
+	SpectralRadius       float64      `json:"spectral_radius"`         // largest |λ|; below 1 is stable
+	PeriodS              float64      `json:"period_s"`                // step period, s
+	StepLengthM          float64      `json:"step_length_m"`           // m
+	SpeedMPS             float64      `json:"speed_mps"`               // mean forward speed, m/s
+	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`  // at heel strike, J
+	PeakRequiredFriction float64      `json:"peak_required_friction"`  // largest |F_t|/N over the step: the least μ_s the gait needs
+	MinNormalForceN      float64      `json:"min_normal_force_n"`      // least stance normal force, N
+	ImpulseRatio         float64      `json:"impulse_ratio"`           // |Λ_t|/Λ_n of the heel-strike impulse
+	Residual             float64      `json:"residual"`                // of Newton's method on the step-to-step map
+	Iterations           int          `json:"iterations"`              // Newton iterations
+	Segment              GaitSegment  `json:"segment"`                 // the terrain segment analysed on
+	State                GaitState    `json:"state_after_heel_strike"` // the gait's state just after heel strike
 }
 
 // GaitSegment is the terrain segment a gait analysis used. A period-one
@@ -38,21 +38,21 @@ type GaitReport struct {
 // end, so the answer does not depend on where a step happens to cross to
 // the next segment.
 type GaitSegment struct {
-	Index     int     `json:"index"`     // 0-based index in terrain.segments
-	Of        int     `json:"of"`        // number of segments of the scenario's terrain
-	Chosen    bool    `json:"chosen"`    // asked for; false: the segment under the initial stance foot
-	SlopeRad  float64 `json:"slope_rad"` // positive uphill
-	MuStatic  float64 `json:"mu_static"`
-	MuKinetic float64 `json:"mu_kinetic"`
+	Index     int     `json:"index"`      // 0-based index in terrain.segments
+	Of        int     `json:"of"`         // number of segments of the scenario's terrain
+	Chosen    bool    `json:"chosen"`     // asked for; false: the segment under the initial stance foot
+	SlopeRad  float64 `json:"slope_rad"`  // positive uphill
+	MuStatic  float64 `json:"mu_static"`  // static friction coefficient
+	MuKinetic float64 `json:"mu_kinetic"` // kinetic friction coefficient
 }
 
 // GaitState is the gait's state just after heel strike, with its convention.
 type GaitState struct {
-	Convention string    `json:"convention"`
-	Stance     string    `json:"stance"`
-	Q          []float64 `json:"q"`
-	V          []float64 `json:"v"`
-	Reduced    []float64 `json:"reduced"`
+	Convention string    `json:"convention"` // what q, v and reduced mean, in words
+	Stance     string    `json:"stance"`     // left or right
+	Q          []float64 `json:"q"`          // generalized coordinates
+	V          []float64 `json:"v"`          // their rates
+	Reduced    []float64 `json:"reduced"`    // the step-to-step map's coordinates
 }
 
 // stateConvention explains GaitState for a reader of the JSON alone.

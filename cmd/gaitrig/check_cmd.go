@@ -25,17 +25,17 @@ type checkResult struct {
 
 // checkProblem is one problem of a scenario file.
 type checkProblem struct {
-	File    string `json:"file"`
-	Line    int    `json:"line"`   // 1-based, 0 when unknown
-	Column  int    `json:"column"` // 1-based, 0 when unknown
-	Field   string `json:"field"`  // field path such as plant.legs.foot_radius_m
-	Message string `json:"message"`
+	File    string `json:"file"`    // the file (or argument) the problem is in
+	Line    int    `json:"line"`    // 1-based, 0 when unknown
+	Column  int    `json:"column"`  // 1-based, 0 when unknown
+	Field   string `json:"field"`   // field path such as plant.legs.foot_radius_m
+	Message string `json:"message"` // what is wrong and what is allowed
 }
 
 // scenarioEntry is one built-in scenario of scenarios --json.
 type scenarioEntry struct {
-	Name        string `json:"name"`
-	Description string `json:"description"`
+	Name        string `json:"name"`        // the name to give where a SCENARIO is asked for
+	Description string `json:"description"` // one sentence
 }
 
 func cmdCheck(args []string, stdout, stderr io.Writer) int {

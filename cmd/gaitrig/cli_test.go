@@ -2,7 +2,6 @@ package main
 
 import (
 	"encoding/json"
-	"flag"
 	"io"
 	"os"
 	"path/filepath"
@@ -13,8 +12,6 @@ import (
 	"gaitrig/record"
 	"gaitrig/rig"
 )
-
-var update = flag.Bool("update", false, "rewrite docs/cli.md from the code")
 
 func TestFlagsAndArgumentsInAnyOrder(t *testing.T) {
 	tests := []struct {
@@ -89,30 +86,6 @@ func TestEveryJSONCommandIsDocumented(t *testing.T) {
 	for _, name := range []string{"run", "check", "scenarios", "cycle", "suite", "preflight", "replay", "latency"} {
 		if _, ok := jsonResults[name]; !ok {
 			t.Errorf("gaitrig %s has no --json (issue 9 asks for it on every command that prints results)", name)
-		}
-	}
-}
-
-// TestCLIReference fails while docs/cli.md differs from what the command
-// table and the result types give; -update rewrites it.
-func TestCLIReference(t *testing.T) {
-	path := filepath.Join("..", "..", "docs", "cli.md")
-	want := cliReference()
-	if *update {
-		if err := os.WriteFile(path, []byte(want), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
-	got, err := os.ReadFile(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if string(got) != want {
-		t.Errorf("docs/cli.md is stale: run go generate ./cmd/gaitrig")
-	}
-	for _, name := range sortedKeys(commands) {
-		if !strings.Contains(want, "\n## gaitrig "+name+"\n") {
-			t.Errorf("docs/cli.md has no section for %s", name)
 		}
 	}
 }

@@ -25,11 +25,11 @@ type latencyResult struct {
 
 // linkLatency is one link's measurement.
 type linkLatency struct {
-	Link             string       `json:"link"`
-	Ticks            int64        `json:"ticks"`
-	RoundTripUS      *hil.Summary `json:"round_trip_us"` // state sent → its command back; null when nothing was measured
-	JitterUS         *hil.Summary `json:"jitter_us"`     // tick start lateness; null when nothing was measured
-	DeadlineMisses   uint64       `json:"deadline_misses"`
+	Link             string       `json:"link"`               // inproc, pty, embedded or mosquitto
+	Ticks            int64        `json:"ticks"`              // ticks run
+	RoundTripUS      *hil.Summary `json:"round_trip_us"`      // state sent → its command back; null when nothing was measured
+	JitterUS         *hil.Summary `json:"jitter_us"`          // tick start lateness; null when nothing was measured
+	DeadlineMisses   uint64       `json:"deadline_misses"`    // ticks whose work ended after the next tick was due
 	DeadlineMissRate float64      `json:"deadline_miss_rate"` // misses per tick, 0…1
 	Outcome          string       `json:"outcome,omitempty"`  // the measuring run's outcome
 	Reason           string       `json:"reason,omitempty"`

@@ -21,27 +21,27 @@ func init() {
 // preflightResult is what preflight prints with --json.
 type preflightResult struct {
 	Scenario string           `json:"scenario"` // the base scenario
-	Link     string           `json:"link"`
-	Folder   string           `json:"folder"` // the folder holding every check's run folder
-	Checks   []preflightCheck `json:"checks"` // in battery order
-	Go       bool             `json:"go"`     // every check ran and passed
-	Caution  string           `json:"caution"`
+	Link     string           `json:"link"`     // the firmware's link, as --link spells it
+	Folder   string           `json:"folder"`   // the folder holding every check's run folder
+	Checks   []preflightCheck `json:"checks"`   // in battery order
+	Go       bool             `json:"go"`       // every check ran and passed
+	Caution  string           `json:"caution"`  // the safety caution
 }
 
 // preflightCheck is one check of the battery.
 type preflightCheck struct {
-	Name                    string   `json:"name"`
-	What                    string   `json:"what"`
-	Pass                    bool     `json:"pass"`
-	Outcome                 string   `json:"outcome"`
-	Steps                   int      `json:"steps"`
+	Name                    string   `json:"name"`                      // the check's name
+	What                    string   `json:"what"`                      // what the check changes, in words
+	Pass                    bool     `json:"pass"`                      // ran and passed the scenario's criteria
+	Outcome                 string   `json:"outcome"`                   // pass, fail, tripped, aborted, or error when it could not run
+	Steps                   int      `json:"steps"`                     // steps completed
 	PeakFrictionUtilization float64  `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N)
 	FrictionHeadroom        float64  `json:"friction_headroom"`         // 1 − peak_friction_utilization: not a margin search
-	MinNormalForceN         float64  `json:"min_normal_force_n"`
-	LatencyP99US            *float64 `json:"latency_p99_us"` // null in lockstep
-	Problems                []string `json:"problems"`
-	Error                   string   `json:"error,omitempty"` // why the check could not run
-	RunFolder               string   `json:"run_folder"`
+	MinNormalForceN         float64  `json:"min_normal_force_n"`        // least stance-foot normal force, N
+	LatencyP99US            *float64 `json:"latency_p99_us"`            // null in lockstep
+	Problems                []string `json:"problems"`                  // why a check that ran did not pass, in words
+	Error                   string   `json:"error,omitempty"`           // why the check could not run
+	RunFolder               string   `json:"run_folder"`                // the check's run folder
 }
 
 func cmdPreflight(args []string, stdout, stderr io.Writer) int {

@@ -130,10 +130,7 @@ func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options) int {
 	res := runResult{Scenario: sc.Name}
 	p, err := rig.Prepare(ctx, sc, o)
 	if err != nil {
-		if c.jsonMode() {
-			res.Error = err.Error()
-			c.printJSON(res, 0)
-		}
+		// Nothing ran: no document, the error on stderr (docs/cli.md).
 		return c.fail(err)
 	}
 	defer p.Close()

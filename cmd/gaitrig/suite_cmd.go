@@ -27,19 +27,19 @@ type suiteResult struct {
 	BaselineWritten string          `json:"baseline_written,omitempty"` // --write-baseline, when given
 	Scenarios       []suiteScenario `json:"scenarios"`                  // sorted by name
 	Failed          int             `json:"failed"`                     // scenarios that regressed or could not run
-	Caution         string          `json:"caution"`
+	Caution         string          `json:"caution"`                    // the safety caution
 }
 
 // suiteScenario is one scenario's verdict in a suite.
 type suiteScenario struct {
-	Scenario    string   `json:"scenario"`
-	Verdict     string   `json:"verdict"`  // ok, regressed or error
-	Outcome     string   `json:"outcome"`  // the run's outcome
-	Expected    string   `json:"expected"` // the outcome the baseline expects ("" = pass)
-	Regressions []string `json:"regressions"`
+	Scenario    string   `json:"scenario"`        // scenario name
+	Verdict     string   `json:"verdict"`         // ok, regressed or error
+	Outcome     string   `json:"outcome"`         // the run's outcome
+	Expected    string   `json:"expected"`        // the outcome the baseline expects ("" = pass)
+	Regressions []string `json:"regressions"`     // what got worse than the baseline, in words
 	Error       string   `json:"error,omitempty"` // why it could not run
-	RunFolder   string   `json:"run_folder"`
-	Seconds     float64  `json:"seconds"` // wall time
+	RunFolder   string   `json:"run_folder"`      // the scenario's run folder
+	Seconds     float64  `json:"seconds"`         // wall time
 }
 
 func cmdSuite(args []string, stdout, stderr io.Writer) int {

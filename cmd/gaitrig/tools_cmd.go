@@ -24,7 +24,7 @@ func init() {
 
 // replayResult is what replay prints with --json.
 type replayResult struct {
-	RunFolder       string  `json:"run_folder"`
+	RunFolder       string  `json:"run_folder"`       // the run folder replayed
 	Ticks           int     `json:"ticks"`            // recorded ticks replayed
 	Match           bool    `json:"match"`            // every q and v of every tick matched bit for bit
 	FirstDivergence int64   `json:"first_divergence"` // first tick that differs, -1 if none
