@@ -116,13 +116,6 @@ func (c *cmdline) parse(args []string) (bool, int) {
 	return false, 0
 }
 
-// isSet reports whether the flag name was given on the command line.
-func (c *cmdline) isSet(name string) bool {
-	set := false
-	c.Visit(func(f *flag.Flag) { set = set || f.Name == name })
-	return set
-}
-
 // usageError prints a usage error (one line, then where to find the help)
 // and returns exit code 2.
 func (c *cmdline) usageError(format string, a ...any) int {

@@ -70,6 +70,9 @@ func TestEveryCommandAnswersAlike(t *testing.T) {
 	if code, out, _ := run(t, "--help"); code != exitPass || !strings.Contains(out, "Commands:") {
 		t.Errorf("gaitrig --help: exit %d, want 0 and the command list on stdout", code)
 	}
+	if code, out, _ := run(t, "help", "cycle"); code != exitPass || !strings.HasPrefix(out, "Usage: gaitrig cycle") {
+		t.Errorf("gaitrig help cycle: exit %d, want 0 and the help of cycle", code)
+	}
 }
 
 // TestEveryJSONCommandIsDocumented: a command with --json has its result

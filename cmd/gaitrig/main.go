@@ -66,6 +66,10 @@ func dispatch(args []string, stdout, stderr io.Writer) int {
 		printUsage(stderr)
 		return exitConfig
 	}
+	if args[0] == "help" && len(args) == 2 {
+		// gaitrig help run is gaitrig run --help.
+		args = []string{args[1], "--help"}
+	}
 	if args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
 		printUsage(stdout)
 		return exitPass
@@ -109,6 +113,7 @@ func printUsage(w io.Writer) {
 func newFlagSet(name, argsUsage, description string, stderr io.Writer) *flag.FlagSet {
 	c := newCmdline(name, argsUsage, description, stderr, stderr)
 	c.SetOutput(stderr)
+	c.Usage = func() { c.printHelp(stderr) }
 	return c.FlagSet
 }
 

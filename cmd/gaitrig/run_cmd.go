@@ -54,7 +54,7 @@ everything written. Exit code 0 pass, 1 fail or tripped, 2 bad usage or
 configuration.`, stdout, stderr)
 	link := c.String("link", "", linkHelp)
 	out := c.String("out", "runs", "parent `FOLDER` for the run folder")
-	dir := c.String("dir", "", "exact run `FOLDER` to create; it must not exist yet (overrides --out)")
+	dir := c.String("dir", "", "exact run `FOLDER` to create, new or empty; checked before the link opens (overrides --out)")
 	clock := c.String("clock", "", "clock `MODE` override: lockstep or wallclock")
 	rigID := c.String("rig", "", "MQTT rig `ID` override")
 	noReport := c.Bool("no-report", false, "do not write report.html")
