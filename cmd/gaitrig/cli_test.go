@@ -228,7 +228,7 @@ func TestJSONOfRunCheckScenariosCycleReplay(t *testing.T) {
 // friction the report carries and whose gait differs.
 func TestCycleSaysAndTakesTheSegment(t *testing.T) {
 	code, out, errOut := run(t, "cycle", "slope-change")
-	if code != exitPass || !strings.Contains(out, "on terrain segment 0 of 4 (the segment under the initial stance foot): slope 0 rad") {
+	if code != exitPass || !strings.Contains(out, "on terrain segment 0 (of 4, counted from 0; the segment under the initial stance foot): slope 0 rad") {
 		t.Fatalf("cycle slope-change: exit %d\n%s%s", code, out, errOut)
 	}
 	var level, down rig.GaitReport

@@ -68,7 +68,7 @@ func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	if s.Chosen {
 		how = "chosen with --segment"
 	}
-	fmt.Fprintf(w, "  on terrain segment %d of %d (%s): slope %.4g rad, mu_static %.3g, mu_kinetic %.3g, taken as ground without end\n",
+	fmt.Fprintf(w, "  on terrain segment %d (of %d, counted from 0; %s): slope %.4g rad, mu_static %.3g, mu_kinetic %.3g, taken as ground without end\n",
 		s.Index, s.Of, how, s.SlopeRad, s.MuStatic, s.MuKinetic)
 	if !r.Found {
 		fmt.Fprintf(w, "  no period-one gait found from the scenario's guess (%v)\n", err)
