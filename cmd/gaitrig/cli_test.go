@@ -333,8 +333,42 @@ func TestDeprecatedSpellingsStillWork(t *testing.T) {
 	if code == exitConfig || !strings.Contains(errOut, "--report is deprecated") {
 		t.Errorf("run --report=false: exit %d\n%s", code, errOut)
 	}
-	if _, err := os.Stat(filepath.Join(onlyRunDir(t, out), "report.html")); err == nil {
+	dir := onlyRunDir(t, out)
+	if _, err := os.Stat(filepath.Join(dir, "report.html")); err == nil {
 		t.Errorf("run --report=false wrote a report")
+	}
+
+	// --junit means "write junit.xml" in report as in run: not without it
+	// (unless the folder has one to bring up to date), yes with it.
+	if code, _, errOut := run(t, "report", dir); code != exitPass {
+		t.Fatalf("report: exit %d\n%s", code, errOut)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "junit.xml")); err == nil {
+		t.Errorf("report without --junit wrote junit.xml into a folder that had none")
+	}
+	if code, _, errOut := run(t, "report", "--junit", dir); code != exitPass {
+		t.Fatalf("report --junit: exit %d\n%s", code, errOut)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "junit.xml")); err != nil {
+		t.Errorf("report --junit wrote no junit.xml: %v", err)
+	}
+
+	// The suite's old spellings: --junit PATH and --parallel N.
+	lib := t.TempDir()
+	sc, err := resolveScenario("passive-downhill")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(lib, "a.yaml"), sc.Text, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	junit := filepath.Join(t.TempDir(), "nightly.xml")
+	code, _, errOut = run(t, "suite", "--no-report", "--junit", junit, "--parallel", "1", "--out", t.TempDir(), lib)
+	if code != exitPass || !strings.Contains(errOut, "--junit is deprecated") || !strings.Contains(errOut, "--parallel is deprecated") {
+		t.Errorf("suite --junit PATH --parallel 1: exit %d\n%s", code, errOut)
+	}
+	if _, err := os.Stat(junit); err != nil {
+		t.Errorf("suite --junit PATH wrote no file there: %v", err)
 	}
 }
 
