@@ -88,15 +88,19 @@ func dispatch(args []string, stdout, stderr io.Writer) int {
 
 func printUsage(w io.Writer) {
 	fmt.Fprintln(w, "gaitrig: hardware-in-the-loop harness for biped walking-controller firmware")
-	fmt.Fprintln(w, "\nUsage: gaitrig COMMAND [flags] [arguments]   (gaitrig COMMAND --help for details)")
+	fmt.Fprintln(w, "\nUsage: gaitrig COMMAND [flags] [arguments]   (gaitrig COMMAND --help, or docs/cli.md, for details)")
 	fmt.Fprintln(w, "\nCommands:")
 	names := make([]string, 0, len(commands))
 	for n := range commands {
 		names = append(names, n)
 	}
 	sort.Strings(names)
+	width := 0
 	for _, n := range names {
-		fmt.Fprintf(w, "  %-10s %s\n", n, commands[n].summary)
+		width = max(width, len(n))
+	}
+	for _, n := range names {
+		fmt.Fprintf(w, "  %-*s  %s\n", width, n, commands[n].summary)
 	}
 	fmt.Fprintln(w, "\nExit codes: 0 pass, 1 a criterion failed or the run tripped, 2 bad usage or configuration.")
 	fmt.Fprintln(w, "\n"+safetyCaution)
