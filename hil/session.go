@@ -83,11 +83,11 @@ func (r *runner) handshake() error {
 		return nil
 	}
 	if int(g.Actuators) != r.n {
-		err := fmt.Errorf("hil: firmware %q drives %d actuators, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
+		err := fmt.Errorf("hil: firmware %q announces actuators: %d, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
 		r.end.end(record.Aborted, err.Error(), protocol.StopEStop)
 		return err
 	}
-	r.logf("firmware %q build %q greeted with protocol v%d, %d actuators", g.Name, g.Build, g.Version, g.Actuators)
+	r.logf("firmware %q build %q greeted with protocol v%d; actuators: %d", g.Name, g.Build, g.Version, g.Actuators)
 	c := &ss.config
 	c.Type = protocol.TypeConfig
 	c.Config.TickHz = uint16(math.Min(math.Round(r.cfg.TickHz), math.MaxUint16))

@@ -110,7 +110,7 @@ func ExportParquet(dir string) (rows int, err error) {
 	if err := w.Close(); err != nil {
 		return rows, fmt.Errorf("record: parquet: %w", err)
 	}
-	if err := errors.Join(tmp.Sync(), tmp.Close()); err != nil {
+	if err := errors.Join(tmp.Chmod(FileMode), tmp.Sync(), tmp.Close()); err != nil {
 		return rows, fmt.Errorf("record: parquet: %w", err)
 	}
 	if err := os.Rename(tmp.Name(), final); err != nil {

@@ -42,6 +42,12 @@ const (
 	ParquetFile   = "telemetry.parquet"
 )
 
+// FileMode is the permission of every file in a run folder: readable by
+// everyone, so a CI artifact uploader or a colleague's account can collect
+// the folder; the files hold no secrets. A temporary file (which os.CreateTemp
+// makes 0600) is set to it before it is renamed into place.
+const FileMode = 0o644
+
 // FlushInterval is the longest wall time telemetry rows stay buffered while
 // ticks keep arriving. A SIGKILL loses at most this plus the time of one
 // tick.

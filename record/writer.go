@@ -70,7 +70,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	// started on one folder at once, exactly one gets past here, before
 	// either has written a manifest the other could overwrite.
 	var err error
-	if w.tele, err = os.OpenFile(filepath.Join(dir, TelemetryFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+	if w.tele, err = os.OpenFile(filepath.Join(dir, TelemetryFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, FileMode); err != nil {
 		if errors.Is(err, os.ErrExist) {
 			return nil, fmt.Errorf("record: run folder %s is already in use by another run; choose a new folder", dir)
 		}
@@ -87,7 +87,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		return nil, fmt.Errorf("record: %w", err)
 	}
 	w.lastFlush = time.Now()
-	if w.events, err = os.OpenFile(filepath.Join(dir, EventsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+	if w.events, err = os.OpenFile(filepath.Join(dir, EventsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, FileMode); err != nil {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
@@ -95,7 +95,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 	// (in the page cache) the moment Event returns.
 	w.eventsOut.f = w.events
 	w.log = zerolog.New(&w.eventsOut)
-	if w.steps, err = os.OpenFile(filepath.Join(dir, StepsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644); err != nil {
+	if w.steps, err = os.OpenFile(filepath.Join(dir, StepsFile), os.O_CREATE|os.O_EXCL|os.O_WRONLY, FileMode); err != nil {
 		w.closeFiles()
 		return nil, fmt.Errorf("record: %w", err)
 	}
@@ -304,9 +304,10 @@ func writeJSONAtomic(path string, v any) error {
 		return fmt.Errorf("record: %w", err)
 	}
 	_, werr := tmp.Write(data)
+	merr := tmp.Chmod(FileMode)
 	serr := tmp.Sync()
 	cerr := tmp.Close()
-	if err := errors.Join(werr, serr, cerr); err != nil {
+	if err := errors.Join(werr, merr, serr, cerr); err != nil {
 		os.Remove(tmp.Name())
 		return fmt.Errorf("record: %s: %w", filepath.Base(path), err)
 	}

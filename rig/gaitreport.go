@@ -2,6 +2,7 @@ package rig
 
 import (
 	"errors"
+	"math"
 	"math/cmplx"
 
 	"gaitrig/plant"
@@ -12,31 +13,46 @@ import (
 // form the cycle command prints and writes as JSON: the period-one gait,
 // its step figures and the eigenvalues of its step-to-step map.
 type GaitReport struct {
-	Scenario             string       `json:"scenario"`
-	Loop                 string       `json:"loop"` // passive or closed loop with the built-in controller
-	Found                bool         `json:"found"`
-	Stable               bool         `json:"stable"`
-	Eigenvalues          [][2]float64 `json:"eigenvalues"`
-	SpectralRadius       float64      `json:"spectral_radius"`
-	PeriodS              float64      `json:"period_s"`
-	StepLengthM          float64      `json:"step_length_m"`
-	SpeedMPS             float64      `json:"speed_mps"`
-	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`
-	PeakRequiredFriction float64      `json:"peak_required_friction"`
-	MinNormalForceN      float64      `json:"min_normal_force_n"`
-	ImpulseRatio         float64      `json:"impulse_ratio"`
-	Residual             float64      `json:"residual"`
-	Iterations           int          `json:"iterations"`
-	State                GaitState    `json:"state_after_heel_strike"`
+	Scenario             string       `json:"scenario"`                // scenario name
+	Loop                 string       `json:"loop"`                    // passive or closed loop with the built-in controller
+	Found                bool         `json:"found"`                   // a period-one gait was found from the guess
+	Stable               bool         `json:"stable"`                  // every eigenvalue inside the unit circle
+	Eigenvalues          [][2]float64 `json:"eigenvalues"`             // of the step-to-step map's Jacobian, each [real, imaginary]
+	SpectralRadius       float64      `json:"spectral_radius"`         // largest |λ|; below 1 is stable
+	PeriodS              float64      `json:"period_s"`                // step period, s
+	StepLengthM          float64      `json:"step_length_m"`           // m
+	SpeedMPS             float64      `json:"speed_mps"`               // mean forward speed, m/s
+	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`  // at heel strike, J
+	PeakRequiredFriction float64      `json:"peak_required_friction"`  // largest |F_t|/N over the step: the least μ_s the gait needs
+	MinNormalForceN      float64      `json:"min_normal_force_n"`      // least stance normal force, N
+	ImpulseRatio         float64      `json:"impulse_ratio"`           // |Λ_t|/Λ_n of the heel-strike impulse
+	Residual             float64      `json:"residual"`                // of Newton's method on the step-to-step map
+	Iterations           int          `json:"iterations"`              // Newton iterations
+	Segment              GaitSegment  `json:"segment"`                 // the terrain segment analysed on
+	State                GaitState    `json:"state_after_heel_strike"` // the gait's state just after heel strike
+}
+
+// GaitSegment is the terrain segment a gait analysis used. A period-one
+// gait belongs to one slope and one friction: the finder analyses the
+// walker on one segment of the scenario's terrain, taken as ground without
+// end, so the answer does not depend on where a step happens to cross to
+// the next segment.
+type GaitSegment struct {
+	Index     int     `json:"index"`      // 0-based index in terrain.segments
+	Of        int     `json:"of"`         // number of segments of the scenario's terrain
+	Chosen    bool    `json:"chosen"`     // asked for; false: the segment under the initial stance foot
+	SlopeRad  float64 `json:"slope_rad"`  // positive uphill
+	MuStatic  float64 `json:"mu_static"`  // static friction coefficient
+	MuKinetic float64 `json:"mu_kinetic"` // kinetic friction coefficient
 }
 
 // GaitState is the gait's state just after heel strike, with its convention.
 type GaitState struct {
-	Convention string    `json:"convention"`
-	Stance     string    `json:"stance"`
-	Q          []float64 `json:"q"`
-	V          []float64 `json:"v"`
-	Reduced    []float64 `json:"reduced"`
+	Convention string    `json:"convention"` // what q, v and reduced mean, in words
+	Stance     string    `json:"stance"`     // left or right
+	Q          []float64 `json:"q"`          // generalized coordinates
+	V          []float64 `json:"v"`          // their rates
+	Reduced    []float64 `json:"reduced"`    // the step-to-step map's coordinates
 }
 
 // stateConvention explains GaitState for a reader of the JSON alone.
@@ -45,17 +61,58 @@ const stateConvention = "just after heel strike, the new stance foot rolling; q 
 	"torso forward lean is θ < 0), v = dq/dt; reduced = (θ_stance, θ_swing[, θ_torso], their rates)"
 
 // AnalyseGait runs the gait finder on a scenario's walker (see FindGait)
-// and reports the gait. A scenario that cannot be analysed is a
-// configuration error (ErrConfig) with an empty report; a finder that finds
-// no gait from the guess gives its error with the report (Found false).
-func AnalyseGait(sc *scenarios.Scenario) (GaitReport, error) {
+// on the terrain segment under the initial stance foot and reports the
+// gait. It is AnalyseGaitOn(sc, -1).
+func AnalyseGait(sc *scenarios.Scenario) (GaitReport, error) { return AnalyseGaitOn(sc, -1) }
+
+// AnalyseGaitOn runs the gait finder on a scenario's walker standing on
+// terrain segment segment (0-based; < 0: the segment under the initial
+// stance foot), with that segment's slope and friction extended without
+// end, and reports the gait and the segment. On a segment other than the
+// one under the initial stance foot the walker starts from the scenario's
+// initial angles and rates at the middle of the segment. A scenario that
+// cannot be analysed, or a segment that does not exist, is a configuration
+// error (ErrConfig) with an empty report; a finder that finds no gait from
+// the guess gives its error with the report (Found false).
+func AnalyseGaitOn(sc *scenarios.Scenario, segment int) (GaitReport, error) {
 	cfg, err := FromScenario(sc)
 	if err != nil {
 		return GaitReport{}, ConfigError(err)
 	}
-	model, err := NewModel(sc, cfg)
+	full, err := NewModel(sc, cfg)
 	if err != nil {
 		return GaitReport{}, ConfigError(err)
+	}
+	p := full.Params()
+	segs := p.Terrain.Segments
+	under := 0
+	if guess, err := gaitGuess(sc, full); err == nil {
+		under = guess.Seg[guess.Stance]
+	}
+	seg := GaitSegment{Index: under, Of: len(segs)}
+	if segment >= 0 {
+		if segment >= len(segs) {
+			return GaitReport{}, Configf("scenario %s: --segment %d: the terrain has %d segments (0 to %d)", sc.Name, segment, len(segs), len(segs)-1)
+		}
+		seg.Index, seg.Chosen = segment, true
+	}
+	// The segment's start point, as the plant lays the polyline out.
+	start := p.Terrain.Start
+	for _, s := range segs[:seg.Index] {
+		start[0] += s.Length * math.Cos(s.Slope)
+		start[1] += s.Length * math.Sin(s.Slope)
+	}
+	on := segs[seg.Index]
+	seg.SlopeRad, seg.MuStatic, seg.MuKinetic = on.Slope, on.MuStatic, on.MuKinetic
+	p.Terrain = plant.Terrain{Start: start, Segments: []plant.Segment{on}}
+	model, err := plant.New(p, cfg.Physics)
+	if err != nil {
+		return GaitReport{}, ConfigError(err)
+	}
+	if seg.Index != under {
+		moved := *sc
+		moved.Initial.XM = start[0] + 0.5*on.Length*math.Cos(on.Slope)
+		sc = &moved
 	}
 	policy, _, err := GaitPolicy(sc, model)
 	if err != nil {
@@ -68,7 +125,7 @@ func AnalyseGait(sc *scenarios.Scenario) (GaitReport, error) {
 	rep := GaitReport{Scenario: sc.Name, Loop: "passive", Found: g.Found && err == nil, Stable: g.Stable,
 		PeriodS: g.Period, StepLengthM: g.StepLength, SpeedMPS: g.Speed, EnergyLostPerStepJ: g.EnergyLost,
 		PeakRequiredFriction: g.PeakRequiredFriction, MinNormalForceN: g.MinNormal, ImpulseRatio: g.ImpulseRatio,
-		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}}
+		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}, Segment: seg}
 	if policy != nil {
 		rep.Loop = "closed loop with the built-in reference controller"
 	}

@@ -1,6 +1,7 @@
 package rig
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -90,16 +91,30 @@ func (o orderedStruct) MarshalJSON() ([]byte, error) {
 			buf = append(buf, ',')
 		}
 		first = false
-		k, _ := json.Marshal(name)
+		k, _ := marshalRaw(name)
 		buf = append(buf, k...)
 		buf = append(buf, ':')
-		b, err := json.Marshal(val)
+		b, err := marshalRaw(val)
 		if err != nil {
 			return nil, err
 		}
 		buf = append(buf, b...)
 	}
 	return append(buf, '}'), nil
+}
+
+// marshalRaw is json.Marshal without HTML escaping: the fields are written
+// as they are, and the caller's encoder decides (json.Marshal of the whole
+// escapes "<", ">" and "&"; an Encoder with SetEscapeHTML(false) keeps
+// them, as the command line wants).
+func marshalRaw(v any) ([]byte, error) {
+	var b bytes.Buffer
+	enc := json.NewEncoder(&b)
+	enc.SetEscapeHTML(false)
+	if err := enc.Encode(v); err != nil {
+		return nil, err
+	}
+	return bytes.TrimSuffix(b.Bytes(), []byte("\n")), nil
 }
 
 // jsonName is the key encoding/json gives struct field f, and whether it

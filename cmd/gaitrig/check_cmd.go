@@ -12,43 +12,80 @@ import (
 func init() {
 	commands["check"] = command{"validate scenario files without running them", cmdCheck}
 	commands["scenarios"] = command{"list the built-in scenario library", cmdScenarios}
+	jsonResults["check"] = []checkResult{}
+	jsonResults["scenarios"] = []scenarioEntry{}
+}
+
+// checkResult is one scenario of check --json.
+type checkResult struct {
+	Scenario string         `json:"scenario"` // the argument as given
+	OK       bool           `json:"ok"`       // valid down to a buildable model and loop
+	Problems []checkProblem `json:"problems"` // empty when OK
+}
+
+// checkProblem is one problem of a scenario file.
+type checkProblem struct {
+	File    string `json:"file"`    // the file (or argument) the problem is in
+	Line    int    `json:"line"`    // 1-based, 0 when unknown
+	Column  int    `json:"column"`  // 1-based, 0 when unknown
+	Field   string `json:"field"`   // field path such as plant.legs.foot_radius_m
+	Message string `json:"message"` // what is wrong and what is allowed
+}
+
+// scenarioEntry is one built-in scenario of scenarios --json.
+type scenarioEntry struct {
+	Name        string `json:"name"`        // the name to give where a SCENARIO is asked for
+	Description string `json:"description"` // one sentence
 }
 
 func cmdCheck(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("check", "SCENARIO...", `
+	c := newCmdline("check", "SCENARIO...", `
 Loads and validates each scenario (file or built-in name) as a run would:
 the YAML schema, units and ranges, the plant parameters and the loop
 configuration. Problems are printed as file:line: field: message. Exit code 0
-when all are valid, 2 otherwise.`, stderr)
-	if done, code := parseFlags(fs, args); done {
+when all are valid, 2 otherwise.`, stdout, stderr)
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
 		return code
 	}
-	if fs.NArg() == 0 {
-		fmt.Fprintln(stderr, "gaitrig check: want at least one SCENARIO")
-		fs.Usage()
-		return exitConfig
+	if c.NArg() == 0 {
+		return c.usageError("want at least one SCENARIO")
 	}
 	bad := 0
-	for _, arg := range fs.Args() {
+	results := []checkResult{}
+	for _, arg := range c.Args() {
+		res := checkResult{Scenario: arg, OK: true, Problems: []checkProblem{}}
 		if err := checkOne(arg); err != nil {
 			bad++
+			res.OK = false
 			var se *scenarios.Error
 			if errors.As(err, &se) {
 				for _, p := range se.Problems {
-					fmt.Fprintln(stderr, p.String())
+					res.Problems = append(res.Problems, checkProblem{p.File, p.Line, p.Column, p.Path, p.Msg})
+					if !c.jsonMode() {
+						fmt.Fprintln(stderr, p.String())
+					}
 				}
 			} else {
-				fmt.Fprintf(stderr, "%s: %v\n", arg, err)
+				res.Problems = append(res.Problems, checkProblem{File: arg, Message: err.Error()})
+				if !c.jsonMode() {
+					fmt.Fprintf(stderr, "%s: %v\n", arg, err)
+				}
 			}
-			continue
+		} else if !c.jsonMode() {
+			fmt.Fprintf(stdout, "%s: ok\n", arg)
 		}
-		fmt.Fprintf(stdout, "%s: ok\n", arg)
+		results = append(results, res)
 	}
+	code := exitPass
 	if bad > 0 {
-		fmt.Fprintf(stderr, "gaitrig check: %d of %d scenarios have problems\n", bad, fs.NArg())
-		return exitConfig
+		fmt.Fprintf(stderr, "gaitrig check: %d of %d scenarios have problems\n", bad, c.NArg())
+		code = exitConfig
 	}
-	return exitPass
+	if c.jsonMode() {
+		return c.printJSON(results, code)
+	}
+	return code
 }
 
 // checkOne validates one scenario down to a buildable plant model and loop
@@ -62,12 +99,26 @@ func checkOne(arg string) error {
 }
 
 func cmdScenarios(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("scenarios", "", "Lists the built-in scenarios with their descriptions. Any of these names works where a SCENARIO is asked for.", stderr)
-	if done, code := parseFlags(fs, args); done {
+	c := newCmdline("scenarios", "", "Lists the built-in scenarios with their descriptions. Any of these names works where a SCENARIO is asked for.", stdout, stderr)
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
 		return code
 	}
-	for _, e := range scenarios.Library() {
-		fmt.Fprintf(stdout, "%-20s %s\n", e.Name, e.Description)
+	if c.NArg() != 0 {
+		return c.usageError("takes no arguments, got %q", c.Args())
+	}
+	lib := scenarios.Library()
+	entries := make([]scenarioEntry, 0, len(lib))
+	width := 0
+	for _, e := range lib {
+		entries = append(entries, scenarioEntry{e.Name, e.Description})
+		width = max(width, len(e.Name))
+	}
+	if c.jsonMode() {
+		return c.printJSON(entries, exitPass)
+	}
+	for _, e := range entries {
+		fmt.Fprintf(stdout, "%-*s  %s\n", width, e.Name, e.Description)
 	}
 	return exitPass
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -12,10 +11,11 @@ import (
 
 func init() {
 	commands["cycle"] = command{"find the walker's period-one gait and its stability", cmdCycle}
+	jsonResults["cycle"] = rig.GaitReport{}
 }
 
 func cmdCycle(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("cycle", "SCENARIO", `
+	c := newCmdline("cycle", "SCENARIO", `
 The gait finder: Newton's method on the step-to-step (Poincaré) map of the
 scenario's walker finds its period-one gait, and the eigenvalues of the map's
 Jacobian (variational equations with the heel-strike saltation correction)
@@ -23,48 +23,53 @@ say whether it is stable. Passive walkers are analysed as they are; with the
 built-in controller the closed loop is analysed (its law is a pure function
 of the measured state). Firmware authors use the result to seed a controller
 with the walker's natural gait. The scenario's initial state is the guess.
+A gait belongs to one slope and one friction: the walker is analysed on one
+terrain segment, extended without end; by default the segment under the
+initial stance foot, or the one --segment names. The output says which.
 Exit code 0 when a gait is found (stable or not: the output says which), 1
-when none is found from the guess.`, stderr)
-	asJSON := fs.Bool("json", false, "print JSON instead of a table")
-	if done, code := parseFlags(fs, args); done {
+when none is found from the guess, 2 for bad usage.`, stdout, stderr)
+	segment := c.Int("segment", -1, "terrain segment `INDEX` to analyse on, 0-based as in terrain.segments (-1: the one under the initial stance foot)")
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fmt.Fprintln(stderr, "gaitrig cycle: want exactly one SCENARIO")
-		fs.Usage()
-		return exitConfig
+	if c.NArg() != 1 {
+		return c.usageError("want exactly one SCENARIO, got %d arguments", c.NArg())
 	}
-	sc, err := resolveScenario(fs.Arg(0))
+	if *segment < -1 {
+		return c.usageError("--segment %d: want a segment index ≥ 0 (or -1 for the one under the initial stance foot)", *segment)
+	}
+	sc, err := resolveScenario(c.Arg(0))
 	if err != nil {
-		fmt.Fprintln(stderr, "gaitrig cycle:", err)
-		return exitCodeFor(err)
+		return c.fail(err)
 	}
-	rep, err := rig.AnalyseGait(sc)
+	rep, err := rig.AnalyseGaitOn(sc, *segment)
 	if errors.Is(err, rig.ErrConfig) {
-		fmt.Fprintln(stderr, "gaitrig cycle:", err)
-		return exitConfig
+		return c.fail(err)
 	}
-	if *asJSON {
-		enc := json.NewEncoder(stdout)
-		enc.SetIndent("", "  ")
-		if err := enc.Encode(rig.JSONSafe(rep)); err != nil {
-			fmt.Fprintln(stderr, "gaitrig cycle:", err)
-			return exitFail
-		}
-	} else {
-		printCycle(stdout, rep, err)
-	}
+	code := exitPass
 	if !rep.Found {
-		if err != nil && !*asJSON {
+		code = exitFail
+	}
+	if c.jsonMode() {
+		if err != nil {
 			fmt.Fprintln(stderr, "gaitrig cycle:", err)
 		}
-		return exitFail
+		return c.printJSON(rep, code)
 	}
-	return exitPass
+	printCycle(stdout, rep, err)
+	return code
 }
 
 func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	fmt.Fprintf(w, "gait of %s (%s)\n", r.Scenario, r.Loop)
+	s := r.Segment
+	how := "the segment under the initial stance foot"
+	if s.Chosen {
+		how = "chosen with --segment"
+	}
+	fmt.Fprintf(w, "  on terrain segment %d (of %d, counted from 0; %s): slope %.4g rad, mu_static %.3g, mu_kinetic %.3g, taken as ground without end\n",
+		s.Index, s.Of, how, s.SlopeRad, s.MuStatic, s.MuKinetic)
 	if !r.Found {
 		fmt.Fprintf(w, "  no period-one gait found from the scenario's guess (%v)\n", err)
 		return

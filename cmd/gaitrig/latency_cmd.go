@@ -4,18 +4,40 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strings"
 
 	"gaitrig/hil"
+	"gaitrig/record"
 	"gaitrig/rig"
 )
 
 func init() {
 	commands["latency"] = command{"measure round-trip latency, tick jitter and deadline misses per link at 1 kHz", cmdLatency}
+	jsonResults["latency"] = latencyResult{}
+}
+
+// latencyResult is what latency prints with --json.
+type latencyResult struct {
+	Links      []linkLatency `json:"links"`      // one per measured link, in the order asked for
+	Scheduling string        `json:"scheduling"` // the scheduling class the loop thread got
+}
+
+// linkLatency is one link's measurement.
+type linkLatency struct {
+	Link             string       `json:"link"`               // inproc, pty, embedded or mosquitto
+	Ticks            int64        `json:"ticks"`              // ticks run
+	RoundTripUS      *hil.Summary `json:"round_trip_us"`      // state sent → its command back; null when nothing was measured
+	JitterUS         *hil.Summary `json:"jitter_us"`          // tick start lateness; null when nothing was measured
+	DeadlineMisses   uint64       `json:"deadline_misses"`    // ticks whose work ended after the next tick was due
+	DeadlineMissRate float64      `json:"deadline_miss_rate"` // misses per tick, 0…1
+	Outcome          string       `json:"outcome,omitempty"`  // the measuring run's outcome
+	Reason           string       `json:"reason,omitempty"`
+	Error            string       `json:"error,omitempty"` // why the link could not be measured
 }
 
 func cmdLatency(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("latency", "", `
+	c := newCmdline("latency", "", `
 Runs the demo walker in wall-clock mode against the reference firmware over
 each link and prints the command round trip (state sent → its command back),
 the tick start jitter (p50, p99, max) and the deadline-miss rate. Links:
@@ -23,42 +45,75 @@ inproc (channels in one process), pty (a real pseudo-terminal pair, COBS
 frames), embedded (the embedded MQTT broker on loopback), mosquitto (a
 Mosquitto broker: --mosquitto ADDR, or /usr/sbin/mosquitto started on a free
 loopback port). The figures depend on the machine and its load: run it on the
-bench PC that will host the rig.`, stderr)
-	ticks := fs.Int("ticks", 10000, "ticks per link")
-	hz := fs.Float64("hz", 1000, "tick rate")
-	links := fs.String("links", strings.Join(rig.LatencyLinks, ","), "comma-separated links to measure")
-	prio := fs.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO priority asked for the loop thread; negative asks for none")
-	mosq := fs.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "host:port of a running Mosquitto broker (empty: start one)")
-	if done, code := parseFlags(fs, args); done {
+bench PC that will host the rig. Exit code 0 when every link was measured, 1
+when one could not be, 2 for bad usage.`, stdout, stderr)
+	ticks := c.Int("ticks", 10000, "`N` ticks per link (at least 100)")
+	hz := c.Float64("hz", 1000, "tick rate in `HZ`")
+	links := c.String("links", strings.Join(rig.LatencyLinks, ","), "`LINKS` to measure, comma-separated, from: "+strings.Join(rig.LatencyLinks, ", "))
+	prio := c.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO `PRIORITY` asked for the loop thread; negative asks for none")
+	mosq := c.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "`HOST:PORT` of a running Mosquitto broker")
+	c.defaultIs("mosquitto", "$GAITRIG_MOSQUITTO_ADDR; when empty, start one")
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
 		return code
 	}
-	if *ticks < 100 || *hz <= 0 {
-		fmt.Fprintln(stderr, "gaitrig latency: want --ticks ≥ 100 and --hz > 0")
-		return exitConfig
+	if c.NArg() != 0 {
+		return c.usageError("takes no arguments, got %q", c.Args())
 	}
-	fmt.Fprintf(stdout, "%-10s %8s %9s %9s %9s %9s %9s %9s %8s\n", "link", "ticks", "rtt p50", "rtt p99", "rtt max", "jit p50", "jit p99", "jit max", "misses")
-	code := exitPass
-	realtime := ""
+	if *ticks < 100 || *hz <= 0 {
+		return c.usageError("want --ticks ≥ 100 and --hz > 0")
+	}
+	var names []string
 	for _, name := range strings.Split(*links, ",") {
 		name = strings.TrimSpace(name)
-		res, sched, err := rig.MeasureLink(name, *ticks, *hz, *mosq, *prio)
-		if realtime == "" {
-			realtime = sched
+		if !slices.Contains(rig.LatencyLinks, name) {
+			return c.usageError("--links: unknown link %q (want some of %s)", name, strings.Join(rig.LatencyLinks, ", "))
 		}
+		names = append(names, name)
+	}
+	w := c.stdout
+	if c.jsonMode() {
+		w = io.Discard
+	}
+	fmt.Fprintf(w, "%-10s %8s %9s %9s %9s %9s %9s %9s %8s\n", "link", "ticks", "rtt p50", "rtt p99", "rtt max", "jit p50", "jit p99", "jit max", "misses")
+	code := exitPass
+	res := latencyResult{Links: []linkLatency{}}
+	for _, name := range names {
+		r, sched, err := rig.MeasureLink(name, *ticks, *hz, *mosq, *prio)
+		if res.Scheduling == "" {
+			res.Scheduling = sched
+		}
+		l := linkLatency{Link: name}
 		if err != nil {
-			fmt.Fprintf(stdout, "%-10s could not measure: %v\n", name, err)
+			l.Error = err.Error()
+			res.Links = append(res.Links, l)
+			fmt.Fprintf(w, "%-10s could not measure: %v\n", name, err)
 			code = exitFail
 			continue
 		}
-		missRate := 100 * float64(res.DeadlineMisses) / float64(max(res.Summary.Ticks, 1))
-		fmt.Fprintf(stdout, "%-10s %8d %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.3f%%\n", name, res.Summary.Ticks,
-			res.Latency.P50, res.Latency.P99, res.Latency.Max, res.Jitter.P50, res.Jitter.P99, res.Jitter.Max, missRate)
-		if res.Summary.Outcome == "tripped" {
-			fmt.Fprintf(stdout, "%-10s note: the run tripped (%s)\n", "", res.Summary.Reason)
+		lat, jit := r.Latency, r.Jitter
+		l.Ticks = r.Summary.Ticks
+		if lat.Count > 0 {
+			l.RoundTripUS = &lat
+		}
+		if jit.Count > 0 {
+			l.JitterUS = &jit
+		}
+		l.DeadlineMisses = r.DeadlineMisses
+		l.DeadlineMissRate = float64(r.DeadlineMisses) / float64(max(r.Summary.Ticks, 1))
+		l.Outcome, l.Reason = string(r.Summary.Outcome), r.Summary.Reason
+		res.Links = append(res.Links, l)
+		fmt.Fprintf(w, "%-10s %8d %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.0fµs %7.3f%%\n", name, r.Summary.Ticks,
+			lat.P50, lat.P99, lat.Max, jit.P50, jit.P99, jit.Max, 100*l.DeadlineMissRate)
+		if r.Summary.Outcome == record.Tripped {
+			fmt.Fprintf(w, "%-10s note: the run tripped (%s)\n", "", r.Summary.Reason)
 		}
 	}
-	if realtime != "" {
-		fmt.Fprintln(stdout, "scheduling:", realtime)
+	if c.jsonMode() {
+		return c.printJSON(res, code)
+	}
+	if res.Scheduling != "" {
+		fmt.Fprintln(w, "scheduling:", res.Scheduling)
 	}
 	return code
 }

@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"gaitrig/bridges/broker"
 	"gaitrig/firmware/reference"
@@ -18,28 +19,42 @@ func init() {
 	commands["replay"] = command{"re-run a recorded run with its recorded torques and compare", cmdReplay}
 	commands["firmware"] = command{"run the reference firmware as its own process, as a board would", cmdFirmware}
 	commands["broker"] = command{"run the embedded MQTT broker standalone for a bench", cmdBroker}
+	jsonResults["replay"] = replayResult{}
+}
+
+// replayResult is what replay prints with --json.
+type replayResult struct {
+	RunFolder       string  `json:"run_folder"`       // the run folder replayed
+	Ticks           int     `json:"ticks"`            // recorded ticks replayed
+	Match           bool    `json:"match"`            // every q and v of every tick matched bit for bit
+	FirstDivergence int64   `json:"first_divergence"` // first tick that differs, -1 if none
+	Field           string  `json:"field,omitempty"`  // the first coordinate that differs (q2, v0, …)
+	Recorded        float64 `json:"recorded"`         // that coordinate in the telemetry
+	Replayed        float64 `json:"replayed"`         // and in the replay
+	Truncated       bool    `json:"truncated"`        // the telemetry's last row was cut (a killed run)
+	Verdict         string  `json:"verdict"`          // the result in a sentence
 }
 
 func cmdReport(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("report", "RUNDIR", "Writes RUNDIR/report.html (self-contained, SVG plots) and RUNDIR/junit.xml from the recorded files.", stderr)
-	junit := fs.Bool("junit", true, "also write junit.xml")
-	if done, code := parseFlags(fs, args); done {
+	c := newCmdline("report", "RUNDIR", `
+Writes RUNDIR/report.html (self-contained, SVG plots) from the recorded files,
+and RUNDIR/junit.xml when --junit is given or the folder already has one (it
+is then brought up to date).`, stdout, stderr)
+	junit := c.Bool("junit", false, "also write junit.xml in the run folder, one test case per criterion")
+	if done, code := c.parse(args); done {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fmt.Fprintln(stderr, "gaitrig report: want exactly one RUNDIR")
-		return exitConfig
+	if c.NArg() != 1 {
+		return c.usageError("want exactly one RUNDIR, got %d arguments", c.NArg())
 	}
-	dir := fs.Arg(0)
+	dir := c.Arg(0)
 	if err := report.WriteHTML(dir); err != nil {
-		fmt.Fprintln(stderr, "gaitrig report:", err)
-		return exitConfig
+		return c.fail(rig.ConfigError(err))
 	}
 	fmt.Fprintln(stdout, "report:", filepath.Join(dir, report.HTMLFile))
-	if *junit {
+	if _, err := os.Stat(filepath.Join(dir, report.JUnitFile)); *junit || err == nil {
 		if err := report.WriteRunJUnit(dir); err != nil {
-			fmt.Fprintln(stderr, "gaitrig report:", err)
-			return exitConfig
+			return c.fail(rig.ConfigError(err))
 		}
 		fmt.Fprintln(stdout, "junit: ", filepath.Join(dir, report.JUnitFile))
 	}
@@ -47,49 +62,61 @@ func cmdReport(args []string, stdout, stderr io.Writer) int {
 }
 
 func cmdReplay(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("replay", "RUNDIR", `
+	c := newCmdline("replay", "RUNDIR", `
 Rebuilds the plant from the scenario text in the run's manifest, starts it
 from the recorded initial state and drives it with the recorded applied
 torques and hip forces, tick by tick. Says whether the trajectory matches the
 record exactly (bit for bit) and, if not, the first tick and coordinate that
-diverge. Exit code 0 on an exact match, 1 on a divergence.`, stderr)
-	if done, code := parseFlags(fs, args); done {
+diverge. Exit code 0 on an exact match, 1 on a divergence, 2 for bad usage
+or a folder that cannot be replayed.`, stdout, stderr)
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fmt.Fprintln(stderr, "gaitrig replay: want exactly one RUNDIR")
-		return exitConfig
+	if c.NArg() != 1 {
+		return c.usageError("want exactly one RUNDIR, got %d arguments", c.NArg())
 	}
-	res, err := rig.Replay(fs.Arg(0))
+	res, err := rig.Replay(c.Arg(0))
 	if err != nil {
-		fmt.Fprintln(stderr, "gaitrig replay:", err)
-		return exitConfig
+		return c.fail(err)
+	}
+	code := exitPass
+	if !res.Match {
+		code = exitFail
+	}
+	if c.jsonMode() {
+		return c.printJSON(replayResult{RunFolder: c.Arg(0), Ticks: res.Ticks, Match: res.Match, FirstDivergence: res.FirstDivergence,
+			Field: res.Field, Recorded: res.Recorded, Replayed: res.Replayed, Truncated: res.Truncated, Verdict: res.String()}, code)
 	}
 	fmt.Fprintln(stdout, res.String())
-	if !res.Match {
-		return exitFail
-	}
-	return exitPass
+	return code
 }
 
 func cmdFirmware(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("firmware", "", `
+	c := newCmdline("firmware", "", `
 Runs the built-in reference firmware as its own process and connects to a rig
 exactly as a board or controller process would: over a serial port, over a
-new pseudo-terminal pair (--link pty prints the port the rig should open), or over
-MQTT. Ends when the rig sends stop.`, stderr)
-	link := fs.String("link", "", `"serial:PORT[@BAUD]", "pty" or "mqtt:URL"`)
-	rigID := fs.String("rig", "bench", "MQTT rig id")
-	mode := fs.String("mode", reference.ModeWalk, `"walk" or "passive" (zero torques)`)
-	actuators := fs.Int("actuators", 2, "number of torques announced (2 for the torso walker, 1 for a compass walker)")
-	userEnv := fs.String("user-env", "", "environment variable holding the MQTT user name")
-	passEnv := fs.String("password-env", "", "environment variable holding the MQTT password")
-	if done, code := parseFlags(fs, args); done {
+new pseudo-terminal pair (with --link pty it prints the port the rig should
+open), or over MQTT. Ends when the rig sends stop.`, stdout, stderr)
+	link := c.String("link", "", "where to serve, one of: "+firmwareLinks()+" (required)")
+	rigID := c.String("rig", "bench", "MQTT rig id")
+	mode := c.String("mode", reference.ModeWalk, `"walk" or "passive" (zero torques)`)
+	actuators := c.Int("actuators", 2, "number of torques announced (2 for the torso walker, 1 for a compass walker)")
+	userEnv := c.String("user-env", "", "environment variable holding the MQTT user name")
+	passEnv := c.String("password-env", "", "environment variable holding the MQTT password")
+	if done, code := c.parse(args); done {
 		return code
 	}
+	if c.NArg() != 0 {
+		return c.usageError("takes no arguments, got %q", c.Args())
+	}
 	if *link == "" {
-		fmt.Fprintln(stderr, "gaitrig firmware: --link is required: serial:PORT[@BAUD], pty or mqtt:URL")
-		return exitConfig
+		return c.usageError("--link is required: one of %s", firmwareLinks())
+	}
+	if l, err := rig.ParseLink(*link); err != nil {
+		return c.usageError("%v", err)
+	} else if !servable(l.Kind) {
+		return c.usageError("--link %s: the firmware cannot be served over this link (it is the rig's side); want one of %s", *link, firmwareLinks())
 	}
 	o := reference.Options{Mode: *mode, Actuators: *actuators}
 	announce := func(line string) { fmt.Fprintln(stdout, line) }
@@ -102,46 +129,68 @@ MQTT. Ends when the rig sends stop.`, stderr)
 		fmt.Fprintln(stdout, "reference firmware:", err)
 		return exitFail
 	}
-	fmt.Fprintln(stderr, "gaitrig firmware:", err)
-	return exitCodeFor(err)
+	return c.fail(err)
+}
+
+// servable reports whether gaitrig firmware can serve over a link kind.
+func servable(kind string) bool {
+	for _, k := range rig.LinkKinds() {
+		if k.Name == kind {
+			return k.FirmwareEnd != nil
+		}
+	}
+	return false
+}
+
+// firmwareLinks lists the --link syntax gaitrig firmware serves over.
+func firmwareLinks() string {
+	var s []string
+	for _, k := range rig.LinkKinds() {
+		if k.FirmwareEnd != nil {
+			s = append(s, k.Syntax)
+		}
+	}
+	return strings.Join(s, ", ")
 }
 
 func cmdBroker(args []string, stdout, stderr io.Writer) int {
-	fs := newFlagSet("broker", "", `
+	c := newCmdline("broker", "", `
 Runs the embedded MQTT broker on its own for a bench, until SIGINT. It listens
 on loopback unless --listen names another address, which requires accounts:
 credentials come from environment variables (never from files), one account
 for the rig and one for the firmware of --rig. A firmware client may publish
-only to its own rig's command and stop topics.`, stderr)
-	listen := fs.String("listen", "127.0.0.1:1883", "host:port to listen on")
-	rig := fs.String("rig", "bench", "rig id the accounts belong to")
-	rigUser := fs.String("rig-user-env", "GAITRIG_RIG_USER", "environment variable with the rig account's user name")
-	rigPass := fs.String("rig-password-env", "GAITRIG_RIG_PASSWORD", "environment variable with the rig account's password")
-	fwUser := fs.String("firmware-user-env", "GAITRIG_FIRMWARE_USER", "environment variable with the firmware account's user name")
-	fwPass := fs.String("firmware-password-env", "GAITRIG_FIRMWARE_PASSWORD", "environment variable with the firmware account's password")
-	cert := fs.String("tls-cert", "", "PEM certificate file: speak TLS")
-	key := fs.String("tls-key", "", "PEM key file for --tls-cert")
-	if done, code := parseFlags(fs, args); done {
+only to its own rig's command and stop topics.`, stdout, stderr)
+	listen := c.String("listen", "127.0.0.1:1883", "host:port to listen on")
+	rigID := c.String("rig", "bench", "rig id the accounts belong to")
+	rigUser := c.String("rig-user-env", "GAITRIG_RIG_USER", "environment variable with the rig account's user name")
+	rigPass := c.String("rig-password-env", "GAITRIG_RIG_PASSWORD", "environment variable with the rig account's password")
+	fwUser := c.String("firmware-user-env", "GAITRIG_FIRMWARE_USER", "environment variable with the firmware account's user name")
+	fwPass := c.String("firmware-password-env", "GAITRIG_FIRMWARE_PASSWORD", "environment variable with the firmware account's password")
+	cert := c.String("tls-cert", "", "PEM certificate file: speak TLS")
+	key := c.String("tls-key", "", "PEM key file for --tls-cert")
+	if done, code := c.parse(args); done {
 		return code
+	}
+	if c.NArg() != 0 {
+		return c.usageError("takes no arguments, got %q", c.Args())
 	}
 	cfg := broker.Config{Addr: *listen, TLSCertFile: *cert, TLSKeyFile: *key}
 	if u, p := os.Getenv(*rigUser), os.Getenv(*rigPass); u != "" && p != "" {
-		cfg.Accounts = append(cfg.Accounts, broker.Account{Username: u, Password: p, Role: broker.RoleRig, Rig: *rig})
+		cfg.Accounts = append(cfg.Accounts, broker.Account{Username: u, Password: p, Role: broker.RoleRig, Rig: *rigID})
 	}
 	if u, p := os.Getenv(*fwUser), os.Getenv(*fwPass); u != "" && p != "" {
-		cfg.Accounts = append(cfg.Accounts, broker.Account{Username: u, Password: p, Role: broker.RoleFirmware, Rig: *rig})
+		cfg.Accounts = append(cfg.Accounts, broker.Account{Username: u, Password: p, Role: broker.RoleFirmware, Rig: *rigID})
 	}
 	b, err := broker.Start(cfg)
 	if err != nil {
-		fmt.Fprintln(stderr, "gaitrig broker:", err)
-		return exitConfig
+		return c.fail(rig.ConfigError(err))
 	}
 	defer b.Close()
 	login := "anonymous (loopback only)"
 	if len(cfg.Accounts) > 0 {
 		login = fmt.Sprintf("%d accounts from the environment", len(cfg.Accounts))
 	}
-	fmt.Fprintf(stdout, "embedded broker listening on %s, login %s; topics %s/%s/…; SIGINT stops it\n", b.Addr(), login, broker.DefaultRoot, *rig)
+	fmt.Fprintf(stdout, "embedded broker listening on %s, login %s; topics %s/%s/…; SIGINT stops it\n", b.Addr(), login, broker.DefaultRoot, *rigID)
 	ctx, stop := signalContext()
 	defer stop()
 	<-ctx.Done()
