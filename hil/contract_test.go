@@ -155,7 +155,9 @@ func TestFirmwareStopEndEndsRunNormally(t *testing.T) {
 				t.Fatalf("%d ticks: want the run to end near tick 60, not at its duration", res.Summary.Ticks)
 			}
 			for k, n := range res.Summary.Alarms {
-				if n != 0 {
+				// Late wall-clock ticks depend on the host's load, not on
+				// how the run ended.
+				if n != 0 && k != AlarmDeadlineMiss {
 					t.Fatalf("alarm %s counted %d: a normal end raises none", k, n)
 				}
 			}

@@ -215,17 +215,15 @@ func dialEmbedded(d DialSetup) (Opened, error) {
 // blocks: the queue drops (and counts) what does not fit.
 func refusalNotice(q *hil.Notices) func(broker.Refusal) {
 	return func(f broker.Refusal) {
-		who := f.ClientID
-		if who == "" {
-			who = "a client"
-		} else {
-			who = "client id " + strconv.Quote(who)
+		msg := f.Reason
+		if f.ClientID != "" && !strings.Contains(msg, f.ClientID) {
+			msg += " (client id " + strconv.Quote(f.ClientID) + ")"
 		}
-		msg := who + " from " + f.Remote
+		msg += " (from " + f.Remote
 		if f.Topic != "" {
-			msg += " on " + f.Topic
+			msg += ", topic " + f.Topic
 		}
-		msg += ": " + f.Reason
+		msg += ")"
 		q.Post(hil.Notice{Kind: f.Kind.String(), Message: msg})
 	}
 }
