@@ -2,14 +2,18 @@ package rig
 
 import (
 	"context"
+	"errors"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strings"
 	"testing"
 	"time"
 
 	paho "github.com/eclipse/paho.mqtt.golang"
 
+	"gaitrig/bridges/inproc"
+	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
 	"gaitrig/record"
 	"gaitrig/scenarios"
@@ -70,5 +74,60 @@ func TestEmbeddedBrokerRefusalsReachTheRunRecord(t *testing.T) {
 	}
 	if !found {
 		t.Fatal("events.jsonl has no broker_refusal warning naming the client id")
+	}
+}
+
+// A firmware that drives another number of actuators than the walker has
+// joints is a setup error: rig.Run returns an error that is ErrConfig (the
+// command line exits 2, as the README says for configuration problems),
+// and the firmware gets stop reason mismatch.
+func TestActuatorMismatchIsAConfigurationError(t *testing.T) {
+	stops := make(chan protocol.Message, 1)
+	RegisterLinkKind(LinkKind{
+		Name: "three-arms", Syntax: "three-arms", Help: "test kind: a firmware with three actuators",
+		Parse: exactly("three-arms"),
+		Dial: func(d DialSetup) (Opened, error) {
+			rigEnd, fw := inproc.Pair()
+			go func() {
+				var m protocol.Message
+				m.Type = protocol.TypeGreeting
+				m.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: 3, Name: "three-arms"}
+				fw.Send(&m)
+				for fw.Recv(time.Now().Add(10*time.Second), &m) == nil {
+					if m.Type == protocol.TypeStop {
+						stops <- m
+						return
+					}
+				}
+			}()
+			return Opened{Conn: rigEnd, Name: "three-arms", Close: func() { rigEnd.Close(); fw.Close() }}, nil
+		},
+	})
+	t.Cleanup(func() {
+		delete(linkKinds, "three-arms")
+		linkOrder = slices.DeleteFunc(linkOrder, func(n string) bool { return n == "three-arms" })
+	})
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	dir := filepath.Join(t.TempDir(), "run")
+	_, err = Run(ctx, sc, Options{Link: "three-arms", MaxSteps: 2, RunDir: dir})
+	if !errors.Is(err, ErrConfig) || !errors.Is(err, hil.ErrActuatorMismatch) {
+		t.Fatalf("error %v: want a configuration error wrapping hil.ErrActuatorMismatch", err)
+	}
+	select {
+	case m := <-stops:
+		if m.Stop.Reason != protocol.StopMismatch {
+			t.Fatalf("firmware got stop reason %d (%q), want %d mismatch", m.Stop.Reason, m.Stop.Text, protocol.StopMismatch)
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("the firmware got no stop")
+	}
+	run, err := record.Open(dir)
+	if err != nil || run.Summary == nil || run.Summary.Alarms[hil.AlarmActuatorMismatch] != 1 {
+		t.Fatalf("run folder: %v, summary %+v: want one actuator_mismatch alarm", err, run)
 	}
 }
