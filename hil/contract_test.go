@@ -235,3 +235,150 @@ func TestStateTimeIsStartOfTick(t *testing.T) {
 		}
 	}
 }
+
+// Heartbeats (section 6): the rig sends none in a whole run (its states,
+// and lockstep resends every 10 ms, are its sign of life), and a heartbeat
+// from the firmware never stands in for a command: only a valid command
+// resets the watchdog.
+func TestHeartbeatsNeverReplaceCommands(t *testing.T) {
+	cfg, run := shortRun(t, 200)
+	cfg.Watchdog = 300 * time.Millisecond
+	heartbeatsIn := 0
+	fw := func(conn bridges.Conn) error {
+		if _, err := greet(conn, 2, protocol.Version); err != nil {
+			return err
+		}
+		_, err := untilStop(conn, func(m *protocol.Message) {
+			switch m.Type {
+			case protocol.TypeHeartbeat:
+				heartbeatsIn++
+			case protocol.TypeState:
+				if m.Seq < 30 {
+					c := protocol.Message{Type: protocol.TypeCommand, Seq: m.Seq}
+					c.Command.Joints = 2
+					conn.Send(&c)
+					return
+				}
+				hb := protocol.Message{Type: protocol.TypeHeartbeat, Seq: m.Seq}
+				conn.Send(&hb)
+			}
+		})
+		return err
+	}
+	res, _, _ := run(cfg, fw)
+	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 || res.Summary.Ticks != 29 {
+		t.Fatalf("outcome %s after %d ticks, alarms %v: want a watchdog trip at tick 29", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Alarms)
+	}
+	if heartbeatsIn != 0 {
+		t.Fatalf("the rig sent %d heartbeats; protocol v1 says it sends none", heartbeatsIn)
+	}
+}
+
+// Greetings buffered before the rig opened the port each get a config
+// (section 6): the firmware receives duplicates, and the run goes on
+// without an alarm.
+func TestBufferedGreetingsEachGetAConfig(t *testing.T) {
+	cfg, run := shortRun(t, 50)
+	configs := 0
+	fw := func(conn bridges.Conn) error {
+		var g protocol.Message
+		g.Type = protocol.TypeGreeting
+		g.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: 2, Name: "eager"}
+		for i := 0; i < 3; i++ {
+			conn.Send(&g)
+		}
+		_, err := untilStop(conn, func(m *protocol.Message) {
+			switch m.Type {
+			case protocol.TypeConfig:
+				configs++
+			case protocol.TypeState:
+				c := protocol.Message{Type: protocol.TypeCommand, Seq: m.Seq}
+				c.Command.Joints = 2
+				conn.Send(&c)
+			}
+		})
+		return err
+	}
+	res, _, _ := run(cfg, fw)
+	if res.Summary.Ticks != 50 || res.Summary.Outcome == record.Tripped {
+		t.Fatalf("outcome %s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+	}
+	if configs != 3 {
+		t.Fatalf("%d configs for 3 greetings", configs)
+	}
+	if n := res.Summary.Alarms[AlarmFirmwareReset]; n != 0 {
+		t.Fatalf("%d firmware_reset alarms for greetings before the first command", n)
+	}
+}
+
+// errAtConn reports one frame error at its nth Recv.
+type errAtConn struct {
+	bridges.Conn
+	n, at int
+	err   error
+}
+
+func (c *errAtConn) Recv(d time.Time, m *protocol.Message) error {
+	c.n++
+	if c.n == c.at {
+		return c.err
+	}
+	return c.Conn.Recv(d, m)
+}
+
+// A frame of another protocol version after the handshake (section 8) is a
+// bad_frame warning, not version_mismatch: the version was agreed by the
+// greeting, so it is a broken frame, and the run goes on.
+func TestOtherVersionMidRunIsBadFrame(t *testing.T) {
+	m, s, cfg := timedDemo(t, 0.1)
+	pe := &protocol.Error{Kind: protocol.KindVersion, Type: protocol.TypeCommand, Got: 2, Want: 1}
+	wrap := func(rig bridges.Conn) bridges.Conn {
+		return &errAtConn{Conn: rig, at: 40, err: &bridges.FrameError{Reason: pe.Error(), Err: pe}}
+	}
+	res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, wrap, referenceFirmware)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Summary.Ticks != 100 || res.Summary.Outcome == record.Tripped {
+		t.Fatalf("outcome %s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+	}
+	if res.Summary.Alarms[AlarmBadFrame] != 1 || res.Summary.Alarms[AlarmVersionMismatch] != 0 {
+		t.Fatalf("alarms %v: want one bad_frame and no version_mismatch", res.Summary.Alarms)
+	}
+	if ev := eventsOf(t, dir, AlarmBadFrame); len(ev) != 1 || !strings.Contains(ev[0].Message, "speaks version 2") {
+		t.Fatalf("bad_frame events %+v", ev)
+	}
+}
+
+// The sanity bound is 10 000 N·m (section 3.4): a torque of exactly that
+// size is a torque (clipped to the limit), one just beyond is rejected.
+func TestTorqueSanityBoundIs10000(t *testing.T) {
+	if DefaultTorqueSanity != 10000 {
+		t.Fatalf("DefaultTorqueSanity %g; docs/protocol.md says 10 000 N·m", DefaultTorqueSanity)
+	}
+	cfg, run := shortRun(t, 40)
+	cfg.Severity = map[string]Severity{AlarmBadTorque: SeverityWarn}
+	fw := scripted(func(seq uint32, c *protocol.Command) {
+		switch seq {
+		case 10:
+			c.Torque[0] = 10000
+		case 20:
+			c.Torque[0] = 10000.5
+		}
+	})
+	res, _, _ := run(cfg, fw)
+	if res.Link.BadTorques != 1 || res.Summary.Alarms[AlarmTorqueSaturation] != 1 {
+		t.Fatalf("%d bad torques, %d saturations: want 10000 clipped and 10000.5 rejected", res.Link.BadTorques, res.Summary.Alarms[AlarmTorqueSaturation])
+	}
+}
+
+// Lockstep does not measure the round trip (section 7): its summary has
+// no latency, so a lockstep run stays bit-identical. `gaitrig latency`
+// measures a link instead.
+func TestLockstepSummaryHasNoLatency(t *testing.T) {
+	cfg, run := shortRun(t, 20)
+	res, _, _ := run(cfg, referenceFirmware)
+	if res.Summary.LatencyUS != nil {
+		t.Fatalf("lockstep summary latency %+v, want none", res.Summary.LatencyUS)
+	}
+}
