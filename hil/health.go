@@ -23,7 +23,8 @@ type linkHealth struct {
 
 	// frameKinds counts rejected frames per kind of rejection (frameKind),
 	// at most maxFrameKinds keys; nil until the first bad frame.
-	frameKinds map[string]uint64
+	frameKinds    map[string]uint64
+	lastFrameKind string // the key the latest rejection was counted under
 }
 
 // linkErr is what an error from Recv means to the loop.
@@ -163,6 +164,20 @@ func (r *runner) badFrame(reason string) {
 	}
 }
 
+// badFrames is badFrame for n frames rejected for the same reason, with
+// one alarm line at most: a flood of garbage costs the loop O(1).
+func (r *runner) badFrames(reason string, n uint64) {
+	if n == 0 {
+		return
+	}
+	r.badFrame(reason)
+	if extra := n - 1; extra > 0 {
+		r.health.counts.BadFrames += extra
+		r.al.counts[AlarmBadFrame] += int(extra)
+		r.health.frameKinds[r.health.lastFrameKind] += extra
+	}
+}
+
 // maxFrameKinds bounds the kinds of rejection counted apart; a peer
 // sending ever new garbage cannot grow the table, the rest count as
 // "other".
@@ -178,6 +193,7 @@ func (h *linkHealth) noteFrameKind(kind string) bool {
 		kind = "other"
 	}
 	h.frameKinds[kind]++
+	h.lastFrameKind = kind
 	return h.frameKinds[kind] == 1
 }
 

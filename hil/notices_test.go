@@ -84,14 +84,20 @@ func TestNoGreetingErrorNamesRefusals(t *testing.T) {
 	}
 }
 
-// scriptedErrConn returns the given frame errors from its first Recvs, then
-// reads the link.
+// scriptedErrConn returns the given frame errors from its Recvs after the
+// first skip, then reads the link again. Only one goroutine calls Recv at a
+// time (the handshake, then the lockstep loop or the wall-clock receiver).
 type scriptedErrConn struct {
 	bridges.Conn
+	skip int
 	errs []string
 }
 
 func (c *scriptedErrConn) Recv(d time.Time, m *protocol.Message) error {
+	if c.skip > 0 {
+		c.skip--
+		return c.Conn.Recv(d, m)
+	}
 	if len(c.errs) > 0 {
 		r := c.errs[0]
 		c.errs = c.errs[1:]
@@ -101,35 +107,43 @@ func (c *scriptedErrConn) Recv(d time.Time, m *protocol.Message) error {
 }
 
 // A burst of one kind of bad frame does not hide another kind inside the
-// rate limit: the first of each kind is logged, and the end of the run
-// counts every kind.
+// rate limit: every frame is counted, the first of each kind is logged, and
+// the end of the run counts every kind. In both clocks, and in the
+// handshake as well as mid-run.
 func TestBadFrameEveryKindReachesTheRecord(t *testing.T) {
-	m, s, cfg := demo(t, 3)
-	var errs []string
-	for i := 0; i < 20; i++ {
-		errs = append(errs, fmt.Sprintf("frame too long: %d bytes without a zero delimiter, the limit is 515; skipping to the next delimiter", 600+i))
-	}
-	errs = append(errs, "unknown message type 0x55")
-	wrap := func(rig bridges.Conn) bridges.Conn { return &scriptedErrConn{Conn: rig, errs: errs} }
-	res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, wrap, referenceFirmware)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if res.Link.BadFrames != 21 || res.Summary.Alarms[AlarmBadFrame] != 21 {
-		t.Fatalf("%d bad frames, %d alarms: want 21", res.Link.BadFrames, res.Summary.Alarms[AlarmBadFrame])
-	}
-	logged := eventsOf(t, dir, AlarmBadFrame)
-	var sawTooLong, sawUnknown bool
-	for _, e := range logged {
-		sawTooLong = sawTooLong || strings.Contains(e.Message, "frame too long")
-		sawUnknown = sawUnknown || strings.Contains(e.Message, "unknown message type 0x55")
-	}
-	if !sawTooLong || !sawUnknown || len(logged) >= 21 {
-		t.Fatalf("%d bad_frame lines (too long %v, unknown type %v): want each kind, rate-limited", len(logged), sawTooLong, sawUnknown)
-	}
-	sum := eventsOf(t, dir, "bad_frame_summary")
-	if len(sum) != 1 || sum[0].Values["frame too long"] != 20 || sum[0].Values["unknown message type"] != 1 {
-		t.Fatalf("summary %+v: want frame too long 20, unknown message type 1", sum)
+	for _, clock := range []ClockMode{Lockstep, Wallclock} {
+		for _, skip := range []int{0, 50} {
+			t.Run(fmt.Sprint(clock, "/after ", skip, " reads"), func(t *testing.T) {
+				m, s, cfg := timedDemo(t, 0.5)
+				cfg.Clock = clock
+				var errs []string
+				for i := 0; i < 20; i++ {
+					errs = append(errs, fmt.Sprintf("frame too long: %d bytes without a zero delimiter, the limit is 515; skipping to the next delimiter", 600+i))
+				}
+				errs = append(errs, "unknown message type 0x55")
+				wrap := func(rig bridges.Conn) bridges.Conn { return &scriptedErrConn{Conn: rig, skip: skip, errs: errs} }
+				res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, wrap, referenceFirmware)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if res.Link.BadFrames != 21 || res.Summary.Alarms[AlarmBadFrame] != 21 {
+					t.Fatalf("%d bad frames, %d alarms: want 21", res.Link.BadFrames, res.Summary.Alarms[AlarmBadFrame])
+				}
+				logged := eventsOf(t, dir, AlarmBadFrame)
+				var sawTooLong, sawUnknown bool
+				for _, e := range logged {
+					sawTooLong = sawTooLong || strings.Contains(e.Message, "frame too long")
+					sawUnknown = sawUnknown || strings.Contains(e.Message, "unknown message type 0x55")
+				}
+				if !sawTooLong || !sawUnknown || len(logged) >= 21 {
+					t.Fatalf("%d bad_frame lines (too long %v, unknown type %v): want each kind, rate-limited", len(logged), sawTooLong, sawUnknown)
+				}
+				sum := eventsOf(t, dir, "bad_frame_summary")
+				if len(sum) != 1 || sum[0].Values["frame too long"] != 20 || sum[0].Values["unknown message type"] != 1 {
+					t.Fatalf("summary %+v: want frame too long 20, unknown message type 1", sum)
+				}
+			})
+		}
 	}
 }
 
