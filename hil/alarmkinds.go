@@ -17,21 +17,25 @@ const (
 
 // Alarm kinds. The loop raises these; a scenario sets their severities.
 const (
-	AlarmFrictionLimit    = "friction_limit"    // demanded friction beyond μ_s·N at a rolling foot
-	AlarmLiftOff          = "lift_off"          // demanded normal force below zero
-	AlarmImpactSlip       = "impact_slip"       // heel-strike impulse outside the friction cone
-	AlarmFootScuff        = "foot_scuff"        // swing foot below ground mid-swing
-	AlarmFall             = "fall"              // hip too low or torso beyond its angle limit
-	AlarmNonFinite        = "non_finite"        // NaN or Inf in the plant state
-	AlarmWatchdog         = "watchdog"          // no fresh command within watchdog_ms
-	AlarmBadFrame         = "bad_frame"         // a frame failed its CRC, framing or layout check
-	AlarmBadTorque        = "bad_torque"        // a commanded torque is NaN or Inf
-	AlarmTorqueSaturation = "torque_saturation" // a commanded torque beyond its limit
-	AlarmLinkLost         = "link_lost"         // the link to the firmware went away
-	AlarmLinkRestored     = "link_restored"     // the link came back
-	AlarmDeadlineMiss     = "deadline_miss"     // a wall-clock tick started late
-	AlarmFirmwareFault    = "firmware_fault"    // the firmware set its fault status bit
-	AlarmVersionMismatch  = "version_mismatch"  // the firmware speaks another protocol version
+	AlarmFrictionLimit    = "friction_limit"     // demanded friction beyond μ_s·N at a rolling foot
+	AlarmLiftOff          = "lift_off"           // demanded normal force below zero
+	AlarmImpactSlip       = "impact_slip"        // heel-strike impulse outside the friction cone
+	AlarmFootScuff        = "foot_scuff"         // swing foot below ground mid-swing
+	AlarmFall             = "fall"               // hip too low or torso beyond its angle limit
+	AlarmNonFinite        = "non_finite"         // NaN or Inf in the plant state
+	AlarmWatchdog         = "watchdog"           // no fresh command within watchdog_ms
+	AlarmBadFrame         = "bad_frame"          // a frame failed its CRC, framing or layout check
+	AlarmBadTorque        = "bad_torque"         // a commanded torque is NaN or Inf
+	AlarmTorqueSaturation = "torque_saturation"  // a commanded torque beyond its limit
+	AlarmLinkLost         = "link_lost"          // the link to the firmware went away
+	AlarmLinkRestored     = "link_restored"      // the link came back
+	AlarmDeadlineMiss     = "deadline_miss"      // a wall-clock tick started late
+	AlarmFirmwareFault    = "firmware_fault"     // the firmware set its fault status bit
+	AlarmVersionMismatch  = "version_mismatch"   // the firmware speaks another protocol version
+	AlarmActuatorMismatch = "actuator_mismatch"  // the greeting's actuator count is not the walker's joint count
+	AlarmFirmwareReset    = "firmware_reset"     // the firmware greeted again after its first command: it restarted
+	AlarmFirmwareSafeMode = "firmware_safe_mode" // the firmware set its safe-mode status bit
+	AlarmBrokerRefusal    = "broker_refusal"     // the embedded broker refused a connection, publish or subscription
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -41,6 +45,8 @@ var AlarmKinds = []string{
 	AlarmFall, AlarmNonFinite, AlarmWatchdog, AlarmBadFrame, AlarmBadTorque,
 	AlarmTorqueSaturation, AlarmLinkLost, AlarmLinkRestored,
 	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
+	AlarmActuatorMismatch, AlarmFirmwareReset, AlarmFirmwareSafeMode,
+	AlarmBrokerRefusal,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -62,6 +68,18 @@ var DefaultSeverity = map[string]Severity{
 	AlarmDeadlineMiss:     SeverityWarn,
 	AlarmFirmwareFault:    SeverityTrip,
 	AlarmVersionMismatch:  SeverityTrip,
+	// A firmware that drives another number of joints cannot run this
+	// walker at all: the run is refused before its first tick.
+	AlarmActuatorMismatch: SeverityTrip,
+	// A board that reset mid-run lost its controller state; torques from it
+	// cannot be trusted to continue the gait.
+	AlarmFirmwareReset: SeverityTrip,
+	// The firmware says it is in its own safe mode: worth a line in the
+	// record, but it keeps answering and the rig applies what it sends.
+	AlarmFirmwareSafeMode: SeverityWarn,
+	// Refusals are a misconfigured board or an intrusion attempt: a trace
+	// in the record, not a reason to stop a walking run.
+	AlarmBrokerRefusal: SeverityWarn,
 }
 
 // Criteria are the pass criteria of a run. A criterion left out (nil) is

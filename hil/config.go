@@ -169,6 +169,10 @@ type Config struct {
 	// Alarms, when set, receives every logged alarm as one JSON object
 	// (the MQTT link publishes it on the rig's alarm topic).
 	Alarms AlarmSink
+	// Notices, when set, carries refusals of the embedded broker the rig
+	// started into the loop: each becomes a broker_refusal alarm, and the
+	// no-greeting error counts them. Nil: no notices.
+	Notices *Notices
 	// OnStep, when set, is called after each completed step (a live line
 	// per step on a terminal). It runs on the loop: keep it short.
 	OnStep func(step StepInfo)

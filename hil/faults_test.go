@@ -393,7 +393,7 @@ func TestStuckAlarmSinkDoesNotBlockTheLoop(t *testing.T) {
 
 // A firmware that missed the configuration greets again and gets it again,
 // with no alarm; one that restarts mid-run (greets after answering) raises
-// firmware_fault and is configured again.
+// firmware_reset (a warning here, set by the test) and is configured again.
 func TestGreetingAfterHandshake(t *testing.T) {
 	tests := []struct {
 		name      string
@@ -409,7 +409,7 @@ func TestGreetingAfterHandshake(t *testing.T) {
 				cfg, run := shortRun(t, 300)
 				cfg.Clock = clock
 				cfg.Watchdog = time.Second
-				cfg.Severity = map[string]Severity{AlarmFirmwareFault: SeverityWarn}
+				cfg.Severity = map[string]Severity{AlarmFirmwareReset: SeverityWarn}
 				fw := func(conn bridges.Conn) error {
 					if tc.restartAt == 0 {
 						if _, err := greet(conn, 2, protocol.Version); err != nil {
@@ -430,8 +430,11 @@ func TestGreetingAfterHandshake(t *testing.T) {
 				if res.Summary.Ticks != 300 || res.Summary.Outcome == record.Tripped || res.Summary.Outcome == record.Aborted {
 					t.Fatalf("%s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
 				}
-				if n := res.Summary.Alarms[AlarmFirmwareFault]; n != tc.alarms {
-					t.Fatalf("%d firmware_fault alarms, want %d", n, tc.alarms)
+				if n := res.Summary.Alarms[AlarmFirmwareReset]; n != tc.alarms {
+					t.Fatalf("%d firmware_reset alarms, want %d", n, tc.alarms)
+				}
+				if n := res.Summary.Alarms[AlarmFirmwareFault]; n != 0 {
+					t.Fatalf("%d firmware_fault alarms: a restart is firmware_reset", n)
 				}
 			})
 		}

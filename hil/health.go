@@ -7,6 +7,7 @@ package hil
 import (
 	"errors"
 	"fmt"
+	"strings"
 	"time"
 
 	"gaitrig/bridges"
@@ -19,6 +20,11 @@ type linkHealth struct {
 	counts   LinkCounts       // the loop's own counts (the fault link keeps those of injected faults)
 	notifier bridges.Notifier // the real link's health reports; nil if it has none
 	linkDown bool             // an outage was raised and no valid command has come since
+
+	// frameKinds counts rejected frames per kind of rejection (frameKind),
+	// at most maxFrameKinds keys; nil until the first bad frame.
+	frameKinds    map[string]uint64
+	lastFrameKind string // the key the latest rejection was counted under
 }
 
 // linkErr is what an error from Recv means to the loop.
@@ -64,8 +70,10 @@ func (r *runner) linkCounts() LinkCounts {
 	return c
 }
 
-// drainLinkEvents turns the link's health reports into alarms.
+// drainLinkEvents turns the link's health reports, and the notices from
+// outside the link, into alarms.
 func (r *runner) drainLinkEvents() {
+	r.drainNotices()
 	n := r.health.notifier
 	if n == nil {
 		return
@@ -131,14 +139,81 @@ func (r *runner) linkClosed() {
 	r.end.end(record.Aborted, "the link to the firmware closed", protocol.StopEStop)
 }
 
+// badFrame counts a rejected frame under its kind and raises bad_frame.
+// The alarm is rate-limited per alarm kind, but the first frame of each
+// kind of rejection is always logged: a burst of over-long frames must not
+// hide the unknown message type that follows it. The end of the run logs
+// the count of every kind (closeSession).
 func (r *runner) badFrame(reason string) {
 	r.health.counts.BadFrames++
 	n := r.health.counts.BadFrames
-	if r.al.raise(AlarmBadFrame, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+	kind := frameKind(reason)
+	msg := func() (string, map[string]float64) {
 		return "rejected a frame from the firmware: " + reason, map[string]float64{"bad_frames_so_far": float64(n)}
-	}) {
+	}
+	if r.health.noteFrameKind(kind) {
+		r.al.counts[AlarmBadFrame]++
+		m, v := msg()
+		if r.al.emit(alarm{kind: AlarmBadFrame, tick: r.pt.tick, t: r.pt.s.T, foot: -1, segment: -1, message: m, values: v}) {
+			r.trip(protocol.StopEStop)
+		}
+		return
+	}
+	if r.al.raise(AlarmBadFrame, r.pt.tick, r.pt.s.T, -1, -1, msg) {
 		r.trip(protocol.StopEStop)
 	}
+}
+
+// badFrames is badFrame for n frames rejected for the same reason, with
+// one alarm line at most: a flood of garbage costs the loop O(1).
+func (r *runner) badFrames(reason string, n uint64) {
+	if n == 0 {
+		return
+	}
+	r.badFrame(reason)
+	if extra := n - 1; extra > 0 {
+		r.health.counts.BadFrames += extra
+		r.al.counts[AlarmBadFrame] += int(extra)
+		r.health.frameKinds[r.health.lastFrameKind] += extra
+	}
+}
+
+// maxFrameKinds bounds the kinds of rejection counted apart; a peer
+// sending ever new garbage cannot grow the table, the rest count as
+// "other".
+const maxFrameKinds = 16
+
+// noteFrameKind counts one rejection of kind and reports whether it is the
+// first of its kind in this run.
+func (h *linkHealth) noteFrameKind(kind string) bool {
+	if h.frameKinds == nil {
+		h.frameKinds = map[string]uint64{}
+	}
+	if _, ok := h.frameKinds[kind]; !ok && len(h.frameKinds) >= maxFrameKinds {
+		kind = "other"
+	}
+	h.frameKinds[kind]++
+	h.lastFrameKind = kind
+	return h.frameKinds[kind] == 1
+}
+
+// frameKind names the kind of a frame rejection from its reason: the words
+// before the first colon or number ("bad CRC", "frame too long", "unknown
+// message type"). Reasons come from the decoder (protocol.Error) or the
+// transport, both of which start with the kind in words.
+func frameKind(reason string) string {
+	end := len(reason)
+	for i, c := range reason {
+		if c == ':' || c == '(' || (c >= '0' && c <= '9') {
+			end = i
+			break
+		}
+	}
+	k := strings.TrimSpace(reason[:end])
+	if k == "" {
+		return "other"
+	}
+	return k
 }
 
 func (r *runner) watchdog(silent time.Duration) {

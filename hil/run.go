@@ -193,6 +193,7 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		r.failed(err)
 	}
 	r.sendStop()
+	r.closeSession()
 	if err == nil && r.end.outcome == record.Tripped && r.cfg.EStopCoast > 0 {
 		r.coast()
 	}

@@ -6,6 +6,7 @@ import (
 	"math"
 	"path/filepath"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -270,7 +271,7 @@ func TestHandshakeFailures(t *testing.T) {
 		{"wrong actuator count", func(c bridges.Conn) error {
 			_, err := greet(c, 1, protocol.Version)
 			return err
-		}, record.Aborted, true, protocol.StopEStop},
+		}, record.Aborted, true, protocol.StopMismatch},
 		{"no greeting", func(c bridges.Conn) error {
 			_, err := untilStop(c, nil)
 			return err
@@ -292,6 +293,19 @@ func TestHandshakeFailures(t *testing.T) {
 				t.Fatalf("firmware saw %v, want a stop with reason %d", ferr, tc.stop)
 			}
 			run := openRun(t, dir)
+			if tc.stop == protocol.StopMismatch {
+				// The setup is wrong, not the firmware: an error the
+				// command line maps to exit 2, and an alarm of its own.
+				if !errors.Is(err, ErrActuatorMismatch) {
+					t.Fatalf("error %v does not wrap ErrActuatorMismatch", err)
+				}
+				if n := run.Summary.Alarms[AlarmActuatorMismatch]; n != 1 || len(eventsOf(t, dir, AlarmActuatorMismatch)) != 1 {
+					t.Fatalf("actuator_mismatch counted %d, logged %d: want 1 each", n, len(eventsOf(t, dir, AlarmActuatorMismatch)))
+				}
+				if len(se.s.Text) > protocol.MaxNameLen || !strings.Contains(se.s.Text, "2 actuators, not 1") {
+					t.Fatalf("stop text %q should say what the rig needs", se.s.Text)
+				}
+			}
 			if run.Summary.Outcome != tc.outcome || (res.Summary.Outcome != "" && res.Summary.Outcome != tc.outcome) {
 				t.Fatalf("outcome %s, want %s (%s)", run.Summary.Outcome, tc.outcome, run.Summary.Reason)
 			}

@@ -30,19 +30,35 @@ type session struct {
 
 	// Edges of the command stream, so a condition that persists raises
 	// one alarm per episode.
-	lastFW uint16 // last firmware status, for firmware_fault on the rising edge
+	lastFW uint16 // last firmware status, for firmware_fault and firmware_safe_mode on the rising edge
 	satNow bool   // the last command saturated
+
+	// fwDone is set when the firmware ended the run with stop reason end.
+	fwDone bool
 }
+
+// handshakePoll is how often the wait for the greeting looks at the
+// notices (refusals of the embedded broker), so a refusal lands in the
+// record while the rig still waits, not only when it gives up.
+const handshakePoll = 100 * time.Millisecond
 
 // handshake waits for the greeting, checks it and sends the configuration.
 func (r *runner) handshake() error {
 	ss := &r.sess
 	deadline := time.Now().Add(r.cfg.HandshakeTimeout)
 	for {
-		err := ss.link.Recv(deadline, &ss.msg)
+		wait := time.Now().Add(handshakePoll)
+		if deadline.Before(wait) {
+			wait = deadline
+		}
+		err := ss.link.Recv(wait, &ss.msg)
 		switch classify(err, &ss.fe) {
 		case linkTimeout:
-			return fmt.Errorf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
+			r.drainNotices()
+			if time.Now().Before(deadline) {
+				continue
+			}
+			return r.noGreeting()
 		case linkDisconnected:
 			r.disconnected(err)
 			continue
@@ -83,9 +99,7 @@ func (r *runner) handshake() error {
 		return nil
 	}
 	if int(g.Actuators) != r.n {
-		err := fmt.Errorf("hil: firmware %q announces actuators: %d, this walker has %d (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
-		r.end.end(record.Aborted, err.Error(), protocol.StopEStop)
-		return err
+		return r.actuatorMismatch(g)
 	}
 	r.logf("firmware %q build %q greeted with protocol v%d; actuators: %d", g.Name, g.Build, g.Version, g.Actuators)
 	c := &ss.config
@@ -103,6 +117,40 @@ func (r *runner) handshake() error {
 	return nil
 }
 
+// ErrActuatorMismatch is wrapped by the error of a run refused because the
+// firmware drives another number of actuators than the walker has joints:
+// the bench is set up wrong (firmware and scenario do not belong together),
+// which the command line reports as a configuration problem (exit 2).
+var ErrActuatorMismatch = errors.New("the firmware does not fit this walker")
+
+// noGreeting is the error of a handshake that timed out. When the embedded
+// broker refused connections or publishes meanwhile, it says so: a board
+// with the wrong client id is then told what went wrong, instead of being
+// asked whether it is powered.
+func (r *runner) noGreeting() error {
+	msg := fmt.Sprintf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
+	if q := r.cfg.Notices; q != nil {
+		if d := q.describe(); d != "" {
+			msg += " The broker refused connections or messages meanwhile: " + d
+		}
+	}
+	return errors.New(msg)
+}
+
+// actuatorMismatch refuses a firmware that drives another number of
+// actuators than the walker has joints: alarm actuator_mismatch, stop reason
+// mismatch, outcome aborted (the run never started), and an error wrapping
+// ErrActuatorMismatch.
+func (r *runner) actuatorMismatch(g protocol.Greeting) error {
+	msg := fmt.Sprintf("firmware %q announces actuators: %d; this walker has %d joints (%s)", g.Name, g.Actuators, r.n, strings.Join(r.names, ", "))
+	// The run ends here whatever the severity, so the alarm is always logged.
+	r.al.counts[AlarmActuatorMismatch]++
+	r.al.emit(alarm{kind: AlarmActuatorMismatch, tick: 0, t: 0, foot: -1, segment: -1, message: msg,
+		values: map[string]float64{"actuators": float64(g.Actuators), "joints": float64(r.n)}})
+	r.end.end(record.Aborted, msg, protocol.StopMismatch)
+	return fmt.Errorf("hil: %w: %s", ErrActuatorMismatch, msg)
+}
+
 // versionMismatch refuses a firmware that speaks another protocol version:
 // alarm, outcome tripped, and a stop with reason bad_version (which every
 // version can read).
@@ -115,12 +163,15 @@ func (r *runner) versionMismatch(who string, version int) {
 }
 
 // greetedAgain handles a greeting after the handshake. Before the first
-// command it means the configuration was lost on the way: send it again.
-// After commands have come it means the firmware restarted mid-run: an
-// alarm, and the configuration again so it can go on.
+// command it means the configuration was lost on the way (or several
+// greetings were buffered before the rig opened the port): send it again,
+// and the firmware tolerates the duplicate. After commands have come it
+// means the firmware restarted mid-run: alarm firmware_reset (trip by
+// default); when a scenario makes it a warning, the configuration goes out
+// again so the firmware can go on, and the watchdog judges the gap.
 func (r *runner) greetedAgain() {
 	if n := r.health.counts.Commands; n > 0 {
-		if r.al.raise(AlarmFirmwareFault, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+		if r.al.raise(AlarmFirmwareReset, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
 			return "the firmware greeted again in the middle of the run: it restarted", map[string]float64{"commands_before": float64(n)}
 		}) {
 			r.trip(protocol.StopEStop)
@@ -180,11 +231,28 @@ func (r *runner) takeCommand(c *protocol.Command) {
 			r.trip(protocol.StopEStop)
 		}
 	}
+	if c.Status&protocol.StatusSafeMode != 0 && ss.lastFW&protocol.StatusSafeMode == 0 {
+		st := c.Status
+		if r.al.raise(AlarmFirmwareSafeMode, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+			return "the firmware reports it is in its own safe mode (status bit 1 set); the rig applies its torques as sent", map[string]float64{"status": float64(st)}
+		}) {
+			r.trip(protocol.StopEStop)
+		}
+	}
 	ss.lastFW = c.Status
 }
 
-// firmwareStop handles a Stop from the firmware: the run cannot go on.
+// firmwareStop handles a Stop from the firmware. Reason end (0) is the
+// firmware ending the run normally (its test programme is done): the run
+// ends here and is judged by its criteria like a run that reached its
+// duration. Any other reason means the firmware cannot go on: alarm
+// firmware_fault, which trips by default.
 func (r *runner) firmwareStop(st protocol.Stop) {
+	if st.Reason == protocol.StopEnd {
+		r.sess.fwDone = true
+		r.al.info("firmware_done", r.pt.tick, r.pt.s.T, fmt.Sprintf("the firmware ended the run (stop reason 0 end: %q)", st.Text), nil)
+		return
+	}
 	msg := fmt.Sprintf("the firmware stopped the run (reason %d: %q)", st.Reason, st.Text)
 	// The run ends here, so this alarm is logged even inside the rate limit.
 	r.al.counts[AlarmFirmwareFault]++
@@ -203,24 +271,99 @@ func (r *runner) sendState() {
 	r.sess.link.Send(&r.sess.out)
 }
 
-// sendStop tells the firmware the run is over and why.
+// sendStop tells the firmware the run is over and why. Its seq is the seq
+// of the latest state sent (0 before the first), as a heartbeat's would be.
 func (r *runner) sendStop() {
 	var m protocol.Message
 	m.Type = protocol.TypeStop
-	m.Seq = r.sess.seq + 1
+	m.Seq = r.sess.seq
 	m.Stop.Reason = r.end.stopCode
-	text := r.end.reason
-	if text == "" {
-		text = "run finished"
-	}
-	if len(text) > protocol.MaxNameLen {
-		// Cut at a rune boundary so the firmware never gets half a "μ".
-		cut := protocol.MaxNameLen
-		for cut > 0 && !utf8.RuneStart(text[cut]) {
-			cut--
-		}
-		text = text[:cut]
-	}
-	m.Stop.Text = text
+	m.Stop.Text = r.stopText()
 	r.sess.link.Send(&m)
+}
+
+// stopText is the 32-byte text of the rig's stop: a short phrase per stop
+// code, naming the alarm that tripped, so it never has to be cut. The
+// whole reason is in the run record; the firmware gets what fits a board's
+// display or log line.
+func (r *runner) stopText() string {
+	tripKind := ""
+	if r.al.trip != nil {
+		tripKind = r.al.trip.kind
+	}
+	g := r.sess.greeting
+	operator := strings.HasPrefix(r.end.reason, operatorReason)
+	return stopText(r.end.stopCode, r.end.outcome, tripKind, operator, r.cfg.Watchdog, int(g.Version), int(g.Actuators), r.n)
+}
+
+// operatorReason begins the reason of a run the operator interrupted
+// (ending.go's aborted).
+const operatorReason = "interrupted by the operator"
+
+// stopText composes the stop text from what ended the run; it is a pure
+// function so a test can try every combination the rig can send.
+func stopText(code uint8, outcome record.Outcome, tripKind string, operator bool, watchdog time.Duration, fwVersion, actuators, joints int) string {
+	var t string
+	switch code {
+	case protocol.StopEnd:
+		t = "run finished"
+		if outcome == record.Fail {
+			t = "plant stopped at an event"
+		}
+	case protocol.StopEStop:
+		t = "e-stop"
+		if tripKind != "" {
+			t = "e-stop: " + tripKind
+		}
+	case protocol.StopWatchdog:
+		t = fmt.Sprintf("no command for %d ms", watchdog.Milliseconds())
+	case protocol.StopAborted:
+		t = "run aborted by a rig error"
+		if operator {
+			t = "interrupted by the operator"
+		}
+	case protocol.StopFirmware:
+		t = "firmware stopped the run"
+	case protocol.StopBadVersion:
+		t = fmt.Sprintf("rig speaks v%d, firmware v%d", protocol.Version, fwVersion)
+	case protocol.StopMismatch:
+		t = fmt.Sprintf("rig needs %d actuators, not %d", joints, actuators)
+	default:
+		t = fmt.Sprintf("stop reason %d", code)
+	}
+	if len(t) > protocol.MaxNameLen {
+		// Unreachable for the texts above (a test tries them all); kept so
+		// a future text can never make an unencodable frame.
+		t = t[:protocol.MaxNameLen]
+		for len(t) > 0 && !utf8.ValidString(t) {
+			t = t[:len(t)-1]
+		}
+	}
+	return t
+}
+
+// closeSession is the end of the conversation: refusals still queued
+// become alarms, and the counts of every kind of rejected frame and broker
+// refusal go to the record in one line each, so the rate limit of the
+// alarms never hides how many there were.
+func (r *runner) closeSession() {
+	r.drainNotices()
+	if k := r.health.frameKinds; len(k) > 0 {
+		v := make(map[string]float64, len(k))
+		for kind, n := range k {
+			v[kind] = float64(n)
+		}
+		r.al.info("bad_frame_summary", r.pt.tick, r.pt.s.T, fmt.Sprintf("%d frames from the firmware were rejected; the values count each kind", r.health.counts.BadFrames), v)
+	}
+	if q := r.cfg.Notices; q != nil {
+		if c := q.Counts(); len(c) > 0 {
+			v := make(map[string]float64, len(c))
+			var total uint64
+			for kind, n := range c {
+				v[kind] = float64(n)
+				total += n
+			}
+			r.al.info("broker_refusal_summary", r.pt.tick, r.pt.s.T, fmt.Sprintf("the broker refused %d connections, publishes or subscriptions during the run; the values count each kind", total), v)
+		}
+	}
 }

@@ -44,7 +44,7 @@ func (r *runner) wallclock(ctx context.Context) {
 	r.al.info("scheduling", 0, 0, tm.realtime, nil)
 
 	r.sess.link.await(awaitAny) // every command meets the link faults
-	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{})}
+	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{}), badReasons: make(chan string, badReasonQueue)}
 	go rc.loop()
 	defer func() {
 		rc.stop.Store(true)
@@ -96,7 +96,16 @@ type receiver struct {
 	down      atomic.Bool // Recv reported the peer gone, or an error the link does not classify
 	greeted   atomic.Bool // a greeting came after the handshake
 	fwStop    atomic.Pointer[protocol.Stop]
+
+	// badReasons carries the reason of each rejected frame to the loop, so
+	// every kind is counted and the first of each kind logged (health.go);
+	// bounded: reasons that do not fit are counted in badFrames only.
+	badReasons chan string
 }
+
+// badReasonQueue bounds the reasons of rejected frames waiting for the
+// loop; a flood of garbage beyond it is still counted.
+const badReasonQueue = 64
 
 func (rc *receiver) loop() {
 	defer close(rc.done)
@@ -120,6 +129,12 @@ func (rc *receiver) loop() {
 		case linkFrame:
 			reason := fe.Reason
 			rc.lastBad.Store(&reason)
+			// Queue the reason before counting the frame, so a count the
+			// loop reads never runs ahead of the queued reasons.
+			select {
+			case rc.badReasons <- reason:
+			default:
+			}
 			rc.badFrames.Add(1)
 			continue
 		case linkOther:
@@ -164,14 +179,26 @@ type wallclockSource struct {
 func (w *wallclockSource) beforeState(now time.Time) bool {
 	r, rc := w.r, w.rc
 	if n := rc.badFrames.Load(); n != w.lastBad {
+		// Each queued reason is one bad frame with its kind; frames whose
+		// reason did not fit the queue count under the latest reason.
+		reported := uint64(0)
+		for more := true; more && reported < n-w.lastBad; {
+			select {
+			case reason := <-rc.badReasons:
+				r.badFrame(reason)
+				reported++
+			default:
+				more = false
+			}
+		}
 		reason := "a frame failed its checks"
 		if p := rc.lastBad.Load(); p != nil {
 			reason = *p
 		}
-		// One alarm per tick at most; the count is exact.
-		r.health.counts.BadFrames += n - w.lastBad - 1
+		if rest := n - w.lastBad - reported; rest > 0 {
+			r.badFrames(reason, rest)
+		}
 		w.lastBad = n
-		r.badFrame(reason)
 	}
 	if rc.down.Swap(false) {
 		r.disconnected(bridges.ErrDisconnected)

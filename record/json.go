@@ -33,6 +33,37 @@ func (x *num) UnmarshalJSON(b []byte) error {
 	return err
 }
 
+// noContact is the minimum normal force of a run in which no stance foot
+// ever touched the ground (no ticks, or a walker in the air): +Inf in Go,
+// null in summary.json. A reader of the file should not have to parse the
+// text "+Inf" to learn that there was no contact, and null says "no value"
+// in every JSON library; reading null back gives +Inf again, so a summary
+// round-trips.
+type noContact float64
+
+// MarshalJSON writes +Inf (no contact) as null, NaN as null too (it never
+// happens: the minimum of finite forces is finite), and other values as
+// numbers.
+func (x noContact) MarshalJSON() ([]byte, error) {
+	f := float64(x)
+	if math.IsInf(f, 1) || math.IsNaN(f) {
+		return []byte("null"), nil
+	}
+	return num(f).MarshalJSON()
+}
+
+// UnmarshalJSON reads null as +Inf (no contact); it also accepts the
+// "+Inf" text that summaries of earlier versions wrote.
+func (x *noContact) UnmarshalJSON(b []byte) error {
+	if string(b) == "null" {
+		*x = noContact(math.Inf(1))
+		return nil
+	}
+	f, err := parseJSONNumber(b)
+	*x = noContact(f)
+	return err
+}
+
 type latencyJSON struct {
 	P50 num `json:"p50"`
 	P99 num `json:"p99"`
@@ -70,7 +101,7 @@ type summaryJSON struct {
 	WallTimeS               num             `json:"wall_time_s"`
 	Alarms                  map[string]int  `json:"alarms"`
 	PeakFrictionUtilization num             `json:"peak_friction_utilization"`
-	MinNormalForceN         num             `json:"min_normal_force_n"`
+	MinNormalForceN         noContact       `json:"min_normal_force_n"`
 	MeanSpeedMPS            num             `json:"mean_speed_mps"`
 	LatencyUS               *latencyJSON    `json:"latency_us"`
 	JitterUS                *latencyJSON    `json:"jitter_us,omitempty"`
@@ -81,13 +112,14 @@ type summaryJSON struct {
 }
 
 // MarshalJSON writes the summary with non-finite numbers as null (NaN) or
-// "+Inf"/"-Inf".
+// "+Inf"/"-Inf", except the minimum normal force, which is null when no
+// foot touched the ground (+Inf).
 func (s Summary) MarshalJSON() ([]byte, error) {
 	j := summaryJSON{
 		Outcome: s.Outcome, Reason: s.Reason, Steps: s.Steps, Ticks: s.Ticks,
 		SimTimeS: num(s.SimTimeS), WallTimeS: num(s.WallTimeS), Alarms: s.Alarms,
 		PeakFrictionUtilization: num(s.PeakFrictionUtilization),
-		MinNormalForceN:         num(s.MinNormalForceN),
+		MinNormalForceN:         noContact(s.MinNormalForceN),
 		MeanSpeedMPS:            num(s.MeanSpeedMPS),
 		LatencyUS:               s.LatencyUS.toJSON(), JitterUS: s.JitterUS.toJSON(),
 		DeadlineMisses: s.DeadlineMisses, Caution: s.Caution, ToolVersion: s.ToolVersion,

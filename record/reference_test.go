@@ -247,7 +247,7 @@ func referencePage(t testing.TB) []byte {
 	b.WriteString("\n## events.jsonl\n\nOne JSON object per line. `segment` is left out when the event is tied to no\nterrain segment, `foot` and `values` when empty; a non-finite value is written as\nthe text `NaN`, `+Inf` or `-Inf`.\n\n")
 	writeJSONTable(&b, jsonRows(t, docs, reflect.TypeOf(Event{}), ""))
 
-	b.WriteString("## summary.json\n\nOne JSON object, written when the run ends. Non-finite numbers are written as\n`null` (NaN) or the text `\"+Inf\"` / `\"-Inf\"`.\n\n")
+	b.WriteString("## summary.json\n\nOne JSON object, written when the run ends. Non-finite numbers are written as\n`null` (NaN) or the text `\"+Inf\"` / `\"-Inf\"`, except `min_normal_force_n`,\nwhich is `null` when no stance foot touched the ground (a run with no ticks).\n\n")
 	writeJSONTable(&b, jsonRows(t, docs, reflect.TypeOf(Summary{}), ""))
 	fmt.Fprintf(&b, "The `caution` field always reads:\n\n> %s\n", Caution)
 	return b.Bytes()

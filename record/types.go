@@ -145,7 +145,7 @@ type Summary struct {
 	WallTimeS               float64        `json:"wall_time_s"`               // wall-clock duration of the run, s
 	Alarms                  map[string]int `json:"alarms"`                    // count per alarm kind
 	PeakFrictionUtilization float64        `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N) of a stance foot
-	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N (+Inf: no contact)
+	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N; null in the file (+Inf in Go) when no stance foot touched the ground, as in a run with no ticks
 	MeanSpeedMPS            float64        `json:"mean_speed_mps"`            // mean forward speed over completed steps, m/s
 	LatencyUS               *Latency       `json:"latency_us"`                // command round trip, µs, in wall-clock mode; null in lockstep
 	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, µs, in wall-clock mode; left out in lockstep

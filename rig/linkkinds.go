@@ -12,6 +12,7 @@ import (
 	"gaitrig/bridges/mqtt"
 	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
+	"gaitrig/hil"
 	"gaitrig/scenarios"
 )
 
@@ -191,7 +192,8 @@ func firmwareOnPty(_ DialSetup, announce func(string)) (bridges.Conn, func(), er
 
 func dialEmbedded(d DialSetup) (Opened, error) {
 	var undo undoList
-	b, err := broker.Start(broker.Config{})
+	notices := hil.NewNotices(0)
+	b, err := broker.Start(broker.Config{OnRefusal: refusalNotice(notices)})
 	if err != nil {
 		return Opened{}, fmt.Errorf("embedded broker: %w", err)
 	}
@@ -204,7 +206,26 @@ func dialEmbedded(d DialSetup) (Opened, error) {
 	}
 	l.Name = "mqtt:embedded (" + url + ", rig " + d.Rig + ")"
 	l.Close = undo.run
+	l.Notices = notices
 	return l, nil
+}
+
+// refusalNotice turns each refusal of the embedded broker into a notice
+// for the running loop. It runs on the broker's goroutines and never
+// blocks: the queue drops (and counts) what does not fit.
+func refusalNotice(q *hil.Notices) func(broker.Refusal) {
+	return func(f broker.Refusal) {
+		msg := f.Reason
+		if f.ClientID != "" && !strings.Contains(msg, f.ClientID) {
+			msg += " (client id " + strconv.Quote(f.ClientID) + ")"
+		}
+		msg += " (from " + f.Remote
+		if f.Topic != "" {
+			msg += ", topic " + f.Topic
+		}
+		msg += ")"
+		q.Post(hil.Notice{Kind: f.Kind.String(), Message: msg})
+	}
 }
 
 func dialSerial(d DialSetup) (Opened, error) {

@@ -101,6 +101,9 @@ type Opened struct {
 	Name string
 	// Alarms, when not nil, publishes alarms on the link (MQTT).
 	Alarms hil.AlarmSink
+	// Notices, when not nil, carries the refusals of a broker the link
+	// started (the embedded broker) into the run as broker_refusal alarms.
+	Notices *hil.Notices
 	// Close closes the link and stops what Dial started.
 	Close func()
 }

@@ -2,6 +2,7 @@ package rig
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -163,6 +164,9 @@ func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared,
 	if opened.Alarms != nil {
 		cfg.Alarms = opened.Alarms
 	}
+	if opened.Notices != nil {
+		cfg.Notices = opened.Notices
+	}
 	p := &Prepared{Scenario: sc, Config: cfg, Model: model, Initial: initial, Link: opened.Name, opts: o, open: opened}
 	if o.Log != nil {
 		o.Log("link: " + opened.Name)
@@ -321,6 +325,11 @@ func (p *Prepared) Run(ctx context.Context) (Result, error) {
 	rec := p.rec
 	p.rec = nil
 	res, err := hil.Run(ctx, p.Config, p.Model, p.Initial, p.open.Conn, rec)
+	if errors.Is(err, hil.ErrActuatorMismatch) {
+		// Firmware and scenario do not belong together: the setup, not
+		// the firmware's behaviour, is wrong (exit 2).
+		err = ConfigError(err)
+	}
 	if err != nil {
 		return Result{Dir: p.Dir}, fmt.Errorf("run %s: %w", p.Scenario.Name, err)
 	}
