@@ -75,8 +75,13 @@ type Report struct {
 	// Checks are the results in battery order.
 	Checks []Result `json:"checks"`
 	// RoundTrip is the round-trip distribution in µs (Count 0 when none
-	// was measured).
+	// was measured), from hil.Histogram: percentiles to the microsecond,
+	// rounded up.
 	RoundTrip hil.Summary `json:"round_trip_us"`
+	// Samples are the raw round trips RoundTrip summarizes, in the order
+	// measured (at most Options.Samples), for a caller that wants the
+	// whole distribution.
+	Samples []time.Duration `json:"-"`
 	// Passed is true when every required check passed (or does not apply
 	// to the link).
 	Passed bool `json:"passed"`
@@ -229,6 +234,7 @@ func (b *battery) firstSession(conn bridges.Conn) {
 			continue
 		}
 		b.hist.Add(a.rtt)
+		b.rep.Samples = append(b.rep.Samples, a.rtt)
 		worst = max(worst, a.rtt)
 	}
 	b.rep.RoundTrip = b.hist.Summarize()
