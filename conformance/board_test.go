@@ -15,21 +15,21 @@ import (
 type fault int
 
 const (
-	faultNone fault = iota
-	faultGreetingSeq               // greets with seq 7
-	faultSkipFirstState            // never answers state seq 1
-	faultDuplicateConfigDropsState // a second config makes it drop the next state
-	faultWrongSeq                  // answers state seq 20 with seq 19
-	faultResentTwice               // answers a resent state twice
-	faultResentIgnored             // does not answer a resent state
-	faultAcceptsBadCRC             // does not check the CRC
-	faultUnknownTypeDropsState     // an unknown type makes it drop the next state
-	faultHeartbeatDropsState       // a heartbeat makes it drop the next state
-	faultUndefinedStatusBit        // sets status bit 5
-	faultAnswersAfterStop          // keeps answering states after a stop
-	faultNoGreetingAfterStop       // after a stop it never greets again
-	faultWrongRefusalReason        // refuses a bad config with reason estop
-	faultTakesBadConfig            // takes a config with the wrong joint count
+	faultNone                      fault = iota
+	faultGreetingSeq                     // greets with seq 7
+	faultSkipFirstState                  // never answers state seq 1
+	faultDuplicateConfigDropsState       // a second config makes it drop the next state
+	faultWrongSeq                        // answers state seq 20 with seq 19
+	faultResentTwice                     // answers a resent state twice
+	faultResentIgnored                   // does not answer a resent state
+	faultAcceptsBadCRC                   // does not check the CRC
+	faultUnknownTypeDropsState           // an unknown type makes it drop the next state
+	faultHeartbeatDropsState             // a heartbeat makes it drop the next state
+	faultUndefinedStatusBit              // sets status bit 5
+	faultAnswersAfterStop                // keeps answering states after a stop
+	faultNoGreetingAfterStop             // after a stop it never greets again
+	faultWrongRefusalReason              // refuses a bad config with reason estop
+	faultTakesBadConfig                  // takes a config with the wrong joint count
 )
 
 var faultNames = [...]string{"none", "greeting_seq", "skip_first_state", "duplicate_config_drops_state",
