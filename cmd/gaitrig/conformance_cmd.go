@@ -1,0 +1,98 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+
+	"gaitrig/conformance"
+	"gaitrig/rig"
+)
+
+func init() {
+	commands["conformance"] = command{"check that a firmware speaks the protocol: a fixed battery over any link", cmdConformance}
+}
+
+func cmdConformance(args []string, stdout, stderr io.Writer) int {
+	fs := newFlagSet("conformance", "", `
+Runs a fixed battery of checks against the firmware at the other end of
+--link, with the plant frozen (every state carries the same readings), and
+prints each check with pass or fail and what was seen: the greeting, the
+config and a duplicate config, every state answered with its seq within the
+watchdog, a resent state, a frame with a bad CRC and one of an unknown type,
+a heartbeat, the status bits, the round-trip time (p50, p99, max), a stop, a
+greeting after the rig opens the link again, and a config the firmware cannot
+drive. Exit code 0 when every required check passes, 1 when one does not, 2
+when the link cannot be opened. The expectations follow docs/protocol.md.`, stderr)
+	link := fs.String("link", "builtin", rig.LinkHelp())
+	rigID := fs.String("rig", "", "MQTT rig id (default bench)")
+	samples := fs.Int("samples", 1000, "states whose round trip is measured")
+	asJSON := fs.Bool("json", false, "print the report as JSON instead of a table")
+	junit := fs.String("junit", "", "also write the report as JUnit XML to this file")
+	if done, code := parseFlags(fs, args); done {
+		return code
+	}
+	if fs.NArg() != 0 || *samples < 1 || *samples > 1000000 {
+		fmt.Fprintln(stderr, "gaitrig conformance: takes no arguments; --samples must be 1 … 1000000")
+		return exitConfig
+	}
+	dial, err := conformance.LinkDialer(*link, *rigID)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig conformance:", err)
+		return exitCodeFor(err)
+	}
+	ctx, stop := signalContext()
+	defer stop()
+	o := conformance.Options{Samples: *samples}
+	if !*asJSON {
+		fmt.Fprintf(stdout, "conformance of the firmware on %s\n", *link)
+		o.Log = func(line string) { fmt.Fprintln(stdout, line) }
+	}
+	rep, err := conformance.Run(ctx, *link, dial, o)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig conformance:", err)
+		return exitConfig
+	}
+	if *junit != "" {
+		if err := writeConformanceJUnit(*junit, &rep); err != nil {
+			fmt.Fprintln(stderr, "gaitrig conformance:", err)
+			return exitConfig
+		}
+	}
+	if *asJSON {
+		enc := json.NewEncoder(stdout)
+		enc.SetIndent("", "  ")
+		if err := enc.Encode(rig.JSONSafe(rep)); err != nil {
+			fmt.Fprintln(stderr, "gaitrig conformance:", err)
+			return exitFail
+		}
+	} else {
+		verdict := "PASS: every required check passed"
+		if !rep.Passed {
+			verdict = "FAIL: a required check did not pass"
+		}
+		fmt.Fprintln(stdout, verdict)
+		fmt.Fprintln(stdout, "\n"+safetyCaution)
+	}
+	if ctx.Err() != nil {
+		return exitFail
+	}
+	if !rep.Passed {
+		return exitFail
+	}
+	return exitPass
+}
+
+func writeConformanceJUnit(path string, rep *conformance.Report) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := rep.WriteJUnit(f); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
