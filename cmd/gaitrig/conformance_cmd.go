@@ -95,4 +95,3 @@ func writeConformanceJUnit(path string, rep *conformance.Report) error {
 	}
 	return f.Close()
 }
-
