@@ -65,6 +65,14 @@ func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, err
 	}
 	out.Summary = h.Summarize()
 	st := protocol.Message{Type: protocol.TypeStop, Seq: s.seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "round trips measured"}}
-	_ = conn.Send(&st)
+	before := conn.Stats().FramesSent
+	if conn.Send(&st) == nil {
+		// A serial link writes from its own goroutine, and closing it drops
+		// what is still queued: wait (bounded) until the stop is written,
+		// so the firmware learns the session is over.
+		for end := time.Now().Add(time.Second); conn.Stats().FramesSent == before && time.Now().Before(end); {
+			time.Sleep(time.Millisecond)
+		}
+	}
 	return out, ctx.Err()
 }
