@@ -67,6 +67,10 @@ type Options struct {
 	// JUnit and Parquet are then refused. For measurements that need only
 	// the loop's result.
 	NoRecord bool
+	// Force starts a wall-clock run over a serial line even when a state
+	// and a command take longer on the wire than a tick (CheckWireBudget);
+	// the warning still goes to Log.
+	Force bool
 }
 
 // Result is what one run gives back.
@@ -144,6 +148,15 @@ func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared,
 	}
 	if err := applyOverrides(&cfg, o); err != nil {
 		return nil, err
+	}
+	// A link that cannot be parsed is reported by the dial below.
+	if wb, ok, err := CheckWireBudget(sc, o.Link, cfg.TickHz, cfg.Clock); err == nil && ok && wb.Message != "" {
+		if wb.Refuse && !o.Force {
+			return nil, Configf("rig: %s; force the run (--force) to start it anyway", wb.Message)
+		}
+		if o.Log != nil {
+			o.Log("warning: " + wb.Message)
+		}
 	}
 	model, err := NewModel(sc, cfg)
 	if err != nil {

@@ -18,8 +18,15 @@ func cmdCheck(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("check", "SCENARIO...", `
 Loads and validates each scenario (file or built-in name) as a run would:
 the YAML schema, units and ranges, the plant parameters and the loop
-configuration. Problems are printed as file:line: field: message. Exit code 0
+configuration. Problems are printed as file:line: field: message. For a
+serial link (the scenario's, or --link serial:PORT@BAUD or pty@BAUD) it also
+computes the wire time of a state and a command at the baud rate and warns
+when it is longer than a tick, naming the lowest standard baud rate and the
+highest tick rate that fit (docs/protocol.md section 13); a wall-clock
+scenario a run would refuse counts as a problem unless --force. Exit code 0
 when all are valid, 2 otherwise.`, stderr)
+	link := fs.String("link", "", "check against this link instead of the scenario's (see gaitrig run --help)")
+	force := fs.Bool("force", false, "a wire-time overrun of a wall-clock scenario is only a warning, as with run --force")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
@@ -41,6 +48,17 @@ when all are valid, 2 otherwise.`, stderr)
 				fmt.Fprintf(stderr, "%s: %v\n", arg, err)
 			}
 			continue
+		}
+		if msg, refuse, err := wireBudgetLine(arg, *link); err != nil {
+			bad++
+			fmt.Fprintf(stderr, "%s: %v\n", arg, err)
+			continue
+		} else if refuse && !*force {
+			bad++
+			fmt.Fprintf(stderr, "%s: %s\n", arg, msg)
+			continue
+		} else if msg != "" {
+			fmt.Fprintf(stdout, "%s: warning: %s\n", arg, msg)
 		}
 		fmt.Fprintf(stdout, "%s: ok\n", arg)
 	}
@@ -70,4 +88,19 @@ func cmdScenarios(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stdout, "%-20s %s\n", e.Name, e.Description)
 	}
 	return exitPass
+}
+
+// wireBudgetLine is the wire-time warning for one scenario over link ("":
+// the scenario's), "" when its link has no baud rate or the budget fits;
+// refuse says a wall-clock run would be refused.
+func wireBudgetLine(arg, link string) (string, bool, error) {
+	sc, err := resolveScenario(arg)
+	if err != nil {
+		return "", false, err
+	}
+	wb, ok, err := rig.CheckWireBudget(sc, link, 0, "")
+	if err != nil || !ok {
+		return "", false, err
+	}
+	return wb.Message, wb.Refuse, nil
 }

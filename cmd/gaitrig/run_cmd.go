@@ -42,6 +42,7 @@ everything written.`, stderr)
 	quiet := fs.Bool("quiet", false, "no line per step")
 	maxSteps := fs.Int("max-steps", 0, "end after this many steps (overrides the scenario's run.max_steps)")
 	duration := fs.Float64("duration", 0, "end after this many simulated seconds (overrides run.duration_s)")
+	force := fs.Bool("force", false, "start a wall-clock run over a serial line even when a state and a command take longer on the wire than a tick")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
@@ -60,7 +61,7 @@ everything written.`, stderr)
 		return exitCodeFor(err)
 	}
 	o := rig.Options{Link: *link, OutRoot: *out, RunDir: *dir, Report: *rep, JUnit: *junit, Parquet: *parquet, Log: lineLogger(stderr), Rig: *rigID,
-		MaxSteps: *maxSteps, Duration: *duration}
+		MaxSteps: *maxSteps, Duration: *duration, Force: *force}
 	if *link != "" {
 		if _, err := rig.ParseLink(*link); err != nil {
 			fmt.Fprintln(stderr, "gaitrig run:", err)
