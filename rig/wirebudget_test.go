@@ -31,7 +31,7 @@ func TestCheckWireBudget(t *testing.T) {
 	}{
 		{"builtin", 1000, hil.Wallclock, false, false, nil},
 		{"pty", 1000, hil.Wallclock, false, false, nil},
-		{"serial:/dev/pts/9@115200", 1000, hil.Wallclock, false, false, nil},  // a pty ignores the rate
+		{"serial:/dev/pts/9@115200", 1000, hil.Wallclock, false, false, nil},   // a pty ignores the rate
 		{"serial:/dev/ttyACM3@115200", 1000, hil.Wallclock, false, false, nil}, // so does USB CDC
 		{"pty@2000000", 1000, hil.Wallclock, true, false, nil},
 		{"pty@921600", 500, hil.Wallclock, true, false, nil},
