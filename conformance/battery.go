@@ -210,12 +210,18 @@ func (b *battery) firstSession(conn bridges.Conn) {
 	}
 	a := s.exchange(b.ctx, s.nextState())
 	b.judgeAnswer(CheckConfig, start, a)
+	if b.ended(a, rest[1:]) {
+		return
+	}
 
 	// The same config again.
 	start = time.Now()
 	_ = s.sendConfig(&s.config)
 	a = s.exchange(b.ctx, s.nextState())
 	b.judgeAnswer(CheckDuplicate, start, a)
+	if b.ended(a, rest[2:]) {
+		return
+	}
 
 	// Every state, and the round trips.
 	start = time.Now()
@@ -267,6 +273,20 @@ func (b *battery) firstSession(conn bridges.Conn) {
 		b.record(CheckRoundTrip, Fail, start, "no round trip measured")
 	}
 	b.stop()
+}
+
+// ended marks the checks left as not run when the answer shows the session
+// is over (the firmware stopped it, or the link closed), and says so.
+func (b *battery) ended(a answer, left []string) bool {
+	switch {
+	case a.stop != nil:
+		b.notRun(fmt.Sprintf("the firmware ended the session (stop reason %d, %q)", a.stop.Reason, a.stop.Text), left...)
+	case a.gone:
+		b.notRun("the link closed", left...)
+	default:
+		return false
+	}
+	return true
 }
 
 // judgeAnswer records a check that asks for one right answer to one state.

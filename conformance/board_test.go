@@ -30,12 +30,13 @@ const (
 	faultNoGreetingAfterStop             // after a stop it never greets again
 	faultWrongRefusalReason              // refuses a bad config with reason estop
 	faultTakesBadConfig                  // takes a config with the wrong joint count
+	faultStopsOnDuplicateConfig          // ends the session with a stop on a second config
 )
 
 var faultNames = [...]string{"none", "greeting_seq", "skip_first_state", "duplicate_config_drops_state",
 	"wrong_seq", "resent_twice", "resent_ignored", "accepts_bad_crc", "unknown_type_drops_state",
 	"heartbeat_drops_state", "undefined_status_bit", "answers_after_stop", "no_greeting_after_stop",
-	"wrong_refusal_reason", "takes_bad_config"}
+	"wrong_refusal_reason", "takes_bad_config", "stops_on_duplicate_config"}
 
 func (f fault) String() string { return faultNames[f] }
 
@@ -159,6 +160,11 @@ func runBoard(rw io.ReadWriter, f fault) {
 			}
 			if configured && f == faultDuplicateConfigDropsState {
 				dropNext = true
+			}
+			if configured && f == faultStopsOnDuplicateConfig {
+				send(&protocol.Message{Type: protocol.TypeStop, Stop: protocol.Stop{Reason: protocol.StopFirmware, Text: "configured twice"}})
+				configured = false
+				continue
 			}
 			configured, stopped, haveLast = true, false, false
 		case protocol.TypeHeartbeat:

@@ -116,6 +116,7 @@ func TestBrokenFirmwareFailsTheRightCheck(t *testing.T) {
 		{faultNoGreetingAfterStop, CheckGreetsAgain},
 		{faultWrongRefusalReason, CheckRefusesBadConf},
 		{faultTakesBadConfig, CheckRefusesBadConf},
+		{faultStopsOnDuplicateConfig, CheckDuplicate}, // the checks after it are not run, not failed
 	}
 	for _, c := range cases {
 		t.Run(c.fault.String(), func(t *testing.T) {
