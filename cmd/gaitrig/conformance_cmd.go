@@ -70,7 +70,19 @@ when the link cannot be opened. The expectations follow docs/protocol.md.`, stde
 	} else {
 		verdict := "PASS: every required check passed"
 		if !rep.Passed {
-			verdict = "FAIL: a required check did not pass"
+			failed, notRun := 0, 0
+			for _, c := range rep.Checks {
+				switch {
+				case c.Required && c.Status == conformance.Fail:
+					failed++
+				case c.Required && c.Status == conformance.NotRun:
+					notRun++
+				}
+			}
+			verdict = fmt.Sprintf("FAIL: %d required checks failed, %d could not run", failed, notRun)
+		}
+		if rt := rep.RoundTrip; rt.Count > 0 {
+			fmt.Fprintf(stdout, "round trip, plant frozen: %d samples, p50 %.0f µs, p99 %.0f µs, max %.0f µs\n", rt.Count, rt.P50, rt.P99, rt.Max)
 		}
 		fmt.Fprintln(stdout, verdict)
 		fmt.Fprintln(stdout, "\n"+safetyCaution)
