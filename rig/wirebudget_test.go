@@ -5,6 +5,7 @@ import (
 	"errors"
 	"strings"
 	"testing"
+	"time"
 
 	"gaitrig/hil"
 	"gaitrig/scenarios"
@@ -72,8 +73,14 @@ func TestCheckWireBudget(t *testing.T) {
 	if err != nil {
 		t.Fatalf("forced: %v", err)
 	}
-	p.Close()
+	defer p.Close()
 	if !strings.Contains(strings.Join(logged, "\n"), "warning: pty@115200") {
 		t.Errorf("forced run logged %q, want the warning", logged)
+	}
+	// 1440 bits at 115 200 baud are 12.5 ms: the resend interval is raised
+	// to 25 ms, so the rig does not resend a state its answer cannot yet
+	// have crossed the line for.
+	if p.Config.Resend != 25*time.Millisecond {
+		t.Errorf("resend interval %v over pty@115200, want 25ms", p.Config.Resend)
 	}
 }
