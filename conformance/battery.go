@@ -11,6 +11,7 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
+	"gaitrig/record"
 )
 
 // Dialer opens a new link to the firmware and returns the rig's end and a
@@ -71,7 +72,7 @@ type Report struct {
 	// Link names the link, as the caller gave it.
 	Link string `json:"link"`
 	// Greeting is what the firmware announced (nil without a greeting).
-	Greeting *protocol.Greeting `json:"greeting,omitempty"`
+	Greeting *Firmware `json:"greeting,omitempty"`
 	// Checks are the results in battery order.
 	Checks []Result `json:"checks"`
 	// RoundTrip is the round-trip distribution in µs (Count 0 when none
@@ -85,6 +86,17 @@ type Report struct {
 	// Passed is true when every required check passed (or does not apply
 	// to the link).
 	Passed bool `json:"passed"`
+	// Caution is record.Caution: a firmware that speaks the protocol is
+	// not thereby safe to walk.
+	Caution string `json:"caution"`
+}
+
+// Firmware is what a greeting announced.
+type Firmware struct {
+	Name      string `json:"name"`
+	Build     string `json:"build"`
+	Version   uint8  `json:"version"`
+	Actuators uint8  `json:"actuators"`
 }
 
 // Failed lists the names of the checks that failed (required or not).
@@ -116,7 +128,7 @@ func Run(ctx context.Context, link string, dial Dialer, o Options) (Report, erro
 	if o.Samples <= 0 {
 		o.Samples = 1000
 	}
-	b := &battery{ctx: ctx, o: o, rep: Report{Link: link}}
+	b := &battery{ctx: ctx, o: o, rep: Report{Link: link, Caution: record.Caution}}
 	conn, closeLink, err := dial()
 	if err != nil {
 		return Report{Link: link}, err
@@ -178,7 +190,7 @@ func (b *battery) firstSession(conn bridges.Conn) {
 		b.notRun("no greeting", rest...)
 		return
 	}
-	b.rep.Greeting = &g
+	b.rep.Greeting = &Firmware{Name: g.Name, Build: g.Build, Version: g.Version, Actuators: g.Actuators}
 	seen := fmt.Sprintf("name %q, build %q, version %d, %d actuators, seq %d", g.Name, g.Build, g.Version, g.Actuators, seq)
 	var probs []string
 	if g.Version != protocol.Version {

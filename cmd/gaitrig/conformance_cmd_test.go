@@ -25,8 +25,9 @@ func TestConformanceCommand(t *testing.T) {
 		t.Fatalf("exit %d, want %d\nstdout:\n%s\nstderr:\n%s", code, exitPass, out.String(), errb.String())
 	}
 	var rep struct {
-		Passed bool `json:"passed"`
-		Checks []struct {
+		Caution string `json:"caution"`
+		Passed  bool   `json:"passed"`
+		Checks  []struct {
 			Name, Status string
 		} `json:"checks"`
 		RoundTrip struct {
@@ -35,6 +36,9 @@ func TestConformanceCommand(t *testing.T) {
 	}
 	if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
 		t.Fatalf("--json output does not parse: %v\n%s", err, out.String())
+	}
+	if !strings.Contains(rep.Caution, "not a safety certificate") {
+		t.Errorf("the JSON report lacks the caution: %q", rep.Caution)
 	}
 	if !rep.Passed || len(rep.Checks) != 13 || rep.RoundTrip.Count != 50 {
 		t.Errorf("report: passed %v, %d checks, %d round trips; want true, 13, 50", rep.Passed, len(rep.Checks), rep.RoundTrip.Count)
