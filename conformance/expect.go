@@ -10,10 +10,9 @@
 package conformance
 
 import (
-	"time"
-
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
+	"gaitrig/rig"
 )
 
 // Expectations taken from docs/protocol.md as it stands. Each names the
@@ -29,9 +28,9 @@ const (
 	// Watchdog is the time a firmware has to answer one state. The
 	// document gives no number a firmware can rely on (section 7 says
 	// "typically tens to hundreds of milliseconds"); the battery uses the
-	// lockstep floor of the rig (one second, rig.LockstepWatchdogFloor),
-	// the deadline a lockstep run holds every firmware to.
-	Watchdog = time.Second
+	// lockstep floor of the rig (one second), the deadline a lockstep run
+	// holds every firmware to.
+	Watchdog = rig.LockstepWatchdogFloor
 	// ResentAnswers is how many commands a resent state gets (section
 	// 6.1 item 2: "answers a repeated seq again", once per resend).
 	ResentAnswers = 1
