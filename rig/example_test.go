@@ -33,5 +33,5 @@ func ExampleParseLink() {
 	fmt.Println(err)
 	// Output:
 	// serial /dev/ttyACM0 921600 <nil>
-	// --link "usb": unknown link; allowed: builtin, embedded, pty, serial:PORT[@BAUD], mqtt:URL
+	// --link "usb": unknown link; allowed: builtin, embedded, pty[@BAUD], serial:PORT[@BAUD], mqtt:URL
 }

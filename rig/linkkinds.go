@@ -36,8 +36,14 @@ func init() {
 		Dial: dialEmbedded,
 	})
 	RegisterLinkKind(LinkKind{
-		Name: "pty", Syntax: "pty", Help: "reference firmware over a real pseudo-terminal pair, COBS frames as on a board",
-		Parse:       exactly("pty"),
+		Name: "pty", Syntax: "pty[@BAUD]", Help: "reference firmware over a real pseudo-terminal pair, COBS frames as on a board; @BAUD holds each frame for its wire time at BAUD, as a UART would",
+		Parse: parsePty,
+		Format: func(l Link) string {
+			if l.Baud > 0 {
+				return fmt.Sprintf("pty@%d", l.Baud)
+			}
+			return "pty"
+		},
 		Dial:        dialPty,
 		FirmwareEnd: firmwareOnPty,
 	})
@@ -115,6 +121,29 @@ func parseSerial(s string) (Link, bool, error) {
 	return l, true, nil
 }
 
+// parsePty reads "pty" or "pty@BAUD". Without a baud rate the pty
+// delivers at once (Link.Baud 0); with one, both ends pace their frames.
+func parsePty(s string) (Link, bool, error) {
+	if s == "pty" {
+		return Link{Kind: "pty"}, true, nil
+	}
+	rest, ok := strings.CutPrefix(s, "pty@")
+	if !ok {
+		return Link{}, false, nil
+	}
+	b, err := strconv.Atoi(rest)
+	if err != nil || b <= 0 {
+		return Link{}, true, fmt.Errorf("--link %q: baud rate %q is not a positive whole number (e.g. pty@921600)", s, rest)
+	}
+	return Link{Kind: "pty", Baud: b}, true, nil
+}
+
+// ptyConfig is the serial configuration of both ends of a pty link: paced
+// at the link's baud rate when it names one.
+func ptyConfig(l Link) serial.Config {
+	return serial.Config{Baud: l.Baud, Pace: l.Baud > 0}
+}
+
 func parseMQTT(s string) (Link, bool, error) {
 	u, ok := strings.CutPrefix(s, "mqtt:")
 	if !ok {
@@ -159,8 +188,10 @@ func dialPty(d DialSetup) (Opened, error) {
 		return Opened{}, fmt.Errorf("pty: %w", err)
 	}
 	undo.add(func() { p.Close() })
-	fwConn := serial.NewConn(p.Master, "pty master", serial.Config{})
-	rigConn, err := serial.Open(serial.Config{Port: p.Path})
+	fwConn := serial.NewConn(p.Master, "pty master", ptyConfig(d.Link))
+	rc := ptyConfig(d.Link)
+	rc.Port = p.Path
+	rigConn, err := serial.Open(rc)
 	if err != nil {
 		undo.run()
 		return Opened{}, fmt.Errorf("pty %s: %w", p.Path, err)
@@ -171,17 +202,21 @@ func dialPty(d DialSetup) (Opened, error) {
 		return Opened{}, err
 	}
 	undo.add(func() { rigConn.Close() }, startFirmware(fwConn, d.Firmware))
-	return Opened{Conn: rigConn, Name: "pty (" + p.Path + ", built-in firmware)", Close: undo.run}, nil
+	name := "pty (" + p.Path + ", built-in firmware)"
+	if d.Link.Baud > 0 {
+		name = fmt.Sprintf("pty (%s, built-in firmware, paced at %d baud)", p.Path, d.Link.Baud)
+	}
+	return Opened{Conn: rigConn, Name: name, Close: undo.run}, nil
 }
 
 // firmwareOnPty makes a new pty pair and serves the firmware on its leader;
 // the rig opens the follower by its path.
-func firmwareOnPty(_ DialSetup, announce func(string)) (bridges.Conn, func(), error) {
+func firmwareOnPty(d DialSetup, announce func(string)) (bridges.Conn, func(), error) {
 	p, err := serial.NewPty()
 	if err != nil {
 		return nil, nil, ConfigError(err)
 	}
-	c := serial.NewConn(p.Master, "pty master", serial.Config{})
+	c := serial.NewConn(p.Master, "pty master", ptyConfig(d.Link))
 	// The follower stays open here for the whole run: with no process
 	// holding it, the leader reads EIO until the rig opens the port, and
 	// the firmware would take that for an unplugged cable. A rig that goes

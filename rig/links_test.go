@@ -24,6 +24,9 @@ func TestParseLink(t *testing.T) {
 		{in: "embedded", want: Link{Kind: "embedded"}},
 		{in: "mqtt:embedded", want: Link{Kind: "embedded"}},
 		{in: "pty", want: Link{Kind: "pty"}},
+		{in: "pty@921600", want: Link{Kind: "pty", Baud: 921600}},
+		{in: "pty@", wantErr: "baud rate"},
+		{in: "pty@0", wantErr: "baud rate"},
 		{in: "serial:/dev/ttyACM0", want: Link{Kind: "serial", Addr: "/dev/ttyACM0", Baud: 115200}},
 		{in: "serial:/dev/ttyACM0@921600", want: Link{Kind: "serial", Addr: "/dev/ttyACM0", Baud: 921600}},
 		{in: "mqtt:tcp://127.0.0.1:1883", want: Link{Kind: "mqtt", Addr: "tcp://127.0.0.1:1883"}},
@@ -31,7 +34,7 @@ func TestParseLink(t *testing.T) {
 		{in: "serial:/dev/x@fast", wantErr: "baud rate"},
 		{in: "serial:/dev/x@-3", wantErr: "baud rate"},
 		{in: "mqtt:127.0.0.1", wantErr: "scheme"},
-		{in: "usb", wantErr: "unknown link; allowed: builtin, embedded, pty, serial:PORT[@BAUD], mqtt:URL"},
+		{in: "usb", wantErr: "unknown link; allowed: builtin, embedded, pty[@BAUD], serial:PORT[@BAUD], mqtt:URL"},
 		{in: "", wantErr: "unknown link"},
 	}
 	for _, tt := range tests {

@@ -68,6 +68,10 @@ type Options struct {
 	// JUnit and Parquet are then refused. For measurements that need only
 	// the loop's result.
 	NoRecord bool
+	// Force starts a wall-clock run over a serial line even when a state
+	// and a command take longer on the wire than a tick (CheckWireBudget);
+	// the warning still goes to Log.
+	Force bool
 }
 
 // Result is what one run gives back.
@@ -145,6 +149,27 @@ func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared,
 	}
 	if err := applyOverrides(&cfg, o); err != nil {
 		return nil, err
+	}
+	// A link that cannot be parsed is reported by the dial below.
+	if wb, ok, err := CheckWireBudget(sc, o.Link, cfg.TickHz, cfg.Clock); err == nil && ok {
+		if wb.Message != "" {
+			if wb.Refuse && !o.Force {
+				return nil, Configf("rig: %s; force the run (--force) to start it anyway", wb.Message)
+			}
+			if o.Log != nil {
+				o.Log("warning: " + wb.Message)
+			}
+		}
+		// A lockstep resend before the answer could have crossed the
+		// line only doubles the traffic on a line that is already the
+		// bottleneck: wait at least twice the wire time (our choice)
+		// unless the caller set the resend interval.
+		if floor := 2 * wb.Budget.Total; o.Resend == 0 && cfg.Resend < floor {
+			cfg.Resend = floor
+			if o.Log != nil {
+				o.Log(fmt.Sprintf("lockstep resend interval raised to %v, twice the wire time at %d baud", floor, wb.Budget.Baud))
+			}
+		}
 	}
 	model, err := NewModel(sc, cfg)
 	if err != nil {

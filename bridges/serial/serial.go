@@ -50,6 +50,12 @@ type Config struct {
 	// SendQueueLen is the number of frames that may wait for the port; 0
 	// means 16.
 	SendQueueLen int
+	// Pace holds every frame written for the time its bytes take on a
+	// UART at Baud (protocol.UARTBitsPerByte bits per byte), one frame
+	// after the other as on a real line. A pty ignores the baud rate and
+	// delivers at once; pacing makes a bench test over a pty show the
+	// timing a board's UART will (docs/protocol.md, wire-time budget).
+	Pace bool
 }
 
 func (c *Config) withDefaults() Config {
@@ -102,6 +108,7 @@ type Conn struct {
 	free, full chan *txBuf
 	scratch    [protocol.MaxFrameLen]byte // Send side only (one sender)
 	timer      *time.Timer                // Recv side only (one receiver)
+	paceTimer  *time.Timer                // write loop only, with Config.Pace
 
 	counts   bridges.Counters
 	writeErr atomic.Pointer[error]
@@ -306,11 +313,15 @@ func (c *Conn) event(e bridges.LinkEvent) {
 }
 
 func (c *Conn) writeLoop() {
+	var lineFree time.Time // paced: when the line has sent the previous frame
 	for {
 		select {
 		case <-c.closed:
 			return
 		case buf := <-c.full:
+			if c.cfg.Pace {
+				lineFree = c.pace(lineFree, len(buf.b))
+			}
 			if box := c.port.Load(); box != nil {
 				n, err := box.p.Write(buf.b)
 				c.counts.BytesSent.Add(uint64(n))
@@ -324,6 +335,33 @@ func (c *Conn) writeLoop() {
 			c.free <- buf
 		}
 	}
+}
+
+// pace waits until a frame of n bytes, started when the line is free (or
+// now, if it has been idle), would have its last byte on the far side at
+// Baud, and returns that time. The whole frame is then written at once: a
+// receiver can use a frame only when its last byte has come, so this is
+// the moment that matters. Sleeping can only make the frame later, never
+// earlier, than a real line would deliver it.
+func (c *Conn) pace(lineFree time.Time, n int) time.Time {
+	start := time.Now()
+	if lineFree.After(start) {
+		start = lineFree
+	}
+	done := start.Add(protocol.UARTTime(n, c.cfg.Baud))
+	if d := time.Until(done); d > 0 {
+		if c.paceTimer == nil {
+			c.paceTimer = time.NewTimer(d)
+		} else {
+			c.paceTimer.Reset(d)
+		}
+		select {
+		case <-c.paceTimer.C:
+		case <-c.closed:
+			c.paceTimer.Stop()
+		}
+	}
+	return done
 }
 
 func (c *Conn) isClosed() bool {
@@ -347,14 +385,9 @@ func (c *Conn) Send(m *protocol.Message) error {
 	if !c.up.Load() {
 		return fmt.Errorf("%w: %s: not sending %v", bridges.ErrDisconnected, c.name, m.Type)
 	}
-	if e := c.writeErr.Swap(nil); e != nil {
-		return *e
-	}
-	var buf *txBuf
-	select {
-	case buf = <-c.free:
-	default:
-		return ErrSendQueueFull
+	buf, err := c.takeBuf()
+	if err != nil {
+		return err
 	}
 	b, err := protocol.AppendWire(buf.b[:0], c.scratch[:], m)
 	if err != nil {
@@ -362,6 +395,49 @@ func (c *Conn) Send(m *protocol.Message) error {
 		return err
 	}
 	buf.b = b
+	c.full <- buf
+	return nil
+}
+
+// takeBuf reports a pending write error once, or takes a free send buffer.
+func (c *Conn) takeBuf() (*txBuf, error) {
+	if e := c.writeErr.Swap(nil); e != nil {
+		return nil, *e
+	}
+	select {
+	case buf := <-c.free:
+		return buf, nil
+	default:
+		return nil, ErrSendQueueFull
+	}
+}
+
+// SendFrame COBS-frames one already encoded frame exactly as given and
+// queues it, as Send does with a message. Nothing in the frame is checked:
+// tools (the conformance battery) use it to send deliberately damaged
+// frames. A frame longer than protocol.MaxFrameLen is refused.
+func (c *Conn) SendFrame(frame []byte) error {
+	if len(frame) > protocol.MaxFrameLen {
+		return fmt.Errorf("serial: frame of %d bytes is longer than the %d-byte limit", len(frame), protocol.MaxFrameLen)
+	}
+	if c.isClosed() {
+		return bridges.ErrClosed
+	}
+	if !c.up.Load() {
+		return fmt.Errorf("%w: %s: not sending a raw frame", bridges.ErrDisconnected, c.name)
+	}
+	buf, err := c.takeBuf()
+	if err != nil {
+		return err
+	}
+	out := buf.b[:protocol.COBSMaxLen(len(frame))+1]
+	k, err := protocol.EncodeCOBS(out, frame)
+	if err != nil {
+		c.free <- buf
+		return err
+	}
+	out[k] = 0
+	buf.b = out[:k+1]
 	c.full <- buf
 	return nil
 }

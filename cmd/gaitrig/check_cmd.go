@@ -18,9 +18,10 @@ func init() {
 
 // checkResult is one scenario of check --json.
 type checkResult struct {
-	Scenario string         `json:"scenario"` // the argument as given
-	OK       bool           `json:"ok"`       // valid down to a buildable model and loop
-	Problems []checkProblem `json:"problems"` // empty when OK
+	Scenario string         `json:"scenario"`           // the argument as given
+	OK       bool           `json:"ok"`                 // valid down to a buildable model and loop
+	Problems []checkProblem `json:"problems"`           // empty when OK
+	Warnings []string       `json:"warnings,omitempty"` // e.g. a serial line too slow for the tick rate (docs/protocol.md section 13)
 }
 
 // checkProblem is one problem of a scenario file.
@@ -42,8 +43,15 @@ func cmdCheck(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("check", "SCENARIO...", `
 Loads and validates each scenario (file or built-in name) as a run would:
 the YAML schema, units and ranges, the plant parameters and the loop
-configuration. Problems are printed as file:line: field: message. Exit code 0
+configuration. Problems are printed as file:line: field: message. For a
+serial link (the scenario's, or --link serial:PORT@BAUD or pty@BAUD) it also
+computes the wire time of a state and a command at the baud rate and warns
+when it is longer than a tick, naming the lowest standard baud rate and the
+highest tick rate that fit (docs/protocol.md section 13); a wall-clock
+scenario a run would refuse counts as a problem unless --force. Exit code 0
 when all are valid, 2 otherwise.`, stdout, stderr)
+	link := c.String("link", "", "check against this `LINK` instead of the scenario's (see gaitrig run --help)")
+	force := c.Bool("force", false, "a wire-time overrun of a wall-clock scenario is only a warning, as with run --force")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -74,6 +82,28 @@ when all are valid, 2 otherwise.`, stdout, stderr)
 			}
 		} else if !c.jsonMode() {
 			fmt.Fprintf(stdout, "%s: ok\n", arg)
+		}
+		if res.OK {
+			if msg, refuse, err := wireBudgetLine(arg, *link); err != nil {
+				bad++
+				res.OK = false
+				res.Problems = append(res.Problems, checkProblem{File: arg, Message: err.Error()})
+				if !c.jsonMode() {
+					fmt.Fprintf(stderr, "%s: %v\n", arg, err)
+				}
+			} else if refuse && !*force {
+				bad++
+				res.OK = false
+				res.Problems = append(res.Problems, checkProblem{File: arg, Message: msg})
+				if !c.jsonMode() {
+					fmt.Fprintf(stderr, "%s: %s\n", arg, msg)
+				}
+			} else if msg != "" {
+				res.Warnings = append(res.Warnings, msg)
+				if !c.jsonMode() {
+					fmt.Fprintf(stdout, "%s: warning: %s\n", arg, msg)
+				}
+			}
 		}
 		results = append(results, res)
 	}
@@ -121,4 +151,19 @@ func cmdScenarios(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stdout, "%-*s  %s\n", width, e.Name, e.Description)
 	}
 	return exitPass
+}
+
+// wireBudgetLine is the wire-time warning for one scenario over link ("":
+// the scenario's), "" when its link has no baud rate or the budget fits;
+// refuse says a wall-clock run would be refused.
+func wireBudgetLine(arg, link string) (string, bool, error) {
+	sc, err := resolveScenario(arg)
+	if err != nil {
+		return "", false, err
+	}
+	wb, ok, err := rig.CheckWireBudget(sc, link, 0, "")
+	if err != nil || !ok {
+		return "", false, err
+	}
+	return wb.Message, wb.Refuse, nil
 }

@@ -1,12 +1,16 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"os"
 	"slices"
 	"strings"
+	"time"
 
+	"gaitrig/bridges/protocol"
+	"gaitrig/conformance"
 	"gaitrig/hil"
 	"gaitrig/record"
 	"gaitrig/rig"
@@ -45,7 +49,15 @@ inproc (channels in one process), pty (a real pseudo-terminal pair, COBS
 frames), embedded (the embedded MQTT broker on loopback), mosquitto (a
 Mosquitto broker: --mosquitto ADDR, or /usr/sbin/mosquitto started on a free
 loopback port). The figures depend on the machine and its load: run it on the
-bench PC that will host the rig. Exit code 0 when every link was measured, 1
+bench PC that will host the rig.
+
+With --link (serial:PORT[@BAUD], mqtt:URL, pty@BAUD, …) it measures that one
+link instead, against whatever firmware is on it, with the plant frozen: the
+firmware is greeted and configured, then --ticks states with fixed readings go
+out one at a time, each as soon as the previous one was answered, so the
+figure is the board's compute time plus the wiring, whatever a walker would
+do. For a serial link it also prints the wire time the baud rate alone costs
+(docs/protocol.md section 13). Exit code 0 when every link was measured, 1
 when one could not be, 2 for bad usage.`, stdout, stderr)
 	ticks := c.Int("ticks", 10000, "`N` ticks per link (at least 100)")
 	hz := c.Float64("hz", 1000, "tick rate in `HZ`")
@@ -53,6 +65,8 @@ when one could not be, 2 for bad usage.`, stdout, stderr)
 	prio := c.Int("rt-priority", hil.DefaultRealtimePriority, "SCHED_FIFO `PRIORITY` asked for the loop thread; negative asks for none")
 	mosq := c.String("mosquitto", os.Getenv("GAITRIG_MOSQUITTO_ADDR"), "`HOST:PORT` of a running Mosquitto broker")
 	c.defaultIs("mosquitto", "$GAITRIG_MOSQUITTO_ADDR; when empty, start one")
+	link := c.String("link", "", "measure this one `LINK`, plant frozen, against the firmware on it (syntax as gaitrig run --link)")
+	rigID := c.String("rig", "", "MQTT rig `ID` for --link mqtt:URL (default bench)")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -60,8 +74,11 @@ when one could not be, 2 for bad usage.`, stdout, stderr)
 	if c.NArg() != 0 {
 		return c.usageError("takes no arguments, got %q", c.Args())
 	}
-	if *ticks < 100 || *hz <= 0 {
-		return c.usageError("want --ticks ≥ 100 and --hz > 0")
+	if *ticks < 100 || *hz <= 0 || *ticks > 10000000 {
+		return c.usageError("want 100 ≤ --ticks ≤ 10000000 and --hz > 0")
+	}
+	if *link != "" {
+		return latencyOfLink(*link, *rigID, *ticks, stdout, stderr)
 	}
 	var names []string
 	for _, name := range strings.Split(*links, ",") {
@@ -116,4 +133,45 @@ when one could not be, 2 for bad usage.`, stdout, stderr)
 		fmt.Fprintln(w, "scheduling:", res.Scheduling)
 	}
 	return code
+}
+
+// latencyOfLink measures one link with the plant frozen
+// (conformance.MeasureRoundTrips) and prints the distribution.
+func latencyOfLink(link, rigID string, n int, stdout, stderr io.Writer) int {
+	l, err := rig.ParseLink(link)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig latency:", err)
+		return exitConfig
+	}
+	dial, err := conformance.LinkDialer(link, rigID)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig latency:", err)
+		return exitCodeFor(err)
+	}
+	ctx, stop := signalContext()
+	defer stop()
+	ctx, cancel := context.WithTimeout(ctx, time.Duration(n)*conformance.Watchdog+conformance.GreetingTimeout+10*time.Second)
+	defer cancel()
+	rt, err := conformance.MeasureRoundTrips(ctx, dial, n)
+	if err != nil && len(rt.Samples) == 0 {
+		fmt.Fprintln(stderr, "gaitrig latency:", err)
+		return exitCodeFor(err)
+	}
+	s := rt.Summary
+	fmt.Fprintf(stdout, "%-24s %8s %9s %9s %9s %11s\n", "link", "states", "rtt p50", "rtt p99", "rtt max", "unanswered")
+	fmt.Fprintf(stdout, "%-24s %8d %7.0fµs %7.0fµs %7.0fµs %11d\n", link, s.Count, s.P50, s.P99, s.Max, rt.Unanswered)
+	fmt.Fprintf(stdout, "firmware %q build %q; plant frozen (fixed readings), one state at a time\n", rt.Greeting.Name, rt.Greeting.Build)
+	if l.Baud > 0 {
+		w := protocol.SerialBudget(l.Baud, 0, 0)
+		fmt.Fprintf(stdout, "wire time of a state and a command at %d baud: %.0fµs (a USB virtual serial port ignores the baud rate)\n",
+			l.Baud, float64(w.Wire)/float64(time.Microsecond))
+	}
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig latency:", err)
+		return exitFail
+	}
+	if rt.Unanswered > 0 {
+		return exitFail
+	}
+	return exitPass
 }

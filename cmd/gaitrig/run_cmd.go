@@ -65,6 +65,7 @@ configuration.`, stdout, stderr)
 	quiet := c.Bool("quiet", false, "no line per step")
 	maxSteps := c.Int("max-steps", 0, "end after `N` steps (overrides the scenario's run.max_steps)")
 	duration := c.Float64("duration", 0, "end after `SECONDS` of simulated time (overrides run.duration_s)")
+	force := c.Bool("force", false, "start a wall-clock run over a serial line even when a state and a command take longer on the wire than a tick")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -86,7 +87,7 @@ configuration.`, stdout, stderr)
 		}
 	}
 	o := rig.Options{Link: *link, OutRoot: *out, RunDir: *dir, Report: *oldReport && !*noReport, JUnit: *junit, Parquet: *parquet,
-		Log: lineLogger(stderr), Rig: *rigID, MaxSteps: *maxSteps, Duration: *duration}
+		Log: lineLogger(stderr), Rig: *rigID, MaxSteps: *maxSteps, Duration: *duration, Force: *force}
 	if *clock != "" {
 		if *clock != string(hil.Lockstep) && *clock != string(hil.Wallclock) {
 			return c.usageError("--clock %q: want lockstep or wallclock", *clock)

@@ -1,0 +1,164 @@
+package conformance
+
+import (
+	"context"
+	"errors"
+	"math"
+	"sort"
+	"strings"
+	"testing"
+	"time"
+
+	"gaitrig/bridges/protocol"
+)
+
+// testSamples keeps the battery short in tests; the round-trip figure is
+// checked for what it is computed from, not for its size.
+const testSamples = 200
+
+// runOver runs the battery over a link in --link syntax.
+func runOver(t *testing.T, link string) Report {
+	t.Helper()
+	dial, err := LinkDialer(link, "conformance-test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return rep
+}
+
+// The Go reference firmware passes every check over the in-process link,
+// a real pty pair and the embedded broker. Over the in-process link no
+// damaged frame can be sent (it carries decoded messages): those two checks
+// must say so, and only those.
+func TestReferenceFirmwarePasses(t *testing.T) {
+	for _, link := range []string{"builtin", "pty", "embedded"} {
+		t.Run(link, func(t *testing.T) {
+			rep := runOver(t, link)
+			if !rep.Passed || len(rep.Failed()) > 0 {
+				t.Fatalf("verdict %v, failed %v", rep.Passed, rep.Failed())
+			}
+			if len(rep.Checks) != len(Checks) {
+				t.Fatalf("%d results for %d checks", len(rep.Checks), len(Checks))
+			}
+			for i, c := range rep.Checks {
+				if c.Name != Checks[i].Name {
+					t.Errorf("result %d is %s, the battery's check %d is %s", i, c.Name, i, Checks[i].Name)
+				}
+				want := Pass
+				if link == "builtin" && (c.Name == CheckBadCRC || c.Name == CheckUnknownType) {
+					want = Skipped
+				}
+				if c.Status != want {
+					t.Errorf("%s: %s (%s), want %s", c.Name, c.Status, c.Seen, want)
+				}
+			}
+			if rep.Greeting == nil || rep.Greeting.Name != "gaitrig-reference" {
+				t.Errorf("greeting %+v, want the reference firmware's", rep.Greeting)
+			}
+			checkPercentiles(t, rep)
+		})
+	}
+}
+
+// checkPercentiles recomputes the round-trip figures from the raw samples
+// by sorting them (nearest rank: the smallest sample with at least a
+// fraction q of the samples at or below it), independently of the
+// histogram the report uses, and compares them. The histogram reports the
+// upper edge of the sample's 1 µs bin, capped at the maximum, so the
+// sorted value is rounded the same way.
+func checkPercentiles(t *testing.T, rep Report) {
+	t.Helper()
+	s := append([]time.Duration(nil), rep.Samples...)
+	if len(s) != testSamples || rep.RoundTrip.Count != uint64(len(s)) {
+		t.Fatalf("%d raw samples, summary counts %d, asked for %d", len(s), rep.RoundTrip.Count, testSamples)
+	}
+	sort.Slice(s, func(i, j int) bool { return s[i] < s[j] })
+	mx := s[len(s)-1]
+	rank := func(q float64) float64 {
+		v := s[int(math.Ceil(q*float64(len(s))))-1]
+		up := (v/time.Microsecond + 1) * time.Microsecond
+		return float64(min(up, mx)) / float64(time.Microsecond)
+	}
+	us := func(d time.Duration) float64 { return float64(d) / float64(time.Microsecond) }
+	if rep.RoundTrip.P50 != rank(0.5) || rep.RoundTrip.P99 != rank(0.99) || rep.RoundTrip.Max != us(mx) {
+		t.Errorf("round trip p50 %v p99 %v max %v µs; from the sorted samples %v, %v, %v",
+			rep.RoundTrip.P50, rep.RoundTrip.P99, rep.RoundTrip.Max, rank(0.5), rank(0.99), us(mx))
+	}
+}
+
+// Each broken firmware has one fault and must fail exactly the check that
+// looks for it; the faultless board must pass everything. The board runs
+// on the leader of a real pty pair and stays up across the battery's
+// restarts, as a powered board on a serial port does.
+func TestBrokenFirmwareFailsTheRightCheck(t *testing.T) {
+	cases := []struct {
+		fault fault
+		want  string // the one check that must fail; "" for none
+	}{
+		{faultNone, ""},
+		{faultGreetingSeq, CheckGreeting},
+		{faultSkipFirstState, CheckConfig},
+		{faultDuplicateConfigDropsState, CheckDuplicate},
+		{faultWrongSeq, CheckEveryState},
+		{faultResentTwice, CheckResent},
+		{faultResentIgnored, CheckResent},
+		{faultAcceptsBadCRC, CheckBadCRC},
+		{faultUnknownTypeDropsState, CheckUnknownType},
+		{faultHeartbeatDropsState, CheckHeartbeat},
+		{faultUndefinedStatusBit, CheckStatusBits},
+		{faultAnswersAfterStop, CheckStopsOnStop},
+		{faultNoGreetingAfterStop, CheckGreetsAgain},
+		{faultWrongRefusalReason, CheckRefusesBadConf},
+		{faultTakesBadConfig, CheckRefusesBadConf},
+		{faultStopsOnDuplicateConfig, CheckDuplicate}, // the checks after it are not run, not failed
+	}
+	for _, c := range cases {
+		t.Run(c.fault.String(), func(t *testing.T) {
+			dial := startBoard(t, c.fault)
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			rep, err := Run(ctx, "test board", dial, Options{Samples: 50})
+			if err != nil {
+				t.Fatal(err)
+			}
+			failed := rep.Failed()
+			var want []string
+			if c.want != "" {
+				want = []string{c.want}
+			}
+			if strings.Join(failed, ",") != strings.Join(want, ",") {
+				for _, r := range rep.Checks {
+					t.Logf("%-22s %-7s %s", r.Name, r.Status, r.Seen)
+				}
+				t.Fatalf("failed checks %v, want exactly %v", failed, want)
+			}
+			wantPass := c.want == ""
+			if c.want == CheckGreetsAgain {
+				// An optional check, but the refusal check after it could
+				// not run: no passing verdict.
+				if r, _ := rep.Result(CheckRefusesBadConf); r.Status != NotRun {
+					t.Errorf("refusal check after no greeting: %s, want %s", r.Status, NotRun)
+				}
+			}
+			if rep.Passed != wantPass {
+				t.Errorf("verdict %v, want %v", rep.Passed, wantPass)
+			}
+		})
+	}
+}
+
+// The unknown-type frame is well formed apart from its type: the decoder
+// refuses it for the type, not for its CRC or length.
+func TestUnknownTypeFrame(t *testing.T) {
+	var m protocol.Message
+	err := protocol.Decode(unknownTypeFrame(7), &m)
+	if !errors.Is(err, protocol.ErrUnknownType) {
+		t.Fatalf("decoding the unknown-type frame: %v, want an unknown-type refusal", err)
+	}
+}
