@@ -137,7 +137,11 @@ type GSN struct {
 	StepLength float64 `json:"step_length"`
 	Norm       float64 `json:"norm"`
 	Steps      int     `json:"steps"` // steps after the disturbance that entered
-	Dir        string  `json:"run_dir"`
+	// FirstStep is the first step (as numbered in steps.csv) compared.
+	FirstStep int    `json:"first_step"`
+	Dir       string `json:"run_dir"`
+	// ReferenceDir is the undisturbed run compared with.
+	ReferenceDir string `json:"reference_run_dir"`
 	// Error says why the norm could not be computed (the disturbed run fell
 	// or ended early); the figures are then NaN.
 	Error string `json:"error,omitempty"`
@@ -377,7 +381,7 @@ func (st Stability) gaitSensitivity(ctx context.Context, sc *scenarios.Scenario)
 	var nominal []stepSample
 	var none error
 	var steps []hil.StepInfo
-	_, res, err := st.runHooked(ctx, sc, total, &steps, func(m *plant.Model) func(int, float64, *plant.State, *plant.Input) {
+	refDir, res, err := st.runHooked(ctx, sc, total, &steps, func(m *plant.Model) func(int, float64, *plant.State, *plant.Input) {
 		return perturbHook(m, 0, -1, 0, nil, &nominal, &none)
 	})
 	if err != nil {
@@ -418,6 +422,9 @@ func (st Stability) gaitSensitivity(ctx context.Context, sc *scenarios.Scenario)
 		}
 		out = append(out, st.disturbed(ctx, v, "step_down", st.StepDownM, "m", at, steps))
 	}
+	for i := range out {
+		out[i].ReferenceDir = refDir
+	}
 	return out, nil
 }
 
@@ -438,6 +445,7 @@ func (st Stability) disturbed(ctx context.Context, v *scenarios.Scenario, kind s
 		g.Error = fmt.Sprintf("the disturbed run walked %d of %d steps (%s: %s): the disturbance is beyond the linear range", len(steps), total, res.Summary.Outcome, res.Summary.Reason)
 		return g
 	}
+	g.FirstStep = at + 1
 	g.StepTime, g.StepLength, g.Steps = GaitSensitivityNorm(nominal[at:total], steps[at:total], size)
 	g.Norm = math.Hypot(g.StepTime, g.StepLength)
 	return g

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"gaitrig/record"
 	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
@@ -136,5 +137,54 @@ func TestStabilityFlagsAnUnstableGait(t *testing.T) {
 	t.Logf("radius %.4f [%.4f, %.4f], exact %.4f", rep.SpectralRadius, rep.RadiusLow, rep.RadiusHigh, exact.SpectralRadius)
 	if rep.SpectralRadius <= 1 || rep.Stable || rep.DecaySteps != -1 {
 		t.Errorf("spectral radius %.4f, stable %v, decay %d: want > 1, unstable, never", rep.SpectralRadius, rep.Stable, rep.DecaySteps)
+	}
+}
+
+// TestGaitSensitivityNormOfTheBuiltInController runs both disturbances on
+// the built-in controller and checks the norm against its definition,
+// recomputed here from the two run folders' steps.csv (an independent path:
+// the record, not the loop's step callback).
+func TestGaitSensitivityNormOfTheBuiltInController(t *testing.T) {
+	if testing.Short() {
+		t.Skip("lockstep walks")
+	}
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	rep, err := Stability{Dir: t.TempDir(), Perturbed: 8}.Run(context.Background(), sc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.GSN) != 2 {
+		t.Fatalf("%d norms, want push and step_down", len(rep.GSN))
+	}
+	for _, g := range rep.GSN {
+		t.Logf("%+v", g)
+		if g.Error != "" || !(g.Norm > 0) || math.IsInf(g.Norm, 0) {
+			t.Fatalf("%s: norm %g, error %q", g.Disturbance, g.Norm, g.Error)
+		}
+		ref, err := record.Open(g.ReferenceDir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		dis, err := record.Open(g.Dir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var st, sl float64
+		n := 0
+		for _, a := range ref.Steps {
+			for _, b := range dis.Steps {
+				if a.Index == b.Index && a.Index >= g.FirstStep {
+					st += math.Pow((b.DurationS-a.DurationS)/g.Size, 2)
+					sl += math.Pow((b.LengthM-a.LengthM)/g.Size, 2)
+					n++
+				}
+			}
+		}
+		if n != g.Steps || math.Abs(math.Sqrt(st)-g.StepTime) > 1e-9*g.StepTime || math.Abs(math.Sqrt(sl)-g.StepLength) > 1e-9*g.StepLength {
+			t.Errorf("%s: from steps.csv %d steps, %g, %g; reported %d, %g, %g", g.Disturbance, n, math.Sqrt(st), math.Sqrt(sl), g.Steps, g.StepTime, g.StepLength)
+		}
 	}
 }
