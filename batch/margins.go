@@ -96,6 +96,9 @@ func DefaultAxes() []Axis {
 		PushAxis("push_forward_early", 1, 60),
 		PushAxis("push_backward_early", -1, 60),
 		{Name: "added_latency", Unit: "ms", Safe: 0, Far: 40, Apply: func(s *scenarios.Scenario, v float64) {
+			if v == 0 {
+				return // the loader refuses a latency fault without a delay
+			}
 			s.Faults = append(s.Faults, scenarios.Fault{Kind: "latency", FixedMS: v})
 		}},
 		SlopeAxis("slope_up", 10),

@@ -1,0 +1,110 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"runtime"
+
+	"gaitrig/batch"
+	"gaitrig/record"
+	"gaitrig/rig"
+)
+
+func init() {
+	commands["margins"] = command{"search how far each condition can go before the firmware fails", cmdMargins}
+}
+
+func cmdMargins(args []string, stdout, stderr io.Writer) int {
+	fs := newFlagSet("margins", "SCENARIO", `
+The safety envelope by search. For each axis (floor friction, a forward and a
+backward hip push at early stance, added command latency, slope up and down)
+the rig runs a coarse grid from the scenario as written towards harder
+conditions, then bisects between the last pass and the first fail until the
+bracket is narrower than the tolerance. Each limit comes with the two runs
+that decided it; "not monotone" marks an axis where a harder value passed
+again. Exit code 0 when every search ran, 1 when the scenario as written
+already fails.`, stderr)
+	link := fs.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
+	out := fs.String("out", "runs", "parent folder for the run folders")
+	asJSON := fs.Bool("json", false, "print JSON instead of a table")
+	tol := fs.Float64("tolerance", batch.DefaultMarginTolerance, "bisection stops at this fraction of the axis range")
+	jobs := fs.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
+	if done, code := parseFlags(fs, args); done {
+		return code
+	}
+	if fs.NArg() != 1 {
+		fmt.Fprintln(stderr, "gaitrig margins: want exactly one SCENARIO")
+		fs.Usage()
+		return exitConfig
+	}
+	m := batch.Margins{Tolerance: *tol, Jobs: *jobs}
+	if *link != "" {
+		spec, err := rig.ParseLink(*link)
+		if err != nil {
+			fmt.Fprintln(stderr, "gaitrig margins:", err)
+			return exitConfig
+		}
+		m.Link = spec.String()
+	}
+	sc, err := resolveScenario(fs.Arg(0))
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	if m.Dir, err = batch.NewDir(*out, "margins"); err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitConfig
+	}
+	ctx, stop := signalContext()
+	defer stop()
+	res, err := m.Run(ctx, sc, batch.DefaultAxes())
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	if *asJSON {
+		enc := json.NewEncoder(stdout)
+		enc.SetIndent("", "  ")
+		doc := struct {
+			Scenario string             `json:"scenario"`
+			Dir      string             `json:"dir"`
+			Axes     []batch.AxisMargin `json:"axes"`
+			Caution  string             `json:"caution"`
+		}{sc.Name, m.Dir, res, record.Caution}
+		if err := enc.Encode(rig.JSONSafe(doc)); err != nil {
+			fmt.Fprintln(stderr, "gaitrig margins:", err)
+			return exitFail
+		}
+	} else {
+		fmt.Fprintf(stdout, "margins of %s, run folders in %s\n\n", sc.Name, m.Dir)
+		fmt.Fprintf(stdout, "%-20s %12s %-6s %10s  %s\n", "axis", "limit", "unit", "±", "decided by (last pass / first fail)")
+		for _, a := range res {
+			note := ""
+			if a.NotMonotone {
+				note = " NOT MONOTONE"
+			}
+			if !a.Reached {
+				note += fmt.Sprintf(" (passed up to the end of the range, %g)", a.Far)
+			}
+			fmt.Fprintf(stdout, "%-20s %12.4g %-6s %10.3g %s\n", a.Axis, a.Limit, a.Unit, a.Tolerance, note)
+			if a.Error != "" {
+				fmt.Fprintf(stdout, "    %s\n", a.Error)
+			}
+			if a.LastPass != nil {
+				fmt.Fprintf(stdout, "    pass %g: %s\n", a.LastPass.Value, a.LastPass.Dir)
+			}
+			if a.FirstFail != nil {
+				fmt.Fprintf(stdout, "    fail %g: %s (%s: %s)\n", a.FirstFail.Value, a.FirstFail.Dir, a.FirstFail.Outcome, a.FirstFail.Reason)
+			}
+		}
+		fmt.Fprintln(stdout)
+		fmt.Fprintln(stdout, record.Caution)
+	}
+	for _, a := range res {
+		if a.Error != "" {
+			return exitFail
+		}
+	}
+	return exitPass
+}
