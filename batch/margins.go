@@ -87,15 +87,55 @@ type Margins struct {
 	Runner RunFunc
 }
 
-// DefaultAxes are the axes searched when none are given: floor friction,
-// a forward and a backward push at early stance, added latency, slope up and
-// down.
-func DefaultAxes() []Axis {
-	return []Axis{
-		FrictionAxis(),
-		PushAxis("push_forward_early", 1, 60),
-		PushAxis("push_backward_early", -1, 60),
-		{Name: "added_latency", Unit: "ms", Safe: 0, Far: 40, Apply: func(s *scenarios.Scenario, v float64) {
+// Nominal is what the margin search measures on the scenario as written
+// before it varies anything: when the push steps start and how long a step
+// takes.
+type Nominal struct {
+	// StrikeS is the simulated time of the heel strike that completes step
+	// PushStep, s; PeriodS the mean step time of the run, s.
+	StrikeS, PeriodS float64
+}
+
+// PushStep is the step whose heel strike starts the stance the push axes
+// push in (our choice: late enough for a run from an explicit state to
+// have settled, early enough to leave steps to recover in).
+const PushStep = 10
+
+// Push phases, as fractions of the nominal step period after the heel
+// strike (our choice of early, mid and late stance).
+var pushPhases = []struct {
+	name  string
+	phase float64
+}{{"early", 0.1}, {"mid", 0.5}, {"late", 0.9}}
+
+// AxisNames lists every axis DefaultAxes can make, in the order searched:
+// friction, pushes, latency, slope first (the axes a lab compares with its
+// floor, its bumps and its wiring), then the others.
+func AxisNames() []string {
+	names := []string{"friction"}
+	for _, dir := range []string{"forward", "backward"} {
+		for _, p := range pushPhases {
+			names = append(names, "push_"+dir+"_"+p.name)
+		}
+	}
+	return append(names, "added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_bits",
+		"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus")
+}
+
+// DefaultAxes are every axis of AxisNames with their default ranges,
+// pushes timed from the nominal run.
+func DefaultAxes(n Nominal) []Axis {
+	axes := []Axis{FrictionAxis()}
+	for _, dir := range []struct {
+		name string
+		sign float64
+	}{{"forward", 1}, {"backward", -1}} {
+		for _, p := range pushPhases {
+			axes = append(axes, PushAxis("push_"+dir.name+"_"+p.name, dir.sign, 40, n.StrikeS+p.phase*n.PeriodS))
+		}
+	}
+	axes = append(axes,
+		Axis{Name: "added_latency", Unit: "ms", Safe: 0, Far: 40, Apply: func(s *scenarios.Scenario, v float64) {
 			if v == 0 {
 				return // the loader refuses a latency fault without a delay
 			}
@@ -103,7 +143,53 @@ func DefaultAxes() []Axis {
 		}},
 		SlopeAxis("slope_up", 10),
 		SlopeAxis("slope_down", -10),
+		Axis{Name: "noise_multiple", Unit: "×", Safe: 1, Far: 50, Apply: func(s *scenarios.Scenario, v float64) {
+			n := &s.Sensors
+			n.AngleNoiseRad = v * math.Max(n.AngleNoiseRad, TypicalAngleNoiseRad)
+			n.RateNoiseRadps = v * math.Max(n.RateNoiseRadps, TypicalRateNoiseRadps)
+			n.IMUPitchNoiseRad = v * math.Max(n.IMUPitchNoiseRad, TypicalAngleNoiseRad)
+			n.IMURateNoiseRadps = v * math.Max(n.IMURateNoiseRadps, TypicalRateNoiseRadps)
+		}},
+		// Encoder resolution in bits (counts per revolution = 2^bits), from
+		// the 12-bit default of the scenario loader down to 4 bits.
+		Axis{Name: "encoder_bits", Unit: "bit", Safe: 12, Far: 4, Apply: func(s *scenarios.Scenario, v float64) {
+			s.Sensors.EncoderCountsPerRev = int(math.Round(math.Exp2(v)))
+		}},
+		Axis{Name: "torque_fraction", Unit: "×", Safe: 1, Far: 0.05, Apply: func(s *scenarios.Scenario, v float64) {
+			if s.Actuators.TorqueLimitNM > 0 {
+				s.Actuators.TorqueLimitNM *= v
+			}
+			for k := range s.Actuators.JointTorqueLimitsNM {
+				s.Actuators.JointTorqueLimitsNM[k] *= v
+			}
+		}},
+		MassAxis("mass_plus", 50), MassAxis("mass_minus", -50),
+		LegLengthAxis("leg_length_plus", 30), LegLengthAxis("leg_length_minus", -30),
+	)
+	return axes
+}
+
+// SelectAxes picks the named axes of all, in all's order; an unknown name
+// is an error listing the known ones.
+func SelectAxes(all []Axis, names []string) ([]Axis, error) {
+	if len(names) == 0 {
+		return all, nil
 	}
+	want := map[string]bool{}
+	for _, n := range names {
+		want[n] = true
+	}
+	var out []Axis
+	for _, a := range all {
+		if want[a.Name] {
+			out = append(out, a)
+			delete(want, a.Name)
+		}
+	}
+	for n := range want {
+		return nil, rig.Configf("margins: unknown axis %q; known axes: %v", n, AxisNames())
+	}
+	return out, nil
 }
 
 // FrictionAxis scales μ_s and μ_k of every segment by the value (1 = the
@@ -122,16 +208,56 @@ func FrictionAxis() Axis {
 }
 
 // PushAxis pushes the hip with an impulse of the value (N·s, times sign:
-// +1 forward, −1 backward) over one tick at the heel strike that completes
-// step 10: at the start of the stance (early stance). Mid and late stance
-// need the nominal period measured first and are not searched yet.
-func PushAxis(name string, sign, far float64) Axis {
-	const atStep = 10
+// +1 forward, −1 backward) over one tick at simulated time atS.
+func PushAxis(name string, sign, far, atS float64) Axis {
 	return Axis{Name: name, Unit: "N·s", Safe: 0, Far: far, Apply: func(s *scenarios.Scenario, v float64) {
 		if v == 0 {
 			return
 		}
-		s.Faults = append(s.Faults, scenarios.Fault{Kind: "push", AtStep: atStep, ImpulseNS: []float64{sign * v, 0}})
+		s.Faults = append(s.Faults, scenarios.Fault{Kind: "push", AtS: atS, ImpulseNS: []float64{sign * v, 0}})
+	}}
+}
+
+// MassAxis scales every mass and moment of inertia of the plant by
+// 1 + v/100 (v in %), the firmware unchanged: a walker heavier or lighter
+// than the one the firmware was tuned for, its shape the same.
+func MassAxis(name string, farPct float64) Axis {
+	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
+		f := 1 + v/100
+		p := &s.Plant
+		p.HipMassKG *= f
+		p.Legs.MassKG *= f
+		p.Legs.InertiaKGM2 *= f
+		for _, o := range []*scenarios.LegOverride{p.Legs.Left, p.Legs.Right} {
+			if o != nil && o.MassKG != nil {
+				m := *o.MassKG * f
+				o.MassKG = &m
+			}
+		}
+		if p.Torso != nil {
+			t := *p.Torso
+			t.MassKG *= f
+			t.InertiaKGM2 *= f
+			p.Torso = &t
+		}
+	}}
+}
+
+// LegLengthAxis scales the legs' length, centre-of-mass distance and foot
+// radius by 1 + v/100 (v in %), the firmware unchanged.
+func LegLengthAxis(name string, farPct float64) Axis {
+	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
+		f := 1 + v/100
+		l := &s.Plant.Legs
+		l.LengthM *= f
+		l.COMM *= f
+		l.FootRadiusM *= f
+		for _, o := range []*scenarios.LegOverride{l.Left, l.Right} {
+			if o != nil && o.LengthM != nil {
+				m := *o.LengthM * f
+				o.LengthM = &m
+			}
+		}
 	}}
 }
 
@@ -158,6 +284,45 @@ func (m Margins) withDefaults() Margins {
 		m.Runner = rig.Run
 	}
 	return m
+}
+
+// MeasureNominal runs the scenario as written once and returns when the
+// push steps start and the mean step time. A scenario that does not walk
+// PushStep steps cannot be pushed there: that is an error.
+func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (Nominal, MarginRun, error) {
+	m = m.withDefaults()
+	var steps []hil.StepInfo
+	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-nominal"),
+		OnStep: func(s hil.StepInfo) { steps = append(steps, s) }}}
+	d := Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0]
+	run := marginRun(0, d)
+	if d.Err != nil {
+		return Nominal{}, run, d.Err
+	}
+	if len(steps) < PushStep+1 {
+		return Nominal{}, run, fmt.Errorf("margins: the scenario as written walked %d steps (%s: %s); the push axes need at least %d", len(steps), run.Outcome, run.Reason, PushStep+1)
+	}
+	var n Nominal
+	n.StrikeS = steps[PushStep-1].SimTimeS
+	for _, s := range steps {
+		n.PeriodS += s.DurationS / float64(len(steps))
+	}
+	return n, run, nil
+}
+
+// Search measures the nominal run, then searches the named axes (all of
+// AxisNames when names is empty).
+func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []string) ([]AxisMargin, error) {
+	m = m.withDefaults()
+	n, _, err := m.MeasureNominal(ctx, sc)
+	if err != nil {
+		return nil, err
+	}
+	axes, err := SelectAxes(DefaultAxes(n), names)
+	if err != nil {
+		return nil, err
+	}
+	return m.Run(ctx, sc, axes)
 }
 
 // Run searches every axis: first the coarse grids of all axes at once (in

@@ -16,7 +16,7 @@ func TestMarginsOfTheBuiltInController(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	res, err := Margins{Dir: t.TempDir(), Jobs: 2}.Run(context.Background(), sc, []Axis{FrictionAxis(), PushAxis("push_forward_early", 1, 60)})
+	res, err := Margins{Dir: t.TempDir(), Jobs: 2}.Run(context.Background(), sc, []Axis{FrictionAxis(), PushAxis("push_forward", 1, 40, 5)})
 	if err != nil {
 		t.Fatal(err)
 	}

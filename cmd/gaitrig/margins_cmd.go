@@ -17,8 +17,10 @@ func init() {
 
 func cmdMargins(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("margins", "SCENARIO", `
-The safety envelope by search. For each axis (floor friction, a forward and a
-backward hip push at early stance, added command latency, slope up and down)
+The safety envelope by search. For each axis (floor friction; a forward and a
+backward hip push at early, mid and late stance; added command latency; slope
+up and down; sensor noise multiple; encoder bits; torque-limit fraction; plant
+mass and leg length off by a percentage while the firmware is unchanged)
 the rig runs a coarse grid from the scenario as written towards harder
 conditions, then bisects between the last pass and the first fail until the
 bracket is narrower than the tolerance. Each limit comes with the two runs
@@ -58,7 +60,7 @@ already fails.`, stderr)
 	}
 	ctx, stop := signalContext()
 	defer stop()
-	res, err := m.Run(ctx, sc, batch.DefaultAxes())
+	res, err := m.Search(ctx, sc, nil)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig margins:", err)
 		return exitCodeFor(err)
