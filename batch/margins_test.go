@@ -42,3 +42,49 @@ func TestMarginsOfTheBuiltInController(t *testing.T) {
 		}
 	}
 }
+
+// TestAWeakerFirmwareHasASmallerFrictionMargin compares the reference law
+// with a variant of it with less swing-leg damping (swing_kd 3 against the
+// default 10, reference.DefaultGains; set through controller.settings,
+// reference.GainsFromSettings): the swing leg arrives less controlled and
+// the search must find that the walker needs more friction. The push limits
+// are logged, not asserted: on the demo walker a push fails by the stance
+// foot slipping, and every lowered-gain variant tried (swing, torso, step
+// and lean gains, alone and together) asked less friction at the push and
+// survived as large a push or a larger one.
+func TestAWeakerFirmwareHasASmallerFrictionMargin(t *testing.T) {
+	if testing.Short() {
+		t.Skip("many lockstep walks")
+	}
+	nominal, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	weak, err := Derive(nominal, "level-demo-weak", "swing-leg damping lowered from 10 to 3", func(s *scenarios.Scenario) {
+		s.Controller.Settings = map[string]float64{"swing_kd": 3}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	limits := func(sc *scenarios.Scenario) (friction, push float64) {
+		res, err := Margins{Dir: t.TempDir(), Jobs: 2}.Search(context.Background(), sc, []string{"friction", "push_forward_mid"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, am := range res {
+			if am.Error != "" || !am.Reached {
+				t.Fatalf("%s %s: error %q, reached %v", sc.Name, am.Axis, am.Error, am.Reached)
+			}
+		}
+		return res[0].Limit, res[1].Limit
+	}
+	fn, pn := limits(nominal)
+	fw, pw := limits(weak)
+	t.Logf("friction fraction: nominal %.4g, weak %.4g; push: nominal %.4g N·s, weak %.4g N·s", fn, fw, pn, pw)
+	// The limit is the lowest fraction of μ_s that passes, so a smaller
+	// margin is a higher fraction, and the difference must exceed the
+	// search's resolution (2 % of the range 1 … 0.05).
+	if !(fw-fn > 0.02*0.95) {
+		t.Errorf("the weaker firmware walks down to %.4g × μ_s, the nominal one to %.4g: want a higher limit (less margin)", fw, fn)
+	}
+}
