@@ -108,22 +108,8 @@ var pushPhases = []struct {
 	phase float64
 }{{"early", 0.1}, {"mid", 0.5}, {"late", 0.9}}
 
-// AxisNames lists every axis DefaultAxes can make, in the order searched:
-// friction, pushes, latency, slope first (the axes a lab compares with its
-// floor, its bumps and its wiring), then the others.
-func AxisNames() []string {
-	names := []string{"friction"}
-	for _, dir := range []string{"forward", "backward"} {
-		for _, p := range pushPhases {
-			names = append(names, "push_"+dir+"_"+p.name)
-		}
-	}
-	return append(names, "added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_bits",
-		"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus")
-}
-
-// DefaultAxes are every axis of AxisNames with their default ranges,
-// pushes timed from the nominal run.
+// DefaultAxes are every axis of scenarios.MarginAxes, in that order, with
+// their default ranges, pushes timed from the nominal run.
 func DefaultAxes(n Nominal) []Axis {
 	axes := []Axis{FrictionAxis()}
 	for _, dir := range []struct {
@@ -187,7 +173,7 @@ func SelectAxes(all []Axis, names []string) ([]Axis, error) {
 		}
 	}
 	for n := range want {
-		return nil, rig.Configf("margins: unknown axis %q; known axes: %v", n, AxisNames())
+		return nil, rig.Configf("margins: unknown axis %q; known axes: %v", n, scenarios.MarginAxes)
 	}
 	return out, nil
 }
@@ -310,9 +296,17 @@ func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (No
 	return n, run, nil
 }
 
-// Search measures the nominal run, then searches the named axes (all of
-// AxisNames when names is empty).
+// Search measures the nominal run, then searches the named axes (when
+// names is empty: the scenario's margins.axes, or all of
+// scenarios.MarginAxes). A zero Tolerance takes the scenario's
+// margins.tolerance.
 func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []string) ([]AxisMargin, error) {
+	if m.Tolerance == 0 {
+		m.Tolerance = sc.Margins.Tolerance
+	}
+	if len(names) == 0 {
+		names = sc.Margins.Axes
+	}
 	m = m.withDefaults()
 	n, _, err := m.MeasureNominal(ctx, sc)
 	if err != nil {

@@ -88,3 +88,64 @@ func TestAWeakerFirmwareHasASmallerFrictionMargin(t *testing.T) {
 		t.Errorf("the weaker firmware walks down to %.4g × μ_s, the nominal one to %.4g: want a higher limit (less margin)", fw, fn)
 	}
 }
+
+func TestDefaultAxesAreTheScenarioVocabulary(t *testing.T) {
+	axes := DefaultAxes(Nominal{StrikeS: 5, PeriodS: 0.5})
+	if len(axes) != len(scenarios.MarginAxes) {
+		t.Fatalf("%d axes, scenarios.MarginAxes has %d", len(axes), len(scenarios.MarginAxes))
+	}
+	for i, a := range axes {
+		if a.Name != scenarios.MarginAxes[i] {
+			t.Errorf("axis %d is %q, scenarios.MarginAxes says %q", i, a.Name, scenarios.MarginAxes[i])
+		}
+	}
+	if _, err := SelectAxes(axes, []string{"wind"}); err == nil {
+		t.Error("an unknown axis was accepted")
+	}
+}
+
+// TestAxesChangeWhatTheySay applies each axis at its far end to a copy of
+// the demo scenario and checks the field it names changed as its doc says.
+func TestAxesChangeWhatTheySay(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	axes, _ := SelectAxes(DefaultAxes(Nominal{StrikeS: 5, PeriodS: 0.5}), nil)
+	for _, a := range axes {
+		v, err := Derive(base, "x-"+a.Name, a.Name, func(s *scenarios.Scenario) { a.Apply(s, a.Far) })
+		if err != nil {
+			t.Fatalf("%s: %v", a.Name, err)
+		}
+		switch a.Name {
+		case "friction":
+			if got := v.Terrain.Segments[0].MuStatic; got != 0.05*base.Terrain.Segments[0].MuStatic {
+				t.Errorf("friction: μ_s %g", got)
+			}
+		case "push_forward_mid":
+			if f := v.Faults[len(v.Faults)-1]; f.AtS != 5.25 || f.ImpulseNS[0] != a.Far {
+				t.Errorf("push: %+v", f)
+			}
+		case "push_backward_late":
+			if f := v.Faults[len(v.Faults)-1]; f.AtS != 5+0.9*0.5 || f.ImpulseNS[0] != -a.Far {
+				t.Errorf("push: %+v", f)
+			}
+		case "encoder_bits":
+			if v.Sensors.EncoderCountsPerRev != 16 {
+				t.Errorf("encoder: %d counts", v.Sensors.EncoderCountsPerRev)
+			}
+		case "mass_plus":
+			if v.Plant.HipMassKG != 1.5*base.Plant.HipMassKG || v.Plant.Torso.MassKG != 1.5*base.Plant.Torso.MassKG || base.Plant.Torso.MassKG != 15 {
+				t.Errorf("mass: hip %g torso %g (base torso %g)", v.Plant.HipMassKG, v.Plant.Torso.MassKG, base.Plant.Torso.MassKG)
+			}
+		case "leg_length_minus":
+			if v.Plant.Legs.LengthM != 0.7*base.Plant.Legs.LengthM {
+				t.Errorf("leg length %g", v.Plant.Legs.LengthM)
+			}
+		case "torque_fraction":
+			if v.Actuators.TorqueLimitNM != 0.05*base.Actuators.TorqueLimitNM {
+				t.Errorf("torque limit %g", v.Actuators.TorqueLimitNM)
+			}
+		}
+	}
+}
