@@ -13,6 +13,7 @@ import (
 
 	"gaitrig/hil"
 	"gaitrig/record"
+	"gaitrig/report"
 	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
@@ -66,9 +67,57 @@ type AxisMargin struct {
 	Tolerance float64    `json:"tolerance"`
 	LastPass  *MarginRun `json:"last_pass,omitempty"`
 	FirstFail *MarginRun `json:"first_fail,omitempty"`
-	// Grid holds every run of the coarse grid, safe end first.
-	Grid  []MarginRun `json:"grid"`
-	Error string      `json:"error,omitempty"`
+	// Grid holds every run of the coarse grid, safe end first; Bisection
+	// the runs of the bisection in the order made.
+	Grid      []MarginRun `json:"grid"`
+	Bisection []MarginRun `json:"bisection"`
+	// Required is the lab's minimum for this axis from the scenario's
+	// margins block, in Unit (NaN: none); Meets says the limit is at least
+	// as far from Safe as Required, Shortfall by how much it is not (in
+	// Unit, 0 when it meets it).
+	Required  float64 `json:"required"`
+	Meets     bool    `json:"meets_required"`
+	Shortfall float64 `json:"shortfall"`
+	Error     string  `json:"error,omitempty"`
+}
+
+// Required returns the lab's minimum for an axis from a margins block, in
+// the axis's unit, or NaN when the block sets none: friction as the
+// fraction 1/min_friction_ratio of μ_s, every push axis min_push_ns,
+// added latency min_added_latency_ms, slopes ±min_slope_deg.
+func Required(m scenarios.Margins, axis string) float64 {
+	v := math.NaN()
+	switch {
+	case axis == "friction" && m.MinFrictionRatio > 0:
+		v = 1 / m.MinFrictionRatio
+	case len(axis) > 5 && axis[:5] == "push_" && m.MinPushNS > 0:
+		v = m.MinPushNS
+	case axis == "added_latency" && m.MinAddedLatencyMS > 0:
+		v = m.MinAddedLatencyMS
+	case axis == "slope_up" && m.MinSlopeDeg > 0:
+		v = m.MinSlopeDeg
+	case axis == "slope_down" && m.MinSlopeDeg > 0:
+		v = -m.MinSlopeDeg
+	}
+	return v
+}
+
+// judge fills Required, Meets and Shortfall: the limit must lie at least
+// as far from Safe, in the direction of Far, as the requirement.
+func (am *AxisMargin) judge(required float64) {
+	am.Required = required
+	am.Meets = am.Error == ""
+	if math.IsNaN(required) || am.Error != "" {
+		return
+	}
+	dir := 1.0
+	if am.Far < am.Safe {
+		dir = -1
+	}
+	if d := (am.Limit - required) * dir; d < 0 {
+		am.Meets = false
+		am.Shortfall = -d
+	}
 }
 
 // Margins searches the limits of a scenario's axes. The zero value of a
@@ -384,6 +433,7 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 				return nil, err
 			}
 			r := marginRun(v, Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0])
+			am.Bisection = append(am.Bisection, r)
 			if r.Outcome == record.Pass {
 				pass = r
 			} else {
@@ -394,7 +444,47 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 		am.Tolerance = math.Abs(fail.Value - pass.Value)
 		am.LastPass, am.FirstFail = &pass, &fail
 	}
+	for i := range out {
+		out[i].judge(Required(sc.Margins, out[i].Axis))
+	}
 	return out, nil
+}
+
+// MarginsPage turns a search's result into the report's margins page.
+func MarginsPage(scenario, dir string, res []AxisMargin) report.MarginsPage {
+	pg := report.MarginsPage{Scenario: scenario, Dir: dir}
+	for _, a := range res {
+		ra := report.MarginAxis{Name: a.Axis, Unit: a.Unit, Limit: a.Limit, Required: a.Required, Reached: a.Reached, NotMonotone: a.NotMonotone}
+		if a.LastPass != nil {
+			ra.LastPassDir = a.LastPass.Dir
+		}
+		if a.FirstFail != nil {
+			ra.FirstFailDir, ra.FailReason = a.FirstFail.Dir, string(a.FirstFail.Outcome)+": "+a.FirstFail.Reason
+		}
+		for _, r := range append(append([]MarginRun(nil), a.Grid...), a.Bisection...) {
+			ra.Points = append(ra.Points, report.MarginPoint{Value: r.Value, Steps: r.Steps, Pass: r.Outcome == record.Pass})
+		}
+		pg.Axes = append(pg.Axes, ra)
+	}
+	return pg
+}
+
+// MarginsSuite is the JUnit suite of a search: one case per axis, failed
+// when the limit misses the lab's minimum (the message says by how much),
+// an error when the axis could not be searched.
+func MarginsSuite(scenario string, res []AxisMargin) report.Suite {
+	s := report.Suite{Name: scenario + " margins"}
+	for _, a := range res {
+		c := report.Case{Name: a.Axis, Class: scenario, Detail: fmt.Sprintf("limit %g %s", a.Limit, a.Unit)}
+		switch {
+		case a.Error != "":
+			c.Failure = a.Error
+		case !a.Meets:
+			c.Failure = fmt.Sprintf("margin %g %s misses the required %g %s by %g %s", a.Limit, a.Unit, a.Required, a.Unit, a.Shortfall, a.Unit)
+		}
+		s.Cases = append(s.Cases, c)
+	}
+	return s
 }
 
 func (m Margins) job(sc *scenarios.Scenario, ax Axis, v float64, tag string) (Job, error) {

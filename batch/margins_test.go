@@ -2,6 +2,7 @@ package batch
 
 import (
 	"context"
+	"math"
 	"testing"
 
 	"gaitrig/record"
@@ -146,6 +147,34 @@ func TestAxesChangeWhatTheySay(t *testing.T) {
 			if v.Actuators.TorqueLimitNM != 0.05*base.Actuators.TorqueLimitNM {
 				t.Errorf("torque limit %g", v.Actuators.TorqueLimitNM)
 			}
+		}
+	}
+}
+
+// TestRequiredMinimaAreJudgedInTheAxisDirection checks the gate's sums by
+// hand: a friction ratio is the inverse of the fraction found, a push or a
+// latency must reach the minimum, a downhill slope must reach minus it.
+func TestRequiredMinimaAreJudgedInTheAxisDirection(t *testing.T) {
+	m := scenarios.Margins{MinFrictionRatio: 2, MinPushNS: 30, MinAddedLatencyMS: 20, MinSlopeDeg: 5}
+	for _, tc := range []struct {
+		axis             string
+		safe, far, limit float64
+		meets            bool
+		shortfall        float64
+	}{
+		{"friction", 1, 0.05, 0.31, true, 0},       // walks on 0.31 μ_s: ratio 3.2 ≥ 2
+		{"friction", 1, 0.05, 0.625, false, 0.125}, // ratio 1.6 < 2: fraction 0.625 against 0.5
+		{"push_forward_mid", 0, 40, 27, false, 3},
+		{"push_backward_late", 0, 40, 40, true, 0},
+		{"added_latency", 0, 40, 37, true, 0},
+		{"slope_up", 0, 10, 2.75, false, 2.25},
+		{"slope_down", 0, -10, -10, true, 0},
+		{"noise_multiple", 1, 50, 2, true, 0}, // no minimum set
+	} {
+		am := AxisMargin{Axis: tc.axis, Safe: tc.safe, Far: tc.far, Limit: tc.limit}
+		am.judge(Required(m, tc.axis))
+		if am.Meets != tc.meets || math.Abs(am.Shortfall-tc.shortfall) > 1e-12 {
+			t.Errorf("%s limit %g: meets %v shortfall %g, want %v %g", tc.axis, tc.limit, am.Meets, am.Shortfall, tc.meets, tc.shortfall)
 		}
 	}
 }

@@ -1,13 +1,18 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
+	"os"
+	"path/filepath"
 	"runtime"
 
 	"gaitrig/batch"
 	"gaitrig/record"
+	"gaitrig/report"
 	"gaitrig/rig"
 )
 
@@ -25,12 +30,16 @@ the rig runs a coarse grid from the scenario as written towards harder
 conditions, then bisects between the last pass and the first fail until the
 bracket is narrower than the tolerance. Each limit comes with the two runs
 that decided it; "not monotone" marks an axis where a harder value passed
-again. Exit code 0 when every search ran, 1 when the scenario as written
-already fails.`, stderr)
+again. The scenario's margins block chooses the axes and sets the minima a
+lab requires (min_friction_ratio, min_push_ns, min_added_latency_ms,
+min_slope_deg); the table says which margin misses its minimum and by how
+much. Writes margins.html (one survival plot per axis), junit.xml and
+margins.json into the search's folder. Exit code 0 when every axis was
+searched and meets its minimum, 1 otherwise.`, stderr)
 	link := fs.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
 	out := fs.String("out", "runs", "parent folder for the run folders")
 	asJSON := fs.Bool("json", false, "print JSON instead of a table")
-	tol := fs.Float64("tolerance", batch.DefaultMarginTolerance, "bisection stops at this fraction of the axis range")
+	tol := fs.Float64("tolerance", 0, "bisection stops at this fraction of the axis range (default: the scenario's margins.tolerance, 0.02)")
 	jobs := fs.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
 	if done, code := parseFlags(fs, args); done {
 		return code
@@ -65,15 +74,14 @@ already fails.`, stderr)
 		fmt.Fprintln(stderr, "gaitrig margins:", err)
 		return exitCodeFor(err)
 	}
+	files, ferr := writeMarginsFiles(m.Dir, sc.Name, res)
+	if ferr != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", ferr)
+	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
-		doc := struct {
-			Scenario string             `json:"scenario"`
-			Dir      string             `json:"dir"`
-			Axes     []batch.AxisMargin `json:"axes"`
-			Caution  string             `json:"caution"`
-		}{sc.Name, m.Dir, res, record.Caution}
+		doc := marginsDoc{sc.Name, m.Dir, res, record.Caution}
 		if err := enc.Encode(rig.JSONSafe(doc)); err != nil {
 			fmt.Fprintln(stderr, "gaitrig margins:", err)
 			return exitFail
@@ -93,6 +101,13 @@ already fails.`, stderr)
 			if a.Error != "" {
 				fmt.Fprintf(stdout, "    %s\n", a.Error)
 			}
+			if !math.IsNaN(a.Required) {
+				if a.Meets {
+					fmt.Fprintf(stdout, "    meets the required %g %s\n", a.Required, a.Unit)
+				} else {
+					fmt.Fprintf(stdout, "    MISSES the required %g %s by %g %s\n", a.Required, a.Unit, a.Shortfall, a.Unit)
+				}
+			}
 			if a.LastPass != nil {
 				fmt.Fprintf(stdout, "    pass %g: %s\n", a.LastPass.Value, a.LastPass.Dir)
 			}
@@ -100,13 +115,55 @@ already fails.`, stderr)
 				fmt.Fprintf(stdout, "    fail %g: %s (%s: %s)\n", a.FirstFail.Value, a.FirstFail.Dir, a.FirstFail.Outcome, a.FirstFail.Reason)
 			}
 		}
+		for _, f := range files {
+			fmt.Fprintln(stdout, "wrote", f)
+		}
 		fmt.Fprintln(stdout)
 		fmt.Fprintln(stdout, record.Caution)
 	}
+	code := exitPass
 	for _, a := range res {
-		if a.Error != "" {
-			return exitFail
+		if !a.Meets {
+			code = exitFail
 		}
 	}
-	return exitPass
+	if ferr != nil {
+		code = exitFail
+	}
+	return code
+}
+
+// marginsDoc is the JSON of a margin search (stdout with --json, and
+// margins.json in the search's folder).
+type marginsDoc struct {
+	Scenario string             `json:"scenario"`
+	Dir      string             `json:"dir"`
+	Axes     []batch.AxisMargin `json:"axes"`
+	Caution  string             `json:"caution"`
+}
+
+// writeMarginsFiles writes the search's page, JUnit XML and JSON into its
+// folder and returns their paths.
+func writeMarginsFiles(dir, scenario string, res []batch.AxisMargin) ([]string, error) {
+	page := filepath.Join(dir, report.MarginsHTMLFile)
+	if err := report.WriteMarginsHTML(page, batch.MarginsPage(scenario, dir, res)); err != nil {
+		return nil, err
+	}
+	junit := filepath.Join(dir, "junit.xml")
+	var b bytes.Buffer
+	if err := report.WriteJUnit(&b, batch.MarginsSuite(scenario, res)); err != nil {
+		return nil, err
+	}
+	if err := os.WriteFile(junit, b.Bytes(), 0o644); err != nil {
+		return nil, err
+	}
+	js, err := json.MarshalIndent(rig.JSONSafe(marginsDoc{scenario, dir, res, record.Caution}), "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	jsPath := filepath.Join(dir, "margins.json")
+	if err := os.WriteFile(jsPath, append(js, '\n'), 0o644); err != nil {
+		return nil, err
+	}
+	return []string{page, junit, jsPath}, nil
 }
