@@ -42,6 +42,8 @@ everything written.`, stderr)
 	quiet := fs.Bool("quiet", false, "no line per step")
 	maxSteps := fs.Int("max-steps", 0, "end after this many steps (overrides the scenario's run.max_steps)")
 	duration := fs.Float64("duration", 0, "end after this many simulated seconds (overrides run.duration_s)")
+	seeds := fs.Int("seeds", 0, "run the scenario with N seeds of noise, drops and latency and report the pass rate (Wilson 95 % interval) and the worst run")
+	seedsJSON := fs.Bool("json", false, "with --seeds: print JSON instead of a table")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
@@ -73,6 +75,9 @@ everything written.`, stderr)
 			return exitConfig
 		}
 		o.Clock = hil.ClockMode(*clock)
+	}
+	if *seeds > 0 {
+		return runSeeds(sc, o, *seeds, *seedsJSON, stdout, stderr)
 	}
 	if !*quiet {
 		o.OnStep = stepPrinter(stdout)
