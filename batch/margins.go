@@ -132,6 +132,10 @@ type Margins struct {
 	Grid      int
 	// Jobs runs the grid points in parallel (Scheduler.Jobs).
 	Jobs int
+	// Seeds, when above 1, runs every value with that many seeds of noise,
+	// drops and latency (SeedVariants); a value passes only when every
+	// seed passes, and its run is the worst seed's (worstRun).
+	Seeds int
 	// Runner runs one job; default rig.Run.
 	Runner RunFunc
 }
@@ -381,20 +385,21 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 		out[a] = AxisMargin{Axis: ax.Name, Unit: ax.Unit, Safe: ax.Safe, Far: ax.Far}
 		for g := 0; g < m.Grid; g++ {
 			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
-			j, err := m.job(sc, ax, v, fmt.Sprintf("%s-grid%d", ax.Name, g))
+			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-grid%d", ax.Name, g))
 			if err != nil {
 				return nil, err
 			}
-			jobs = append(jobs, j)
+			jobs = append(jobs, js...)
 		}
 	}
 	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	per := m.seeds()
 	for a, ax := range axes {
 		am := &out[a]
 		for g := 0; g < m.Grid; g++ {
-			d := done[a*m.Grid+g]
+			k := (a*m.Grid + g) * per
 			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
-			am.Grid = append(am.Grid, marginRun(v, d))
+			am.Grid = append(am.Grid, worstOf(v, done[k:k+per]))
 		}
 		first := -1
 		for g, r := range am.Grid {
@@ -428,11 +433,11 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 				return out, err
 			}
 			v := 0.5 * (pass.Value + fail.Value)
-			j, err := m.job(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
+			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
 			if err != nil {
 				return nil, err
 			}
-			r := marginRun(v, Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0])
+			r := worstOf(v, Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, js))
 			am.Bisection = append(am.Bisection, r)
 			if r.Outcome == record.Pass {
 				pass = r
@@ -487,13 +492,42 @@ func MarginsSuite(scenario string, res []AxisMargin) report.Suite {
 	return s
 }
 
-func (m Margins) job(sc *scenarios.Scenario, ax Axis, v float64, tag string) (Job, error) {
+func (m Margins) seeds() int {
+	if m.Seeds > 1 {
+		return m.Seeds
+	}
+	return 1
+}
+
+// jobs makes the runs of one value: one, or one per seed.
+func (m Margins) jobs(sc *scenarios.Scenario, ax Axis, v float64, tag string) ([]Job, error) {
 	name := sc.Name + "-" + tag
 	vs, err := Derive(sc, name, fmt.Sprintf("margin search: %s = %g %s", ax.Name, v, ax.Unit), func(s *scenarios.Scenario) { ax.Apply(s, v) })
 	if err != nil {
-		return Job{}, err
+		return nil, err
 	}
-	return Job{Scenario: vs, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, name)}}, nil
+	variants := []*scenarios.Scenario{vs}
+	if m.seeds() > 1 {
+		if variants, err = SeedVariants(vs, m.seeds()); err != nil {
+			return nil, err
+		}
+	}
+	var out []Job
+	for _, s := range variants {
+		out = append(out, Job{Scenario: s, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, s.Name)}})
+	}
+	return out, nil
+}
+
+// worstOf is the run that stands for one value run with several seeds:
+// the worst seed's (a failure when any failed).
+func worstOf(v float64, done []Done) MarginRun {
+	runs := make([]SeedRun, len(done))
+	for i, d := range done {
+		r := marginRun(v, d)
+		runs[i] = SeedRun{Outcome: r.Outcome, Steps: r.Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+	}
+	return marginRun(v, done[worstRun(runs)])
 }
 
 func marginRun(v float64, d Done) MarginRun {

@@ -3,9 +3,11 @@ package batch
 import (
 	"context"
 	"math"
+	"sync"
 	"testing"
 
 	"gaitrig/record"
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -176,5 +178,42 @@ func TestRequiredMinimaAreJudgedInTheAxisDirection(t *testing.T) {
 		if am.Meets != tc.meets || math.Abs(am.Shortfall-tc.shortfall) > 1e-12 {
 			t.Errorf("%s limit %g: meets %v shortfall %g, want %v %g", tc.axis, tc.limit, am.Meets, am.Shortfall, tc.meets, tc.shortfall)
 		}
+	}
+}
+
+// TestMarginsWithSeedsNeedEverySeedToPass counts the runs a seeded search
+// makes (a Runner that only counts and fails seed 2 above a value) and
+// checks that one failing seed fails the value.
+func TestMarginsWithSeedsNeedEverySeedToPass(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var mu sync.Mutex
+	calls := 0
+	runner := func(_ context.Context, s *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		mu.Lock()
+		calls++
+		mu.Unlock()
+		out := record.Pass
+		// The latency axis: fail seed 2 from 10 ms on.
+		for _, f := range s.Faults {
+			if f.Kind == "latency" && f.FixedMS >= 10 && s.Sensors.Seed == sc.Sensors.Seed+1 {
+				out = record.Fail
+			}
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: out, Steps: 30}}, nil
+	}
+	axes, _ := SelectAxes(DefaultAxes(Nominal{}), []string{"added_latency"})
+	res, err := Margins{Dir: t.TempDir(), Seeds: 3, Runner: runner}.Run(context.Background(), sc, axes)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := res[0]
+	if a.Limit >= 10 || a.FirstFail.Value < 10 || a.LastPass.Value >= 10 {
+		t.Errorf("limit %g (pass %g, fail %g): want just under 10 ms", a.Limit, a.LastPass.Value, a.FirstFail.Value)
+	}
+	if want := 3 * (DefaultMarginGrid + len(a.Bisection)); calls != want {
+		t.Errorf("%d runs, want %d (3 seeds × (grid + bisection))", calls, want)
 	}
 }

@@ -41,6 +41,7 @@ searched and meets its minimum, 1 otherwise.`, stderr)
 	asJSON := fs.Bool("json", false, "print JSON instead of a table")
 	tol := fs.Float64("tolerance", 0, "bisection stops at this fraction of the axis range (default: the scenario's margins.tolerance, 0.02)")
 	jobs := fs.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
+	seeds := fs.Int("seeds", 1, "run every value with N seeds of noise, drops and latency; a value passes only when all pass")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
@@ -49,7 +50,7 @@ searched and meets its minimum, 1 otherwise.`, stderr)
 		fs.Usage()
 		return exitConfig
 	}
-	m := batch.Margins{Tolerance: *tol, Jobs: *jobs}
+	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds}
 	if *link != "" {
 		spec, err := rig.ParseLink(*link)
 		if err != nil {
