@@ -27,6 +27,8 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 	link := fs.String("link", "builtin", rig.LinkHelp())
 	scenario := fs.String("scenario", "level-demo", "base scenario (file or built-in name)")
 	out := fs.String("out", "runs", "parent folder for the run folders")
+	envelope := fs.Bool("envelope", true, "also measure the margins the scenario's margins block sets minima for and the closed-loop stability; GO needs both (see gaitrig margins, gaitrig stability)")
+	seeds := fs.Int("seeds", 1, "with --envelope: run every margin value with N seeds; a value passes only when all pass")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
@@ -83,6 +85,11 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 	for _, r := range res.Results {
 		for _, g := range r.Regressions {
 			fmt.Fprintf(stdout, "  %s: %s\n", r.Scenario, g)
+		}
+	}
+	if *envelope {
+		if !printGate(ctx, stdout, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base) {
+			res.Go = false
 		}
 	}
 	verdict := "GO"
