@@ -8,14 +8,17 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"path/filepath"
 
+	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
 // Gate measures a scenario's safety envelope for the preflight verdict.
 // The zero value of a field is its default.
 type Gate struct {
-	// Dir is the folder for the run folders. Required.
+	// Dir is the folder for the run folders. Required; the gate makes a
+	// subfolder "envelope" in it, so it can share preflight's folder.
 	Dir string
 	// Link overrides the scenario's link.
 	Link string
@@ -64,6 +67,10 @@ func GatedAxes(sc *scenarios.Scenario) []string {
 // Run measures the gated margins and the stability of sc and judges them.
 func (g Gate) Run(ctx context.Context, sc *scenarios.Scenario) (GateResult, error) {
 	res := GateResult{MaxSpectralRadius: sc.Margins.MaxSpectralRadius, Go: true}
+	if g.Dir == "" {
+		return res, rig.Configf("gate: no output folder")
+	}
+	g.Dir = filepath.Join(g.Dir, "envelope")
 	if res.MaxSpectralRadius == 0 {
 		res.MaxSpectralRadius = 0.9 // the scenario loader's default, for a hand-made scenario
 	}

@@ -331,7 +331,7 @@ func (m Margins) withDefaults() Margins {
 func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (Nominal, MarginRun, error) {
 	m = m.withDefaults()
 	var steps []hil.StepInfo
-	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-nominal"),
+	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-margins-nominal"),
 		OnStep: func(s hil.StepInfo) { steps = append(steps, s) }}}
 	d := Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0]
 	run := marginRun(0, d)

@@ -68,3 +68,50 @@ func TestMarginsCommand(t *testing.T) {
 		t.Error(err)
 	}
 }
+
+// TestPreflightEnvelopeNamesTheFailingMargin runs preflight on a firmware
+// with less swing damping and a lab minimum friction ratio it misses: the
+// verdict must be NO-GO with the friction margin named.
+func TestPreflightEnvelopeNamesTheFailingMargin(t *testing.T) {
+	if testing.Short() {
+		t.Skip("lockstep walks")
+	}
+	text, err := scenarios.BuiltinText("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	file := filepath.Join(dir, "weak.yaml")
+	text = []byte(strings.Replace(string(text), "  mode: walk\n", "  mode: walk\n  settings:\n    swing_kd: 3\n", 1))
+	text = append(text, []byte("margins:\n  min_friction_ratio: 3\n")...)
+	if err := os.WriteFile(file, text, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errs := run(t, "preflight", "--out", filepath.Join(dir, "runs"), "--scenario", file)
+	if code != exitFail || !strings.Contains(out, "NO-GO: margin friction") || !strings.Contains(out, "verdict: NO-GO") {
+		t.Errorf("exit %d; stdout:\n%s\nstderr:\n%s", code, out, errs)
+	}
+}
+
+func TestStabilityCommand(t *testing.T) {
+	if testing.Short() {
+		t.Skip("lockstep walks")
+	}
+	code, out, errs := run(t, "stability", "--out", t.TempDir(), "--json", "--steps", "20", "--push", "-1", "--step-down", "-1", "level-demo")
+	if code != exitPass {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var rep struct {
+		SpectralRadius float64 `json:"spectral_radius"`
+		Eigenvalues    []struct {
+			Modulus float64 `json:"modulus"`
+		} `json:"eigenvalues"`
+		Caution string `json:"caution"`
+	}
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Eigenvalues) != 5 || rep.SpectralRadius != rep.Eigenvalues[0].Modulus || !strings.Contains(rep.Caution, "not a safety certificate") {
+		t.Errorf("%s", out)
+	}
+}
