@@ -75,10 +75,16 @@ type AxisMargin struct {
 	// margins block, in Unit (NaN: none); Meets says the limit is at least
 	// as far from Safe as Required, Shortfall by how much it is not (in
 	// Unit, 0 when it meets it).
-	Required  float64 `json:"required"`
-	Meets     bool    `json:"meets_required"`
-	Shortfall float64 `json:"shortfall"`
-	Error     string  `json:"error,omitempty"`
+	// MuStaticMin and FrictionRatio restate the friction axis's limit: the
+	// lowest μ_s (of any segment, all scaled alike) the firmware still
+	// walks on, and the scenario's μ_s over it (1/Limit). Zero on other
+	// axes.
+	MuStaticMin   float64 `json:"mu_static_min,omitempty"`
+	FrictionRatio float64 `json:"friction_ratio,omitempty"`
+	Required      float64 `json:"required"`
+	Meets         bool    `json:"meets_required"`
+	Shortfall     float64 `json:"shortfall"`
+	Error         string  `json:"error,omitempty"`
 }
 
 // Required returns the lab's minimum for an axis from a margins block, in
@@ -451,6 +457,14 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 	}
 	for i := range out {
 		out[i].judge(Required(sc.Margins, out[i].Axis))
+		if out[i].Axis == "friction" && out[i].Limit > 0 && len(sc.Terrain.Segments) > 0 {
+			mu := math.Inf(1)
+			for _, g := range sc.Terrain.Segments {
+				mu = math.Min(mu, g.MuStatic)
+			}
+			out[i].MuStaticMin = out[i].Limit * mu
+			out[i].FrictionRatio = 1 / out[i].Limit
+		}
 	}
 	return out, nil
 }

@@ -29,6 +29,9 @@ func TestMarginsOfTheBuiltInController(t *testing.T) {
 			t.Errorf("%s: %s", am.Axis, am.Error)
 			continue
 		}
+		if am.Axis == "friction" && (math.Abs(am.MuStaticMin-0.8*am.Limit) > 1e-12 || math.Abs(am.FrictionRatio*am.Limit-1) > 1e-12) {
+			t.Errorf("friction: μ_s,min %g and ratio %g for the fraction %g of μ_s 0.8", am.MuStaticMin, am.FrictionRatio, am.Limit)
+		}
 		if am.Reached {
 			// The two deciding runs are real run folders that say so.
 			p, err := record.Open(am.LastPass.Dir)
@@ -215,5 +218,35 @@ func TestMarginsWithSeedsNeedEverySeedToPass(t *testing.T) {
 	}
 	if want := 3 * (DefaultMarginGrid + len(a.Bisection)); calls != want {
 		t.Errorf("%d runs, want %d (3 seeds × (grid + bisection))", calls, want)
+	}
+}
+
+// TestMarginsFlagAPassBeyondTheLimit feeds the search a firmware (a Runner
+// that judges by the latency alone) that fails between 10 and 20 ms and
+// passes again above: the limit is the first failure's edge and the axis
+// is flagged not monotone.
+func TestMarginsFlagAPassBeyondTheLimit(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	runner := func(_ context.Context, s *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		out := record.Pass
+		for _, f := range s.Faults {
+			if f.Kind == "latency" && f.FixedMS >= 10 && f.FixedMS < 20 {
+				out = record.Fail
+			}
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: out, Steps: 30}}, nil
+	}
+	axes, _ := SelectAxes(DefaultAxes(Nominal{}), []string{"added_latency"})
+	res, err := Margins{Dir: t.TempDir(), Runner: runner}.Run(context.Background(), sc, axes)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := res[0]
+	// Grid 0, 8, 16, 24, 32, 40 ms: 16 fails first, 24 … 40 pass again.
+	if !a.NotMonotone || a.Limit < 9.2 || a.Limit >= 10 || a.FirstFail.Value < 10 || a.Tolerance > 0.02*40 {
+		t.Errorf("limit %g ± %g, not monotone %v: want just under 10 ms, flagged", a.Limit, a.Tolerance, a.NotMonotone)
 	}
 }

@@ -102,6 +102,9 @@ searched and meets its minimum, 1 otherwise.`, stderr)
 			if a.Error != "" {
 				fmt.Fprintf(stdout, "    %s\n", a.Error)
 			}
+			if a.FrictionRatio > 0 {
+				fmt.Fprintf(stdout, "    μ_s,min %.4g; friction ratio μ_s/μ_s,min %.3g\n", a.MuStaticMin, a.FrictionRatio)
+			}
 			if !math.IsNaN(a.Required) {
 				if a.Meets {
 					fmt.Fprintf(stdout, "    meets the required %g %s\n", a.Required, a.Unit)
