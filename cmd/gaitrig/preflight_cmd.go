@@ -28,7 +28,7 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 	scenario := fs.String("scenario", "level-demo", "base scenario (file or built-in name)")
 	out := fs.String("out", "runs", "parent folder for the run folders")
 	envelope := fs.Bool("envelope", true, "also measure the margins the scenario's margins block sets minima for and the closed-loop stability; GO needs both (see gaitrig margins, gaitrig stability)")
-	seeds := fs.Int("seeds", 1, "with --envelope: run every margin value with N seeds; a value passes only when all pass")
+	seeds := fs.Int("seeds", 1, "with --envelope: run the scenario with N seeds (pass rate with its Wilson interval; GO needs every seed) and every margin value with N seeds")
 	if done, code := parseFlags(fs, args); done {
 		return code
 	}
