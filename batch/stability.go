@@ -189,33 +189,21 @@ type stepSample struct {
 // sectionState returns the map coordinates of s moved back from the end of
 // the tick to the heel strike at strikeT along the flow, z − (t − t_hs)·ż,
 // so every step is seen on the same section however the tick falls (the
-// error is of order (t − t_hs)² ≤ one tick squared).
+// error is of order (t − t_hs)² ≤ one tick squared). The step back is
+// taken on the generalized coordinates and then reduced by Model.Reduced,
+// so the ordering of the map coordinates has one home, the plant.
 func sectionState(m *plant.Model, s *plant.State, in *plant.Input, strikeT float64) []float64 {
-	z := m.Reduced(s)
 	acc, ok := m.Accel(s, in)
 	dt := s.T - strikeT
 	if !ok || dt <= 0 {
-		return z
+		return m.Reduced(s)
 	}
-	nl := m.NumLinks()
-	for i := 0; i < nl; i++ {
-		k := reducedLink(m, s.Stance, i)
-		z[i] -= dt * s.V[2+k]
-		z[nl+i] -= dt * acc[2+k]
+	back := *s
+	for k := 0; k < m.NumDOF(); k++ {
+		back.Q[k] -= dt * s.V[k]
+		back.V[k] -= dt * acc[k]
 	}
-	return z
-}
-
-// reducedLink is the link at position i of Model.Reduced's coordinates
-// (stance leg, swing leg, then the torso).
-func reducedLink(m *plant.Model, stance, i int) int {
-	if m.NumFeet() == 2 && i < 2 {
-		if i == 0 {
-			return stance
-		}
-		return 1 - stance
-	}
-	return i
+	return m.Reduced(&back)
 }
 
 // fitCoords drops the swing leg's angle (index 1) from the reduced
