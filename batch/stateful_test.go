@@ -2,6 +2,7 @@ package batch
 
 import (
 	"context"
+	"math"
 	"sync"
 	"testing"
 	"time"
@@ -13,23 +14,23 @@ import (
 )
 
 // slowStateConn makes the built-in firmware a firmware with state of its
-// own, seen from the rig: it low-pass filters the IMU pitch rate the rig
-// sends (time constant tau, longer than a step) and adds gain × the
-// filtered value to the first joint's torque in every command. The
-// filter's value at a heel strike is not a function of the plant state
-// there, so the plant state alone does not determine the next step.
+// own, seen from the rig: an internal clock (a phase that advances with
+// every state it is sent, as a central pattern generator's would) adds
+// gain · sin(2π t/period) to the first joint's torque. The phase at a heel
+// strike is not a function of the plant state there (the period, 1.3 s, is
+// no multiple of the step's), so the plant state alone does not determine
+// the next step.
 type slowStateConn struct {
 	bridges.Conn
-	mu       sync.Mutex
-	filtered float64
-	alpha    float64 // per tick
-	gain     float64 // N·m per rad/s
+	mu     sync.Mutex
+	states int
+	gain   float64 // N·m
 }
 
 func (c *slowStateConn) Send(m *protocol.Message) error {
 	if m.Type == protocol.TypeState {
 		c.mu.Lock()
-		c.filtered += c.alpha * (float64(m.State.IMURate) - c.filtered)
+		c.states++
 		c.mu.Unlock()
 	}
 	return c.Conn.Send(m)
@@ -39,7 +40,7 @@ func (c *slowStateConn) Recv(deadline time.Time, m *protocol.Message) error {
 	err := c.Conn.Recv(deadline, m)
 	if err == nil && m.Type == protocol.TypeCommand {
 		c.mu.Lock()
-		m.Command.Torque[0] += float32(c.gain * c.filtered)
+		m.Command.Torque[0] += float32(c.gain * math.Sin(2*math.Pi*float64(c.states)*1e-3/1.3))
 		c.mu.Unlock()
 	}
 	return err
@@ -48,7 +49,7 @@ func (c *slowStateConn) Recv(deadline time.Time, m *protocol.Message) error {
 var registerSlowState sync.Once
 
 // TestStabilitySaysSoWhenTheFirmwareHasState runs the estimate against a
-// firmware with a slow internal state (slowStateConn): the fit's residual
+// firmware with an internal clock (slowStateConn): the fit's residual
 // must be larger than for the same law without the state and above the
 // warning threshold, and the report must carry the warning.
 func TestStabilitySaysSoWhenTheFirmwareHasState(t *testing.T) {
@@ -57,7 +58,7 @@ func TestStabilitySaysSoWhenTheFirmwareHasState(t *testing.T) {
 	}
 	registerSlowState.Do(func() {
 		rig.RegisterLinkKind(rig.LinkKind{
-			Name: "slow-state-test", Syntax: "slow-state-test", Help: "test kind: the built-in firmware with a slow state of its own",
+			Name: "slow-state-test", Syntax: "slow-state-test", Help: "test kind: the built-in firmware with an internal clock",
 			InProcess: true,
 			Parse: func(s string) (rig.Link, bool, error) {
 				return rig.Link{Kind: "slow-state-test"}, s == "slow-state-test", nil
@@ -68,7 +69,7 @@ func TestStabilitySaysSoWhenTheFirmwareHasState(t *testing.T) {
 				if err != nil {
 					return o, err
 				}
-				o.Conn = &slowStateConn{Conn: o.Conn, alpha: 1e-3 / 1.5, gain: 40}
+				o.Conn = &slowStateConn{Conn: o.Conn, gain: 1}
 				o.Name = "slow-state-test"
 				return o, nil
 			},
@@ -86,7 +87,7 @@ func TestStabilitySaysSoWhenTheFirmwareHasState(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("residual: pure law %.3g, with a slow state %.3g; radius %.3g vs %.3g", plain.Residual, stateful.Residual, plain.SpectralRadius, stateful.SpectralRadius)
+	t.Logf("residual: pure law %.3g, with an internal clock %.3g; radius %.3g vs %.3g", plain.Residual, stateful.Residual, plain.SpectralRadius, stateful.SpectralRadius)
 	if !(stateful.Residual > ResidualWarning) || stateful.ResidualWarning == "" || plain.ResidualWarning != "" {
 		t.Errorf("residual %.3g (warning %q) with a stateful firmware, %.3g without", stateful.Residual, stateful.ResidualWarning, plain.Residual)
 	}
