@@ -183,8 +183,10 @@ type Config struct {
 	// firmware senses the change as it would sense a real disturbance. It is
 	// the hook of the stability analysis (batch.Stability), which perturbs
 	// the rates there; only lockstep runs give it the same tick every time.
-	// It runs inside the tick: it must not allocate or block. A change is
-	// not logged by the loop; the caller that makes it records it.
+	// It runs inside the tick that holds the heel strike, once per step
+	// (not on every tick's path, which stays allocation-free when it is
+	// nil): keep it short and never block. A change is not logged by the
+	// loop; the caller that makes it records it.
 	AfterHeelStrike func(step int, strikeT float64, s *plant.State, in *plant.Input)
 }
 
