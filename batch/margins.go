@@ -375,6 +375,17 @@ func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []str
 	if err != nil {
 		return nil, err
 	}
+	for i := range axes {
+		far, ok := sc.Margins.Far[axes[i].Name]
+		if !ok {
+			continue
+		}
+		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 {
+			return nil, rig.Configf("scenario %s: margins.far.%s %g: the search starts at %g and goes towards %g; the end must lie on that side",
+				sc.Name, axes[i].Name, far, axes[i].Safe, axes[i].Far)
+		}
+		axes[i].Far = far
+	}
 	return m.Run(ctx, sc, axes)
 }
 

@@ -6,6 +6,7 @@ import (
 	"sync"
 	"testing"
 
+	"gaitrig/hil"
 	"gaitrig/record"
 	"gaitrig/rig"
 	"gaitrig/scenarios"
@@ -251,5 +252,48 @@ func TestMarginsFlagAPassBeyondTheLimit(t *testing.T) {
 	// Grid 0, 8, 16, 24, 32, 40 ms: 16 fails first, 24 … 40 pass again.
 	if !a.NotMonotone || a.Limit < 9.2 || a.Limit >= 10 || a.FirstFail.Value < 10 || a.Tolerance > 0.02*40 {
 		t.Errorf("limit %g ± %g, not monotone %v: want just under 10 ms, flagged", a.Limit, a.Tolerance, a.NotMonotone)
+	}
+}
+
+// TestFarEndsAreTheDocumentedOnes keeps DefaultAxes and the margins.far
+// comment of scenarios.Margins (docs/scenarios.md) in step, and checks
+// that a scenario's far end replaces the default and one on the wrong
+// side of the start is refused.
+func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
+	doc := map[string]float64{"friction": 0.05, "added_latency": 40, "slope_up": 10, "slope_down": -10, "noise_multiple": 50,
+		"encoder_bits": 4, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30}
+	for _, a := range DefaultAxes(Nominal{}) {
+		want, ok := doc[a.Name]
+		if !ok {
+			want = 40 // every push axis
+		}
+		if a.Far != want {
+			t.Errorf("%s: far %g, the page says %g", a.Name, a.Far, want)
+		}
+	}
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	runner := func(_ context.Context, s *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		steps := []hil.StepInfo{}
+		for i := 1; i <= 12; i++ {
+			steps = append(steps, hil.StepInfo{Index: i, DurationS: 0.5, SimTimeS: 0.5 * float64(i)})
+		}
+		if o.OnStep != nil {
+			for _, st := range steps {
+				o.OnStep(st)
+			}
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: record.Pass, Steps: 12}}, nil
+	}
+	sc, _ := Derive(base, "far", "far end of added_latency 5 ms", func(s *scenarios.Scenario) { s.Margins.Far = map[string]float64{"added_latency": 5} })
+	res, err := Margins{Dir: t.TempDir(), Runner: runner}.Search(context.Background(), sc, []string{"added_latency"})
+	if err != nil || res[0].Far != 5 || res[0].Limit != 5 {
+		t.Errorf("far 5 ms: %+v, %v", res, err)
+	}
+	bad, _ := Derive(base, "far-bad", "far end of slope_down uphill", func(s *scenarios.Scenario) { s.Margins.Far = map[string]float64{"slope_down": 3} })
+	if _, err := (Margins{Dir: t.TempDir(), Runner: runner}).Search(context.Background(), bad, []string{"slope_down"}); err == nil {
+		t.Error("a downhill axis ending uphill was accepted")
 	}
 }

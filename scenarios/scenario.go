@@ -480,6 +480,15 @@ type Margins struct {
 	// mass_minus, leg_length_plus, leg_length_minus (MarginAxes). Default:
 	// all.
 	Axes []string `yaml:"axes"`
+	// Far sets where an axis's search ends, by axis name, in the axis's
+	// unit (friction: fraction of μ_s, pushes: N·s, added_latency: ms,
+	// slopes: degrees, negative downhill, noise_multiple: times,
+	// encoder_bits: bits, torque_fraction: fraction, mass and leg length:
+	// %, negative for the minus axes); the search starts at the scenario as
+	// written. Default per axis: friction 0.05, pushes 40, added_latency
+	// 40, slope_up 10, slope_down -10, noise_multiple 50, encoder_bits 4,
+	// torque_fraction 0.05, mass ±50, leg length ±30.
+	Far map[string]float64 `yaml:"far"`
 	// Tolerance is the width the bisection stops at, as a fraction of the
 	// axis's range. Default 0.02; 0 < tolerance ≤ 0.5.
 	Tolerance float64 `yaml:"tolerance"`

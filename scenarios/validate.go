@@ -2,6 +2,7 @@ package scenarios
 
 import (
 	"fmt"
+	"maps"
 	"math"
 	"net/url"
 	"regexp"
@@ -650,6 +651,14 @@ func (c *checker) margins() {
 		if !slices.Contains(MarginAxes, a) {
 			c.errf(fmt.Sprintf("margins.axes[%d]", i), "unknown axis %q; allowed: %s", a, strings.Join(MarginAxes, ", "))
 		}
+	}
+	for _, a := range slices.Sorted(maps.Keys(m.Far)) {
+		path := "margins.far." + a
+		if !slices.Contains(MarginAxes, a) {
+			c.errf(path, "unknown axis %q; allowed: %s", a, strings.Join(MarginAxes, ", "))
+			continue
+		}
+		c.num(path, m.Far[a], math.Abs(m.Far[a]) <= 1e4, "|X| ≤ 10000")
 	}
 	if c.has("margins.tolerance") {
 		c.num("margins.tolerance", m.Tolerance, m.Tolerance > 0 && m.Tolerance <= 0.5, "0 < X ≤ 0.5")
