@@ -179,6 +179,19 @@ type Config struct {
 	// Log, when set, receives plain sentences about the run that are not
 	// alarms (scheduling class granted or not, handshake).
 	Log func(line string)
+	// AfterHeelStrike, when set, is called on the loop at each heel strike,
+	// after the tick that holds it has been stepped and recorded and after
+	// OnStep, with the step number (as in steps.csv), the time of the heel
+	// strike, the plant state at the end of that tick and the input held over
+	// it. It may change the state: the next tick starts from it, so the
+	// firmware senses the change as it would sense a real disturbance. It is
+	// the hook of the stability analysis (batch.Stability), which perturbs
+	// the rates there; only lockstep runs give it the same tick every time.
+	// It runs inside the tick that holds the heel strike, once per step
+	// (not on every tick's path, which stays allocation-free when it is
+	// nil): keep it short and never block. A change is not logged by the
+	// loop; the caller that makes it records it.
+	AfterHeelStrike func(step int, strikeT float64, s *plant.State, in *plant.Input)
 }
 
 // StepInfo is what OnStep receives: the step row and the run so far.

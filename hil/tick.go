@@ -262,4 +262,7 @@ func (r *runner) heelStrike(e *plant.Event) {
 		r.cfg.OnStep(StepInfo{Index: st.Index, DurationS: st.DurationS, LengthM: st.LengthM, SpeedMPS: st.SpeedMPS,
 			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: pt.s.T})
 	}
+	if r.cfg.AfterHeelStrike != nil {
+		r.cfg.AfterHeelStrike(st.Index, e.T, &pt.s, &pt.in)
+	}
 }

@@ -51,6 +51,8 @@ var defaults = []fieldDefault{
 	{"sensors.seed", 1, nil},
 	{"actuators.torque_limit_nm", 50.0, nil},
 	{"pass.no_trip", true, nil},
+	{"margins.tolerance", 0.02, nil},
+	{"margins.max_spectral_radius", 0.9, nil},
 }
 
 // MuKineticRatio is the default mu_kinetic as a fraction of mu_static: a

@@ -107,6 +107,9 @@ func kindOf(t reflect.Type, path string) string {
 		if t.Elem().Kind() == reflect.Struct {
 			return "list of blocks"
 		}
+		if t.Elem().Kind() == reflect.String {
+			return "list of words"
+		}
 		return withU("list of numbers")
 	case reflect.Map:
 		if t.Elem().Kind() == reflect.Float64 {

@@ -59,6 +59,9 @@ type Scenario struct {
 	Alarms map[string]Severity `yaml:"alarms"`
 	// Pass lists the criteria a run must meet to pass.
 	Pass Criteria `yaml:"pass"`
+	// Margins chooses the axes of `gaitrig margins` and the minima a lab
+	// requires of them (the preflight gate checks those).
+	Margins Margins `yaml:"margins"`
 
 	// File is the path or name the scenario was loaded from (not a YAML
 	// field).
@@ -453,3 +456,57 @@ var DefaultSeverity = hil.DefaultSeverity
 // evaluates). A criterion left out is not checked (except no_trip, which
 // defaults to true).
 type Criteria = hil.Criteria
+
+// MarginAxes are the axes `gaitrig margins` can search, in the order it
+// searches them (the batch package makes each one): the floor's friction,
+// hip pushes forward and backward at early, mid and late stance, added
+// command latency, slope up and down, then sensor noise, encoder bits,
+// torque limit and the plant's mass and leg length off while the firmware
+// is unchanged.
+var MarginAxes = []string{"friction",
+	"push_forward_early", "push_forward_mid", "push_forward_late",
+	"push_backward_early", "push_backward_mid", "push_backward_late",
+	"added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_bits",
+	"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus"}
+
+// Margins is the scenario's margins block: which axes to search, how
+// finely, and the least margin the lab requires on each. A zero minimum
+// requires nothing.
+type Margins struct {
+	// Axes are the axes to search: friction, push_forward_early,
+	// push_forward_mid, push_forward_late, push_backward_early,
+	// push_backward_mid, push_backward_late, added_latency, slope_up,
+	// slope_down, noise_multiple, encoder_bits, torque_fraction, mass_plus,
+	// mass_minus, leg_length_plus, leg_length_minus (MarginAxes). Default:
+	// all.
+	Axes []string `yaml:"axes"`
+	// Far sets where an axis's search ends, by axis name, in the axis's
+	// unit (friction: fraction of μ_s, pushes: N·s, added_latency: ms,
+	// slopes: degrees, negative downhill, noise_multiple: times,
+	// encoder_bits: bits, torque_fraction: fraction, mass and leg length:
+	// %, negative for the minus axes); the search starts at the scenario as
+	// written. Default per axis: friction 0.05, pushes 40, added_latency
+	// 40, slope_up 10, slope_down -10, noise_multiple 50, encoder_bits 4,
+	// torque_fraction 0.05, mass ±50, leg length ±30.
+	Far map[string]float64 `yaml:"far"`
+	// Tolerance is the width the bisection stops at, as a fraction of the
+	// axis's range. Default 0.02; 0 < tolerance ≤ 0.5.
+	Tolerance float64 `yaml:"tolerance"`
+	// MinFrictionRatio is the least ratio of the scenario's μ_s to the
+	// lowest μ_s the firmware still walks on. 0 (default): no requirement;
+	// otherwise ≥ 1.
+	MinFrictionRatio float64 `yaml:"min_friction_ratio"`
+	// MinPushNS is the least hip impulse, N·s, every push axis searched
+	// must survive. 0 (default): no requirement; ≥ 0.
+	MinPushNS float64 `yaml:"min_push_ns"`
+	// MinAddedLatencyMS is the least added command latency, ms, the
+	// firmware must survive. 0 (default): no requirement; ≥ 0.
+	MinAddedLatencyMS float64 `yaml:"min_added_latency_ms"`
+	// MinSlopeDeg is the least slope, degrees, up and down, the firmware
+	// must walk. 0 (default): no requirement; 0 ≤ min_slope_deg < 90.
+	MinSlopeDeg float64 `yaml:"min_slope_deg"`
+	// MaxSpectralRadius is the largest spectral radius of the estimated
+	// step-to-step map the preflight gate accepts. Default 0.9 (our choice:
+	// a perturbation then loses at least 10 % a step); 0 < value ≤ 1.
+	MaxSpectralRadius float64 `yaml:"max_spectral_radius"`
+}

@@ -49,6 +49,12 @@ func TestBrokenFiles(t *testing.T) {
 			"bad-criteria.yaml:22: pass.max_speed_mps: 0.5 m/s is below min_speed_mps 1 m/s",
 			"bad-criteria.yaml:23: pass.max_friction_utilization: 1.5 is out of range; allowed 0 < max_friction_utilization ≤ 1"}},
 		{"unknown-joint.yaml", []string{"unknown-joint.yaml:22: actuators.joint_torque_limits_nm.knee: this walker has no joint \"knee\"; its joints are hip"}},
+		{"bad-margins.yaml", []string{
+			"bad-margins.yaml:21: margins.axes[1]: unknown axis \"wind\"",
+			"bad-margins.yaml:22: margins.tolerance: 0.9 is out of range; allowed 0 < tolerance ≤ 0.5",
+			"bad-margins.yaml:23: margins.min_friction_ratio: 0.5 is out of range",
+			"bad-margins.yaml:24: margins.min_push_ns: -1 N·s is out of range",
+			"bad-margins.yaml:26: margins.far.wind: unknown axis \"wind\""}},
 		{"bad-name.yaml", []string{"bad-name.yaml:1: name: \"broken case!\" is not a valid name"}},
 		{"duplicate-key.yaml", []string{"duplicate-key.yaml:6: ", "\"length_m\" already defined"}},
 		{"syntax-error.yaml", []string{"syntax-error.yaml:2: YAML syntax error"}},

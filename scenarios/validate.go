@@ -2,6 +2,7 @@ package scenarios
 
 import (
 	"fmt"
+	"maps"
 	"math"
 	"net/url"
 	"regexp"
@@ -129,6 +130,7 @@ func (c *checker) validate() {
 	}
 	c.alarms()
 	c.criteria()
+	c.margins()
 }
 
 func (c *checker) plant() {
@@ -639,4 +641,35 @@ func (c *checker) stand(p plant.Params) []Problem {
 		c.errf("initial.leg_angles_rad", "cannot stand the walker with leg angles [%g, %g] rad: %v", angles[0], angles[1], err)
 	}
 	return c.d.problems
+}
+
+// margins checks the margins block; its defaults are filled by the loader
+// (see defaults.go).
+func (c *checker) margins() {
+	m := &c.s.Margins
+	for i, a := range m.Axes {
+		if !slices.Contains(MarginAxes, a) {
+			c.errf(fmt.Sprintf("margins.axes[%d]", i), "unknown axis %q; allowed: %s", a, strings.Join(MarginAxes, ", "))
+		}
+	}
+	for _, a := range slices.Sorted(maps.Keys(m.Far)) {
+		path := "margins.far." + a
+		if !slices.Contains(MarginAxes, a) {
+			c.errf(path, "unknown axis %q; allowed: %s", a, strings.Join(MarginAxes, ", "))
+			continue
+		}
+		c.num(path, m.Far[a], math.Abs(m.Far[a]) <= 1e4, "|X| ≤ 10000")
+	}
+	if c.has("margins.tolerance") {
+		c.num("margins.tolerance", m.Tolerance, m.Tolerance > 0 && m.Tolerance <= 0.5, "0 < X ≤ 0.5")
+	}
+	if c.has("margins.min_friction_ratio") {
+		c.num("margins.min_friction_ratio", m.MinFrictionRatio, m.MinFrictionRatio == 0 || m.MinFrictionRatio >= 1, "X = 0 or X ≥ 1")
+	}
+	c.num("margins.min_push_ns", m.MinPushNS, m.MinPushNS >= 0 && m.MinPushNS <= 1000, "0 ≤ X ≤ 1000")
+	c.num("margins.min_added_latency_ms", m.MinAddedLatencyMS, m.MinAddedLatencyMS >= 0 && m.MinAddedLatencyMS <= 10000, "0 ≤ X ≤ 10000")
+	c.num("margins.min_slope_deg", m.MinSlopeDeg, m.MinSlopeDeg >= 0 && m.MinSlopeDeg < 90, "0 ≤ X < 90")
+	if c.has("margins.max_spectral_radius") {
+		c.num("margins.max_spectral_radius", m.MaxSpectralRadius, m.MaxSpectralRadius > 0 && m.MaxSpectralRadius <= 1, "0 < X ≤ 1")
+	}
 }

@@ -57,6 +57,8 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	link := c.String("link", "builtin", "the firmware's `LINK` for every check, syntax as in gaitrig run --help")
 	scenario := c.String("scenario", "level-demo", "base `SCENARIO` (file or built-in name)")
 	out := c.String("out", "runs", "parent `FOLDER` for the run folders")
+	envelope := c.Bool("envelope", true, "also measure the margins the scenario's margins block sets minima for and the closed-loop stability; GO needs both (see gaitrig margins, gaitrig stability)")
+	seeds := c.Int("seeds", 1, "with --envelope: run the scenario with `N` seeds (pass rate with its Wilson interval; GO needs every seed) and every margin value with N seeds")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -133,6 +135,11 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	for _, r := range res.Results {
 		for _, g := range r.Regressions {
 			fmt.Fprintf(w, "  %s: %s\n", r.Scenario, g)
+		}
+	}
+	if *envelope {
+		if !printGate(ctx, w, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base) {
+			res.Go = false
 		}
 	}
 	code := exitPass

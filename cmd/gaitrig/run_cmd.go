@@ -66,6 +66,7 @@ configuration.`, stdout, stderr)
 	maxSteps := c.Int("max-steps", 0, "end after `N` steps (overrides the scenario's run.max_steps)")
 	duration := c.Float64("duration", 0, "end after `SECONDS` of simulated time (overrides run.duration_s)")
 	force := c.Bool("force", false, "start a wall-clock run over a serial line even when a state and a command take longer on the wire than a tick")
+	seeds := c.Int("seeds", 0, "run the scenario with `N` seeds of noise, drops and latency and report the pass rate (Wilson 95 % interval) and the worst run")
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -100,6 +101,9 @@ configuration.`, stdout, stderr)
 	}
 	if min := sc.Pass.MinSteps; *maxSteps > 0 && *maxSteps < min {
 		c.warn("--max-steps %d is below the scenario's pass.min_steps %d: the run cannot pass", *maxSteps, min)
+	}
+	if *seeds > 0 {
+		return runSeeds(sc, o, *seeds, c.jsonMode(), stdout, stderr)
 	}
 	if !*quiet {
 		o.OnStep = stepPrinter(c.progress())

@@ -1,0 +1,569 @@
+package batch
+
+// This file owns the margin search (gaitrig margins): per axis, the limit
+// of a condition at which the firmware still meets the scenario's pass
+// criteria, by a coarse grid and bisection, with the two runs that decided
+// it.
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"path/filepath"
+
+	"gaitrig/hil"
+	"gaitrig/record"
+	"gaitrig/report"
+	"gaitrig/rig"
+	"gaitrig/scenarios"
+)
+
+// Defaults of Margins' fields.
+const (
+	// DefaultMarginTolerance is the bisection's stopping width as a fraction
+	// of the axis range (issue 10: 2 % of the bracket).
+	DefaultMarginTolerance = 0.02
+	// DefaultMarginGrid is the number of coarse grid points per axis
+	// before the bisection (our choice).
+	DefaultMarginGrid = 6
+)
+
+// Axis is one condition the margin search varies. Value Safe is the
+// scenario as written (it must pass); the search moves towards Far.
+type Axis struct {
+	// Name is the axis's word in tables and JSON (friction, push_forward_mid, …).
+	Name string
+	// Unit of Safe, Far and the limit.
+	Unit string
+	// Safe and Far bound the search.
+	Safe, Far float64
+	// Apply changes the variant for value v.
+	Apply func(s *scenarios.Scenario, v float64)
+}
+
+// MarginRun is a run that decided a limit, or a grid point.
+type MarginRun struct {
+	Value   float64        `json:"value"`
+	Outcome record.Outcome `json:"outcome"`
+	Reason  string         `json:"reason,omitempty"`
+	Steps   int            `json:"steps"`
+	Dir     string         `json:"run_dir"`
+}
+
+// AxisMargin is the result of one axis.
+type AxisMargin struct {
+	Axis string  `json:"axis"`
+	Unit string  `json:"unit"`
+	Safe float64 `json:"safe"`
+	Far  float64 `json:"far"`
+	// Limit is the last passing value found (Safe when the scenario as
+	// written fails; Far when every value passed).
+	Limit float64 `json:"limit"`
+	// Reached says the search found a failure (false: passed up to Far).
+	Reached bool `json:"reached"`
+	// NotMonotone is set when a grid point beyond the first failure passed.
+	NotMonotone bool `json:"not_monotone"`
+	// Tolerance is the final bracket width, in Unit.
+	Tolerance float64    `json:"tolerance"`
+	LastPass  *MarginRun `json:"last_pass,omitempty"`
+	FirstFail *MarginRun `json:"first_fail,omitempty"`
+	// Grid holds every run of the coarse grid, safe end first; Bisection
+	// the runs of the bisection in the order made.
+	Grid      []MarginRun `json:"grid"`
+	Bisection []MarginRun `json:"bisection"`
+	// Required is the lab's minimum for this axis from the scenario's
+	// margins block, in Unit (NaN: none); Meets says the limit is at least
+	// as far from Safe as Required, Shortfall by how much it is not (in
+	// Unit, 0 when it meets it).
+	// MuStaticMin and FrictionRatio restate the friction axis's limit: the
+	// lowest μ_s (of any segment, all scaled alike) the firmware still
+	// walks on, and the scenario's μ_s over it (1/Limit). Zero on other
+	// axes.
+	MuStaticMin   float64 `json:"mu_static_min,omitempty"`
+	FrictionRatio float64 `json:"friction_ratio,omitempty"`
+	Required      float64 `json:"required"`
+	Meets         bool    `json:"meets_required"`
+	Shortfall     float64 `json:"shortfall"`
+	Error         string  `json:"error,omitempty"`
+}
+
+// Required returns the lab's minimum for an axis from a margins block, in
+// the axis's unit, or NaN when the block sets none: friction as the
+// fraction 1/min_friction_ratio of μ_s, every push axis min_push_ns,
+// added latency min_added_latency_ms, slopes ±min_slope_deg.
+func Required(m scenarios.Margins, axis string) float64 {
+	v := math.NaN()
+	switch {
+	case axis == "friction" && m.MinFrictionRatio > 0:
+		v = 1 / m.MinFrictionRatio
+	case len(axis) > 5 && axis[:5] == "push_" && m.MinPushNS > 0:
+		v = m.MinPushNS
+	case axis == "added_latency" && m.MinAddedLatencyMS > 0:
+		v = m.MinAddedLatencyMS
+	case axis == "slope_up" && m.MinSlopeDeg > 0:
+		v = m.MinSlopeDeg
+	case axis == "slope_down" && m.MinSlopeDeg > 0:
+		v = -m.MinSlopeDeg
+	}
+	return v
+}
+
+// judge fills Required, Meets and Shortfall: the limit must lie at least
+// as far from Safe, in the direction of Far, as the requirement.
+func (am *AxisMargin) judge(required float64) {
+	am.Required = required
+	am.Meets = am.Error == ""
+	if math.IsNaN(required) || am.Error != "" {
+		return
+	}
+	dir := 1.0
+	if am.Far < am.Safe {
+		dir = -1
+	}
+	if d := (am.Limit - required) * dir; d < 0 {
+		am.Meets = false
+		am.Shortfall = -d
+	}
+}
+
+// Margins searches the limits of a scenario's axes. The zero value of a
+// field is its default.
+type Margins struct {
+	// Dir is the folder for the run folders. Required.
+	Dir string
+	// Link overrides the scenario's link.
+	Link string
+	// Tolerance, Grid: see DefaultMarginTolerance, DefaultMarginGrid.
+	Tolerance float64
+	Grid      int
+	// Jobs runs the grid points in parallel (Scheduler.Jobs).
+	Jobs int
+	// Seeds, when above 1, runs every value with that many seeds of noise,
+	// drops and latency (SeedVariants); a value passes only when every
+	// seed passes, and its run is the worst seed's (worstRun).
+	Seeds int
+	// Runner runs one job; default rig.Run.
+	Runner RunFunc
+}
+
+// Nominal is what the margin search measures on the scenario as written
+// before it varies anything: when the push steps start and how long a step
+// takes.
+type Nominal struct {
+	// StrikeS is the simulated time of the heel strike that completes step
+	// PushStep, s; PeriodS the mean step time of the run, s.
+	StrikeS, PeriodS float64
+}
+
+// PushStep is the step whose heel strike starts the stance the push axes
+// push in (our choice: late enough for a run from an explicit state to
+// have settled, early enough to leave steps to recover in).
+const PushStep = 10
+
+// Push phases, as fractions of the nominal step period after the heel
+// strike (our choice of early, mid and late stance).
+var pushPhases = []struct {
+	name  string
+	phase float64
+}{{"early", 0.1}, {"mid", 0.5}, {"late", 0.9}}
+
+// DefaultAxes are every axis of scenarios.MarginAxes, in that order, with
+// their default ranges, pushes timed from the nominal run.
+func DefaultAxes(n Nominal) []Axis {
+	axes := []Axis{FrictionAxis()}
+	for _, dir := range []struct {
+		name string
+		sign float64
+	}{{"forward", 1}, {"backward", -1}} {
+		for _, p := range pushPhases {
+			axes = append(axes, PushAxis("push_"+dir.name+"_"+p.name, dir.sign, 40, n.StrikeS+p.phase*n.PeriodS))
+		}
+	}
+	axes = append(axes,
+		Axis{Name: "added_latency", Unit: "ms", Safe: 0, Far: 40, Apply: func(s *scenarios.Scenario, v float64) {
+			if v == 0 {
+				return // the loader refuses a latency fault without a delay
+			}
+			s.Faults = append(s.Faults, scenarios.Fault{Kind: "latency", FixedMS: v})
+		}},
+		SlopeAxis("slope_up", 10),
+		SlopeAxis("slope_down", -10),
+		Axis{Name: "noise_multiple", Unit: "×", Safe: 1, Far: 50, Apply: func(s *scenarios.Scenario, v float64) {
+			n := &s.Sensors
+			n.AngleNoiseRad = v * math.Max(n.AngleNoiseRad, TypicalAngleNoiseRad)
+			n.RateNoiseRadps = v * math.Max(n.RateNoiseRadps, TypicalRateNoiseRadps)
+			n.IMUPitchNoiseRad = v * math.Max(n.IMUPitchNoiseRad, TypicalAngleNoiseRad)
+			n.IMURateNoiseRadps = v * math.Max(n.IMURateNoiseRadps, TypicalRateNoiseRadps)
+		}},
+		// Encoder resolution in bits (counts per revolution = 2^bits), from
+		// the 12-bit default of the scenario loader down to 4 bits.
+		Axis{Name: "encoder_bits", Unit: "bit", Safe: 12, Far: 4, Apply: func(s *scenarios.Scenario, v float64) {
+			s.Sensors.EncoderCountsPerRev = int(math.Round(math.Exp2(v)))
+		}},
+		Axis{Name: "torque_fraction", Unit: "×", Safe: 1, Far: 0.05, Apply: func(s *scenarios.Scenario, v float64) {
+			if s.Actuators.TorqueLimitNM > 0 {
+				s.Actuators.TorqueLimitNM *= v
+			}
+			for k := range s.Actuators.JointTorqueLimitsNM {
+				s.Actuators.JointTorqueLimitsNM[k] *= v
+			}
+		}},
+		MassAxis("mass_plus", 50), MassAxis("mass_minus", -50),
+		LegLengthAxis("leg_length_plus", 30), LegLengthAxis("leg_length_minus", -30),
+	)
+	return axes
+}
+
+// SelectAxes picks the named axes of all, in all's order; an unknown name
+// is an error listing the known ones.
+func SelectAxes(all []Axis, names []string) ([]Axis, error) {
+	if len(names) == 0 {
+		return all, nil
+	}
+	want := map[string]bool{}
+	for _, n := range names {
+		want[n] = true
+	}
+	var out []Axis
+	for _, a := range all {
+		if want[a.Name] {
+			out = append(out, a)
+			delete(want, a.Name)
+		}
+	}
+	for n := range want {
+		return nil, rig.Configf("margins: unknown axis %q; known axes: %v", n, scenarios.MarginAxes)
+	}
+	return out, nil
+}
+
+// FrictionAxis scales μ_s and μ_k of every segment by the value (1 = the
+// scenario's floor); the limit is the ratio μ_s,min / μ_s.
+func FrictionAxis() Axis {
+	return Axis{Name: "friction", Unit: "× μ_s", Safe: 1, Far: 0.05, Apply: func(s *scenarios.Scenario, v float64) {
+		for i := range s.Terrain.Segments {
+			g := &s.Terrain.Segments[i]
+			if g.MuKinetic == 0 {
+				g.MuKinetic = 0.8 * g.MuStatic // the loader's default ratio, kept when scaling
+			}
+			g.MuStatic *= v
+			g.MuKinetic *= v
+		}
+	}}
+}
+
+// PushAxis pushes the hip with an impulse of the value (N·s, times sign:
+// +1 forward, −1 backward) over one tick at simulated time atS.
+func PushAxis(name string, sign, far, atS float64) Axis {
+	return Axis{Name: name, Unit: "N·s", Safe: 0, Far: far, Apply: func(s *scenarios.Scenario, v float64) {
+		if v == 0 {
+			return
+		}
+		s.Faults = append(s.Faults, scenarios.Fault{Kind: "push", AtS: atS, ImpulseNS: []float64{sign * v, 0}})
+	}}
+}
+
+// MassAxis scales every mass and moment of inertia of the plant by
+// 1 + v/100 (v in %), the firmware unchanged: a walker heavier or lighter
+// than the one the firmware was tuned for, its shape the same.
+func MassAxis(name string, farPct float64) Axis {
+	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
+		f := 1 + v/100
+		p := &s.Plant
+		p.HipMassKG *= f
+		p.Legs.MassKG *= f
+		p.Legs.InertiaKGM2 *= f
+		for _, o := range []*scenarios.LegOverride{p.Legs.Left, p.Legs.Right} {
+			if o != nil && o.MassKG != nil {
+				m := *o.MassKG * f
+				o.MassKG = &m
+			}
+		}
+		if p.Torso != nil {
+			t := *p.Torso
+			t.MassKG *= f
+			t.InertiaKGM2 *= f
+			p.Torso = &t
+		}
+	}}
+}
+
+// LegLengthAxis scales the legs' length, centre-of-mass distance and foot
+// radius by 1 + v/100 (v in %), the firmware unchanged.
+func LegLengthAxis(name string, farPct float64) Axis {
+	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
+		f := 1 + v/100
+		l := &s.Plant.Legs
+		l.LengthM *= f
+		l.COMM *= f
+		l.FootRadiusM *= f
+		for _, o := range []*scenarios.LegOverride{l.Left, l.Right} {
+			if o != nil && o.LengthM != nil {
+				m := *o.LengthM * f
+				o.LengthM = &m
+			}
+		}
+	}}
+}
+
+// SlopeAxis tilts every segment by the value in degrees (positive uphill).
+func SlopeAxis(name string, farDeg float64) Axis {
+	return Axis{Name: name, Unit: "°", Safe: 0, Far: farDeg, Apply: func(s *scenarios.Scenario, v float64) {
+		for i := range s.Terrain.Segments {
+			s.Terrain.Segments[i].SlopeRad += v * math.Pi / 180
+		}
+	}}
+}
+
+func (m Margins) withDefaults() Margins {
+	if m.Tolerance <= 0 {
+		m.Tolerance = DefaultMarginTolerance
+	}
+	if m.Grid < 2 {
+		m.Grid = DefaultMarginGrid
+	}
+	if m.Jobs < 1 {
+		m.Jobs = 1
+	}
+	if m.Runner == nil {
+		m.Runner = rig.Run
+	}
+	return m
+}
+
+// MeasureNominal runs the scenario as written once and returns when the
+// push steps start and the mean step time. A scenario that does not walk
+// PushStep steps cannot be pushed there: that is an error.
+func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (Nominal, MarginRun, error) {
+	m = m.withDefaults()
+	var steps []hil.StepInfo
+	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-margins-nominal"),
+		OnStep: func(s hil.StepInfo) { steps = append(steps, s) }}}
+	d := Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0]
+	run := marginRun(0, d)
+	if d.Err != nil {
+		return Nominal{}, run, d.Err
+	}
+	if len(steps) < PushStep+1 {
+		return Nominal{}, run, fmt.Errorf("margins: the scenario as written walked %d steps (%s: %s); the push axes need at least %d", len(steps), run.Outcome, run.Reason, PushStep+1)
+	}
+	var n Nominal
+	n.StrikeS = steps[PushStep-1].SimTimeS
+	for _, s := range steps {
+		n.PeriodS += s.DurationS / float64(len(steps))
+	}
+	return n, run, nil
+}
+
+// Search measures the nominal run, then searches the named axes (when
+// names is empty: the scenario's margins.axes, or all of
+// scenarios.MarginAxes). A zero Tolerance takes the scenario's
+// margins.tolerance.
+func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []string) ([]AxisMargin, error) {
+	if m.Tolerance == 0 {
+		m.Tolerance = sc.Margins.Tolerance
+	}
+	if len(names) == 0 {
+		names = sc.Margins.Axes
+	}
+	m = m.withDefaults()
+	n, _, err := m.MeasureNominal(ctx, sc)
+	if err != nil {
+		return nil, err
+	}
+	axes, err := SelectAxes(DefaultAxes(n), names)
+	if err != nil {
+		return nil, err
+	}
+	for i := range axes {
+		far, ok := sc.Margins.Far[axes[i].Name]
+		if !ok {
+			continue
+		}
+		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 {
+			return nil, rig.Configf("scenario %s: margins.far.%s %g: the search starts at %g and goes towards %g; the end must lie on that side",
+				sc.Name, axes[i].Name, far, axes[i].Safe, axes[i].Far)
+		}
+		axes[i].Far = far
+	}
+	return m.Run(ctx, sc, axes)
+}
+
+// Run searches every axis: first the coarse grids of all axes at once (in
+// parallel), then each axis's bisection.
+func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) ([]AxisMargin, error) {
+	m = m.withDefaults()
+	if m.Dir == "" {
+		return nil, rig.Configf("margins: no output folder")
+	}
+	out := make([]AxisMargin, len(axes))
+	var jobs []Job
+	for a, ax := range axes {
+		out[a] = AxisMargin{Axis: ax.Name, Unit: ax.Unit, Safe: ax.Safe, Far: ax.Far}
+		for g := 0; g < m.Grid; g++ {
+			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
+			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-grid%d", ax.Name, g))
+			if err != nil {
+				return nil, err
+			}
+			jobs = append(jobs, js...)
+		}
+	}
+	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	per := m.seeds()
+	for a, ax := range axes {
+		am := &out[a]
+		for g := 0; g < m.Grid; g++ {
+			k := (a*m.Grid + g) * per
+			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
+			am.Grid = append(am.Grid, worstOf(v, done[k:k+per]))
+		}
+		first := -1
+		for g, r := range am.Grid {
+			if r.Outcome != record.Pass {
+				first = g
+				break
+			}
+		}
+		switch first {
+		case -1:
+			am.Limit = ax.Far
+			am.LastPass = &am.Grid[m.Grid-1]
+			continue
+		case 0:
+			am.Limit = ax.Safe
+			am.Reached = true
+			am.FirstFail = &am.Grid[0]
+			am.Error = "the scenario as written fails: no margin"
+			continue
+		}
+		am.Reached = true
+		for _, r := range am.Grid[first+1:] {
+			if r.Outcome == record.Pass {
+				am.NotMonotone = true
+			}
+		}
+		pass, fail := am.Grid[first-1], am.Grid[first]
+		width := m.Tolerance * math.Abs(ax.Far-ax.Safe)
+		for i := 0; math.Abs(fail.Value-pass.Value) > width; i++ {
+			if err := ctx.Err(); err != nil {
+				return out, err
+			}
+			v := 0.5 * (pass.Value + fail.Value)
+			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
+			if err != nil {
+				return nil, err
+			}
+			r := worstOf(v, Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, js))
+			am.Bisection = append(am.Bisection, r)
+			if r.Outcome == record.Pass {
+				pass = r
+			} else {
+				fail = r
+			}
+		}
+		am.Limit = pass.Value
+		am.Tolerance = math.Abs(fail.Value - pass.Value)
+		am.LastPass, am.FirstFail = &pass, &fail
+	}
+	for i := range out {
+		out[i].judge(Required(sc.Margins, out[i].Axis))
+		if out[i].Axis == "friction" && out[i].Limit > 0 && len(sc.Terrain.Segments) > 0 {
+			mu := math.Inf(1)
+			for _, g := range sc.Terrain.Segments {
+				mu = math.Min(mu, g.MuStatic)
+			}
+			out[i].MuStaticMin = out[i].Limit * mu
+			out[i].FrictionRatio = 1 / out[i].Limit
+		}
+	}
+	return out, nil
+}
+
+// MarginsPage turns a search's result into the report's margins page.
+func MarginsPage(scenario, dir string, res []AxisMargin) report.MarginsPage {
+	pg := report.MarginsPage{Scenario: scenario, Dir: dir}
+	for _, a := range res {
+		ra := report.MarginAxis{Name: a.Axis, Unit: a.Unit, Limit: a.Limit, Required: a.Required, Reached: a.Reached, NotMonotone: a.NotMonotone}
+		if a.LastPass != nil {
+			ra.LastPassDir = a.LastPass.Dir
+		}
+		if a.FirstFail != nil {
+			ra.FirstFailDir, ra.FailReason = a.FirstFail.Dir, string(a.FirstFail.Outcome)+": "+a.FirstFail.Reason
+		}
+		for _, r := range append(append([]MarginRun(nil), a.Grid...), a.Bisection...) {
+			ra.Points = append(ra.Points, report.MarginPoint{Value: r.Value, Steps: r.Steps, Pass: r.Outcome == record.Pass})
+		}
+		pg.Axes = append(pg.Axes, ra)
+	}
+	return pg
+}
+
+// MarginsSuite is the JUnit suite of a search: one case per axis, failed
+// when the limit misses the lab's minimum (the message says by how much),
+// an error when the axis could not be searched.
+func MarginsSuite(scenario string, res []AxisMargin) report.Suite {
+	s := report.Suite{Name: scenario + " margins"}
+	for _, a := range res {
+		c := report.Case{Name: a.Axis, Class: scenario, Detail: fmt.Sprintf("limit %g %s", a.Limit, a.Unit)}
+		switch {
+		case a.Error != "":
+			c.Failure = a.Error
+		case !a.Meets:
+			c.Failure = fmt.Sprintf("margin %g %s misses the required %g %s by %g %s", a.Limit, a.Unit, a.Required, a.Unit, a.Shortfall, a.Unit)
+		}
+		s.Cases = append(s.Cases, c)
+	}
+	return s
+}
+
+func (m Margins) seeds() int {
+	if m.Seeds > 1 {
+		return m.Seeds
+	}
+	return 1
+}
+
+// jobs makes the runs of one value: one, or one per seed.
+func (m Margins) jobs(sc *scenarios.Scenario, ax Axis, v float64, tag string) ([]Job, error) {
+	name := sc.Name + "-" + tag
+	vs, err := Derive(sc, name, fmt.Sprintf("margin search: %s = %g %s", ax.Name, v, ax.Unit), func(s *scenarios.Scenario) { ax.Apply(s, v) })
+	if err != nil {
+		return nil, err
+	}
+	variants := []*scenarios.Scenario{vs}
+	if m.seeds() > 1 {
+		if variants, err = SeedVariants(vs, m.seeds()); err != nil {
+			return nil, err
+		}
+	}
+	var out []Job
+	for _, s := range variants {
+		out = append(out, Job{Scenario: s, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, s.Name)}})
+	}
+	return out, nil
+}
+
+// worstOf is the run that stands for one value run with several seeds:
+// the worst seed's (a failure when any failed).
+func worstOf(v float64, done []Done) MarginRun {
+	runs := make([]SeedRun, len(done))
+	for i, d := range done {
+		r := marginRun(v, d)
+		runs[i] = SeedRun{Outcome: r.Outcome, Steps: r.Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+	}
+	return marginRun(v, done[worstRun(runs)])
+}
+
+func marginRun(v float64, d Done) MarginRun {
+	r := MarginRun{Value: v, Dir: d.Result.Dir}
+	if d.Err != nil {
+		r.Outcome = record.Aborted
+		r.Reason = d.Err.Error()
+		return r
+	}
+	r.Outcome = d.Result.Summary.Outcome
+	r.Reason = d.Result.Summary.Reason
+	r.Steps = d.Result.Summary.Steps
+	return r
+}

@@ -1,0 +1,138 @@
+package batch
+
+// This file owns runs over many seeds (--seeds N): the same scenario with
+// N seeds of sensor noise, drops and latency, its pass rate with a Wilson
+// score interval (Wilson 1927, JASA 22:209), and the worst run.
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"path/filepath"
+
+	"gaitrig/record"
+	"gaitrig/rig"
+	"gaitrig/scenarios"
+)
+
+// WilsonZ95 is the standard normal quantile of a two-sided 95 % interval,
+// Φ⁻¹(0.975) (handbook value).
+const WilsonZ95 = 1.959963984540054
+
+// Wilson returns the Wilson score interval of a proportion with k
+// successes in n trials at normal quantile z (Wilson 1927): the p for which
+// |k/n − p| ≤ z √(p(1−p)/n). Unlike the normal approximation it stays in
+// [0, 1] and is not empty at k = 0 or k = n. n = 0 gives [0, 1].
+func Wilson(k, n int, z float64) (lo, hi float64) {
+	if n <= 0 {
+		return 0, 1
+	}
+	nf := float64(n)
+	p := float64(k) / nf
+	z2 := z * z
+	centre := (p + z2/(2*nf)) / (1 + z2/nf)
+	half := z / (1 + z2/nf) * math.Sqrt(p*(1-p)/nf+z2/(4*nf*nf))
+	return math.Max(0, centre-half), math.Min(1, centre+half)
+}
+
+// SeedRun is one seed's run.
+type SeedRun struct {
+	Seed    int64          `json:"seed"`
+	Outcome record.Outcome `json:"outcome"`
+	Reason  string         `json:"reason,omitempty"`
+	Steps   int            `json:"steps"`
+	// PeakUtilization is the run's peak friction utilization, the tie
+	// breaker for the worst run among passes.
+	PeakUtilization float64 `json:"peak_friction_utilization"`
+	Dir             string  `json:"run_dir"`
+}
+
+// SeedsResult is the pass rate over seeds.
+type SeedsResult struct {
+	Scenario string    `json:"scenario"`
+	Runs     []SeedRun `json:"runs"`
+	Passed   int       `json:"passed"`
+	N        int       `json:"n"`
+	Rate     float64   `json:"pass_rate"`
+	// Low and High bound the 95 % Wilson score interval of the pass rate.
+	Low  float64 `json:"pass_rate_low"`
+	High float64 `json:"pass_rate_high"`
+	// Worst is the index in Runs of the worst run: a failure with the
+	// fewest steps, else the pass with the highest friction utilization.
+	Worst   int    `json:"worst"`
+	Caution string `json:"caution"`
+}
+
+// SeedVariants derives n variants of sc with sensors.seed = sc's seed + i
+// (the seed of the sensor noise and the random link faults alike).
+func SeedVariants(sc *scenarios.Scenario, n int) ([]*scenarios.Scenario, error) {
+	if n < 1 {
+		return nil, rig.Configf("seeds: want at least 1, got %d", n)
+	}
+	out := make([]*scenarios.Scenario, n)
+	for i := range out {
+		seed := sc.Sensors.Seed + int64(i)
+		v, err := Derive(sc, fmt.Sprintf("%s-seed%d", sc.Name, seed), fmt.Sprintf("sensors.seed %d (run %d of %d seeds)", seed, i+1, n), func(s *scenarios.Scenario) {
+			s.Sensors.Seed = seed
+		})
+		if err != nil {
+			return nil, err
+		}
+		out[i] = v
+	}
+	return out, nil
+}
+
+// RunSeeds runs sc with n seeds on the scheduler s (its Jobs and Runner;
+// Options are every run's rig options, with RunDir set per seed under
+// dir).
+func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o rig.Options, dir string) (SeedsResult, error) {
+	vs, err := SeedVariants(sc, n)
+	if err != nil {
+		return SeedsResult{}, err
+	}
+	jobs := make([]Job, n)
+	for i, v := range vs {
+		oi := o
+		oi.RunDir = filepath.Join(dir, v.Name)
+		jobs[i] = Job{Scenario: v, Options: oi}
+	}
+	res := SeedsResult{Scenario: sc.Name, N: n, Caution: record.Caution}
+	for i, d := range s.RunAll(ctx, jobs) {
+		r := SeedRun{Seed: vs[i].Sensors.Seed, Dir: d.Result.Dir}
+		if d.Err != nil {
+			r.Outcome, r.Reason = record.Aborted, d.Err.Error()
+		} else {
+			r.Outcome, r.Reason, r.Steps = d.Result.Summary.Outcome, d.Result.Summary.Reason, d.Result.Summary.Steps
+			r.PeakUtilization = d.Result.Summary.PeakFrictionUtilization
+		}
+		if r.Outcome == record.Pass {
+			res.Passed++
+		}
+		res.Runs = append(res.Runs, r)
+	}
+	res.Rate = float64(res.Passed) / float64(n)
+	res.Low, res.High = Wilson(res.Passed, n, WilsonZ95)
+	res.Worst = worstRun(res.Runs)
+	return res, nil
+}
+
+// worstRun picks the failure with the fewest steps, else the pass with the
+// highest peak friction utilization; the first on ties.
+func worstRun(runs []SeedRun) int {
+	worst := 0
+	key := func(r SeedRun) (bool, float64) {
+		if r.Outcome != record.Pass {
+			return true, -float64(r.Steps)
+		}
+		return false, r.PeakUtilization
+	}
+	for i := 1; i < len(runs); i++ {
+		fi, ki := key(runs[i])
+		fw, kw := key(runs[worst])
+		if (fi && !fw) || (fi == fw && ki > kw) {
+			worst = i
+		}
+	}
+	return worst
+}

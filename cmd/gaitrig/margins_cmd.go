@@ -1,0 +1,173 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+
+	"gaitrig/batch"
+	"gaitrig/record"
+	"gaitrig/report"
+	"gaitrig/rig"
+)
+
+func init() {
+	commands["margins"] = command{"search how far each condition can go before the firmware fails", cmdMargins}
+	jsonResults["margins"] = marginsDoc{}
+}
+
+func cmdMargins(args []string, stdout, stderr io.Writer) int {
+	c := newCmdline("margins", "SCENARIO", `
+The safety envelope by search. For each axis (floor friction; a forward and a
+backward hip push at early, mid and late stance; added command latency; slope
+up and down; sensor noise multiple; encoder bits; torque-limit fraction; plant
+mass and leg length off by a percentage while the firmware is unchanged)
+the rig runs a coarse grid from the scenario as written towards harder
+conditions, then bisects between the last pass and the first fail until the
+bracket is narrower than the tolerance. Each limit comes with the two runs
+that decided it; "not monotone" marks an axis where a harder value passed
+again. The scenario's margins block chooses the axes and sets the minima a
+lab requires (min_friction_ratio, min_push_ns, min_added_latency_ms,
+min_slope_deg); the table says which margin misses its minimum and by how
+much. Writes margins.html (one survival plot per axis), junit.xml and
+margins.json into the search's folder. Exit code 0 when every axis was
+searched and meets its minimum, 1 otherwise.`, stdout, stderr)
+	link := c.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
+	out := c.String("out", "runs", "parent folder for the run folders")
+	asJSON := c.jsonFlag()
+	tol := c.Float64("tolerance", 0, "bisection stops at this fraction of the axis range (default: the scenario's margins.tolerance, 0.02)")
+	jobs := c.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
+	seeds := c.Int("seeds", 1, "run every value with N seeds of noise, drops and latency; a value passes only when all pass")
+	if done, code := c.parse(args); done {
+		return code
+	}
+	if c.NArg() != 1 {
+		return c.usageError("want exactly one SCENARIO")
+	}
+	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds}
+	if *link != "" {
+		spec, err := rig.ParseLink(*link)
+		if err != nil {
+			fmt.Fprintln(stderr, "gaitrig margins:", err)
+			return exitConfig
+		}
+		m.Link = spec.String()
+	}
+	sc, err := resolveScenario(c.Arg(0))
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	if m.Dir, err = batch.NewDir(*out, "margins"); err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitConfig
+	}
+	ctx, stop := signalContext()
+	defer stop()
+	res, err := m.Search(ctx, sc, nil)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	files, ferr := writeMarginsFiles(m.Dir, sc.Name, res)
+	if ferr != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", ferr)
+	}
+	if *asJSON {
+		enc := json.NewEncoder(stdout)
+		enc.SetEscapeHTML(false)
+		enc.SetIndent("", "  ")
+		doc := marginsDoc{sc.Name, m.Dir, res, record.Caution}
+		if err := enc.Encode(rig.JSONSafe(doc)); err != nil {
+			fmt.Fprintln(stderr, "gaitrig margins:", err)
+			return exitFail
+		}
+	} else {
+		fmt.Fprintf(stdout, "margins of %s, run folders in %s\n\n", sc.Name, m.Dir)
+		fmt.Fprintf(stdout, "%-20s %12s %-6s %10s  %s\n", "axis", "limit", "unit", "±", "decided by (last pass / first fail)")
+		for _, a := range res {
+			note := ""
+			if a.NotMonotone {
+				note = " NOT MONOTONE"
+			}
+			if !a.Reached {
+				note += fmt.Sprintf(" (passed up to the end of the range, %g)", a.Far)
+			}
+			fmt.Fprintf(stdout, "%-20s %12.4g %-6s %10.3g %s\n", a.Axis, a.Limit, a.Unit, a.Tolerance, note)
+			if a.Error != "" {
+				fmt.Fprintf(stdout, "    %s\n", a.Error)
+			}
+			if a.FrictionRatio > 0 {
+				fmt.Fprintf(stdout, "    μ_s,min %.4g; friction ratio μ_s/μ_s,min %.3g\n", a.MuStaticMin, a.FrictionRatio)
+			}
+			if !math.IsNaN(a.Required) {
+				if a.Meets {
+					fmt.Fprintf(stdout, "    meets the required %g %s\n", a.Required, a.Unit)
+				} else {
+					fmt.Fprintf(stdout, "    MISSES the required %g %s by %g %s\n", a.Required, a.Unit, a.Shortfall, a.Unit)
+				}
+			}
+			if a.LastPass != nil {
+				fmt.Fprintf(stdout, "    pass %g: %s\n", a.LastPass.Value, a.LastPass.Dir)
+			}
+			if a.FirstFail != nil {
+				fmt.Fprintf(stdout, "    fail %g: %s (%s: %s)\n", a.FirstFail.Value, a.FirstFail.Dir, a.FirstFail.Outcome, a.FirstFail.Reason)
+			}
+		}
+		for _, f := range files {
+			fmt.Fprintln(stdout, "wrote", f)
+		}
+		fmt.Fprintln(stdout)
+		fmt.Fprintln(stdout, record.Caution)
+	}
+	code := exitPass
+	for _, a := range res {
+		if !a.Meets {
+			code = exitFail
+		}
+	}
+	if ferr != nil {
+		code = exitFail
+	}
+	return code
+}
+
+// marginsDoc is the JSON of a margin search (stdout with --json, and
+// margins.json in the search's folder).
+type marginsDoc struct {
+	Scenario string             `json:"scenario"`
+	Dir      string             `json:"dir"`
+	Axes     []batch.AxisMargin `json:"axes"`
+	Caution  string             `json:"caution"`
+}
+
+// writeMarginsFiles writes the search's page, JUnit XML and JSON into its
+// folder and returns their paths.
+func writeMarginsFiles(dir, scenario string, res []batch.AxisMargin) ([]string, error) {
+	page := filepath.Join(dir, report.MarginsHTMLFile)
+	if err := report.WriteMarginsHTML(page, batch.MarginsPage(scenario, dir, res)); err != nil {
+		return nil, err
+	}
+	junit := filepath.Join(dir, "junit.xml")
+	var b bytes.Buffer
+	if err := report.WriteJUnit(&b, batch.MarginsSuite(scenario, res)); err != nil {
+		return nil, err
+	}
+	if err := os.WriteFile(junit, b.Bytes(), 0o644); err != nil {
+		return nil, err
+	}
+	js, err := json.MarshalIndent(rig.JSONSafe(marginsDoc{scenario, dir, res, record.Caution}), "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	jsPath := filepath.Join(dir, "margins.json")
+	if err := os.WriteFile(jsPath, append(js, '\n'), 0o644); err != nil {
+		return nil, err
+	}
+	return []string{page, junit, jsPath}, nil
+}
