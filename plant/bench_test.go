@@ -14,7 +14,13 @@ func benchWalker(b *testing.B, torso bool) (*Model, State) {
 }
 
 func benchWalkerSub(b *testing.B, torso bool, subSteps int) (*Model, State) {
+	return benchWalkerOn(b, torso, subSteps, false)
+}
+
+// benchWalkerOn is benchWalkerSub with the ground a belt when belt is set.
+func benchWalkerOn(b *testing.B, torso bool, subSteps int, belt bool) (*Model, State) {
 	p := DemoParams()
+	p.Terrain.Segments[0].Belt = belt
 	if !torso {
 		p.Torso = nil
 	}
@@ -46,18 +52,38 @@ func benchWalkerSub(b *testing.B, torso bool, subSteps int) (*Model, State) {
 func benchTick(b *testing.B, torso bool) { benchTickSub(b, torso, 0) }
 
 func benchTickSub(b *testing.B, torso bool, subSteps int) {
-	m, s := benchWalkerSub(b, torso, subSteps)
-	start := s
+	benchTickOn(b, torso, subSteps, nil)
+}
+
+// benchTickOn is benchTickSub on a belt moving with the given motion (nil:
+// fixed ground). The walker is put on the belt with MoveWithBelt.
+func benchTickOn(b *testing.B, torso bool, subSteps int, belt *BeltMotion) {
+	m, s := benchWalkerOn(b, torso, subSteps, belt != nil)
 	var in Input
+	if belt != nil {
+		m.MoveWithBelt(&s, belt.Speed)
+		in.Belt = *belt
+	}
+	start := s
+	limit := 60.0
+	if belt != nil && belt.Accel != 0 {
+		// The belt's acceleration tilts the walker's apparent gravity
+		// forward: start again before the hanging torso swings over.
+		limit = 5
+	}
 	var r TickResult
 	b.ReportAllocs()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
+		if belt != nil {
+			// The speed at the start of each tick follows the acceleration.
+			in.Belt.Speed = belt.Speed + belt.Accel*(s.T-start.T)
+		}
 		m.Step(&s, &in, 1e-3, &r)
 		if r.NumEvents > 0 || r.Contacts[0].Mode != Rolling {
 			b.Fatalf("tick %d: events %v, stance mode %v", i, r.Events[:r.NumEvents], r.Contacts[0].Mode)
 		}
-		if s.T > 60 {
+		if s.T > limit {
 			s = start
 		}
 	}
@@ -69,6 +95,19 @@ func BenchmarkTickCompass(b *testing.B) { benchTick(b, false) }
 
 // BenchmarkTickTorso: the same with a torso (5 degrees of freedom).
 func BenchmarkTickTorso(b *testing.B) { benchTick(b, true) }
+
+// BenchmarkTickBelt: BenchmarkTickCompass and BenchmarkTickTorso with the
+// stance foot rolling on a belt, at a constant 1.2 m/s and accelerating at
+// 0.5 m/s² (the belt speed then grows without bound, which the physics
+// does not mind). Issue 11 asks for at most 10 % over fixed ground.
+func BenchmarkTickBelt(b *testing.B) {
+	for _, torso := range []bool{false, true} {
+		for _, mo := range []BeltMotion{{Speed: 1.2}, {Speed: 1.2, Accel: 0.5}} {
+			name := fmt.Sprintf("torso=%v/accel=%g", torso, mo.Accel)
+			b.Run(name, func(b *testing.B) { benchTickOn(b, torso, 0, &mo) })
+		}
+	}
+}
 
 // BenchmarkTickCompassSubSteps: the compass tick with other numbers of RK4
 // sub-steps per 1 ms tick (the default is 4), for choosing the trade-off.
