@@ -41,6 +41,7 @@ var AlarmKinds = []string{
 	AlarmFall, AlarmNonFinite, AlarmWatchdog, AlarmBadFrame, AlarmBadTorque,
 	AlarmTorqueSaturation, AlarmLinkLost, AlarmLinkRestored,
 	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
+	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -62,6 +63,11 @@ var DefaultSeverity = map[string]Severity{
 	AlarmDeadlineMiss:     SeverityWarn,
 	AlarmFirmwareFault:    SeverityTrip,
 	AlarmVersionMismatch:  SeverityTrip,
+	// Treadmill (treadmill.go): near an end the firmware still has room to
+	// act; past it the walker is off the belt; a caught fall ends a trial.
+	AlarmBeltEndNear:   SeverityWarn,
+	AlarmBeltEndPassed: SeverityTrip,
+	AlarmHarnessCaught: SeverityTrip,
 }
 
 // Criteria are the pass criteria of a run. A criterion left out (nil) is

@@ -248,3 +248,12 @@ func (p *BeltProfile) Validate() error {
 	}
 	return nil
 }
+
+// BeltEnds returns the rear and front end points of the belt segment (its
+// rollers) and true, or false without a belt.
+func (m *Model) BeltEnds() (rear, front [2]float64, ok bool) {
+	if b := m.BeltSegment(); b >= 0 {
+		return m.terrain[b].p0, m.terrain[b].p1, true
+	}
+	return rear, front, false
+}

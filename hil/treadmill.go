@@ -1,0 +1,272 @@
+package hil
+
+// This file owns the treadmill side of a run: the belt's speed for each
+// tick (its profile, and the perturbation pulses timed by the walker's
+// steps), the walker's position on the belt with the alarms near and past
+// its ends, and the overhead fall-arrest harness.
+
+import (
+	"fmt"
+	"math"
+
+	"gaitrig/bridges/protocol"
+	"gaitrig/plant"
+)
+
+// Treadmill alarm kinds (listed in AlarmKinds with their severities).
+const (
+	AlarmBeltEndNear   = "belt_end_near"   // the hip or a foot within Belt.EndMargin of a belt end
+	AlarmBeltEndPassed = "belt_end_passed" // the hip or a foot beyond a belt end: off the belt
+	AlarmHarnessCaught = "harness_caught"  // the fall-arrest rope caught the walker (value: peak rope force)
+)
+
+// Belt is the treadmill of a run. The belt itself is the plant terrain's
+// belt segment (its length and place); this is how it is driven and
+// watched.
+type Belt struct {
+	// Profile is the belt speed as a function of time, pulses at fixed
+	// times included.
+	Profile plant.BeltProfile
+	// StepPulses are perturbations timed by the gait.
+	StepPulses []StepPulse
+	// EndMargin raises belt_end_near when the hip or a foot comes within
+	// this distance of either end of the belt, m; 0 means DefaultEndMargin.
+	EndMargin float64
+}
+
+// DefaultEndMargin is the default distance from a belt end at which
+// belt_end_near is raised: a little more than half a step of the demo
+// walker, so the alarm leaves a step to react (our choice).
+const DefaultEndMargin = 0.3
+
+// StepPulse is a belt perturbation that starts at a phase of a step: at
+// the heel strike that completes step AtStep plus Phase times that step's
+// duration (Phase 0.1: early stance of the next step). Pulse gives its
+// size and shape; its Start is filled in when the step happens.
+type StepPulse struct {
+	AtStep int
+	Phase  float64
+	Pulse  plant.BeltPulse
+}
+
+// Harness is the overhead fall-arrest harness: a rope from a fixed point
+// to the hip that pulls only when stretched beyond its length, as a stiff
+// damped one-sided spring: tension k·(d − L) + c·ḋ while d > L, never
+// negative, along the rope toward the anchor. Whether a catch ends the
+// run is the severity of harness_caught (default trip).
+type Harness struct {
+	// Anchor is the rope's fixed point (x, y), m.
+	Anchor [2]float64
+	// Length is the rope's length, m: the hip distance from Anchor at
+	// which the rope goes taut.
+	Length float64
+	// Stiffness k, N/m; 0 means DefaultRopeStiffness.
+	Stiffness float64
+	// Damping c, N·s/m; 0 means DefaultRopeDamping.
+	Damping float64
+}
+
+// Defaults of the harness rope, for a walker of tens of kilograms (demo
+// constants of our own, not a rope's data sheet): the demo walker (28 kg)
+// hanging still stretches it by 1.4 cm, and the damping makes a catch
+// settle within a few bounces (damping ratio about 0.5 on the whole
+// walker's mass). At a 1 kHz tick the rope's period (about 0.23 s on the
+// hip alone) spans hundreds of ticks, so holding its force over a tick is
+// accurate.
+const (
+	DefaultRopeStiffness = 20000.0 // N/m
+	DefaultRopeDamping   = 750.0   // N·s/m
+)
+
+// treadmill is the run's belt and harness state, allocated in newTreadmill.
+type treadmill struct {
+	belt       *Belt
+	profile    plant.BeltProfile // Belt.Profile with room for the step pulses
+	pending    []StepPulse       // step pulses not yet started
+	rear, tan  [2]float64        // belt rear end and unit tangent
+	length     float64
+	margin     float64
+	near       bool // belt_end_near raised and not yet cleared
+	passed     bool // belt_end_passed raised
+	speed, pos float64
+
+	harness        *Harness
+	taut           bool
+	tension, peak  float64
+	caughtReported bool
+}
+
+func (r *runner) newTreadmill() error {
+	tm := &r.tm
+	if b := r.cfg.Belt; b != nil {
+		rear, front, ok := r.m.BeltEnds()
+		if !ok {
+			return fmt.Errorf("hil: a belt is configured but the terrain has no belt segment")
+		}
+		if err := b.Profile.Validate(); err != nil {
+			return fmt.Errorf("hil: belt profile: %w", err)
+		}
+		tm.belt = b
+		tm.rear = rear
+		dx, dy := front[0]-rear[0], front[1]-rear[1]
+		tm.length = math.Hypot(dx, dy)
+		tm.tan = [2]float64{dx / tm.length, dy / tm.length}
+		tm.margin = b.EndMargin
+		if tm.margin == 0 {
+			tm.margin = DefaultEndMargin
+		}
+		// The pulses slice has room for every step pulse, so starting one
+		// in the tick loop does not allocate.
+		tm.profile.Points = b.Profile.Points
+		tm.profile.Pulses = make([]plant.BeltPulse, len(b.Profile.Pulses), len(b.Profile.Pulses)+len(b.StepPulses))
+		copy(tm.profile.Pulses, b.Profile.Pulses)
+		tm.pending = append([]StepPulse(nil), b.StepPulses...)
+	}
+	if h := r.cfg.Harness; h != nil {
+		hh := *h
+		if hh.Stiffness == 0 {
+			hh.Stiffness = DefaultRopeStiffness
+		}
+		if hh.Damping == 0 {
+			hh.Damping = DefaultRopeDamping
+		}
+		if !(hh.Length > 0) || !(hh.Stiffness > 0) || !(hh.Damping >= 0) || !finite(hh.Anchor[0]) || !finite(hh.Anchor[1]) {
+			return fmt.Errorf("hil: harness: want a finite anchor, a length > 0 m, a stiffness > 0 N/m and a damping ≥ 0 N·s/m")
+		}
+		tm.harness = &hh
+	}
+	return nil
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// beltInput sets the belt motion of the tick [t, t+dt] and adds the rope's
+// pull to the hip force.
+func (r *runner) treadmillInput(t float64) {
+	tm, pt := &r.tm, &r.pt
+	if tm.belt != nil {
+		pt.in.Belt = tm.profile.Motion(t, r.dt)
+		tm.speed = pt.in.Belt.Speed
+	}
+	if h := tm.harness; h != nil {
+		f := ropeForce(h, &pt.s)
+		tm.tension = math.Hypot(f[0], f[1])
+		pt.in.HipForce[0] += f[0]
+		pt.in.HipForce[1] += f[1]
+	}
+}
+
+// ropeForce is the harness rope's force on the hip at state s: the
+// one-sided spring-damper along the rope, zero while the rope is slack or
+// would push.
+func ropeForce(h *Harness, s *plant.State) [2]float64 {
+	dx, dy := s.Q[0]-h.Anchor[0], s.Q[1]-h.Anchor[1]
+	d := math.Hypot(dx, dy)
+	if d <= h.Length {
+		return [2]float64{}
+	}
+	ux, uy := dx/d, dy/d
+	rate := ux*s.V[0] + uy*s.V[1] // ḋ
+	tension := h.Stiffness*(d-h.Length) + h.Damping*rate
+	if tension <= 0 {
+		return [2]float64{}
+	}
+	return [2]float64{-tension * ux, -tension * uy}
+}
+
+// treadmillCheck watches the walker's place on the belt and the harness
+// after the tick ending at the plant's current state.
+func (r *runner) treadmillCheck() {
+	tm, pt := &r.tm, &r.pt
+	if tm.belt != nil {
+		tm.speed = pt.in.Belt.Speed + pt.in.Belt.Accel*r.dt
+		pose := r.m.Points(&pt.s)
+		tm.pos = tm.along(pose.Hip)
+		least, what := tm.pos, "hip"
+		for i := 0; i < r.m.NumFeet(); i++ {
+			if a := tm.along(pose.Foot[i]); a < least {
+				least, what = a, footName(i)+" foot"
+			}
+			if a := tm.length - tm.along(pose.Foot[i]); a < least {
+				least, what = a, footName(i)+" foot"
+			}
+		}
+		if a := tm.length - tm.pos; a < least {
+			least, what = a, "hip"
+		}
+		switch {
+		case least < 0 && !tm.passed:
+			tm.passed = true
+			if r.al.raise(AlarmBeltEndPassed, pt.tick, pt.s.T, -1, -1, func() (string, map[string]float64) {
+				return fmt.Sprintf("the %s is %.3g m beyond an end of the %.3g m belt: the walker is off the belt", what, -least, tm.length),
+					map[string]float64{"value": least, "position_m": tm.pos}
+			}) {
+				r.trip(protocol.StopEStop)
+			}
+		case least < tm.margin && !tm.near:
+			tm.near = true
+			if r.al.raise(AlarmBeltEndNear, pt.tick, pt.s.T, -1, -1, func() (string, map[string]float64) {
+				return fmt.Sprintf("the %s is %.3g m from an end of the belt (margin %.3g m); the hip is %.3g m from the rear end", what, least, tm.margin, tm.pos),
+					map[string]float64{"value": least, "limit": tm.margin, "position_m": tm.pos}
+			}) {
+				r.trip(protocol.StopEStop)
+			}
+		case least >= tm.margin:
+			tm.near = false
+		}
+	}
+	if tm.harness != nil {
+		taut := tm.tension > 0
+		switch {
+		case taut && tm.tension >= tm.peak:
+			tm.peak = tm.tension
+		case tm.taut && !tm.caughtReported:
+			// The tension fell from its peak: the catch has happened.
+			tm.caughtReported = true
+			peak := tm.peak
+			if r.al.raise(AlarmHarnessCaught, pt.tick, pt.s.T, -1, -1, func() (string, map[string]float64) {
+				return fmt.Sprintf("the harness caught the walker: peak rope force %.4g N", peak), map[string]float64{"value": peak}
+			}) {
+				r.trip(protocol.StopEStop)
+			}
+		}
+		if !taut && tm.taut {
+			// Slack again: the next catch is a new one.
+			tm.caughtReported, tm.peak = false, 0
+		}
+		tm.taut = taut
+	}
+}
+
+// along is the distance of p from the belt's rear end, along the belt.
+func (tm *treadmill) along(p [2]float64) float64 {
+	return (p[0]-tm.rear[0])*tm.tan[0] + (p[1]-tm.rear[1])*tm.tan[1]
+}
+
+// beltStep starts the step pulses due at the heel strike that completed
+// step index (of duration dur) at time t.
+func (r *runner) beltStep(index int, t, dur float64) {
+	tm := &r.tm
+	for i := 0; i < len(tm.pending); {
+		p := tm.pending[i]
+		if p.AtStep != index {
+			i++
+			continue
+		}
+		pu := p.Pulse
+		pu.Start = t + p.Phase*dur
+		tm.profile.Pulses = append(tm.profile.Pulses, pu) // within capacity
+		tm.pending = append(tm.pending[:i], tm.pending[i+1:]...)
+		r.al.info("belt_pulse", r.pt.tick, t, fmt.Sprintf("belt pulse of %+.3g m/s over %.3g s scheduled at %.4g s (step %d, phase %.2f)", pu.Delta, pu.Rise, pu.Start, index, p.Phase),
+			map[string]float64{"start_s": pu.Start, "delta_mps": pu.Delta})
+	}
+}
+
+// posOrNaN is the hip's position on the belt for the telemetry row, NaN
+// without a belt.
+func (tm *treadmill) posOrNaN() float64 {
+	if tm.belt == nil {
+		return math.NaN()
+	}
+	return tm.pos
+}
