@@ -32,6 +32,9 @@ const (
 	AlarmDeadlineMiss     = "deadline_miss"     // a wall-clock tick started late
 	AlarmFirmwareFault    = "firmware_fault"    // the firmware set its fault status bit
 	AlarmVersionMismatch  = "version_mismatch"  // the firmware speaks another protocol version
+	AlarmBeltEndNear      = "belt_end_near"     // the hip or a foot within the belt's end margin of a belt end
+	AlarmBeltEndPassed    = "belt_end_passed"   // the hip or a foot beyond an end of the belt: off the treadmill
+	AlarmHarnessCaught    = "harness_caught"    // the fall-arrest harness caught the walker (value: peak rope force, N)
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and

@@ -13,13 +13,6 @@ import (
 	"gaitrig/plant"
 )
 
-// Treadmill alarm kinds (listed in AlarmKinds with their severities).
-const (
-	AlarmBeltEndNear   = "belt_end_near"   // the hip or a foot within Belt.EndMargin of a belt end
-	AlarmBeltEndPassed = "belt_end_passed" // the hip or a foot beyond a belt end: off the belt
-	AlarmHarnessCaught = "harness_caught"  // the fall-arrest rope caught the walker (value: peak rope force)
-)
-
 // Belt is the treadmill of a run. The belt itself is the plant terrain's
 // belt segment (its length and place); this is how it is driven and
 // watched.
@@ -50,16 +43,18 @@ type StepPulse struct {
 }
 
 // Harness is the overhead fall-arrest harness: a rope from a fixed point
-// to the hip that pulls only when stretched beyond its length, as a stiff
-// damped one-sided spring: tension k·(d − L) + c·ḋ while d > L, never
-// negative, along the rope toward the anchor. Whether a catch ends the
-// run is the severity of harness_caught (default trip).
+// Height above the hip's initial position, of length Height + Drop, that
+// pulls the hip only when stretched beyond its length, as a stiff damped
+// one-sided spring: tension k·(d − L) + c·ḋ while d > L (d the hip's
+// distance from the anchor), never negative, along the rope toward the
+// anchor. Whether a catch ends the run is the severity of harness_caught
+// (default trip).
 type Harness struct {
-	// Anchor is the rope's fixed point (x, y), m.
-	Anchor [2]float64
-	// Length is the rope's length, m: the hip distance from Anchor at
-	// which the rope goes taut.
-	Length float64
+	// Height is the anchor's height above the hip's initial position, m.
+	Height float64
+	// Drop is the slack: how far the hip may drop straight below the
+	// anchor before the rope goes taut, m.
+	Drop float64
 	// Stiffness k, N/m; 0 means DefaultRopeStiffness.
 	Stiffness float64
 	// Damping c, N·s/m; 0 means DefaultRopeDamping.
@@ -91,6 +86,8 @@ type treadmill struct {
 	speed, pos float64
 
 	harness        *Harness
+	anchor         [2]float64 // the rope's fixed point
+	rope           float64    // its length
 	taut           bool
 	tension, peak  float64
 	caughtReported bool
@@ -130,10 +127,12 @@ func (r *runner) newTreadmill() error {
 		if hh.Damping == 0 {
 			hh.Damping = DefaultRopeDamping
 		}
-		if !(hh.Length > 0) || !(hh.Stiffness > 0) || !(hh.Damping >= 0) || !finite(hh.Anchor[0]) || !finite(hh.Anchor[1]) {
-			return fmt.Errorf("hil: harness: want a finite anchor, a length > 0 m, a stiffness > 0 N/m and a damping ≥ 0 N·s/m")
+		if !(hh.Height > 0) || !(hh.Drop > 0) || !(hh.Stiffness > 0) || !(hh.Damping >= 0) || !finite(hh.Height+hh.Drop+hh.Stiffness+hh.Damping) {
+			return fmt.Errorf("hil: harness: want a height > 0 m, a drop > 0 m, a stiffness > 0 N/m and a damping ≥ 0 N·s/m")
 		}
 		tm.harness = &hh
+		tm.anchor = [2]float64{r.pt.s.Q[0], r.pt.s.Q[1] + hh.Height}
+		tm.rope = hh.Height + hh.Drop
 	}
 	return nil
 }
@@ -149,7 +148,7 @@ func (r *runner) treadmillInput(t float64) {
 		tm.speed = pt.in.Belt.Speed
 	}
 	if h := tm.harness; h != nil {
-		f := ropeForce(h, &pt.s)
+		f := ropeForce(h, tm.anchor, tm.rope, &pt.s)
 		tm.tension = math.Hypot(f[0], f[1])
 		pt.in.HipForce[0] += f[0]
 		pt.in.HipForce[1] += f[1]
@@ -159,15 +158,15 @@ func (r *runner) treadmillInput(t float64) {
 // ropeForce is the harness rope's force on the hip at state s: the
 // one-sided spring-damper along the rope, zero while the rope is slack or
 // would push.
-func ropeForce(h *Harness, s *plant.State) [2]float64 {
-	dx, dy := s.Q[0]-h.Anchor[0], s.Q[1]-h.Anchor[1]
+func ropeForce(h *Harness, anchor [2]float64, length float64, s *plant.State) [2]float64 {
+	dx, dy := s.Q[0]-anchor[0], s.Q[1]-anchor[1]
 	d := math.Hypot(dx, dy)
-	if d <= h.Length {
+	if d <= length {
 		return [2]float64{}
 	}
 	ux, uy := dx/d, dy/d
 	rate := ux*s.V[0] + uy*s.V[1] // ḋ
-	tension := h.Stiffness*(d-h.Length) + h.Damping*rate
+	tension := h.Stiffness*(d-length) + h.Damping*rate
 	if tension <= 0 {
 		return [2]float64{}
 	}
@@ -179,7 +178,11 @@ func ropeForce(h *Harness, s *plant.State) [2]float64 {
 func (r *runner) treadmillCheck() {
 	tm, pt := &r.tm, &r.pt
 	if tm.belt != nil {
-		tm.speed = pt.in.Belt.Speed + pt.in.Belt.Accel*r.dt
+		mo := &pt.in.Belt
+		tm.speed = mo.Speed + mo.Accel*r.dt
+		// The surface's travel over the tick, along x (the speed is
+		// positive backward).
+		r.steps.beltX -= (mo.Speed*r.dt + 0.5*mo.Accel*r.dt*r.dt) * tm.tan[0]
 		pose := r.m.Points(&pt.s)
 		tm.pos = tm.along(pose.Hip)
 		least, what := tm.pos, "hip"

@@ -21,6 +21,20 @@ var errNaturalGait = errors.New("rig: the scenario starts from the natural gait"
 // scenario that cannot give a state is a configuration error; a gait
 // finder that finds no gait is not (the walker, not the file, is at fault).
 func InitialState(sc *scenarios.Scenario, model *plant.Model) (plant.State, error) {
+	s, err := initialOnSurface(sc, model)
+	if err == nil {
+		// The scenario's rates (and the gait finder's state) are relative
+		// to the ground under the walker; on a belt that ground moves.
+		if b := sc.Treadmill(); b != nil {
+			model.MoveWithBelt(&s, b.Profile.Speed(0))
+		}
+	}
+	return s, err
+}
+
+// initialOnSurface is InitialState relative to the surface under the
+// walker.
+func initialOnSurface(sc *scenarios.Scenario, model *plant.Model) (plant.State, error) {
 	s, err := explicitState(sc, model)
 	if err == nil {
 		return s, nil
