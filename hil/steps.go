@@ -29,7 +29,7 @@ type stepTracker struct {
 	// step's start: a step's length is measured on the belt, the distance
 	// the walker covers relative to the ground under it.
 	beltX, beltStart float64
-	sumTime   float64
+	sumTime          float64
 }
 
 // contactExtremes tracks the peak friction utilization and the least normal

@@ -1,0 +1,224 @@
+package rig
+
+import (
+	"context"
+	"math"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"gaitrig/hil"
+	"gaitrig/record"
+	"gaitrig/scenarios"
+)
+
+// runFolder runs a scenario in lockstep against the built-in reference
+// firmware and opens its run folder.
+func runFolder(t *testing.T, s *scenarios.Scenario) (Result, *record.Run, []record.Tick) {
+	t.Helper()
+	dir := filepath.Join(t.TempDir(), s.Name)
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	res, err := Run(ctx, s, Options{RunDir: dir, Clock: hil.Lockstep})
+	if err != nil {
+		t.Fatal(err)
+	}
+	run, err := record.Open(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ticks, trunc, err := run.AllTicks()
+	if err != nil || trunc {
+		t.Fatalf("telemetry: %v (truncated %v)", err, trunc)
+	}
+	return res, run, ticks
+}
+
+// variant parses a built-in scenario's text with edits applied (each a
+// pair old, new of exact text), so a test changes one thing and keeps
+// the rest of the file.
+func variant(t *testing.T, name string, edits ...string) *scenarios.Scenario {
+	t.Helper()
+	s, err := scenarios.LoadBuiltin(name)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := string(s.Text)
+	for i := 0; i+1 < len(edits); i += 2 {
+		if !strings.Contains(text, edits[i]) {
+			t.Fatalf("%s has no %q to edit", name, edits[i])
+		}
+		text = strings.Replace(text, edits[i], edits[i+1], 1)
+	}
+	v, err := scenarios.Parse(name+"-variant.yaml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return v
+}
+
+// TestTreadmillSteadyIsLevelWalking: Galilean invariance through the whole
+// loop. treadmill-steady is level-demo (same walker, controller and state
+// relative to the ground) on a belt at a constant 0.78 m/s, so relative to
+// the belt its motion must be level-demo's. The plant alone agrees to
+// 1e-9 (plant/belt_test.go); through the loop the readings travel as
+// float32 (docs/protocol.md), so a rounding-level difference of the two
+// runs can flip the last bit of a reading and the firmware's torque with
+// it, and the gait's phase is neutrally stable, so such differences add
+// up as a small time shift. Seen: 1e-15 after 1 s, 1e-9 after 5 s, then
+// jumps to about 1e-4 (m, rad) by 14 s, which is what discrete flips do.
+// The bound here is 1e-3 (m, rad, m/s, rad/s) and 1 N over the 30 steps,
+// still far below anything a firmware engineer reads off a plot, and far
+// above nothing a wrong belt would give (a sign error moves the walker
+// metres).
+func TestTreadmillSteadyIsLevelWalking(t *testing.T) {
+	level, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	belt, err := scenarios.LoadBuiltin("treadmill-steady")
+	if err != nil {
+		t.Fatal(err)
+	}
+	speed := *belt.Terrain.Segments[1].Belt.SpeedMPS
+	rl, _, tl := runFolder(t, level)
+	rb, _, tb := runFolder(t, belt)
+	if rl.Summary.Steps != rb.Summary.Steps || len(tl) != len(tb) {
+		t.Fatalf("level: %d steps, %d ticks; belt: %d steps, %d ticks", rl.Summary.Steps, len(tl), rb.Summary.Steps, len(tb))
+	}
+	worst, worstF := 0.0, 0.0
+	for k := range tl {
+		a, b := &tl[k], &tb[k]
+		d := math.Abs(b.Q[0] + speed*b.T - a.Q[0]) // the belt carried the walker back by speed·t
+		d = math.Max(d, math.Abs(b.V[0]+speed-a.V[0]))
+		for i := 1; i < 5; i++ {
+			d = math.Max(d, math.Max(math.Abs(b.Q[i]-a.Q[i]), math.Abs(b.V[i]-a.V[i])))
+		}
+		f := 0.0
+		for i := 0; i < 2; i++ {
+			f = math.Max(f, math.Max(math.Abs(b.Feet[i].NormalN-a.Feet[i].NormalN), math.Abs(b.Feet[i].TangentialN-a.Feet[i].TangentialN)))
+		}
+		worst, worstF = math.Max(worst, d), math.Max(worstF, f)
+		if d > 1e-3 || f > 1 {
+			t.Fatalf("tick %d (t = %.3f s): state differs by %.3g, forces by %.3g N", k, a.T, d, f)
+		}
+		if b.BeltSpeed != speed {
+			t.Fatalf("tick %d: belt speed column %g, want %g", k, b.BeltSpeed, speed)
+		}
+	}
+	t.Logf("%d ticks: largest difference relative to the belt %.3g (m, rad, m/s, rad/s), forces %.3g N; mean speed level %.6f, on the belt %.6f m/s",
+		len(tl), worst, worstF, rl.Summary.MeanSpeedMPS, rb.Summary.MeanSpeedMPS)
+	if math.Abs(rl.Summary.MeanSpeedMPS-rb.Summary.MeanSpeedMPS) > 1e-4 {
+		t.Errorf("mean speed on the belt %g, on level ground %g: steps must be measured on the belt", rb.Summary.MeanSpeedMPS, rl.Summary.MeanSpeedMPS)
+	}
+}
+
+// TestBeltPulseRaisesFrictionAlarm: a belt speed-up of 2 m/s in 50 ms at
+// early stance of step 10, back in another 50 ms (belt acceleration
+// ±40 m/s²: in the belt's frame the walker feels an inertial force of
+// about four times its weight, d'Alembert) raises friction_limit during
+// the pulse and not before, while the gentle pulses of treadmill-pulses
+// (in the library test) raise none. A walker is not a rigid block: most
+// of a pivot's acceleration turns into rotation, which is why a 1.5 m/s
+// in 0.1 s pulse still passes (seen while writing this test). The
+// telemetry agrees: the stance foot's utilization is below 1 up to the
+// alarm, the belt speed column rises with the programmed slope, and the
+// alarm time lies inside the pulse the loop logged.
+func TestBeltPulseRaisesFrictionAlarm(t *testing.T) {
+	s := variant(t, "treadmill-pulses",
+		"{at_step: 10, phase: 0.1, delta_mps: 0.3, rise_s: 0.15, hold_s: 0, fall_s: 0.15}",
+		"{at_step: 10, phase: 0.1, delta_mps: 2.0, rise_s: 0.05, hold_s: 0, fall_s: 0.05}")
+	res, run, ticks := runFolder(t, s)
+	start, alarmT := math.NaN(), math.NaN()
+	var alarmTick int64
+	for _, e := range run.Events {
+		switch e.Kind {
+		case "belt_pulse":
+			if math.IsNaN(start) {
+				start = e.Values["start_s"]
+			}
+		case hil.AlarmFrictionLimit:
+			if math.IsNaN(alarmT) {
+				alarmT, alarmTick = e.T, e.Tick
+			}
+		}
+	}
+	t.Logf("outcome %s (%s); pulse starts %.4f s, friction alarm at %.4f s", res.Summary.Outcome, res.Summary.Reason, start, alarmT)
+	if math.IsNaN(start) || math.IsNaN(alarmT) {
+		t.Fatalf("pulse start %g, friction alarm %g: want both", start, alarmT)
+	}
+	if !(alarmT > start && alarmT <= start+0.1+1e-9) {
+		t.Errorf("friction alarm at %.6f s, want inside the pulse (%.6f, %.6f] s", alarmT, start, start+0.1)
+	}
+	for _, tk := range ticks[:alarmTick] {
+		u := tk.Feet[tk.Stance].Utilization
+		if tk.Feet[tk.Stance].Mode != 0 && !(u < 1) {
+			t.Fatalf("tick %d (t = %.4f s): utilization %g before the alarm", tk.Index, tk.T, u)
+		}
+	}
+	// The belt speed column during the rise: 0.78 + 40·(t − start).
+	for _, tk := range ticks[:alarmTick] {
+		if tk.T > start+1e-3 && tk.T < start+0.05 {
+			if want := 0.78 + 40*(tk.T-start); math.Abs(tk.BeltSpeed-want) > 1e-9 {
+				t.Fatalf("t = %.4f s: belt speed %.12g, want %.12g", tk.T, tk.BeltSpeed, want)
+			}
+		}
+	}
+}
+
+// TestHarnessCatchesAFall: a compass walker (treadmill-steady without the
+// torso, whose passive flop would end the run by the torso-angle limit
+// first) with no controller driving it (link none: zero torques, as when
+// firmware stops) falls, and the harness catches it: harness_caught ends
+// the run (its default severity trips) before any fall alarm, with the
+// peak rope force as its value. The feet unload as the rope takes the
+// weight, so the slip and lift-off alarms are set to warn and the physics
+// to continue. That force is checked against an independent evaluation of the
+// documented rope law (tension k·(d − L) + c·ḋ, anchor 2 m above the
+// initial hip, L = 2.2 m) from the telemetry: the push columns hold the
+// rope's pull over each tick, computed from the state at the tick's start
+// (the row before).
+func TestHarnessCatchesAFall(t *testing.T) {
+	s := variant(t, "treadmill-steady",
+		"  torso:\n    mass_kg: 15           # demo value\n    com_m: 0.3            # demo value\n    inertia_kgm2: 0.6     # demo value\n", "",
+		"  torso_angle_rad: -0.1   # leaning forward\n", "",
+		"  link: builtin\n  mode: walk\n", "  link: none\n",
+		"physics:\n", "physics:\n  on_slip: continue\n  on_lift_off: continue\n",
+		"pass:\n", "alarms:\n  friction_limit: warn\n  lift_off: warn\npass:\n")
+	res, run, ticks := runFolder(t, s)
+	if res.Summary.Outcome != record.Tripped || !strings.HasPrefix(res.Summary.Reason, hil.AlarmHarnessCaught) {
+		t.Fatalf("outcome %s (%s), want tripped by %s", res.Summary.Outcome, res.Summary.Reason, hil.AlarmHarnessCaught)
+	}
+	if n := res.Summary.Alarms[hil.AlarmFall]; n != 0 {
+		t.Errorf("%d fall alarms: the harness must catch the walker first", n)
+	}
+	var caught record.Event
+	for _, e := range run.Events {
+		if e.Kind == hil.AlarmHarnessCaught {
+			caught = e
+		}
+	}
+	m := run.Manifest
+	anchor := [2]float64{m.InitialQ[0], m.InitialQ[1] + 2}
+	const length, k, c = 2.2, hil.DefaultRopeStiffness, hil.DefaultRopeDamping
+	peak, prev := 0.0, [4]float64{m.InitialQ[0], m.InitialQ[1], m.InitialV[0], m.InitialV[1]}
+	for _, tk := range ticks {
+		dx, dy := prev[0]-anchor[0], prev[1]-anchor[1]
+		d := math.Hypot(dx, dy)
+		want := 0.0
+		if d > length {
+			want = math.Max(0, k*(d-length)+c*(dx*prev[2]+dy*prev[3])/d)
+		}
+		if got := math.Hypot(tk.Push[0], tk.Push[1]); math.Abs(got-want) > 1e-9*math.Max(1, want) {
+			t.Fatalf("tick %d: rope force %.12g N, the rope law gives %.12g N", tk.Index, got, want)
+		}
+		peak = math.Max(peak, want)
+		prev = [4]float64{tk.Q[0], tk.Q[1], tk.V[0], tk.V[1]}
+	}
+	const weight = 16 * 9.81 // the compass walker: 10 kg hip, two 3 kg legs
+	t.Logf("caught at %.3f s with peak rope force %.1f N (walker weight %.1f N)", caught.T, caught.Values["value"], weight)
+	if math.Abs(caught.Values["value"]-peak) > 1e-9*peak || peak < 0.5*weight {
+		t.Errorf("harness_caught value %g N, independent peak %g N (a catch takes at least half the weight)", caught.Values["value"], peak)
+	}
+}
