@@ -68,10 +68,14 @@ func variant(t *testing.T, name string, edits ...string) *scenarios.Scenario {
 // it, and the gait's phase is neutrally stable, so such differences add
 // up as a small time shift. Seen: 1e-15 after 1 s, 1e-9 after 5 s, then
 // jumps to about 1e-4 (m, rad) by 14 s, which is what discrete flips do.
-// The bound here is 1e-3 (m, rad, m/s, rad/s) and 1 N over the 30 steps,
-// still far below anything a firmware engineer reads off a plot, and far
-// above nothing a wrong belt would give (a sign error moves the walker
-// metres).
+// A time shift that moves a heel strike across a tick boundary makes one
+// tick's velocities and forces jump (and, one tick later, positions
+// differ by that tick's velocity jump, about 1 rad/s × 1 ms), so the ticks
+// compare positions to 1e-2 m and rad, and the steps compare what the
+// step table says of forces and timing (duration, length on the belt,
+// peak utilization, least normal force) to 1e-2 relative: far below
+// anything a firmware engineer reads off a plot, and far from what a wrong
+// belt gives (a sign error moves the walker metres).
 func TestTreadmillSteadyIsLevelWalking(t *testing.T) {
 	level, err := scenarios.LoadBuiltin("level-demo")
 	if err != nil {
@@ -82,33 +86,41 @@ func TestTreadmillSteadyIsLevelWalking(t *testing.T) {
 		t.Fatal(err)
 	}
 	speed := *belt.Terrain.Segments[1].Belt.SpeedMPS
-	rl, _, tl := runFolder(t, level)
-	rb, _, tb := runFolder(t, belt)
-	if rl.Summary.Steps != rb.Summary.Steps || len(tl) != len(tb) {
+	rl, runL, tl := runFolder(t, level)
+	rb, runB, tb := runFolder(t, belt)
+	sl, sb := runL.Steps, runB.Steps
+	if rl.Summary.Steps != rb.Summary.Steps || len(tl) != len(tb) || len(sl) != len(sb) {
 		t.Fatalf("level: %d steps, %d ticks; belt: %d steps, %d ticks", rl.Summary.Steps, len(tl), rb.Summary.Steps, len(tb))
 	}
-	worst, worstF := 0.0, 0.0
+	worst := 0.0
 	for k := range tl {
 		a, b := &tl[k], &tb[k]
 		d := math.Abs(b.Q[0] + speed*b.T - a.Q[0]) // the belt carried the walker back by speed·t
-		d = math.Max(d, math.Abs(b.V[0]+speed-a.V[0]))
 		for i := 1; i < 5; i++ {
-			d = math.Max(d, math.Max(math.Abs(b.Q[i]-a.Q[i]), math.Abs(b.V[i]-a.V[i])))
+			d = math.Max(d, math.Abs(b.Q[i]-a.Q[i]))
 		}
-		f := 0.0
-		for i := 0; i < 2; i++ {
-			f = math.Max(f, math.Max(math.Abs(b.Feet[i].NormalN-a.Feet[i].NormalN), math.Abs(b.Feet[i].TangentialN-a.Feet[i].TangentialN)))
-		}
-		worst, worstF = math.Max(worst, d), math.Max(worstF, f)
-		if d > 1e-3 || f > 1 {
-			t.Fatalf("tick %d (t = %.3f s): state differs by %.3g, forces by %.3g N", k, a.T, d, f)
+		worst = math.Max(worst, d)
+		if d > 1e-2 {
+			t.Fatalf("tick %d (t = %.3f s): position relative to the belt differs by %.3g", k, a.T, d)
 		}
 		if b.BeltSpeed != speed {
 			t.Fatalf("tick %d: belt speed column %g, want %g", k, b.BeltSpeed, speed)
 		}
 	}
-	t.Logf("%d ticks: largest difference relative to the belt %.3g (m, rad, m/s, rad/s), forces %.3g N; mean speed level %.6f, on the belt %.6f m/s",
-		len(tl), worst, worstF, rl.Summary.MeanSpeedMPS, rb.Summary.MeanSpeedMPS)
+	worstStep := 0.0
+	for i := range sl {
+		a, b := &sl[i], &sb[i]
+		for _, p := range [][2]float64{{a.DurationS, b.DurationS}, {a.LengthM, b.LengthM},
+			{a.PeakUtilization, b.PeakUtilization}, {a.MinNormalN, b.MinNormalN}} {
+			r := math.Abs(p[1]-p[0]) / math.Max(math.Abs(p[0]), 1e-3)
+			worstStep = math.Max(worstStep, r)
+			if r > 1e-2 {
+				t.Fatalf("step %d: level %+v, on the belt %+v", a.Index, *a, *b)
+			}
+		}
+	}
+	t.Logf("%d ticks: largest position difference relative to the belt %.3g (m, rad); steps differ by %.3g relative at most; mean speed level %.6f, on the belt %.6f m/s",
+		len(tl), worst, worstStep, rl.Summary.MeanSpeedMPS, rb.Summary.MeanSpeedMPS)
 	if math.Abs(rl.Summary.MeanSpeedMPS-rb.Summary.MeanSpeedMPS) > 1e-4 {
 		t.Errorf("mean speed on the belt %g, on level ground %g: steps must be measured on the belt", rb.Summary.MeanSpeedMPS, rl.Summary.MeanSpeedMPS)
 	}
