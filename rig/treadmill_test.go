@@ -234,3 +234,56 @@ func TestHarnessCatchesAFall(t *testing.T) {
 		t.Errorf("harness_caught value %g N, independent peak %g N (a catch takes at least half the weight)", caught.Values["value"], peak)
 	}
 }
+
+// TestBeltEndAlarms: treadmill-short with the belt slower than the walker
+// (0.5 m/s against its 0.78 m/s) lets the walker gain 0.28 m/s on the
+// belt: belt_end_near is raised when the hip or a foot comes within the
+// 0.25 m margin of the front end, and belt_end_passed trips the run when
+// one passes it. Both times are checked against an independent reading
+// of the telemetry: the leg ends hip + L(sin θ, −cos θ) (L = 0.9 m, the
+// plant's convention) and the hip, measured from the belt's ends (the
+// belt is the level segment from x = −1 to x = 1).
+func TestBeltEndAlarms(t *testing.T) {
+	s := variant(t, "treadmill-short", "        speed_mps: 0.78\n", "        speed_mps: 0.5\n")
+	res, run, ticks := runFolder(t, s)
+	if res.Summary.Outcome != record.Tripped || !strings.HasPrefix(res.Summary.Reason, hil.AlarmBeltEndPassed) {
+		t.Fatalf("outcome %s (%s), want tripped by %s", res.Summary.Outcome, res.Summary.Reason, hil.AlarmBeltEndPassed)
+	}
+	first := func(kind string) int64 {
+		for _, e := range run.Events {
+			if e.Kind == kind {
+				return e.Tick
+			}
+		}
+		t.Fatalf("no %s event", kind)
+		return -1
+	}
+	near, passed := first(hil.AlarmBeltEndNear), first(hil.AlarmBeltEndPassed)
+	// The least distance of hip and leg ends to either belt end, per tick.
+	const rear, front, L, margin = -1.0, 1.0, 0.9, 0.25
+	least := func(tk *record.Tick) float64 {
+		d := math.Min(tk.Q[0]-rear, front-tk.Q[0])
+		for i := 0; i < 2; i++ {
+			x := tk.Q[0] + L*math.Sin(tk.Q[2+i])
+			d = math.Min(d, math.Min(x-rear, front-x))
+		}
+		return d
+	}
+	wantNear, wantPassed := int64(-1), int64(-1)
+	for k := range ticks {
+		d := least(&ticks[k])
+		if wantNear < 0 && d < margin {
+			wantNear = ticks[k].Index
+		}
+		if wantPassed < 0 && d < 0 {
+			wantPassed = ticks[k].Index
+		}
+	}
+	t.Logf("belt_end_near at tick %d (independent: %d), belt_end_passed at tick %d (independent: %d)", near, wantNear, passed, wantPassed)
+	if near != wantNear || passed != wantPassed {
+		t.Errorf("alarm ticks near %d passed %d, telemetry says %d and %d", near, passed, wantNear, wantPassed)
+	}
+	if !(near < passed) {
+		t.Errorf("belt_end_near (tick %d) must come before belt_end_passed (tick %d)", near, passed)
+	}
+}
