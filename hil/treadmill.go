@@ -81,9 +81,10 @@ type treadmill struct {
 	rear, tan  [2]float64        // belt rear end and unit tangent
 	length     float64
 	margin     float64
-	near       bool // belt_end_near raised and not yet cleared
-	passed     bool // belt_end_passed raised
-	speed, pos float64
+	near       bool    // belt_end_near raised and not yet cleared
+	passed     bool    // belt_end_passed raised
+	speed, pos float64 // belt speed at the end of the last tick (the telemetry column), hip place on the belt
+	next       float64 // the profile's speed at the end of the tick being stepped
 
 	harness        *Harness
 	anchor         [2]float64 // the rope's fixed point
@@ -118,6 +119,7 @@ func (r *runner) newTreadmill() error {
 		tm.profile.Pulses = make([]plant.BeltPulse, len(b.Profile.Pulses), len(b.Profile.Pulses)+len(b.StepPulses))
 		copy(tm.profile.Pulses, b.Profile.Pulses)
 		tm.pending = append([]StepPulse(nil), b.StepPulses...)
+		tm.speed = tm.profile.Speed(r.pt.s.T)
 	}
 	if h := r.cfg.Harness; h != nil {
 		hh := *h
@@ -144,8 +146,11 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 func (r *runner) treadmillInput(t float64) {
 	tm, pt := &r.tm, &r.pt
 	if tm.belt != nil {
-		pt.in.Belt = tm.profile.Motion(t, r.dt)
-		tm.speed = pt.in.Belt.Speed
+		// The tick starts at the speed the last one ended with (the
+		// telemetry column) and ends at the profile's speed: a replay
+		// rebuilds exactly this input from two recorded numbers.
+		tm.next = tm.profile.Speed(t + r.dt)
+		pt.in.Belt = plant.BeltMotion{Speed: tm.speed, Accel: (tm.next - tm.speed) / r.dt}
 	}
 	if h := tm.harness; h != nil {
 		f := ropeForce(h, tm.anchor, tm.rope, &pt.s)
@@ -179,7 +184,7 @@ func (r *runner) treadmillCheck() {
 	tm, pt := &r.tm, &r.pt
 	if tm.belt != nil {
 		mo := &pt.in.Belt
-		tm.speed = mo.Speed + mo.Accel*r.dt
+		tm.speed = tm.next
 		// The surface's travel over the tick, along x (the speed is
 		// positive backward).
 		r.steps.beltX -= (mo.Speed*r.dt + 0.5*mo.Accel*r.dt*r.dt) * tm.tan[0]

@@ -287,3 +287,32 @@ func TestBeltEndAlarms(t *testing.T) {
 		t.Errorf("belt_end_near (tick %d) must come before belt_end_passed (tick %d)", near, passed)
 	}
 }
+
+// TestTreadmillReplay: a treadmill run replays bit for bit from its
+// folder: the belt's motion over each tick is rebuilt from the recorded
+// belt speeds exactly as the loop built it, and the harness rope's pull is
+// in the recorded hip force. treadmill-pulses has a speed-up and a
+// slow-down pulse; the caught fall of TestHarnessCatchesAFall has the rope.
+func TestTreadmillReplay(t *testing.T) {
+	pulses, err := scenarios.LoadBuiltin("treadmill-pulses")
+	if err != nil {
+		t.Fatal(err)
+	}
+	fall := variant(t, "treadmill-steady",
+		"  torso:\n    mass_kg: 15           # demo value\n    com_m: 0.3            # demo value\n    inertia_kgm2: 0.6     # demo value\n", "",
+		"  torso_angle_rad: -0.1   # leaning forward\n", "",
+		"  link: builtin\n  mode: walk\n", "  link: none\n",
+		"physics:\n", "physics:\n  on_slip: continue\n  on_lift_off: continue\n",
+		"pass:\n", "alarms:\n  friction_limit: warn\n  lift_off: warn\npass:\n")
+	for _, s := range []*scenarios.Scenario{pulses, fall} {
+		res, run, _ := runFolder(t, s)
+		r, err := Replay(run.Dir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		t.Logf("%s: %s", s.Name, r)
+		if !r.Match || int64(r.Ticks) != res.Summary.Ticks {
+			t.Errorf("%s: replay %s (run had %d ticks)", s.Name, r, res.Summary.Ticks)
+		}
+	}
+}
