@@ -67,7 +67,7 @@ func explicitState(s *scenarios.Scenario, m *plant.Model) (plant.State, error) {
 	if m.HasTorso() {
 		rates = append(rates, in.TorsoRateRadps)
 	}
-	return m.Stand(s.StanceLeg(), in.XM, [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}, in.TorsoAngleRad, rates...)
+	return m.Stand(s.StanceLeg(), s.StartXM(), [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}, in.TorsoAngleRad, rates...)
 }
 
 // GaitPolicy is the policy the gait finder analyses for a scenario: nil for

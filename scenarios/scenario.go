@@ -207,7 +207,8 @@ type Belt struct {
 	Pulses []BeltPulse `yaml:"pulses"`
 	// StartM is where the walker starts: the distance of the stance foot
 	// from the belt's rear end, m, 0 < start_m < the segment's length_m.
-	// Default the middle of the belt. Give it or initial.x_m, not both.
+	// Default the middle of the belt when initial.x_m is not given either;
+	// when given it overrides initial.x_m.
 	StartM *float64 `yaml:"start_m"`
 	// EndMarginM is how close the hip or a foot may come to either end of
 	// the belt before belt_end_near is raised, m. Default 0.3

@@ -16,13 +16,13 @@ const (
 )
 
 // treadmillDefaults fills the belt and harness fields a file left out and
-// places the walker on the belt: initial.x_m becomes the belt's start
-// position (default its middle) in world x.
+// places the walker on the belt: start_m defaults to the belt's middle
+// when initial.x_m is not given either. StartXM turns it into world x
+// when it is used, so a variant with a changed slope still starts on the
+// belt.
 func (d *decoder) treadmillDefaults(s *Scenario) {
-	x := s.Terrain.StartM[0]
 	for i := range s.Terrain.Segments {
 		g := &s.Terrain.Segments[i]
-		c := math.Cos(g.SlopeRad)
 		if b := g.Belt; b != nil {
 			p := fmt.Sprintf("terrain.segments[%d].belt", i)
 			if _, given := d.present[p+".end_margin_m"]; !given {
@@ -33,15 +33,11 @@ func (d *decoder) treadmillDefaults(s *Scenario) {
 					b.Pulses[k].FallS = b.Pulses[k].RiseS
 				}
 			}
-			if _, given := d.present["initial.x_m"]; !given {
-				start := 0.5 * g.LengthM
-				if b.StartM != nil {
-					start = *b.StartM
-				}
-				s.Initial.XM = x + start*c
+			if _, given := d.present["initial.x_m"]; !given && b.StartM == nil {
+				mid := 0.5 * g.LengthM
+				b.StartM = &mid
 			}
 		}
-		x += g.LengthM * c
 	}
 	if h := s.Harness; h != nil {
 		if _, given := d.present["harness.anchor_height_m"]; !given {
@@ -57,6 +53,33 @@ func (d *decoder) treadmillDefaults(s *Scenario) {
 			h.DampingNSPM = hil.DefaultRopeDamping
 		}
 	}
+}
+
+// beltStartX is the world x of the walker's start on belt segment g, which
+// begins at x and has the cosine c of its slope: start_m along the belt,
+// or its middle.
+func beltStartX(x, c float64, g *Segment) float64 {
+	start := 0.5 * g.LengthM
+	if g.Belt.StartM != nil {
+		start = *g.Belt.StartM
+	}
+	return x + start*c
+}
+
+// StartXM is the forward position the walker starts at, m: the place
+// belt.start_m gives on a treadmill belt (it overrides initial.x_m), else
+// initial.x_m.
+func (s *Scenario) StartXM() float64 {
+	x := s.Terrain.StartM[0]
+	for i := range s.Terrain.Segments {
+		g := &s.Terrain.Segments[i]
+		c := math.Cos(g.SlopeRad)
+		if g.Belt != nil && g.Belt.StartM != nil {
+			return beltStartX(x, c, g)
+		}
+		x += g.LengthM * c
+	}
+	return s.Initial.XM
 }
 
 // Treadmill returns the loop's belt of the scenario (nil without a belt

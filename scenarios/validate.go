@@ -350,9 +350,6 @@ func (c *checker) belt(p string, b *Belt, l float64) {
 	}
 	if b.StartM != nil {
 		c.num(p+".start_m", *b.StartM, *b.StartM > 0 && *b.StartM < l, fmt.Sprintf("0 < X < the belt's length_m (%g)", l))
-		if c.has("initial.x_m") {
-			c.errf("initial.x_m", "the walker's place is given twice: by %s.start_m and initial.x_m; give one", p)
-		}
 	}
 	c.num(p+".end_margin_m", b.EndMarginM, b.EndMarginM > 0 && b.EndMarginM < l/2, fmt.Sprintf("0 < X < half the belt (%g m)", l/2))
 }
@@ -707,7 +704,7 @@ func (c *checker) stand(p plant.Params) []Problem {
 	}
 	angles := [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}
 	stance := c.s.StanceLeg()
-	st, err := m.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...)
+	st, err := m.Stand(stance, c.s.StartXM(), angles, in.TorsoAngleRad, rates...)
 	if err == nil {
 		return nil
 	}
@@ -723,7 +720,7 @@ func (c *checker) stand(p plant.Params) []Problem {
 	// apart: if it succeeds, only the swing foot was in the ground.
 	opts.IgnoreScuff = true
 	if loose, lerr := plant.New(p, opts); lerr == nil {
-		if st, serr := loose.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...); serr == nil {
+		if st, serr := loose.Stand(stance, c.s.StartXM(), angles, in.TorsoAngleRad, rates...); serr == nil {
 			var none plant.Input
 			gap := loose.Contacts(&st, &none)[1-stance].Gap
 			c.errf("initial.leg_angles_rad", "cannot stand the walker: with the %s (stance) leg at %g rad and the %s (swing) leg at %g rad%s "+
