@@ -346,7 +346,10 @@ func (c *checker) belt(p string, b *Belt, l float64) {
 			c.num(q+".rise_s", pu.RiseS, pu.RiseS > 0 && pu.RiseS <= 10, "0 < X ≤ 10")
 		}
 		c.num(q+".hold_s", pu.HoldS, pu.HoldS >= 0 && pu.HoldS <= 3600, "0 ≤ X ≤ 3600")
-		c.num(q+".fall_s", pu.FallS, pu.FallS > 0 && pu.FallS <= 10, "0 < X ≤ 10")
+		if c.has(q + ".fall_s") {
+			// Left out, fall_s is rise_s, whose check speaks for it.
+			c.num(q+".fall_s", pu.FallS, pu.FallS > 0 && pu.FallS <= 10, "0 < X ≤ 10")
+		}
 	}
 	if b.StartM != nil {
 		c.num(p+".start_m", *b.StartM, *b.StartM > 0 && *b.StartM < l, fmt.Sprintf("0 < X < the belt's length_m (%g)", l))
