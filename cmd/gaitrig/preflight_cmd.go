@@ -43,7 +43,7 @@ and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
 	// Every core: only in-process lockstep checks share the machine (the
 	// scheduler runs the others one at a time), and the table is printed
 	// in battery order whatever ran first.
-	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU(), OnDone: progressLine(stdout)}
+	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU(), OnDone: progressLine(stdout), Checks: batch.BatteryFor(base)}
 	variants, err := pf.Variants(base)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight:", err)
