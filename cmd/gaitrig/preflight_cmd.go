@@ -20,7 +20,8 @@ func cmdPreflight(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("preflight", "", `
 The pre-trial go/no-go check. Runs a fixed battery against the connected
 firmware: nominal; half the friction; uphill and downhill (2°); a forward push;
-added command latency; tripled sensor noise. Each check must pass the
+added command latency; tripled sensor noise; on a treadmill scenario also a
+belt speed-up and a slow-down pulse. Each check must pass the
 scenario's own criteria (default scenario: the level-ground demo). Prints a
 table of margins (friction utilization, normal-force margin, steps, latency)
 and GO only when every check passed; exit code 0 for GO, 1 for NO-GO.`, stderr)
