@@ -120,6 +120,12 @@ func (r *runner) newTreadmill() error {
 		copy(tm.profile.Pulses, b.Profile.Pulses)
 		tm.pending = append([]StepPulse(nil), b.StepPulses...)
 		tm.speed = tm.profile.Speed(r.pt.s.T)
+		for _, pu := range b.Profile.Pulses {
+			// Timed pulses are known now; step pulses are logged when
+			// their step comes (beltStep). The report marks both.
+			r.al.info("belt_pulse", 0, r.pt.s.T, fmt.Sprintf("belt pulse of %+.3g m/s over %.3g s scheduled at %.4g s", pu.Delta, pu.Rise, pu.Start),
+				map[string]float64{"start_s": pu.Start, "delta_mps": pu.Delta})
+		}
 	}
 	if h := r.cfg.Harness; h != nil {
 		hh := *h

@@ -120,6 +120,7 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 	for src != nil && src.Next() {
 		t := src.Tick()
 		v.t = append(v.t, t.T)
+		v.belt.speed = append(v.belt.speed, t.BeltSpeed)
 		v.latency = append(v.latency, t.LatencyUS)
 		for j := range v.joints {
 			v.joints[j].angle = append(v.joints[j].angle, t.Angle[j])
@@ -240,7 +241,9 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 
 	// Alarms and events.
 	v.ScenarioText = m.ScenarioText
+	v.belt.on = hasBelt(m.Plant)
 	for _, e := range events {
+		v.belt.event(&e)
 		v.alarms = append(v.alarms, alarmMark{t: e.T, kind: e.Kind, severity: string(e.Severity)})
 		if e.Severity == record.Info {
 			continue

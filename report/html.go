@@ -73,6 +73,8 @@ type view struct {
 	poses   []stickPose
 	// stepsTotal is how many heel strikes the run had; poses may be fewer.
 	stepsTotal int
+	// belt is the treadmill side of the run (belt.go); empty without a belt.
+	belt beltView
 }
 
 // alarmRow is one line of the alarm log table.
@@ -226,6 +228,14 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 			return nil, err
 		}
 		add("plot-utilization", title, "Above 1.0 the static friction cannot hold the foot: the slip alarm. "+st.caption(), svg)
+	}
+
+	// Belt speed with its perturbations, under the plots above (treadmill
+	// runs only).
+	if f, ok, err := beltFigure(v, w, h, maxPoints); err != nil {
+		return nil, err
+	} else if ok {
+		figs = append(figs, f)
 	}
 
 	// Alarm timeline, over the telemetry's time span widened to every

@@ -3,6 +3,7 @@ package rig
 import (
 	"context"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -10,6 +11,7 @@ import (
 
 	"gaitrig/hil"
 	"gaitrig/record"
+	"gaitrig/report"
 	"gaitrig/scenarios"
 )
 
@@ -314,5 +316,51 @@ func TestTreadmillReplay(t *testing.T) {
 		if !r.Match || int64(r.Ticks) != res.Summary.Ticks {
 			t.Errorf("%s: replay %s (run had %d ticks)", s.Name, r, res.Summary.Ticks)
 		}
+	}
+}
+
+// TestTreadmillReport: the report of a treadmill run draws the belt speed
+// with each perturbation pulse marked at the start the loop logged (a
+// step-timed pulse of treadmill-pulses and a timed one added here), and a
+// run on fixed ground has no belt plot.
+func TestTreadmillReport(t *testing.T) {
+	s := variant(t, "treadmill-pulses", "        pulses:\n", "        pulses:\n          - {at_s: 3, delta_mps: 0.2, rise_s: 0.1}\n")
+	_, run, _ := runFolder(t, s)
+	if err := report.WriteHTML(run.Dir); err != nil {
+		t.Fatal(err)
+	}
+	page, err := os.ReadFile(filepath.Join(run.Dir, report.HTMLFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var starts []string
+	for _, e := range run.Events {
+		if e.Kind == "belt_pulse" {
+			starts = append(starts, report.FormatNumber(e.Values["start_s"])+" s")
+		}
+	}
+	if len(starts) != 3 {
+		t.Fatalf("belt_pulse events at %v, want 3 (one timed, two at steps)", starts)
+	}
+	text := string(page)
+	if !strings.Contains(text, "plot-belt-speed") {
+		t.Fatal("no belt speed plot in the report")
+	}
+	for _, st := range starts {
+		if !strings.Contains(text, st) {
+			t.Errorf("the report does not mark the pulse starting at %s", st)
+		}
+	}
+	level, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	level.Run.MaxSteps = 3
+	_, lrun, _ := runFolder(t, level)
+	if err := report.WriteHTML(lrun.Dir); err != nil {
+		t.Fatal(err)
+	}
+	if lp, err := os.ReadFile(filepath.Join(lrun.Dir, report.HTMLFile)); err != nil || strings.Contains(string(lp), "plot-belt-speed") {
+		t.Errorf("fixed ground: report read error %v, or a belt plot where there is no belt", err)
 	}
 }
