@@ -242,7 +242,7 @@ func tickFields(numQ int, joints []string) table[Tick] {
 		func(t *Tick) int64 { return int64(t.Stance) }, func(t *Tick, v int64) { t.Stance = int(v) })
 	c.real("belt_speed_mps", "m/s", "", "treadmill belt speed at the end of the tick, positive when the surface runs backward; 0 on fixed ground",
 		func(t *Tick) float64 { return t.BeltSpeed }, func(t *Tick, v float64) { t.BeltSpeed = v })
-	c.real("belt_position_m", "m", "", "hip distance from the belt's rear end, along the belt (the walker’s place on the treadmill); NaN without a belt",
+	c.real("belt_position_m", "m", "", "hip distance from the belt's rear end, along the belt (the walker's place on the treadmill); NaN without a belt",
 		func(t *Tick) float64 { return t.BeltPos }, func(t *Tick, v float64) { t.BeltPos = v })
 	return c
 }
