@@ -120,6 +120,9 @@ func (r *runner) newTreadmill() error {
 		copy(tm.profile.Pulses, b.Profile.Pulses)
 		tm.pending = append([]StepPulse(nil), b.StepPulses...)
 		tm.speed = tm.profile.Speed(r.pt.s.T)
+		// The first tick's readings come from the initial contacts: on
+		// the belt their slip is measured against the running surface.
+		r.pt.res.Contacts = r.m.Contacts(&r.pt.s, &plant.Input{Belt: plant.BeltMotion{Speed: tm.speed}})
 		for _, pu := range b.Profile.Pulses {
 			// Timed pulses are known now; step pulses are logged when
 			// their step comes (beltStep). The report marks both.
