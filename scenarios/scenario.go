@@ -205,8 +205,10 @@ type Belt struct {
 	// over rise_s, held for hold_s, back over fall_s, at a time or at a
 	// phase of a step.
 	Pulses []BeltPulse `yaml:"pulses"`
-	// StartM is where the walker starts: the distance of the stance foot
-	// from the belt's rear end, m, 0 < start_m < the segment's length_m.
+	// StartM is where the walker starts on the belt: the distance from the
+	// belt's rear end, along the belt, of the point initial.x_m would give
+	// (the rig stands the walker there), m, 0 < start_m < the segment's
+	// length_m.
 	// Default the middle of the belt when initial.x_m is not given either;
 	// when given it overrides initial.x_m.
 	StartM *float64 `yaml:"start_m"`
