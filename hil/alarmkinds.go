@@ -36,6 +36,9 @@ const (
 	AlarmFirmwareReset    = "firmware_reset"     // the firmware greeted again after its first command: it restarted
 	AlarmFirmwareSafeMode = "firmware_safe_mode" // the firmware set its safe-mode status bit
 	AlarmBrokerRefusal    = "broker_refusal"     // the embedded broker refused a connection, publish or subscription
+	AlarmBeltEndNear      = "belt_end_near"      // the hip or a foot within the belt's end margin of a belt end
+	AlarmBeltEndPassed    = "belt_end_passed"    // the hip or a foot beyond an end of the belt: off the treadmill
+	AlarmHarnessCaught    = "harness_caught"     // the fall-arrest harness caught the walker (value: peak rope force, N)
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -47,6 +50,7 @@ var AlarmKinds = []string{
 	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
 	AlarmActuatorMismatch, AlarmFirmwareReset, AlarmFirmwareSafeMode,
 	AlarmBrokerRefusal,
+	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -80,6 +84,11 @@ var DefaultSeverity = map[string]Severity{
 	// Refusals are a misconfigured board or an intrusion attempt: a trace
 	// in the record, not a reason to stop a walking run.
 	AlarmBrokerRefusal: SeverityWarn,
+	// Treadmill (treadmill.go): near an end the firmware still has room to
+	// act; past it the walker is off the belt; a caught fall ends a trial.
+	AlarmBeltEndNear:   SeverityWarn,
+	AlarmBeltEndPassed: SeverityTrip,
+	AlarmHarnessCaught: SeverityTrip,
 }
 
 // Criteria are the pass criteria of a run. A criterion left out (nil) is

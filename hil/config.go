@@ -176,6 +176,12 @@ type Config struct {
 	// OnStep, when set, is called after each completed step (a live line
 	// per step on a terminal). It runs on the loop: keep it short.
 	OnStep func(step StepInfo)
+	// Belt drives and watches the treadmill belt (the terrain's belt
+	// segment); nil without a treadmill.
+	Belt *Belt
+	// Harness is the overhead fall-arrest harness; nil without one (a fall
+	// then ends the run as the fall alarm says).
+	Harness *Harness
 	// Log, when set, receives plain sentences about the run that are not
 	// alarms (scheduling class granted or not, handshake).
 	Log func(line string)

@@ -66,6 +66,10 @@ type Replayer struct {
 	tr           plant.TickResult
 	dt           float64
 	res          ReplayResult
+	// belt says the terrain has a treadmill belt; beltV is its speed at
+	// the start of the next row's tick (the last row's belt_speed_mps).
+	belt  bool
+	beltV float64
 }
 
 // NewReplayer starts a replay of model from initial at tickHz (the run's
@@ -75,8 +79,15 @@ func NewReplayer(model *plant.Model, initial plant.State, tickHz float64) (*Repl
 		return nil, fmt.Errorf("hil: replay needs the run's tick rate, got %g Hz", tickHz)
 	}
 	q, v := record.StateColumns(model.NumDOF())
-	return &Replayer{m: model, qName: q, vName: v, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1}}, nil
+	return &Replayer{m: model, qName: q, vName: v, s: initial, dt: 1 / tickHz, res: ReplayResult{Match: true, FirstDivergence: -1},
+		belt: model.BeltSegment() >= 0}, nil
 }
+
+// SetBeltSpeed gives the belt's speed at the start of the run (the
+// profile's speed at the initial time), m/s, for a terrain with a
+// treadmill belt; later ticks take it from the rows' belt_speed_mps, as
+// the loop did.
+func (p *Replayer) SetBeltSpeed(v float64) { p.beltV = v }
 
 // Row counts one recorded row and, until the first divergence, steps the
 // plant with its inputs and compares the state with it. Rows come in
@@ -91,6 +102,10 @@ func (p *Replayer) Row(row *record.Tick) {
 		p.in.Torque[j] = row.Applied[j]
 	}
 	p.in.HipForce = row.Push
+	if p.belt {
+		p.in.Belt = plant.BeltMotion{Speed: p.beltV, Accel: (row.BeltSpeed - p.beltV) / p.dt}
+		p.beltV = row.BeltSpeed
+	}
 	p.m.Step(&p.s, &p.in, p.dt, &p.tr)
 	for i := 0; i < nq; i++ {
 		if name, a, b, ok := differ(p.qName[i], row.Q[i], p.s.Q[i]); !ok {

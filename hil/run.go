@@ -103,6 +103,7 @@ type runner struct {
 	sens   *sensorBank   // sensors.go: what the board's sensors read
 	act    *actuatorBank // actuators.go: commanded to applied torque
 	al     *alarmer      // alarm.go: the alarm policy and the event log
+	tm     treadmill     // treadmill.go: belt speed and position, harness
 
 	// fresh says whether this tick took a command from the firmware: set
 	// by the session, logged in the row, counted by MeasureLatency.
@@ -168,6 +169,9 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 		pt.pushes = append(pt.pushes, ps)
 	}
 	pt.contact.reset()
+	if err := r.newTreadmill(); err != nil {
+		return nil, err
+	}
 	// The foot switches of the first tick read the contact forces of the
 	// initial state, as every later tick reads those of the last step.
 	pt.res.Contacts = model.Contacts(&pt.s, &plant.Input{})

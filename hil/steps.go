@@ -24,7 +24,12 @@ type stepTracker struct {
 	weight    float64 // m g, N
 	radius    [2]float64
 	sumLength float64
-	sumTime   float64
+	// beltX is how far the belt surface has moved along x since the start
+	// (treadmill.go adds each tick's travel), beltStart its value at the
+	// step's start: a step's length is measured on the belt, the distance
+	// the walker covers relative to the ground under it.
+	beltX, beltStart float64
+	sumTime          float64
 }
 
 // contactExtremes tracks the peak friction utilization and the least normal
@@ -102,7 +107,7 @@ func (t *stepTracker) strike(m *plant.Model, s *plant.State, e *plant.Event, res
 		StartS:          t.startT,
 		EndS:            e.T,
 		DurationS:       e.T - t.startT,
-		LengthM:         x - t.startX,
+		LengthM:         x - t.startX - (t.beltX - t.beltStart),
 		PeakUtilization: t.contact.peakUtil,
 		MinNormalN:      t.contact.minNormal,
 		ImpactLossJ:     e.EnergyLost,
@@ -127,6 +132,7 @@ func (t *stepTracker) strike(m *plant.Model, s *plant.State, e *plant.Event, res
 		t.sumTime += st.DurationS
 	}
 	t.startT, t.startX, t.stance = e.T, x, newStance
+	t.beltStart = t.beltX
 	t.reset()
 	return st
 }

@@ -87,6 +87,7 @@ func (r *runner) advance(wall time.Time) {
 	}
 	t0 := pt.s.T
 	pt.in.HipForce = r.pushForce(t0)
+	r.treadmillInput(t0)
 	r.m.JointState(&pt.s, pt.angleTmp, pt.rate0)
 	r.m.Step(&pt.s, &pt.in, r.dt, &pt.res)
 	r.m.JointState(&pt.s, pt.angleTmp, pt.rate1)
@@ -103,6 +104,7 @@ func (r *runner) advance(wall time.Time) {
 	fc := &pt.res.Contacts[pt.s.Stance]
 	pt.contact.add(fc)
 	r.steps.tick(pos, neg, fc)
+	r.treadmillCheck()
 	r.record(wall)
 	for i := 0; i < pt.res.NumEvents; i++ {
 		r.plantEvent(&pt.res.Events[i])
@@ -164,6 +166,7 @@ func (r *runner) record(wall time.Time) {
 	row.Kinetic, row.Potential = r.m.Energy(&pt.s)
 	row.Fresh = r.fresh
 	row.Stance = pt.s.Stance
+	row.BeltSpeed, row.BeltPos = r.tm.speed, r.tm.posOrNaN()
 	if err := r.rec.Tick(row); err != nil && !r.end.set() {
 		r.end.end(record.Aborted, "telemetry could not be written: "+err.Error(), protocol.StopAborted)
 	}
@@ -258,6 +261,7 @@ func (r *runner) heelStrike(e *plant.Event) {
 			p.start = pt.s.T
 		}
 	}
+	r.beltStep(st.Index, pt.s.T, st.DurationS)
 	if r.cfg.OnStep != nil {
 		r.cfg.OnStep(StepInfo{Index: st.Index, DurationS: st.DurationS, LengthM: st.LengthM, SpeedMPS: st.SpeedMPS,
 			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: pt.s.T})

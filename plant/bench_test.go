@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"testing"
+	"time"
 )
 
 // benchWalker builds a walker with arc feet standing on its left foot
@@ -14,7 +15,13 @@ func benchWalker(b *testing.B, torso bool) (*Model, State) {
 }
 
 func benchWalkerSub(b *testing.B, torso bool, subSteps int) (*Model, State) {
+	return benchWalkerOn(b, torso, subSteps, false)
+}
+
+// benchWalkerOn is benchWalkerSub with the ground a belt when belt is set.
+func benchWalkerOn(b *testing.B, torso bool, subSteps int, belt bool) (*Model, State) {
 	p := DemoParams()
+	p.Terrain.Segments[0].Belt = belt
 	if !torso {
 		p.Torso = nil
 	}
@@ -46,18 +53,38 @@ func benchWalkerSub(b *testing.B, torso bool, subSteps int) (*Model, State) {
 func benchTick(b *testing.B, torso bool) { benchTickSub(b, torso, 0) }
 
 func benchTickSub(b *testing.B, torso bool, subSteps int) {
-	m, s := benchWalkerSub(b, torso, subSteps)
-	start := s
+	benchTickOn(b, torso, subSteps, nil)
+}
+
+// benchTickOn is benchTickSub on a belt moving with the given motion (nil:
+// fixed ground). The walker is put on the belt with MoveWithBelt.
+func benchTickOn(b *testing.B, torso bool, subSteps int, belt *BeltMotion) {
+	m, s := benchWalkerOn(b, torso, subSteps, belt != nil)
 	var in Input
+	if belt != nil {
+		m.MoveWithBelt(&s, belt.Speed)
+		in.Belt = *belt
+	}
+	start := s
+	limit := 60.0
+	if belt != nil && belt.Accel != 0 {
+		// The belt's acceleration tilts the walker's apparent gravity
+		// forward: start again before the hanging torso swings over.
+		limit = 5
+	}
 	var r TickResult
 	b.ReportAllocs()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
+		if belt != nil {
+			// The speed at the start of each tick follows the acceleration.
+			in.Belt.Speed = belt.Speed + belt.Accel*(s.T-start.T)
+		}
 		m.Step(&s, &in, 1e-3, &r)
 		if r.NumEvents > 0 || r.Contacts[0].Mode != Rolling {
 			b.Fatalf("tick %d: events %v, stance mode %v", i, r.Events[:r.NumEvents], r.Contacts[0].Mode)
 		}
-		if s.T > 60 {
+		if s.T > limit {
 			s = start
 		}
 	}
@@ -69,6 +96,19 @@ func BenchmarkTickCompass(b *testing.B) { benchTick(b, false) }
 
 // BenchmarkTickTorso: the same with a torso (5 degrees of freedom).
 func BenchmarkTickTorso(b *testing.B) { benchTick(b, true) }
+
+// BenchmarkTickBelt: BenchmarkTickCompass and BenchmarkTickTorso with the
+// stance foot rolling on a belt, at a constant 1.2 m/s and accelerating at
+// 0.5 m/s² (the belt speed then grows without bound, which the physics
+// does not mind). Issue 11 asks for at most 10 % over fixed ground.
+func BenchmarkTickBelt(b *testing.B) {
+	for _, torso := range []bool{false, true} {
+		for _, mo := range []BeltMotion{{Speed: 1.2}, {Speed: 1.2, Accel: 0.5}} {
+			name := fmt.Sprintf("torso=%v/accel=%g", torso, mo.Accel)
+			b.Run(name, func(b *testing.B) { benchTickOn(b, torso, 0, &mo) })
+		}
+	}
+}
 
 // BenchmarkTickCompassSubSteps: the compass tick with other numbers of RK4
 // sub-steps per 1 ms tick (the default is 4), for choosing the trade-off.
@@ -124,4 +164,47 @@ func BenchmarkTenStepsSciPyTolerance(b *testing.B) {
 	if math.Abs(last.T-fx.TenSteps.Steps[9].HeelStrikeTime) > 1e-6 {
 		b.Fatalf("ten steps end at %g, SciPy %g", last.T, fx.TenSteps.Steps[9].HeelStrikeTime)
 	}
+}
+
+// BenchmarkTickBeltOverhead measures the cost of a belt tick against a
+// fixed-ground tick on a shared machine: the compass walker of
+// BenchmarkTickCompass on fixed ground and on a belt at a constant
+// 1.2 m/s is stepped in alternating blocks of 1000 ticks, each block
+// timed, so a change in the machine's load hits both alike. It reports
+// ns per tick of each and their ratio (belt-ratio; issue 11 asks for at
+// most 1.10). Nothing is asserted: speed is measured, not tested.
+func BenchmarkTickBeltOverhead(b *testing.B) {
+	mf, sf := benchWalkerOn(b, false, 0, false)
+	mb, sb := benchWalkerOn(b, false, 0, true)
+	mb.MoveWithBelt(&sb, 1.2)
+	f0, b0 := sf, sb
+	var inF, inB Input
+	inB.Belt.Speed = 1.2
+	var r TickResult
+	var tf, tb time.Duration
+	const block = 1000
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		t0 := time.Now()
+		for k := 0; k < block; k++ {
+			mf.Step(&sf, &inF, 1e-3, &r)
+		}
+		t1 := time.Now()
+		for k := 0; k < block; k++ {
+			mb.Step(&sb, &inB, 1e-3, &r)
+		}
+		tb += time.Since(t1)
+		tf += t1.Sub(t0)
+		if r.NumEvents > 0 || r.Contacts[0].Mode != Rolling {
+			b.Fatalf("belt tick: events %v, stance mode %v", r.Events[:r.NumEvents], r.Contacts[0].Mode)
+		}
+		if sf.T > 60 {
+			sf, sb = f0, b0
+		}
+	}
+	n := float64(b.N) * block
+	b.ReportMetric(float64(tf.Nanoseconds())/n, "fixed-ns/tick")
+	b.ReportMetric(float64(tb.Nanoseconds())/n, "belt-ns/tick")
+	b.ReportMetric(float64(tb)/float64(tf), "belt-ratio")
 }

@@ -37,7 +37,8 @@ const maxTickEvents = 32
 
 // conditions evaluates every event condition at the state (q of s) with
 // its evaluation ev.
-func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]float64) {
+// tau is the time of that state after s.T (the belt speed depends on it).
+func (m *Model) conditions(s *State, q *[MaxDOF]float64, tau float64, ev *eval, c *[numCond]float64) {
 	nan := math.NaN()
 	for k := range c {
 		c[k] = nan
@@ -56,7 +57,10 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, ev *eval, c *[numCond]f
 			}
 		case Sliding:
 			c[condNormal+i] = ev.force[i][1]
-			c[condStick+i] = s.SlipDir[i] * g.slip
+			// Slip relative to the surface: a foot sticks when it moves
+			// with the belt, not when it stands still in the world.
+			u, _ := m.surface(s, g, tau)
+			c[condStick+i] = s.SlipDir[i] * (g.slip - u)
 		}
 	}
 	for i := 0; i < m.nFeet; i++ {

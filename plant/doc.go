@@ -51,6 +51,17 @@
 // Jacobian comes from the variational equations with the event-time
 // (saltation) correction at the heel strike.
 //
+// # Moving ground
+//
+// A terrain segment may be a treadmill belt (Segment.Belt) whose surface
+// runs along itself with the speed the loop gives for each tick
+// (Input.Belt, a BeltMotion; BeltProfile computes it from a profile). A
+// rolling foot keeps the belt's velocity, a sliding foot's friction
+// opposes the slip relative to the belt, and a heel strike is plastic and
+// no-slip relative to the belt. The derivation is at the top of belt.go;
+// the checks are Galilean invariance, d'Alembert's principle and energy
+// conservation relative to the belt (belt_test.go).
+//
 // The package is pure computation: no I/O, no clocks, no logging, no
 // goroutines. A Model is read-only after New and may be shared between
 // goroutines; each goroutine keeps its own State.

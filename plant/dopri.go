@@ -132,6 +132,10 @@ func (st *stepStats) sample(m *Model, s *State, ev *eval) {
 func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, events *[]Event, st *stepStats) analysisStop {
 	var r TickResult
 	var cur, nxt eval
+	// Analysis runs in the belt's frame: for a belt of constant speed that
+	// is exact (Galilean invariance, tested in belt_test.go), and a Policy
+	// sees only the state, so it cannot drive a belt profile.
+	m.setBelt(s, nil)
 	m.evalAt(s, &s.Q, &s.V, pol, &cur)
 	if !cur.ok {
 		return stopFail
@@ -159,8 +163,8 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 			}
 			continue
 		}
-		m.conditions(s, &x0.q, &cur, &c0)
-		m.conditions(s, &x1.q, &nxt, &c1)
+		m.conditions(s, &x0.q, 0, &cur, &c0)
+		m.conditions(s, &x1.q, h, &nxt, &c1)
 		first, tau := -1, h
 		for k := 0; k < numCond; k++ {
 			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
@@ -245,7 +249,7 @@ func (m *Model) locateAdaptive(s *State, x0 *phase, k1 *eval, pol Policy, k int,
 	var c [numCond]float64
 	return illinois(fa, fb, h, 1e-14, 1e-16, func(t float64) float64 {
 		m.dopriStep(s, x0, k1, t, pol, 1, 1, &x, &ev)
-		m.conditions(s, &x.q, &ev, &c)
+		m.conditions(s, &x.q, t, &ev, &c)
 		return c[k]
 	})
 }

@@ -148,7 +148,14 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 	}
 	if rolling >= 0 && other == 0 {
 		var lam [maxRows]float64
-		ev.ok = m.rhsOneFoot(&tr, &f, rolling, &ev.geom[rolling], &ev.acc, &lam)
+		g := &ev.geom[rolling]
+		gt := g.gt
+		if m.onBelt(g) {
+			// J_t q̈ + J̇_t q̇ = du/dt: the material point keeps the
+			// surface's tangential velocity (package doc, "Moving ground").
+			gt += s.belt.Accel
+		}
+		ev.ok = m.rhsOneFoot(&tr, &f, rolling, g, gt, &ev.acc, &lam)
 		ev.force[rolling] = [2]float64{lam[0], lam[1]}
 		return
 	}
@@ -159,6 +166,9 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 		switch s.Mode[i] {
 		case Rolling:
 			sd.j[k], sd.w[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jt, g.jt, -g.gt, i, 0
+			if m.onBelt(g) {
+				sd.bottom[k] -= s.belt.Accel // du/dt = −dv_b/dt
+			}
 			k++
 			sd.j[k], sd.w[k], sd.bottom[k], sd.foot[k], sd.kind[k] = g.jn, g.jn, -g.gn, i, 1
 			k++
@@ -196,8 +206,9 @@ func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
 	g := &ev.geom[i]
 	ft, fn := ev.force[i][0], ev.force[i][1]
 	mu := m.terrain[g.sp.seg].muS
+	u, _ := m.surface(s, g, 0)
 	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, Gap: g.gap,
-		SlipVel: g.slip, Segment: g.sp.seg, Point: g.sp.p}
+		SlipVel: g.slip - u, Segment: g.sp.seg, Point: g.sp.p}
 	fc.Utilization = utilization(ft, fn, mu)
 	if s.Mode[i] != Free {
 		fc.CoP = m.centreOfPressure(&s.Q, i, g)

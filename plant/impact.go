@@ -9,6 +9,10 @@ func (m *Model) solveImpulse(q *[MaxDOF]float64, v *[MaxDOF]float64, rows *saddl
 	m.trigOf(q, &tr)
 	for r := 0; r < rows.k; r++ {
 		rows.bottom[r] = -dot(&rows.j[r], v, m.n)
+		if g := rows.goal[r]; g != 0 {
+			// Off the belt goal is 0 and the arithmetic is unchanged.
+			rows.bottom[r] += g
+		}
 	}
 	var f, dv [MaxDOF]float64
 	if !m.solveSaddle(&tr, &f, rows, &dv, lam) {
@@ -46,7 +50,7 @@ func (m *Model) touch(s *State, i int, ev *eval, r *TickResult) bool {
 // released and the impulse solved again; a foot whose impulse leaves the
 // friction cone (|Λ_t| > μ_s Λ_n) is resolved on the cone boundary.
 func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool {
-	ke0, _ := m.Energy(s)
+	ke0 := m.kineticOnSurface(s, &s.V, &ev.geom[i])
 	var active [2]bool
 	active[i] = true
 	for f := 0; f < m.nFeet; f++ {
@@ -69,9 +73,12 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			g := &ev.geom[f]
 			if slipSign[f] == 0 {
 				rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+				// No slip relative to the surface: on the belt the foot
+				// leaves the impact moving with it.
+				rows.goal[rows.k], _ = m.surface(s, g, 0)
 				rows.k++
 			}
-			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jn, f, 1
+			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, f, 1, 0
 			mu := m.terrain[g.sp.seg].muS * slipSign[f]
 			for d := 0; d < m.n; d++ {
 				rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
@@ -134,7 +141,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 		}
 	}
 	s.V = v
-	ke1, _ := m.Energy(s)
+	ke1 := m.kineticOnSurface(s, &s.V, &ev.geom[i])
 	stop := false
 	for f := 0; f < m.nFeet; f++ {
 		if slipSign[f] == 0 {
@@ -167,8 +174,8 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			// the slip: with no slip velocity to read yet, the foot slides
 			// the other way.
 			s.SlipDir[f] = -slipSign[f]
-			if g.slip != 0 {
-				s.SlipDir[f] = math.Copysign(1, g.slip)
+			if u, _ := m.surface(s, &g, 0); g.slip != u {
+				s.SlipDir[f] = math.Copysign(1, g.slip-u)
 			}
 		default:
 			s.Mode[f] = Rolling

@@ -41,6 +41,6 @@ func BenchmarkConditions(b *testing.B) {
 	var c [numCond]float64
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {
-		m.conditions(&s, &s.Q, &ev, &c)
+		m.conditions(&s, &s.Q, 0, &ev, &c)
 	}
 }

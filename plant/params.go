@@ -39,6 +39,10 @@ type Segment struct {
 	Slope     float64 // rad, positive = uphill going forward, |Slope| < π/2
 	MuStatic  float64 // static friction coefficient, ≥ 0
 	MuKinetic float64 // kinetic (Coulomb) friction coefficient, 0 ≤ μ_k ≤ μ_s
+	// Belt makes the segment a treadmill belt: its surface moves along the
+	// segment with the speed Input.Belt gives for each tick (see the package
+	// documentation, "Moving ground"). At most one segment is a belt.
+	Belt bool
 }
 
 // Terrain is a polyline of straight segments starting at Start (x, y). The
@@ -141,8 +145,17 @@ func (p Params) Validate() error {
 	if !finite(p.Terrain.Start[0]) || !finite(p.Terrain.Start[1]) {
 		return perr("Terrain.Start", p.Terrain.Start[0]+p.Terrain.Start[1], "must be a finite point")
 	}
+	belts := 0
 	for i, s := range p.Terrain.Segments {
 		f := fmt.Sprintf("Terrain.Segments[%d].", i)
+		if s.Belt {
+			belts++
+			if belts > 1 {
+				// Input.Belt carries one speed: two belts would have to
+				// run in lockstep, which no treadmill guarantees.
+				return perr(f+"Belt", 1, "a second belt segment: one belt per terrain")
+			}
+		}
 		switch {
 		case !finite(s.Length) || s.Length <= 0:
 			return perr(f+"Length", s.Length, "must be a finite length > 0 m")

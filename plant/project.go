@@ -30,10 +30,12 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 			if g.sp.clamped {
 				res[rows.k] = 0
 			}
+			rows.goal[rows.k], _ = m.surface(s, &g, 0)
 			rows.k++
 		}
 		rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jn, g.jn, f, 1
 		res[rows.k] = g.gap
+		rows.goal[rows.k] = 0
 		rows.k++
 	}
 }
@@ -90,7 +92,7 @@ func (m *Model) projectVelocityRows(s *State, rows *saddle) bool {
 	}
 	worst := 0.0
 	for r := 0; r < rows.k; r++ {
-		worst = math.Max(worst, math.Abs(dot(&rows.j[r], &s.V, m.n)))
+		worst = math.Max(worst, math.Abs(dot(&rows.j[r], &s.V, m.n)-rows.goal[r]))
 	}
 	if worst <= projectTol*math.Sqrt(m.reach*m.p.Gravity) {
 		return false

@@ -27,6 +27,10 @@ type saddle struct {
 	foot   [maxRows]int
 	kind   [maxRows]int // 0 tangential, 1 normal
 	bottom [maxRows]float64
+	// goal is the velocity J q̇ a row must reach in an impulse or velocity
+	// projection: the belt's surface speed for the tangential row of a
+	// foot on the belt, else 0.
+	goal [maxRows]float64
 }
 
 // solveSaddle solves
@@ -171,7 +175,10 @@ func (m *Model) solveOneFoot(k int, tx, ty, nx, ny, jt, jn, bt, bn float64, B *[
 
 // rhsOneFoot is the hot path of rhs: foot k rolls and every other foot is
 // free, so no saddle system is assembled at all.
-func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+//
+// gt is the tangential row's J̇q̇ less the surface's tangential acceleration
+// (g.gt on fixed ground).
+func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, gt float64, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
 	var B [MaxLinks][2]float64
 	var D [MaxLinks]float64
 	hxx, hxy, hyy := m.massTotal, 0.0, m.massTotal
@@ -191,5 +198,5 @@ func (m *Model) rhsOneFoot(tr *trig, f *[MaxDOF]float64, k int, g *footGeom, x *
 		fy -= B[j][1] * f[2+j] * inv
 	}
 	t, n := g.sp.t, g.sp.n
-	return m.solveOneFoot(k, t[0], t[1], n[0], n[1], g.jt[2+k], g.jn[2+k], -g.gt, -g.gn, &B, &D, f, hxx, hxy, hyy, fx, fy, x, lam)
+	return m.solveOneFoot(k, t[0], t[1], n[0], n[1], g.jt[2+k], g.jn[2+k], -gt, -g.gn, &B, &D, f, hxx, hxy, hyy, fx, fy, x, lam)
 }

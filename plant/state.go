@@ -28,12 +28,31 @@ type State struct {
 	// vertex marks a foot whose contact is the vertex at the end of
 	// segment Seg (rather than the inside of Seg).
 	vertex [2]bool
+	// belt is the belt motion of the tick being stepped (set from the
+	// Input at the start of Step, Contacts and Accel): the speed at beltT0
+	// and the acceleration held over the tick. The events and the
+	// projection need the belt speed at times inside the tick.
+	belt   BeltMotion
+	beltT0 float64
 }
 
 // Input is what the controller applies over one tick (zero-order hold).
 type Input struct {
 	Torque   [MaxActuators]float64 // N·m, in JointNames order
 	HipForce [2]float64            // external push on the hip (x, y), N
+	// Belt is the motion of the terrain's belt segment over the tick (the
+	// rig's, not the controller's); ignored without a belt segment.
+	Belt BeltMotion
+}
+
+// BeltMotion is the belt's motion over one tick: its speed at the start of
+// the tick and a constant acceleration, so the speed is exact at both ends
+// of a tick of a piecewise-linear profile (BeltProfile.Motion builds it).
+// Speed is positive when the surface runs backward (toward −t̂, as a
+// treadmill runs under a walker facing forward).
+type BeltMotion struct {
+	Speed float64 // m/s at the start of the tick, positive backward
+	Accel float64 // m/s², d(Speed)/dt over the tick
 }
 
 // ErrStand is wrapped by the errors Stand returns when it cannot place the
@@ -239,6 +258,7 @@ func (m *Model) Contacts(s *State, in *Input) [2]FootContact {
 	var out [2]FootContact
 	c := *s
 	m.sanitize(&c)
+	m.setBelt(&c, in)
 	m.rhs(&c, &c.Q, &c.V, in, &ev)
 	for i := 0; i < m.nFeet; i++ {
 		m.contactRecord(&c, &ev, i, &out[i])
@@ -252,6 +272,7 @@ func (m *Model) Accel(s *State, in *Input) ([MaxDOF]float64, bool) {
 	var ev eval
 	c := *s
 	m.sanitize(&c)
+	m.setBelt(&c, in)
 	m.rhs(&c, &c.Q, &c.V, in, &ev)
 	return ev.acc, ev.ok
 }

@@ -34,7 +34,13 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 			r.Stopped = true
 			return
 		}
+		if !finite(in.Belt.Speed) || !finite(in.Belt.Accel) {
+			r.add(Event{Kind: BadInput, T: s.T, Foot: -1, Segment: -1, Value: in.Belt.Speed + in.Belt.Accel})
+			r.Stopped = true
+			return
+		}
 	}
+	m.setBelt(s, in)
 	h := dt / float64(m.o.SubSteps)
 	tEnd := s.T + dt
 	var evA, evB eval
@@ -46,7 +52,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 	}
 	events := 0
 	var c0, c1 [numCond]float64
-	m.conditions(s, &s.Q, cur, &c0)
+	m.conditions(s, &s.Q, 0, cur, &c0)
 	for s.T < tEnd-1e-9*h {
 		hh := math.Min(h, tEnd-s.T)
 		x0 := phase{q: s.Q, v: s.V}
@@ -59,7 +65,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 			m.nonFinite(s, r)
 			return
 		}
-		m.conditions(s, &x1.q, nxt, &c1)
+		m.conditions(s, &x1.q, hh, nxt, &c1)
 		first, tau := -1, hh
 		for k := 0; k < numCond; k++ {
 			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
@@ -74,6 +80,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 			}
 		}
 		if first < 0 {
+			m.rideBelt(s, hh)
 			s.Q, s.V = x1.q, x1.v
 			s.T += hh
 			cur, nxt = nxt, cur
@@ -98,13 +105,14 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 		if tau > 0 {
 			var xe phase
 			m.rk4(s, &x0, cur, tau, in, &xe)
+			m.rideBelt(s, tau)
 			s.Q, s.V = xe.q, xe.v
 			s.T += tau
 		}
 		m.rhs(s, &s.Q, &s.V, in, cur)
 		stop := m.handle(s, in, first, cur, r)
 		m.rhs(s, &s.Q, &s.V, in, cur)
-		m.conditions(s, &s.Q, cur, &c0)
+		m.conditions(s, &s.Q, 0, cur, &c0)
 		if !cur.ok {
 			m.nonFinite(s, r)
 			return
@@ -150,7 +158,7 @@ func (m *Model) locate(s *State, x0 *phase, k1 *eval, in *Input, k int, fa, fb, 
 	return illinois(fa, fb, h, 1e-13, 1e-15, func(t float64) float64 {
 		m.rk4(s, x0, k1, t, in, &x)
 		m.rhs(s, &x.q, &x.v, in, &ev)
-		m.conditions(s, &x.q, &ev, &c)
+		m.conditions(s, &x.q, t, &ev, &c)
 		return c[k]
 	})
 }

@@ -8,6 +8,7 @@ type tseg struct {
 	t, n     [2]float64 // unit tangent (forward) and normal (up)
 	length   float64
 	muS, muK float64
+	belt     bool // the surface moves along t with the belt's speed
 }
 
 func compileTerrain(tr Terrain) []tseg {
@@ -17,7 +18,7 @@ func compileTerrain(tr Terrain) []tseg {
 		c, sn := math.Cos(s.Slope), math.Sin(s.Slope)
 		q := [2]float64{p[0] + s.Length*c, p[1] + s.Length*sn}
 		out[i] = tseg{p0: p, p1: q, t: [2]float64{c, sn}, n: [2]float64{-sn, c},
-			length: s.Length, muS: s.MuStatic, muK: s.MuKinetic}
+			length: s.Length, muS: s.MuStatic, muK: s.MuKinetic, belt: s.Belt}
 		p = q
 	}
 	return out

@@ -154,6 +154,9 @@ type TerrainSegment struct {
 	MuStatic float64 `json:"mu_static"`
 	// MuKinetic is the kinetic friction coefficient μ_k.
 	MuKinetic float64 `json:"mu_kinetic"`
+	// Belt marks the treadmill belt segment (plant.Segment.Belt); left
+	// out for fixed ground.
+	Belt bool `json:"belt,omitempty"`
 }
 
 // PlantOf records the plant parameters p in the manifest's schema.
@@ -171,7 +174,7 @@ func PlantOf(p plant.Params) *Plant {
 		out.Terrain.Segments = make([]TerrainSegment, len(p.Terrain.Segments))
 	}
 	for i, s := range p.Terrain.Segments {
-		out.Terrain.Segments[i] = TerrainSegment{LengthM: s.Length, SlopeRad: s.Slope, MuStatic: s.MuStatic, MuKinetic: s.MuKinetic}
+		out.Terrain.Segments[i] = TerrainSegment{LengthM: s.Length, SlopeRad: s.Slope, MuStatic: s.MuStatic, MuKinetic: s.MuKinetic, Belt: s.Belt}
 	}
 	return out
 }
@@ -192,7 +195,7 @@ func (p *Plant) Params() plant.Params {
 		out.Terrain.Segments = make([]plant.Segment, len(p.Terrain.Segments))
 	}
 	for i, s := range p.Terrain.Segments {
-		out.Terrain.Segments[i] = plant.Segment{Length: s.LengthM, Slope: s.SlopeRad, MuStatic: s.MuStatic, MuKinetic: s.MuKinetic}
+		out.Terrain.Segments[i] = plant.Segment{Length: s.LengthM, Slope: s.SlopeRad, MuStatic: s.MuStatic, MuKinetic: s.MuKinetic, Belt: s.Belt}
 	}
 	return out
 }

@@ -152,6 +152,8 @@ func expectedRow(t *Tick, nq int, joints []string) (names []string, vals []float
 	}
 	add("fresh", fresh)
 	add("stance", float64(t.Stance))
+	add("belt_speed_mps", t.BeltSpeed)
+	add("belt_position_m", t.BeltPos)
 	return names, vals
 }
 

@@ -43,6 +43,8 @@ type Tick struct {
 	LatencyUS float64            // command round-trip latency, µs; NaN when no fresh command
 	Fresh     bool               // a fresh command arrived for this tick
 	Stance    int                // stance leg: 0 left, 1 right
+	BeltSpeed float64            // treadmill belt speed at the end of the tick, m/s, positive backward; 0 without a belt
+	BeltPos   float64            // hip distance from the belt's rear end along the belt, m; NaN without a belt
 }
 
 // Kind says how the values of a column are written and stored.
@@ -203,7 +205,7 @@ func tickFields(numQ int, joints []string) table[Tick] {
 			func(t *Tick) float64 { return t.Applied[j] }, func(t *Tick, v float64) { t.Applied[j] = v })
 	}
 
-	c.real("push_x_n", "N", "push_x_n", "push force on the hip along x (fault injection), held over the tick",
+	c.real("push_x_n", "N", "push_x_n", "push force on the hip along x (fault injection, plus the pull of a fall-arrest harness rope when one is set), held over the tick",
 		func(t *Tick) float64 { return t.Push[0] }, func(t *Tick, v float64) { t.Push[0] = v })
 	c.real("push_y_n", "N", "push_y_n", "push force on the hip along y",
 		func(t *Tick) float64 { return t.Push[1] }, func(t *Tick, v float64) { t.Push[1] = v })
@@ -239,6 +241,10 @@ func tickFields(numQ int, joints []string) table[Tick] {
 		func(t *Tick) int64 { return bit(t.Fresh) }, func(t *Tick, v int64) { t.Fresh = v != 0 })
 	c.whole(Code, "stance", "stance", "stance leg: 0 left, 1 right",
 		func(t *Tick) int64 { return int64(t.Stance) }, func(t *Tick, v int64) { t.Stance = int(v) })
+	c.real("belt_speed_mps", "m/s", "", "treadmill belt speed at the end of the tick, positive when the surface runs backward; 0 on fixed ground",
+		func(t *Tick) float64 { return t.BeltSpeed }, func(t *Tick, v float64) { t.BeltSpeed = v })
+	c.real("belt_position_m", "m", "", "hip distance from the belt's rear end, along the belt (the walker's place on the treadmill); NaN without a belt",
+		func(t *Tick) float64 { return t.BeltPos }, func(t *Tick, v float64) { t.BeltPos = v })
 	return c
 }
 

@@ -128,6 +128,7 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 	for src != nil && src.Next() {
 		t := src.Tick()
 		v.t = append(v.t, t.T)
+		v.belt.speed = append(v.belt.speed, t.BeltSpeed)
 		v.latency = append(v.latency, t.LatencyUS)
 		v.hipY = append(v.hipY, t.Q[1])
 		v.hipVX = append(v.hipVX, t.V[0])
@@ -285,7 +286,9 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 
 	// Alarms and events.
 	v.ScenarioText = m.ScenarioText
+	v.belt.on = hasBelt(m.Plant)
 	for _, e := range events {
+		v.belt.event(&e)
 		v.alarms = append(v.alarms, alarmMark{t: e.T, kind: e.Kind, severity: string(e.Severity)})
 		if e.Severity == record.Info {
 			continue

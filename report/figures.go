@@ -67,7 +67,7 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 	v.MarksKey = marksCaption(v)
 	steps := []func(*figureSet, *view) error{
 		jointFigures, torqueFigure, bodyFigures, latencyFigures, forceFigures,
-		utilizationFigure, copFigure, phaseFigures, alarmFigure, stickFigure,
+		utilizationFigure, beltFigures, copFigure, phaseFigures, alarmFigure, stickFigure,
 	}
 	for _, f := range steps {
 		if err := f(fs, v); err != nil {
@@ -75,6 +75,16 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 		}
 	}
 	return fs.figs, nil
+}
+
+// beltFigures: the belt speed with its perturbations, under the force and
+// utilization plots (treadmill runs only; belt.go).
+func beltFigures(fs *figureSet, v *view) error {
+	f, ok, err := beltFigure(v, figW, figH, fs.max)
+	if err == nil && ok {
+		fs.figs = append(fs.figs, f)
+	}
+	return err
 }
 
 // jointFigures: joint angles and rates as the firmware read them.

@@ -102,6 +102,8 @@ type view struct {
 	demands []demandMark
 	// stepsTotal is how many heel strikes the run had; poses may be fewer.
 	stepsTotal int
+	// belt is the treadmill side of the run (belt.go); empty without a belt.
+	belt beltView
 }
 
 // alarmRow is one line of the alarm log table.

@@ -48,6 +48,8 @@ func FromScenario(s *scenarios.Scenario) (hil.Config, error) {
 		MaxSteps: s.Run.MaxSteps,
 		Criteria: s.Pass,
 		Seed:     s.Sensors.Seed,
+		Belt:     s.Treadmill(),
+		Harness:  s.FallHarness(),
 	}
 	for k, v := range s.Alarms {
 		if !slices.Contains(hil.AlarmKinds, k) {

@@ -21,6 +21,20 @@ var errNaturalGait = errors.New("rig: the scenario starts from the natural gait"
 // scenario that cannot give a state is a configuration error; a gait
 // finder that finds no gait is not (the walker, not the file, is at fault).
 func InitialState(sc *scenarios.Scenario, model *plant.Model) (plant.State, error) {
+	s, err := initialOnSurface(sc, model)
+	if err == nil {
+		// The scenario's rates (and the gait finder's state) are relative
+		// to the ground under the walker; on a belt that ground moves.
+		if b := sc.Treadmill(); b != nil {
+			model.MoveWithBelt(&s, b.Profile.Speed(0))
+		}
+	}
+	return s, err
+}
+
+// initialOnSurface is InitialState relative to the surface under the
+// walker.
+func initialOnSurface(sc *scenarios.Scenario, model *plant.Model) (plant.State, error) {
 	s, err := explicitState(sc, model)
 	if err == nil {
 		return s, nil
@@ -53,7 +67,7 @@ func explicitState(s *scenarios.Scenario, m *plant.Model) (plant.State, error) {
 	if m.HasTorso() {
 		rates = append(rates, in.TorsoRateRadps)
 	}
-	return m.Stand(s.StanceLeg(), in.XM, [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}, in.TorsoAngleRad, rates...)
+	return m.Stand(s.StanceLeg(), s.StartXM(), [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}, in.TorsoAngleRad, rates...)
 }
 
 // GaitPolicy is the policy the gait finder analyses for a scenario: nil for

@@ -60,6 +60,9 @@ func replay(dir string) (hil.ReplayResult, error) {
 	if err != nil {
 		return hil.ReplayResult{}, err
 	}
+	if b := s.Treadmill(); b != nil {
+		p.SetBeltSpeed(b.Profile.Speed(st.T))
+	}
 	tr, err := run.Ticks()
 	if err != nil {
 		return hil.ReplayResult{}, err

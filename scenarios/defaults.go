@@ -129,6 +129,7 @@ func (d *decoder) applyDefaults(s *Scenario) {
 			s.Terrain.Segments[i].MuKinetic = MuKineticRatio * s.Terrain.Segments[i].MuStatic
 		}
 	}
+	d.treadmillDefaults(s)
 	if s.Alarms == nil {
 		s.Alarms = map[string]Severity{}
 	}

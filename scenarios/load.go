@@ -412,7 +412,7 @@ func (s *Scenario) PlantParams() (plant.Params, error) {
 	}
 	for _, g := range s.Terrain.Segments {
 		p.Terrain.Segments = append(p.Terrain.Segments, plant.Segment{Length: g.LengthM, Slope: g.SlopeRad,
-			MuStatic: g.MuStatic, MuKinetic: g.MuKinetic})
+			MuStatic: g.MuStatic, MuKinetic: g.MuKinetic, Belt: g.Belt != nil})
 	}
 	if err := p.Validate(); err != nil {
 		return p, err

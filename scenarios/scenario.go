@@ -62,6 +62,9 @@ type Scenario struct {
 	// Margins chooses the axes of `gaitrig margins` and the minima a lab
 	// requires of them (the preflight gate checks those).
 	Margins Margins `yaml:"margins"`
+	// Harness is the overhead fall-arrest harness. Optional; without it a
+	// fall ends the run as the fall alarm says.
+	Harness *Harness `yaml:"harness"`
 
 	// File is the path or name the scenario was loaded from (not a YAML
 	// field).
@@ -180,6 +183,110 @@ type Segment struct {
 	// 0.8 × mu_static (a typical ratio, common practice);
 	// 0 ≤ mu_kinetic ≤ mu_static.
 	MuKinetic float64 `yaml:"mu_kinetic"`
+	// Belt makes this segment a treadmill belt: its surface runs along the
+	// segment with the speed profile given, and the segment's length is the
+	// belt's length. At most one segment is a belt. Optional.
+	Belt *Belt `yaml:"belt"`
+}
+
+// Belt is a treadmill belt: its speed profile (exactly one of speed_mps,
+// ramp and points, plus any pulses), where the walker starts on it, and
+// how close to an end the walker may come before the belt_end_near alarm.
+// Speeds are positive when the surface runs backward, as a treadmill runs
+// under a walker facing forward. The walker's initial rates are relative
+// to the belt surface.
+type Belt struct {
+	// SpeedMPS is a constant belt speed, m/s; |speed_mps| ≤ 20.
+	SpeedMPS *float64 `yaml:"speed_mps"`
+	// Ramp changes the speed linearly between two times.
+	Ramp *BeltRamp `yaml:"ramp"`
+	// Points are (time, speed) corners joined by straight lines, the speed
+	// held before the first and after the last; at least one, times
+	// strictly increasing.
+	Points []BeltPoint `yaml:"points"`
+	// Pulses are perturbations added to the profile: a change of speed
+	// over rise_s, held for hold_s, back over fall_s, at a time or at a
+	// phase of a step.
+	Pulses []BeltPulse `yaml:"pulses"`
+	// StartM is where the walker starts on the belt: the distance from the
+	// belt's rear end, along the belt, of the point initial.x_m would give
+	// (the rig stands the walker there), m, 0 < start_m < the segment's
+	// length_m.
+	// Default the middle of the belt when initial.x_m is not given either;
+	// when given it overrides initial.x_m.
+	StartM *float64 `yaml:"start_m"`
+	// EndMarginM is how close the hip or a foot may come to either end of
+	// the belt before belt_end_near is raised, m. Default 0.3
+	// (hil.DefaultEndMargin); 0 < end_margin_m < half the belt.
+	EndMarginM float64 `yaml:"end_margin_m"`
+}
+
+// BeltRamp is a linear change of belt speed from from_mps at start_s to
+// to_mps at end_s; the speed is held before and after.
+type BeltRamp struct {
+	// FromMPS is the speed before start_s, m/s. Required.
+	FromMPS float64 `yaml:"from_mps"`
+	// ToMPS is the speed after end_s, m/s. Required.
+	ToMPS float64 `yaml:"to_mps"`
+	// StartS is when the ramp begins, s. Default 0.
+	StartS float64 `yaml:"start_s"`
+	// EndS is when it ends, s. Required; end_s > start_s.
+	EndS float64 `yaml:"end_s"`
+}
+
+// BeltPoint is one (time, speed) corner of a belt profile.
+type BeltPoint struct {
+	// TS is the time, s. Required.
+	TS float64 `yaml:"t_s"`
+	// SpeedMPS is the belt speed at t_s, m/s. Required; |speed_mps| ≤ 20.
+	SpeedMPS float64 `yaml:"speed_mps"`
+}
+
+// BeltPulse is a belt perturbation as gait labs apply them, for example
+// +0.5 m/s in 150 ms at early stance of step 12: delta_mps: 0.5,
+// rise_s: 0.15, at_step: 12, phase: 0.1.
+type BeltPulse struct {
+	// AtS starts the pulse at a time, s. A pulse needs at_s or at_step.
+	AtS float64 `yaml:"at_s"`
+	// AtStep starts the pulse at the heel strike that completes this step
+	// (plus phase × that step's duration). ≥ 1 when given.
+	AtStep int `yaml:"at_step"`
+	// Phase delays an at_step pulse by this fraction of the step that just
+	// ended, 0 ≤ phase < 1 (0.1: early stance). Only with at_step.
+	Phase float64 `yaml:"phase"`
+	// DeltaMPS is the change of speed, m/s; positive speeds the belt up.
+	// Required; 0 < |delta_mps| ≤ 10.
+	DeltaMPS float64 `yaml:"delta_mps"`
+	// RiseS is the time to reach delta_mps, s. Required; 0 < rise_s ≤ 10.
+	RiseS float64 `yaml:"rise_s"`
+	// HoldS is the time at the changed speed, s. Default 0; 0 ≤ hold_s ≤ 3600.
+	HoldS float64 `yaml:"hold_s"`
+	// FallS is the time to return to the profile, s. Default rise_s;
+	// 0 < fall_s ≤ 10.
+	FallS float64 `yaml:"fall_s"`
+}
+
+// Harness is the overhead fall-arrest harness every treadmill trial uses:
+// a rope from a fixed point above the hip's initial position with some
+// slack, modelled as a stiff, damped, one-sided spring (see hil.Harness).
+// A caught fall raises harness_caught with the peak rope force; whether a
+// catch ends the run is that alarm's severity (default trip: the trial
+// stops; set alarms.harness_caught: warn to go on).
+type Harness struct {
+	// AnchorHeightM is the height of the rope's fixed point above the hip's
+	// initial position, m. Default 2; 0 < anchor_height_m ≤ 10. With drop_m
+	// it sets how far the walker may also move fore and aft before the
+	// rope goes taut: √((h + drop)² − h²), 0.92 m with the defaults.
+	AnchorHeightM float64 `yaml:"anchor_height_m"`
+	// DropM is how far the hip may drop below its initial height before
+	// the rope goes taut, m (the slack). Default 0.2; 0 < drop_m ≤ 2.
+	DropM float64 `yaml:"drop_m"`
+	// StiffnessNPM is the rope's stiffness, N/m. Default 20000
+	// (hil.DefaultRopeStiffness); 0 < stiffness_npm ≤ 1e7.
+	StiffnessNPM float64 `yaml:"stiffness_npm"`
+	// DampingNSPM is the rope's damping, N·s/m. Default 750
+	// (hil.DefaultRopeDamping); 0 ≤ damping_nspm ≤ 1e6.
+	DampingNSPM float64 `yaml:"damping_nspm"`
 }
 
 // Initial is the initial state: either explicit, or the natural gait found by

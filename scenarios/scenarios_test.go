@@ -63,6 +63,20 @@ func TestBrokenFiles(t *testing.T) {
 			"several-problems.yaml:6: plant.legs.mass_kg: -4 kg is out of range; allowed 0 ≤ mass_kg ≤ 10000",
 			"several-problems.yaml:9: plant.legs.foot_radius_m: 1.2 m is larger than the leg length 0.9 m",
 			"several-problems.yaml:20: watchdog_ms: 0.5 ms is out of range; allowed 2 ticks (2 ms at 1000 Hz) ≤ watchdog_ms ≤ 60000"}},
+		{"bad-belt.yaml", []string{
+			"bad-belt.yaml:14: terrain.segments[0].belt: a belt needs exactly one speed profile: speed_mps (constant), ramp or points; 2 given",
+			"bad-belt.yaml:17: terrain.segments[0].belt.start_m: 5 m is out of range; allowed 0 < start_m < the belt's length_m (4)",
+			"bad-belt.yaml:19: terrain.segments[0].belt.pulses[0].rise_s: missing required field rise_s",
+			"bad-belt.yaml:20: terrain.segments[0].belt.pulses[1].phase: phase applies only to a pulse at_step",
+			"bad-belt.yaml:20: terrain.segments[0].belt.pulses[1].rise_s: 0 s is out of range; allowed 0 < rise_s ≤ 10"}},
+		{"two-belts.yaml", []string{
+			"two-belts.yaml:15: terrain.segments[0].belt.points[1].t_s: 0 s is not after the point before (0 s)",
+			"two-belts.yaml:18: terrain.segments[1].belt: a second belt (the first is terrain.segments[0]); one treadmill belt per scenario",
+			"two-belts.yaml:20: terrain.segments[1].belt.end_margin_m: 3 m is out of range; allowed 0 < end_margin_m < half the belt (2 m)"}},
+		{"bad-harness.yaml", []string{
+			"bad-harness.yaml:21: harness.drop_m: -0.1 m is out of range; allowed 0 < drop_m ≤ 2",
+			"bad-harness.yaml:22: harness.stiffness_npm: 0 is out of range",
+			"bad-harness.yaml:23: harness.rope_colour: unknown field \"rope_colour\""}},
 		{"override-too-large.yaml", []string{"override-too-large.yaml:11: plant.legs.right.foot_radius_m: 1.5 m is larger than the leg length 0.9 m"}},
 		{"unit-unquoted.yaml", []string{"unit-unquoted.yaml:14: terrain.segments[0].slope_rad: \"5 deg\" has a unit written in the value; write a plain number in rad"}},
 		{"secret-as-env-name.yaml", []string{"secret-as-env-name.yaml:18: controller.password_env: \"hunter2!\" is not an environment variable name", "never the secret itself"}},
@@ -85,7 +99,7 @@ func TestBrokenFiles(t *testing.T) {
 	}
 	// Files whose problems are counted exactly: several reported together,
 	// nothing repeated or cascaded from a bad parent.
-	counts := map[string]int{"several-problems.yaml": 3, "wrong-block-types.yaml": 2, "bad-faults.yaml": 3,
+	counts := map[string]int{"several-problems.yaml": 3, "bad-belt.yaml": 5, "two-belts.yaml": 3, "bad-harness.yaml": 3, "wrong-block-types.yaml": 2, "bad-faults.yaml": 3,
 		"utf16.yaml": 1, "utf16-without-bom.yaml": 1, "nested-too-deep.yaml": 1, "swing-foot-in-ground.yaml": 1}
 	seen := map[string]bool{}
 	for _, tc := range tests {

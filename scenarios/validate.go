@@ -118,6 +118,7 @@ func (c *checker) validate() {
 	}
 	c.plant()
 	c.terrain()
+	c.harness()
 	c.initial()
 	c.controller()
 	c.clock()
@@ -268,7 +269,106 @@ func (c *checker) terrain() {
 		if c.has(p+".mu_kinetic") && !c.d.bad[p+".mu_kinetic"] && !(g.MuKinetic >= 0 && g.MuKinetic <= g.MuStatic) {
 			c.errf(p+".mu_kinetic", "%g is outside 0 … mu_static (%g); kinetic friction never exceeds static friction; allowed 0 ≤ mu_kinetic ≤ mu_static", g.MuKinetic, g.MuStatic)
 		}
+		if g.Belt != nil {
+			c.belt(p+".belt", g.Belt, g.LengthM)
+		}
 	}
+	first := -1
+	for i, g := range t.Segments {
+		if g.Belt == nil {
+			continue
+		}
+		if first >= 0 {
+			c.errf(fmt.Sprintf("terrain.segments[%d].belt", i), "a second belt (the first is terrain.segments[%d]); one treadmill belt per scenario", first)
+			break
+		}
+		first = i
+	}
+}
+
+// belt checks a treadmill belt block at path on a segment of length l.
+func (c *checker) belt(p string, b *Belt, l float64) {
+	n := 0
+	for _, f := range []string{"speed_mps", "ramp", "points"} {
+		if c.has(p + "." + f) {
+			n++
+		}
+	}
+	if n != 1 && !c.isBad(p) {
+		c.errf(p, "a belt needs exactly one speed profile: speed_mps (constant), ramp or points; %d given", n)
+	}
+	if b.SpeedMPS != nil {
+		c.num(p+".speed_mps", *b.SpeedMPS, math.Abs(*b.SpeedMPS) <= 20, "|X| ≤ 20")
+	}
+	if r := b.Ramp; r != nil {
+		q := p + ".ramp"
+		for _, f := range []string{"from_mps", "to_mps", "end_s"} {
+			c.require(q, f, "the ramp's speeds (m/s) and end time (s)")
+		}
+		c.num(q+".from_mps", r.FromMPS, math.Abs(r.FromMPS) <= 20, "|X| ≤ 20")
+		c.num(q+".to_mps", r.ToMPS, math.Abs(r.ToMPS) <= 20, "|X| ≤ 20")
+		c.num(q+".start_s", r.StartS, r.StartS >= 0 && r.StartS <= 1e5, "0 ≤ X ≤ 100000")
+		if c.has(q+".end_s") && !c.isBad(q+".end_s") && !(r.EndS > r.StartS && r.EndS <= 1e5) {
+			c.errf(q+".end_s", "%g s is not after start_s (%g s); allowed start_s < end_s ≤ 100000", r.EndS, r.StartS)
+		}
+	}
+	if c.has(p+".points") && !c.isBad(p+".points") && len(b.Points) == 0 {
+		c.errf(p+".points", "the list is empty; give at least one {t_s, speed_mps}")
+	}
+	for i, pt := range b.Points {
+		q := fmt.Sprintf("%s.points[%d]", p, i)
+		c.require(q, "t_s", "time, s")
+		c.require(q, "speed_mps", "belt speed, m/s")
+		c.num(q+".t_s", pt.TS, pt.TS >= 0 && pt.TS <= 1e5, "0 ≤ X ≤ 100000")
+		c.num(q+".speed_mps", pt.SpeedMPS, math.Abs(pt.SpeedMPS) <= 20, "|X| ≤ 20")
+		if i > 0 && !c.isBad(q+".t_s") && !(pt.TS > b.Points[i-1].TS) {
+			c.errf(q+".t_s", "%g s is not after the point before (%g s); times must increase strictly", pt.TS, b.Points[i-1].TS)
+		}
+	}
+	for i, pu := range b.Pulses {
+		q := fmt.Sprintf("%s.pulses[%d]", p, i)
+		switch at, step := c.has(q+".at_s"), c.has(q+".at_step"); {
+		case at && step:
+			c.errf(q+".at_step", "a pulse starts at_s or at_step, not both")
+		case !at && !step:
+			c.errf(q, "a pulse needs at_s (a time) or at_step (a heel strike)")
+		case at:
+			c.num(q+".at_s", pu.AtS, pu.AtS >= 0 && pu.AtS <= 1e5, "0 ≤ X ≤ 100000")
+			if c.has(q + ".phase") {
+				c.errf(q+".phase", "phase applies only to a pulse at_step")
+			}
+		default:
+			c.num(q+".at_step", float64(pu.AtStep), pu.AtStep >= 1, "X ≥ 1")
+			c.num(q+".phase", pu.Phase, pu.Phase >= 0 && pu.Phase < 1, "0 ≤ X < 1")
+		}
+		if c.require(q, "delta_mps", "the change of belt speed, m/s") {
+			c.num(q+".delta_mps", pu.DeltaMPS, pu.DeltaMPS != 0 && math.Abs(pu.DeltaMPS) <= 10, "0 < |X| ≤ 10")
+		}
+		if c.require(q, "rise_s", "the time to reach delta_mps, s") {
+			c.num(q+".rise_s", pu.RiseS, pu.RiseS > 0 && pu.RiseS <= 10, "0 < X ≤ 10")
+		}
+		c.num(q+".hold_s", pu.HoldS, pu.HoldS >= 0 && pu.HoldS <= 3600, "0 ≤ X ≤ 3600")
+		if c.has(q + ".fall_s") {
+			// Left out, fall_s is rise_s, whose check speaks for it.
+			c.num(q+".fall_s", pu.FallS, pu.FallS > 0 && pu.FallS <= 10, "0 < X ≤ 10")
+		}
+	}
+	if b.StartM != nil {
+		c.num(p+".start_m", *b.StartM, *b.StartM > 0 && *b.StartM < l, fmt.Sprintf("0 < X < the belt's length_m (%g)", l))
+	}
+	c.num(p+".end_margin_m", b.EndMarginM, b.EndMarginM > 0 && b.EndMarginM < l/2, fmt.Sprintf("0 < X < half the belt (%g m)", l/2))
+}
+
+// harness checks the fall-arrest harness block.
+func (c *checker) harness() {
+	h := c.s.Harness
+	if h == nil {
+		return
+	}
+	c.num("harness.anchor_height_m", h.AnchorHeightM, h.AnchorHeightM > 0 && h.AnchorHeightM <= 10, "0 < X ≤ 10")
+	c.num("harness.drop_m", h.DropM, h.DropM > 0 && h.DropM <= 2, "0 < X ≤ 2")
+	c.num("harness.stiffness_npm", h.StiffnessNPM, h.StiffnessNPM > 0 && h.StiffnessNPM <= 1e7, "0 < X ≤ 1e7")
+	c.num("harness.damping_nspm", h.DampingNSPM, h.DampingNSPM >= 0 && h.DampingNSPM <= 1e6, "0 ≤ X ≤ 1e6")
 }
 
 func (c *checker) initial() {
@@ -609,7 +709,7 @@ func (c *checker) stand(p plant.Params) []Problem {
 	}
 	angles := [2]float64{in.LegAnglesRad[0], in.LegAnglesRad[1]}
 	stance := c.s.StanceLeg()
-	st, err := m.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...)
+	st, err := m.Stand(stance, c.s.StartXM(), angles, in.TorsoAngleRad, rates...)
 	if err == nil {
 		return nil
 	}
@@ -625,7 +725,7 @@ func (c *checker) stand(p plant.Params) []Problem {
 	// apart: if it succeeds, only the swing foot was in the ground.
 	opts.IgnoreScuff = true
 	if loose, lerr := plant.New(p, opts); lerr == nil {
-		if st, serr := loose.Stand(stance, in.XM, angles, in.TorsoAngleRad, rates...); serr == nil {
+		if st, serr := loose.Stand(stance, c.s.StartXM(), angles, in.TorsoAngleRad, rates...); serr == nil {
 			var none plant.Input
 			gap := loose.Contacts(&st, &none)[1-stance].Gap
 			c.errf("initial.leg_angles_rad", "cannot stand the walker: with the %s (stance) leg at %g rad and the %s (swing) leg at %g rad%s "+

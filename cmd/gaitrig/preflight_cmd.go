@@ -48,7 +48,8 @@ func cmdPreflight(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("preflight", "", `
 The pre-trial go/no-go check. Runs a fixed battery against the connected
 firmware: nominal; half the friction; uphill and downhill (2°); a forward push;
-added command latency; tripled sensor noise. Each check must pass the
+added command latency; tripled sensor noise; on a treadmill scenario also a
+belt speed-up and a slow-down pulse. Each check must pass the
 scenario's own criteria (default scenario: the level-ground demo). Prints a
 table per check: peak friction use and the friction headroom left (1 minus
 the peak use; not a margin found by searching), least normal force, steps and
@@ -78,7 +79,7 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	// Every core: only in-process lockstep checks share the machine (the
 	// scheduler runs the others one at a time), and the table is printed
 	// in battery order whatever ran first.
-	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU()}
+	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU(), Checks: batch.BatteryFor(base)}
 	variants, err := pf.Variants(base)
 	if err != nil {
 		return c.fail(rig.ConfigError(err))

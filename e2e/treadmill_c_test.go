@@ -1,0 +1,59 @@
+package e2e
+
+import (
+	"context"
+	"testing"
+	"time"
+
+	"gaitrig/bridges/serial"
+	"gaitrig/hil"
+	"gaitrig/rig"
+	"gaitrig/scenarios"
+)
+
+// TestCFirmwareWalksTheBelt: the example C firmware, compiled with gcc,
+// walks the library's treadmill-steady belt over a real pseudo-terminal
+// pair and ends in exactly the state the Go reference reaches in-process
+// (lockstep makes both bit-exact). The watchdog and resend times are
+// widened for the reason given at demoRun.
+func TestCFirmwareWalksTheBelt(t *testing.T) {
+	b := buildC(t)
+	sc, err := scenarios.LoadBuiltin("treadmill-steady")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := rig.FromScenario(sc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg.Watchdog, cfg.Resend = 2*time.Second, 200*time.Millisecond
+	if cfg.Belt == nil || cfg.Harness == nil {
+		t.Fatalf("treadmill-steady has belt %v and harness %v, want both", cfg.Belt, cfg.Harness)
+	}
+	model, err := rig.NewModel(sc, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	initial, err := rig.InitialState(sc, model)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	defer cancel()
+
+	p := openPty(t)
+	fw := startFirmware(t, ctx, b.firmware, p.Path)
+	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
+	defer conn.Close()
+	res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
+	checkWalk(t, "on the belt over a pty pair", res, dir, conn, fw)
+	if n := res.Summary.Alarms[hil.AlarmBeltEndPassed] + res.Summary.Alarms[hil.AlarmHarnessCaught]; n != 0 {
+		t.Errorf("the walker left the belt or was caught (%d alarms)", n)
+	}
+
+	goRes := runGoReference(t, ctx, cfg, model, initial)
+	if goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V || goRes.Summary.Ticks != res.Summary.Ticks {
+		t.Errorf("final plant state differs between the C firmware over pty and the Go reference in-process:\nC:  q=%v v=%v (%d ticks)\nGo: q=%v v=%v (%d ticks)",
+			res.Final.Q, res.Final.V, res.Summary.Ticks, goRes.Final.Q, goRes.Final.V, goRes.Summary.Ticks)
+	}
+}
