@@ -237,6 +237,7 @@ func (r *runner) actuatorMismatch(g protocol.Greeting) error {
 // tripped, and a stop with reason bad_version in the rig's newest version
 // (the stop layout is the same in every version, so any firmware reads it).
 func (r *runner) versionMismatch(who string, version int) {
+	r.sess.greeting.Version = uint8(version) // for the stop text, also when the greeting did not decode
 	msg := fmt.Sprintf("%s speaks protocol version %d, this rig speaks versions %d to %d", who, version, protocol.MinVersion, protocol.Version)
 	r.al.raise(AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
 		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version), "rig_min_version": float64(protocol.MinVersion)}

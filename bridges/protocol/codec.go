@@ -319,10 +319,13 @@ func getString(dst *string, b []byte) {
 
 // Decode checks one frame (header, payload, CRC; COBS already removed) and
 // fills m. The checks follow docs/protocol.md section 5 and each failure is
-// an *Error naming the values involved. On success only m.Type, m.Seq and the
-// field matching m.Type are written; unused joint slots are set to zero.
-// When the only problem is the protocol version (KindVersion), m.Type and
-// m.Seq are still set, so the caller can answer a greeting with a stop.
+// an *Error naming the values involved. On success only m.Version, m.Type,
+// m.Seq and the field matching m.Type are written; unused joint slots are
+// set to zero. Frames of every version from MinVersion to Version decode;
+// holding a session to the one version its greeting agreed is the caller's
+// part. When the only problem is the protocol version (KindVersion),
+// m.Version, m.Type and m.Seq are still set, so the caller can answer a
+// greeting with a stop.
 // Decode never allocates for state, command, heartbeat and stop frames whose
 // text is unchanged; greeting and config allocate only for texts that differ
 // from those already in m. It never panics, whatever frame holds.
