@@ -49,8 +49,12 @@ func generatedExamples(t *testing.T) (examples, jsonBlock string) {
 			t.Fatal(err)
 		}
 		crc := le.Uint16(f[n-2:])
+		title := e.name
+		if v := e.msg.WireVersion(); v != Version {
+			title = fmt.Sprintf("%s, version %d", e.msg.Type, v)
+		}
 		fmt.Fprintf(&ex, "### %s (type 0x%02x)\n\n%s Frame: %d bytes, CRC 0x%04X (last two bytes `%02x %02x`).\n\n",
-			e.name, uint8(e.msg.Type), exampleDescriptions[e.name], n, crc, f[n-2], f[n-1])
+			title, uint8(e.msg.Type), exampleDescriptions[e.name], n, crc, f[n-2], f[n-1])
 		fmt.Fprintf(&ex, "<!-- example %s frame -->\n```\n%s```\n\nOn a byte stream (%d bytes with the delimiter):\n\n", e.name, hexDump(f[:n]), len(w))
 		fmt.Fprintf(&ex, "<!-- example %s wire -->\n```\n%s```\n\n", e.name, hexDump(w))
 		j, err := AppendJSON(nil, &e.msg)
