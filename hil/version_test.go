@@ -2,6 +2,7 @@ package hil
 
 import (
 	"context"
+	"errors"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -195,5 +196,41 @@ func TestOtherVersionFrameMidRunGoesThroughTheGate(t *testing.T) {
 	ev := eventsOf(t, dir, AlarmBadFrame)
 	if len(ev) != 1 || !strings.Contains(ev[0].Message, "frame speaks version 1, this session speaks version 2") {
 		t.Fatalf("bad_frame events %+v", ev)
+	}
+}
+
+// fixedConn is a link whose every Recv delivers the same message: the
+// smallest stand-in for a real link when only the gate above it is
+// measured.
+type fixedConn struct {
+	bridges.Conn
+	m protocol.Message
+}
+
+func (c *fixedConn) Recv(_ time.Time, m *protocol.Message) error { *m = c.m; return nil }
+
+// The gate costs a tick no allocation for a frame of the agreed version
+// (the tick loop is allocation-free), and refuses one of another version.
+func TestVersionGateAllocatesNothing(t *testing.T) {
+	var ss session
+	link := &fixedConn{m: protocol.Message{Version: 2, Type: protocol.TypeCommand, Seq: 5, Command: protocol.Command{Joints: 2}}}
+	g := ss.gated(link)
+	ss.gate.version.Store(2)
+	var m protocol.Message
+	if n := testing.AllocsPerRun(200, func() {
+		if err := g.Recv(time.Time{}, &m); err != nil {
+			t.Fatal(err)
+		}
+	}); n != 0 {
+		t.Errorf("versionGate.Recv allocates %v times per frame of the agreed version, want 0", n)
+	}
+	link.m.Version = 1
+	var fe *bridges.FrameError
+	if err := g.Recv(time.Time{}, &m); !errors.As(err, &fe) || !errors.Is(err, protocol.ErrVersion) {
+		t.Errorf("a version-1 frame in a version-2 session: err %v, want a frame error wrapping ErrVersion", err)
+	}
+	ss.gate.version.Store(0) // before the greeting: every version passes
+	if err := g.Recv(time.Time{}, &m); err != nil {
+		t.Errorf("before the greeting: %v", err)
 	}
 }
