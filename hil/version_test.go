@@ -65,13 +65,15 @@ func runOverPty(t *testing.T, cfg Config, m *plant.Model, s plant.State, fw firm
 	fwErr := make(chan error, 1)
 	go func() { fwErr <- fw(fwEnd) }()
 	res, err := Run(context.Background(), cfg, m, s, rig, rec)
-	rig.Close()
+	// The port stays open until the firmware has read the rig's stop: a
+	// pty drops what its leader has not read once the follower closes.
 	var ferr error
 	select {
 	case ferr = <-fwErr:
 	case <-time.After(10 * time.Second):
 		t.Fatal("the firmware did not end within 10 s of the run")
 	}
+	rig.Close()
 	return res, rec.Dir(), err, ferr
 }
 
