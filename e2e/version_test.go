@@ -4,11 +4,16 @@ import (
 	"context"
 	"fmt"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
+	"gaitrig/bridges"
+	"gaitrig/bridges/broker"
+	"gaitrig/bridges/mqtt"
 	"gaitrig/bridges/protocol"
 	"gaitrig/bridges/serial"
+	"gaitrig/firmware/reference"
 	"gaitrig/record"
 )
 
@@ -104,4 +109,91 @@ func TestCFirmwareJudgesSilenceByTheWatchdog(t *testing.T) {
 	if counter(t, c, "commands") != 2 {
 		t.Errorf("commands = %s, want 2: the state after the silence is answered as usual", c["commands"])
 	}
+}
+
+// TestV1FirmwareOverMQTT: a firmware of protocol version 1 (the Go
+// reference firmware told to be one) walks through the embedded broker,
+// with the binary frames and with the JSON debug form, whose "version"
+// key must carry the version as faithfully as the header does. The
+// firmware must receive the version-1 config (no watchdog) and nothing of
+// version 2.
+func TestV1FirmwareOverMQTT(t *testing.T) {
+	for _, jsonForm := range []bool{false, true} {
+		t.Run(fmt.Sprintf("json=%v", jsonForm), func(t *testing.T) {
+			b, err := broker.Start(broker.Config{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer b.Close()
+			url := "tcp://" + b.Addr()
+			rigConn, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: "v1", Role: mqtt.RoleRig, JSON: jsonForm})
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer rigConn.Close()
+			fwConn, err := mqtt.Dial(mqtt.Config{Broker: url, Rig: "v1", Role: mqtt.RoleFirmware, JSON: jsonForm})
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer fwConn.Close()
+			tap := &versionTap{Conn: fwConn, seen: map[uint8]int{}}
+			served := make(chan error, 1)
+			go func() {
+				served <- reference.Serve(tap, reference.Options{Protocol: 1, IdleTimeout: 10 * time.Second})
+			}()
+			cfg, model, initial := demoRun(t)
+			cfg.MaxSteps, cfg.Criteria.MinSteps = 3, 3
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			res, dir := runLoop(t, ctx, cfg, model, initial, rigConn, "mqtt "+url)
+			select {
+			case err := <-served:
+				if err != nil {
+					t.Errorf("the v1 firmware ended with %v", err)
+				}
+			case <-time.After(10 * time.Second):
+				t.Fatal("the v1 firmware did not end within 10 s of the run")
+			}
+			if res.Summary.Outcome != record.Pass || res.Summary.Steps < 3 {
+				t.Fatalf("outcome %s after %d steps (%s)", res.Summary.Outcome, res.Summary.Steps, res.Summary.Reason)
+			}
+			tap.mu.Lock()
+			defer tap.mu.Unlock()
+			if tap.configs == 0 || tap.watchdog != 0 || tap.seen[2] != 0 || tap.seen[1] == 0 {
+				t.Errorf("the v1 firmware saw %d configs (watchdog %d µs) and frames by version %v; want configs without watchdog, version 1 only",
+					tap.configs, tap.watchdog, tap.seen)
+			}
+			run, err := record.Open(dir)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if run.Manifest.Greeting.Protocol != 1 {
+				t.Errorf("manifest greeting %+v: want protocol 1", run.Manifest.Greeting)
+			}
+		})
+	}
+}
+
+// versionTap counts, by version, the messages a firmware receives, and
+// keeps what its configs said about the watchdog.
+type versionTap struct {
+	bridges.Conn
+	mu       sync.Mutex
+	seen     map[uint8]int
+	configs  int
+	watchdog uint32
+}
+
+func (c *versionTap) Recv(d time.Time, m *protocol.Message) error {
+	err := c.Conn.Recv(d, m)
+	if err == nil {
+		c.mu.Lock()
+		c.seen[m.Version]++
+		if m.Type == protocol.TypeConfig {
+			c.configs++
+			c.watchdog |= m.Config.WatchdogUS
+		}
+		c.mu.Unlock()
+	}
+	return err
 }
