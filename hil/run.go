@@ -151,7 +151,7 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 	if c.Clock == Wallclock {
 		recvRNG = rand.New(rand.NewPCG(seed, 0x2ec5))
 	}
-	r.sess.link = newFaultLink(conn, c.LinkFaults, faultRNG, recvRNG)
+	r.sess.link = newFaultLink(r.sess.gated(conn), c.LinkFaults, faultRNG, recvRNG)
 	r.health.notifier, _ = conn.(bridges.Notifier)
 	r.al = newAlarmer(&r.cfg, rec)
 	pt := &r.pt

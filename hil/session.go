@@ -10,6 +10,7 @@ import (
 	"fmt"
 	"math"
 	"strings"
+	"sync/atomic"
 	"time"
 	"unicode/utf8"
 
@@ -27,6 +28,12 @@ type session struct {
 	fe       *bridges.FrameError // target of errors.As, kept here so it is not allocated per Recv
 	greeting protocol.Greeting
 	config   protocol.Message // the configuration sent, kept to send again
+
+	// version is the protocol version the greeting agreed (0 before it):
+	// every frame the rig sends carries it, and the gate refuses frames
+	// of any other version as bad frames.
+	version uint8
+	gate    versionGate
 
 	// Edges of the command stream, so a condition that persists raises
 	// one alarm per episode.
@@ -72,7 +79,12 @@ func (r *runner) handshake() error {
 			// to wait through.
 			var pe *protocol.Error
 			if errors.As(ss.fe, &pe) && pe.Kind == protocol.KindVersion && pe.Type == protocol.TypeGreeting {
-				r.versionMismatch("the firmware", int(pe.Got))
+				who := "the firmware"
+				if pe.Detail == "the greeting" {
+					// The payload's version contradicts the frame's.
+					who = fmt.Sprintf("the greeting in a frame of version %d", pe.Want)
+				}
+				r.versionMismatch(who, int(pe.Got))
 				return nil
 			}
 			r.badFrame(ss.fe.Reason)
@@ -88,21 +100,36 @@ func (r *runner) handshake() error {
 		// finishing its last session.
 	}
 	g := ss.msg.Greeting
+	// The frame's version is the version the firmware speaks. Over a byte
+	// link Decode has already refused a greeting whose own version field
+	// says otherwise; a link that carries messages unencoded (inproc) is
+	// held to the same rule here, a zero field meaning the frame's version
+	// as Encode would send it.
+	v := ss.msg.WireVersion()
+	if g.Version == 0 {
+		g.Version = v
+	}
 	ss.greeting = g
 	if r.rec != nil {
 		if err := r.rec.SetGreeting(record.Greeting{Name: g.Name, Build: g.Build, Protocol: int(g.Version), Actuators: int(g.Actuators)}); err != nil {
 			return err
 		}
 	}
-	if g.Version != protocol.Version {
+	if g.Version != v || !protocol.KnownVersion(v) {
 		r.versionMismatch(fmt.Sprintf("firmware %q", g.Name), int(g.Version))
 		return nil
 	}
+	// From here on the session speaks the firmware's version: the
+	// refusal of a wrong actuator count as much as the config and states.
+	ss.version = v
+	ss.gate.version.Store(uint32(v))
+	ss.out.Version = v
 	if int(g.Actuators) != r.n {
 		return r.actuatorMismatch(g)
 	}
 	r.logf("firmware %q build %q greeted with protocol v%d; actuators: %d", g.Name, g.Build, g.Version, g.Actuators)
 	c := &ss.config
+	c.Version = v
 	c.Type = protocol.TypeConfig
 	c.Config.TickHz = uint16(math.Min(math.Round(r.cfg.TickHz), math.MaxUint16))
 	c.Config.Lockstep = r.cfg.Clock == Lockstep
@@ -111,10 +138,64 @@ func (r *runner) handshake() error {
 		c.Config.JointNames[i] = name
 		c.Config.TorqueLimit[i] = float32(r.act.limit[i])
 	}
+	// Version 1 has no field for it; Encode leaves it out of such a config.
+	c.Config.WatchdogUS = WatchdogMicros(r.cfg.Watchdog)
 	if err := ss.link.Send(c); err != nil {
 		return fmt.Errorf("hil: sending the configuration: %w", err)
 	}
 	return nil
+}
+
+// WatchdogMicros is the watchdog as the config of protocol version 2
+// carries it (docs/protocol.md section 3.2): whole microseconds rounded
+// down, so a firmware that keeps within it is within the rig's watchdog;
+// at least 1 µs, because 0 is refused on the wire; and at most the largest
+// u32 (about 71.6 minutes), which a firmware reads as "at least that long".
+func WatchdogMicros(d time.Duration) uint32 {
+	us := d / time.Microsecond
+	switch {
+	case us < 1:
+		return 1
+	case us > math.MaxUint32:
+		return math.MaxUint32
+	}
+	return uint32(us)
+}
+
+// versionGate is the part of the firmware link that holds every frame
+// after the greeting to the version the greeting agreed (docs/protocol.md
+// section 8): the decoder accepts every version this build speaks, so a
+// frame of another of them mid-run decodes, and the gate turns it into the
+// broken frame the document says it is (alarm bad_frame, a warning), the
+// same for both clocks and every link. Before the greeting (version 0) it
+// lets everything through. Frames of the agreed version pass without an
+// allocation.
+type versionGate struct {
+	bridges.Conn
+	version atomic.Uint32 // the agreed version; written by the handshake, read by the receiving goroutine
+}
+
+// Recv passes on the next message of the link, or a *bridges.FrameError
+// wrapping a *protocol.Error of KindVersion for one of another version.
+func (g *versionGate) Recv(deadline time.Time, m *protocol.Message) error {
+	err := g.Conn.Recv(deadline, m)
+	if err != nil {
+		return err
+	}
+	want := uint8(g.version.Load())
+	if got := m.WireVersion(); want != 0 && got != want {
+		pe := &protocol.Error{Kind: protocol.KindVersion, Type: m.Type, Got: int64(got), Want: int64(want)}
+		return &bridges.FrameError{Err: pe,
+			Reason: fmt.Sprintf("wrong protocol version: the %s frame speaks version %d, this session speaks version %d (agreed by the greeting)", m.Type, got, want)}
+	}
+	return nil
+}
+
+// gated returns the link the session reads through: conn behind the
+// session's version gate.
+func (ss *session) gated(conn bridges.Conn) bridges.Conn {
+	ss.gate.Conn = conn
+	return &ss.gate
 }
 
 // ErrActuatorMismatch is wrapped by the error of a run refused because the
@@ -128,7 +209,7 @@ var ErrActuatorMismatch = errors.New("the firmware does not fit this walker")
 // with the wrong client id is then told what went wrong, instead of being
 // asked whether it is powered.
 func (r *runner) noGreeting() error {
-	msg := fmt.Sprintf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d?", r.cfg.HandshakeTimeout, protocol.Version)
+	msg := fmt.Sprintf("hil: no greeting from the firmware within %v; is it connected, powered and speaking protocol v%d or v%d?", r.cfg.HandshakeTimeout, protocol.MinVersion, protocol.Version)
 	if q := r.cfg.Notices; q != nil {
 		if d := q.describe(); d != "" {
 			msg += " The broker refused connections or messages meanwhile: " + d
@@ -151,13 +232,15 @@ func (r *runner) actuatorMismatch(g protocol.Greeting) error {
 	return fmt.Errorf("hil: %w: %s", ErrActuatorMismatch, msg)
 }
 
-// versionMismatch refuses a firmware that speaks another protocol version:
-// alarm, outcome tripped, and a stop with reason bad_version (which every
-// version can read).
+// versionMismatch refuses a firmware that speaks a protocol version this
+// rig does not (or a greeting that contradicts itself): alarm, outcome
+// tripped, and a stop with reason bad_version in the rig's newest version
+// (the stop layout is the same in every version, so any firmware reads it).
 func (r *runner) versionMismatch(who string, version int) {
-	msg := fmt.Sprintf("%s speaks protocol version %d, this rig speaks version %d", who, version, protocol.Version)
+	r.sess.greeting.Version = uint8(version) // for the stop text, also when the greeting did not decode
+	msg := fmt.Sprintf("%s speaks protocol version %d, this rig speaks versions %d to %d", who, version, protocol.MinVersion, protocol.Version)
 	r.al.raise(AlarmVersionMismatch, 0, 0, -1, -1, func() (string, map[string]float64) {
-		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version)}
+		return msg, map[string]float64{"firmware_version": float64(version), "rig_version": float64(protocol.Version), "rig_min_version": float64(protocol.MinVersion)}
 	})
 	r.end.end(record.Tripped, msg, protocol.StopBadVersion)
 }
@@ -275,6 +358,7 @@ func (r *runner) sendState() {
 // of the latest state sent (0 before the first), as a heartbeat's would be.
 func (r *runner) sendStop() {
 	var m protocol.Message
+	m.Version = r.sess.version // 0 (Version) when no version was agreed
 	m.Type = protocol.TypeStop
 	m.Seq = r.sess.seq
 	m.Stop.Reason = r.end.stopCode
@@ -325,7 +409,7 @@ func stopText(code uint8, outcome record.Outcome, tripKind string, operator bool
 	case protocol.StopFirmware:
 		t = "firmware stopped the run"
 	case protocol.StopBadVersion:
-		t = fmt.Sprintf("rig speaks v%d, firmware v%d", protocol.Version, fwVersion)
+		t = fmt.Sprintf("rig speaks v%d-v%d, firmware v%d", protocol.MinVersion, protocol.Version, fwVersion)
 	case protocol.StopMismatch:
 		t = fmt.Sprintf("rig needs %d actuators, not %d", joints, actuators)
 	default:

@@ -36,8 +36,9 @@ func TestOtherVersionGreetingOverSerial(t *testing.T) {
 	fw := serial.NewConn(p.Master, "pty master", serial.Config{})
 	defer fw.Close()
 
-	// A greeting as a version-2 firmware would frame it: header and payload
-	// version byte 2, CRC recomputed, COBS and a zero delimiter.
+	// A greeting as a firmware of the next version would frame it: header
+	// and payload version byte Version+1, CRC recomputed, COBS and a zero
+	// delimiter.
 	g := protocol.Message{Type: protocol.TypeGreeting, Greeting: protocol.Greeting{Version: protocol.Version, Actuators: 2, Name: "fw-v2", Build: "t"}}
 	var frame [protocol.MaxFrameLen]byte
 	n, err := protocol.Encode(frame[:], &g)
@@ -83,5 +84,10 @@ func TestOtherVersionGreetingOverSerial(t *testing.T) {
 	}
 	if got.Stop.Reason != protocol.StopBadVersion {
 		t.Errorf("stop reason %d, want %d (bad_version)", got.Stop.Reason, protocol.StopBadVersion)
+	}
+	// The refusal names both sides and travels in the rig's newest version
+	// (docs/protocol.md section 8: every version reads a stop).
+	if got.Stop.Text != "rig speaks v1-v2, firmware v3" || got.Version != protocol.Version {
+		t.Errorf("stop %q in version %d; want \"rig speaks v1-v2, firmware v3\" in version %d", got.Stop.Text, got.Version, protocol.Version)
 	}
 }

@@ -61,7 +61,7 @@ func greeting() protocol.Message {
 }
 
 func config() protocol.Message {
-	m := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2}}
+	m := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2, WatchdogUS: 50000}}
 	m.Config.JointNames[0], m.Config.JointNames[1] = "hip_left", "hip_right"
 	m.Config.TorqueLimit[0], m.Config.TorqueLimit[1] = 30, 30
 	return m

@@ -16,31 +16,44 @@ const (
 	// MinFrameLen is the smallest frame: header and CRC, no payload.
 	MinFrameLen = HeaderLen + CRCLen
 	// MaxFrameLen is the largest frame any protocol version may send. It is
-	// larger than any version-1 frame so that a frame of a newer version can
+	// larger than any frame of versions 1 and 2 so that a frame of a newer version can
 	// still be read far enough to refuse it with a version error.
 	MaxFrameLen = 512
 	// MaxWireLen is the largest COBS encoding of a frame, delimiter excluded.
 	MaxWireLen = MaxFrameLen + MaxFrameLen/254 + 1
 )
 
-// Payload lengths of the version-1 messages (docs/protocol.md section 3).
+// Payload lengths of the messages (docs/protocol.md section 3). Only the
+// config differs between versions: version 2 appends watchdog_us.
 const (
 	GreetingLen  = 2 + 2*MaxNameLen                       // 66
-	ConfigLen    = 4 + MaxJoints*MaxNameLen + 4*MaxJoints // 292
+	ConfigLenV1  = 4 + MaxJoints*MaxNameLen + 4*MaxJoints // 292
+	ConfigLenV2  = ConfigLenV1 + 4                        // 296
 	StateLen     = 12 + 8*MaxJoints + 8                   // 84
 	CommandLen   = 4 + 4*MaxJoints                        // 36
 	HeartbeatLen = 0
 	StopLen      = 1 + MaxNameLen // 33
 )
 
-// PayloadLen returns the fixed payload length of message type t, and false if
-// t is not a message type of this protocol version.
-func PayloadLen(t Type) (int, bool) {
+// KnownVersion reports whether v is a protocol version this build speaks
+// (MinVersion … Version).
+func KnownVersion(v uint8) bool { return v >= MinVersion && v <= Version }
+
+// PayloadLen returns the fixed payload length of message type t in protocol
+// version v, and false if v is not a version this build speaks or t is not
+// a message type of it.
+func PayloadLen(v uint8, t Type) (int, bool) {
+	if !KnownVersion(v) {
+		return 0, false
+	}
 	switch t {
 	case TypeGreeting:
 		return GreetingLen, true
 	case TypeConfig:
-		return ConfigLen, true
+		if v == 1 {
+			return ConfigLenV1, true
+		}
+		return ConfigLenV2, true
 	case TypeState:
 		return StateLen, true
 	case TypeCommand:
@@ -53,10 +66,10 @@ func PayloadLen(t Type) (int, bool) {
 	return 0, false
 }
 
-// FrameLen returns the whole frame length (header, payload, CRC) of type t,
-// or 0 if t is unknown.
-func FrameLen(t Type) int {
-	n, ok := PayloadLen(t)
+// FrameLen returns the whole frame length (header, payload, CRC) of type t
+// in protocol version v, or 0 if either is unknown.
+func FrameLen(v uint8, t Type) int {
+	n, ok := PayloadLen(v, t)
 	if !ok {
 		return 0
 	}
@@ -117,13 +130,19 @@ func StopReasonName(code uint8) string {
 var le = binary.LittleEndian
 
 // Encode writes m as one frame (header, payload, CRC; no COBS) into dst and
-// returns the frame length. dst needs FrameLen(m.Type) bytes; MaxFrameLen
-// always suffices. The header version is Version. A Greeting with Version 0
-// is sent as Version. Encode checks what the decoder would refuse (joint
-// counts, string lengths, tick rate) and returns an *Error instead of writing
-// a frame the peer cannot accept. It never allocates.
+// returns the frame length. dst needs FrameLen(v, m.Type) bytes; MaxFrameLen
+// always suffices. The header version v is m.WireVersion(); a version this
+// build does not speak is an *Error of KindVersion. A Greeting with Version
+// 0 is sent with the header's version. Encode checks
+// what the decoder would refuse (joint counts, string lengths, tick rate,
+// watchdog) and returns an *Error instead of writing a frame the peer cannot
+// accept. It never allocates.
 func Encode(dst []byte, m *Message) (int, error) {
-	plen, ok := PayloadLen(m.Type)
+	v := m.WireVersion()
+	if !KnownVersion(v) {
+		return 0, &Error{Kind: KindVersion, Type: m.Type, Got: int64(v), Want: int64(Version), WantMin: int64(MinVersion), Detail: "the message to send"}
+	}
+	plen, ok := PayloadLen(v, m.Type)
 	if !ok {
 		return 0, &Error{Kind: KindUnknownType, Got: int64(m.Type)}
 	}
@@ -132,7 +151,7 @@ func Encode(dst []byte, m *Message) (int, error) {
 		return 0, ErrShortBuffer
 	}
 	dst = dst[:n]
-	dst[0] = Version
+	dst[0] = v
 	dst[1] = byte(m.Type)
 	le.PutUint32(dst[2:], m.Seq)
 	le.PutUint16(dst[6:], uint16(plen))
@@ -140,9 +159,9 @@ func Encode(dst []byte, m *Message) (int, error) {
 	var err error
 	switch m.Type {
 	case TypeGreeting:
-		err = encodeGreeting(p, &m.Greeting)
+		err = encodeGreeting(p, &m.Greeting, v)
 	case TypeConfig:
-		err = encodeConfig(p, &m.Config)
+		err = encodeConfig(p, &m.Config, v)
 	case TypeState:
 		err = encodeState(p, &m.State)
 	case TypeCommand:
@@ -166,13 +185,13 @@ func checkJoints(t Type, field string, n uint8) error {
 	return nil
 }
 
-func encodeGreeting(p []byte, g *Greeting) error {
+func encodeGreeting(p []byte, g *Greeting, v uint8) error {
 	if err := checkJoints(TypeGreeting, "actuators", g.Actuators); err != nil {
 		return err
 	}
 	p[0] = g.Version
 	if p[0] == 0 {
-		p[0] = Version
+		p[0] = v
 	}
 	p[1] = g.Actuators
 	if err := putString(p[2:2+MaxNameLen], g.Name, TypeGreeting, "name"); err != nil {
@@ -181,12 +200,18 @@ func encodeGreeting(p []byte, g *Greeting) error {
 	return putString(p[2+MaxNameLen:2+2*MaxNameLen], g.Build, TypeGreeting, "build")
 }
 
-func encodeConfig(p []byte, c *Config) error {
+func encodeConfig(p []byte, c *Config, v uint8) error {
 	if err := checkJoints(TypeConfig, "joints", c.Joints); err != nil {
 		return err
 	}
 	if c.TickHz == 0 {
 		return &Error{Kind: KindBadField, Type: TypeConfig, Field: "tick_hz", Got: 0, Detail: "the tick rate must be at least 1 Hz"}
+	}
+	if v >= 2 {
+		if c.WatchdogUS == 0 {
+			return errNoWatchdog
+		}
+		le.PutUint32(p[ConfigLenV1:], c.WatchdogUS)
 	}
 	le.PutUint16(p[0:], c.TickHz)
 	p[2] = 0
@@ -195,7 +220,7 @@ func encodeConfig(p []byte, c *Config) error {
 	}
 	p[3] = c.Joints
 	names := p[4 : 4+MaxJoints*MaxNameLen]
-	limits := p[4+MaxJoints*MaxNameLen:]
+	limits := p[4+MaxJoints*MaxNameLen : ConfigLenV1]
 	for i := range MaxJoints {
 		name, limit := "", float32(0)
 		if i < int(c.Joints) {
@@ -208,6 +233,10 @@ func encodeConfig(p []byte, c *Config) error {
 	}
 	return nil
 }
+
+// errNoWatchdog refuses a version-2 config without a watchdog: the rig
+// always enforces one, and a firmware must be able to rely on the field.
+var errNoWatchdog = &Error{Kind: KindBadField, Type: TypeConfig, Field: "watchdog_us", Got: 0, Detail: "the watchdog must be at least 1 µs"}
 
 var jointNameField = [MaxJoints]string{
 	"joint_names[0]", "joint_names[1]", "joint_names[2]", "joint_names[3]",
@@ -290,10 +319,13 @@ func getString(dst *string, b []byte) {
 
 // Decode checks one frame (header, payload, CRC; COBS already removed) and
 // fills m. The checks follow docs/protocol.md section 5 and each failure is
-// an *Error naming the values involved. On success only m.Type, m.Seq and the
-// field matching m.Type are written; unused joint slots are set to zero.
-// When the only problem is the protocol version (KindVersion), m.Type and
-// m.Seq are still set, so the caller can answer a greeting with a stop.
+// an *Error naming the values involved. On success only m.Version, m.Type,
+// m.Seq and the field matching m.Type are written; unused joint slots are
+// set to zero. Frames of every version from MinVersion to Version decode;
+// holding a session to the one version its greeting agreed is the caller's
+// part. When the only problem is the protocol version (KindVersion),
+// m.Version, m.Type and m.Seq are still set, so the caller can answer a
+// greeting with a stop.
 // Decode never allocates for state, command, heartbeat and stop frames whose
 // text is unchanged; greeting and config allocate only for texts that differ
 // from those already in m. It never panics, whatever frame holds.
@@ -318,11 +350,12 @@ func Decode(frame []byte, m *Message) error {
 	if want := CRC16(body); got != want {
 		return &Error{Kind: KindBadCRC, Type: t, Got: int64(got), Want: int64(want)}
 	}
-	if v := frame[0]; v != Version {
-		m.Type, m.Seq = t, le.Uint32(frame[2:])
-		return &Error{Kind: KindVersion, Type: t, Got: int64(v), Want: int64(Version)}
+	v := frame[0]
+	if !KnownVersion(v) {
+		m.Version, m.Type, m.Seq = v, t, le.Uint32(frame[2:])
+		return &Error{Kind: KindVersion, Type: t, Got: int64(v), Want: int64(Version), WantMin: int64(MinVersion)}
 	}
-	want, ok := PayloadLen(t)
+	want, ok := PayloadLen(v, t)
 	if !ok {
 		return &Error{Kind: KindUnknownType, Type: t, Got: int64(t)}
 	}
@@ -333,9 +366,9 @@ func Decode(frame []byte, m *Message) error {
 	var err error
 	switch t {
 	case TypeGreeting:
-		err = decodeGreeting(p, &m.Greeting)
+		err = decodeGreeting(p, &m.Greeting, v)
 	case TypeConfig:
-		err = decodeConfig(p, &m.Config)
+		err = decodeConfig(p, &m.Config, v)
 	case TypeState:
 		err = decodeState(p, &m.State)
 	case TypeCommand:
@@ -348,18 +381,22 @@ func Decode(frame []byte, m *Message) error {
 	if err != nil {
 		if e, ok := err.(*Error); ok && e.Kind == KindVersion {
 			// the greeting's own version field: as for the header's version
-			m.Type, m.Seq = t, le.Uint32(frame[2:])
+			m.Version, m.Type, m.Seq = v, t, le.Uint32(frame[2:])
 		}
 		return err
 	}
+	m.Version = v
 	m.Type = t
 	m.Seq = le.Uint32(frame[2:])
 	return nil
 }
 
-func decodeGreeting(p []byte, g *Greeting) error {
-	if p[0] != Version {
-		return &Error{Kind: KindVersion, Type: TypeGreeting, Got: int64(p[0]), Want: int64(Version), Detail: "the greeting"}
+// decodeGreeting reads a greeting of a frame of version v. Its payload
+// version must equal v: a greeting that says two things is refused as a
+// version error naming the header's version as the one expected.
+func decodeGreeting(p []byte, g *Greeting, v uint8) error {
+	if p[0] != v {
+		return &Error{Kind: KindVersion, Type: TypeGreeting, Got: int64(p[0]), Want: int64(v), Detail: "the greeting"}
 	}
 	if err := checkJoints(TypeGreeting, "actuators", p[1]); err != nil {
 		return err
@@ -371,7 +408,7 @@ func decodeGreeting(p []byte, g *Greeting) error {
 	return nil
 }
 
-func decodeConfig(p []byte, c *Config) error {
+func decodeConfig(p []byte, c *Config, v uint8) error {
 	hz := le.Uint16(p[0:])
 	if hz == 0 {
 		return &Error{Kind: KindBadField, Type: TypeConfig, Field: "tick_hz", Got: 0, Detail: "the tick rate must be at least 1 Hz"}
@@ -382,11 +419,18 @@ func decodeConfig(p []byte, c *Config) error {
 	if err := checkJoints(TypeConfig, "joints", p[3]); err != nil {
 		return err
 	}
+	var wd uint32
+	if v >= 2 {
+		if wd = le.Uint32(p[ConfigLenV1:]); wd == 0 {
+			return errNoWatchdog
+		}
+	}
+	c.WatchdogUS = wd
 	c.TickHz = hz
 	c.Lockstep = p[2] == 1
 	c.Joints = p[3]
 	names := p[4 : 4+MaxJoints*MaxNameLen]
-	limits := p[4+MaxJoints*MaxNameLen:]
+	limits := p[4+MaxJoints*MaxNameLen : ConfigLenV1]
 	for i := range MaxJoints {
 		if i < int(c.Joints) {
 			getString(&c.JointNames[i], names[i*MaxNameLen:(i+1)*MaxNameLen])

@@ -16,8 +16,9 @@ var update = flag.Bool("update", false, "rewrite the generated examples in docs/
 const docPath = "../../docs/protocol.md"
 
 var exampleDescriptions = map[string]string{
-	"greeting":  "Greeting, seq 0: version 1, 2 actuators, name `bench-walker`, build `fw-0.3.1`.",
-	"config":    "Config, seq 0: 1000 Hz, lockstep, 2 joints `hip_left` and `hip_right`, torque limit 40 N·m each.",
+	"greeting":  "Greeting, seq 0: version 2, 2 actuators, name `bench-walker`, build `fw-0.3.1`.",
+	"config":    "Config of version 2, seq 0: 1000 Hz, lockstep, 2 joints `hip_left` and `hip_right`, torque limit 40 N·m each, watchdog 50 000 µs (bytes `50 c3 00 00` at payload offset 292, frame offset 300).",
+	"config_v1": "The same config as a version-1 firmware gets it (section 8): the version-1 layout, no watchdog, header version 1.",
 	"state":     "State, seq 1235: time 1 234 000 µs, 2 joints, angles 0.25 and −0.125 rad, rates 1.5 and −0.75 rad/s, IMU pitch −0.0625 rad, IMU rate 0.5 rad/s, left foot in contact.",
 	"command":   "Command answering that state, seq 1235: 2 joints, torques 3.5 and −12.25 N·m, status 0.",
 	"heartbeat": "Heartbeat, seq 1235.",
@@ -48,8 +49,12 @@ func generatedExamples(t *testing.T) (examples, jsonBlock string) {
 			t.Fatal(err)
 		}
 		crc := le.Uint16(f[n-2:])
+		title := e.name
+		if v := e.msg.WireVersion(); v != Version {
+			title = fmt.Sprintf("%s, version %d", e.msg.Type, v)
+		}
 		fmt.Fprintf(&ex, "### %s (type 0x%02x)\n\n%s Frame: %d bytes, CRC 0x%04X (last two bytes `%02x %02x`).\n\n",
-			e.name, uint8(e.msg.Type), exampleDescriptions[e.name], n, crc, f[n-2], f[n-1])
+			title, uint8(e.msg.Type), exampleDescriptions[e.name], n, crc, f[n-2], f[n-1])
 		fmt.Fprintf(&ex, "<!-- example %s frame -->\n```\n%s```\n\nOn a byte stream (%d bytes with the delimiter):\n\n", e.name, hexDump(f[:n]), len(w))
 		fmt.Fprintf(&ex, "<!-- example %s wire -->\n```\n%s```\n\n", e.name, hexDump(w))
 		j, err := AppendJSON(nil, &e.msg)

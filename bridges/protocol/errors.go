@@ -58,12 +58,15 @@ var kindSentinel = [...]error{
 // Error is a refused frame or message, with the numbers a person needs to see
 // what went wrong. The text is built only when Error() is called.
 type Error struct {
-	Kind   Kind   // which check refused it; Unwrap gives the matching sentinel
-	Type   Type   // message type, when known (0 otherwise)
-	Field  string // field name, for field errors
-	Got    int64  // the value found (meaning depends on Kind)
-	Want   int64  // the value expected or the limit
-	Detail string // short extra detail
+	Kind  Kind   // which check refused it; Unwrap gives the matching sentinel
+	Type  Type   // message type, when known (0 otherwise)
+	Field string // field name, for field errors
+	Got   int64  // the value found (meaning depends on Kind)
+	Want  int64  // the value expected or the limit
+	// WantMin is, for KindVersion, the oldest version the receiver speaks
+	// when it speaks a range WantMin … Want; 0 when it speaks Want only.
+	WantMin int64
+	Detail  string // short extra detail
 }
 
 // Unwrap returns the sentinel error of e's Kind.
@@ -103,6 +106,9 @@ func (e *Error) Error() string {
 	case KindBadCRC:
 		return fmt.Sprintf("bad CRC: got 0x%04X, computed 0x%04X", e.Got, e.Want)
 	case KindVersion:
+		if e.WantMin > 0 && e.WantMin < e.Want {
+			return fmt.Sprintf("wrong protocol version: %s speaks version %d, this side speaks versions %d to %d", orDefault(e.Detail, "the frame"), e.Got, e.WantMin, e.Want)
+		}
 		return fmt.Sprintf("wrong protocol version: %s speaks version %d, this side speaks version %d", orDefault(e.Detail, "the frame"), e.Got, e.Want)
 	case KindUnknownType:
 		return fmt.Sprintf("unknown message type 0x%02X", e.Got)

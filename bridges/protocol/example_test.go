@@ -30,8 +30,8 @@ func Example() {
 	err = r.ReadMessage(&got)
 	fmt.Println("second:", err, got.Type, got.Seq)
 	// Output:
-	// frame: 01 20 2a 00 00 00 00 00 11 ab
-	// wire:  04 01 20 2a 01 01 01 01 03 11 ab 00
+	// frame: 02 20 2a 00 00 00 00 00 64 63
+	// wire:  04 02 20 2a 01 01 01 01 03 64 63 00
 	// first: bad COBS: code byte 0x13 at offset 0 runs past the end of the frame
 	// second: <nil> heartbeat 42
 }
@@ -42,14 +42,14 @@ func ExampleDecode_version() {
 	m := protocol.Message{Type: protocol.TypeHeartbeat}
 	frame := make([]byte, protocol.MaxFrameLen)
 	n, _ := protocol.Encode(frame, &m)
-	frame[0] = 2 // pretend a version-2 sender
+	frame[0] = 3 // pretend a version-3 sender
 	crc := protocol.CRC16(frame[:n-2])
 	frame[n-2], frame[n-1] = byte(crc), byte(crc>>8)
 	err := protocol.Decode(frame[:n], &m)
 	fmt.Println(err)
 	fmt.Println(errors.Is(err, protocol.ErrVersion))
 	// Output:
-	// wrong protocol version: the frame speaks version 2, this side speaks version 1
+	// wrong protocol version: the frame speaks version 3, this side speaks versions 1 to 2
 	// true
 }
 

@@ -26,10 +26,13 @@ func AppendJSON(dst []byte, m *Message) ([]byte, error) {
 	dst = append(dst, name...)
 	dst = append(dst, `","seq":`...)
 	dst = strconv.AppendUint(dst, uint64(m.Seq), 10)
+	// Every message shows the version it travels in; a greeting's own
+	// version field says the same (Decode refuses one that does not), so
+	// it has no key of its own.
+	dst = appendUintField(dst, "version", uint64(m.WireVersion()))
 	switch m.Type {
 	case TypeGreeting:
 		g := &m.Greeting
-		dst = appendUintField(dst, "version", uint64(g.Version))
 		dst = appendUintField(dst, "actuators", uint64(g.Actuators))
 		dst = append(dst, `,"name":`...)
 		dst = appendJSONString(dst, g.Name)
@@ -51,6 +54,9 @@ func AppendJSON(dst []byte, m *Message) ([]byte, error) {
 		}
 		dst = append(dst, ']')
 		dst = appendFloats(dst, "torque_limit", c.TorqueLimit[:n])
+		if m.WireVersion() >= 2 {
+			dst = appendUintField(dst, "watchdog_us", uint64(c.WatchdogUS))
+		}
 	case TypeState:
 		s := &m.State
 		n := clampJoints(s.Joints)
@@ -177,6 +183,7 @@ type jsonMessage struct {
 	Joints      uint8     `json:"joints"`
 	JointNames  []string  `json:"joint_names"`
 	TorqueLimit []jsonF32 `json:"torque_limit"`
+	WatchdogUS  *uint32   `json:"watchdog_us"`
 	TimeUS      uint64    `json:"time_us"`
 	Contacts    uint8     `json:"contacts"`
 	Angle       []jsonF32 `json:"angle"`
@@ -192,7 +199,8 @@ type jsonMessage struct {
 
 // ParseJSON reads the JSON form of one message into m (for debugging tools
 // and tests; it allocates). Unknown keys are refused, arrays must hold exactly
-// "joints" entries, and the message must pass the checks Encode makes.
+// "joints" entries, and the message must pass the checks Encode makes. A
+// missing "version" leaves m.Version at 0 (sent as Version).
 func ParseJSON(data []byte, m *Message) error {
 	var j jsonMessage
 	dec := json.NewDecoder(bytes.NewReader(data))
@@ -209,7 +217,7 @@ func ParseJSON(data []byte, m *Message) error {
 	if t == 0 {
 		return fmt.Errorf("protocol: JSON message: unknown type %q", j.Type)
 	}
-	out := Message{Type: t, Seq: j.Seq}
+	out := Message{Version: j.Version, Type: t, Seq: j.Seq}
 	n := int(j.Joints)
 	arr := func(key string, src []jsonF32, dst []float32) error {
 		if len(src) != n {
@@ -229,6 +237,16 @@ func ParseJSON(data []byte, m *Message) error {
 		out.Greeting = Greeting{Version: j.Version, Actuators: j.Actuators, Name: j.Name, Build: j.Build}
 	case TypeConfig:
 		out.Config = Config{TickHz: j.TickHz, Lockstep: j.Lockstep, Joints: j.Joints}
+		// The watchdog is a field of version 2: a version-1 config with
+		// one, or a version-2 config without, is refused by name.
+		switch v := out.WireVersion(); {
+		case v == 1 && j.WatchdogUS != nil:
+			return fmt.Errorf("protocol: JSON config: \"watchdog_us\" is not a field of a version-1 config")
+		case v >= 2 && j.WatchdogUS == nil:
+			return fmt.Errorf("protocol: JSON config: version %d needs \"watchdog_us\"", v)
+		case j.WatchdogUS != nil:
+			out.Config.WatchdogUS = *j.WatchdogUS
+		}
 		if len(j.JointNames) != n || n > MaxJoints {
 			return fmt.Errorf("protocol: JSON config: \"joint_names\" has %d entries, joints is %d (at most %d)", len(j.JointNames), n, MaxJoints)
 		}

@@ -30,7 +30,7 @@ func TestJSONSpecialValues(t *testing.T) {
 	m := Message{Type: TypeCommand, Seq: 3, Command: Command{Joints: 3,
 		Torque: [MaxJoints]float32{float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1))}}}
 	b, _ := AppendJSON(nil, &m)
-	want := `{"type":"command","seq":3,"joints":3,"status":0,"torque":["NaN","+Inf","-Inf"]}`
+	want := `{"type":"command","seq":3,"version":2,"joints":3,"status":0,"torque":["NaN","+Inf","-Inf"]}`
 	if string(b) != want {
 		t.Fatalf("got %s\nwant %s", b, want)
 	}
@@ -57,6 +57,9 @@ func TestParseJSONErrors(t *testing.T) {
 		{"joints 0", `{"type":"command","seq":1,"joints":0,"status":0,"torque":[]}`, `joints 0`},
 		{"bad float", `{"type":"command","seq":1,"joints":1,"status":0,"torque":["lots"]}`, `not a float32`},
 		{"not JSON", `{"type":`, `JSON message`},
+		{"v1 config with watchdog", `{"type":"config","seq":0,"version":1,"tick_hz":1000,"lockstep":true,"joints":1,"joint_names":["hip"],"torque_limit":[1],"watchdog_us":5}`, `not a field of a version-1 config`},
+		{"v2 config without watchdog", `{"type":"config","seq":0,"version":2,"tick_hz":1000,"lockstep":true,"joints":1,"joint_names":["hip"],"torque_limit":[1]}`, `version 2 needs "watchdog_us"`},
+		{"version 3", `{"type":"heartbeat","seq":0,"version":3}`, `speaks version 3`},
 	}
 	for _, tc := range tests {
 		err := ParseJSON([]byte(tc.in), new(Message))

@@ -5,9 +5,17 @@
 // of that document. Encoding and decoding never allocate.
 package protocol
 
-// Version is the protocol version this build speaks. A peer that announces a
-// different version is refused with an error naming both versions.
-const Version uint8 = 1
+// Version is the newest protocol version this build speaks, and the one
+// Encode writes when a Message leaves its Version at 0. Version 2 differs
+// from version 1 only in the config, which also carries the watchdog.
+const Version uint8 = 2
+
+// MinVersion is the oldest protocol version this build speaks. Decode
+// accepts frames of MinVersion … Version and refuses any other with an error
+// naming both; which of them a session speaks is agreed by the greeting
+// (docs/protocol.md section 8), so boards in the field that speak version 1
+// keep working.
+const MinVersion uint8 = 1
 
 // MaxJoints is the largest number of actuated joints a frame can carry.
 const MaxJoints = 8
@@ -43,6 +51,12 @@ type Config struct {
 	Joints      uint8              // number of joints in State and Command
 	JointNames  [MaxJoints]string  // joint order, each at most MaxNameLen bytes
 	TorqueLimit [MaxJoints]float32 // N·m, symmetric limit per joint
+	// WatchdogUS is the watchdog the rig enforces, in microseconds: the
+	// longest time it waits for a valid command before it e-stops
+	// (docs/protocol.md section 7 says what it counts). Version 2 and later
+	// carry it and it is never 0 there; a version-1 config has no such field
+	// and decodes with 0.
+	WatchdogUS uint32
 }
 
 // Contact flag bits in State.Contacts.
@@ -97,6 +111,10 @@ type Stop struct {
 // frame buffer) so it can be passed through channels without allocation.
 // Only the field that matches Type is meaningful.
 type Message struct {
+	// Version is the protocol version of the frame (its header's first
+	// byte). Decode sets it; Encode writes it, and 0 means Version. A
+	// session sends every frame in the version its greeting agreed.
+	Version  uint8
 	Type     Type     // which of the parts below the frame carries (none for a heartbeat)
 	Seq      uint32   // sender's sequence number; a Command echoes its State's Seq
 	Greeting Greeting // for TypeGreeting
@@ -104,4 +122,19 @@ type Message struct {
 	State    State    // for TypeState
 	Command  Command  // for TypeCommand
 	Stop     Stop     // for TypeStop
+}
+
+// WireVersion is the protocol version m is sent in: m.Version, or for a
+// greeting that leaves it at 0 the greeting's own Version, or else Version.
+// Links that carry messages without encoding them (package inproc) hand the
+// receiver what the sender wrote, so the receiver asks WireVersion instead
+// of reading the field.
+func (m *Message) WireVersion() uint8 {
+	switch {
+	case m.Version != 0:
+		return m.Version
+	case m.Type == TypeGreeting && m.Greeting.Version != 0:
+		return m.Greeting.Version
+	}
+	return Version
 }

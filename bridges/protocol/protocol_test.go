@@ -19,15 +19,19 @@ func exampleMessages() []struct {
 		name string
 		msg  Message
 	}{
-		{"greeting", Message{Type: TypeGreeting, Seq: 0, Greeting: Greeting{Version: 1, Actuators: 2, Name: "bench-walker", Build: "fw-0.3.1"}}},
-		{"config", Message{Type: TypeConfig, Seq: 0, Config: Config{TickHz: 1000, Lockstep: true, Joints: 2,
-			JointNames: [MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [MaxJoints]float32{40, 40}}}},
-		{"state", Message{Type: TypeState, Seq: 1235, State: State{TimeUS: 1234000, Joints: 2,
+		{"greeting", Message{Version: 2, Type: TypeGreeting, Seq: 0, Greeting: Greeting{Version: 2, Actuators: 2, Name: "bench-walker", Build: "fw-0.3.1"}}},
+		{"config", Message{Version: 2, Type: TypeConfig, Seq: 0, Config: Config{TickHz: 1000, Lockstep: true, Joints: 2,
+			JointNames: [MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [MaxJoints]float32{40, 40}, WatchdogUS: 50000}}},
+		{"state", Message{Version: 2, Type: TypeState, Seq: 1235, State: State{TimeUS: 1234000, Joints: 2,
 			Angle: [MaxJoints]float32{0.25, -0.125}, Rate: [MaxJoints]float32{1.5, -0.75},
 			IMUPitch: -0.0625, IMURate: 0.5, Contacts: ContactLeft}}},
-		{"command", Message{Type: TypeCommand, Seq: 1235, Command: Command{Joints: 2, Torque: [MaxJoints]float32{3.5, -12.25}, Status: StatusOK}}},
-		{"heartbeat", Message{Type: TypeHeartbeat, Seq: 1235}},
-		{"stop", Message{Type: TypeStop, Seq: 1235, Stop: Stop{Reason: StopWatchdog, Text: "no command for 50 ms"}}},
+		{"command", Message{Version: 2, Type: TypeCommand, Seq: 1235, Command: Command{Joints: 2, Torque: [MaxJoints]float32{3.5, -12.25}, Status: StatusOK}}},
+		{"heartbeat", Message{Version: 2, Type: TypeHeartbeat, Seq: 1235}},
+		{"stop", Message{Version: 2, Type: TypeStop, Seq: 1235, Stop: Stop{Reason: StopWatchdog, Text: "no command for 50 ms"}}},
+		// What a board that greeted with version 1 gets: the same config
+		// in the version-1 layout, without the watchdog.
+		{"config_v1", Message{Version: 1, Type: TypeConfig, Seq: 0, Config: Config{TickHz: 1000, Lockstep: true, Joints: 2,
+			JointNames: [MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [MaxJoints]float32{40, 40}}}},
 	}
 }
 
@@ -188,8 +192,8 @@ func TestCOBSErrors(t *testing.T) {
 func TestEncodeDecodeRoundTrip(t *testing.T) {
 	msgs := exampleMessages()
 	// A full-width state and config exercise every slot.
-	full := Message{Type: TypeState, Seq: math.MaxUint32, State: State{TimeUS: math.MaxUint64, Joints: MaxJoints, Contacts: ContactLeft | ContactRight}}
-	fullCfg := Message{Type: TypeConfig, Seq: 7, Config: Config{TickHz: 65535, Joints: MaxJoints}}
+	full := Message{Version: Version, Type: TypeState, Seq: math.MaxUint32, State: State{TimeUS: math.MaxUint64, Joints: MaxJoints, Contacts: ContactLeft | ContactRight}}
+	fullCfg := Message{Version: Version, Type: TypeConfig, Seq: 7, Config: Config{TickHz: 65535, Joints: MaxJoints, WatchdogUS: math.MaxUint32}}
 	for i := range MaxJoints {
 		full.State.Angle[i] = float32(i) * 0.1
 		full.State.Rate[i] = -float32(i) * 1.5
@@ -209,8 +213,8 @@ func TestEncodeDecodeRoundTrip(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: Encode: %v", tc.name, err)
 		}
-		if n != FrameLen(tc.msg.Type) {
-			t.Errorf("%s: frame is %d bytes, FrameLen says %d", tc.name, n, FrameLen(tc.msg.Type))
+		if fl := FrameLen(tc.msg.WireVersion(), tc.msg.Type); n != fl {
+			t.Errorf("%s: frame is %d bytes, FrameLen says %d", tc.name, n, fl)
 		}
 		var got Message
 		if err := Decode(buf[:n], &got); err != nil {
@@ -224,14 +228,23 @@ func TestEncodeDecodeRoundTrip(t *testing.T) {
 
 func TestFrameLengths(t *testing.T) {
 	// The sizes the specification's table in section 3 promises.
+	// Version 2 differs only in the config, which gains the u32 watchdog_us.
 	want := map[Type]int{TypeGreeting: 76, TypeConfig: 302, TypeState: 94, TypeCommand: 46, TypeHeartbeat: 10, TypeStop: 43}
-	for typ, n := range want {
-		if got := FrameLen(typ); got != n {
-			t.Errorf("FrameLen(%v) = %d, want %d", typ, got, n)
+	for _, v := range []uint8{1, 2} {
+		for typ, n := range want {
+			if typ == TypeConfig && v == 2 {
+				n = 306
+			}
+			if got := FrameLen(v, typ); got != n {
+				t.Errorf("FrameLen(%d, %v) = %d, want %d", v, typ, got, n)
+			}
 		}
 	}
-	if FrameLen(0x7F) != 0 {
+	if FrameLen(Version, 0x7F) != 0 {
 		t.Error("FrameLen of an unknown type should be 0")
+	}
+	if FrameLen(0, TypeState) != 0 || FrameLen(Version+1, TypeState) != 0 {
+		t.Error("FrameLen of a version this build does not speak should be 0")
 	}
 }
 
@@ -255,7 +268,7 @@ func frame(t *testing.T, m Message, mutate func([]byte) []byte, fixCRC bool) []b
 func TestDecodeErrors(t *testing.T) {
 	ex := exampleMessages()
 	greeting, state, command := ex[0].msg, ex[2].msg, ex[3].msg
-	config := ex[1].msg
+	config, configV1 := ex[1].msg, ex[6].msg
 	keep := func(b []byte) []byte { return b }
 	tests := []struct {
 		name   string
@@ -272,10 +285,20 @@ func TestDecodeErrors(t *testing.T) {
 		{"too long", make([]byte, MaxFrameLen+1), ErrTooLong, []string{"513 bytes", "512"}},
 		{"bad CRC", frame(t, state, func(b []byte) []byte { b[20] ^= 0x40; return b }, false), ErrBadCRC,
 			[]string{"bad CRC: got 0x", "computed 0x"}},
-		{"wrong version", frame(t, state, func(b []byte) []byte { b[0] = 2; return b }, true), ErrVersion,
-			[]string{"version 2", "this side speaks version 1"}},
+		{"wrong version", frame(t, state, func(b []byte) []byte { b[0] = 3; return b }, true), ErrVersion,
+			[]string{"the frame speaks version 3", "this side speaks versions 1 to 2"}},
+		{"version 0", frame(t, state, func(b []byte) []byte { b[0] = 0; return b }, true), ErrVersion,
+			[]string{"the frame speaks version 0", "versions 1 to 2"}},
 		{"greeting version field", frame(t, greeting, func(b []byte) []byte { b[8] = 3; return b }, true), ErrVersion,
-			[]string{"the greeting speaks version 3", "version 1"}},
+			[]string{"the greeting speaks version 3", "this side speaks version 2"}},
+		{"greeting v1 in a v2 frame", frame(t, greeting, func(b []byte) []byte { b[8] = 1; return b }, true), ErrVersion,
+			[]string{"the greeting speaks version 1", "this side speaks version 2"}},
+		{"v2 config in a v1 frame", frame(t, config, func(b []byte) []byte { b[0] = 1; return b }, true), ErrLength,
+			[]string{"config frame carries 292 payload bytes, this one says 296"}},
+		{"v1 config in a v2 frame", frame(t, configV1, func(b []byte) []byte { b[0] = 2; return b }, true), ErrLength,
+			[]string{"config frame carries 296 payload bytes, this one says 292"}},
+		{"v2 config watchdog 0", frame(t, config, func(b []byte) []byte { clear(b[8+292 : 8+296]); return b }, true), ErrBadField,
+			[]string{"field watchdog_us is 0"}},
 		{"unknown type", frame(t, state, func(b []byte) []byte { b[1] = 0x42; return b }, true), ErrUnknownType,
 			[]string{"unknown message type 0x42"}},
 		{"wrong length for type", frame(t, command, func(b []byte) []byte { b[1] = byte(TypeStop); return b }, true), ErrLength,
@@ -320,11 +343,11 @@ func TestDecodeErrors(t *testing.T) {
 func TestDecodeVersionKeepsType(t *testing.T) {
 	// A greeting from a newer firmware: the rig must learn it was a greeting
 	// to answer with a stop (docs/protocol.md section 8).
-	f := frame(t, exampleMessages()[0].msg, func(b []byte) []byte { b[0], b[8], b[2] = 2, 2, 9; return b }, true)
+	f := frame(t, exampleMessages()[0].msg, func(b []byte) []byte { b[0], b[8], b[2] = 3, 3, 9; return b }, true)
 	var m Message
 	err := Decode(f, &m)
-	if !errors.Is(err, ErrVersion) || m.Type != TypeGreeting || m.Seq != 9 {
-		t.Fatalf("err %v, type %v, seq %d; want ErrVersion, greeting, 9", err, m.Type, m.Seq)
+	if !errors.Is(err, ErrVersion) || m.Type != TypeGreeting || m.Seq != 9 || m.Version != 3 {
+		t.Fatalf("err %v, type %v, seq %d, version %d; want ErrVersion, greeting, 9, 3", err, m.Type, m.Seq, m.Version)
 	}
 	// The same when only the greeting's own version field differs from the
 	// header's (docs/protocol.md section 6.1, item 8).
@@ -363,7 +386,9 @@ func TestEncodeErrors(t *testing.T) {
 		{"unknown type", Message{Type: 0x55}, ErrUnknownType, "0x55"},
 		{"long name", Message{Type: TypeGreeting, Greeting: Greeting{Actuators: 1, Name: long}}, ErrStringTooLong, "name is 33 bytes, at most 32"},
 		{"zero in build", Message{Type: TypeGreeting, Greeting: Greeting{Actuators: 1, Build: "a\x00b"}}, ErrStringTooLong, "zero byte"},
-		{"long joint name", Message{Type: TypeConfig, Config: Config{TickHz: 1, Joints: 2, JointNames: [MaxJoints]string{"ok", long}}}, ErrStringTooLong, "joint_names[1]"},
+		{"long joint name", Message{Type: TypeConfig, Config: Config{TickHz: 1, Joints: 2, JointNames: [MaxJoints]string{"ok", long}, WatchdogUS: 1}}, ErrStringTooLong, "joint_names[1]"},
+		{"config v2 watchdog 0", Message{Type: TypeConfig, Config: Config{TickHz: 1, Joints: 1}}, ErrBadField, "watchdog_us is 0"},
+		{"version 3", Message{Version: 3, Type: TypeHeartbeat}, ErrVersion, "the message to send speaks version 3, this side speaks versions 1 to 2"},
 		{"long stop text", Message{Type: TypeStop, Stop: Stop{Text: long}}, ErrStringTooLong, "text"},
 		{"state joints 9", Message{Type: TypeState, State: State{Joints: 9}}, ErrTooManyJoints, "joints 9"},
 		{"command joints 0", Message{Type: TypeCommand}, ErrTooManyJoints, "joints 0"},
@@ -405,6 +430,89 @@ func TestTypeAndReasonNames(t *testing.T) {
 	for code, name := range map[uint8]string{0: "end", 1: "estop", 2: "watchdog", 3: "aborted", 4: "firmware", 5: "bad_version", 6: "mismatch", 7: ""} {
 		if got := StopReasonName(code); got != name {
 			t.Errorf("StopReasonName(%d) = %q, want %q", code, got, name)
+		}
+	}
+}
+
+// TestConfigVersions checks the two config layouts byte by byte against
+// docs/protocol.md section 3.2, written out here independently of the
+// encoder: version 1 ends after the torque limits (292 bytes), version 2
+// appends the watchdog as a little-endian u32 at offset 292.
+func TestConfigVersions(t *testing.T) {
+	ex := exampleMessages()
+	v2, v1 := ex[1].msg, ex[6].msg
+	buf := make([]byte, MaxFrameLen)
+	n, err := Encode(buf, &v2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := buf[HeaderLen : n-CRCLen]
+	if buf[0] != 2 || len(p) != 296 || le.Uint16(buf[6:]) != 296 {
+		t.Fatalf("v2 config: header version %d, payload %d bytes (length field %d); want 2, 296", buf[0], len(p), le.Uint16(buf[6:]))
+	}
+	// 50 000 µs = 0x0000C350, low byte first.
+	if got := p[292:296]; !bytes.Equal(got, []byte{0x50, 0xC3, 0x00, 0x00}) {
+		t.Errorf("watchdog_us bytes % x, want 50 c3 00 00", got)
+	}
+	v2Payload := append([]byte(nil), p...)
+	n, err = Encode(buf, &v1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p = buf[HeaderLen : n-CRCLen]
+	if buf[0] != 1 || len(p) != 292 {
+		t.Fatalf("v1 config: header version %d, payload %d bytes; want 1, 292", buf[0], len(p))
+	}
+	if !bytes.Equal(p, v2Payload[:292]) {
+		t.Error("the first 292 payload bytes of the v1 and v2 configs differ; version 2 only appends")
+	}
+	var back Message
+	if err := Decode(buf[:n], &back); err != nil || back.Config.WatchdogUS != 0 || back.Version != 1 {
+		t.Errorf("v1 config decodes with err %v, watchdog %d, version %d; want nil, 0, 1", err, back.Config.WatchdogUS, back.Version)
+	}
+	// A v2 config without a watchdog cannot be sent; a v1 config ignores it.
+	noWD := v2
+	noWD.Config.WatchdogUS = 0
+	if _, err := Encode(buf, &noWD); !errors.Is(err, ErrBadField) || !strings.Contains(err.Error(), "watchdog_us") {
+		t.Errorf("v2 config without watchdog: err %v, want a bad watchdog_us field", err)
+	}
+	v1.Config.WatchdogUS = 1234
+	if n, err := Encode(buf, &v1); err != nil || n != 302 {
+		t.Errorf("v1 config with a watchdog set: %d bytes, err %v; want 302, nil (the field does not exist in v1)", n, err)
+	}
+}
+
+func TestWireVersion(t *testing.T) {
+	tests := []struct {
+		m    Message
+		want uint8
+	}{
+		{Message{Type: TypeState}, Version},
+		{Message{Version: 1, Type: TypeState}, 1},
+		{Message{Type: TypeGreeting, Greeting: Greeting{Version: 1}}, 1},
+		{Message{Version: 2, Type: TypeGreeting, Greeting: Greeting{Version: 1}}, 2},
+	}
+	for _, tc := range tests {
+		if got := tc.m.WireVersion(); got != tc.want {
+			t.Errorf("%+v: WireVersion %d, want %d", tc.m, got, tc.want)
+		}
+	}
+	// A greeting that sets only its own version goes out consistent.
+	buf := make([]byte, MaxFrameLen)
+	g := Message{Type: TypeGreeting, Greeting: Greeting{Version: 1, Actuators: 1}}
+	n, err := Encode(buf, &g)
+	if err != nil || buf[0] != 1 || buf[8] != 1 {
+		t.Fatalf("greeting v1: err %v, header %d, payload %d", err, buf[0], buf[8])
+	}
+	var back Message
+	if err := Decode(buf[:n], &back); err != nil || back.Version != 1 {
+		t.Errorf("greeting v1 decodes: %v, version %d", err, back.Version)
+	}
+	// Encode refuses a version it cannot lay out.
+	for _, v := range []uint8{Version + 1, 255} {
+		m := Message{Version: v, Type: TypeHeartbeat}
+		if _, err := Encode(buf, &m); !errors.Is(err, ErrVersion) {
+			t.Errorf("Encode version %d: err %v, want ErrVersion", v, err)
 		}
 	}
 }

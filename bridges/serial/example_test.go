@@ -39,5 +39,5 @@ func Example() {
 		return
 	}
 	fmt.Println(m.Type, m.Greeting.Name, m.Greeting.Actuators, m.Greeting.Version)
-	// Output: greeting example-fw 2 1
+	// Output: greeting example-fw 2 2
 }

@@ -511,7 +511,7 @@ func (c *Conn) deliver(it *rxItem, m *protocol.Message) error {
 		return it.err
 	}
 	src := &it.msg
-	m.Type, m.Seq = src.Type, src.Seq
+	m.Version, m.Type, m.Seq = src.Version, src.Type, src.Seq
 	switch src.Type {
 	case protocol.TypeGreeting:
 		m.Greeting = src.Greeting

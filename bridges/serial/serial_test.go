@@ -21,7 +21,7 @@ func messages() []protocol.Message {
 	return []protocol.Message{
 		{Type: protocol.TypeGreeting, Greeting: protocol.Greeting{Version: 1, Actuators: 2, Name: "bench-walker", Build: "fw-0.3.1"}},
 		{Type: protocol.TypeConfig, Config: protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2,
-			JointNames: [protocol.MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [protocol.MaxJoints]float32{40, 40}}},
+			JointNames: [protocol.MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [protocol.MaxJoints]float32{40, 40}, WatchdogUS: 50000}},
 		{Type: protocol.TypeState, Seq: 77, State: protocol.State{TimeUS: 76000, Joints: 2,
 			Angle: [protocol.MaxJoints]float32{0.3, -0.2}, Rate: [protocol.MaxJoints]float32{1, -2}, IMUPitch: -0.05, IMURate: 0.1, Contacts: protocol.ContactRight}},
 		{Type: protocol.TypeCommand, Seq: 77, Command: protocol.Command{Joints: 2, Torque: [protocol.MaxJoints]float32{2.5, -4}, Status: protocol.StatusSafeMode}},
@@ -155,7 +155,7 @@ func TestBadFramesThenGoodFrame(t *testing.T) {
 		{"bad CRC", rawFrame(t, cmd, func(b []byte) []byte { b[12] ^= 1; return b }, false), "bad CRC: got 0x", protocol.ErrBadCRC},
 		{"truncated", rawFrame(t, cmd, func(b []byte) []byte { return b[:30] }, false), "truncated command frame", protocol.ErrTruncated},
 		{"wrong type", rawFrame(t, cmd, func(b []byte) []byte { b[1] = 0x66; return b }, true), "unknown message type 0x66", protocol.ErrUnknownType},
-		{"wrong version", rawFrame(t, cmd, func(b []byte) []byte { b[0] = 9; return b }, true), "frame speaks version 9, this side speaks version 1", protocol.ErrVersion},
+		{"wrong version", rawFrame(t, cmd, func(b []byte) []byte { b[0] = 9; return b }, true), "frame speaks version 9, this side speaks versions 1 to 2", protocol.ErrVersion},
 		{"bad COBS", []byte{0x07, 0x01, 0x02, 0x00}, "bad COBS", protocol.ErrCOBS},
 		{"too many joints", rawFrame(t, cmd, func(b []byte) []byte { b[8] = 12; return b }, true), "joints 12 is outside 1…8", protocol.ErrTooManyJoints},
 	}

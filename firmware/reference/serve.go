@@ -32,6 +32,12 @@ type Options struct {
 	// long after the greeting; default 10 s. A rig that vanished must not
 	// leave the firmware waiting forever.
 	IdleTimeout time.Duration
+	// Protocol is the protocol version the firmware speaks; 0 means
+	// protocol.Version. 1 makes it a board of version 1, which greets with
+	// version 1, takes the version-1 config (no watchdog) and ignores
+	// frames of any other version but stop: that is how the rig's service
+	// of older boards is tested.
+	Protocol uint8
 }
 
 // finite reports whether every value of the reading is a finite number.
@@ -62,6 +68,7 @@ type Firmware struct {
 	o          Options
 	g          Gains
 	configured bool
+	watchdog   time.Duration // from a config of version 2; 0 until then or in version 1
 	greeting   protocol.Message
 	out        protocol.Message
 }
@@ -94,9 +101,17 @@ func New(o Options) (*Firmware, error) {
 	if o.IdleTimeout == 0 {
 		o.IdleTimeout = 10 * time.Second
 	}
+	if o.Protocol == 0 {
+		o.Protocol = protocol.Version
+	}
+	if !protocol.KnownVersion(o.Protocol) {
+		return nil, fmt.Errorf("reference: protocol version %d: this build speaks versions %d to %d", o.Protocol, protocol.MinVersion, protocol.Version)
+	}
 	f := &Firmware{o: o, g: g}
+	f.greeting.Version = o.Protocol
 	f.greeting.Type = protocol.TypeGreeting
-	f.greeting.Greeting = protocol.Greeting{Version: protocol.Version, Actuators: uint8(o.Actuators), Name: o.Name, Build: o.Build}
+	f.greeting.Greeting = protocol.Greeting{Version: o.Protocol, Actuators: uint8(o.Actuators), Name: o.Name, Build: o.Build}
+	f.out.Version = o.Protocol
 	f.out.Type = protocol.TypeCommand
 	return f, nil
 }
@@ -107,6 +122,15 @@ func (f *Firmware) Greeting() *protocol.Message { return &f.greeting }
 // Configured reports whether the rig's configuration has arrived.
 func (f *Firmware) Configured() bool { return f.configured }
 
+// Protocol is the protocol version the firmware speaks.
+func (f *Firmware) Protocol() uint8 { return f.o.Protocol }
+
+// Watchdog is the watchdog the rig's configuration announced (protocol
+// version 2): how long the rig waits for a command before it e-stops. It is
+// 0 before the configuration and for a firmware of version 1, whose config
+// has no such field.
+func (f *Firmware) Watchdog() time.Duration { return f.watchdog }
+
 // Handle takes one message from the rig and returns the firmware's answer
 // (nil when there is none; the message is the Firmware's own and valid until
 // the next call). end is true when the session is over; err is then nil
@@ -115,6 +139,13 @@ func (f *Firmware) Configured() bool { return f.configured }
 // a Stop). It allocates nothing for a state.
 func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end bool, err error) {
 	o := &f.o
+	if v := in.WireVersion(); v != o.Protocol && in.Type != protocol.TypeStop {
+		// A frame of a version this firmware does not speak is one it could
+		// not have decoded: drop it as a board drops a bad frame. A stop
+		// is read whatever its version, since its layout never changes
+		// (docs/protocol.md section 8).
+		return nil, false, nil
+	}
 	switch in.Type {
 	case protocol.TypeConfig:
 		if int(in.Config.Joints) != o.Actuators {
@@ -123,6 +154,7 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 			return &f.out, true, fmt.Errorf("reference: the rig configured %d joints, this firmware drives %d", in.Config.Joints, o.Actuators)
 		}
 		f.configured = true
+		f.watchdog = time.Duration(in.Config.WatchdogUS) * time.Microsecond
 		// The firmware keeps the rig's limits to itself: its own
 		// TorqueLimit clips first, and the rig clips again. A limit of 0
 		// is a joint the rig does not limit; it must not hide the limits

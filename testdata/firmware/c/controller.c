@@ -182,6 +182,8 @@ const char *ctl_configure(struct ctl_config *cfg, const struct proto_config *rig
         cfg->slot[0] = (uint8_t)hip;
     }
     cfg->joints = (uint8_t)actuators;
+    cfg->watchdog_us = rig->watchdog_us;
+    cfg->lockstep = rig->lockstep;
     /* The Go reference firmware's rule: the smallest configured limit
      * replaces the law's own when it is positive and lower (a NaN limit
      * compares false and is ignored, as in Go). */
@@ -225,4 +227,29 @@ void ctl_step(const struct ctl_config *cfg, const struct proto_state *s, struct 
     for (i = 0; i < cfg->joints; i++) {
         out->torque[cfg->slot[i]] = (float)tau[i];
     }
+}
+
+uint32_t ctl_lost_ms(const struct ctl_config *cfg)
+{
+    /* 64-bit arithmetic: 20 watchdogs of up to 2^32 µs overflow 32 bits. */
+    uint64_t ms = ((uint64_t)cfg->watchdog_us * CTL_LOST_WATCHDOGS + 999u) / 1000u;
+    if (ms < CTL_LOST_MIN_MS) {
+        ms = CTL_LOST_MIN_MS;
+    }
+    if (ms > 0xFFFFFFFFu) {
+        ms = 0xFFFFFFFFu;
+    }
+    return (uint32_t)ms;
+}
+
+enum ctl_link ctl_link_state(const struct ctl_config *cfg, uint32_t silent_ms)
+{
+    /* Compare in microseconds, so a watchdog below a millisecond counts. */
+    if ((uint64_t)silent_ms * 1000u <= cfg->watchdog_us) {
+        return CTL_LINK_OK;
+    }
+    if (silent_ms < ctl_lost_ms(cfg)) {
+        return CTL_LINK_QUIET;
+    }
+    return CTL_LINK_LOST;
 }

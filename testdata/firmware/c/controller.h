@@ -56,6 +56,8 @@ struct ctl_config {
     struct ctl_gains gains; /* torque_limit lowered to the rig's limit */
     uint8_t joints;         /* 1 (compass walker) or 2 (torso walker) */
     uint8_t slot[2];        /* wire slot of law joint 0 and 1 */
+    uint32_t watchdog_us;   /* the rig's watchdog, from the config */
+    uint8_t lockstep;       /* 1 lockstep, 0 wall-clock, from the config */
 };
 
 /* ctl_configure checks the rig's configuration against the actuator count
@@ -73,6 +75,36 @@ const char *ctl_configure(struct ctl_config *cfg, const struct proto_config *rig
  * status bits instead (the Go law would pass the NaN on; a board should not
  * send what the rig is bound to reject). */
 void ctl_step(const struct ctl_config *cfg, const struct proto_state *s, struct proto_command *out);
+
+/* What a silence of the rig means to the firmware, judged against the
+ * watchdog the rig announced in its config (docs/protocol.md section 7). */
+enum ctl_link {
+    CTL_LINK_OK = 0,    /* the rig spoke within its watchdog */
+    CTL_LINK_QUIET = 1, /* silent for longer than the watchdog: the rig has
+                         * e-stopped, lost the link or (lockstep) stalled;
+                         * the firmware holds its safe state (zero torque)
+                         * until a state arrives again */
+    CTL_LINK_LOST = 2   /* silent for CTL_LOST_WATCHDOGS watchdogs and at
+                         * least CTL_LOST_MIN_MS: the rig has gone */
+};
+
+/* A rig silent for this many of its watchdogs has gone, not paused; but
+ * never before CTL_LOST_MIN_MS, because a lockstep rig on a loaded host may
+ * stall for seconds without blaming the firmware (section 7), and a board
+ * that gave up then would have to greet again, which the rig takes for a
+ * reset. */
+#define CTL_LOST_WATCHDOGS 20u
+#define CTL_LOST_MIN_MS 10000u
+
+/* ctl_link_state judges a silence of silent_ms milliseconds since the
+ * rig's last frame. Pure arithmetic on the configured watchdog, so a board
+ * calls it from its timer with its own clock. */
+enum ctl_link ctl_link_state(const struct ctl_config *cfg, uint32_t silent_ms);
+
+/* ctl_lost_ms is the silence, in milliseconds, after which ctl_link_state
+ * says CTL_LINK_LOST: CTL_LOST_WATCHDOGS watchdogs, at least
+ * CTL_LOST_MIN_MS, at most about 49 days (the largest uint32_t). */
+uint32_t ctl_lost_ms(const struct ctl_config *cfg);
 
 /* ctl_safe fills out with the firmware's own safe state: zero torque on
  * every joint. */

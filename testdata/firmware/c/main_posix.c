@@ -20,7 +20,10 @@
  *
  * Exit status: 0 after a stop with reason "end" from the rig; 1 after any
  * other stop reason, a frame of another protocol version, a config it cannot
- * drive, a link closed under it, a rig silent for 10 s after its config, or
+ * drive, a link closed under it, a rig silent after its config for 20 of the
+ * watchdogs its config announced and at least 10 s (controller.c,
+ * ctl_link_state; a silence beyond one watchdog is logged and counted as
+ * "quiet"), or
  * SIGINT/SIGTERM (after sending a stop with reason "firmware"); 2 for bad
  * usage or a tty that cannot be opened. On every exit after the tty opened it prints
  * one line of counters to stderr, starting "cfw: counters", which the
@@ -43,14 +46,11 @@
 #include "protocol.h"
 
 #define FIRMWARE_NAME "gaitrig-example-c"
-#define FIRMWARE_BUILD "c99 protocol v1"
+#define FIRMWARE_BUILD "c99 protocol v2"
 
 /* Session timing of docs/protocol.md section 6. */
 #define GREETING_REPEAT_MS 500
 #define HEARTBEAT_MS 100
-/* Once configured, give up if the rig says nothing at all for this long: a
- * firmware on a bench must not spin forever on an abandoned run. */
-#define SILENCE_LIMIT_MS 10000
 /* A receiver that collects more than this without a zero drops the bytes
  * (section 4): the COBS size of a 512-byte frame. */
 #define RX_LIMIT PROTO_COBS_MAX(PROTO_MAX_FRAME)
@@ -70,6 +70,7 @@ struct counters {
     unsigned long heartbeats_in;
     unsigned long heartbeats_out;
     unsigned long greetings;
+    unsigned long quiet;        /* silences of the rig longer than its watchdog */
 };
 
 struct link {
@@ -107,11 +108,11 @@ static void print_counters(const struct link *l, const char *end)
     fprintf(stderr,
             "cfw: counters bytes_in=%lu bytes_out=%lu frames_in=%lu frames_out=%lu "
             "frame_errors=%lu unexpected=%lu states=%lu commands=%lu repeats=%lu skipped=%lu "
-            "heartbeats_in=%lu heartbeats_out=%lu greetings=%lu end=%s\n",
+            "heartbeats_in=%lu heartbeats_out=%lu greetings=%lu quiet=%lu end=%s\n",
             l->n.bytes_in, l->n.bytes_out, l->n.frames_in, l->n.frames_out, l->n.frame_errors,
             l->n.unexpected, l->n.states, l->n.commands, l->n.repeats, l->n.skipped,
             l->n.heartbeats_in,
-            l->n.heartbeats_out, l->n.greetings, end);
+            l->n.heartbeats_out, l->n.greetings, l->n.quiet, end);
 }
 
 /* describe_error writes the refusal in the words of docs/protocol.md
@@ -282,6 +283,9 @@ struct session {
      * and none to the older ones. In lockstep there is one at a time. */
     int have_pending;
     struct proto_message pending;
+    /* Set while the rig has been silent for longer than its watchdog
+     * (ctl_link_state says CTL_LINK_QUIET); cleared by its next frame. */
+    int quiet;
 };
 
 static enum outcome on_config(struct link *l, struct session *s, const struct proto_config *c)
@@ -301,8 +305,9 @@ static enum outcome on_config(struct link *l, struct session *s, const struct pr
         s->have_pending = 0;
     }
     if (l->verbose) {
-        fprintf(stderr, "cfw: configured: %u Hz, %s, %u joints\n", (unsigned)c->tick_hz,
-                c->lockstep ? "lockstep" : "wall-clock", (unsigned)c->joints);
+        fprintf(stderr, "cfw: configured: %u Hz, %s, %u joints, watchdog %lu us\n",
+                (unsigned)c->tick_hz, c->lockstep ? "lockstep" : "wall-clock",
+                (unsigned)c->joints, (unsigned long)c->watchdog_us);
     }
     return KEEP_GOING;
 }
@@ -522,12 +527,35 @@ static int run(struct link *l)
         }
         if (pr <= 0) {
             /* Before a config the firmware waits for a rig as long as it
-             * takes, as a board on the bench does; once configured, a rig
-             * that says nothing for this long has gone. */
-            if (s.configured && t - last_rx > SILENCE_LIMIT_MS) {
-                fprintf(stderr, "cfw: the rig has been silent for %d ms, giving up\n",
-                        SILENCE_LIMIT_MS);
-                return finish(l, "silence", 1);
+             * takes, as a board on the bench does; once configured, the
+             * rig's own watchdog says how long a silence may be
+             * (controller.c decides, so a board port shares the rule). */
+            if (s.configured) {
+                long silent = t - last_rx;
+                switch (ctl_link_state(&s.cfg, silent > 0 ? (uint32_t)silent : 0u)) {
+                case CTL_LINK_LOST:
+                    fprintf(stderr,
+                            "cfw: the rig has been silent for %ld ms (its watchdog is %lu us), "
+                            "giving up\n",
+                            silent, (unsigned long)s.cfg.watchdog_us);
+                    return finish(l, "silence", 1);
+                case CTL_LINK_QUIET:
+                    if (!s.quiet) {
+                        /* A board would put its motor outputs to the safe
+                         * state here; this host shim has none, so it only
+                         * says so. Nothing is sent: the rig needs no
+                         * command until it sends a state again. */
+                        s.quiet = 1;
+                        l->n.quiet++;
+                        fprintf(stderr,
+                                "cfw: no frame from the rig for %ld ms, beyond its watchdog of "
+                                "%lu us: holding the safe state\n",
+                                silent, (unsigned long)s.cfg.watchdog_us);
+                    }
+                    break;
+                default:
+                    break;
+                }
             }
             continue;
         }
@@ -543,6 +571,7 @@ static int run(struct link *l)
             return finish(l, "link-closed", 1);
         }
         last_rx = t;
+        s.quiet = 0;
         l->n.bytes_in += (unsigned long)got;
         for (i = 0; i < got; i++) {
             enum outcome r;

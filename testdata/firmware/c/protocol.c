@@ -258,6 +258,9 @@ static int check_fields(const struct proto_message *m, uint8_t header_version,
         if (!joints_ok(m->u.config.joints)) {
             return field_error(diag, "config joints", m->u.config.joints);
         }
+        if (m->u.config.watchdog_us == 0) {
+            return field_error(diag, "config watchdog_us", 0);
+        }
         break;
     case PROTO_STATE:
         if (!joints_ok(m->u.state.joints)) {
@@ -315,6 +318,7 @@ int proto_encode(const struct proto_message *m, uint8_t *out, size_t cap, size_t
             put_str32(p + 4 + 32 * i, m->u.config.joint_names[i]);
             proto_put_f32(p + 260 + 4 * i, m->u.config.torque_limit[i]);
         }
+        proto_put_u32(p + 292, m->u.config.watchdog_us);
         break;
     case PROTO_STATE:
         proto_put_u64(p, m->u.state.time_us);
@@ -430,6 +434,7 @@ int proto_decode(const uint8_t *frame, size_t n, struct proto_message *m,
             get_str32(p + 4 + 32 * i, m->u.config.joint_names[i]);
             m->u.config.torque_limit[i] = proto_get_f32(p + 260 + 4 * i);
         }
+        m->u.config.watchdog_us = proto_get_u32(p + 292);
         break;
     case PROTO_STATE:
         m->u.state.time_us = proto_get_u64(p);

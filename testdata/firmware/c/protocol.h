@@ -55,7 +55,10 @@ float proto_get_f32(const uint8_t *p);
 
 /* ---- frames and messages (docs/protocol.md sections 2, 3 and 5) ---------- */
 
-#define PROTO_VERSION 1u     /* the protocol version this code speaks */
+/* The protocol version this code speaks, and the only one: a rig serves a
+ * firmware in the version of its greeting (section 8), so a firmware needs
+ * only one. Version 2 is version 1 with the watchdog in the config. */
+#define PROTO_VERSION 2u
 #define PROTO_MAX_JOINTS 8   /* array slots in config, state and command */
 #define PROTO_STR_LEN 32     /* bytes of a str32 field on the wire */
 #define PROTO_HEADER_LEN 8   /* version, type, seq, length */
@@ -75,7 +78,7 @@ enum proto_type {
 /* Fixed payload length of each type (section 3). */
 enum proto_payload_len {
     PROTO_GREETING_LEN = 66,
-    PROTO_CONFIG_LEN = 292,
+    PROTO_CONFIG_LEN = 296, /* version 2: 292 bytes of version 1, then watchdog_us */
     PROTO_STATE_LEN = 84,
     PROTO_COMMAND_LEN = 36,
     PROTO_HEARTBEAT_LEN = 0,
@@ -115,6 +118,9 @@ struct proto_config {
     uint8_t joints;
     char joint_names[PROTO_MAX_JOINTS][PROTO_STR_LEN + 1];
     float torque_limit[PROTO_MAX_JOINTS];
+    /* The watchdog the rig enforces, in microseconds (section 3.2): how
+     * long the rig waits for a valid command before it e-stops. Never 0. */
+    uint32_t watchdog_us;
 };
 
 struct proto_state {

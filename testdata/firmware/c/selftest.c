@@ -300,17 +300,19 @@ static void describe(const struct proto_message *m)
     int i;
     switch (m->type) {
     case PROTO_GREETING:
+        /* The JSON form has one "version", the frame's; a greeting whose
+         * own version field differs does not decode. */
         printf("{\"type\":\"greeting\",\"seq\":%lu,\"version\":%u,\"actuators\":%u,\"name\":",
-               (unsigned long)m->seq, (unsigned)m->u.greeting.version,
+               (unsigned long)m->seq, (unsigned)m->version,
                (unsigned)m->u.greeting.actuators);
         json_str(m->u.greeting.name);
         printf(",\"build\":");
         json_str(m->u.greeting.build);
         break;
     case PROTO_CONFIG:
-        printf("{\"type\":\"config\",\"seq\":%lu,\"tick_hz\":%u,\"lockstep\":%s,\"joints\":%u,"
-               "\"joint_names\":[",
-               (unsigned long)m->seq, (unsigned)m->u.config.tick_hz,
+        printf("{\"type\":\"config\",\"seq\":%lu,\"version\":%u,\"tick_hz\":%u,\"lockstep\":%s,"
+               "\"joints\":%u,\"joint_names\":[",
+               (unsigned long)m->seq, (unsigned)m->version, (unsigned)m->u.config.tick_hz,
                m->u.config.lockstep ? "true" : "false", (unsigned)m->u.config.joints);
         for (i = 0; i < m->u.config.joints; i++) {
             if (i) {
@@ -320,10 +322,12 @@ static void describe(const struct proto_message *m)
         }
         putchar(']');
         json_f32s("torque_limit", m->u.config.torque_limit, m->u.config.joints);
+        printf(",\"watchdog_us\":%lu", (unsigned long)m->u.config.watchdog_us);
         break;
     case PROTO_STATE:
-        printf("{\"type\":\"state\",\"seq\":%lu,\"time_us\":%llu,\"joints\":%u,\"contacts\":%u",
-               (unsigned long)m->seq, (unsigned long long)m->u.state.time_us,
+        printf("{\"type\":\"state\",\"seq\":%lu,\"version\":%u,\"time_us\":%llu,\"joints\":%u,"
+               "\"contacts\":%u",
+               (unsigned long)m->seq, (unsigned)m->version, (unsigned long long)m->u.state.time_us,
                (unsigned)m->u.state.joints, (unsigned)m->u.state.contacts);
         json_f32s("angle", m->u.state.angle, m->u.state.joints);
         json_f32s("rate", m->u.state.rate, m->u.state.joints);
@@ -333,17 +337,19 @@ static void describe(const struct proto_message *m)
         json_f32(m->u.state.imu_rate);
         break;
     case PROTO_COMMAND:
-        printf("{\"type\":\"command\",\"seq\":%lu,\"joints\":%u,\"status\":%u",
-               (unsigned long)m->seq, (unsigned)m->u.command.joints,
+        printf("{\"type\":\"command\",\"seq\":%lu,\"version\":%u,\"joints\":%u,\"status\":%u",
+               (unsigned long)m->seq, (unsigned)m->version, (unsigned)m->u.command.joints,
                (unsigned)m->u.command.status);
         json_f32s("torque", m->u.command.torque, m->u.command.joints);
         break;
     case PROTO_HEARTBEAT:
-        printf("{\"type\":\"heartbeat\",\"seq\":%lu", (unsigned long)m->seq);
+        printf("{\"type\":\"heartbeat\",\"seq\":%lu,\"version\":%u", (unsigned long)m->seq,
+               (unsigned)m->version);
         break;
     case PROTO_STOP:
-        printf("{\"type\":\"stop\",\"seq\":%lu,\"reason\":%u,\"reason_name\":\"%s\",\"text\":",
-               (unsigned long)m->seq, (unsigned)m->u.stop.reason,
+        printf("{\"type\":\"stop\",\"seq\":%lu,\"version\":%u,\"reason\":%u,"
+               "\"reason_name\":\"%s\",\"text\":",
+               (unsigned long)m->seq, (unsigned)m->version, (unsigned)m->u.stop.reason,
                proto_stop_reason_text(m->u.stop.reason));
         json_str(m->u.stop.text);
         break;
@@ -442,7 +448,14 @@ static void test_messages(void)
         snprintf(m.u.config.joint_names[i], sizeof m.u.config.joint_names[i], "joint_%d", i);
         m.u.config.torque_limit[i] = 10.0f + (float)i;
     }
-    roundtrip("config", &m, 302);
+    m.u.config.watchdog_us = 0x01020304u;
+    roundtrip("config", &m, 306);
+    /* watchdog_us is the u32 at payload offset 292 (section 3.2), low
+     * byte first. */
+    proto_encode(&m, f, sizeof f, &n);
+    check(n == 306 && f[8 + 292] == 0x04 && f[8 + 293] == 0x03 && f[8 + 294] == 0x02 &&
+              f[8 + 295] == 0x01,
+          "config watchdog_us is the little-endian u32 at payload offset 292");
 
     memset(&m, 0, sizeof m);
     m.type = PROTO_STATE;
@@ -505,8 +518,11 @@ static void test_messages(void)
     f[8] ^= 0x01;
     expect_refusal("a stop frame with a flipped bit", f, n, 0, PROTO_ERR_CRC);
     proto_encode(&m, f, sizeof f, &n);
-    f[0] = 2;
-    expect_refusal("a version-2 frame", f, n, 1, PROTO_ERR_VERSION);
+    f[0] = 1;
+    expect_refusal("a version-1 frame", f, n, 1, PROTO_ERR_VERSION);
+    proto_encode(&m, f, sizeof f, &n);
+    f[0] = 3;
+    expect_refusal("a version-3 frame", f, n, 1, PROTO_ERR_VERSION);
     proto_encode(&m, f, sizeof f, &n);
     f[1] = 0x31;
     expect_refusal("type 0x31", f, n, 1, PROTO_ERR_TYPE);
@@ -518,6 +534,7 @@ static void test_messages(void)
     m.type = PROTO_CONFIG;
     m.u.config.tick_hz = 1000;
     m.u.config.joints = 1;
+    m.u.config.watchdog_us = 50000;
     proto_encode(&m, f, sizeof f, &n);
     f[8 + 2] = 2;
     expect_refusal("config lockstep 2", f, n, 1, PROTO_ERR_FIELD);
@@ -528,6 +545,12 @@ static void test_messages(void)
     proto_encode(&m, f, sizeof f, &n);
     f[8 + 3] = 0;
     expect_refusal("config with 0 joints", f, n, 1, PROTO_ERR_FIELD);
+    proto_encode(&m, f, sizeof f, &n);
+    memset(f + 8 + 292, 0, 4);
+    expect_refusal("config with watchdog_us 0", f, n, 1, PROTO_ERR_FIELD);
+    m.u.config.watchdog_us = 0;
+    check(proto_encode(&m, f, sizeof f, &n) == PROTO_ERR_FIELD,
+          "encode refuses a config without a watchdog");
 
     memset(&m, 0, sizeof m);
     m.type = PROTO_GREETING;
@@ -536,6 +559,30 @@ static void test_messages(void)
     proto_encode(&m, f, sizeof f, &n);
     f[8] = 3;
     expect_refusal("a greeting whose version differs from its header", f, n, 1, PROTO_ERR_FIELD);
+}
+
+/* ctl_link_state against values worked out by hand from its rule: quiet
+ * beyond one watchdog, lost after 20 watchdogs but never before 10 s. */
+static void test_link(void)
+{
+    struct ctl_config c;
+    memset(&c, 0, sizeof c);
+    c.watchdog_us = 50000; /* 50 ms: lost after max(10 s, 1 s) = 10 s */
+    check(ctl_link_state(&c, 50) == CTL_LINK_OK, "50 ms of silence is within a 50 ms watchdog");
+    check(ctl_link_state(&c, 51) == CTL_LINK_QUIET, "51 ms of silence is beyond a 50 ms watchdog");
+    check(ctl_lost_ms(&c) == 10000, "a 50 ms watchdog gives up after the 10 s floor");
+    check(ctl_link_state(&c, 9999) == CTL_LINK_QUIET, "9999 ms with a 50 ms watchdog is quiet");
+    check(ctl_link_state(&c, 10000) == CTL_LINK_LOST, "10 s with a 50 ms watchdog is lost");
+    c.watchdog_us = 1000000; /* 1 s: lost after 20 s */
+    check(ctl_link_state(&c, 1000) == CTL_LINK_OK, "1 s of silence is within a 1 s watchdog");
+    check(ctl_link_state(&c, 1001) == CTL_LINK_QUIET, "1.001 s is beyond a 1 s watchdog");
+    check(ctl_link_state(&c, 19999) == CTL_LINK_QUIET, "19.999 s with a 1 s watchdog is quiet");
+    check(ctl_link_state(&c, 20000) == CTL_LINK_LOST, "20 s with a 1 s watchdog is lost");
+    c.watchdog_us = 500; /* below a millisecond: any whole millisecond is beyond */
+    check(ctl_link_state(&c, 0) == CTL_LINK_OK && ctl_link_state(&c, 1) == CTL_LINK_QUIET,
+          "a 500 us watchdog: 0 ms ok, 1 ms quiet");
+    c.watchdog_us = 0xFFFFFFFFu; /* 20 x 4294.967295 s = 85899345.9 ms, rounded up */
+    check(ctl_lost_ms(&c) == 85899346u, "the largest watchdog does not overflow the lost limit");
 }
 
 /* ---- vectors from files ---------------------------------------------------- */
@@ -684,6 +731,7 @@ static int run_law_file(const char *path)
         memset(&rig, 0, sizeof rig);
         rig.tick_hz = 1000;
         rig.lockstep = 1;
+        rig.watchdog_us = 50000;
         rig.joints = (uint8_t)joints;
         if (joints == 2) {
             strcpy(rig.joint_names[0], "hip_left");
@@ -738,6 +786,7 @@ int main(int argc, char **argv)
         test_cobs();
         test_packing();
         test_messages();
+        test_link();
         printf("%s: %d checks, %d failed\n", failures ? "FAIL" : "ok", checks, failures);
         return failures ? 1 : 0;
     }
