@@ -193,8 +193,8 @@ func (b *battery) firstSession(conn bridges.Conn) {
 	b.rep.Greeting = &Firmware{Name: g.Name, Build: g.Build, Version: g.Version, Actuators: g.Actuators}
 	seen := fmt.Sprintf("name %q, build %q, version %d, %d actuators, seq %d", g.Name, g.Build, g.Version, g.Actuators, seq)
 	var probs []string
-	if g.Version != protocol.Version {
-		probs = append(probs, fmt.Sprintf("version %d, want %d", g.Version, protocol.Version))
+	if !protocol.KnownVersion(g.Version) {
+		probs = append(probs, fmt.Sprintf("version %d, want %d to %d", g.Version, protocol.MinVersion, protocol.Version))
 	}
 	if g.Actuators < 1 || g.Actuators > protocol.MaxJoints {
 		probs = append(probs, fmt.Sprintf("%d actuators, want 1–%d", g.Actuators, protocol.MaxJoints))
@@ -369,7 +369,7 @@ func (b *battery) damaged(name string, corrupt func([]byte), what string) {
 		frame = append([]byte(nil), buf[:n]...)
 		corrupt(frame)
 	} else {
-		frame = unknownTypeFrame(bad.Seq)
+		frame = unknownTypeFrame(s.version, bad.Seq)
 	}
 	if err := fs.SendFrame(frame); err != nil {
 		b.record(name, Fail, start, "sending the damaged frame: %v", err)
@@ -389,9 +389,9 @@ func (b *battery) damaged(name string, corrupt func([]byte), what string) {
 }
 
 // unknownTypeFrame is a well-formed frame of type 0x7E with no payload.
-func unknownTypeFrame(seq uint32) []byte {
+func unknownTypeFrame(version uint8, seq uint32) []byte {
 	f := make([]byte, protocol.MinFrameLen)
-	f[0] = protocol.Version
+	f[0] = version
 	f[1] = 0x7E
 	f[2], f[3], f[4], f[5] = byte(seq), byte(seq>>8), byte(seq>>16), byte(seq>>24)
 	crc := protocol.CRC16(f[:protocol.HeaderLen])
@@ -405,7 +405,7 @@ func unknownTypeFrame(seq uint32) []byte {
 func (b *battery) heartbeat() {
 	s := b.s
 	start := time.Now()
-	hb := protocol.Message{Type: protocol.TypeHeartbeat, Seq: s.state.Seq}
+	hb := protocol.Message{Version: s.version, Type: protocol.TypeHeartbeat, Seq: s.state.Seq}
 	before := s.heartbeats
 	if err := s.conn.Send(&hb); err != nil {
 		b.record(CheckHeartbeat, Fail, start, "sending the heartbeat: %v", err)
@@ -428,7 +428,7 @@ func (b *battery) heartbeat() {
 func (b *battery) stop() {
 	s := b.s
 	start := time.Now()
-	st := protocol.Message{Type: protocol.TypeStop, Seq: s.state.Seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "conformance: end"}}
+	st := protocol.Message{Version: s.version, Type: protocol.TypeStop, Seq: s.state.Seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "conformance: end"}}
 	if err := s.conn.Send(&st); err != nil {
 		b.record(CheckStopsOnStop, Fail, start, "sending the stop: %v", err)
 		return

@@ -157,7 +157,7 @@ func TestBrokenFirmwareFailsTheRightCheck(t *testing.T) {
 // refuses it for the type, not for its CRC or length.
 func TestUnknownTypeFrame(t *testing.T) {
 	var m protocol.Message
-	err := protocol.Decode(unknownTypeFrame(7), &m)
+	err := protocol.Decode(unknownTypeFrame(protocol.Version, 7), &m)
 	if !errors.Is(err, protocol.ErrUnknownType) {
 		t.Fatalf("decoding the unknown-type frame: %v, want an unknown-type refusal", err)
 	}

@@ -64,7 +64,7 @@ func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, err
 		out.Samples = append(out.Samples, a.rtt)
 	}
 	out.Summary = h.Summarize()
-	st := protocol.Message{Type: protocol.TypeStop, Seq: s.seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "round trips measured"}}
+	st := protocol.Message{Version: s.version, Type: protocol.TypeStop, Seq: s.seq, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "round trips measured"}}
 	before := conn.Stats().FramesSent
 	if conn.Send(&st) == nil {
 		// A serial link writes from its own goroutine, and closing it drops

@@ -9,6 +9,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/hil"
 )
 
 // session is the battery's end of one link: the messages it sends and what
@@ -17,10 +18,13 @@ type session struct {
 	conn   bridges.Conn
 	n      int              // joints configured
 	config protocol.Message // the config sent
-	state  protocol.Message // the latest state sent
-	seq    uint32           // seq of the latest state
-	in     protocol.Message
-	fe     *bridges.FrameError
+	// version is the protocol version the firmware greeted with: every
+	// frame the battery sends carries it (docs/protocol.md section 8).
+	version uint8
+	state   protocol.Message // the latest state sent
+	seq     uint32           // seq of the latest state
+	in      protocol.Message
+	fe      *bridges.FrameError
 
 	// Counts of what the firmware sent.
 	commands, greetings, heartbeats, wrongWay, frameErrors int
@@ -37,18 +41,22 @@ type session struct {
 }
 
 func newSession(conn bridges.Conn) *session {
-	return &session{conn: conn, extraFor: math.MaxUint32}
+	return &session{conn: conn, extraFor: math.MaxUint32, version: protocol.Version}
 }
 
 // configure prepares the config for n joints (sent with sendConfig).
 func (s *session) configure(n int) {
 	s.n = n
 	c := protocol.Config{TickHz: configTickHz, Lockstep: true, Joints: uint8(n)}
+	if s.version >= 2 {
+		// The watchdog the battery judges answers by (Watchdog).
+		c.WatchdogUS = hil.WatchdogMicros(Watchdog)
+	}
 	for i, name := range jointNames(n) {
 		c.JointNames[i] = name
 		c.TorqueLimit[i] = configLimit
 	}
-	s.config = protocol.Message{Type: protocol.TypeConfig, Config: c}
+	s.config = protocol.Message{Version: s.version, Type: protocol.TypeConfig, Config: c}
 }
 
 func (s *session) sendConfig(m *protocol.Message) error { return s.conn.Send(m) }
@@ -63,7 +71,7 @@ func (s *session) nextState() *protocol.Message {
 			st.Angle[i] = -frozenAngle
 		}
 	}
-	s.state = protocol.Message{Type: protocol.TypeState, Seq: s.seq, State: st}
+	s.state = protocol.Message{Version: s.version, Type: protocol.TypeState, Seq: s.seq, State: st}
 	return &s.state
 }
 
@@ -194,6 +202,9 @@ func (s *session) awaitGreeting(ctx context.Context, d time.Duration) (protocol.
 		switch {
 		case err == nil:
 			if s.in.Type == protocol.TypeGreeting {
+				if protocol.KnownVersion(s.in.Greeting.Version) {
+					s.version = s.in.Greeting.Version
+				}
 				return s.in.Greeting, s.in.Seq, nil
 			}
 			continue // anything else before a greeting: left over from before

@@ -18,9 +18,11 @@ var StandardBauds = []int{9600, 19200, 38400, 57600, 115200, 230400, 460800, 921
 
 // WireLen is the number of bytes a frame of type t occupies on a byte
 // stream: its COBS encoding at the largest (COBSMaxLen) plus the zero
-// delimiter. 0 for an unknown type.
+// delimiter, in the current protocol version (the state and command, the
+// frames of every tick, have the same length in versions 1 and 2). 0 for
+// an unknown type.
 func WireLen(t Type) int {
-	n := FrameLen(t)
+	n := FrameLen(Version, t)
 	if n == 0 {
 		return 0
 	}
