@@ -32,6 +32,7 @@ const (
 	AlarmDeadlineMiss     = "deadline_miss"     // a wall-clock tick started late
 	AlarmFirmwareFault    = "firmware_fault"    // the firmware set its fault status bit
 	AlarmVersionMismatch  = "version_mismatch"  // the firmware speaks another protocol version
+	AlarmHostStall        = "host_stall"        // the rig itself was not running (host load) for as long as the watchdog
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -40,7 +41,7 @@ var AlarmKinds = []string{
 	AlarmFrictionLimit, AlarmLiftOff, AlarmImpactSlip, AlarmFootScuff,
 	AlarmFall, AlarmNonFinite, AlarmWatchdog, AlarmBadFrame, AlarmBadTorque,
 	AlarmTorqueSaturation, AlarmLinkLost, AlarmLinkRestored,
-	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
+	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch, AlarmHostStall,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -62,6 +63,7 @@ var DefaultSeverity = map[string]Severity{
 	AlarmDeadlineMiss:     SeverityWarn,
 	AlarmFirmwareFault:    SeverityTrip,
 	AlarmVersionMismatch:  SeverityTrip,
+	AlarmHostStall:        SeverityTrip, // ends the run as invalid, not tripped: see runner.hostStall
 }
 
 // Criteria are the pass criteria of a run. A criterion left out (nil) is

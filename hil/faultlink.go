@@ -191,20 +191,19 @@ func (q *commandRing) put(c *heldCommand) {
 }
 
 // takeDue removes every command released by now, in arrival order up to
-// the first that is not due yet. Each timed one's latency goes to lat; the
-// newest one answering a state that was sent (seq ≤ maxSeq) is copied to
-// out. It returns how many were taken (those pushed out since the last
+// the first that is not due yet. The newest one answering a state that
+// was sent (seq ≤ maxSeq) is copied to out; the others are superseded and
+// only counted, so their round trips stay out of the latency figures (a
+// stale answer to a resent or older state is not how long the firmware
+// takes to answer the state that was applied). It returns how many were taken (those pushed out since the last
 // call included) and whether out was set; a command for a sequence number
 // never sent is garbage and only counted.
-func (q *commandRing) takeDue(now int64, maxSeq uint32, out *heldCommand, lat *Histogram) (taken int, ok bool) {
+func (q *commandRing) takeDue(now int64, maxSeq uint32, out *heldCommand) (taken int, ok bool) {
 	taken, q.lost = q.lost, 0
 	for q.n > 0 {
 		it := &q.items[q.head]
 		if it.release > now {
 			break
-		}
-		if it.timed {
-			lat.Add(it.latency)
 		}
 		if it.seq <= maxSeq && (!ok || it.seq > out.seq) {
 			*out = *it

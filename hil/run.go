@@ -94,15 +94,19 @@ type runner struct {
 	n     int      // joints
 	names []string // joint names
 
-	sess   session       // session.go: the firmware session over the fault link
-	health linkHealth    // health.go: link counts, outages, watchdog, e-stop
-	pt     plantTick     // tick.go: the plant tick and its telemetry row
-	steps  stepTracker   // steps.go: per-step metrics between heel strikes
-	end    ending        // ending.go: outcome, reason and stop code, first wins
-	times  timing        // pace.go: round trip, jitter, deadline misses (wall-clock)
-	sens   *sensorBank   // sensors.go: what the board's sensors read
-	act    *actuatorBank // actuators.go: commanded to applied torque
-	al     *alarmer      // alarm.go: the alarm policy and the event log
+	sess   session     // session.go: the firmware session over the fault link
+	health linkHealth  // health.go: link counts, outages, watchdog, e-stop
+	pt     plantTick   // tick.go: the plant tick and its telemetry row
+	steps  stepTracker // steps.go: per-step metrics between heel strikes
+	end    ending      // ending.go: outcome, reason and stop code, first wins
+	times  timing      // pace.go: round trip, jitter, deadline misses (wall-clock)
+	stalls hostStalls  // hoststall.go: the rig's own lateness
+	// pressure is the host's CPU pressure (lockstep; nil without PSI or in
+	// wall-clock, where the firmware's deadline is real and not excused).
+	pressure *cpuPressure
+	sens     *sensorBank   // sensors.go: what the board's sensors read
+	act      *actuatorBank // actuators.go: commanded to applied torque
+	al       *alarmer      // alarm.go: the alarm policy and the event log
 
 	// fresh says whether this tick took a command from the firmware: set
 	// by the session, logged in the row, counted by MeasureLatency.
@@ -159,7 +163,7 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 	pt.rate1 = make([]float64, r.n)
 	pt.angleTmp = make([]float64, r.n)
 	pt.latUS = nan
-	r.times.latency, r.times.jitter = new(Histogram), new(Histogram)
+	r.times.latency, r.times.jitter = NewHistogram(), NewHistogram()
 	for _, p := range c.Pushes {
 		ps := pushState{Push: p, start: p.At}
 		if p.AtStep > 0 {
@@ -186,7 +190,9 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		if r.cfg.Clock == Wallclock {
 			r.wallclock(ctx)
 		} else {
+			r.pressure = openPressure()
 			r.lockstep(ctx)
+			r.pressure.close()
 		}
 	}
 	if err != nil {

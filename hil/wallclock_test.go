@@ -108,8 +108,7 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 		b.put(&heldCommand{seq: i})
 	}
 	var out heldCommand
-	var lat Histogram
-	taken, ok := b.takeDue(0, sent, &out, &lat)
+	taken, ok := b.takeDue(0, sent, &out)
 	if !ok || out.seq != sent {
 		t.Fatalf("applied seq %d (ok %v), want the newest, %d", out.seq, ok, sent)
 	}
@@ -117,7 +116,7 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 		t.Fatalf("took %d commands, want all %d that arrived", taken, sent)
 	}
 	b.put(&heldCommand{seq: sent + 1})
-	if taken, _ := b.takeDue(0, sent+1, &out, &lat); taken != 1 {
+	if taken, _ := b.takeDue(0, sent+1, &out); taken != 1 {
 		t.Fatalf("next take counted %d, want 1: overwritten commands are reported once", taken)
 	}
 }
@@ -176,6 +175,7 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	cfg.Clock = Wallclock
 	cfg.TickHz = 2000
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
+	cfg.Watchdog = 4 * delay // the delay itself is silence the watchdog must allow
 	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
 	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
 		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
