@@ -2,7 +2,9 @@ package rig
 
 import (
 	"context"
+	"errors"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"gaitrig/hil"
@@ -77,5 +79,29 @@ func TestSlipsShowInTheFrictionFigures(t *testing.T) {
 		if !found {
 			t.Errorf("no step holds the slip at %.3f s", e.T)
 		}
+	}
+}
+
+// A run that never started (prepared, then closed before its first tick,
+// as an interrupted or refused run is) leaves a folder with no rows.
+// Replaying it compares nothing, which is not a match: Replay says so with
+// an error the command line turns into a non-zero exit.
+func TestReplayOfARunThatNeverStarted(t *testing.T) {
+	s, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	p, err := Prepare(context.Background(), s, Options{RunDir: dir, Clock: hil.Lockstep})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p.Close()
+	r, err := Replay(dir)
+	if !errors.Is(err, ErrNothingToReplay) || !errors.Is(err, ErrConfig) || r.Match {
+		t.Fatalf("replay of a run with no ticks: %+v, err %v; want ErrNothingToReplay and no match", r, err)
+	}
+	if !strings.Contains(err.Error(), "aborted") {
+		t.Errorf("error %q does not say how the run ended", err)
 	}
 }
