@@ -5,6 +5,7 @@ package hil
 // and the ring that holds commands back until the tick they are due.
 
 import (
+	"errors"
 	"math"
 	"math/rand/v2"
 	"sync/atomic"
@@ -70,6 +71,11 @@ type faultLink struct {
 	delay      time.Duration      // latency drawn for the command Recv returned last (Recv's goroutine)
 	corruptErr bridges.FrameError // returned for every injected corruption, so none allocates
 
+	// interrupt, while not nil, cuts Recv short when it is closed: set
+	// around the handshake (the operator's SIGINT), on the loop's
+	// goroutine, before the wall-clock receiver starts.
+	interrupt <-chan struct{}
+
 	statesSent, droppedStates, droppedCommands, corrupted atomic.Uint64
 }
 
@@ -105,6 +111,45 @@ func (f *faultLink) Send(m *protocol.Message) error {
 // *bridges.FrameError, a delayed one comes with the delay field set. It
 // does not allocate.
 func (f *faultLink) Recv(deadline time.Time, m *protocol.Message) error {
+	if f.interrupt != nil {
+		return f.recvInterruptible(deadline, m)
+	}
+	return f.recv(deadline, m)
+}
+
+// interruptPoll is how often a wait that can be interrupted looks at the
+// interrupt: short enough that an operator's SIGINT ends a wait for the
+// greeting at once as a person sees it.
+const interruptPoll = 20 * time.Millisecond
+
+// errInterrupted ends a wait that the operator interrupted.
+var errInterrupted = errors.New("interrupted by the operator")
+
+// recvInterruptible is recv in slices of interruptPoll, returning
+// errInterrupted as soon as f.interrupt is closed. Only the handshake
+// uses it (the loop checks its context every tick and every wait itself);
+// a bridges.Conn has no way to cancel a Recv, so the wait is cut up.
+func (f *faultLink) recvInterruptible(deadline time.Time, m *protocol.Message) error {
+	for {
+		select {
+		case <-f.interrupt:
+			return errInterrupted
+		default:
+		}
+		sub := time.Now().Add(interruptPoll)
+		if deadline.Before(sub) {
+			sub = deadline
+		}
+		err := f.recv(sub, m)
+		if errors.Is(err, bridges.ErrTimeout) && sub.Before(deadline) {
+			continue
+		}
+		return err
+	}
+}
+
+// recv is Recv through the faults.
+func (f *faultLink) recv(deadline time.Time, m *protocol.Message) error {
 	for {
 		err := f.Conn.Recv(deadline, m)
 		f.delay = 0

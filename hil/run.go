@@ -185,7 +185,17 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 // run is the whole run: handshake, ticks, stop, summary.
 func (r *runner) run(ctx context.Context) (Result, error) {
 	r.started = time.Now()
+	// The wait for the greeting can take seconds (a board being plugged
+	// in); the operator's interrupt ends it at once, with outcome aborted.
+	r.sess.link.interrupt = ctx.Done()
 	err := r.handshake()
+	r.sess.link.interrupt = nil
+	if err != nil && errors.Is(err, errInterrupted) {
+		reason := "interrupted by the operator while waiting for the greeting (" + context.Cause(ctx).Error() + ")"
+		if r.end.end(record.Aborted, reason, protocol.StopAborted) {
+			r.al.info("aborted", 0, r.pt.s.T, reason, nil)
+		}
+	}
 	if err == nil {
 		if r.cfg.Clock == Wallclock {
 			r.wallclock(ctx)

@@ -45,8 +45,11 @@ func lineLogger(w io.Writer) func(string) {
 
 // outcomeCode is the exit code for a run outcome.
 func outcomeCode(o record.Outcome) int {
-	if o == record.Pass {
+	switch o {
+	case record.Pass:
 		return exitPass
+	case record.Invalid:
+		return exitInvalid
 	}
 	return exitFail
 }

@@ -5,8 +5,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
-	"syscall"
 
 	"gaitrig/hil"
 	"gaitrig/rig"
@@ -19,10 +17,9 @@ func init() {
 }
 
 // signalContext is cancelled by SIGINT or SIGTERM, so a run ends cleanly
-// with outcome aborted and its folder complete. A second signal kills.
-func signalContext() (context.Context, func()) {
-	return signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-}
+// with outcome aborted and its folder complete. A second signal ends the
+// process (interruptContext).
+func signalContext() (context.Context, func()) { return interruptContext(os.Stderr) }
 
 func cmdRun(args []string, stdout, stderr io.Writer) int {
 	fs := newFlagSet("run", "SCENARIO", `
