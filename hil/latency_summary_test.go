@@ -2,7 +2,10 @@ package hil
 
 import (
 	"context"
+	"encoding/json"
 	"math"
+	"os"
+	"path/filepath"
 	"slices"
 	"testing"
 	"time"
@@ -80,5 +83,18 @@ func TestNoLatencySamplesAreNull(t *testing.T) {
 	}
 	if !math.IsNaN(l.P50) || !math.IsNaN(l.P99) || !math.IsNaN(l.Max) || l.Count != 0 {
 		t.Fatalf("latency with no samples = %+v, want NaN (null) figures", l)
+	}
+	raw, err := os.ReadFile(filepath.Join(run.Dir, record.SummaryFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc struct {
+		Latency map[string]any `json:"latency_us"`
+	}
+	if err := json.Unmarshal(raw, &doc); err != nil {
+		t.Fatal(err)
+	}
+	if len(doc.Latency) != 3 || doc.Latency["p50"] != nil || doc.Latency["p99"] != nil || doc.Latency["max"] != nil {
+		t.Errorf("summary.json does not write the missing latency as null:\n%s", raw)
 	}
 }
