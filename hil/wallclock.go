@@ -47,13 +47,20 @@ func (r *runner) wallclock(ctx context.Context) {
 	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{})}
 	go rc.loop()
 	defer func() {
-		rc.stop.Store(true)
-		<-rc.done
+		if rc.stop.CompareAndSwap(false, true) { // a panic between here and the end of ticks
+			<-rc.done
+		}
 	}()
 	period := time.Duration(float64(time.Second) / r.cfg.TickHz)
 	p := &realPacer{start: rc.base.Add(period), period: period, jitter: tm.jitter} // first tick one period after the receiver started
 	src := &wallclockSource{r: r, rc: rc, p: p, lastValid: p.start}
 	r.ticks(ctx, p, src)
+	// Frames the receiver rejected after the last tick looked: counted,
+	// so the bad-frame count matches what the link saw (no alarm: the run
+	// is over). The receiver has stopped once done is closed.
+	rc.stop.Store(true)
+	<-rc.done
+	r.health.counts.BadFrames += rc.badFrames.Load() - src.lastBad
 }
 
 // mailbox carries commands from the receiver goroutine to the loop: a
