@@ -73,6 +73,7 @@ func (r *runner) invalid(reason string) {
 // hostBusy follows the host's CPU pressure during one slow wait for an
 // answer in lockstep.
 type hostBusy struct {
+	tried    bool // start was called
 	watching bool
 	p0       time.Duration // pressure reading when the wait became slow
 	total    time.Duration // pressure credited to the watchdog so far
@@ -80,9 +81,10 @@ type hostBusy struct {
 
 // start takes the first pressure reading of a slow wait.
 func (b *hostBusy) start(p *cpuPressure) {
-	if b.watching {
+	if b.tried {
 		return
 	}
+	b.tried = true
 	if v, ok := p.some(); ok {
 		b.watching, b.p0 = true, v
 	}

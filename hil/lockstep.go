@@ -79,6 +79,10 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
 	var busy hostBusy
+	// When the answer is slow (past the first resend, or a quarter of the
+	// watchdog if that is sooner), start watching the host's CPU pressure;
+	// a reading costs a system call, too much for every tick.
+	watchAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
 	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
@@ -88,9 +92,15 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		// waiting for more: after a stall of the rig itself the answer may
 		// be in the buffer, and that is not the firmware's fault.
 		final := !now.Before(wd)
+		if !busy.tried && !now.Before(watchAt) {
+			busy.start(r.pressure)
+		}
 		deadline := resendAt
 		if wd.Before(deadline) {
 			deadline = wd
+		}
+		if !busy.tried && watchAt.Before(deadline) && r.pressure != nil {
+			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
 		kind := classify(err, &ss.fe)
@@ -126,9 +136,6 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			}
 			r.watchdogContended(silent, busy.total)
 			return false
-		}
-		if kind == linkTimeout {
-			busy.start(r.pressure) // the answer is slow: start watching the host's pressure
 		}
 		switch kind {
 		case linkOK:

@@ -101,8 +101,10 @@ type runner struct {
 	end    ending      // ending.go: outcome, reason and stop code, first wins
 	times  timing      // pace.go: round trip, jitter, deadline misses (wall-clock)
 	stalls hostStalls  // hoststall.go: the rig's own lateness
-	// pressure is the host's CPU pressure (lockstep; nil without PSI or in
-	// wall-clock, where the firmware's deadline is real and not excused).
+	// pressure is the host's CPU pressure (lockstep only; nil without
+	// PSI), read only while a firmware's answer is late. Wall-clock does
+	// not use it: on a shared host the pressure is high nearly all the
+	// time, and a firmware that is gone would then never be caught.
 	pressure *cpuPressure
 	sens     *sensorBank   // sensors.go: what the board's sensors read
 	act      *actuatorBank // actuators.go: commanded to applied torque
