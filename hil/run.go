@@ -165,7 +165,13 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 	pt.rate1 = make([]float64, r.n)
 	pt.angleTmp = make([]float64, r.n)
 	pt.latUS = nan
-	r.times.latency, r.times.jitter = NewHistogram(), NewHistogram()
+	// Only the wall clock times round trips and tick starts; lockstep keeps
+	// empty histograms and spares the buckets (a few hundred KB per run,
+	// which a suite of many runs would feel).
+	r.times.latency, r.times.jitter = new(Histogram), new(Histogram)
+	if c.Clock == Wallclock {
+		r.times.latency, r.times.jitter = NewHistogram(), NewHistogram()
+	}
 	for _, p := range c.Pushes {
 		ps := pushState{Push: p, start: p.At}
 		if p.AtStep > 0 {
