@@ -118,12 +118,19 @@ func (b *hostBusy) limit(watchdog time.Duration) time.Duration {
 }
 
 // watchdogContended trips the lockstep watchdog after silent with no
-// answer, contended of which the host's CPUs were contended (not charged
-// to the firmware until the limit).
+// answer, contended of which the host's CPUs were contended. The alarm
+// says both, so a trip on a loaded host can be told from one on a quiet
+// host; before the limit only the uncontended time is charged.
 func (r *runner) watchdogContended(silent, contended time.Duration) {
-	charged := silent - contended
-	if contended > 0 && silent >= (&hostBusy{}).limit(r.cfg.Watchdog) {
-		charged = silent // past the limit the firmware is taken to be gone
+	if contended <= 0 {
+		r.watchdog(silent)
+		return
 	}
-	r.watchdog(max(charged, r.cfg.Watchdog))
+	ms, cms := float64(silent)/1e6, float64(contended)/1e6
+	if r.al.raise(AlarmWatchdog, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+		return fmt.Sprintf("no valid command from the firmware for %.1f ms, %.1f ms of it with the host's CPUs contended (watchdog %v): e-stop", ms, cms, r.cfg.Watchdog),
+			map[string]float64{"silent_ms": ms, "contended_ms": cms, "watchdog_ms": float64(r.cfg.Watchdog) / 1e6}
+	}) {
+		r.trip(protocol.StopWatchdog)
+	}
 }
