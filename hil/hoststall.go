@@ -10,6 +10,7 @@ package hil
 
 import (
 	"fmt"
+	"runtime"
 	"time"
 
 	"gaitrig/bridges/protocol"
@@ -76,6 +77,7 @@ type hostBusy struct {
 	tried    bool // start was called
 	watching bool
 	p0       time.Duration // pressure reading when the wait became slow
+	t0       time.Time     // when it was taken
 	total    time.Duration // pressure credited to the watchdog so far
 }
 
@@ -86,7 +88,7 @@ func (b *hostBusy) start(p *cpuPressure) {
 	}
 	b.tried = true
 	if v, ok := p.some(); ok {
-		b.watching, b.p0 = true, v
+		b.watching, b.p0, b.t0 = true, v, time.Now()
 	}
 }
 
@@ -99,7 +101,16 @@ func (b *hostBusy) credit(p *cpuPressure) time.Duration {
 	if !ok {
 		return 0
 	}
-	more := v - b.p0 - b.total
+	// The host-wide "some" figure is the per-CPU stall time averaged over
+	// the CPUs (Linux PSI, Documentation/accounting/psi.rst): one task
+	// waiting on one of N CPUs adds only 1/N of the time it waited. The
+	// firmware may be that task, so the credit is the figure times the
+	// CPU count, and never more than the time watched.
+	contended := (v - b.p0) * time.Duration(runtime.NumCPU())
+	if watched := time.Since(b.t0); contended > watched {
+		contended = watched
+	}
+	more := contended - b.total
 	if more <= 0 {
 		return 0
 	}
