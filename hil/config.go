@@ -180,6 +180,12 @@ type Config struct {
 	// Log, when set, receives plain sentences about the run that are not
 	// alarms (scheduling class granted or not, handshake).
 	Log func(line string)
+
+	// pressure, set by this package's tests only, replaces the host's CPU
+	// pressure file, so the watchdog's credit for a contended host can be
+	// tested without loading the host (and switched off for tests of a
+	// silent firmware, which must not depend on the host's load).
+	pressure *cpuPressure
 }
 
 // StepInfo is what OnStep receives: the step row and the run so far.

@@ -128,6 +128,22 @@ func (b *hostBusy) limit(watchdog time.Duration) time.Duration {
 	return max(20*watchdog, time.Second)
 }
 
+// hostBusy ends a lockstep run whose firmware stayed silent to the limit
+// while the host's CPUs were contended for all but less than a watchdog of
+// it: host_stall, outcome invalid (run it again on a quieter host). At
+// severity warn the scenario asks for the watchdog's verdict instead.
+func (r *runner) hostBusy(silent, contended time.Duration) {
+	ms, cms := float64(silent)/1e6, float64(contended)/1e6
+	if r.al.raise(AlarmHostStall, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
+		return fmt.Sprintf("no answer from the firmware for %.0f ms, %.0f ms of it with the host's CPUs contended: the host never left it a watchdog (%v) to answer in; not the firmware's fault, run it again", ms, cms, r.cfg.Watchdog),
+			map[string]float64{"silent_ms": ms, "contended_ms": cms, "watchdog_ms": float64(r.cfg.Watchdog) / 1e6}
+	}) {
+		r.invalid(fmt.Sprintf("host_stall: no answer for %.0f ms on a contended host", ms))
+		return
+	}
+	r.watchdogContended(silent, contended)
+}
+
 // watchdogContended trips the lockstep watchdog after silent with no
 // answer, contended of which the host's CPUs were contended. The alarm
 // says both, so a trip on a loaded host can be told from one on a quiet

@@ -2,6 +2,7 @@ package hil
 
 import (
 	"context"
+	"runtime"
 	"testing"
 	"time"
 
@@ -120,6 +121,7 @@ func TestLockstepHostStallDoesNotTripTheWatchdog(t *testing.T) {
 	t.Run("firmware gone", func(t *testing.T) {
 		m, s, cfg := timedDemo(t, 0.3)
 		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = quietHost
 		res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
 		if err != nil {
 			t.Fatal(err)
@@ -128,4 +130,53 @@ func TestLockstepHostStallDoesNotTripTheWatchdog(t *testing.T) {
 			t.Fatalf("outcome %s, alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Alarms)
 		}
 	})
+	// Half the time contended: the firmware still gets a watchdog of
+	// uncontended time before the limit, so a gone firmware trips the
+	// watchdog, later than on a quiet host.
+	t.Run("firmware gone on a half-busy host", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = busyHost(0.5)
+		res, dir, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 {
+			t.Fatalf("outcome %s (%s), alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+		wd := eventsOf(t, dir, AlarmWatchdog)
+		if len(wd) != 1 || wd[0].Values["contended_ms"] <= 0 || wd[0].Values["silent_ms"] < 30 {
+			t.Fatalf("watchdog events %+v: want the contended time named", wd)
+		}
+	})
+	// Contended all the time: the host never leaves the firmware a
+	// watchdog to answer in, so at the limit the run is invalid
+	// (host_stall), not a watchdog trip blamed on the firmware.
+	t.Run("silent on a saturated host", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = busyHost(1)
+		res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum := res.Summary
+		if sum.Outcome != record.Invalid || sum.Alarms[AlarmHostStall] != 1 || sum.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("outcome %s (%s), alarms %v: want invalid with host_stall", sum.Outcome, sum.Reason, sum.Alarms)
+		}
+	})
+}
+
+// quietHost is a CPU pressure source that never reports contention.
+var quietHost = &cpuPressure{fake: func() (time.Duration, bool) { return 0, true }}
+
+// busyHost reports the host's CPUs contended for the fraction share of the
+// time since it was made, as the host-wide PSI figure would (divided by
+// the CPU count: the loop multiplies it back).
+func busyHost(share float64) *cpuPressure {
+	t0 := time.Now()
+	n := float64(runtime.NumCPU())
+	return &cpuPressure{fake: func() (time.Duration, bool) {
+		return time.Duration(share * float64(time.Since(t0)) / n), true
+	}}
 }

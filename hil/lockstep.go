@@ -134,6 +134,13 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 				looks, final = 0, false
 				continue
 			}
+			if silent-busy.total < r.cfg.Watchdog {
+				// The limit passed and the host never left the firmware a
+				// watchdog's worth of CPU: whether it is gone cannot be
+				// told on this host. Not a verdict on the firmware.
+				r.hostBusy(silent, busy.total)
+				return false
+			}
 			r.watchdogContended(silent, busy.total)
 			return false
 		}

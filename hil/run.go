@@ -208,7 +208,10 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		if r.cfg.Clock == Wallclock {
 			r.wallclock(ctx)
 		} else {
-			r.pressure = openPressure()
+			r.pressure = r.cfg.pressure
+			if r.pressure == nil {
+				r.pressure = openPressure()
+			}
 			r.lockstep(ctx)
 			r.pressure.close()
 		}
