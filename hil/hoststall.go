@@ -155,7 +155,7 @@ func (r *runner) watchdogContended(silent, contended time.Duration) {
 	}
 	ms, cms := float64(silent)/1e6, float64(contended)/1e6
 	if r.al.raise(AlarmWatchdog, r.pt.tick, r.pt.s.T, -1, -1, func() (string, map[string]float64) {
-		return fmt.Sprintf("no valid command from the firmware for %.1f ms, %.1f ms of it with the host's CPUs contended (watchdog %v): e-stop", ms, cms, r.cfg.Watchdog),
+		return fmt.Sprintf("no valid command from the firmware for %.1f ms, %.1f ms of it with the host busy (CPUs contended or the rig itself stalled; watchdog %v): e-stop", ms, cms, r.cfg.Watchdog),
 			map[string]float64{"silent_ms": ms, "contended_ms": cms, "watchdog_ms": float64(r.cfg.Watchdog) / 1e6}
 	}) {
 		r.trip(protocol.StopWatchdog)

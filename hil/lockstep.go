@@ -79,6 +79,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
 	var busy hostBusy
+	var own time.Duration // the rig's own stalls during this wait
 	// When the answer is slow (past the first resend, or a quarter of the
 	// watchdog if that is sooner), start watching the host's CPU pressure;
 	// a reading costs a system call, too much for every tick.
@@ -113,6 +114,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// time is not the firmware's.
 			if late := time.Since(deadline); late > stallSlack {
 				wd = wd.Add(late)
+				own += late
 				resendAt = resendAt.Add(late)
 				r.hostStall(late)
 				continue // and look again: the answer may have come meanwhile
@@ -134,14 +136,14 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 				looks, final = 0, false
 				continue
 			}
-			if silent-busy.total < r.cfg.Watchdog {
+			if silent-busy.total-own < r.cfg.Watchdog {
 				// The limit passed and the host never left the firmware a
 				// watchdog's worth of CPU: whether it is gone cannot be
 				// told on this host. Not a verdict on the firmware.
 				r.hostBusy(silent, busy.total)
 				return false
 			}
-			r.watchdogContended(silent, busy.total)
+			r.watchdogContended(silent, busy.total+own)
 			return false
 		}
 		switch kind {
