@@ -3,6 +3,7 @@ module gaitrig
 go 1.26.8
 
 require (
+	github.com/HdrHistogram/hdrhistogram-go v1.1.2
 	github.com/creack/pty v1.1.24
 	github.com/eclipse/paho.mqtt.golang v1.5.1
 	github.com/goccy/go-yaml v1.19.2

@@ -12,7 +12,7 @@ package conformance
 import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
-	"gaitrig/rig"
+	"time"
 )
 
 // Expectations taken from docs/protocol.md as it stands. Each names the
@@ -25,12 +25,13 @@ const (
 	// rig's own handshake timeout, so a firmware that a run would accept
 	// passes here too.
 	GreetingTimeout = hil.DefaultHandshakeTimeout
-	// Watchdog is the time a firmware has to answer one state. The
-	// document gives no number a firmware can rely on (section 7 says
-	// "typically tens to hundreds of milliseconds"); the battery uses the
-	// lockstep floor of the rig (one second), the deadline a lockstep run
-	// holds every firmware to.
-	Watchdog = rig.LockstepWatchdogFloor
+	// Watchdog is the time a firmware has to answer one state in the
+	// battery, and the watchdog_us a version-2 firmware is sent. The
+	// battery checks that a firmware answers, not how fast (the round-trip
+	// figures report that), so it allows one second: a board on a slow
+	// line or a firmware process on a loaded bench host still answers
+	// inside it, and a firmware that never answers is still caught.
+	Watchdog = time.Second
 	// ResentAnswers is how many commands a resent state gets (section
 	// 6.1 item 2: "answers a repeated seq again", once per resend).
 	ResentAnswers = 1

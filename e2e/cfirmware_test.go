@@ -1424,18 +1424,16 @@ func TestCFirmwareStopsOnSIGTERM(t *testing.T) {
 // demoRun is the walking run of the end-to-end test: the demo walker of
 // plant.DemoParams (the walker the reference gains are tuned for) starting
 // from reference.DemoStart on level ground, in lockstep at 1 kHz, until 25
-// heel strikes or 40 simulated seconds. The watchdog and resend times are
-// widened from their defaults: on a shared two-core machine under -race a
-// pty round trip can stall for tens of milliseconds, and this test checks
-// walking and framing, not the watchdog (which hil tests on its own).
+// heel strikes or 40 simulated seconds, with the loop's default watchdog
+// and resend times: a lockstep watchdog counts only the firmware's answer
+// time (hil/lockstep.go), and the assertions count events (a resent state
+// may be answered or skipped), so a busy host changes nothing here.
 func demoRun(t *testing.T) (hil.Config, *plant.Model, plant.State) {
 	t.Helper()
 	noTrip := true
 	cfg := hil.Config{
-		Clock:    hil.Lockstep,
-		TickHz:   1000,
-		Watchdog: 2 * time.Second,
-		Resend:   200 * time.Millisecond,
+		Clock:  hil.Lockstep,
+		TickHz: 1000,
 		// The plant and sensor settings of the loop's own demo runs
 		// (hil/helpers_test.go): swing-foot scuffing ignored as in the
 		// simplest walking model, a 4096-count encoder, foot switches
@@ -1566,8 +1564,21 @@ func checkWalk(t *testing.T, label string, res hil.Result, dir string, conn brid
 	if n := counter(t, fwc, "unexpected"); n != 0 {
 		t.Errorf("the C firmware got %d frames of a type the rig should not send", n)
 	}
-	if got, want := counter(t, fwc, "commands"), counter(t, fwc, "states"); got != want || counter(t, fwc, "skipped") != 0 {
-		t.Errorf("the C firmware answered %d of %d states (%s skipped); in lockstep it must answer each", got, want, fwc["skipped"])
+	// Count events, not luck: on a busy host the rig may resend a state
+	// whose answer was late, and the C firmware, finding a newer copy
+	// waiting, counts the older one as skipped. So every state it received
+	// was answered or skipped, it skipped no more states than the rig
+	// resent, and it received exactly what the rig sent (a pty loses
+	// nothing).
+	answered, received, skipped := counter(t, fwc, "commands"), counter(t, fwc, "states"), counter(t, fwc, "skipped")
+	if answered+skipped != received {
+		t.Errorf("the C firmware answered %d and skipped %d of %d states received; every state is one or the other", answered, skipped, received)
+	}
+	if skipped > res.Link.Resends {
+		t.Errorf("the C firmware skipped %d states but the rig resent only %d; in lockstep only a resent state may be skipped", skipped, res.Link.Resends)
+	}
+	if received != res.Link.StatesSent {
+		t.Errorf("the C firmware received %d states, the rig sent %d", received, res.Link.StatesSent)
 	}
 	if code != 0 || fwc["end"] != "stop" {
 		t.Errorf("the C firmware must exit 0 on the rig's normal stop; exit %d, end %q", code, fwc["end"])
@@ -1585,8 +1596,8 @@ func checkWalk(t *testing.T, label string, res hil.Result, dir string, conn brid
 }
 
 // levelDemo is the level-demo scenario of the library, run as the command
-// line runs it (through rig), with the watchdog and resend times widened
-// for the reason given at demoRun.
+// line runs it (through rig), with the scenario's own watchdog and resend
+// times (see demoRun for why they need no widening).
 func levelDemo(t *testing.T, link string) (*scenarios.Scenario, rig.Options) {
 	t.Helper()
 	sc, err := scenarios.LoadBuiltin("level-demo")
@@ -1596,7 +1607,7 @@ func levelDemo(t *testing.T, link string) (*scenarios.Scenario, rig.Options) {
 	if sc.Clock.Mode != scenarios.ClockLockstep {
 		t.Fatalf("level-demo runs in clock mode %q; this test needs lockstep", sc.Clock.Mode)
 	}
-	return sc, rig.Options{Link: link, RunDir: filepath.Join(t.TempDir(), "run"), Watchdog: 2 * time.Second, Resend: 200 * time.Millisecond}
+	return sc, rig.Options{Link: link, RunDir: filepath.Join(t.TempDir(), "run")}
 }
 
 // TestCFirmwareWalksOverSerialPort is the bench set-up with a cable: socat

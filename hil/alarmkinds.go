@@ -39,6 +39,7 @@ const (
 	AlarmBeltEndNear      = "belt_end_near"      // the hip or a foot within the belt's end margin of a belt end
 	AlarmBeltEndPassed    = "belt_end_passed"    // the hip or a foot beyond an end of the belt: off the treadmill
 	AlarmHarnessCaught    = "harness_caught"     // the fall-arrest harness caught the walker (value: peak rope force, N)
+	AlarmHostStall        = "host_stall"         // the rig itself was not running (host load) for as long as the watchdog
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -50,7 +51,7 @@ var AlarmKinds = []string{
 	AlarmDeadlineMiss, AlarmFirmwareFault, AlarmVersionMismatch,
 	AlarmActuatorMismatch, AlarmFirmwareReset, AlarmFirmwareSafeMode,
 	AlarmBrokerRefusal,
-	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught,
+	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught, AlarmHostStall,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -89,6 +90,7 @@ var DefaultSeverity = map[string]Severity{
 	AlarmBeltEndNear:   SeverityWarn,
 	AlarmBeltEndPassed: SeverityTrip,
 	AlarmHarnessCaught: SeverityTrip,
+	AlarmHostStall:     SeverityTrip, // ends the run as invalid, not tripped: see runner.hostStall
 }
 
 // Criteria are the pass criteria of a run. A criterion left out (nil) is

@@ -116,10 +116,15 @@ type Config struct {
 	// does after contact events.
 	Physics plant.Options
 	// Watchdog is the longest time without a valid command before the
-	// watchdog alarm e-stops the run; default 50 ms. In lockstep it is
-	// measured on the real clock while the rig waits for a reply; a wait
-	// that ends more than 5 ms after its deadline is taken as a stall of
-	// the rig's own process, and that time is not counted.
+	// watchdog alarm e-stops the run; default 50 ms. It is charged only
+	// with time in which the firmware could have answered: stalls of the
+	// rig itself (a wait that ended more than 5 ms late; in wall-clock also
+	// time the loop's thread neither ran nor slept as asked) are not
+	// counted, and in wall-clock a stall as long as the watchdog ends the
+	// run as invalid (host_stall). In lockstep it counts from the moment
+	// the state went out, and once the answer is slow, time the host's CPUs
+	// were contended is not counted either, up to 20 watchdogs (at least
+	// 1 s) in all.
 	Watchdog time.Duration
 	// HandshakeTimeout is how long the rig waits for the firmware's
 	// greeting; default 5 s.
@@ -198,6 +203,12 @@ type Config struct {
 	// nil): keep it short and never block. A change is not logged by the
 	// loop; the caller that makes it records it.
 	AfterHeelStrike func(step int, strikeT float64, s *plant.State, in *plant.Input)
+
+	// pressure, set by this package's tests only, replaces the host's CPU
+	// pressure file, so the watchdog's credit for a contended host can be
+	// tested without loading the host (and switched off for tests of a
+	// silent firmware, which must not depend on the host's load).
+	pressure *cpuPressure
 }
 
 // StepInfo is what OnStep receives: the step row and the run so far.

@@ -18,7 +18,8 @@
 // plant state → send State(seq) → wait for the Command echoing seq
 // (commands with another seq are stale: dropped and counted; an unanswered
 // state is sent again after Config.Resend; no valid command for
-// Config.Watchdog of real time trips the watchdog) → check the command
+// Config.Watchdog of the firmware's answer time trips the watchdog, the
+// rig's own stalls and the host's CPU contention not counted) → check the command
 // (bad torques rejected with zero torque applied; limits clip and raise
 // torque_saturation) → step the plant one tick with the torque held
 // (zero-order hold) → record.

@@ -93,11 +93,15 @@ func (r *runner) finish(runErr error) (Result, error) {
 		MinNormalForceN:         r.pt.contact.minNormal,
 		MeanSpeedMPS:            r.steps.meanSpeed(),
 		DeadlineMisses:          int(tm.misses),
+		StaleCommands:           res.Link.StaleCommands,
+		LateTicks:               r.stalls.lateTicks,
+		HostStallS:              r.stalls.total.Seconds(),
+		LongestHostStallS:       r.stalls.longest.Seconds(),
 	}
 	if r.cfg.Clock == Wallclock {
 		l, j := res.Latency, res.Jitter
-		sum.LatencyUS = &record.Latency{P50: l.P50, P99: l.P99, Max: l.Max}
-		sum.JitterUS = &record.Latency{P50: j.P50, P99: j.P99, Max: j.Max}
+		sum.LatencyUS = latencyOf(l)
+		sum.JitterUS = latencyOf(j)
 	}
 	sum.Criteria = evaluate(&r.cfg.Criteria, &sum)
 	if sum.Outcome == "" {
@@ -128,6 +132,16 @@ func (r *runner) finish(runErr error) (Result, error) {
 		}
 	}
 	return res, errors.Join(errs...)
+}
+
+// latencyOf is the summary's form of a histogram: with no samples the
+// figures are NaN (null in summary.json, "–" on the terminal), since a
+// run that measured nothing did not measure zero.
+func latencyOf(s Summary) *record.Latency {
+	if s.Count == 0 {
+		return &record.Latency{P50: nan, P99: nan, Max: nan}
+	}
+	return &record.Latency{P50: s.P50, P99: s.P99, Max: s.Max, Count: s.Count}
 }
 
 func reasonSuffix(s string) string {
@@ -164,6 +178,8 @@ func evaluate(c *Criteria, s *record.Summary) []record.Criterion {
 		out = append(out, record.Criterion{Name: "min_normal_force_n", Value: s.MinNormalForceN, Limit: *c.MinNormalForceN, Pass: s.MinNormalForceN >= *c.MinNormalForceN})
 	}
 	if c.MaxLatencyP99US != nil && s.LatencyUS != nil {
+		// No samples: the value is NaN and the criterion is not met (a limit
+		// on a figure nobody measured cannot be said to hold).
 		out = append(out, record.Criterion{Name: "max_latency_p99_us", Value: s.LatencyUS.P99, Limit: *c.MaxLatencyP99US, Pass: s.LatencyUS.P99 <= *c.MaxLatencyP99US})
 	}
 	return out

@@ -5,6 +5,7 @@ package hil
 // and the ring that holds commands back until the tick they are due.
 
 import (
+	"errors"
 	"math"
 	"math/rand/v2"
 	"sync/atomic"
@@ -70,6 +71,11 @@ type faultLink struct {
 	delay      time.Duration      // latency drawn for the command Recv returned last (Recv's goroutine)
 	corruptErr bridges.FrameError // returned for every injected corruption, so none allocates
 
+	// interrupt, while not nil, cuts Recv short when it is closed: set
+	// around the handshake (the operator's SIGINT), on the loop's
+	// goroutine, before the wall-clock receiver starts.
+	interrupt <-chan struct{}
+
 	statesSent, droppedStates, droppedCommands, corrupted atomic.Uint64
 }
 
@@ -105,6 +111,45 @@ func (f *faultLink) Send(m *protocol.Message) error {
 // *bridges.FrameError, a delayed one comes with the delay field set. It
 // does not allocate.
 func (f *faultLink) Recv(deadline time.Time, m *protocol.Message) error {
+	if f.interrupt != nil {
+		return f.recvInterruptible(deadline, m)
+	}
+	return f.recv(deadline, m)
+}
+
+// interruptPoll is how often a wait that can be interrupted looks at the
+// interrupt: short enough that an operator's SIGINT ends a wait for the
+// greeting at once as a person sees it.
+const interruptPoll = 20 * time.Millisecond
+
+// errInterrupted ends a wait that the operator interrupted.
+var errInterrupted = errors.New("interrupted by the operator")
+
+// recvInterruptible is recv in slices of interruptPoll, returning
+// errInterrupted as soon as f.interrupt is closed. Only the handshake
+// uses it (the loop checks its context every tick and every wait itself);
+// a bridges.Conn has no way to cancel a Recv, so the wait is cut up.
+func (f *faultLink) recvInterruptible(deadline time.Time, m *protocol.Message) error {
+	for {
+		select {
+		case <-f.interrupt:
+			return errInterrupted
+		default:
+		}
+		sub := time.Now().Add(interruptPoll)
+		if deadline.Before(sub) {
+			sub = deadline
+		}
+		err := f.recv(sub, m)
+		if errors.Is(err, bridges.ErrTimeout) && sub.Before(deadline) {
+			continue
+		}
+		return err
+	}
+}
+
+// recv is Recv through the faults.
+func (f *faultLink) recv(deadline time.Time, m *protocol.Message) error {
 	for {
 		err := f.Conn.Recv(deadline, m)
 		f.delay = 0
@@ -191,20 +236,19 @@ func (q *commandRing) put(c *heldCommand) {
 }
 
 // takeDue removes every command released by now, in arrival order up to
-// the first that is not due yet. Each timed one's latency goes to lat; the
-// newest one answering a state that was sent (seq ≤ maxSeq) is copied to
-// out. It returns how many were taken (those pushed out since the last
+// the first that is not due yet. The newest one answering a state that
+// was sent (seq ≤ maxSeq) is copied to out; the others are superseded and
+// only counted, so their round trips stay out of the latency figures (a
+// stale answer to a resent or older state is not how long the firmware
+// takes to answer the state that was applied). It returns how many were taken (those pushed out since the last
 // call included) and whether out was set; a command for a sequence number
 // never sent is garbage and only counted.
-func (q *commandRing) takeDue(now int64, maxSeq uint32, out *heldCommand, lat *Histogram) (taken int, ok bool) {
+func (q *commandRing) takeDue(now int64, maxSeq uint32, out *heldCommand) (taken int, ok bool) {
 	taken, q.lost = q.lost, 0
 	for q.n > 0 {
 		it := &q.items[q.head]
 		if it.release > now {
 			break
-		}
-		if it.timed {
-			lat.Add(it.latency)
 		}
 		if it.seq <= maxSeq && (!ok || it.seq > out.seq) {
 			*out = *it

@@ -29,10 +29,9 @@ func demo(t testing.TB, steps int) (*plant.Model, plant.State, Config) {
 		Sensors:   SensorModel{CountsPerRev: 4096, ContactThreshold: 5},
 		Actuators: ActuatorModel{TorqueLimit: 60},
 		Seed:      7,
-		// The watchdog counts real time; 2 s keeps nominal runs from
-		// tripping when other test binaries load the 2-core host. Tests of
-		// the watchdog set their own.
-		Watchdog: 2 * time.Second,
+		// The watchdog is the loop's default (50 ms): in lockstep it counts
+		// only the firmware's answer time, so a loaded host does not trip
+		// it (TestLockstepHostStallDoesNotTripTheWatchdog).
 	}
 	m, err := plant.New(plant.DemoParams(), cfg.Physics)
 	if err != nil {

@@ -28,17 +28,16 @@ const finalLooks = 64
 
 // lockstep runs the ticks in virtual time.
 func (r *runner) lockstep(ctx context.Context) {
-	src := &lockstepSource{r: r, lastValid: time.Now()}
+	src := &lockstepSource{r: r}
 	r.ticks(ctx, virtualPacer{}, src)
 }
 
 // lockstepSource obtains each tick's command by waiting for the answer to
 // the tick's own state.
 type lockstepSource struct {
-	r         *runner
-	lastValid time.Time   // when the last valid command came, moved on by the rig's own stalls
-	held      commandRing // commands in flight under a latency fault, released by tick index
-	take      heldCommand // the command due this tick
+	r    *runner
+	held commandRing // commands in flight under a latency fault, released by tick index
+	take heldCommand // the command due this tick
 }
 
 // beforeState ends the run without a tick when link events ended it.
@@ -55,7 +54,7 @@ func (l *lockstepSource) afterState(ctx context.Context) bool {
 	if !l.exchange(ctx) {
 		return false
 	}
-	if _, ok := l.held.takeDue(r.pt.tick, r.sess.seq, &l.take, r.times.latency); ok {
+	if _, ok := l.held.takeDue(r.pt.tick, r.sess.seq, &l.take); ok {
 		r.takeCommand(&l.take.cmd)
 	}
 	return true
@@ -64,24 +63,45 @@ func (l *lockstepSource) afterState(ctx context.Context) bool {
 // exchange waits for the command that echoes the state's sequence number,
 // resending the state after cfg.Resend and tripping the watchdog after
 // cfg.Watchdog. It returns false when the run must end.
+//
+// Simulated time waits for the firmware, so the watchdog measures only the
+// firmware's answer time: it starts when the state has gone out (the rig's
+// own work on the tick is not the firmware's) and is moved on by every
+// stall of the rig seen while waiting (a wait that ended more than
+// stallSlack after its deadline: the host did not run the rig). A busy
+// host therefore never trips it, while a firmware that is gone still does
+// after cfg.Watchdog of listening.
 func (l *lockstepSource) exchange(ctx context.Context) bool {
 	r := l.r
 	ss := &r.sess
-	resendAt := time.Now().Add(r.cfg.Resend)
+	start := time.Now()
+	wd := start.Add(r.cfg.Watchdog) // moved on by the rig's stalls and the host's CPU pressure
+	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
+	var busy hostBusy
+	var own time.Duration // the rig's own stalls during this wait
+	// When the answer is slow (past the first resend, or a quarter of the
+	// watchdog if that is sooner), start watching the host's CPU pressure;
+	// a reading costs a system call, too much for every tick.
+	watchAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
 	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
 		}
 		now := time.Now()
-		wd := l.lastValid.Add(r.cfg.Watchdog)
 		// Past the watchdog, read what is already waiting, without
 		// waiting for more: after a stall of the rig itself the answer may
 		// be in the buffer, and that is not the firmware's fault.
 		final := !now.Before(wd)
+		if !busy.tried && !now.Before(watchAt) {
+			busy.start(r.pressure)
+		}
 		deadline := resendAt
 		if wd.Before(deadline) {
 			deadline = wd
+		}
+		if !busy.tried && watchAt.Before(deadline) && r.pressure != nil {
+			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
 		kind := classify(err, &ss.fe)
@@ -90,11 +110,13 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		}
 		if kind == linkTimeout && deadline.After(now) {
 			// A wait that ended far later than its deadline means the rig
-			// process itself was not running (an overloaded host). A
-			// lockstep run does not blame the firmware for that: the
-			// watchdog counts only the time the rig was listening.
+			// process itself was not running (an overloaded host): that
+			// time is not the firmware's.
 			if late := time.Since(deadline); late > stallSlack {
-				l.lastValid = l.lastValid.Add(late)
+				wd = wd.Add(late)
+				own += late
+				resendAt = resendAt.Add(late)
+				r.hostStall(late)
 				continue // and look again: the answer may have come meanwhile
 			}
 		}
@@ -103,7 +125,25 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		}
 		if (final && (kind == linkTimeout || looks > finalLooks)) ||
 			(kind == linkTimeout && !time.Now().Before(wd)) {
-			r.watchdog(time.Since(l.lastValid))
+			// Before blaming the firmware: time in which the host's CPUs
+			// were contended is time a firmware in another process may
+			// not have been run, so the watchdog does not count it either.
+			if more := busy.credit(r.pressure); more > 0 {
+				wd = wd.Add(more)
+			}
+			silent := time.Since(start)
+			if time.Now().Before(wd) && silent < busy.limit(r.cfg.Watchdog) {
+				looks, final = 0, false
+				continue
+			}
+			if silent-busy.total-own < r.cfg.Watchdog {
+				// The limit passed and the host never left the firmware a
+				// watchdog's worth of CPU: whether it is gone cannot be
+				// told on this host. Not a verdict on the firmware.
+				r.hostBusy(silent, busy.total)
+				return false
+			}
+			r.watchdogContended(silent, busy.total+own)
 			return false
 		}
 		switch kind {
@@ -162,7 +202,6 @@ func (l *lockstepSource) validReply() bool {
 		r.health.counts.StaleCommands++
 		return false
 	}
-	l.lastValid = time.Now()
 	r.validCommand()
 	k := int64(math.Round(r.sess.link.delay.Seconds() * r.cfg.TickHz))
 	l.held.put(&heldCommand{cmd: m.Command, seq: m.Seq, release: r.pt.tick + k})

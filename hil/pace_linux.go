@@ -25,3 +25,17 @@ func sleepThread(d time.Duration) {
 		ts = rem
 	}
 }
+
+// threadClocks reads the calling thread's CPU time and the boot-time clock,
+// in nanoseconds. Wall time that passed on the monotonic clock while the
+// thread neither ran nor slept of its own accord was taken from it by the
+// host; boot time that passed beyond the monotonic clock is time the whole
+// machine was suspended (the monotonic clock stops then, a board does not).
+// ok is false when either clock cannot be read.
+func threadClocks() (cpu, boot int64, ok bool) {
+	var c, b unix.Timespec
+	if unix.ClockGettime(unix.CLOCK_THREAD_CPUTIME_ID, &c) != nil || unix.ClockGettime(unix.CLOCK_BOOTTIME, &b) != nil {
+		return 0, 0, false
+	}
+	return c.Nano(), b.Nano(), true
+}

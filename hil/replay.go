@@ -31,6 +31,9 @@ type ReplayResult struct {
 
 // String says the result in a sentence.
 func (r ReplayResult) String() string {
+	if r.Ticks == 0 {
+		return "nothing replayed: the record holds no tick"
+	}
 	if r.Match {
 		return fmt.Sprintf("replay matches the record exactly over %d ticks", r.Ticks)
 	}

@@ -94,16 +94,22 @@ type runner struct {
 	n     int      // joints
 	names []string // joint names
 
-	sess   session       // session.go: the firmware session over the fault link
-	health linkHealth    // health.go: link counts, outages, watchdog, e-stop
-	pt     plantTick     // tick.go: the plant tick and its telemetry row
-	steps  stepTracker   // steps.go: per-step metrics between heel strikes
-	end    ending        // ending.go: outcome, reason and stop code, first wins
-	times  timing        // pace.go: round trip, jitter, deadline misses (wall-clock)
-	sens   *sensorBank   // sensors.go: what the board's sensors read
-	act    *actuatorBank // actuators.go: commanded to applied torque
-	al     *alarmer      // alarm.go: the alarm policy and the event log
-	tm     treadmill     // treadmill.go: belt speed and position, harness
+	sess   session     // session.go: the firmware session over the fault link
+	health linkHealth  // health.go: link counts, outages, watchdog, e-stop
+	pt     plantTick   // tick.go: the plant tick and its telemetry row
+	steps  stepTracker // steps.go: per-step metrics between heel strikes
+	end    ending      // ending.go: outcome, reason and stop code, first wins
+	times  timing      // pace.go: round trip, jitter, deadline misses (wall-clock)
+	stalls hostStalls  // hoststall.go: the rig's own lateness
+	// pressure is the host's CPU pressure (lockstep only; nil without
+	// PSI), read only while a firmware's answer is late. Wall-clock does
+	// not use it: on a shared host the pressure is high nearly all the
+	// time, and a firmware that is gone would then never be caught.
+	pressure *cpuPressure
+	sens     *sensorBank   // sensors.go: what the board's sensors read
+	act      *actuatorBank // actuators.go: commanded to applied torque
+	al       *alarmer      // alarm.go: the alarm policy and the event log
+	tm       treadmill     // treadmill.go: belt speed and position, harness
 
 	// fresh says whether this tick took a command from the firmware: set
 	// by the session, logged in the row, counted by MeasureLatency.
@@ -160,7 +166,13 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 	pt.rate1 = make([]float64, r.n)
 	pt.angleTmp = make([]float64, r.n)
 	pt.latUS = nan
+	// Only the wall clock times round trips and tick starts; lockstep keeps
+	// empty histograms and spares the buckets (a few hundred KB per run,
+	// which a suite of many runs would feel).
 	r.times.latency, r.times.jitter = new(Histogram), new(Histogram)
+	if c.Clock == Wallclock {
+		r.times.latency, r.times.jitter = NewHistogram(), NewHistogram()
+	}
 	for _, p := range c.Pushes {
 		ps := pushState{Push: p, start: p.At}
 		if p.AtStep > 0 {
@@ -185,12 +197,27 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 // run is the whole run: handshake, ticks, stop, summary.
 func (r *runner) run(ctx context.Context) (Result, error) {
 	r.started = time.Now()
+	// The wait for the greeting can take seconds (a board being plugged
+	// in); the operator's interrupt ends it at once, with outcome aborted.
+	r.sess.link.interrupt = ctx.Done()
 	err := r.handshake()
+	r.sess.link.interrupt = nil
+	if err != nil && errors.Is(err, errInterrupted) {
+		reason := "interrupted by the operator while waiting for the greeting (" + context.Cause(ctx).Error() + ")"
+		if r.end.end(record.Aborted, reason, protocol.StopAborted) {
+			r.al.info("aborted", 0, r.pt.s.T, reason, nil)
+		}
+	}
 	if err == nil {
 		if r.cfg.Clock == Wallclock {
 			r.wallclock(ctx)
 		} else {
+			r.pressure = r.cfg.pressure
+			if r.pressure == nil {
+				r.pressure = openPressure()
+			}
 			r.lockstep(ctx)
+			r.pressure.close()
 		}
 	}
 	if err != nil {

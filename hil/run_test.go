@@ -70,6 +70,7 @@ func TestWatchdogTripsOnSilentFirmware(t *testing.T) {
 	cfg.Watchdog = 30 * time.Millisecond
 	var got protocol.Stop
 	// Reads states, never answers.
+	cfg.pressure = quietHost // a silent firmware on a quiet host: the verdict must not depend on this host's load
 	silent := hooked(func(bridges.Conn, uint32, *protocol.Command) bool { return false }, &got)
 	res, dir, err, ferr := runWith(t, context.Background(), cfg, m, s, silent)
 	if err != nil || ferr != nil {
@@ -369,6 +370,7 @@ func TestEStopCoast(t *testing.T) {
 			cfg.Watchdog = 30 * time.Millisecond
 			cfg.EStop, cfg.EStopDamping, cfg.EStopCoast = tc.policy, tc.damping, 1.0
 			// Answers 200 states, then falls silent.
+			cfg.pressure = quietHost
 			silentAfter := hooked(func(_ bridges.Conn, seq uint32, _ *protocol.Command) bool { return seq <= 200 }, nil)
 			res, run, ticks := runAndRead(t, context.Background(), cfg, m, s, silentAfter)
 			// The watchdog trips at tick 200, whose state is the first left

@@ -43,6 +43,14 @@ type contactExtremes struct {
 
 func (c *contactExtremes) reset() { c.peakUtil, c.minNormal = 0, math.Inf(1) }
 
+// peak takes a utilization that is not the stance foot's rolling contact
+// (the other foot's heel strike or slip).
+func (c *contactExtremes) peak(u float64) {
+	if u > c.peakUtil || math.IsNaN(u) {
+		c.peakUtil = u
+	}
+}
+
 // add takes one tick's contact; a foot in the air counts for neither figure.
 func (c *contactExtremes) add(fc *plant.FootContact) {
 	if fc.Mode == plant.Free {

@@ -33,6 +33,11 @@ type plantTick struct {
 	commanded [protocol.MaxJoints]float64 // torques of the command in force, as sent
 	latUS     float64                     // round trip of this tick's command, µs (wall-clock; NaN without one)
 
+	// What the gait demanded of each foot's friction this tick (see
+	// demanded), whether the foot slid, and whether it struck the ground.
+	demand       [2]float64
+	slip, impact [2]bool
+
 	rate0, rate1, angleTmp []float64 // joint rates before and after the step, scratch angles
 }
 
@@ -101,9 +106,18 @@ func (r *runner) advance(wall time.Time) {
 			neg += p
 		}
 	}
-	fc := &pt.res.Contacts[pt.s.Stance]
-	pt.contact.add(fc)
-	r.steps.tick(pos, neg, fc)
+	r.demanded()
+	st := pt.s.Stance
+	fc := pt.res.Contacts[st] // a copy: the peak figures count a slip as at least 1
+	fc.Utilization = pt.peakDemand(st)
+	pt.contact.add(&fc)
+	r.steps.tick(pos, neg, &fc)
+	if o := 1 - st; pt.slip[o] || pt.impact[o] {
+		// The other foot struck or slid this tick (a heel strike reported
+		// on the foot that leaves the ground, double support).
+		pt.contact.peak(pt.peakDemand(o))
+		r.steps.contact.peak(pt.peakDemand(o))
+	}
 	r.treadmillCheck()
 	r.record(wall)
 	for i := 0; i < pt.res.NumEvents; i++ {
@@ -161,7 +175,7 @@ func (r *runner) record(wall time.Time) {
 	for i := 0; i < 2; i++ {
 		c := &pt.res.Contacts[i]
 		row.Feet[i] = record.Foot{Mode: int(c.Mode), NormalN: c.Normal, TangentialN: c.Tangential,
-			Utilization: c.Utilization, CoP: c.CoP, ContactX: c.Point[0]}
+			Utilization: pt.demand[i], Slip: pt.slip[i], CoP: c.CoP, ContactX: c.Point[0]}
 	}
 	row.Kinetic, row.Potential = r.m.Energy(&pt.s)
 	row.Fresh = r.fresh
@@ -170,6 +184,52 @@ func (r *runner) record(wall time.Time) {
 	if err := r.rec.Tick(row); err != nil && !r.end.set() {
 		r.end.end(record.Aborted, "telemetry could not be written: "+err.Error(), protocol.StopAborted)
 	}
+}
+
+// demanded works out the friction the gait asked of each foot this tick.
+// A rolling foot asks |F_t|/(μ_s N), which the plant reports. A heel strike
+// asks its impulse ratio |Λ_t|/Λ_n of μ_s, which the plant reports only in
+// the event: an impact slip is over in no time, so the force of the tick
+// after it never shows it. A sliding foot is held to μ_k N, which reads
+// below 1 and hides the slip: it is flagged instead, and the peak figures
+// count it as at least 1.
+func (r *runner) demanded() {
+	pt := &r.pt
+	for i := 0; i < 2; i++ {
+		c := &pt.res.Contacts[i]
+		pt.demand[i] = c.Utilization
+		pt.slip[i] = c.Mode == plant.Sliding
+		pt.impact[i] = false
+	}
+	for k := 0; k < pt.res.NumEvents; k++ {
+		e := &pt.res.Events[k]
+		if e.Foot < 0 || e.Foot > 1 {
+			continue
+		}
+		switch e.Kind {
+		case plant.HeelStrike, plant.ImpactSlip:
+			pt.impact[e.Foot] = true
+			if e.Limit > 0 {
+				pt.demand[e.Foot] = math.Max(pt.demand[e.Foot], e.Value/e.Limit)
+			}
+			if e.Kind == plant.ImpactSlip {
+				pt.slip[e.Foot] = true
+			}
+		case plant.FrictionLimit:
+			pt.demand[e.Foot] = math.Max(pt.demand[e.Foot], e.Value)
+			pt.slip[e.Foot] = true
+		}
+	}
+}
+
+// peakDemand is foot i's demand for the peak figures: a slip counts as at
+// least 1, whatever force the sliding foot was held to.
+func (pt *plantTick) peakDemand(i int) float64 {
+	d := pt.demand[i]
+	if pt.slip[i] && !(d >= 1) && !math.IsNaN(d) {
+		d = 1
+	}
+	return d
 }
 
 // alarmKind maps a plant event to its alarm kind; heel strikes, toe-offs and

@@ -47,13 +47,20 @@ func (r *runner) wallclock(ctx context.Context) {
 	rc := &receiver{r: r, base: time.Now(), done: make(chan struct{}), badReasons: make(chan string, badReasonQueue)}
 	go rc.loop()
 	defer func() {
-		rc.stop.Store(true)
-		<-rc.done
+		if rc.stop.CompareAndSwap(false, true) { // a panic between here and the end of ticks
+			<-rc.done
+		}
 	}()
 	period := time.Duration(float64(time.Second) / r.cfg.TickHz)
 	p := &realPacer{start: rc.base.Add(period), period: period, jitter: tm.jitter} // first tick one period after the receiver started
-	src := &wallclockSource{r: r, rc: rc, lastValid: p.start}
+	src := &wallclockSource{r: r, rc: rc, p: p, lastValid: p.start}
 	r.ticks(ctx, p, src)
+	// Frames the receiver rejected after the last tick looked: counted,
+	// so the bad-frame count matches what the link saw (no alarm: the run
+	// is over). The receiver has stopped once done is closed.
+	rc.stop.Store(true)
+	<-rc.done
+	r.health.counts.BadFrames += rc.badFrames.Load() - src.lastBad
 }
 
 // mailbox carries commands from the receiver goroutine to the loop: a
@@ -71,9 +78,9 @@ func (b *mailbox) put(c *heldCommand) {
 }
 
 // takeDue is commandRing.takeDue under the lock.
-func (b *mailbox) takeDue(now int64, maxSeq uint32, out *heldCommand, lat *Histogram) (taken int, ok bool) {
+func (b *mailbox) takeDue(now int64, maxSeq uint32, out *heldCommand) (taken int, ok bool) {
 	b.mu.Lock()
-	taken, ok = b.ring.takeDue(now, maxSeq, out, lat)
+	taken, ok = b.ring.takeDue(now, maxSeq, out)
 	b.mu.Unlock()
 	return taken, ok
 }
@@ -93,8 +100,9 @@ type receiver struct {
 	badFrames atomic.Uint64
 	lastBad   atomic.Pointer[string]
 	closed    atomic.Bool
-	down      atomic.Bool // Recv reported the peer gone, or an error the link does not classify
-	greeted   atomic.Bool // a greeting came after the handshake
+	down      atomic.Bool  // Recv reported the peer gone, or an error the link does not classify
+	greeted   atomic.Bool  // a greeting came after the handshake
+	stalled   atomic.Int64 // ns the receiver was not running (a Recv that returned long after its deadline), not yet taken by the loop
 	fwStop    atomic.Pointer[protocol.Stop]
 
 	// badReasons carries the reason of each rejected frame to the loop, so
@@ -114,11 +122,17 @@ func (rc *receiver) loop() {
 	var fe *bridges.FrameError
 	link := rc.r.sess.link
 	for !rc.stop.Load() {
-		err := link.Recv(time.Now().Add(receivePoll), &m)
+		deadline := time.Now().Add(receivePoll)
+		err := link.Recv(deadline, &m)
 		now := time.Since(rc.base)
 		switch classify(err, &fe) {
 		case linkOK:
 		case linkTimeout:
+			// Woken long after the deadline: the host did not run the
+			// receiver, so answers could not be read meanwhile.
+			if late := time.Since(deadline); late > stallSlack {
+				rc.stalled.Add(int64(late))
+			}
 			continue
 		case linkDisconnected:
 			rc.down.Store(true) // the loop raises link_lost if the link has no events of its own
@@ -168,7 +182,8 @@ func (rc *receiver) loop() {
 type wallclockSource struct {
 	r          *runner
 	rc         *receiver
-	lastValid  time.Time // tick start at which the last valid command was applied
+	p          *realPacer
+	lastValid  time.Time // tick start at which the last valid command was applied, moved on by the rig's stalls
 	lastBad    uint64    // receiver's bad-frame count already reported
 	appliedSeq uint32    // sequence number of the newest command applied
 	take       heldCommand
@@ -178,6 +193,21 @@ type wallclockSource struct {
 // command and checks the watchdog.
 func (w *wallclockSource) beforeState(now time.Time) bool {
 	r, rc := w.r, w.rc
+	if w.p.late {
+		r.stalls.lateTicks++
+	}
+	// The longer of the loop's and the receiver's stall since the last
+	// tick (a stall of the whole process shows in both): time in which the
+	// firmware's answer could not be taken, so the watchdog does not
+	// count it.
+	stall := max(w.p.stall, time.Duration(rc.stalled.Swap(0)))
+	if stall > 0 {
+		w.lastValid = w.lastValid.Add(stall)
+		if w.lastValid.After(now) {
+			w.lastValid = now
+		}
+		r.hostStall(stall)
+	}
 	if n := rc.badFrames.Load(); n != w.lastBad {
 		// Each queued reason is one bad frame with its kind; frames whose
 		// reason did not fit the queue count under the latest reason.
@@ -214,12 +244,15 @@ func (w *wallclockSource) beforeState(now time.Time) bool {
 		r.linkClosed()
 		return false
 	}
-	if k, ok := rc.box.takeDue(int64(now.Sub(rc.base)), r.sess.seq, &w.take, r.times.latency); k > 0 {
+	if k, ok := rc.box.takeDue(int64(now.Sub(rc.base)), r.sess.seq, &w.take); k > 0 {
 		if ok && w.take.seq > w.appliedSeq {
 			w.appliedSeq = w.take.seq
 			w.lastValid = now
 			r.validCommand()
 			if w.take.timed {
+				// The summary's round trip is exactly the rows' latency_us:
+				// the applied command only, never a superseded one.
+				r.times.latency.Add(w.take.latency)
 				r.pt.latUS = float64(w.take.latency) / float64(time.Microsecond)
 			}
 			r.takeCommand(&w.take.cmd)

@@ -30,8 +30,8 @@ func TestWallclockInproc1kHz(t *testing.T) {
 	if sum.Outcome == record.Tripped || sum.Outcome == record.Aborted {
 		t.Fatalf("outcome %s (%s)", sum.Outcome, sum.Reason)
 	}
-	if res.Latency.Count < 400 || sum.LatencyUS == nil || sum.JitterUS == nil {
-		t.Fatalf("latency recorded for %d commands; summary latency %v jitter %v", res.Latency.Count, sum.LatencyUS, sum.JitterUS)
+	if sum.LatencyUS == nil || sum.JitterUS == nil || sum.JitterUS.Count != 500 {
+		t.Fatalf("summary latency %v jitter %v; want both, the jitter of all 500 ticks", sum.LatencyUS, sum.JitterUS)
 	}
 	if res.Realtime == "" {
 		t.Error("no word on the scheduling class")
@@ -39,14 +39,22 @@ func TestWallclockInproc1kHz(t *testing.T) {
 	if len(ticks) != 500 {
 		t.Fatalf("%d telemetry rows, want 500", len(ticks))
 	}
-	fresh := 0
+	// Count events, not speed: how many ticks got a fresh command depends
+	// on the host, but every timed command is one row's latency.
+	fresh, timed := 0, uint64(0)
 	for _, row := range ticks {
 		if row.Fresh {
 			fresh++
 		}
+		if !math.IsNaN(row.LatencyUS) {
+			timed++
+		}
 		if row.WallS <= 0 {
 			t.Fatalf("tick %d has wall time %g", row.Index, row.WallS)
 		}
+	}
+	if timed == 0 || res.Latency.Count != timed {
+		t.Fatalf("latency recorded for %d commands, %d rows carry one", res.Latency.Count, timed)
 	}
 	t.Logf("%s; %d of 500 ticks had a fresh command; latency p50 %.0f µs p99 %.0f µs max %.0f µs; jitter p50 %.0f p99 %.0f max %.0f µs; %d deadline misses",
 		res.Realtime, fresh, sum.LatencyUS.P50, sum.LatencyUS.P99, sum.LatencyUS.Max, sum.JitterUS.P50, sum.JitterUS.P99, sum.JitterUS.Max, sum.DeadlineMisses)
@@ -108,8 +116,7 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 		b.put(&heldCommand{seq: i})
 	}
 	var out heldCommand
-	var lat Histogram
-	taken, ok := b.takeDue(0, sent, &out, &lat)
+	taken, ok := b.takeDue(0, sent, &out)
 	if !ok || out.seq != sent {
 		t.Fatalf("applied seq %d (ok %v), want the newest, %d", out.seq, ok, sent)
 	}
@@ -117,7 +124,7 @@ func TestMailboxCountsOverwrittenCommands(t *testing.T) {
 		t.Fatalf("took %d commands, want all %d that arrived", taken, sent)
 	}
 	b.put(&heldCommand{seq: sent + 1})
-	if taken, _ := b.takeDue(0, sent+1, &out, &lat); taken != 1 {
+	if taken, _ := b.takeDue(0, sent+1, &out); taken != 1 {
 		t.Fatalf("next take counted %d, want 1: overwritten commands are reported once", taken)
 	}
 }
@@ -176,6 +183,7 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	cfg.Clock = Wallclock
 	cfg.TickHz = 2000
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
+	cfg.Watchdog = 4 * delay // the delay itself is silence the watchdog must allow
 	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
 	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
 		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)

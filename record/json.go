@@ -65,23 +65,24 @@ func (x *noContact) UnmarshalJSON(b []byte) error {
 }
 
 type latencyJSON struct {
-	P50 num `json:"p50"`
-	P99 num `json:"p99"`
-	Max num `json:"max"`
+	P50   num    `json:"p50"`
+	P99   num    `json:"p99"`
+	Max   num    `json:"max"`
+	Count uint64 `json:"count,omitempty"`
 }
 
 func (l *Latency) toJSON() *latencyJSON {
 	if l == nil {
 		return nil
 	}
-	return &latencyJSON{num(l.P50), num(l.P99), num(l.Max)}
+	return &latencyJSON{num(l.P50), num(l.P99), num(l.Max), l.Count}
 }
 
 func (l *latencyJSON) fromJSON() *Latency {
 	if l == nil {
 		return nil
 	}
-	return &Latency{float64(l.P50), float64(l.P99), float64(l.Max)}
+	return &Latency{float64(l.P50), float64(l.P99), float64(l.Max), l.Count}
 }
 
 type criterionJSON struct {
@@ -106,6 +107,10 @@ type summaryJSON struct {
 	LatencyUS               *latencyJSON    `json:"latency_us"`
 	JitterUS                *latencyJSON    `json:"jitter_us,omitempty"`
 	DeadlineMisses          int             `json:"deadline_misses"`
+	StaleCommands           uint64          `json:"stale_commands"`
+	LateTicks               int             `json:"late_ticks"`
+	HostStallS              num             `json:"host_stall_s"`
+	LongestHostStallS       num             `json:"longest_host_stall_s"`
 	Criteria                []criterionJSON `json:"criteria"`
 	Caution                 string          `json:"caution"`
 	ToolVersion             string          `json:"tool_version"`
@@ -123,6 +128,8 @@ func (s Summary) MarshalJSON() ([]byte, error) {
 		MeanSpeedMPS:            num(s.MeanSpeedMPS),
 		LatencyUS:               s.LatencyUS.toJSON(), JitterUS: s.JitterUS.toJSON(),
 		DeadlineMisses: s.DeadlineMisses, Caution: s.Caution, ToolVersion: s.ToolVersion,
+		StaleCommands: s.StaleCommands, LateTicks: s.LateTicks,
+		HostStallS: num(s.HostStallS), LongestHostStallS: num(s.LongestHostStallS),
 		Criteria: make([]criterionJSON, len(s.Criteria)),
 	}
 	if j.Alarms == nil {
@@ -148,6 +155,8 @@ func (s *Summary) UnmarshalJSON(b []byte) error {
 		MeanSpeedMPS:            float64(j.MeanSpeedMPS),
 		LatencyUS:               j.LatencyUS.fromJSON(), JitterUS: j.JitterUS.fromJSON(),
 		DeadlineMisses: j.DeadlineMisses, Caution: j.Caution, ToolVersion: j.ToolVersion,
+		StaleCommands: j.StaleCommands, LateTicks: j.LateTicks,
+		HostStallS: float64(j.HostStallS), LongestHostStallS: float64(j.LongestHostStallS),
 	}
 	for _, c := range j.Criteria {
 		s.Criteria = append(s.Criteria, Criterion{c.Name, c.Pass, float64(c.Value), float64(c.Limit)})

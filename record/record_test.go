@@ -67,7 +67,7 @@ func randomTick(r *rand.Rand, i int64) Tick {
 	}
 	for k := 0; k < 2; k++ {
 		t.Angle[k], t.Rate[k], t.Commanded[k], t.Applied[k] = f(), f(), f(), f()
-		t.Feet[k] = Foot{Mode: r.IntN(3), NormalN: f(), TangentialN: f(), Utilization: f(), CoP: f(), ContactX: f()}
+		t.Feet[k] = Foot{Mode: r.IntN(3), NormalN: f(), TangentialN: f(), Utilization: f(), Slip: r.IntN(2) == 1, CoP: f(), ContactX: f()}
 	}
 	return t
 }
@@ -139,6 +139,11 @@ func expectedRow(t *Tick, nq int, joints []string) (names []string, vals []float
 		add("normal_"+f+"_n", ft.NormalN)
 		add("tangential_"+f+"_n", ft.TangentialN)
 		add("utilization_"+f, ft.Utilization)
+		slip := 0.0
+		if ft.Slip {
+			slip = 1
+		}
+		add("slip_"+f, slip)
 		add("cop_"+f+"_m", ft.CoP)
 		add("contact_x_"+f+"_m", ft.ContactX)
 	}

@@ -19,7 +19,8 @@ type Foot struct {
 	Mode        int     // contact mode code; Manifest.FootModes names it
 	NormalN     float64 // normal ground force, N
 	TangentialN float64 // tangential (friction) ground force, N
-	Utilization float64 // |F_t| / (μ_s N), 0 when not in contact
+	Utilization float64 // friction the gait demanded: |F_t| / (μ_s N) of a rolling foot, the impulse ratio / μ_s at an impact; 0 when not in contact
+	Slip        bool    // the foot slid this tick: sliding contact, an impact outside the friction cone or a friction limit crossed
 	CoP         float64 // centre of pressure along the foot arc, m from the arc's lowest point with the leg vertical
 	ContactX    float64 // x of the contact point, m
 }
@@ -218,8 +219,10 @@ func tickFields(numQ int, joints []string) table[Tick] {
 			func(t *Tick) float64 { return t.Feet[k].NormalN }, func(t *Tick, v float64) { t.Feet[k].NormalN = v })
 		c.real("tangential_"+f+"_n", "N", f+"_tangential_n", "tangential (friction) ground force on the "+f+" foot, along the ground",
 			func(t *Tick) float64 { return t.Feet[k].TangentialN }, func(t *Tick, v float64) { t.Feet[k].TangentialN = v })
-		c.real("utilization_"+f, "", f+"_utilization", "friction utilization |F_t| / (μ_s N) of the "+f+" foot; 0 when not in contact, +Inf when it would need friction with N ≤ 0",
+		c.real("utilization_"+f, "", f+"_utilization", "friction the gait demanded of the "+f+" foot: |F_t| / (μ_s N) while it rolls, and at a tick with its heel strike the larger of that and the impulse ratio |Λ_t| / Λ_n over μ_s; a sliding foot shows μ_k / μ_s (see slip_"+f+"); 0 when not in contact, +Inf when it would need friction with N ≤ 0",
 			func(t *Tick) float64 { return t.Feet[k].Utilization }, func(t *Tick, v float64) { t.Feet[k].Utilization = v })
+		c.whole(Flag, "slip_"+f, "", "1 when the "+f+" foot slid this tick (sliding contact, a heel strike outside the friction cone, or the friction limit crossed), for shading slip episodes; the summary's peak utilization counts such a tick as at least 1",
+			func(t *Tick) int64 { return bit(t.Feet[k].Slip) }, func(t *Tick, v int64) { t.Feet[k].Slip = v != 0 })
 		c.real("cop_"+f+"_m", "m", f+"_cop_m", "centre of pressure of the "+f+" foot: arc length from the point under the leg axis, positive toward the toe",
 			func(t *Tick) float64 { return t.Feet[k].CoP }, func(t *Tick, v float64) { t.Feet[k].CoP = v })
 		c.real("contact_x_"+f+"_m", "m", f+"_contact_x_m", "x of the terrain point closest to the "+f+" foot arc",

@@ -117,13 +117,20 @@ const (
 	Fail    Outcome = "fail"    // a criterion not met
 	Tripped Outcome = "tripped" // an alarm with severity trip e-stopped the run
 	Aborted Outcome = "aborted" // stopped by the user (SIGINT, SIGTERM) or an error
+	// Invalid: the host, not the firmware, spoiled the run (the loop was
+	// stalled past the watchdog, host_stall): it says nothing about the
+	// build and should be run again.
+	Invalid Outcome = "invalid"
 )
 
-// Latency is a distribution summary in microseconds.
+// Latency is a distribution summary in microseconds. With no samples
+// (Count 0) the figures are NaN, written as null: nothing was measured,
+// which is not a latency of zero.
 type Latency struct {
-	P50 float64 `json:"p50"` // median
-	P99 float64 `json:"p99"` // 99th percentile
-	Max float64 `json:"max"` // largest seen
+	P50   float64 `json:"p50"`             // median
+	P99   float64 `json:"p99"`             // 99th percentile
+	Max   float64 `json:"max"`             // largest seen
+	Count uint64  `json:"count,omitempty"` // samples the figures are made of (absent in folders written before it was added)
 }
 
 // Criterion is one pass criterion and how the run fared against it.
@@ -137,7 +144,7 @@ type Criterion struct {
 // Summary is the run's result, written last to summary.json. Non-finite
 // numbers are written as null and read back as NaN.
 type Summary struct {
-	Outcome                 Outcome        `json:"outcome"`                   // pass, fail, tripped or aborted
+	Outcome                 Outcome        `json:"outcome"`                   // pass, fail, tripped, aborted or invalid
 	Reason                  string         `json:"reason,omitempty"`          // why it failed, tripped or was aborted
 	Steps                   int            `json:"steps"`                     // heel strikes completed
 	Ticks                   int64          `json:"ticks"`                     // ticks run
@@ -150,6 +157,10 @@ type Summary struct {
 	LatencyUS               *Latency       `json:"latency_us"`                // command round trip, µs, in wall-clock mode; null in lockstep
 	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, µs, in wall-clock mode; left out in lockstep
 	DeadlineMisses          int            `json:"deadline_misses"`           // wall-clock ticks that started late
+	StaleCommands           uint64         `json:"stale_commands"`            // commands superseded before they were applied (answers to resent or older states, floods): counted, never in the latency figures
+	LateTicks               int            `json:"late_ticks"`                // wall-clock ticks that started a whole period or more after they were due
+	HostStallS              float64        `json:"host_stall_s"`              // time the loop itself was not running (the host stalled it), s, summed over stalls longer than the detection threshold
+	LongestHostStallS       float64        `json:"longest_host_stall_s"`      // the longest such stall, s
 	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
 	Caution                 string         `json:"caution"`                   // the safety caution
 	ToolVersion             string         `json:"tool_version"`              // gaitrig version

@@ -72,7 +72,8 @@ func TestConfigErrorKeepsTextAndChain(t *testing.T) {
 }
 
 // The overrides reach the loop configuration and the manifest; the
-// lockstep watchdog floor applies unless a watchdog is asked for.
+// scenario's watchdog holds in lockstep too (there is no floor: the loop
+// never charges the rig's own stalls to the firmware).
 func TestPrepareAppliesOverrides(t *testing.T) {
 	s, err := scenarios.LoadBuiltin("level-demo")
 	if err != nil {
@@ -86,7 +87,7 @@ func TestPrepareAppliesOverrides(t *testing.T) {
 		t.Fatal(err)
 	}
 	c := p.Config
-	if c.Clock != hil.Lockstep || c.MaxSteps != 3 || c.Duration != 7 || c.TickHz != 500 || c.Watchdog < LockstepWatchdogFloor {
+	if c.Clock != hil.Lockstep || c.MaxSteps != 3 || c.Duration != 7 || c.TickHz != 500 || c.Watchdog != time.Duration(s.WatchdogMS*float64(time.Millisecond)) {
 		t.Errorf("config after overrides: clock %s, %d steps, %g s, %g Hz, watchdog %v", c.Clock, c.MaxSteps, c.Duration, c.TickHz, c.Watchdog)
 	}
 	if len(logged) == 0 || !strings.HasPrefix(logged[0], "link: builtin") {

@@ -1,6 +1,7 @@
 package rig
 
 import (
+	"errors"
 	"fmt"
 	"math"
 
@@ -76,5 +77,28 @@ func replay(dir string) (hil.ReplayResult, error) {
 	}
 	res := p.Result()
 	res.Truncated = tr.Truncated()
+	if res.Ticks == 0 {
+		// Nothing compared is not a match: a run that never started (no
+		// greeting, refused at the handshake, interrupted before its first
+		// tick) has nothing to replay.
+		res.Match = false
+		why := "the run recorded no tick"
+		if run.Summary != nil {
+			why += fmt.Sprintf(" (outcome %s%s)", run.Summary.Outcome, reasonOf(run.Summary.Reason))
+		}
+		return res, fmt.Errorf("replay %s: %w: %s", dir, ErrNothingToReplay, why)
+	}
 	return res, nil
+}
+
+// ErrNothingToReplay is wrapped by Replay's error for a run folder with no
+// telemetry rows: there is nothing to compare, so it is neither a match
+// nor a divergence.
+var ErrNothingToReplay = errors.New("nothing to replay")
+
+func reasonOf(r string) string {
+	if r == "" {
+		return ""
+	}
+	return ": " + r
 }

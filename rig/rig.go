@@ -51,8 +51,7 @@ type Options struct {
 
 	// TickHz > 0 overrides the scenario's tick rate.
 	TickHz float64
-	// Watchdog > 0 overrides the scenario's watchdog (and the lockstep
-	// floor, see LockstepWatchdogFloor).
+	// Watchdog > 0 overrides the scenario's watchdog.
 	Watchdog time.Duration
 	// Resend > 0 overrides the lockstep resend interval (hil.DefaultResend):
 	// how long the rig waits for an answer before it sends the same state
@@ -84,15 +83,6 @@ type Result struct {
 	// latency and jitter figures).
 	Loop hil.Result
 }
-
-// LockstepWatchdogFloor is the shortest watchdog of a lockstep run. In
-// lockstep simulated time stands still while the rig waits, so a slow reply
-// costs nothing physical; the watchdog there only has to tell a dead
-// firmware from a busy host. A loaded CI machine stalls a process for tens
-// of milliseconds, and a 50 ms watchdog would trip on that and make lockstep
-// results depend on the machine. One second tells the two apart (our
-// choice). Wall-clock runs keep the scenario's watchdog as written.
-const LockstepWatchdogFloor = time.Second
 
 // Prepared is a run ready to start: configuration, model, initial state,
 // an open link and a created run folder. Call Run once, then Close (Close
@@ -243,11 +233,11 @@ func applyOverrides(cfg *hil.Config, o Options) error {
 	if o.RealtimePriority != 0 {
 		cfg.RealtimePriority = o.RealtimePriority
 	}
-	switch {
-	case o.Watchdog > 0:
+	// No floor under a lockstep watchdog: the loop charges it only with
+	// the firmware's answer time, never with the rig's own stalls
+	// (hil/lockstep.go), so the scenario's value holds on a busy host.
+	if o.Watchdog > 0 {
 		cfg.Watchdog = o.Watchdog
-	case cfg.Clock == hil.Lockstep && cfg.Watchdog < LockstepWatchdogFloor:
-		cfg.Watchdog = LockstepWatchdogFloor
 	}
 	c, err := cfg.WithDefaults()
 	if err != nil {

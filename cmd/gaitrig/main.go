@@ -5,19 +5,24 @@
 // report.
 //
 // Exit codes: 0 pass, 1 a criterion failed or the run tripped (or a
-// regression in a suite, NO-GO in preflight), 2 bad usage or configuration.
+// regression in a suite, NO-GO in preflight), 2 bad usage or configuration,
+// 3 the run is invalid (the host stalled it: run it again), 130 a second
+// interrupt ended the process.
 //
 // Every sub-command prints its own help with --help.
 package main
 
 import (
+	"context"
 	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"os"
+	"os/signal"
 	"sort"
 	"strings"
+	"syscall"
 	"unicode/utf8"
 
 	"gaitrig/record"
@@ -29,7 +34,46 @@ const (
 	exitPass   = 0 // every criterion passed
 	exitFail   = 1 // a criterion failed, the run tripped, a regression, NO-GO
 	exitConfig = 2 // bad usage, bad scenario, link could not be opened
+	// exitInvalid: the host, not the firmware, spoiled the run (outcome
+	// invalid, alarm host_stall); a nightly rig retries it.
+	exitInvalid = 3
+	// exitKilled: a second SIGINT or SIGTERM ended the process at once
+	// (128 + SIGINT, as a shell reports a process an interrupt ended).
+	exitKilled = 130
 )
+
+// interruptContext is cancelled by the first SIGINT or SIGTERM, so the run
+// ends at its next tick (or at once while it waits for the greeting) with
+// outcome aborted and a complete run folder. Some waits cannot be cut
+// short (a broker that accepts the connection and never answers); a
+// second signal therefore ends the process at once, as an operator who
+// presses Ctrl-C twice expects.
+func interruptContext(stderr io.Writer) (context.Context, func()) {
+	ctx, cancel := context.WithCancelCause(context.Background())
+	sig := make(chan os.Signal, 2)
+	signal.Notify(sig, os.Interrupt, syscall.SIGTERM)
+	done := make(chan struct{})
+	go func() {
+		select {
+		case s := <-sig:
+			fmt.Fprintf(stderr, "gaitrig: %v: ending the run; interrupt again to end the process now\n", s)
+			cancel(fmt.Errorf("%v", s))
+		case <-done:
+			return
+		}
+		select {
+		case s := <-sig:
+			fmt.Fprintf(stderr, "gaitrig: second %v: ending the process now; the run folder may be incomplete\n", s)
+			os.Exit(exitKilled)
+		case <-done:
+		}
+	}()
+	return ctx, func() {
+		signal.Stop(sig)
+		close(done)
+		cancel(context.Canceled)
+	}
+}
 
 // command is one sub-command: its one-line summary and its entry point.
 type command struct {
@@ -102,7 +146,8 @@ func printUsage(w io.Writer) {
 	for _, n := range names {
 		fmt.Fprintf(w, "  %-*s  %s\n", width, n, commands[n].summary)
 	}
-	fmt.Fprintln(w, "\nExit codes: 0 pass, 1 a criterion failed or the run tripped, 2 bad usage or configuration.")
+	fmt.Fprintln(w, "\nExit codes: 0 pass, 1 a criterion failed or the run tripped, 2 bad usage or configuration,")
+	fmt.Fprintln(w, "3 invalid: the host stalled the run (not the firmware's fault; run it again).")
 	fmt.Fprintln(w, "\n"+safetyCaution)
 }
 

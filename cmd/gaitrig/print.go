@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -44,8 +45,11 @@ func lineLogger(w io.Writer) func(string) {
 
 // outcomeCode is the exit code for a run outcome.
 func outcomeCode(o record.Outcome) int {
-	if o == record.Pass {
+	switch o {
+	case record.Pass:
 		return exitPass
+	case record.Invalid:
+		return exitInvalid
 	}
 	return exitFail
 }
@@ -60,8 +64,16 @@ func printSummary(w io.Writer, r rig.Result) {
 	fmt.Fprintf(w, "\nsteps %d, simulated %.2f s, mean speed %.3f m/s, peak friction utilization %.2f, min normal force %.1f N\n",
 		s.Steps, s.SimTimeS, s.MeanSpeedMPS, s.PeakFrictionUtilization, s.MinNormalForceN)
 	if s.LatencyUS != nil {
-		fmt.Fprintf(w, "command latency p50 %.0f µs, p99 %.0f µs, max %.0f µs; deadline misses %d\n",
-			s.LatencyUS.P50, s.LatencyUS.P99, s.LatencyUS.Max, s.DeadlineMisses)
+		// NaN: no command was timed (a run that tripped before any came):
+		// a dash, not a zero that reads as a very fast firmware.
+		us := func(v float64) string {
+			if math.IsNaN(v) {
+				return "–"
+			}
+			return fmt.Sprintf("%.0f µs", v)
+		}
+		fmt.Fprintf(w, "command latency p50 %s, p99 %s, max %s; deadline misses %d\n",
+			us(s.LatencyUS.P50), us(s.LatencyUS.P99), us(s.LatencyUS.Max), s.DeadlineMisses)
 	}
 	if len(s.Alarms) > 0 {
 		var parts []string

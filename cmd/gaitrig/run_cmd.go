@@ -5,10 +5,8 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
 	"path/filepath"
 	"strings"
-	"syscall"
 
 	"gaitrig/hil"
 	"gaitrig/record"
@@ -39,10 +37,9 @@ type runResult struct {
 var linkHelp = "the `LINK` to the controller, one of:" + strings.TrimPrefix(rig.LinkHelp(), "controller link, one of:")
 
 // signalContext is cancelled by SIGINT or SIGTERM, so a run ends cleanly
-// with outcome aborted and its folder complete. A second signal kills.
-func signalContext() (context.Context, func()) {
-	return signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-}
+// with outcome aborted and its folder complete. A second signal ends the
+// process (interruptContext).
+func signalContext() (context.Context, func()) { return interruptContext(os.Stderr) }
 
 func cmdRun(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("run", "SCENARIO", `

@@ -1,0 +1,182 @@
+package hil
+
+import (
+	"context"
+	"runtime"
+	"testing"
+	"time"
+
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
+	"gaitrig/record"
+)
+
+// sleepySend stalls the rig on purpose: the Send of state `at` sleeps for
+// `stall` on the loop's own thread, as a host that stops running the rig
+// would (the thread neither runs nor sleeps as the pacer asked). It is
+// deterministic: the stall happens at one known state, whatever the load.
+type sleepySend struct {
+	bridges.Conn
+	at    uint32
+	stall time.Duration
+}
+
+func (s *sleepySend) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState && m.Seq == s.at {
+		time.Sleep(s.stall)
+	}
+	return s.Conn.Send(m)
+}
+
+// silentFirmware greets and then never answers a state.
+var silentFirmware = hooked(func(bridges.Conn, uint32, *protocol.Command) bool { return false }, nil)
+
+// A wall-clock run whose loop the host stalls for longer than the
+// watchdog is not a firmware failure: it ends as invalid with host_stall,
+// and no watchdog alarm is raised. A firmware that is gone still trips the
+// watchdog. Neither assertion depends on how busy the host is: a real
+// stall of a loaded host before the planted one also gives host_stall.
+func TestWallclockHostStallIsNotAWatchdogTrip(t *testing.T) {
+	t.Run("rig stalled", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 2)
+		cfg.Clock = Wallclock
+		cfg.Watchdog = 100 * time.Millisecond
+		rig, fw := inprocPair()
+		defer rig.Close()
+		go referenceFirmware(fw)
+		rec := newRecord(t, cfg, m, s)
+		res, err := Run(context.Background(), cfg, m, s, &sleepySend{Conn: rig, at: 200, stall: 400 * time.Millisecond}, rec)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum := openRun(t, rec.Dir()).Summary
+		if res.Summary.Outcome != record.Invalid || sum.Outcome != record.Invalid {
+			t.Fatalf("outcome %s / summary.json %s (%s), want invalid", res.Summary.Outcome, sum.Outcome, res.Summary.Reason)
+		}
+		if sum.Alarms[AlarmHostStall] != 1 || sum.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("alarms %v: want one host_stall and no watchdog", sum.Alarms)
+		}
+		if sum.LongestHostStallS < 0.1 || sum.HostStallS < sum.LongestHostStallS {
+			t.Errorf("stall figures: longest %g s, total %g s; want at least the watchdog (0.1 s)", sum.LongestHostStallS, sum.HostStallS)
+		}
+		ev := eventsOf(t, rec.Dir(), AlarmHostStall)
+		if len(ev) == 0 || ev[len(ev)-1].Severity != record.Trip || ev[len(ev)-1].Values["stall_ms"] < 100 {
+			t.Fatalf("host_stall events %+v", ev)
+		}
+	})
+	t.Run("firmware gone", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 2)
+		cfg.Clock = Wallclock
+		cfg.Watchdog = 100 * time.Millisecond
+		res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 {
+			t.Fatalf("outcome %s (%s), alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+	})
+}
+
+// In lockstep simulated time waits for the firmware: a rig stalled for ten
+// times the watchdog, outside its wait (in Send) or inside it (a wait
+// that overslept), passes with the stall counted, and a firmware that is
+// gone still trips the watchdog after it.
+func TestLockstepHostStallDoesNotTripTheWatchdog(t *testing.T) {
+	t.Run("stall in send", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		rig, fw := inprocPair()
+		defer rig.Close()
+		go referenceFirmware(fw)
+		res, err := Run(context.Background(), cfg, m, s, &sleepySend{Conn: rig, at: 100, stall: 300 * time.Millisecond}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Pass || res.Summary.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("%s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+	})
+	t.Run("stall in the wait", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.05)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.Resend = time.Second
+		rig, fw := inprocPair()
+		defer rig.Close()
+		go referenceFirmware(fw)
+		res, err := Run(context.Background(), cfg, m, s, &stallConn{Conn: rig}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum := res.Summary
+		if sum.Outcome != record.Pass || sum.Alarms[AlarmWatchdog] != 0 || sum.Alarms[AlarmHostStall] != 0 {
+			t.Fatalf("%s (%s), alarms %v", sum.Outcome, sum.Reason, sum.Alarms)
+		}
+		// stallConn oversleeps three Recv calls by 100 ms each; the first
+		// may fall in the handshake, which has no watchdog.
+		if sum.HostStallS < 0.2 {
+			t.Errorf("host stall %g s counted, want at least the 0.2 s planted in the loop's waits", sum.HostStallS)
+		}
+	})
+	t.Run("firmware gone", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = quietHost
+		res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 {
+			t.Fatalf("outcome %s, alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Alarms)
+		}
+	})
+	// Half the time contended: the firmware still gets a watchdog of
+	// uncontended time before the limit, so a gone firmware trips the
+	// watchdog, later than on a quiet host.
+	t.Run("firmware gone on a half-busy host", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = busyHost(0.5)
+		res, dir, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmWatchdog] != 1 {
+			t.Fatalf("outcome %s (%s), alarms %v: want a watchdog trip", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+		wd := eventsOf(t, dir, AlarmWatchdog)
+		if len(wd) != 1 || wd[0].Values["contended_ms"] <= 0 || wd[0].Values["silent_ms"] < 30 {
+			t.Fatalf("watchdog events %+v: want the contended time named", wd)
+		}
+	})
+	// Contended all the time: the host never leaves the firmware a
+	// watchdog to answer in, so at the limit the run is invalid
+	// (host_stall), not a watchdog trip blamed on the firmware.
+	t.Run("silent on a saturated host", func(t *testing.T) {
+		m, s, cfg := timedDemo(t, 0.3)
+		cfg.Watchdog = 30 * time.Millisecond
+		cfg.pressure = busyHost(1)
+		res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum := res.Summary
+		if sum.Outcome != record.Invalid || sum.Alarms[AlarmHostStall] != 1 || sum.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("outcome %s (%s), alarms %v: want invalid with host_stall", sum.Outcome, sum.Reason, sum.Alarms)
+		}
+	})
+}
+
+// quietHost is a CPU pressure source that never reports contention.
+var quietHost = &cpuPressure{fake: func() (time.Duration, bool) { return 0, true }}
+
+// busyHost reports the host's CPUs contended for the fraction share of the
+// time since it was made, as the host-wide PSI figure would (divided by
+// the CPU count: the loop multiplies it back).
+func busyHost(share float64) *cpuPressure {
+	t0 := time.Now()
+	n := float64(runtime.NumCPU())
+	return &cpuPressure{fake: func() (time.Duration, bool) {
+		return time.Duration(share * float64(time.Since(t0)) / n), true
+	}}
+}
