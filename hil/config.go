@@ -179,6 +179,10 @@ type Config struct {
 	// Log, when set, receives plain sentences about the run that are not
 	// alarms (scheduling class granted or not, handshake).
 	Log func(line string)
+	// Tap, when set, receives decimated snapshots of the loop for a live
+	// view or metrics (see NewTap); the tick path neither allocates nor
+	// waits for its reader.
+	Tap *Tap
 }
 
 // StepInfo is what OnStep receives: the step row and the run so far.

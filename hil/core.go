@@ -65,6 +65,9 @@ func (r *runner) ticks(ctx context.Context, p pacer, src commandSource) {
 			}
 		}
 		r.advance(wall)
+		if r.cfg.Tap != nil {
+			r.tapTick(p, wall, ended || r.done())
+		}
 		if ended {
 			return
 		}
