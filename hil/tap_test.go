@@ -13,8 +13,8 @@ import (
 )
 
 // runTicksTap is runTicksOver (direct link, no record) with a tap whose
-// reader drains it on a goroutine of its own as fast as it can, the worst
-// case for sharing; tap nil runs without one.
+// reader polls it every millisecond on a goroutine of its own (more often
+// than any viewer needs); tap nil runs without one.
 func runTicksTap(tb testing.TB, n int, tap *Tap) (mallocs uint64, elapsed time.Duration, read uint64) {
 	tb.Helper()
 	m, s, cfg := timedDemo(tb, float64(n)/DefaultTickHz)
