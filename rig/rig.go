@@ -68,6 +68,13 @@ type Options struct {
 	// JUnit and Parquet are then refused. For measurements that need only
 	// the loop's result.
 	NoRecord bool
+
+	// Tap, when set, receives decimated snapshots of the loop (the live
+	// view); see hil.NewTap.
+	Tap *hil.Tap
+	// Watch, when set, also receives every alarm the loop logs, besides
+	// the link's own alarm publishing (the live view).
+	Watch hil.AlarmSink
 }
 
 // Result is what one run gives back.
@@ -173,6 +180,8 @@ func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared,
 	}
 	p.Config.OnStep = o.OnStep
 	p.Config.Log = o.Log
+	p.Config.Tap = o.Tap
+	p.Config.Alarms = teeAlarms(p.Config.Alarms, o.Watch)
 	if o.NoRecord {
 		return p, nil
 	}
