@@ -37,7 +37,7 @@ func browser(t *testing.T) *headless.Browser {
 		}
 		t.Skip("chromium not found: install the Debian package chromium to run the browser checks")
 	}
-	b, err := headless.Start(t.TempDir(), 1400, 1000, startTimeout)
+	b, err := headless.Start(t.TempDir(), 1400, 1150, startTimeout)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -94,7 +94,7 @@ func saveScreenshot(t *testing.T, b *headless.Browser, name string) {
 		t.Fatalf("screenshot: %v", err)
 	}
 	if r := img.Bounds(); r.Dx() < 1000 || r.Dy() < 700 {
-		t.Errorf("screenshot is %v, want the 1400×1000 window", r)
+		t.Errorf("screenshot is %v, want the 1400×1150 window", r)
 	}
 	dir := os.Getenv("GAITRIG_SCREENSHOT_DIR")
 	if dir == "" {

@@ -78,6 +78,9 @@ comparison's.`, stdout, stderr)
 	if done, code := c.parse(args); done {
 		return code
 	}
+	if err := vf.check(); err != nil {
+		return c.usageError("%v", err)
+	}
 	if c.NArg() != 1 {
 		return c.usageError("want exactly one RUNDIR, got %d arguments", c.NArg())
 	}

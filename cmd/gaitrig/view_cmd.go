@@ -7,6 +7,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"net"
 	"os"
 
 	"gaitrig/hil"
@@ -61,7 +62,11 @@ type viewFlags struct {
 // addViewFlags declares --view (and, for a run, --view-pace).
 func addViewFlags(c *cmdline, run bool) *viewFlags {
 	v := &viewFlags{}
-	c.Var(&v.addr, "view", "serve the live view page while the run goes: on 127.0.0.1 at a free port\n"+
+	what := "serve the live view page while the run goes"
+	if !run {
+		what = "serve the live view page playing the run back"
+	}
+	c.Var(&v.addr, "view", what+": on 127.0.0.1 at a free port\n"+
 		"(printed), or at --view=HOST:PORT; an address that is not loopback needs the\n"+
 		"token in "+view.TokenEnv)
 	if run {
@@ -78,6 +83,15 @@ func (v *viewFlags) check() error {
 	}
 	if v.pace != nil && *v.pace != paceRealtime && !v.addr.set {
 		return fmt.Errorf("--view-pace needs --view")
+	}
+	if v.addr.set && v.addr.addr != "" {
+		host, _, err := net.SplitHostPort(v.addr.addr)
+		if err != nil {
+			return fmt.Errorf("--view=%s: want HOST:PORT", v.addr.addr)
+		}
+		if !view.IsLoopback(host) && os.Getenv(view.TokenEnv) == "" {
+			return fmt.Errorf("--view=%s is not loopback: set %s to an access token first", v.addr.addr, view.TokenEnv)
+		}
 	}
 	return nil
 }

@@ -72,8 +72,10 @@ function drawWalker() {
   // Metre ticks on the ground, so speed shows as the ground moving by.
   g.fillStyle = COLORS.groundLine; g.font = "10px system-ui";
   for (let x = Math.ceil(x0); x <= x1; x++) { const q = P(x, groundY(x)); g.fillRect(q[0] - 0.5, q[1], 1, 6); g.fillText(x + " m", q[0] + 2, q[1] + 14); }
-  // Friction cones and ground forces, behind the legs.
+  // Friction cones behind the legs; the ground forces are drawn over the
+  // legs, since a stance leg is nearly along its force.
   const coneLen = 0.45, fscale = 0.6 / weight; // m per N: the body weight is 0.6 m
+  const arrows = [];
   for (let i = 0; i < 2; i++) {
     const f = last.feet[i];
     if (f.mode === "free" || f.px === null) continue;
@@ -89,7 +91,7 @@ function drawWalker() {
     const N = f.n || 0, Ft = f.ft || 0;
     const F = [N * n[0] + Ft * t[0], N * n[1] + Ft * t[1]];
     const outside = f.u === null || f.u > 1;
-    arrow(g, a, P(px + F[0] * fscale, py + F[1] * fscale), outside ? COLORS.bad : COLORS.grf);
+    arrows.push([a, P(px + F[0] * fscale, py + F[1] * fscale), outside ? COLORS.bad : COLORS.grf]);
   }
   // Legs with their foot arcs, torso, hip.
   for (let i = 0; i < 2; i++) {
@@ -117,12 +119,15 @@ function drawWalker() {
   }
   const h = P(last.hip[0], last.hip[1]);
   g.fillStyle = COLORS.ink; g.beginPath(); g.arc(h[0], h[1], 7, 0, 2 * Math.PI); g.fill();
+  for (const [a, b, col] of arrows) arrow(g, a, b, col);
   g.fillStyle = COLORS.ink; g.font = "12px system-ui";
   g.fillText("t = " + last.t.toFixed(3) + " s   stance: " + (last.stance === 0 ? "left" : "right") + "   (drawn to scale)", 8, 16);
 }
 
 function arrow(g, a, b, col) {
   const dx = b[0] - a[0], dy = b[1] - a[1], L = Math.hypot(dx, dy);
+  g.strokeStyle = "#fff"; g.lineWidth = 7; g.lineCap = "round";
+  g.beginPath(); g.moveTo(a[0], a[1]); g.lineTo(b[0], b[1]); g.stroke(); // a halo, to stand out over a leg
   g.strokeStyle = col; g.fillStyle = col; g.lineWidth = 3;
   g.beginPath(); g.moveTo(a[0], a[1]); g.lineTo(b[0], b[1]); g.stroke();
   if (L < 4) return;
@@ -134,7 +139,8 @@ function arrow(g, a, b, col) {
 
 // ----- strip charts -----
 function push(name, t, v) {
-  if (v === null || v === undefined || !isFinite(v)) return;
+  // A missing value is kept as a gap, so the line breaks there.
+  if (v === undefined || (v !== null && !isFinite(v))) v = null;
   const s = series[name] || (series[name] = []);
   if (s.length && t < s[s.length - 1].t) s.length = 0; // a seek backwards
   s.push({ t, v });
@@ -150,7 +156,7 @@ function chart(id, lines, refs) {
   const tEnd = last.t, tStart = tEnd - WINDOW_S;
   let lo = Infinity, hi = -Infinity;
   for (const r of refs) { lo = Math.min(lo, r); hi = Math.max(hi, r); }
-  for (const l of lines) for (const p of series[l.name] || []) { lo = Math.min(lo, p.v); hi = Math.max(hi, p.v); }
+  for (const l of lines) for (const p of series[l.name] || []) if (p.v !== null) { lo = Math.min(lo, p.v); hi = Math.max(hi, p.v); }
   if (!isFinite(lo)) { lo = 0; hi = 1; }
   if (hi - lo < 1e-9) { hi += 0.5; lo -= 0.5; }
   const pad = (hi - lo) * 0.08; lo -= pad; hi += pad;
@@ -168,7 +174,12 @@ function chart(id, lines, refs) {
     const s = series[l.name] || [];
     g.strokeStyle = l.color; g.lineWidth = 1.5; g.setLineDash(l.dash ? [5, 3] : []);
     g.beginPath();
-    s.forEach((p, i) => { i ? g.lineTo(X(p.t), Y(p.v)) : g.moveTo(X(p.t), Y(p.v)); });
+    let pen = false;
+    for (const p of s) {
+      if (p.v === null) { pen = false; continue; }
+      pen ? g.lineTo(X(p.t), Y(p.v)) : g.moveTo(X(p.t), Y(p.v));
+      pen = true;
+    }
     g.stroke(); g.setLineDash([]);
     if (l.label) { g.fillStyle = l.color; g.fillText(l.label, lx, 12); lx += g.measureText(l.label).width + 12; }
   }
@@ -270,6 +281,11 @@ function onPlay(m) {
   $("playpause").textContent = m.paused ? "play" : "pause";
   $("playpause").dataset.paused = m.paused ? "1" : "0";
   if (!seeking) { $("seek").max = String(playEnd); $("seek").value = String(m.t); }
+  const sp = $("speed");
+  if (sp.value !== String(m.speed)) {
+    if (![...sp.options].some((o) => o.value === String(m.speed))) sp.add(new Option(m.speed + "×", String(m.speed)));
+    sp.value = String(m.speed);
+  }
   $("playpos").textContent = (m.t || 0).toFixed(2) + " / " + playEnd.toFixed(2) + " s · " + m.speed + "×";
 }
 
