@@ -65,14 +65,13 @@ func (r *runner) ticks(ctx context.Context, p pacer, src commandSource) {
 			}
 		}
 		r.advance(wall)
-		if r.cfg.Tap != nil {
-			r.tapTick(p, wall, ended || r.done())
-		}
 		if ended {
+			r.tap(p, wall, true)
 			return
 		}
 		if p.overran() {
 			r.deadlineMiss()
 		}
+		r.tap(p, wall, r.done())
 	}
 }

@@ -56,6 +56,18 @@ type Snapshot struct {
 	// Ticks so far, deadline misses, states resent, and rejected frames,
 	// cumulative over the run.
 	Ticks, DeadlineMisses, Resent, BadFrames uint64
+	// Latency and Jitter are the round trips and tick start lateness of
+	// every tick so far, in the coarse buckets of TapBucketsUS (wall-clock
+	// runs; empty in lockstep).
+	Latency, Jitter TapHistogram
+	// FrameKinds counts rejected frames per kind of rejection; the first
+	// NumFrameKinds entries are set.
+	FrameKinds    [tapKinds]KindCount
+	NumFrameKinds int
+	// Alarms counts alarm occurrences per kind (logged or not) with the
+	// kind's severity; the first NumAlarmKinds entries are set.
+	Alarms        [tapKinds]AlarmCount
+	NumAlarmKinds int
 	// Outcome is set once the loop has ended the run early (a trip, a
 	// failure, an abort), Reason says why; a run that reaches its duration
 	// or step limit gets its outcome after the last tick, in the Result.
@@ -63,27 +75,70 @@ type Snapshot struct {
 	Reason  string
 }
 
-// Tap hands snapshots from the loop to one reader through three
+// tapKinds bounds the kinds a snapshot counts apart (frame rejections,
+// alarm kinds); the vocabularies are smaller.
+const tapKinds = 32
+
+// TapBucketsUS are the upper bounds, µs, of the buckets of TapHistogram:
+// from well under a tick to 20 ms, the range a 1 kHz loop cares about.
+var TapBucketsUS = [...]float64{50, 100, 200, 300, 500, 750, 1000, 1500, 2000, 3000, 5000, 10000, 20000}
+
+// TapHistogram counts durations in the buckets of TapBucketsUS; Counts[i]
+// holds those ≤ TapBucketsUS[i] and above the bound before, the last
+// entry those above every bound.
+type TapHistogram struct {
+	Counts [len(TapBucketsUS) + 1]uint64
+	Count  uint64
+	SumUS  float64
+}
+
+func (h *TapHistogram) add(us float64) {
+	i := 0
+	for i < len(TapBucketsUS) && us > TapBucketsUS[i] {
+		i++
+	}
+	h.Counts[i]++
+	h.Count++
+	h.SumUS += us
+}
+
+// KindCount is a count of one kind.
+type KindCount struct {
+	Kind string
+	N    uint64
+}
+
+// AlarmCount is how often one alarm kind occurred, and its severity.
+type AlarmCount struct {
+	Kind     string
+	Severity Severity
+	N        uint64
+}
+
+// Tap hands snapshots from the loop to its readers. Each reader has three
 // preallocated buffers (a triple buffer): the loop fills its own buffer and
 // swaps it into the middle slot with one atomic operation; the reader
 // swaps its buffer with the middle. Neither ever waits for the other, and
 // a reader that falls behind sees the newest snapshot and misses the ones
-// in between (counted by comparing Seq). Make one with NewTap; set it in
-// Config.Tap.
+// in between (counted by comparing Seq). Make one with NewTap, add its
+// readers with NewReader, then set it in Config.Tap.
 type Tap struct {
 	interval float64
 	realtime bool
 
 	// Loop side (one goroutine).
-	back    *Snapshot
-	next    float64   // simulated time the next snapshot is due
-	seq     uint64    // last Seq made
+	snap    Snapshot // built here, copied to each reader
+	next    float64  // simulated time the next snapshot is due
+	seq     atomic.Uint64
 	started time.Time // wall time of the first snapshot, for real-time pacing
 	t0      float64
+	readers []*TapReader
+}
 
-	middle atomic.Pointer[Snapshot]
-
-	// Reader side (one goroutine).
+// TapReader is one reader of a Tap; use it from one goroutine.
+type TapReader struct {
+	back    *Snapshot // the loop's
+	middle  atomic.Pointer[Snapshot]
 	front   *Snapshot
 	lastSeq uint64
 }
@@ -96,9 +151,16 @@ func NewTap(interval float64, realtime bool) *Tap {
 	if !(interval > 0) || math.IsInf(interval, 0) {
 		interval = DefaultTapInterval
 	}
-	t := &Tap{interval: interval, realtime: realtime, back: new(Snapshot), front: new(Snapshot), next: math.Inf(-1)}
-	t.middle.Store(new(Snapshot))
-	return t
+	return &Tap{interval: interval, realtime: realtime, next: math.Inf(-1)}
+}
+
+// NewReader adds a reader. Add every reader before the run starts: the
+// loop reads the list without a lock.
+func (t *Tap) NewReader() *TapReader {
+	r := &TapReader{back: new(Snapshot), front: new(Snapshot)}
+	r.middle.Store(new(Snapshot))
+	t.readers = append(t.readers, r)
+	return r
 }
 
 // Interval is the simulated time between snapshots.
@@ -106,26 +168,41 @@ func (t *Tap) Interval() float64 { return t.interval }
 
 // Latest copies the newest snapshot into dst and reports whether it is
 // newer than the one the last call returned; missed is how many snapshots
-// were made in between and never read. Call it from one goroutine.
-func (t *Tap) Latest(dst *Snapshot) (ok bool, missed uint64) {
-	t.front = t.middle.Swap(t.front)
-	if t.front.Seq <= t.lastSeq {
+// were made in between and never read.
+func (r *TapReader) Latest(dst *Snapshot) (ok bool, missed uint64) {
+	r.front = r.middle.Swap(r.front)
+	if r.front.Seq <= r.lastSeq {
 		return false, 0
 	}
-	missed = t.front.Seq - t.lastSeq - 1
-	t.lastSeq = t.front.Seq
-	*dst = *t.front
+	missed = r.front.Seq - r.lastSeq - 1
+	r.lastSeq = r.front.Seq
+	*dst = *r.front
 	return true, missed
 }
 
-// Made is how many snapshots the loop has made; read it after the run.
-func (t *Tap) Made() uint64 { return atomic.LoadUint64(&t.seq) }
+// Made is how many snapshots the loop has made.
+func (t *Tap) Made() uint64 { return t.seq.Load() }
 
-// tapTick is called by the tick core after every tick; final says the run
-// has ended, which always gives a snapshot so the reader sees the outcome.
-func (r *runner) tapTick(p pacer, wall time.Time, final bool) {
+// tap is called by the tick core after every tick, once the tick's
+// deadline miss is counted; final says the run has ended, which always
+// gives a snapshot so the readers see the last tick.
+func (r *runner) tap(p pacer, wall time.Time, final bool) {
 	t := r.cfg.Tap
+	if t == nil {
+		return
+	}
 	pt := &r.pt
+	jitter := nan
+	if rp, ok := p.(*realPacer); ok && !wall.IsZero() {
+		jitter = float64(wall.Sub(rp.due)) / 1e3
+	}
+	// The histograms count every tick, not only the snapshot ticks.
+	if !math.IsNaN(pt.latUS) {
+		t.snap.Latency.add(pt.latUS)
+	}
+	if !math.IsNaN(jitter) {
+		t.snap.Jitter.add(math.Max(0, jitter))
+	}
 	if !final && pt.s.T < t.next {
 		return
 	}
@@ -136,8 +213,8 @@ func (r *runner) tapTick(p pacer, wall time.Time, final bool) {
 	for t.next <= pt.s.T {
 		t.next += t.interval
 	}
-	s := t.back
-	s.Seq = atomic.AddUint64(&t.seq, 1)
+	s := &t.snap
+	s.Seq = t.seq.Add(1)
 	s.Tick, s.T, s.Wall = pt.tick-1, pt.s.T, wall // advance has counted the tick
 	s.NumQ = r.m.NumDOF()
 	s.Q, s.V = pt.s.Q, pt.s.V
@@ -151,18 +228,32 @@ func (r *runner) tapTick(p pacer, wall time.Time, final bool) {
 	}
 	s.Feet = pt.res.Contacts
 	s.Stance = pt.s.Stance
-	s.LatencyUS, s.JitterUS = pt.latUS, nan
-	if rp, ok := p.(*realPacer); ok && !wall.IsZero() {
-		s.JitterUS = float64(wall.Sub(rp.due)) / 1e3
-	}
+	s.LatencyUS, s.JitterUS = pt.latUS, jitter
 	s.Steps = r.steps.count
 	s.Fresh = r.fresh
 	s.Ticks = uint64(pt.tick)
 	s.DeadlineMisses = r.times.misses
 	s.Resent = r.health.counts.Resends
 	s.BadFrames = r.health.counts.BadFrames
+	s.NumFrameKinds = 0
+	for k, n := range r.health.frameKinds {
+		if s.NumFrameKinds < tapKinds {
+			s.FrameKinds[s.NumFrameKinds] = KindCount{k, n}
+			s.NumFrameKinds++
+		}
+	}
+	s.NumAlarmKinds = 0
+	for k, n := range r.al.counts {
+		if s.NumAlarmKinds < tapKinds {
+			s.Alarms[s.NumAlarmKinds] = AlarmCount{k, r.cfg.severity(k), uint64(n)}
+			s.NumAlarmKinds++
+		}
+	}
 	s.Outcome, s.Reason = r.end.outcome, r.end.reason
-	t.back = t.middle.Swap(s)
+	for _, rd := range t.readers {
+		*rd.back = *s
+		rd.back = rd.middle.Swap(rd.back)
+	}
 	if t.realtime && r.cfg.Clock != Wallclock && !final {
 		// Hold a lockstep run to the wall clock: simulated time since the
 		// first snapshot may not run ahead of the real time since then.

@@ -24,12 +24,13 @@ func runTicksTap(tb testing.TB, n int, tap *Tap) (mallocs uint64, elapsed time.D
 	var stop atomic.Bool
 	var wg sync.WaitGroup
 	if tap != nil {
+		rd := tap.NewReader()
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			var snap Snapshot
 			for !stop.Load() {
-				if ok, _ := tap.Latest(&snap); ok {
+				if ok, _ := rd.Latest(&snap); ok {
 					read++
 				}
 				// A viewer polls a few hundred times a second at most.
@@ -75,6 +76,7 @@ func TestTapDoesNotAllocate(t *testing.T) {
 func TestTapSnapshotsMatchTelemetry(t *testing.T) {
 	m, s, cfg := timedDemo(t, 2)
 	tap := NewTap(0.05, false)
+	rd := tap.NewReader()
 	cfg.Tap = tap
 	conn, done := lockstepLink(t, true)
 	defer conn.Close()
@@ -90,7 +92,7 @@ func TestTapSnapshotsMatchTelemetry(t *testing.T) {
 		var snap Snapshot
 		for {
 			last := stop.Load()
-			if ok, _ := tap.Latest(&snap); ok {
+			if ok, _ := rd.Latest(&snap); ok {
 				mu.Lock()
 				snaps = append(snaps, snap)
 				mu.Unlock()

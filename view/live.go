@@ -27,7 +27,7 @@ const pollEvery = 5 * time.Millisecond
 // result.
 type Live struct {
 	s   *Server
-	tap *hil.Tap
+	tap *hil.TapReader
 
 	steps stepRing
 	texts textRing
@@ -36,9 +36,10 @@ type Live struct {
 	done   chan struct{}
 }
 
-// NewLive makes the feed of a run that reads tap.
+// NewLive makes the feed of a run that reads tap (as a reader of its own,
+// so call it before the run starts).
 func NewLive(tap *hil.Tap) *Live {
-	return &Live{tap: tap, finish: make(chan stateMsg, 1), done: make(chan struct{})}
+	return &Live{tap: tap.NewReader(), finish: make(chan stateMsg, 1), done: make(chan struct{})}
 }
 
 // Start feeds s from the run; call it once. What the loop handed over

@@ -11,6 +11,7 @@ import (
 	"os"
 
 	"gaitrig/hil"
+	"gaitrig/metrics"
 	"gaitrig/record"
 	"gaitrig/rig"
 	"gaitrig/view"
@@ -53,10 +54,11 @@ const (
 	paceFree     = "free"
 )
 
-// viewFlags are --view and --view-pace.
+// viewFlags are --view and --view-pace, and --metrics for a run.
 type viewFlags struct {
-	addr optAddr
-	pace *string
+	addr    optAddr
+	pace    *string
+	metrics optAddr
 }
 
 // addViewFlags declares --view (and, for a run, --view-pace).
@@ -70,6 +72,9 @@ func addViewFlags(c *cmdline, run bool) *viewFlags {
 		"(printed), or at --view=HOST:PORT; an address that is not loopback needs the\n"+
 		"token in "+view.TokenEnv)
 	if run {
+		c.Var(&v.metrics, "metrics", "serve Prometheus metrics of the run at http://127.0.0.1:<free port>/metrics\n"+
+			"(printed), or at --metrics=HOST:PORT; an address that is not loopback needs\n"+
+			"the token in "+view.TokenEnv+" (sent by Prometheus as a bearer token)")
 		v.pace = c.String("view-pace", paceRealtime, "with --view, a lockstep run goes at `PACE`: realtime (held to the\n"+
 			"wall clock, to watch) or free (as fast as it can; the page skips frames)")
 	}
@@ -84,37 +89,51 @@ func (v *viewFlags) check() error {
 	if v.pace != nil && *v.pace != paceRealtime && !v.addr.set {
 		return fmt.Errorf("--view-pace needs --view")
 	}
-	if v.addr.set && v.addr.addr != "" {
-		host, _, err := net.SplitHostPort(v.addr.addr)
+	for _, f := range []struct {
+		name string
+		a    *optAddr
+	}{{"view", &v.addr}, {"metrics", &v.metrics}} {
+		if !f.a.set || f.a.addr == "" {
+			continue
+		}
+		host, _, err := net.SplitHostPort(f.a.addr)
 		if err != nil {
-			return fmt.Errorf("--view=%s: want HOST:PORT", v.addr.addr)
+			return fmt.Errorf("--%s=%s: want HOST:PORT", f.name, f.a.addr)
 		}
 		if !view.IsLoopback(host) && os.Getenv(view.TokenEnv) == "" {
-			return fmt.Errorf("--view=%s is not loopback: set %s to an access token first", v.addr.addr, view.TokenEnv)
+			return fmt.Errorf("--%s=%s is not loopback: set %s to an access token first", f.name, f.a.addr, view.TokenEnv)
 		}
 	}
 	return nil
 }
 
-// liveView is the view of one run: set up before the run is prepared,
-// started once it is, finished with its result.
+// liveView is the view and the metrics of one run: set up before the run
+// is prepared, started once it is, finished with its result.
 type liveView struct {
 	flags *viewFlags
 	tap   *hil.Tap
-	live  *view.Live
+	live  *view.Live // nil without --view
 	srv   *view.Server
 	out   io.Writer
+	prom  *metrics.Exporter // nil without --metrics
+	rig   string            // --rig, the metrics' rig label when given
 }
 
-// newLiveView hooks a view into o when --view was given; nil otherwise.
+// newLiveView hooks a view and metrics into o when --view or --metrics was
+// given; nil otherwise.
 func newLiveView(v *viewFlags, o *rig.Options, out io.Writer) *liveView {
-	if v == nil || !v.addr.set {
+	if v == nil || (!v.addr.set && !v.metrics.set) {
 		return nil
 	}
-	lv := &liveView{flags: v, out: out}
-	lv.tap = hil.NewTap(0, v.pace == nil || *v.pace == paceRealtime)
+	lv := &liveView{flags: v, out: out, rig: o.Rig}
+	// Only a page needs the run held to the wall clock.
+	lv.tap = hil.NewTap(0, v.addr.set && (v.pace == nil || *v.pace == paceRealtime))
+	o.Tap = lv.tap
+	if !v.addr.set {
+		return lv
+	}
 	lv.live = view.NewLive(lv.tap)
-	o.Tap, o.Watch = lv.tap, lv.live
+	o.Watch = lv.live
 	printStep, logLine := o.OnStep, o.Log
 	o.OnStep = func(s hil.StepInfo) {
 		if printStep != nil {
@@ -131,9 +150,20 @@ func newLiveView(v *viewFlags, o *rig.Options, out io.Writer) *liveView {
 	return lv
 }
 
-// start serves the page of the prepared run p.
+// start serves the page and the metrics of the prepared run p.
 func (lv *liveView) start(p *rig.Prepared) error {
 	sc := p.Scenario
+	if lv.flags.metrics.set {
+		prom, err := metrics.New(metrics.Config{Addr: lv.flags.metrics.addr, Token: os.Getenv(view.TokenEnv), Scenario: sc.Name, Rig: lv.rig}, lv.tap)
+		if err != nil {
+			return rig.ConfigError(err)
+		}
+		lv.prom = prom
+		fmt.Fprintf(lv.out, "metrics: %s\n", prom.URL())
+	}
+	if lv.live == nil {
+		return nil
+	}
 	setup := view.Setup{Mode: "live", Scenario: sc.Name, Clock: string(p.Config.Clock), TickHz: p.Config.TickHz,
 		DurationS: p.Config.Duration, Joints: p.Model.JointNames(), Plant: record.PlantOf(p.Model.Params()), Caution: record.Caution}
 	srv, err := view.New(view.Config{Addr: lv.flags.addr.addr, Token: os.Getenv(view.TokenEnv), Setup: setup})
@@ -146,8 +176,13 @@ func (lv *liveView) start(p *rig.Prepared) error {
 	return nil
 }
 
-// finish shows the run's end on the page and closes the server.
+// finish shows the run's end on the page and in the metrics, and closes
+// both servers.
 func (lv *liveView) finish(sum *record.Summary, dir string) {
+	if lv.prom != nil {
+		lv.prom.Finish(sum)
+		lv.prom.Close()
+	}
 	if lv.srv == nil {
 		return
 	}

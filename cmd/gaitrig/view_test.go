@@ -5,6 +5,7 @@ import (
 	"bytes"
 	"fmt"
 	"io"
+	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
@@ -143,6 +144,7 @@ func TestViewFlagErrors(t *testing.T) {
 	}{
 		{[]string{"run", "--view", "--view-pace", "slow", "level-demo"}, "--view-pace"},
 		{[]string{"run", "--view-pace", "free", "level-demo"}, "needs --view"},
+		{[]string{"run", "--metrics=nonsense", "level-demo"}, "--metrics=nonsense: want HOST:PORT"},
 	} {
 		code, _, stderr := run(t, c.args...)
 		if code != 2 || !strings.Contains(stderr, c.want) {
@@ -150,8 +152,14 @@ func TestViewFlagErrors(t *testing.T) {
 		}
 	}
 	t.Setenv("GAITRIG_VIEW_TOKEN", "")
-	code, _, stderr := run(t, "run", "--quiet", "--no-report", "--out", t.TempDir(), "--duration", "0.1", "--view=0.0.0.0:0", "level-demo")
-	if code != 2 || !strings.Contains(stderr, "GAITRIG_VIEW_TOKEN") {
-		t.Errorf("--view on 0.0.0.0 without a token: exit %d, stderr %q", code, stderr)
+	for _, flag := range []string{"--view=0.0.0.0:0", "--metrics=0.0.0.0:0"} {
+		out := t.TempDir()
+		code, _, stderr := run(t, "run", "--quiet", "--no-report", "--out", out, "--duration", "0.1", flag, "level-demo")
+		if code != 2 || !strings.Contains(stderr, "GAITRIG_VIEW_TOKEN") {
+			t.Errorf("%s without a token: exit %d, stderr %q", flag, code, stderr)
+		}
+		if entries, _ := os.ReadDir(out); len(entries) != 0 {
+			t.Errorf("%s without a token left %d entries in --out: the check must come before the run folder", flag, len(entries))
+		}
 	}
 }
