@@ -68,6 +68,8 @@ type Snapshot struct {
 	// kind's severity; the first NumAlarmKinds entries are set.
 	Alarms        [tapKinds]AlarmCount
 	NumAlarmKinds int
+	// FirmwareName and FirmwareBuild are the firmware's greeting.
+	FirmwareName, FirmwareBuild string
 	// Outcome is set once the loop has ended the run early (a trip, a
 	// failure, an abort), Reason says why; a run that reaches its duration
 	// or step limit gets its outcome after the last tick, in the Result.
@@ -249,6 +251,7 @@ func (r *runner) tap(p pacer, wall time.Time, final bool) {
 			s.NumAlarmKinds++
 		}
 	}
+	s.FirmwareName, s.FirmwareBuild = r.sess.greeting.Name, r.sess.greeting.Build
 	s.Outcome, s.Reason = r.end.outcome, r.end.reason
 	for _, rd := range t.readers {
 		*rd.back = *s
