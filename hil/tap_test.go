@@ -173,3 +173,28 @@ func BenchmarkLockstepTap(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkTapPerTick is the tap's own cost per tick, one op per tick:
+// the histogram updates of every tick and, every twentieth tick (a
+// snapshot per 1/50 s at 1 kHz), the snapshot copied to two readers.
+// Compare with BenchmarkLockstepDirect's ns per tick.
+func BenchmarkTapPerTick(b *testing.B) {
+	m, s, cfg := timedDemo(b, 1)
+	cfg.Tap = NewTap(0, false)
+	cfg.Tap.NewReader()
+	cfg.Tap.NewReader()
+	r, err := newRunner(cfg, m, s, directLink(b), nil)
+	if err != nil {
+		b.Fatal(err)
+	}
+	r.pt.latUS = 800
+	b.ReportAllocs()
+	for b.Loop() {
+		r.pt.s.T += r.dt
+		r.pt.tick++
+		r.tap(virtualPacer{}, time.Time{}, false)
+	}
+	if cfg.Tap.Made() == 0 {
+		b.Fatal("no snapshot made")
+	}
+}
