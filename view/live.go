@@ -109,10 +109,6 @@ func (l *Live) run() {
 		l.texts.drain(func(k textKind, b []byte) {
 			switch k {
 			case textNote:
-				if firmware == "" && len(b) > 9 && string(b[:9]) == "firmware " {
-					firmware = string(b)
-					l.s.hub.send(kState, encode(stateMsg{Type: "state", State: state, Firmware: firmware}))
-				}
 				l.s.hub.send(kNote, encode(noteMsg{Type: "note", Text: string(b)}))
 			case textAlarm:
 				l.s.hub.send(kAlarm, encode(alarmOf(b)))
@@ -130,6 +126,10 @@ func (l *Live) run() {
 		}
 		if ok, missed := l.tap.Latest(&snap); ok {
 			skipped += missed
+			if firmware == "" && snap.FirmwareName != "" {
+				firmware = fmt.Sprintf("firmware %q build %q", snap.FirmwareName, snap.FirmwareBuild)
+				state = "" // send the state again, with the firmware
+			}
 			l.s.hub.send(kFrame, encode(frameOfSnapshot(&snap, skipped)))
 			want := "running"
 			if snap.Outcome == record.Tripped {
