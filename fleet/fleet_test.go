@@ -99,11 +99,14 @@ func TestFleetOfTwoRigsOnMosquitto(t *testing.T) {
 	if err := b.Navigate(srv.URL(), 20*time.Second); err != nil {
 		t.Fatal(err)
 	}
+	// Rig ids of this test process alone: a shared Mosquitto
+	// (GAITRIG_MOSQUITTO_ADDR) may hold other rigs' retained statuses.
+	ids := []string{fmt.Sprintf("bench-a-%d", os.Getpid()), fmt.Sprintf("bench-b-%d", os.Getpid())}
 	ctx, cancel := context.WithCancel(context.Background())
 	defer cancel()
 	results := make([]rig.Result, 2)
 	var wg sync.WaitGroup
-	for i, id := range []string{"bench-a", "bench-b"} {
+	for i, id := range ids {
 		o := rig.Options{Link: "mqtt:" + broker, Rig: id, LocalFirmware: true, RunDir: filepath.Join(t.TempDir(), id),
 			Duration: 120, MaxSteps: 6 + 2*i, Tap: hil.NewTap(0, true)}
 		wg.Add(1)
@@ -120,7 +123,7 @@ func TestFleetOfTwoRigsOnMosquitto(t *testing.T) {
 		return fmt.Sprintf(`document.querySelector('.rig[data-rig=%q] %s')`, id, sel)
 	}
 	// While they walk: both listed, running, with a walker drawn.
-	for _, id := range []string{"bench-a", "bench-b"} {
+	for _, id := range ids {
 		if err := b.WaitFor(card(id, ".run")+` && `+card(id, ".run")+`.dataset.state === "running" && Number(`+card(id, ".steps")+`.textContent) >= 1`, 90*time.Second); err != nil {
 			var html string
 			if err := b.Eval(`document.documentElement.outerHTML.slice(0, 3000)`, &html, 10*time.Second); err != nil {
@@ -153,7 +156,7 @@ func TestFleetOfTwoRigsOnMosquitto(t *testing.T) {
 	}
 	wg.Wait()
 	// After: each card shows the outcome and steps of its summary.
-	for i, id := range []string{"bench-a", "bench-b"} {
+	for i, id := range ids {
 		s := results[i].Summary
 		if s.Outcome == "" {
 			t.Fatalf("rig %s has no outcome", id)
@@ -166,7 +169,7 @@ func TestFleetOfTwoRigsOnMosquitto(t *testing.T) {
 	if err := b.Eval(`document.getElementById("caution").textContent`, &caution, 20*time.Second); err != nil || caution != record.Caution {
 		t.Errorf("caution %q %v", caution, err)
 	}
-	if n := w.Ignored(); n != 0 {
+	if n := w.Ignored(); n != 0 && os.Getenv("GAITRIG_MOSQUITTO_ADDR") == "" {
 		t.Errorf("%d messages ignored", n)
 	}
 }
