@@ -209,6 +209,10 @@ type Config struct {
 	// tested without loading the host (and switched off for tests of a
 	// silent firmware, which must not depend on the host's load).
 	pressure *cpuPressure
+	// Tap, when set, receives decimated snapshots of the loop for a live
+	// view or metrics (see NewTap); the tick path neither allocates nor
+	// waits for its reader.
+	Tap *Tap
 }
 
 // StepInfo is what OnStep receives: the step row and the run so far.

@@ -66,10 +66,12 @@ func (r *runner) ticks(ctx context.Context, p pacer, src commandSource) {
 		}
 		r.advance(wall)
 		if ended {
+			r.tap(p, wall, true)
 			return
 		}
 		if p.overran() {
 			r.deadlineMiss()
 		}
+		r.tap(p, wall, r.done())
 	}
 }

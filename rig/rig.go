@@ -71,6 +71,13 @@ type Options struct {
 	// and a command take longer on the wire than a tick (CheckWireBudget);
 	// the warning still goes to Log.
 	Force bool
+
+	// Tap, when set, receives decimated snapshots of the loop (the live
+	// view); see hil.NewTap.
+	Tap *hil.Tap
+	// Watch, when set, also receives every alarm the loop logs, besides
+	// the link's own alarm publishing (the live view).
+	Watch hil.AlarmSink
 }
 
 // Result is what one run gives back.
@@ -103,6 +110,7 @@ type Prepared struct {
 
 	opts   Options
 	open   Opened
+	telem  *telemetry // the MQTT telemetry publisher; nil on other links
 	rec    *record.Writer
 	ran    bool
 	closed bool
@@ -188,6 +196,15 @@ func Prepare(ctx context.Context, sc *scenarios.Scenario, o Options) (*Prepared,
 	}
 	p.Config.OnStep = o.OnStep
 	p.Config.Log = o.Log
+	p.Config.Tap = o.Tap
+	p.Config.Alarms = teeAlarms(p.Config.Alarms, o.Watch)
+	if pub, ok := opened.Conn.(telemetryPublisher); ok {
+		// An MQTT rig also publishes its decoded telemetry for observers.
+		if p.Config.Tap == nil {
+			p.Config.Tap = hil.NewTap(0, false)
+		}
+		p.telem = &telemetry{pub: pub, rd: p.Config.Tap.NewReader(), scenario: sc.Name, clock: string(cfg.Clock), log: o.Log}
+	}
 	if o.NoRecord {
 		return p, nil
 	}
@@ -339,7 +356,17 @@ func (p *Prepared) Run(ctx context.Context) (Result, error) {
 	p.ran = true
 	rec := p.rec
 	p.rec = nil
+	if p.telem != nil {
+		p.telem.start()
+	}
 	res, err := hil.Run(ctx, p.Config, p.Model, p.Initial, p.open.Conn, rec)
+	if p.telem != nil {
+		var sum *record.Summary
+		if err == nil {
+			sum = &res.Summary
+		}
+		p.telem.finish(sum)
+	}
 	if errors.Is(err, hil.ErrActuatorMismatch) {
 		// Firmware and scenario do not belong together: the setup, not
 		// the firmware's behaviour, is wrong (exit 2).

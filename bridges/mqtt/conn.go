@@ -625,3 +625,27 @@ func (c *Conn) Close() error {
 	})
 	return err
 }
+
+// PublishTelemetry publishes one RigTelemetry document on R/telemetry at the
+// topic's QoS (0: a lost sample is followed by the next one) and waits for
+// the write. Only the rig role publishes telemetry.
+func (c *Conn) PublishTelemetry(doc []byte) error {
+	const what = "telemetry"
+	if c.cfg.Role != RoleRig {
+		return fmt.Errorf("mqtt: only the rig role publishes %s; this client is the %s of rig %q", what, c.cfg.Role, c.cfg.Rig)
+	}
+	if !json.Valid(doc) {
+		return fmt.Errorf("mqtt: %s not sent: payload is not valid JSON: %.60q", what, doc)
+	}
+	select {
+	case <-c.closed:
+		return bridges.ErrClosed
+	default:
+	}
+	if !c.connected.Load() {
+		return c.notConnected(what)
+	}
+	topic := topics.Topic(c.cfg.Root, c.cfg.Rig, topics.Telemetry)
+	tok := c.client.Publish(topic, topics.Telemetry.QoS(), topics.Telemetry.Retained(), append([]byte(nil), doc...))
+	return c.await(tok, what+" on "+topic)
+}

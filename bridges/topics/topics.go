@@ -9,6 +9,7 @@ package topics
 import (
 	"errors"
 	"strings"
+	"time"
 )
 
 // DefaultRoot is the first topic level when none is configured.
@@ -34,6 +35,9 @@ const (
 	Stop    Leaf = "stop"    // stop frames, either way
 	Alarm   Leaf = "alarm"   // one JSON alarm record per message, rig → observers
 	Status  Leaf = "status"  // the rig's retained JSON status document (RigStatus)
+	// Telemetry carries the rig's decoded, decimated telemetry: one JSON
+	// RigTelemetry a few times a second, rig → observers (the fleet page).
+	Telemetry Leaf = "telemetry"
 )
 
 // QoS is the MQTT quality of service each leaf is published with: frames
@@ -78,7 +82,7 @@ func (r Role) Subscribes() []Leaf {
 }
 
 var (
-	rigPublishes       = []Leaf{State, Alarm, Status, Stop}
+	rigPublishes       = []Leaf{State, Alarm, Status, Stop, Telemetry}
 	rigSubscribes      = []Leaf{Command, Stop}
 	firmwarePublishes  = []Leaf{Command, Stop}
 	firmwareSubscribes = []Leaf{State, Stop, Status}
@@ -129,4 +133,35 @@ type RigStatus struct {
 	Client string `json:"client"`           // the rig's MQTT client id
 	Reason string `json:"reason,omitempty"` // why offline: "closed", "connection lost"
 	Time   string `json:"time,omitempty"`   // UTC, RFC 3339; absent in the last will, which is written at connect time
+}
+
+// TelemetryInterval is how often a rig publishes its telemetry: a few
+// times a second is enough to watch, and little for a shared broker.
+const TelemetryInterval = 250 * time.Millisecond
+
+// RigTelemetry is one message on <root>/<rig>/telemetry: what a rig is doing
+// now, decoded (SI units), for observers. Numbers that are not finite are
+// null.
+type RigTelemetry struct {
+	Scenario string   `json:"scenario"`           // the scenario's name
+	Firmware string   `json:"firmware,omitempty"` // the firmware's greeting: name and build; empty before it greets
+	Clock    string   `json:"clock"`              // lockstep or wallclock
+	State    string   `json:"state"`              // greeting, running, tripped or done
+	Outcome  string   `json:"outcome,omitempty"`  // pass, fail, tripped or aborted, once known
+	Reason   string   `json:"reason,omitempty"`   // why the run ended that way
+	TimeS    *float64 `json:"t_s"`                // simulated time, s
+	Ticks    int64    `json:"ticks"`              // ticks run
+	Steps    int      `json:"steps"`              // steps completed
+	Alarms   int      `json:"alarms"`             // alarm occurrences so far, all kinds
+	// Hip, Feet (the end of each leg axis, left then right) and TorsoTop
+	// (equal to Hip without a torso) draw the walker as a stick figure, m.
+	Hip      [2]*float64    `json:"hip_m"`
+	Feet     [2][2]*float64 `json:"feet_m"`
+	TorsoTop [2]*float64    `json:"torso_top_m"`
+	// NormalN and Utilization are each foot's normal force, N, and
+	// friction utilization |F_t|/(μ_s N), left then right.
+	NormalN     [2]*float64 `json:"normal_n"`
+	Utilization [2]*float64 `json:"utilization"`
+	// LatencyUS is the latest command round trip, µs (wall-clock runs).
+	LatencyUS *float64 `json:"latency_us"`
 }

@@ -42,7 +42,7 @@ func TestContract(t *testing.T) {
 	if got := Topic("gaitrig", "b1", Command); got != "gaitrig/b1/command" {
 		t.Errorf("Topic = %q", got)
 	}
-	qos := map[Leaf]byte{State: 0, Command: 0, Stop: 1, Alarm: 1, Status: 1}
+	qos := map[Leaf]byte{State: 0, Command: 0, Stop: 1, Alarm: 1, Status: 1, Telemetry: 0}
 	for leaf, want := range qos {
 		if leaf.QoS() != want {
 			t.Errorf("%s QoS %d, want %d", leaf, leaf.QoS(), want)
@@ -52,7 +52,7 @@ func TestContract(t *testing.T) {
 		}
 	}
 	rights := map[Role][2][]Leaf{
-		RoleRig:      {{State, Alarm, Status, Stop}, {Command, Stop}},
+		RoleRig:      {{State, Alarm, Status, Stop, Telemetry}, {Command, Stop}},
 		RoleFirmware: {{Command, Stop}, {State, Stop, Status}},
 		RoleMonitor:  {nil, nil},
 	}

@@ -64,9 +64,13 @@ configuration.`, stdout, stderr)
 	duration := c.Float64("duration", 0, "end after `SECONDS` of simulated time (overrides run.duration_s)")
 	force := c.Bool("force", false, "start a wall-clock run over a serial line even when a state and a command take longer on the wire than a tick")
 	seeds := c.Int("seeds", 0, "run the scenario with `N` seeds of noise, drops and latency and report the pass rate (Wilson 95 % interval) and the worst run")
+	vf := addViewFlags(c, true)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
+	}
+	if err := vf.check(); err != nil {
+		return c.usageError("%v", err)
 	}
 	if *maxSteps < 0 || *duration < 0 {
 		return c.usageError("--max-steps and --duration must be ≥ 0")
@@ -105,7 +109,8 @@ configuration.`, stdout, stderr)
 	if !*quiet {
 		o.OnStep = stepPrinter(c.progress())
 	}
-	return runAndReport(c, sc, o)
+	lv := newLiveView(vf, &o, c.stderr) // changes o: before o is passed on
+	return runAndReport(c, sc, o, lv)
 }
 
 // freshRunDir checks a --dir before anything opens: the run folder must be
@@ -126,7 +131,7 @@ func freshRunDir(dir string) error {
 
 // runAndReport runs one scenario under a signal context and prints its
 // verdict, or the JSON document under --json; it returns the exit code.
-func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options) int {
+func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options, lv *liveView) int {
 	ctx, stop := signalContext()
 	defer stop()
 	res := runResult{Scenario: sc.Name}
@@ -136,11 +141,23 @@ func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options) int {
 		return c.fail(err)
 	}
 	defer p.Close()
+	if lv != nil {
+		if err := lv.start(p); err != nil {
+			return c.fail(err)
+		}
+	}
 	res.Link, res.RunFolder = p.Link, p.Dir
 	if !c.jsonMode() {
 		fmt.Fprintf(c.stdout, "scenario %s: %s\nlink: %s\n", sc.Name, sc.Description, p.Link)
 	}
 	r, err := p.Run(ctx)
+	if lv != nil {
+		var sum *record.Summary
+		if r.Summary.Outcome != "" {
+			sum = &r.Summary
+		}
+		lv.finish(sum, r.Dir)
+	}
 	if r.Dir != "" && r.Summary.Outcome != "" {
 		res.Summary = &r.Summary
 		if _, serr := os.Stat(filepath.Join(r.Dir, report.HTMLFile)); serr == nil {
@@ -195,5 +212,5 @@ per step, then the verdict and the path of the run folder with its report.`, std
 	if !*quiet {
 		o.OnStep = stepPrinter(c.progress())
 	}
-	return runAndReport(c, sc, o)
+	return runAndReport(c, sc, o, nil)
 }

@@ -68,10 +68,18 @@ from the recorded initial state and drives it with the recorded applied
 torques and hip forces, tick by tick. Says whether the trajectory matches the
 record exactly (bit for bit) and, if not, the first tick and coordinate that
 diverge. Exit code 0 on an exact match, 1 on a divergence, 2 for bad usage
-or a folder that cannot be replayed.`, stdout, stderr)
+or a folder that cannot be replayed.
+
+With --view it then plays the recorded run into the live view page, with
+pause, speed and seek, until SIGINT or SIGTERM; the exit code is still the
+comparison's.`, stdout, stderr)
+	vf := addViewFlags(c, false)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
+	}
+	if err := vf.check(); err != nil {
+		return c.usageError("%v", err)
 	}
 	if c.NArg() != 1 {
 		return c.usageError("want exactly one RUNDIR, got %d arguments", c.NArg())
@@ -85,10 +93,16 @@ or a folder that cannot be replayed.`, stdout, stderr)
 		code = exitFail
 	}
 	if c.jsonMode() {
-		return c.printJSON(replayResult{RunFolder: c.Arg(0), Ticks: res.Ticks, Match: res.Match, FirstDivergence: res.FirstDivergence,
+		code = c.printJSON(replayResult{RunFolder: c.Arg(0), Ticks: res.Ticks, Match: res.Match, FirstDivergence: res.FirstDivergence,
 			Field: res.Field, Recorded: res.Recorded, Replayed: res.Replayed, Truncated: res.Truncated, Verdict: res.String()}, code)
+	} else {
+		fmt.Fprintln(stdout, res.String())
 	}
-	fmt.Fprintln(stdout, res.String())
+	if vf.addr.set {
+		if err := playView(c.Arg(0), vf, c.stderr); err != nil {
+			return c.fail(err)
+		}
+	}
 	return code
 }
 
