@@ -3,13 +3,18 @@ package conformance
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"sort"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
+	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/bridges/serial"
+	"gaitrig/firmware/reference"
 )
 
 // testSamples keeps the battery short in tests; the round-trip figure is
@@ -160,5 +165,77 @@ func TestUnknownTypeFrame(t *testing.T) {
 	err := protocol.Decode(unknownTypeFrame(protocol.Version, 7), &m)
 	if !errors.Is(err, protocol.ErrUnknownType) {
 		t.Fatalf("decoding the unknown-type frame: %v, want an unknown-type refusal", err)
+	}
+}
+
+// The reference firmware as a board on the leader of a real pty pair, one
+// Serve for the whole battery (Options.GreetAgain, as `gaitrig firmware`
+// runs it): the battery opens the follower path anew for each session, so
+// the second greeting comes from the same firmware after its stop. Run for
+// a firmware of protocol version 1 and of the current version: the battery
+// must speak the version the firmware greeted with, and every check must
+// pass in both.
+func TestReferenceFirmwareGreetsAgainOverPty(t *testing.T) {
+	for _, v := range []uint8{1, protocol.Version} {
+		t.Run(fmt.Sprintf("v%d", v), func(t *testing.T) {
+			p, err := serial.NewPty()
+			if err != nil {
+				t.Fatal(err)
+			}
+			fwConn := serial.NewConn(p.Master, "pty leader", serial.Config{})
+			var mu sync.Mutex
+			var sessions []error
+			ctx, cancel := context.WithCancel(context.Background())
+			served := make(chan error, 1)
+			go func() {
+				served <- reference.ServeContext(ctx, fwConn, reference.Options{Protocol: v, GreetAgain: true, IdleTimeout: 30 * time.Second,
+					SessionEnded: func(err error) { mu.Lock(); sessions = append(sessions, err); mu.Unlock() }})
+			}()
+			defer func() {
+				cancel()
+				select {
+				case err := <-served:
+					if err != nil {
+						t.Errorf("the firmware ended with %v, want nil when its context ends", err)
+					}
+				case <-time.After(5 * time.Second):
+					t.Error("the firmware did not end within 5 s of its context")
+				}
+				fwConn.Close()
+				p.Close()
+			}()
+			dials := 0
+			dial := func() (bridges.Conn, func(), error) {
+				c, err := serial.Open(serial.Config{Port: p.Path})
+				if err != nil {
+					return nil, nil, err
+				}
+				dials++
+				return c, func() { c.Close() }, nil
+			}
+			rctx, rcancel := context.WithTimeout(context.Background(), 2*time.Minute)
+			defer rcancel()
+			rep, err := Run(rctx, fmt.Sprintf("pty (reference v%d)", v), dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, c := range rep.Checks {
+				if c.Status != Pass {
+					t.Errorf("%s: %s (%s), want pass", c.Name, c.Status, c.Seen)
+				}
+			}
+			if !rep.Passed || rep.Greeting == nil || rep.Greeting.Version != v {
+				t.Errorf("verdict %v, greeting %+v: want a pass with version %d", rep.Passed, rep.Greeting, v)
+			}
+			if dials != 2 {
+				t.Errorf("%d dials, want 2", dials)
+			}
+			checkPercentiles(t, rep)
+			mu.Lock()
+			defer mu.Unlock()
+			if len(sessions) != 2 || sessions[0] != nil || sessions[1] == nil {
+				t.Errorf("sessions ended with %v; want a normal end, then the refusal", sessions)
+			}
+		})
 	}
 }
