@@ -239,3 +239,52 @@ func TestReferenceFirmwareGreetsAgainOverPty(t *testing.T) {
 		})
 	}
 }
+
+// A link that cannot be opened again at once (the embedded broker still
+// holding the closed client's id) is dialled again within the handshake
+// time: two refused dials, then the board greets and every check passes,
+// the attempts named. A link that never opens again fails the greeting
+// check with the dial's error and leaves the refusal check not run.
+func TestSecondSessionRedials(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		refused int // dials refused after the first session
+		want    Status
+	}{{"opens at the third attempt", 2, Pass}, {"never opens", math.MaxInt, Fail}} {
+		t.Run(tc.name, func(t *testing.T) {
+			board := startBoard(t, faultNone)
+			dials, refused := 0, 0
+			dial := func() (bridges.Conn, func(), error) {
+				dials++
+				if dials > 1 && refused < tc.refused {
+					refused++
+					return nil, nil, errors.New("client id still in use")
+				}
+				return board()
+			}
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			rep, err := Run(ctx, "test board", dial, Options{Samples: 20})
+			if err != nil {
+				t.Fatal(err)
+			}
+			r, _ := rep.Result(CheckGreetsAgain)
+			if r.Status != tc.want {
+				t.Fatalf("%s: %s (%s), want %s", r.Name, r.Status, r.Seen, tc.want)
+			}
+			switch tc.want {
+			case Pass:
+				if !strings.Contains(r.Seen, "attempt 3") || !rep.Passed {
+					t.Errorf("seen %q, verdict %v: want a pass at attempt 3", r.Seen, rep.Passed)
+				}
+			case Fail:
+				if !strings.Contains(r.Seen, "client id still in use") {
+					t.Errorf("seen %q: want the dial's error", r.Seen)
+				}
+				if rr, _ := rep.Result(CheckRefusesBadConf); rr.Status != NotRun {
+					t.Errorf("refusal check %s, want %s", rr.Status, NotRun)
+				}
+			}
+		})
+	}
+}
