@@ -451,9 +451,28 @@ func (b *battery) secondSession(dial Dialer) {
 		b.notRun("no greeting in the first session", CheckGreetsAgain, CheckRefusesBadConf)
 		return
 	}
-	conn, closeLink, err := dial()
+	// The link just closed may not be released yet by the other side: the
+	// embedded broker refuses a client id while it still holds that
+	// client's old connection, and a port driver may hold a device
+	// briefly. So a failed dial is tried again, within the handshake time,
+	// as a person restarting the rig would; the attempts are reported.
+	var conn bridges.Conn
+	var closeLink func()
+	var err error
+	attempts := 0
+	for {
+		attempts++
+		conn, closeLink, err = dial()
+		if err == nil || time.Since(start) >= GreetingTimeout || b.ctx.Err() != nil {
+			break
+		}
+		select {
+		case <-b.ctx.Done():
+		case <-time.After(redialEvery):
+		}
+	}
 	if err != nil {
-		b.record(CheckGreetsAgain, Fail, start, "opening the link again: %v", err)
+		b.record(CheckGreetsAgain, Fail, start, "opening the link again (%d attempts in %v): %v", attempts, time.Since(start).Round(time.Millisecond), err)
 		b.notRun("the link could not be opened again", CheckRefusesBadConf)
 		return
 	}
@@ -465,7 +484,11 @@ func (b *battery) secondSession(dial Dialer) {
 		b.notRun("no greeting after the restart (reset the board and run again)", CheckRefusesBadConf)
 		return
 	}
-	b.record(CheckGreetsAgain, Pass, start, "greeted again: name %q, %d actuators", g.Name, g.Actuators)
+	reopened := ""
+	if attempts > 1 {
+		reopened = fmt.Sprintf(" (the link opened at attempt %d)", attempts)
+	}
+	b.record(CheckGreetsAgain, Pass, start, "greeted again: name %q, %d actuators%s", g.Name, g.Actuators, reopened)
 
 	start = time.Now()
 	n := int(g.Actuators)
@@ -492,6 +515,10 @@ func (b *battery) secondSession(dial Dialer) {
 		b.record(CheckRefusesBadConf, Fail, start, "a config of %d joints for %d actuators: no stop within %v (%s)", bad, n, Watchdog, a.why)
 	}
 }
+
+// redialEvery is the pause between attempts to open the link again for the
+// second session.
+const redialEvery = 100 * time.Millisecond
 
 // errLinkGone is how a session reports a link that closed under it.
 var errLinkGone = errors.New("the link closed")

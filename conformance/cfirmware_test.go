@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"strings"
 	"sync"
+	"syscall"
 	"testing"
 	"time"
 
@@ -43,65 +44,115 @@ func buildCFirmware(t *testing.T) string {
 	return bin
 }
 
-// cDialer starts the C firmware on the follower of a new pty pair with
-// every dial, as a board powered up anew, and gives the battery the
-// leader. Closing the link closes the leader; the firmware then sees the
-// line hang up and exits, or is killed after a bounded wait.
-func cDialer(t *testing.T, bin string) Dialer {
-	var mu sync.Mutex
-	var stderr []*bytes.Buffer
+// cProc is one C firmware process for a whole test.
+type cProc struct {
+	cmd    *exec.Cmd
+	stderr syncBuffer
+	done   chan struct{}
+}
+
+// syncBuffer is a bytes.Buffer safe for the process's writer and the
+// test's reader.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
+
+// startC starts the C firmware on tty for the rest of the test, with flags
+// before the tty (without --once it greets again after every stop, as a
+// board does). At the end of the
+// test it gets SIGTERM and, bounded, is killed; its stderr is logged when
+// the test failed.
+func startC(t *testing.T, bin, tty string, flags ...string) *cProc {
+	t.Helper()
+	args := append(append([]string{"-v"}, flags...), tty)
+	p := &cProc{cmd: exec.Command(bin, args...), done: make(chan struct{})}
+	p.cmd.Stderr = &p.stderr
+	if err := p.cmd.Start(); err != nil {
+		t.Fatalf("starting the C firmware: %v", err)
+	}
+	go func() { _ = p.cmd.Wait(); close(p.done) }()
 	t.Cleanup(func() {
+		p.end()
 		if t.Failed() {
-			mu.Lock()
-			for i, b := range stderr {
-				t.Logf("C firmware run %d stderr:\n%s", i+1, b.String())
-			}
-			mu.Unlock()
+			t.Logf("C firmware stderr:\n%s", p.stderr.String())
 		}
 	})
-	return func() (bridges.Conn, func(), error) {
-		p, err := serial.NewPty()
-		if err != nil {
-			return nil, nil, err
-		}
-		var errBuf bytes.Buffer
-		cmd := exec.Command(bin, p.Path)
-		cmd.Stderr = &errBuf
-		if err := cmd.Start(); err != nil {
-			p.Close()
-			return nil, nil, err
-		}
-		mu.Lock()
-		stderr = append(stderr, &errBuf)
-		mu.Unlock()
-		waited := make(chan struct{})
-		go func() { cmd.Wait(); close(waited) }()
-		conn := serial.NewConn(p.Master, "pty leader", serial.Config{})
-		return conn, func() {
-			conn.Close()
-			p.Close()
-			select {
-			case <-waited:
-			case <-time.After(3 * time.Second):
-				cmd.Process.Kill()
-				<-waited
-			}
-		}, nil
+	return p
+}
+
+// end stops the process (SIGTERM, then a kill after a bounded wait) and
+// waits for it.
+func (p *cProc) end() {
+	select {
+	case <-p.done:
+		return
+	default:
+	}
+	_ = p.cmd.Process.Signal(syscall.SIGTERM)
+	select {
+	case <-p.done:
+	case <-time.After(3 * time.Second):
+		_ = p.cmd.Process.Kill()
+		<-p.done
 	}
 }
 
-// The example C firmware, compiled with gcc, passes every check over a
-// real pty pair.
-func TestCFirmwarePasses(t *testing.T) {
-	bin := buildCFirmware(t)
+// exited reports whether the process has ended.
+func (p *cProc) exited() bool {
+	select {
+	case <-p.done:
+		return true
+	default:
+		return false
+	}
+}
+
+// counter reads one value of the "cfw: counters" line the firmware prints
+// on exit.
+func (p *cProc) counter(t *testing.T, key string) string {
+	t.Helper()
+	for _, line := range strings.Split(p.stderr.String(), "\n") {
+		rest, ok := strings.CutPrefix(line, "cfw: counters ")
+		if !ok {
+			continue
+		}
+		for _, kv := range strings.Fields(rest) {
+			if k, v, _ := strings.Cut(kv, "="); k == key {
+				return v
+			}
+		}
+	}
+	t.Fatalf("no counter %q in the C firmware's stderr:\n%s", key, p.stderr.String())
+	return ""
+}
+
+// passesInFull runs the battery and requires every check to pass and the
+// firmware to be the example C firmware; then the one process must still
+// be running (it served both sessions) and, once ended, count two sessions:
+// the battery's stop and its own refusal of the bad config.
+func passesInFull(t *testing.T, p *cProc, link string, dial Dialer) {
+	t.Helper()
 	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
 	defer cancel()
-	rep, err := Run(ctx, "pty (C firmware)", cDialer(t, bin), Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+	rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
 	if err != nil {
 		t.Fatal(err)
 	}
 	if !rep.Passed || len(rep.Failed()) > 0 {
-		t.Fatalf("verdict %v, failed %v", rep.Passed, rep.Failed())
+		t.Errorf("verdict %v, failed %v", rep.Passed, rep.Failed())
 	}
 	for _, c := range rep.Checks {
 		if c.Status != Pass {
@@ -112,4 +163,130 @@ func TestCFirmwarePasses(t *testing.T) {
 		t.Errorf("greeting %+v, want the example C firmware's", rep.Greeting)
 	}
 	checkPercentiles(t, rep)
+	if p.exited() {
+		t.Fatalf("the C firmware exited during the battery; it must serve both sessions")
+	}
+	p.end()
+	if got := p.counter(t, "sessions"); got != "2" {
+		t.Errorf("the C firmware counted %s sessions, want 2 (the battery's stop, then its refusal)", got)
+	}
+}
+
+// The example C firmware, compiled with gcc, passes every check over a
+// real pty pair, one process for both of the battery's sessions. The
+// firmware holds the follower; the battery speaks on the leader, which it
+// cannot close without the firmware seeing the cable pulled, so its
+// "restart" is a new session on the same open line (a rig that reopens a
+// port finds the line in the same state; the serial-port test below does
+// reopen it).
+func TestCFirmwarePasses(t *testing.T) {
+	bin := buildCFirmware(t)
+	pty, err := serial.NewPty()
+	if err != nil {
+		t.Fatal(err)
+	}
+	conn := serial.NewConn(pty.Master, "pty leader", serial.Config{})
+	t.Cleanup(func() { conn.Close(); pty.Close() })
+	p := startC(t, bin, pty.Path)
+	dials := 0
+	dial := func() (bridges.Conn, func(), error) {
+		dials++
+		return conn, func() {}, nil
+	}
+	passesInFull(t, p, "pty (C firmware)", dial)
+	if dials != 2 {
+		t.Errorf("the battery dialled %d times, want 2 (one per session)", dials)
+	}
+}
+
+// The C firmware built one-shot (--once) exits on the battery's stop, as
+// docs/protocol.md section 6 item 5 allows a test build to: the battery
+// must then fail greets_after_restart, and only it, leave the refusal check
+// not run, and withhold a passing verdict.
+func TestCFirmwareOnceFailsGreetAgain(t *testing.T) {
+	bin := buildCFirmware(t)
+	pty, err := serial.NewPty()
+	if err != nil {
+		t.Fatal(err)
+	}
+	conn := serial.NewConn(pty.Master, "pty leader", serial.Config{})
+	t.Cleanup(func() { conn.Close(); pty.Close() })
+	p := startC(t, bin, pty.Path, "--once")
+	dial := func() (bridges.Conn, func(), error) { return conn, func() {}, nil }
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	rep, err := Run(ctx, "pty (C firmware, --once)", dial, Options{Samples: 50})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Failed(); len(f) != 1 || f[0] != CheckGreetsAgain {
+		t.Errorf("failed checks %v, want exactly [%s]", f, CheckGreetsAgain)
+	}
+	if r, _ := rep.Result(CheckRefusesBadConf); r.Status != NotRun {
+		t.Errorf("%s: %s, want %s", CheckRefusesBadConf, r.Status, NotRun)
+	}
+	if rep.Passed {
+		t.Error("a one-shot firmware passed the battery")
+	}
+	select {
+	case <-p.done:
+	case <-time.After(5 * time.Second):
+		t.Fatal("the --once firmware did not exit after the battery's stop")
+	}
+	if got := p.counter(t, "end"); got != "stop" {
+		t.Errorf("the --once firmware ended with %q, want stop", got)
+	}
+}
+
+// The bench with a cable: socat links two ptys, the C firmware opens one,
+// and the battery opens the other as serial:PATH, through the rig's own
+// serial link, closing and reopening it between its sessions. The test
+// holds the rig's side open as well, as a cable stays plugged in while the
+// rig program restarts: without a holder, socat would take the last close
+// for a hang-up and end, and the firmware would see its line go.
+func TestCFirmwarePassesOverSerialPort(t *testing.T) {
+	bin := buildCFirmware(t)
+	socat, err := exec.LookPath("socat")
+	if err != nil {
+		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
+			t.Fatalf("socat is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
+		}
+		t.Skipf("socat not found (%v); set GAITRIG_REQUIRE_TOOLS=1 to make this a failure", err)
+	}
+	dir := t.TempDir()
+	fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
+	relay := exec.Command(socat, "pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
+	var relayErr syncBuffer
+	relay.Stderr = &relayErr
+	if err := relay.Start(); err != nil {
+		t.Fatalf("starting socat: %v", err)
+	}
+	relayDone := make(chan struct{})
+	go func() { _ = relay.Wait(); close(relayDone) }()
+	t.Cleanup(func() {
+		_ = relay.Process.Kill()
+		<-relayDone
+	})
+	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+		_, e1 := os.Stat(fwPath)
+		_, e2 := os.Stat(rigPath)
+		if e1 == nil && e2 == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+		}
+	}
+	holder, err := os.OpenFile(rigPath, os.O_RDWR|syscall.O_NOCTTY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { holder.Close() })
+	p := startC(t, bin, fwPath)
+	link := "serial:" + rigPath
+	dial, err := LinkDialer(link, "conformance-test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	passesInFull(t, p, link, dial)
 }

@@ -3,13 +3,18 @@ package conformance
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"sort"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
+	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/bridges/serial"
+	"gaitrig/firmware/reference"
 	"gaitrig/hil"
 )
 
@@ -167,5 +172,125 @@ func TestUnknownTypeFrame(t *testing.T) {
 	err := protocol.Decode(unknownTypeFrame(protocol.Version, 7), &m)
 	if !errors.Is(err, protocol.ErrUnknownType) {
 		t.Fatalf("decoding the unknown-type frame: %v, want an unknown-type refusal", err)
+	}
+}
+
+// The reference firmware as a board on the leader of a real pty pair, one
+// Serve for the whole battery (Options.GreetAgain, as `gaitrig firmware`
+// runs it): the battery opens the follower path anew for each session, so
+// the second greeting comes from the same firmware after its stop. Run for
+// a firmware of protocol version 1 and of the current version: the battery
+// must speak the version the firmware greeted with, and every check must
+// pass in both.
+func TestReferenceFirmwareGreetsAgainOverPty(t *testing.T) {
+	for _, v := range []uint8{1, protocol.Version} {
+		t.Run(fmt.Sprintf("v%d", v), func(t *testing.T) {
+			p, err := serial.NewPty()
+			if err != nil {
+				t.Fatal(err)
+			}
+			fwConn := serial.NewConn(p.Master, "pty leader", serial.Config{})
+			var mu sync.Mutex
+			var sessions []error
+			ctx, cancel := context.WithCancel(context.Background())
+			served := make(chan error, 1)
+			go func() {
+				served <- reference.ServeContext(ctx, fwConn, reference.Options{Protocol: v, GreetAgain: true, IdleTimeout: 30 * time.Second,
+					SessionEnded: func(err error) { mu.Lock(); sessions = append(sessions, err); mu.Unlock() }})
+			}()
+			defer func() {
+				cancel()
+				select {
+				case err := <-served:
+					if err != nil {
+						t.Errorf("the firmware ended with %v, want nil when its context ends", err)
+					}
+				case <-time.After(5 * time.Second):
+					t.Error("the firmware did not end within 5 s of its context")
+				}
+				fwConn.Close()
+				p.Close()
+			}()
+			dials := 0
+			dial := func() (bridges.Conn, func(), error) {
+				c, err := serial.Open(serial.Config{Port: p.Path})
+				if err != nil {
+					return nil, nil, err
+				}
+				dials++
+				return c, func() { c.Close() }, nil
+			}
+			rctx, rcancel := context.WithTimeout(context.Background(), 2*time.Minute)
+			defer rcancel()
+			rep, err := Run(rctx, fmt.Sprintf("pty (reference v%d)", v), dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, c := range rep.Checks {
+				if c.Status != Pass {
+					t.Errorf("%s: %s (%s), want pass", c.Name, c.Status, c.Seen)
+				}
+			}
+			if !rep.Passed || rep.Greeting == nil || rep.Greeting.Version != v {
+				t.Errorf("verdict %v, greeting %+v: want a pass with version %d", rep.Passed, rep.Greeting, v)
+			}
+			if dials != 2 {
+				t.Errorf("%d dials, want 2", dials)
+			}
+			mu.Lock()
+			defer mu.Unlock()
+			if len(sessions) != 2 || sessions[0] != nil || sessions[1] == nil {
+				t.Errorf("sessions ended with %v; want a normal end, then the refusal", sessions)
+			}
+		})
+	}
+}
+
+// A link that cannot be opened again at once (the embedded broker still
+// holding the closed client's id) is dialled again within the handshake
+// time: two refused dials, then the board greets and every check passes,
+// the attempts named. A link that never opens again fails the greeting
+// check with the dial's error and leaves the refusal check not run.
+func TestSecondSessionRedials(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		refused int // dials refused after the first session
+		want    Status
+	}{{"opens at the third attempt", 2, Pass}, {"never opens", math.MaxInt, Fail}} {
+		t.Run(tc.name, func(t *testing.T) {
+			board := startBoard(t, faultNone)
+			dials, refused := 0, 0
+			dial := func() (bridges.Conn, func(), error) {
+				dials++
+				if dials > 1 && refused < tc.refused {
+					refused++
+					return nil, nil, errors.New("client id still in use")
+				}
+				return board()
+			}
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			rep, err := Run(ctx, "test board", dial, Options{Samples: 20})
+			if err != nil {
+				t.Fatal(err)
+			}
+			r, _ := rep.Result(CheckGreetsAgain)
+			if r.Status != tc.want {
+				t.Fatalf("%s: %s (%s), want %s", r.Name, r.Status, r.Seen, tc.want)
+			}
+			switch tc.want {
+			case Pass:
+				if !strings.Contains(r.Seen, "attempt 3") || !rep.Passed {
+					t.Errorf("seen %q, verdict %v: want a pass at attempt 3", r.Seen, rep.Passed)
+				}
+			case Fail:
+				if !strings.Contains(r.Seen, "client id still in use") {
+					t.Errorf("seen %q: want the dial's error", r.Seen)
+				}
+				if rr, _ := rep.Result(CheckRefusesBadConf); rr.Status != NotRun {
+					t.Errorf("refusal check %s, want %s", rr.Status, NotRun)
+				}
+			}
+		})
 	}
 }

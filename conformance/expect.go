@@ -46,8 +46,9 @@ const (
 	// cannot drive with (section 6.1 item 5: reason 4 firmware).
 	RefusalReason = protocol.StopFirmware
 	// GreetAgainRequired: must a firmware greet again when the rig opens
-	// the link anew after a stop? Section 6 item 5 says it "may".
-	GreetAgainRequired = false
+	// the link anew after a stop? Section 6 item 5 says it must: a board
+	// goes back to greeting after every stop; a one-shot build fails here.
+	GreetAgainRequired = true
 )
 
 // Check names, as printed, in --json and in the JUnit file.

@@ -858,7 +858,7 @@ func openPty(t testing.TB) *serial.Pty {
 func startFirmware(t testing.TB, ctx context.Context, bin, tty string) *firmwareProc {
 	t.Helper()
 	p := &firmwareProc{stderr: &syncBuffer{}, done: make(chan struct{})}
-	args := []string{bin, "-v", tty}
+	args := []string{bin, "-v", "--once", tty} // --once: the tests read the exit status of one run
 	// GAITRIG_CFW_WRAPPER runs the firmware under a checker, for example
 	// "valgrind --error-exitcode=99 -q": the checker's complaints land in
 	// the firmware's stderr and its exit status fails the test.

@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"time"
 
 	"gaitrig/bridges/broker"
 	"gaitrig/firmware/reference"
@@ -111,13 +112,18 @@ func cmdFirmware(args []string, stdout, stderr io.Writer) int {
 Runs the built-in reference firmware as its own process and connects to a rig
 exactly as a board or controller process would: over a serial port, over a
 new pseudo-terminal pair (with --link pty it prints the port the rig should
-open), or over MQTT. Ends when the rig sends stop.`, stdout, stderr)
+open), or over MQTT. Like a board, it greets again after each stop and
+serves the next rig on the same link; it ends when the link closes or no rig
+has spoken for --idle, with the exit status of the last run. --once ends it
+after the first run instead.`, stdout, stderr)
 	link := c.String("link", "", "where to serve, one of: "+firmwareLinks()+" (required)")
 	rigID := c.String("rig", "bench", "MQTT rig id")
 	mode := c.String("mode", reference.ModeWalk, `"walk" or "passive" (zero torques)`)
 	actuators := c.Int("actuators", 2, "number of torques announced (2 for the torso walker, 1 for a compass walker)")
 	userEnv := c.String("user-env", "", "environment variable holding the MQTT user name")
 	passEnv := c.String("password-env", "", "environment variable holding the MQTT password")
+	once := c.Bool("once", false, "end after the first run instead of greeting the next rig")
+	idle := c.Duration("idle", 10*time.Second, "end when no rig has spoken for this long")
 	if done, code := c.parse(args); done {
 		return code
 	}
@@ -127,23 +133,43 @@ open), or over MQTT. Ends when the rig sends stop.`, stdout, stderr)
 	if *link == "" {
 		return c.usageError("--link is required: one of %s", firmwareLinks())
 	}
+	if *idle <= 0 {
+		return c.usageError("--idle %v: want a positive duration, e.g. 10s", *idle)
+	}
 	if l, err := rig.ParseLink(*link); err != nil {
 		return c.usageError("%v", err)
 	} else if !servable(l.Kind) {
 		return c.usageError("--link %s: the firmware cannot be served over this link (it is the rig's side); want one of %s", *link, firmwareLinks())
 	}
-	o := reference.Options{Mode: *mode, Actuators: *actuators}
+	runs := 0
+	var last error
+	o := reference.Options{Mode: *mode, Actuators: *actuators, IdleTimeout: *idle, GreetAgain: !*once, SessionEnded: func(err error) {
+		runs++
+		last = err
+		if err == nil {
+			fmt.Fprintf(stdout, "reference firmware: run %d: the rig ended the run normally\n", runs)
+		} else {
+			fmt.Fprintf(stdout, "reference firmware: run %d: %v\n", runs, err)
+		}
+	}}
 	announce := func(line string) { fmt.Fprintln(stdout, line) }
 	err := rig.ServeFirmware(*link, *rigID, os.Getenv(*userEnv), os.Getenv(*passEnv), o, announce)
+	if runs == 0 {
+		return c.fail(err) // never nil: Serve returns nil only after a run
+	}
+	if err != nil && err != last {
+		// The link failed after runs were served (with --once, err is the
+		// run's own result): say so, and let the last run decide the
+		// status, as with a quiet end.
+		fmt.Fprintln(stdout, "reference firmware: link ended:", err)
+	}
 	switch {
-	case err == nil:
-		fmt.Fprintln(stdout, "reference firmware: the rig ended the run normally")
+	case last == nil:
 		return exitPass
-	case errors.Is(err, reference.ErrRigStopped):
-		fmt.Fprintln(stdout, "reference firmware:", err)
+	case errors.Is(last, reference.ErrRigStopped):
 		return exitFail
 	}
-	return c.fail(err)
+	return c.fail(last)
 }
 
 // servable reports whether gaitrig firmware can serve over a link kind.

@@ -1,6 +1,7 @@
 package reference
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -38,6 +39,20 @@ type Options struct {
 	// frames of any other version but stop: that is how the rig's service
 	// of older boards is tested.
 	Protocol uint8
+	// GreetAgain makes the firmware behave as a board does after a stop
+	// (docs/protocol.md section 6 item 5): instead of returning, Serve
+	// forgets the configuration, greets again every GreetEvery and serves
+	// the next rig that configures it, on the same link. False (the
+	// default) keeps the one-shot firmware that tests and the rig's
+	// built-in links start afresh for every run: Serve returns after the
+	// first session.
+	GreetAgain bool
+	// SessionEnded, when not nil, is called after every session with its
+	// result (nil for a normal end, an error wrapping ErrRigStopped for
+	// another stop from the rig, or why the firmware refused the rig's
+	// configuration). With GreetAgain it is the only way to learn how each
+	// session ended.
+	SessionEnded func(err error)
 }
 
 // finite reports whether every value of the reading is a finite number.
@@ -67,6 +82,7 @@ var ErrRigStopped = errors.New("reference: the rig stopped the run")
 type Firmware struct {
 	o          Options
 	g          Gains
+	base       Gains // the gains before a config lowered the torque limit
 	configured bool
 	watchdog   time.Duration // from a config of version 2; 0 until then or in version 1
 	greeting   protocol.Message
@@ -107,7 +123,7 @@ func New(o Options) (*Firmware, error) {
 	if !protocol.KnownVersion(o.Protocol) {
 		return nil, fmt.Errorf("reference: protocol version %d: this build speaks versions %d to %d", o.Protocol, protocol.MinVersion, protocol.Version)
 	}
-	f := &Firmware{o: o, g: g}
+	f := &Firmware{o: o, g: g, base: g}
 	f.greeting.Version = o.Protocol
 	f.greeting.Type = protocol.TypeGreeting
 	f.greeting.Greeting = protocol.Greeting{Version: o.Protocol, Actuators: uint8(o.Actuators), Name: o.Name, Build: o.Build}
@@ -136,7 +152,9 @@ func (f *Firmware) Watchdog() time.Duration { return f.watchdog }
 // the next call). end is true when the session is over; err is then nil
 // after a normal end (StopEnd), wraps ErrRigStopped for any other stop, or
 // says why the firmware refused the rig's configuration (the answer is then
-// a Stop). It allocates nothing for a state.
+// a Stop). After the end the Firmware is unconfigured again: its next
+// message is the greeting, and a new config starts a new session. It
+// allocates nothing for a state.
 func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end bool, err error) {
 	o := &f.o
 	if v := in.WireVersion(); v != o.Protocol && in.Type != protocol.TypeStop {
@@ -153,6 +171,9 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 			f.out.Stop = protocol.Stop{Reason: protocol.StopFirmware, Text: "joint count mismatch"}
 			return &f.out, true, fmt.Errorf("reference: the rig configured %d joints, this firmware drives %d", in.Config.Joints, o.Actuators)
 		}
+		// A config starts a session afresh: a limit lowered by an earlier
+		// rig must not stay with the next one.
+		f.g = f.base
 		f.configured = true
 		f.watchdog = time.Duration(in.Config.WatchdogUS) * time.Microsecond
 		// The firmware keeps the rig's limits to itself: its own
@@ -195,6 +216,9 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 		}
 		return &f.out, false, nil
 	case protocol.TypeStop:
+		// The session is over: the firmware waits for a rig again, as it
+		// did after power-up (docs/protocol.md section 6 item 5).
+		f.configured, f.watchdog, f.g = false, 0, f.base
 		if in.Stop.Reason == protocol.StopEnd {
 			return nil, true, nil
 		}
@@ -211,11 +235,26 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 // or infinite reading is answered with zero torques and the StatusFault
 // bit. The firmware's torque limit is lowered to the smallest limit in the
 // rig's configuration when that is lower (0, a joint the rig does not
-// limit, does not count). It returns nil after a normal end
-// (StopEnd), an error wrapping ErrRigStopped for any other stop reason
-// (e-stop, watchdog, abort), and the link's error if it closes or stays
-// silent for IdleTimeout. Serve does not close conn.
+// limit, does not count). Serve does not close conn.
+//
+// Without Options.GreetAgain, Serve returns after one session: nil after a
+// normal end (StopEnd), an error wrapping ErrRigStopped for any other stop
+// reason (e-stop, watchdog, abort), the refusal when the configuration does
+// not fit, and the link's error if it closes or stays silent for
+// IdleTimeout. With GreetAgain it serves one session after another (see
+// ServeContext).
 func Serve(conn bridges.Conn, o Options) error {
+	return ServeContext(context.Background(), conn, o)
+}
+
+// ServeContext is Serve that also ends when ctx ends, returning nil then:
+// the caller asked it to. With Options.GreetAgain, a session's end (its
+// result goes to Options.SessionEnded) is followed by the greeting again,
+// every GreetEvery, until the next rig configures the firmware; ServeContext
+// then returns only when ctx ends, the link fails (its error), or no rig
+// speaks for IdleTimeout: nil when at least one session was served (the
+// bench went quiet after its runs), an error when none was.
+func ServeContext(ctx context.Context, conn bridges.Conn, o Options) error {
 	f, err := New(o)
 	if err != nil {
 		return err
@@ -227,16 +266,24 @@ func Serve(conn bridges.Conn, o Options) error {
 	var m protocol.Message
 	var fe *bridges.FrameError
 	lastHeard := time.Now()
+	lastGreeting := lastHeard
+	sessions := 0
 	for {
+		if ctx.Err() != nil {
+			return nil
+		}
 		// Until the rig configures it, the firmware repeats its greeting
 		// every GreetEvery, as a board that boots before the rig listens
 		// must: over MQTT or a freshly opened port the first one may be
-		// lost.
+		// lost. A context that can end is looked at as often, since
+		// nothing can interrupt a waiting Recv but the link.
+		now := time.Now()
 		deadline := lastHeard.Add(o.IdleTimeout)
 		if !f.configured {
-			if next := time.Now().Add(GreetEvery); next.Before(deadline) {
-				deadline = next
-			}
+			deadline = earlier(deadline, lastGreeting.Add(GreetEvery))
+		}
+		if ctx.Done() != nil {
+			deadline = earlier(deadline, now.Add(GreetEvery))
 		}
 		err := conn.Recv(deadline, &m)
 		switch {
@@ -246,9 +293,13 @@ func Serve(conn bridges.Conn, o Options) error {
 			continue // a board drops a bad frame and waits for the next one
 		case errors.Is(err, bridges.ErrTimeout):
 			if time.Since(lastHeard) >= o.IdleTimeout {
+				if sessions > 0 {
+					return nil
+				}
 				return fmt.Errorf("reference: nothing from the rig for %v", o.IdleTimeout)
 			}
-			if !f.configured {
+			if !f.configured && time.Since(lastGreeting) >= GreetEvery {
+				lastGreeting = time.Now()
 				if err := conn.Send(f.Greeting()); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
 					return fmt.Errorf("reference: link: %w", err)
 				}
@@ -268,8 +319,26 @@ func Serve(conn bridges.Conn, o Options) error {
 				return fmt.Errorf("reference: sending a command: %w", err)
 			}
 		}
-		if end {
+		if !end {
+			continue
+		}
+		sessions++
+		if o.SessionEnded != nil {
+			o.SessionEnded(herr)
+		}
+		if !o.GreetAgain {
 			return herr
 		}
+		// The next greeting comes one period after the stop, not at once:
+		// the rig that stopped may still be reading its last answers.
+		lastGreeting = time.Now()
 	}
+}
+
+// earlier returns the earlier of two times.
+func earlier(a, b time.Time) time.Time {
+	if b.Before(a) {
+		return b
+	}
+	return a
 }

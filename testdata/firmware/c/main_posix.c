@@ -7,20 +7,25 @@
  * protocol (protocol.c) and the control law (controller.c) do no I/O, so a
  * port to a microcontroller replaces only this file (see README.md).
  *
- * Usage: gaitrig-cfw [-v] [-j 1|2] TTY
+ * Usage: gaitrig-cfw [-v] [-j 1|2] [--once] TTY
  *
  *   -v     also log the configuration (refused frames are always logged)
  *   -j N   actuators to announce: 2 (default, a walker with a torso and
  *          joints hip_left, hip_right) or 1 (a compass walker, joint hip)
+ *   --once exit after the first stop instead of greeting again (a one-shot
+ *          build for tests that read the exit status and counters of one
+ *          run; the conformance battery fails it on greets_after_restart)
  *
  * It follows the session of docs/protocol.md section 6: a zero byte when the
  * line opens, a greeting repeated every 500 ms until a config arrives, one
- * command per state, a heartbeat after 100 ms without sending, and an exit
- * on stop.
+ * command per state, a heartbeat after 100 ms without sending, and after a
+ * stop (the rig's, or its own refusal) back to greeting for the next rig, as
+ * a board does (section 6 item 5); with --once, an exit on stop.
  *
- * Exit status: 0 after a stop with reason "end" from the rig; 1 after any
- * other stop reason, a frame of another protocol version, a config it cannot
- * drive, a link closed under it, a rig silent after its config for 20 of the
+ * Exit status: with --once, 0 after a stop with reason "end" from the rig; 1
+ * after any other stop reason, a frame of another protocol version or a
+ * config it cannot drive (without --once these end only the session). Either
+ * way 1 after a link closed under it, a rig silent after its config for 20 of the
  * watchdogs its config announced and at least 10 s (controller.c,
  * ctl_link_state; a silence beyond one watchdog is logged and counted as
  * "quiet"), or
@@ -71,12 +76,14 @@ struct counters {
     unsigned long heartbeats_out;
     unsigned long greetings;
     unsigned long quiet;        /* silences of the rig longer than its watchdog */
+    unsigned long sessions;     /* sessions ended by a stop (either side's) */
 };
 
 struct link {
     int fd;
     int verbose;
     int actuators; /* announced in the greeting: 2 torso walker, 1 compass */
+    int once;      /* --once: exit after the first stop instead of greeting again */
     struct counters n;
     uint8_t rx[RX_LIMIT];
     size_t rx_len;
@@ -108,11 +115,11 @@ static void print_counters(const struct link *l, const char *end)
     fprintf(stderr,
             "cfw: counters bytes_in=%lu bytes_out=%lu frames_in=%lu frames_out=%lu "
             "frame_errors=%lu unexpected=%lu states=%lu commands=%lu repeats=%lu skipped=%lu "
-            "heartbeats_in=%lu heartbeats_out=%lu greetings=%lu quiet=%lu end=%s\n",
+            "heartbeats_in=%lu heartbeats_out=%lu greetings=%lu quiet=%lu sessions=%lu end=%s\n",
             l->n.bytes_in, l->n.bytes_out, l->n.frames_in, l->n.frames_out, l->n.frame_errors,
             l->n.unexpected, l->n.states, l->n.commands, l->n.repeats, l->n.skipped,
             l->n.heartbeats_in,
-            l->n.heartbeats_out, l->n.greetings, l->n.quiet, end);
+            l->n.heartbeats_out, l->n.greetings, l->n.quiet, l->n.sessions, end);
 }
 
 /* describe_error writes the refusal in the words of docs/protocol.md
@@ -586,14 +593,20 @@ static int run(struct link *l)
             r = on_block(l, &s);
             l->rx_len = 0;
             l->rx_overlong = 0;
-            switch (r) {
-            case KEEP_GOING:
-                break;
-            case STOPPED_NORMAL:
-                return finish(l, "stop", 0);
-            case STOPPED_OTHER:
-                return finish(l, "stop-other", 1);
-            case LINK_FAILED:
+            if (r == STOPPED_NORMAL || r == STOPPED_OTHER) {
+                l->n.sessions++;
+                if (l->once) {
+                    return r == STOPPED_NORMAL ? finish(l, "stop", 0) : finish(l, "stop-other", 1);
+                }
+                /* Section 6 item 5: the session is over, the board is not.
+                 * Forget the config (a state that follows in the same read
+                 * is then ignored as one before a config) and greet again
+                 * one period from now, for the next rig. */
+                memset(&s, 0, sizeof s);
+                l->last_state_seq = 0; /* heartbeats of the next session: 0 before its first state */
+                last_greeting = t;
+                fprintf(stderr, "cfw: session %lu over, greeting again\n", l->n.sessions);
+            } else if (r == LINK_FAILED) {
                 return finish(l, "write-failed", 1);
             }
         }
@@ -605,7 +618,7 @@ static int run(struct link *l)
 
 static int usage(const char *prog)
 {
-    fprintf(stderr, "usage: %s [-v] [-j 1|2] TTY\n", prog);
+    fprintf(stderr, "usage: %s [-v] [-j 1|2] [--once] TTY\n", prog);
     return 2;
 }
 
@@ -619,6 +632,8 @@ int main(int argc, char **argv)
     for (i = 1; i < argc; i++) {
         if (strcmp(argv[i], "-v") == 0) {
             l.verbose = 1;
+        } else if (strcmp(argv[i], "--once") == 0) {
+            l.once = 1;
         } else if (strcmp(argv[i], "-j") == 0 && i + 1 < argc) {
             i++;
             if (strcmp(argv[i], "1") == 0) {
