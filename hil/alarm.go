@@ -7,6 +7,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"gaitrig/internal/nonfinite"
 	"gaitrig/record"
 )
 
@@ -185,7 +186,7 @@ func sinkEvent(ev record.Event) any {
 		o.Values = map[string]any{}
 		for k, v := range ev.Values {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				o.Values[k] = formatValue(v)
+				o.Values[k] = nonfinite.Word(v)
 			} else {
 				o.Values[k] = v
 			}
@@ -193,15 +194,4 @@ func sinkEvent(ev record.Event) any {
 	}
 	o.Event.Values = nil
 	return o
-}
-
-func formatValue(v float64) string {
-	switch {
-	case v != v:
-		return "NaN"
-	case v > 0:
-		return "+Inf"
-	default:
-		return "-Inf"
-	}
 }

@@ -2,8 +2,8 @@ package record
 
 import (
 	"encoding/json"
+	"gaitrig/internal/nonfinite"
 	"math"
-	"strconv"
 )
 
 // num is a float64 that survives JSON when it is not finite: NaN is written
@@ -14,16 +14,10 @@ type num float64
 
 // MarshalJSON writes x, non-finite values as null or "±Inf".
 func (x num) MarshalJSON() ([]byte, error) {
-	f := float64(x)
-	switch {
-	case math.IsNaN(f):
+	if math.IsNaN(float64(x)) {
 		return []byte("null"), nil
-	case math.IsInf(f, 1):
-		return []byte(`"+Inf"`), nil
-	case math.IsInf(f, -1):
-		return []byte(`"-Inf"`), nil
 	}
-	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
+	return nonfinite.AppendJSON(nil, float64(x), 64), nil
 }
 
 // UnmarshalJSON reads what MarshalJSON writes.

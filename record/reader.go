@@ -6,8 +6,8 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"gaitrig/internal/nonfinite"
 	"io"
-	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -181,21 +181,10 @@ func (r *Run) readEvents() error {
 	return nil
 }
 
-// parseJSONNumber reads a JSON number, or one of the strings "NaN", "+Inf",
-// "-Inf" that zerolog writes for non-finite values.
+// parseJSONNumber reads a JSON number, null (NaN) or one of the words
+// "NaN", "+Inf", "-Inf" that zerolog writes for non-finite values.
 func parseJSONNumber(raw json.RawMessage) (float64, error) {
-	raw = bytes.TrimSpace(raw)
-	if len(raw) > 0 && raw[0] == '"' {
-		var s string
-		if err := json.Unmarshal(raw, &s); err != nil {
-			return 0, err
-		}
-		return strconv.ParseFloat(s, 64)
-	}
-	if string(raw) == "null" {
-		return math.NaN(), nil
-	}
-	return strconv.ParseFloat(string(raw), 64)
+	return nonfinite.ParseJSON(raw, 64)
 }
 
 func checkHeader(line []byte, want []string) error {

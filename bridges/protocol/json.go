@@ -4,7 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
-	"math"
+	"gaitrig/internal/nonfinite"
 	"strconv"
 	"unicode/utf8"
 )
@@ -107,15 +107,7 @@ func appendFloats(dst []byte, key string, v []float32) []byte {
 }
 
 func appendF32(dst []byte, f float32) []byte {
-	switch {
-	case f != f:
-		return append(dst, `"NaN"`...)
-	case math.IsInf(float64(f), 1):
-		return append(dst, `"+Inf"`...)
-	case math.IsInf(float64(f), -1):
-		return append(dst, `"-Inf"`...)
-	}
-	return strconv.AppendFloat(dst, float64(f), 'g', -1, 32)
+	return nonfinite.AppendJSON(dst, float64(f), 32)
 }
 
 // appendJSONString writes s as a JSON string; invalid UTF-8 becomes U+FFFD.
@@ -152,18 +144,7 @@ func appendJSONString(dst []byte, s string) []byte {
 type jsonF32 float32
 
 func (f *jsonF32) UnmarshalJSON(b []byte) error {
-	switch string(b) {
-	case `"NaN"`:
-		*f = jsonF32(math.NaN())
-		return nil
-	case `"+Inf"`, `"Inf"`:
-		*f = jsonF32(math.Inf(1))
-		return nil
-	case `"-Inf"`:
-		*f = jsonF32(math.Inf(-1))
-		return nil
-	}
-	v, err := strconv.ParseFloat(string(b), 32)
+	v, err := nonfinite.ParseJSON(b, 32)
 	if err != nil {
 		return fmt.Errorf("not a float32: %s", b)
 	}
