@@ -127,6 +127,10 @@ type FootContact struct {
 	SlipVel     float64     // tangential velocity of the foot's material point at the contact, m/s
 	Segment     int         // index of the terrain segment nearest the foot
 	Point       [2]float64  // contact point (closest terrain point to the arc), m
+	// KneeTorque is the torque the knee stop of this leg's locked knee
+	// applies, N·m: positive while it holds the knee against
+	// hyperextension; 0 for an unlocked knee or a straight leg.
+	KneeTorque float64
 }
 
 // TickResult is everything Step reports about one tick.

@@ -85,6 +85,10 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			}
 			rows.k++
 		}
+		// A locked knee stays locked through the impulse (the stance knee
+		// and the trailing knee alike), as published kneed passive gaits
+		// assume for the trailing leg.
+		m.kneeRows(s, &rows, nil)
 		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
 			// Redundant contacts (e.g. two arc feet whose centres are both
 			// the hip): keep the impacting foot alone.
@@ -105,7 +109,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			f := rows.foot[k]
 			if rows.kind[k] == 0 {
 				lt[f] = lam[k]
-			} else {
+			} else if rows.kind[k] == 1 {
 				ln[f] = lam[k]
 			}
 		}
