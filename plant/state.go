@@ -67,8 +67,9 @@ var ErrStand = errors.New("plant: cannot stand the walker")
 // Stand builds a consistent state: the given leg angles (and torso angle,
 // ignored without a torso), the hip at horizontal position x, and the hip
 // height chosen so that the stance foot touches the terrain and rolls. rates
-// are the link angular rates in link order (left, right[, torso]); missing
-// ones are zero. The hip velocity follows from the rolling constraint. The
+// are the link angular rates in link order (left, right[, torso][, shanks]);
+// missing ones are zero, except a shank's, which is its thigh's. A kneed
+// leg stands straight (shank angle = thigh angle) with its knee locked. The hip velocity follows from the rolling constraint. The
 // other foot is free; Stand fails if it would be below the ground by more
 // than 1 µm, unless Options.IgnoreScuff is set.
 func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle float64, rates ...float64) (State, error) {
@@ -102,6 +103,16 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	}
 	for i, r := range rates {
 		s.V[2+i] = r
+	}
+	// A kneed leg stands straight with its knee locked at the stop; a shank
+	// rate not given is the thigh's, so the knee starts at rest.
+	for j := 0; j < m.nKnees; j++ {
+		kn := &m.knees[j]
+		s.Q[2+kn.shank] = s.Q[2+kn.thigh]
+		if kn.shank >= len(rates) {
+			s.V[2+kn.shank] = s.V[2+kn.thigh]
+		}
+		s.KneeLocked[kn.thigh] = true
 	}
 	// Hip height: start with the hip above the terrain under it and adjust
 	// until the stance foot's gap is zero.
