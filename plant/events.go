@@ -68,6 +68,18 @@ const (
 	// BadInput: the tick's input or step size was unusable (NaN torque,
 	// dt ≤ 0); the state was left unchanged. Value = the bad number.
 	BadInput
+	// KneeStrike: an unlocked knee reached its stop with a closing rate
+	// and locked in a plastic impulse (solved with the feet in contact).
+	// Foot = the leg, Value = the knee's closing rate before (rad/s),
+	// EnergyLost = kinetic energy lost (J).
+	KneeStrike
+	// KneeUnlock: the stop of a swing leg's locked knee without a latch
+	// would have to pull, so the knee left its stop. Foot = the leg, Value
+	// = the lock torque (N·m, ≤ 0), Limit = 0.
+	KneeUnlock
+	// KneeBuckle: as KneeUnlock for a leg whose foot is on the ground: the
+	// stance knee buckles. The simulation continues with the knee free.
+	KneeBuckle
 )
 
 // String returns the event kind as lower-case words joined by '_'.
@@ -97,6 +109,12 @@ func (k EventKind) String() string {
 		return "chatter"
 	case BadInput:
 		return "bad_input"
+	case KneeStrike:
+		return "knee_strike"
+	case KneeUnlock:
+		return "knee_unlock"
+	case KneeBuckle:
+		return "knee_buckle"
 	}
 	return "unknown"
 }

@@ -44,6 +44,13 @@ type Shank struct {
 	// (a joint "knee_left" or "knee_right" after the hips); false leaves
 	// the knee passive.
 	Actuated bool
+	// Latch holds the knee at its stop with torque of either sign: it
+	// engages when the knee strikes its stop and at the leg's heel strike
+	// (if the knee is at its stop then), and releases when the leg's foot
+	// leaves the ground. Without a latch the stop only pushes: the knee
+	// unlocks when the stop would have to pull (a knee_buckle event while
+	// the foot is on the ground).
+	Latch bool
 }
 
 // Torso describes the optional torso link, hinged at the hip and pointing up.

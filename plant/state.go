@@ -27,9 +27,13 @@ type State struct {
 	// contacts; its torque is in FootContact.KneeTorque. An unlocked knee
 	// swings freely. Ignored for a straight leg.
 	KneeLocked [2]bool
+	// KneeLatched marks a locked knee whose latch (Shank.Latch) is engaged:
+	// it carries torque of either sign and does not unlock until the latch
+	// releases, when the leg's foot leaves the ground.
+	KneeLatched [2]bool
 	// fired marks alarm conditions that have fired and not yet cleared, so
 	// a persisting condition raises its event once.
-	fired uint16
+	fired uint32
 	// vertex marks a foot whose contact is the vertex at the end of
 	// segment Seg (rather than the inside of Seg).
 	vertex [2]bool
@@ -113,6 +117,7 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 			s.V[2+kn.shank] = s.V[2+kn.thigh]
 		}
 		s.KneeLocked[kn.thigh] = true
+		s.KneeLatched[kn.thigh] = m.p.Legs[kn.thigh].Shank.Latch && kn.thigh == stance
 	}
 	// Hip height: start with the hip above the terrain under it and adjust
 	// until the stance foot's gap is zero.
