@@ -55,10 +55,25 @@
 // (the knee angle is θ_shank − θ_thigh, zero straight, negative flexed). A
 // locked knee (State.KneeLocked) is one more constraint row, θ̈_shank −
 // θ̈_thigh = 0, solved with the contact rows; its force is the knee's lock
-// torque (FootContact.KneeTorque). A locked knee stays locked through an
-// impulse. The checks are a SymPy derivation of the tree by Lagrange's
-// equations (kneed_test.go) and the compass walker reproduced by the
-// kneed walker with both knees locked (kneelock_test.go).
+// torque (FootContact.KneeTorque, positive while the stop pushes).
+//
+// The knee stop is unilateral. A locked knee whose lock torque would turn
+// negative (the stop would have to pull) unlocks: a knee_buckle event when
+// its foot is on the ground, knee_unlock in swing. An unlocked knee
+// reaching its stop (θ_shank − θ_thigh = 0) is a knee strike: a plastic
+// impulse locks it, solved together with no-slip impulses at the feet in
+// contact (a foot that would need a pulling impulse is released). A
+// Shank.Latch engages at a knee strike and at the leg's heel strike (when
+// the knee is at its stop then) and releases when the foot leaves the
+// ground; a latched knee carries torque of either sign. At a heel strike
+// every locked knee is held through the impulse — the trailing leg's too,
+// as published kneed passive gaits assume — and the trailing knee's latch
+// releases as its foot leaves the ground, after which its stop alone holds
+// it. The checks are a SymPy derivation of the tree by Lagrange's
+// equations (kneed_test.go), the compass walker reproduced by the kneed
+// walker with both knees latched (kneelock_test.go), and the conservation
+// of angular momentum and energy at and between knee strikes
+// (kneestrike_test.go).
 //
 // # Numerics
 //
