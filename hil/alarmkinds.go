@@ -39,6 +39,7 @@ const (
 	AlarmBeltEndNear      = "belt_end_near"      // the hip or a foot within the belt's end margin of a belt end
 	AlarmBeltEndPassed    = "belt_end_passed"    // the hip or a foot beyond an end of the belt: off the treadmill
 	AlarmHarnessCaught    = "harness_caught"     // the fall-arrest harness caught the walker (value: peak rope force, N)
+	AlarmKneeBuckle       = "knee_buckle"        // a stance knee without a latch would need its stop to pull: it buckles
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -51,6 +52,7 @@ var AlarmKinds = []string{
 	AlarmActuatorMismatch, AlarmFirmwareReset, AlarmFirmwareSafeMode,
 	AlarmBrokerRefusal,
 	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught,
+	AlarmKneeBuckle,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -78,6 +80,9 @@ var DefaultSeverity = map[string]Severity{
 	// A board that reset mid-run lost its controller state; torques from it
 	// cannot be trusted to continue the gait.
 	AlarmFirmwareReset: SeverityTrip,
+	// A buckling stance knee drops the walker as surely as a lifting foot
+	// (lift_off trips too).
+	AlarmKneeBuckle: SeverityTrip,
 	// The firmware says it is in its own safe mode: worth a line in the
 	// record, but it keeps answering and the rig applies what it sends.
 	AlarmFirmwareSafeMode: SeverityWarn,
