@@ -1,6 +1,7 @@
 package plant
 
 import (
+	"errors"
 	"math"
 	"testing"
 )
@@ -241,5 +242,49 @@ func TestStanceKneeBucklesWhenTheStopWouldPull(t *testing.T) {
 	}
 	if pos == 0 || neg == 0 {
 		t.Errorf("the sweep gave %d positive and %d negative lock torques; it needs both", pos, neg)
+	}
+}
+
+// The analysis that does not yet know the knees refuses a kneed walker
+// with ErrKneedAnalysis instead of returning numbers that mean nothing.
+func TestKneedAnalysisRefused(t *testing.T) {
+	m, _ := kneedPair(t)
+	s, err := m.Stand(0, 0, [2]float64{0.3, -0.4}, 0, -1.3, -0.7)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := FindGait(m, nil, s, GaitOptions{}); !errors.Is(err, ErrKneedAnalysis) {
+		t.Errorf("FindGait: %v, want ErrKneedAnalysis", err)
+	}
+	if _, err := m.MapJacobian(s, nil, GaitOptions{}); !errors.Is(err, ErrKneedAnalysis) {
+		t.Errorf("MapJacobian: %v, want ErrKneedAnalysis", err)
+	}
+	if _, err := m.MapJacobianFD(s, nil, GaitOptions{}, 1e-6); !errors.Is(err, ErrKneedAnalysis) {
+		t.Errorf("MapJacobianFD: %v, want ErrKneedAnalysis", err)
+	}
+}
+
+// A bad shank is refused with the field that is wrong.
+func TestShankValidation(t *testing.T) {
+	kneed, _ := kneedPair(t)
+	for _, c := range []struct {
+		field string
+		edit  func(p *Params)
+	}{
+		{"Legs[0].Shank.Length", func(p *Params) { p.Legs[0].Shank.Length = 0 }},
+		{"Legs[1].Shank.Mass", func(p *Params) { p.Legs[1].Shank.Mass = math.NaN() }},
+		{"Legs[0].Shank.Inertia", func(p *Params) { p.Legs[0].Shank.Mass, p.Legs[0].Shank.Inertia = 0, 0 }},
+		{"Legs[1].FootRadius", func(p *Params) { p.Legs[1].FootRadius = 0.5 }}, // longer than the 0.45 m shank
+		{"Legs[0].ArcOffset", func(p *Params) { p.Legs[0].ArcOffset = -0.5 }},
+	} {
+		p := kneed.Params()
+		c.edit(&p)
+		var pe *ParamError
+		if err := p.Validate(); !errors.As(err, &pe) || pe.Field != c.field {
+			t.Errorf("%s: got %v", c.field, err)
+		}
+	}
+	if err := kneed.Params().Validate(); err != nil {
+		t.Errorf("valid kneed walker refused: %v", err)
 	}
 }
