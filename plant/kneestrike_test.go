@@ -288,3 +288,58 @@ func TestShankValidation(t *testing.T) {
 		t.Errorf("valid kneed walker refused: %v", err)
 	}
 }
+
+// Energy balance over a passive kneed step (the principle: without input
+// and with rolling contact, T + V changes only at the impacts): from just
+// after a heel strike, the swing knee free, through its knee strike, to
+// the next heel strike, E_end − E_start = −(energy lost at the knee strike
+// + at the heel strike), to the integration drift. The step must contain a
+// knee strike, or the check proves less than it claims.
+func TestKneedStepEnergyBalance(t *testing.T) {
+	m, _ := kneedPair(t)
+	s, err := m.Stand(0, 0, [2]float64{0.25, -0.3}, 0, -1.3, 0.6)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s.KneeLocked[1], s.KneeLatched[1] = false, false
+	k0, p0 := m.Energy(&s)
+	e0 := k0 + p0
+	lost := 0.0
+	kinds := map[EventKind]int{}
+	var r TickResult
+	done := false
+	for tick := 0; tick < 3000 && !done; tick++ {
+		m.Step(&s, nil, 1e-3, &r)
+		if r.Stopped {
+			t.Fatalf("tick %d stopped: %v", tick, r.Events[:r.NumEvents])
+		}
+		for j := 0; j < r.NumEvents; j++ {
+			e := r.Events[j]
+			kinds[e.Kind]++
+			switch e.Kind {
+			case KneeStrike:
+				lost += e.EnergyLost
+			case HeelStrike:
+				lost += e.EnergyLost
+				done = true
+			}
+		}
+	}
+	if !done {
+		t.Fatalf("no heel strike in 3 s; events %v", kinds)
+	}
+	if kinds[KneeStrike] == 0 {
+		t.Fatalf("the step had no knee strike (events %v)", kinds)
+	}
+	// The heel-strike tick goes on after the impact (with the trailing
+	// knee held, then possibly unlocking): energy is conserved there too.
+	k1, p1 := m.Energy(&s)
+	e1 := k1 + p1
+	t.Logf("E %.9g → %.9g J, lost at impacts %.6g J, imbalance %.3g J, events %v", e0, e1, lost, e1-e0+lost, kinds)
+	if d := math.Abs(e1 - e0 + lost); d > 1e-9*math.Abs(k0) {
+		t.Errorf("energy balance off by %.3g J (ΔE %.9g, lost %.9g)", d, e1-e0, lost)
+	}
+	if !(lost > 0) {
+		t.Errorf("no energy lost at the impacts (%.3g J)", lost)
+	}
+}
