@@ -104,7 +104,7 @@ type saddle struct {
 // pivoting. It reports false if the system is singular.
 func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
 	if m.nKnees > 0 {
-		return m.solveDense(tr, f, sd, x, lam)
+		return m.solveTree(tr, f, sd, x, lam)
 	}
 	return m.solveSaddleWith(tr, f, sd, x, lam, true)
 }
