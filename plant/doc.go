@@ -80,9 +80,10 @@
 // Each evaluation solves the saddle-point system for q̈ and λ together:
 // links without contact are eliminated through the arrow shape of M, one
 // rolling foot has a closed form, anything else is a small Gaussian
-// elimination with row equilibration and partial pivoting. A kneed walker,
-// whose M is not an arrow, always takes the dense elimination of the full
-// system (coordinates and rows, at most 13 unknowns). This stays
+// elimination with row equilibration and partial pivoting. A kneed walker
+// takes the same elimination over groups of links (solveTree): a leg's
+// thigh and shank couple with each other and, like every link, with the
+// hip only, and a locked knee makes its leg one rigid body. This stays
 // accurate for the nearly massless legs of the simplest walking model,
 // where the Schur complement J M⁻¹ Jᵀ would lose digits in proportion to
 // the mass ratio.
