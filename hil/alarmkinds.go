@@ -40,6 +40,7 @@ const (
 	AlarmBeltEndPassed    = "belt_end_passed"    // the hip or a foot beyond an end of the belt: off the treadmill
 	AlarmHarnessCaught    = "harness_caught"     // the fall-arrest harness caught the walker (value: peak rope force, N)
 	AlarmHostStall        = "host_stall"         // the rig itself was not running (host load) for as long as the watchdog
+	AlarmKneeBuckle       = "knee_buckle"        // a stance knee without a latch would need its stop to pull: it buckles
 )
 
 // AlarmKinds lists every alarm kind in a fixed order (for tables and
@@ -52,6 +53,7 @@ var AlarmKinds = []string{
 	AlarmActuatorMismatch, AlarmFirmwareReset, AlarmFirmwareSafeMode,
 	AlarmBrokerRefusal,
 	AlarmBeltEndNear, AlarmBeltEndPassed, AlarmHarnessCaught, AlarmHostStall,
+	AlarmKneeBuckle,
 }
 
 // DefaultSeverity is the severity of each alarm kind when a scenario does
@@ -79,6 +81,9 @@ var DefaultSeverity = map[string]Severity{
 	// A board that reset mid-run lost its controller state; torques from it
 	// cannot be trusted to continue the gait.
 	AlarmFirmwareReset: SeverityTrip,
+	// A buckling stance knee drops the walker as surely as a lifting foot
+	// (lift_off trips too).
+	AlarmKneeBuckle: SeverityTrip,
 	// The firmware says it is in its own safe mode: worth a line in the
 	// record, but it keeps answering and the rig applies what it sends.
 	AlarmFirmwareSafeMode: SeverityWarn,

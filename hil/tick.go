@@ -248,6 +248,8 @@ func alarmKind(k plant.EventKind) (string, bool) {
 		return AlarmFall, true
 	case plant.NonFinite, plant.BadInput:
 		return AlarmNonFinite, true
+	case plant.KneeBuckle:
+		return AlarmKneeBuckle, true
 	}
 	return "", false
 }
@@ -303,6 +305,8 @@ func plantMessage(e *plant.Event) string {
 		return "the plant state became NaN or infinite; restored to the last finite state"
 	case plant.BadInput:
 		return fmt.Sprintf("the plant refused an unusable input (%g)", e.Value)
+	case plant.KneeBuckle:
+		return fmt.Sprintf("%s knee would need its stop to pull (lock torque %.4g N·m) and has no latch: it buckles", f, e.Value)
 	}
 	return e.Kind.String()
 }

@@ -21,14 +21,20 @@ const (
 	// nearer-edge margin would start a step at ≤ 0, and a step long enough
 	// to pass the next edge too would see no sign change and miss it.
 	condRegion = 10
-	numCond    = 14
+	// + leg: θ_thigh − θ_shank of an unlocked knee (knee strike when it
+	// reaches 0 from above).
+	condKneeStop = 14
+	// + leg: lock torque of a locked knee without an engaged latch (unlock
+	// when it would turn negative).
+	condKneeTorque = 16
+	numCond        = 18
 )
 
 // latched reports whether condition c raises its event once and then waits
 // until it clears (true), or fires on every downward crossing (false).
 func latched(c int) bool {
 	return c == condNormal || c == condNormal+1 || c == condFriction || c == condFriction+1 ||
-		c == condHip || c == condTorso
+		c == condHip || c == condTorso || c == condKneeTorque || c == condKneeTorque+1
 }
 
 // maxTickEvents bounds the events handled inside one tick so that
@@ -67,6 +73,16 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, tau float64, ev *eval, 
 		if s.Mode[i] != Free {
 			val, _, _, _ := m.regionEdges(s, i, ev.geom[i].c)
 			c[condRegion+2*i], c[condRegion+2*i+1] = val[0], val[1]
+		}
+	}
+	for j := 0; j < m.nKnees; j++ {
+		kn := &m.knees[j]
+		i := kn.thigh
+		switch {
+		case !s.KneeLocked[i]:
+			c[condKneeStop+i] = q[2+kn.thigh] - q[2+kn.shank]
+		case !s.KneeLatched[i]:
+			c[condKneeTorque+i] = ev.knee[i]
 		}
 	}
 	if m.fallHip >= 0 {
@@ -115,6 +131,7 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 			e.Kind = ToeOff
 			r.add(e)
 			s.Mode[i] = Free
+			s.KneeLatched[i] = false
 			s.Stance = o
 			return false
 		}
@@ -124,6 +141,7 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 			return true
 		}
 		s.Mode[i] = Free
+		s.KneeLatched[i] = false
 		return false
 	case k == condFriction || k == condFriction+1:
 		i := k - condFriction
@@ -159,6 +177,17 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		return false
 	case k >= condRegion && k < condRegion+4:
 		return m.crossRegion(s, in, (k-condRegion)/2, (k-condRegion)%2, ev, r)
+	case k == condKneeStop || k == condKneeStop+1:
+		return m.kneeStrike(s, k-condKneeStop, ev, r)
+	case k == condKneeTorque || k == condKneeTorque+1:
+		i := k - condKneeTorque
+		e := Event{Kind: KneeUnlock, T: s.T, Foot: i, Segment: -1, Value: ev.knee[i]}
+		if s.Mode[i] != Free {
+			e.Kind, e.Segment = KneeBuckle, ev.geom[i].sp.seg
+		}
+		r.add(e)
+		s.KneeLocked[i] = false
+		return false
 	case k == condHip:
 		r.add(Event{Kind: Fall, T: s.T, Foot: s.Stance, Segment: ev.geom[s.Stance].sp.seg,
 			Value: m.hipHeight(s, &s.Q, ev), Limit: m.fallHip})

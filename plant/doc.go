@@ -24,12 +24,66 @@
 // the contact has zero velocity (two constraint rows); a sliding foot keeps
 // only the normal row and feels Coulomb friction −μ_k N sign(v_slip).
 //
+// # Knees: the walker as a tree
+//
+// A leg with a Leg.Shank is a thigh from the hip to the knee and a shank
+// from the knee to the foot; the foot arc is fixed to the shank, its centre
+// at knee + (L_s − R)·a(θ_s) + d·a⊥(θ_s) with knee = hip + ℓ·a(θ_thigh).
+// The shank angles are appended to q after the legs and the torso, so a
+// walker without knees keeps its layout. Every body's position is the hip
+// plus a sum of link vectors r·a(θ_k) along its path from the hip, so its
+// velocity is v_hip + Σ r·a⊥(θ_k) θ̇_k, and the kinetic energy gives the mass
+// matrix in closed form from composite moments (a composite-body
+// formulation of this small tree):
+//
+//	M_hip,hip = m_total·I,   M_hip,k = S_k a⊥(θ_k),   M_kk = P_k,
+//	M_thigh,shank = m_s ρ_s ℓ cos(θ_thigh − θ_shank)
+//
+// where S_k and P_k are the first and second moments about link k's
+// proximal joint of link k and everything hanging from it (for a thigh:
+// m_t ρ_t + m_s ℓ and m_t ρ_t² + I_t + m_s ℓ²; for other links their own
+// m ρ and m ρ² + I). Lagrange's equations then give the bias
+//
+//	h_hip = −Σ_k S_k a(θ_k) θ̇_k² + m_total g ŷ,
+//	h_k   = S_k g sin θ_k + Σ_j P_kj sin(θ_k − θ_j) θ̇_j²
+//
+// with P_kj the thigh–shank coefficient above (zero for links not
+// joined). A straight leg and the torso are the special case without a
+// child, so M keeps the arrow shape there. The foot's contact Jacobian
+// gains the thigh column ℓ (t, n)·a⊥(θ_thigh); its rolling term R θ̇ belongs
+// to the shank. A knee actuator applies +τ to the shank and −τ to the thigh
+// (the knee angle is θ_shank − θ_thigh, zero straight, negative flexed). A
+// locked knee (State.KneeLocked) is one more constraint row, θ̈_shank −
+// θ̈_thigh = 0, solved with the contact rows; its force is the knee's lock
+// torque (FootContact.KneeTorque, positive while the stop pushes).
+//
+// The knee stop is unilateral. A locked knee whose lock torque would turn
+// negative (the stop would have to pull) unlocks: a knee_buckle event when
+// its foot is on the ground, knee_unlock in swing. An unlocked knee
+// reaching its stop (θ_shank − θ_thigh = 0) is a knee strike: a plastic
+// impulse locks it, solved together with no-slip impulses at the feet in
+// contact (a foot that would need a pulling impulse is released). A
+// Shank.Latch engages at a knee strike and at the leg's heel strike (when
+// the knee is at its stop then) and releases when the foot leaves the
+// ground; a latched knee carries torque of either sign. At a heel strike
+// every locked knee is held through the impulse — the trailing leg's too,
+// as published kneed passive gaits assume — and the trailing knee's latch
+// releases as its foot leaves the ground, after which its stop alone holds
+// it. The checks are a SymPy derivation of the tree by Lagrange's
+// equations (kneed_test.go), the compass walker reproduced by the kneed
+// walker with both knees latched (kneelock_test.go), and the conservation
+// of angular momentum and energy at and between knee strikes
+// (kneestrike_test.go).
+//
 // # Numerics
 //
 // Each evaluation solves the saddle-point system for q̈ and λ together:
 // links without contact are eliminated through the arrow shape of M, one
 // rolling foot has a closed form, anything else is a small Gaussian
-// elimination with row equilibration and partial pivoting. This stays
+// elimination with row equilibration and partial pivoting. A kneed walker
+// takes the same elimination over groups of links (solveTree): a leg's
+// thigh and shank couple with each other and, like every link, with the
+// hip only, and a locked knee makes its leg one rigid body. This stays
 // accurate for the nearly massless legs of the simplest walking model,
 // where the Schur complement J M⁻¹ Jᵀ would lose digits in proportion to
 // the mass ratio.

@@ -19,6 +19,9 @@ type footGeom struct {
 func (m *Model) footGeometry(q, v *[MaxDOF]float64, i, hint int, g *footGeom) {
 	var tr trig
 	tr.a[i], tr.ap[i] = axis(q[2+i])
+	if fl := m.feet[i].link; fl != i {
+		tr.a[fl], tr.ap[fl] = axis(q[2+fl])
+	}
 	m.footGeometryTrig(q, v, &tr, i, hint, -1, g)
 }
 
@@ -44,9 +47,15 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, r
 	// the leg angle, written out here (as in footCentre) because this
 	// is the innermost loop.
 	f := &m.feet[i]
-	a, ap := &tr.a[i], &tr.ap[i]
+	a, ap := &tr.a[f.link], &tr.ap[f.link]
 	kk := f.length - f.radius
-	c := [2]float64{q[0] + kk*a[0] + f.offset*ap[0], q[1] + kk*a[1] + f.offset*ap[1]}
+	base := [2]float64{q[0], q[1]}
+	if f.thigh != 0 {
+		// Kneed leg: the foot's link hangs from the knee, hip + ℓ a(θ_thigh).
+		base[0] += f.thigh * tr.a[i][0]
+		base[1] += f.thigh * tr.a[i][1]
+	}
+	c := [2]float64{base[0] + kk*a[0] + f.offset*ap[0], base[1] + kk*a[1] + f.offset*ap[1]}
 	dc := [2]float64{kk*ap[0] - f.offset*a[0], kk*ap[1] - f.offset*a[1]}
 	ddc := [2]float64{-kk*a[0] - f.offset*ap[0], -kk*a[1] - f.offset*ap[1]}
 	g.c = c
@@ -57,10 +66,11 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, r
 	}
 	g.gap = g.sp.dist - f.radius
 	t, nn := g.sp.t, g.sp.n
-	k := 2 + i
-	// Only entries 0, 1 and 2+i are ever written for foot i, so the others
-	// stay zero in a footGeom that is only used for one foot (as eval.geom
-	// and every local one are); not clearing them saves time in the hot loop.
+	k := 2 + f.link
+	// Only entries 0, 1, 2+link (and 2+i, the thigh, for a kneed leg) are
+	// ever written for foot i, so the others stay zero in a footGeom that is
+	// only used for one foot (as eval.geom and every local one are); not
+	// clearing them saves time in the hot loop.
 	g.jt[0], g.jt[1] = t[0], t[1]
 	g.jn[0], g.jn[1] = nn[0], nn[1]
 	g.jt[k] = t[0]*dc[0] + t[1]*dc[1] + f.radius
@@ -70,12 +80,32 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, r
 	g.gn = (nn[0]*ddc[0] + nn[1]*ddc[1]) * w2
 	g.slip = t[0]*v[0] + t[1]*v[1] + g.jt[k]*v[k]
 	g.vn = nn[0]*v[0] + nn[1]*v[1] + g.jn[k]*v[k]
+	if f.thigh != 0 {
+		// The knee moves with the thigh: ∂c/∂θ_thigh = ℓ a⊥(θ_thigh), and
+		// its second derivative −ℓ a(θ_thigh) adds to J̇q̇. The rolling
+		// term R θ̇ belongs to the foot's own link, the shank.
+		th := 2 + i
+		at, apt := &tr.a[i], &tr.ap[i]
+		dk := [2]float64{f.thigh * apt[0], f.thigh * apt[1]}
+		wt2 := v[th] * v[th]
+		g.jt[th] = t[0]*dk[0] + t[1]*dk[1]
+		g.jn[th] = nn[0]*dk[0] + nn[1]*dk[1]
+		g.gt -= (t[0]*at[0] + t[1]*at[1]) * f.thigh * wt2
+		g.gn -= (nn[0]*at[0] + nn[1]*at[1]) * f.thigh * wt2
+		g.slip += g.jt[th] * v[th]
+		g.vn += g.jn[th] * v[th]
+	}
 	if g.sp.clamped && g.sp.dist > 0 {
 		// Contact at a convex vertex: the normal turns with the arc centre
 		// about the vertex at the rate (t·ċ)/d, which adds (t·ċ)²/d to the
 		// normal row's J̇q̇ and −(t·ċ)(n·ċ)/d to the tangential row's.
 		ct := t[0]*(v[0]+dc[0]*v[k]) + t[1]*(v[1]+dc[1]*v[k])
 		cn := nn[0]*(v[0]+dc[0]*v[k]) + nn[1]*(v[1]+dc[1]*v[k])
+		if f.thigh != 0 {
+			th := 2 + i
+			ct += f.thigh * (t[0]*tr.ap[i][0] + t[1]*tr.ap[i][1]) * v[th]
+			cn += f.thigh * (nn[0]*tr.ap[i][0] + nn[1]*tr.ap[i][1]) * v[th]
+		}
 		g.gn += ct * ct / g.sp.dist
 		g.gt -= ct * cn / g.sp.dist
 	}
@@ -88,7 +118,7 @@ func (m *Model) centreOfPressure(q *[MaxDOF]float64, i int, g *footGeom) float64
 	if R == 0 {
 		return 0
 	}
-	a, _ := axis(q[2+i])
+	a, _ := axis(q[2+m.feet[i].link])
 	nn := g.sp.n
 	return R * math.Atan2(-(a[0]*nn[1]-a[1]*nn[0]), -(a[0]*nn[0]+a[1]*nn[1]))
 }
@@ -99,6 +129,7 @@ type eval struct {
 	acc   [MaxDOF]float64
 	geom  [2]footGeom
 	force [2][2]float64
+	knee  [2]float64 // lock torque of each leg's locked knee (FootContact.KneeTorque)
 	ok    bool
 }
 
@@ -135,6 +166,7 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 			m.footGeometryOf(s, q, v, &tr, i, &ev.geom[i])
 		}
 		ev.force[i] = [2]float64{}
+		ev.knee[i] = 0
 		switch s.Mode[i] {
 		case Rolling:
 			if rolling < 0 {
@@ -146,7 +178,7 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 			other++
 		}
 	}
-	if rolling >= 0 && other == 0 {
+	if rolling >= 0 && other == 0 && m.nKnees == 0 {
 		var lam [maxRows]float64
 		g := &ev.geom[rolling]
 		gt := g.gt
@@ -182,6 +214,8 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 		}
 	}
 	sd.k = k
+	m.kneeRows(s, &sd, nil)
+	k = sd.k
 	var lam [maxRows]float64
 	ev.ok = m.solveSaddle(&tr, &f, &sd, &ev.acc, &lam)
 	if !ev.ok {
@@ -189,9 +223,14 @@ func (m *Model) rhsGeom(s *State, q, v *[MaxDOF]float64, in *Input, ev *eval, fr
 	}
 	for r := 0; r < k; r++ {
 		i := sd.foot[r]
-		if sd.kind[r] == 0 {
+		switch sd.kind[r] {
+		case 0:
 			ev.force[i][0] = lam[r]
-		} else {
+		case rowKnee:
+			// λ acts on the shank as a knee torque would: the stop holds
+			// with λ < 0 (it pushes the shank back).
+			ev.knee[i] = -lam[r]
+		default:
 			ev.force[i][1] = lam[r]
 			if s.Mode[i] == Sliding {
 				ev.force[i][0] = -m.terrain[ev.geom[i].sp.seg].muK * s.SlipDir[i] * lam[r]
@@ -210,6 +249,7 @@ func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
 	*fc = FootContact{Mode: s.Mode[i], Normal: fn, Tangential: ft, Gap: g.gap,
 		SlipVel: g.slip - u, Segment: g.sp.seg, Point: g.sp.p}
 	fc.Utilization = utilization(ft, fn, mu)
+	fc.KneeTorque = ev.knee[i]
 	if s.Mode[i] != Free {
 		fc.CoP = m.centreOfPressure(&s.Q, i, g)
 	}

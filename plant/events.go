@@ -68,6 +68,18 @@ const (
 	// BadInput: the tick's input or step size was unusable (NaN torque,
 	// dt ≤ 0); the state was left unchanged. Value = the bad number.
 	BadInput
+	// KneeStrike: an unlocked knee reached its stop with a closing rate
+	// and locked in a plastic impulse (solved with the feet in contact).
+	// Foot = the leg, Value = the knee's closing rate before (rad/s),
+	// EnergyLost = kinetic energy lost (J).
+	KneeStrike
+	// KneeUnlock: the stop of a swing leg's locked knee without a latch
+	// would have to pull, so the knee left its stop. Foot = the leg, Value
+	// = the lock torque (N·m, ≤ 0), Limit = 0.
+	KneeUnlock
+	// KneeBuckle: as KneeUnlock for a leg whose foot is on the ground: the
+	// stance knee buckles. The simulation continues with the knee free.
+	KneeBuckle
 )
 
 // String returns the event kind as lower-case words joined by '_'.
@@ -97,6 +109,12 @@ func (k EventKind) String() string {
 		return "chatter"
 	case BadInput:
 		return "bad_input"
+	case KneeStrike:
+		return "knee_strike"
+	case KneeUnlock:
+		return "knee_unlock"
+	case KneeBuckle:
+		return "knee_buckle"
 	}
 	return "unknown"
 }
@@ -127,6 +145,10 @@ type FootContact struct {
 	SlipVel     float64     // tangential velocity of the foot's material point at the contact, m/s
 	Segment     int         // index of the terrain segment nearest the foot
 	Point       [2]float64  // contact point (closest terrain point to the arc), m
+	// KneeTorque is the torque the knee stop of this leg's locked knee
+	// applies, N·m: positive while it holds the knee against
+	// hyperextension; 0 for an unlocked knee or a straight leg.
+	KneeTorque float64
 }
 
 // TickResult is everything Step reports about one tick.

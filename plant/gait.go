@@ -76,6 +76,13 @@ type StepResult struct {
 // reach a heel strike (it falls, lifts off, or the time runs out).
 var ErrNoHeelStrike = errors.New("plant: no heel strike")
 
+// ErrKneedAnalysis is returned by FindGait, MapJacobian and MapJacobianFD
+// for a walker with knees: their section coordinates and the saltation at
+// the impact do not yet carry the knees' lock state or the knee strike, so
+// they refuse rather than return numbers that would not mean what they
+// say. StepMap (a simulation to the next heel strike) does handle knees.
+var ErrKneedAnalysis = errors.New("plant: the gait finder and the map Jacobian do not handle knees yet")
+
 // StepMap integrates s with the adaptive Dormand–Prince 5(4) integrator
 // (with the policy's input, nil = passive) until just after the next heel
 // strike: the step-to-step (Poincaré) map of the gait.
@@ -226,6 +233,9 @@ type Gait struct {
 func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error) {
 	if m == nil {
 		return Gait{}, errors.New("plant: FindGait needs a model")
+	}
+	if m.nKnees > 0 {
+		return Gait{}, ErrKneedAnalysis
 	}
 	if err := o.validate(); err != nil {
 		return Gait{}, err

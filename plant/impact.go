@@ -85,6 +85,10 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			}
 			rows.k++
 		}
+		// A locked knee stays locked through the impulse (the stance knee
+		// and the trailing knee alike), as published kneed passive gaits
+		// assume for the trailing leg.
+		m.kneeRows(s, &rows, nil)
 		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
 			// Redundant contacts (e.g. two arc feet whose centres are both
 			// the hip): keep the impacting foot alone.
@@ -105,7 +109,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 			f := rows.foot[k]
 			if rows.kind[k] == 0 {
 				lt[f] = lam[k]
-			} else {
+			} else if rows.kind[k] == 1 {
 				ln[f] = lam[k]
 			}
 		}
@@ -157,6 +161,9 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 	if heel {
 		kind = HeelStrike
 		s.Stance = i
+		if j := m.kneeOf[i]; j >= 0 && s.KneeLocked[i] && m.p.Legs[i].Shank.Latch {
+			s.KneeLatched[i] = true
+		}
 	}
 	gi := &ev.geom[i]
 	r.add(Event{Kind: kind, T: s.T, Foot: i, Segment: gi.sp.seg, Value: demanded[i],
@@ -166,6 +173,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 		switch {
 		case !active[f]:
 			s.Mode[f] = Free
+			s.KneeLatched[f] = false
 		case slipSign[f] != 0:
 			s.Mode[f] = Sliding
 			var g footGeom
@@ -191,4 +199,66 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 		s.Stance = 1 - s.Stance
 	}
 	return stop
+}
+
+// kneeStrike locks leg i's knee, which reached its stop with a closing
+// rate, by a plastic impulse: the knee's relative rate and the velocity of
+// every foot in contact (no slip, as at a heel strike) become zero, with
+// every other locked knee held. A foot that would need a pulling impulse
+// is released and the impulse solved again. The latch engages if the leg
+// has one. It reports whether the tick must stop.
+func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
+	kn := &m.knees[m.kneeOf[i]]
+	closing := s.V[2+kn.shank] - s.V[2+kn.thigh]
+	s.KneeLocked[i] = true
+	s.KneeLatched[i] = m.p.Legs[i].Shank.Latch
+	ke0, _ := m.Energy(s)
+	var active [2]bool
+	for f := 0; f < m.nFeet; f++ {
+		active[f] = s.Mode[f] != Free
+	}
+	var rows saddle
+	var lam [maxRows]float64
+	v := s.V
+	solved := false
+	for attempt := 0; attempt < 3 && !solved; attempt++ {
+		v = s.V
+		rows.k = 0
+		for f := 0; f < m.nFeet; f++ {
+			if !active[f] {
+				continue
+			}
+			g := &ev.geom[f]
+			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+			rows.goal[rows.k], _ = m.surface(s, g, 0)
+			rows.k++
+			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, g.jn, f, 1, 0
+			rows.k++
+		}
+		m.kneeRows(s, &rows, nil)
+		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
+			m.nonFinite(s, r)
+			return true
+		}
+		solved = true
+		for k := 0; k < rows.k; k++ {
+			if f := rows.foot[k]; rows.kind[k] == 1 && lam[k] < 0 {
+				active[f], solved = false, false
+			}
+		}
+	}
+	s.V = v
+	for f := 0; f < m.nFeet; f++ {
+		if !active[f] && s.Mode[f] != Free {
+			s.Mode[f] = Free
+			s.KneeLatched[f] = false
+			s.fired &^= 1<<(condNormal+f) | 1<<(condFriction+f)
+		}
+	}
+	if s.Mode[s.Stance] == Free && m.nFeet == 2 && s.Mode[1-s.Stance] != Free {
+		s.Stance = 1 - s.Stance
+	}
+	ke1, _ := m.Energy(s)
+	r.add(Event{Kind: KneeStrike, T: s.T, Foot: i, Segment: -1, Value: closing, EnergyLost: ke0 - ke1})
+	return false
 }

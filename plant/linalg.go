@@ -2,13 +2,14 @@ package plant
 
 import "math"
 
-// maxRows is the largest number of contact constraint rows (two per foot).
-const maxRows = 4
+// maxRows is the largest number of constraint rows: two per foot and one
+// per locked knee.
+const maxRows = 6
 
-// maxKKT is the largest saddle-point system solveSaddle builds: the hip
-// coordinates, the angles of the (at most two) legs in contact, and the
-// contact rows.
-const maxKKT = 2 + 2 + maxRows
+// maxKKT is the largest saddle-point system a solve builds: every
+// coordinate (the dense solve of a kneed walker) and every row. The arrow
+// solve of a walker without knees uses at most 2 + 2 + 4 of it.
+const maxKKT = MaxDOF + maxRows
 
 // kkt is the saddle-point system of constrained dynamics or impacts,
 //

@@ -5,25 +5,52 @@ import (
 	"math"
 )
 
-// MaxLinks is the largest number of rigid links a model can have (two legs
-// and a torso today; the arrays leave room for knees).
+// MaxLinks is the largest number of rigid links a model can have: two
+// thighs (or straight legs), a torso and two shanks.
 const MaxLinks = 5
 
 // MaxDOF is the size of the fixed arrays that hold q and q̇: two hip
 // coordinates plus one absolute angle per link.
 const MaxDOF = 2 + MaxLinks
 
-// MaxActuators is the largest number of joint torques a model takes.
+// MaxActuators is the largest number of joint torques a model takes: two
+// hips and two knees.
 const MaxActuators = 4
 
-// Leg describes one leg: a rigid link from the hip to a circular-arc foot.
+// Leg describes one leg: a rigid link from the hip to a circular-arc foot,
+// or, with Shank set, a thigh from the hip to the knee and a shank from the
+// knee to the foot. With a shank, Length, Mass, COMDist and Inertia describe
+// the thigh, and the foot (FootRadius, ArcOffset) is fixed to the shank.
 type Leg struct {
-	Length     float64 // hip to the foot along the leg axis, m, > 0
+	Length     float64 // hip to the foot (with a shank: hip to the knee) along the leg axis, m, > 0
 	Mass       float64 // kg, ≥ 0
 	COMDist    float64 // centre of mass distance from the hip along the leg axis, m
 	Inertia    float64 // about the leg's centre of mass, kg·m², ≥ 0
-	FootRadius float64 // arc radius R, m, 0 ≤ R ≤ Length (0: point foot)
-	ArcOffset  float64 // forward offset of the arc centre from the leg axis, m
+	FootRadius float64 // arc radius R, m, 0 ≤ R ≤ the foot link's length (0: point foot)
+	ArcOffset  float64 // forward offset of the arc centre from the foot link's axis, m
+	Shank      *Shank  // nil: a straight leg, one link from the hip to the foot
+}
+
+// Shank is the lower link of a leg with a knee, hinged at the thigh's end.
+// Its angle is absolute like every link's; the knee angle θ_shank − θ_thigh
+// is zero with the leg straight and negative when the knee flexes (the foot
+// swings back).
+type Shank struct {
+	Length  float64 // knee to the foot along the shank axis, m, > 0
+	Mass    float64 // kg, ≥ 0
+	COMDist float64 // centre of mass distance from the knee along the shank axis, m
+	Inertia float64 // about the shank's centre of mass, kg·m², ≥ 0
+	// Actuated gives the knee a torque actuator between thigh and shank
+	// (a joint "knee_left" or "knee_right" after the hips); false leaves
+	// the knee passive.
+	Actuated bool
+	// Latch holds the knee at its stop with torque of either sign: it
+	// engages when the knee strikes its stop and at the leg's heel strike
+	// (if the knee is at its stop then), and releases when the leg's foot
+	// leaves the ground. Without a latch the stop only pushes: the knee
+	// unlocks when the stop would have to pull (a knee_buckle event while
+	// the foot is on the ground).
+	Latch bool
 }
 
 // Torso describes the optional torso link, hinged at the hip and pointing up.
@@ -113,12 +140,34 @@ func (p Params) Validate() error {
 			return perr(f+"COMDist", l.COMDist, "must be finite and within 10 leg lengths of the hip")
 		case !finite(l.Inertia) || l.Inertia < 0:
 			return perr(f+"Inertia", l.Inertia, "must be a finite inertia ≥ 0 kg·m²")
-		case !finite(l.FootRadius) || l.FootRadius < 0 || l.FootRadius > l.Length:
-			return perr(f+"FootRadius", l.FootRadius, "must be between 0 and the leg length %g m", l.Length)
-		case !finite(l.ArcOffset) || math.Abs(l.ArcOffset) > l.Length:
-			return perr(f+"ArcOffset", l.ArcOffset, "must be finite and no larger than the leg length %g m", l.Length)
-		case l.Mass*l.COMDist*l.COMDist+l.Inertia <= 0:
+		}
+		footLen, footName := l.Length, "leg"
+		if sh := l.Shank; sh != nil {
+			g := f + "Shank."
+			switch {
+			case !finite(sh.Length) || sh.Length <= 0:
+				return perr(g+"Length", sh.Length, "must be a finite length > 0 m")
+			case !finite(sh.Mass) || sh.Mass < 0:
+				return perr(g+"Mass", sh.Mass, "must be a finite mass ≥ 0 kg")
+			case !finite(sh.COMDist) || math.Abs(sh.COMDist) > 10*sh.Length:
+				return perr(g+"COMDist", sh.COMDist, "must be finite and within 10 shank lengths of the knee")
+			case !finite(sh.Inertia) || sh.Inertia < 0:
+				return perr(g+"Inertia", sh.Inertia, "must be a finite inertia ≥ 0 kg·m²")
+			case sh.Mass*sh.COMDist*sh.COMDist+sh.Inertia <= 0:
+				return perr(g+"Inertia", sh.Inertia, "the shank has neither mass away from the knee nor inertia, so its angle would have no inertia")
+			}
+			footLen, footName = sh.Length, "shank"
+			total += sh.Mass
+		}
+		switch {
+		case !finite(l.FootRadius) || l.FootRadius < 0 || l.FootRadius > footLen:
+			return perr(f+"FootRadius", l.FootRadius, "must be between 0 and the %s length %g m", footName, footLen)
+		case !finite(l.ArcOffset) || math.Abs(l.ArcOffset) > footLen:
+			return perr(f+"ArcOffset", l.ArcOffset, "must be finite and no larger than the %s length %g m", footName, footLen)
+		case l.Shank == nil && l.Mass*l.COMDist*l.COMDist+l.Inertia <= 0:
 			return perr(f+"Inertia", l.Inertia, "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia")
+		case l.Shank != nil && l.Mass*l.COMDist*l.COMDist+l.Inertia+l.Shank.Mass*l.Length*l.Length <= 0:
+			return perr(f+"Inertia", l.Inertia, "the thigh and shank have no mass away from the hip and no inertia, so the thigh angle would have no inertia")
 		}
 		total += l.Mass
 	}

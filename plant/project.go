@@ -26,7 +26,7 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 		if s.Mode[f] == Rolling {
 			c := g.c
 			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
-			res[rows.k] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+f] - s.Anchor[f]
+			res[rows.k] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+m.feet[f].link] - s.Anchor[f]
 			if g.sp.clamped {
 				res[rows.k] = 0
 			}
@@ -38,6 +38,7 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 		rows.goal[rows.k] = 0
 		rows.k++
 	}
+	m.kneeRows(s, rows, res)
 }
 
 // project moves s back onto the contact constraints: the positions by

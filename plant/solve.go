@@ -16,6 +16,63 @@ func (m *Model) trigOf(q *[MaxDOF]float64, t *trig) {
 	}
 }
 
+// rowKnee is the saddle row kind of a locked knee: J = W = e_shank −
+// e_thigh, the knee angle's rate; foot is the leg.
+const rowKnee = 2
+
+// kneeRows appends a row for every locked knee of s to rows, with its
+// position residual θ_shank − θ_thigh in res when res is not nil.
+func (m *Model) kneeRows(s *State, rows *saddle, res *[maxRows]float64) {
+	for i := 0; i < m.nFeet; i++ {
+		j := m.kneeOf[i]
+		if j < 0 || !s.KneeLocked[i] {
+			continue
+		}
+		kn := &m.knees[j]
+		k := rows.k
+		rows.j[k] = [MaxDOF]float64{}
+		rows.j[k][2+kn.shank], rows.j[k][2+kn.thigh] = 1, -1
+		rows.w[k] = rows.j[k]
+		rows.foot[k], rows.kind[k], rows.bottom[k], rows.goal[k] = i, rowKnee, 0, 0
+		if res != nil {
+			res[k] = s.Q[2+kn.shank] - s.Q[2+kn.thigh]
+		}
+		rows.k++
+	}
+}
+
+// solveDense solves the saddle-point system of solveSaddle with the full
+// mass matrix: a kneed walker's thigh and shank couple, so M is no longer
+// an arrow. The links of a kneed walker are of comparable mass, so the
+// dense system (at most 7 coordinates and 6 rows) is well conditioned
+// after the row equilibration of kkt.solve.
+func (m *Model) solveDense(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	var M [MaxDOF][MaxDOF]float64
+	m.massTrig(tr, &M)
+	n := m.n
+	N := n + sd.k
+	var sys kkt
+	for i := 0; i < n; i++ {
+		copy(sys.a[i][:n], M[i][:n])
+		sys.b[i] = f[i]
+	}
+	for r := 0; r < sd.k; r++ {
+		for i := 0; i < n; i++ {
+			sys.a[i][n+r] = -sd.w[r][i]
+			sys.a[n+r][i] = sd.j[r][i]
+		}
+		sys.b[n+r] = sd.bottom[r]
+	}
+	if !sys.solve(N) {
+		return false
+	}
+	copy(x[:n], sys.b[:n])
+	for r := 0; r < sd.k; r++ {
+		lam[r] = sys.b[n+r]
+	}
+	return true
+}
+
 // saddle holds the constraint rows of one solve: J (the rows whose
 // velocity or acceleration is prescribed), W (the directions their forces
 // act along; W = J except for sliding feet and cone-boundary impulses), and
@@ -25,7 +82,7 @@ type saddle struct {
 	k      int
 	j, w   [maxRows][MaxDOF]float64
 	foot   [maxRows]int
-	kind   [maxRows]int // 0 tangential, 1 normal
+	kind   [maxRows]int // 0 tangential, 1 normal, rowKnee a locked knee
 	bottom [maxRows]float64
 	// goal is the velocity J q̇ a row must reach in an impulse or velocity
 	// projection: the belt's surface speed for the tangential row of a
@@ -46,6 +103,9 @@ type saddle struct {
 // solved by Gaussian elimination with row equilibration and partial
 // pivoting. It reports false if the system is singular.
 func (m *Model) solveSaddle(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[MaxDOF]float64, lam *[maxRows]float64) bool {
+	if m.nKnees > 0 {
+		return m.solveTree(tr, f, sd, x, lam)
+	}
 	return m.solveSaddleWith(tr, f, sd, x, lam, true)
 }
 
@@ -58,7 +118,6 @@ func (m *Model) solveSaddleWith(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[Ma
 	}
 	var B [MaxLinks][2]float64
 	var D [MaxLinks]float64
-	var sys kkt
 	// Unknown order: x_hip, y_hip, contact-link angles, then λ.
 	var col [MaxLinks]int // position of a contact link's angle
 	nu := 2
@@ -91,6 +150,8 @@ func (m *Model) solveSaddleWith(tr *trig, f *[MaxDOF]float64, sd *saddle, x *[Ma
 		return m.solveOneFoot(k, sd.j[0][0], sd.j[0][1], sd.j[1][0], sd.j[1][1], sd.j[0][2+k], sd.j[1][2+k],
 			sd.bottom[0], sd.bottom[1], &B, &D, f, hxx, hxy, hyy, fx, fy, x, lam)
 	}
+	// Declared after the closed-form return: zeroing it costs time.
+	var sys kkt
 	for i := 0; i < N; i++ {
 		row := &sys.a[i]
 		for j := 0; j < N; j++ {

@@ -10,7 +10,7 @@ import (
 // snapshot; a copy continues exactly like the original.
 type State struct {
 	T      float64         // simulated time, s
-	Q, V   [MaxDOF]float64 // q = (x_hip, y_hip, θ_left, θ_right[, θ_torso]) and q̇
+	Q, V   [MaxDOF]float64 // q = (x_hip, y_hip, θ_left, θ_right[, θ_torso][, θ_shank…]) and q̇
 	Mode   [2]ContactMode  // per foot
 	Stance int             // the foot that carries the walker (0 left, 1 right)
 	// SlipDir is the sign of the slip velocity of a sliding foot (±1).
@@ -22,9 +22,18 @@ type State struct {
 	// Seg is the terrain segment each foot was last nearest to (search hint
 	// and the segment of Anchor).
 	Seg [2]int
+	// KneeLocked holds leg i's knee at its stop, the shank in line with the
+	// thigh (θ_shank = θ_thigh), by a joint constraint solved with the
+	// contacts; its torque is in FootContact.KneeTorque. An unlocked knee
+	// swings freely. Ignored for a straight leg.
+	KneeLocked [2]bool
+	// KneeLatched marks a locked knee whose latch (Shank.Latch) is engaged:
+	// it carries torque of either sign and does not unlock until the latch
+	// releases, when the leg's foot leaves the ground.
+	KneeLatched [2]bool
 	// fired marks alarm conditions that have fired and not yet cleared, so
 	// a persisting condition raises its event once.
-	fired uint16
+	fired uint32
 	// vertex marks a foot whose contact is the vertex at the end of
 	// segment Seg (rather than the inside of Seg).
 	vertex [2]bool
@@ -62,8 +71,9 @@ var ErrStand = errors.New("plant: cannot stand the walker")
 // Stand builds a consistent state: the given leg angles (and torso angle,
 // ignored without a torso), the hip at horizontal position x, and the hip
 // height chosen so that the stance foot touches the terrain and rolls. rates
-// are the link angular rates in link order (left, right[, torso]); missing
-// ones are zero. The hip velocity follows from the rolling constraint. The
+// are the link angular rates in link order (left, right[, torso][, shanks]);
+// missing ones are zero, except a shank's, which is its thigh's. A kneed
+// leg stands straight (shank angle = thigh angle) with its knee locked. The hip velocity follows from the rolling constraint. The
 // other foot is free; Stand fails if it would be below the ground by more
 // than 1 µm, unless Options.IgnoreScuff is set.
 func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle float64, rates ...float64) (State, error) {
@@ -98,6 +108,17 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	for i, r := range rates {
 		s.V[2+i] = r
 	}
+	// A kneed leg stands straight with its knee locked at the stop; a shank
+	// rate not given is the thigh's, so the knee starts at rest.
+	for j := 0; j < m.nKnees; j++ {
+		kn := &m.knees[j]
+		s.Q[2+kn.shank] = s.Q[2+kn.thigh]
+		if kn.shank >= len(rates) {
+			s.V[2+kn.shank] = s.V[2+kn.thigh]
+		}
+		s.KneeLocked[kn.thigh] = true
+		s.KneeLatched[kn.thigh] = m.p.Legs[kn.thigh].Shank.Latch && kn.thigh == stance
+	}
 	// Hip height: start with the hip above the terrain under it and adjust
 	// until the stance foot's gap is zero.
 	s.Q[1] = m.p.Terrain.Start[1] + 2*m.reach
@@ -127,6 +148,10 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	k := 2 + stance
 	wt := g.jt[k] * s.V[k]
 	wn := g.jn[k] * s.V[k]
+	if fl := 2 + m.feet[stance].link; fl != k {
+		wt += g.jt[fl] * s.V[fl]
+		wn += g.jn[fl] * s.V[fl]
+	}
 	s.V[0] = -g.sp.t[0]*wt - g.sp.n[0]*wn
 	s.V[1] = -g.sp.t[1]*wt - g.sp.n[1]*wn
 	if m.nFeet == 2 {
@@ -162,27 +187,42 @@ func (m *Model) segmentAtX(x float64) int {
 // its terrain region.
 func (m *Model) setAnchor(s *State, i int, g *footGeom) {
 	c, _, _ := m.footCentre(&s.Q, i)
-	s.Anchor[i] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[i].radius*s.Q[2+i]
+	s.Anchor[i] = g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[i].radius*s.Q[2+m.feet[i].link]
 	s.Seg[i], s.vertex[i] = m.regionOf(g)
 }
 
 // JointState writes the joint angles and rates an encoder would read, in
-// JointNames order. It writes as many entries as the slices hold.
+// JointNames order: a hip angle is the leg's angle less the other leg's
+// (compass) or the torso's; a knee angle is θ_shank − θ_thigh (zero
+// straight, negative flexed). It writes as many entries as the slices hold.
 func (m *Model) JointState(s *State, angle, rate []float64) {
-	for j := 0; j < m.nAct; j++ {
+	j := 0
+	for ; j < m.nHip; j++ {
 		var a, r float64
-		if m.nAct == 1 {
+		if m.nHip == 1 {
 			a, r = s.Q[3]-s.Q[2], s.V[3]-s.V[2]
 		} else {
 			t := 2 + m.torso
 			a, r = s.Q[2+j]-s.Q[t], s.V[2+j]-s.V[t]
 		}
-		if j < len(angle) {
-			angle[j] = a
+		putJoint(angle, rate, j, a, r)
+	}
+	for k := 0; k < m.nKnees; k++ {
+		kn := &m.knees[k]
+		if kn.actuated {
+			putJoint(angle, rate, j, s.Q[2+kn.shank]-s.Q[2+kn.thigh], s.V[2+kn.shank]-s.V[2+kn.thigh])
+			j++
 		}
-		if j < len(rate) {
-			rate[j] = r
-		}
+	}
+}
+
+// putJoint stores joint j's angle and rate where the slices have room.
+func putJoint(angle, rate []float64, j int, a, r float64) {
+	if j < len(angle) {
+		angle[j] = a
+	}
+	if j < len(rate) {
+		rate[j] = r
 	}
 }
 
@@ -212,13 +252,20 @@ func (m *Model) Energy(s *State) (kinetic, potential float64) {
 		a, _ := axis(s.Q[2+i])
 		potential += m.links[i].mass * g * m.links[i].rho * a[1]
 	}
+	for k := 0; k < m.nKnees; k++ {
+		// The shank hangs from the knee, ℓ a(θ_thigh) below the hip.
+		kn := &m.knees[k]
+		a, _ := axis(s.Q[2+kn.thigh])
+		potential += m.links[kn.shank].mass * g * m.feet[kn.thigh].thigh * a[1]
+	}
 	return
 }
 
 // Pose holds the points of a stick figure of the walker.
 type Pose struct {
 	Hip       [2]float64    // hip joint, m
-	Foot      [2][2]float64 // end of each leg axis, hip + L·a(θ)
+	Knee      [2][2]float64 // knee joint of a kneed leg; the middle of a straight leg's axis
+	Foot      [2][2]float64 // end of each leg axis: knee + L_shank·a(θ_shank), or hip + L·a(θ)
 	ArcCentre [2][2]float64 // centre of each foot arc
 	TorsoTop  [2]float64    // hip + 2·COMDist along the torso axis (hip if none)
 	COM       [2]float64    // centre of mass of the whole walker
@@ -230,17 +277,30 @@ func (m *Model) Points(s *State) Pose {
 	p.Hip = [2]float64{s.Q[0], s.Q[1]}
 	p.TorsoTop = p.Hip
 	p.COM = [2]float64{m.p.HipMass * s.Q[0], m.p.HipMass * s.Q[1]}
+	var joint [MaxLinks][2]float64 // proximal joint of each link
+	for i := 0; i < m.nLinks; i++ {
+		joint[i] = p.Hip
+	}
 	for i := 0; i < m.nFeet; i++ {
+		f := &m.feet[i]
 		a, _ := axis(s.Q[2+i])
-		L := m.feet[i].length
-		p.Foot[i] = [2]float64{s.Q[0] + L*a[0], s.Q[1] + L*a[1]}
+		if f.link != i {
+			p.Knee[i] = [2]float64{s.Q[0] + f.thigh*a[0], s.Q[1] + f.thigh*a[1]}
+			joint[f.link] = p.Knee[i]
+			a, _ = axis(s.Q[2+f.link])
+			p.Foot[i] = [2]float64{p.Knee[i][0] + f.length*a[0], p.Knee[i][1] + f.length*a[1]}
+		} else {
+			L := f.length
+			p.Foot[i] = [2]float64{s.Q[0] + L*a[0], s.Q[1] + L*a[1]}
+			p.Knee[i] = [2]float64{s.Q[0] + 0.5*L*a[0], s.Q[1] + 0.5*L*a[1]}
+		}
 		p.ArcCentre[i], _, _ = m.footCentre(&s.Q, i)
 	}
 	for i := 0; i < m.nLinks; i++ {
 		a, _ := axis(s.Q[2+i])
 		l := m.links[i]
-		p.COM[0] += l.mass * (s.Q[0] + l.rho*a[0])
-		p.COM[1] += l.mass * (s.Q[1] + l.rho*a[1])
+		p.COM[0] += l.mass * (joint[i][0] + l.rho*a[0])
+		p.COM[1] += l.mass * (joint[i][1] + l.rho*a[1])
 		if i == m.torso {
 			p.TorsoTop = [2]float64{s.Q[0] + 2*l.rho*a[0], s.Q[1] + 2*l.rho*a[1]}
 		}

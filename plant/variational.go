@@ -22,6 +22,9 @@ import (
 // before the impact. The derivatives of the algebraic maps (the impact and
 // the construction of the state from z) are central differences.
 func (m *Model) MapJacobian(s State, policy Policy, o GaitOptions) (*mat.Dense, error) {
+	if m.nKnees > 0 {
+		return nil, ErrKneedAnalysis
+	}
 	if err := o.validate(); err != nil {
 		return nil, err
 	}
@@ -249,6 +252,9 @@ func (m *Model) fieldJacobian(s *State, pol Policy, x []float64) *mat.Dense {
 // MapJacobianFD returns ∂P/∂z by central differences of the whole
 // step-to-step map with relative step h; used to cross-check MapJacobian.
 func (m *Model) MapJacobianFD(s State, policy Policy, o GaitOptions, h float64) (*mat.Dense, error) {
+	if m.nKnees > 0 {
+		return nil, ErrKneedAnalysis
+	}
 	if err := o.validate(); err != nil {
 		return nil, err
 	}

@@ -122,6 +122,26 @@ type Leg struct {
 	// ArcOffsetM is the forward offset of the arc centre from the leg
 	// axis, m.
 	ArcOffsetM float64 `json:"arc_offset_m"`
+	// Shank is the lower link of a leg with a knee (plant.Shank); absent
+	// for a straight leg, whose fields above then describe the whole leg
+	// (with a shank they describe the thigh, hip to knee).
+	Shank *Shank `json:"shank,omitempty"`
+}
+
+// Shank is the lower link of a kneed leg, hinged at the thigh's end.
+type Shank struct {
+	// LengthM is the knee-to-foot length along the shank axis, m.
+	LengthM float64 `json:"length_m"`
+	// MassKG is the shank's mass, kg.
+	MassKG float64 `json:"mass_kg"`
+	// COMM is the distance of its centre of mass from the knee, m.
+	COMM float64 `json:"com_m"`
+	// InertiaKGM2 is its moment of inertia about its centre of mass, kg·m².
+	InertiaKGM2 float64 `json:"inertia_kgm2"`
+	// Actuated is true for a knee with a torque actuator.
+	Actuated bool `json:"actuated,omitempty"`
+	// Latch is true for a knee whose latch holds it at its stop.
+	Latch bool `json:"latch,omitempty"`
 }
 
 // Torso is the torso link, hinged at the hip and pointing up.
@@ -166,6 +186,10 @@ func PlantOf(p plant.Params) *Plant {
 	for i, l := range p.Legs {
 		out.Legs[i] = Leg{LengthM: l.Length, MassKG: l.Mass, COMM: l.COMDist, InertiaKGM2: l.Inertia,
 			FootRadiusM: l.FootRadius, ArcOffsetM: l.ArcOffset}
+		if s := l.Shank; s != nil {
+			out.Legs[i].Shank = &Shank{LengthM: s.Length, MassKG: s.Mass, COMM: s.COMDist, InertiaKGM2: s.Inertia,
+				Actuated: s.Actuated, Latch: s.Latch}
+		}
 	}
 	if t := p.Torso; t != nil {
 		out.Torso = &Torso{MassKG: t.Mass, COMM: t.COMDist, InertiaKGM2: t.Inertia}
@@ -187,6 +211,10 @@ func (p *Plant) Params() plant.Params {
 	for i, l := range p.Legs {
 		out.Legs[i] = plant.Leg{Length: l.LengthM, Mass: l.MassKG, COMDist: l.COMM, Inertia: l.InertiaKGM2,
 			FootRadius: l.FootRadiusM, ArcOffset: l.ArcOffsetM}
+		if s := l.Shank; s != nil {
+			out.Legs[i].Shank = &plant.Shank{Length: s.LengthM, Mass: s.MassKG, COMDist: s.COMM, Inertia: s.InertiaKGM2,
+				Actuated: s.Actuated, Latch: s.Latch}
+		}
 	}
 	if t := p.Torso; t != nil {
 		out.Torso = &plant.Torso{Mass: t.MassKG, COMDist: t.COMM, Inertia: t.InertiaKGM2}
