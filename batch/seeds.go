@@ -52,8 +52,14 @@ type SeedsResult struct {
 	Scenario string    `json:"scenario"`
 	Runs     []SeedRun `json:"runs"`
 	Passed   int       `json:"passed"`
-	N        int       `json:"n"`
-	Rate     float64   `json:"pass_rate"`
+	// N is the number of runs the rate is over: every seed but those
+	// whose run the host spoiled (outcome invalid), which say nothing
+	// about the firmware.
+	N int `json:"n"`
+	// Invalid is how many runs ended with outcome invalid (run again on
+	// a quieter host); they are neither passes nor failures.
+	Invalid int     `json:"invalid"`
+	Rate    float64 `json:"pass_rate"` // Passed / N; NaN when N is 0
 	// Low and High bound the 95 % Wilson score interval of the pass rate.
 	Low  float64 `json:"pass_rate_low"`
 	High float64 `json:"pass_rate_high"`
@@ -97,7 +103,7 @@ func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o
 		oi.RunDir = filepath.Join(dir, v.Name)
 		jobs[i] = Job{Scenario: v, Options: oi}
 	}
-	res := SeedsResult{Scenario: sc.Name, N: n, Caution: record.Caution}
+	res := SeedsResult{Scenario: sc.Name, Caution: record.Caution}
 	for i, d := range s.RunAll(ctx, jobs) {
 		r := SeedRun{Seed: vs[i].Sensors.Seed, Dir: d.Result.Dir}
 		if d.Err != nil {
@@ -106,13 +112,20 @@ func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o
 			r.Outcome, r.Reason, r.Steps = d.Result.Summary.Outcome, d.Result.Summary.Reason, d.Result.Summary.Steps
 			r.PeakUtilization = d.Result.Summary.PeakFrictionUtilization
 		}
-		if r.Outcome == record.Pass {
+		switch r.Outcome {
+		case record.Pass:
 			res.Passed++
+		case record.Invalid:
+			res.Invalid++
 		}
 		res.Runs = append(res.Runs, r)
 	}
-	res.Rate = float64(res.Passed) / float64(n)
-	res.Low, res.High = Wilson(res.Passed, n, WilsonZ95)
+	res.N = n - res.Invalid
+	res.Rate = math.NaN()
+	if res.N > 0 {
+		res.Rate = float64(res.Passed) / float64(res.N)
+	}
+	res.Low, res.High = Wilson(res.Passed, res.N, WilsonZ95)
 	res.Worst = worstRun(res.Runs)
 	return res, nil
 }
@@ -122,6 +135,9 @@ func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o
 func worstRun(runs []SeedRun) int {
 	worst := 0
 	key := func(r SeedRun) (bool, float64) {
+		if r.Outcome == record.Invalid {
+			return false, math.Inf(-1) // says nothing about the firmware
+		}
 		if r.Outcome != record.Pass {
 			return true, -float64(r.Steps)
 		}

@@ -111,3 +111,34 @@ func TestWorstRun(t *testing.T) {
 		t.Errorf("worst of passes %d, want the higher utilization", w)
 	}
 }
+
+// TestInvalidSeedRunsAreNotFailures: a run the host spoiled (outcome
+// invalid) says nothing about the firmware, so it is left out of the pass
+// rate and counted apart, not counted as a failure.
+func TestInvalidSeedRunsAreNotFailures(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Seeds sc.Sensors.Seed+0…+3: the second is spoiled by the host, the
+	// fourth fails, the others pass.
+	runner := func(_ context.Context, v *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		out := record.Pass
+		switch v.Sensors.Seed - sc.Sensors.Seed {
+		case 1:
+			out = record.Invalid
+		case 3:
+			out = record.Fail
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: out}}, nil
+	}
+	res, err := RunSeeds(context.Background(), Scheduler{Runner: runner}, sc, 4, rig.Options{}, t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	lo, hi := Wilson(2, 3, WilsonZ95)
+	if res.Passed != 2 || res.N != 3 || res.Invalid != 1 || res.Rate != 2.0/3 || res.Low != lo || res.High != hi {
+		t.Errorf("passed %d of %d (%d invalid), rate %v [%v, %v]; want 2 of 3 valid runs, 1 invalid, rate 2/3 [%v, %v]",
+			res.Passed, res.N, res.Invalid, res.Rate, res.Low, res.High, lo, hi)
+	}
+}

@@ -117,6 +117,16 @@ func Runs(a, b string) (*Result, error) {
 		res.Regressions = []string{"a run has no summary.json (killed or still going): the runs cannot be judged against the tolerances"}
 	default:
 		res.Regressions = batch.Compare(batch.EntryOf(*ra.Summary), batch.EntryOf(*rb.Summary), res.Tolerances)
+		// A run the host spoiled says nothing about the firmware: two of
+		// them agreeing is no evidence that B is as good as A.
+		for _, r := range []struct {
+			name string
+			s    *record.Summary
+		}{{"A", ra.Summary}, {"B", rb.Summary}} {
+			if r.s.Outcome == record.Invalid {
+				res.Regressions = append(res.Regressions, fmt.Sprintf("run %s is invalid (%s): it says nothing about the firmware; run it again on a quieter host", r.name, r.s.Reason))
+			}
+		}
 	}
 	if res.Regressions == nil {
 		res.Regressions = []string{}

@@ -195,3 +195,45 @@ func TestPageInChromium(t *testing.T) {
 		os.WriteFile(filepath.Join(dir, "compare.png"), shot, 0o644)
 	}
 }
+
+// Two runs the host spoiled (outcome invalid) say nothing about the
+// firmware, so they are never "within tolerances" of each other, even
+// when every number agrees.
+func TestInvalidRunsAreNeverWithinTolerances(t *testing.T) {
+	a := runScenario(t, "level-demo", 1)
+	invalid := func(src string) string {
+		dst := copyRun(t, src, func([]string) {})
+		p := filepath.Join(dst, record.SummaryFile)
+		b, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var s record.Summary
+		if err := s.UnmarshalJSON(b); err != nil {
+			t.Fatal(err)
+		}
+		s.Outcome, s.Reason = record.Invalid, "host_stall: the rig was not running for 120.0 ms"
+		if b, err = s.MarshalJSON(); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(p, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return dst
+	}
+	for _, tc := range []struct {
+		name string
+		a, b string
+	}{
+		{"both invalid", invalid(a), invalid(a)},
+		{"B invalid", a, invalid(a)},
+	} {
+		r, err := compare.Runs(tc.a, tc.b)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if r.Within || !strings.Contains(strings.Join(r.Regressions, "\n"), "invalid") {
+			t.Errorf("%s: within %v, regressions %q; want outside, saying a run is invalid", tc.name, r.Within, r.Regressions)
+		}
+	}
+}

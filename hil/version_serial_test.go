@@ -58,15 +58,15 @@ func TestOtherVersionGreetingOverSerial(t *testing.T) {
 	}
 
 	m, s, cfg := demo(t, 5)
-	cfg.HandshakeTimeout = 3 * time.Second
+	// A rig that ignored the greeting and waited for the handshake to
+	// time out would return the no-greeting error below; the outcome, not
+	// a clock, tells the two apart, so the timeout is only a generous
+	// bound on a busy host.
+	cfg.HandshakeTimeout = 20 * time.Second
 	w := newRecord(t, cfg, m, s)
-	start := time.Now()
 	res, err := Run(context.Background(), cfg, m, s, rig, w)
 	if err != nil {
-		t.Fatalf("Run: %v", err)
-	}
-	if took := time.Since(start); took > 2*time.Second {
-		t.Errorf("the rig took %v to refuse the greeting: it waited for the handshake to time out", took)
+		t.Fatalf("Run: %v (the rig did not refuse the greeting)", err)
 	}
 	if res.Summary.Outcome != record.Tripped || res.Summary.Alarms[AlarmVersionMismatch] != 1 {
 		t.Errorf("outcome %s (%s), alarms %v; want tripped with one version_mismatch", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)

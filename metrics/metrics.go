@@ -60,7 +60,7 @@ type Exporter struct {
 }
 
 // Outcomes are the values of the outcome label of gaitrig_run_outcome.
-var Outcomes = []string{"running", string(record.Pass), string(record.Fail), string(record.Tripped), string(record.Aborted)}
+var Outcomes = []string{"running", string(record.Pass), string(record.Fail), string(record.Tripped), string(record.Aborted), string(record.Invalid)}
 
 type descs struct {
 	ticks, misses, resent, steps, frameErrors, alarms *prometheus.Desc

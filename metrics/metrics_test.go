@@ -253,3 +253,27 @@ func TestMetricsToken(t *testing.T) {
 		t.Errorf("a scrape with the token got %d", resp.StatusCode)
 	}
 }
+
+// A run the host spoiled ends with outcome invalid; the outcome gauge says
+// so, instead of showing no outcome at all.
+func TestInvalidOutcomeIsExported(t *testing.T) {
+	ex, err := metrics.New(metrics.Config{}, hil.NewTap(0, false))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ex.Close()
+	ex.Finish(&record.Summary{Outcome: record.Invalid})
+	after := scrape(t, ex.URL())
+	if got := value(after, "gaitrig_run_outcome", "outcome", string(record.Invalid)); got != 1 {
+		t.Errorf("gaitrig_run_outcome{outcome=\"invalid\"} = %v after an invalid run, want 1", got)
+	}
+	ones := 0
+	for _, m := range after["gaitrig_run_outcome"].GetMetric() {
+		if m.GetGauge().GetValue() == 1 {
+			ones++
+		}
+	}
+	if ones != 1 {
+		t.Errorf("%d outcome series at 1, want exactly one", ones)
+	}
+}

@@ -19,6 +19,7 @@ func ExampleWriteJUnit() {
 	}
 	// Output:
 	// <?xml version="1.0" encoding="UTF-8"?>
+	// <!-- A passing simulation is not a safety certificate: it shows how a model of the walker behaved against this firmware and says nothing certain about the real machine. Treadmill and overground trials need the lab's own safety procedure, a fall-arrest harness or gantry, a hardware e-stop within reach of the operator, and the local rules and qualified staff that govern such trials. -->
 	// <testsuites name="gaitrig" tests="2" failures="1" errors="0" skipped="0" time="8.100">
 	//   <testsuite name="nightly" tests="2" failures="1" errors="0" skipped="0" time="8.100">
 	//     <testcase name="level-demo" classname="nightly" time="4.200"></testcase>

@@ -7,6 +7,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"gaitrig/record"
 )
 
 // Case is one JUnit test case: a criterion of a single run, or one
@@ -197,6 +199,12 @@ func WriteJUnit(w io.Writer, suites ...Suite) error {
 	}
 	_, doc.Time = junitSeconds(total)
 	if _, err := io.WriteString(w, xml.Header); err != nil {
+		return fmt.Errorf("write JUnit XML: %w", err)
+	}
+	// A CI page shows these cases as green to people who sign off a
+	// firmware, so the file carries the safety caution like every report;
+	// a comment, because JUnit has no element every consumer keeps.
+	if _, err := io.WriteString(w, "<!-- "+record.Caution+" -->\n"); err != nil {
 		return fmt.Errorf("write JUnit XML: %w", err)
 	}
 	enc := xml.NewEncoder(w)

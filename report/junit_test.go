@@ -6,6 +6,8 @@ import (
 	"errors"
 	"strings"
 	"testing"
+
+	"gaitrig/record"
 )
 
 func TestWriteJUnitParsesBack(t *testing.T) {
@@ -109,5 +111,22 @@ func TestWriteJUnitReportsWriteError(t *testing.T) {
 	err := WriteJUnit(failingWriter{}, Suite{Name: "x", Cases: []Case{{Name: "a"}}})
 	if err == nil || !strings.Contains(err.Error(), "disk full") {
 		t.Fatalf("got %v, want an error naming the write failure", err)
+	}
+}
+
+// A CI system shows a JUnit file's green cases to people signing off a
+// firmware: the file carries the safety caution like every other report.
+func TestJUnitCarriesTheSafetyCaution(t *testing.T) {
+	var buf bytes.Buffer
+	s := Suite{Name: "s", Cases: []Case{{Name: "c", Class: "k"}}}
+	if err := WriteJUnit(&buf, s); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(buf.String(), record.Caution) {
+		t.Fatalf("JUnit XML without the safety caution:\n%s", buf.String())
+	}
+	var doc xmlTestSuites
+	if err := xml.Unmarshal(buf.Bytes(), &doc); err != nil || doc.Tests != 1 {
+		t.Fatalf("the caution broke the document: %v, %d tests", err, doc.Tests)
 	}
 }

@@ -178,7 +178,9 @@ func TestReplayNaturalGait(t *testing.T) {
 		}
 	}
 	if s == nil {
-		t.Skip("no built-in scenario starts from its natural gait")
+		// passive-downhill does; a library without one has lost the
+		// scenario this test exists for, which must not pass silently.
+		t.Fatal("no built-in scenario starts from its natural gait")
 	}
 	dir := filepath.Join(t.TempDir(), "run")
 	res, err := Run(context.Background(), s, Options{RunDir: dir, MaxSteps: 3})

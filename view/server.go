@@ -11,6 +11,7 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
+	"mime"
 	"net"
 	"net/http"
 	"sync"
@@ -234,6 +235,12 @@ func (s *Server) controlHTTP(w http.ResponseWriter, r *http.Request) {
 	ctl := s.control.Load()
 	if ctl == nil {
 		http.Error(w, "this view shows a live run: there is nothing to pause or seek", http.StatusConflict)
+		return
+	}
+	// Only JSON: a page on another site can POST text/plain or a form
+	// without the browser asking this server first, but not JSON.
+	if mt, _, _ := mime.ParseMediaType(r.Header.Get("Content-Type")); mt != "application/json" {
+		http.Error(w, "control: send a JSON object with Content-Type: application/json", http.StatusUnsupportedMediaType)
 		return
 	}
 	var c controlReq

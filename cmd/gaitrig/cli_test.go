@@ -430,3 +430,13 @@ func TestJSONOfDemoAndLatency(t *testing.T) {
 		t.Errorf("latency --json: round trip %+v, want measured figures with p50 ≤ p99 ≤ max", rt)
 	}
 }
+
+// TestCycleCarriesTheCaution: cycle calls a gait stable, a verdict a
+// person acts on, so its text ends with the safety caution as every
+// command that reports a result does.
+func TestCycleCarriesTheCaution(t *testing.T) {
+	code, out, errOut := run(t, "cycle", "passive-downhill")
+	if code != exitPass || !strings.Contains(out, "stable") || !strings.Contains(out, safetyCaution) {
+		t.Fatalf("cycle passive-downhill: exit %d, want a verdict and the caution\n%s%s", code, out, errOut)
+	}
+}

@@ -58,6 +58,8 @@ when none is found from the guess, 2 for bad usage.`, stdout, stderr)
 		return c.printJSON(rep, code)
 	}
 	printCycle(stdout, rep, err)
+	// "stable" is a verdict a person acts on: it carries the caution.
+	fmt.Fprintln(stdout, "\n"+safetyCaution)
 	return code
 }
 

@@ -66,6 +66,11 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds failed\n", sr.N-sr.Passed, sr.N)
 			return false
 		}
+		if sr.Invalid > 0 {
+			// A seed the host spoiled was not tested: no GO on it.
+			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds ran invalid (the host stalled them); run preflight again on a quieter host\n", sr.Invalid, g.Seeds)
+			return false
+		}
 	}
 	return res.Go
 }

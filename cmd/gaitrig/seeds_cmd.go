@@ -42,11 +42,17 @@ func runSeeds(sc *scenarios.Scenario, o rig.Options, n int, asJSON bool, stdout,
 	if res.Passed != res.N {
 		return exitFail
 	}
+	if res.Invalid > 0 {
+		return exitInvalid // the rate is over fewer seeds than asked
+	}
 	return exitPass
 }
 
 func printSeeds(w io.Writer, r batch.SeedsResult) {
 	fmt.Fprintf(w, "%s over %d seeds: %d passed, pass rate %.3f (95 %% Wilson interval %.3f … %.3f)\n", r.Scenario, r.N, r.Passed, r.Rate, r.Low, r.High)
+	if r.Invalid > 0 {
+		fmt.Fprintf(w, "%d more seeds ran invalid (the host stalled them) and are left out of the rate: run them again on a quieter host\n", r.Invalid)
+	}
 	for _, s := range r.Runs {
 		fmt.Fprintf(w, "  seed %-6d %-8s %3d steps  %s\n", s.Seed, s.Outcome, s.Steps, s.Reason)
 	}
