@@ -117,6 +117,10 @@ const (
 	Fail    Outcome = "fail"    // a criterion not met
 	Tripped Outcome = "tripped" // an alarm with severity trip e-stopped the run
 	Aborted Outcome = "aborted" // stopped by the user (SIGINT, SIGTERM) or an error
+	// Invalid: the host, not the firmware, spoiled the run (the loop was
+	// stalled past the watchdog, host_stall): it says nothing about the
+	// build and should be run again.
+	Invalid Outcome = "invalid"
 )
 
 // Latency is a distribution summary in microseconds.

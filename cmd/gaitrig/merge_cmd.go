@@ -1,0 +1,72 @@
+package main
+
+import (
+	"io"
+
+	"gaitrig/batch"
+	"gaitrig/rig"
+)
+
+// exitInfrastructure is the exit code of a batch in which nothing
+// regressed but the host spoiled some scenario on every attempt (outcome
+// invalid, a link that could not be opened): run the night again, the
+// build is not to blame. Issue 9 gives outcome invalid the same code.
+const exitInfrastructure = 3
+
+func init() {
+	commands["merge"] = command{"combine the folders of the shards of one suite into one result", cmdMerge}
+	jsonResults["merge"] = suiteResult{}
+}
+
+func cmdMerge(args []string, stdout, stderr io.Writer) int {
+	c := newCmdline("merge", "SHARD-FOLDER ...", `
+Combines the suite folders of the shards of one suite (gaitrig suite --shard
+K/N, each leaving suite.json) into one result in a new folder: one suite.json,
+one suite.html, one junit.xml, one baseline comparison, and the exit code an
+unsharded run gives (0 all well, 1 a regression or a run that could not be
+made, 3 no regression but host trouble, 2 bad usage or shards that do not fit
+together: a shard missing or given twice, shards of different counts or
+libraries, or judged against different baselines). With --baseline every
+scenario's figures are judged again against that file; otherwise the shards'
+verdicts stand. Run folders stay where the shards put them.`, stdout, stderr)
+	out := c.String("out", "runs", "parent `FOLDER` of the merged result's folder")
+	basePath := c.String("baseline", "", "judge every scenario against this baseline `FILE` (default: the shards' verdicts)")
+	writeBase := c.String("write-baseline", "", "write the merged figures as a new baseline `FILE`")
+	junitFile := c.String("junit-file", "", "write the JUnit XML to `FILE` (default: junit.xml in the merged folder)")
+	c.jsonFlag()
+	if done, code := c.parse(args); done {
+		return code
+	}
+	if c.NArg() == 0 {
+		return c.usageError("want at least one SHARD-FOLDER")
+	}
+	parts := make([]batch.SuiteSummary, c.NArg())
+	for i, dir := range c.Args() {
+		s, err := batch.ReadSuiteSummary(dir)
+		if err != nil {
+			return c.fail(err)
+		}
+		parts[i] = s
+	}
+	var bl *batch.Baseline
+	if *basePath != "" {
+		var err error
+		if bl, err = batch.ReadBaseline(*basePath); err != nil {
+			return c.fail(err)
+		}
+	}
+	sum, err := batch.Merge(parts, c.Args(), bl, *basePath)
+	if err != nil {
+		return c.fail(err)
+	}
+	dir, err := batch.NewDir(*out, "merged")
+	if err != nil {
+		return c.fail(rig.ConfigError(err))
+	}
+	js := suiteResult{SuiteFolder: dir, Shard: "merged", Baseline: sum.Baseline}
+	code, err := writeSuiteResult(c, dir, *junitFile, *writeBase, sum, &js)
+	if err != nil {
+		return c.fail(rig.ConfigError(err))
+	}
+	return code
+}
