@@ -145,8 +145,8 @@ func JudgeEntry(bl *Baseline, name string, got Entry, reason string) (expected s
 
 // Sources expands suite arguments into the list of scenario sources, in a
 // stable order: "builtin" is every built-in scenario (builtin:NAME), a
-// folder is its *.yaml and *.yml files sorted by name, anything else a
-// file. A missing path or a folder without scenario files wraps
+// folder is its *.yaml and *.yml files sorted by name (but suite.yaml, the
+// suite's configuration), anything else a file. A missing path or a folder without scenario files wraps
 // rig.ErrConfig.
 func Sources(args []string) ([]string, error) {
 	var out []string
@@ -168,7 +168,13 @@ func Sources(args []string) ([]string, error) {
 		var files []string
 		for _, pat := range []string{"*.yaml", "*.yml"} {
 			m, _ := filepath.Glob(filepath.Join(a, pat))
-			files = append(files, m...)
+			for _, f := range m {
+				// The suite's configuration sits beside the scenarios
+				// and is not one of them.
+				if filepath.Base(f) != SuiteConfigFile {
+					files = append(files, f)
+				}
+			}
 		}
 		if len(files) == 0 {
 			return nil, rig.Configf("%s: no *.yaml scenario files in this folder", a)
