@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"gaitrig/batch"
+	"gaitrig/internal/browsertest"
 	"gaitrig/rig"
 )
 
@@ -183,6 +184,15 @@ func syntheticBuilds(t *testing.T, s *Store) {
 		if err := s.Add(context.Background(), &r); err != nil {
 			t.Fatal(err)
 		}
+		if i == 5 {
+			// A run the host spoiled, with figures far off: not a
+			// build's result, so no part of the trend.
+			bad := r
+			bad.Outcome, bad.MeanSpeedMPS = "invalid", 0.1
+			if err := s.Add(context.Background(), &bad); err != nil {
+				t.Fatal(err)
+			}
+		}
 	}
 }
 
@@ -207,6 +217,9 @@ func TestTrendFlagsDrift(t *testing.T) {
 			if !sp.Drift || math.Abs(sp.DriftTotal-want) > 1e-12 || math.Abs(sp.Tolerance-0.02) > 1e-15 {
 				t.Errorf("speed: drift %v total %g tolerance %g; want drift, total %g, tolerance 0.02", sp.Drift, sp.DriftTotal, sp.Tolerance, want)
 			}
+			if len(sp.Points) != 8 {
+				t.Errorf("%d points, want the 8 builds without the spoiled run", len(sp.Points))
+			}
 			for i, p := range sp.Points {
 				if p.Drifting != (i >= 2) {
 					t.Errorf("speed point %d (%s) drifting %v", i, p.Build, p.Drifting)
@@ -225,5 +238,65 @@ func TestTrendFlagsDrift(t *testing.T) {
 				t.Errorf("page: caution or the one drift flag missing")
 			}
 		})
+	}
+}
+
+// TestTrendPageInChromium writes the page of the synthetic builds and
+// checks, in the DOM the browser built, a plot per figure with a band and
+// a dot per build, the drifting builds marked on the speed plot only, the
+// drift flag on that figure only, and the caution.
+func TestTrendPageInChromium(t *testing.T) {
+	s, err := Open(context.Background(), "sqlite:"+filepath.Join(t.TempDir(), "h.db"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	syntheticBuilds(t, s)
+	rs, err := s.Series(context.Background(), "level-demo", 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	path := filepath.Join(t.TempDir(), "history.html")
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := WritePage(f, Page{Scenario: "level-demo", Builds: len(rs), K: 5, Trends: Trends(rs, nil, batch.DefaultTolerances, 5)}); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	doc := browsertest.DOM(t, path)
+	if !strings.Contains(browsertest.Text(doc), "not a safety certificate") {
+		t.Error("caution missing")
+	}
+	svgs := browsertest.FindAll(doc, "svg")
+	// The latency was never measured: its figure says so instead of a plot.
+	if len(svgs) != len(Figures)-1 {
+		t.Fatalf("%d plots, want %d", len(svgs), len(Figures)-1)
+	}
+	for _, svg := range svgs {
+		fig := browsertest.Attr(svg, "data-figure")
+		dots := browsertest.FindAll(svg, "circle")
+		drifting := 0
+		for _, d := range dots {
+			if strings.Contains(browsertest.Attr(d, "class"), "drifting") {
+				drifting++
+			}
+		}
+		if len(dots) != 8 || len(browsertest.FindAll(svg, "rect")) != 1 {
+			t.Errorf("%s: %d dots and %d bands, want 8 and 1", fig, len(dots), len(browsertest.FindAll(svg, "rect")))
+		}
+		if want := map[bool]int{true: 6, false: 0}[fig == "mean_speed_mps"]; drifting != want {
+			t.Errorf("%s: %d drifting builds marked, want %d", fig, drifting, want)
+		}
+	}
+	var flags []string
+	for _, sp := range browsertest.FindAll(doc, "span") {
+		if browsertest.Attr(sp, "class") == "drift" {
+			flags = append(flags, browsertest.Text(sp))
+		}
+	}
+	if len(flags) != 1 || !strings.Contains(flags[0], "last 5 builds") {
+		t.Errorf("drift flags %q, want one on the speed", flags)
 	}
 }

@@ -50,7 +50,7 @@ func svgPlot(t Trend) template.HTML {
 	}
 	y := func(v float64) float64 { return plotH - plotPad/2 - (v-lo)/(hi-lo)*(plotH-plotPad) }
 	var b strings.Builder
-	fmt.Fprintf(&b, `<svg id="plot-%s" viewBox="0 0 %g %g" width="%g" height="%g" role="img">`, t.Name, plotW, plotH, plotW, plotH)
+	fmt.Fprintf(&b, `<svg class="plot" data-figure="%s" viewBox="0 0 %g %g" width="%g" height="%g" role="img">`, t.Name, plotW, plotH, plotW, plotH)
 	if !math.IsNaN(t.Reference) {
 		fmt.Fprintf(&b, `<rect class="band" x="%g" y="%.2f" width="%g" height="%.2f" fill="#dde8f6"/>`,
 			plotPad, y(t.Reference+t.Tolerance), plotW-2*plotPad, math.Max(0.5, y(t.Reference-t.Tolerance)-y(t.Reference+t.Tolerance)))
@@ -93,22 +93,25 @@ var pageTmpl = template.Must(template.New("history").Funcs(template.FuncMap{
 		return fmt.Sprintf("%.4g", f)
 	},
 }).Parse(`<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8"><title>gaitrig history: {{.Scenario}}</title>
+<html lang="en"><head><meta charset="utf-8"><title>gaitrig history</title>
 <style>body{font-family:sans-serif;margin:1.5em;color:#222}.caution{border:2px solid #a60;padding:.5em;background:#fff6e6}
 .drift{color:#c0392b;font-weight:bold}section{margin-bottom:1.5em}</style></head><body>
-<h1>History of {{.Scenario}}</h1>
+<h1>History across firmware builds</h1>
 <p class="caution" id="caution">{{.Caution}}</p>
-<p>{{.Builds}} builds, oldest on the left. The shaded band is the baseline's value and how far the baseline comparison lets the figure move; drift is a move the same way over the last {{.K}} builds, more than that in total although each build stayed within it.</p>
-{{range .Trends}}<section class="figure" id="figure-{{.Name}}"><h2>{{.Label}}{{if .Drift}} <span class="drift">drift: {{num .DriftTotal}} over the last {{$.K}} builds (tolerance {{num .Tolerance}})</span>{{end}}</h2>
+<p>Oldest build on the left. The shaded band is the baseline's value and how far the baseline comparison lets the figure move; drift is a move the same way over the last builds, more than that in total although each build stayed within it.</p>
+{{range .Pages}}{{$p := .}}<article class="scenario" id="scenario-{{.Scenario}}"><h2>{{.Scenario}}: {{.Builds}} builds</h2>
+{{range .Trends}}<section class="figure" id="figure-{{$p.Scenario}}-{{.Name}}"><h3>{{.Label}}{{if .Drift}} <span class="drift">drift: {{num .DriftTotal}} over the last {{$p.K}} builds (band ± {{num .Tolerance}})</span>{{end}}</h3>
 {{plot .}}
-<p class="band-text">band {{num .Reference}} ± {{num .Tolerance}}; builds: {{range $i, $p := .Points}}{{if $i}}, {{end}}{{$p.Build}} {{num $p.Value}}{{end}}</p></section>
+<p class="band-text">band {{num .Reference}} ± {{num .Tolerance}}; builds: {{range $i, $b := .Points}}{{if $i}}, {{end}}{{$b.Build}} {{num $b.Value}}{{end}}</p></section>
+{{end}}</article>
 {{end}}</body></html>
 `))
 
-// WritePage writes the trend page.
-func WritePage(w io.Writer, p Page) error {
-	if p.Caution == "" {
-		p.Caution = record.Caution
-	}
-	return pageTmpl.Execute(w, p)
+// WritePage writes the trend page of one or more scenarios as one HTML
+// document.
+func WritePage(w io.Writer, pages ...Page) error {
+	return pageTmpl.Execute(w, struct {
+		Caution string
+		Pages   []Page
+	}{record.Caution, pages})
 }

@@ -4,6 +4,7 @@ import (
 	"math"
 
 	"gaitrig/batch"
+	"gaitrig/record"
 )
 
 // DefaultDriftBuilds is how many builds back drift is looked for (k): the
@@ -96,7 +97,16 @@ func Drift(values []float64, k int, tol float64) (drift bool, total float64) {
 // first), with the band of the baseline entry ref (nil: the first
 // result's values) under tolerances tol, and looks for drift over the last
 // k changes.
-func Trends(rs []Result, ref *batch.Entry, tol batch.Tolerances, k int) []Trend {
+//
+// Results whose outcome says nothing about the build (invalid: the host
+// spoiled it; aborted: stopped by a person) are left out.
+func Trends(all []Result, ref *batch.Entry, tol batch.Tolerances, k int) []Trend {
+	rs := make([]Result, 0, len(all))
+	for _, r := range all {
+		if r.Outcome != string(record.Invalid) && r.Outcome != string(record.Aborted) {
+			rs = append(rs, r)
+		}
+	}
 	out := make([]Trend, 0, len(Figures))
 	for _, f := range Figures {
 		t := Trend{Name: f.Name, Label: f.Label, Points: []Point{}}

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"os"
@@ -75,6 +76,7 @@ on some scenario (run the night again).`, stdout, stderr)
 	c.defaultIs("jobs", "every core")
 	link := c.String("link", "", "run every scenario against this `LINK` instead of the scenario's (syntax as in gaitrig run --help)")
 	noReport := c.Bool("no-report", false, "do not write the HTML report of each run")
+	hist := addHistoryFlags(c)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -138,6 +140,13 @@ on some scenario (run the night again).`, stdout, stderr)
 			return c.fail(rig.ConfigError(err))
 		}
 	}
+	st, err := hist.open(context.Background())
+	if err != nil {
+		return c.fail(err)
+	}
+	if st != nil {
+		defer st.Close()
+	}
 	suiteDir, err := batch.NewDir(*out, "suite")
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
@@ -168,6 +177,22 @@ on some scenario (run the night again).`, stdout, stderr)
 	code, err := writeSuiteResult(c, suiteDir, *junitFile, *writeBase, sum, &js)
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
+	}
+	if st != nil {
+		// Every run that ended with an outcome, host trouble included
+		// (the trend leaves invalid runs out, the history keeps them).
+		for _, d := range res.Runs {
+			if d.Err != nil || d.Result.Summary.Outcome == "" {
+				continue
+			}
+			if err := hist.store(st, "suite", d.Job.Scenario)(d.Result); err != nil {
+				c.fail(fmt.Errorf("history: %w", err))
+				if code == exitPass {
+					code = exitConfig
+				}
+				break
+			}
+		}
 	}
 	return code
 }
