@@ -45,7 +45,7 @@ type ScenarioVerdict struct {
 	Figures     *Entry   `json:"figures,omitempty"`     // the run's figures, as a baseline entry holds them
 	Attempts    int      `json:"attempts"`              // runs made (1 + retries used)
 	Quarantined bool     `json:"quarantined,omitempty"` // reported, but does not fail the suite
-	RunFolder   string   `json:"run_folder"`            // the last attempt's run folder
+	RunFolder   string   `json:"run_folder"`            // the last attempt's run folder (in suite.json: relative to its folder)
 	Seconds     float64  `json:"seconds"`               // wall time of the last attempt (not compared)
 }
 

@@ -25,7 +25,13 @@ var suitePage = template.Must(template.New("suite").Funcs(template.FuncMap{
 		}
 		return fmt.Sprintf("%.0f", *p)
 	},
+	// A run folder in a summary is relative to the summary's folder (as
+	// suite and merge write it); an absolute one is made relative to the
+	// page's folder.
 	"rel": func(base, p string) string {
+		if !filepath.IsAbs(p) {
+			return filepath.ToSlash(p)
+		}
 		if r, err := filepath.Rel(base, p); err == nil {
 			return filepath.ToSlash(r)
 		}

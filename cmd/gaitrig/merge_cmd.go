@@ -2,6 +2,7 @@ package main
 
 import (
 	"io"
+	"path/filepath"
 
 	"gaitrig/batch"
 	"gaitrig/rig"
@@ -62,6 +63,17 @@ verdicts stand. Run folders stay where the shards put them.`, stdout, stderr)
 	dir, err := batch.NewDir(*out, "merged")
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
+	}
+	for i, v := range sum.Scenarios {
+		// Relative to the merged folder, as a suite's summary keeps them.
+		if v.RunFolder == "" {
+			continue
+		}
+		from, err1 := filepath.Abs(dir)
+		to, err2 := filepath.Abs(v.RunFolder)
+		if r, err := filepath.Rel(from, to); err1 == nil && err2 == nil && err == nil {
+			sum.Scenarios[i].RunFolder = r
+		}
 	}
 	js := suiteResult{SuiteFolder: dir, Shard: "merged", Baseline: sum.Baseline}
 	code, err := writeSuiteResult(c, dir, *junitFile, *writeBase, sum, &js)

@@ -87,6 +87,22 @@ func TestShardedSuiteMergesToTheUnshardedExitCode(t *testing.T) {
 			t.Errorf("merged %+v, unsharded %+v", g, w)
 		}
 	}
+	for _, s := range append(merged.Scenarios, whole.Scenarios...) {
+		// The run folders named, and the one the pages link to (relative
+		// to the page's folder), are the runs' folders.
+		if _, err := os.Stat(filepath.Join(s.RunFolder, "summary.json")); err != nil {
+			t.Errorf("%s: run folder %s: %v", s.Scenario, s.RunFolder, err)
+		}
+	}
+	sum, err := batch.ReadSuiteSummary(merged.SuiteFolder)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range sum.Scenarios {
+		if _, err := os.Stat(filepath.Join(merged.SuiteFolder, s.RunFolder, "summary.json")); err != nil {
+			t.Errorf("%s: run folder %s relative to the merged folder: %v", s.Scenario, s.RunFolder, err)
+		}
+	}
 	for _, f := range []string{merged.JUnit, merged.Summary, merged.Page} {
 		if _, err := os.Stat(f); err != nil {
 			t.Error(err)

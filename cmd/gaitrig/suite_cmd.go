@@ -251,7 +251,14 @@ func writeSuiteResult(c *cmdline, dir, junitFile, writeBase string, sum batch.Su
 		js.BaselineWritten = writeBase
 		fmt.Fprintf(w, "baseline written: %s\n", writeBase)
 	}
-	js.Scenarios, js.Failed, js.Infrastructure, js.Quarantined, js.Caution = sum.Scenarios, sum.Failed, sum.Infrastructure, sum.Quarantined, record.Caution
+	// What --json prints names run folders from where the command ran.
+	js.Scenarios = append([]batch.ScenarioVerdict(nil), sum.Scenarios...)
+	for i, v := range js.Scenarios {
+		if v.RunFolder != "" && !filepath.IsAbs(v.RunFolder) {
+			js.Scenarios[i].RunFolder = filepath.Join(dir, v.RunFolder)
+		}
+	}
+	js.Failed, js.Infrastructure, js.Quarantined, js.Caution = sum.Failed, sum.Infrastructure, sum.Quarantined, record.Caution
 	code := exitPass
 	switch {
 	case sum.Failed > 0:
