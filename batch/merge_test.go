@@ -3,6 +3,7 @@ package batch
 import (
 	"context"
 	"errors"
+	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
@@ -259,6 +260,28 @@ func TestShardFrom(t *testing.T) {
 		}
 		if !errors.Is(err, rig.ErrConfig) || !strings.Contains(err.Error(), c.err) {
 			t.Errorf("ShardFrom(%q, %d): error %v, want one containing %q", c.flag, c.count, err, c.err)
+		}
+	}
+}
+
+// TestReadSuiteSummaryRefusesWhatItCannotTrust: a missing file, another
+// schema, a verdict it does not know, text that is not a summary.
+func TestReadSuiteSummaryRefusesWhatItCannotTrust(t *testing.T) {
+	for _, c := range []struct{ text, want string }{
+		{"", "no such file"},
+		{`{"schema_version": 2, "scenarios": []}`, "schema_version 2"},
+		{`{"schema_version": 1, "scenarios": [{"scenario": "a", "verdict": "fine"}]}`, `verdict "fine" is not one of`},
+		{`[1, 2]`, "not a suite summary"},
+	} {
+		dir := t.TempDir()
+		if c.text != "" {
+			if err := os.WriteFile(filepath.Join(dir, SuiteSummaryFile), []byte(c.text), 0o644); err != nil {
+				t.Fatal(err)
+			}
+		}
+		_, err := ReadSuiteSummary(dir)
+		if !errors.Is(err, rig.ErrConfig) || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%q: error %v, want one containing %q", c.text, err, c.want)
 		}
 	}
 }

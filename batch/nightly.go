@@ -225,7 +225,14 @@ func ReadSuiteSummary(dir string) (SuiteSummary, error) {
 	if s.SchemaVersion < 1 || s.SchemaVersion > SuiteSummaryVersion {
 		return s, rig.Configf("%s: schema_version %d; this tool reads 1 to %d", path, s.SchemaVersion, SuiteSummaryVersion)
 	}
-	for i := range s.Scenarios {
+	for i, v := range s.Scenarios {
+		switch v.Verdict {
+		case VerdictOK, VerdictRegressed, VerdictError, VerdictInfrastructure:
+		default:
+			// An unknown verdict would count as neither failed nor
+			// passed: refuse it rather than let it pass the night.
+			return s, rig.Configf("%s: scenarios[%d] (%s): verdict %q is not one of ok, regressed, error, infrastructure", path, i, v.Scenario, v.Verdict)
+		}
 		if s.Scenarios[i].Regressions == nil {
 			s.Scenarios[i].Regressions = []string{}
 		}
