@@ -35,8 +35,16 @@ type Suite struct {
 	// Runner runs one scenario. Default rig.Run.
 	Runner RunFunc
 	// OnDone is called once per scenario as it finishes, in the order of
-	// the scenarios (see Scheduler.OnDone). Default none.
+	// the scenarios (see Scheduler.OnDone), and again for each retry.
+	// Default none.
 	OnDone func(i int, d Done)
+	// Retries is how many more times a run spoiled by the host (see
+	// HostTrouble) is made before it is reported as infrastructure.
+	// Default 0; the command line's default is 2.
+	Retries int
+	// Quarantine names scenarios that run and are reported but do not
+	// count as failed (see SuiteConfig). Default none.
+	Quarantine map[string]bool
 }
 
 // SuiteResult is what a suite gives back.
@@ -49,8 +57,18 @@ type SuiteResult struct {
 	// Entries holds the figures of every scenario that ran, by name: a new
 	// baseline (WriteBaseline).
 	Entries map[string]Entry
-	// Failed counts the scenarios that regressed or could not run.
+	// Failed counts the scenarios that regressed or could not run, not
+	// counting infrastructure trouble and quarantined scenarios.
 	Failed int
+	// Verdicts holds the verdict and figures per scenario, sorted by name:
+	// what the suite's summary (suite.json) and page list.
+	Verdicts []ScenarioVerdict
+	// Infrastructure counts the scenarios whose every attempt the host
+	// spoiled (HostTrouble): they say nothing about the build.
+	Infrastructure int
+	// Quarantined counts the quarantined scenarios that regressed or could
+	// not run: reported, not failed.
+	Quarantined int
 }
 
 // Run runs every scenario and judges it. A scenario that cannot run counts
@@ -61,22 +79,41 @@ func (s Suite) Run(ctx context.Context, scs []*scenarios.Scenario) SuiteResult {
 		jobs[i] = Job{Scenario: sc, Options: rig.Options{Link: s.Link, RunDir: filepath.Join(s.Dir, sc.Name), Report: s.Report}}
 	}
 	runs := Scheduler{Jobs: s.Jobs, Runner: s.Runner, OnDone: s.OnDone}.RunAll(ctx, jobs)
+	attempts := s.retry(ctx, jobs, runs)
 	out := SuiteResult{Runs: runs, Entries: map[string]Entry{}}
-	for _, d := range runs {
+	for i, d := range runs {
 		name := d.Job.Scenario.Name
 		r := report.ScenarioResult{Scenario: name, Seconds: d.Seconds, Err: d.Err}
-		if d.Err == nil {
+		v := ScenarioVerdict{Scenario: name, RunFolder: d.Result.Dir, Seconds: d.Seconds, Attempts: attempts[i], Quarantined: s.Quarantine[name]}
+		switch {
+		case HostTrouble(d):
+			why := "outcome invalid"
+			if d.Err != nil {
+				why = d.Err.Error()
+			} else if d.Result.Summary.Reason != "" {
+				why += " (" + d.Result.Summary.Reason + ")"
+			}
+			r.Err = fmt.Errorf("infrastructure, not the firmware: %s, on each of %d attempts", why, attempts[i])
+			v.Verdict, v.Error = VerdictInfrastructure, r.Err.Error()
+		case d.Err != nil:
+			v.Verdict, v.Error = VerdictError, d.Err.Error()
+		default:
 			got := EntryOf(d.Result.Summary)
 			out.Entries[name] = got
 			r.Outcome = got.Outcome
 			r.Expected, r.Regressions = Judge(s.Baseline, name, d.Result.Summary)
-		}
-		if r.Err != nil || len(r.Regressions) > 0 {
-			out.Failed++
+			v.Figures, v.Reason = &got, d.Result.Summary.Reason
+			v.Verdict, v.Outcome, v.Expected, v.Regressions = VerdictOK, r.Outcome, r.Expected, r.Regressions
+			if len(r.Regressions) > 0 {
+				v.Verdict = VerdictRegressed
+			}
 		}
 		out.Results = append(out.Results, r)
+		out.Verdicts = append(out.Verdicts, v)
 	}
 	sort.SliceStable(out.Results, func(i, j int) bool { return out.Results[i].Scenario < out.Results[j].Scenario })
+	sort.SliceStable(out.Verdicts, func(i, j int) bool { return out.Verdicts[i].Scenario < out.Verdicts[j].Scenario })
+	out.Failed, out.Infrastructure, out.Quarantined = count(out.Verdicts)
 	return out
 }
 
@@ -86,10 +123,16 @@ func (s Suite) Run(ctx context.Context, scs []*scenarios.Scenario) SuiteResult {
 // outcome other than pass. expected is the baseline's outcome ("" without
 // an entry).
 func Judge(bl *Baseline, name string, s record.Summary) (expected string, regressions []string) {
-	got := EntryOf(s)
+	return JudgeEntry(bl, name, EntryOf(s), s.Reason)
+}
+
+// JudgeEntry is Judge on a run's figures (reason is the summary's reason
+// for its outcome, quoted when there is no baseline): what merge uses to
+// judge shards against one baseline.
+func JudgeEntry(bl *Baseline, name string, got Entry, reason string) (expected string, regressions []string) {
 	if bl == nil {
 		if got.Outcome != string(record.Pass) {
-			return "", []string{fmt.Sprintf("outcome %s (%s)", got.Outcome, s.Reason)}
+			return "", []string{fmt.Sprintf("outcome %s (%s)", got.Outcome, reason)}
 		}
 		return "", nil
 	}
@@ -102,8 +145,8 @@ func Judge(bl *Baseline, name string, s record.Summary) (expected string, regres
 
 // Sources expands suite arguments into the list of scenario sources, in a
 // stable order: "builtin" is every built-in scenario (builtin:NAME), a
-// folder is its *.yaml and *.yml files sorted by name, anything else a
-// file. A missing path or a folder without scenario files wraps
+// folder is its *.yaml and *.yml files sorted by name (but suite.yaml, the
+// suite's configuration), anything else a file. A missing path or a folder without scenario files wraps
 // rig.ErrConfig.
 func Sources(args []string) ([]string, error) {
 	var out []string
@@ -125,7 +168,13 @@ func Sources(args []string) ([]string, error) {
 		var files []string
 		for _, pat := range []string{"*.yaml", "*.yml"} {
 			m, _ := filepath.Glob(filepath.Join(a, pat))
-			files = append(files, m...)
+			for _, f := range m {
+				// The suite's configuration sits beside the scenarios
+				// and is not one of them.
+				if filepath.Base(f) != SuiteConfigFile {
+					files = append(files, f)
+				}
+			}
 		}
 		if len(files) == 0 {
 			return nil, rig.Configf("%s: no *.yaml scenario files in this folder", a)

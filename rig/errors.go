@@ -29,3 +29,25 @@ func ConfigError(err error) error {
 
 // Configf formats a configuration error (see ConfigError).
 func Configf(format string, a ...any) error { return configError{fmt.Errorf(format, a...)} }
+
+// ErrLinkOpen is wrapped (besides ErrConfig) by the error of a link that
+// could not be opened: a nightly rig retries such a run as the host's
+// trouble (a busy broker, a port another job holds) instead of blaming the
+// firmware build.
+var ErrLinkOpen = errors.New("link could not be opened")
+
+// linkOpenError marks err as a link that could not be opened, keeping its
+// text; nil stays nil.
+func linkOpenError(err error) error {
+	if err == nil {
+		return nil
+	}
+	return configError{linkOpen{err}}
+}
+
+// linkOpen wraps the dial error so errors.Is finds ErrLinkOpen and the
+// cause, with the cause's text unchanged.
+type linkOpen struct{ err error }
+
+func (e linkOpen) Error() string   { return e.err.Error() }
+func (e linkOpen) Unwrap() []error { return []error{ErrLinkOpen, e.err} }

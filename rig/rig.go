@@ -297,7 +297,8 @@ func dialScenario(sc *scenarios.Scenario, o Options, lockstep bool) (Opened, err
 			return Opened{}, err
 		}
 	}
-	return Dial(d)
+	opened, err := Dial(d)
+	return opened, linkOpenError(err)
 }
 
 // mqttCredentials reads the user name and password from the environment

@@ -35,7 +35,9 @@ const (
 	exitFail   = 1 // a criterion failed, the run tripped, a regression, NO-GO
 	exitConfig = 2 // bad usage, bad scenario, link could not be opened
 	// exitInvalid: the host, not the firmware, spoiled the run (outcome
-	// invalid, alarm host_stall); a nightly rig retries it.
+	// invalid, alarm host_stall), or in a batch nothing regressed but the
+	// host spoiled some scenario on every attempt (outcome invalid, a link
+	// that could not be opened): run it again, the build is not to blame.
 	exitInvalid = 3
 	// exitKilled: a second SIGINT or SIGTERM ended the process at once
 	// (128 + SIGINT, as a shell reports a process an interrupt ended).

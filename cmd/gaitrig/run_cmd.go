@@ -65,6 +65,7 @@ configuration.`, stdout, stderr)
 	force := c.Bool("force", false, "start a wall-clock run over a serial line even when a state and a command take longer on the wire than a tick")
 	seeds := c.Int("seeds", 0, "run the scenario with `N` seeds of noise, drops and latency and report the pass rate (Wilson 95 % interval) and the worst run")
 	vf := addViewFlags(c, true)
+	hist := addHistoryFlags(c)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -103,6 +104,18 @@ configuration.`, stdout, stderr)
 	if min := sc.Pass.MinSteps; *maxSteps > 0 && *maxSteps < min {
 		c.warn("--max-steps %d is below the scenario's pass.min_steps %d: the run cannot pass", *maxSteps, min)
 	}
+	// Opened before the run, so a database that cannot be reached stops
+	// the command before the link opens, not after the run is lost.
+	st, err := hist.open(context.Background())
+	if err != nil {
+		return c.fail(err)
+	}
+	if st != nil {
+		defer st.Close()
+		if *seeds > 0 {
+			return c.usageError("--history with --seeds: store single runs or suites; the seeds' pass rate is not stored")
+		}
+	}
 	if *seeds > 0 {
 		return runSeeds(sc, o, *seeds, c.jsonMode(), stdout, stderr)
 	}
@@ -110,6 +123,9 @@ configuration.`, stdout, stderr)
 		o.OnStep = stepPrinter(c.progress())
 	}
 	lv := newLiveView(vf, &o, c.stderr) // changes o: before o is passed on
+	if st != nil {
+		return runAndReport(c, sc, o, lv, hist.store(st, "run", sc))
+	}
 	return runAndReport(c, sc, o, lv)
 }
 
@@ -131,7 +147,11 @@ func freshRunDir(dir string) error {
 
 // runAndReport runs one scenario under a signal context and prints its
 // verdict, or the JSON document under --json; it returns the exit code.
-func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options, lv *liveView) int {
+//
+// Each of after is called with the result of a run that ended with an
+// outcome (storing it in a history); an error of one is printed and turns
+// exit code 0 into 2, so a lost history entry is not a silent pass.
+func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options, lv *liveView, after ...func(rig.Result) error) int {
 	ctx, stop := signalContext()
 	defer stop()
 	res := runResult{Scenario: sc.Name}
@@ -171,6 +191,16 @@ func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options, lv *liveVie
 	if err != nil {
 		res.Error = err.Error()
 		code = exitCodeFor(err)
+	}
+	if r.Summary.Outcome != "" {
+		for _, f := range after {
+			if herr := f(r); herr != nil {
+				c.fail(fmt.Errorf("history: %w", herr))
+				if code == exitPass {
+					code = exitConfig
+				}
+			}
+		}
 	}
 	if c.jsonMode() {
 		code = c.printJSON(res, code)
