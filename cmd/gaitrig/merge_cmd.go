@@ -8,7 +8,6 @@ import (
 	"gaitrig/rig"
 )
 
-
 func init() {
 	commands["merge"] = command{"combine the folders of the shards of one suite into one result", cmdMerge}
 	jsonResults["merge"] = suiteResult{}
