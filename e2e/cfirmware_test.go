@@ -1494,13 +1494,9 @@ func TestCFirmwareWalks(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
-	p := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, p.Path)
-	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
-	defer conn.Close()
-
-	res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
-	checkWalk(t, "over a pty pair", res, dir, conn, fw)
+	w := walkOverPty(t, ctx, b.firmware, cfg, model, initial)
+	res := w.res
+	checkWalk(t, "over a pty pair", res, w.dir, w.conn, w.fw)
 
 	// The same run with the Go reference firmware in-process.
 	goRes := runGoReference(t, ctx, cfg, model, initial)
@@ -1514,19 +1510,47 @@ func TestCFirmwareWalks(t *testing.T) {
 	}
 }
 
+// ptyWalk is one walk of the C firmware over a pty pair: what checkWalk
+// judges.
+type ptyWalk struct {
+	res  hil.Result
+	dir  string
+	conn bridges.Conn
+	fw   *firmwareProc
+}
+
+// walkOverPty runs the C firmware on a fresh pty pair and process for each
+// attempt, running again a walk the host spoiled (untilValid). A run that
+// ended invalid told its firmware to stop, so that process ends by itself.
+func walkOverPty(t *testing.T, ctx context.Context, bin string, cfg hil.Config, model *plant.Model, initial plant.State) ptyWalk {
+	t.Helper()
+	return untilValid(t, "the C firmware over a pty pair", func(int) (ptyWalk, record.Summary) {
+		p := openPty(t)
+		fw := startFirmware(t, ctx, bin, p.Path)
+		conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
+		t.Cleanup(func() { conn.Close() })
+		res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
+		return ptyWalk{res: res, dir: dir, conn: conn, fw: fw}, res.Summary
+	})
+}
+
 // runGoReference runs the same scenario with the Go reference firmware
 // over the in-process link, the run a C firmware run must match to the bit.
+// An in-process firmware can be starved too, so an invalid run is run
+// again (untilValid).
 func runGoReference(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State) hil.Result {
 	t.Helper()
-	rigEnd, fwEnd := inproc.Pair()
-	served := make(chan error, 1)
-	go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
-	goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
-	rigEnd.Close()
-	if err := <-served; err != nil {
-		t.Errorf("the Go reference firmware ended with %v", err)
-	}
-	return goRes
+	return untilValid(t, "the Go reference in-process", func(int) (hil.Result, record.Summary) {
+		rigEnd, fwEnd := inproc.Pair()
+		served := make(chan error, 1)
+		go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
+		goRes, _ := runLoop(t, ctx, cfg, model, initial, rigEnd, "inproc")
+		rigEnd.Close()
+		if err := <-served; err != nil {
+			t.Errorf("the Go reference firmware ended with %v", err)
+		}
+		return goRes, goRes.Summary
+	})
 }
 
 // checkWalk asserts what every walking run of the C firmware must show: at
@@ -1622,54 +1646,66 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
-	dir := t.TempDir()
-	fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
-	relay := exec.CommandContext(ctx, socat,
-		"pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
-	relayErr := &syncBuffer{}
-	relay.Stderr = relayErr
-	relay.WaitDelay = 2 * time.Second
-	if err := relay.Start(); err != nil {
-		t.Fatalf("starting socat: %v", err)
+	type socatWalk struct {
+		r    rig.Result
+		conn bridges.Conn
+		fw   *firmwareProc
 	}
-	relayDone := make(chan struct{})
-	go func() { _ = relay.Wait(); close(relayDone) }()
-	defer func() {
-		_ = relay.Process.Kill()
-		<-relayDone
-	}()
-	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
-		_, e1 := os.Stat(fwPath)
-		_, e2 := os.Stat(rigPath)
-		if e1 == nil && e2 == nil {
-			break
+	// Each attempt links a fresh socat pair to a fresh firmware process.
+	w := untilValid(t, "the C firmware over socat-linked ptys", func(int) (socatWalk, record.Summary) {
+		dir := t.TempDir()
+		fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
+		relay := exec.CommandContext(ctx, socat,
+			"pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
+		relayErr := &syncBuffer{}
+		relay.Stderr = relayErr
+		relay.WaitDelay = 2 * time.Second
+		if err := relay.Start(); err != nil {
+			t.Fatalf("starting socat: %v", err)
 		}
-		if time.Now().After(deadline) {
-			t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+		relayDone := make(chan struct{})
+		go func() { _ = relay.Wait(); close(relayDone) }()
+		t.Cleanup(func() {
+			_ = relay.Process.Kill()
+			<-relayDone
+		})
+		for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+			_, e1 := os.Stat(fwPath)
+			_, e2 := os.Stat(rigPath)
+			if e1 == nil && e2 == nil {
+				break
+			}
+			if time.Now().After(deadline) {
+				t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+			}
 		}
-	}
 
-	fw := startFirmware(t, ctx, b.firmware, fwPath)
-	sc, o := levelDemo(t, "serial:"+rigPath)
-	run, err := rig.Prepare(ctx, sc, o)
-	if err != nil {
-		t.Fatalf("the rig could not prepare a run over %s: %v", rigPath, err)
-	}
-	defer run.Close()
-	r, err := run.Run(ctx)
-	if err != nil {
-		t.Fatalf("run over %s: %v", rigPath, err)
-	}
-	res := r.Loop
-	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, r.Dir, run.Conn(), fw)
+		fw := startFirmware(t, ctx, b.firmware, fwPath)
+		sc, o := levelDemo(t, "serial:"+rigPath)
+		run, err := rig.Prepare(ctx, sc, o)
+		if err != nil {
+			t.Fatalf("the rig could not prepare a run over %s: %v", rigPath, err)
+		}
+		t.Cleanup(func() { run.Close() })
+		r, err := run.Run(ctx)
+		if err != nil {
+			t.Fatalf("run over %s: %v", rigPath, err)
+		}
+		return socatWalk{r: r, conn: run.Conn(), fw: fw}, r.Loop.Summary
+	})
+	res := w.r.Loop
+	checkWalk(t, "over socat-linked ptys and go.bug.st/serial", res, w.r.Dir, w.conn, w.fw)
 
 	// Same law to the bit, deterministic loop: the same end state as the Go
 	// reference in-process, run as `gaitrig run level-demo --link builtin`.
-	sc, o = levelDemo(t, "builtin")
-	goRun, err := rig.Run(ctx, sc, o)
-	if err != nil {
-		t.Fatalf("level-demo with the Go reference in-process: %v", err)
-	}
+	sc, o := levelDemo(t, "builtin")
+	goRun := untilValid(t, "level-demo with the Go reference in-process", func(int) (rig.Result, record.Summary) {
+		goRun, err := rig.Run(ctx, sc, o)
+		if err != nil {
+			t.Fatalf("level-demo with the Go reference in-process: %v", err)
+		}
+		return goRun, goRun.Loop.Summary
+	})
 	goRes := goRun.Loop
 	if goRes.Summary.Ticks != res.Summary.Ticks || goRes.Final.Q != res.Final.Q || goRes.Final.V != res.Final.V {
 		t.Errorf("level-demo: the C firmware over socat ended after %d ticks in q=%v v=%v, the Go reference in-process after %d ticks in q=%v v=%v",

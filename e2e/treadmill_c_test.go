@@ -5,7 +5,6 @@ import (
 	"testing"
 	"time"
 
-	"gaitrig/bridges/serial"
 	"gaitrig/hil"
 	"gaitrig/rig"
 	"gaitrig/scenarios"
@@ -41,12 +40,9 @@ func TestCFirmwareWalksTheBelt(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
 
-	p := openPty(t)
-	fw := startFirmware(t, ctx, b.firmware, p.Path)
-	conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
-	defer conn.Close()
-	res, dir := runLoop(t, ctx, cfg, model, initial, conn, "serial "+p.Path)
-	checkWalk(t, "on the belt over a pty pair", res, dir, conn, fw)
+	w := walkOverPty(t, ctx, b.firmware, cfg, model, initial)
+	res := w.res
+	checkWalk(t, "on the belt over a pty pair", res, w.dir, w.conn, w.fw)
 	if n := res.Summary.Alarms[hil.AlarmBeltEndPassed] + res.Summary.Alarms[hil.AlarmHarnessCaught]; n != 0 {
 		t.Errorf("the walker left the belt or was caught (%d alarms)", n)
 	}

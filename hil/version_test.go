@@ -88,15 +88,33 @@ func TestEachVersionServedOverPty(t *testing.T) {
 		t.Run("v"+string(rune('0'+v)), func(t *testing.T) {
 			m, s, cfg := demo(t, 3)
 			cfg.Watchdog = 1500*time.Millisecond + 250*time.Microsecond + 999 // the rig enforces exactly this
-			var tap *tapConn
-			fw := func(conn bridges.Conn) error {
-				tap = &tapConn{Conn: conn}
-				return reference.Serve(tap, reference.Options{Protocol: v, IdleTimeout: 5 * time.Second})
+			type ptyRun struct {
+				res Result
+				dir string
+				tap *tapConn
 			}
-			res, dir, err, ferr := runOverPty(t, cfg, m, s, fw)
-			if err != nil || ferr != nil {
-				t.Fatalf("run: %v; firmware: %v", err, ferr)
-			}
+			// Each attempt is a fresh pty and firmware. The firmware of a
+			// run the host spoiled may fail to send its last answers into a
+			// port the stopped rig no longer reads; that says nothing about
+			// the protocol version, so its error is logged, not judged.
+			r := untilValid(t, "a version-"+string(rune('0'+v))+" firmware over a pty", func(int) (ptyRun, record.Summary) {
+				var tap *tapConn
+				fw := func(conn bridges.Conn) error {
+					tap = &tapConn{Conn: conn}
+					return reference.Serve(tap, reference.Options{Protocol: v, IdleTimeout: 5 * time.Second})
+				}
+				res, dir, err, ferr := runOverPty(t, cfg, m, s, fw)
+				if err != nil {
+					t.Fatalf("run: %v; firmware: %v", err, ferr)
+				}
+				if ferr != nil && res.Summary.Outcome == record.Invalid {
+					t.Logf("the firmware of the invalid run ended with %v", ferr)
+				} else if ferr != nil {
+					t.Fatalf("run outcome %s; firmware: %v", res.Summary.Outcome, ferr)
+				}
+				return ptyRun{res: res, dir: dir, tap: tap}, res.Summary
+			})
+			res, dir, tap := r.res, r.dir, r.tap
 			if res.Summary.Outcome != record.Pass || res.Summary.Steps < 3 {
 				t.Fatalf("outcome %s after %d steps (%s); a version-%d firmware must walk", res.Summary.Outcome, res.Summary.Steps, res.Summary.Reason, v)
 			}

@@ -95,10 +95,14 @@ func TestLocalLinkKindsCarryARun(t *testing.T) {
 		t.Run(link, func(t *testing.T) {
 			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 			defer cancel()
-			res, err := Run(ctx, sc, Options{Link: link, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
-			if err != nil {
-				t.Fatal(err)
-			}
+			// Each attempt dials the link afresh (a new pty and firmware).
+			res := untilValid(t, "over "+link, func(int) (Result, record.Summary) {
+				res, err := Run(ctx, sc, Options{Link: link, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
+				if err != nil {
+					t.Fatal(err)
+				}
+				return res, res.Summary
+			})
 			s := res.Summary
 			if s.Steps != 3 || s.Outcome == record.Tripped || res.Loop.Link.Commands < uint64(s.Ticks) {
 				t.Fatalf("over %s: %d steps, outcome %s (%s), %d commands for %d ticks", link, s.Steps, s.Outcome, s.Reason, res.Loop.Link.Commands, s.Ticks)
@@ -116,28 +120,39 @@ func TestServeFirmwareOverPty(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	paths := make(chan string, 1)
-	served := make(chan error, 1)
-	go func() {
-		served <- ServeFirmware("pty", "", "", "", reference.Options{Actuators: len(sc.JointNames()), IdleTimeout: 3 * time.Second}, func(line string) {
-			_, path, _ := strings.Cut(line, "--link serial:")
-			paths <- path
-		})
-	}()
-	var path string
-	select {
-	case path = <-paths:
-	case err := <-served:
-		t.Fatalf("the firmware ended before it announced its pty: %v", err)
-	case <-time.After(10 * time.Second):
-		t.Fatal("no pty announced within 10 s")
-	}
 	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 	defer cancel()
-	res, err := Run(ctx, sc, Options{Link: "serial:" + path, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
-	if err != nil {
-		t.Fatal(err)
+	type servedRun struct {
+		res    Result
+		path   string
+		served chan error
 	}
+	// Each attempt serves a fresh firmware on a fresh pty; the firmware of
+	// a run the host spoiled gets the rig's stop and ends by itself.
+	r := untilValid(t, "over a served pty", func(int) (servedRun, record.Summary) {
+		paths := make(chan string, 1)
+		served := make(chan error, 1)
+		go func() {
+			served <- ServeFirmware("pty", "", "", "", reference.Options{Actuators: len(sc.JointNames()), IdleTimeout: 3 * time.Second}, func(line string) {
+				_, path, _ := strings.Cut(line, "--link serial:")
+				paths <- path
+			})
+		}()
+		var path string
+		select {
+		case path = <-paths:
+		case err := <-served:
+			t.Fatalf("the firmware ended before it announced its pty: %v", err)
+		case <-time.After(10 * time.Second):
+			t.Fatal("no pty announced within 10 s")
+		}
+		res, err := Run(ctx, sc, Options{Link: "serial:" + path, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return servedRun{res: res, path: path, served: served}, res.Summary
+	})
+	res, path, served := r.res, r.path, r.served
 	if res.Summary.Steps != 3 {
 		t.Errorf("%d steps over serial:%s, want 3 (%s)", res.Summary.Steps, path, res.Summary.Reason)
 	}
