@@ -307,6 +307,18 @@ func Start(cfg Config) (*Broker, error) {
 // port when port 0 was asked for).
 func (b *Broker) Addr() string { return b.listener.Address() }
 
+// Holds reports whether a live connection holds clientID, so that a second
+// connection with the same id would be refused as a takeover. A client that
+// has just disconnected holds its id until the broker has processed the
+// disconnect; a peer that reuses the id (a firmware restarting) can wait for
+// Holds to turn false instead of guessing a delay.
+func (b *Broker) Holds(clientID string) bool {
+	b.rules.mu.Lock()
+	defer b.rules.mu.Unlock()
+	c, ok := b.rules.claims[clientID]
+	return ok && !c.cl.Closed()
+}
+
 // Refusals returns how many connections, publishes, subscriptions and
 // packets the broker has refused so far, of every kind.
 func (b *Broker) Refusals() uint64 { return b.rules.refusals.total.Load() }

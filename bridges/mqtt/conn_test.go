@@ -233,6 +233,13 @@ func TestJSONDebugMode(t *testing.T) {
 			if err := f.Close(); err != nil {
 				t.Fatal(err)
 			}
+			// The broker refuses a second holder of an id (no takeover):
+			// wait for it to release firmware.b1 before mosquitto_pub uses it.
+			for deadline := time.Now().Add(wait); b.Holds("firmware.b1"); time.Sleep(5 * time.Millisecond) {
+				if time.Now().After(deadline) {
+					t.Fatal("the broker still holds client id firmware.b1 after the firmware client closed")
+				}
+			}
 			jsonFromOutside(t, r, embeddedPort(t, b))
 			return
 		case <-time.After(100 * time.Millisecond):
