@@ -30,6 +30,7 @@ import (
 	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
 	"gaitrig/hil"
+	"gaitrig/internal/retrytest"
 	"gaitrig/plant"
 	"gaitrig/record"
 	"gaitrig/rig"
@@ -1520,11 +1521,11 @@ type ptyWalk struct {
 }
 
 // walkOverPty runs the C firmware on a fresh pty pair and process for each
-// attempt, running again a walk the host spoiled (untilValid). A run that
+// attempt, running again a walk the host spoiled (retrytest.UntilValid). A run that
 // ended invalid told its firmware to stop, so that process ends by itself.
 func walkOverPty(t *testing.T, ctx context.Context, bin string, cfg hil.Config, model *plant.Model, initial plant.State) ptyWalk {
 	t.Helper()
-	return untilValid(t, "the C firmware over a pty pair", func(int) (ptyWalk, record.Summary) {
+	return retrytest.UntilValid(t, "the C firmware over a pty pair", func(int) (ptyWalk, record.Summary) {
 		p := openPty(t)
 		fw := startFirmware(t, ctx, bin, p.Path)
 		conn := serial.NewConn(p.Master, "pty "+p.Path, serial.Config{})
@@ -1537,10 +1538,10 @@ func walkOverPty(t *testing.T, ctx context.Context, bin string, cfg hil.Config, 
 // runGoReference runs the same scenario with the Go reference firmware
 // over the in-process link, the run a C firmware run must match to the bit.
 // An in-process firmware can be starved too, so an invalid run is run
-// again (untilValid).
+// again (retrytest.UntilValid).
 func runGoReference(t *testing.T, ctx context.Context, cfg hil.Config, model *plant.Model, initial plant.State) hil.Result {
 	t.Helper()
-	return untilValid(t, "the Go reference in-process", func(int) (hil.Result, record.Summary) {
+	return retrytest.UntilValid(t, "the Go reference in-process", func(int) (hil.Result, record.Summary) {
 		rigEnd, fwEnd := inproc.Pair()
 		served := make(chan error, 1)
 		go func() { served <- reference.Serve(fwEnd, reference.Options{}) }()
@@ -1652,7 +1653,7 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 		fw   *firmwareProc
 	}
 	// Each attempt links a fresh socat pair to a fresh firmware process.
-	w := untilValid(t, "the C firmware over socat-linked ptys", func(int) (socatWalk, record.Summary) {
+	w := retrytest.UntilValid(t, "the C firmware over socat-linked ptys", func(int) (socatWalk, record.Summary) {
 		dir := t.TempDir()
 		fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
 		relay := exec.CommandContext(ctx, socat,
@@ -1699,7 +1700,7 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	// Same law to the bit, deterministic loop: the same end state as the Go
 	// reference in-process, run as `gaitrig run level-demo --link builtin`.
 	sc, o := levelDemo(t, "builtin")
-	goRun := untilValid(t, "level-demo with the Go reference in-process", func(int) (rig.Result, record.Summary) {
+	goRun := retrytest.UntilValid(t, "level-demo with the Go reference in-process", func(int) (rig.Result, record.Summary) {
 		goRun, err := rig.Run(ctx, sc, o)
 		if err != nil {
 			t.Fatalf("level-demo with the Go reference in-process: %v", err)

@@ -13,6 +13,7 @@ import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/bridges/serial"
 	"gaitrig/firmware/reference"
+	"gaitrig/internal/retrytest"
 	"gaitrig/plant"
 	"gaitrig/record"
 )
@@ -97,7 +98,7 @@ func TestEachVersionServedOverPty(t *testing.T) {
 			// run the host spoiled may fail to send its last answers into a
 			// port the stopped rig no longer reads; that says nothing about
 			// the protocol version, so its error is logged, not judged.
-			r := untilValid(t, "a version-"+string(rune('0'+v))+" firmware over a pty", func(int) (ptyRun, record.Summary) {
+			r := retrytest.UntilValid(t, "a version-"+string(rune('0'+v))+" firmware over a pty", func(int) (ptyRun, record.Summary) {
 				var tap *tapConn
 				fw := func(conn bridges.Conn) error {
 					tap = &tapConn{Conn: conn}

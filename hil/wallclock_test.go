@@ -10,6 +10,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/retrytest"
 	"gaitrig/record"
 )
 
@@ -160,7 +161,7 @@ func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
 		res   Result
 		ticks []record.Tick
 	}
-	r := untilValid(t, "the wall-clock coast run", func(int) (coastRun, record.Summary) {
+	r := retrytest.UntilValid(t, "the wall-clock coast run", func(int) (coastRun, record.Summary) {
 		res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, fw)
 		sum := res.Summary
 		if taken := res.Link.Commands + res.Link.StaleCommands; sum.Outcome != record.Invalid && taken < badSeq {

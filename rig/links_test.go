@@ -10,6 +10,7 @@ import (
 
 	"gaitrig/firmware/reference"
 	"gaitrig/hil"
+	"gaitrig/internal/retrytest"
 	"gaitrig/record"
 	"gaitrig/scenarios"
 )
@@ -96,7 +97,7 @@ func TestLocalLinkKindsCarryARun(t *testing.T) {
 			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 			defer cancel()
 			// Each attempt dials the link afresh (a new pty and firmware).
-			res := untilValid(t, "over "+link, func(int) (Result, record.Summary) {
+			res := retrytest.UntilValid(t, "over "+link, func(int) (Result, record.Summary) {
 				res, err := Run(ctx, sc, Options{Link: link, Clock: hil.Lockstep, MaxSteps: 3, NoRecord: true})
 				if err != nil {
 					t.Fatal(err)
@@ -129,7 +130,7 @@ func TestServeFirmwareOverPty(t *testing.T) {
 	}
 	// Each attempt serves a fresh firmware on a fresh pty; the firmware of
 	// a run the host spoiled gets the rig's stop and ends by itself.
-	r := untilValid(t, "over a served pty", func(int) (servedRun, record.Summary) {
+	r := retrytest.UntilValid(t, "over a served pty", func(int) (servedRun, record.Summary) {
 		paths := make(chan string, 1)
 		served := make(chan error, 1)
 		go func() {
