@@ -105,7 +105,18 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	kneeSeen := false
 	minKnee := 0.0
 	st := stepStats{onSample: func(s *State, ev *eval) {
+		// A swing knee held by its stop alone whose stop would have to pull
+		// is released at this very instant (at the section just after a
+		// heel strike, the trailing knee): the sample before its release
+		// is not a state the walker is in, and the stance knee's torque
+		// jumps when the swing knee goes free, so it is left out.
+		pending := false
 		for i := 0; i < m.nFeet; i++ {
+			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && !s.KneeLatched[i] && s.Mode[i] == Free && ev.knee[i] < 0 {
+				pending = true
+			}
+		}
+		for i := 0; i < m.nFeet && !pending; i++ {
 			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && s.Mode[i] != Free && (!kneeSeen || ev.knee[i] < minKnee) {
 				kneeSeen, minKnee = true, ev.knee[i]
 			}

@@ -84,6 +84,10 @@ func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	fmt.Fprintf(w, "  period %.4f s, step length %.4f m, speed %.4f m/s\n", r.PeriodS, r.StepLengthM, r.SpeedMPS)
 	fmt.Fprintf(w, "  energy lost at heel strike %.4f J per step, impulse ratio |Λt|/Λn %.4f\n", r.EnergyLostPerStepJ, r.ImpulseRatio)
 	fmt.Fprintf(w, "  peak required friction coefficient %.4f, minimum normal force %.2f N\n", r.PeakRequiredFriction, r.MinNormalForceN)
+	if r.Knees {
+		fmt.Fprintf(w, "  energy lost at knee strike %.4f J per step; minimum stance knee-lock torque %.3f N·m (negative: the latch pulls)\n",
+			r.KneeStrikeEnergyLostJ, r.MinStanceKneeTorqueNM)
+	}
 	fmt.Fprintln(w, "  eigenvalues of the step-to-step map:")
 	for _, e := range r.Eigenvalues {
 		fmt.Fprintf(w, "    % .8f %+.8fi   |λ| = %.6f\n", e[0], e[1], cmplx.Abs(complex(e[0], e[1])))
