@@ -78,7 +78,16 @@ type StepResult struct {
 	// held by its stop alone would buckle, a latch must pull). 0 for a
 	// walker without knees or a step without a locked stance knee.
 	MinStanceKneeTorque float64
-	Events              []Event // every event of the step, in order
+	// KneeStrikeImpulseRatio is |Λ_t|/Λ_n of the ground's impulse on the
+	// stance foot at the knee strike (the largest if the step has
+	// several; 0 without one): the friction the knee strike needs, as
+	// ImpulseRatio is the heel strike's. It comes from the impulse–momentum
+	// theorem — the ground is the only external impulse, so Λ is the jump
+	// of the walker's linear momentum, the hip rows of M(q) Δq̇ — and not
+	// from the impulse solve, which checks the same cone in the tick
+	// (ImpactSlip).
+	KneeStrikeImpulseRatio float64
+	Events                 []Event // every event of the step, in order
 }
 
 // ErrNoHeelStrike is wrapped by StepMap errors when the walker does not
@@ -104,7 +113,20 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	start := s
 	kneeSeen := false
 	minKnee := 0.0
+	var prev State
+	sampled := false
+	kneeRatio := 0.0
 	st := stepStats{onSample: func(s *State, ev *eval) {
+		// A knee strike shows as two samples at the same instant, the
+		// swing knee free in the first and locked in the second.
+		if sampled && prev.T == s.T && s.Mode[s.Stance] != Free {
+			for i := 0; i < m.nFeet; i++ {
+				if m.kneeOf[i] >= 0 && !prev.KneeLocked[i] && s.KneeLocked[i] {
+					kneeRatio = math.Max(kneeRatio, m.groundImpulseRatio(&prev, s, &ev.geom[s.Stance]))
+				}
+			}
+		}
+		prev, sampled = *s, true
 		// A swing knee held by its stop alone whose stop would have to pull
 		// is released at this very instant (at the section just after a
 		// heel strike, the trailing knee): the sample before its release
@@ -148,6 +170,7 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	res.PeakRequiredFriction = st.peakFriction
 	res.MinNormal = st.minNormal
 	res.MinStanceKneeTorque = minKnee
+	res.KneeStrikeImpulseRatio = kneeRatio
 	for _, e := range res.Events {
 		if e.Kind == KneeStrike {
 			res.KneeStrikeEnergyLost += e.EnergyLost

@@ -156,3 +156,28 @@ func (m *Model) kneedMapJacobian(s State, policy Policy, o GaitOptions, h float6
 	}
 	return J, nil
 }
+
+// groundImpulseRatio returns |Λ_t|/Λ_n of the ground's impulse on the
+// stance foot between the states just before (a) and just after (b) an
+// impulse at the same configuration whose only external impulse is the
+// ground's on that foot (a knee strike: the knee and hip impulses are
+// internal). By the impulse–momentum theorem Λ is the jump of the
+// walker's linear momentum, which is the hip rows of M(q) q̇ (the momentum
+// conjugate to the hip's position); t and n are the contact's tangent and
+// normal in g. +Inf if the normal impulse is not positive.
+func (m *Model) groundImpulseRatio(a, b *State, g *footGeom) float64 {
+	var M [MaxDOF][MaxDOF]float64
+	m.MassMatrix(&b.Q, &M)
+	var lam [2]float64
+	for r := 0; r < 2; r++ {
+		for k := 0; k < m.n; k++ {
+			lam[r] += M[r][k] * (b.V[k] - a.V[k])
+		}
+	}
+	lt := lam[0]*g.sp.t[0] + lam[1]*g.sp.t[1]
+	ln := lam[0]*g.sp.n[0] + lam[1]*g.sp.n[1]
+	if !(ln > 0) {
+		return math.Inf(1)
+	}
+	return math.Abs(lt) / ln
+}

@@ -185,6 +185,8 @@ type kneedGaitFixture struct {
 		KneeEnergyLost      float64        `json:"knee_energy_lost"`
 		HeelEnergyLost      float64        `json:"heel_energy_lost"`
 		MinStanceKneeTorque float64        `json:"min_stance_knee_torque"`
+		KneeImpulseRatio    float64        `json:"knee_impulse_ratio"`
+		HeelImpulseRatio    float64        `json:"heel_impulse_ratio"`
 		JacobianStepChange  float64        `json:"jacobian_step_difference"`
 		TrailingKneeAtStart float64        `json:"trailing_knee_torque_at_start"`
 		PotentialEnergyDrop float64        `json:"potential_energy_released"`
@@ -255,6 +257,10 @@ func TestKneedGaitMatchesSciPy(t *testing.T) {
 			// Both sample the torque (Go at the accepted integration steps and
 			// the events, SciPy at 4002 instants of its dense output).
 			rel("min stance knee torque", g.MinStanceKneeTorque, c.MinStanceKneeTorque, 1e-3)
+			// Go: the jump of the linear momentum; SciPy: the multipliers of
+			// its impulse solve.
+			rel("knee-strike impulse ratio", g.KneeStrikeImpulseRatio, c.KneeImpulseRatio, 1e-7)
+			rel("heel-strike impulse ratio", g.ImpulseRatio, c.HeelImpulseRatio, 1e-7)
 			res, err := m.StepMap(g.State, nil, GaitOptions{})
 			if err != nil {
 				t.Fatal(err)
@@ -334,5 +340,144 @@ func TestPointFootKneedWalkerFromMemory(t *testing.T) {
 	}
 	if d := math.Abs(z[3] - published[3]); d > 0.03 {
 		t.Errorf("swing rate %.5f, published %.4f", z[3], published[3])
+	}
+}
+
+// The knee strike's friction check in the tick (the heel strike's rule,
+// applied to the stance foot's impulse at the knee strike): with μ_s below
+// the |Λ_t|/Λ_n the knee strike needs (and above what the rolling stance
+// and the heel strike need), Model.Step reports impact_slip
+// right after the knee_strike with the demanded ratio and the limit, and
+// stops; with Options.ContinueOnSlip it goes on with the stance foot
+// sliding, its impulse on the cone boundary (|Λ_t|/Λ_n = μ_s by the jump
+// of the linear momentum). With μ_s above the ratio nothing is reported.
+// The demanded ratio is the gait finder's KneeStrikeImpulseRatio, itself
+// checked against SciPy (TestKneedGaitMatchesSciPy).
+func TestKneeStrikeFrictionCone(t *testing.T) {
+	m0, g := kneedGait(t)
+	need := g.KneeStrikeImpulseRatio
+	// μ_s between the friction the rolling stance needs and the knee
+	// strike's: only the knee strike can break the cone.
+	low := math.Max(g.PeakRequiredFriction, g.ImpulseRatio)
+	if !(need > 1.1*low) {
+		t.Fatalf("knee-strike impulse ratio %.4g, stance and heel strike need %.4g: no room to test the knee strike's cone", need, low)
+	}
+	between := 0.5 * (low + need)
+	t.Logf("friction needed: rolling stance %.4f, heel strike %.4f, knee strike %.4f", g.PeakRequiredFriction, g.ImpulseRatio, need)
+	for _, c := range []struct {
+		name     string
+		mu       float64
+		cont     bool
+		wantSlip bool
+	}{
+		{"inside the cone", need * 1.5, false, false},
+		{"outside, stop", between, false, true},
+		{"outside, continue", between, true, true},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			p := m0.Params()
+			p.Terrain.Segments[0].MuStatic, p.Terrain.Segments[0].MuKinetic = c.mu, c.mu
+			m, err := New(p, Options{IgnoreScuff: true, ContinueOnSlip: c.cont})
+			if err != nil {
+				t.Fatal(err)
+			}
+			// Ticks to just before the knee strike, then the strike itself
+			// inside one tick from a state whose velocity is kept.
+			s := g.State
+			st := s.Stance
+			var r TickResult
+			for tick := 0; tick < 20000; tick++ {
+				m.Step(&s, nil, 1e-4, &r)
+				strike, slip := -1, -1
+				for j := 0; j < r.NumEvents; j++ {
+					switch r.Events[j].Kind {
+					case KneeStrike:
+						strike = j
+					case ImpactSlip:
+						slip = j
+					}
+				}
+				if strike < 0 {
+					if r.Stopped || s.Stance != st {
+						t.Fatalf("tick %d: no knee strike before %v", tick, r.Events[:r.NumEvents])
+					}
+					continue
+				}
+				t.Logf("μ_s %.4f: events %+v", c.mu, r.Events[:r.NumEvents])
+				if !c.wantSlip {
+					if slip >= 0 || r.Stopped || s.Mode[st] != Rolling {
+						t.Errorf("inside the cone: events %+v, stance foot %v", r.Events[:r.NumEvents], s.Mode[st])
+					}
+					return
+				}
+				if slip != strike+1 {
+					t.Fatalf("want impact_slip right after knee_strike, got %+v", r.Events[:r.NumEvents])
+				}
+				e := r.Events[slip]
+				if e.Foot != st || e.Limit != c.mu || math.Abs(e.Value-need) > 1e-6*need {
+					t.Errorf("impact_slip foot %d value %.9f limit %.4f; want foot %d, the gait's ratio %.9f, μ_s %.4f",
+						e.Foot, e.Value, e.Limit, st, need, c.mu)
+				}
+				if r.Stopped == c.cont {
+					t.Errorf("stopped %v with ContinueOnSlip %v", r.Stopped, c.cont)
+				}
+				return
+			}
+			t.Fatal("no knee strike")
+		})
+	}
+}
+
+// On the cone boundary: the impulse of a knee strike that would slip is
+// resolved with |Λ_t| = μ_s Λ_n, checked by the jump of the walker's
+// linear momentum across the strike (impulse–momentum theorem), and the
+// stance foot leaves the strike sliding, the normal velocity zero.
+func TestKneeStrikeSlipOnConeBoundary(t *testing.T) {
+	m0, g := kneedGait(t)
+	p := m0.Params()
+	mu := 0.5 * g.KneeStrikeImpulseRatio
+	p.Terrain.Segments[0].MuStatic, p.Terrain.Segments[0].MuKinetic = mu, mu
+	m, err := New(p, Options{IgnoreScuff: true, ContinueOnSlip: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The state just before the knee strike, from the nominal step.
+	var pre State
+	have := false
+	if _, err := m0.stepMap(g.State, nil, GaitOptions{}.withDefaults(m0), func(s *State, ev *eval) {
+		if !have && !s.KneeLocked[1-g.State.Stance] && s.T > g.State.T+0.1 {
+			pre = *s
+		}
+		if s.KneeLocked[1-g.State.Stance] && s.T > g.State.T+0.1 {
+			have = true
+		}
+	}); err != nil {
+		t.Fatal(err)
+	}
+	if !have {
+		t.Fatal("no knee strike in the nominal step")
+	}
+	sw := 1 - pre.Stance
+	s := pre
+	var ev eval
+	m.rhs(&s, &s.Q, &s.V, nil, &ev)
+	var r TickResult
+	stop := m.kneeStrike(&s, sw, &ev, &r)
+	if stop || r.NumEvents != 2 || r.Events[0].Kind != KneeStrike || r.Events[1].Kind != ImpactSlip {
+		t.Fatalf("stop %v, events %+v; want knee_strike then impact_slip and no stop", stop, r.Events[:r.NumEvents])
+	}
+	ratio := m.groundImpulseRatio(&pre, &s, &ev.geom[pre.Stance])
+	var gg footGeom
+	m.footGeometry(&s.Q, &s.V, pre.Stance, s.Seg[pre.Stance], &gg)
+	t.Logf("μ_s %.6f, impulse ratio by momentum %.9f, stance foot %v, normal velocity %.3g m/s, slip %.4g m/s",
+		mu, ratio, s.Mode[pre.Stance], gg.vn, gg.slip)
+	if math.Abs(ratio-mu) > 1e-9*mu {
+		t.Errorf("impulse ratio %.12f, want μ_s = %.12f (on the cone boundary)", ratio, mu)
+	}
+	if s.Mode[pre.Stance] != Sliding || math.Abs(gg.vn) > 1e-12 || gg.slip == 0 {
+		t.Errorf("stance foot %v, normal velocity %.3g, slip %.3g; want sliding with zero normal velocity", s.Mode[pre.Stance], gg.vn, gg.slip)
+	}
+	if w := s.V[2+m.feet[sw].link] - s.V[2+sw]; math.Abs(w) > 1e-12 {
+		t.Errorf("knee rate %.3g after the strike", w)
 	}
 }

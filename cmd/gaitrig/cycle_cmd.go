@@ -85,8 +85,8 @@ func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	fmt.Fprintf(w, "  energy lost at heel strike %.4f J per step, impulse ratio |Λt|/Λn %.4f\n", r.EnergyLostPerStepJ, r.ImpulseRatio)
 	fmt.Fprintf(w, "  peak required friction coefficient %.4f, minimum normal force %.2f N\n", r.PeakRequiredFriction, r.MinNormalForceN)
 	if r.Knees {
-		fmt.Fprintf(w, "  energy lost at knee strike %.4f J per step; minimum stance knee-lock torque %.3f N·m (negative: the latch pulls)\n",
-			r.KneeStrikeEnergyLostJ, r.MinStanceKneeTorqueNM)
+		fmt.Fprintf(w, "  energy lost at knee strike %.4f J per step, impulse ratio |Λt|/Λn %.4f; minimum stance knee-lock torque %.3f N·m (negative: the latch pulls)\n",
+			r.KneeStrikeEnergyLostJ, r.KneeStrikeImpulseRatio, r.MinStanceKneeTorqueNM)
 	}
 	fmt.Fprintln(w, "  eigenvalues of the step-to-step map:")
 	for _, e := range r.Eigenvalues {

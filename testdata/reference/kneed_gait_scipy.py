@@ -183,7 +183,8 @@ def step(z, stance=0, watch_knee=False):
     qk, vk = yk[:N], yk[N:]
     closing = vk[SHANK[sw]] - vk[2 + sw]
     ek0 = energy(qk, vk)
-    vk2, _ = impulse(qk, vk, [arr(f"J{stance}", qk, vk), knee_row(stance)[None, :], knee_row(sw)[None, :]])
+    vk2, lk = impulse(qk, vk, [arr(f"J{stance}", qk, vk), knee_row(stance)[None, :], knee_row(sw)[None, :]])
+    assert lk[1] > 0, "the knee strike would need the ground to pull the stance foot"
     knee_lost = ek0 - energy(qk, vk2)
     # Two-link phase to the heel strike; a touchdown behind the stance foot is a scuff.
 
@@ -209,7 +210,7 @@ def step(z, stance=0, watch_knee=False):
         assert scuffs < 5, "scuffing"
     qh, vh = ye[:N], ye[N:]
     eh0 = energy(qh, vh)
-    vh2, _ = impulse(qh, vh, [arr(f"J{sw}", qh, vh), knee_row(stance)[None, :], knee_row(sw)[None, :]])
+    vh2, lh = impulse(qh, vh, [arr(f"J{sw}", qh, vh), knee_row(stance)[None, :], knee_row(sw)[None, :]])
     heel_lost = eh0 - energy(qh, vh2)
     vn_old = (arr(f"J{stance}", qh, vh2) @ vh2)[1]
     assert vn_old > 0, f"the old stance foot does not leave the ground (normal velocity {vn_old})"
@@ -220,7 +221,8 @@ def step(z, stance=0, watch_knee=False):
     step_len = float(T_HAT @ (c_new - c_old))
     zn = np.array([qh[2 + sw], qh[2 + stance], vh2[2 + sw], vh2[2 + stance]])
     figs = dict(period=float(th_), knee_strike_time=float(tk), knee_closing_rate=float(closing),
-                knee_energy_lost=float(knee_lost), heel_energy_lost=float(heel_lost), step_length=step_len,
+                knee_energy_lost=float(knee_lost), knee_impulse=[float(lk[0]), float(lk[1])],
+                knee_impulse_ratio=float(abs(lk[0]) / lk[1]), heel_impulse_ratio=float(abs(lh[0]) / lh[1]), heel_energy_lost=float(heel_lost), step_length=step_len,
                 min_stance_knee_torque=float(min_knee[0]), trailing_knee_torque_at_start=float(trailing_torque),
                 energy_change=float(energy(qh, vh2) - e0), scuffs=scuffs, foot_radius=R)
     return zn, figs
