@@ -44,9 +44,12 @@ import (
 // differences of the whole map differentiate exactly what Newton solves,
 // events and all; each evaluation locates its events to 1e-14 s and
 // integrates to GaitOptions.Tol (1e-11), so with the relative step
-// kneedJacStep the error is about Tol/h + h²·|P'''| ≈ 1e-7, checked in
-// kneedgait_test.go by halving the step and against the compass walker's
-// variational Jacobian (variational_test.go shows the two agree there).
+// kneedJacStep the error is about Tol/h + h²·|P'''| ≈ 1e-7. The checks
+// (kneedgait_test.go): the Jacobian changes by less than 1e-5 relative
+// from step 1e-4 to 3e-5, and its eigenvalues match those of an
+// independent SciPy computation to 1e-5 (they agree to about 1e-9). For
+// the compass walker variational_test.go shows central differences of the
+// whole map agreeing with the variational Jacobian.
 
 // kneedJacStep is the relative difference step of a kneed walker's map
 // Jacobian: large enough that the integrator's error (≈ Tol) divided by it
@@ -100,14 +103,21 @@ func (m *Model) expandSection(u []float64, free []int, z []float64) {
 }
 
 // onSection checks that s (just after a heel strike) is on a kneed
-// walker's section: every knee locked and straight.
+// walker's section as FromReduced builds it: every knee locked and
+// straight, the stance knee latched if it has a latch, the trailing knee's
+// latch released.
 func (m *Model) onSection(s *State) error {
 	for j := 0; j < m.nKnees; j++ {
 		kn := &m.knees[j]
+		i := kn.thigh
 		bend := s.Q[2+kn.shank] - s.Q[2+kn.thigh]
-		if !s.KneeLocked[kn.thigh] || math.Abs(bend) > 1e-9 {
-			return fmt.Errorf("plant: the %s knee is not locked straight just after the heel strike (bend %g rad, locked %v): the swing knee did not strike its stop before the heel struck",
-				legName(kn.thigh), bend, s.KneeLocked[kn.thigh])
+		if !s.KneeLocked[i] || math.Abs(bend) > 1e-9 {
+			return fmt.Errorf("plant: the %s knee is not locked straight just after the heel strike (bend %g rad, locked %v): "+
+				"a passive kneed gait needs the swing knee to strike its stop before the heel strikes and the stance knee to stay locked",
+				legName(i), bend, s.KneeLocked[i])
+		}
+		if want := i == s.Stance && m.p.Legs[i].Shank.Latch; s.KneeLatched[i] != want {
+			return fmt.Errorf("plant: internal: the %s knee's latch is %v just after the heel strike, the section has it %v", legName(i), s.KneeLatched[i], want)
 		}
 	}
 	return nil

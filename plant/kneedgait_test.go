@@ -1,6 +1,7 @@
 package plant
 
 import (
+	"errors"
 	"math"
 	"math/cmplx"
 	"testing"
@@ -479,5 +480,48 @@ func TestKneeStrikeSlipOnConeBoundary(t *testing.T) {
 	}
 	if w := s.V[2+m.feet[sw].link] - s.V[2+sw]; math.Abs(w) > 1e-12 {
 		t.Errorf("knee rate %.3g after the strike", w)
+	}
+}
+
+// Reduced and FromReduced of a kneed walker with a torso, on either
+// stance: z lists the thighs stance first, the torso, then the shanks
+// stance first, and FromReduced rebuilds the state Stand gives (the
+// knees straight and locked, the stance knee latched). A bent knee is
+// off the section and refused.
+func TestKneedReducedRoundTrip(t *testing.T) {
+	m0, _ := kneedPair(t)
+	p := m0.Params()
+	p.Torso = &Torso{Mass: 8, COMDist: 0.3, Inertia: 0.4}
+	m, err := New(p, Options{IgnoreScuff: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for stance := 0; stance < 2; stance++ {
+		legs := [2]float64{0.3, -0.2}
+		rates := []float64{-1.1, -0.4, 0.2}
+		s, err := m.Stand(stance, 0.4, legs, -0.1, rates...)
+		if err != nil {
+			t.Fatal(err)
+		}
+		z := m.Reduced(&s)
+		st, sw := legs[stance], legs[1-stance]
+		dst, dsw := rates[stance], rates[1-stance]
+		want := []float64{st, sw, -0.1, st, sw, dst, dsw, 0.2, dst, dsw}
+		for i := range want {
+			if z[i] != want[i] {
+				t.Fatalf("stance %d: z = %v, want %v", stance, z, want)
+			}
+		}
+		b, err := m.FromReduced(z, stance, 0.4)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if b.Q != s.Q || b.V != s.V || b.KneeLocked != s.KneeLocked || b.KneeLatched != s.KneeLatched || b.Stance != s.Stance {
+			t.Errorf("stance %d: FromReduced(Reduced(s)) differs:\n%+v\n%+v", stance, b, s)
+		}
+		z[3] -= 0.1 // the stance shank behind its thigh: a bent knee
+		if _, err := m.FromReduced(z, stance, 0.4); !errors.Is(err, ErrStand) {
+			t.Errorf("stance %d: a bent knee gave %v, want ErrStand", stance, err)
+		}
 	}
 }
