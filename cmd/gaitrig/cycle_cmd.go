@@ -26,6 +26,11 @@ with the walker's natural gait. The scenario's initial state is the guess.
 A gait belongs to one slope and one friction: the walker is analysed on one
 terrain segment, extended without end; by default the segment under the
 initial stance foot, or the one --segment names. The output says which.
+A walker with knees is analysed on the section with both knees locked
+straight, the step passing through the trailing knee's release and the swing
+knee's strike; its Jacobian is taken by central differences of the whole
+map, and the output adds the knee strike's energy loss and impulse ratio and
+the minimum stance knee-lock torque (negative: the latch must pull).
 Exit code 0 when a gait is found (stable or not: the output says which), 1
 when none is found from the guess, 2 for bad usage.`, stdout, stderr)
 	segment := c.Int("segment", -1, "terrain segment `INDEX` to analyse on, 0-based as in terrain.segments (-1: the one under the initial stance foot)")
