@@ -1,8 +1,8 @@
 #!/usr/bin/env python3
-"""Independent period-one passive gait of a kneed walker with arc feet.
+"""Independent period-one passive gaits of kneed walkers.
 
-The walker (hip point mass, two legs of a thigh and a shank, arc feet on
-the shanks, downhill slope) is derived by Lagrange's equations in SymPy
+Each walker (hip point mass, two legs of a thigh and a shank, arc or point
+feet on the shanks, downhill slope) is derived by Lagrange's equations in SymPy
 (derive() of kneed_sympy.py, which does not read the Go code) and
 integrated with SciPy's DOP853 through the phases of a passive kneed step:
 
@@ -24,7 +24,10 @@ method with central differences; the eigenvalues of the map's Jacobian by
 central differences. The lock torque is the negative of the knee row's
 multiplier (the row is theta_shank - theta_thigh; a stop pushing against
 hyperextension gives the shank a negative generalized force), positive
-while the stop pushes. Writes testdata/reference/kneed_gait_scipy.json.
+while the stop pushes. The ground's impulse on the stance foot at the
+knee strike and on the new stance foot at the heel strike are the
+multipliers of the contact rows of the impulse solves. Writes
+testdata/reference/kneed_gait_scipy.json.
 
 Run from the repository root: /usr/bin/python3 testdata/reference/kneed_gait_scipy.py
 """
