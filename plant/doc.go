@@ -103,7 +103,12 @@
 // StepMap, FindGait and MapJacobian use an adaptive Dormand–Prince 5(4)
 // integrator with the same right-hand side and event handling. The map
 // Jacobian comes from the variational equations with the event-time
-// (saltation) correction at the heel strike.
+// (saltation) correction at the heel strike. A kneed walker's map passes
+// through the trailing knee's release and the swing knee's strike; its
+// section has both knees locked straight, and its Jacobian is taken by
+// central differences of the whole map (kneedgait.go derives the choice;
+// kneedgait_test.go checks the gait against an independent SciPy
+// computation).
 //
 // # Moving ground
 //

@@ -38,7 +38,9 @@ const (
 	Touchdown
 	// ImpactSlip: the impact impulse would leave the friction cone
 	// (|Λ_t| > μ_s Λ_n); it was resolved on the cone boundary. Value =
-	// |Λ_t|/Λ_n demanded, Limit = μ_s.
+	// |Λ_t|/Λ_n demanded, Limit = μ_s. A knee strike's impulse on a foot
+	// in contact is checked the same way (the impact_slip follows its
+	// knee_strike).
 	ImpactSlip
 	// FrictionLimit: a rolling foot demands more friction than the static
 	// limit. Value = utilization |F_t|/(μ_s N), Limit = μ_s.
@@ -71,7 +73,8 @@ const (
 	// KneeStrike: an unlocked knee reached its stop with a closing rate
 	// and locked in a plastic impulse (solved with the feet in contact).
 	// Foot = the leg, Value = the knee's closing rate before (rad/s),
-	// EnergyLost = kinetic energy lost (J).
+	// EnergyLost = kinetic energy lost (J). An impact_slip follows if the
+	// impulse on a foot in contact leaves its friction cone.
 	KneeStrike
 	// KneeUnlock: the stop of a swing leg's locked knee without a latch
 	// would have to pull, so the knee left its stop. Foot = the leg, Value

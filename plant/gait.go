@@ -69,19 +69,30 @@ type StepResult struct {
 	// at every accepted integration step and at the events.
 	PeakRequiredFriction float64
 	MinNormal            float64 // N, minimum normal force of the feet in contact
-	Events               []Event // every event of the step, in order
+	// KneeStrikeEnergyLost is the kinetic energy lost at the step's knee
+	// strikes, J (0 without knees); EnergyLost is the heel strike's alone.
+	KneeStrikeEnergyLost float64
+	// MinStanceKneeTorque is the least lock torque of a locked knee whose
+	// foot is on the ground, N·m, sampled like PeakRequiredFriction: the
+	// torque the stance knee's stop or latch must carry (negative: a knee
+	// held by its stop alone would buckle, a latch must pull). 0 for a
+	// walker without knees or a step without a locked stance knee.
+	MinStanceKneeTorque float64
+	// KneeStrikeImpulseRatio is |Λ_t|/Λ_n of the ground's impulse on the
+	// stance foot at the knee strike (the largest if the step has
+	// several; 0 without one): the friction the knee strike needs, as
+	// ImpulseRatio is the heel strike's. It comes from the impulse–momentum
+	// theorem — the ground is the only external impulse, so Λ is the jump
+	// of the walker's linear momentum, the hip rows of M(q) Δq̇ — and not
+	// from the impulse solve, which checks the same cone in the tick
+	// (ImpactSlip).
+	KneeStrikeImpulseRatio float64
+	Events                 []Event // every event of the step, in order
 }
 
 // ErrNoHeelStrike is wrapped by StepMap errors when the walker does not
 // reach a heel strike (it falls, lifts off, or the time runs out).
 var ErrNoHeelStrike = errors.New("plant: no heel strike")
-
-// ErrKneedAnalysis is returned by FindGait, MapJacobian and MapJacobianFD
-// for a walker with knees: their section coordinates and the saltation at
-// the impact do not yet carry the knees' lock state or the knee strike, so
-// they refuse rather than return numbers that would not mean what they
-// say. StepMap (a simulation to the next heel strike) does handle knees.
-var ErrKneedAnalysis = errors.New("plant: the gait finder and the map Jacobian do not handle knees yet")
 
 // StepMap integrates s with the adaptive Dormand–Prince 5(4) integrator
 // (with the policy's input, nil = passive) until just after the next heel
@@ -100,7 +111,42 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	}
 	m.sanitize(&s)
 	start := s
-	st := stepStats{onSample: observe}
+	kneeSeen := false
+	minKnee := 0.0
+	var prev State
+	sampled := false
+	kneeRatio := 0.0
+	st := stepStats{onSample: func(s *State, ev *eval) {
+		// A knee strike shows as two samples at the same instant, the
+		// swing knee free in the first and locked in the second.
+		if sampled && prev.T == s.T && s.Mode[s.Stance] != Free {
+			for i := 0; i < m.nFeet; i++ {
+				if m.kneeOf[i] >= 0 && !prev.KneeLocked[i] && s.KneeLocked[i] {
+					kneeRatio = math.Max(kneeRatio, m.groundImpulseRatio(&prev, s, &ev.geom[s.Stance]))
+				}
+			}
+		}
+		prev, sampled = *s, true
+		// A swing knee held by its stop alone whose stop would have to pull
+		// is released at this very instant (at the section just after a
+		// heel strike, the trailing knee): the sample before its release
+		// is not a state the walker is in, and the stance knee's torque
+		// jumps when the swing knee goes free, so it is left out.
+		pending := false
+		for i := 0; i < m.nFeet; i++ {
+			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && !s.KneeLatched[i] && s.Mode[i] == Free && ev.knee[i] < 0 {
+				pending = true
+			}
+		}
+		for i := 0; i < m.nFeet && !pending; i++ {
+			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && s.Mode[i] != Free && (!kneeSeen || ev.knee[i] < minKnee) {
+				kneeSeen, minKnee = true, ev.knee[i]
+			}
+		}
+		if observe != nil {
+			observe(s, ev)
+		}
+	}}
 	why := m.adaptive(&s, policy, s.T+o.MaxTime, o.Tol, o.Tol, true, &res.Events, &st)
 	switch why {
 	case stopTime:
@@ -123,6 +169,13 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	res.ImpulseRatio = heel.Value
 	res.PeakRequiredFriction = st.peakFriction
 	res.MinNormal = st.minNormal
+	res.MinStanceKneeTorque = minKnee
+	res.KneeStrikeImpulseRatio = kneeRatio
+	for _, e := range res.Events {
+		if e.Kind == KneeStrike {
+			res.KneeStrikeEnergyLost += e.EnergyLost
+		}
+	}
 	return res, nil
 }
 
@@ -144,7 +197,10 @@ func stoppingEvent(events []Event) Event {
 
 // Reduced returns the map coordinates of a state: the link angles and
 // rates with the legs ordered stance first, z = (θ_stance, θ_swing[,
-// θ_torso], θ̇_stance, θ̇_swing[, θ̇_torso]). The hip position and velocity
+// θ_torso], θ̇_stance, θ̇_swing[, θ̇_torso]); a kneed walker's θ_stance and
+// θ_swing are its thighs' and its shanks follow, stance first, z =
+// (θ_stance, θ_swing[, θ_torso], θ_stance shank, θ_swing shank, rates in
+// the same order). The hip position and velocity
 // follow from the stance foot rolling, so z describes the state on the
 // map's section up to the walker's position along the terrain. Like Step,
 // it repairs the bookkeeping fields of a hand-made state (on a copy; s is
@@ -166,19 +222,30 @@ func (m *Model) reduced(s *State, z []float64) {
 	}
 }
 
-// linkOfReduced maps position i of z to a link index for a given stance.
+// linkOfReduced maps position i of z to a link index for a given stance:
+// positions follow the link order of q with the legs' links (thigh, and
+// shank when both legs have one) taken stance leg first.
 func (m *Model) linkOfReduced(stance, i int) int {
-	if m.nFeet == 2 && i < 2 {
-		if i == 0 {
-			return stance
-		}
-		return 1 - stance
+	if m.nFeet != 2 || stance == 0 {
+		return i
+	}
+	switch {
+	case i < 2:
+		return 1 - i
+	case m.kneeOf[0] >= 0 && m.kneeOf[1] >= 0 && i == m.feet[0].link:
+		return m.feet[1].link
+	case m.kneeOf[0] >= 0 && m.kneeOf[1] >= 0 && i == m.feet[1].link:
+		return m.feet[0].link
 	}
 	return i
 }
 
 // FromReduced builds the state with map coordinates z, the given stance
-// foot rolling, and its hip at horizontal position x (see Reduced).
+// foot rolling, and its hip at horizontal position x (see Reduced). A
+// kneed walker's section has every knee locked straight (see FindGait):
+// its shank entries of z must equal their thigh's (to 1e-9), and the
+// knees are locked, the stance knee latched if it has a latch and the
+// swing knee held by its stop, as just after a heel strike.
 func (m *Model) FromReduced(z []float64, stance int, x float64) (State, error) {
 	if len(z) != 2*m.nLinks {
 		return State{}, fmt.Errorf("%w: %d map coordinates, want %d", ErrStand, len(z), 2*m.nLinks)
@@ -194,14 +261,36 @@ func (m *Model) FromReduced(z []float64, stance int, x float64) (State, error) {
 		k := m.linkOfReduced(stance, i)
 		if k < m.nFeet {
 			ang[k] = z[i]
-		} else {
+		} else if k == m.torso {
 			torso = z[i]
 		}
 		rates[k] = z[nl+i]
 	}
+	for j := 0; j < m.nKnees; j++ {
+		kn := &m.knees[j]
+		sh := m.reducedPos(stance, kn.shank)
+		th := m.reducedPos(stance, kn.thigh)
+		if d, w := z[sh]-z[th], z[nl+sh]-z[nl+th]; !(math.Abs(d) <= 1e-9 && math.Abs(w) <= 1e-9*math.Max(1, math.Abs(z[nl+th]))) {
+			return State{}, fmt.Errorf("%w: map coordinates with the %s knee bent by %g rad at %g rad/s; on the map's section every knee is locked straight",
+				ErrStand, legName(kn.thigh), d, w)
+		}
+		rates[kn.shank] = rates[kn.thigh]
+	}
 	mm := *m
 	mm.o.IgnoreScuff = true // off the section the swing foot may be below ground
 	return mm.Stand(stance, x, ang, torso, rates[:nl]...)
+}
+
+// reducedPos is the position in z of link k for a given stance (the
+// inverse of linkOfReduced, which is its own inverse).
+func (m *Model) reducedPos(stance, k int) int { return m.linkOfReduced(stance, k) }
+
+// legName is "left" or "right".
+func legName(i int) string {
+	if i == 0 {
+		return "left"
+	}
+	return "right"
 }
 
 // Gait is a period-one gait found by FindGait.
@@ -210,15 +299,21 @@ type Gait struct {
 	Stable bool  // every eigenvalue of the map Jacobian inside the unit circle
 	State  State // just after heel strike, State.Stance the new stance foot
 	// Reduced is the fixed point in map coordinates (see Model.Reduced):
-	// stance-leg angle and swing-leg angle, [torso angle,] then their rates,
-	// absolute angles from the world vertical.
+	// stance-leg angle and swing-leg angle, [torso angle,] [stance and
+	// swing shank angles,] then their rates, absolute angles from the
+	// world vertical. A kneed walker's shank entries equal their thigh's
+	// (its knees are locked straight on the section; State has the lock
+	// and latch flags).
 	Reduced []float64
-	// Eigenvalues of the map Jacobian in the coordinates of Reduced, from
-	// the variational equations with the event-time (saltation)
-	// correction, largest magnitude first.
+	// Eigenvalues of the map Jacobian, largest magnitude first. Without
+	// knees they come from the variational equations with the event-time
+	// (saltation) correction; with knees from central differences of the
+	// whole map (kneedgait.go says why), in the free coordinates of the
+	// section: Reduced without the shank entries, whose directions add
+	// only zero eigenvalues.
 	Eigenvalues []complex128
-	Jacobian    *mat.Dense // ∂P/∂z at the fixed point
-	Residual    float64    // max |P(z) − z|
+	Jacobian    *mat.Dense // ∂P/∂z at the fixed point (free coordinates with knees)
+	Residual    float64    // max |P(z) − z| over the free coordinates
 	Iterations  int        // Newton updates made (0 when the guess already met the tolerance)
 	StepResult             // period, step length, speed, energy, friction, impulse of the gait's step
 }
@@ -226,7 +321,10 @@ type Gait struct {
 // FindGait looks for a period-one gait (a fixed point of the step-to-step
 // map) near guess by Newton's method on P(z) − z with a central-difference
 // Jacobian (gonum for the linear solves), then computes the eigenvalues of
-// the map from the variational equations. guess should be a state just
+// the map (MapJacobian). A kneed walker's map passes through the swing
+// knee's unlock and knee strike; its section has both knees locked
+// straight (kneedgait.go), and a step that reaches the heel strike with
+// the swing knee still bent is an error. guess should be a state just
 // after heel strike (its stance foot rolling). An error explains a failure;
 // a Gait with Found false is returned with the last iterate when Newton did
 // not converge.
@@ -234,27 +332,20 @@ func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error)
 	if m == nil {
 		return Gait{}, errors.New("plant: FindGait needs a model")
 	}
-	if m.nKnees > 0 {
-		return Gait{}, ErrKneedAnalysis
-	}
 	if err := o.validate(); err != nil {
 		return Gait{}, err
 	}
 	o = o.withDefaults(m)
 	stance, x := guess.Stance, guess.Q[0]
-	dim := 2 * m.nLinks
-	z := m.Reduced(&guess)
-	mapZ := func(z []float64, out []float64) (StepResult, error) {
-		s, err := m.FromReduced(z, stance, x)
-		if err != nil {
-			return StepResult{}, err
-		}
-		res, err := m.stepMap(s, policy, o, nil)
-		if err != nil {
-			return res, err
-		}
-		m.reduced(&res.After, out)
-		return res, nil
+	free := m.sectionFree()
+	dim := len(free)
+	zg := m.Reduced(&guess)
+	z := make([]float64, dim)
+	for i, p := range free {
+		z[i] = zg[p]
+	}
+	mapZ := func(u []float64, out []float64) (StepResult, error) {
+		return m.sectionMap(u, free, stance, x, policy, o, out)
 	}
 	var g Gait
 	pz := make([]float64, dim)
@@ -272,7 +363,8 @@ func FindGait(m *Model, policy Policy, guess State, o GaitOptions) (Gait, error)
 			g.Residual = math.Max(g.Residual, math.Abs(fz[i]))
 		}
 		g.StepResult = res
-		g.Reduced = append(g.Reduced[:0], z...)
+		g.Reduced = make([]float64, 2*m.nLinks)
+		m.expandSection(z, free, g.Reduced)
 		if g.Residual <= o.NewtonTol {
 			g.Found = true
 			break

@@ -205,8 +205,11 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 // rate, by a plastic impulse: the knee's relative rate and the velocity of
 // every foot in contact (no slip, as at a heel strike) become zero, with
 // every other locked knee held. A foot that would need a pulling impulse
-// is released and the impulse solved again. The latch engages if the leg
-// has one. It reports whether the tick must stop.
+// is released and the impulse solved again; a foot whose impulse leaves
+// the friction cone (|Λ_t| > μ_s Λ_n) is resolved on the cone boundary and
+// reported as at a heel strike (ImpactSlip, after the KneeStrike event;
+// the tick stops unless Options.ContinueOnSlip). The latch engages if the
+// leg has one. It reports whether the tick must stop.
 func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 	kn := &m.knees[m.kneeOf[i]]
 	closing := s.V[2+kn.shank] - s.V[2+kn.thigh]
@@ -219,9 +222,11 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 	}
 	var rows saddle
 	var lam [maxRows]float64
+	var slipSign [2]float64 // ≠ 0: foot on the cone boundary with Λ_t = μ_s σ Λ_n
+	var demanded [2]float64 // |Λ_t|/Λ_n of the no-slip solution
 	v := s.V
 	solved := false
-	for attempt := 0; attempt < 3 && !solved; attempt++ {
+	for attempt := 0; attempt < 6 && !solved; attempt++ {
 		v = s.V
 		rows.k = 0
 		for f := 0; f < m.nFeet; f++ {
@@ -229,10 +234,16 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 				continue
 			}
 			g := &ev.geom[f]
-			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
-			rows.goal[rows.k], _ = m.surface(s, g, 0)
-			rows.k++
-			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, g.jn, f, 1, 0
+			if slipSign[f] == 0 {
+				rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+				rows.goal[rows.k], _ = m.surface(s, g, 0)
+				rows.k++
+			}
+			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, f, 1, 0
+			mu := m.terrain[g.sp.seg].muS * slipSign[f]
+			for d := 0; d < m.n; d++ {
+				rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
+			}
 			rows.k++
 		}
 		m.kneeRows(s, &rows, nil)
@@ -241,17 +252,53 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 			return true
 		}
 		solved = true
+		var lt, ln [2]float64
 		for k := 0; k < rows.k; k++ {
-			if f := rows.foot[k]; rows.kind[k] == 1 && lam[k] < 0 {
-				active[f], solved = false, false
+			f := rows.foot[k]
+			switch rows.kind[k] {
+			case 0:
+				lt[f] = lam[k]
+			case 1:
+				ln[f] = lam[k]
+				if lam[k] < 0 {
+					active[f], slipSign[f], solved = false, 0, false
+				}
+			}
+		}
+		if !solved {
+			continue
+		}
+		for f := 0; f < m.nFeet; f++ {
+			if !active[f] || slipSign[f] != 0 || !(ln[f] > 0) {
+				continue
+			}
+			mu := m.terrain[ev.geom[f].sp.seg].muS
+			demanded[f] = math.Abs(lt[f]) / ln[f]
+			if math.Abs(lt[f]) > mu*ln[f] {
+				slipSign[f] = math.Copysign(1, lt[f])
+				solved = false
 			}
 		}
 	}
 	s.V = v
 	for f := 0; f < m.nFeet; f++ {
-		if !active[f] && s.Mode[f] != Free {
+		prev := s.Mode[f]
+		switch {
+		case !active[f] && prev != Free:
+			// Released: the foot leaves the ground, and its latch with it.
 			s.Mode[f] = Free
 			s.KneeLatched[f] = false
+		case active[f] && slipSign[f] != 0:
+			s.Mode[f] = Sliding
+			var g footGeom
+			m.footGeometry(&s.Q, &s.V, f, ev.geom[f].sp.seg, &g)
+			// As at a heel strike: the friction impulse opposes the slip.
+			s.SlipDir[f] = -slipSign[f]
+			if u, _ := m.surface(s, &g, 0); g.slip != u {
+				s.SlipDir[f] = math.Copysign(1, g.slip-u)
+			}
+		}
+		if s.Mode[f] != prev {
 			s.fired &^= 1<<(condNormal+f) | 1<<(condFriction+f)
 		}
 	}
@@ -260,5 +307,16 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 	}
 	ke1, _ := m.Energy(s)
 	r.add(Event{Kind: KneeStrike, T: s.T, Foot: i, Segment: -1, Value: closing, EnergyLost: ke0 - ke1})
-	return false
+	stop := false
+	for f := 0; f < m.nFeet; f++ {
+		if slipSign[f] == 0 {
+			continue
+		}
+		mu := m.terrain[ev.geom[f].sp.seg].muS
+		r.add(Event{Kind: ImpactSlip, T: s.T, Foot: f, Segment: ev.geom[f].sp.seg, Value: demanded[f], Limit: mu})
+		if !m.o.ContinueOnSlip {
+			stop = true
+		}
+	}
+	return stop
 }

@@ -245,25 +245,6 @@ func TestStanceKneeBucklesWhenTheStopWouldPull(t *testing.T) {
 	}
 }
 
-// The analysis that does not yet know the knees refuses a kneed walker
-// with ErrKneedAnalysis instead of returning numbers that mean nothing.
-func TestKneedAnalysisRefused(t *testing.T) {
-	m, _ := kneedPair(t)
-	s, err := m.Stand(0, 0, [2]float64{0.3, -0.4}, 0, -1.3, -0.7)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := FindGait(m, nil, s, GaitOptions{}); !errors.Is(err, ErrKneedAnalysis) {
-		t.Errorf("FindGait: %v, want ErrKneedAnalysis", err)
-	}
-	if _, err := m.MapJacobian(s, nil, GaitOptions{}); !errors.Is(err, ErrKneedAnalysis) {
-		t.Errorf("MapJacobian: %v, want ErrKneedAnalysis", err)
-	}
-	if _, err := m.MapJacobianFD(s, nil, GaitOptions{}, 1e-6); !errors.Is(err, ErrKneedAnalysis) {
-		t.Errorf("MapJacobianFD: %v, want ErrKneedAnalysis", err)
-	}
-}
-
 // A bad shank is refused with the field that is wrong.
 func TestShankValidation(t *testing.T) {
 	kneed, _ := kneedPair(t)

@@ -21,14 +21,18 @@ import (
 // with g the swing foot's gap (∇g = (J_n, 0)) and f⁻ the vector field just
 // before the impact. The derivatives of the algebraic maps (the impact and
 // the construction of the state from z) are central differences.
+//
+// For a walker with knees it returns central differences of the whole map
+// (relative step 1e-4) in the free coordinates of the section: Reduced
+// without the shank entries (kneedgait.go derives why).
 func (m *Model) MapJacobian(s State, policy Policy, o GaitOptions) (*mat.Dense, error) {
-	if m.nKnees > 0 {
-		return nil, ErrKneedAnalysis
-	}
 	if err := o.validate(); err != nil {
 		return nil, err
 	}
 	o = o.withDefaults(m)
+	if m.nKnees > 0 {
+		return m.kneedMapJacobian(s, policy, o, kneedJacStep)
+	}
 	n := m.n
 	nx := 2 * n
 	dim := 2 * m.nLinks
@@ -251,10 +255,9 @@ func (m *Model) fieldJacobian(s *State, pol Policy, x []float64) *mat.Dense {
 
 // MapJacobianFD returns ∂P/∂z by central differences of the whole
 // step-to-step map with relative step h; used to cross-check MapJacobian.
+// With knees it is in the free coordinates of the section, like
+// MapJacobian.
 func (m *Model) MapJacobianFD(s State, policy Policy, o GaitOptions, h float64) (*mat.Dense, error) {
-	if m.nKnees > 0 {
-		return nil, ErrKneedAnalysis
-	}
 	if err := o.validate(); err != nil {
 		return nil, err
 	}
@@ -262,6 +265,9 @@ func (m *Model) MapJacobianFD(s State, policy Policy, o GaitOptions, h float64) 
 		return nil, perr("h", h, "must be between 0 and 0.1")
 	}
 	o = o.withDefaults(m)
+	if m.nKnees > 0 {
+		return m.kneedMapJacobian(s, policy, o, h)
+	}
 	dim := 2 * m.nLinks
 	z0 := m.Reduced(&s)
 	J := mat.NewDense(dim, dim, nil)

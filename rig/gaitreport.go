@@ -13,23 +13,27 @@ import (
 // form the cycle command prints and writes as JSON: the period-one gait,
 // its step figures and the eigenvalues of its step-to-step map.
 type GaitReport struct {
-	Scenario             string       `json:"scenario"`                // scenario name
-	Loop                 string       `json:"loop"`                    // passive or closed loop with the built-in controller
-	Found                bool         `json:"found"`                   // a period-one gait was found from the guess
-	Stable               bool         `json:"stable"`                  // every eigenvalue inside the unit circle
-	Eigenvalues          [][2]float64 `json:"eigenvalues"`             // of the step-to-step map's Jacobian, each [real, imaginary]
-	SpectralRadius       float64      `json:"spectral_radius"`         // largest |λ|; below 1 is stable
-	PeriodS              float64      `json:"period_s"`                // step period, s
-	StepLengthM          float64      `json:"step_length_m"`           // m
-	SpeedMPS             float64      `json:"speed_mps"`               // mean forward speed, m/s
-	EnergyLostPerStepJ   float64      `json:"energy_lost_per_step_j"`  // at heel strike, J
-	PeakRequiredFriction float64      `json:"peak_required_friction"`  // largest |F_t|/N over the step: the least μ_s the gait needs
-	MinNormalForceN      float64      `json:"min_normal_force_n"`      // least stance normal force, N
-	ImpulseRatio         float64      `json:"impulse_ratio"`           // |Λ_t|/Λ_n of the heel-strike impulse
-	Residual             float64      `json:"residual"`                // of Newton's method on the step-to-step map
-	Iterations           int          `json:"iterations"`              // Newton iterations
-	Segment              GaitSegment  `json:"segment"`                 // the terrain segment analysed on
-	State                GaitState    `json:"state_after_heel_strike"` // the gait's state just after heel strike
+	Scenario               string       `json:"scenario"`                  // scenario name
+	Loop                   string       `json:"loop"`                      // passive or closed loop with the built-in controller
+	Found                  bool         `json:"found"`                     // a period-one gait was found from the guess
+	Stable                 bool         `json:"stable"`                    // every eigenvalue inside the unit circle
+	Eigenvalues            [][2]float64 `json:"eigenvalues"`               // of the step-to-step map's Jacobian, each [real, imaginary]
+	SpectralRadius         float64      `json:"spectral_radius"`           // largest |λ|; below 1 is stable
+	PeriodS                float64      `json:"period_s"`                  // step period, s
+	StepLengthM            float64      `json:"step_length_m"`             // m
+	SpeedMPS               float64      `json:"speed_mps"`                 // mean forward speed, m/s
+	EnergyLostPerStepJ     float64      `json:"energy_lost_per_step_j"`    // at heel strike, J
+	PeakRequiredFriction   float64      `json:"peak_required_friction"`    // largest |F_t|/N over the step: the least μ_s the gait needs
+	MinNormalForceN        float64      `json:"min_normal_force_n"`        // least stance normal force, N
+	ImpulseRatio           float64      `json:"impulse_ratio"`             // |Λ_t|/Λ_n of the heel-strike impulse
+	Knees                  bool         `json:"knees"`                     // the walker has knees (the knee figures are null without)
+	KneeStrikeEnergyLostJ  float64      `json:"knee_strike_energy_lost_j"` // at the swing knee's strike, J per step
+	MinStanceKneeTorqueNM  float64      `json:"min_stance_knee_torque_nm"` // least lock torque of the stance knee over the step, N·m; negative: the latch pulls (a knee without one would buckle)
+	KneeStrikeImpulseRatio float64      `json:"knee_strike_impulse_ratio"` // |Λ_t|/Λ_n of the stance foot's impulse at the knee strike: the friction it needs
+	Residual               float64      `json:"residual"`                  // of Newton's method on the step-to-step map
+	Iterations             int          `json:"iterations"`                // Newton iterations
+	Segment                GaitSegment  `json:"segment"`                   // the terrain segment analysed on
+	State                  GaitState    `json:"state_after_heel_strike"`   // the gait's state just after heel strike
 }
 
 // GaitSegment is the terrain segment a gait analysis used. A period-one
@@ -58,7 +62,9 @@ type GaitState struct {
 // stateConvention explains GaitState for a reader of the JSON alone.
 const stateConvention = "just after heel strike, the new stance foot rolling; q = (x_hip m, y_hip m, θ_left, θ_right[, θ_torso]) " +
 	"absolute angles in rad counter-clockwise from the world vertical (a leg with θ > 0 has its foot ahead of the hip; " +
-	"torso forward lean is θ < 0), v = dq/dt; reduced = (θ_stance, θ_swing[, θ_torso], their rates)"
+	"torso forward lean is θ < 0), v = dq/dt; reduced = (θ_stance, θ_swing[, θ_torso], their rates); " +
+	"a walker with knees appends the shank angles (left, right) to q and the stance and swing shank angles after the torso in reduced, " +
+	"θ_stance and θ_swing being the thighs' (on this section both knees are straight)"
 
 // AnalyseGait runs the gait finder on a scenario's walker (see FindGait)
 // on the terrain segment under the initial stance foot and reports the
@@ -125,7 +131,12 @@ func AnalyseGaitOn(sc *scenarios.Scenario, segment int) (GaitReport, error) {
 	rep := GaitReport{Scenario: sc.Name, Loop: "passive", Found: g.Found && err == nil, Stable: g.Stable,
 		PeriodS: g.Period, StepLengthM: g.StepLength, SpeedMPS: g.Speed, EnergyLostPerStepJ: g.EnergyLost,
 		PeakRequiredFriction: g.PeakRequiredFriction, MinNormalForceN: g.MinNormal, ImpulseRatio: g.ImpulseRatio,
-		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}, Segment: seg}
+		Residual: g.Residual, Iterations: g.Iterations, Eigenvalues: [][2]float64{}, Segment: seg,
+		KneeStrikeEnergyLostJ: math.NaN(), MinStanceKneeTorqueNM: math.NaN(), KneeStrikeImpulseRatio: math.NaN()}
+	if model.NumKnees() > 0 {
+		rep.Knees, rep.KneeStrikeEnergyLostJ, rep.MinStanceKneeTorqueNM = true, g.KneeStrikeEnergyLost, g.MinStanceKneeTorque
+		rep.KneeStrikeImpulseRatio = g.KneeStrikeImpulseRatio
+	}
 	if policy != nil {
 		rep.Loop = "closed loop with the built-in reference controller"
 	}

@@ -26,6 +26,11 @@ with the walker's natural gait. The scenario's initial state is the guess.
 A gait belongs to one slope and one friction: the walker is analysed on one
 terrain segment, extended without end; by default the segment under the
 initial stance foot, or the one --segment names. The output says which.
+A walker with knees is analysed on the section with both knees locked
+straight, the step passing through the trailing knee's release and the swing
+knee's strike; its Jacobian is taken by central differences of the whole
+map, and the output adds the knee strike's energy loss and impulse ratio and
+the minimum stance knee-lock torque (negative: the latch must pull).
 Exit code 0 when a gait is found (stable or not: the output says which), 1
 when none is found from the guess, 2 for bad usage.`, stdout, stderr)
 	segment := c.Int("segment", -1, "terrain segment `INDEX` to analyse on, 0-based as in terrain.segments (-1: the one under the initial stance foot)")
@@ -84,6 +89,10 @@ func printCycle(w io.Writer, r rig.GaitReport, err error) {
 	fmt.Fprintf(w, "  period %.4f s, step length %.4f m, speed %.4f m/s\n", r.PeriodS, r.StepLengthM, r.SpeedMPS)
 	fmt.Fprintf(w, "  energy lost at heel strike %.4f J per step, impulse ratio |Λt|/Λn %.4f\n", r.EnergyLostPerStepJ, r.ImpulseRatio)
 	fmt.Fprintf(w, "  peak required friction coefficient %.4f, minimum normal force %.2f N\n", r.PeakRequiredFriction, r.MinNormalForceN)
+	if r.Knees {
+		fmt.Fprintf(w, "  energy lost at knee strike %.4f J per step, impulse ratio |Λt|/Λn %.4f; minimum stance knee-lock torque %.3f N·m (negative: the latch pulls)\n",
+			r.KneeStrikeEnergyLostJ, r.KneeStrikeImpulseRatio, r.MinStanceKneeTorqueNM)
+	}
 	fmt.Fprintln(w, "  eigenvalues of the step-to-step map:")
 	for _, e := range r.Eigenvalues {
 		fmt.Fprintf(w, "    % .8f %+.8fi   |λ| = %.6f\n", e[0], e[1], cmplx.Abs(complex(e[0], e[1])))
