@@ -107,12 +107,34 @@ func TestRoundTripEveryMessage(t *testing.T) {
 			}
 		}
 	}
-	rs, fs := p.rig.Stats(), p.fw.Stats()
+	// A sender counts a frame after its write returns, which can be after
+	// the peer has read it: wait for the counts, not for a moment.
+	rs := settled(t, p.rig, func(s bridges.Stats) bool { return s.FramesSent >= 6 })
+	fs := settled(t, p.fw, func(s bridges.Stats) bool { return s.FramesSent >= 6 })
 	if rs.FramesSent != 6 || rs.FramesReceived != 6 || fs.FramesSent != 6 || fs.FramesReceived != 6 {
 		t.Errorf("stats: rig %+v, firmware %+v", rs, fs)
 	}
 	if rs.FrameErrors != 0 || fs.FrameErrors != 0 || rs.BytesReceived != fs.BytesSent || fs.BytesReceived != rs.BytesSent {
 		t.Errorf("byte counts or errors disagree: rig %+v, firmware %+v", rs, fs)
+	}
+}
+
+// settled returns c's counters once done holds for them. The writer
+// goroutine updates them after the write that made a frame visible to the
+// peer, so a test that has seen the frame arrive may still be ahead of the
+// count; it fails after a generous bound (a lost count, not a slow host).
+func settled(t *testing.T, c *Conn, done func(bridges.Stats) bool) bridges.Stats {
+	t.Helper()
+	limit := time.Now().Add(30 * time.Second)
+	for {
+		s := c.Stats()
+		if done(s) {
+			return s
+		}
+		if time.Now().After(limit) {
+			t.Fatalf("counters never settled: %+v", s)
+		}
+		time.Sleep(time.Millisecond)
 	}
 }
 
