@@ -3,8 +3,10 @@ package main
 import (
 	"bufio"
 	"bytes"
+	"encoding/json"
 	"io"
 	"net/http"
+	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
@@ -185,5 +187,40 @@ func TestRunViewAndMetricsOverMQTTCommand(t *testing.T) {
 	}
 	if !strings.Contains(out.String(), "passing simulation is not a safety certificate") && !strings.Contains(out.String(), "not a safety certificate") {
 		t.Errorf("no safety caution printed:\n%s", out.String())
+	}
+}
+
+// `gaitrig compare` of two runs over the embedded MQTT broker, made from
+// the command line: within tolerances (exit 0), same start, no diverging
+// tick, both folders naming the MQTT link.
+func TestCompareCommandOverMQTT(t *testing.T) {
+	root := t.TempDir()
+	a, b := filepath.Join(root, "a"), filepath.Join(root, "b")
+	for _, dir := range []string{a, b} {
+		if code, _, stderr := run(t, "run", "--quiet", "--no-report", "--dir", dir, "--link", "embedded", "--rig", "cmp", "--duration", "2", "level-demo"); code > 1 {
+			t.Fatalf("run over the embedded broker: exit %d\n%s", code, stderr)
+		}
+	}
+	code, stdout, stderr := run(t, "compare", "--html", filepath.Join(root, "ab.html"), "--json", a, b)
+	if code != 0 {
+		t.Fatalf("compare of two MQTT runs: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	var res struct {
+		Within        bool `json:"within_tolerances"`
+		SameStart     bool `json:"same_start"`
+		Divergence    any  `json:"first_divergence"`
+		ComparedTicks int  `json:"compared_ticks"`
+	}
+	if err := json.Unmarshal([]byte(stdout), &res); err != nil {
+		t.Fatalf("--json output: %v\n%s", err, stdout)
+	}
+	if !res.Within || !res.SameStart || res.Divergence != nil || res.ComparedTicks != 2000 {
+		t.Errorf("two MQTT runs: %+v", res)
+	}
+	for _, dir := range []string{a, b} {
+		m, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
+		if err != nil || !strings.Contains(string(m), "mqtt:embedded") {
+			t.Errorf("%s does not name the MQTT link (%v)", dir, err)
+		}
 	}
 }
