@@ -125,6 +125,7 @@ type liveView struct {
 	out   io.Writer
 	prom  *metrics.Exporter // nil without --metrics
 	rig   string            // --rig, the metrics' rig label when given
+	ended bool              // finish was called: the metrics hold final values
 }
 
 // newLiveView hooks a view and metrics into o when --view or --metrics was
@@ -187,6 +188,7 @@ func (lv *liveView) start(p *rig.Prepared) error {
 // finish shows the run's end on the page and in the metrics, and closes
 // the page's server; the metrics stay up for linger.
 func (lv *liveView) finish(sum *record.Summary, dir string) {
+	lv.ended = true
 	if lv.prom != nil {
 		lv.prom.Finish(sum)
 	}
@@ -209,7 +211,7 @@ func (lv *liveView) linger(ctx context.Context) {
 	}
 	defer lv.prom.Close()
 	max := *lv.flags.linger
-	if ctx.Err() != nil || max <= 0 {
+	if !lv.ended || ctx.Err() != nil || max <= 0 {
 		return
 	}
 	fmt.Fprintf(lv.out, "metrics: serving the final values at %s until a scrape reads them (at most %v; Ctrl-C ends the wait)\n", lv.prom.URL(), max)
