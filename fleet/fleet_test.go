@@ -2,16 +2,21 @@ package fleet_test
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"net"
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strings"
 	"sync"
 	"testing"
 	"time"
 
+	paho "github.com/eclipse/paho.mqtt.golang"
+
 	"gaitrig/bridges/broker"
+	"gaitrig/bridges/topics"
 	"gaitrig/fleet"
 	"gaitrig/hil"
 	"gaitrig/internal/headless"
@@ -239,5 +244,94 @@ func TestFleetOnEmbeddedBroker(t *testing.T) {
 			t.Fatalf("the watcher has %+v after the run", rs)
 		}
 		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+// TestOutcomeBadgesInChromium: every run outcome a rig can publish gets a
+// badge with its own word on the fleet page, so none is told by colour
+// alone; "invalid" (host trouble, no verdict on the build) says so in
+// words, with its meaning as the tooltip, and is drawn unlike "fail". The
+// documents are published as rigs publish them (topics.RigTelemetry on
+// <root>/<rig>/telemetry, as the rig's own client) on the embedded broker.
+func TestOutcomeBadgesInChromium(t *testing.T) {
+	if ok, required := headless.Available(); !ok {
+		if required {
+			t.Fatal("chromium not found and GAITRIG_REQUIRE_TOOLS=1")
+		}
+		t.Skip("chromium not found")
+	}
+	b, err := broker.Start(broker.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer b.Close()
+	url := "tcp://" + b.Addr()
+	w, err := fleet.Watch(fleet.Config{Broker: url, Name: "badges"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Close()
+	srv, err := fleet.Serve(w, "", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer srv.Close()
+	want := map[string]string{ // outcome → the badge's words
+		string(record.Pass): "pass", string(record.Fail): "fail", string(record.Tripped): "tripped",
+		string(record.Aborted): "aborted", string(record.Invalid): "invalid: host trouble",
+	}
+	for outcome := range want {
+		id := "out-" + outcome
+		c := paho.NewClient(paho.NewClientOptions().AddBroker(url).SetClientID(topics.ClientID(topics.RoleRig, id)).SetConnectTimeout(10 * time.Second))
+		if tok := c.Connect(); !tok.WaitTimeout(20*time.Second) || tok.Error() != nil {
+			t.Fatalf("rig %s: %v", id, tok.Error())
+		}
+		ts := 4.0
+		doc, _ := json.Marshal(topics.RigTelemetry{Scenario: "level-demo", Firmware: "gaitrig-reference", Clock: "lockstep", State: "done",
+			Outcome: outcome, Reason: "the reason of " + outcome, TimeS: &ts, Steps: 3})
+		if tok := c.Publish(topics.Topic(topics.DefaultRoot, id, topics.Telemetry), 1, false, doc); !tok.WaitTimeout(20*time.Second) || tok.Error() != nil {
+			t.Fatalf("rig %s: %v", id, tok.Error())
+		}
+		c.Disconnect(50)
+	}
+	br, err := headless.Start(t.TempDir(), 1200, 800, 60*time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer br.Close()
+	if err := br.Navigate(srv.URL(), 20*time.Second); err != nil {
+		t.Fatal(err)
+	}
+	badge := func(outcome string) string {
+		return fmt.Sprintf(`document.querySelector('.rig[data-rig="out-%s"] .run .badge')`, outcome)
+	}
+	for outcome, words := range want {
+		if err := br.WaitFor(badge(outcome)+` && `+badge(outcome)+`.textContent === `+fmt.Sprintf("%q", words), 60*time.Second); err != nil {
+			var html string
+			br.Eval(`document.getElementById("rigs").outerHTML.slice(0, 4000)`, &html, 10*time.Second)
+			t.Fatalf("outcome %s: %v\n%s", outcome, err, html)
+		}
+		var cls string
+		if err := br.Eval(badge(outcome)+`.className`, &cls, 20*time.Second); err != nil || !strings.Contains(cls, outcome) {
+			t.Errorf("outcome %s: badge class %q %v", outcome, cls, err)
+		}
+	}
+	var tip string
+	if err := br.Eval(badge("invalid")+`.title`, &tip, 20*time.Second); err != nil || !strings.Contains(tip, "host") || !strings.Contains(tip, "the reason of invalid") {
+		t.Errorf("the invalid badge's tooltip %q %v: want what it means and the run's reason", tip, err)
+	}
+	var bg [2]string
+	for i, o := range []string{"invalid", "fail"} {
+		if err := br.Eval(`getComputedStyle(`+badge(o)+`).backgroundColor`, &bg[i], 20*time.Second); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if bg[0] == bg[1] {
+		t.Errorf("invalid and fail badges share the background %s", bg[0])
+	}
+	if dir := os.Getenv("GAITRIG_SCREENSHOT_DIR"); dir != "" {
+		if shot, err := br.Screenshot(20 * time.Second); err == nil {
+			os.WriteFile(filepath.Join(dir, "fleet-outcomes.png"), shot, 0o644)
+		}
 	}
 }

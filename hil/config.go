@@ -224,6 +224,7 @@ type StepInfo struct {
 	PeakUtil  float64 // peak friction utilization of the stance foot
 	MinNormal float64 // least normal force of the stance foot, N
 	SimTimeS  float64 // simulated time of the run when the step completed, s
+	EndS      float64 // simulated time of the heel strike that ended the step (steps.csv end_s), s; at or before SimTimeS
 }
 
 // AlarmSink receives alarms as they are logged, as one JSON object each

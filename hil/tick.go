@@ -328,7 +328,7 @@ func (r *runner) heelStrike(e *plant.Event) {
 	r.beltStep(st.Index, pt.s.T, st.DurationS)
 	if r.cfg.OnStep != nil {
 		r.cfg.OnStep(StepInfo{Index: st.Index, DurationS: st.DurationS, LengthM: st.LengthM, SpeedMPS: st.SpeedMPS,
-			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: pt.s.T})
+			PeakUtil: st.PeakUtilization, MinNormal: st.MinNormalN, SimTimeS: pt.s.T, EndS: st.EndS})
 	}
 	if r.cfg.AfterHeelStrike != nil {
 		r.cfg.AfterHeelStrike(st.Index, e.T, &pt.s, &pt.in)

@@ -8,6 +8,11 @@
 // scrapes: nothing is added to the tick path beyond the tap itself. The
 // histograms count every tick (the tap keeps them), the gauges show the
 // latest snapshot (at most 1/50 s of simulated time old).
+//
+// A run usually ends between two scrapes. So that a dashboard still gets
+// the outcome, the command keeps the endpoint up after the run with the
+// final values (Finish, then Linger) until one scrape has read them, for
+// at most DefaultLinger unless told otherwise, and then closes it.
 package metrics
 
 import (
@@ -34,6 +39,16 @@ const DefaultAddr = "127.0.0.1:0"
 // Path is the path of the metrics endpoint.
 const Path = "/metrics"
 
+// DefaultLinger is how long the endpoint waits after the run, at most, for
+// a scrape to read the final values: Prometheus's default scrape interval
+// (scrape_interval 1m, from memory of its configuration reference), so a
+// server with default settings scrapes at least once in it.
+const DefaultLinger = time.Minute
+
+// closeWait bounds how long Close lets a scrape being answered finish: the
+// answer is a few kilobytes, so only a host stalled for seconds hits it.
+const closeWait = 5 * time.Second
+
 // Config says where the metrics are served and what labels every series
 // carries.
 type Config struct {
@@ -55,6 +70,9 @@ type Exporter struct {
 	rd      *hil.TapReader
 	snap    hil.Snapshot
 	outcome string // "" while running
+
+	finalRead chan struct{} // closed by the first scrape after Finish
+	finalOnce sync.Once
 
 	descs descs
 }
@@ -88,7 +106,7 @@ func New(cfg Config, tap *hil.Tap) (*Exporter, error) {
 	d := func(name, help string, variable ...string) *prometheus.Desc {
 		return prometheus.NewDesc("gaitrig_"+name, help, variable, labels)
 	}
-	e := &Exporter{rd: tap.NewReader(), descs: descs{
+	e := &Exporter{rd: tap.NewReader(), finalRead: make(chan struct{}), descs: descs{
 		ticks:       d("ticks_total", "Ticks the loop has run."),
 		misses:      d("deadline_misses_total", "Wall-clock ticks whose work ended after the next tick was due."),
 		resent:      d("states_resent_total", "Lockstep states sent again because no reply came in time."),
@@ -147,9 +165,36 @@ func (e *Exporter) Finish(sum *record.Summary) {
 	}
 }
 
-// Close stops serving.
+// Linger keeps serving the final values set by Finish until one scrape has
+// read them, at most max (≤ 0: not at all), or until ctx ends; it reports
+// whether a scrape read them. Before Finish it returns false at once.
+func (e *Exporter) Linger(ctx context.Context, max time.Duration) bool {
+	e.mu.Lock()
+	finished := e.outcome != ""
+	e.mu.Unlock()
+	if !finished || max <= 0 {
+		return false
+	}
+	t := time.NewTimer(max)
+	defer t.Stop()
+	select {
+	case <-e.finalRead:
+		return true
+	case <-t.C:
+	case <-ctx.Done():
+	}
+	select { // a scrape that came with the deadline still counts
+	case <-e.finalRead:
+		return true
+	default:
+		return false
+	}
+}
+
+// Close stops serving; a scrape being answered is finished first (for at
+// most closeWait).
 func (e *Exporter) Close() error {
-	ctx, cancel := context.WithTimeout(context.Background(), time.Second)
+	ctx, cancel := context.WithTimeout(context.Background(), closeWait)
 	defer cancel()
 	err := e.srv.Shutdown(ctx)
 	if errors.Is(err, context.DeadlineExceeded) {
@@ -174,6 +219,9 @@ func (e *Exporter) Collect(ch chan<- prometheus.Metric) {
 	s := e.snap // a copy: the scrape encodes after the lock is released
 	outcome := e.outcome
 	e.mu.Unlock()
+	if outcome != "" {
+		e.finalOnce.Do(func() { close(e.finalRead) })
+	}
 	d := &e.descs
 	counter := func(desc *prometheus.Desc, v float64, labels ...string) {
 		ch <- prometheus.MustNewConstMetric(desc, prometheus.CounterValue, v, labels...)

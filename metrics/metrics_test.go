@@ -277,3 +277,76 @@ func TestInvalidOutcomeIsExported(t *testing.T) {
 		t.Errorf("%d outcome series at 1, want exactly one", ones)
 	}
 }
+
+// TestFinalValuesLingerUntilScraped: a run usually ends between two
+// scrapes. After Finish the endpoint keeps serving the final values; a
+// scrape after the run reads the outcome and the summary's figures, and
+// that scrape (an event, not a clock) ends Linger, after which the
+// endpoint is closed. Linger without a scrape ends at its bound or with
+// its context, saying no scrape read the values.
+func TestFinalValuesLingerUntilScraped(t *testing.T) {
+	sc, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	tap := hil.NewTap(0, false)
+	ex, err := metrics.New(metrics.Config{Scenario: sc.Name}, tap)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ex.Close()
+	if ex.Linger(context.Background(), time.Hour) {
+		t.Fatal("Linger before Finish says the final values were read")
+	}
+	res, err := rig.Run(context.Background(), sc, rig.Options{Link: "builtin", NoRecord: true, Duration: 2, MaxSteps: -1, Tap: tap})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ex.Finish(&res.Summary)
+	lingered := make(chan bool, 1)
+	go func() { lingered <- ex.Linger(context.Background(), time.Hour) }()
+	after := scrape(t, ex.URL())
+	if got := value(after, "gaitrig_run_outcome", "outcome", string(res.Summary.Outcome)); got != 1 {
+		t.Errorf("a scrape after the run: gaitrig_run_outcome{outcome=%q} = %v, want 1", res.Summary.Outcome, got)
+	}
+	if got := value(after, "gaitrig_ticks_total"); got != float64(res.Summary.Ticks) {
+		t.Errorf("a scrape after the run: %v ticks, the summary says %d", got, res.Summary.Ticks)
+	}
+	select {
+	case read := <-lingered:
+		if !read {
+			t.Error("Linger ended without noticing the scrape")
+		}
+	case <-time.After(time.Minute): // bounds a hang; the scrape ends Linger
+		t.Fatal("Linger still waiting after a scrape read the final values")
+	}
+	if err := ex.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if resp, err := client.Get(ex.URL()); err == nil {
+		resp.Body.Close()
+		t.Error("the endpoint still answers after Close")
+	}
+
+	// Without a scrape: the bound, or the context, ends it.
+	ex2, err := metrics.New(metrics.Config{}, hil.NewTap(0, false))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ex2.Close()
+	ex2.Finish(nil)
+	if ex2.Linger(context.Background(), time.Millisecond) {
+		t.Error("Linger reports a scrape that never came")
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if ex2.Linger(ctx, time.Hour) {
+		t.Error("Linger with an ended context reports a scrape that never came")
+	}
+	if got := value(scrape(t, ex2.URL()), "gaitrig_run_outcome", "outcome", string(record.Aborted)); got != 1 {
+		t.Errorf("a run finished without a summary shows aborted = %v", got)
+	}
+	if !ex2.Linger(context.Background(), time.Hour) {
+		t.Error("Linger after the final values were scraped does not say so")
+	}
+}

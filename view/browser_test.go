@@ -8,6 +8,7 @@ import (
 	"image/png"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -143,6 +144,51 @@ var (
 // steps fill the table; after the run is interrupted the page says so and
 // its step table matches steps.csv.
 func TestLiveViewInChromium(t *testing.T) {
+	liveViewInChromium(t, rig.Options{Link: "builtin"}, "live-view.png")
+}
+
+// TestLiveViewOverMQTTInChromium is the same with the firmware on the other
+// side of an MQTT broker: the embedded one, and a real Mosquitto
+// (GAITRIG_MOSQUITTO_ADDR, or one started for the test; skipped without
+// Mosquitto unless GAITRIG_REQUIRE_TOOLS=1). The page names the MQTT link.
+func TestLiveViewOverMQTTInChromium(t *testing.T) {
+	// The test is about the page, not the watchdog: on a saturated host the
+	// broker's and the firmware's goroutines can be starved past the
+	// scenario's 50 ms (seen once: a lockstep run over MQTT tripped at
+	// 0.46 s, the host busy for 301 of 450 ms).
+	const watchdog = 10 * time.Second
+	t.Run("embedded", func(t *testing.T) {
+		liveViewInChromium(t, rig.Options{Link: "embedded", Rig: fmt.Sprintf("view-emb-%d", os.Getpid()), Watchdog: watchdog}, "live-view-embedded.png")
+	})
+	t.Run("mosquitto", func(t *testing.T) {
+		addr := mosquittoAddr(t)
+		// A rig id of this process alone: a shared Mosquitto may serve others.
+		liveViewInChromium(t, rig.Options{Link: "mqtt:tcp://" + addr, LocalFirmware: true, Rig: fmt.Sprintf("view-mosq-%d", os.Getpid()), Watchdog: watchdog}, "live-view-mosquitto.png")
+	})
+}
+
+// mosquittoAddr gives the address of a real Mosquitto broker: the one .ci/run
+// started (GAITRIG_MOSQUITTO_ADDR), or one this test starts.
+func mosquittoAddr(t *testing.T) string {
+	t.Helper()
+	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
+		return a
+	}
+	addr, stop, err := rig.StartMosquitto()
+	if err != nil {
+		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
+			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
+		}
+		t.Skipf("no Mosquitto broker: %v (install the Debian package mosquitto)", err)
+	}
+	t.Cleanup(stop)
+	return addr
+}
+
+// liveViewInChromium runs level-demo over the link of base with the live
+// view, and checks the page in Chromium while it runs and after it is
+// interrupted; shot names the screenshot.
+func liveViewInChromium(t *testing.T, base rig.Options, shot string) {
 	b := browser(t)
 	sc, err := scenarios.LoadBuiltin("level-demo")
 	if err != nil {
@@ -153,7 +199,8 @@ func TestLiveViewInChromium(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "run")
 	// Long enough that the run is still going whatever the machine's load;
 	// the test ends it with its context.
-	o := rig.Options{Link: "builtin", RunDir: dir, Duration: 120, MaxSteps: -1, Tap: tap, Watch: live, OnStep: live.Step, Log: live.Note}
+	o := base
+	o.RunDir, o.Duration, o.MaxSteps, o.Tap, o.Watch, o.OnStep, o.Log = dir, 120, -1, tap, live, live.Step, live.Note
 	ctx, cancel := context.WithCancel(context.Background())
 	defer cancel()
 	p, err := rig.Prepare(ctx, sc, o)
@@ -161,7 +208,7 @@ func TestLiveViewInChromium(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer p.Close()
-	srv, err := view.New(view.Config{Setup: view.Setup{Mode: "live", Scenario: sc.Name, Clock: string(p.Config.Clock),
+	srv, err := view.New(view.Config{Setup: view.Setup{Mode: "live", Scenario: sc.Name, Clock: string(p.Config.Clock), Link: p.Link,
 		TickHz: p.Config.TickHz, Joints: p.Model.JointNames(), Plant: record.PlantOf(p.Model.Params()), Caution: record.Caution}})
 	if err != nil {
 		t.Fatal(err)
@@ -209,7 +256,10 @@ func TestLiveViewInChromium(t *testing.T) {
 	if fw := evalString(t, b, `document.getElementById("firmware").textContent`); !bytes.Contains([]byte(fw), []byte("gaitrig-reference")) {
 		t.Errorf("the page does not name the firmware: %q", fw)
 	}
-	saveScreenshot(t, b, "live-view.png")
+	if link := evalString(t, b, `document.getElementById("link").textContent`); !strings.Contains(link, p.Link) || p.Link == "" {
+		t.Errorf("the page names the link %q, the run %q", link, p.Link)
+	}
+	saveScreenshot(t, b, shot)
 	cancel()
 	var res rig.Result
 	select {

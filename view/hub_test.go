@@ -114,9 +114,9 @@ func TestStepRing(t *testing.T) {
 	var r stepRing
 	var got []hil.StepInfo
 	for i := 1; i <= 10; i++ {
-		r.put(hil.StepInfo{Index: i, LengthM: float64(i) / 10, SimTimeS: math.NaN()})
+		r.put(hil.StepInfo{Index: i, LengthM: float64(i) / 10, SimTimeS: math.NaN(), EndS: float64(i) - 0.5})
 	}
-	if lost := r.drain(func(s hil.StepInfo) { got = append(got, s) }); lost != 0 || len(got) != 10 || got[9].Index != 10 || got[9].LengthM != 1 || !math.IsNaN(got[9].SimTimeS) {
+	if lost := r.drain(func(s hil.StepInfo) { got = append(got, s) }); lost != 0 || len(got) != 10 || got[9].Index != 10 || got[9].LengthM != 1 || !math.IsNaN(got[9].SimTimeS) || got[9].EndS != 9.5 {
 		t.Fatalf("drain: lost %d, got %v", lost, got)
 	}
 	for i := 11; i <= 10+stepRingSize+7; i++ {

@@ -189,7 +189,7 @@ type stepRing struct {
 
 type stepSlot struct {
 	seq  atomic.Uint64 // 0 while being written, else the step's number in the ring + 1
-	vals [7]atomic.Uint64
+	vals [8]atomic.Uint64
 }
 
 func (r *stepRing) put(si hil.StepInfo) {
@@ -203,6 +203,7 @@ func (r *stepRing) put(si hil.StepInfo) {
 	sl.vals[4].Store(math.Float64bits(si.PeakUtil))
 	sl.vals[5].Store(math.Float64bits(si.MinNormal))
 	sl.vals[6].Store(math.Float64bits(si.SimTimeS))
+	sl.vals[7].Store(math.Float64bits(si.EndS))
 	sl.seq.Store(h + 1)
 	r.head.Store(h + 1)
 }
@@ -217,7 +218,7 @@ func (r *stepRing) drain(f func(hil.StepInfo)) (lost uint64) {
 	}
 	for ; r.tail < h; r.tail++ {
 		sl := &r.slots[r.tail%stepRingSize]
-		var v [7]uint64
+		var v [8]uint64
 		s1 := sl.seq.Load()
 		for i := range v {
 			v[i] = sl.vals[i].Load()
@@ -228,7 +229,7 @@ func (r *stepRing) drain(f func(hil.StepInfo)) (lost uint64) {
 		}
 		f(hil.StepInfo{Index: int(v[0]), DurationS: math.Float64frombits(v[1]), LengthM: math.Float64frombits(v[2]),
 			SpeedMPS: math.Float64frombits(v[3]), PeakUtil: math.Float64frombits(v[4]), MinNormal: math.Float64frombits(v[5]),
-			SimTimeS: math.Float64frombits(v[6])})
+			SimTimeS: math.Float64frombits(v[6]), EndS: math.Float64frombits(v[7])})
 	}
 	return lost
 }

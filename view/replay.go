@@ -63,7 +63,7 @@ func LoadRecording(dir string) (*Recording, error) {
 	}
 	rec := &Recording{Notes: run.Notes, sum: run.Summary}
 	g := mf.Greeting
-	rec.Setup = Setup{Mode: "replay", Scenario: mf.Scenario, Clock: mf.Clock, TickHz: mf.TickHz, Joints: mf.JointNames,
+	rec.Setup = Setup{Mode: "replay", Scenario: mf.Scenario, Clock: mf.Clock, Link: mf.Link, TickHz: mf.TickHz, Joints: mf.JointNames,
 		Plant: mf.Plant, Greeting: &g, Caution: record.Caution}
 	stride := int64(1)
 	if mf.TickHz > ReplayRate {

@@ -34,6 +34,10 @@ type Setup struct {
 	// Scenario is the scenario's name; Clock lockstep or wallclock.
 	Scenario string `json:"scenario"`
 	Clock    string `json:"clock"`
+	// Link names the link to the firmware as the run folder's manifest
+	// does (builtin, a pty, mqtt:embedded (…), mqtt:tcp://…); "" when not
+	// known.
+	Link string `json:"link,omitempty"`
 	// TickHz is the control rate.
 	TickHz float64 `json:"tick_hz"`
 	// DurationS is the run's simulated length when known (a replay, a
@@ -151,7 +155,7 @@ type stepMsg struct {
 
 func stepOfInfo(s hil.StepInfo) stepMsg {
 	return stepMsg{Type: "step", Index: s.Index, DurationS: num(s.DurationS), LengthM: num(s.LengthM),
-		SpeedMPS: num(s.SpeedMPS), PeakUtil: num(s.PeakUtil), MinNormal: num(s.MinNormal), EndS: num(s.SimTimeS)}
+		SpeedMPS: num(s.SpeedMPS), PeakUtil: num(s.PeakUtil), MinNormal: num(s.MinNormal), EndS: num(s.EndS)}
 }
 
 // alarmMsg is one alarm or event of the log.

@@ -66,7 +66,14 @@
 // for it, may send at most ReceiveMaximum of its own before waiting for
 // acknowledgements, and at most MaxQueued messages wait to be written to it
 // (more are dropped for that client, not for the others); a disconnected
-// session is forgotten after SessionExpiry.
+// session is forgotten after SessionExpiry. Retained messages (and retained
+// last wills) are kept for at most MaxRetained topics and MaxRetainedBytes
+// of topic names and payloads together: without accounts anyone on the host
+// may connect as "rig.<any id>" and retain a status under every id it
+// invents. A retained message over either cap still reaches the clients
+// subscribed at that moment, is not kept, and is reported as a refusal of
+// kind "retain"; an empty retained message (which clears a topic) and a new
+// message for a topic already kept, within the byte cap, are always taken.
 //
 // # Refusals
 //
@@ -152,6 +159,15 @@ type Limits struct {
 	// SessionExpiry is how long the session of a disconnected client that
 	// asked to keep it (clean session off) is kept.
 	SessionExpiry time.Duration
+	// MaxRetained is how many topics may hold a retained message at once
+	// (a rig retains one, its status). A retained message for a further
+	// topic is delivered to the subscribers of the moment but not kept,
+	// and reported as a RefusedRetain.
+	MaxRetained int
+	// MaxRetainedBytes bounds the topic names and payloads of every
+	// retained message together; a retained message that would go over it
+	// is delivered but not kept, as with MaxRetained.
+	MaxRetainedBytes int64
 }
 
 // DefaultLimits are the limits used for zero fields of Config.Limits.
@@ -164,6 +180,11 @@ var DefaultLimits = Limits{
 	ReceiveMaximum: 64,
 	MaxQueued:      256,
 	SessionExpiry:  time.Minute,
+	// Four retained topics for each of the fleet page's 256 rigs, and 1 MiB
+	// (about 3 000 status documents of ~300 bytes): our choice, far above a
+	// lab's fleet, far below what would trouble the host.
+	MaxRetained:      1024,
+	MaxRetainedBytes: 1 << 20,
 }
 
 // withDefaults returns l with every zero field set from DefaultLimits.
@@ -192,6 +213,12 @@ func (l Limits) withDefaults() Limits {
 	}
 	if l.SessionExpiry <= 0 {
 		l.SessionExpiry = d.SessionExpiry
+	}
+	if l.MaxRetained <= 0 {
+		l.MaxRetained = d.MaxRetained
+	}
+	if l.MaxRetainedBytes <= 0 {
+		l.MaxRetainedBytes = d.MaxRetainedBytes
 	}
 	return l
 }
@@ -288,7 +315,8 @@ func Start(cfg Config) (*Broker, error) {
 	caps.MaximumSessionExpiryInterval = uint32((lim.SessionExpiry + time.Second - 1) / time.Second)
 	server := mochi.New(&mochi.Options{Logger: logger, Capabilities: caps})
 	r := &rules{server: server, root: cfg.Root, accounts: accounts, limits: lim,
-		refusals: newRefusalLog(logger, cfg.OnRefusal), claims: make(map[string]claim)}
+		refusals: newRefusalLog(logger, cfg.OnRefusal), claims: make(map[string]claim),
+		retained: newRetainedCap(lim.MaxRetained, lim.MaxRetainedBytes)}
 	if err := server.AddHook(r, nil); err != nil {
 		return nil, fmt.Errorf("broker: installing access rules: %w", err)
 	}
@@ -318,6 +346,11 @@ func (b *Broker) Holds(clientID string) bool {
 	c, ok := b.rules.claims[clientID]
 	return ok && !c.cl.Closed()
 }
+
+// Retained returns how many topics hold a retained message and how many
+// bytes of topic names and payloads they hold together, as counted against
+// Limits.MaxRetained and MaxRetainedBytes.
+func (b *Broker) Retained() (topics int, bytes int64) { return b.rules.retained.usage() }
 
 // Refusals returns how many connections, publishes, subscriptions and
 // packets the broker has refused so far, of every kind.

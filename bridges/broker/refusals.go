@@ -23,11 +23,12 @@ const (
 	RefusedMalformed                    // a malformed first packet, or not a CONNECT
 	RefusedPublish                      // a publish to a topic the client may not write
 	RefusedSubscribe                    // a subscription to a filter the client may not read
+	RefusedRetain                       // a retained message over Limits.MaxRetained or MaxRetainedBytes (delivered, not kept)
 	numRefusalKinds
 )
 
 var refusalNames = [numRefusalKinds]string{
-	"login", "client_id", "takeover", "will", "oversized", "busy", "quota", "malformed", "publish", "subscribe",
+	"login", "client_id", "takeover", "will", "oversized", "busy", "quota", "malformed", "publish", "subscribe", "retain",
 }
 
 // String returns the kind's snake_case name ("client_id", "oversized", …).

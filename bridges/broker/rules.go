@@ -27,6 +27,8 @@ type rules struct {
 	mu       sync.Mutex
 	claims   map[string]claim // client id → the connection holding it
 	sweepLen int              // len(claims) at which closed claims are swept out
+
+	retained *retainedCap // bounds the retained messages (retained.go)
 }
 
 // claim records which connection holds a client id, and under which
@@ -46,7 +48,7 @@ func (r *rules) ID() string { return "gaitrig-access-rules" }
 
 func (r *rules) Provides(b byte) bool {
 	switch b {
-	case mochi.OnConnect, mochi.OnConnectAuthenticate, mochi.OnACLCheck, mochi.OnDisconnect:
+	case mochi.OnConnect, mochi.OnConnectAuthenticate, mochi.OnACLCheck, mochi.OnDisconnect, mochi.OnPublish, mochi.OnWill:
 		return true
 	}
 	return false

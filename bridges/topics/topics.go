@@ -147,7 +147,7 @@ type RigTelemetry struct {
 	Firmware string   `json:"firmware,omitempty"` // the firmware's greeting: name and build; empty before it greets
 	Clock    string   `json:"clock"`              // lockstep or wallclock
 	State    string   `json:"state"`              // greeting, running, tripped or done
-	Outcome  string   `json:"outcome,omitempty"`  // pass, fail, tripped or aborted, once known
+	Outcome  string   `json:"outcome,omitempty"`  // pass, fail, tripped, aborted or invalid, once known
 	Reason   string   `json:"reason,omitempty"`   // why the run ended that way
 	TimeS    *float64 `json:"t_s"`                // simulated time, s
 	Ticks    int64    `json:"ticks"`              // ticks run

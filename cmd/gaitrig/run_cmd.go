@@ -154,6 +154,9 @@ func freshRunDir(dir string) error {
 func runAndReport(c *cmdline, sc *scenarios.Scenario, o rig.Options, lv *liveView, after ...func(rig.Result) error) int {
 	ctx, stop := signalContext()
 	defer stop()
+	if lv != nil {
+		defer lv.linger(ctx) // after the link is released (deferred below), before the signals are let go
+	}
 	res := runResult{Scenario: sc.Name}
 	p, err := rig.Prepare(ctx, sc, o)
 	if err != nil {

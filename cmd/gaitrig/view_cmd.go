@@ -5,10 +5,12 @@ package main
 // server around a run. The view itself is package view.
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"net"
 	"os"
+	"time"
 
 	"gaitrig/hil"
 	"gaitrig/metrics"
@@ -59,6 +61,7 @@ type viewFlags struct {
 	addr    optAddr
 	pace    *string
 	metrics optAddr
+	linger  *time.Duration // --metrics-linger
 }
 
 // addViewFlags declares --view (and, for a run, --view-pace).
@@ -75,6 +78,8 @@ func addViewFlags(c *cmdline, run bool) *viewFlags {
 		c.Var(&v.metrics, "metrics", "serve Prometheus metrics of the run at http://127.0.0.1:<free port>/metrics\n"+
 			"(printed), or at --metrics=HOST:PORT; an address that is not loopback needs\n"+
 			"the token in "+view.TokenEnv+" (sent by Prometheus as a bearer token)")
+		v.linger = c.Duration("metrics-linger", metrics.DefaultLinger, "with --metrics, keep serving the run's final values after it ends until one\n"+
+			"scrape has read them, for at most `DURATION` (0: close at once; Ctrl-C ends the wait)")
 		v.pace = c.String("view-pace", paceRealtime, "with --view, a lockstep run goes at `PACE`: realtime (held to the\n"+
 			"wall clock, to watch) or free (as fast as it can; the page skips frames)")
 	}
@@ -88,6 +93,9 @@ func (v *viewFlags) check() error {
 	}
 	if v.pace != nil && *v.pace != paceRealtime && !v.addr.set {
 		return fmt.Errorf("--view-pace needs --view")
+	}
+	if v.linger != nil && *v.linger < 0 {
+		return fmt.Errorf("--metrics-linger %v: want a duration ≥ 0", *v.linger)
 	}
 	for _, f := range []struct {
 		name string
@@ -117,6 +125,7 @@ type liveView struct {
 	out   io.Writer
 	prom  *metrics.Exporter // nil without --metrics
 	rig   string            // --rig, the metrics' rig label when given
+	ended bool              // finish was called: the metrics hold final values
 }
 
 // newLiveView hooks a view and metrics into o when --view or --metrics was
@@ -164,7 +173,7 @@ func (lv *liveView) start(p *rig.Prepared) error {
 	if lv.live == nil {
 		return nil
 	}
-	setup := view.Setup{Mode: "live", Scenario: sc.Name, Clock: string(p.Config.Clock), TickHz: p.Config.TickHz,
+	setup := view.Setup{Mode: "live", Scenario: sc.Name, Clock: string(p.Config.Clock), Link: p.Link, TickHz: p.Config.TickHz,
 		DurationS: p.Config.Duration, Joints: p.Model.JointNames(), Plant: record.PlantOf(p.Model.Params()), Caution: record.Caution}
 	srv, err := view.New(view.Config{Addr: lv.flags.addr.addr, Token: os.Getenv(view.TokenEnv), Setup: setup})
 	if err != nil {
@@ -177,11 +186,11 @@ func (lv *liveView) start(p *rig.Prepared) error {
 }
 
 // finish shows the run's end on the page and in the metrics, and closes
-// both servers.
+// the page's server; the metrics stay up for linger.
 func (lv *liveView) finish(sum *record.Summary, dir string) {
+	lv.ended = true
 	if lv.prom != nil {
 		lv.prom.Finish(sum)
-		lv.prom.Close()
 	}
 	if lv.srv == nil {
 		return
@@ -191,6 +200,26 @@ func (lv *liveView) finish(sum *record.Summary, dir string) {
 		fmt.Fprintf(lv.out, "live view: %d frames dropped for slow viewers\n", d)
 	}
 	lv.srv.Close()
+}
+
+// linger keeps the metrics endpoint up with the run's final values until a
+// scrape has read them (at most --metrics-linger, or until ctx ends), then
+// closes it. Called once the run and its link are done.
+func (lv *liveView) linger(ctx context.Context) {
+	if lv.prom == nil {
+		return
+	}
+	defer lv.prom.Close()
+	max := *lv.flags.linger
+	if !lv.ended || ctx.Err() != nil || max <= 0 {
+		return
+	}
+	fmt.Fprintf(lv.out, "metrics: serving the final values at %s until a scrape reads them (at most %v; Ctrl-C ends the wait)\n", lv.prom.URL(), max)
+	if lv.prom.Linger(ctx, max) {
+		fmt.Fprintln(lv.out, "metrics: final values scraped; endpoint closed")
+	} else {
+		fmt.Fprintln(lv.out, "metrics: no scrape read the final values; endpoint closed")
+	}
 }
 
 // playView serves the live view page playing the run folder dir until

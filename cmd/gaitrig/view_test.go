@@ -145,6 +145,7 @@ func TestViewFlagErrors(t *testing.T) {
 		{[]string{"run", "--view", "--view-pace", "slow", "level-demo"}, "--view-pace"},
 		{[]string{"run", "--view-pace", "free", "level-demo"}, "needs --view"},
 		{[]string{"run", "--metrics=nonsense", "level-demo"}, "--metrics=nonsense: want HOST:PORT"},
+		{[]string{"run", "--metrics", "--metrics-linger", "-1s", "level-demo"}, "--metrics-linger -1s: want a duration ≥ 0"},
 	} {
 		code, _, stderr := run(t, c.args...)
 		if code != 2 || !strings.Contains(stderr, c.want) {

@@ -11,6 +11,25 @@ function el(tag, cls, text) {
   if (text !== undefined) e.textContent = text;
   return e;
 }
+// What each run outcome is called on the page: its own word (the badge
+// never relies on its colour alone) and, as the badge's tooltip, what it
+// means. "invalid" is host trouble: the host, not the firmware, spoiled the
+// run, so it says nothing about the build.
+const outcomes = {
+  pass: ["pass", "every criterion met"],
+  fail: ["fail", "a criterion not met"],
+  tripped: ["tripped", "an alarm with severity trip e-stopped the run"],
+  aborted: ["aborted", "stopped by the operator or an error"],
+  invalid: ["invalid: host trouble", "the host, not the firmware, spoiled the run (stalled past the watchdog): no verdict on the build; run it again"],
+};
+function outcomeBadge(t) {
+  if (!t) return el("span", "", "—");
+  if (!t.outcome) return el("span", "badge " + t.state, t.state);
+  const [word, meaning] = outcomes[t.outcome] || [t.outcome, ""];
+  const b = el("span", "badge outcome " + t.outcome, word);
+  b.title = meaning + (t.reason ? " (" + t.reason + ")" : "");
+  return b;
+}
 const num = (v, d) => (v === null || v === undefined ? "—" : Number(v).toFixed(d));
 
 // walker draws a stick figure of the rig's telemetry, 1 m = canvas height / 2.2.
@@ -45,8 +64,8 @@ function card(rig) {
   const row = (k, v, cls) => { dl.appendChild(el("dt", "", k)); const d = el("dd", cls || "", v); dl.appendChild(d); return d; };
   row("scenario", t ? t.scenario : "—");
   row("firmware", t && t.firmware ? t.firmware : "—");
-  const run = t ? (t.outcome || t.state) : "—";
-  const rd = row("run", run, "run");
+  const rd = row("run", "", "run");
+  rd.appendChild(outcomeBadge(t));
   rd.dataset.state = t ? t.state : ""; rd.dataset.outcome = t && t.outcome ? t.outcome : "";
   row("steps", t ? String(t.steps) : "—", "steps");
   row("time", t ? num(t.t_s, 2) + " s" + (t.clock ? " · " + t.clock : "") : "—");

@@ -269,6 +269,8 @@ function onSetup(s) {
   $("caution").textContent = s.caution;
   $("scenario").textContent = s.scenario;
   $("clock").textContent = s.clock + " · " + s.tick_hz + " Hz";
+  $("link").textContent = s.link ? "link " + s.link : "";
+  $("link").hidden = !s.link;
   $("mode").textContent = s.mode === "replay" ? "replay" : "live view";
   $("lat-note").textContent = s.clock === "lockstep" ? "(lockstep runs in virtual time: no round trip or jitter to show)" : "";
   if (s.greeting && s.greeting.name) $("firmware").textContent = "firmware " + s.greeting.name + " build " + s.greeting.build + " (protocol v" + s.greeting.protocol + ")";
