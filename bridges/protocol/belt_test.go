@@ -101,4 +101,3 @@ func TestBeltPositionJSON(t *testing.T) {
 		t.Errorf("a state off the belt writes %s: %s", want, js)
 	}
 }
-
