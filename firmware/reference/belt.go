@@ -9,7 +9,7 @@ package reference
 // loop settles below its target anyway (0.78 m/s for 0.8 on level ground,
 // 0.42 m/s uphill at 2°). A drift on the belt is therefore the firmware's
 // speed error integrated over time, and the rig reports it: the state's
-// belt place (protocol.State.BeltPosition, docs/protocol.md section 3.3).
+// belt place (protocol.State.BeltPosition, docs/protocol.md section 3.3.1).
 // The belt term moves the speed target against the drift:
 //
 //	target = TargetSpeed − clamp(Gain·p, −MaxShift, MaxShift)
@@ -32,20 +32,22 @@ type BeltGains struct {
 }
 
 // DefaultBeltGains are tuned for the demo walker on the built-in treadmill
-// scenarios (belt_test.go runs them):
+// scenarios:
 //
 //	Gain      1.0   m/s per m
 //	MaxShift  0.6   m/s
 //
-// The speed loop moves the walker's speed by only about half a change of
-// its target, so the gain is high enough that a 2° belt incline (which
-// shifts the walker's speed by about 0.36 m/s) settles within about half a
-// metre of the middle: inside the slack of the scenarios' harness rope,
-// which goes taut about 0.9 m from the start. At 1/s the drift still
-// settles over a few steps, so the term does not fight the step-to-step
-// speed regulation; MaxShift keeps the target inside speeds the demo
-// walker walks. Tuned on the preflight battery of treadmill-steady (our
-// choice, checked by TestBeltTermPreflight in package batch).
+// Tuned by hand on the treadmill battery of `gaitrig preflight --scenario
+// treadmill-steady` (a 2° incline each way moves the demo walker's speed
+// by about 0.36 m/s) and on treadmill-ramp, which starts the walker 0.6 m
+// behind the middle (our choice; seen while tuning): Gain 0.5 with
+// MaxShift 0.5 let the inclined walker drift until the harness rope went
+// taut (about 0.9 m from the start); MaxShift 0.8 with Gain 1.5 passed the
+// battery but asked so much speed at treadmill-ramp's start that a foot
+// lifted off; MaxShift 0.5 was too little downhill. With these values the
+// battery passes with the hip at most 0.7 m from the middle
+// (TestBeltTermPreflight in package batch) and the 2° uphill belt within
+// 0.6 m (TestBeltTermHoldsPlace in package rig).
 func DefaultBeltGains() BeltGains {
 	return BeltGains{Gain: 1.0, MaxShift: 0.6}
 }
