@@ -2,6 +2,7 @@ package protocol
 
 import (
 	"math"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -99,5 +100,41 @@ func TestBeltPositionJSON(t *testing.T) {
 	js, _ = AppendJSON(nil, &plain)
 	if want := `"belt_mm"`; strings.Contains(string(js), want) {
 		t.Errorf("a state off the belt writes %s: %s", want, js)
+	}
+}
+
+// TestBeltExample: the belt example of docs/protocol.md section 3.3.1, the
+// section-11 state with the belt place −417 mm, differs from that state in
+// frame bytes 17–19 and the CRC, with the values the document gives.
+func TestBeltExample(t *testing.T) {
+	var plain Message
+	for _, e := range exampleMessages() {
+		if e.name == "state" {
+			plain = e.msg
+		}
+	}
+	belt := plain
+	belt.State.Contacts |= ContactBelt
+	belt.State.BeltMM = -417
+	var a, b [MaxFrameLen]byte
+	n, err := Encode(a[:], &plain)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := Encode(b[:], &belt); err != nil {
+		t.Fatal(err)
+	}
+	var diff []int
+	for i := 0; i < n; i++ {
+		if a[i] != b[i] {
+			diff = append(diff, i)
+		}
+	}
+	want := []int{17, 18, 19, n - 2, n - 1}
+	if !slices.Equal(diff, want) {
+		t.Errorf("the belt state differs at frame offsets %v, want %v", diff, want)
+	}
+	if b[17] != 0x05 || b[18] != 0x5f || b[19] != 0xfe || b[n-2] != 0x13 || b[n-1] != 0xa1 {
+		t.Errorf("bytes 17-19 % x, CRC bytes % x; the document says 05 5f fe and 13 a1", b[17:20], b[n-2:n])
 	}
 }

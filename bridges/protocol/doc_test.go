@@ -16,14 +16,13 @@ var update = flag.Bool("update", false, "rewrite the generated examples in docs/
 const docPath = "../../docs/protocol.md"
 
 var exampleDescriptions = map[string]string{
-	"greeting":   "Greeting, seq 0: version 2, 2 actuators, name `bench-walker`, build `fw-0.3.1`.",
-	"config":     "Config of version 2, seq 0: 1000 Hz, lockstep, 2 joints `hip_left` and `hip_right`, torque limit 40 N·m each, watchdog 50 000 µs (bytes `50 c3 00 00` at payload offset 292, frame offset 300).",
-	"config_v1":  "The same config as a version-1 firmware gets it (section 8): the version-1 layout, no watchdog, header version 1.",
-	"state":      "State, seq 1235: time 1 234 000 µs, 2 joints, angles 0.25 and −0.125 rad, rates 1.5 and −0.75 rad/s, IMU pitch −0.0625 rad, IMU rate 0.5 rad/s, left foot in contact.",
-	"command":    "Command answering that state, seq 1235: 2 joints, torques 3.5 and −12.25 N·m, status 0.",
-	"heartbeat":  "Heartbeat, seq 1235.",
-	"stop":       "Stop, seq 1235: reason 2 (`watchdog`), text `no command for 50 ms`.",
-	"state_belt": "The state above on a treadmill belt (section 3.3.1): `contacts` 0x05 (left foot and bit 2 `belt`), `belt_mm` −417 (the hip 0.417 m behind the middle of the belt; bytes `5f fe` at payload offset 10, frame offset 18).",
+	"greeting":  "Greeting, seq 0: version 2, 2 actuators, name `bench-walker`, build `fw-0.3.1`.",
+	"config":    "Config of version 2, seq 0: 1000 Hz, lockstep, 2 joints `hip_left` and `hip_right`, torque limit 40 N·m each, watchdog 50 000 µs (bytes `50 c3 00 00` at payload offset 292, frame offset 300).",
+	"config_v1": "The same config as a version-1 firmware gets it (section 8): the version-1 layout, no watchdog, header version 1.",
+	"state":     "State, seq 1235: time 1 234 000 µs, 2 joints, angles 0.25 and −0.125 rad, rates 1.5 and −0.75 rad/s, IMU pitch −0.0625 rad, IMU rate 0.5 rad/s, left foot in contact.",
+	"command":   "Command answering that state, seq 1235: 2 joints, torques 3.5 and −12.25 N·m, status 0.",
+	"heartbeat": "Heartbeat, seq 1235.",
+	"stop":      "Stop, seq 1235: reason 2 (`watchdog`), text `no command for 50 ms`.",
 }
 
 func hexDump(b []byte) string {

@@ -32,11 +32,6 @@ func exampleMessages() []struct {
 		// in the version-1 layout, without the watchdog.
 		{"config_v1", Message{Version: 1, Type: TypeConfig, Seq: 0, Config: Config{TickHz: 1000, Lockstep: true, Joints: 2,
 			JointNames: [MaxJoints]string{"hip_left", "hip_right"}, TorqueLimit: [MaxJoints]float32{40, 40}}}},
-		// The same state on a treadmill belt (section 3.3.1): bit 2 of
-		// contacts and the hip 0.417 m behind the middle of the belt.
-		{"state_belt", Message{Version: 2, Type: TypeState, Seq: 1235, State: State{TimeUS: 1234000, Joints: 2,
-			Angle: [MaxJoints]float32{0.25, -0.125}, Rate: [MaxJoints]float32{1.5, -0.75},
-			IMUPitch: -0.0625, IMURate: 0.5, Contacts: ContactLeft | ContactBelt, BeltMM: -417}}},
 	}
 }
 
