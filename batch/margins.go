@@ -211,6 +211,7 @@ func DefaultAxes(n Nominal) []Axis {
 		MassAxis("mass_plus", 50), MassAxis("mass_minus", -50),
 		LegLengthAxis("leg_length_plus", 30), LegLengthAxis("leg_length_minus", -30),
 	)
+	axes = append(axes, BeltAxes()...) // treadmill scenarios only (margins_belt.go)
 	return axes
 }
 
@@ -372,6 +373,9 @@ func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []str
 		return nil, err
 	}
 	axes, err := SelectAxes(DefaultAxes(n), names)
+	if err == nil {
+		axes, err = axesForGround(sc, axes, names)
+	}
 	if err != nil {
 		return nil, err
 	}

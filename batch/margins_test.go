@@ -261,7 +261,8 @@ func TestMarginsFlagAPassBeyondTheLimit(t *testing.T) {
 // side of the start is refused.
 func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
 	doc := map[string]float64{"friction": 0.05, "added_latency": 40, "slope_up": 10, "slope_down": -10, "noise_multiple": 50,
-		"encoder_bits": 4, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30}
+		"encoder_bits": 4, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30,
+		"belt_speed_up": 2, "belt_slow_down": -2}
 	for _, a := range DefaultAxes(Nominal{}) {
 		want, ok := doc[a.Name]
 		if !ok {

@@ -238,16 +238,25 @@ func perturbHook(m *plant.Model, first, last int, size float64, rng *rand.Rand, 
 		smp := stepSample{step: step, pre: pre, post: pre, contactX: c[s.Stance].Point[0]}
 		if step >= first && step <= last && *fail == nil {
 			z := m.Reduced(s)
+			base, err0 := m.FromReduced(z, s.Stance, s.Q[0])
 			for i := 0; i < nl; i++ {
 				z[nl+i] += size * rng.NormFloat64()
 			}
 			ns, err := m.FromReduced(z, s.Stance, s.Q[0])
+			if err == nil {
+				err = err0
+			}
 			if err != nil {
 				*fail = err
 			} else {
 				// Only the rates change: the rolling constraint gives the hip
-				// velocity from the stance leg's rate.
-				s.V = ns.V
+				// velocity from the stance leg's rate. The change is added,
+				// not the state replaced, so a foot rolling on a moving belt
+				// keeps the belt's velocity (the constraint is linear in the
+				// velocities, and the change satisfies its fixed-ground form).
+				for i := range s.V {
+					s.V[i] += ns.V[i] - base.V[i]
+				}
 				smp.post = sectionState(m, s, in, strikeT)
 			}
 		}

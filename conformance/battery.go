@@ -182,7 +182,7 @@ func (b *battery) firstSession(conn bridges.Conn) {
 	s := newSession(conn)
 	b.s = s
 	rest := []string{CheckConfig, CheckDuplicate, CheckEveryState, CheckResent, CheckBadCRC, CheckUnknownType,
-		CheckHeartbeat, CheckStatusBits, CheckRoundTrip, CheckStopsOnStop}
+		CheckHeartbeat, CheckBeltPlace, CheckStatusBits, CheckRoundTrip, CheckStopsOnStop}
 	start := time.Now()
 	g, seq, err := s.awaitGreeting(b.ctx, GreetingTimeout)
 	if err != nil {
@@ -270,6 +270,7 @@ func (b *battery) firstSession(conn bridges.Conn) {
 	b.damaged(CheckBadCRC, func(f []byte) { f[len(f)-1] ^= 0xFF }, "a state frame whose CRC's high byte is inverted")
 	b.damaged(CheckUnknownType, nil, "a frame of type 0x7E (no such type), CRC correct")
 	b.heartbeat()
+	b.beltPlace()
 
 	start = time.Now()
 	if undef := s.statusOr &^ DefinedStatusBits; undef != 0 {
@@ -522,3 +523,31 @@ const redialEvery = 100 * time.Millisecond
 
 // errLinkGone is how a session reports a link that closed under it.
 var errLinkGone = errors.New("the link closed")
+
+// beltPlace sends one state of a treadmill run (docs/protocol.md section
+// 3.3.1: contacts bit 2 set, belt_mm BeltPlaceMM) and then a plain one;
+// both must be answered, neither with the fault bit. A board written
+// before the field ignores it; one that refuses the frame, drops the state
+// or calls it a fault fails.
+func (b *battery) beltPlace() {
+	s := b.s
+	start := time.Now()
+	st := s.nextState()
+	st.State.Contacts |= protocol.ContactBelt
+	st.State.BeltMM = BeltPlaceMM
+	a := s.exchange(b.ctx, st)
+	if p := a.problem(s); p != "" {
+		b.record(CheckBeltPlace, Fail, start, "state seq %d with a belt place of %d mm: %s", a.seq, BeltPlaceMM, p)
+		return
+	}
+	if s.lastCmd.Status&protocol.StatusFault != 0 {
+		b.record(CheckBeltPlace, Fail, start, "state seq %d with a belt place of %d mm answered with the fault bit", a.seq, BeltPlaceMM)
+		return
+	}
+	next := s.exchange(b.ctx, s.nextState())
+	if p := next.problem(s); p != "" {
+		b.record(CheckBeltPlace, Fail, start, "the plain state after the belt state: seq %d: %s", next.seq, p)
+		return
+	}
+	b.record(CheckBeltPlace, Pass, start, "state seq %d with a belt place of %d mm answered in %v, and the next", a.seq, BeltPlaceMM, a.rtt)
+}

@@ -31,12 +31,13 @@ const (
 	faultWrongRefusalReason              // refuses a bad config with reason estop
 	faultTakesBadConfig                  // takes a config with the wrong joint count
 	faultStopsOnDuplicateConfig          // ends the session with a stop on a second config
+	faultBeltPlaceRefused                // drops a state whose reserved bytes are not zero (a board stricter than the document)
 )
 
 var faultNames = [...]string{"none", "greeting_seq", "skip_first_state", "duplicate_config_drops_state",
 	"wrong_seq", "resent_twice", "resent_ignored", "accepts_bad_crc", "unknown_type_drops_state",
 	"heartbeat_drops_state", "undefined_status_bit", "answers_after_stop", "no_greeting_after_stop",
-	"wrong_refusal_reason", "takes_bad_config", "stops_on_duplicate_config"}
+	"wrong_refusal_reason", "takes_bad_config", "stops_on_duplicate_config", "belt_place_refused"}
 
 func (f fault) String() string { return faultNames[f] }
 
@@ -185,6 +186,9 @@ func runBoard(rw io.ReadWriter, f fault) {
 				continue
 			}
 			if f == faultSkipFirstState && m.Seq == 1 {
+				continue
+			}
+			if f == faultBeltPlaceRefused && (m.State.BeltMM != 0 || m.State.Contacts&^3 != 0) {
 				continue
 			}
 			if haveLast && m.Seq == last.Seq {

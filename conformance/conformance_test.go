@@ -123,6 +123,7 @@ func TestBrokenFirmwareFailsTheRightCheck(t *testing.T) {
 		{faultAcceptsBadCRC, CheckBadCRC},
 		{faultUnknownTypeDropsState, CheckUnknownType},
 		{faultHeartbeatDropsState, CheckHeartbeat},
+		{faultBeltPlaceRefused, CheckBeltPlace},
 		{faultUndefinedStatusBit, CheckStatusBits},
 		{faultAnswersAfterStop, CheckStopsOnStop},
 		{faultNoGreetingAfterStop, CheckGreetsAgain},

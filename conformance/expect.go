@@ -61,6 +61,7 @@ const (
 	CheckBadCRC         = "bad_crc_ignored"
 	CheckUnknownType    = "unknown_type_ignored"
 	CheckHeartbeat      = "heartbeat"
+	CheckBeltPlace      = "belt_place_taken"
 	CheckStatusBits     = "status_bits"
 	CheckRoundTrip      = "round_trip"
 	CheckStopsOnStop    = "stops_on_stop"
@@ -90,6 +91,7 @@ var Checks = []Spec{
 	{CheckBadCRC, "ignores a frame with a bad CRC and answers the next state", "5", true},
 	{CheckUnknownType, "ignores a frame of an unknown type and answers the next state", "5", true},
 	{CheckHeartbeat, "takes a heartbeat without disturbing the session (and answers it, if the document asks)", "3.5, 6 item 4", true},
+	{CheckBeltPlace, "answers a state that carries a treadmill belt place (contacts bit 2, belt_mm) like any state, without a fault", "3.3.1, 6.1 item 3", true},
 	{CheckStatusBits, "sends only the status bits the document defines (fault, safe mode)", "3.4, 6.1 item 3", true},
 	{CheckRoundTrip, "round-trip time, state sent to its command back, plant frozen (a figure, not a pass mark)", "7", false},
 	{CheckStopsOnStop, "sends no command after a stop from the rig", "6 item 5", true},
@@ -133,3 +135,8 @@ const (
 	configTickHz   = 1000 // the rig's default tick rate
 	configLimit    = 40   // N·m, the document's example torque limit
 )
+
+// BeltPlaceMM is the belt place of the state CheckBeltPlace sends: 1.234 m
+// behind the middle of the belt (our choice: a value with every byte
+// non-zero, so a board that insists on the old reserved zeros shows it).
+const BeltPlaceMM = -1234

@@ -59,6 +59,7 @@ func (r *runner) sense() {
 	ss.seq++
 	ss.out.Seq = ss.seq
 	r.sens.read(pt.s.T, &pt.tr, &ss.out.State)
+	r.beltSense(&ss.out.State)
 }
 
 // pushForce is the hip force over the tick that starts at t.

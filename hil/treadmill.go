@@ -287,3 +287,21 @@ func (tm *treadmill) posOrNaN() float64 {
 	}
 	return tm.pos
 }
+
+// beltSense tells the firmware where the walker is on the belt: the hip's
+// distance from the middle of the belt along it, to the millimetre, with
+// the ContactBelt bit that says the field is valid (docs/protocol.md
+// section 3.3). Off a treadmill it leaves the state as the sensors made it
+// (bit clear, field 0), byte for byte what a rig without belts sent. The
+// place is exact: a lab measures it with a distance sensor far finer than a
+// millimetre, so the sensor model's noise does not apply to it.
+func (r *runner) beltSense(out *protocol.State) {
+	tm := &r.tm
+	out.BeltMM = 0
+	if tm.belt == nil {
+		return
+	}
+	hip := [2]float64{r.pt.s.Q[0], r.pt.s.Q[1]}
+	out.Contacts |= protocol.ContactBelt
+	out.BeltMM = protocol.BeltMMOf(tm.along(hip) - tm.length/2)
+}

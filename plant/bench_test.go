@@ -173,6 +173,12 @@ func BenchmarkTenStepsSciPyTolerance(b *testing.B) {
 // timed, so a change in the machine's load hits both alike. It reports
 // ns per tick of each and their ratio (belt-ratio; issue 11 asks for at
 // most 1.10). Nothing is asserted: speed is measured, not tested.
+//
+// On a busy machine the sums carry whatever the other processes took
+// from each block, which swings the ratio by tens of per cent between
+// runs. The fastest block of each kind is the one least disturbed, so the
+// benchmark also reports the ratio of the two minima (belt-min-ratio),
+// the better estimate of what a tick costs when it has the core.
 func BenchmarkTickBeltOverhead(b *testing.B) {
 	mf, sf := benchWalkerOn(b, false, 0, false)
 	mb, sb := benchWalkerOn(b, false, 0, true)
@@ -182,6 +188,7 @@ func BenchmarkTickBeltOverhead(b *testing.B) {
 	inB.Belt.Speed = 1.2
 	var r TickResult
 	var tf, tb time.Duration
+	minF, minB := time.Duration(math.MaxInt64), time.Duration(math.MaxInt64)
 	const block = 1000
 	b.ReportAllocs()
 	b.ResetTimer()
@@ -194,8 +201,10 @@ func BenchmarkTickBeltOverhead(b *testing.B) {
 		for k := 0; k < block; k++ {
 			mb.Step(&sb, &inB, 1e-3, &r)
 		}
-		tb += time.Since(t1)
-		tf += t1.Sub(t0)
+		db, df := time.Since(t1), t1.Sub(t0)
+		tb += db
+		tf += df
+		minB, minF = min(minB, db), min(minF, df)
 		if r.NumEvents > 0 || r.Contacts[0].Mode != Rolling {
 			b.Fatalf("belt tick: events %v, stance mode %v", r.Events[:r.NumEvents], r.Contacts[0].Mode)
 		}
@@ -207,6 +216,7 @@ func BenchmarkTickBeltOverhead(b *testing.B) {
 	b.ReportMetric(float64(tf.Nanoseconds())/n, "fixed-ns/tick")
 	b.ReportMetric(float64(tb.Nanoseconds())/n, "belt-ns/tick")
 	b.ReportMetric(float64(tb)/float64(tf), "belt-ratio")
+	b.ReportMetric(float64(minB)/float64(minF), "belt-min-ratio")
 }
 
 // BenchmarkTickKneed: one 1 ms tick of a kneed walker (thighs, shanks,

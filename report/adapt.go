@@ -325,6 +325,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		"positive work (J)", "negative work (J)", "cost of transport", "CoP travel (m)"}
 	v.stepsTotal = len(steps)
 	radii := footRadiiOf(m.Plant)
+	belt := beltEndsOf(m.Plant) // nil on fixed ground
 	for _, st := range steps {
 		v.StepRows = append(v.StepRows, []string{
 			strconv.Itoa(st.Index), footName(st.Stance), fmtFloat(st.StartS), fmtFloat(st.DurationS),
@@ -339,6 +340,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 			torsoTop: st.Pose.TorsoTop,
 			hasTorso: st.Pose.HasTorso,
 			radius:   radii,
+			belt:     belt,
 		}
 		if !poseFinite(ps) {
 			// A pose with a NaN in it (a run that went non-finite) cannot be

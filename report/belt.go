@@ -91,3 +91,30 @@ func beltFigure(v *view, w, h vg.Length, maxPoints int) (figure, bool, error) {
 	}
 	return figure{ID: "plot-belt-speed", Title: title, Caption: caption + st.caption(), SVG: template.HTML(svg)}, true, nil
 }
+
+// stickBelt is a treadmill belt as the heel-strike strip draws it: its
+// rear and front ends (the rollers), world coordinates in m.
+type stickBelt struct {
+	rear, front [2]float64
+}
+
+// beltEndsOf lays out the manifest's terrain from its start and returns
+// the belt segment's ends, or nil without a belt (or a terrain the report
+// cannot place).
+func beltEndsOf(p *record.Plant) *stickBelt {
+	if p == nil {
+		return nil
+	}
+	x, y := p.Terrain.StartM[0], p.Terrain.StartM[1]
+	for _, s := range p.Terrain.Segments {
+		if !(s.LengthM > 0) {
+			return nil
+		}
+		dx, dy := s.LengthM*math.Cos(s.SlopeRad), s.LengthM*math.Sin(s.SlopeRad)
+		if s.Belt {
+			return &stickBelt{rear: [2]float64{x, y}, front: [2]float64{x + dx, y + dy}}
+		}
+		x, y = x+dx, y+dy
+	}
+	return nil
+}

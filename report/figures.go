@@ -612,6 +612,9 @@ func stickFigure(fs *figureSet, v *view) error {
 		return err
 	}
 	capText := fmt.Sprintf("Pose at each heel strike, true proportions, each figure shifted so its lower foot sits on its own ground line (drawn at the local slope); curved feet drawn as arcs of the recorded foot radius. %d of %d heel strikes shown", len(sel), v.stepsTotal)
+	if len(sel) > 0 && sel[0].belt != nil {
+		capText = fmt.Sprintf("Pose at each heel strike on the treadmill, true proportions, each figure at its place on the belt, which is drawn whole with a roller at each end; curved feet drawn as arcs of the recorded foot radius. %d of %d heel strikes shown", len(sel), v.stepsTotal)
+	}
 	if len(sel) < v.stepsTotal {
 		capText += ", evenly spaced, first and last included"
 	}

@@ -22,6 +22,9 @@ type stickPose struct {
 	slope float64
 	// radius of each foot arc (m); 0 draws a point foot (a straight leg).
 	radius [2]float64
+	// belt, on a treadmill run: the figure stands at its true place on
+	// the belt, whose whole length and end rollers are drawn (belt.go).
+	belt *stickBelt
 }
 
 // footArcHalfSpan is half the angle of foot arc drawn, rad. It is only
@@ -66,6 +69,7 @@ type stickStrip struct {
 	top     float64 // highest point of any pose above its origin, m
 	rows    int
 	columns int
+	width   float64 // slot width, m of the drawing
 }
 
 func newStickStrip(poses []stickPose) *stickStrip {
@@ -81,9 +85,31 @@ func newStickStrip(poses []stickPose) *stickStrip {
 	if scale == 0 || math.IsNaN(scale) || math.IsInf(scale, 0) {
 		scale = 1
 	}
-	cols := min(stickColumns, max(len(poses), 1))
+	width, perRow := 1.6*scale, stickColumns
+	for _, ps := range poses {
+		if b := ps.belt; b != nil {
+			// On a treadmill every slot shows the whole belt at the
+			// figures' scale, and every figure where it is, also one
+			// that went past an end; fewer slots fit a row of the same
+			// width.
+			half := math.Hypot(b.front[0]-b.rear[0], b.front[1]-b.rear[1]) / 2
+			mid := (b.rear[0] + b.front[0]) / 2
+			xs := []float64{ps.hip[0], ps.feet[0][0], ps.feet[1][0]}
+			if ps.hasTorso {
+				xs = append(xs, ps.torsoTop[0])
+			}
+			for _, x := range xs {
+				half = math.Max(half, math.Abs(x-mid))
+			}
+			if w := 2*half + 0.5*scale; w > width && !math.IsInf(w, 0) {
+				width = w
+			}
+		}
+	}
+	perRow = max(1, int(float64(stickColumns)*1.6*scale/width))
+	cols := min(perRow, max(len(poses), 1))
 	rows := (len(poses) + cols - 1) / cols
-	s := &stickStrip{poses: poses, scale: scale, rows: max(rows, 1), columns: cols}
+	s := &stickStrip{poses: poses, scale: scale, rows: max(rows, 1), columns: cols, width: width}
 	for _, ps := range poses {
 		o := s.origin(ps)
 		top := ps.hip[1]
@@ -101,14 +127,18 @@ func newStickStrip(poses []stickPose) *stickStrip {
 	return s
 }
 
-func (s *stickStrip) slotW() float64 { return 1.6 * s.scale }
+func (s *stickStrip) slotW() float64 { return s.width }
 
 // slotH leaves room for the tallest figure and its label below the ground.
 func (s *stickStrip) slotH() float64 { return s.top + 0.45*s.scale }
 
 // origin is the world point of pose i that is placed at its slot origin:
-// the lower of the two feet.
+// the middle of the belt on a treadmill (so the figure stands where it is
+// on the belt), otherwise the lower of the two feet.
 func (s *stickStrip) origin(ps stickPose) [2]float64 {
+	if b := ps.belt; b != nil {
+		return [2]float64{(b.rear[0] + b.front[0]) / 2, (b.rear[1] + b.front[1]) / 2}
+	}
 	if ps.feet[1][1] < ps.feet[0][1] {
 		return ps.feet[1]
 	}
@@ -142,9 +172,13 @@ func (s *stickStrip) Plot(c draw.Canvas, p *plot.Plot) {
 	for i, ps := range s.poses {
 		ox, oy := s.slot(i)
 		o := s.origin(ps)
-		half := 0.7 * s.scale
-		dx, dy := half*math.Cos(ps.slope), half*math.Sin(ps.slope)
-		c.StrokeLine2(ground, trX(ox-dx), trY(oy-dy), trX(ox+dx), trY(oy+dy))
+		if ps.belt != nil {
+			s.drawBelt(c, ground, ps.belt, func(w [2]float64) vg.Point { return pt(ox, oy, o, w) })
+		} else {
+			half := 0.7 * s.scale
+			dx, dy := half*math.Cos(ps.slope), half*math.Sin(ps.slope)
+			c.StrokeLine2(ground, trX(ox-dx), trY(oy-dy), trX(ox+dx), trY(oy+dy))
+		}
 		if ps.hasTorso {
 			c.StrokeLines(body, []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.torsoTop)})
 		}
@@ -178,6 +212,9 @@ func (s *stickStrip) Plot(c draw.Canvas, p *plot.Plot) {
 func stickFigurePlot(poses []stickPose) (*plot.Plot, vg.Length, vg.Length, error) {
 	s := newStickStrip(poses)
 	title := "Walker at each heel strike (left leg blue, right leg orange)"
+	if len(poses) > 0 && poses[0].belt != nil {
+		title = "Walker at each heel strike, at its place on the treadmill belt (left leg blue, right leg orange)"
+	}
 	if len(poses) == 0 {
 		title = "Walker at each heel strike: no heel strikes recorded"
 	}
@@ -209,4 +246,33 @@ func stickFigurePlot(poses []stickPose) (*plot.Plot, vg.Length, vg.Length, error
 	// Title and padding take about 40 pt; the rest keeps aspect 1:1.
 	h := vg.Length(float64(w)*(ymax-ymin)/(xmax-xmin)) + vg.Points(40)
 	return p, w, h, nil
+}
+
+// drawBelt draws a treadmill belt under a figure: the running surface from
+// the rear end to the front end, a roller under each end (the surface is
+// tangent to their tops) and the belt's return run beneath, all at the
+// figure's scale; at maps world coordinates to the canvas.
+func (s *stickStrip) drawBelt(c draw.Canvas, ls draw.LineStyle, b *stickBelt, at func([2]float64) vg.Point) {
+	dx, dy := b.front[0]-b.rear[0], b.front[1]-b.rear[1]
+	l := math.Hypot(dx, dy)
+	if !(l > 0) || math.IsInf(l, 0) {
+		return
+	}
+	nx, ny := -dy/l, dx/l // up from the surface
+	r := 0.06 * s.scale   // roller radius, drawing only
+	c.StrokeLines(ls, []vg.Point{at(b.rear), at(b.front)})
+	c.StrokeLines(ls, []vg.Point{
+		at([2]float64{b.rear[0] - 2*r*nx, b.rear[1] - 2*r*ny}),
+		at([2]float64{b.front[0] - 2*r*nx, b.front[1] - 2*r*ny}),
+	})
+	for _, e := range [2][2]float64{b.rear, b.front} {
+		ctr := [2]float64{e[0] - r*nx, e[1] - r*ny}
+		const k = 20
+		ring := make([]vg.Point, 0, k+1)
+		for i := 0; i <= k; i++ {
+			a := 2 * math.Pi * float64(i) / k
+			ring = append(ring, at([2]float64{ctr[0] + r*math.Cos(a), ctr[1] + r*math.Sin(a)}))
+		}
+		c.StrokeLines(ls, ring)
+	}
 }

@@ -569,12 +569,14 @@ type Criteria = hil.Criteria
 // hip pushes forward and backward at early, mid and late stance, added
 // command latency, slope up and down, then sensor noise, encoder bits,
 // torque limit and the plant's mass and leg length off while the firmware
-// is unchanged.
+// is unchanged, and on a treadmill the largest belt speed-up and slow-down
+// pulse survived.
 var MarginAxes = []string{"friction",
 	"push_forward_early", "push_forward_mid", "push_forward_late",
 	"push_backward_early", "push_backward_mid", "push_backward_late",
 	"added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_bits",
-	"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus"}
+	"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus",
+	"belt_speed_up", "belt_slow_down"} // the belt axes: treadmill scenarios only
 
 // Margins is the scenario's margins block: which axes to search, how
 // finely, and the least margin the lab requires on each. A zero minimum
@@ -584,8 +586,9 @@ type Margins struct {
 	// push_forward_mid, push_forward_late, push_backward_early,
 	// push_backward_mid, push_backward_late, added_latency, slope_up,
 	// slope_down, noise_multiple, encoder_bits, torque_fraction, mass_plus,
-	// mass_minus, leg_length_plus, leg_length_minus (MarginAxes). Default:
-	// all.
+	// mass_minus, leg_length_plus, leg_length_minus, and on a treadmill
+	// belt_speed_up, belt_slow_down (MarginAxes). Default: all (the belt
+	// axes only on a treadmill).
 	Axes []string `yaml:"axes"`
 	// Far sets where an axis's search ends, by axis name, in the axis's
 	// unit (friction: fraction of μ_s, pushes: N·s, added_latency: ms,
@@ -594,7 +597,7 @@ type Margins struct {
 	// %, negative for the minus axes); the search starts at the scenario as
 	// written. Default per axis: friction 0.05, pushes 40, added_latency
 	// 40, slope_up 10, slope_down -10, noise_multiple 50, encoder_bits 4,
-	// torque_fraction 0.05, mass ±50, leg length ±30.
+	// torque_fraction 0.05, mass ±50, leg length ±30, belt pulses ±2 m/s.
 	Far map[string]float64 `yaml:"far"`
 	// Tolerance is the width the bisection stops at, as a fraction of the
 	// axis's range. Default 0.02; 0 < tolerance ≤ 0.5.

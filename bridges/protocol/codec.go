@@ -250,7 +250,7 @@ func encodeState(p []byte, s *State) error {
 	le.PutUint64(p[0:], s.TimeUS)
 	p[8] = s.Joints
 	p[9] = s.Contacts
-	p[10], p[11] = 0, 0
+	le.PutUint16(p[10:], uint16(s.BeltMM))
 	for i := range MaxJoints {
 		a, r := float32(0), float32(0)
 		if i < int(s.Joints) {
@@ -449,6 +449,7 @@ func decodeState(p []byte, s *State) error {
 	s.TimeUS = le.Uint64(p[0:])
 	s.Joints = p[8]
 	s.Contacts = p[9]
+	s.BeltMM = int16(le.Uint16(p[10:]))
 	for i := range MaxJoints {
 		if i < int(s.Joints) {
 			s.Angle[i] = getF32(p[12+4*i:])

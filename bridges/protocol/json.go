@@ -63,6 +63,12 @@ func AppendJSON(dst []byte, m *Message) ([]byte, error) {
 		dst = appendUintField(dst, "time_us", s.TimeUS)
 		dst = appendUintField(dst, "joints", uint64(s.Joints))
 		dst = appendUintField(dst, "contacts", uint64(s.Contacts))
+		if s.BeltMM != 0 || s.Contacts&ContactBelt != 0 {
+			// Only a state on a belt says where it is, so the JSON of
+			// every other state reads as before.
+			dst = append(dst, `,"belt_mm":`...)
+			dst = strconv.AppendInt(dst, int64(s.BeltMM), 10)
+		}
 		dst = appendFloats(dst, "angle", s.Angle[:n])
 		dst = appendFloats(dst, "rate", s.Rate[:n])
 		dst = append(dst, `,"imu_pitch":`...)
@@ -167,6 +173,7 @@ type jsonMessage struct {
 	WatchdogUS  *uint32   `json:"watchdog_us"`
 	TimeUS      uint64    `json:"time_us"`
 	Contacts    uint8     `json:"contacts"`
+	BeltMM      int16     `json:"belt_mm"`
 	Angle       []jsonF32 `json:"angle"`
 	Rate        []jsonF32 `json:"rate"`
 	IMUPitch    jsonF32   `json:"imu_pitch"`
@@ -234,7 +241,7 @@ func ParseJSON(data []byte, m *Message) error {
 		copy(out.Config.JointNames[:], j.JointNames)
 		err = arr("torque_limit", j.TorqueLimit, out.Config.TorqueLimit[:])
 	case TypeState:
-		out.State = State{TimeUS: j.TimeUS, Joints: j.Joints, Contacts: j.Contacts,
+		out.State = State{TimeUS: j.TimeUS, Joints: j.Joints, Contacts: j.Contacts, BeltMM: j.BeltMM,
 			IMUPitch: float32(j.IMUPitch), IMURate: float32(j.IMURate)}
 		if err = arr("angle", j.Angle, out.State.Angle[:]); err == nil {
 			err = arr("rate", j.Rate, out.State.Rate[:])

@@ -5,6 +5,8 @@
 // of that document. Encoding and decoding never allocate.
 package protocol
 
+import "math"
+
 // Version is the newest protocol version this build speaks, and the one
 // Encode writes when a Message leaves its Version at 0. Version 2 differs
 // from version 1 only in the config, which also carries the watchdog.
@@ -63,6 +65,10 @@ type Config struct {
 const (
 	ContactLeft  uint8 = 1 << 0 // left foot switch closed
 	ContactRight uint8 = 1 << 1 // right foot switch closed
+	// ContactBelt says the walker is on a treadmill belt and State.BeltMM
+	// holds its place on it. It is not a foot switch: a firmware that
+	// picks its stance from the switches masks it off (bits 0 and 1).
+	ContactBelt uint8 = 1 << 2
 )
 
 // State is what the board's sensors would read at one tick.
@@ -73,7 +79,40 @@ type State struct {
 	Rate     [MaxJoints]float32 // joint rates, rad/s
 	IMUPitch float32            // rad, absolute pitch of the IMU's link
 	IMURate  float32            // rad/s
-	Contacts uint8              // ContactLeft | ContactRight bits
+	Contacts uint8              // ContactLeft | ContactRight bits, and ContactBelt
+	// BeltMM is the hip's place on a treadmill belt: its distance from the
+	// middle of the belt along the belt, in millimetres, positive forward,
+	// saturated at ±32 767. It is valid only when Contacts has ContactBelt
+	// (docs/protocol.md section 3.3); otherwise it is sent as 0. It fills
+	// what versions 1 and 2 reserved, so a board that does not know it
+	// ignores it, and the state keeps its 84 bytes.
+	BeltMM int16
+}
+
+// BeltPosition returns the hip's place on the belt in metres from the
+// middle of the belt (positive forward), and whether the state carries one
+// (Contacts has ContactBelt).
+func (s *State) BeltPosition() (m float64, ok bool) {
+	if s.Contacts&ContactBelt == 0 {
+		return 0, false
+	}
+	return float64(s.BeltMM) / 1000, true
+}
+
+// BeltMMOf converts a place on the belt in metres from its middle to the
+// wire's BeltMM: rounded to the millimetre and saturated at ±32 767 mm. NaN
+// gives 0.
+func BeltMMOf(m float64) int16 {
+	mm := math.Round(m * 1000)
+	switch {
+	case mm != mm: // NaN
+		return 0
+	case mm > math.MaxInt16:
+		return math.MaxInt16
+	case mm < -math.MaxInt16:
+		return -math.MaxInt16
+	}
+	return int16(mm)
 }
 
 // Firmware status bits in Command.Status.

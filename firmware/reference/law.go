@@ -30,6 +30,11 @@ type Reading struct {
 	Pitch     float64    // IMU link's absolute angle, rad
 	PitchRate float64    // IMU link's absolute rate, rad/s
 	Contacts  uint8      // foot switches: bit 0 left, bit 1 right
+	// OnBelt says the walker is on a treadmill belt and BeltPos is its
+	// place: the hip's distance from the middle of the belt, m, positive
+	// forward (protocol.State.BeltPosition).
+	OnBelt  bool
+	BeltPos float64
 }
 
 // Gains are the constants of the control law. Every one is a plain number
@@ -68,6 +73,9 @@ type Gains struct {
 	// TorqueLimit clips every output torque, N·m (the firmware's own limit;
 	// the rig enforces its configured limit as well).
 	TorqueLimit float64
+	// Belt is the belt term, which moves TargetSpeed to hold the walker's
+	// place on a treadmill (belt.go).
+	Belt BeltGains
 }
 
 // DefaultGains are tuned for the demo walker of plant.DemoParams on level
@@ -104,6 +112,7 @@ func DefaultGains() Gains {
 		TorsoKp:       400,
 		TorsoKd:       40,
 		TorqueLimit:   50,
+		Belt:          DefaultBeltGains(),
 	}
 }
 
@@ -126,7 +135,8 @@ func DefaultGains() Gains {
 //	                                  (smaller ω); ties → 0
 //	sw = 1 − st
 //	v = −LegLength · ω_st                             forward speed estimate
-//	e = v − TargetSpeed
+//	e = v − TargetSpeed                               (on a belt TargetSpeed is first
+//	                                                  moved by the belt term, belt.go)
 //	φ* = clamp(StepAngle + StepSpeedGain·e, StepMin, StepMax)
 //	τ_sw = SwingKp·(φ* − θ_sw) − SwingKd·ω_sw         swing hip
 //	θT* = clamp(Lean + LeanSpeedGain·e, LeanMin, LeanMax)
@@ -145,6 +155,8 @@ func DefaultGains() Gains {
 // leg when the right leg swings and as −τ_sw (the same swing-leg torque
 // seen from the other side) when the left leg swings.
 func Law(g *Gains, r *Reading, tau []float64) (stance int) {
+	gb := withBelt(g, r) // on a belt: the speed target holds the walker's place (belt.go)
+	g = &gb
 	switch r.Joints {
 	case 2:
 		thT, wT := r.Pitch, r.PitchRate

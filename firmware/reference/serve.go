@@ -194,6 +194,7 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 			return nil, false, nil
 		}
 		r := Reading{Joints: o.Actuators, Pitch: float64(in.State.IMUPitch), PitchRate: float64(in.State.IMURate), Contacts: in.State.Contacts}
+		r.BeltPos, r.OnBelt = in.State.BeltPosition()
 		for i := 0; i < o.Actuators; i++ {
 			r.Angle[i] = float64(in.State.Angle[i])
 			r.Rate[i] = float64(in.State.Rate[i])

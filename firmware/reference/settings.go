@@ -24,6 +24,8 @@ var settingNames = map[string]func(g *Gains) *float64{
 	"torso_kp":                 func(g *Gains) *float64 { return &g.TorsoKp },
 	"torso_kd":                 func(g *Gains) *float64 { return &g.TorsoKd },
 	"firmware_torque_limit_nm": func(g *Gains) *float64 { return &g.TorqueLimit },
+	"belt_gain":                func(g *Gains) *float64 { return &g.Belt.Gain },
+	"belt_max_shift_mps":       func(g *Gains) *float64 { return &g.Belt.MaxShift },
 }
 
 // SettingNames lists the names GainsFromSettings accepts, sorted.
@@ -53,6 +55,9 @@ func GainsFromSettings(settings map[string]float64) (Gains, error) {
 	}
 	if g.LeanMin > g.LeanMax {
 		return g, fmt.Errorf("reference: lean_min_rad %g is above lean_max_rad %g", g.LeanMin, g.LeanMax)
+	}
+	if !(g.Belt.Gain >= 0) || !(g.Belt.MaxShift >= 0) {
+		return g, fmt.Errorf("reference: belt_gain %g and belt_max_shift_mps %g must be ≥ 0 (0 turns the belt term off)", g.Belt.Gain, g.Belt.MaxShift)
 	}
 	if !(g.TorqueLimit > 0) {
 		return g, fmt.Errorf("reference: firmware_torque_limit_nm %g must be > 0", g.TorqueLimit)
