@@ -4,8 +4,11 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
+
+	"gaitrig/plant"
 )
 
 // TestBrokenFiles loads every file under testdata/broken and checks the
@@ -629,5 +632,49 @@ func BenchmarkRefuse(b *testing.B) {
 				}
 			}
 		})
+	}
+}
+
+// TestPlantParamsShanks checks that a shank block becomes plant shanks on
+// both legs, that a side's shank override changes that side only, and that
+// actuated knees add their joints after the hips.
+func TestPlantParamsShanks(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(base), "    foot_radius_m: 0.27\n",
+		"    foot_radius_m: 0.27\n    shank:\n      length_m: 0.5\n      mass_kg: 1\n      com_m: 0.2\n      inertia_kgm2: 0.01\n      knee_latch: true\n"+
+			"    right:\n      shank:\n        mass_kg: 1.5\n        knee_actuated: true\n", 1)
+	s, err := Parse("kneed.yaml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := s.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	l, r := p.Legs[0].Shank, p.Legs[1].Shank
+	if l == nil || r == nil {
+		t.Fatalf("shanks not built: %+v", p.Legs)
+	}
+	if want := (plant.Shank{Length: 0.5, Mass: 1, COMDist: 0.2, Inertia: 0.01, Latch: true}); *l != want {
+		t.Errorf("left shank %+v, want %+v", *l, want)
+	}
+	if want := (plant.Shank{Length: 0.5, Mass: 1.5, COMDist: 0.2, Inertia: 0.01, Actuated: true, Latch: true}); *r != want {
+		t.Errorf("right shank %+v, want %+v", *r, want)
+	}
+	if s.Plant.Legs.Shank.MassKG != 1 || s.Plant.Legs.Shank.KneeActuated {
+		t.Errorf("the override changed the shared shank: %+v", *s.Plant.Legs.Shank)
+	}
+	if got := s.JointNames(); !slices.Equal(got, []string{"hip", "knee_right"}) {
+		t.Errorf("joints %v, want [hip knee_right]", got)
+	}
+	m, err := plant.New(p, s.PlantOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := m.JointNames(); !slices.Equal(got, s.JointNames()) {
+		t.Errorf("plant joints %v, scenario joints %v", got, s.JointNames())
 	}
 }
