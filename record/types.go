@@ -154,21 +154,22 @@ type Summary struct {
 	PeakFrictionUtilization float64        `json:"peak_friction_utilization"` // largest |F_t|/(μ_s N) of a stance foot
 	MinNormalForceN         float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N; null in the file (+Inf in Go) when no stance foot touched the ground, as in a run with no ticks
 	MeanSpeedMPS            float64        `json:"mean_speed_mps"`            // mean forward speed over completed steps, m/s
+	LatencyUS               *Latency       `json:"latency_us"`                // command round trip, µs, in wall-clock mode; null in lockstep
+	JitterUS                *Latency       `json:"jitter_us,omitempty"`       // tick start jitter, µs, in wall-clock mode; left out in lockstep
+	DeadlineMisses          int            `json:"deadline_misses"`           // wall-clock ticks that started late
+	StaleCommands           uint64         `json:"stale_commands"`            // commands superseded before they were applied (answers to resent or older states, floods): counted, never in the latency figures
+	LateTicks               int            `json:"late_ticks"`                // wall-clock ticks that started a whole period or more after they were due
+	HostStallS              float64        `json:"host_stall_s"`              // time the loop itself was not running (the host stalled it), s, summed over stalls longer than the detection threshold
+	LongestHostStallS       float64        `json:"longest_host_stall_s"`      // the longest such stall, s
+	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
+	Caution                 string         `json:"caution"`                   // the safety caution
+	ToolVersion             string         `json:"tool_version"`              // gaitrig version
+
 	// MinKneeLockTorqueNM is the least torque the stop or latch of a locked
-	// knee applied while its foot was on the ground, N·m: how close a
-	// stance knee came to buckling (negative: a latch had to pull, or a
-	// knee without one buckled). Left out for a walker without knees.
-	MinKneeLockTorqueNM *float64    `json:"min_knee_lock_torque_nm,omitempty"`
-	LatencyUS           *Latency    `json:"latency_us"`           // command round trip, µs, in wall-clock mode; null in lockstep
-	JitterUS            *Latency    `json:"jitter_us,omitempty"`  // tick start jitter, µs, in wall-clock mode; left out in lockstep
-	DeadlineMisses      int         `json:"deadline_misses"`      // wall-clock ticks that started late
-	StaleCommands       uint64      `json:"stale_commands"`       // commands superseded before they were applied (answers to resent or older states, floods): counted, never in the latency figures
-	LateTicks           int         `json:"late_ticks"`           // wall-clock ticks that started a whole period or more after they were due
-	HostStallS          float64     `json:"host_stall_s"`         // time the loop itself was not running (the host stalled it), s, summed over stalls longer than the detection threshold
-	LongestHostStallS   float64     `json:"longest_host_stall_s"` // the longest such stall, s
-	Criteria            []Criterion `json:"criteria"`             // each pass criterion and its result
-	Caution             string      `json:"caution"`              // the safety caution
-	ToolVersion         string      `json:"tool_version"`         // gaitrig version
+	// knee applied while its foot was on the ground, N·m: how close a stance
+	// knee came to buckling (negative: a latch pulled). Left out for a
+	// walker without knees.
+	MinKneeLockTorqueNM *float64 `json:"min_knee_lock_torque_nm,omitempty"`
 }
 
 // Caution is the safety caution: the one wording that summary.json, every

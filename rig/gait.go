@@ -43,6 +43,10 @@ func initialOnSurface(sc *scenarios.Scenario, model *plant.Model) (plant.State, 
 		return plant.State{}, ConfigError(err)
 	}
 	g, err := FindGait(sc, model)
+	if errors.Is(err, plant.ErrKneedAnalysis) {
+		// Until the gait finder carries the knees, say what to do instead.
+		return plant.State{}, Configf("scenario %s: initial.natural_gait: %v; give an explicit initial state (initial.leg_angles_rad and leg_rates_radps, just after a heel strike; the knees start straight and locked)", sc.Name, err)
+	}
 	if err != nil {
 		return plant.State{}, err
 	}

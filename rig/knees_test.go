@@ -2,6 +2,7 @@ package rig
 
 import (
 	"context"
+	"errors"
 	"math"
 	"path/filepath"
 	"strings"
@@ -110,4 +111,41 @@ func TestKneeBuckleAlarm(t *testing.T) {
 		t.Errorf("a knee without a latch recorded a pulling lock torque %g N·m", *m)
 	}
 	t.Logf("outcome %s (%s), alarms %v", sum.Outcome, sum.Reason, sum.Alarms)
+}
+
+// TestKneedNaturalGaitSaysWhatToDo: a kneed scenario that asks for its
+// natural gait either gets one (once the gait finder handles knees) or a
+// configuration error that names the field and the way out.
+func TestKneedNaturalGaitSaysWhatToDo(t *testing.T) {
+	text, err := scenarios.BuiltinText("passive-kneed-downhill")
+	if err != nil {
+		t.Fatal(err)
+	}
+	mod := strings.Replace(string(text), "  stance: left\n", "  stance: left\n  natural_gait: true\n", 1)
+	s, err := scenarios.Parse("natural.yaml", []byte(mod))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := plant.New(mustParams(t, s), s.PlantOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, err := InitialState(s, m)
+	switch {
+	case err == nil:
+		if st.Mode[st.Stance] == plant.Free {
+			t.Errorf("natural gait state has its stance foot in the air: %+v", st)
+		}
+	case !errors.Is(err, ErrConfig) || !strings.Contains(err.Error(), "initial.natural_gait") || !strings.Contains(err.Error(), "explicit initial state"):
+		t.Errorf("error %v: want a configuration error naming initial.natural_gait and the explicit state", err)
+	}
+}
+
+func mustParams(t *testing.T, s *scenarios.Scenario) plant.Params {
+	t.Helper()
+	p, err := s.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p
 }
