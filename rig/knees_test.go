@@ -149,3 +149,27 @@ func mustParams(t *testing.T, s *scenarios.Scenario) plant.Params {
 	}
 	return p
 }
+
+// TestLevelKneedTripsOnAScuff: the level-kneed scenario trips on a scuff,
+// so its passing run shows the swing knee clearing the foot. With the
+// swing knee extended too early (knee_extend_lead_rad 0.3: straight again
+// while the thigh is still well behind) the foot scuffs mid-swing and the
+// run trips with foot_scuff.
+func TestLevelKneedTripsOnAScuff(t *testing.T) {
+	text, err := scenarios.BuiltinText("level-kneed")
+	if err != nil {
+		t.Fatal(err)
+	}
+	mod := strings.Replace(string(text), "  mode: walk\n", "  mode: walk\n  settings:\n    knee_extend_lead_rad: 0.3\n", 1)
+	s, err := scenarios.Parse("straight-knee.yaml", []byte(mod))
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Run(context.Background(), s, Options{RunDir: filepath.Join(t.TempDir(), "run"), MaxSteps: 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sum := res.Summary; sum.Outcome != record.Tripped || sum.Alarms[hil.AlarmFootScuff] == 0 {
+		t.Fatalf("outcome %s (%s), alarms %v: want tripped on foot_scuff", sum.Outcome, sum.Reason, sum.Alarms)
+	}
+}
