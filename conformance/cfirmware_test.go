@@ -290,3 +290,20 @@ func TestCFirmwarePassesOverSerialPort(t *testing.T) {
 	}
 	passesInFull(t, p, link, dial)
 }
+
+// The example C firmware announcing a kneed torso walker (-j 4) passes the
+// battery too: the battery configures the four joints by the names a rig
+// gives a kneed walker (hips, then knee_left and knee_right), which the
+// firmware finds by name.
+func TestCFirmwareKneedPasses(t *testing.T) {
+	bin := buildCFirmware(t)
+	pty, err := serial.NewPty()
+	if err != nil {
+		t.Fatal(err)
+	}
+	conn := serial.NewConn(pty.Master, "pty leader", serial.Config{})
+	t.Cleanup(func() { conn.Close(); pty.Close() })
+	p := startC(t, bin, pty.Path, "-j", "4")
+	dial := func() (bridges.Conn, func(), error) { return conn, func() {}, nil }
+	passesInFull(t, p, "pty (C firmware, -j 4)", dial)
+}

@@ -118,6 +118,13 @@ func jointNames(n int) []string {
 		return []string{"hip"}
 	case 2:
 		return []string{"hip_left", "hip_right"}
+	case 3:
+		// A kneed compass walker: the hip, then the actuated knees, as
+		// plant.Model.JointNames orders them.
+		return []string{"hip", "knee_left", "knee_right"}
+	case 4:
+		// A kneed torso walker.
+		return []string{"hip_left", "hip_right", "knee_left", "knee_right"}
 	}
 	out := make([]string, n)
 	for i := range out {

@@ -98,6 +98,7 @@ func (r *runner) finish(runErr error) (Result, error) {
 		HostStallS:              r.stalls.total.Seconds(),
 		LongestHostStallS:       r.stalls.longest.Seconds(),
 	}
+	sum.MinKneeLockTorqueNM = r.pt.knees.summary(r.m)
 	if r.cfg.Clock == Wallclock {
 		l, j := res.Latency, res.Jitter
 		sum.LatencyUS = latencyOf(l)

@@ -181,6 +181,7 @@ func newRunner(cfg Config, model *plant.Model, initial plant.State, conn bridges
 		pt.pushes = append(pt.pushes, ps)
 	}
 	pt.contact.reset()
+	pt.knees.reset()
 	if err := r.newTreadmill(); err != nil {
 		return nil, err
 	}

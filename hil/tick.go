@@ -26,6 +26,7 @@ type plantTick struct {
 
 	pushes  []pushState
 	contact contactExtremes // of the stance foot over the whole run
+	knees   kneeExtremes    // of the locked knees of legs on the ground, over the whole run
 
 	// The row of the tick just stepped, and what it logs besides the plant.
 	row       record.Tick
@@ -112,6 +113,7 @@ func (r *runner) advance(wall time.Time) {
 	fc := pt.res.Contacts[st] // a copy: the peak figures count a slip as at least 1
 	fc.Utilization = pt.peakDemand(st)
 	pt.contact.add(&fc)
+	pt.knees.add(&pt.s, &pt.res.Contacts)
 	r.steps.tick(pos, neg, &fc)
 	if o := 1 - st; pt.slip[o] || pt.impact[o] {
 		// The other foot struck or slid this tick (a heel strike reported
@@ -176,7 +178,8 @@ func (r *runner) record(wall time.Time) {
 	for i := 0; i < 2; i++ {
 		c := &pt.res.Contacts[i]
 		row.Feet[i] = record.Foot{Mode: int(c.Mode), NormalN: c.Normal, TangentialN: c.Tangential,
-			Utilization: pt.demand[i], Slip: pt.slip[i], CoP: c.CoP, ContactX: c.Point[0]}
+			Utilization: pt.demand[i], Slip: pt.slip[i], CoP: c.CoP, ContactX: c.Point[0],
+			KneeLocked: pt.s.KneeLocked[i], KneeTorqueNM: c.KneeTorque}
 	}
 	row.Kinetic, row.Potential = r.m.Energy(&pt.s)
 	row.Fresh = r.fresh

@@ -98,6 +98,7 @@ type summaryJSON struct {
 	PeakFrictionUtilization num             `json:"peak_friction_utilization"`
 	MinNormalForceN         noContact       `json:"min_normal_force_n"`
 	MeanSpeedMPS            num             `json:"mean_speed_mps"`
+	MinKneeLockTorqueNM     *num            `json:"min_knee_lock_torque_nm,omitempty"`
 	LatencyUS               *latencyJSON    `json:"latency_us"`
 	JitterUS                *latencyJSON    `json:"jitter_us,omitempty"`
 	DeadlineMisses          int             `json:"deadline_misses"`
@@ -120,6 +121,7 @@ func (s Summary) MarshalJSON() ([]byte, error) {
 		PeakFrictionUtilization: num(s.PeakFrictionUtilization),
 		MinNormalForceN:         noContact(s.MinNormalForceN),
 		MeanSpeedMPS:            num(s.MeanSpeedMPS),
+		MinKneeLockTorqueNM:     (*num)(s.MinKneeLockTorqueNM),
 		LatencyUS:               s.LatencyUS.toJSON(), JitterUS: s.JitterUS.toJSON(),
 		DeadlineMisses: s.DeadlineMisses, Caution: s.Caution, ToolVersion: s.ToolVersion,
 		StaleCommands: s.StaleCommands, LateTicks: s.LateTicks,
@@ -147,6 +149,7 @@ func (s *Summary) UnmarshalJSON(b []byte) error {
 		PeakFrictionUtilization: float64(j.PeakFrictionUtilization),
 		MinNormalForceN:         float64(j.MinNormalForceN),
 		MeanSpeedMPS:            float64(j.MeanSpeedMPS),
+		MinKneeLockTorqueNM:     (*float64)(j.MinKneeLockTorqueNM),
 		LatencyUS:               j.LatencyUS.fromJSON(), JitterUS: j.JitterUS.fromJSON(),
 		DeadlineMisses: j.DeadlineMisses, Caution: j.Caution, ToolVersion: j.ToolVersion,
 		StaleCommands: j.StaleCommands, LateTicks: j.LateTicks,

@@ -33,7 +33,7 @@ func ExportParquet(dir string) (rows int, err error) {
 	if err != nil {
 		return 0, err
 	}
-	cols := tickFields(run.Manifest.NumQ, run.Manifest.JointNames)
+	cols := tickFieldsOf(&run.Manifest)
 	group := parquet.Group{}
 	for _, c := range cols {
 		group[c.Name] = parquetNode(c.Kind)

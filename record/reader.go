@@ -264,7 +264,7 @@ func (r *Run) Ticks() (*TickReader, error) {
 	if err != nil {
 		return nil, fmt.Errorf("record: %w", err)
 	}
-	all := tickFields(r.Manifest.NumQ, r.Manifest.JointNames)
+	all := tickFieldsOf(&r.Manifest)
 	tr := &TickReader{f: f, br: bufio.NewReaderSize(f, 64<<10), cols: all.inVersion(r.Manifest.SchemaVersion)}
 	head, err := tr.br.ReadSlice('\n')
 	if err != nil {

@@ -238,6 +238,17 @@ func referencePage(t testing.TB) []byte {
 		names = append(names, "`"+c.Name+"`")
 	}
 	b.WriteString(strings.Join(names, ", ") + "\n\n")
+	b.WriteString("### A walker with knees\n\nA kneed leg's own link is its thigh (`thigh_left`, `thigh_right`); the shanks\n" +
+		"(`shank_left`, `shank_right`) follow the torso in the coordinates, and actuated\n" +
+		"knees are joints `knee_left`, `knee_right` after the hips. Each kneed leg adds\n" +
+		"or renames these columns (here for a torso walker with both knees actuated, 7\n" +
+		"generalized coordinates; the knee columns come just before `push_x_n`):\n\n| column | unit | kind | meaning |\n| --- | --- | --- | --- |\n")
+	for _, c := range TickColumns(7, []string{"hip_left", "hip_right", "knee_left", "knee_right"}) {
+		if strings.Contains(c.Name, "knee") || strings.Contains(c.Name, "thigh") || strings.Contains(c.Name, "shank") {
+			fmt.Fprintf(&b, "| `%s` | %s | %s | %s |\n", c.Name, unitText(c), c.Kind, cell(c.Doc))
+		}
+	}
+	b.WriteString("\n")
 
 	b.WriteString("## steps.csv\n\nOne header line, then one row per completed step.\n\n| column | unit | kind | meaning |\n| --- | --- | --- | --- |\n")
 	for _, c := range StepColumns() {
@@ -278,10 +289,12 @@ func TestReferencePage(t *testing.T) {
 func TestEveryColumnDocumented(t *testing.T) {
 	suffixUnit := map[string]string{"_m": "m", "_rad": "rad", "_radps": "rad/s", "_mps": "m/s", "_n": "N", "_nm": "N·m", "_j": "J", "_s": "s", "_us": "µs"}
 	for name, cols := range map[string][]Column{
-		"torso":   TickColumns(5, []string{"hip_left", "hip_right"}),
-		"compass": TickColumns(4, []string{"hip"}),
-		"one leg": TickColumns(3, nil),
-		"steps":   StepColumns(),
+		"torso":         TickColumns(5, []string{"hip_left", "hip_right"}),
+		"compass":       TickColumns(4, []string{"hip"}),
+		"one leg":       TickColumns(3, nil),
+		"kneed":         TickColumns(7, []string{"hip_left", "hip_right", "knee_left", "knee_right"}),
+		"kneed compass": TickColumns(6, []string{"hip"}),
+		"steps":         StepColumns(),
 	} {
 		seen := map[string]bool{}
 		for _, c := range cols {

@@ -23,6 +23,14 @@ type Foot struct {
 	Slip        bool    // the foot slid this tick: sliding contact, an impact outside the friction cone or a friction limit crossed
 	CoP         float64 // centre of pressure along the foot arc, m from the arc's lowest point with the leg vertical
 	ContactX    float64 // x of the contact point, m
+	// KneeLocked is true while this leg's knee is locked at its stop (a
+	// kneed walker only).
+	KneeLocked bool
+	// KneeTorqueNM is the torque the locked knee's stop (or latch) applies,
+	// N·m: positive while it holds the knee against hyperextension,
+	// negative when a latch pulls; 0 for an unlocked knee or a straight
+	// leg (plant.FootContact.KneeTorque).
+	KneeTorqueNM float64
 }
 
 // Tick is one telemetry row. Rows have fixed-size arrays so writing one
@@ -133,22 +141,80 @@ func bit(v bool) int64 {
 var FootNames = [2]string{"left", "right"}
 
 // linkNames are the plant's links in the order of their absolute angles
-// q2, q3, …: leg 0 (left), leg 1 (right), then the torso if present (see
-// the plant conventions in DEVELOPERS.md). A one-leg model has only the
-// left leg, a compass walker no torso, so the first numQ−2 apply.
-var linkNames = [...]string{"left", "right", "torso"}
+// q2, q3, …: leg 0 (left), leg 1 (right), then the torso if present, then
+// the shanks of kneed legs, left first (see the plant conventions in
+// DEVELOPERS.md). A kneed leg's own link is its thigh. A one-leg model has
+// only the left leg, a compass walker no torso.
+type linkLayout struct {
+	names []string // link of coordinate 2+i
+	thigh [2]int   // coordinate of leg i's thigh, when kneed
+	shank [2]int   // coordinate of leg i's shank; -1 for a straight leg
+}
+
+// layoutOf gives the links of a walker with numQ coordinates. p, when not
+// nil, says which legs have shanks and whether there is a torso; without
+// it the layouts a scenario can describe are assumed: no knees up to five
+// coordinates (one leg, compass, torso walker), both legs kneed at six
+// (compass) and seven (torso).
+func layoutOf(numQ int, p *Plant) linkLayout {
+	l := linkLayout{shank: [2]int{-1, -1}}
+	var kneed [2]bool
+	torso := numQ == 5 || numQ == 7
+	legs := min(max(numQ-2, 0), 2)
+	if p != nil {
+		torso = p.Torso != nil && !p.OneLeg
+		for i := range kneed {
+			kneed[i] = p.Legs[i].Shank != nil && (i == 0 || !p.OneLeg)
+		}
+		if p.OneLeg {
+			legs = 1
+		}
+	} else if numQ >= 6 {
+		kneed = [2]bool{true, true}
+	}
+	for i := 0; i < legs; i++ {
+		if kneed[i] {
+			l.names = append(l.names, "thigh_"+FootNames[i])
+		} else {
+			l.names = append(l.names, FootNames[i])
+		}
+	}
+	if torso {
+		l.names = append(l.names, "torso")
+	}
+	for i := 0; i < legs; i++ {
+		if kneed[i] {
+			l.thigh[i] = 2 + i
+			l.shank[i] = 2 + len(l.names)
+			l.names = append(l.names, "shank_"+FootNames[i])
+		}
+	}
+	return l
+}
 
 // linkName names the link of generalized coordinate 2+i.
-func linkName(i int) string {
-	if i < len(linkNames) {
-		return linkNames[i]
+func (l *linkLayout) linkName(i int) string {
+	if i < len(l.names) {
+		return l.names[i]
 	}
 	return "link" + strconv.Itoa(i)
+}
+
+// tickFieldsOf is the telemetry column table of a run folder's manifest:
+// its coordinates, joints and, from its plant record, which legs have
+// knees.
+func tickFieldsOf(m *Manifest) table[Tick] {
+	return tickFieldsLayout(m.NumQ, m.JointNames, layoutOf(m.NumQ, m.Plant))
 }
 
 // tickFields is the telemetry column table for a walker with numQ
 // generalized coordinates and the given joints, in file order.
 func tickFields(numQ int, joints []string) table[Tick] {
+	return tickFieldsLayout(numQ, joints, layoutOf(numQ, nil))
+}
+
+// tickFieldsLayout is tickFields with the links named by lay.
+func tickFieldsLayout(numQ int, joints []string, lay linkLayout) table[Tick] {
 	var c table[Tick]
 	c.whole(Count, "tick", "tick", "tick number, from 0",
 		func(t *Tick) int64 { return t.Index }, func(t *Tick, v int64) { t.Index = v })
@@ -169,7 +235,7 @@ func tickFields(numQ int, joints []string) table[Tick] {
 		case 1:
 			c.real("y_hip_m", "m", v1, "hip y, up (q1)", get, set)
 		default:
-			l := linkName(i - 2)
+			l := lay.linkName(i - 2)
 			c.real("theta_"+l+"_rad", "rad", v1, "absolute angle of the "+l+" link from the world vertical, counter-clockwise (q"+strconv.Itoa(i)+")", get, set)
 		}
 	}
@@ -183,7 +249,7 @@ func tickFields(numQ int, joints []string) table[Tick] {
 		case 1:
 			c.real("vy_hip_mps", "m/s", v1, "hip velocity along y (dq1/dt)", get, set)
 		default:
-			l := linkName(i - 2)
+			l := lay.linkName(i - 2)
 			c.real("omega_"+l+"_radps", "rad/s", v1, "angular velocity of the "+l+" link (dq"+strconv.Itoa(i)+"/dt)", get, set)
 		}
 	}
@@ -204,6 +270,25 @@ func tickFields(numQ int, joints []string) table[Tick] {
 	for j, name := range joints {
 		c.real("tau_applied_"+name+"_nm", "N·m", "torque_"+name, "torque at joint "+name+" applied to the plant over this tick (after limits and actuator lag); a replay steps the plant with it",
 			func(t *Tick) float64 { return t.Applied[j] }, func(t *Tick, v float64) { t.Applied[j] = v })
+	}
+
+	// Knees, per kneed leg: the true knee angle and rate from the plant
+	// state (derived from the link columns; a sensed knee joint has its
+	// own angle_knee_… column), whether the knee is locked and the torque
+	// its stop or latch holds it with.
+	for k, f := range FootNames {
+		th, sh := lay.thigh[k], lay.shank[k]
+		if sh < 0 || sh >= numQ {
+			continue
+		}
+		c.real("theta_knee_"+f+"_rad", "rad", "", "knee angle of the "+f+" leg, θ_shank − θ_thigh from the plant state: 0 straight (at the stop), negative flexed (derived from the theta columns)",
+			func(t *Tick) float64 { return t.Q[sh] - t.Q[th] }, nil)
+		c.real("omega_knee_"+f+"_radps", "rad/s", "", "knee rate of the "+f+" leg, ω_shank − ω_thigh (derived from the omega columns)",
+			func(t *Tick) float64 { return t.V[sh] - t.V[th] }, nil)
+		c.whole(Flag, "knee_locked_"+f, "", "1 while the "+f+" knee is locked at its stop (held by the stop, or by its latch)",
+			func(t *Tick) int64 { return bit(t.Feet[k].KneeLocked) }, func(t *Tick, v int64) { t.Feet[k].KneeLocked = v != 0 })
+		c.real("knee_lock_torque_"+f+"_nm", "N·m", "", "torque the "+f+" knee's stop or latch applies to hold it: positive while the stop pushes against hyperextension; negative only with a latch (a knee without one would buckle, the knee_buckle alarm); 0 while unlocked",
+			func(t *Tick) float64 { return t.Feet[k].KneeTorqueNM }, func(t *Tick, v float64) { t.Feet[k].KneeTorqueNM = v })
 	}
 
 	c.real("push_x_n", "N", "push_x_n", "push force on the hip along x (fault injection, plus the pull of a fall-arrest harness rope when one is set), held over the tick",

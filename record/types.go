@@ -164,6 +164,12 @@ type Summary struct {
 	Criteria                []Criterion    `json:"criteria"`                  // each pass criterion and its result
 	Caution                 string         `json:"caution"`                   // the safety caution
 	ToolVersion             string         `json:"tool_version"`              // gaitrig version
+
+	// MinKneeLockTorqueNM is the least torque the stop or latch of a locked
+	// knee applied while its foot was on the ground, N·m: how close a stance
+	// knee came to buckling (negative: a latch pulled). Left out for a
+	// walker without knees.
+	MinKneeLockTorqueNM *float64 `json:"min_knee_lock_torque_nm,omitempty"`
 }
 
 // Caution is the safety caution: the one wording that summary.json, every

@@ -60,7 +60,7 @@ func Create(dir string, m Manifest) (*Writer, error) {
 		return nil, fmt.Errorf("record: %w", err)
 	}
 	m.SchemaVersion = SchemaVersion
-	cols := tickFields(m.NumQ, m.JointNames)
+	cols := tickFieldsOf(&m)
 	m.Columns = cols.names(SchemaVersion)
 	if m.StartTime.IsZero() {
 		m.StartTime = time.Now()

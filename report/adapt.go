@@ -135,6 +135,9 @@ func collectTicks(v *view, nj int, src tickSource, segs []terrainSeg, sizeHint i
 		if v.torso != nil {
 			v.torso = append(v.torso, t.Q[4])
 		}
+		if v.knees != nil {
+			v.knees.add(t, v.modeFree)
+		}
 		v.kinetic = append(v.kinetic, t.Kinetic)
 		v.potential = append(v.potential, t.Potential)
 		v.pushX = append(v.pushX, t.Push[0])
@@ -266,6 +269,7 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 		// right, torso); an empty, non-nil slice asks collectTicks for it.
 		v.torso = []float64{}
 	}
+	v.knees = kneesOf(m)
 	v.latencyLimit = math.NaN()
 	if s != nil {
 		for _, c := range s.Criteria {
@@ -341,6 +345,9 @@ func viewOf(m *record.Manifest, ticks tickSource, steps []record.Step, events []
 			hasTorso: st.Pose.HasTorso,
 			radius:   radii,
 			belt:     belt,
+		}
+		if v.knees != nil {
+			v.knees.place(&ps, v.t, st.EndS)
 		}
 		if !poseFinite(ps) {
 			// A pose with a NaN in it (a run that went non-finite) cannot be

@@ -67,7 +67,7 @@ func buildFigures(v *view, maxPoints int) ([]figure, error) {
 	v.MarksKey = marksCaption(v)
 	steps := []func(*figureSet, *view) error{
 		jointFigures, torqueFigure, bodyFigures, latencyFigures, forceFigures,
-		utilizationFigure, beltFigures, copFigure, phaseFigures, alarmFigure, stickFigure,
+		utilizationFigure, kneeFigure, beltFigures, copFigure, phaseFigures, alarmFigure, stickFigure,
 	}
 	for _, f := range steps {
 		if err := f(fs, v); err != nil {

@@ -78,6 +78,8 @@ type view struct {
 	// hipY and hipVX are the hip's height and forward speed; torso is
 	// the torso's absolute angle (nil for a compass walker).
 	hipY, hipVX, torso []float64
+	// knees are the knee angles and lock torques (nil without knees).
+	knees *kneeSeries
 	// kinetic and potential are the walker's energies, J.
 	kinetic, potential []float64
 	// pushX and pushY are the push force on the hip, N.

@@ -25,6 +25,11 @@ type stickPose struct {
 	// belt, on a treadmill run: the figure stands at its true place on
 	// the belt, whose whole length and end rollers are drawn (belt.go).
 	belt *stickBelt
+	// knee of each kneed leg (world, m), drawn where hasKnee is set: the
+	// leg is then a thigh from the hip to the knee and a shank from the
+	// knee to the foot.
+	knee    [2][2]float64
+	hasKnee [2]bool
 }
 
 // footArcHalfSpan is half the angle of foot arc drawn, rad. It is only
@@ -184,22 +189,30 @@ func (s *stickStrip) Plot(c draw.Canvas, p *plot.Plot) {
 		}
 		for leg := 0; leg < 2; leg++ {
 			r := ps.radius[leg]
+			// A kneed leg bends at its knee: the thigh runs from the hip to
+			// the knee, the shank from the knee on toward the foot.
+			top := ps.hip
+			if ps.hasKnee[leg] {
+				top = ps.knee[leg]
+				c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, top)})
+				c.DrawGlyph(draw.GlyphStyle{Color: legs[leg].Color, Radius: vg.Points(2.5), Shape: draw.CircleGlyph{}}, pt(ox, oy, o, top))
+			}
 			if r <= 0 {
-				c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ps.feet[leg])})
+				c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, top), pt(ox, oy, o, ps.feet[leg])})
 				continue
 			}
 			// The arc centre lies a radius above the contact point, along
 			// the ground normal; the leg axis runs from the hip through it.
 			nx, ny := -math.Sin(ps.slope), math.Cos(ps.slope)
 			ctr := [2]float64{ps.feet[leg][0] + r*nx, ps.feet[leg][1] + r*ny}
-			phi := math.Atan2(ctr[1]-ps.hip[1], ctr[0]-ps.hip[0])
+			phi := math.Atan2(ctr[1]-top[1], ctr[0]-top[0])
 			const k = 16
 			arc := make([]vg.Point, 0, k+1)
 			for i := 0; i <= k; i++ {
 				a := phi - footArcHalfSpan + 2*footArcHalfSpan*float64(i)/k
 				arc = append(arc, pt(ox, oy, o, [2]float64{ctr[0] + r*math.Cos(a), ctr[1] + r*math.Sin(a)}))
 			}
-			c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, ps.hip), pt(ox, oy, o, ctr)})
+			c.StrokeLines(legs[leg], []vg.Point{pt(ox, oy, o, top), pt(ox, oy, o, ctr)})
 			c.StrokeLines(legs[leg], arc)
 		}
 		hip := pt(ox, oy, o, ps.hip)

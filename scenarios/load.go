@@ -406,6 +406,10 @@ func (s *Scenario) PlantParams() (plant.Params, error) {
 		l := s.Leg(i)
 		p.Legs[i] = plant.Leg{Length: l.LengthM, Mass: l.MassKG, COMDist: l.COMM, Inertia: l.InertiaKGM2,
 			FootRadius: l.FootRadiusM, ArcOffset: l.ArcOffsetM}
+		if sh := l.Shank; sh != nil {
+			p.Legs[i].Shank = &plant.Shank{Length: sh.LengthM, Mass: sh.MassKG, COMDist: sh.COMM, Inertia: sh.InertiaKGM2,
+				Actuated: sh.KneeActuated, Latch: sh.KneeLatch}
+		}
 	}
 	if t := s.Plant.Torso; t != nil {
 		p.Torso = &plant.Torso{Mass: t.MassKG, COMDist: t.COMM, Inertia: t.InertiaKGM2}

@@ -94,10 +94,12 @@ type Plant struct {
 // Leg holds the parameters of one leg with its rigid circular-arc foot.
 type Leg struct {
 	// LengthM is the distance from the hip to the bottom of the foot with
-	// the leg vertical, m. Required; 0 < length_m ≤ 10.
+	// the leg vertical (with a shank: from the hip to the knee), m.
+	// Required; 0 < length_m ≤ 10.
 	LengthM float64 `yaml:"length_m"`
-	// MassKG is the leg mass, kg. 0 ≤ mass_kg ≤ 10000; 0 makes a massless
-	// leg (then inertia_kgm2 must be > 0).
+	// MassKG is the leg mass (with a shank: the thigh's), kg.
+	// 0 ≤ mass_kg ≤ 10000; 0 makes a massless leg (then inertia_kgm2 must
+	// be > 0).
 	MassKG float64 `yaml:"mass_kg"`
 	// COMM is the distance of the leg's centre of mass from the hip along
 	// the leg axis, m. 0 ≤ com_m ≤ length_m.
@@ -113,6 +115,61 @@ type Leg struct {
 	// ArcOffsetM is the fore–aft offset of the foot-arc centre from the leg
 	// axis, m, positive forward. |arc_offset_m| ≤ length_m.
 	ArcOffsetM float64 `yaml:"arc_offset_m"`
+	// Shank gives the leg a knee: length_m, mass_kg, com_m and inertia_kgm2
+	// above then describe the thigh (hip to knee), and the foot
+	// (foot_radius_m, arc_offset_m) is fixed to the shank, whose length
+	// bounds them instead of length_m. Optional; omit it for a straight
+	// leg.
+	Shank *Shank `yaml:"shank"`
+}
+
+// Shank is the lower leg of a leg with a knee, hinged at the thigh's end.
+// The knee angle is the shank's angle minus the thigh's: 0 with the leg
+// straight, which is the knee's stop (a knee cannot hyperextend), and
+// negative when the knee flexes. An actuated knee is a joint knee_left or
+// knee_right after the hips; its torque limit is
+// actuators.joint_torque_limits_nm.knee_left (or knee_right), and
+// actuators.torque_limit_nm otherwise.
+type Shank struct {
+	// LengthM is the distance from the knee to the bottom of the foot along
+	// the shank, m. Required; 0 < length_m ≤ 10.
+	LengthM float64 `yaml:"length_m"`
+	// MassKG is the shank mass (with the foot), kg. 0 ≤ mass_kg ≤ 10000.
+	MassKG float64 `yaml:"mass_kg"`
+	// COMM is the distance of the shank's centre of mass from the knee
+	// along the shank, m. 0 ≤ com_m ≤ length_m.
+	COMM float64 `yaml:"com_m"`
+	// InertiaKGM2 is the shank's moment of inertia about its centre of
+	// mass, kg·m². 0 ≤ inertia_kgm2 ≤ 10000; mass_kg·com_m² +
+	// inertia_kgm2 must be > 0.
+	InertiaKGM2 float64 `yaml:"inertia_kgm2"`
+	// KneeActuated gives the knee a torque actuator (a joint knee_left or
+	// knee_right the controller drives). Default false: a passive knee
+	// with its stop only.
+	KneeActuated bool `yaml:"knee_actuated"`
+	// KneeLatch holds the knee at its stop with torque of either sign: it
+	// engages when the knee strikes its stop and at the leg's heel strike,
+	// and releases when the foot leaves the ground. Default false: the stop
+	// only pushes, and a stance knee whose stop would have to pull buckles
+	// (the knee_buckle alarm).
+	KneeLatch bool `yaml:"knee_latch"`
+}
+
+// ShankOverride replaces single values of the shared shank for one side. A
+// field left out keeps the shared value.
+type ShankOverride struct {
+	// LengthM overrides legs.shank.length_m, m.
+	LengthM *float64 `yaml:"length_m"`
+	// MassKG overrides legs.shank.mass_kg, kg.
+	MassKG *float64 `yaml:"mass_kg"`
+	// COMM overrides legs.shank.com_m, m.
+	COMM *float64 `yaml:"com_m"`
+	// InertiaKGM2 overrides legs.shank.inertia_kgm2, kg·m².
+	InertiaKGM2 *float64 `yaml:"inertia_kgm2"`
+	// KneeActuated overrides legs.shank.knee_actuated.
+	KneeActuated *bool `yaml:"knee_actuated"`
+	// KneeLatch overrides legs.shank.knee_latch.
+	KneeLatch *bool `yaml:"knee_latch"`
 }
 
 // LegOverride replaces single values of the shared leg for one side. A field
@@ -130,6 +187,8 @@ type LegOverride struct {
 	FootRadiusM *float64 `yaml:"foot_radius_m"`
 	// ArcOffsetM overrides legs.arc_offset_m, m.
 	ArcOffsetM *float64 `yaml:"arc_offset_m"`
+	// Shank overrides values of legs.shank, which must be given.
+	Shank *ShankOverride `yaml:"shank"`
 }
 
 // Legs is the shared leg block with optional per-side overrides.

@@ -4,8 +4,11 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
+
+	"gaitrig/plant"
 )
 
 // TestBrokenFiles loads every file under testdata/broken and checks the
@@ -17,6 +20,20 @@ func TestBrokenFiles(t *testing.T) {
 		file string
 		want []string // substrings of the error, in order of appearance
 	}{
+		{"knee-foot-longer-than-shank.yaml", []string{
+			"knee-foot-longer-than-shank.yaml:9: plant.legs.foot_radius_m: 0.5 m is larger than the shank length 0.45 m; allowed 0 ≤ foot_radius_m ≤ shank.length_m",
+			"knee-foot-longer-than-shank.yaml:13: plant.legs.shank.com_m: 0.6 m is outside the shank of length 0.45 m",
+			"knee-foot-longer-than-shank.yaml:15: plant.legs.shank.knee_latch: expected true or false, got the text \"maybe\"",
+		}},
+		{"knee-shank-problems.yaml", []string{
+			"knee-shank-problems.yaml:10: plant.legs.shank.length_m: missing required field length_m in plant.legs.shank",
+			"knee-shank-problems.yaml:12: plant.legs.shank.knee_torque_nm: unknown field \"knee_torque_nm\"; allowed here: length_m, mass_kg, com_m, inertia_kgm2, knee_actuated, knee_latch",
+			"knee-shank-problems.yaml:15: plant.legs.left.shank.mass_kg: -1 kg is out of range",
+		}},
+		{"knee-override-without-shank.yaml", []string{
+			"knee-override-without-shank.yaml:11: plant.legs.right.shank: overrides a shank the legs do not have",
+			"knee-override-without-shank.yaml:23: actuators.joint_torque_limits_nm.knee_right: this walker has no joint \"knee_right\"; its joints are hip",
+		}},
 		{"foot-radius-too-large.yaml", []string{"foot-radius-too-large.yaml:9: plant.legs.foot_radius_m: 1.2 m is larger than the leg length 0.9 m; allowed 0 ≤ foot_radius_m ≤ length_m"}},
 		{"unknown-field.yaml", []string{"unknown-field.yaml:8: plant.legs.colour: unknown field \"colour\"; allowed here: length_m"}},
 		{"unit-missing-in-name.yaml", []string{"unit-missing-in-name.yaml:9: plant.legs.foot_radius: unknown field", "did you mean foot_radius_m? units are part of field names"}},
@@ -100,7 +117,8 @@ func TestBrokenFiles(t *testing.T) {
 	// Files whose problems are counted exactly: several reported together,
 	// nothing repeated or cascaded from a bad parent.
 	counts := map[string]int{"several-problems.yaml": 3, "bad-belt.yaml": 5, "two-belts.yaml": 3, "bad-harness.yaml": 3, "wrong-block-types.yaml": 2, "bad-faults.yaml": 3,
-		"utf16.yaml": 1, "utf16-without-bom.yaml": 1, "nested-too-deep.yaml": 1, "swing-foot-in-ground.yaml": 1}
+		"utf16.yaml": 1, "utf16-without-bom.yaml": 1, "nested-too-deep.yaml": 1, "swing-foot-in-ground.yaml": 1,
+		"knee-foot-longer-than-shank.yaml": 3, "knee-shank-problems.yaml": 3, "knee-override-without-shank.yaml": 2}
 	seen := map[string]bool{}
 	for _, tc := range tests {
 		seen[tc.file] = true
@@ -614,5 +632,49 @@ func BenchmarkRefuse(b *testing.B) {
 				}
 			}
 		})
+	}
+}
+
+// TestPlantParamsShanks checks that a shank block becomes plant shanks on
+// both legs, that a side's shank override changes that side only, and that
+// actuated knees add their joints after the hips.
+func TestPlantParamsShanks(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(base), "    foot_radius_m: 0.27\n",
+		"    foot_radius_m: 0.27\n    shank:\n      length_m: 0.5\n      mass_kg: 1\n      com_m: 0.2\n      inertia_kgm2: 0.01\n      knee_latch: true\n"+
+			"    right:\n      shank:\n        mass_kg: 1.5\n        knee_actuated: true\n", 1)
+	s, err := Parse("kneed.yaml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := s.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	l, r := p.Legs[0].Shank, p.Legs[1].Shank
+	if l == nil || r == nil {
+		t.Fatalf("shanks not built: %+v", p.Legs)
+	}
+	if want := (plant.Shank{Length: 0.5, Mass: 1, COMDist: 0.2, Inertia: 0.01, Latch: true}); *l != want {
+		t.Errorf("left shank %+v, want %+v", *l, want)
+	}
+	if want := (plant.Shank{Length: 0.5, Mass: 1.5, COMDist: 0.2, Inertia: 0.01, Actuated: true, Latch: true}); *r != want {
+		t.Errorf("right shank %+v, want %+v", *r, want)
+	}
+	if s.Plant.Legs.Shank.MassKG != 1 || s.Plant.Legs.Shank.KneeActuated {
+		t.Errorf("the override changed the shared shank: %+v", *s.Plant.Legs.Shank)
+	}
+	if got := s.JointNames(); !slices.Equal(got, []string{"hip", "knee_right"}) {
+		t.Errorf("joints %v, want [hip knee_right]", got)
+	}
+	m, err := plant.New(p, s.PlantOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := m.JointNames(); !slices.Equal(got, s.JointNames()) {
+		t.Errorf("plant joints %v, scenario joints %v", got, s.JointNames())
 	}
 }

@@ -155,10 +155,19 @@ func (c *checker) plant() {
 		if o == nil {
 			continue
 		}
+		if o.Shank != nil && base.Shank == nil {
+			c.errf("plant.legs."+side+".shank", "overrides a shank the legs do not have; give the shared shank in plant.legs.shank first")
+			continue
+		}
 		c.leg("plant.legs."+side, applyOverride(base, o), base)
 	}
 	left, right := c.s.Leg(0), c.s.Leg(1) // with the per-side overrides
 	total := p.HipMassKG + left.MassKG + right.MassKG
+	for _, l := range []Leg{left, right} {
+		if l.Shank != nil {
+			total += l.Shank.MassKG
+		}
+	}
 	if t := p.Torso; t != nil {
 		if c.require("plant.torso", "mass_kg", "torso mass, kg") {
 			c.num("plant.torso.mass_kg", t.MassKG, t.MassKG >= 0 && t.MassKG <= 1e4, "0 ≤ X ≤ 10000")
@@ -189,6 +198,20 @@ func applyOverride(l Leg, o *LegOverride) Leg {
 		set(&l.InertiaKGM2, o.InertiaKGM2)
 		set(&l.FootRadiusM, o.FootRadiusM)
 		set(&l.ArcOffsetM, o.ArcOffsetM)
+		if o.Shank != nil && l.Shank != nil {
+			sh := *l.Shank
+			set(&sh.LengthM, o.Shank.LengthM)
+			set(&sh.MassKG, o.Shank.MassKG)
+			set(&sh.COMM, o.Shank.COMM)
+			set(&sh.InertiaKGM2, o.Shank.InertiaKGM2)
+			if o.Shank.KneeActuated != nil {
+				sh.KneeActuated = *o.Shank.KneeActuated
+			}
+			if o.Shank.KneeLatch != nil {
+				sh.KneeLatch = *o.Shank.KneeLatch
+			}
+			l.Shank = &sh
+		}
 	}
 	return l
 }
@@ -223,19 +246,35 @@ func (c *checker) leg(path string, l, shared Leg) {
 	}
 	relational("com_m", l.COMM, l.COMM >= 0 && l.COMM <= l.LengthM,
 		fmt.Sprintf("%g m is outside the leg of length %g m; allowed 0 ≤ com_m ≤ length_m", l.COMM, l.LengthM))
+	// The foot is fixed to the lowest link: the shank when the leg has a
+	// knee, and its length bounds the foot.
+	footLen, footName, footField := l.LengthM, "leg length", "length_m"
+	if sh := l.Shank; sh != nil {
+		if !c.shank(path, l, shared) {
+			return
+		}
+		footLen, footName, footField = sh.LengthM, "shank length", "shank.length_m"
+	}
 	switch {
 	case l.FootRadiusM < 0:
 		relational("foot_radius_m", l.FootRadiusM, false,
-			fmt.Sprintf("%g m is negative; allowed 0 ≤ foot_radius_m ≤ length_m (0 is a point foot)", l.FootRadiusM))
-	case l.FootRadiusM > l.LengthM:
+			fmt.Sprintf("%g m is negative; allowed 0 ≤ foot_radius_m ≤ %s (0 is a point foot)", l.FootRadiusM, footField))
+	case l.FootRadiusM > footLen:
 		relational("foot_radius_m", l.FootRadiusM, false,
-			fmt.Sprintf("%g m is larger than the leg length %g m; allowed 0 ≤ foot_radius_m ≤ length_m", l.FootRadiusM, l.LengthM))
+			fmt.Sprintf("%g m is larger than the %s %g m; allowed 0 ≤ foot_radius_m ≤ %s", l.FootRadiusM, footName, footLen, footField))
 	}
-	relational("arc_offset_m", l.ArcOffsetM, math.Abs(l.ArcOffsetM) <= l.LengthM,
-		fmt.Sprintf("%g m is larger than the leg length %g m; allowed |arc_offset_m| ≤ length_m", l.ArcOffsetM, l.LengthM))
+	relational("arc_offset_m", l.ArcOffsetM, math.Abs(l.ArcOffsetM) <= footLen,
+		fmt.Sprintf("%g m is larger than the %s %g m; allowed |arc_offset_m| ≤ %s", l.ArcOffsetM, footName, footLen, footField))
 	switch {
 	case l.MassKG < 0 || l.InertiaKGM2 < 0 || c.isBad(where("mass_kg")) || c.isBad(where("inertia_kgm2")):
 		// already reported (out of range, or not a number)
+	case l.Shank != nil:
+		// The thigh angle has inertia from the shank's mass at the knee
+		// as well; the plant checks that sum (a thigh of no mass and no
+		// inertia on a shank with mass is a valid model).
+		if l.MassKG*l.COMM*l.COMM+l.InertiaKGM2+l.Shank.MassKG*l.LengthM*l.LengthM <= 0 {
+			c.errf(where("inertia_kgm2"), "the thigh and shank have no mass away from the hip and no inertia, so the thigh angle would have no inertia; give the thigh com_m > 0 or inertia_kgm2 > 0, or the shank a mass")
+		}
 	case l.MassKG == 0 && l.InertiaKGM2 == 0:
 		c.errf(where("inertia_kgm2"), "a massless leg (mass_kg 0) needs inertia_kgm2 > 0, or its angle would have no inertia "+
 			"and its swing would be undetermined; for the point-foot model approach the limit with a tiny mass at the foot "+
@@ -243,6 +282,41 @@ func (c *checker) leg(path string, l, shared Leg) {
 	case l.MassKG*l.COMM*l.COMM+l.InertiaKGM2 <= 0:
 		c.errf(where("inertia_kgm2"), "the leg has neither mass away from the hip nor inertia, so its angle would have no inertia; give com_m > 0 or inertia_kgm2 > 0")
 	}
+}
+
+// shank checks the shank of an effective leg l given at path (plant.legs
+// or plant.legs.left/right); shared is the shared leg block. It returns
+// false when the shank's length is unusable, so the foot cannot be checked
+// against it.
+func (c *checker) shank(path string, l, shared Leg) bool {
+	sh := l.Shank
+	sp := join(path, "shank")
+	where := func(name string) string {
+		if c.has(join(sp, name)) {
+			return join(sp, name)
+		}
+		return join("plant.legs.shank", name)
+	}
+	if path == "plant.legs" && !c.require(sp, "length_m", "knee to foot bottom, m") {
+		return false
+	}
+	c.num(where("mass_kg"), sh.MassKG, sh.MassKG >= 0 && sh.MassKG <= 1e4, "0 ≤ X ≤ 10000")
+	c.num(where("inertia_kgm2"), sh.InertiaKGM2, sh.InertiaKGM2 >= 0 && sh.InertiaKGM2 <= 1e4, "0 ≤ X ≤ 10000")
+	if !c.has(where("length_m")) {
+		return false // a missing shared length is reported once, in plant.legs.shank
+	}
+	c.num(where("length_m"), sh.LengthM, sh.LengthM > 0 && sh.LengthM <= 10, "0 < X ≤ 10")
+	if !(sh.LengthM > 0) || c.isBad(where("length_m")) {
+		return false
+	}
+	if p := where("com_m"); !(sh.COMM >= 0 && sh.COMM <= sh.LengthM) && !c.isBad(p) {
+		c.errf(p, "%g m is outside the shank of length %g m; allowed 0 ≤ com_m ≤ length_m", sh.COMM, sh.LengthM)
+	}
+	bad := sh.MassKG < 0 || sh.InertiaKGM2 < 0 || c.isBad(where("mass_kg")) || c.isBad(where("inertia_kgm2"))
+	if !bad && sh.MassKG*sh.COMM*sh.COMM+sh.InertiaKGM2 <= 0 {
+		c.errf(where("inertia_kgm2"), "the shank has neither mass away from the knee nor inertia, so its angle would have no inertia; give com_m > 0 with mass_kg > 0, or inertia_kgm2 > 0")
+	}
+	return true
 }
 
 func (c *checker) terrain() {
@@ -524,12 +598,20 @@ func (c *checker) sensors() {
 
 // JointNames returns the joint names of the scenario's walker, in the
 // plant's order: hip for a compass walker, hip_left and hip_right with a
-// torso.
+// torso, then knee_left and knee_right for actuated knees.
 func (s *Scenario) JointNames() []string {
+	names := []string{"hip"}
 	if s.Plant.Torso != nil {
-		return []string{"hip_left", "hip_right"}
+		names = []string{"hip_left", "hip_right"}
 	}
-	return []string{"hip"}
+	// Actuated knees follow the hips, left before right, as in
+	// plant.Model.JointNames.
+	for i, side := range [2]string{"left", "right"} {
+		if sh := s.Leg(i).Shank; sh != nil && sh.KneeActuated {
+			names = append(names, "knee_"+side)
+		}
+	}
+	return names
 }
 
 func (c *checker) actuators() {

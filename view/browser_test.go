@@ -384,3 +384,38 @@ func TestReplayControlRefusesBadInput(t *testing.T) {
 		t.Errorf("no reason given: %v", err)
 	}
 }
+
+// TestKneedReplayInChromium replays a passive kneed walker's run: the page
+// draws both legs, thigh and shank, while the frames come in.
+func TestKneedReplayInChromium(t *testing.T) {
+	b := browser(t)
+	sc, err := scenarios.LoadBuiltin("passive-kneed-downhill")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	if _, err := rig.Run(context.Background(), sc, rig.Options{RunDir: dir, MaxSteps: 4}); err != nil {
+		t.Fatal(err)
+	}
+	rec, err := view.LoadRecording(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	srv, err := view.New(view.Config{Setup: rec.Setup})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer srv.Close()
+	srv.Play(rec)
+	if err := b.Navigate(srv.URL(), callTimeout); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, b, `Number(document.getElementById("frames").dataset.count) >= 10`)
+	if n := inkPixels(t, b, "walker", leftLeg); n < 100 {
+		t.Errorf("the walker canvas has %d pixels of the left leg's colour: not drawn", n)
+	}
+	if n := inkPixels(t, b, "walker", rightLeg); n < 100 {
+		t.Errorf("the walker canvas has %d pixels of the right leg's colour: not drawn", n)
+	}
+	saveScreenshot(t, b, "replay-kneed.png")
+}

@@ -72,6 +72,7 @@ type frame struct {
 	Foot      [2][2]num    `json:"foot"`  // end of each leg axis
 	Arc       [2][2]num    `json:"arc"`   // centre of each foot arc
 	TorsoTop  [2]num       `json:"torso"` // equals Hip without a torso
+	Knee      [2][2]num    `json:"knee"`  // knee of a kneed leg (the middle of a straight leg's axis)
 	Angle     []num        `json:"angle"` // joint angles as sent, rad
 	Commanded []num        `json:"cmd"`   // N·m
 	Applied   []num        `json:"app"`   // N·m
@@ -101,7 +102,7 @@ func pt(p [2]float64) [2]num { return [2]num{num(p[0]), num(p[1])} }
 func (f *frame) setPose(p *plant.Pose) {
 	f.Hip, f.TorsoTop = pt(p.Hip), pt(p.TorsoTop)
 	for i := 0; i < 2; i++ {
-		f.Foot[i], f.Arc[i] = pt(p.Foot[i]), pt(p.ArcCentre[i])
+		f.Foot[i], f.Arc[i], f.Knee[i] = pt(p.Foot[i]), pt(p.ArcCentre[i]), pt(p.Knee[i])
 	}
 }
 

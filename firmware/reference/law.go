@@ -24,9 +24,9 @@ import "math"
 //     IMU: the torso, or the left leg of a compass walker.
 //   - Contacts: bit 0 left foot switch closed, bit 1 right foot switch.
 type Reading struct {
-	Joints    int        // joints the rig configured: 2 torso walker, 1 compass walker
-	Angle     [2]float64 // joint angles, rad
-	Rate      [2]float64 // joint rates, rad/s
+	Joints    int        // joints the rig configured: 2 torso walker, 1 compass walker, plus Knees
+	Angle     [2]float64 // hip joint angles, rad
+	Rate      [2]float64 // hip joint rates, rad/s
 	Pitch     float64    // IMU link's absolute angle, rad
 	PitchRate float64    // IMU link's absolute rate, rad/s
 	Contacts  uint8      // foot switches: bit 0 left, bit 1 right
@@ -35,6 +35,12 @@ type Reading struct {
 	// forward (protocol.State.BeltPosition).
 	OnBelt  bool
 	BeltPos float64
+	// Knees is the number of actuated knee joints that follow the hips
+	// (knee_left, knee_right): 0 or 2. KneeAngle and KneeRate hold their
+	// angles (θ_shank − θ_thigh: 0 straight at the stop, negative flexed)
+	// and rates, left then right.
+	Knees               int
+	KneeAngle, KneeRate [2]float64
 }
 
 // Gains are the constants of the control law. Every one is a plain number
@@ -76,6 +82,9 @@ type Gains struct {
 	// Belt is the belt term, which moves TargetSpeed to hold the walker's
 	// place on a treadmill (belt.go).
 	Belt BeltGains
+	// Knee holds the gains of the knee law (knees.go), used when the
+	// walker has two actuated knees.
+	Knee KneeGains
 }
 
 // DefaultGains are tuned for the demo walker of plant.DemoParams on level
@@ -113,6 +122,7 @@ func DefaultGains() Gains {
 		TorsoKd:       40,
 		TorqueLimit:   50,
 		Belt:          DefaultBeltGains(),
+		Knee:          DefaultKneeGains(),
 	}
 }
 
@@ -157,7 +167,7 @@ func DefaultGains() Gains {
 func Law(g *Gains, r *Reading, tau []float64) (stance int) {
 	gb := withBelt(g, r) // on a belt: the speed target holds the walker's place (belt.go)
 	g = &gb
-	switch r.Joints {
+	switch r.Joints - r.Knees {
 	case 2:
 		thT, wT := r.Pitch, r.PitchRate
 		th := [2]float64{r.Angle[0] + thT, r.Angle[1] + thT}
@@ -168,15 +178,17 @@ func Law(g *Gains, r *Reading, tau []float64) (stance int) {
 		tSt := g.TorsoKp*(thT-lean) + g.TorsoKd*wT - tSw
 		tau[st] = clamp(tSt, -g.TorqueLimit, g.TorqueLimit)
 		tau[sw] = clamp(tSw, -g.TorqueLimit, g.TorqueLimit)
+		kneeTorques(g, r, 2, st, e, th[sw], tau)
 		return st
 	case 1:
 		th := [2]float64{r.Pitch, r.Angle[0] + r.Pitch}
 		w := [2]float64{r.PitchRate, r.Rate[0] + r.PitchRate}
-		st, _, tSw := placeSwing(g, r.Contacts, th, w)
+		st, e, tSw := placeSwing(g, r.Contacts, th, w)
 		if st == 1 { // the left leg swings
 			tSw = -tSw
 		}
 		tau[0] = clamp(tSw, -g.TorqueLimit, g.TorqueLimit)
+		kneeTorques(g, r, 1, st, e, th[1-st], tau)
 		return st
 	}
 	for i := range tau {
@@ -218,6 +230,9 @@ func pickStance(contacts uint8, th, w [2]float64) int {
 	}
 	return 0
 }
+
+// MaxJoints is the most joints the law drives: two hips and two knees.
+const MaxJoints = 4
 
 func clamp(x, lo, hi float64) float64 { return math.Min(math.Max(x, lo), hi) }
 

@@ -10,10 +10,13 @@ import "gaitrig/plant"
 func ReadingOf(m *plant.Model, s *plant.State) Reading {
 	var r Reading
 	r.Joints = m.NumActuators()
-	if r.Joints > len(r.Angle) {
-		r.Joints = len(r.Angle)
+	r.Knees = kneeJoints(m.JointNames())
+	if r.Joints > len(r.Angle)+r.Knees {
+		r.Joints = len(r.Angle) + r.Knees
 	}
-	m.JointState(s, r.Angle[:r.Joints], r.Rate[:r.Joints])
+	var angle, rate [MaxJoints]float64
+	m.JointState(s, angle[:r.Joints], rate[:r.Joints])
+	r.setJoints(angle[:r.Joints], rate[:r.Joints])
 	r.Pitch, r.PitchRate = m.IMU(s)
 	for i := 0; i < 2; i++ {
 		if s.Mode[i] != plant.Free {
@@ -30,7 +33,7 @@ func ReadingOf(m *plant.Model, s *plant.State) Reading {
 func PlantPolicy(m *plant.Model, g Gains) plant.Policy {
 	return func(m *plant.Model, s *plant.State, in *plant.Input) {
 		r := ReadingOf(m, s)
-		var tau [2]float64
+		var tau [MaxJoints]float64
 		Law(&g, &r, tau[:r.Joints])
 		for i := 0; i < r.Joints; i++ {
 			in.Torque[i] = tau[i]

@@ -58,8 +58,13 @@ type Options struct {
 // finite reports whether every value of the reading is a finite number.
 func (r *Reading) finite() bool {
 	ok := func(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
-	for i := 0; i < r.Joints && i < len(r.Angle); i++ {
+	for i := 0; i < r.Joints-r.Knees && i < len(r.Angle); i++ {
 		if !ok(r.Angle[i]) || !ok(r.Rate[i]) {
+			return false
+		}
+	}
+	for i := 0; i < r.Knees && i < len(r.KneeAngle); i++ {
+		if !ok(r.KneeAngle[i]) || !ok(r.KneeRate[i]) {
 			return false
 		}
 	}
@@ -84,6 +89,7 @@ type Firmware struct {
 	g          Gains
 	base       Gains // the gains before a config lowered the torque limit
 	configured bool
+	knees      int           // actuated knees among the configured joints (see kneeJoints)
 	watchdog   time.Duration // from a config of version 2; 0 until then or in version 1
 	greeting   protocol.Message
 	out        protocol.Message
@@ -105,8 +111,8 @@ func New(o Options) (*Firmware, error) {
 	if o.Actuators == 0 {
 		o.Actuators = 2
 	}
-	if o.Actuators < 1 || o.Actuators > 2 {
-		return nil, fmt.Errorf("reference: %d actuators: the reference law drives 1 (compass) or 2 (torso walker)", o.Actuators)
+	if o.Actuators < 1 || o.Actuators > MaxJoints {
+		return nil, fmt.Errorf("reference: %d actuators: the reference law drives 1 (compass) or 2 (torso walker) hips and up to 2 knees", o.Actuators)
 	}
 	if o.Name == "" {
 		o.Name = "gaitrig-reference"
@@ -175,6 +181,7 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 		// rig must not stay with the next one.
 		f.g = f.base
 		f.configured = true
+		f.knees = kneeJoints(in.Config.JointNames[:o.Actuators])
 		f.watchdog = time.Duration(in.Config.WatchdogUS) * time.Microsecond
 		// The firmware keeps the rig's limits to itself: its own
 		// TorqueLimit clips first, and the rig clips again. A limit of 0
@@ -193,13 +200,15 @@ func (f *Firmware) Handle(in *protocol.Message) (answer *protocol.Message, end b
 		if !f.configured {
 			return nil, false, nil
 		}
-		r := Reading{Joints: o.Actuators, Pitch: float64(in.State.IMUPitch), PitchRate: float64(in.State.IMURate), Contacts: in.State.Contacts}
+		r := Reading{Joints: o.Actuators, Knees: f.knees, Pitch: float64(in.State.IMUPitch), PitchRate: float64(in.State.IMURate), Contacts: in.State.Contacts}
 		r.BeltPos, r.OnBelt = in.State.BeltPosition()
+		var angle, rate [MaxJoints]float64
 		for i := 0; i < o.Actuators; i++ {
-			r.Angle[i] = float64(in.State.Angle[i])
-			r.Rate[i] = float64(in.State.Rate[i])
+			angle[i] = float64(in.State.Angle[i])
+			rate[i] = float64(in.State.Rate[i])
 		}
-		var tau [2]float64
+		r.setJoints(angle[:o.Actuators], rate[:o.Actuators])
+		var tau [MaxJoints]float64
 		status := protocol.StatusOK
 		switch {
 		case !r.finite():

@@ -56,7 +56,8 @@ function drawWalker() {
   g.clearRect(0, 0, W, H);
   if (!setup || !last) return;
   const legs = setup.plant.legs;
-  const scale = H / (2.6 * Math.max(legs[0].length_m, legs[1].length_m)); // px per metre, to scale both ways
+  const reach = (l) => l.length_m + (l.shank ? l.shank.length_m : 0); // hip to foot, thigh and shank of a kneed leg
+  const scale = H / (2.6 * Math.max(reach(legs[0]), reach(legs[1]))); // px per metre, to scale both ways
   const camX = last.hip[0], camY = groundY(camX);
   const P = (x, y) => [W / 2 + (x - camX) * scale, H * 0.8 - (y - camY) * scale];
   // Ground: the polyline across the window, filled below.
@@ -98,10 +99,15 @@ function drawWalker() {
     const col = i === 0 ? COLORS.left : COLORS.right;
     const h = P(last.hip[0], last.hip[1]), ft = P(last.foot[i][0], last.foot[i][1]);
     g.strokeStyle = col; g.lineWidth = 4; g.lineCap = "round";
-    g.beginPath(); g.moveTo(h[0], h[1]); g.lineTo(ft[0], ft[1]); g.stroke();
+    // A kneed leg bends at its knee: thigh from the hip, shank on to the foot.
+    const kneed = legs[i].shank && last.knee;
+    const kn = kneed ? P(last.knee[i][0], last.knee[i][1]) : h;
+    g.beginPath(); g.moveTo(h[0], h[1]); g.lineTo(kn[0], kn[1]); g.lineTo(ft[0], ft[1]); g.stroke();
+    if (kneed) { g.fillStyle = col; g.beginPath(); g.arc(kn[0], kn[1], 5, 0, 2 * Math.PI); g.fill(); }
     const r = legs[i].foot_radius_m;
     if (r > 0) {
-      const ax = last.foot[i][0] - last.hip[0], ay = last.foot[i][1] - last.hip[1];
+      const top = kneed ? last.knee[i] : last.hip;
+      const ax = last.foot[i][0] - top[0], ay = last.foot[i][1] - top[1];
       const L = Math.hypot(ax, ay) || 1, u = [ax / L, ay / L];
       g.beginPath();
       for (let k = 0; k <= 24; k++) {
@@ -265,7 +271,8 @@ function onState(m) {
 function onSetup(s) {
   setup = s; verts = vertices();
   const p = s.plant;
-  weight = p.gravity_mps2 * (p.hip_mass_kg + p.legs[0].mass_kg + p.legs[1].mass_kg + (p.torso ? p.torso.mass_kg : 0));
+  const shanks = p.legs.reduce((m, l) => m + (l.shank ? l.shank.mass_kg : 0), 0);
+  weight = p.gravity_mps2 * (p.hip_mass_kg + p.legs[0].mass_kg + p.legs[1].mass_kg + shanks + (p.torso ? p.torso.mass_kg : 0));
   $("caution").textContent = s.caution;
   $("scenario").textContent = s.scenario;
   $("clock").textContent = s.clock + " · " + s.tick_hz + " Hz";

@@ -160,13 +160,24 @@ const char *ctl_configure(struct ctl_config *cfg, const struct proto_config *rig
 
     memset(cfg, 0, sizeof *cfg);
     cfg->gains = ctl_default_gains;
-    if (actuators != 1 && actuators != 2) {
-        return "firmware drives 1 or 2 joints";
+    if (actuators < 1 || actuators > 4) {
+        return "firmware drives 1 to 4 joints";
     }
     if (rig->joints != actuators) {
         return "joint count mismatch";
     }
-    if (actuators == 2) {
+    cfg->hips = (uint8_t)(actuators == 2 || actuators == 4 ? 2 : 1);
+    if (actuators > 2) {
+        /* A kneed walker: knee_left and knee_right besides the hips. */
+        int kl = find_joint(rig, "knee_left");
+        int kr = find_joint(rig, "knee_right");
+        if (kl < 0 || kr < 0) {
+            return "need joints knee_left, knee_right";
+        }
+        cfg->knee_slot[0] = (uint8_t)kl;
+        cfg->knee_slot[1] = (uint8_t)kr;
+    }
+    if (cfg->hips == 2) {
         int left = find_joint(rig, "hip_left");
         int right = find_joint(rig, "hip_right");
         if (left < 0 || right < 0) {
@@ -210,11 +221,11 @@ void ctl_step(const struct ctl_config *cfg, const struct proto_state *s, struct 
 
     ctl_safe(cfg, out);
     memset(&r, 0, sizeof r);
-    r.joints = cfg->joints;
+    r.joints = cfg->hips;
     r.pitch = (double)s->imu_pitch;
     r.pitch_rate = (double)s->imu_rate;
     r.contacts = s->contacts;
-    for (i = 0; i < cfg->joints; i++) {
+    for (i = 0; i < cfg->hips; i++) {
         r.angle[i] = (double)s->angle[cfg->slot[i]];
         r.rate[i] = (double)s->rate[cfg->slot[i]];
     }
@@ -224,7 +235,8 @@ void ctl_step(const struct ctl_config *cfg, const struct proto_state *s, struct 
         return;
     }
     ctl_law(&cfg->gains, &r, tau);
-    for (i = 0; i < cfg->joints; i++) {
+    /* Knee slots keep the zero ctl_safe wrote: the knees stay passive. */
+    for (i = 0; i < cfg->hips; i++) {
         out->torque[cfg->slot[i]] = (float)tau[i];
     }
 }

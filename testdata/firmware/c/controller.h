@@ -58,11 +58,17 @@ struct ctl_config {
     uint8_t slot[2];        /* wire slot of law joint 0 and 1 */
     uint32_t watchdog_us;   /* the rig's watchdog, from the config */
     uint8_t lockstep;       /* 1 lockstep, 0 wall-clock, from the config */
+    uint8_t hips;           /* joints the law drives: 1 or 2 (the rest are knees) */
+    uint8_t knee_slot[2];   /* wire slot of knee_left, knee_right (kneed walkers) */
 };
 
 /* ctl_configure checks the rig's configuration against the actuator count
  * the firmware announced and finds the joints by name: "hip_left" and
- * "hip_right" for 2 actuators, "hip" for 1, in any slot order. It returns
+ * "hip_right" for 2 actuators, "hip" for 1, in any slot order. A kneed
+ * walker's actuated knees add "knee_left" and "knee_right": 4 actuators
+ * (torso walker) or 3 (compass walker). This firmware leaves the knees
+ * passive: it answers zero torque on them, and the walker's knee stops and
+ * latches hold the legs straight where they must. It returns
  * NULL on success, or a short reason (at most 32 bytes, so it fits a stop
  * frame) why this firmware cannot drive the rig. As in the Go reference
  * firmware, the smallest configured torque limit replaces the law's own

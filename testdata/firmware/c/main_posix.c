@@ -7,11 +7,13 @@
  * protocol (protocol.c) and the control law (controller.c) do no I/O, so a
  * port to a microcontroller replaces only this file (see README.md).
  *
- * Usage: gaitrig-cfw [-v] [-j 1|2] [--once] TTY
+ * Usage: gaitrig-cfw [-v] [-j 1|2|3|4] [--once] TTY
  *
  *   -v     also log the configuration (refused frames are always logged)
  *   -j N   actuators to announce: 2 (default, a walker with a torso and
- *          joints hip_left, hip_right) or 1 (a compass walker, joint hip)
+ *          joints hip_left, hip_right) or 1 (a compass walker, joint hip);
+ *          4 or 3 for the same walkers with actuated knees (knee_left,
+ *          knee_right), which this firmware leaves passive (zero torque)
  *   --once exit after the first stop instead of greeting again (a one-shot
  *          build for tests that read the exit status and counters of one
  *          run; the conformance battery fails it on greets_after_restart)
@@ -82,7 +84,7 @@ struct counters {
 struct link {
     int fd;
     int verbose;
-    int actuators; /* announced in the greeting: 2 torso walker, 1 compass */
+    int actuators; /* announced in the greeting: 2 torso walker, 1 compass, +2 with knees */
     int once;      /* --once: exit after the first stop instead of greeting again */
     struct counters n;
     uint8_t rx[RX_LIMIT];
@@ -618,7 +620,7 @@ static int run(struct link *l)
 
 static int usage(const char *prog)
 {
-    fprintf(stderr, "usage: %s [-v] [-j 1|2] [--once] TTY\n", prog);
+    fprintf(stderr, "usage: %s [-v] [-j 1|2|3|4] [--once] TTY\n", prog);
     return 2;
 }
 
@@ -640,8 +642,12 @@ int main(int argc, char **argv)
                 l.actuators = 1;
             } else if (strcmp(argv[i], "2") == 0) {
                 l.actuators = 2;
+            } else if (strcmp(argv[i], "3") == 0) {
+                l.actuators = 3;
+            } else if (strcmp(argv[i], "4") == 0) {
+                l.actuators = 4;
             } else {
-                fprintf(stderr, "cfw: -j %s: this firmware drives 1 or 2 joints\n", argv[i]);
+                fprintf(stderr, "cfw: -j %s: this firmware drives 1 to 4 joints\n", argv[i]);
                 return usage(argv[0]);
             }
         } else if (argv[i][0] == '-' || path != NULL) {

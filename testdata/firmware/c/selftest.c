@@ -563,6 +563,72 @@ static void test_messages(void)
 
 /* ctl_link_state against values worked out by hand from its rule: quiet
  * beyond one watchdog, lost after 20 watchdogs but never before 10 s. */
+/* A kneed torso walker's four joints, in a shuffled slot order: the hips
+ * get the law's torques as in a two-joint configuration, the knees zero
+ * (this firmware leaves them passive); four joints without knee names, or
+ * five, are refused. */
+static void test_knees(void)
+{
+    struct proto_config rig, rig2;
+    struct ctl_config cfg, cfg2;
+    struct proto_state st, st2;
+    struct proto_command cmd, cmd2;
+    int i;
+
+    memset(&rig, 0, sizeof rig);
+    rig.tick_hz = 1000;
+    rig.lockstep = 1;
+    rig.watchdog_us = 50000;
+    rig.joints = 4;
+    strcpy(rig.joint_names[0], "knee_right");
+    strcpy(rig.joint_names[1], "hip_left");
+    strcpy(rig.joint_names[2], "knee_left");
+    strcpy(rig.joint_names[3], "hip_right");
+    for (i = 0; i < 4; i++) {
+        rig.torque_limit[i] = 40.0f;
+    }
+    check(ctl_configure(&cfg, &rig, 4) == NULL, "a kneed torso walker's four joints are taken");
+    check(cfg.hips == 2 && cfg.joints == 4, "four joints: two hips for the law");
+    memset(&rig2, 0, sizeof rig2);
+    rig2.tick_hz = 1000;
+    rig2.lockstep = 1;
+    rig2.watchdog_us = 50000;
+    rig2.joints = 2;
+    strcpy(rig2.joint_names[0], "hip_left");
+    strcpy(rig2.joint_names[1], "hip_right");
+    rig2.torque_limit[0] = rig2.torque_limit[1] = 40.0f;
+    check(ctl_configure(&cfg2, &rig2, 2) == NULL, "the torso walker's two joints are taken");
+
+    memset(&st, 0, sizeof st);
+    st.joints = 4;
+    st.contacts = 1;
+    st.angle[1] = 0.35f; /* hip_left */
+    st.angle[3] = -0.4f; /* hip_right */
+    st.angle[0] = -0.3f; /* knee_right, flexed */
+    st.rate[1] = -0.9f;
+    st.rate[3] = 0.5f;
+    st.imu_pitch = -0.1f;
+    memset(&st2, 0, sizeof st2);
+    st2.joints = 2;
+    st2.contacts = 1;
+    st2.angle[0] = 0.35f;
+    st2.angle[1] = -0.4f;
+    st2.rate[0] = -0.9f;
+    st2.rate[1] = 0.5f;
+    st2.imu_pitch = -0.1f;
+    ctl_step(&cfg, &st, &cmd);
+    ctl_step(&cfg2, &st2, &cmd2);
+    check(cmd.joints == 4 && cmd.status == 0, "a kneed state is answered with four torques");
+    check(cmd.torque[1] == cmd2.torque[0] && cmd.torque[3] == cmd2.torque[1] && cmd2.torque[0] != 0.0f,
+          "the hips of a kneed walker get the torso walker's torques");
+    check(cmd.torque[0] == 0.0f && cmd.torque[2] == 0.0f, "the knees are left passive (zero torque)");
+
+    strcpy(rig.joint_names[0], "ankle_right");
+    check(ctl_configure(&cfg, &rig, 4) != NULL, "four joints without knee_right are refused");
+    rig.joints = 5;
+    check(ctl_configure(&cfg, &rig, 5) != NULL, "five joints are refused");
+}
+
 static void test_link(void)
 {
     struct ctl_config c;
@@ -787,6 +853,7 @@ int main(int argc, char **argv)
         test_packing();
         test_messages();
         test_link();
+        test_knees();
         printf("%s: %d checks, %d failed\n", failures ? "FAIL" : "ok", checks, failures);
         return failures ? 1 : 0;
     }
