@@ -26,6 +26,10 @@ const (
 	// DefaultMarginGrid is the number of coarse grid points per axis
 	// before the bisection (our choice).
 	DefaultMarginGrid = 6
+	// DefaultMarginRetries is how many more times a run the host spoiled
+	// (HostTrouble) is made before its value is "not measured": the
+	// suite's command-line default (gaitrig suite --retries).
+	DefaultMarginRetries = 2
 )
 
 // Axis is one condition the margin search varies. Value Safe is the
@@ -48,7 +52,21 @@ type MarginRun struct {
 	Reason  string         `json:"reason,omitempty"`
 	Steps   int            `json:"steps"`
 	Dir     string         `json:"run_dir"`
+	// Attempts is how many times the run was made (more than 1 when the
+	// host spoiled earlier attempts; each has its own run folder,
+	// RUN.retry-K).
+	Attempts int `json:"attempts"`
+	// NotMeasured, when not empty, says why this value decides nothing:
+	// the host spoiled every attempt (outcome invalid, or a link that
+	// could not be opened) or the run could not be made at all. Such a
+	// value is neither a pass nor a failure.
+	NotMeasured string `json:"not_measured,omitempty"`
 }
+
+// passed and failed tell a measured pass and a measured failure; a run
+// that is NotMeasured is neither.
+func (r MarginRun) passed() bool { return r.NotMeasured == "" && r.Outcome == record.Pass }
+func (r MarginRun) failed() bool { return r.NotMeasured == "" && r.Outcome != record.Pass }
 
 // AxisMargin is the result of one axis.
 type AxisMargin struct {
@@ -57,8 +75,15 @@ type AxisMargin struct {
 	Safe float64 `json:"safe"`
 	Far  float64 `json:"far"`
 	// Limit is the last passing value found (Safe when the scenario as
-	// written fails; Far when every value passed).
+	// written fails; Far when every value passed; NaN, null in JSON, when
+	// the axis is NotMeasured).
 	Limit float64 `json:"limit"`
+	// NotMeasured, when not empty, says why the axis has no limit: a run
+	// the search needed (the scenario as written, a grid point up to the
+	// first failure, every grid point when none failed, or a bisection
+	// point) was spoiled by the host on every attempt. A limit is never
+	// decided by such a run.
+	NotMeasured string `json:"not_measured,omitempty"`
 	// Reached says the search found a failure (false: passed up to Far).
 	Reached bool `json:"reached"`
 	// NotMonotone is set when a grid point beyond the first failure passed.
@@ -112,8 +137,8 @@ func Required(m scenarios.Margins, axis string) float64 {
 // as far from Safe, in the direction of Far, as the requirement.
 func (am *AxisMargin) judge(required float64) {
 	am.Required = required
-	am.Meets = am.Error == ""
-	if math.IsNaN(required) || am.Error != "" {
+	am.Meets = am.Error == "" && am.NotMeasured == ""
+	if math.IsNaN(required) || !am.Meets {
 		return
 	}
 	dir := 1.0
@@ -124,6 +149,56 @@ func (am *AxisMargin) judge(required float64) {
 		am.Meets = false
 		am.Shortfall = -d
 	}
+}
+
+// notMeasured marks the axis as having no limit, for reason.
+func (am *AxisMargin) notMeasured(reason string) {
+	am.NotMeasured = reason
+	am.Limit = math.NaN()
+	am.Reached = false
+	am.LastPass, am.FirstFail = nil, nil
+}
+
+// bracket reads the coarse grid (safe end first): it returns the last
+// measured pass and the first measured failure after it for the
+// bisection, or ok false when the grid decides the axis by itself (every
+// point passed: the limit is Far; the scenario as written fails) or
+// cannot decide it (a point the host spoiled where the limit could lie).
+// A point beyond the first failure that passes flags the axis not
+// monotone; one beyond it that was not measured changes nothing.
+func (am *AxisMargin) bracket() (pass, fail MarginRun, ok bool) {
+	first := -1
+	for g, r := range am.Grid {
+		if r.NotMeasured != "" {
+			// Every point up to the first failure must be measured: an
+			// unmeasured one could have been the first failure.
+			am.notMeasured(fmt.Sprintf("grid point %g %s: %s", r.Value, am.Unit, r.NotMeasured))
+			return pass, fail, false
+		}
+		if r.failed() {
+			first = g
+			break
+		}
+	}
+	switch first {
+	case -1:
+		am.Limit = am.Far
+		am.LastPass = &am.Grid[len(am.Grid)-1]
+		return pass, fail, false
+	case 0:
+		am.Limit = am.Safe
+		am.Reached = true
+		am.FirstFail = &am.Grid[0]
+		am.Error = "the scenario as written fails: no margin"
+		return pass, fail, false
+	}
+	am.Reached = true
+	for _, r := range am.Grid[first+1:] {
+		if r.passed() {
+			am.NotMonotone = true
+		}
+	}
+	return am.Grid[first-1], am.Grid[first], true
 }
 
 // Margins searches the limits of a scenario's axes. The zero value of a
@@ -144,6 +219,9 @@ type Margins struct {
 	Seeds int
 	// Runner runs one job; default rig.Run.
 	Runner RunFunc
+	// Retries is how many more times a run the host spoiled is made
+	// (Suite.Retries); 0 means DefaultMarginRetries, negative none.
+	Retries int
 }
 
 // Nominal is what the margin search measures on the scenario as written
@@ -328,7 +406,18 @@ func (m Margins) withDefaults() Margins {
 	if m.Runner == nil {
 		m.Runner = rig.Run
 	}
+	if m.Retries == 0 {
+		m.Retries = DefaultMarginRetries
+	}
 	return m
+}
+
+// runAll runs jobs and makes those the host spoiled again, up to
+// m.Retries times (Suite.retry: each attempt in a run folder of its own).
+func (m Margins) runAll(ctx context.Context, jobs []Job) ([]Done, []int) {
+	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	attempts := Suite{Jobs: m.Jobs, Runner: m.Runner, Retries: max(m.Retries, 0)}.retry(ctx, jobs, done)
+	return done, attempts
 }
 
 // MeasureNominal runs the scenario as written once and returns when the
@@ -339,10 +428,20 @@ func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (No
 	var steps []hil.StepInfo
 	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-margins-nominal"),
 		OnStep: func(s hil.StepInfo) { steps = append(steps, s) }}}
-	d := Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0]
-	run := marginRun(0, d)
-	if d.Err != nil {
-		return Nominal{}, run, d.Err
+	// Each attempt starts counting afresh: the steps are the last
+	// attempt's, the one whose outcome is the run's.
+	runner := func(ctx context.Context, sc *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		steps = steps[:0]
+		return m.Runner(ctx, sc, o)
+	}
+	done, attempts := Margins{Jobs: 1, Runner: runner, Retries: m.Retries}.runAll(ctx, []Job{j})
+	d := done[0]
+	run := marginRun(0, d, attempts[0])
+	if err := ctx.Err(); err != nil {
+		return Nominal{}, run, err
+	}
+	if run.NotMeasured != "" {
+		return Nominal{}, run, fmt.Errorf("margins: the scenario as written could not be measured: %s", run.NotMeasured)
 	}
 	if len(steps) < PushStep+1 {
 		return Nominal{}, run, fmt.Errorf("margins: the scenario as written walked %d steps (%s: %s); the push axes need at least %d", len(steps), run.Outcome, run.Reason, PushStep+1)
@@ -409,41 +508,22 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 			jobs = append(jobs, js...)
 		}
 	}
-	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	done, attempts := m.runAll(ctx, jobs)
+	if err := ctx.Err(); err != nil {
+		return out, err
+	}
 	per := m.seeds()
 	for a, ax := range axes {
 		am := &out[a]
 		for g := 0; g < m.Grid; g++ {
 			k := (a*m.Grid + g) * per
 			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
-			am.Grid = append(am.Grid, worstOf(v, done[k:k+per]))
+			am.Grid = append(am.Grid, worstOf(v, done[k:k+per], attempts[k:k+per]))
 		}
-		first := -1
-		for g, r := range am.Grid {
-			if r.Outcome != record.Pass {
-				first = g
-				break
-			}
-		}
-		switch first {
-		case -1:
-			am.Limit = ax.Far
-			am.LastPass = &am.Grid[m.Grid-1]
-			continue
-		case 0:
-			am.Limit = ax.Safe
-			am.Reached = true
-			am.FirstFail = &am.Grid[0]
-			am.Error = "the scenario as written fails: no margin"
+		pass, fail, ok := am.bracket()
+		if !ok {
 			continue
 		}
-		am.Reached = true
-		for _, r := range am.Grid[first+1:] {
-			if r.Outcome == record.Pass {
-				am.NotMonotone = true
-			}
-		}
-		pass, fail := am.Grid[first-1], am.Grid[first]
 		width := m.Tolerance * math.Abs(ax.Far-ax.Safe)
 		for i := 0; math.Abs(fail.Value-pass.Value) > width; i++ {
 			if err := ctx.Err(); err != nil {
@@ -454,13 +534,26 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 			if err != nil {
 				return nil, err
 			}
-			r := worstOf(v, Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, js))
+			d, n := m.runAll(ctx, js)
+			if err := ctx.Err(); err != nil {
+				return out, err
+			}
+			r := worstOf(v, d, n)
 			am.Bisection = append(am.Bisection, r)
+			if r.NotMeasured != "" {
+				// The bracket cannot be narrowed past a value nobody
+				// measured: no limit rather than one it might decide.
+				am.notMeasured(fmt.Sprintf("bisection point %g %s: %s", v, ax.Unit, r.NotMeasured))
+				break
+			}
 			if r.Outcome == record.Pass {
 				pass = r
 			} else {
 				fail = r
 			}
+		}
+		if am.NotMeasured != "" {
+			continue
 		}
 		am.Limit = pass.Value
 		am.Tolerance = math.Abs(fail.Value - pass.Value)
@@ -491,7 +584,13 @@ func MarginsPage(scenario, dir string, res []AxisMargin) report.MarginsPage {
 		if a.FirstFail != nil {
 			ra.FirstFailDir, ra.FailReason = a.FirstFail.Dir, string(a.FirstFail.Outcome)+": "+a.FirstFail.Reason
 		}
+		if a.NotMeasured != "" {
+			ra.FailReason = "not measured: " + a.NotMeasured
+		}
 		for _, r := range append(append([]MarginRun(nil), a.Grid...), a.Bisection...) {
+			if r.NotMeasured != "" {
+				continue // neither a pass nor a failure: not drawn as either
+			}
 			ra.Points = append(ra.Points, report.MarginPoint{Value: r.Value, Steps: r.Steps, Pass: r.Outcome == record.Pass})
 		}
 		pg.Axes = append(pg.Axes, ra)
@@ -507,6 +606,11 @@ func MarginsSuite(scenario string, res []AxisMargin) report.Suite {
 	for _, a := range res {
 		c := report.Case{Name: a.Axis, Class: scenario, Detail: fmt.Sprintf("limit %g %s", a.Limit, a.Unit)}
 		switch {
+		case a.NotMeasured != "":
+			// The host's fault, not the firmware's: an <error>, as the
+			// suite reports infrastructure.
+			c.Error = "not measured: " + a.NotMeasured
+			c.Detail = "no limit"
 		case a.Error != "":
 			c.Failure = a.Error
 		case !a.Meets:
@@ -545,25 +649,48 @@ func (m Margins) jobs(sc *scenarios.Scenario, ax Axis, v float64, tag string) ([
 }
 
 // worstOf is the run that stands for one value run with several seeds:
-// the worst seed's (a failure when any failed).
-func worstOf(v float64, done []Done) MarginRun {
-	runs := make([]SeedRun, len(done))
+// the worst measured failure when any seed failed; else, when the host
+// spoiled a seed on every attempt, that seed's run (the value is not
+// measured); else the worst pass. attempts[i] is how many times run i
+// was made.
+func worstOf(v float64, done []Done, attempts []int) MarginRun {
+	runs := make([]MarginRun, len(done))
+	seeds := make([]SeedRun, len(done))
+	unmeasured := -1
 	for i, d := range done {
-		r := marginRun(v, d)
-		runs[i] = SeedRun{Outcome: r.Outcome, Steps: r.Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+		runs[i] = marginRun(v, d, attempts[i])
+		seeds[i] = SeedRun{Outcome: runs[i].Outcome, Steps: runs[i].Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+		if runs[i].NotMeasured != "" {
+			seeds[i].Outcome = record.Invalid // worstRun passes over it
+			if unmeasured < 0 {
+				unmeasured = i
+			}
+		}
 	}
-	return marginRun(v, done[worstRun(runs)])
+	w := worstRun(seeds)
+	if runs[w].failed() || unmeasured < 0 {
+		return runs[w]
+	}
+	return runs[unmeasured]
 }
 
-func marginRun(v float64, d Done) MarginRun {
-	r := MarginRun{Value: v, Dir: d.Result.Dir}
+// marginRun is the record of one value's run after attempts attempts.
+func marginRun(v float64, d Done, attempts int) MarginRun {
+	r := MarginRun{Value: v, Dir: d.Result.Dir, Attempts: attempts}
 	if d.Err != nil {
 		r.Outcome = record.Aborted
 		r.Reason = d.Err.Error()
+		r.NotMeasured = "could not run: " + d.Err.Error()
+		if HostTrouble(d) {
+			r.NotMeasured = fmt.Sprintf("host trouble on all %d attempts: %v", attempts, d.Err)
+		}
 		return r
 	}
 	r.Outcome = d.Result.Summary.Outcome
 	r.Reason = d.Result.Summary.Reason
 	r.Steps = d.Result.Summary.Steps
+	if HostTrouble(d) {
+		r.NotMeasured = fmt.Sprintf("host trouble on all %d attempts: outcome %s (%s)", attempts, r.Outcome, r.Reason)
+	}
 	return r
 }

@@ -27,7 +27,9 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 		fmt.Fprintf(stdout, "  %-20s %10s %10s %-6s %s\n", "margin", "measured", "required", "unit", "result")
 		for _, a := range res.Margins {
 			verdict := "meets"
-			if a.Error != "" {
+			if a.NotMeasured != "" {
+				verdict = "NOT MEASURED: " + a.NotMeasured
+			} else if a.Error != "" {
 				verdict = "FAIL: " + a.Error
 			} else if !a.Meets {
 				verdict = fmt.Sprintf("FAIL: short by %.4g %s", a.Shortfall, a.Unit)

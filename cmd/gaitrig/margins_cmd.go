@@ -35,21 +35,32 @@ again. The scenario's margins block chooses the axes and sets the minima a
 lab requires (min_friction_ratio, min_push_ns, min_added_latency_ms,
 min_slope_deg); the table says which margin misses its minimum and by how
 much. Writes margins.html (one survival plot per axis), junit.xml and
-margins.json into the search's folder. Exit code 0 when every axis was
-searched and meets its minimum, 1 otherwise.`, stdout, stderr)
+margins.json into the search's folder. A run the host spoiled (outcome
+invalid, a link that would not open) is made again up to --retries times; a
+value still spoiled decides nothing, and an axis that needed it is reported
+"not measured" with the reason instead of a limit. Exit code 0 when every
+axis was searched and meets its minimum, 1 when one misses it or has no
+margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 	link := c.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
 	out := c.String("out", "runs", "parent folder for the run folders")
 	asJSON := c.jsonFlag()
 	tol := c.Float64("tolerance", 0, "bisection stops at this fraction of the axis range (default: the scenario's margins.tolerance, 0.02)")
 	jobs := c.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
 	seeds := c.Int("seeds", 1, "run every value with N seeds of noise, drops and latency; a value passes only when all pass")
+	retries := c.Int("retries", batch.DefaultMarginRetries, "make a run the host spoiled again up to `N` times")
 	if done, code := c.parse(args); done {
 		return code
 	}
 	if c.NArg() != 1 {
 		return c.usageError("want exactly one SCENARIO")
 	}
-	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds}
+	if *retries < 0 {
+		return c.usageError("--retries must be 0 or more, got %d", *retries)
+	}
+	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds, Retries: *retries}
+	if *retries == 0 {
+		m.Retries = -1 // none (the zero value of Margins.Retries is the default)
+	}
 	if *link != "" {
 		spec, err := rig.ParseLink(*link)
 		if err != nil {
@@ -102,6 +113,9 @@ searched and meets its minimum, 1 otherwise.`, stdout, stderr)
 			if a.Error != "" {
 				fmt.Fprintf(stdout, "    %s\n", a.Error)
 			}
+			if a.NotMeasured != "" {
+				fmt.Fprintf(stdout, "    NOT MEASURED (the host, not the firmware): %s\n", a.NotMeasured)
+			}
 			if a.FrictionRatio > 0 {
 				fmt.Fprintf(stdout, "    μ_s,min %.4g; friction ratio μ_s/μ_s,min %.3g\n", a.MuStaticMin, a.FrictionRatio)
 			}
@@ -125,9 +139,16 @@ searched and meets its minimum, 1 otherwise.`, stdout, stderr)
 		fmt.Fprintln(stdout)
 		fmt.Fprintln(stdout, record.Caution)
 	}
+	// A missed minimum is the firmware's (1); an axis the host kept
+	// from measuring, with nothing missed, is the host's (3).
 	code := exitPass
 	for _, a := range res {
-		if !a.Meets {
+		if a.NotMeasured != "" && code == exitPass {
+			code = exitInvalid
+		}
+	}
+	for _, a := range res {
+		if !a.Meets && a.NotMeasured == "" {
 			code = exitFail
 		}
 	}
