@@ -43,6 +43,58 @@ type Axis struct {
 	Safe, Far float64
 	// Apply changes the variant for value v.
 	Apply func(s *scenarios.Scenario, v float64)
+	// SafeOf, when not nil, reads Safe from the scenario as written (an
+	// axis whose start is a value the scenario sets, such as its
+	// encoder's resolution); nil keeps Safe.
+	SafeOf func(s *scenarios.Scenario) float64
+	// Geometric spaces the grid and halves the bracket in the logarithm
+	// of the value (for an axis that spans orders of magnitude, such as a
+	// resolution); the tolerance is then a fraction of the logarithmic
+	// range. Safe and Far must both be positive.
+	Geometric bool
+	// Step, when positive, makes every value a multiple of it (a count);
+	// the bisection ends when the bracket holds no other multiple.
+	Step float64
+}
+
+// at is the grid value a fraction f of the way from Safe to Far.
+func (a Axis) at(f float64) float64 {
+	var v float64
+	if a.Geometric {
+		v = a.Safe * math.Pow(a.Far/a.Safe, f)
+	} else {
+		v = a.Safe + (a.Far-a.Safe)*f
+	}
+	return a.quantize(v)
+}
+
+// mid is the bisection's next value between p and q (p or q itself when
+// no other value lies between them).
+func (a Axis) mid(p, q float64) float64 {
+	if a.Geometric {
+		return a.quantize(math.Sqrt(p * q))
+	}
+	return a.quantize(0.5 * (p + q))
+}
+
+// wider reports whether the bracket p … q is wider than tol of the
+// axis's range (measured in the logarithm for a geometric axis) and
+// still holds a value to try.
+func (a Axis) wider(p, q, tol float64) bool {
+	if m := a.mid(p, q); m == p || m == q {
+		return false
+	}
+	if a.Geometric {
+		return math.Abs(math.Log(q/p)) > tol*math.Abs(math.Log(a.Far/a.Safe))
+	}
+	return math.Abs(q-p) > tol*math.Abs(a.Far-a.Safe)
+}
+
+func (a Axis) quantize(v float64) float64 {
+	if a.Step > 0 {
+		return a.Step * math.Round(v/a.Step)
+	}
+	return v
 }
 
 // MarginRun is a run that decided a limit, or a grid point.
@@ -273,11 +325,7 @@ func DefaultAxes(n Nominal) []Axis {
 			n.IMUPitchNoiseRad = v * math.Max(n.IMUPitchNoiseRad, TypicalAngleNoiseRad)
 			n.IMURateNoiseRadps = v * math.Max(n.IMURateNoiseRadps, TypicalRateNoiseRadps)
 		}},
-		// Encoder resolution in bits (counts per revolution = 2^bits), from
-		// the 12-bit default of the scenario loader down to 4 bits.
-		Axis{Name: "encoder_bits", Unit: "bit", Safe: 12, Far: 4, Apply: func(s *scenarios.Scenario, v float64) {
-			s.Sensors.EncoderCountsPerRev = int(math.Round(math.Exp2(v)))
-		}},
+		EncoderAxis(),
 		Axis{Name: "torque_fraction", Unit: "×", Safe: 1, Far: 0.05, Apply: func(s *scenarios.Scenario, v float64) {
 			if s.Actuators.TorqueLimitNM > 0 {
 				s.Actuators.TorqueLimitNM *= v
@@ -315,6 +363,18 @@ func SelectAxes(all []Axis, names []string) ([]Axis, error) {
 	return out, nil
 }
 
+// EncoderAxis is the encoder resolution in counts per revolution, from the
+// scenario's (the loader's default 4096, 12 bits) down to 16 (4 bits),
+// searched geometrically in whole counts: a resolution matters by its
+// ratio, so a linear grid would spend its points on fine encoders.
+func EncoderAxis() Axis {
+	return Axis{Name: "encoder_counts", Unit: "counts/rev", Safe: 4096, Far: 16, Geometric: true, Step: 1,
+		SafeOf: func(s *scenarios.Scenario) float64 { return float64(s.Sensors.EncoderCountsPerRev) },
+		Apply: func(s *scenarios.Scenario, v float64) {
+			s.Sensors.EncoderCountsPerRev = int(math.Round(v))
+		}}
+}
+
 // FrictionAxis scales μ_s and μ_k of every segment by the value (1 = the
 // scenario's floor); the limit is the ratio μ_s,min / μ_s.
 func FrictionAxis() Axis {
@@ -342,32 +402,39 @@ func PushAxis(name string, sign, far, atS float64) Axis {
 }
 
 // MassAxis scales every mass and moment of inertia of the plant by
-// 1 + v/100 (v in %), the firmware unchanged: a walker heavier or lighter
-// than the one the firmware was tuned for, its shape the same.
+// k = 1 + v/100 (v in %), the firmware unchanged: a walker heavier or
+// lighter than the one the firmware was tuned for, its shape the same.
+// At fixed geometry a moment of inertia ∫r² dm scales with the mass, by
+// k; per-leg overrides are scaled alike.
 func MassAxis(name string, farPct float64) Axis {
 	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
-		f := 1 + v/100
+		k := 1 + v/100
 		p := &s.Plant
-		p.HipMassKG *= f
-		p.Legs.MassKG *= f
-		p.Legs.InertiaKGM2 *= f
-		for _, o := range []*scenarios.LegOverride{p.Legs.Left, p.Legs.Right} {
-			if o != nil && o.MassKG != nil {
-				m := *o.MassKG * f
-				o.MassKG = &m
-			}
-		}
+		p.HipMassKG *= k
+		p.Legs.MassKG *= k
+		p.Legs.InertiaKGM2 *= k
+		p.Legs.Left = scaleOverride(p.Legs.Left, func(o *scenarios.LegOverride) {
+			scaled(&o.MassKG, k)
+			scaled(&o.InertiaKGM2, k)
+		})
+		p.Legs.Right = scaleOverride(p.Legs.Right, func(o *scenarios.LegOverride) {
+			scaled(&o.MassKG, k)
+			scaled(&o.InertiaKGM2, k)
+		})
 		if p.Torso != nil {
 			t := *p.Torso
-			t.MassKG *= f
-			t.InertiaKGM2 *= f
+			t.MassKG *= k
+			t.InertiaKGM2 *= k
 			p.Torso = &t
 		}
 	}}
 }
 
-// LegLengthAxis scales the legs' length, centre-of-mass distance and foot
-// radius by 1 + v/100 (v in %), the firmware unchanged.
+// LegLengthAxis scales the legs by s = 1 + v/100 (v in %) at fixed mass,
+// the firmware unchanged: every length (leg, centre-of-mass distance,
+// foot radius, foot-arc offset) by s and the moment of inertia about the
+// centre of mass by s² (∫r² dm with every r scaled by s), in the shared
+// leg block and in per-leg overrides alike.
 func LegLengthAxis(name string, farPct float64) Axis {
 	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
 		f := 1 + v/100
@@ -375,13 +442,37 @@ func LegLengthAxis(name string, farPct float64) Axis {
 		l.LengthM *= f
 		l.COMM *= f
 		l.FootRadiusM *= f
-		for _, o := range []*scenarios.LegOverride{l.Left, l.Right} {
-			if o != nil && o.LengthM != nil {
-				m := *o.LengthM * f
-				o.LengthM = &m
+		l.ArcOffsetM *= f
+		l.InertiaKGM2 *= f * f
+		scale := func(o *scenarios.LegOverride) {
+			for _, x := range []**float64{&o.LengthM, &o.COMM, &o.FootRadiusM, &o.ArcOffsetM} {
+				scaled(x, f)
 			}
+			scaled(&o.InertiaKGM2, f*f)
 		}
+		l.Left = scaleOverride(l.Left, scale)
+		l.Right = scaleOverride(l.Right, scale)
 	}}
+}
+
+// scaleOverride returns a copy of o changed by scale (nil stays nil), so
+// the scenario the variant was derived from is never written through a
+// shared pointer.
+func scaleOverride(o *scenarios.LegOverride, scale func(*scenarios.LegOverride)) *scenarios.LegOverride {
+	if o == nil {
+		return nil
+	}
+	c := *o
+	scale(&c)
+	return &c
+}
+
+// scaled replaces *x (when set) by a new value k times it.
+func scaled(x **float64, k float64) {
+	if *x != nil {
+		v := **x * k
+		*x = &v
+	}
 }
 
 // SlopeAxis tilts every segment by the value in degrees (positive uphill).
@@ -475,11 +566,16 @@ func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []str
 		return nil, err
 	}
 	for i := range axes {
+		if axes[i].SafeOf != nil {
+			if v := axes[i].SafeOf(sc); v > 0 {
+				axes[i].Safe = v
+			}
+		}
 		far, ok := sc.Margins.Far[axes[i].Name]
 		if !ok {
 			continue
 		}
-		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 {
+		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 || (axes[i].Geometric && far <= 0) {
 			return nil, rig.Configf("scenario %s: margins.far.%s %g: the search starts at %g and goes towards %g; the end must lie on that side",
 				sc.Name, axes[i].Name, far, axes[i].Safe, axes[i].Far)
 		}
@@ -500,7 +596,7 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 	for a, ax := range axes {
 		out[a] = AxisMargin{Axis: ax.Name, Unit: ax.Unit, Safe: ax.Safe, Far: ax.Far}
 		for g := 0; g < m.Grid; g++ {
-			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
+			v := ax.at(float64(g) / float64(m.Grid-1))
 			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-grid%d", ax.Name, g))
 			if err != nil {
 				return nil, err
@@ -517,19 +613,18 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 		am := &out[a]
 		for g := 0; g < m.Grid; g++ {
 			k := (a*m.Grid + g) * per
-			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
+			v := ax.at(float64(g) / float64(m.Grid-1))
 			am.Grid = append(am.Grid, worstOf(v, done[k:k+per], attempts[k:k+per]))
 		}
 		pass, fail, ok := am.bracket()
 		if !ok {
 			continue
 		}
-		width := m.Tolerance * math.Abs(ax.Far-ax.Safe)
-		for i := 0; math.Abs(fail.Value-pass.Value) > width; i++ {
+		for i := 0; ax.wider(pass.Value, fail.Value, m.Tolerance); i++ {
 			if err := ctx.Err(); err != nil {
 				return out, err
 			}
-			v := 0.5 * (pass.Value + fail.Value)
+			v := ax.mid(pass.Value, fail.Value)
 			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
 			if err != nil {
 				return nil, err

@@ -140,8 +140,8 @@ func TestAxesChangeWhatTheySay(t *testing.T) {
 			if f := v.Faults[len(v.Faults)-1]; f.AtS != 5+0.9*0.5 || f.ImpulseNS[0] != -a.Far {
 				t.Errorf("push: %+v", f)
 			}
-		case "encoder_bits":
-			if v.Sensors.EncoderCountsPerRev != 16 {
+		case "encoder_counts":
+			if v.Sensors.EncoderCountsPerRev != 16 || a.Unit != "counts/rev" {
 				t.Errorf("encoder: %d counts", v.Sensors.EncoderCountsPerRev)
 			}
 		case "mass_plus":
@@ -261,7 +261,7 @@ func TestMarginsFlagAPassBeyondTheLimit(t *testing.T) {
 // side of the start is refused.
 func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
 	doc := map[string]float64{"friction": 0.05, "added_latency": 40, "slope_up": 10, "slope_down": -10, "noise_multiple": 50,
-		"encoder_bits": 4, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30}
+		"encoder_counts": 16, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30}
 	for _, a := range DefaultAxes(Nominal{}) {
 		want, ok := doc[a.Name]
 		if !ok {
@@ -295,5 +295,122 @@ func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
 	bad, _ := Derive(base, "far-bad", "far end of slope_down uphill", func(s *scenarios.Scenario) { s.Margins.Far = map[string]float64{"slope_down": 3} })
 	if _, err := (Margins{Dir: t.TempDir(), Runner: runner}).Search(context.Background(), bad, []string{"slope_down"}); err == nil {
 		t.Error("a downhill axis ending uphill was accepted")
+	}
+}
+
+// TestEncoderAxisIsInCountsPerRevolution: the encoder axis starts at the
+// scenario's own resolution, runs whole counts per revolution on a
+// geometric grid and reports its limit in counts per revolution. The
+// firmware here (a Runner) fails below 100 counts: the limit is the
+// coarsest passing count found, within the tolerance's ratio of 100.
+func TestEncoderAxisIsInCountsPerRevolution(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sc, _ := Derive(base, "enc", "a 10-bit encoder", func(s *scenarios.Scenario) { s.Sensors.EncoderCountsPerRev = 1024 })
+	var mu sync.Mutex
+	var seen []int
+	runner := func(_ context.Context, s *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		n := s.Sensors.EncoderCountsPerRev
+		mu.Lock()
+		seen = append(seen, n)
+		mu.Unlock()
+		steps := []hil.StepInfo{}
+		for i := 1; i <= 12; i++ {
+			steps = append(steps, hil.StepInfo{Index: i, DurationS: 0.5, SimTimeS: 0.5 * float64(i)})
+		}
+		if o.OnStep != nil {
+			for _, st := range steps {
+				o.OnStep(st)
+			}
+		}
+		out := record.Pass
+		if n < 100 {
+			out = record.Fail
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: out, Steps: 12}}, nil
+	}
+	res, err := Margins{Dir: t.TempDir(), Runner: runner}.Search(context.Background(), sc, []string{"encoder_counts"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := res[0]
+	t.Logf("grid %v; limit %g %s ± %g; runs %v", a.Grid, a.Limit, a.Unit, a.Tolerance, seen)
+	if a.Unit != "counts/rev" || a.Safe != 1024 || a.Far != 16 || a.Grid[0].Value != 1024 {
+		t.Errorf("axis %s from %g to %g, first grid point %g: want counts/rev from the scenario's 1024 to 16", a.Unit, a.Safe, a.Far, a.Grid[0].Value)
+	}
+	// ln(1024/16) = 6 ln 2; 2 % of it is a ratio of 2^0.12 ≈ 1.087.
+	if a.Limit < 100 || a.Limit > 100*math.Exp2(0.12) || a.FirstFail.Value >= 100 || a.Limit != math.Round(a.Limit) {
+		t.Errorf("limit %g counts/rev (first fail %g): want a whole count from 100 to %.1f", a.Limit, a.FirstFail.Value, 100*math.Exp2(0.12))
+	}
+	for _, n := range seen[1:] { // the nominal run keeps the scenario's 1024
+		if n < 16 || n > 1024 {
+			t.Errorf("a run with %d counts/rev, outside 16 … 1024", n)
+		}
+	}
+}
+
+// TestModelMismatchKeepsTheShape checks the mass and leg-length axes on a
+// walker whose legs differ (per-leg overrides of every field) against the
+// scaling laws of a rigid body, computed here from the plant parameters
+// the variant builds: scaling every mass by k at fixed geometry scales each
+// moment of inertia by k; scaling every length by s at fixed mass scales it
+// by s². So the dimensionless radius of gyration I/(m L²) of each leg
+// stays as it was, and each leg's lengths keep their ratios.
+func TestModelMismatchKeepsTheShape(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f := func(v float64) *float64 { return &v }
+	odd, err := Derive(base, "odd-legs", "a left leg unlike the right", func(s *scenarios.Scenario) {
+		s.Plant.Legs.ArcOffsetM = 0.01
+		s.Plant.Legs.Left = &scenarios.LegOverride{LengthM: f(0.85), MassKG: f(3.6), COMM: f(0.3), InertiaKGM2: f(0.21), FootRadiusM: f(0.25), ArcOffsetM: f(0.02)}
+		s.Plant.Legs.Right = &scenarios.LegOverride{InertiaKGM2: f(0.12)}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	bp, err := odd.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		axis   Axis
+		v      float64
+		mass   float64 // expected factor on every mass
+		length float64 // expected factor on every length
+	}{
+		{MassAxis("mass_plus", 50), 40, 1.4, 1},
+		{MassAxis("mass_minus", -50), -30, 0.7, 1},
+		{LegLengthAxis("leg_length_plus", 30), 20, 1, 1.2},
+		{LegLengthAxis("leg_length_minus", -30), -25, 1, 0.75},
+	} {
+		v, err := Derive(odd, "x-"+tc.axis.Name, tc.axis.Name, func(s *scenarios.Scenario) { tc.axis.Apply(s, tc.v) })
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		vp, err := v.PlantParams()
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		for i := range vp.Legs {
+			b, g := bp.Legs[i], vp.Legs[i]
+			near := func(what string, got, want float64) {
+				if math.Abs(got-want) > 1e-12*math.Max(1, math.Abs(want)) {
+					t.Errorf("%s %g, leg %d: %s %g, want %g", tc.axis.Name, tc.v, i, what, got, want)
+				}
+			}
+			near("mass", g.Mass, tc.mass*b.Mass)
+			near("length", g.Length, tc.length*b.Length)
+			near("centre of mass", g.COMDist, tc.length*b.COMDist)
+			near("foot radius", g.FootRadius, tc.length*b.FootRadius)
+			near("arc offset", g.ArcOffset, tc.length*b.ArcOffset)
+			near("I/(m L²)", g.Inertia/(g.Mass*g.Length*g.Length), b.Inertia/(b.Mass*b.Length*b.Length))
+		}
+		if odd.Plant.Legs.Left.InertiaKGM2 == nil || *odd.Plant.Legs.Left.InertiaKGM2 != 0.21 {
+			t.Errorf("%s changed the scenario it was derived from", tc.axis.Name)
+		}
 	}
 }
