@@ -4,10 +4,8 @@ import (
 	"context"
 	"fmt"
 	"io"
-	"path/filepath"
 
 	"gaitrig/batch"
-	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
@@ -52,27 +50,6 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 	}
 	for _, f := range res.Failures {
 		fmt.Fprintln(stdout, "  NO-GO:", f)
-	}
-	if g.Seeds > 1 {
-		// The scenario as written over the seeds: a gate cannot accept a
-		// seed that fails.
-		sr, err := batch.RunSeeds(ctx, batch.Scheduler{Jobs: g.Jobs}, sc, g.Seeds, rig.Options{Link: g.Link}, filepath.Join(g.Dir, "seeds"))
-		if err != nil {
-			fmt.Fprintln(stdout, "  seeds could not be run:", err)
-			return false
-		}
-		worst := sr.Runs[sr.Worst]
-		fmt.Fprintf(stdout, "  %d seeds of %s: %d passed, pass rate %.3f (95 %% Wilson interval %.3f … %.3f); worst run seed %d, %s: %s\n",
-			sr.N, sc.Name, sr.Passed, sr.Rate, sr.Low, sr.High, worst.Seed, worst.Outcome, worst.Dir)
-		if sr.Passed != sr.N {
-			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds failed\n", sr.N-sr.Passed, sr.N)
-			return false
-		}
-		if sr.Invalid > 0 {
-			// A seed the host spoiled was not tested: no GO on it.
-			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds ran invalid (the host stalled them); run preflight again on a quieter host\n", sr.Invalid, g.Seeds)
-			return false
-		}
 	}
 	return res.Go
 }
