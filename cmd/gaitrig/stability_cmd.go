@@ -1,11 +1,15 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"io"
+	"os"
+	"path/filepath"
 
 	"gaitrig/batch"
+	"gaitrig/report"
 	"gaitrig/rig"
 )
 
@@ -26,8 +30,10 @@ multipliers) with bootstrap intervals, the spectral radius, the fit residual
 perturbation to decay by 90 %, and the gait sensitivity norm (Hobbelen and
 Wisse 2007) of step time and step length for a hip push and a step-down.
 For a passive walker or the built-in controller, 'gaitrig cycle' gives the
-exact eigenvalues to compare with. Exit code 0 when the gait is stable
-(spectral radius below 1), 1 when not.`, stdout, stderr)
+exact eigenvalues to compare with. Writes stability.html (the eigenvalues in
+the complex plane against the unit circle, the figures, links to the runs),
+junit.xml and stability.json into the estimate's folder. Exit code 0 when
+the gait is stable (spectral radius below 1), 1 when not.`, stdout, stderr)
 	link := c.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
 	out := c.String("out", "runs", "parent folder for the run folders")
 	asJSON := c.jsonFlag()
@@ -68,6 +74,10 @@ exact eigenvalues to compare with. Exit code 0 when the gait is stable
 		fmt.Fprintln(stderr, "gaitrig stability:", err)
 		return exitCodeFor(err)
 	}
+	files, ferr := writeStabilityFiles(st.Dir, rep)
+	if ferr != nil {
+		fmt.Fprintln(stderr, "gaitrig stability:", ferr)
+	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetEscapeHTML(false)
@@ -78,11 +88,39 @@ exact eigenvalues to compare with. Exit code 0 when the gait is stable
 		}
 	} else {
 		printStability(stdout, rep)
+		for _, f := range files {
+			fmt.Fprintln(stdout, "wrote", f)
+		}
 	}
-	if !rep.Stable {
+	if !rep.Stable || ferr != nil {
 		return exitFail
 	}
 	return exitPass
+}
+
+// writeStabilityFiles writes the estimate's page, JUnit XML and JSON into
+// its folder and returns their paths.
+func writeStabilityFiles(dir string, rep batch.StabilityReport) ([]string, error) {
+	if err := batch.WriteStabilityPage(dir, rep); err != nil {
+		return nil, err
+	}
+	var b bytes.Buffer
+	if err := report.WriteJUnit(&b, batch.StabilitySuite(rep)); err != nil {
+		return nil, err
+	}
+	junit := filepath.Join(dir, report.JUnitFile)
+	if err := os.WriteFile(junit, b.Bytes(), 0o644); err != nil {
+		return nil, err
+	}
+	js, err := json.MarshalIndent(rig.JSONSafe(rep), "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	jsPath := filepath.Join(dir, "stability.json")
+	if err := os.WriteFile(jsPath, append(js, '\n'), 0o644); err != nil {
+		return nil, err
+	}
+	return []string{filepath.Join(dir, batch.StabilityPageFile), junit, jsPath}, nil
 }
 
 func printStability(w io.Writer, r batch.StabilityReport) {
