@@ -44,7 +44,9 @@ var stabilityPage = template.Must(template.New("stability").Funcs(template.FuncM
 	// (300 × 300, the real axis to the right, the imaginary axis up).
 	"x": func(re float64) string { return fmt.Sprintf("%.2f", 150+150*clampPlot(re)/stabilityPlotHalf) },
 	"y": func(im float64) string { return fmt.Sprintf("%.2f", 150-150*clampPlot(im)/stabilityPlotHalf) },
-	"r": func(mod float64) string { return fmt.Sprintf("%.2f", 150*math.Min(mod, stabilityPlotHalf)/stabilityPlotHalf) },
+	"r": func(mod float64) string {
+		return fmt.Sprintf("%.2f", 150*math.Min(mod, stabilityPlotHalf)/stabilityPlotHalf)
+	},
 	"coords": func(c []string) string { return strings.Join(c, ", ") },
 }).Parse(`<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><title>gaitrig stability: {{.R.Scenario}}</title>
