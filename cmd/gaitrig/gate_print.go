@@ -10,14 +10,15 @@ import (
 )
 
 // printGate runs the envelope part of preflight and prints its table; it
-// returns whether the envelope says GO.
-func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *scenarios.Scenario) bool {
+// returns the envelope's result (nil when it could not be measured) and
+// whether it says GO.
+func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *scenarios.Scenario) (*batch.GateResult, bool) {
 	fmt.Fprintf(stdout, "\nsafety envelope (margins block of %s):\n", sc.Name)
 	res, err := g.Run(ctx, sc)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight: envelope:", err)
 		fmt.Fprintln(stdout, "  could not be measured:", err)
-		return false
+		return nil, false
 	}
 	if len(res.Margins) == 0 {
 		fmt.Fprintln(stdout, "  no margin minima set (margins.min_friction_ratio, min_push_ns, min_added_latency_ms, min_slope_deg)")
@@ -51,5 +52,5 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 	for _, f := range res.Failures {
 		fmt.Fprintln(stdout, "  NO-GO:", f)
 	}
-	return res.Go
+	return &res, res.Go
 }

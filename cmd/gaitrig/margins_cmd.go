@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -11,6 +12,7 @@ import (
 	"runtime"
 
 	"gaitrig/batch"
+	"gaitrig/history"
 	"gaitrig/record"
 	"gaitrig/report"
 	"gaitrig/rig"
@@ -48,6 +50,7 @@ margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 	jobs := c.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
 	seeds := c.Int("seeds", 1, "run every value with N seeds of noise, drops and latency; a value passes only when all pass")
 	retries := c.Int("retries", batch.DefaultMarginRetries, "make a run the host spoiled again up to `N` times")
+	hist := addHistoryFlags(c)
 	if done, code := c.parse(args); done {
 		return code
 	}
@@ -80,10 +83,25 @@ margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 	}
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	res, err := m.Search(ctx, sc, nil)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig margins:", err)
 		return exitCodeFor(err)
+	}
+	var herr error
+	if hs != nil {
+		r := history.FromMargins("margins", sc, res, history.GreetingOf(firstMarginRun(res)), hist.rev())
+		if herr = hs.Add(context.Background(), &r); herr != nil {
+			fmt.Fprintln(stderr, "gaitrig margins: history:", herr)
+		}
 	}
 	files, ferr := writeMarginsFiles(m.Dir, sc.Name, res)
 	if ferr != nil {
@@ -155,7 +173,23 @@ margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 	if ferr != nil {
 		code = exitFail
 	}
+	if herr != nil && code == exitPass {
+		code = exitConfig // a lost history entry is not a silent pass
+	}
 	return code
+}
+
+// firstMarginRun is a run folder of the search, to read the firmware's
+// greeting from ("" when no axis ran).
+func firstMarginRun(res []batch.AxisMargin) string {
+	for _, a := range res {
+		for _, r := range a.Grid {
+			if r.Dir != "" {
+				return r.Dir
+			}
+		}
+	}
+	return ""
 }
 
 // marginsDoc is the JSON of a margin search (stdout with --json, and

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"math"
@@ -8,6 +9,7 @@ import (
 	"runtime"
 
 	"gaitrig/batch"
+	"gaitrig/history"
 	"gaitrig/record"
 	"gaitrig/report"
 	"gaitrig/rig"
@@ -63,6 +65,7 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	out := c.String("out", "runs", "parent `FOLDER` for the run folders")
 	envelope := c.Bool("envelope", true, "also measure the margins the scenario's margins block sets minima for and the closed-loop stability; GO needs both (see gaitrig margins, gaitrig stability)")
 	seeds := c.Int("seeds", 1, "run every check with `N` seeds of noise, drops and latency (pass rate with its Wilson interval and the worst run; GO needs every seed), and with --envelope every margin value too")
+	hist := addHistoryFlags(c)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -108,9 +111,30 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	fmt.Fprintln(w)
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		return c.fail(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	res, err := pf.Run(ctx, variants)
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
+	}
+	// Stored in the history: every check's run (the worst seed's with
+	// --seeds) under the check's name, then the envelope under the
+	// scenario's.
+	var herr error
+	if hs != nil {
+		for i, ch := range res.Checks {
+			if ch.Err != nil || ch.Result.Summary.Outcome == "" {
+				continue
+			}
+			if herr = hist.store(hs, "preflight", variants[i])(ch.Result); herr != nil {
+				break
+			}
+		}
 	}
 
 	js := preflightResult{Scenario: base.Name, Link: spec.String(), Folder: pf.Dir, Go: res.Go, Caution: record.Caution, Checks: []preflightCheck{}}
@@ -160,13 +184,28 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 		}
 	}
 	if *envelope {
-		if !printGate(ctx, w, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base) {
+		g, ok := printGate(ctx, w, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base)
+		if !ok {
 			res.Go = false
+		}
+		if hs != nil && g != nil && herr == nil {
+			dir := ""
+			if len(res.Checks) > 0 {
+				dir = res.Checks[0].Result.Dir
+			}
+			r := history.FromGate("preflight", base, *g, history.GreetingOf(dir), hist.rev())
+			herr = hs.Add(context.Background(), &r)
 		}
 	}
 	code := exitPass
 	if !res.Go {
 		code = exitFail
+	}
+	if herr != nil {
+		c.fail(fmt.Errorf("history: %w", herr))
+		if code == exitPass {
+			code = exitConfig // a lost history entry is not a silent pass
+		}
 	}
 	if c.jsonMode() {
 		return c.printJSON(js, code)

@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -9,6 +10,7 @@ import (
 	"path/filepath"
 
 	"gaitrig/batch"
+	"gaitrig/history"
 	"gaitrig/report"
 	"gaitrig/rig"
 )
@@ -44,6 +46,7 @@ the gait is stable (spectral radius below 1), 1 when not.`, stdout, stderr)
 	c.Int64Var(&st.Seed, "seed", 1, "seed of the perturbations and the bootstrap")
 	c.Float64Var(&st.PushNs, "push", batch.DefaultGSNPushNs, "hip push of the gait sensitivity norm, N·s (negative: skip)")
 	c.Float64Var(&st.StepDownM, "step-down", batch.DefaultGSNStepDownM, "floor drop of the gait sensitivity norm, m (negative: skip)")
+	hist := addHistoryFlags(c)
 	if done, code := c.parse(args); done {
 		return code
 	}
@@ -69,10 +72,25 @@ the gait is stable (spectral radius below 1), 1 when not.`, stdout, stderr)
 	}
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig stability:", err)
+		return exitCodeFor(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	rep, err := st.Run(ctx, sc)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig stability:", err)
 		return exitCodeFor(err)
+	}
+	var herr error
+	if hs != nil {
+		r := history.FromStability("stability", sc, rep, history.GreetingOf(rep.Dir), hist.rev())
+		if herr = hs.Add(context.Background(), &r); herr != nil {
+			fmt.Fprintln(stderr, "gaitrig stability: history:", herr)
+		}
 	}
 	files, ferr := writeStabilityFiles(st.Dir, rep)
 	if ferr != nil {
@@ -94,6 +112,9 @@ the gait is stable (spectral radius below 1), 1 when not.`, stdout, stderr)
 	}
 	if !rep.Stable || ferr != nil {
 		return exitFail
+	}
+	if herr != nil {
+		return exitConfig // a lost history entry is not a silent pass
 	}
 	return exitPass
 }
