@@ -27,8 +27,9 @@ func cmdMargins(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("margins", "SCENARIO", `
 The safety envelope by search. For each axis (floor friction; a forward and a
 backward hip push at early, mid and late stance; added command latency; slope
-up and down; sensor noise multiple; encoder bits; torque-limit fraction; plant
-mass and leg length off by a percentage while the firmware is unchanged)
+up and down; sensor noise multiple; encoder resolution in counts per
+revolution; torque-limit fraction; plant mass and leg length off by a
+percentage while the firmware is unchanged)
 the rig runs a coarse grid from the scenario as written towards harder
 conditions, then bisects between the last pass and the first fail until the
 bracket is narrower than the tolerance. Each limit comes with the two runs
