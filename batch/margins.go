@@ -609,6 +609,13 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 		return out, err
 	}
 	per := m.seeds()
+	// Each axis's bracket: the last pass and the first failure found so
+	// far, while the axis is still being bisected.
+	type bracket struct {
+		pass, fail MarginRun
+		open       bool
+	}
+	br := make([]bracket, len(axes))
 	for a, ax := range axes {
 		am := &out[a]
 		for g := 0; g < m.Grid; g++ {
@@ -616,40 +623,63 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 			v := ax.at(float64(g) / float64(m.Grid-1))
 			am.Grid = append(am.Grid, worstOf(v, done[k:k+per], attempts[k:k+per]))
 		}
-		pass, fail, ok := am.bracket()
-		if !ok {
-			continue
-		}
-		for i := 0; ax.wider(pass.Value, fail.Value, m.Tolerance); i++ {
-			if err := ctx.Err(); err != nil {
-				return out, err
+		br[a].pass, br[a].fail, br[a].open = am.bracket()
+	}
+	// The bisections of all axes go step by step together, so their runs
+	// share the cores as the grid's do; each axis's sequence of values
+	// is the same as bisecting it alone.
+	for i := 0; ; i++ {
+		var jobs []Job
+		var which []int
+		var vals []float64
+		for a, ax := range axes {
+			if br[a].open && !ax.wider(br[a].pass.Value, br[a].fail.Value, m.Tolerance) {
+				br[a].open = false // narrow enough
 			}
-			v := ax.mid(pass.Value, fail.Value)
+			if !br[a].open {
+				continue
+			}
+			v := ax.mid(br[a].pass.Value, br[a].fail.Value)
 			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
 			if err != nil {
 				return nil, err
 			}
-			d, n := m.runAll(ctx, js)
-			if err := ctx.Err(); err != nil {
-				return out, err
-			}
-			r := worstOf(v, d, n)
+			jobs = append(jobs, js...)
+			which, vals = append(which, a), append(vals, v)
+		}
+		if len(jobs) == 0 {
+			break
+		}
+		if err := ctx.Err(); err != nil {
+			return out, err
+		}
+		d, n := m.runAll(ctx, jobs)
+		if err := ctx.Err(); err != nil {
+			return out, err
+		}
+		for j, a := range which {
+			am, v := &out[a], vals[j]
+			r := worstOf(v, d[j*per:(j+1)*per], n[j*per:(j+1)*per])
 			am.Bisection = append(am.Bisection, r)
-			if r.NotMeasured != "" {
+			switch {
+			case r.NotMeasured != "":
 				// The bracket cannot be narrowed past a value nobody
 				// measured: no limit rather than one it might decide.
-				am.notMeasured(fmt.Sprintf("bisection point %g %s: %s", v, ax.Unit, r.NotMeasured))
-				break
-			}
-			if r.Outcome == record.Pass {
-				pass = r
-			} else {
-				fail = r
+				am.notMeasured(fmt.Sprintf("bisection point %g %s: %s", v, axes[a].Unit, r.NotMeasured))
+				br[a].open = false
+			case r.Outcome == record.Pass:
+				br[a].pass = r
+			default:
+				br[a].fail = r
 			}
 		}
-		if am.NotMeasured != "" {
-			continue
+	}
+	for a := range axes {
+		am := &out[a]
+		if am.NotMeasured != "" || !am.Reached || am.Error != "" {
+			continue // decided by the grid alone, or not measured
 		}
+		pass, fail := br[a].pass, br[a].fail
 		am.Limit = pass.Value
 		am.Tolerance = math.Abs(fail.Value - pass.Value)
 		am.LastPass, am.FirstFail = &pass, &fail
