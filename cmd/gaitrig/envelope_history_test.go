@@ -78,3 +78,36 @@ func TestEnvelopeHistory(t *testing.T) {
 		t.Errorf("scenarios in the history: %s", s)
 	}
 }
+
+// TestPreflightSeedsEveryCheckCommand: preflight --seeds 2 --json gives
+// every check of the battery its two seeds' runs, pass rate and Wilson
+// interval, and names the worst run's folder as the check's run folder.
+func TestPreflightSeedsEveryCheckCommand(t *testing.T) {
+	if testing.Short() {
+		t.Skip("lockstep walks")
+	}
+	code, out, errOut := run(t, "preflight", "--out", t.TempDir(), "--seeds", "2", "--envelope=false", "--json")
+	if code != exitPass {
+		t.Fatalf("exit %d\n%s", code, errOut)
+	}
+	var res preflightResult
+	if err := json.Unmarshal([]byte(out), &res); err != nil {
+		t.Fatalf("%v\n%s", err, out)
+	}
+	if len(res.Checks) != 7 {
+		t.Fatalf("%d checks", len(res.Checks))
+	}
+	for _, c := range res.Checks {
+		sr := c.Seeds
+		if sr == nil || len(sr.Runs) != 2 || sr.Passed != 2 || sr.N != 2 || sr.Low <= 0 || sr.High != 1 || c.RunFolder != sr.Runs[sr.Worst].Dir {
+			t.Errorf("%s: seeds %+v, run folder %s", c.Name, sr, c.RunFolder)
+			continue
+		}
+		if sr.Runs[0].Seed == sr.Runs[1].Seed {
+			t.Errorf("%s: both runs with seed %d", c.Name, sr.Runs[0].Seed)
+		}
+	}
+	if code, _, errOut := run(t, "preflight", "--seeds", "0"); code != exitConfig || !strings.Contains(errOut, "--seeds") {
+		t.Errorf("--seeds 0: exit %d\n%s", code, errOut)
+	}
+}
