@@ -82,6 +82,8 @@ func (g Gate) Run(ctx context.Context, sc *scenarios.Scenario) (GateResult, erro
 		res.Margins = m
 		for _, a := range m {
 			switch {
+			case a.NotMeasured != "":
+				res.Failures = append(res.Failures, fmt.Sprintf("margin %s was not measured (run preflight again on a quieter host): %s", a.Axis, a.NotMeasured))
 			case a.Error != "":
 				res.Failures = append(res.Failures, fmt.Sprintf("margin %s: %s", a.Axis, a.Error))
 			case !a.Meets:

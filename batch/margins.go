@@ -26,6 +26,10 @@ const (
 	// DefaultMarginGrid is the number of coarse grid points per axis
 	// before the bisection (our choice).
 	DefaultMarginGrid = 6
+	// DefaultMarginRetries is how many more times a run the host spoiled
+	// (HostTrouble) is made before its value is "not measured": the
+	// suite's command-line default (gaitrig suite --retries).
+	DefaultMarginRetries = 2
 )
 
 // Axis is one condition the margin search varies. Value Safe is the
@@ -39,6 +43,58 @@ type Axis struct {
 	Safe, Far float64
 	// Apply changes the variant for value v.
 	Apply func(s *scenarios.Scenario, v float64)
+	// SafeOf, when not nil, reads Safe from the scenario as written (an
+	// axis whose start is a value the scenario sets, such as its
+	// encoder's resolution); nil keeps Safe.
+	SafeOf func(s *scenarios.Scenario) float64
+	// Geometric spaces the grid and halves the bracket in the logarithm
+	// of the value (for an axis that spans orders of magnitude, such as a
+	// resolution); the tolerance is then a fraction of the logarithmic
+	// range. Safe and Far must both be positive.
+	Geometric bool
+	// Step, when positive, makes every value a multiple of it (a count);
+	// the bisection ends when the bracket holds no other multiple.
+	Step float64
+}
+
+// at is the grid value a fraction f of the way from Safe to Far.
+func (a Axis) at(f float64) float64 {
+	var v float64
+	if a.Geometric {
+		v = a.Safe * math.Pow(a.Far/a.Safe, f)
+	} else {
+		v = a.Safe + (a.Far-a.Safe)*f
+	}
+	return a.quantize(v)
+}
+
+// mid is the bisection's next value between p and q (p or q itself when
+// no other value lies between them).
+func (a Axis) mid(p, q float64) float64 {
+	if a.Geometric {
+		return a.quantize(math.Sqrt(p * q))
+	}
+	return a.quantize(0.5 * (p + q))
+}
+
+// wider reports whether the bracket p … q is wider than tol of the
+// axis's range (measured in the logarithm for a geometric axis) and
+// still holds a value to try.
+func (a Axis) wider(p, q, tol float64) bool {
+	if m := a.mid(p, q); m == p || m == q {
+		return false
+	}
+	if a.Geometric {
+		return math.Abs(math.Log(q/p)) > tol*math.Abs(math.Log(a.Far/a.Safe))
+	}
+	return math.Abs(q-p) > tol*math.Abs(a.Far-a.Safe)
+}
+
+func (a Axis) quantize(v float64) float64 {
+	if a.Step > 0 {
+		return a.Step * math.Round(v/a.Step)
+	}
+	return v
 }
 
 // MarginRun is a run that decided a limit, or a grid point.
@@ -48,7 +104,21 @@ type MarginRun struct {
 	Reason  string         `json:"reason,omitempty"`
 	Steps   int            `json:"steps"`
 	Dir     string         `json:"run_dir"`
+	// Attempts is how many times the run was made (more than 1 when the
+	// host spoiled earlier attempts; each has its own run folder,
+	// RUN.retry-K).
+	Attempts int `json:"attempts"`
+	// NotMeasured, when not empty, says why this value decides nothing:
+	// the host spoiled every attempt (outcome invalid, or a link that
+	// could not be opened) or the run could not be made at all. Such a
+	// value is neither a pass nor a failure.
+	NotMeasured string `json:"not_measured,omitempty"`
 }
+
+// passed and failed tell a measured pass and a measured failure; a run
+// that is NotMeasured is neither.
+func (r MarginRun) passed() bool { return r.NotMeasured == "" && r.Outcome == record.Pass }
+func (r MarginRun) failed() bool { return r.NotMeasured == "" && r.Outcome != record.Pass }
 
 // AxisMargin is the result of one axis.
 type AxisMargin struct {
@@ -57,8 +127,15 @@ type AxisMargin struct {
 	Safe float64 `json:"safe"`
 	Far  float64 `json:"far"`
 	// Limit is the last passing value found (Safe when the scenario as
-	// written fails; Far when every value passed).
+	// written fails; Far when every value passed; NaN, null in JSON, when
+	// the axis is NotMeasured).
 	Limit float64 `json:"limit"`
+	// NotMeasured, when not empty, says why the axis has no limit: a run
+	// the search needed (the scenario as written, a grid point up to the
+	// first failure, every grid point when none failed, or a bisection
+	// point) was spoiled by the host on every attempt. A limit is never
+	// decided by such a run.
+	NotMeasured string `json:"not_measured,omitempty"`
 	// Reached says the search found a failure (false: passed up to Far).
 	Reached bool `json:"reached"`
 	// NotMonotone is set when a grid point beyond the first failure passed.
@@ -112,8 +189,8 @@ func Required(m scenarios.Margins, axis string) float64 {
 // as far from Safe, in the direction of Far, as the requirement.
 func (am *AxisMargin) judge(required float64) {
 	am.Required = required
-	am.Meets = am.Error == ""
-	if math.IsNaN(required) || am.Error != "" {
+	am.Meets = am.Error == "" && am.NotMeasured == ""
+	if math.IsNaN(required) || !am.Meets {
 		return
 	}
 	dir := 1.0
@@ -124,6 +201,56 @@ func (am *AxisMargin) judge(required float64) {
 		am.Meets = false
 		am.Shortfall = -d
 	}
+}
+
+// notMeasured marks the axis as having no limit, for reason.
+func (am *AxisMargin) notMeasured(reason string) {
+	am.NotMeasured = reason
+	am.Limit = math.NaN()
+	am.Reached = false
+	am.LastPass, am.FirstFail = nil, nil
+}
+
+// bracket reads the coarse grid (safe end first): it returns the last
+// measured pass and the first measured failure after it for the
+// bisection, or ok false when the grid decides the axis by itself (every
+// point passed: the limit is Far; the scenario as written fails) or
+// cannot decide it (a point the host spoiled where the limit could lie).
+// A point beyond the first failure that passes flags the axis not
+// monotone; one beyond it that was not measured changes nothing.
+func (am *AxisMargin) bracket() (pass, fail MarginRun, ok bool) {
+	first := -1
+	for g, r := range am.Grid {
+		if r.NotMeasured != "" {
+			// Every point up to the first failure must be measured: an
+			// unmeasured one could have been the first failure.
+			am.notMeasured(fmt.Sprintf("grid point %g %s: %s", r.Value, am.Unit, r.NotMeasured))
+			return pass, fail, false
+		}
+		if r.failed() {
+			first = g
+			break
+		}
+	}
+	switch first {
+	case -1:
+		am.Limit = am.Far
+		am.LastPass = &am.Grid[len(am.Grid)-1]
+		return pass, fail, false
+	case 0:
+		am.Limit = am.Safe
+		am.Reached = true
+		am.FirstFail = &am.Grid[0]
+		am.Error = "the scenario as written fails: no margin"
+		return pass, fail, false
+	}
+	am.Reached = true
+	for _, r := range am.Grid[first+1:] {
+		if r.passed() {
+			am.NotMonotone = true
+		}
+	}
+	return am.Grid[first-1], am.Grid[first], true
 }
 
 // Margins searches the limits of a scenario's axes. The zero value of a
@@ -144,6 +271,9 @@ type Margins struct {
 	Seeds int
 	// Runner runs one job; default rig.Run.
 	Runner RunFunc
+	// Retries is how many more times a run the host spoiled is made
+	// (Suite.Retries); 0 means DefaultMarginRetries, negative none.
+	Retries int
 }
 
 // Nominal is what the margin search measures on the scenario as written
@@ -195,11 +325,7 @@ func DefaultAxes(n Nominal) []Axis {
 			n.IMUPitchNoiseRad = v * math.Max(n.IMUPitchNoiseRad, TypicalAngleNoiseRad)
 			n.IMURateNoiseRadps = v * math.Max(n.IMURateNoiseRadps, TypicalRateNoiseRadps)
 		}},
-		// Encoder resolution in bits (counts per revolution = 2^bits), from
-		// the 12-bit default of the scenario loader down to 4 bits.
-		Axis{Name: "encoder_bits", Unit: "bit", Safe: 12, Far: 4, Apply: func(s *scenarios.Scenario, v float64) {
-			s.Sensors.EncoderCountsPerRev = int(math.Round(math.Exp2(v)))
-		}},
+		EncoderAxis(),
 		Axis{Name: "torque_fraction", Unit: "×", Safe: 1, Far: 0.05, Apply: func(s *scenarios.Scenario, v float64) {
 			if s.Actuators.TorqueLimitNM > 0 {
 				s.Actuators.TorqueLimitNM *= v
@@ -238,6 +364,18 @@ func SelectAxes(all []Axis, names []string) ([]Axis, error) {
 	return out, nil
 }
 
+// EncoderAxis is the encoder resolution in counts per revolution, from the
+// scenario's (the loader's default 4096, 12 bits) down to 16 (4 bits),
+// searched geometrically in whole counts: a resolution matters by its
+// ratio, so a linear grid would spend its points on fine encoders.
+func EncoderAxis() Axis {
+	return Axis{Name: "encoder_counts", Unit: "counts/rev", Safe: 4096, Far: 16, Geometric: true, Step: 1,
+		SafeOf: func(s *scenarios.Scenario) float64 { return float64(s.Sensors.EncoderCountsPerRev) },
+		Apply: func(s *scenarios.Scenario, v float64) {
+			s.Sensors.EncoderCountsPerRev = int(math.Round(v))
+		}}
+}
+
 // FrictionAxis scales μ_s and μ_k of every segment by the value (1 = the
 // scenario's floor); the limit is the ratio μ_s,min / μ_s.
 func FrictionAxis() Axis {
@@ -265,32 +403,45 @@ func PushAxis(name string, sign, far, atS float64) Axis {
 }
 
 // MassAxis scales every mass and moment of inertia of the plant by
-// 1 + v/100 (v in %), the firmware unchanged: a walker heavier or lighter
-// than the one the firmware was tuned for, its shape the same.
+// k = 1 + v/100 (v in %), the firmware unchanged: a walker heavier or
+// lighter than the one the firmware was tuned for, its shape the same.
+// At fixed geometry a moment of inertia ∫r² dm scales with the mass, by
+// k; per-leg overrides and the shanks of a kneed walker are scaled alike.
 func MassAxis(name string, farPct float64) Axis {
 	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
-		f := 1 + v/100
+		k := 1 + v/100
 		p := &s.Plant
-		p.HipMassKG *= f
-		p.Legs.MassKG *= f
-		p.Legs.InertiaKGM2 *= f
-		for _, o := range []*scenarios.LegOverride{p.Legs.Left, p.Legs.Right} {
-			if o != nil && o.MassKG != nil {
-				m := *o.MassKG * f
-				o.MassKG = &m
-			}
+		p.HipMassKG *= k
+		p.Legs.MassKG *= k
+		p.Legs.InertiaKGM2 *= k
+		scaleShank(&p.Legs.Shank, func(sh *scenarios.Shank) {
+			sh.MassKG *= k
+			sh.InertiaKGM2 *= k
+		})
+		scale := func(o *scenarios.LegOverride) {
+			scaled(&o.MassKG, k)
+			scaled(&o.InertiaKGM2, k)
+			scaleShankOverride(&o.Shank, func(so *scenarios.ShankOverride) {
+				scaled(&so.MassKG, k)
+				scaled(&so.InertiaKGM2, k)
+			})
 		}
+		p.Legs.Left = scaleOverride(p.Legs.Left, scale)
+		p.Legs.Right = scaleOverride(p.Legs.Right, scale)
 		if p.Torso != nil {
 			t := *p.Torso
-			t.MassKG *= f
-			t.InertiaKGM2 *= f
+			t.MassKG *= k
+			t.InertiaKGM2 *= k
 			p.Torso = &t
 		}
 	}}
 }
 
-// LegLengthAxis scales the legs' length, centre-of-mass distance and foot
-// radius by 1 + v/100 (v in %), the firmware unchanged.
+// LegLengthAxis scales the legs by s = 1 + v/100 (v in %) at fixed mass,
+// the firmware unchanged: every length (leg, centre-of-mass distance,
+// foot radius, foot-arc offset) by s and the moment of inertia about the
+// centre of mass by s² (∫r² dm with every r scaled by s), in the shared
+// leg block, per-leg overrides and the shanks of a kneed walker alike.
 func LegLengthAxis(name string, farPct float64) Axis {
 	return Axis{Name: name, Unit: "%", Safe: 0, Far: farPct, Apply: func(s *scenarios.Scenario, v float64) {
 		f := 1 + v/100
@@ -298,13 +449,66 @@ func LegLengthAxis(name string, farPct float64) Axis {
 		l.LengthM *= f
 		l.COMM *= f
 		l.FootRadiusM *= f
-		for _, o := range []*scenarios.LegOverride{l.Left, l.Right} {
-			if o != nil && o.LengthM != nil {
-				m := *o.LengthM * f
-				o.LengthM = &m
+		l.ArcOffsetM *= f
+		l.InertiaKGM2 *= f * f
+		scaleShank(&l.Shank, func(sh *scenarios.Shank) {
+			sh.LengthM *= f
+			sh.COMM *= f
+			sh.InertiaKGM2 *= f * f
+		})
+		scale := func(o *scenarios.LegOverride) {
+			for _, x := range []**float64{&o.LengthM, &o.COMM, &o.FootRadiusM, &o.ArcOffsetM} {
+				scaled(x, f)
 			}
+			scaled(&o.InertiaKGM2, f*f)
+			scaleShankOverride(&o.Shank, func(so *scenarios.ShankOverride) {
+				scaled(&so.LengthM, f)
+				scaled(&so.COMM, f)
+				scaled(&so.InertiaKGM2, f*f)
+			})
 		}
+		l.Left = scaleOverride(l.Left, scale)
+		l.Right = scaleOverride(l.Right, scale)
 	}}
+}
+
+// scaleOverride returns a copy of o changed by scale (nil stays nil), so
+// the scenario the variant was derived from is never written through a
+// shared pointer.
+func scaleOverride(o *scenarios.LegOverride, scale func(*scenarios.LegOverride)) *scenarios.LegOverride {
+	if o == nil {
+		return nil
+	}
+	c := *o
+	scale(&c)
+	return &c
+}
+
+// scaleShank replaces *sh (when set) by a scaled copy, for the reason
+// scaleOverride gives.
+func scaleShank(sh **scenarios.Shank, scale func(*scenarios.Shank)) {
+	if *sh != nil {
+		c := **sh
+		scale(&c)
+		*sh = &c
+	}
+}
+
+// scaleShankOverride is scaleShank for a per-leg shank override.
+func scaleShankOverride(so **scenarios.ShankOverride, scale func(*scenarios.ShankOverride)) {
+	if *so != nil {
+		c := **so
+		scale(&c)
+		*so = &c
+	}
+}
+
+// scaled replaces *x (when set) by a new value k times it.
+func scaled(x **float64, k float64) {
+	if *x != nil {
+		v := **x * k
+		*x = &v
+	}
 }
 
 // SlopeAxis tilts every segment by the value in degrees (positive uphill).
@@ -329,7 +533,18 @@ func (m Margins) withDefaults() Margins {
 	if m.Runner == nil {
 		m.Runner = rig.Run
 	}
+	if m.Retries == 0 {
+		m.Retries = DefaultMarginRetries
+	}
 	return m
+}
+
+// runAll runs jobs and makes those the host spoiled again, up to
+// m.Retries times (Suite.retry: each attempt in a run folder of its own).
+func (m Margins) runAll(ctx context.Context, jobs []Job) ([]Done, []int) {
+	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	attempts := Suite{Jobs: m.Jobs, Runner: m.Runner, Retries: max(m.Retries, 0)}.retry(ctx, jobs, done)
+	return done, attempts
 }
 
 // MeasureNominal runs the scenario as written once and returns when the
@@ -340,10 +555,20 @@ func (m Margins) MeasureNominal(ctx context.Context, sc *scenarios.Scenario) (No
 	var steps []hil.StepInfo
 	j := Job{Scenario: sc, Options: rig.Options{Link: m.Link, Clock: hil.Lockstep, RunDir: filepath.Join(m.Dir, sc.Name+"-margins-nominal"),
 		OnStep: func(s hil.StepInfo) { steps = append(steps, s) }}}
-	d := Scheduler{Jobs: 1, Runner: m.Runner}.RunAll(ctx, []Job{j})[0]
-	run := marginRun(0, d)
-	if d.Err != nil {
-		return Nominal{}, run, d.Err
+	// Each attempt starts counting afresh: the steps are the last
+	// attempt's, the one whose outcome is the run's.
+	runner := func(ctx context.Context, sc *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		steps = steps[:0]
+		return m.Runner(ctx, sc, o)
+	}
+	done, attempts := Margins{Jobs: 1, Runner: runner, Retries: m.Retries}.runAll(ctx, []Job{j})
+	d := done[0]
+	run := marginRun(0, d, attempts[0])
+	if err := ctx.Err(); err != nil {
+		return Nominal{}, run, err
+	}
+	if run.NotMeasured != "" {
+		return Nominal{}, run, fmt.Errorf("margins: the scenario as written could not be measured: %s", run.NotMeasured)
 	}
 	if len(steps) < PushStep+1 {
 		return Nominal{}, run, fmt.Errorf("margins: the scenario as written walked %d steps (%s: %s); the push axes need at least %d", len(steps), run.Outcome, run.Reason, PushStep+1)
@@ -380,11 +605,16 @@ func (m Margins) Search(ctx context.Context, sc *scenarios.Scenario, names []str
 		return nil, err
 	}
 	for i := range axes {
+		if axes[i].SafeOf != nil {
+			if v := axes[i].SafeOf(sc); v > 0 {
+				axes[i].Safe = v
+			}
+		}
 		far, ok := sc.Margins.Far[axes[i].Name]
 		if !ok {
 			continue
 		}
-		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 {
+		if far == axes[i].Safe || (far-axes[i].Safe)*(axes[i].Far-axes[i].Safe) < 0 || (axes[i].Geometric && far <= 0) {
 			return nil, rig.Configf("scenario %s: margins.far.%s %g: the search starts at %g and goes towards %g; the end must lie on that side",
 				sc.Name, axes[i].Name, far, axes[i].Safe, axes[i].Far)
 		}
@@ -405,7 +635,7 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 	for a, ax := range axes {
 		out[a] = AxisMargin{Axis: ax.Name, Unit: ax.Unit, Safe: ax.Safe, Far: ax.Far}
 		for g := 0; g < m.Grid; g++ {
-			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
+			v := ax.at(float64(g) / float64(m.Grid-1))
 			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-grid%d", ax.Name, g))
 			if err != nil {
 				return nil, err
@@ -413,59 +643,82 @@ func (m Margins) Run(ctx context.Context, sc *scenarios.Scenario, axes []Axis) (
 			jobs = append(jobs, js...)
 		}
 	}
-	done := Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, jobs)
+	done, attempts := m.runAll(ctx, jobs)
+	if err := ctx.Err(); err != nil {
+		return out, err
+	}
 	per := m.seeds()
+	// Each axis's bracket: the last pass and the first failure found so
+	// far, while the axis is still being bisected.
+	type bracket struct {
+		pass, fail MarginRun
+		open       bool
+	}
+	br := make([]bracket, len(axes))
 	for a, ax := range axes {
 		am := &out[a]
 		for g := 0; g < m.Grid; g++ {
 			k := (a*m.Grid + g) * per
-			v := ax.Safe + (ax.Far-ax.Safe)*float64(g)/float64(m.Grid-1)
-			am.Grid = append(am.Grid, worstOf(v, done[k:k+per]))
+			v := ax.at(float64(g) / float64(m.Grid-1))
+			am.Grid = append(am.Grid, worstOf(v, done[k:k+per], attempts[k:k+per]))
 		}
-		first := -1
-		for g, r := range am.Grid {
-			if r.Outcome != record.Pass {
-				first = g
-				break
+		br[a].pass, br[a].fail, br[a].open = am.bracket()
+	}
+	// The bisections of all axes go step by step together, so their runs
+	// share the cores as the grid's do; each axis's sequence of values
+	// is the same as bisecting it alone.
+	for i := 0; ; i++ {
+		var jobs []Job
+		var which []int
+		var vals []float64
+		for a, ax := range axes {
+			if br[a].open && !ax.wider(br[a].pass.Value, br[a].fail.Value, m.Tolerance) {
+				br[a].open = false // narrow enough
 			}
-		}
-		switch first {
-		case -1:
-			am.Limit = ax.Far
-			am.LastPass = &am.Grid[m.Grid-1]
-			continue
-		case 0:
-			am.Limit = ax.Safe
-			am.Reached = true
-			am.FirstFail = &am.Grid[0]
-			am.Error = "the scenario as written fails: no margin"
-			continue
-		}
-		am.Reached = true
-		for _, r := range am.Grid[first+1:] {
-			if r.Outcome == record.Pass {
-				am.NotMonotone = true
+			if !br[a].open {
+				continue
 			}
-		}
-		pass, fail := am.Grid[first-1], am.Grid[first]
-		width := m.Tolerance * math.Abs(ax.Far-ax.Safe)
-		for i := 0; math.Abs(fail.Value-pass.Value) > width; i++ {
-			if err := ctx.Err(); err != nil {
-				return out, err
-			}
-			v := 0.5 * (pass.Value + fail.Value)
+			v := ax.mid(br[a].pass.Value, br[a].fail.Value)
 			js, err := m.jobs(sc, ax, v, fmt.Sprintf("%s-bisect%d", ax.Name, i))
 			if err != nil {
 				return nil, err
 			}
-			r := worstOf(v, Scheduler{Jobs: m.Jobs, Runner: m.Runner}.RunAll(ctx, js))
+			jobs = append(jobs, js...)
+			which, vals = append(which, a), append(vals, v)
+		}
+		if len(jobs) == 0 {
+			break
+		}
+		if err := ctx.Err(); err != nil {
+			return out, err
+		}
+		d, n := m.runAll(ctx, jobs)
+		if err := ctx.Err(); err != nil {
+			return out, err
+		}
+		for j, a := range which {
+			am, v := &out[a], vals[j]
+			r := worstOf(v, d[j*per:(j+1)*per], n[j*per:(j+1)*per])
 			am.Bisection = append(am.Bisection, r)
-			if r.Outcome == record.Pass {
-				pass = r
-			} else {
-				fail = r
+			switch {
+			case r.NotMeasured != "":
+				// The bracket cannot be narrowed past a value nobody
+				// measured: no limit rather than one it might decide.
+				am.notMeasured(fmt.Sprintf("bisection point %g %s: %s", v, axes[a].Unit, r.NotMeasured))
+				br[a].open = false
+			case r.Outcome == record.Pass:
+				br[a].pass = r
+			default:
+				br[a].fail = r
 			}
 		}
+	}
+	for a := range axes {
+		am := &out[a]
+		if am.NotMeasured != "" || !am.Reached || am.Error != "" {
+			continue // decided by the grid alone, or not measured
+		}
+		pass, fail := br[a].pass, br[a].fail
 		am.Limit = pass.Value
 		am.Tolerance = math.Abs(fail.Value - pass.Value)
 		am.LastPass, am.FirstFail = &pass, &fail
@@ -495,7 +748,13 @@ func MarginsPage(scenario, dir string, res []AxisMargin) report.MarginsPage {
 		if a.FirstFail != nil {
 			ra.FirstFailDir, ra.FailReason = a.FirstFail.Dir, string(a.FirstFail.Outcome)+": "+a.FirstFail.Reason
 		}
+		if a.NotMeasured != "" {
+			ra.FailReason = "not measured: " + a.NotMeasured
+		}
 		for _, r := range append(append([]MarginRun(nil), a.Grid...), a.Bisection...) {
+			if r.NotMeasured != "" {
+				continue // neither a pass nor a failure: not drawn as either
+			}
 			ra.Points = append(ra.Points, report.MarginPoint{Value: r.Value, Steps: r.Steps, Pass: r.Outcome == record.Pass})
 		}
 		pg.Axes = append(pg.Axes, ra)
@@ -511,6 +770,11 @@ func MarginsSuite(scenario string, res []AxisMargin) report.Suite {
 	for _, a := range res {
 		c := report.Case{Name: a.Axis, Class: scenario, Detail: fmt.Sprintf("limit %g %s", a.Limit, a.Unit)}
 		switch {
+		case a.NotMeasured != "":
+			// The host's fault, not the firmware's: an <error>, as the
+			// suite reports infrastructure.
+			c.Error = "not measured: " + a.NotMeasured
+			c.Detail = "no limit"
 		case a.Error != "":
 			c.Failure = a.Error
 		case !a.Meets:
@@ -549,25 +813,48 @@ func (m Margins) jobs(sc *scenarios.Scenario, ax Axis, v float64, tag string) ([
 }
 
 // worstOf is the run that stands for one value run with several seeds:
-// the worst seed's (a failure when any failed).
-func worstOf(v float64, done []Done) MarginRun {
-	runs := make([]SeedRun, len(done))
+// the worst measured failure when any seed failed; else, when the host
+// spoiled a seed on every attempt, that seed's run (the value is not
+// measured); else the worst pass. attempts[i] is how many times run i
+// was made.
+func worstOf(v float64, done []Done, attempts []int) MarginRun {
+	runs := make([]MarginRun, len(done))
+	seeds := make([]SeedRun, len(done))
+	unmeasured := -1
 	for i, d := range done {
-		r := marginRun(v, d)
-		runs[i] = SeedRun{Outcome: r.Outcome, Steps: r.Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+		runs[i] = marginRun(v, d, attempts[i])
+		seeds[i] = SeedRun{Outcome: runs[i].Outcome, Steps: runs[i].Steps, PeakUtilization: d.Result.Summary.PeakFrictionUtilization}
+		if runs[i].NotMeasured != "" {
+			seeds[i].Outcome = record.Invalid // worstRun passes over it
+			if unmeasured < 0 {
+				unmeasured = i
+			}
+		}
 	}
-	return marginRun(v, done[worstRun(runs)])
+	w := worstRun(seeds)
+	if runs[w].failed() || unmeasured < 0 {
+		return runs[w]
+	}
+	return runs[unmeasured]
 }
 
-func marginRun(v float64, d Done) MarginRun {
-	r := MarginRun{Value: v, Dir: d.Result.Dir}
+// marginRun is the record of one value's run after attempts attempts.
+func marginRun(v float64, d Done, attempts int) MarginRun {
+	r := MarginRun{Value: v, Dir: d.Result.Dir, Attempts: attempts}
 	if d.Err != nil {
 		r.Outcome = record.Aborted
 		r.Reason = d.Err.Error()
+		r.NotMeasured = "could not run: " + d.Err.Error()
+		if HostTrouble(d) {
+			r.NotMeasured = fmt.Sprintf("host trouble on all %d attempts: %v", attempts, d.Err)
+		}
 		return r
 	}
 	r.Outcome = d.Result.Summary.Outcome
 	r.Reason = d.Result.Summary.Reason
 	r.Steps = d.Result.Summary.Steps
+	if HostTrouble(d) {
+		r.NotMeasured = fmt.Sprintf("host trouble on all %d attempts: outcome %s (%s)", attempts, r.Outcome, r.Reason)
+	}
 	return r
 }

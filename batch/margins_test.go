@@ -55,9 +55,23 @@ func TestMarginsOfTheBuiltInController(t *testing.T) {
 // default 10, reference.DefaultGains; set through controller.settings,
 // reference.GainsFromSettings): the swing leg arrives less controlled, and
 // the search must find that the walker needs more friction and survives a
-// smaller backward push late in the stance. (Forward pushes on the demo
-// walker fail by the stance foot slipping, and every lowered-gain variant
-// tried asked less friction there and survived as large a forward push.)
+// smaller backward push late in the stance.
+//
+// Why not a forward push: a push is one tick long (issue 10), so a push
+// of tens of N·s is a force of tens of kN for 1 ms, against which gravity
+// and the torques (≤ 60 N·m) do not count. Whether the stance foot keeps
+// its grip during that tick is set by the push's direction relative to the
+// stance leg and the mass distribution, that is by the posture at the push
+// instant, before the firmware has read a single state after it. On the
+// demo walker the forward pushes at early and mid stance fail exactly
+// there (measured: nominal, friction_limit trip in the push tick at
+// 27.5 N·s early and 29.5 N·s mid; swing_kd 3, peak utilization above the
+// 0.9 criterion from 32 N·s), and the weaker firmware's slightly
+// different posture gives it a little more grip (31.5 and 31 N·s against
+// 27 and 29). That is the plant, not the search: the grids passed below
+// the first failure and the brackets closed to 0.5 N·s without a pass
+// beyond. The backward late push fails steps after the push, when the
+// firmware has to recover, which is what this comparison is about.
 func TestAWeakerFirmwareHasSmallerMargins(t *testing.T) {
 	if testing.Short() {
 		t.Skip("many lockstep walks")
@@ -140,8 +154,8 @@ func TestAxesChangeWhatTheySay(t *testing.T) {
 			if f := v.Faults[len(v.Faults)-1]; f.AtS != 5+0.9*0.5 || f.ImpulseNS[0] != -a.Far {
 				t.Errorf("push: %+v", f)
 			}
-		case "encoder_bits":
-			if v.Sensors.EncoderCountsPerRev != 16 {
+		case "encoder_counts":
+			if v.Sensors.EncoderCountsPerRev != 16 || a.Unit != "counts/rev" {
 				t.Errorf("encoder: %d counts", v.Sensors.EncoderCountsPerRev)
 			}
 		case "mass_plus":
@@ -261,7 +275,7 @@ func TestMarginsFlagAPassBeyondTheLimit(t *testing.T) {
 // side of the start is refused.
 func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
 	doc := map[string]float64{"friction": 0.05, "added_latency": 40, "slope_up": 10, "slope_down": -10, "noise_multiple": 50,
-		"encoder_bits": 4, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30,
+		"encoder_counts": 16, "torque_fraction": 0.05, "mass_plus": 50, "mass_minus": -50, "leg_length_plus": 30, "leg_length_minus": -30,
 		"belt_speed_up": 2, "belt_slow_down": -2}
 	for _, a := range DefaultAxes(Nominal{}) {
 		want, ok := doc[a.Name]
@@ -296,5 +310,181 @@ func TestFarEndsAreTheDocumentedOnes(t *testing.T) {
 	bad, _ := Derive(base, "far-bad", "far end of slope_down uphill", func(s *scenarios.Scenario) { s.Margins.Far = map[string]float64{"slope_down": 3} })
 	if _, err := (Margins{Dir: t.TempDir(), Runner: runner}).Search(context.Background(), bad, []string{"slope_down"}); err == nil {
 		t.Error("a downhill axis ending uphill was accepted")
+	}
+}
+
+// TestEncoderAxisIsInCountsPerRevolution: the encoder axis starts at the
+// scenario's own resolution, runs whole counts per revolution on a
+// geometric grid and reports its limit in counts per revolution. The
+// firmware here (a Runner) fails below 100 counts: the limit is the
+// coarsest passing count found, within the tolerance's ratio of 100.
+func TestEncoderAxisIsInCountsPerRevolution(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sc, _ := Derive(base, "enc", "a 10-bit encoder", func(s *scenarios.Scenario) { s.Sensors.EncoderCountsPerRev = 1024 })
+	var mu sync.Mutex
+	var seen []int
+	runner := func(_ context.Context, s *scenarios.Scenario, o rig.Options) (rig.Result, error) {
+		n := s.Sensors.EncoderCountsPerRev
+		mu.Lock()
+		seen = append(seen, n)
+		mu.Unlock()
+		steps := []hil.StepInfo{}
+		for i := 1; i <= 12; i++ {
+			steps = append(steps, hil.StepInfo{Index: i, DurationS: 0.5, SimTimeS: 0.5 * float64(i)})
+		}
+		if o.OnStep != nil {
+			for _, st := range steps {
+				o.OnStep(st)
+			}
+		}
+		out := record.Pass
+		if n < 100 {
+			out = record.Fail
+		}
+		return rig.Result{Dir: o.RunDir, Summary: record.Summary{Outcome: out, Steps: 12}}, nil
+	}
+	res, err := Margins{Dir: t.TempDir(), Runner: runner}.Search(context.Background(), sc, []string{"encoder_counts"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := res[0]
+	t.Logf("grid %v; limit %g %s ± %g; runs %v", a.Grid, a.Limit, a.Unit, a.Tolerance, seen)
+	if a.Unit != "counts/rev" || a.Safe != 1024 || a.Far != 16 || a.Grid[0].Value != 1024 {
+		t.Errorf("axis %s from %g to %g, first grid point %g: want counts/rev from the scenario's 1024 to 16", a.Unit, a.Safe, a.Far, a.Grid[0].Value)
+	}
+	// ln(1024/16) = 6 ln 2; 2 % of it is a ratio of 2^0.12 ≈ 1.087.
+	if a.Limit < 100 || a.Limit > 100*math.Exp2(0.12) || a.FirstFail.Value >= 100 || a.Limit != math.Round(a.Limit) {
+		t.Errorf("limit %g counts/rev (first fail %g): want a whole count from 100 to %.1f", a.Limit, a.FirstFail.Value, 100*math.Exp2(0.12))
+	}
+	for _, n := range seen[1:] { // the nominal run keeps the scenario's 1024
+		if n < 16 || n > 1024 {
+			t.Errorf("a run with %d counts/rev, outside 16 … 1024", n)
+		}
+	}
+}
+
+// TestModelMismatchKeepsTheShape checks the mass and leg-length axes on a
+// walker whose legs differ (per-leg overrides of every field) against the
+// scaling laws of a rigid body, computed here from the plant parameters
+// the variant builds: scaling every mass by k at fixed geometry scales each
+// moment of inertia by k; scaling every length by s at fixed mass scales it
+// by s². So the dimensionless radius of gyration I/(m L²) of each leg
+// stays as it was, and each leg's lengths keep their ratios.
+func TestModelMismatchKeepsTheShape(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-demo")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f := func(v float64) *float64 { return &v }
+	odd, err := Derive(base, "odd-legs", "a left leg unlike the right", func(s *scenarios.Scenario) {
+		s.Plant.Legs.ArcOffsetM = 0.01
+		s.Plant.Legs.Left = &scenarios.LegOverride{LengthM: f(0.85), MassKG: f(3.6), COMM: f(0.3), InertiaKGM2: f(0.21), FootRadiusM: f(0.25), ArcOffsetM: f(0.02)}
+		s.Plant.Legs.Right = &scenarios.LegOverride{InertiaKGM2: f(0.12)}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	bp, err := odd.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		axis   Axis
+		v      float64
+		mass   float64 // expected factor on every mass
+		length float64 // expected factor on every length
+	}{
+		{MassAxis("mass_plus", 50), 40, 1.4, 1},
+		{MassAxis("mass_minus", -50), -30, 0.7, 1},
+		{LegLengthAxis("leg_length_plus", 30), 20, 1, 1.2},
+		{LegLengthAxis("leg_length_minus", -30), -25, 1, 0.75},
+	} {
+		v, err := Derive(odd, "x-"+tc.axis.Name, tc.axis.Name, func(s *scenarios.Scenario) { tc.axis.Apply(s, tc.v) })
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		vp, err := v.PlantParams()
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		for i := range vp.Legs {
+			b, g := bp.Legs[i], vp.Legs[i]
+			near := func(what string, got, want float64) {
+				if math.Abs(got-want) > 1e-12*math.Max(1, math.Abs(want)) {
+					t.Errorf("%s %g, leg %d: %s %g, want %g", tc.axis.Name, tc.v, i, what, got, want)
+				}
+			}
+			near("mass", g.Mass, tc.mass*b.Mass)
+			near("length", g.Length, tc.length*b.Length)
+			near("centre of mass", g.COMDist, tc.length*b.COMDist)
+			near("foot radius", g.FootRadius, tc.length*b.FootRadius)
+			near("arc offset", g.ArcOffset, tc.length*b.ArcOffset)
+			near("I/(m L²)", g.Inertia/(g.Mass*g.Length*g.Length), b.Inertia/(b.Mass*b.Length*b.Length))
+		}
+		if odd.Plant.Legs.Left.InertiaKGM2 == nil || *odd.Plant.Legs.Left.InertiaKGM2 != 0.21 {
+			t.Errorf("%s changed the scenario it was derived from", tc.axis.Name)
+		}
+	}
+}
+
+// TestModelMismatchScalesShanks is TestModelMismatchKeepsTheShape for a
+// kneed walker: the shank of each leg (shared block and a per-leg
+// override) follows the same rigid-body scaling laws as the thigh.
+func TestModelMismatchScalesShanks(t *testing.T) {
+	base, err := scenarios.LoadBuiltin("level-kneed")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if base.Plant.Legs.Shank == nil {
+		t.Fatal("level-kneed has no shank block")
+	}
+	f := func(v float64) *float64 { return &v }
+	odd, err := Derive(base, "odd-shank", "a left shank unlike the right", func(s *scenarios.Scenario) {
+		s.Plant.Legs.Left = &scenarios.LegOverride{Shank: &scenarios.ShankOverride{MassKG: f(1.7), COMM: f(0.2), InertiaKGM2: f(0.03)}}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	bp, err := odd.PlantParams()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		axis         Axis
+		v            float64
+		mass, length float64
+	}{
+		{MassAxis("mass_plus", 50), 40, 1.4, 1},
+		{LegLengthAxis("leg_length_minus", -30), -25, 1, 0.75},
+	} {
+		v, err := Derive(odd, "x-"+tc.axis.Name, tc.axis.Name, func(s *scenarios.Scenario) { tc.axis.Apply(s, tc.v) })
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		vp, err := v.PlantParams()
+		if err != nil {
+			t.Fatalf("%s: %v", tc.axis.Name, err)
+		}
+		for i := range vp.Legs {
+			b, g := bp.Legs[i].Shank, vp.Legs[i].Shank
+			if b == nil || g == nil {
+				t.Fatalf("%s: leg %d lost its shank", tc.axis.Name, i)
+			}
+			near := func(what string, got, want float64) {
+				if math.Abs(got-want) > 1e-12*math.Max(1, math.Abs(want)) {
+					t.Errorf("%s %g, shank %d: %s %g, want %g", tc.axis.Name, tc.v, i, what, got, want)
+				}
+			}
+			near("mass", g.Mass, tc.mass*b.Mass)
+			near("length", g.Length, tc.length*b.Length)
+			near("centre of mass", g.COMDist, tc.length*b.COMDist)
+			near("I/(m L²)", g.Inertia/(g.Mass*g.Length*g.Length), b.Inertia/(b.Mass*b.Length*b.Length))
+		}
+		if *odd.Plant.Legs.Left.Shank.MassKG != 1.7 || odd.Plant.Legs.Shank.MassKG != base.Plant.Legs.Shank.MassKG {
+			t.Errorf("%s changed the scenario it was derived from", tc.axis.Name)
+		}
 	}
 }

@@ -102,9 +102,14 @@ type Preflight struct {
 	Jobs int
 	// Runner runs one check. Default rig.Run.
 	Runner RunFunc
-	// OnDone is called once per check as it finishes, in battery order.
-	// Default none.
+	// OnDone is called once per check as it finishes, in battery order
+	// (with Seeds, once per check when its last seed is done, with the
+	// worst seed's run). Default none.
 	OnDone func(i int, d Done)
+	// Seeds, when above 1, runs every check with that many seeds of
+	// sensor noise, drops and latency (SeedVariants); a check passes
+	// only when every seed passes. Default 1: the scenario's own seed.
+	Seeds int
 }
 
 func (p Preflight) checks() []Check {
@@ -141,6 +146,10 @@ type CheckResult struct {
 	// Problems says, in words, why a check that ran did not pass: the
 	// outcome, its reason and each failed criterion with value and limit.
 	Problems []string
+	// Seeds is the check over Preflight.Seeds seeds (nil with one seed):
+	// its pass rate with the Wilson interval and the worst run, which is
+	// the run in Done.
+	Seeds *SeedsResult
 }
 
 // PreflightResult is the verdict of a preflight.
@@ -159,11 +168,47 @@ func (p Preflight) Run(ctx context.Context, variants []*scenarios.Scenario) (Pre
 	if len(variants) != len(checks) {
 		return PreflightResult{}, fmt.Errorf("preflight: %d variants for %d checks", len(variants), len(checks))
 	}
-	jobs := make([]Job, len(variants))
+	n := max(p.Seeds, 1)
+	seeded := make([][]*scenarios.Scenario, len(variants))
+	var jobs []Job
 	for i, v := range variants {
-		jobs[i] = Job{Scenario: v, Options: rig.Options{Link: p.Link, RunDir: filepath.Join(p.Dir, v.Name), Report: true}}
+		seeded[i] = []*scenarios.Scenario{v}
+		if n > 1 {
+			vs, err := SeedVariants(v, n)
+			if err != nil {
+				return PreflightResult{}, rig.ConfigError(err)
+			}
+			seeded[i] = vs
+		}
+		for _, s := range seeded[i] {
+			jobs = append(jobs, Job{Scenario: s, Options: rig.Options{Link: p.Link, RunDir: filepath.Join(p.Dir, s.Name), Report: true}})
+		}
 	}
-	runs := Scheduler{Jobs: p.Jobs, Runner: p.Runner, OnDone: p.OnDone}.RunAll(ctx, jobs)
+	// A check is one run, or its worst seed's: OnDone reports a check
+	// when its last seed is done (the scheduler calls in job order).
+	var onDone func(int, Done)
+	if p.OnDone != nil {
+		runs := make([]Done, 0, n)
+		onDone = func(j int, d Done) {
+			runs = append(runs, d)
+			if len(runs) == n {
+				i := j / n
+				p.OnDone(i, runs[seedsResult(variants[i].Name, seeded[i], runs).Worst])
+				runs = runs[:0]
+			}
+		}
+	}
+	all := Scheduler{Jobs: p.Jobs, Runner: p.Runner, OnDone: onDone}.RunAll(ctx, jobs)
+	runs := make([]Done, len(variants))
+	var seeds []*SeedsResult
+	for i := range variants {
+		ds := all[i*n : (i+1)*n]
+		sr := seedsResult(variants[i].Name, seeded[i], ds)
+		runs[i] = ds[sr.Worst]
+		if n > 1 {
+			seeds = append(seeds, &sr)
+		}
+	}
 	out := PreflightResult{Go: true}
 	for i, d := range runs {
 		c := CheckResult{Check: checks[i], Done: d}
@@ -174,8 +219,25 @@ func (p Preflight) Run(ctx context.Context, variants []*scenarios.Scenario) (Pre
 			c.Pass = s.Outcome == record.Pass
 			if !c.Pass {
 				c.Problems = []string{"outcome " + string(s.Outcome) + reasonSuffix(failureReason(s))}
-				r.Regressions = c.Problems
 			}
+		}
+		if seeds != nil {
+			sr := seeds[i]
+			c.Seeds = sr
+			r.Scenario = variants[i].Name // the check, not its worst seed
+			// The worst run is a failure when any seed failed; a seed the
+			// host spoiled was not tested, so it is no pass either.
+			if sr.Invalid > 0 && c.Pass {
+				c.Pass = false
+				c.Problems = append(c.Problems, fmt.Sprintf("%d of %d seeds ran invalid (the host stalled them): not tested; run again on a quieter host", sr.Invalid, len(sr.Runs)))
+			}
+			if !c.Pass {
+				c.Problems = append(c.Problems, fmt.Sprintf("%d of %d seeds passed (pass rate %.3f, 95 %% Wilson interval %.3f … %.3f); worst run seed %d: %s",
+					sr.Passed, sr.N, sr.Rate, sr.Low, sr.High, sr.Runs[sr.Worst].Seed, sr.Runs[sr.Worst].Dir))
+			}
+		}
+		if !c.Pass {
+			r.Regressions = c.Problems
 		}
 		if !c.Pass {
 			out.Go = false

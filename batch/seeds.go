@@ -103,8 +103,14 @@ func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o
 		oi.RunDir = filepath.Join(dir, v.Name)
 		jobs[i] = Job{Scenario: v, Options: oi}
 	}
-	res := SeedsResult{Scenario: sc.Name, Caution: record.Caution}
-	for i, d := range s.RunAll(ctx, jobs) {
+	return seedsResult(sc.Name, vs, s.RunAll(ctx, jobs)), nil
+}
+
+// seedsResult is the pass rate of the runs done of the seed variants vs
+// (in the same order) of the scenario named name.
+func seedsResult(name string, vs []*scenarios.Scenario, done []Done) SeedsResult {
+	res := SeedsResult{Scenario: name, Caution: record.Caution}
+	for i, d := range done {
 		r := SeedRun{Seed: vs[i].Sensors.Seed, Dir: d.Result.Dir}
 		if d.Err != nil {
 			r.Outcome, r.Reason = record.Aborted, d.Err.Error()
@@ -120,14 +126,14 @@ func RunSeeds(ctx context.Context, s Scheduler, sc *scenarios.Scenario, n int, o
 		}
 		res.Runs = append(res.Runs, r)
 	}
-	res.N = n - res.Invalid
+	res.N = len(done) - res.Invalid
 	res.Rate = math.NaN()
 	if res.N > 0 {
 		res.Rate = float64(res.Passed) / float64(res.N)
 	}
 	res.Low, res.High = Wilson(res.Passed, res.N, WilsonZ95)
 	res.Worst = worstRun(res.Runs)
-	return res, nil
+	return res
 }
 
 // worstRun picks the failure with the fewest steps, else the pass with the

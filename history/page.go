@@ -98,7 +98,8 @@ var pageTmpl = template.Must(template.New("history").Funcs(template.FuncMap{
 .drift{color:#c0392b;font-weight:bold}section{margin-bottom:1.5em}</style></head><body>
 <h1>History across firmware builds</h1>
 <p class="caution" id="caution">{{.Caution}}</p>
-<p>Oldest build on the left. The shaded band is the baseline's value and how far the baseline comparison lets the figure move; drift is a move the same way over the last builds, more than that in total although each build stayed within it.</p>
+<p>Oldest build on the left. The shaded band is the baseline's value and how far the baseline comparison lets the figure move; drift is a move the same way over the last builds, more than that in total although each build stayed within it.
+Margins and the spectral radius (from gaitrig margins, stability and preflight) have no baseline: their band is the first build's value and the resolution it was measured with (the search's final bracket; half the 95 % bootstrap interval).</p>
 {{range .Pages}}{{$p := .}}<article class="scenario" id="scenario-{{.Scenario}}"><h2>{{.Scenario}}: {{.Builds}} builds</h2>
 {{range .Trends}}<section class="figure" id="figure-{{$p.Scenario}}-{{.Name}}"><h3>{{.Label}}{{if .Drift}} <span class="drift">drift: {{num .DriftTotal}} over the last {{$p.K}} builds (band ± {{num .Tolerance}})</span>{{end}}</h3>
 {{plot .}}

@@ -34,7 +34,7 @@ const EnvRevision = "GAITRIG_FIRMWARE_REVISION"
 
 // SchemaVersion is the newest schema this build writes; Open migrates an
 // older database up to it and refuses a newer one.
-const SchemaVersion = 1
+const SchemaVersion = 2
 
 // Result is one stored run.
 type Result struct {
@@ -58,6 +58,47 @@ type Result struct {
 	LatencyP99US     float64        `json:"latency_p99_us"`     // NaN (null) when not measured (lockstep)
 	LatencyMaxUS     float64        `json:"latency_max_us"`     // NaN (null) when not measured (lockstep)
 	Alarms           map[string]int `json:"alarms,omitempty"`   // count per alarm kind
+	// Margins are the limits of a margin search (gaitrig margins, or the
+	// envelope of gaitrig preflight) by axis; nil for a run's result.
+	// Since schema 2.
+	Margins map[string]Margin `json:"margins,omitempty"`
+	// Stability is the closed-loop stability estimate (gaitrig stability,
+	// or the envelope of gaitrig preflight); nil for a run's result.
+	// Since schema 2.
+	Stability *Stability `json:"stability,omitempty"`
+}
+
+// Envelope reports whether r holds an envelope result (margins or a
+// stability estimate) rather than a run's figures: the trend takes each
+// figure only from the results that have it.
+func (r Result) Envelope() bool { return r.Margins != nil || r.Stability != nil }
+
+// Margin is one axis's limit as stored.
+type Margin struct {
+	// Limit is the last passing value, in Unit; NaN (null) when the axis
+	// was not measured.
+	Limit float64 `json:"limit"`
+	// Resolution is the width of the bracket the search stopped at, in
+	// Unit: a change smaller than it is below what the search resolves.
+	Resolution float64 `json:"resolution"`
+	Unit       string  `json:"unit"`
+	// Reached is false when every value up to the end of the range passed
+	// (Limit is then the range's end, a lower bound).
+	Reached bool `json:"reached"`
+	// NotMeasured says why the axis has no limit (the host spoiled a run
+	// it needed).
+	NotMeasured string `json:"not_measured,omitempty"`
+}
+
+// Stability is a stability estimate as stored.
+type Stability struct {
+	SpectralRadius float64 `json:"spectral_radius"`
+	// RadiusLow and RadiusHigh bound its 95 % bootstrap interval.
+	RadiusLow  float64 `json:"spectral_radius_low"`
+	RadiusHigh float64 `json:"spectral_radius_high"`
+	// Eigenvalues are the fitted map's, largest modulus first, as
+	// (real, imaginary) pairs.
+	Eigenvalues [][2]float64 `json:"eigenvalues"`
 }
 
 // Store is an open history database.
@@ -154,6 +195,14 @@ func migrations(postgres bool) []string {
 			latency_max_us DOUBLE PRECISION,
 			alarms TEXT NOT NULL);
 		CREATE INDEX gaitrig_results_scenario ON gaitrig_results (scenario, id)`,
+		// 2: the safety envelope (issue 10): margins by axis as JSON,
+		// the spectral radius with its interval, the eigenvalues as JSON.
+		// NULL for a run's result and for rows stored before.
+		`ALTER TABLE gaitrig_results ADD COLUMN margins TEXT;
+		ALTER TABLE gaitrig_results ADD COLUMN spectral_radius DOUBLE PRECISION;
+		ALTER TABLE gaitrig_results ADD COLUMN spectral_radius_low DOUBLE PRECISION;
+		ALTER TABLE gaitrig_results ADD COLUMN spectral_radius_high DOUBLE PRECISION;
+		ALTER TABLE gaitrig_results ADD COLUMN eigenvalues TEXT`,
 	}
 }
 
@@ -242,13 +291,32 @@ func (s *Store) Add(ctx context.Context, r *Result) error {
 	if err != nil {
 		return err
 	}
+	var margins, eigen sql.NullString
+	var radius [3]sql.NullFloat64
+	if r.Margins != nil {
+		b, err := json.Marshal(rig.JSONSafe(r.Margins)) // a not-measured limit as null
+		if err != nil {
+			return err
+		}
+		margins = sql.NullString{String: string(b), Valid: true}
+	}
+	if st := r.Stability; st != nil {
+		b, err := json.Marshal(rig.JSONSafe(st.Eigenvalues))
+		if err != nil {
+			return err
+		}
+		eigen = sql.NullString{String: string(b), Valid: true}
+		radius = [3]sql.NullFloat64{null(st.SpectralRadius), null(st.RadiusLow), null(st.RadiusHigh)}
+	}
 	q := `INSERT INTO gaitrig_results (recorded_at, command, scenario, scenario_sha256, firmware_name, firmware_build,
 		firmware_revision, tool_version, host, outcome, reason, steps, mean_speed_mps, peak_friction_utilization,
-		min_normal_force_n, latency_p50_us, latency_p99_us, latency_max_us, alarms)
-		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		min_normal_force_n, latency_p50_us, latency_p99_us, latency_max_us, alarms,
+		margins, spectral_radius, spectral_radius_low, spectral_radius_high, eigenvalues)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
 	args := []any{r.RecordedAt.UTC().Format(time.RFC3339Nano), r.Command, r.Scenario, r.ScenarioSHA256, r.FirmwareName, r.FirmwareBuild,
 		r.FirmwareRevision, r.ToolVersion, r.Host, r.Outcome, r.Reason, r.Steps, null(r.MeanSpeedMPS), null(r.PeakFriction),
-		null(r.MinNormalForceN), null(r.LatencyP50US), null(r.LatencyP99US), null(r.LatencyMaxUS), string(alarms)}
+		null(r.MinNormalForceN), null(r.LatencyP50US), null(r.LatencyP99US), null(r.LatencyMaxUS), string(alarms),
+		margins, radius[0], radius[1], radius[2], eigen}
 	if s.postgres {
 		return s.db.QueryRowContext(ctx, s.bind(q)+" RETURNING id", args...).Scan(&r.ID)
 	}
@@ -272,7 +340,8 @@ func (s *Store) Series(ctx context.Context, scenario string, limit int) ([]Resul
 	}
 	rows, err := s.db.QueryContext(ctx, s.bind(`SELECT id, recorded_at, command, scenario, scenario_sha256, firmware_name,
 		firmware_build, firmware_revision, tool_version, host, outcome, reason, steps, mean_speed_mps,
-		peak_friction_utilization, min_normal_force_n, latency_p50_us, latency_p99_us, latency_max_us, alarms
+		peak_friction_utilization, min_normal_force_n, latency_p50_us, latency_p99_us, latency_max_us, alarms,
+		margins, spectral_radius, spectral_radius_low, spectral_radius_high, eigenvalues
 		FROM gaitrig_results WHERE scenario = ? ORDER BY id DESC LIMIT ?`), scenario, limit)
 	if err != nil {
 		return nil, err
@@ -282,10 +351,11 @@ func (s *Store) Series(ctx context.Context, scenario string, limit int) ([]Resul
 	for rows.Next() {
 		var r Result
 		var at, alarms string
-		var f [6]sql.NullFloat64
+		var margins, eigen sql.NullString
+		var f [9]sql.NullFloat64
 		if err := rows.Scan(&r.ID, &at, &r.Command, &r.Scenario, &r.ScenarioSHA256, &r.FirmwareName, &r.FirmwareBuild,
 			&r.FirmwareRevision, &r.ToolVersion, &r.Host, &r.Outcome, &r.Reason, &r.Steps,
-			&f[0], &f[1], &f[2], &f[3], &f[4], &f[5], &alarms); err != nil {
+			&f[0], &f[1], &f[2], &f[3], &f[4], &f[5], &alarms, &margins, &f[6], &f[7], &f[8], &eigen); err != nil {
 			return nil, err
 		}
 		if r.RecordedAt, err = time.Parse(time.RFC3339Nano, at); err != nil {
@@ -301,6 +371,18 @@ func (s *Store) Series(ctx context.Context, scenario string, limit int) ([]Resul
 		r.MeanSpeedMPS, r.PeakFriction, r.MinNormalForceN, r.LatencyP50US, r.LatencyP99US, r.LatencyMaxUS = v[0], v[1], v[2], v[3], v[4], v[5]
 		if err := json.Unmarshal([]byte(alarms), &r.Alarms); err != nil {
 			return nil, fmt.Errorf("result %d: alarms: %v", r.ID, err)
+		}
+		if margins.Valid {
+			if err := decodeMargins(margins.String, &r.Margins); err != nil {
+				return nil, fmt.Errorf("result %d: margins: %v", r.ID, err)
+			}
+		}
+		if eigen.Valid {
+			st := &Stability{SpectralRadius: v[6], RadiusLow: v[7], RadiusHigh: v[8]}
+			if err := json.Unmarshal([]byte(eigen.String), &st.Eigenvalues); err != nil {
+				return nil, fmt.Errorf("result %d: eigenvalues: %v", r.ID, err)
+			}
+			r.Stability = st
 		}
 		out = append(out, r)
 	}
@@ -327,6 +409,32 @@ func (s *Store) Scenarios(ctx context.Context) ([]string, error) {
 		out = append(out, n)
 	}
 	return out, rows.Err()
+}
+
+// decodeMargins reads the margins column; a limit stored as null (not
+// measured) reads back as NaN.
+func decodeMargins(text string, out *map[string]Margin) error {
+	var raw map[string]struct {
+		Limit       *float64 `json:"limit"`
+		Resolution  *float64 `json:"resolution"`
+		Unit        string   `json:"unit"`
+		Reached     bool     `json:"reached"`
+		NotMeasured string   `json:"not_measured"`
+	}
+	if err := json.Unmarshal([]byte(text), &raw); err != nil {
+		return err
+	}
+	*out = make(map[string]Margin, len(raw))
+	orNaN := func(p *float64) float64 {
+		if p == nil {
+			return math.NaN()
+		}
+		return *p
+	}
+	for k, m := range raw {
+		(*out)[k] = Margin{Limit: orNaN(m.Limit), Resolution: orNaN(m.Resolution), Unit: m.Unit, Reached: m.Reached, NotMeasured: m.NotMeasured}
+	}
+	return nil
 }
 
 // ErrNoResults is returned for a scenario with nothing stored.

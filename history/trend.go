@@ -5,6 +5,7 @@ import (
 
 	"gaitrig/batch"
 	"gaitrig/record"
+	"gaitrig/scenarios"
 )
 
 // DefaultDriftBuilds is how many builds back drift is looked for (k): the
@@ -99,11 +100,23 @@ func Drift(values []float64, k int, tol float64) (drift bool, total float64) {
 // k changes.
 //
 // Results whose outcome says nothing about the build (invalid: the host
-// spoiled it; aborted: stopped by a person) are left out.
+// spoiled it; aborted: stopped by a person) are left out, except an
+// envelope result whose axes the host kept from measuring: its measured
+// margins still count, the others are gaps.
+//
+// The figures of Figures come from runs' results; envelope results
+// (margins, stability: Result.Envelope) add one trend per margin axis
+// stored and one of the spectral radius, after them, when any result has
+// them (see envelopeTrends).
 func Trends(all []Result, ref *batch.Entry, tol batch.Tolerances, k int) []Trend {
 	rs := make([]Result, 0, len(all))
+	var env []Result
 	for _, r := range all {
-		if r.Outcome != string(record.Invalid) && r.Outcome != string(record.Aborted) {
+		switch {
+		case r.Envelope() && r.Outcome != string(record.Aborted):
+			env = append(env, r)
+		case r.Envelope():
+		case r.Outcome != string(record.Invalid) && r.Outcome != string(record.Aborted):
 			rs = append(rs, r)
 		}
 	}
@@ -135,7 +148,77 @@ func Trends(all []Result, ref *batch.Entry, tol batch.Tolerances, k int) []Trend
 		}
 		out = append(out, t)
 	}
+	return append(out, envelopeTrends(env, k)...)
+}
+
+// envelopeTrends follows each margin axis (in scenarios.MarginAxes order)
+// and the spectral radius over the envelope results that hold them. No
+// baseline covers them, so the band is centred on the first build's
+// value, and its half width is how finely that build measured the figure:
+// a margin's bracket width (the search's resolution), the half width of
+// the spectral radius's 95 % bootstrap interval. Drift is then a move the
+// same way over the last k builds, each within the measurement's
+// resolution, more than it in total.
+func envelopeTrends(env []Result, k int) []Trend {
+	var out []Trend
+	for _, axis := range scenarios.MarginAxes {
+		var pts []Point
+		var vals, res []float64
+		unit := ""
+		for _, r := range env {
+			m, ok := r.Margins[axis]
+			if !ok {
+				continue
+			}
+			unit = m.Unit
+			pts = append(pts, Point{ID: r.ID, Build: buildOf(r), Value: m.Limit, Outcome: r.Outcome})
+			vals, res = append(vals, m.Limit), append(res, m.Resolution)
+		}
+		if len(pts) == 0 {
+			continue
+		}
+		out = append(out, envelopeTrend("margin_"+axis, "margin "+axis+", "+unit, pts, vals, res, k))
+	}
+	var pts []Point
+	var vals, res []float64
+	for _, r := range env {
+		if st := r.Stability; st != nil {
+			pts = append(pts, Point{ID: r.ID, Build: buildOf(r), Value: st.SpectralRadius, Outcome: r.Outcome})
+			vals, res = append(vals, st.SpectralRadius), append(res, (st.RadiusHigh-st.RadiusLow)/2)
+		}
+	}
+	if len(pts) > 0 {
+		out = append(out, envelopeTrend("spectral_radius", "spectral radius of the step-to-step map", pts, vals, res, k))
+	}
 	return out
+}
+
+// envelopeTrend is one envelope figure's trend, its band centred on the
+// first measured value with that build's resolution as half width.
+func envelopeTrend(name, label string, pts []Point, vals, res []float64, k int) Trend {
+	t := Trend{Name: name, Label: label, Points: pts, Reference: math.NaN(), Tolerance: math.NaN()}
+	for i, v := range vals {
+		if !math.IsNaN(v) {
+			t.Reference, t.Tolerance = v, res[i]
+			break
+		}
+	}
+	t.Drift, t.DriftTotal = Drift(vals, k, t.Tolerance)
+	if t.Drift {
+		for i := len(t.Points) - k - 1; i < len(t.Points); i++ {
+			t.Points[i].Drifting = true
+		}
+	}
+	return t
+}
+
+// buildOf is how a point names its build: the firmware revision, else the
+// greeting's build.
+func buildOf(r Result) string {
+	if r.FirmwareRevision != "" {
+		return r.FirmwareRevision
+	}
+	return r.FirmwareBuild
 }
 
 // entryValue is a baseline entry's value of the named figure.

@@ -626,14 +626,14 @@ type Criteria = hil.Criteria
 // MarginAxes are the axes `gaitrig margins` can search, in the order it
 // searches them (the batch package makes each one): the floor's friction,
 // hip pushes forward and backward at early, mid and late stance, added
-// command latency, slope up and down, then sensor noise, encoder bits,
+// command latency, slope up and down, then sensor noise, encoder resolution,
 // torque limit and the plant's mass and leg length off while the firmware
 // is unchanged, and on a treadmill the largest belt speed-up and slow-down
 // pulse survived.
 var MarginAxes = []string{"friction",
 	"push_forward_early", "push_forward_mid", "push_forward_late",
 	"push_backward_early", "push_backward_mid", "push_backward_late",
-	"added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_bits",
+	"added_latency", "slope_up", "slope_down", "noise_multiple", "encoder_counts",
 	"torque_fraction", "mass_plus", "mass_minus", "leg_length_plus", "leg_length_minus",
 	"belt_speed_up", "belt_slow_down"} // the belt axes: treadmill scenarios only
 
@@ -644,7 +644,7 @@ type Margins struct {
 	// Axes are the axes to search: friction, push_forward_early,
 	// push_forward_mid, push_forward_late, push_backward_early,
 	// push_backward_mid, push_backward_late, added_latency, slope_up,
-	// slope_down, noise_multiple, encoder_bits, torque_fraction, mass_plus,
+	// slope_down, noise_multiple, encoder_counts, torque_fraction, mass_plus,
 	// mass_minus, leg_length_plus, leg_length_minus, and on a treadmill
 	// belt_speed_up, belt_slow_down (MarginAxes). Default: all (the belt
 	// axes only on a treadmill).
@@ -652,10 +652,10 @@ type Margins struct {
 	// Far sets where an axis's search ends, by axis name, in the axis's
 	// unit (friction: fraction of μ_s, pushes: N·s, added_latency: ms,
 	// slopes: degrees, negative downhill, noise_multiple: times,
-	// encoder_bits: bits, torque_fraction: fraction, mass and leg length:
+	// encoder_counts: counts per revolution, torque_fraction: fraction, mass and leg length:
 	// %, negative for the minus axes); the search starts at the scenario as
 	// written. Default per axis: friction 0.05, pushes 40, added_latency
-	// 40, slope_up 10, slope_down -10, noise_multiple 50, encoder_bits 4,
+	// 40, slope_up 10, slope_down -10, noise_multiple 50, encoder_counts 16,
 	// torque_fraction 0.05, mass ±50, leg length ±30, belt pulses ±2 m/s.
 	Far map[string]float64 `yaml:"far"`
 	// Tolerance is the width the bisection stops at, as a fraction of the

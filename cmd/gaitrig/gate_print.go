@@ -4,22 +4,21 @@ import (
 	"context"
 	"fmt"
 	"io"
-	"path/filepath"
 
 	"gaitrig/batch"
-	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
 
 // printGate runs the envelope part of preflight and prints its table; it
-// returns whether the envelope says GO.
-func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *scenarios.Scenario) bool {
+// returns the envelope's result (nil when it could not be measured) and
+// whether it says GO.
+func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *scenarios.Scenario) (*batch.GateResult, bool) {
 	fmt.Fprintf(stdout, "\nsafety envelope (margins block of %s):\n", sc.Name)
 	res, err := g.Run(ctx, sc)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight: envelope:", err)
 		fmt.Fprintln(stdout, "  could not be measured:", err)
-		return false
+		return nil, false
 	}
 	if len(res.Margins) == 0 {
 		fmt.Fprintln(stdout, "  no margin minima set (margins.min_friction_ratio, min_push_ns, min_added_latency_ms, min_slope_deg)")
@@ -27,7 +26,9 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 		fmt.Fprintf(stdout, "  %-20s %10s %10s %-6s %s\n", "margin", "measured", "required", "unit", "result")
 		for _, a := range res.Margins {
 			verdict := "meets"
-			if a.Error != "" {
+			if a.NotMeasured != "" {
+				verdict = "NOT MEASURED: " + a.NotMeasured
+			} else if a.Error != "" {
 				verdict = "FAIL: " + a.Error
 			} else if !a.Meets {
 				verdict = fmt.Sprintf("FAIL: short by %.4g %s", a.Shortfall, a.Unit)
@@ -51,26 +52,5 @@ func printGate(ctx context.Context, stdout, stderr io.Writer, g batch.Gate, sc *
 	for _, f := range res.Failures {
 		fmt.Fprintln(stdout, "  NO-GO:", f)
 	}
-	if g.Seeds > 1 {
-		// The scenario as written over the seeds: a gate cannot accept a
-		// seed that fails.
-		sr, err := batch.RunSeeds(ctx, batch.Scheduler{Jobs: g.Jobs}, sc, g.Seeds, rig.Options{Link: g.Link}, filepath.Join(g.Dir, "seeds"))
-		if err != nil {
-			fmt.Fprintln(stdout, "  seeds could not be run:", err)
-			return false
-		}
-		worst := sr.Runs[sr.Worst]
-		fmt.Fprintf(stdout, "  %d seeds of %s: %d passed, pass rate %.3f (95 %% Wilson interval %.3f … %.3f); worst run seed %d, %s: %s\n",
-			sr.N, sc.Name, sr.Passed, sr.Rate, sr.Low, sr.High, worst.Seed, worst.Outcome, worst.Dir)
-		if sr.Passed != sr.N {
-			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds failed\n", sr.N-sr.Passed, sr.N)
-			return false
-		}
-		if sr.Invalid > 0 {
-			// A seed the host spoiled was not tested: no GO on it.
-			fmt.Fprintf(stdout, "  NO-GO: %d of %d seeds ran invalid (the host stalled them); run preflight again on a quieter host\n", sr.Invalid, g.Seeds)
-			return false
-		}
-	}
-	return res.Go
+	return &res, res.Go
 }

@@ -73,11 +73,12 @@ func (h historyFlags) store(s *history.Store, command string, sc *scenarios.Scen
 
 func cmdHistory(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("history", "", `
-Shows each figure of the stored results (gaitrig run or suite --history) across
-firmware builds, oldest first: steps, mean speed, peak friction utilization,
-minimum normal force and command latency p99, each with the band the baseline
-comparison allows (around the --baseline's entry, else the oldest build shown),
-and flags drift: a figure that moved the same way over the last --drift-builds
+Shows each figure of the stored results (gaitrig run, suite, margins, stability
+or preflight --history) across firmware builds, oldest first: steps, mean speed,
+peak friction utilization, minimum normal force and command latency p99, each
+with the band the baseline comparison allows (around the --baseline's entry,
+else the oldest build shown); then each margin and the spectral radius stored,
+banded by the resolution the oldest build measured them with; and flags drift: a figure that moved the same way over the last --drift-builds
 builds by more than that band in total although each build stayed within it.
 Writes an HTML page with --page; prints a table, or JSON with --json. Exit
 codes: 0 no drift, 1 a figure drifting, 2 bad usage or an unreadable database.`, stdout, stderr)

@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -11,6 +12,7 @@ import (
 	"runtime"
 
 	"gaitrig/batch"
+	"gaitrig/history"
 	"gaitrig/record"
 	"gaitrig/report"
 	"gaitrig/rig"
@@ -25,8 +27,9 @@ func cmdMargins(args []string, stdout, stderr io.Writer) int {
 	c := newCmdline("margins", "SCENARIO", `
 The safety envelope by search. For each axis (floor friction; a forward and a
 backward hip push at early, mid and late stance; added command latency; slope
-up and down; sensor noise multiple; encoder bits; torque-limit fraction; plant
-mass and leg length off by a percentage while the firmware is unchanged)
+up and down; sensor noise multiple; encoder resolution in counts per
+revolution; torque-limit fraction; plant mass and leg length off by a
+percentage while the firmware is unchanged)
 the rig runs a coarse grid from the scenario as written towards harder
 conditions, then bisects between the last pass and the first fail until the
 bracket is narrower than the tolerance. Each limit comes with the two runs
@@ -35,21 +38,33 @@ again. The scenario's margins block chooses the axes and sets the minima a
 lab requires (min_friction_ratio, min_push_ns, min_added_latency_ms,
 min_slope_deg); the table says which margin misses its minimum and by how
 much. Writes margins.html (one survival plot per axis), junit.xml and
-margins.json into the search's folder. Exit code 0 when every axis was
-searched and meets its minimum, 1 otherwise.`, stdout, stderr)
+margins.json into the search's folder. A run the host spoiled (outcome
+invalid, a link that would not open) is made again up to --retries times; a
+value still spoiled decides nothing, and an axis that needed it is reported
+"not measured" with the reason instead of a limit. Exit code 0 when every
+axis was searched and meets its minimum, 1 when one misses it or has no
+margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 	link := c.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
 	out := c.String("out", "runs", "parent folder for the run folders")
 	asJSON := c.jsonFlag()
 	tol := c.Float64("tolerance", 0, "bisection stops at this fraction of the axis range (default: the scenario's margins.tolerance, 0.02)")
 	jobs := c.Int("jobs", runtime.NumCPU(), "runs at once (only in-process lockstep runs share the machine)")
 	seeds := c.Int("seeds", 1, "run every value with N seeds of noise, drops and latency; a value passes only when all pass")
+	retries := c.Int("retries", batch.DefaultMarginRetries, "make a run the host spoiled again up to `N` times")
+	hist := addHistoryFlags(c)
 	if done, code := c.parse(args); done {
 		return code
 	}
 	if c.NArg() != 1 {
 		return c.usageError("want exactly one SCENARIO")
 	}
-	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds}
+	if *retries < 0 {
+		return c.usageError("--retries must be 0 or more, got %d", *retries)
+	}
+	m := batch.Margins{Tolerance: *tol, Jobs: *jobs, Seeds: *seeds, Retries: *retries}
+	if *retries == 0 {
+		m.Retries = -1 // none (the zero value of Margins.Retries is the default)
+	}
 	if *link != "" {
 		spec, err := rig.ParseLink(*link)
 		if err != nil {
@@ -69,10 +84,25 @@ searched and meets its minimum, 1 otherwise.`, stdout, stderr)
 	}
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig margins:", err)
+		return exitCodeFor(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	res, err := m.Search(ctx, sc, nil)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig margins:", err)
 		return exitCodeFor(err)
+	}
+	var herr error
+	if hs != nil {
+		r := history.FromMargins("margins", sc, res, history.GreetingOf(firstMarginRun(res)), hist.rev())
+		if herr = hs.Add(context.Background(), &r); herr != nil {
+			fmt.Fprintln(stderr, "gaitrig margins: history:", herr)
+		}
 	}
 	files, ferr := writeMarginsFiles(m.Dir, sc.Name, res)
 	if ferr != nil {
@@ -102,6 +132,9 @@ searched and meets its minimum, 1 otherwise.`, stdout, stderr)
 			if a.Error != "" {
 				fmt.Fprintf(stdout, "    %s\n", a.Error)
 			}
+			if a.NotMeasured != "" {
+				fmt.Fprintf(stdout, "    NOT MEASURED (the host, not the firmware): %s\n", a.NotMeasured)
+			}
 			if a.FrictionRatio > 0 {
 				fmt.Fprintf(stdout, "    μ_s,min %.4g; friction ratio μ_s/μ_s,min %.3g\n", a.MuStaticMin, a.FrictionRatio)
 			}
@@ -125,16 +158,39 @@ searched and meets its minimum, 1 otherwise.`, stdout, stderr)
 		fmt.Fprintln(stdout)
 		fmt.Fprintln(stdout, record.Caution)
 	}
+	// A missed minimum is the firmware's (1); an axis the host kept
+	// from measuring, with nothing missed, is the host's (3).
 	code := exitPass
 	for _, a := range res {
-		if !a.Meets {
+		if a.NotMeasured != "" && code == exitPass {
+			code = exitInvalid
+		}
+	}
+	for _, a := range res {
+		if !a.Meets && a.NotMeasured == "" {
 			code = exitFail
 		}
 	}
 	if ferr != nil {
 		code = exitFail
 	}
+	if herr != nil && code == exitPass {
+		code = exitConfig // a lost history entry is not a silent pass
+	}
 	return code
+}
+
+// firstMarginRun is a run folder of the search, to read the firmware's
+// greeting from ("" when no axis ran).
+func firstMarginRun(res []batch.AxisMargin) string {
+	for _, a := range res {
+		for _, r := range a.Grid {
+			if r.Dir != "" {
+				return r.Dir
+			}
+		}
+	}
+	return ""
 }
 
 // marginsDoc is the JSON of a margin search (stdout with --json, and

@@ -107,11 +107,36 @@ func TestStabilityCommand(t *testing.T) {
 			Modulus float64 `json:"modulus"`
 		} `json:"eigenvalues"`
 		Caution string `json:"caution"`
+		Dir     string `json:"run_dir"`
 	}
 	if err := json.Unmarshal([]byte(out), &rep); err != nil {
 		t.Fatal(err)
 	}
 	if len(rep.Eigenvalues) != 5 || rep.SpectralRadius != rep.Eigenvalues[0].Modulus || !strings.Contains(rep.Caution, "not a safety certificate") {
 		t.Errorf("%s", out)
+	}
+	// The page, JUnit XML and JSON in the estimate's folder (the parent
+	// of the run folder).
+	dir := filepath.Dir(rep.Dir)
+	for _, f := range []string{"stability.html", "junit.xml", "stability.json"} {
+		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
+			t.Error(err)
+		}
+	}
+	b, err := os.ReadFile(filepath.Join(dir, "junit.xml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var suites struct {
+		Suites []struct {
+			Cases []struct {
+				Name    string    `xml:"name,attr"`
+				Failure *struct{} `xml:"failure"`
+			} `xml:"testcase"`
+		} `xml:"testsuite"`
+	}
+	if err := xml.Unmarshal(b, &suites); err != nil || len(suites.Suites) != 1 || len(suites.Suites[0].Cases) != 1 ||
+		suites.Suites[0].Cases[0].Name != "spectral_radius" || suites.Suites[0].Cases[0].Failure != nil {
+		t.Errorf("junit: %v %s", err, b)
 	}
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"math"
@@ -8,6 +9,7 @@ import (
 	"runtime"
 
 	"gaitrig/batch"
+	"gaitrig/history"
 	"gaitrig/record"
 	"gaitrig/report"
 	"gaitrig/rig"
@@ -41,7 +43,10 @@ type preflightCheck struct {
 	LatencyP99US            *float64 `json:"latency_p99_us"`            // null in lockstep
 	Problems                []string `json:"problems"`                  // why a check that ran did not pass, in words
 	Error                   string   `json:"error,omitempty"`           // why the check could not run
-	RunFolder               string   `json:"run_folder"`                // the check's run folder
+	RunFolder               string   `json:"run_folder"`                // the check's run folder (with --seeds: the worst seed's)
+	// Seeds is the check over --seeds N seeds: pass rate with its 95 %
+	// Wilson interval and every seed's run (absent with one seed).
+	Seeds *batch.SeedsResult `json:"seeds,omitempty"`
 }
 
 func cmdPreflight(args []string, stdout, stderr io.Writer) int {
@@ -59,7 +64,8 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	scenario := c.String("scenario", "level-demo", "base `SCENARIO` (file or built-in name)")
 	out := c.String("out", "runs", "parent `FOLDER` for the run folders")
 	envelope := c.Bool("envelope", true, "also measure the margins the scenario's margins block sets minima for and the closed-loop stability; GO needs both (see gaitrig margins, gaitrig stability)")
-	seeds := c.Int("seeds", 1, "with --envelope: run the scenario with `N` seeds (pass rate with its Wilson interval; GO needs every seed) and every margin value with N seeds")
+	seeds := c.Int("seeds", 1, "run every check with `N` seeds of noise, drops and latency (pass rate with its Wilson interval and the worst run; GO needs every seed), and with --envelope every margin value too")
+	hist := addHistoryFlags(c)
 	c.jsonFlag()
 	if done, code := c.parse(args); done {
 		return code
@@ -79,7 +85,10 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	// Every core: only in-process lockstep checks share the machine (the
 	// scheduler runs the others one at a time), and the table is printed
 	// in battery order whatever ran first.
-	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU(), Checks: batch.BatteryFor(base)}
+	if *seeds < 1 {
+		return c.usageError("--seeds must be at least 1, got %d", *seeds)
+	}
+	pf := batch.Preflight{Link: spec.String(), Jobs: runtime.NumCPU(), Checks: batch.BatteryFor(base), Seeds: *seeds}
 	variants, err := pf.Variants(base)
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
@@ -88,16 +97,44 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	for _, v := range variants {
 		width = max(width, len(v.Name))
 	}
+	if pf.Seeds > 1 {
+		width += len(fmt.Sprintf("-seed%d", base.Sensors.Seed+int64(pf.Seeds)-1))
+	}
 	pf.OnDone = progressLine(w, width)
 	if pf.Dir, err = batch.NewDir(*out, "preflight"); err != nil {
 		return c.fail(rig.ConfigError(err))
 	}
-	fmt.Fprintf(w, "preflight of %s on link %s: %s, run folders in %s\n\n", base.Name, spec, plural(len(variants), "check"), pf.Dir)
+	fmt.Fprintf(w, "preflight of %s on link %s: %s, run folders in %s\n", base.Name, spec, plural(len(variants), "check"), pf.Dir)
+	if pf.Seeds > 1 {
+		fmt.Fprintf(w, "every check with %d seeds (sensors.seed %d … %d); the table shows each check's worst run\n", pf.Seeds, base.Sensors.Seed, base.Sensors.Seed+int64(pf.Seeds)-1)
+	}
+	fmt.Fprintln(w)
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		return c.fail(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	res, err := pf.Run(ctx, variants)
 	if err != nil {
 		return c.fail(rig.ConfigError(err))
+	}
+	// Stored in the history: every check's run (the worst seed's with
+	// --seeds) under the check's name, then the envelope under the
+	// scenario's.
+	var herr error
+	if hs != nil {
+		for i, ch := range res.Checks {
+			if ch.Err != nil || ch.Result.Summary.Outcome == "" {
+				continue
+			}
+			if herr = hist.store(hs, "preflight", variants[i])(ch.Result); herr != nil {
+				break
+			}
+		}
 	}
 
 	js := preflightResult{Scenario: base.Name, Link: spec.String(), Folder: pf.Dir, Go: res.Go, Caution: record.Caution, Checks: []preflightCheck{}}
@@ -108,7 +145,7 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 	cw = max(cw, len("check"))
 	fmt.Fprintf(w, "\n%-*s  %-8s %5s %12s %17s %12s %12s  %s\n", cw, "check", "outcome", "steps", "friction use", "friction headroom", "min normal", "latency p99", "what")
 	for _, ch := range res.Checks {
-		pc := preflightCheck{Name: ch.Check.Name, What: ch.Check.What, Pass: ch.Pass, Problems: ch.Problems, RunFolder: ch.Result.Dir}
+		pc := preflightCheck{Name: ch.Check.Name, What: ch.Check.What, Pass: ch.Pass, Problems: ch.Problems, RunFolder: ch.Result.Dir, Seeds: ch.Seeds}
 		if ch.Err != nil {
 			pc.Outcome, pc.Error = "error", ch.Err.Error()
 			js.Checks = append(js.Checks, pc)
@@ -129,6 +166,14 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 		fmt.Fprintf(w, "%-*s  %-8s %5d %12s %17s %10s N %12s  %s\n", cw, ch.Check.Name, s.Outcome, s.Steps,
 			fmt.Sprintf("%.0f%%", 100*s.PeakFrictionUtilization), fmt.Sprintf("%.0f%%", 100*pc.FrictionHeadroom),
 			report.FormatNumber(s.MinNormalForceN), lat, ch.Check.What)
+		if sr := ch.Seeds; sr != nil {
+			worst := sr.Runs[sr.Worst]
+			fmt.Fprintf(w, "%-*s  %d of %d seeds passed, pass rate %.3f (95 %% Wilson interval %.3f … %.3f); worst run seed %d, %s: %s\n",
+				cw, "", sr.Passed, sr.N, sr.Rate, sr.Low, sr.High, worst.Seed, worst.Outcome, worst.Dir)
+			if sr.Invalid > 0 {
+				fmt.Fprintf(w, "%-*s  %d more seeds ran invalid (the host stalled them): not tested\n", cw, "", sr.Invalid)
+			}
+		}
 	}
 	if err := batch.WriteJUnit(filepath.Join(pf.Dir, report.JUnitFile), "gaitrig preflight", res.Results); err != nil {
 		fmt.Fprintln(stderr, "gaitrig preflight:", err)
@@ -139,13 +184,28 @@ NO-GO, 2 for bad usage.`, stdout, stderr)
 		}
 	}
 	if *envelope {
-		if !printGate(ctx, w, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base) {
+		g, ok := printGate(ctx, w, stderr, batch.Gate{Dir: pf.Dir, Link: spec.String(), Jobs: runtime.NumCPU(), Seeds: *seeds}, base)
+		if !ok {
 			res.Go = false
+		}
+		if hs != nil && g != nil && herr == nil {
+			dir := ""
+			if len(res.Checks) > 0 {
+				dir = res.Checks[0].Result.Dir
+			}
+			r := history.FromGate("preflight", base, *g, history.GreetingOf(dir), hist.rev())
+			herr = hs.Add(context.Background(), &r)
 		}
 	}
 	code := exitPass
 	if !res.Go {
 		code = exitFail
+	}
+	if herr != nil {
+		c.fail(fmt.Errorf("history: %w", herr))
+		if code == exitPass {
+			code = exitConfig // a lost history entry is not a silent pass
+		}
 	}
 	if c.jsonMode() {
 		return c.printJSON(js, code)

@@ -1,11 +1,17 @@
 package main
 
 import (
+	"bytes"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
+	"os"
+	"path/filepath"
 
 	"gaitrig/batch"
+	"gaitrig/history"
+	"gaitrig/report"
 	"gaitrig/rig"
 )
 
@@ -26,8 +32,10 @@ multipliers) with bootstrap intervals, the spectral radius, the fit residual
 perturbation to decay by 90 %, and the gait sensitivity norm (Hobbelen and
 Wisse 2007) of step time and step length for a hip push and a step-down.
 For a passive walker or the built-in controller, 'gaitrig cycle' gives the
-exact eigenvalues to compare with. Exit code 0 when the gait is stable
-(spectral radius below 1), 1 when not.`, stdout, stderr)
+exact eigenvalues to compare with. Writes stability.html (the eigenvalues in
+the complex plane against the unit circle, the figures, links to the runs),
+junit.xml and stability.json into the estimate's folder. Exit code 0 when
+the gait is stable (spectral radius below 1), 1 when not.`, stdout, stderr)
 	link := c.String("link", "", "link to the firmware (default: the scenario's); "+rig.LinkHelp())
 	out := c.String("out", "runs", "parent folder for the run folders")
 	asJSON := c.jsonFlag()
@@ -38,6 +46,7 @@ exact eigenvalues to compare with. Exit code 0 when the gait is stable
 	c.Int64Var(&st.Seed, "seed", 1, "seed of the perturbations and the bootstrap")
 	c.Float64Var(&st.PushNs, "push", batch.DefaultGSNPushNs, "hip push of the gait sensitivity norm, N·s (negative: skip)")
 	c.Float64Var(&st.StepDownM, "step-down", batch.DefaultGSNStepDownM, "floor drop of the gait sensitivity norm, m (negative: skip)")
+	hist := addHistoryFlags(c)
 	if done, code := c.parse(args); done {
 		return code
 	}
@@ -63,10 +72,29 @@ exact eigenvalues to compare with. Exit code 0 when the gait is stable
 	}
 	ctx, stop := signalContext()
 	defer stop()
+	hs, err := hist.open(ctx)
+	if err != nil {
+		fmt.Fprintln(stderr, "gaitrig stability:", err)
+		return exitCodeFor(err)
+	}
+	if hs != nil {
+		defer hs.Close()
+	}
 	rep, err := st.Run(ctx, sc)
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig stability:", err)
 		return exitCodeFor(err)
+	}
+	var herr error
+	if hs != nil {
+		r := history.FromStability("stability", sc, rep, history.GreetingOf(rep.Dir), hist.rev())
+		if herr = hs.Add(context.Background(), &r); herr != nil {
+			fmt.Fprintln(stderr, "gaitrig stability: history:", herr)
+		}
+	}
+	files, ferr := writeStabilityFiles(st.Dir, rep)
+	if ferr != nil {
+		fmt.Fprintln(stderr, "gaitrig stability:", ferr)
 	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
@@ -78,11 +106,42 @@ exact eigenvalues to compare with. Exit code 0 when the gait is stable
 		}
 	} else {
 		printStability(stdout, rep)
+		for _, f := range files {
+			fmt.Fprintln(stdout, "wrote", f)
+		}
 	}
-	if !rep.Stable {
+	if !rep.Stable || ferr != nil {
 		return exitFail
 	}
+	if herr != nil {
+		return exitConfig // a lost history entry is not a silent pass
+	}
 	return exitPass
+}
+
+// writeStabilityFiles writes the estimate's page, JUnit XML and JSON into
+// its folder and returns their paths.
+func writeStabilityFiles(dir string, rep batch.StabilityReport) ([]string, error) {
+	if err := batch.WriteStabilityPage(dir, rep); err != nil {
+		return nil, err
+	}
+	var b bytes.Buffer
+	if err := report.WriteJUnit(&b, batch.StabilitySuite(rep)); err != nil {
+		return nil, err
+	}
+	junit := filepath.Join(dir, report.JUnitFile)
+	if err := os.WriteFile(junit, b.Bytes(), 0o644); err != nil {
+		return nil, err
+	}
+	js, err := json.MarshalIndent(rig.JSONSafe(rep), "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	jsPath := filepath.Join(dir, "stability.json")
+	if err := os.WriteFile(jsPath, append(js, '\n'), 0o644); err != nil {
+		return nil, err
+	}
+	return []string{filepath.Join(dir, batch.StabilityPageFile), junit, jsPath}, nil
 }
 
 func printStability(w io.Writer, r batch.StabilityReport) {
