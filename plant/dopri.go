@@ -9,13 +9,25 @@ type Policy func(m *Model, s *State, in *Input)
 
 // evalAt evaluates the right-hand side at (q, v) with the contact modes of
 // s and the input of the policy (or none).
+//
+// A passive evaluation does not allocate: the input handed to a policy
+// escapes (a Policy is an arbitrary function value), so only that path,
+// in evalPolicy, pays for it.
 func (m *Model) evalAt(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
-	var in Input
 	if pol != nil {
-		tmp := *s
-		tmp.Q, tmp.V = *q, *v
-		pol(m, &tmp, &in)
+		m.evalPolicy(s, q, v, pol, ev)
+		return
 	}
+	var in Input
+	m.rhs(s, q, v, &in, ev)
+}
+
+// evalPolicy is evalAt with the input set by the policy.
+func (m *Model) evalPolicy(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
+	var in Input
+	tmp := *s
+	tmp.Q, tmp.V = *q, *v
+	pol(m, &tmp, &in)
 	m.rhs(s, q, v, &in, ev)
 }
 
@@ -145,6 +157,7 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 	}
 	h := 1e-3 * math.Sqrt(m.reach/m.p.Gravity)
 	var c0, c1 [numCond]float64
+	var passive Input // the input of an event without a policy
 	for s.T < tEnd {
 		if h > tEnd-s.T {
 			h = tEnd - s.T
@@ -208,14 +221,15 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 		if st != nil {
 			st.sample(m, s, &cur)
 		}
-		var in Input
+		in := &passive
 		if pol != nil {
-			pol(m, s, &in)
+			in = new(Input)
+			pol(m, s, in)
 		}
 		// One handle call adds at most four events (scuff, two impact
 		// slips, the impact), well within a TickResult.
 		r = TickResult{}
-		stop := m.handle(s, &in, first, &cur, &r)
+		stop := m.handle(s, in, first, &cur, &r)
 		added := r.Events[:r.NumEvents]
 		*events = append(*events, added...)
 		m.evalAt(s, &s.Q, &s.V, pol, &cur)
