@@ -12,17 +12,28 @@ const projectTol = 1e-13
 // normal row (gap) for every foot in contact, and the tangential row
 // (rolling anchor) for a rolling foot; res receives the position residuals.
 // A foot in contact keeps its recorded terrain region (footGeometryOf), so
-// its region, and with it the anchor, cannot change here.
-func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
+// its region, and with it the anchor, cannot change here. ev, when not
+// nil, is an evaluation at s.Q and s.V with the modes of s (the one a tick
+// ends with): its geometry of a foot in its recorded region is used as it
+// is instead of being computed again.
+func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64, ev *eval) {
 	rows.k = 0
 	var tr trig
-	m.trigOf(&s.Q, &tr)
+	haveTrig := false
 	for f := 0; f < m.nFeet; f++ {
 		if s.Mode[f] == Free {
 			continue
 		}
 		var g footGeom
-		m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
+		if ev != nil && ev.geom[f].sp.seg == s.Seg[f] && ev.geom[f].sp.clamped == (s.vertex[f] && s.Seg[f] < len(m.terrain)-1) {
+			g = ev.geom[f]
+		} else {
+			if !haveTrig {
+				m.trigOf(&s.Q, &tr)
+				haveTrig = true
+			}
+			m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
+		}
 		if s.Mode[f] == Rolling {
 			c := g.c
 			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
@@ -45,12 +56,14 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 // M-weighted Gauss–Newton steps Δq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ g(q), then the
 // velocities by the same projection of J q̇ (the least kinetic-energy
 // change that satisfies the constraints). It reports whether it changed s.
-func (m *Model) project(s *State) bool {
+// ev is an evaluation at s (see projectRows) or nil.
+func (m *Model) project(s *State, ev *eval) bool {
 	var rows saddle
 	var res [maxRows]float64
 	changed := false
 	for it := 0; it < 2; it++ {
-		m.projectRows(s, &rows, &res)
+		m.projectRows(s, &rows, &res, ev)
+		ev = nil // q changes below
 		if rows.k == 0 {
 			return changed
 		}
@@ -72,7 +85,7 @@ func (m *Model) project(s *State) bool {
 		changed = true
 	}
 	if changed {
-		m.projectRows(s, &rows, &res)
+		m.projectRows(s, &rows, &res, nil)
 	}
 	return m.projectVelocityRows(s, &rows) || changed
 }
@@ -81,7 +94,7 @@ func (m *Model) project(s *State) bool {
 func (m *Model) projectVelocity(s *State) {
 	var rows saddle
 	var res [maxRows]float64
-	m.projectRows(s, &rows, &res)
+	m.projectRows(s, &rows, &res, nil)
 	m.projectVelocityRows(s, &rows)
 }
 
