@@ -208,8 +208,8 @@ func TestGaitFinderMatchesSciPy(t *testing.T) {
 	}
 }
 
-// TestRealTimeHeelStrikeTime: the real-time Step (1 kHz ticks, 4 RK4
-// sub-steps) locates the heel strike inside its tick; the located time and
+// TestRealTimeHeelStrikeTime: the real-time Step (1 kHz ticks, the
+// default RK4 sub-steps) locates the heel strike inside its tick; the located time and
 // the state after the impact must agree with SciPy's solve_ivp (event
 // location at rtol = atol = 1e-12) far below the 1 ms tick, to 1e-7 s.
 func TestRealTimeHeelStrikeTime(t *testing.T) {
