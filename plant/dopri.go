@@ -14,21 +14,27 @@ type Policy func(m *Model, s *State, in *Input)
 // escapes (a Policy is an arbitrary function value), so only that path,
 // in evalPolicy, pays for it.
 func (m *Model) evalAt(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
+	m.evalGeom(s, q, v, pol, ev, true)
+}
+
+// evalGeom is evalAt; with freeGeom false the geometry of free feet is not
+// computed (see rhsGeom): the inner stages of a step need only q̈.
+func (m *Model) evalGeom(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval, freeGeom bool) {
 	if pol != nil {
-		m.evalPolicy(s, q, v, pol, ev)
+		m.evalPolicy(s, q, v, pol, ev, freeGeom)
 		return
 	}
 	var in Input
-	m.rhs(s, q, v, &in, ev)
+	m.rhsGeom(s, q, v, &in, ev, freeGeom)
 }
 
-// evalPolicy is evalAt with the input set by the policy.
-func (m *Model) evalPolicy(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval) {
+// evalPolicy is evalGeom with the input set by the policy.
+func (m *Model) evalPolicy(s *State, q, v *[MaxDOF]float64, pol Policy, ev *eval, freeGeom bool) {
 	var in Input
 	tmp := *s
 	tmp.Q, tmp.V = *q, *v
 	pol(m, &tmp, &in)
-	m.rhs(s, q, v, &in, ev)
+	m.rhsGeom(s, q, v, &in, ev, freeGeom)
 }
 
 // Dormand–Prince 5(4) coefficients (Dormand and Prince 1980, J. Comput.
@@ -76,7 +82,7 @@ func (m *Model) dopriStep(s *State, x0 *phase, k1 *eval, h float64, pol Policy, 
 		if st == 6 {
 			e = k7
 		}
-		m.evalAt(s, &x.q, &x.v, pol, e)
+		m.evalGeom(s, &x.q, &x.v, pol, e, st == 6)
 		if !e.ok {
 			return math.Inf(1)
 		}
