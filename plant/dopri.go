@@ -142,12 +142,47 @@ func (st *stepStats) sample(m *Model, s *State, ev *eval) {
 	}
 }
 
-// adaptive integrates s with the Dormand–Prince 5(4) method and event
-// location until tEnd, or until just after the first heel strike when
-// untilHeel is set. Every event is appended to events: an analysis run may
-// hold more events than one TickResult, so each handled event's records
-// are moved out of a scratch TickResult at once.
+// analysisMethod is an embedded Runge–Kutta pair of the adaptive
+// integrator.
+type analysisMethod int
+
+const (
+	// methodDP8 is DOP853 (dop853.go), the analysis default: at the
+	// tolerances of a gait search (1e-9 … 1e-11) it takes about a third of
+	// the evaluations of the fifth-order pair.
+	methodDP8 analysisMethod = iota
+	// methodDP5 is Dormand–Prince 5(4), kept as an independent check of
+	// the eighth-order results in the tests.
+	methodDP5
+)
+
+// step takes one step of the method (see dopriStep and dop853Step).
+func (a analysisMethod) step(m *Model, s *State, x0 *phase, k1 *eval, h float64, pol Policy, rtol, atol float64, out *phase, kLast *eval) float64 {
+	if a == methodDP5 {
+		return m.dopriStep(s, x0, k1, h, pol, rtol, atol, out, kLast)
+	}
+	return m.dop853Step(s, x0, k1, h, pol, rtol, atol, out, kLast)
+}
+
+// exponent is −1/(q+1) for the order q of the method's error estimate.
+func (a analysisMethod) exponent() float64 {
+	if a == methodDP5 {
+		return -0.2
+	}
+	return d8Exponent
+}
+
+// adaptive integrates s with the DOP853 method and event location until
+// tEnd, or until just after the first heel strike when untilHeel is set.
+// Every event is appended to events: an analysis run may hold more events
+// than one TickResult, so each handled event's records are moved out of a
+// scratch TickResult at once.
 func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, events *[]Event, st *stepStats) analysisStop {
+	return m.adaptiveWith(methodDP8, s, pol, tEnd, rtol, atol, untilHeel, events, st)
+}
+
+// adaptiveWith is adaptive with the given method.
+func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rtol, atol float64, untilHeel bool, events *[]Event, st *stepStats) analysisStop {
 	var r TickResult
 	var cur, nxt eval
 	// Analysis runs in the belt's frame: for a belt of constant speed that
@@ -170,11 +205,11 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 		}
 		x0 := phase{q: s.Q, v: s.V}
 		var x1 phase
-		errNorm := m.dopriStep(s, &x0, &cur, h, pol, rtol, atol, &x1, &nxt)
+		errNorm := meth.step(m, s, &x0, &cur, h, pol, rtol, atol, &x1, &nxt)
 		if !(errNorm <= 1) {
 			fac := 0.2
 			if finite(errNorm) {
-				fac = math.Max(0.2, 0.9*math.Pow(errNorm, -0.2))
+				fac = math.Max(0.2, 0.9*math.Pow(errNorm, meth.exponent()))
 			}
 			h *= fac
 			if h < 1e-14*math.Max(1, math.Abs(s.T)) {
@@ -191,13 +226,13 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 			}
 			tk := 0.0
 			if !latched(k) || c0[k] > 0 {
-				tk = m.locateAdaptive(s, &x0, &cur, pol, k, c0[k], c1[k], h)
+				tk = m.locateAdaptive(meth, s, &x0, &cur, pol, k, c0[k], c1[k], h)
 			}
 			if first < 0 || tk < tau {
 				first, tau = k, tk
 			}
 		}
-		hNext := h * math.Min(5, math.Max(0.2, 0.9*math.Pow(math.Max(errNorm, 1e-10), -0.2)))
+		hNext := h * math.Min(5, math.Max(0.2, 0.9*math.Pow(math.Max(errNorm, 1e-10), meth.exponent())))
 		if first < 0 {
 			s.Q, s.V = x1.q, x1.v
 			s.T += h
@@ -219,7 +254,7 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 		if tau > 0 {
 			var xe phase
 			var ee eval
-			m.dopriStep(s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee)
+			meth.step(m, s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee)
 			s.Q, s.V = xe.q, xe.v
 			s.T += tau
 		}
@@ -260,15 +295,15 @@ func (m *Model) adaptive(s *State, pol Policy, tEnd, rtol, atol float64, untilHe
 	return stopTime
 }
 
-// locateAdaptive is locate for the Dormand–Prince step: the trial states
-// are fifth-order solutions from x0, so the event time is as accurate as
-// the integration.
-func (m *Model) locateAdaptive(s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64) float64 {
+// locateAdaptive is locate for the adaptive step: the trial states are
+// the method's solutions from x0, so the event time is as accurate as the
+// integration.
+func (m *Model) locateAdaptive(meth analysisMethod, s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64) float64 {
 	var x phase
 	var ev eval
 	var c [numCond]float64
 	return illinois(fa, fb, h, 1e-14, 1e-16, func(t float64) float64 {
-		m.dopriStep(s, x0, k1, t, pol, 1, 1, &x, &ev)
+		meth.step(m, s, x0, k1, t, pol, 1, 1, &x, &ev)
 		m.conditions(s, &x.q, t, &ev, &c)
 		return c[k]
 	})

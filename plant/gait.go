@@ -83,7 +83,7 @@ var ErrNoHeelStrike = errors.New("plant: no heel strike")
 // say. StepMap (a simulation to the next heel strike) does handle knees.
 var ErrKneedAnalysis = errors.New("plant: the gait finder and the map Jacobian do not handle knees yet")
 
-// StepMap integrates s with the adaptive Dormand–Prince 5(4) integrator
+// StepMap integrates s with the adaptive DOP853 integrator
 // (with the policy's input, nil = passive) until just after the next heel
 // strike: the step-to-step (Poincaré) map of the gait.
 func (m *Model) StepMap(s State, policy Policy, o GaitOptions) (StepResult, error) {
