@@ -156,12 +156,13 @@ const (
 	methodDP5
 )
 
-// step takes one step of the method (see dopriStep and dop853Step).
-func (a analysisMethod) step(m *Model, s *State, x0 *phase, k1 *eval, h float64, pol Policy, rtol, atol float64, out *phase, kLast *eval) float64 {
+// step takes one step of the method (see dopriStep and dop853Step); stg
+// receives the stages of a DOP853 step.
+func (a analysisMethod) step(m *Model, s *State, x0 *phase, k1 *eval, h float64, pol Policy, rtol, atol float64, out *phase, kLast *eval, stg *d8Stages) float64 {
 	if a == methodDP5 {
 		return m.dopriStep(s, x0, k1, h, pol, rtol, atol, out, kLast)
 	}
-	return m.dop853Step(s, x0, k1, h, pol, rtol, atol, out, kLast)
+	return m.dop853Step(s, x0, k1, h, pol, rtol, atol, out, kLast, stg)
 }
 
 // exponent is −1/(q+1) for the order q of the method's error estimate.
@@ -199,13 +200,15 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 	h := 1e-3 * math.Sqrt(m.reach/m.p.Gravity)
 	var c0, c1 [numCond]float64
 	var passive Input // the input of an event without a policy
+	var stg, scratch d8Stages
+	var dense d8Dense
 	for s.T < tEnd {
 		if h > tEnd-s.T {
 			h = tEnd - s.T
 		}
 		x0 := phase{q: s.Q, v: s.V}
 		var x1 phase
-		errNorm := meth.step(m, s, &x0, &cur, h, pol, rtol, atol, &x1, &nxt)
+		errNorm := meth.step(m, s, &x0, &cur, h, pol, rtol, atol, &x1, &nxt, &stg)
 		if !(errNorm <= 1) {
 			fac := 0.2
 			if finite(errNorm) {
@@ -220,13 +223,24 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 		m.conditions(s, &x0.q, 0, &cur, &c0)
 		m.conditions(s, &x1.q, h, &nxt, &c1)
 		first, tau := -1, h
+		denseTried, denseOK := false, false
 		for k := 0; k < numCond; k++ {
 			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
 				continue
 			}
 			tk := 0.0
 			if !latched(k) || c0[k] > 0 {
-				tk = m.locateAdaptive(meth, s, &x0, &cur, pol, k, c0[k], c1[k], h)
+				var dn *d8Dense
+				if meth == methodDP8 {
+					if !denseTried {
+						denseTried = true
+						denseOK = m.dense853(s, &x0, &x1, h, pol, &stg, &dense)
+					}
+					if denseOK {
+						dn = &dense
+					}
+				}
+				tk = m.locateAdaptive(meth, s, &x0, &cur, pol, k, c0[k], c1[k], h, dn)
 			}
 			if first < 0 || tk < tau {
 				first, tau = k, tk
@@ -254,7 +268,7 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 		if tau > 0 {
 			var xe phase
 			var ee eval
-			meth.step(m, s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee)
+			meth.step(m, s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee, &scratch)
 			s.Q, s.V = xe.q, xe.v
 			s.T += tau
 		}
@@ -295,16 +309,76 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 	return stopTime
 }
 
+// locateWidth is the bracket, in seconds, to which the adaptive
+// integrator locates an event.
+const locateWidth = 1e-14
+
 // locateAdaptive is locate for the adaptive step: the trial states are
 // the method's solutions from x0, so the event time is as accurate as the
-// integration.
-func (m *Model) locateAdaptive(meth analysisMethod, s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64) float64 {
+// integration. With the step's dense output dn (nil: none) the crossing is
+// found on the interpolant first and then confirmed on real steps
+// (locateDense); without it, or when that fails, every trial re-takes the
+// step.
+func (m *Model) locateAdaptive(meth analysisMethod, s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64, dn *d8Dense) float64 {
 	var x phase
 	var ev eval
 	var c [numCond]float64
-	return illinois(fa, fb, h, 1e-14, 1e-16, func(t float64) float64 {
-		meth.step(m, s, x0, k1, t, pol, 1, 1, &x, &ev)
+	var stg d8Stages
+	real := func(t float64) float64 {
+		meth.step(m, s, x0, k1, t, pol, 1, 1, &x, &ev, &stg)
 		m.conditions(s, &x.q, t, &ev, &c)
 		return c[k]
-	})
+	}
+	if dn != nil {
+		if t, ok := m.locateDense(s, dn, pol, k, fa, fb, h, real); ok {
+			return t
+		}
+	}
+	return illinois(fa, fb, h, locateWidth, 1e-16, real)
+}
+
+// locateDense locates the crossing of condition k on the dense output d of
+// a step of size h, then moves onto the crossing of the real step (real(t)
+// re-takes the step to length t and returns the condition there) by
+// Newton steps with the slope of the interpolant, so the answer is the
+// same as a search on real steps alone: a time within locateWidth after
+// the crossing, where the condition is ≤ 0. Each trial on the interpolant
+// costs one evaluation instead of a whole step; the real steps are
+// usually two. It reports false (and the caller searches on real steps)
+// when the slope is not usable or the Newton steps do not settle.
+func (m *Model) locateDense(s *State, d *d8Dense, pol Policy, k int, fa, fb, h float64, real func(float64) float64) (float64, bool) {
+	var x phase
+	var ev eval
+	var c [numCond]float64
+	n := m.n
+	cond := func(t float64) float64 {
+		d.at(n, t/h, &x)
+		m.evalAt(s, &x.q, &x.v, pol, &ev)
+		m.conditions(s, &x.q, t, &ev, &c)
+		return c[k]
+	}
+	t := illinois(fa, fb, h, locateWidth, 1e-16, cond)
+	t1, t2 := math.Max(0, t-1e-6*h), math.Min(h, t+1e-6*h)
+	slope := (cond(t2) - cond(t1)) / (t2 - t1)
+	if !(slope < 0) || !finite(slope) {
+		return 0, false
+	}
+	for it := 0; it < 6; it++ {
+		f := real(t)
+		if math.IsNaN(f) {
+			return 0, false
+		}
+		ahead := f / -slope // time from t to the crossing (negative: behind)
+		if f <= 0 && -ahead < locateWidth {
+			return t, true
+		}
+		t += ahead + 0.5*locateWidth
+		if t >= h {
+			return h, true // the step's end is past the crossing (fb ≤ 0)
+		}
+		if !(t > 0) {
+			return 0, false
+		}
+	}
+	return 0, false
 }
