@@ -165,6 +165,16 @@ func (a analysisMethod) step(m *Model, s *State, x0 *phase, k1 *eval, h float64,
 	return m.dop853Step(s, x0, k1, h, pol, rtol, atol, out, kLast, stg)
 }
 
+// maxGrowth is the largest factor by which the step grows after an
+// accepted step (10 for DOP853 as in its published code; 5 for the
+// fifth-order pair, as this integrator always had).
+func (a analysisMethod) maxGrowth() float64 {
+	if a == methodDP5 {
+		return 5
+	}
+	return 10
+}
+
 // exponent is −1/(q+1) for the order q of the method's error estimate.
 func (a analysisMethod) exponent() float64 {
 	if a == methodDP5 {
@@ -198,10 +208,14 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 		st.sample(m, s, &cur)
 	}
 	h := 1e-3 * math.Sqrt(m.reach/m.p.Gravity)
+	if meth == methodDP8 {
+		h = m.initialStep(s, &cur, pol, rtol, atol, h)
+	}
 	var c0, c1 [numCond]float64
 	var passive Input // the input of an event without a policy
 	var stg, scratch d8Stages
 	var dense d8Dense
+	var located, xe phase // the state at an event located on real steps
 	for s.T < tEnd {
 		if h > tEnd-s.T {
 			h = tEnd - s.T
@@ -223,6 +237,7 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 		m.conditions(s, &x0.q, 0, &cur, &c0)
 		m.conditions(s, &x1.q, h, &nxt, &c1)
 		first, tau := -1, h
+		haveXe := false
 		denseTried, denseOK := false, false
 		for k := 0; k < numCond; k++ {
 			if !triggered(k, c0[k], c1[k], s.fired&(1<<k) != 0) {
@@ -240,13 +255,20 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 						dn = &dense
 					}
 				}
-				tk = m.locateAdaptive(meth, s, &x0, &cur, pol, k, c0[k], c1[k], h, dn)
+				var at bool
+				tk, at = m.locateAdaptive(meth, s, &x0, &cur, pol, k, c0[k], c1[k], h, dn, &located)
+				if first < 0 || tk < tau {
+					haveXe = at
+					if at {
+						xe = located
+					}
+				}
 			}
 			if first < 0 || tk < tau {
 				first, tau = k, tk
 			}
 		}
-		hNext := h * math.Min(5, math.Max(0.2, 0.9*math.Pow(math.Max(errNorm, 1e-10), meth.exponent())))
+		hNext := h * math.Min(meth.maxGrowth(), math.Max(0.2, 0.9*math.Pow(math.Max(errNorm, 1e-10), meth.exponent())))
 		if first < 0 {
 			s.Q, s.V = x1.q, x1.v
 			s.T += h
@@ -266,9 +288,10 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 			continue
 		}
 		if tau > 0 {
-			var xe phase
-			var ee eval
-			meth.step(m, s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee, &scratch)
+			if !haveXe {
+				var ee eval
+				meth.step(m, s, &x0, &cur, tau, pol, rtol, atol, &xe, &ee, &scratch)
+			}
 			s.Q, s.V = xe.q, xe.v
 			s.T += tau
 		}
@@ -319,22 +342,75 @@ const locateWidth = 1e-14
 // found on the interpolant first and then confirmed on real steps
 // (locateDense); without it, or when that fails, every trial re-takes the
 // step.
-func (m *Model) locateAdaptive(meth analysisMethod, s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64, dn *d8Dense) float64 {
-	var x phase
+//
+// When it reports at, out holds the state of the real step to the returned
+// time (so the caller need not take it again).
+func (m *Model) locateAdaptive(meth analysisMethod, s *State, x0 *phase, k1 *eval, pol Policy, k int, fa, fb, h float64, dn *d8Dense, out *phase) (t float64, at bool) {
 	var ev eval
 	var c [numCond]float64
 	var stg d8Stages
 	real := func(t float64) float64 {
-		meth.step(m, s, x0, k1, t, pol, 1, 1, &x, &ev, &stg)
-		m.conditions(s, &x.q, t, &ev, &c)
+		meth.step(m, s, x0, k1, t, pol, 1, 1, out, &ev, &stg)
+		m.conditions(s, &out.q, t, &ev, &c)
 		return c[k]
 	}
 	if dn != nil {
 		if t, ok := m.locateDense(s, dn, pol, k, fa, fb, h, real); ok {
-			return t
+			// locateDense returns right after real(t), or h, which it
+			// has not stepped to.
+			return t, t < h
 		}
 	}
-	return illinois(fa, fb, h, locateWidth, 1e-16, real)
+	return illinois(fa, fb, h, locateWidth, 1e-16, real), false
+}
+
+// initialStep chooses the first step of an adaptive DOP853 run from the
+// size of the state and of its derivatives (the starting-step algorithm of
+// Hairer, Nørsett & Wanner, Solving ODEs I, section II.4, as DOP853 and
+// SciPy use it), at the cost of one evaluation. fallback is returned if
+// that evaluation fails.
+func (m *Model) initialStep(s *State, k1 *eval, pol Policy, rtol, atol, fallback float64) float64 {
+	n := m.n
+	norm := func(q, v *[MaxDOF]float64, ref *phase) float64 {
+		sum := 0.0
+		for i := 0; i < n; i++ {
+			sq := q[i] / (atol + rtol*math.Abs(ref.q[i]))
+			sv := v[i] / (atol + rtol*math.Abs(ref.v[i]))
+			sum += sq*sq + sv*sv
+		}
+		return math.Sqrt(sum / float64(2*n))
+	}
+	x0 := phase{q: s.Q, v: s.V}
+	d0 := norm(&x0.q, &x0.v, &x0)
+	d1 := norm(&x0.v, &k1.acc, &x0)
+	h0 := 1e-6
+	if d0 >= 1e-5 && d1 >= 1e-5 {
+		h0 = 0.01 * d0 / d1
+	}
+	var x1 phase
+	for i := 0; i < n; i++ {
+		x1.q[i] = x0.q[i] + h0*x0.v[i]
+		x1.v[i] = x0.v[i] + h0*k1.acc[i]
+	}
+	var e eval
+	m.evalGeom(s, &x1.q, &x1.v, pol, &e, false)
+	if !e.ok {
+		return fallback
+	}
+	var dq, dv [MaxDOF]float64
+	for i := 0; i < n; i++ {
+		dq[i], dv[i] = x1.v[i]-x0.v[i], e.acc[i]-k1.acc[i]
+	}
+	d2 := norm(&dq, &dv, &x0) / h0
+	h1 := math.Max(1e-6, h0*1e-3)
+	if d1 > 1e-15 || d2 > 1e-15 {
+		h1 = math.Pow(0.01/math.Max(d1, d2), -d8Exponent)
+	}
+	h := math.Min(100*h0, h1)
+	if !(h > 0) || !finite(h) {
+		return fallback
+	}
+	return h
 }
 
 // locateDense locates the crossing of condition k on the dense output d of
