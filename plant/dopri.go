@@ -138,7 +138,11 @@ func (st *stepStats) sample(m *Model, s *State, ev *eval) {
 		st.samples++
 	}
 	if st.onSample != nil {
-		st.onSample(s, ev)
+		// The observer gets a copy: what a function value is handed
+		// escapes, and the integrator's own evaluation must not (a run
+		// without an observer then does not allocate for it).
+		e := *ev
+		st.onSample(s, &e)
 	}
 }
 
@@ -301,8 +305,11 @@ func (m *Model) adaptiveWith(meth analysisMethod, s *State, pol Policy, tEnd, rt
 		}
 		in := &passive
 		if pol != nil {
-			in = new(Input)
-			pol(m, s, in)
+			// A separate variable: what a policy is handed escapes, and
+			// the passive input must not.
+			pin := new(Input)
+			pol(m, s, pin)
+			in = pin
 		}
 		// One handle call adds at most four events (scuff, two impact
 		// slips, the impact), well within a TickResult.
