@@ -58,6 +58,9 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64, ev *e
 // change that satisfies the constraints). It reports whether it changed s.
 // ev is an evaluation at s (see projectRows) or nil.
 func (m *Model) project(s *State, ev *eval) bool {
+	if ev != nil && m.wellInside(s, ev) {
+		return false
+	}
 	var rows saddle
 	var res [maxRows]float64
 	changed := false
@@ -131,4 +134,52 @@ func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *saddle, res *[maxRows]
 	var f [MaxDOF]float64
 	*dq = [MaxDOF]float64{}
 	return m.solveSaddle(&tr, &f, rows, dq, lam)
+}
+
+// wellInside reports whether every constraint residual at s, read from the
+// geometry of the evaluation ev at s, is below half the projection
+// tolerance, so that project would change nothing; it saves building the
+// constraint rows in the common tick. It answers false (and project
+// decides the long way) when ev's geometry is not that of a foot's
+// recorded region, and near the tolerance, where the sums here and in
+// projectRows may round differently.
+func (m *Model) wellInside(s *State, ev *eval) bool {
+	posTol := 0.5 * projectTol * m.reach
+	velTol := 0.5 * projectTol * math.Sqrt(m.reach*m.p.Gravity)
+	for f := 0; f < m.nFeet; f++ {
+		if s.Mode[f] == Free {
+			continue
+		}
+		g := &ev.geom[f]
+		if g.sp.seg != s.Seg[f] || g.sp.clamped != (s.vertex[f] && s.Seg[f] < len(m.terrain)-1) {
+			return false
+		}
+		if !(math.Abs(g.gap) <= posTol) || !(math.Abs(g.vn) <= velTol) {
+			return false
+		}
+		if s.Mode[f] == Rolling {
+			if !g.sp.clamped {
+				c := g.c
+				res := g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+m.feet[f].link] - s.Anchor[f]
+				if !(math.Abs(res) <= posTol) {
+					return false
+				}
+			}
+			u, _ := m.surface(s, g, 0)
+			if !(math.Abs(g.slip-u) <= velTol) {
+				return false
+			}
+		}
+	}
+	for i := 0; i < m.nFeet; i++ {
+		j := m.kneeOf[i]
+		if j < 0 || !s.KneeLocked[i] {
+			continue
+		}
+		kn := &m.knees[j]
+		if !(math.Abs(s.Q[2+kn.shank]-s.Q[2+kn.thigh]) <= posTol) || !(math.Abs(s.V[2+kn.shank]-s.V[2+kn.thigh]) <= velTol) {
+			return false
+		}
+	}
+	return true
 }
