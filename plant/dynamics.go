@@ -11,6 +11,7 @@ type footGeom struct {
 	gt, gn float64         // J̇ q̇ for the two rows
 	slip   float64         // t·v_p, tangential velocity of the material point
 	vn     float64         // n·v_p
+	axis   [2]float64      // a(θ) of the foot's link (for the centre of pressure)
 }
 
 // footGeometry computes the contact geometry of foot i. The material point
@@ -59,6 +60,7 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, r
 	dc := [2]float64{kk*ap[0] - f.offset*a[0], kk*ap[1] - f.offset*a[1]}
 	ddc := [2]float64{-kk*a[0] - f.offset*ap[0], -kk*a[1] - f.offset*ap[1]}
 	g.c = c
+	g.axis = *a
 	if region < 0 {
 		m.closest(c, hint, &g.sp)
 	} else {
@@ -112,13 +114,14 @@ func (m *Model) footGeometryTrig(q, v *[MaxDOF]float64, tr *trig, i, hint int, r
 }
 
 // centreOfPressure is the arc length from the point of the arc under the
-// leg axis to the contact point, positive toward a⊥ (the toe).
-func (m *Model) centreOfPressure(q *[MaxDOF]float64, i int, g *footGeom) float64 {
+// leg axis to the contact point, positive toward a⊥ (the toe). g is the
+// foot's geometry at the state (its axis is the leg axis there).
+func (m *Model) centreOfPressure(i int, g *footGeom) float64 {
 	R := m.feet[i].radius
 	if R == 0 {
 		return 0
 	}
-	a, _ := axis(q[2+m.feet[i].link])
+	a := g.axis
 	nn := g.sp.n
 	return R * math.Atan2(-(a[0]*nn[1]-a[1]*nn[0]), -(a[0]*nn[0]+a[1]*nn[1]))
 }
@@ -251,7 +254,7 @@ func (m *Model) contactRecord(s *State, ev *eval, i int, fc *FootContact) {
 	fc.Utilization = utilization(ft, fn, mu)
 	fc.KneeTorque = ev.knee[i]
 	if s.Mode[i] != Free {
-		fc.CoP = m.centreOfPressure(&s.Q, i, g)
+		fc.CoP = m.centreOfPressure(i, g)
 	}
 }
 

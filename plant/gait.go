@@ -94,7 +94,7 @@ type StepResult struct {
 // reach a heel strike (it falls, lifts off, or the time runs out).
 var ErrNoHeelStrike = errors.New("plant: no heel strike")
 
-// StepMap integrates s with the adaptive Dormand–Prince 5(4) integrator
+// StepMap integrates s with the adaptive DOP853 integrator
 // (with the policy's input, nil = passive) until just after the next heel
 // strike: the step-to-step (Poincaré) map of the gait.
 func (m *Model) StepMap(s State, policy Policy, o GaitOptions) (StepResult, error) {

@@ -158,8 +158,8 @@ func TestStepLocatesKneeStrike(t *testing.T) {
 
 // A passive swing with the knee free conserves T + V (energy balance: no
 // input, a rolling stance foot does no work) as well as the compass
-// walker's stance does (physics_test.go: relative drift below 1e-9 at 4
-// RK4 sub-steps of a 1 ms tick).
+// walker's stance does (physics_test.go: relative drift below 1e-9 at the
+// default RK4 sub-steps of a 1 ms tick).
 func TestUnlockedSwingConservesEnergy(t *testing.T) {
 	m, _ := kneedPair(t)
 	s := swingKneeState(t, m, 0.6, -1)

@@ -210,7 +210,7 @@ func TestLiftOffContinues(t *testing.T) {
 // TestPassiveStanceEnergy: passive rocking on one rolling arc foot with a
 // swinging leg that never reaches the ground (no impact) conserves the
 // total mechanical energy (conservation law). Real-time step: 1 ms ticks of
-// 4 RK4 sub-steps (0.25 ms), 10 s. The drift is measured relative to the
+// the default RK4 sub-steps, 10 s. The drift is measured relative to the
 // largest kinetic energy of the run (the energy that is exchanged), which
 // is stricter than relative to the total energy.
 func TestPassiveStanceEnergy(t *testing.T) {

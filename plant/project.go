@@ -12,17 +12,28 @@ const projectTol = 1e-13
 // normal row (gap) for every foot in contact, and the tangential row
 // (rolling anchor) for a rolling foot; res receives the position residuals.
 // A foot in contact keeps its recorded terrain region (footGeometryOf), so
-// its region, and with it the anchor, cannot change here.
-func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
+// its region, and with it the anchor, cannot change here. ev, when not
+// nil, is an evaluation at s.Q and s.V with the modes of s (the one a tick
+// ends with): its geometry of a foot in its recorded region is used as it
+// is instead of being computed again.
+func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64, ev *eval) {
 	rows.k = 0
 	var tr trig
-	m.trigOf(&s.Q, &tr)
+	haveTrig := false
 	for f := 0; f < m.nFeet; f++ {
 		if s.Mode[f] == Free {
 			continue
 		}
 		var g footGeom
-		m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
+		if ev != nil && ev.geom[f].sp.seg == s.Seg[f] && ev.geom[f].sp.clamped == (s.vertex[f] && s.Seg[f] < len(m.terrain)-1) {
+			g = ev.geom[f]
+		} else {
+			if !haveTrig {
+				m.trigOf(&s.Q, &tr)
+				haveTrig = true
+			}
+			m.footGeometryOf(s, &s.Q, &s.V, &tr, f, &g)
+		}
 		if s.Mode[f] == Rolling {
 			c := g.c
 			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
@@ -45,12 +56,17 @@ func (m *Model) projectRows(s *State, rows *saddle, res *[maxRows]float64) {
 // M-weighted Gauss–Newton steps Δq = −M⁻¹Jᵀ(J M⁻¹ Jᵀ)⁻¹ g(q), then the
 // velocities by the same projection of J q̇ (the least kinetic-energy
 // change that satisfies the constraints). It reports whether it changed s.
-func (m *Model) project(s *State) bool {
+// ev is an evaluation at s (see projectRows) or nil.
+func (m *Model) project(s *State, ev *eval) bool {
+	if ev != nil && m.wellInside(s, ev) {
+		return false
+	}
 	var rows saddle
 	var res [maxRows]float64
 	changed := false
 	for it := 0; it < 2; it++ {
-		m.projectRows(s, &rows, &res)
+		m.projectRows(s, &rows, &res, ev)
+		ev = nil // q changes below
 		if rows.k == 0 {
 			return changed
 		}
@@ -72,7 +88,7 @@ func (m *Model) project(s *State) bool {
 		changed = true
 	}
 	if changed {
-		m.projectRows(s, &rows, &res)
+		m.projectRows(s, &rows, &res, nil)
 	}
 	return m.projectVelocityRows(s, &rows) || changed
 }
@@ -81,7 +97,7 @@ func (m *Model) project(s *State) bool {
 func (m *Model) projectVelocity(s *State) {
 	var rows saddle
 	var res [maxRows]float64
-	m.projectRows(s, &rows, &res)
+	m.projectRows(s, &rows, &res, nil)
 	m.projectVelocityRows(s, &rows)
 }
 
@@ -118,4 +134,52 @@ func (m *Model) solveCorrection(q *[MaxDOF]float64, rows *saddle, res *[maxRows]
 	var f [MaxDOF]float64
 	*dq = [MaxDOF]float64{}
 	return m.solveSaddle(&tr, &f, rows, dq, lam)
+}
+
+// wellInside reports whether every constraint residual at s, read from the
+// geometry of the evaluation ev at s, is below half the projection
+// tolerance, so that project would change nothing; it saves building the
+// constraint rows in the common tick. It answers false (and project
+// decides the long way) when ev's geometry is not that of a foot's
+// recorded region, and near the tolerance, where the sums here and in
+// projectRows may round differently.
+func (m *Model) wellInside(s *State, ev *eval) bool {
+	posTol := 0.5 * projectTol * m.reach
+	velTol := 0.5 * projectTol * math.Sqrt(m.reach*m.p.Gravity)
+	for f := 0; f < m.nFeet; f++ {
+		if s.Mode[f] == Free {
+			continue
+		}
+		g := &ev.geom[f]
+		if g.sp.seg != s.Seg[f] || g.sp.clamped != (s.vertex[f] && s.Seg[f] < len(m.terrain)-1) {
+			return false
+		}
+		if !(math.Abs(g.gap) <= posTol) || !(math.Abs(g.vn) <= velTol) {
+			return false
+		}
+		if s.Mode[f] == Rolling {
+			if !g.sp.clamped {
+				c := g.c
+				res := g.sp.t[0]*c[0] + g.sp.t[1]*c[1] + m.feet[f].radius*s.Q[2+m.feet[f].link] - s.Anchor[f]
+				if !(math.Abs(res) <= posTol) {
+					return false
+				}
+			}
+			u, _ := m.surface(s, g, 0)
+			if !(math.Abs(g.slip-u) <= velTol) {
+				return false
+			}
+		}
+	}
+	for i := 0; i < m.nFeet; i++ {
+		j := m.kneeOf[i]
+		if j < 0 || !s.KneeLocked[i] {
+			continue
+		}
+		kn := &m.knees[j]
+		if !(math.Abs(s.Q[2+kn.shank]-s.Q[2+kn.thigh]) <= posTol) || !(math.Abs(s.V[2+kn.shank]-s.V[2+kn.thigh]) <= velTol) {
+			return false
+		}
+	}
+	return true
 }

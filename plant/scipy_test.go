@@ -120,10 +120,15 @@ func TestMatchesSciPyPassiveStep(t *testing.T) {
 	closeVec(t, "v after", res.After.V[:4], fx.Step.After.V, tol)
 	closeVec(t, "energy lost", []float64{res.EnergyLost}, []float64{fx.Step.EnergyLost}, tol)
 	closeVec(t, "impulse ratio", []float64{res.ImpulseRatio}, []float64{fx.Step.ImpulseRatio}, tol)
-	// Stance extremes are sampled at the integrator's accepted steps on
-	// both sides, so they agree to the sampling, not to the tolerance.
-	closeVec(t, "peak required friction", []float64{res.PeakRequiredFriction}, []float64{fx.Step.PeakFrictionRatio}, 1e-4)
-	closeVec(t, "minimum normal force", []float64{res.MinNormal}, []float64{fx.Step.MinNormalForce}, 1e-4)
+	// Stance extremes are sampled at the accepted steps and the events
+	// (SciPy's script refines them on its dense output). Both extremes of
+	// this step fall at the heel strike, which both sides locate far below
+	// a microsecond, so they agree to the tolerance (measured: 4e-12 and
+	// 2e-12 relative with DOP853; the check was 1e-4 while the samples
+	// were the fifth-order pair's). An extremum inside a step would still
+	// be sampled only at the steps' ends.
+	closeVec(t, "peak required friction", []float64{res.PeakRequiredFriction}, []float64{fx.Step.PeakFrictionRatio}, tol)
+	closeVec(t, "minimum normal force", []float64{res.MinNormal}, []float64{fx.Step.MinNormalForce}, tol)
 	var scuffs []float64
 	for _, e := range res.Events {
 		if e.Kind == Scuff {
@@ -208,8 +213,8 @@ func TestGaitFinderMatchesSciPy(t *testing.T) {
 	}
 }
 
-// TestRealTimeHeelStrikeTime: the real-time Step (1 kHz ticks, 4 RK4
-// sub-steps) locates the heel strike inside its tick; the located time and
+// TestRealTimeHeelStrikeTime: the real-time Step (1 kHz ticks, the
+// default RK4 sub-steps) locates the heel strike inside its tick; the located time and
 // the state after the impact must agree with SciPy's solve_ivp (event
 // location at rtol = atol = 1e-12) far below the 1 ms tick, to 1e-7 s.
 func TestRealTimeHeelStrikeTime(t *testing.T) {

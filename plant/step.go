@@ -124,7 +124,7 @@ func (m *Model) Step(s *State, in *Input, dt float64, r *TickResult) {
 		}
 	}
 	s.T = tEnd
-	if m.project(s) {
+	if m.project(s, cur) {
 		m.rhs(s, &s.Q, &s.V, in, cur)
 		if !cur.ok {
 			m.nonFinite(s, r)

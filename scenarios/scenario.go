@@ -435,7 +435,8 @@ type Clock struct {
 	// TickHz is the control rate, ticks per second. Default 1000;
 	// 10 ≤ tick_hz ≤ 20000.
 	TickHz float64 `yaml:"tick_hz"`
-	// Substeps is the number of integrator steps per tick. Default 4;
+	// Substeps is the number of integrator steps per tick. Default 1
+	// (the plant's accuracy budget: one RK4 step per 1 ms tick);
 	// 1 ≤ substeps ≤ 100.
 	Substeps int `yaml:"substeps"`
 }

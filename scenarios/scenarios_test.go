@@ -185,7 +185,7 @@ func TestDefaultsFilledIn(t *testing.T) {
 		{"baud left empty for builtin", s.Controller.Baud, 0},
 		{"clock", s.Clock.Mode, ClockLockstep},
 		{"tick_hz", s.Clock.TickHz, 1000.0},
-		{"substeps", s.Clock.Substeps, 4},
+		{"substeps", s.Clock.Substeps, 1},
 		{"watchdog", s.WatchdogMS, 50.0},
 		{"on_slip", s.Physics.OnSlip, PolicyContinue},
 		{"fall torso", s.Physics.FallTorsoAngleRad, 1.2},
