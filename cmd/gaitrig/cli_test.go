@@ -143,6 +143,9 @@ func TestMaxStepsBelowMinStepsWarnsBeforeTheRun(t *testing.T) {
 	if !strings.Contains(stdout, "link: builtin") {
 		t.Errorf("the run does not say which link it used:\n%s", stdout)
 	}
+	if n := strings.Count(stdout+errOut, "link: "); n != 1 {
+		t.Errorf("the link is named %d times on stdout and stderr together, want once:\n%s%s", n, stdout, errOut)
+	}
 	// Over another link the run names that link, and the scenario's
 	// description no longer claims a controller.
 	_, stdout, errOut = run(t, "run", "--quiet", "--no-report", "--out", out, "--link", "pty", "--max-steps", "2", "level-demo")

@@ -43,6 +43,19 @@ func lineLogger(w io.Writer) func(string) {
 	return func(line string) { fmt.Fprintln(w, line) }
 }
 
+// runLogger is lineLogger for a run whose header (printed on stdout
+// unless json) names the link already: the rig's own "link: …" line is
+// left out there, so a terminal does not show it twice; with --json it
+// stays, as the only human-readable note of the link.
+func runLogger(w io.Writer, json bool) func(string) {
+	return func(line string) {
+		if !json && strings.HasPrefix(line, "link: ") {
+			return
+		}
+		fmt.Fprintln(w, line)
+	}
+}
+
 // outcomeCode is the exit code for a run outcome.
 func outcomeCode(o record.Outcome) int {
 	switch o {

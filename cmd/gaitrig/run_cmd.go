@@ -90,7 +90,7 @@ configuration.`, stdout, stderr)
 		}
 	}
 	o := rig.Options{Link: *link, OutRoot: *out, RunDir: *dir, Report: *oldReport && !*noReport, JUnit: *junit, Parquet: *parquet,
-		Log: lineLogger(stderr), Rig: *rigID, MaxSteps: *maxSteps, Duration: *duration, Force: *force}
+		Log: runLogger(stderr, c.jsonMode()), Rig: *rigID, MaxSteps: *maxSteps, Duration: *duration, Force: *force}
 	if *clock != "" {
 		if *clock != string(hil.Lockstep) && *clock != string(hil.Wallclock) {
 			return c.usageError("--clock %q: want lockstep or wallclock", *clock)
