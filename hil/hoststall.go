@@ -29,6 +29,10 @@ type hostStalls struct {
 	count     int
 	lateTicks int // wall-clock ticks that started a whole period or more after they were due
 	logged    int // host_stall events written
+	// watchEarly counts down the lockstep exchanges that read the host's
+	// CPU pressure from the start of their wait, after a slow one
+	// (lockstep.go).
+	watchEarly int
 }
 
 // hostStall notes a stall of the rig of length d, seen at the current

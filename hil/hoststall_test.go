@@ -180,3 +180,69 @@ func busyHost(share float64) *cpuPressure {
 		return time.Duration(share * float64(time.Since(t0)) / n), true
 	}}
 }
+
+// lateWithStaleConn plays a rig the host did not run while it waited for
+// the answer to state `at`: that wait ends three watchdogs after its
+// deadline, not with a timeout but with a stale command that came
+// meanwhile (as it does when the host finally runs the rig). The state
+// itself reaches the firmware only after that, so its answer comes after
+// the stale one, as the answer to a state the host also delayed would.
+type lateWithStaleConn struct {
+	bridges.Conn
+	at      uint32
+	stall   time.Duration
+	held    protocol.Message
+	holding bool
+	done    bool
+}
+
+func (c *lateWithStaleConn) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState && m.Seq == c.at && !c.done {
+		c.held, c.holding = *m, true
+		return nil
+	}
+	return c.Conn.Send(m)
+}
+
+func (c *lateWithStaleConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if c.holding && !c.done {
+		c.done = true
+		time.Sleep(time.Until(deadline) + c.stall)
+		*m = protocol.Message{Type: protocol.TypeCommand, Seq: c.at - 1}
+		m.Command.Joints = 2
+		return nil
+	}
+	if c.holding {
+		c.holding = false
+		if err := c.Conn.Send(&c.held); err != nil {
+			return err
+		}
+	}
+	return c.Conn.Recv(deadline, m)
+}
+
+// A stall of the rig that ends with a message rather than a timeout is the
+// rig's own time too: the watchdog does not trip on it, the stall is
+// counted, and the run walks on. (Before, only waits that ended with a
+// timeout were measured, and a saturated host tripped the watchdog of a
+// firmware that answered as soon as it was asked.)
+func TestLockstepStallEndingWithAMessageIsTheRigs(t *testing.T) {
+	m, s, cfg := timedDemo(t, 0.1)
+	cfg.Watchdog = 30 * time.Millisecond
+	cfg.Resend = time.Second
+	cfg.pressure = quietHost // only the rig's own measure may excuse the stall
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fw)
+	res, err := Run(context.Background(), cfg, m, s, &lateWithStaleConn{Conn: rig, at: 40, stall: 3 * cfg.Watchdog}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sum := res.Summary
+	if sum.Outcome != record.Pass || sum.Alarms[AlarmWatchdog] != 0 || res.Link.StaleCommands == 0 {
+		t.Fatalf("%s (%s), alarms %v, link %+v: want a pass with the stale command counted", sum.Outcome, sum.Reason, sum.Alarms, res.Link)
+	}
+	if sum.HostStallS < 0.09 {
+		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
+	}
+}

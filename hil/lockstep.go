@@ -26,6 +26,12 @@ const stallSlack = 5 * time.Millisecond
 // 64 is the in-process link's whole buffer.
 const finalLooks = 64
 
+// watchEarlyTicks is for how many exchanges after a slow one the loop
+// reads the host's CPU pressure from the start of the wait rather than
+// once the answer is slow: a busy host stays busy for a while, and
+// pressure before the first reading cannot be credited.
+const watchEarlyTicks = 1000
+
 // lockstep runs the ticks in virtual time.
 func (r *runner) lockstep(ctx context.Context) {
 	src := &lockstepSource{r: r}
@@ -64,38 +70,52 @@ func (l *lockstepSource) afterState(ctx context.Context) bool {
 // resending the state after cfg.Resend and tripping the watchdog after
 // cfg.Watchdog. It returns false when the run must end.
 //
-// Simulated time waits for the firmware, so the watchdog measures only the
-// firmware's answer time: it starts when the state has gone out (the rig's
-// own work on the tick is not the firmware's) and is moved on by every
-// stall of the rig seen while waiting (a wait that ended more than
-// stallSlack after its deadline: the host did not run the rig). A busy
-// host therefore never trips it, while a firmware that is gone still does
-// after cfg.Watchdog of listening.
+// Simulated time waits for the firmware, so the watchdog counts only time
+// in which the firmware could have answered: the time since the state
+// went out, less what was the rig's own and less the time the host's CPUs
+// were contended. The rig's own time is every wait that ended later than
+// its deadline, however it ended (with a timeout, or with a message that
+// had come meanwhile and was waiting when the host finally ran the rig),
+// and its own work between waits (a resend, flushing rows to disk, link
+// events). Reading the firmware's messages is not the rig's own: a
+// firmware that floods stale answers still trips the watchdog. A busy
+// host therefore does not trip it, while a firmware that is gone still
+// does after cfg.Watchdog of listening on a quiet host.
 func (l *lockstepSource) exchange(ctx context.Context) bool {
 	r := l.r
 	ss := &r.sess
 	start := time.Now()
-	wd := start.Add(r.cfg.Watchdog) // moved on by the rig's stalls and the host's CPU pressure
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
 	var busy hostBusy
-	var own time.Duration // the rig's own stalls during this wait
-	// When the answer is slow (past the first resend, or a quarter of the
-	// watchdog if that is sooner), start watching the host's CPU pressure;
-	// a reading costs a system call, too much for every tick.
+	var own time.Duration // the rig's own time during this wait: its stalls and its work
+	// charged is the firmware's answer time so far.
+	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.total }
+	// Watch the host's CPU pressure once the answer is slow (past the first
+	// resend, or a quarter of the watchdog if that is sooner), or from the
+	// start while the host has recently been slow: a reading costs a system
+	// call, too much for every tick of a quiet run, and pressure before the
+	// first reading cannot be credited.
 	watchAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
+	if r.stalls.watchEarly > 0 {
+		r.stalls.watchEarly--
+		watchAt = start
+	}
 	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
 		}
 		now := time.Now()
+		if !busy.tried && !now.Before(watchAt) {
+			busy.start(r.pressure)
+			r.stalls.watchEarly = watchEarlyTicks
+		}
 		// Past the watchdog, read what is already waiting, without
 		// waiting for more: after a stall of the rig itself the answer may
 		// be in the buffer, and that is not the firmware's fault.
-		final := !now.Before(wd)
-		if !busy.tried && !now.Before(watchAt) {
-			busy.start(r.pressure)
-		}
+		c := charged(now)
+		final := c >= r.cfg.Watchdog
+		wd := now.Add(r.cfg.Watchdog - c)
 		deadline := resendAt
 		if wd.Before(deadline) {
 			deadline = wd
@@ -104,46 +124,44 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
-		kind := classify(err, &ss.fe)
-		if kind == linkOK && l.validReply() {
-			return true
-		}
-		if kind == linkTimeout && deadline.After(now) {
+		if deadline.After(now) {
 			// A wait that ended far later than its deadline means the rig
-			// process itself was not running (an overloaded host): that
-			// time is not the firmware's.
+			// process itself was not running (an overloaded host), whether
+			// it ended with a timeout or with a message that came
+			// meanwhile: that time is not the firmware's.
 			if late := time.Since(deadline); late > stallSlack {
-				wd = wd.Add(late)
 				own += late
 				resendAt = resendAt.Add(late)
 				r.hostStall(late)
-				continue // and look again: the answer may have come meanwhile
 			}
+		}
+		kind := classify(err, &ss.fe)
+		if kind == linkOK && l.validReply() {
+			return true
 		}
 		if final {
 			looks++
 		}
 		if (final && (kind == linkTimeout || looks > finalLooks)) ||
-			(kind == linkTimeout && !time.Now().Before(wd)) {
+			(kind == linkTimeout && charged(time.Now()) >= r.cfg.Watchdog) {
 			// Before blaming the firmware: time in which the host's CPUs
 			// were contended is time a firmware in another process may
 			// not have been run, so the watchdog does not count it either.
-			if more := busy.credit(r.pressure); more > 0 {
-				wd = wd.Add(more)
-			}
-			silent := time.Since(start)
-			if time.Now().Before(wd) && silent < busy.limit(r.cfg.Watchdog) {
-				looks, final = 0, false
+			busy.credit(r.pressure)
+			now := time.Now()
+			silent, c := now.Sub(start), charged(now)
+			if c < r.cfg.Watchdog && silent < busy.limit(r.cfg.Watchdog) {
+				looks = 0
 				continue
 			}
-			if silent-busy.total-own < r.cfg.Watchdog {
+			if c < r.cfg.Watchdog {
 				// The limit passed and the host never left the firmware a
 				// watchdog's worth of CPU: whether it is gone cannot be
 				// told on this host. Not a verdict on the firmware.
 				r.hostBusy(silent, busy.total)
 				return false
 			}
-			r.watchdogContended(silent, busy.total+own)
+			r.watchdogContended(silent, silent-c)
 			return false
 		}
 		switch kind {
@@ -159,7 +177,9 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// waiting. (Dropped and corrupted commands never get here: the
 			// fault link lost them or made them frame errors.)
 		case linkTimeout:
-			if !time.Now().Before(resendAt) {
+			// The rig's own work while it waits is not the firmware's time.
+			t0 := time.Now()
+			if !t0.Before(resendAt) {
 				if r.rec != nil {
 					r.rec.Flush() // rows must not sit in the buffer while the rig waits
 				}
@@ -168,6 +188,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 				resendAt = time.Now().Add(r.cfg.Resend)
 			}
 			r.drainLinkEvents()
+			own += time.Since(t0)
 		case linkDisconnected:
 			// The link lost its peer and is trying to get it back: the link
 			// events say so, and the watchdog decides whether to wait.

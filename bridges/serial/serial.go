@@ -77,7 +77,16 @@ func (c *Config) withDefaults() Config {
 
 // ErrSendQueueFull is returned by Send when the frames already queued have
 // not been written, because the peer stopped reading or the port stalled.
-var ErrSendQueueFull = errors.New("serial: send queue full: the port has not taken the frames already queued (peer not reading?)")
+// It wraps bridges.ErrSendBusy: the link stays usable.
+var ErrSendQueueFull error = sendQueueFullError{}
+
+type sendQueueFullError struct{}
+
+func (sendQueueFullError) Error() string {
+	return "serial: send queue full: the port has not taken the frames already queued (peer not reading?)"
+}
+
+func (sendQueueFullError) Unwrap() error { return bridges.ErrSendBusy }
 
 // rxItem is one entry of the receive queue: a message or an error.
 type rxItem struct {

@@ -473,6 +473,10 @@ func TestSendDoesNotBlockWhenPeerStopsReading(t *testing.T) {
 	for {
 		err := p.rig.Send(&st)
 		if errors.Is(err, ErrSendQueueFull) {
+			// The same refusal in the words every link uses.
+			if !errors.Is(err, bridges.ErrSendBusy) {
+				t.Errorf("%v does not wrap bridges.ErrSendBusy", err)
+			}
 			break
 		}
 		if err != nil {
