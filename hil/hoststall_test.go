@@ -2,6 +2,7 @@ package hil
 
 import (
 	"context"
+	"math"
 	"runtime"
 	"testing"
 	"time"
@@ -244,5 +245,82 @@ func TestLockstepStallEndingWithAMessageIsTheRigs(t *testing.T) {
 	}
 	if sum.HostStallS < 0.09 {
 		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
+	}
+}
+
+// fakeHost is a host of cpus CPUs, busy of them busy, on which the
+// host-wide PSI "some" figure grows at rate some per second (as
+// /proc/pressure/cpu would report it) since it was made.
+func fakeHost(cpus int, busy, some float64) *cpuPressure {
+	t0 := time.Now()
+	return &cpuPressure{
+		cpus: cpus,
+		fake: func() (time.Duration, bool) { return time.Duration(some * float64(time.Since(t0))), true },
+		fakeStat: func() (cpuTimes, bool) {
+			ticks := time.Since(t0).Seconds() * userHZ
+			return cpuTimes{nonidle: int64(busy * ticks), all: int64(float64(cpus) * ticks)}, true
+		},
+	}
+}
+
+// The verdict on a firmware that stays silent weighs the host's pressure
+// by the CPUs that were busy, not by all of them (issue 9, hoststall
+// credit). On a large host with a few CPUs busy and one task waiting half
+// the time, the pressure times the CPU count would excuse the whole wait
+// and end the run invalid; the firmware that is gone must trip the
+// watchdog. On a small saturated host the same silence stays invalid.
+func TestLockstepVerdictWeighsPressureByBusyCPUs(t *testing.T) {
+	tests := []struct {
+		name string
+		host *cpuPressure
+		want record.Outcome
+	}{
+		// 64 CPUs, 8 busy, one of them with a task waiting half the time:
+		// PSI grows at 0.5/8 (kernel/sched/psi.c weights by non-idle time).
+		{"large host, few CPUs busy", fakeHost(64, 8, 0.5/8), record.Tripped},
+		// 2 CPUs, both busy, a task waiting on each all the time.
+		{"small saturated host", fakeHost(2, 2, 1), record.Invalid},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			m, s, cfg := timedDemo(t, 0.3)
+			cfg.Watchdog = 30 * time.Millisecond
+			cfg.pressure = tc.host
+			res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+			if err != nil {
+				t.Fatal(err)
+			}
+			sum := res.Summary
+			if sum.Outcome != tc.want {
+				t.Fatalf("outcome %s (%s), alarms %v; want %s", sum.Outcome, sum.Reason, sum.Alarms, tc.want)
+			}
+		})
+	}
+}
+
+// busyCPUs against the figures worked out by hand.
+func TestBusyCPUs(t *testing.T) {
+	tests := []struct {
+		d    cpuTimes
+		w    time.Duration
+		want float64
+		ok   bool
+	}{
+		// 1 s = 100 ticks; 64 CPUs (6400 ticks), 800 ticks busy: 8 CPUs,
+		// plus one tick per CPU for rounding: (800+64)/100.
+		{cpuTimes{nonidle: 800, all: 6400}, time.Second, 8.64, true},
+		// 2 CPUs, both busy: (200+2)/100 capped at the 2 CPUs.
+		{cpuTimes{nonidle: 200, all: 200}, time.Second, 2, true},
+		// An idle host: at least 1.
+		{cpuTimes{nonidle: 0, all: 6400}, time.Second, 1, true},
+		// A window shorter than one tick says nothing.
+		{cpuTimes{nonidle: 1, all: 2}, 5 * time.Millisecond, 0, false},
+		{cpuTimes{}, time.Second, 0, false},
+	}
+	for _, tc := range tests {
+		got, ok := busyCPUs(tc.d, tc.w)
+		if ok != tc.ok || math.Abs(got-tc.want) > 1e-9 {
+			t.Errorf("busyCPUs(%+v, %v) = %v %v, want %v %v", tc.d, tc.w, got, ok, tc.want, tc.ok)
+		}
 	}
 }

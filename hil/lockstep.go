@@ -155,6 +155,12 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 				continue
 			}
 			if c < r.cfg.Watchdog {
+				// The verdict: the credit over the whole wait, with the
+				// host's busy CPUs rather than all of them.
+				busy.settle(r.pressure)
+				c = charged(now)
+			}
+			if c < r.cfg.Watchdog {
 				// The limit passed and the host never left the firmware a
 				// watchdog's worth of CPU: whether it is gone cannot be
 				// told on this host. Not a verdict on the firmware.
