@@ -83,7 +83,8 @@ type hostBusy struct {
 	p0       time.Duration // pressure reading when the wait became slow
 	t0       time.Time     // when it was taken
 	total    time.Duration // pressure credited to the watchdog so far
-	s0       cpuTimes      // the host's CPU times at t0
+	s0       cpuTimes      // the host's CPU times at st0, for settle
+	st0      time.Time     // when s0 was read: at the first credit (past a watchdog of silence)
 	statOK   bool          // s0 was read
 }
 
@@ -95,7 +96,6 @@ func (b *hostBusy) start(p *cpuPressure) {
 	b.tried = true
 	if v, ok := p.some(); ok {
 		b.watching, b.p0, b.t0 = true, v, time.Now()
-		b.s0, b.statOK = p.times()
 	}
 }
 
@@ -107,6 +107,14 @@ func (b *hostBusy) credit(p *cpuPressure) time.Duration {
 	v, ok := p.some()
 	if !ok {
 		return 0
+	}
+	if !b.statOK {
+		// The busy CPUs for settle, read here rather than at start: only
+		// a wait this long may need them, and /proc/stat costs more to
+		// read than the pressure file. Their share is a rate, so a window
+		// that starts later measures it as well.
+		b.s0, b.statOK = p.times()
+		b.st0 = time.Now()
 	}
 	// The host-wide "some" figure is the per-CPU stall time averaged over
 	// the non-idle CPUs (Linux PSI, Documentation/accounting/psi.rst): one
@@ -144,7 +152,7 @@ func (b *hostBusy) settle(p *cpuPressure) time.Duration {
 		return b.total
 	}
 	watched := time.Since(b.t0)
-	n, ok := busyCPUs(cpuTimes{nonidle: s.nonidle - b.s0.nonidle, all: s.all - b.s0.all}, watched)
+	n, ok := busyCPUs(cpuTimes{nonidle: s.nonidle - b.s0.nonidle, all: s.all - b.s0.all}, time.Since(b.st0))
 	if !ok {
 		return b.total
 	}
