@@ -91,6 +91,19 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	var own time.Duration // the rig's own time during this wait: its stalls and its work
 	// charged is the firmware's answer time so far.
 	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.total }
+	// The loop's own code between two readings of the clock takes
+	// microseconds; a gap longer than stallSlack there is the host not
+	// running the rig (preempted, frozen), not the firmware being slow.
+	mark := start
+	step := func() time.Time {
+		t := time.Now()
+		if gap := t.Sub(mark); gap > stallSlack {
+			own += gap
+			r.hostStall(gap)
+		}
+		mark = t
+		return t
+	}
 	// Watch the host's CPU pressure once the answer is slow (past the first
 	// resend, or a quarter of the watchdog if that is sooner), or from the
 	// start while the host has recently been slow: a reading costs a system
@@ -105,7 +118,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		if r.aborted(ctx) {
 			return false
 		}
-		now := time.Now()
+		now := step()
 		if !busy.tried && !now.Before(watchAt) {
 			busy.start(r.pressure)
 			r.stalls.watchEarly = watchEarlyTicks
@@ -124,17 +137,21 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
-		if deadline.After(now) {
-			// A wait that ended far later than its deadline means the rig
-			// process itself was not running (an overloaded host), whether
-			// it ended with a timeout or with a message that came
-			// meanwhile: that time is not the firmware's.
-			if late := time.Since(deadline); late > stallSlack {
-				own += late
-				resendAt = resendAt.Add(late)
-				r.hostStall(late)
-			}
+		// A wait that ended far later than its deadline means the rig
+		// process itself was not running (an overloaded host), whether it
+		// ended with a timeout or with a message that came meanwhile: that
+		// time is not the firmware's.
+		back := time.Now()
+		due := deadline
+		if due.Before(now) {
+			due = now // a deadline already past: Recv only looked
 		}
+		if late := back.Sub(due); late > stallSlack {
+			own += late
+			resendAt = resendAt.Add(late)
+			r.hostStall(late)
+		}
+		mark = back
 		kind := classify(err, &ss.fe)
 		if kind == linkOK && l.validReply() {
 			return true
@@ -143,12 +160,12 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			looks++
 		}
 		if (final && (kind == linkTimeout || looks > finalLooks)) ||
-			(kind == linkTimeout && charged(time.Now()) >= r.cfg.Watchdog) {
+			(kind == linkTimeout && charged(step()) >= r.cfg.Watchdog) {
 			// Before blaming the firmware: time in which the host's CPUs
 			// were contended is time a firmware in another process may
 			// not have been run, so the watchdog does not count it either.
 			busy.credit(r.pressure)
-			now := time.Now()
+			now := step()
 			silent, c := now.Sub(start), charged(now)
 			if c < r.cfg.Watchdog && silent < busy.limit(r.cfg.Watchdog) {
 				looks = 0
@@ -184,7 +201,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// fault link lost them or made them frame errors.)
 		case linkTimeout:
 			// The rig's own work while it waits is not the firmware's time.
-			t0 := time.Now()
+			t0 := step()
 			if !t0.Before(resendAt) {
 				if r.rec != nil {
 					r.rec.Flush() // rows must not sit in the buffer while the rig waits
@@ -194,7 +211,8 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 				resendAt = time.Now().Add(r.cfg.Resend)
 			}
 			r.drainLinkEvents()
-			own += time.Since(t0)
+			mark = time.Now()
+			own += mark.Sub(t0)
 		case linkDisconnected:
 			// The link lost its peer and is trying to get it back: the link
 			// events say so, and the watchdog decides whether to wait.
