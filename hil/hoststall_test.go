@@ -3,6 +3,7 @@ package hil
 import (
 	"context"
 	"math"
+	"sync/atomic"
 	"runtime"
 	"testing"
 	"time"
@@ -322,5 +323,82 @@ func TestBusyCPUs(t *testing.T) {
 		if ok != tc.ok || math.Abs(got-tc.want) > 1e-9 {
 			t.Errorf("busyCPUs(%+v, %v) = %v %v, want %v %v", tc.d, tc.w, got, ok, tc.want, tc.ok)
 		}
+	}
+}
+
+// freezeCtx stalls the rig between two waits: once armed, the next look at
+// the context (the loop's check for an interrupt, in its own code between
+// waits) sleeps for d, as a host that stops running the rig there would.
+type freezeCtx struct {
+	context.Context
+	armed atomic.Bool
+	d     time.Duration
+}
+
+func (c *freezeCtx) Done() <-chan struct{} {
+	if c.armed.CompareAndSwap(true, false) {
+		time.Sleep(c.d)
+	}
+	return c.Context.Done()
+}
+
+// heldStateConn holds state `at` back from the firmware until the rig's
+// wait after the freeze, and arms the freeze in the first wait for its
+// answer: the firmware's answer can only come after the stall.
+type heldStateConn struct {
+	bridges.Conn
+	ctx     *freezeCtx
+	at      uint32
+	held    protocol.Message
+	holding bool
+	waits   int
+}
+
+func (c *heldStateConn) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState && m.Seq == c.at && c.waits == 0 {
+		c.held, c.holding = *m, true
+		return nil
+	}
+	return c.Conn.Send(m)
+}
+
+func (c *heldStateConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if c.holding {
+		c.waits++
+		if c.waits == 1 {
+			c.ctx.armed.Store(true)
+		} else {
+			c.holding = false
+			if err := c.Conn.Send(&c.held); err != nil {
+				return err
+			}
+		}
+	}
+	return c.Conn.Recv(deadline, m)
+}
+
+// A stall of the rig in its own code between two waits (not inside a wait,
+// where a late wake-up shows it) is the rig's time too: the watchdog does
+// not trip on it. (Before, only waits that ended late were measured, and a
+// rig frozen between a wait and its watchdog check blamed the firmware.)
+func TestLockstepStallBetweenWaitsIsTheRigs(t *testing.T) {
+	m, s, cfg := timedDemo(t, 0.1)
+	cfg.Watchdog = 30 * time.Millisecond
+	cfg.Resend = time.Second
+	cfg.pressure = quietHost // only the rig's own measure may excuse the stall
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fw)
+	ctx := &freezeCtx{Context: context.Background(), d: 3 * cfg.Watchdog}
+	res, err := Run(ctx, cfg, m, s, &heldStateConn{Conn: rig, ctx: ctx, at: 40}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sum := res.Summary
+	if sum.Outcome != record.Pass || sum.Alarms[AlarmWatchdog] != 0 {
+		t.Fatalf("%s (%s), alarms %v: want a pass", sum.Outcome, sum.Reason, sum.Alarms)
+	}
+	if sum.HostStallS < 0.09 {
+		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
 	}
 }
