@@ -3,8 +3,8 @@ package hil
 import (
 	"context"
 	"math"
-	"sync/atomic"
 	"runtime"
+	"sync/atomic"
 	"testing"
 	"time"
 
