@@ -166,12 +166,15 @@ func (b *hostBusy) settle(p *cpuPressure) time.Duration {
 // and at least 1.
 //
 // Why this and not the CPU count: the host-wide "some" figure of Linux PSI
-// (kernel/sched/psi.c, collect_percpu_times) is the per-CPU stall time
-// weighted by each CPU's non-idle time, sum(some_i * nonidle_i) /
-// sum(nonidle_i). A task that waited T on CPU i, busy all the window,
+// is the per-CPU stall time weighted by each CPU's non-idle time,
+// sum(some_i * nonidle_i) / sum(nonidle_i) (kernel/sched/psi.c,
+// collect_percpu_times; from memory of the kernel source, and what
+// Documentation/accounting/psi.rst describes as an average over the
+// non-idle CPUs). A task that waited T on CPU i, busy all the window,
 // adds T * w / sum(nonidle): T / busy CPUs, not T / all CPUs. Multiplying
-// back by the busy CPUs gives T; by the CPU count it gives T times the
-// idle share of a large host, enough to excuse any silence.
+// back by the busy CPUs gives T; by the CPU count it gives T times all
+// CPUs over busy ones, on a large, mostly idle host enough to excuse any
+// silence.
 func busyCPUs(d cpuTimes, w time.Duration) (float64, bool) {
 	ticks := w.Seconds() * userHZ
 	if ticks < 1 || d.all <= 0 || d.nonidle < 0 {
