@@ -215,9 +215,25 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	cfg.TickHz = 2000
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
 	cfg.Watchdog = 4 * delay // the delay itself is silence the watchdog must allow
-	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
-	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
-		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+	// 150 ms of commands, 300 at 2 kHz, come due before the end. A loop
+	// that keeps time takes them in as many ticks; one the host stalled
+	// (late ticks, counted) finds many due at once and rightly takes only
+	// the newest, the rest counted stale, so a run with late ticks cannot
+	// tell kept commands from lost ones by the fresh ticks. Up to three
+	// runs are made for one that kept time; if the host stalls every one,
+	// the last is held to what it can show (every command that came due
+	// was taken or counted stale, none vanished) and the test says so.
+	var res Result
+	var ticks []record.Tick
+	for n := 1; ; n++ {
+		res, _, ticks = runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
+		if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+		if res.Summary.LateTicks == 0 && res.Summary.Outcome != record.Invalid || n == retrytest.MaxAttempts {
+			break
+		}
+		t.Logf("attempt %d: %d late ticks (%s): the host stalled the loop, running it again", n, res.Summary.LateTicks, res.Summary.Outcome)
 	}
 	fresh := 0
 	for _, row := range ticks {
@@ -228,10 +244,15 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 			}
 		}
 	}
-	// 150 ms of commands, 300 at 2 kHz, come due before the end; allow for
-	// a slow host.
-	if fresh < 100 {
-		t.Fatalf("%d ticks had a fresh command (link %+v); the delayed commands were lost", fresh, res.Link)
+	if res.Summary.LateTicks == 0 && res.Summary.Outcome != record.Invalid {
+		if fresh < 100 {
+			t.Fatalf("%d ticks had a fresh command (link %+v); the delayed commands were lost", fresh, res.Link)
+		}
+	} else {
+		t.Logf("every attempt had late ticks (%d in the last): judging the counts only", res.Summary.LateTicks)
+		if got := res.Link.Commands + res.Link.StaleCommands; got < 100 || fresh == 0 {
+			t.Fatalf("%d commands taken or counted stale, %d fresh ticks (link %+v); the delayed commands were lost", got, fresh, res.Link)
+		}
 	}
-	t.Logf("%d of %d ticks had a fresh command; outcome %s; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Link)
+	t.Logf("%d of %d ticks had a fresh command; outcome %s; %d late ticks; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Summary.LateTicks, res.Link)
 }
