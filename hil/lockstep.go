@@ -129,6 +129,12 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		c := charged(now)
 		final := c >= r.cfg.Watchdog
 		wd := now.Add(r.cfg.Watchdog - c)
+		if !final {
+			// At least a millisecond per look: with the host's pressure
+			// credited bit by bit, the watchdog's remaining time may stay
+			// tiny, and the loop must not spin on it.
+			wd = now.Add(max(r.cfg.Watchdog-c, time.Millisecond))
+		}
 		deadline := resendAt
 		if wd.Before(deadline) {
 			deadline = wd
@@ -146,13 +152,18 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		if due.Before(now) {
 			due = now // a deadline already past: Recv only looked
 		}
+		stalled := false
 		if late := back.Sub(due); late > stallSlack {
 			own += late
 			resendAt = resendAt.Add(late)
 			r.hostStall(late)
+			stalled = true
 		}
 		mark = back
 		kind := classify(err, &ss.fe)
+		if stalled && kind == linkTimeout {
+			continue // and look again: the answer may have come meanwhile
+		}
 		if kind == linkOK && l.validReply() {
 			return true
 		}
@@ -168,7 +179,13 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			now := step()
 			silent, c := now.Sub(start), charged(now)
 			if c < r.cfg.Watchdog && silent < busy.limit(r.cfg.Watchdog) {
+				// Waiting on: the resend must not wait with it, or a
+				// firmware that lost the state (or the configuration
+				// after a greeting) would never be asked again.
 				looks = 0
+				if !now.Before(resendAt) {
+					resendAt = l.resend()
+				}
 				continue
 			}
 			if c < r.cfg.Watchdog {
@@ -203,12 +220,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// The rig's own work while it waits is not the firmware's time.
 			t0 := step()
 			if !t0.Before(resendAt) {
-				if r.rec != nil {
-					r.rec.Flush() // rows must not sit in the buffer while the rig waits
-				}
-				r.health.counts.Resends++
-				r.sendState()
-				resendAt = time.Now().Add(r.cfg.Resend)
+				resendAt = l.resend()
 			}
 			r.drainLinkEvents()
 			mark = time.Now()
@@ -231,6 +243,19 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		}
 	}
 	return false
+}
+
+// resend sends the state again (after flushing the rows, which must not
+// sit in the buffer while the rig waits) and returns when the next resend
+// is due.
+func (l *lockstepSource) resend() time.Time {
+	r := l.r
+	if r.rec != nil {
+		r.rec.Flush()
+	}
+	r.health.counts.Resends++
+	r.sendState()
+	return time.Now().Add(r.cfg.Resend)
 }
 
 // validReply checks a received message against the awaited sequence
