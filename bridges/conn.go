@@ -55,6 +55,14 @@ var ErrClosed = errors.New("bridges: link closed")
 // with ErrTimeout for deadlines that pass while it is still down.
 var ErrDisconnected = errors.New("bridges: link down")
 
+// ErrSendBusy is wrapped by a Send that refused its message because the
+// frames queued before it have not left yet (the peer is not reading, or
+// the host has not run the link's writer). The message was not sent; the
+// link stays usable and a later Send may succeed. A firmware drops such an
+// answer as a board drops a frame its full UART buffer cannot take (the
+// rig's resend asks again); nothing is gained by giving up on the link.
+var ErrSendBusy = errors.New("bridges: send queue full")
+
 // FrameError reports one rejected incoming frame. The link stays usable.
 type FrameError struct {
 	Reason string // short plain description, e.g. "bad CRC: got 0x1234, computed 0xBEEF"

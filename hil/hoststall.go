@@ -10,7 +10,7 @@ package hil
 
 import (
 	"fmt"
-	"runtime"
+	"math"
 	"time"
 
 	"gaitrig/bridges/protocol"
@@ -29,6 +29,10 @@ type hostStalls struct {
 	count     int
 	lateTicks int // wall-clock ticks that started a whole period or more after they were due
 	logged    int // host_stall events written
+	// watchEarly counts down the lockstep exchanges that read the host's
+	// CPU pressure from the start of their wait, after a slow one
+	// (lockstep.go).
+	watchEarly int
 }
 
 // hostStall notes a stall of the rig of length d, seen at the current
@@ -79,6 +83,9 @@ type hostBusy struct {
 	p0       time.Duration // pressure reading when the wait became slow
 	t0       time.Time     // when it was taken
 	total    time.Duration // pressure credited to the watchdog so far
+	s0       cpuTimes      // the host's CPU times at st0, for settle
+	st0      time.Time     // when s0 was read: at the first credit (past a watchdog of silence)
+	statOK   bool          // s0 was read
 }
 
 // start takes the first pressure reading of a slow wait.
@@ -101,12 +108,22 @@ func (b *hostBusy) credit(p *cpuPressure) time.Duration {
 	if !ok {
 		return 0
 	}
+	if !b.statOK {
+		// The busy CPUs for settle, read here rather than at start: only
+		// a wait this long may need them, and /proc/stat costs more to
+		// read than the pressure file. Their share is a rate, so a window
+		// that starts later measures it as well.
+		b.s0, b.statOK = p.times()
+		b.st0 = time.Now()
+	}
 	// The host-wide "some" figure is the per-CPU stall time averaged over
-	// the CPUs (Linux PSI, Documentation/accounting/psi.rst): one task
-	// waiting on one of N CPUs adds only 1/N of the time it waited. The
-	// firmware may be that task, so the credit is the figure times the
-	// CPU count, and never more than the time watched.
-	contended := (v - b.p0) * time.Duration(runtime.NumCPU())
+	// the non-idle CPUs (Linux PSI, Documentation/accounting/psi.rst): one
+	// task waiting on one of N busy CPUs adds only 1/N of the time it
+	// waited. The firmware may be that task, so the credit is the figure
+	// times the CPU count, and never more than the time watched. That is
+	// an upper bound (on a large, partly idle host a loose one), good for
+	// deciding to wait on; the verdict at the limit uses settle.
+	contended := (v - b.p0) * time.Duration(p.numCPU())
 	if watched := time.Since(b.t0); contended > watched {
 		contended = watched
 	}
@@ -116,6 +133,59 @@ func (b *hostBusy) credit(p *cpuPressure) time.Duration {
 	}
 	b.total += more
 	return more
+}
+
+// settle recomputes the credit over the whole slow wait, for the verdict
+// at the limit, with the number of the host's CPUs that were busy instead
+// of all of them (busyCPUs), and returns the new total. It may be less
+// than what credit gave: credit's figure is an upper bound, fit to decide
+// whether to wait on, but on a large host with some CPUs contended and
+// most idle it would excuse a firmware that is gone, and the run would end
+// invalid instead of tripped. Without /proc/stat the total stands.
+func (b *hostBusy) settle(p *cpuPressure) time.Duration {
+	if !b.watching || !b.statOK {
+		return b.total
+	}
+	v, ok := p.some()
+	s, sok := p.times()
+	if !ok || !sok {
+		return b.total
+	}
+	watched := time.Since(b.t0)
+	n, ok := busyCPUs(cpuTimes{nonidle: s.nonidle - b.s0.nonidle, all: s.all - b.s0.all}, time.Since(b.st0))
+	if !ok {
+		return b.total
+	}
+	b.total = min(time.Duration(float64(v-b.p0)*n), watched)
+	return b.total
+}
+
+// busyCPUs is how many of the host's CPUs were busy on average over a
+// window of length w in which they spent d (from /proc/stat), one CPU's
+// rounding (a unit of 1/userHZ s) added per CPU so the figure errs high,
+// and at least 1.
+//
+// Why this and not the CPU count: the host-wide "some" figure of Linux PSI
+// is the per-CPU stall time weighted by each CPU's non-idle time,
+// sum(some_i * nonidle_i) / sum(nonidle_i) (kernel/sched/psi.c,
+// collect_percpu_times; from memory of the kernel source, and what
+// Documentation/accounting/psi.rst describes as an average over the
+// non-idle CPUs). A task that waited T on CPU i, busy all the window,
+// adds T * w / sum(nonidle): T / busy CPUs, not T / all CPUs. Multiplying
+// back by the busy CPUs gives T; by the CPU count it gives T times all
+// CPUs over busy ones, on a large, mostly idle host enough to excuse any
+// silence.
+func busyCPUs(d cpuTimes, w time.Duration) (float64, bool) {
+	ticks := w.Seconds() * userHZ
+	if ticks < 1 || d.all <= 0 || d.nonidle < 0 {
+		return 0, false
+	}
+	cpus := math.Round(float64(d.all) / ticks)
+	if cpus < 1 {
+		return 0, false
+	}
+	n := (float64(d.nonidle) + cpus) / ticks
+	return min(max(n, 1), cpus), true
 }
 
 // limit is how long the rig waits in all for an answer while the host is

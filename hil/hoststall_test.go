@@ -2,7 +2,9 @@ package hil
 
 import (
 	"context"
+	"math"
 	"runtime"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -179,4 +181,224 @@ func busyHost(share float64) *cpuPressure {
 	return &cpuPressure{fake: func() (time.Duration, bool) {
 		return time.Duration(share * float64(time.Since(t0)) / n), true
 	}}
+}
+
+// lateWithStaleConn plays a rig the host did not run while it waited for
+// the answer to state `at`: that wait ends three watchdogs after its
+// deadline, not with a timeout but with a stale command that came
+// meanwhile (as it does when the host finally runs the rig). The state
+// itself reaches the firmware only after that, so its answer comes after
+// the stale one, as the answer to a state the host also delayed would.
+type lateWithStaleConn struct {
+	bridges.Conn
+	at      uint32
+	stall   time.Duration
+	held    protocol.Message
+	holding bool
+	done    bool
+}
+
+func (c *lateWithStaleConn) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState && m.Seq == c.at && !c.done {
+		c.held, c.holding = *m, true
+		return nil
+	}
+	return c.Conn.Send(m)
+}
+
+func (c *lateWithStaleConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if c.holding && !c.done {
+		c.done = true
+		time.Sleep(time.Until(deadline) + c.stall)
+		*m = protocol.Message{Type: protocol.TypeCommand, Seq: c.at - 1}
+		m.Command.Joints = 2
+		return nil
+	}
+	if c.holding {
+		c.holding = false
+		if err := c.Conn.Send(&c.held); err != nil {
+			return err
+		}
+	}
+	return c.Conn.Recv(deadline, m)
+}
+
+// A stall of the rig that ends with a message rather than a timeout is the
+// rig's own time too: the watchdog does not trip on it, the stall is
+// counted, and the run walks on. (Before, only waits that ended with a
+// timeout were measured, and a saturated host tripped the watchdog of a
+// firmware that answered as soon as it was asked.)
+func TestLockstepStallEndingWithAMessageIsTheRigs(t *testing.T) {
+	m, s, cfg := timedDemo(t, 0.1)
+	cfg.Watchdog = 30 * time.Millisecond
+	cfg.Resend = time.Second
+	cfg.pressure = quietHost // only the rig's own measure may excuse the stall
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fw)
+	res, err := Run(context.Background(), cfg, m, s, &lateWithStaleConn{Conn: rig, at: 40, stall: 3 * cfg.Watchdog}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sum := res.Summary
+	if sum.Outcome != record.Pass || sum.Alarms[AlarmWatchdog] != 0 || res.Link.StaleCommands == 0 {
+		t.Fatalf("%s (%s), alarms %v, link %+v: want a pass with the stale command counted", sum.Outcome, sum.Reason, sum.Alarms, res.Link)
+	}
+	if sum.HostStallS < 0.09 {
+		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
+	}
+}
+
+// fakeHost is a host of cpus CPUs, busy of them busy, on which the
+// host-wide PSI "some" figure grows at rate some per second (as
+// /proc/pressure/cpu would report it) since it was made.
+func fakeHost(cpus int, busy, some float64) *cpuPressure {
+	t0 := time.Now()
+	return &cpuPressure{
+		cpus: cpus,
+		fake: func() (time.Duration, bool) { return time.Duration(some * float64(time.Since(t0))), true },
+		fakeStat: func() (cpuTimes, bool) {
+			ticks := time.Since(t0).Seconds() * userHZ
+			return cpuTimes{nonidle: int64(busy * ticks), all: int64(float64(cpus) * ticks)}, true
+		},
+	}
+}
+
+// The verdict on a firmware that stays silent weighs the host's pressure
+// by the CPUs that were busy, not by all of them (issue 9, hoststall
+// credit). On a large host with a few CPUs busy and one task waiting half
+// the time, the pressure times the CPU count would excuse the whole wait
+// and end the run invalid; the firmware that is gone must trip the
+// watchdog. On a small saturated host the same silence stays invalid.
+func TestLockstepVerdictWeighsPressureByBusyCPUs(t *testing.T) {
+	tests := []struct {
+		name string
+		host *cpuPressure
+		want record.Outcome
+	}{
+		// 64 CPUs, 8 busy, one of them with a task waiting half the time:
+		// PSI grows at 0.5/8 (kernel/sched/psi.c weights by non-idle time).
+		{"large host, few CPUs busy", fakeHost(64, 8, 0.5/8), record.Tripped},
+		// 2 CPUs, both busy, a task waiting on each all the time.
+		{"small saturated host", fakeHost(2, 2, 1), record.Invalid},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			m, s, cfg := timedDemo(t, 0.3)
+			cfg.Watchdog = 30 * time.Millisecond
+			cfg.pressure = tc.host
+			res, _, err, _ := runWith(t, context.Background(), cfg, m, s, silentFirmware)
+			if err != nil {
+				t.Fatal(err)
+			}
+			sum := res.Summary
+			if sum.Outcome != tc.want {
+				t.Fatalf("outcome %s (%s), alarms %v; want %s", sum.Outcome, sum.Reason, sum.Alarms, tc.want)
+			}
+		})
+	}
+}
+
+// busyCPUs against the figures worked out by hand.
+func TestBusyCPUs(t *testing.T) {
+	tests := []struct {
+		d    cpuTimes
+		w    time.Duration
+		want float64
+		ok   bool
+	}{
+		// 1 s = 100 ticks; 64 CPUs (6400 ticks), 800 ticks busy: 8 CPUs,
+		// plus one tick per CPU for rounding: (800+64)/100.
+		{cpuTimes{nonidle: 800, all: 6400}, time.Second, 8.64, true},
+		// 2 CPUs, both busy: (200+2)/100 capped at the 2 CPUs.
+		{cpuTimes{nonidle: 200, all: 200}, time.Second, 2, true},
+		// An idle host: at least 1.
+		{cpuTimes{nonidle: 0, all: 6400}, time.Second, 1, true},
+		// A window shorter than one tick says nothing.
+		{cpuTimes{nonidle: 1, all: 2}, 5 * time.Millisecond, 0, false},
+		{cpuTimes{}, time.Second, 0, false},
+	}
+	for _, tc := range tests {
+		got, ok := busyCPUs(tc.d, tc.w)
+		if ok != tc.ok || math.Abs(got-tc.want) > 1e-9 {
+			t.Errorf("busyCPUs(%+v, %v) = %v %v, want %v %v", tc.d, tc.w, got, ok, tc.want, tc.ok)
+		}
+	}
+}
+
+// freezeCtx stalls the rig between two waits: once armed, the next look at
+// the context (the loop's check for an interrupt, in its own code between
+// waits) sleeps for d, as a host that stops running the rig there would.
+type freezeCtx struct {
+	context.Context
+	armed atomic.Bool
+	d     time.Duration
+}
+
+func (c *freezeCtx) Done() <-chan struct{} {
+	if c.armed.CompareAndSwap(true, false) {
+		time.Sleep(c.d)
+	}
+	return c.Context.Done()
+}
+
+// heldStateConn holds state `at` back from the firmware until the rig's
+// wait after the freeze, and arms the freeze in the first wait for its
+// answer: the firmware's answer can only come after the stall.
+type heldStateConn struct {
+	bridges.Conn
+	ctx     *freezeCtx
+	at      uint32
+	held    protocol.Message
+	holding bool
+	waits   int
+}
+
+func (c *heldStateConn) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeState && m.Seq == c.at && c.waits == 0 {
+		c.held, c.holding = *m, true
+		return nil
+	}
+	return c.Conn.Send(m)
+}
+
+func (c *heldStateConn) Recv(deadline time.Time, m *protocol.Message) error {
+	if c.holding {
+		c.waits++
+		if c.waits == 1 {
+			c.ctx.armed.Store(true)
+		} else {
+			c.holding = false
+			if err := c.Conn.Send(&c.held); err != nil {
+				return err
+			}
+		}
+	}
+	return c.Conn.Recv(deadline, m)
+}
+
+// A stall of the rig in its own code between two waits (not inside a wait,
+// where a late wake-up shows it) is the rig's time too: the watchdog does
+// not trip on it. (Before, only waits that ended late were measured, and a
+// rig frozen between a wait and its watchdog check blamed the firmware.)
+func TestLockstepStallBetweenWaitsIsTheRigs(t *testing.T) {
+	m, s, cfg := timedDemo(t, 0.1)
+	cfg.Watchdog = 30 * time.Millisecond
+	cfg.Resend = time.Second
+	cfg.pressure = quietHost // only the rig's own measure may excuse the stall
+	rig, fw := inprocPair()
+	defer rig.Close()
+	go referenceFirmware(fw)
+	ctx := &freezeCtx{Context: context.Background(), d: 3 * cfg.Watchdog}
+	res, err := Run(ctx, cfg, m, s, &heldStateConn{Conn: rig, ctx: ctx, at: 40}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sum := res.Summary
+	if sum.Outcome != record.Pass || sum.Alarms[AlarmWatchdog] != 0 {
+		t.Fatalf("%s (%s), alarms %v: want a pass", sum.Outcome, sum.Reason, sum.Alarms)
+	}
+	if sum.HostStallS < 0.09 {
+		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
+	}
 }

@@ -26,6 +26,12 @@ const stallSlack = 5 * time.Millisecond
 // 64 is the in-process link's whole buffer.
 const finalLooks = 64
 
+// watchEarlyTicks is for how many exchanges after a slow one the loop
+// reads the host's CPU pressure from the start of the wait rather than
+// once the answer is slow: a busy host stays busy for a while, and
+// pressure before the first reading cannot be credited.
+const watchEarlyTicks = 1000
+
 // lockstep runs the ticks in virtual time.
 func (r *runner) lockstep(ctx context.Context) {
 	src := &lockstepSource{r: r}
@@ -64,37 +70,70 @@ func (l *lockstepSource) afterState(ctx context.Context) bool {
 // resending the state after cfg.Resend and tripping the watchdog after
 // cfg.Watchdog. It returns false when the run must end.
 //
-// Simulated time waits for the firmware, so the watchdog measures only the
-// firmware's answer time: it starts when the state has gone out (the rig's
-// own work on the tick is not the firmware's) and is moved on by every
-// stall of the rig seen while waiting (a wait that ended more than
-// stallSlack after its deadline: the host did not run the rig). A busy
-// host therefore never trips it, while a firmware that is gone still does
-// after cfg.Watchdog of listening.
+// Simulated time waits for the firmware, so the watchdog counts only time
+// in which the firmware could have answered: the time since the state
+// went out, less what was the rig's own and less the time the host's CPUs
+// were contended. The rig's own time is every wait that ended later than
+// its deadline, however it ended (with a timeout, or with a message that
+// had come meanwhile and was waiting when the host finally ran the rig),
+// and its own work between waits (a resend, flushing rows to disk, link
+// events). Reading the firmware's messages is not the rig's own: a
+// firmware that floods stale answers still trips the watchdog. A busy
+// host therefore does not trip it, while a firmware that is gone still
+// does after cfg.Watchdog of listening on a quiet host.
 func (l *lockstepSource) exchange(ctx context.Context) bool {
 	r := l.r
 	ss := &r.sess
 	start := time.Now()
-	wd := start.Add(r.cfg.Watchdog) // moved on by the rig's stalls and the host's CPU pressure
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
 	var busy hostBusy
-	var own time.Duration // the rig's own stalls during this wait
-	// When the answer is slow (past the first resend, or a quarter of the
-	// watchdog if that is sooner), start watching the host's CPU pressure;
-	// a reading costs a system call, too much for every tick.
+	var own time.Duration // the rig's own time during this wait: its stalls and its work
+	// charged is the firmware's answer time so far.
+	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.total }
+	// The loop's own code between two readings of the clock takes
+	// microseconds; a gap longer than stallSlack there is the host not
+	// running the rig (preempted, frozen), not the firmware being slow.
+	mark := start
+	step := func() time.Time {
+		t := time.Now()
+		if gap := t.Sub(mark); gap > stallSlack {
+			own += gap
+			r.hostStall(gap)
+		}
+		mark = t
+		return t
+	}
+	// Watch the host's CPU pressure once the answer is slow (past the first
+	// resend, or a quarter of the watchdog if that is sooner), or from the
+	// start while the host has recently been slow: a reading costs a system
+	// call, too much for every tick of a quiet run, and pressure before the
+	// first reading cannot be credited.
 	watchAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
+	if r.stalls.watchEarly > 0 {
+		r.stalls.watchEarly--
+		watchAt = start
+	}
 	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
 		}
-		now := time.Now()
+		now := step()
+		if !busy.tried && !now.Before(watchAt) {
+			busy.start(r.pressure)
+			r.stalls.watchEarly = watchEarlyTicks
+		}
 		// Past the watchdog, read what is already waiting, without
 		// waiting for more: after a stall of the rig itself the answer may
 		// be in the buffer, and that is not the firmware's fault.
-		final := !now.Before(wd)
-		if !busy.tried && !now.Before(watchAt) {
-			busy.start(r.pressure)
+		c := charged(now)
+		final := c >= r.cfg.Watchdog
+		wd := now.Add(r.cfg.Watchdog - c)
+		if !final {
+			// At least a millisecond per look: with the host's pressure
+			// credited bit by bit, the watchdog's remaining time may stay
+			// tiny, and the loop must not spin on it.
+			wd = now.Add(max(r.cfg.Watchdog-c, time.Millisecond))
 		}
 		deadline := resendAt
 		if wd.Before(deadline) {
@@ -104,46 +143,65 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
+		// A wait that ended far later than its deadline means the rig
+		// process itself was not running (an overloaded host), whether it
+		// ended with a timeout or with a message that came meanwhile: that
+		// time is not the firmware's.
+		back := time.Now()
+		due := deadline
+		if due.Before(now) {
+			due = now // a deadline already past: Recv only looked
+		}
+		stalled := false
+		if late := back.Sub(due); late > stallSlack {
+			own += late
+			resendAt = resendAt.Add(late)
+			r.hostStall(late)
+			stalled = true
+		}
+		mark = back
 		kind := classify(err, &ss.fe)
+		if stalled && kind == linkTimeout {
+			continue // and look again: the answer may have come meanwhile
+		}
 		if kind == linkOK && l.validReply() {
 			return true
-		}
-		if kind == linkTimeout && deadline.After(now) {
-			// A wait that ended far later than its deadline means the rig
-			// process itself was not running (an overloaded host): that
-			// time is not the firmware's.
-			if late := time.Since(deadline); late > stallSlack {
-				wd = wd.Add(late)
-				own += late
-				resendAt = resendAt.Add(late)
-				r.hostStall(late)
-				continue // and look again: the answer may have come meanwhile
-			}
 		}
 		if final {
 			looks++
 		}
 		if (final && (kind == linkTimeout || looks > finalLooks)) ||
-			(kind == linkTimeout && !time.Now().Before(wd)) {
+			(kind == linkTimeout && charged(step()) >= r.cfg.Watchdog) {
 			// Before blaming the firmware: time in which the host's CPUs
 			// were contended is time a firmware in another process may
 			// not have been run, so the watchdog does not count it either.
-			if more := busy.credit(r.pressure); more > 0 {
-				wd = wd.Add(more)
-			}
-			silent := time.Since(start)
-			if time.Now().Before(wd) && silent < busy.limit(r.cfg.Watchdog) {
-				looks, final = 0, false
+			busy.credit(r.pressure)
+			now := step()
+			silent, c := now.Sub(start), charged(now)
+			if c < r.cfg.Watchdog && silent < busy.limit(r.cfg.Watchdog) {
+				// Waiting on: the resend must not wait with it, or a
+				// firmware that lost the state (or the configuration
+				// after a greeting) would never be asked again.
+				looks = 0
+				if !now.Before(resendAt) {
+					resendAt = l.resend()
+				}
 				continue
 			}
-			if silent-busy.total-own < r.cfg.Watchdog {
+			if c < r.cfg.Watchdog {
+				// The verdict: the credit over the whole wait, with the
+				// host's busy CPUs rather than all of them.
+				busy.settle(r.pressure)
+				c = charged(now)
+			}
+			if c < r.cfg.Watchdog {
 				// The limit passed and the host never left the firmware a
 				// watchdog's worth of CPU: whether it is gone cannot be
 				// told on this host. Not a verdict on the firmware.
 				r.hostBusy(silent, busy.total)
 				return false
 			}
-			r.watchdogContended(silent, busy.total+own)
+			r.watchdogContended(silent, silent-c)
 			return false
 		}
 		switch kind {
@@ -159,15 +217,14 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// waiting. (Dropped and corrupted commands never get here: the
 			// fault link lost them or made them frame errors.)
 		case linkTimeout:
-			if !time.Now().Before(resendAt) {
-				if r.rec != nil {
-					r.rec.Flush() // rows must not sit in the buffer while the rig waits
-				}
-				r.health.counts.Resends++
-				r.sendState()
-				resendAt = time.Now().Add(r.cfg.Resend)
+			// The rig's own work while it waits is not the firmware's time.
+			t0 := step()
+			if !t0.Before(resendAt) {
+				resendAt = l.resend()
 			}
 			r.drainLinkEvents()
+			mark = time.Now()
+			own += mark.Sub(t0)
 		case linkDisconnected:
 			// The link lost its peer and is trying to get it back: the link
 			// events say so, and the watchdog decides whether to wait.
@@ -186,6 +243,19 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		}
 	}
 	return false
+}
+
+// resend sends the state again (after flushing the rows, which must not
+// sit in the buffer while the rig waits) and returns when the next resend
+// is due.
+func (l *lockstepSource) resend() time.Time {
+	r := l.r
+	if r.rec != nil {
+		r.rec.Flush()
+	}
+	r.health.counts.Resends++
+	r.sendState()
+	return time.Now().Add(r.cfg.Resend)
 }
 
 // validReply checks a received message against the awaited sequence

@@ -9,6 +9,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/retrytest"
 	"gaitrig/record"
 )
 
@@ -121,11 +122,29 @@ func TestBadFrameEveryKindReachesTheRecord(t *testing.T) {
 					errs = append(errs, fmt.Sprintf("frame too long: %d bytes without a zero delimiter, the limit is 515; skipping to the next delimiter", 600+i))
 				}
 				errs = append(errs, "unknown message type 0x55")
-				wrap := func(rig bridges.Conn) bridges.Conn { return &scriptedErrConn{Conn: rig, skip: skip, errs: errs} }
-				res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, wrap, referenceFirmware)
-				if err != nil {
-					t.Fatal(err)
+				// A wall-clock run ends on time: a saturated host may give
+				// its receiver fewer reads than the script needs before the
+				// end. Counting says so (errors left undelivered), and such
+				// a run is spoiled like an invalid one and run again.
+				type scriptedRun struct {
+					res Result
+					dir string
 				}
+				r := retrytest.UntilValid(t, "the scripted bad frames", func(int) (scriptedRun, record.Summary) {
+					sc := &scriptedErrConn{Conn: nil, skip: skip, errs: errs}
+					wrap := func(rig bridges.Conn) bridges.Conn { sc.Conn = rig; return sc }
+					res, dir, err, _ := runWrapped(t, context.Background(), cfg, m, s, wrap, referenceFirmware)
+					if err != nil {
+						t.Fatal(err)
+					}
+					sum := res.Summary
+					if left := len(sc.errs); left > 0 && sum.Outcome != record.Invalid {
+						sum.Outcome = record.Invalid
+						sum.Reason = fmt.Sprintf("the run ended (%s) with %d of the 21 scripted bad frames not yet read: the host gave the loop too few reads", res.Summary.Outcome, left)
+					}
+					return scriptedRun{res, dir}, sum
+				})
+				res, dir := r.res, r.dir
 				if res.Link.BadFrames != 21 || res.Summary.Alarms[AlarmBadFrame] != 21 {
 					t.Fatalf("%d bad frames, %d alarms: want 21", res.Link.BadFrames, res.Summary.Alarms[AlarmBadFrame])
 				}

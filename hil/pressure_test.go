@@ -37,6 +37,7 @@ func TestHostClocksDoNotAllocate(t *testing.T) {
 	defer p.close()
 	n := testing.AllocsPerRun(200, func() {
 		p.some()
+		p.times()
 		threadClocks()
 	})
 	if n != 0 {
@@ -47,5 +48,29 @@ func TestHostClocksDoNotAllocate(t *testing.T) {
 	tick := int64(0)
 	if n := testing.AllocsPerRun(200, func() { tick++; pc.wait(tick) }); n != 0 {
 		t.Fatalf("the real-clock pacer allocates %.1f times per tick", n)
+	}
+}
+
+func TestParseCPUTimes(t *testing.T) {
+	tests := []struct {
+		in   string
+		want cpuTimes
+		ok   bool
+	}{
+		// The layout of /proc/stat (proc(5)): user nice system idle iowait
+		// irq softirq steal guest guest_nice.
+		{"cpu  1320399 20406 249564 357636 5338 0 4722 3754 0 0\ncpu0 656854 9610 124089 185096 1897 0 1106 1882 0 0\n",
+			cpuTimes{nonidle: 1320399 + 20406 + 249564 + 5338 + 0 + 4722 + 3754, all: 1320399 + 20406 + 249564 + 357636 + 5338 + 0 + 4722 + 3754}, true},
+		{"cpu  1 2 3 4 5 6 7 8\n", cpuTimes{nonidle: 1 + 2 + 3 + 5 + 6 + 7 + 8, all: 36}, true},
+		{"cpu  1 2 3 4\n", cpuTimes{}, false},
+		{"cpu0 1 2 3 4 5 6 7 8\n", cpuTimes{}, false},
+		{"cpu  1 2 x 4 5 6 7 8\n", cpuTimes{}, false},
+		{"", cpuTimes{}, false},
+	}
+	for _, tc := range tests {
+		got, ok := parseCPUTimes([]byte(tc.in))
+		if got != tc.want || ok != tc.ok {
+			t.Errorf("%q: %+v %v, want %+v %v", tc.in, got, ok, tc.want, tc.ok)
+		}
 	}
 }

@@ -77,8 +77,12 @@ func TestWallclockBadInputAndAbort(t *testing.T) {
 		if seq == 300 {
 			cancel(errors.New("SIGINT"))
 		}
+		// Every other answer is a NaN: on a loaded host the rig takes
+		// only the newest command at each tick (the rest are stale), so
+		// a rare NaN might never be the one taken; with half of them NaN
+		// every command the rig takes has even odds.
 		c.Torque[0] = 3
-		if seq%50 == 0 {
+		if seq%2 == 1 {
 			c.Torque[0] = float32(math.NaN())
 		}
 		return true
@@ -146,14 +150,18 @@ func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
 	// starves it for half a second (it did, on a saturated 2-core host,
 	// with four deadline misses) lets the fall come before the bad torque
 	// has reached the rig, and such a run cannot show what this test is
-	// about. The record says which run that was, by counting: if the rig
-	// took fewer than five answers before the end, the fifth never came,
-	// and the host, not the loop, is to blame; the run is spoiled like an
-	// invalid one and run again. Once the fifth answer was taken, the rig
-	// must have tripped on it, and everything below is judged.
+	// about. Every answer from the fifth on is bad, since on a loaded host
+	// the rig takes only the newest answer at each tick and the fifth
+	// itself may be superseded before one takes it. The record says which
+	// run the host spoiled, by counting: if the rig took (as the newest at
+	// a tick, stale ones not counted) fewer than five answers and none was
+	// bad, no bad answer was ever taken, and the host, not the loop, is to
+	// blame; the run is spoiled like an invalid one and run again. Once a
+	// fifth answer was taken, it was bad and the rig must have tripped on
+	// it, and everything below is judged.
 	const badSeq = 5
 	fw := scripted(func(seq uint32, c *protocol.Command) {
-		if seq == badSeq {
+		if seq >= badSeq {
 			c.Torque[0] = float32(math.NaN()) // bad_torque trips by default
 		}
 	})
@@ -164,7 +172,7 @@ func TestWallclockCoastRowsHaveNoLatency(t *testing.T) {
 	r := retrytest.UntilValid(t, "the wall-clock coast run", func(int) (coastRun, record.Summary) {
 		res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, fw)
 		sum := res.Summary
-		if taken := res.Link.Commands + res.Link.StaleCommands; sum.Outcome != record.Invalid && taken < badSeq {
+		if taken := res.Link.Commands; sum.Outcome != record.Invalid && taken < badSeq && sum.Alarms[AlarmBadTorque] == 0 {
 			sum.Outcome = record.Invalid
 			sum.Reason = fmt.Sprintf("the rig took only %d answers in %d ticks before the run ended %s (alarms %v): the host delayed the firmware past the fall",
 				taken, sum.Ticks, res.Summary.Outcome, sum.Alarms)
@@ -207,9 +215,25 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	cfg.TickHz = 2000
 	cfg.LinkFaults = []LinkFault{{Kind: FaultLatency, Fixed: delay}}
 	cfg.Watchdog = 4 * delay // the delay itself is silence the watchdog must allow
-	res, _, ticks := runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
-	if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
-		t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+	// 150 ms of commands, 300 at 2 kHz, come due before the end. A loop
+	// that keeps time takes them in as many ticks; one the host stalled
+	// (late ticks, counted) finds many due at once and rightly takes only
+	// the newest, the rest counted stale, so a run with late ticks cannot
+	// tell kept commands from lost ones by the fresh ticks. Up to three
+	// runs are made for one that kept time; if the host stalls every one,
+	// the last is held to what it can show (every command that came due
+	// was taken or counted stale, none vanished) and the test says so.
+	var res Result
+	var ticks []record.Tick
+	for n := 1; ; n++ {
+		res, _, ticks = runAndRead(t, context.Background(), cfg, m, s, referenceFirmware)
+		if res.Summary.Outcome == record.Aborted || res.Summary.Alarms[AlarmWatchdog] != 0 {
+			t.Fatalf("outcome %s (%s), alarms %v", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
+		}
+		if res.Summary.LateTicks == 0 && res.Summary.Outcome != record.Invalid || n == retrytest.MaxAttempts {
+			break
+		}
+		t.Logf("attempt %d: %d late ticks (%s): the host stalled the loop, running it again", n, res.Summary.LateTicks, res.Summary.Outcome)
 	}
 	fresh := 0
 	for _, row := range ticks {
@@ -220,10 +244,15 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 			}
 		}
 	}
-	// 150 ms of commands, 300 at 2 kHz, come due before the end; allow for
-	// a slow host.
-	if fresh < 100 {
-		t.Fatalf("%d ticks had a fresh command (link %+v); the delayed commands were lost", fresh, res.Link)
+	if res.Summary.LateTicks == 0 && res.Summary.Outcome != record.Invalid {
+		if fresh < 100 {
+			t.Fatalf("%d ticks had a fresh command (link %+v); the delayed commands were lost", fresh, res.Link)
+		}
+	} else {
+		t.Logf("every attempt had late ticks (%d in the last): judging the counts only", res.Summary.LateTicks)
+		if got := res.Link.Commands + res.Link.StaleCommands; got < 100 || fresh == 0 {
+			t.Fatalf("%d commands taken or counted stale, %d fresh ticks (link %+v); the delayed commands were lost", got, fresh, res.Link)
+		}
 	}
-	t.Logf("%d of %d ticks had a fresh command; outcome %s; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Link)
+	t.Logf("%d of %d ticks had a fresh command; outcome %s; %d late ticks; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Summary.LateTicks, res.Link)
 }

@@ -1,6 +1,9 @@
 package rig
 
 import (
+	"fmt"
+
+	"gaitrig/bridges/protocol"
 	"gaitrig/firmware/reference"
 )
 
@@ -29,7 +32,34 @@ func ServeFirmware(link, rig, user, password string, o reference.Options, announ
 		return err
 	}
 	defer closeConn()
+	reportDrops(&o, announce)
 	return reference.Serve(conn, o)
+}
+
+// reportDrops makes the firmware say, after each session, how many of its
+// answers the link refused because its send queue was full (the rig had
+// not read the ones before: a starved or stalled rig host), keeping any
+// hooks the caller set. The firmware drops such answers and goes on; the
+// rig's resends ask again, so the count is what tells a bench engineer why
+// the rig saw resends and stale answers.
+func reportDrops(o *reference.Options, announce func(string)) {
+	var n uint64
+	dropped, ended := o.Dropped, o.SessionEnded
+	o.Dropped = func(m *protocol.Message, err error) {
+		n++
+		if dropped != nil {
+			dropped(m, err)
+		}
+	}
+	o.SessionEnded = func(err error) {
+		if n > 0 {
+			announce(fmt.Sprintf("firmware: the link refused %d answers this session (send queue full: the rig had not read the ones before); they were dropped, and the rig's resends asked again", n))
+			n = 0
+		}
+		if ended != nil {
+			ended(err)
+		}
+	}
 }
 
 // firmwareLinks lists the --link syntax of the kinds ServeFirmware serves.

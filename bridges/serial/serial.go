@@ -77,7 +77,16 @@ func (c *Config) withDefaults() Config {
 
 // ErrSendQueueFull is returned by Send when the frames already queued have
 // not been written, because the peer stopped reading or the port stalled.
-var ErrSendQueueFull = errors.New("serial: send queue full: the port has not taken the frames already queued (peer not reading?)")
+// It wraps bridges.ErrSendBusy: the link stays usable.
+var ErrSendQueueFull error = sendQueueFullError{}
+
+type sendQueueFullError struct{}
+
+func (sendQueueFullError) Error() string {
+	return "serial: send queue full: the port has not taken the frames already queued (peer not reading?)"
+}
+
+func (sendQueueFullError) Unwrap() error { return bridges.ErrSendBusy }
 
 // rxItem is one entry of the receive queue: a message or an error.
 type rxItem struct {
@@ -537,9 +546,21 @@ func (c *Conn) Events() <-chan bridges.LinkEvent { return c.events }
 // Up reports whether the port is currently open.
 func (c *Conn) Up() bool { return c.up.Load() }
 
-// Close stops the link and closes the port. It is safe to call more than
+// closeDrain bounds how long Close waits for frames already queued to be
+// written: long enough for a rig's last stop to leave on a loaded host,
+// short enough that a peer that stopped reading does not hold Close.
+const closeDrain = 250 * time.Millisecond
+
+// Close writes what Send has already queued (for at most closeDrain, so
+// the rig's last stop is not lost when the port closes right after it),
+// then stops the link and closes the port. It is safe to call more than
 // once; Recv and Send then return bridges.ErrClosed.
 func (c *Conn) Close() error {
+	if c.up.Load() && !c.isClosed() {
+		for end := time.Now().Add(closeDrain); len(c.free) < cap(c.free) && time.Now().Before(end); {
+			time.Sleep(100 * time.Microsecond)
+		}
+	}
 	var err error
 	c.once.Do(func() {
 		close(c.closed)

@@ -495,6 +495,10 @@ func TestSendDoesNotBlockWhenPeerStopsReading(t *testing.T) {
 	for {
 		err := p.rig.Send(&st)
 		if errors.Is(err, ErrSendQueueFull) {
+			// The same refusal in the words every link uses.
+			if !errors.Is(err, bridges.ErrSendBusy) {
+				t.Errorf("%v does not wrap bridges.ErrSendBusy", err)
+			}
 			break
 		}
 		if err != nil {
@@ -576,5 +580,46 @@ func TestCloseWhileBusy(t *testing.T) {
 	}
 	if err := p.rig.Close(); err != nil {
 		t.Errorf("second Close: %v", err)
+	}
+}
+
+// Close writes what Send already queued: a rig that sends its stop and
+// closes the port at once must not lose the stop. The line is paced at
+// 9600 bit/s, so the frame is still queued when Close is called (before,
+// Close dropped it every time).
+func TestCloseWritesQueuedFrames(t *testing.T) {
+	p, err := NewPty()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	rig, err := Open(Config{Port: p.Path, Baud: 9600, Pace: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := p.ReleaseFollower(); err != nil {
+		t.Fatal(err)
+	}
+	fw := NewConn(p.Master, "pty master", Config{})
+	defer fw.Close()
+	stop := protocol.Message{Type: protocol.TypeStop, Seq: 7, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "run finished"}}
+	if err := rig.Send(&stop); err != nil {
+		t.Fatal(err)
+	}
+	t0 := time.Now()
+	rig.Close()
+	t.Logf("Close took %v", time.Since(t0))
+	var got protocol.Message
+	for {
+		err := fw.Recv(time.Now().Add(5*time.Second), &got)
+		if err != nil {
+			t.Fatalf("the firmware end got no stop: %v", err)
+		}
+		if got.Type == protocol.TypeStop {
+			break
+		}
+	}
+	if !same(got, stop) {
+		t.Errorf("got %+v, want %+v", got, stop)
 	}
 }

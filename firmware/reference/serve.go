@@ -53,6 +53,14 @@ type Options struct {
 	// configuration). With GreetAgain it is the only way to learn how each
 	// session ended.
 	SessionEnded func(err error)
+	// Dropped, when not nil, is called for every answer (or repeated
+	// greeting) the link would not take because the frames queued before
+	// it had not left yet (an error wrapping bridges.ErrSendBusy: the rig
+	// had not read them, typically because the host did not run it). Serve
+	// drops such a message and goes on, as a board drops a frame its full
+	// UART buffer cannot take; the rig's resend of the state asks again.
+	// Serve calls it from its own goroutine.
+	Dropped func(m *protocol.Message, err error)
 }
 
 // finite reports whether every value of the reading is a finite number.
@@ -310,8 +318,10 @@ func ServeContext(ctx context.Context, conn bridges.Conn, o Options) error {
 			}
 			if !f.configured && time.Since(lastGreeting) >= GreetEvery {
 				lastGreeting = time.Now()
-				if err := conn.Send(f.Greeting()); err != nil && !errors.Is(err, bridges.ErrDisconnected) {
+				if err := conn.Send(f.Greeting()); err != nil && !transient(err) {
 					return fmt.Errorf("reference: link: %w", err)
+				} else if err != nil {
+					o.dropped(f.Greeting(), err)
 				}
 			}
 			continue
@@ -322,11 +332,14 @@ func ServeContext(ctx context.Context, conn bridges.Conn, o Options) error {
 		}
 		answer, end, herr := f.Handle(&m)
 		if answer != nil {
-			if err := conn.Send(answer); err != nil && !errors.Is(err, bridges.ErrDisconnected) && !end {
-				// A link that is down and reconnecting loses this command;
-				// the rig's watchdog judges the gap. Anything else ends the
-				// session.
+			if err := conn.Send(answer); err != nil && !transient(err) && !end {
+				// Anything but a link that is down and reconnecting, or
+				// one whose send queue is full, ends the session.
 				return fmt.Errorf("reference: sending a command: %w", err)
+			} else if err != nil {
+				// The answer is lost: the rig's resend asks again, and
+				// its watchdog judges a gap that lasts.
+				o.dropped(answer, err)
 			}
 		}
 		if !end {
@@ -342,6 +355,21 @@ func ServeContext(ctx context.Context, conn bridges.Conn, o Options) error {
 		// The next greeting comes one period after the stop, not at once:
 		// the rig that stopped may still be reading its last answers.
 		lastGreeting = time.Now()
+	}
+}
+
+// transient reports whether a Send error leaves the link usable: it is
+// down and reconnecting (bridges.ErrDisconnected), or its send queue is
+// full (bridges.ErrSendBusy). The message is lost either way; a board
+// would lose it too, and the rig's resends and watchdog deal with the gap.
+func transient(err error) bool {
+	return errors.Is(err, bridges.ErrDisconnected) || errors.Is(err, bridges.ErrSendBusy)
+}
+
+// dropped reports a message the link would not take, if the caller asked.
+func (o *Options) dropped(m *protocol.Message, err error) {
+	if o.Dropped != nil && errors.Is(err, bridges.ErrSendBusy) {
+		o.Dropped(m, err)
 	}
 }
 
