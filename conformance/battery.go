@@ -54,8 +54,8 @@ type Result struct {
 	Section  string  `json:"section"`  // where docs/protocol.md asks for it (Spec.Section)
 	Required bool    `json:"required"` // the check decides the verdict (Spec.Required)
 	Status   Status  `json:"status"`   // Pass, Fail, Skipped or NotRun
-	Seen     string  `json:"seen"`    // what the battery saw, in words
-	Seconds  float64 `json:"seconds"` // wall time the check took
+	Seen     string  `json:"seen"`     // what the battery saw, in words
+	Seconds  float64 `json:"seconds"`  // wall time the check took
 }
 
 // Options configure Run. The zero value runs the battery with its defaults.
