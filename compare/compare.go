@@ -40,15 +40,15 @@ type Run struct {
 // FieldDiff is one scenario field that differs; a missing side is null.
 type FieldDiff struct {
 	Field string `json:"field"` // dotted path of the field, list items by index (faults[0].kind)
-	A     any    `json:"a"`     // the value in run A's scenario; nil when A lacks the field
-	B     any    `json:"b"`     // the value in run B's scenario; nil when B lacks the field
+	A     any    `json:"a"`     // the value in run A's scenario; nil (null) when A lacks the field
+	B     any    `json:"b"`     // the value in run B's scenario; nil (null) when B lacks the field
 }
 
 // StepPair is one step of each run, matched by index, with B − A.
 type StepPair struct {
 	Index int          `json:"index"` // the step's number, from 1
-	A     *record.Step `json:"a"`     // run A's step; nil when A has fewer steps
-	B     *record.Step `json:"b"`     // run B's step; nil when B has fewer steps
+	A     *record.Step `json:"a"`     // run A's step; nil (null) when A has fewer steps
+	B     *record.Step `json:"b"`     // run B's step; nil (null) when B has fewer steps
 	// Diff holds B − A of the step metrics when both runs have the step.
 	Diff *StepDiff `json:"diff,omitempty"`
 }

@@ -53,7 +53,7 @@ type Result struct {
 	What     string  `json:"what"`     // what the firmware must do (Spec.What)
 	Section  string  `json:"section"`  // where docs/protocol.md asks for it (Spec.Section)
 	Required bool    `json:"required"` // the check decides the verdict (Spec.Required)
-	Status   Status  `json:"status"`   // Pass, Fail, Skipped or NotRun
+	Status   Status  `json:"status"`   // pass, fail, skipped or not_run (Pass, Fail, Skipped, NotRun)
 	Seen     string  `json:"seen"`     // what the battery saw, in words
 	Seconds  float64 `json:"seconds"`  // wall time the check took
 }
