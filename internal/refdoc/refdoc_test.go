@@ -79,9 +79,9 @@ type fakeT struct {
 	msg string
 }
 
-func (f *fakeT) Helper() {}
+func (f *fakeT) Helper()                           {}
 func (f *fakeT) Fatalf(format string, args ...any) { f.msg = format; panic(f) }
-func (f *fakeT) Fatal(args ...any) { f.msg = "fatal"; panic(f) }
+func (f *fakeT) Fatal(args ...any)                 { f.msg = "fatal"; panic(f) }
 
 func check(path string, page []byte, update bool) (msg string) {
 	ft := &fakeT{}
