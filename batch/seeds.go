@@ -62,7 +62,7 @@ type SeedsResult struct {
 	Rate    float64 `json:"pass_rate"` // Passed / N; NaN when N is 0
 	// Low and High bound the 95 % Wilson score interval of the pass rate.
 	Low  float64 `json:"pass_rate_low"`
-	High float64 `json:"pass_rate_high"` // upper end of the interval (1 when N is 0)
+	High float64 `json:"pass_rate_high"` // upper end of the 95 % Wilson interval (1 when N is 0)
 	// Worst is the index in Runs of the worst run: a failure with the
 	// fewest steps, else the pass with the highest friction utilization.
 	Worst   int    `json:"worst"`

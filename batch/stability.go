@@ -121,7 +121,7 @@ type Eigen struct {
 	// percentiles of the modulus of the eigenvalue of this rank (ranked by
 	// modulus).
 	ModulusLow  float64 `json:"modulus_low"`
-	ModulusHigh float64 `json:"modulus_high"` // 97.5 % percentile (see ModulusLow)
+	ModulusHigh float64 `json:"modulus_high"` // 97.5 % bootstrap percentile of the modulus
 }
 
 // GSN is the gait sensitivity norm for one disturbance: the 2-norm over

@@ -89,7 +89,7 @@ var TapBucketsUS = [...]float64{50, 100, 200, 300, 500, 750, 1000, 1500, 2000, 3
 // holds those ≤ TapBucketsUS[i] and above the bound before, the last
 // entry those above every bound.
 type TapHistogram struct {
-	Counts [len(TapBucketsUS) + 1]uint64 // per bucket; see above
+	Counts [len(TapBucketsUS) + 1]uint64 // durations per bucket, as the type's doc says
 	Count  uint64                        // durations counted, the sum of Counts
 	SumUS  float64                       // sum of the durations counted, µs
 }

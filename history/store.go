@@ -95,7 +95,7 @@ type Stability struct {
 	SpectralRadius float64 `json:"spectral_radius"` // largest eigenvalue modulus of the fitted step-to-step map
 	// RadiusLow and RadiusHigh bound its 95 % bootstrap interval.
 	RadiusLow  float64 `json:"spectral_radius_low"`
-	RadiusHigh float64 `json:"spectral_radius_high"` // upper end of that interval
+	RadiusHigh float64 `json:"spectral_radius_high"` // upper end of the 95 % bootstrap interval
 	// Eigenvalues are the fitted map's, largest modulus first, as
 	// (real, imaginary) pairs.
 	Eigenvalues [][2]float64 `json:"eigenvalues"`
