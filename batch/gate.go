@@ -35,7 +35,7 @@ type GateResult struct {
 	Margins []AxisMargin `json:"margins"`
 	// Stability is the estimate; StabilityError says why there is none.
 	Stability      *StabilityReport `json:"stability,omitempty"`
-	StabilityError string           `json:"stability_error,omitempty"`
+	StabilityError string           `json:"stability_error,omitempty"` // why Stability is nil; empty when it is set
 	// MaxSpectralRadius is the bound the upper end of the spectral
 	// radius's 95 % bootstrap interval must stay below
 	// (margins.max_spectral_radius): the upper end, so that a short or

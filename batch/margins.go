@@ -99,11 +99,11 @@ func (a Axis) quantize(v float64) float64 {
 
 // MarginRun is a run that decided a limit, or a grid point.
 type MarginRun struct {
-	Value   float64        `json:"value"`
-	Outcome record.Outcome `json:"outcome"`
-	Reason  string         `json:"reason,omitempty"`
-	Steps   int            `json:"steps"`
-	Dir     string         `json:"run_dir"`
+	Value   float64        `json:"value"`            // the axis value run, in the axis's Unit
+	Outcome record.Outcome `json:"outcome"`          // the run's outcome (aborted when it could not run)
+	Reason  string         `json:"reason,omitempty"` // why the run ended so; empty for a plain pass
+	Steps   int            `json:"steps"`            // heel strikes completed; 0 when it could not run
+	Dir     string         `json:"run_dir"`          // the run folder of the last attempt
 	// Attempts is how many times the run was made (more than 1 when the
 	// host spoiled earlier attempts; each has its own run folder,
 	// RUN.retry-K).
@@ -122,10 +122,10 @@ func (r MarginRun) failed() bool { return r.NotMeasured == "" && r.Outcome != re
 
 // AxisMargin is the result of one axis.
 type AxisMargin struct {
-	Axis string  `json:"axis"`
-	Unit string  `json:"unit"`
-	Safe float64 `json:"safe"`
-	Far  float64 `json:"far"`
+	Axis string  `json:"axis"` // the axis's name (Axis.Name)
+	Unit string  `json:"unit"` // unit of Safe, Far, Limit, Tolerance, Required and Shortfall
+	Safe float64 `json:"safe"` // the search's start (Axis.Safe, or read from the scenario)
+	Far  float64 `json:"far"`  // the search's far end (the scenario's margins.far, or Axis.Far)
 	// Limit is the last passing value found (Safe when the scenario as
 	// written fails; Far when every value passed; NaN, null in JSON, when
 	// the axis is NotMeasured).
@@ -142,12 +142,12 @@ type AxisMargin struct {
 	NotMonotone bool `json:"not_monotone"`
 	// Tolerance is the final bracket width, in Unit.
 	Tolerance float64    `json:"tolerance"`
-	LastPass  *MarginRun `json:"last_pass,omitempty"`
-	FirstFail *MarginRun `json:"first_fail,omitempty"`
+	LastPass  *MarginRun `json:"last_pass,omitempty"`  // the run at Limit; nil when none passed or NotMeasured
+	FirstFail *MarginRun `json:"first_fail,omitempty"` // the failing run nearest Limit; nil when none failed
 	// Grid holds every run of the coarse grid, safe end first; Bisection
 	// the runs of the bisection in the order made.
 	Grid      []MarginRun `json:"grid"`
-	Bisection []MarginRun `json:"bisection"`
+	Bisection []MarginRun `json:"bisection"` // the bisection's runs in the order made; empty when the grid decided
 	// Required is the lab's minimum for this axis from the scenario's
 	// margins block, in Unit (NaN: none); Meets says the limit is at least
 	// as far from Safe as Required, Shortfall by how much it is not (in
@@ -157,11 +157,11 @@ type AxisMargin struct {
 	// walks on, and the scenario's μ_s over it (1/Limit). Zero on other
 	// axes.
 	MuStaticMin   float64 `json:"mu_static_min,omitempty"`
-	FrictionRatio float64 `json:"friction_ratio,omitempty"`
-	Required      float64 `json:"required"`
-	Meets         bool    `json:"meets_required"`
-	Shortfall     float64 `json:"shortfall"`
-	Error         string  `json:"error,omitempty"`
+	FrictionRatio float64 `json:"friction_ratio,omitempty"` // the scenario's μ_s over MuStaticMin; 0 on other axes
+	Required      float64 `json:"required"`                 // the lab's minimum, in Unit; NaN when none
+	Meets         bool    `json:"meets_required"`           // the limit is at least Required (true when none is set), and there is no Error or NotMeasured
+	Shortfall     float64 `json:"shortfall"`                // how far short of Required the limit is, in Unit; 0 when it meets it
+	Error         string  `json:"error,omitempty"`          // why the axis has no margin (the scenario as written fails); empty otherwise
 }
 
 // Required returns the lab's minimum for an axis from a margins block, in
@@ -262,7 +262,7 @@ type Margins struct {
 	Link string
 	// Tolerance, Grid: see DefaultMarginTolerance, DefaultMarginGrid.
 	Tolerance float64
-	Grid      int
+	Grid      int // number of coarse grid points; 0 means DefaultMarginGrid
 	// Jobs runs the grid points in parallel (Scheduler.Jobs).
 	Jobs int
 	// Seeds, when above 1, runs every value with that many seeds of noise,

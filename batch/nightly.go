@@ -146,15 +146,15 @@ type SuiteSummary struct {
 	// BaselineSHA256 the SHA-256 of its bytes: shards are merged only when
 	// they were judged against the same baseline.
 	Baseline       string      `json:"baseline,omitempty"`
-	BaselineSHA256 string      `json:"baseline_sha256,omitempty"`
-	Tolerances     *Tolerances `json:"tolerances,omitempty"` // the baseline's tolerances
+	BaselineSHA256 string      `json:"baseline_sha256,omitempty"` // hex SHA-256 of the baseline file's bytes; "" for none
+	Tolerances     *Tolerances `json:"tolerances,omitempty"`      // the baseline's tolerances
 	// Scenarios holds one verdict per scenario, sorted by name.
 	Scenarios []ScenarioVerdict `json:"scenarios"`
 	// Failed, Infrastructure and Quarantined are SuiteResult's counts.
 	Failed         int    `json:"failed"`
-	Infrastructure int    `json:"infrastructure"`
-	Quarantined    int    `json:"quarantined"`
-	Caution        string `json:"caution"` // record.Caution
+	Infrastructure int    `json:"infrastructure"` // SuiteResult.Infrastructure
+	Quarantined    int    `json:"quarantined"`    // SuiteResult.Quarantined
+	Caution        string `json:"caution"`        // record.Caution
 }
 
 // SummaryOf makes the summary of a suite's result: shard sh of a list of

@@ -37,21 +37,21 @@ func Wilson(k, n int, z float64) (lo, hi float64) {
 
 // SeedRun is one seed's run.
 type SeedRun struct {
-	Seed    int64          `json:"seed"`
-	Outcome record.Outcome `json:"outcome"`
-	Reason  string         `json:"reason,omitempty"`
-	Steps   int            `json:"steps"`
+	Seed    int64          `json:"seed"`             // the variant's sensors.seed
+	Outcome record.Outcome `json:"outcome"`          // the run's outcome (aborted when it could not run)
+	Reason  string         `json:"reason,omitempty"` // why the run ended so; empty for a plain pass
+	Steps   int            `json:"steps"`            // heel strikes completed; 0 when it could not run
 	// PeakUtilization is the run's peak friction utilization, the tie
 	// breaker for the worst run among passes.
 	PeakUtilization float64 `json:"peak_friction_utilization"`
-	Dir             string  `json:"run_dir"`
+	Dir             string  `json:"run_dir"` // the run folder
 }
 
 // SeedsResult is the pass rate over seeds.
 type SeedsResult struct {
-	Scenario string    `json:"scenario"`
-	Runs     []SeedRun `json:"runs"`
-	Passed   int       `json:"passed"`
+	Scenario string    `json:"scenario"` // name of the scenario the seeds vary
+	Runs     []SeedRun `json:"runs"`     // one per seed, in the order of the seed variants
+	Passed   int       `json:"passed"`   // runs that passed
 	// N is the number of runs the rate is over: every seed but those
 	// whose run the host spoiled (outcome invalid), which say nothing
 	// about the firmware.
@@ -62,11 +62,11 @@ type SeedsResult struct {
 	Rate    float64 `json:"pass_rate"` // Passed / N; NaN when N is 0
 	// Low and High bound the 95 % Wilson score interval of the pass rate.
 	Low  float64 `json:"pass_rate_low"`
-	High float64 `json:"pass_rate_high"`
+	High float64 `json:"pass_rate_high"` // upper end of the 95 % Wilson interval (1 when N is 0)
 	// Worst is the index in Runs of the worst run: a failure with the
 	// fewest steps, else the pass with the highest friction utilization.
 	Worst   int    `json:"worst"`
-	Caution string `json:"caution"`
+	Caution string `json:"caution"` // record.Caution: a pass is not a safety certificate
 }
 
 // SeedVariants derives n variants of sc with sensors.seed = sc's seed + i

@@ -12,7 +12,10 @@ import (
 // the list's stable order) belongs to shard i mod N + 1, so every scenario
 // is in exactly one shard. The zero value is not valid; use ParseShard or
 // AllShards.
-type Shard struct{ K, N int }
+type Shard struct {
+	K int // this shard's number, 1 to N
+	N int // how many shards the list is split into, at least 1
+}
 
 // AllShards is the one shard that holds every scenario.
 var AllShards = Shard{1, 1}

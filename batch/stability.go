@@ -71,14 +71,14 @@ type Stability struct {
 	Link string
 	// Warmup, Perturbed, Size, Bootstrap: see the Default… constants.
 	Warmup, Perturbed int
-	Size              float64
-	Bootstrap         int
+	Size              float64 // standard deviation of each link-rate perturbation, rad/s
+	Bootstrap         int     // number of bootstrap resamples
 	// Seed seeds the perturbations and the bootstrap; 0 means 1.
 	Seed int64
 	// PushNs, StepDownM and GSNSteps set the disturbances of the gait
 	// sensitivity norm; a negative PushNs or StepDownM skips that one.
 	PushNs, StepDownM float64
-	GSNSteps          int
+	GSNSteps          int // steps after a disturbance that enter the norm
 	// Jobs runs the runs in parallel (Scheduler.Jobs).
 	Jobs int
 }
@@ -114,14 +114,14 @@ func (s Stability) withDefaults() Stability {
 // Eigen is one estimated eigenvalue (Floquet multiplier) with the bootstrap
 // interval of its modulus.
 type Eigen struct {
-	Re      float64 `json:"re"`
-	Im      float64 `json:"im"`
-	Modulus float64 `json:"modulus"`
+	Re      float64 `json:"re"`      // real part
+	Im      float64 `json:"im"`      // imaginary part
+	Modulus float64 `json:"modulus"` // |Re + i·Im| of the fitted map's eigenvalue
 	// ModulusLow and ModulusHigh are the 2.5 % and 97.5 % bootstrap
 	// percentiles of the modulus of the eigenvalue of this rank (ranked by
 	// modulus).
 	ModulusLow  float64 `json:"modulus_low"`
-	ModulusHigh float64 `json:"modulus_high"`
+	ModulusHigh float64 `json:"modulus_high"` // 97.5 % bootstrap percentile of the modulus
 }
 
 // GSN is the gait sensitivity norm for one disturbance: the 2-norm over
@@ -136,12 +136,12 @@ type GSN struct {
 	// m per unit of disturbance; Norm combines both (root of the sum of
 	// squares, as the paper combines indicators).
 	StepTime   float64 `json:"step_time"`
-	StepLength float64 `json:"step_length"`
-	Norm       float64 `json:"norm"`
-	Steps      int     `json:"steps"` // steps after the disturbance that entered
+	StepLength float64 `json:"step_length"` // norm of the step length alone, m per unit of disturbance
+	Norm       float64 `json:"norm"`        // √(StepTime² + StepLength²); NaN when Error is set
+	Steps      int     `json:"steps"`       // steps after the disturbance that entered
 	// FirstStep is the first step (as numbered in steps.csv) compared.
 	FirstStep int    `json:"first_step"`
-	Dir       string `json:"run_dir"`
+	Dir       string `json:"run_dir"` // the disturbed run's folder
 	// ReferenceDir is the undisturbed run compared with.
 	ReferenceDir string `json:"reference_run_dir"`
 	// Error says why the norm could not be computed (the disturbed run fell
@@ -151,7 +151,7 @@ type GSN struct {
 
 // StabilityReport is the result of Stability.Run.
 type StabilityReport struct {
-	Scenario string `json:"scenario"`
+	Scenario string `json:"scenario"` // name of the scenario estimated
 	// Coordinates names the fitted coordinates of the map, in order.
 	Coordinates []string `json:"coordinates"`
 	// Eigenvalues of the fitted map, largest modulus first. The map on the
@@ -159,24 +159,24 @@ type StabilityReport struct {
 	// swing leg's angle follows from the feet touching the ground), so
 	// `cycle` lists one more eigenvalue, which is 0.
 	Eigenvalues    []Eigen `json:"eigenvalues"`
-	SpectralRadius float64 `json:"spectral_radius"`
-	RadiusLow      float64 `json:"spectral_radius_low"`
-	RadiusHigh     float64 `json:"spectral_radius_high"`
-	Stable         bool    `json:"stable"` // spectral radius below 1
+	SpectralRadius float64 `json:"spectral_radius"`      // largest modulus of the fitted map's eigenvalues
+	RadiusLow      float64 `json:"spectral_radius_low"`  // 2.5 % bootstrap percentile of the spectral radius
+	RadiusHigh     float64 `json:"spectral_radius_high"` // 97.5 % bootstrap percentile of the spectral radius
+	Stable         bool    `json:"stable"`               // spectral radius below 1
 	// Residual is the fit's relative residual ‖Y − Ŷ‖/‖Y − Ȳ‖ over the
 	// perturbed steps: near 0 when the plant state determines the next
 	// step, large when the firmware has state of its own or the
 	// perturbations leave the linear range.
 	Residual        float64 `json:"residual"`
-	ResidualWarning string  `json:"residual_warning,omitempty"`
+	ResidualWarning string  `json:"residual_warning,omitempty"` // set when Residual is above ResidualWarning; says what that means
 	// DecaySteps is the least n with ‖Aⁿ‖₂ ≤ 0.1: after n steps every
 	// perturbation has decayed by at least 90 %; −1 when none within 1000.
 	DecaySteps int     `json:"decay_steps_90"`
-	Pairs      int     `json:"perturbed_steps"`
-	Size       float64 `json:"perturbation_radps"`
-	Dir        string  `json:"run_dir"`
-	GSN        []GSN   `json:"gait_sensitivity"`
-	Caution    string  `json:"caution"`
+	Pairs      int     `json:"perturbed_steps"`    // perturbed step pairs the map is fitted to
+	Size       float64 `json:"perturbation_radps"` // Stability.Size used, rad/s
+	Dir        string  `json:"run_dir"`            // the perturbed run's folder
+	GSN        []GSN   `json:"gait_sensitivity"`   // one per disturbance (push, step down) not skipped
+	Caution    string  `json:"caution"`            // record.Caution: a pass is not a safety certificate
 
 	a *mat.Dense // the fitted map, for tests
 }

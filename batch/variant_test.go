@@ -124,7 +124,7 @@ func TestVariantTextLoadsBackIntoTheVariant(t *testing.T) {
 				continue
 			}
 			again.File, again.Text = v.File, v.Text
-			if d := differences(reflect.ValueOf(v).Elem(), reflect.ValueOf(again).Elem(), ""); len(d) > 0 {
+			if d := scenarios.Differences(v, again); len(d) > 0 {
 				t.Errorf("%s/%s: recorded text differs from the variant at %v", base.Name, c.Name, d)
 			}
 			if !reflect.DeepEqual(normalised(v), normalised(again)) {
@@ -192,7 +192,7 @@ func TestVariantChangesOnlyWhatItSays(t *testing.T) {
 	if base.Terrain.Segments[0].MuStatic != 0.8 || base.Terrain.Segments[0].MuKinetic != 0.6 {
 		t.Errorf("the variant changed the base: μ_s %v, μ_k %v", base.Terrain.Segments[0].MuStatic, base.Terrain.Segments[0].MuKinetic)
 	}
-	d := differences(reflect.ValueOf(base).Elem(), reflect.ValueOf(v).Elem(), "")
+	d := scenarios.Differences(base, v)
 	want := []string{"name", "terrain.segments[0].mu_static", "terrain.segments[0].mu_kinetic"}
 	if !reflect.DeepEqual(d, want) {
 		t.Errorf("the variant differs from the base at %v, want %v", d, want)

@@ -98,7 +98,7 @@ const (
 // LinkEvent reports a change of link health that the loop turns into an
 // alarm (unplug, reconnect with the gap, broker lost).
 type LinkEvent struct {
-	Kind LinkEventKind
+	Kind LinkEventKind // LinkDisconnected or LinkReconnected
 	Gap  time.Duration // for LinkReconnected: how long the link was down
 	Err  error         // for LinkDisconnected: the cause
 }

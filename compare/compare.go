@@ -24,7 +24,7 @@ type Run struct {
 	Dir string `json:"run_folder"`
 	// Scenario and ScenarioHash name the scenario and its exact text.
 	Scenario     string `json:"scenario"`
-	ScenarioHash string `json:"scenario_hash"`
+	ScenarioHash string `json:"scenario_hash"` // hex SHA-256 of the scenario text (record.Manifest.ScenarioHash)
 	// Clock is lockstep or wallclock.
 	Clock string `json:"clock"`
 	// Greeting is the firmware's greeting.
@@ -39,44 +39,44 @@ type Run struct {
 
 // FieldDiff is one scenario field that differs; a missing side is null.
 type FieldDiff struct {
-	Field string `json:"field"`
-	A     any    `json:"a"`
-	B     any    `json:"b"`
+	Field string `json:"field"` // dotted path of the field, list items by index (faults[0].kind)
+	A     any    `json:"a"`     // the value in run A's scenario; nil (null) when A lacks the field
+	B     any    `json:"b"`     // the value in run B's scenario; nil (null) when B lacks the field
 }
 
 // StepPair is one step of each run, matched by index, with B − A.
 type StepPair struct {
-	Index int          `json:"index"`
-	A     *record.Step `json:"a"`
-	B     *record.Step `json:"b"`
+	Index int          `json:"index"` // the step's number, from 1
+	A     *record.Step `json:"a"`     // run A's step; nil (null) when A has fewer steps
+	B     *record.Step `json:"b"`     // run B's step; nil (null) when B has fewer steps
 	// Diff holds B − A of the step metrics when both runs have the step.
 	Diff *StepDiff `json:"diff,omitempty"`
 }
 
 // StepDiff is B − A of the step metrics.
 type StepDiff struct {
-	DurationS       float64 `json:"duration_s"`
-	LengthM         float64 `json:"length_m"`
-	SpeedMPS        float64 `json:"speed_mps"`
-	PeakUtilization float64 `json:"peak_utilization"`
-	MinNormalN      float64 `json:"min_normal_n"`
+	DurationS       float64 `json:"duration_s"`       // step duration, s
+	LengthM         float64 `json:"length_m"`         // step length, m
+	SpeedMPS        float64 `json:"speed_mps"`        // mean speed over the step, m/s
+	PeakUtilization float64 `json:"peak_utilization"` // peak friction utilization (a ratio)
+	MinNormalN      float64 `json:"min_normal_n"`     // least stance normal force, N
 }
 
 // Divergence is the first tick whose plant state differs between the runs.
 type Divergence struct {
 	// Tick and T are the tick index and its simulated time.
 	Tick int64   `json:"tick"`
-	T    float64 `json:"t_s"`
+	T    float64 `json:"t_s"` // simulated time of Tick, s
 	// Field is the telemetry column that differs first; A and B its values.
 	Field string  `json:"field"`
-	A     float64 `json:"a"`
-	B     float64 `json:"b"`
+	A     float64 `json:"a"` // run A's value of Field
+	B     float64 `json:"b"` // run B's value of Field
 }
 
 // Result is the comparison of run A (the reference) with run B.
 type Result struct {
-	A Run `json:"a"`
-	B Run `json:"b"`
+	A Run `json:"a"` // the reference run
+	B Run `json:"b"` // the run compared with it
 	// Within is true when B is within the tolerances of A: no regression.
 	Within bool `json:"within_tolerances"`
 	// Tolerances are the suite's tolerances used.

@@ -49,13 +49,13 @@ const (
 
 // Result is one check's outcome.
 type Result struct {
-	Name     string  `json:"name"`
-	What     string  `json:"what"`
-	Section  string  `json:"section"`
-	Required bool    `json:"required"`
-	Status   Status  `json:"status"`
-	Seen     string  `json:"seen"`    // what the battery saw, in words
-	Seconds  float64 `json:"seconds"` // wall time the check took
+	Name     string  `json:"name"`     // the check's name (Spec.Name, a Check* constant)
+	What     string  `json:"what"`     // what the firmware must do (Spec.What)
+	Section  string  `json:"section"`  // where docs/protocol.md asks for it (Spec.Section)
+	Required bool    `json:"required"` // the check decides the verdict (Spec.Required)
+	Status   Status  `json:"status"`   // pass, fail, skipped or not_run (Pass, Fail, Skipped, NotRun)
+	Seen     string  `json:"seen"`     // what the battery saw, in words
+	Seconds  float64 `json:"seconds"`  // wall time the check took
 }
 
 // Options configure Run. The zero value runs the battery with its defaults.
@@ -93,10 +93,10 @@ type Report struct {
 
 // Firmware is what a greeting announced.
 type Firmware struct {
-	Name      string `json:"name"`
-	Build     string `json:"build"`
-	Version   uint8  `json:"version"`
-	Actuators uint8  `json:"actuators"`
+	Name      string `json:"name"`      // firmware name
+	Build     string `json:"build"`     // firmware build identifier
+	Version   uint8  `json:"version"`   // protocol version the firmware speaks
+	Actuators uint8  `json:"actuators"` // number of torques the firmware will send
 }
 
 // Failed lists the names of the checks that failed (required or not).

@@ -49,7 +49,7 @@ type Config struct {
 
 // Rig is what the page shows of one rig.
 type Rig struct {
-	ID string `json:"id"`
+	ID string `json:"id"` // the rig's name, the topic level after the root
 	// Status is the rig's retained status document, when one was seen.
 	Status *topics.RigStatus `json:"status"`
 	// Telemetry is the rig's latest telemetry, when one was seen.
@@ -65,10 +65,10 @@ type Rig struct {
 
 // Alarm is the part of a rig's alarm record the page shows.
 type Alarm struct {
-	T        float64 `json:"t_s"`
-	Kind     string  `json:"kind"`
-	Severity string  `json:"severity"`
-	Message  string  `json:"message"`
+	T        float64 `json:"t_s"`      // simulated time of the alarm, s; 0 when the record's time is not finite
+	Kind     string  `json:"kind"`     // the alarm kind (friction_limit, …)
+	Severity string  `json:"severity"` // warn or trip
+	Message  string  `json:"message"`  // the alarm in words
 }
 
 // Watcher follows the rigs on one broker.

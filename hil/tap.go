@@ -28,18 +28,18 @@ type Snapshot struct {
 	Seq uint64
 	// Tick is the index of the tick just stepped; T its simulated end, s.
 	Tick int64
-	T    float64
+	T    float64 // simulated time at the end of Tick, s
 	// Wall is the wall time the tick started (zero in lockstep).
 	Wall time.Time
 	// NumQ generalized coordinates are valid in Q and V (plant order).
 	NumQ int
-	Q, V [plant.MaxDOF]float64
+	Q, V [plant.MaxDOF]float64 // generalized coordinates and velocities; the first NumQ are valid
 	// Pose are the stick-figure points of the walker.
 	Pose plant.Pose
 	// Joints joint values are valid in Angle (as sent to the firmware,
 	// rad), Commanded and Applied (N·m).
 	Joints                    int
-	Angle, Commanded, Applied [protocol.MaxJoints]float64
+	Angle, Commanded, Applied [protocol.MaxJoints]float64 // per joint, JointNames order; the first Joints are valid
 	// Feet are the two contact records of the tick (plant.FootContact).
 	Feet [2]plant.FootContact
 	// Stance is the stance foot (0 left, 1 right).
@@ -63,18 +63,18 @@ type Snapshot struct {
 	// FrameKinds counts rejected frames per kind of rejection; the first
 	// NumFrameKinds entries are set.
 	FrameKinds    [tapKinds]KindCount
-	NumFrameKinds int
+	NumFrameKinds int // how many entries of FrameKinds are set
 	// Alarms counts alarm occurrences per kind (logged or not) with the
 	// kind's severity; the first NumAlarmKinds entries are set.
 	Alarms        [tapKinds]AlarmCount
-	NumAlarmKinds int
+	NumAlarmKinds int // how many entries of Alarms are set
 	// FirmwareName and FirmwareBuild are the firmware's greeting.
 	FirmwareName, FirmwareBuild string
 	// Outcome is set once the loop has ended the run early (a trip, a
 	// failure, an abort), Reason says why; a run that reaches its duration
 	// or step limit gets its outcome after the last tick, in the Result.
 	Outcome record.Outcome
-	Reason  string
+	Reason  string // why the loop ended the run; empty while it runs
 }
 
 // tapKinds bounds the kinds a snapshot counts apart (frame rejections,
@@ -89,9 +89,9 @@ var TapBucketsUS = [...]float64{50, 100, 200, 300, 500, 750, 1000, 1500, 2000, 3
 // holds those ≤ TapBucketsUS[i] and above the bound before, the last
 // entry those above every bound.
 type TapHistogram struct {
-	Counts [len(TapBucketsUS) + 1]uint64
-	Count  uint64
-	SumUS  float64
+	Counts [len(TapBucketsUS) + 1]uint64 // durations per bucket, as the type's doc says
+	Count  uint64                        // durations counted, the sum of Counts
+	SumUS  float64                       // sum of the durations counted, µs
 }
 
 func (h *TapHistogram) add(us float64) {
@@ -106,15 +106,15 @@ func (h *TapHistogram) add(us float64) {
 
 // KindCount is a count of one kind.
 type KindCount struct {
-	Kind string
-	N    uint64
+	Kind string // the kind's name
+	N    uint64 // how many of that kind so far
 }
 
 // AlarmCount is how often one alarm kind occurred, and its severity.
 type AlarmCount struct {
-	Kind     string
-	Severity Severity
-	N        uint64
+	Kind     string   // the alarm kind (hil.Alarm… constants)
+	Severity Severity // the severity the run gives the kind
+	N        uint64   // occurrences so far, logged or not
 }
 
 // Tap hands snapshots from the loop to its readers. Each reader has three

@@ -37,9 +37,9 @@ const DefaultEndMargin = 0.3
 // duration (Phase 0.1: early stance of the next step). Pulse gives its
 // size and shape; its Start is filled in when the step happens.
 type StepPulse struct {
-	AtStep int
-	Phase  float64
-	Pulse  plant.BeltPulse
+	AtStep int             // the step whose closing heel strike starts the phase count
+	Phase  float64         // fraction of that step's duration after the heel strike
+	Pulse  plant.BeltPulse // size and shape; Start is set when the step happens
 }
 
 // Harness is the overhead fall-arrest harness: a rope from a fixed point

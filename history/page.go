@@ -12,11 +12,11 @@ import (
 
 // Page is what the trend page shows: one scenario's figures across builds.
 type Page struct {
-	Scenario string  `json:"scenario"`
+	Scenario string  `json:"scenario"`     // the scenario's name
 	Builds   int     `json:"builds"`       // results shown
 	K        int     `json:"drift_builds"` // drift looked for over this many changes
-	Trends   []Trend `json:"figures"`
-	Caution  string  `json:"caution"` // record.Caution
+	Trends   []Trend `json:"figures"`      // the trends of every figure, as Trends returns them
+	Caution  string  `json:"caution"`      // record.Caution
 }
 
 // plot geometry of each figure, in SVG user units.

@@ -38,26 +38,26 @@ const SchemaVersion = 2
 
 // Result is one stored run.
 type Result struct {
-	ID               int64          `json:"id"`                // order of storing: the order of builds
-	RecordedAt       time.Time      `json:"recorded_at"`       // when it was stored, UTC
-	Command          string         `json:"command"`           // run or suite
-	Scenario         string         `json:"scenario"`          // scenario name
-	ScenarioSHA256   string         `json:"scenario_sha256"`   // SHA-256 of the scenario file's bytes
-	FirmwareName     string         `json:"firmware_name"`     // from the firmware's greeting
-	FirmwareBuild    string         `json:"firmware_build"`    // from the firmware's greeting
-	FirmwareRevision string         `json:"firmware_revision"` // --firmware-revision or GAITRIG_FIRMWARE_REVISION
-	ToolVersion      string         `json:"tool_version"`      // gaitrig's version
-	Host             string         `json:"host"`              // the machine's host name
-	Outcome          string         `json:"outcome"`           // pass, fail, tripped, aborted or invalid
-	Reason           string         `json:"reason,omitempty"`  // why it failed, tripped or was aborted
-	Steps            int            `json:"steps"`             // heel strikes completed
-	MeanSpeedMPS     float64        `json:"mean_speed_mps"`    // mean forward speed over the steps, m/s
-	PeakFriction     float64        `json:"peak_friction_utilization"`
-	MinNormalForceN  float64        `json:"min_normal_force_n"` // least stance-foot normal force, N
-	LatencyP50US     float64        `json:"latency_p50_us"`     // NaN (null) when not measured (lockstep)
-	LatencyP99US     float64        `json:"latency_p99_us"`     // NaN (null) when not measured (lockstep)
-	LatencyMaxUS     float64        `json:"latency_max_us"`     // NaN (null) when not measured (lockstep)
-	Alarms           map[string]int `json:"alarms,omitempty"`   // count per alarm kind
+	ID               int64          `json:"id"`                        // order of storing: the order of builds
+	RecordedAt       time.Time      `json:"recorded_at"`               // when it was stored, UTC
+	Command          string         `json:"command"`                   // run or suite
+	Scenario         string         `json:"scenario"`                  // scenario name
+	ScenarioSHA256   string         `json:"scenario_sha256"`           // SHA-256 of the scenario file's bytes
+	FirmwareName     string         `json:"firmware_name"`             // from the firmware's greeting
+	FirmwareBuild    string         `json:"firmware_build"`            // from the firmware's greeting
+	FirmwareRevision string         `json:"firmware_revision"`         // --firmware-revision or GAITRIG_FIRMWARE_REVISION
+	ToolVersion      string         `json:"tool_version"`              // gaitrig's version
+	Host             string         `json:"host"`                      // the machine's host name
+	Outcome          string         `json:"outcome"`                   // pass, fail, tripped, aborted or invalid
+	Reason           string         `json:"reason,omitempty"`          // why it failed, tripped or was aborted
+	Steps            int            `json:"steps"`                     // heel strikes completed
+	MeanSpeedMPS     float64        `json:"mean_speed_mps"`            // mean forward speed over the steps, m/s
+	PeakFriction     float64        `json:"peak_friction_utilization"` // peak friction utilization of a stance foot
+	MinNormalForceN  float64        `json:"min_normal_force_n"`        // least stance-foot normal force, N
+	LatencyP50US     float64        `json:"latency_p50_us"`            // NaN (null) when not measured (lockstep)
+	LatencyP99US     float64        `json:"latency_p99_us"`            // NaN (null) when not measured (lockstep)
+	LatencyMaxUS     float64        `json:"latency_max_us"`            // NaN (null) when not measured (lockstep)
+	Alarms           map[string]int `json:"alarms,omitempty"`          // count per alarm kind
 	// Margins are the limits of a margin search (gaitrig margins, or the
 	// envelope of gaitrig preflight) by axis; nil for a run's result.
 	// Since schema 2.
@@ -81,7 +81,7 @@ type Margin struct {
 	// Resolution is the width of the bracket the search stopped at, in
 	// Unit: a change smaller than it is below what the search resolves.
 	Resolution float64 `json:"resolution"`
-	Unit       string  `json:"unit"`
+	Unit       string  `json:"unit"` // unit of Limit and Resolution
 	// Reached is false when every value up to the end of the range passed
 	// (Limit is then the range's end, a lower bound).
 	Reached bool `json:"reached"`
@@ -92,10 +92,10 @@ type Margin struct {
 
 // Stability is a stability estimate as stored.
 type Stability struct {
-	SpectralRadius float64 `json:"spectral_radius"`
+	SpectralRadius float64 `json:"spectral_radius"` // largest eigenvalue modulus of the fitted step-to-step map
 	// RadiusLow and RadiusHigh bound its 95 % bootstrap interval.
 	RadiusLow  float64 `json:"spectral_radius_low"`
-	RadiusHigh float64 `json:"spectral_radius_high"`
+	RadiusHigh float64 `json:"spectral_radius_high"` // upper end of the 95 % bootstrap interval
 	// Eigenvalues are the fitted map's, largest modulus first, as
 	// (real, imaginary) pairs.
 	Eigenvalues [][2]float64 `json:"eigenvalues"`

@@ -52,9 +52,9 @@ type Point struct {
 
 // Trend is one figure across builds.
 type Trend struct {
-	Name      string  `json:"name"`
-	Label     string  `json:"label"`
-	Points    []Point `json:"points"`
+	Name      string  `json:"name"`      // the figure's name (Figure.Name, margin_AXIS, spectral_radius)
+	Label     string  `json:"label"`     // what the page calls it, with its unit
+	Points    []Point `json:"points"`    // one per result the figure is taken from, oldest first
 	Reference float64 `json:"reference"` // the baseline's value (else the first build's): the band's centre
 	Tolerance float64 `json:"tolerance"` // the band's half width
 	// Drift is set when the figure moved the same way over the last

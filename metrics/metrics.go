@@ -56,7 +56,7 @@ type Config struct {
 	// needs Token (the same rule and variable as the live view,
 	// view.TokenEnv); Prometheus sends it as a bearer token.
 	Addr  string
-	Token string
+	Token string // bearer token a scraper must send; "" for none (loopback only)
 	// Scenario and Rig are constant labels of every series.
 	Scenario, Rig string
 }

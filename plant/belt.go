@@ -179,7 +179,7 @@ func (p *BeltPulse) at(t float64) float64 {
 // last), plus every pulse. A constant speed is one point, a ramp two.
 type BeltProfile struct {
 	Points []BeltPoint // in increasing time; empty means a belt at rest
-	Pulses []BeltPulse
+	Pulses []BeltPulse // added to the interpolated speed; empty for none
 }
 
 // Speed returns the belt speed at time t, m/s, positive backward.

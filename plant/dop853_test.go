@@ -6,26 +6,14 @@ import (
 )
 
 // TestDOP853Order checks the DOP853 coefficients: with a fixed step on a
-// smooth problem (the half-disk of TestDormandPrinceOrder rocking at large
+// smooth problem (the half-disk of rockingHalfDisk rocking at large
 // amplitude) the global error of the eighth-order solution must fall by
 // about 2⁸ = 256 when the step halves (a wrong coefficient drops the
 // order), and the error estimate must shrink like a local error of order ≥
 // 6. The reference is the same method with a step 16 times smaller.
 // (From 16 to 32 steps of 2 s the errors are about 7e-9 and 2e-11.)
 func TestDOP853Order(t *testing.T) {
-	const R, mass = 0.5, 2.0
-	d := 4 * R / (3 * math.Pi)
-	p := Params{OneLeg: true, Gravity: 9.81,
-		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
-		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 5, MuKinetic: 5}}}}
-	m, err := New(p, Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	s0, err := m.Stand(0, 0, [2]float64{0.6, 0}, 0, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m, s0 := rockingHalfDisk(t)
 	const T = 2 // four rocking half-periods, where the error is well above rounding
 	run := func(steps int) (phase, float64) {
 		s := s0
@@ -68,19 +56,7 @@ func TestDOP853Order(t *testing.T) {
 // or d8AExtra drops it to 4 or less). Single halvings scatter (2⁶ … 2⁹.⁷
 // here), so the test takes the mean order from h = 0.4 s to 0.025 s.
 func TestDOP853DenseOutput(t *testing.T) {
-	const R, mass = 0.5, 2.0
-	d := 4 * R / (3 * math.Pi)
-	p := Params{OneLeg: true, Gravity: 9.81,
-		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
-		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 5, MuKinetic: 5}}}}
-	m, err := New(p, Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := m.Stand(0, 0, [2]float64{0.6, 0}, 0, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m, s := rockingHalfDisk(t)
 	x0 := phase{q: s.Q, v: s.V}
 	var k1 eval
 	m.evalAt(&s, &x0.q, &x0.v, nil, &k1)

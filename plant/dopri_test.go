@@ -6,24 +6,12 @@ import (
 )
 
 // TestDormandPrinceOrder checks the Dormand–Prince coefficients: with a
-// fixed step on a smooth problem (a half-disk rocking at large amplitude)
-// the global error of the fifth-order solution must fall by about 2⁵ = 32
-// when the step halves (the order of the method; a wrong coefficient drops
+// fixed step on a smooth problem (rockingHalfDisk: a half-disk rocking at
+// large amplitude) the global error of the fifth-order solution must fall
+// by about 2⁵ = 32 when the step halves (the order of the method; a wrong coefficient drops
 // it), and the embedded error estimate must shrink with the step too.
 func TestDormandPrinceOrder(t *testing.T) {
-	const R, mass = 0.5, 2.0
-	d := 4 * R / (3 * math.Pi)
-	p := Params{OneLeg: true, Gravity: 9.81,
-		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
-		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 5, MuKinetic: 5}}}}
-	m, err := New(p, Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	s0, err := m.Stand(0, 0, [2]float64{0.6, 0}, 0, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m, s0 := rockingHalfDisk(t)
 	const T = 0.5
 	run := func(steps int) (phase, float64) {
 		s := s0

@@ -143,12 +143,7 @@ func TestGaitWithPolicy(t *testing.T) {
 // ends, kinetic friction stops the slip and the foot sticks again
 // (Coulomb's law, common practice).
 func TestSlipAndStickAgain(t *testing.T) {
-	const R, mass = 0.5, 2.0
-	d := 4 * R / (3 * math.Pi)
-	p := Params{OneLeg: true, Gravity: 9.81,
-		Legs:    [2]Leg{{Length: R, Mass: mass, COMDist: d, Inertia: 0.5*mass*R*R - mass*d*d, FootRadius: R}},
-		Terrain: Terrain{Start: [2]float64{-5, 0}, Segments: []Segment{{Length: 10, MuStatic: 0.15, MuKinetic: 0.1}}}}
-	m, err := New(p, Options{ContinueOnSlip: true})
+	m, err := New(halfDiskParams(0.15, 0.1), Options{ContinueOnSlip: true})
 	if err != nil {
 		t.Fatal(err)
 	}

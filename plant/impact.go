@@ -65,26 +65,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 	v := s.V
 	for attempt := 0; attempt < 6; attempt++ {
 		v = s.V
-		rows.k = 0
-		for f := 0; f < m.nFeet; f++ {
-			if !active[f] {
-				continue
-			}
-			g := &ev.geom[f]
-			if slipSign[f] == 0 {
-				rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
-				// No slip relative to the surface: on the belt the foot
-				// leaves the impact moving with it.
-				rows.goal[rows.k], _ = m.surface(s, g, 0)
-				rows.k++
-			}
-			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, f, 1, 0
-			mu := m.terrain[g.sp.seg].muS * slipSign[f]
-			for d := 0; d < m.n; d++ {
-				rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
-			}
-			rows.k++
-		}
+		m.contactImpulseRows(s, ev, &active, &slipSign, &rows)
 		// A locked knee stays locked through the impulse (the stance knee
 		// and the trailing knee alike), as published kneed passive gaits
 		// assume for the trailing leg.
@@ -201,6 +182,34 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 	return stop
 }
 
+// contactImpulseRows sets rows (from row 0) to the impulse rows of the
+// feet in contact (active), as a heel strike and a knee strike both solve
+// them: for each foot a no-slip tangential row, unless slipSign puts the
+// foot on the friction cone's boundary, and a normal row whose work row
+// adds μ_s·slipSign times the tangential one (Λ_t = μ_s σ Λ_n). No slip is
+// relative to the surface: on the belt the foot leaves the impact moving
+// with it.
+func (m *Model) contactImpulseRows(s *State, ev *eval, active *[2]bool, slipSign *[2]float64, rows *saddle) {
+	rows.k = 0
+	for f := 0; f < m.nFeet; f++ {
+		if !active[f] {
+			continue
+		}
+		g := &ev.geom[f]
+		if slipSign[f] == 0 {
+			rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
+			rows.goal[rows.k], _ = m.surface(s, g, 0)
+			rows.k++
+		}
+		rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, f, 1, 0
+		mu := m.terrain[g.sp.seg].muS * slipSign[f]
+		for d := 0; d < m.n; d++ {
+			rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
+		}
+		rows.k++
+	}
+}
+
 // kneeStrike locks leg i's knee, which reached its stop with a closing
 // rate, by a plastic impulse: the knee's relative rate and the velocity of
 // every foot in contact (no slip, as at a heel strike) become zero, with
@@ -228,24 +237,7 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 	solved := false
 	for attempt := 0; attempt < 6 && !solved; attempt++ {
 		v = s.V
-		rows.k = 0
-		for f := 0; f < m.nFeet; f++ {
-			if !active[f] {
-				continue
-			}
-			g := &ev.geom[f]
-			if slipSign[f] == 0 {
-				rows.j[rows.k], rows.w[rows.k], rows.foot[rows.k], rows.kind[rows.k] = g.jt, g.jt, f, 0
-				rows.goal[rows.k], _ = m.surface(s, g, 0)
-				rows.k++
-			}
-			rows.j[rows.k], rows.foot[rows.k], rows.kind[rows.k], rows.goal[rows.k] = g.jn, f, 1, 0
-			mu := m.terrain[g.sp.seg].muS * slipSign[f]
-			for d := 0; d < m.n; d++ {
-				rows.w[rows.k][d] = g.jn[d] + mu*g.jt[d]
-			}
-			rows.k++
-		}
+		m.contactImpulseRows(s, ev, &active, &slipSign, &rows)
 		m.kneeRows(s, &rows, nil)
 		if !m.solveImpulse(&s.Q, &v, &rows, &lam) {
 			m.nonFinite(s, r)

@@ -4,15 +4,13 @@ import (
 	"bytes"
 	"flag"
 	"fmt"
-	"go/ast"
-	"go/parser"
-	"go/token"
-	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
 	"time"
+
+	"gaitrig/internal/refdoc"
 )
 
 var update = flag.Bool("update", false, "rewrite docs/run-folder.md from the code")
@@ -23,36 +21,12 @@ var runFolderPage = filepath.Join("..", "docs", "run-folder.md")
 // typeDocs reads the doc (or end-of-line) comments of the struct fields of
 // the package's non-test files: docs["Manifest.Seed"].
 func typeDocs(t testing.TB) map[string]string {
-	fset := token.NewFileSet()
-	pkgs, err := parser.ParseDir(fset, ".", func(fi os.FileInfo) bool { return !strings.HasSuffix(fi.Name(), "_test.go") }, parser.ParseComments)
+	files, err := refdoc.ParseDir(".")
 	if err != nil {
 		t.Fatal(err)
 	}
 	docs := map[string]string{}
-	for _, pkg := range pkgs {
-		for _, f := range pkg.Files {
-			ast.Inspect(f, func(n ast.Node) bool {
-				ts, ok := n.(*ast.TypeSpec)
-				if !ok {
-					return true
-				}
-				st, ok := ts.Type.(*ast.StructType)
-				if !ok {
-					return true
-				}
-				for _, fl := range st.Fields.List {
-					text := fl.Doc.Text()
-					if text == "" {
-						text = fl.Comment.Text()
-					}
-					for _, n := range fl.Names {
-						docs[ts.Name.Name+"."+n.Name] = strings.Join(strings.Fields(text), " ")
-					}
-				}
-				return true
-			})
-		}
-	}
+	refdoc.FieldDocs(files, refdoc.DocFirst, docs)
 	return docs
 }
 
@@ -267,20 +241,7 @@ func referencePage(t testing.TB) []byte {
 // TestReferencePage fails when docs/run-folder.md is not what the code
 // generates. Regenerate with: go generate ./record
 func TestReferencePage(t *testing.T) {
-	page := referencePage(t)
-	if *update {
-		if err := os.WriteFile(runFolderPage, page, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return
-	}
-	have, err := os.ReadFile(runFolderPage)
-	if err != nil {
-		t.Fatalf("%v; generate it with: go generate ./record", err)
-	}
-	if !bytes.Equal(have, page) {
-		t.Fatalf("%s is out of date with the code; regenerate it with: go generate ./record", runFolderPage)
-	}
+	refdoc.CheckPage(t, runFolderPage, referencePage(t), *update, "go generate ./record")
 }
 
 // TestEveryColumnDocumented: every column of both walkers and of steps.csv

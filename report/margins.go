@@ -28,7 +28,7 @@ type MarginPoint struct {
 
 // MarginAxis is one axis of a margin search as the page shows it.
 type MarginAxis struct {
-	Name, Unit string
+	Name, Unit string // the axis's name and the unit of its values
 	// Limit is the last passing value; Required the lab's minimum in the
 	// same unit and direction (NaN: none).
 	Limit, Required float64
@@ -43,8 +43,8 @@ type MarginAxis struct {
 
 // MarginsPage is the content of the margins page.
 type MarginsPage struct {
-	Scenario, Dir string
-	Axes          []MarginAxis
+	Scenario, Dir string       // the scenario's name and the search's folder
+	Axes          []MarginAxis // one per axis searched, in search order
 }
 
 // MarginsHTMLFile is the margins page's file name in the search's folder.

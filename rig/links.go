@@ -74,7 +74,7 @@ type LinkKind struct {
 // DialSetup is what a LinkKind's Dial gets: the parsed link and, for kinds
 // that start the built-in firmware on the other end, how to run it.
 type DialSetup struct {
-	Link Link
+	Link Link // the parsed link to dial (or to serve, for FirmwareEnd)
 	// Rig is the MQTT rig id; never empty (default "bench").
 	Rig string
 	// Firmware is the built-in firmware's options (builtin, pty, embedded,

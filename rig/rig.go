@@ -102,7 +102,7 @@ type Prepared struct {
 	// Model and Initial are the plant model and the state the run starts
 	// from.
 	Model   *plant.Model
-	Initial plant.State
+	Initial plant.State // the state the run starts from (InitialState: the scenario's initial block, or its natural gait)
 	// Link describes the open link (as in the manifest).
 	Link string
 	// Dir is the run folder ("" with Options.NoRecord).

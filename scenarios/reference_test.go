@@ -7,12 +7,13 @@ import (
 	"go/ast"
 	"go/parser"
 	"go/token"
-	"os"
 	"path/filepath"
 	"reflect"
 	"sort"
 	"strings"
 	"testing"
+
+	"gaitrig/internal/refdoc"
 )
 
 var update = flag.Bool("update", false, "rewrite docs/scenarios.md from the code")
@@ -42,24 +43,14 @@ func fileDocs(t testing.TB, file string, docs map[string]string) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	refdoc.FieldDocs([]*ast.File{f}, refdoc.DocOnly, docs)
 	for _, decl := range f.Decls {
 		g, ok := decl.(*ast.GenDecl)
 		if !ok {
 			continue
 		}
 		for _, spec := range g.Specs {
-			switch s := spec.(type) {
-			case *ast.TypeSpec:
-				st, ok := s.Type.(*ast.StructType)
-				if !ok {
-					continue
-				}
-				for _, fl := range st.Fields.List {
-					for _, n := range fl.Names {
-						docs[s.Name.Name+"."+n.Name] = oneLine(fl.Doc.Text())
-					}
-				}
-			case *ast.ValueSpec:
+			if s, ok := spec.(*ast.ValueSpec); ok {
 				for _, n := range s.Names {
 					if _, seen := docs["const "+n.Name]; !seen {
 						docs["const "+n.Name] = oneLine(s.Comment.Text())
@@ -70,7 +61,7 @@ func fileDocs(t testing.TB, file string, docs map[string]string) {
 	}
 }
 
-func oneLine(s string) string { return strings.Join(strings.Fields(s), " ") }
+func oneLine(s string) string { return refdoc.OneLine(s) }
 
 // row is one field of the reference.
 type row struct {
@@ -291,20 +282,7 @@ func snake(s string) string {
 // TestReferencePage fails when docs/scenarios.md is not what the code
 // generates. Regenerate with: go generate ./scenarios
 func TestReferencePage(t *testing.T) {
-	page := referencePage(t)
-	if *update {
-		if err := os.WriteFile(referencePath, page, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return
-	}
-	have, err := os.ReadFile(referencePath)
-	if err != nil {
-		t.Fatalf("%v; generate it with: go generate ./scenarios", err)
-	}
-	if !bytes.Equal(have, page) {
-		t.Fatalf("%s is out of date with the code; regenerate it with: go generate ./scenarios", referencePath)
-	}
+	refdoc.CheckPage(t, referencePath, referencePage(t), *update, "go generate ./scenarios")
 }
 
 // TestDefaultsMatchComments checks that each field comment states the

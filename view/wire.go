@@ -33,7 +33,7 @@ type Setup struct {
 	Mode string `json:"mode"`
 	// Scenario is the scenario's name; Clock lockstep or wallclock.
 	Scenario string `json:"scenario"`
-	Clock    string `json:"clock"`
+	Clock    string `json:"clock"` // lockstep or wallclock
 	// Link names the link to the firmware as the run folder's manifest
 	// does (builtin, a pty, mqtt:embedded (…), mqtt:tcp://…); "" when not
 	// known.

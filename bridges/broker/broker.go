@@ -236,7 +236,7 @@ type Config struct {
 	// TLSCertFile and TLSKeyFile, when both set, make the listener speak TLS
 	// with this PEM certificate and key.
 	TLSCertFile string
-	TLSKeyFile  string
+	TLSKeyFile  string // PEM private key of TLSCertFile; empty: no TLS
 	// Logger receives the broker's log lines. Nil discards them; pass a
 	// handler at warn level to see refusals and failures only.
 	Logger *slog.Logger

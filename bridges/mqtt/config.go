@@ -52,7 +52,7 @@ type Config struct {
 	// them from the environment or a prompt, never from a file in a
 	// repository.
 	Username string
-	Password string
+	Password string // the password that goes with Username; optional
 	// TLS is used for ssl://, tls:// and mqtts:// brokers. Nil means the
 	// system's trusted roots and the broker's host name.
 	TLS *tls.Config

@@ -156,12 +156,12 @@ type RigTelemetry struct {
 	// Hip, Feet (the end of each leg axis, left then right) and TorsoTop
 	// (equal to Hip without a torso) draw the walker as a stick figure, m.
 	Hip      [2]*float64    `json:"hip_m"`
-	Feet     [2][2]*float64 `json:"feet_m"`
-	TorsoTop [2]*float64    `json:"torso_top_m"`
+	Feet     [2][2]*float64 `json:"feet_m"`      // each foot's (x, y), m, left then right; null when not finite
+	TorsoTop [2]*float64    `json:"torso_top_m"` // the torso's top (x, y), m; null when not finite
 	// NormalN and Utilization are each foot's normal force, N, and
 	// friction utilization |F_t|/(μ_s N), left then right.
 	NormalN     [2]*float64 `json:"normal_n"`
-	Utilization [2]*float64 `json:"utilization"`
+	Utilization [2]*float64 `json:"utilization"` // null for a foot off the ground
 	// LatencyUS is the latest command round trip, µs (wall-clock runs).
 	LatencyUS *float64 `json:"latency_us"`
 }

@@ -4,15 +4,12 @@ import (
 	"bytes"
 	"flag"
 	"fmt"
-	"go/ast"
-	"go/parser"
-	"go/token"
-	"io/fs"
-	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
+
+	"gaitrig/internal/refdoc"
 )
 
 var update = flag.Bool("update", false, "rewrite docs/cli.md from the code")
@@ -20,20 +17,8 @@ var update = flag.Bool("update", false, "rewrite docs/cli.md from the code")
 // TestCLIReference fails while docs/cli.md differs from what the command
 // table and the result types give; -update rewrites it.
 func TestCLIReference(t *testing.T) {
-	path := filepath.Join("..", "..", "docs", "cli.md")
 	want := cliReference()
-	if *update {
-		if err := os.WriteFile(path, []byte(want), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
-	got, err := os.ReadFile(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if string(got) != want {
-		t.Errorf("docs/cli.md is stale: run go generate ./cmd/gaitrig")
-	}
+	refdoc.CheckPage(t, filepath.Join("..", "..", "docs", "cli.md"), []byte(want), *update, "go generate ./cmd/gaitrig")
 	for _, name := range sortedKeys(commands) {
 		if !strings.Contains(want, "\n## gaitrig "+name+"\n") {
 			t.Errorf("docs/cli.md has no section for %s", name)
@@ -171,34 +156,8 @@ func fieldDoc(t reflect.Type, name string) string {
 		if pkg != "main" {
 			dir = filepath.Join("..", "..", strings.TrimPrefix(pkg, "gaitrig/"))
 		}
-		pkgs, err := parser.ParseDir(token.NewFileSet(), dir, func(fi fs.FileInfo) bool { return !strings.HasSuffix(fi.Name(), "_test.go") }, parser.ParseComments)
-		if err == nil {
-			for _, p := range pkgs {
-				for _, f := range p.Files {
-					ast.Inspect(f, func(n ast.Node) bool {
-						ts, ok := n.(*ast.TypeSpec)
-						if !ok {
-							return true
-						}
-						st, ok := ts.Type.(*ast.StructType)
-						if !ok {
-							return true
-						}
-						for _, fl := range st.Fields.List {
-							text := ""
-							if fl.Comment != nil {
-								text = fl.Comment.Text()
-							} else if fl.Doc != nil {
-								text = fl.Doc.Text()
-							}
-							for _, id := range fl.Names {
-								docs[ts.Name.Name+"."+id.Name] = strings.Join(strings.Fields(text), " ")
-							}
-						}
-						return true
-					})
-				}
-			}
+		if files, err := refdoc.ParseDir(dir); err == nil {
+			refdoc.FieldDocs(files, refdoc.LineFirst, docs)
 		}
 		fieldDocs[pkg] = docs
 	}
