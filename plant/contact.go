@@ -183,7 +183,12 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		i := k - condKneeTorque
 		e := Event{Kind: KneeUnlock, T: s.T, Foot: i, Segment: -1, Value: ev.knee[i]}
 		if s.Mode[i] != Free {
-			e.Kind, e.Segment = KneeBuckle, ev.geom[i].sp.seg
+			e.Segment = ev.geom[i].sp.seg
+			if !m.p.Legs[i].Shank.Latch {
+				// A knee with a latch unlocks on the ground only after
+				// ReleaseKneeLatch: the controller asked for it.
+				e.Kind = KneeBuckle
+			}
 		}
 		r.add(e)
 		s.KneeLocked[i] = false

@@ -64,6 +64,36 @@ type BeltMotion struct {
 	Accel float64 // m/s², d(Speed)/dt over the tick
 }
 
+// ReleaseKneeLatch releases the latch of leg i's knee, as a controller
+// that drives the knee does before push-off, and reports whether a latch
+// was engaged. The knee stays locked at its stop: from the next Step it is
+// held by the one-sided stop alone and unlocks (a KneeUnlock event, never
+// KneeBuckle, since the knee has a latch) when the stop would have to pull,
+// in the first instant of that Step if it must pull already. The latch
+// engages again at the knee's next knee strike, or at its leg's heel strike
+// with the knee at its stop. A leg without a knee, a knee without a latch
+// (Shank.Latch) and a latch not engaged are left as they are (false); so is
+// an i other than 0 or 1. Call it between ticks; it touches nothing but s.
+func (m *Model) ReleaseKneeLatch(s *State, i int) bool {
+	if i < 0 || i > 1 || m.kneeOf[i] < 0 || !m.p.Legs[i].Shank.Latch || !s.KneeLatched[i] {
+		return false
+	}
+	s.KneeLatched[i] = false
+	return true
+}
+
+// KneeHasLatch reports whether leg i has a knee with a latch, the knees
+// ReleaseKneeLatch acts on.
+func (m *Model) KneeHasLatch(i int) bool {
+	return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 && m.p.Legs[i].Shank.Latch
+}
+
+// KneeActuated reports whether leg i has a knee with a torque actuator
+// (Shank.Actuated, a joint knee_left or knee_right).
+func (m *Model) KneeActuated(i int) bool {
+	return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 && m.knees[m.kneeOf[i]].actuated
+}
+
 // ErrStand is wrapped by the errors Stand returns when it cannot place the
 // walker.
 var ErrStand = errors.New("plant: cannot stand the walker")
