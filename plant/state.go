@@ -82,6 +82,9 @@ func (m *Model) ReleaseKneeLatch(s *State, i int) bool {
 	return true
 }
 
+// HasKnee reports whether leg i is a thigh and a shank joined by a knee.
+func (m *Model) HasKnee(i int) bool { return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 }
+
 // KneeHasLatch reports whether leg i has a knee with a latch, the knees
 // ReleaseKneeLatch acts on.
 func (m *Model) KneeHasLatch(i int) bool {
