@@ -80,7 +80,7 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, tau float64, ev *eval, 
 		i := kn.thigh
 		switch {
 		case !s.KneeLocked[i]:
-			c[condKneeStop+i] = q[2+kn.thigh] - q[2+kn.shank]
+			c[condKneeStop+i] = kn.stop - (q[2+kn.shank] - q[2+kn.thigh])
 		case !s.KneeLatched[i]:
 			c[condKneeTorque+i] = ev.knee[i]
 		}

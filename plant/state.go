@@ -22,8 +22,9 @@ type State struct {
 	// Seg is the terrain segment each foot was last nearest to (search hint
 	// and the segment of Anchor).
 	Seg [2]int
-	// KneeLocked holds leg i's knee at its stop, the shank in line with the
-	// thigh (θ_shank = θ_thigh), by a joint constraint solved with the
+	// KneeLocked holds leg i's knee at its stop (θ_shank − θ_thigh =
+	// Shank.StopAngle, 0: the shank in line with the thigh) by a joint
+	// constraint solved with the
 	// contacts; its torque is in FootContact.KneeTorque. An unlocked knee
 	// swings freely. Ignored for a straight leg.
 	KneeLocked [2]bool
@@ -145,7 +146,7 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	// rate not given is the thigh's, so the knee starts at rest.
 	for j := 0; j < m.nKnees; j++ {
 		kn := &m.knees[j]
-		s.Q[2+kn.shank] = s.Q[2+kn.thigh]
+		s.Q[2+kn.shank] = s.Q[2+kn.thigh] + kn.stop
 		if kn.shank >= len(rates) {
 			s.V[2+kn.shank] = s.V[2+kn.thigh]
 		}
