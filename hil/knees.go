@@ -82,7 +82,7 @@ func (r *runner) takeKneeUnlock(bits uint8) {
 			why = fmt.Sprintf("bit %d: the %s knee has no actuator", b, footName(b))
 		}
 		r.al.info(kneeUnlockIgnored, r.pt.tick, r.pt.s.T,
-			"the firmware asked to release a knee latch (command knee_unlock "+fmt.Sprintf("%#02x", bits)+"); "+why+": ignored, noted once per run",
+			"the firmware asked to release a knee latch (command knee_unlock "+fmt.Sprintf("0x%02x", bits)+"); "+why+": ignored, noted once per run",
 			map[string]float64{"bit": float64(b), "knee_unlock": float64(bits)})
 	}
 }

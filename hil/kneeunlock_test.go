@@ -3,6 +3,7 @@ package hil
 import (
 	"context"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -15,12 +16,20 @@ import (
 
 // kneedDemo is the kneed demo walker (actuated, latched knees) at the
 // level-demo start, in a lockstep run of the given simulated seconds.
-func kneedDemo(t *testing.T, seconds float64) (*plant.Model, plant.State, Config) {
+// A right knee made passive by passiveRight keeps its latch.
+func kneedDemo(t *testing.T, seconds float64, passiveRight ...bool) (*plant.Model, plant.State, Config) {
 	t.Helper()
 	_, _, cfg := timedDemo(t, seconds)
 	cfg.Physics.IgnoreScuff = false
 	cfg.Actuators.JointLimits = map[string]float64{"knee_left": 30, "knee_right": 30}
-	m, err := plant.New(reference.KneedDemoParams(), cfg.Physics)
+	p := reference.KneedDemoParams()
+	if len(passiveRight) > 0 && passiveRight[0] {
+		sh := *p.Legs[1].Shank
+		sh.Actuated = false
+		p.Legs[1].Shank = &sh
+		delete(cfg.Actuators.JointLimits, "knee_right")
+	}
+	m, err := plant.New(p, cfg.Physics)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -161,22 +170,25 @@ func TestKneeUnlockCommand(t *testing.T) {
 // the demo walker (no knees) a firmware that sets both knee bits and bit 7
 // in every command gets telemetry identical, byte for byte, to a run
 // without them, and one knee_unlock_ignored info event per bit; on the
-// kneed walker, bit 7 alone likewise.
+// kneed walker, bit 7 alone likewise, and the bit of a latched knee
+// without an actuator.
 func TestKneeUnlockIgnored(t *testing.T) {
 	cases := []struct {
 		name  string
 		bits  uint8
 		want  []float64 // bits noted as ignored
 		kneed bool
+		why   string // in the first event's message
 	}{
-		{"no knees", protocol.UnlockKneeLeft | protocol.UnlockKneeRight | 0x80, []float64{0, 1, 7}, false},
-		{"kneed, no such knee", 0x80, []float64{7}, true},
+		{"no knees", protocol.UnlockKneeLeft | protocol.UnlockKneeRight | 0x80, []float64{0, 1, 7}, false, "has no knee"},
+		{"kneed, no such knee", 0x80, []float64{7}, true, "names no knee"},
+		{"kneed, passive right knee", protocol.UnlockKneeRight, []float64{1}, true, "the right knee has no actuator"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			m, s, cfg := timedDemo(t, 0.3)
 			if tc.kneed {
-				m, s, cfg = kneedDemo(t, 0.3)
+				m, s, cfg = kneedDemo(t, 0.3, tc.bits == protocol.UnlockKneeRight)
 			}
 			_, base, err, ferr := runWith(t, context.Background(), cfg, m, s, editedReference(m, nil))
 			if err != nil || ferr != nil {
@@ -199,6 +211,9 @@ func TestKneeUnlockIgnored(t *testing.T) {
 				}
 				got = append(got, e.Values["bit"])
 				t.Log(e.Message)
+			}
+			if len(ev) > 0 && !strings.Contains(ev[0].Message, tc.why) {
+				t.Errorf("message %q does not say %q", ev[0].Message, tc.why)
 			}
 			if !slices.Equal(got, tc.want) {
 				t.Errorf("ignored bits noted %v, want %v once each", got, tc.want)
