@@ -273,9 +273,14 @@ func (b *battery) firstSession(conn bridges.Conn) {
 	b.beltPlace()
 
 	start = time.Now()
-	if undef := s.statusOr &^ DefinedStatusBits; undef != 0 {
+	switch undef, undefU := s.statusOr&^DefinedStatusBits, s.unlockOr&^DefinedKneeUnlockBits; {
+	case undef != 0:
 		b.record(CheckStatusBits, Fail, start, "undefined status bits 0x%04X set (in %d of %d commands); defined are 0x%04X", undef, s.undefCount, s.commands, DefinedStatusBits)
-	} else {
+	case undefU != 0:
+		b.record(CheckStatusBits, Fail, start, "undefined knee_unlock bits 0x%02X set (in %d of %d commands); defined are 0x%02X (left, right knee)", undefU, s.unlockUndef, s.commands, DefinedKneeUnlockBits)
+	case s.unlockCount > 0:
+		b.record(CheckStatusBits, Pass, start, "%d commands; status bits seen 0x%04X (fault in %d, safe mode in %d); knee_unlock bits 0x%02X in %d", s.commands, s.statusOr, s.faultCount, s.safeCount, s.unlockOr, s.unlockCount)
+	default:
 		b.record(CheckStatusBits, Pass, start, "%d commands; status bits seen 0x%04X (fault in %d, safe mode in %d)", s.commands, s.statusOr, s.faultCount, s.safeCount)
 	}
 

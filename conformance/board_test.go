@@ -32,12 +32,13 @@ const (
 	faultTakesBadConfig                  // takes a config with the wrong joint count
 	faultStopsOnDuplicateConfig          // ends the session with a stop on a second config
 	faultBeltPlaceRefused                // drops a state whose reserved bytes are not zero (a board stricter than the document)
+	faultUndefinedUnlockBit              // sets knee_unlock bit 4
 )
 
 var faultNames = [...]string{"none", "greeting_seq", "skip_first_state", "duplicate_config_drops_state",
 	"wrong_seq", "resent_twice", "resent_ignored", "accepts_bad_crc", "unknown_type_drops_state",
 	"heartbeat_drops_state", "undefined_status_bit", "answers_after_stop", "no_greeting_after_stop",
-	"wrong_refusal_reason", "takes_bad_config", "stops_on_duplicate_config", "belt_place_refused"}
+	"wrong_refusal_reason", "takes_bad_config", "stops_on_duplicate_config", "belt_place_refused", "undefined_unlock_bit"}
 
 func (f fault) String() string { return faultNames[f] }
 
@@ -208,6 +209,9 @@ func runBoard(rw io.ReadWriter, f fault) {
 			}
 			if f == faultUndefinedStatusBit {
 				last.Command.Status = 1 << 5
+			}
+			if f == faultUndefinedUnlockBit {
+				last.Command.KneeUnlock = protocol.UnlockKneeLeft | 1<<4
 			}
 			haveLast = true
 			if f == faultWrongSeq && m.Seq == 20 {

@@ -125,6 +125,7 @@ func TestBrokenFirmwareFailsTheRightCheck(t *testing.T) {
 		{faultHeartbeatDropsState, CheckHeartbeat},
 		{faultBeltPlaceRefused, CheckBeltPlace},
 		{faultUndefinedStatusBit, CheckStatusBits},
+		{faultUndefinedUnlockBit, CheckStatusBits},
 		{faultAnswersAfterStop, CheckStopsOnStop},
 		{faultNoGreetingAfterStop, CheckGreetsAgain},
 		{faultWrongRefusalReason, CheckRefusesBadConf},

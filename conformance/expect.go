@@ -42,6 +42,10 @@ const (
 	// DefinedStatusBits are the command status bits section 3.4 defines
 	// (fault, safe mode); every other bit is sent as 0 (section 6.1 item 3).
 	DefinedStatusBits = protocol.StatusFault | protocol.StatusSafeMode
+	// DefinedKneeUnlockBits are the command knee_unlock bits section 3.4.1
+	// defines (left and right knee); the status_bits check holds the
+	// command's knee_unlock byte to them as it holds status to its bits.
+	DefinedKneeUnlockBits = protocol.UnlockKneeLeft | protocol.UnlockKneeRight
 	// RefusalReason is the stop reason a firmware answers a config it
 	// cannot drive with (section 6.1 item 5: reason 4 firmware).
 	RefusalReason = protocol.StopFirmware
@@ -92,7 +96,7 @@ var Checks = []Spec{
 	{CheckUnknownType, "ignores a frame of an unknown type and answers the next state", "5", true},
 	{CheckHeartbeat, "takes a heartbeat without disturbing the session (and answers it, if the document asks)", "3.5, 6 item 4", true},
 	{CheckBeltPlace, "answers a state that carries a treadmill belt place (contacts bit 2, belt_mm) like any state, without a fault", "3.3.1, 6.1 item 3", true},
-	{CheckStatusBits, "sends only the status bits the document defines (fault, safe mode)", "3.4, 6.1 item 3", true},
+	{CheckStatusBits, "sends only the status bits the document defines (fault, safe mode), and only the knee_unlock bits it defines (left, right knee)", "3.4, 3.4.1, 6.1 item 3", true},
 	{CheckRoundTrip, "round-trip time, state sent to its command back, plant frozen (a figure, not a pass mark)", "7", false},
 	{CheckStopsOnStop, "sends no command after a stop from the rig", "6 item 5", true},
 	{CheckGreetsAgain, "greets again when the rig opens the link anew after a stop", "6 item 5", GreetAgainRequired},

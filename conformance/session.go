@@ -29,6 +29,8 @@ type session struct {
 	// Counts of what the firmware sent.
 	commands, greetings, heartbeats, wrongWay, frameErrors int
 	statusOr                                               uint16
+	unlockOr                                               uint8 // knee_unlock bits seen in any command
+	unlockCount, unlockUndef                               int   // commands with knee_unlock bits, with undefined ones
 	undefCount, faultCount, safeCount                      int
 	lastFrameErr                                           string
 	lastCmd                                                protocol.Command // the latest command that answered the awaited seq
@@ -155,6 +157,13 @@ func (s *session) await(ctx context.Context, seq uint32, d time.Duration) answer
 			s.commands++
 			st := m.Command.Status
 			s.statusOr |= st
+			if u := m.Command.KneeUnlock; u != 0 {
+				s.unlockOr |= u
+				s.unlockCount++
+				if u&^DefinedKneeUnlockBits != 0 {
+					s.unlockUndef++
+				}
+			}
 			if st&^DefinedStatusBits != 0 {
 				s.undefCount++
 			}

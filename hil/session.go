@@ -265,7 +265,7 @@ func (r *runner) greetedAgain() {
 }
 
 // takeCommand applies one valid command from the firmware: torque checks,
-// saturation and status alarms.
+// saturation, status alarms and the knee unlock bits (knees.go).
 func (r *runner) takeCommand(c *protocol.Command) {
 	ss := &r.sess
 	r.health.counts.Commands++
@@ -323,6 +323,9 @@ func (r *runner) takeCommand(c *protocol.Command) {
 		}
 	}
 	ss.lastFW = c.Status
+	if !r.end.set() {
+		r.takeKneeUnlock(c.KneeUnlock)
+	}
 }
 
 // firmwareStop handles a Stop from the firmware. Reason end (0) is the

@@ -27,6 +27,7 @@ type plantTick struct {
 	pushes  []pushState
 	contact contactExtremes // of the stance foot over the whole run
 	knees   kneeExtremes    // of the locked knees of legs on the ground, over the whole run
+	unlock  kneeUnlock      // knee latches the firmware asked to release (knees.go)
 
 	// The row of the tick just stepped, and what it logs besides the plant.
 	row       record.Tick
@@ -95,6 +96,7 @@ func (r *runner) advance(wall time.Time) {
 	t0 := pt.s.T
 	pt.in.HipForce = r.pushForce(t0)
 	r.treadmillInput(t0)
+	r.applyKneeUnlock()
 	r.m.JointState(&pt.s, pt.angleTmp, pt.rate0)
 	r.m.Step(&pt.s, &pt.in, r.dt, &pt.res)
 	r.m.JointState(&pt.s, pt.angleTmp, pt.rate1)

@@ -80,7 +80,7 @@ func (m *Model) conditions(s *State, q *[MaxDOF]float64, tau float64, ev *eval, 
 		i := kn.thigh
 		switch {
 		case !s.KneeLocked[i]:
-			c[condKneeStop+i] = q[2+kn.thigh] - q[2+kn.shank]
+			c[condKneeStop+i] = kn.stop - (q[2+kn.shank] - q[2+kn.thigh])
 		case !s.KneeLatched[i]:
 			c[condKneeTorque+i] = ev.knee[i]
 		}
@@ -183,7 +183,12 @@ func (m *Model) handle(s *State, in *Input, k int, ev *eval, r *TickResult) bool
 		i := k - condKneeTorque
 		e := Event{Kind: KneeUnlock, T: s.T, Foot: i, Segment: -1, Value: ev.knee[i]}
 		if s.Mode[i] != Free {
-			e.Kind, e.Segment = KneeBuckle, ev.geom[i].sp.seg
+			e.Segment = ev.geom[i].sp.seg
+			if !m.p.Legs[i].Shank.Latch {
+				// A knee with a latch unlocks on the ground only after
+				// ReleaseKneeLatch: the controller asked for it.
+				e.Kind = KneeBuckle
+			}
 		}
 		r.add(e)
 		s.KneeLocked[i] = false

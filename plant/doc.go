@@ -59,13 +59,15 @@
 //
 // The knee stop is unilateral. A locked knee whose lock torque would turn
 // negative (the stop would have to pull) unlocks: a knee_buckle event when
-// its foot is on the ground, knee_unlock in swing. An unlocked knee
-// reaching its stop (θ_shank − θ_thigh = 0) is a knee strike: a plastic
+// its foot is on the ground and it has no latch, knee_unlock otherwise. An
+// unlocked knee reaching its stop (θ_shank − θ_thigh = Shank.StopAngle, 0
+// by default: the straight leg) is a knee strike: a plastic
 // impulse locks it, solved together with no-slip impulses at the feet in
 // contact (a foot that would need a pulling impulse is released). A
 // Shank.Latch engages at a knee strike and at the leg's heel strike (when
 // the knee is at its stop then) and releases when the foot leaves the
-// ground; a latched knee carries torque of either sign. At a heel strike
+// ground, or earlier when the controller asks (ReleaseKneeLatch, between
+// ticks); a latched knee carries torque of either sign. At a heel strike
 // every locked knee is held through the impulse — the trailing leg's too,
 // as published kneed passive gaits assume — and the trailing knee's latch
 // releases as its foot leaves the ground, after which its stop alone holds

@@ -76,11 +76,13 @@ const (
 	// EnergyLost = kinetic energy lost (J). An impact_slip follows if the
 	// impulse on a foot in contact leaves its friction cone.
 	KneeStrike
-	// KneeUnlock: the stop of a swing leg's locked knee without a latch
-	// would have to pull, so the knee left its stop. Foot = the leg, Value
-	// = the lock torque (N·m, ≤ 0), Limit = 0.
+	// KneeUnlock: the stop of a locked knee whose latch is not engaged
+	// would have to pull, so the knee left its stop: a swing knee, or a
+	// knee with a latch that ReleaseKneeLatch released (on the ground or
+	// not). Foot = the leg, Value = the lock torque (N·m, ≤ 0), Limit = 0.
 	KneeUnlock
-	// KneeBuckle: as KneeUnlock for a leg whose foot is on the ground: the
+	// KneeBuckle: as KneeUnlock for a leg without a latch whose foot is on
+	// the ground: the
 	// stance knee buckles. The simulation continues with the knee free.
 	KneeBuckle
 )

@@ -270,7 +270,7 @@ func (m *Model) FromReduced(z []float64, stance int, x float64) (State, error) {
 		kn := &m.knees[j]
 		sh := m.reducedPos(stance, kn.shank)
 		th := m.reducedPos(stance, kn.thigh)
-		if d, w := z[sh]-z[th], z[nl+sh]-z[nl+th]; !(math.Abs(d) <= 1e-9 && math.Abs(w) <= 1e-9*math.Max(1, math.Abs(z[nl+th]))) {
+		if d, w := z[sh]-z[th]-kn.stop, z[nl+sh]-z[nl+th]; !(math.Abs(d) <= 1e-9 && math.Abs(w) <= 1e-9*math.Max(1, math.Abs(z[nl+th]))) {
 			return State{}, fmt.Errorf("%w: map coordinates with the %s knee bent by %g rad at %g rad/s; on the map's section every knee is locked straight",
 				ErrStand, legName(kn.thigh), d, w)
 		}

@@ -97,7 +97,7 @@ func (m *Model) expandSection(u []float64, free []int, z []float64) {
 		// with the legs of the same kind (the only walkers with a
 		// period-one gait) position and link coincide for stance 0, and
 		// swapping both legs keeps the thigh-shank pairing.
-		z[kn.shank] = z[kn.thigh]
+		z[kn.shank] = z[kn.thigh] + kn.stop
 		z[nl+kn.shank] = z[nl+kn.thigh]
 	}
 }
@@ -110,7 +110,7 @@ func (m *Model) onSection(s *State) error {
 	for j := 0; j < m.nKnees; j++ {
 		kn := &m.knees[j]
 		i := kn.thigh
-		bend := s.Q[2+kn.shank] - s.Q[2+kn.thigh]
+		bend := s.Q[2+kn.shank] - s.Q[2+kn.thigh] - kn.stop
 		if !s.KneeLocked[i] || math.Abs(bend) > 1e-9 {
 			return fmt.Errorf("plant: the %s knee is not locked straight just after the heel strike (bend %g rad, locked %v): "+
 				"a passive kneed gait needs the swing knee to strike its stop before the heel strikes and the stance knee to stay locked",

@@ -47,6 +47,7 @@ type knee struct {
 	// coupling·cos(θ_thigh − θ_shank).
 	coupling float64
 	actuated bool
+	stop     float64 // Shank.StopAngle: θ_shank − θ_thigh at the stop
 }
 
 // Model is a walker ready to simulate: validated parameters, compiled
@@ -149,7 +150,7 @@ func New(p Params, o Options) (*Model, error) {
 		m.feet[i].length = sh.Length
 		m.feet[i].link = k
 		m.feet[i].thigh = p.Legs[i].Length
-		kn := knee{thigh: i, shank: k, coupling: sh.Mass * sh.COMDist * p.Legs[i].Length, actuated: sh.Actuated && !p.OneLeg}
+		kn := knee{thigh: i, shank: k, coupling: sh.Mass * sh.COMDist * p.Legs[i].Length, actuated: sh.Actuated && !p.OneLeg, stop: sh.StopAngle}
 		m.kneeOf[i] = m.nKnees
 		m.knees[m.nKnees] = kn
 		m.nKnees++

@@ -51,6 +51,12 @@ type Shank struct {
 	// unlocks when the stop would have to pull (a knee_buckle event while
 	// the foot is on the ground).
 	Latch bool
+	// StopAngle is the knee angle θ_shank − θ_thigh at the knee's stop,
+	// rad: the knee cannot extend beyond it, a locked knee holds it, and
+	// a knee strike happens when the knee reaches it. 0 (the default) is
+	// the straight leg; negative stops the knee slightly flexed, positive
+	// lets it hyperextend. |StopAngle| < π/2.
+	StopAngle float64
 }
 
 // Torso describes the optional torso link, hinged at the hip and pointing up.
@@ -155,6 +161,8 @@ func (p Params) Validate() error {
 				return perr(g+"Inertia", sh.Inertia, "must be a finite inertia ≥ 0 kg·m²")
 			case sh.Mass*sh.COMDist*sh.COMDist+sh.Inertia <= 0:
 				return perr(g+"Inertia", sh.Inertia, "the shank has neither mass away from the knee nor inertia, so its angle would have no inertia")
+			case !finite(sh.StopAngle) || math.Abs(sh.StopAngle) >= math.Pi/2:
+				return perr(g+"StopAngle", sh.StopAngle, "must be a finite knee angle, |angle| < π/2 rad")
 			}
 			footLen, footName = sh.Length, "shank"
 			total += sh.Mass

@@ -177,7 +177,7 @@ func (m *Model) wellInside(s *State, ev *eval) bool {
 			continue
 		}
 		kn := &m.knees[j]
-		if !(math.Abs(s.Q[2+kn.shank]-s.Q[2+kn.thigh]) <= posTol) || !(math.Abs(s.V[2+kn.shank]-s.V[2+kn.thigh]) <= velTol) {
+		if !(math.Abs(s.Q[2+kn.shank]-s.Q[2+kn.thigh]-kn.stop) <= posTol) || !(math.Abs(s.V[2+kn.shank]-s.V[2+kn.thigh]) <= velTol) {
 			return false
 		}
 	}

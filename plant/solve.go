@@ -35,7 +35,7 @@ func (m *Model) kneeRows(s *State, rows *saddle, res *[maxRows]float64) {
 		rows.w[k] = rows.j[k]
 		rows.foot[k], rows.kind[k], rows.bottom[k], rows.goal[k] = i, rowKnee, 0, 0
 		if res != nil {
-			res[k] = s.Q[2+kn.shank] - s.Q[2+kn.thigh]
+			res[k] = s.Q[2+kn.shank] - s.Q[2+kn.thigh] - kn.stop
 		}
 		rows.k++
 	}

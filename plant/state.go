@@ -22,8 +22,9 @@ type State struct {
 	// Seg is the terrain segment each foot was last nearest to (search hint
 	// and the segment of Anchor).
 	Seg [2]int
-	// KneeLocked holds leg i's knee at its stop, the shank in line with the
-	// thigh (θ_shank = θ_thigh), by a joint constraint solved with the
+	// KneeLocked holds leg i's knee at its stop (θ_shank − θ_thigh =
+	// Shank.StopAngle, 0: the shank in line with the thigh) by a joint
+	// constraint solved with the
 	// contacts; its torque is in FootContact.KneeTorque. An unlocked knee
 	// swings freely. Ignored for a straight leg.
 	KneeLocked [2]bool
@@ -62,6 +63,39 @@ type Input struct {
 type BeltMotion struct {
 	Speed float64 // m/s at the start of the tick, positive backward
 	Accel float64 // m/s², d(Speed)/dt over the tick
+}
+
+// ReleaseKneeLatch releases the latch of leg i's knee, as a controller
+// that drives the knee does before push-off, and reports whether a latch
+// was engaged. The knee stays locked at its stop: from the next Step it is
+// held by the one-sided stop alone and unlocks (a KneeUnlock event, never
+// KneeBuckle, since the knee has a latch) when the stop would have to pull,
+// in the first instant of that Step if it must pull already. The latch
+// engages again at the knee's next knee strike, or at its leg's heel strike
+// with the knee at its stop. A leg without a knee, a knee without a latch
+// (Shank.Latch) and a latch not engaged are left as they are (false); so is
+// an i other than 0 or 1. Call it between ticks; it touches nothing but s.
+func (m *Model) ReleaseKneeLatch(s *State, i int) bool {
+	if i < 0 || i > 1 || m.kneeOf[i] < 0 || !m.p.Legs[i].Shank.Latch || !s.KneeLatched[i] {
+		return false
+	}
+	s.KneeLatched[i] = false
+	return true
+}
+
+// HasKnee reports whether leg i is a thigh and a shank joined by a knee.
+func (m *Model) HasKnee(i int) bool { return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 }
+
+// KneeHasLatch reports whether leg i has a knee with a latch, the knees
+// ReleaseKneeLatch acts on.
+func (m *Model) KneeHasLatch(i int) bool {
+	return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 && m.p.Legs[i].Shank.Latch
+}
+
+// KneeActuated reports whether leg i has a knee with a torque actuator
+// (Shank.Actuated, a joint knee_left or knee_right).
+func (m *Model) KneeActuated(i int) bool {
+	return i >= 0 && i <= 1 && m.kneeOf[i] >= 0 && m.knees[m.kneeOf[i]].actuated
 }
 
 // ErrStand is wrapped by the errors Stand returns when it cannot place the
@@ -112,7 +146,7 @@ func (m *Model) Stand(stance int, x float64, legAngles [2]float64, torsoAngle fl
 	// rate not given is the thigh's, so the knee starts at rest.
 	for j := 0; j < m.nKnees; j++ {
 		kn := &m.knees[j]
-		s.Q[2+kn.shank] = s.Q[2+kn.thigh]
+		s.Q[2+kn.shank] = s.Q[2+kn.thigh] + kn.stop
 		if kn.shank >= len(rates) {
 			s.V[2+kn.shank] = s.V[2+kn.thigh]
 		}

@@ -142,6 +142,9 @@ type Shank struct {
 	Actuated bool `json:"actuated,omitempty"`
 	// Latch is true for a knee whose latch holds it at its stop.
 	Latch bool `json:"latch,omitempty"`
+	// StopRad is the knee angle at the knee's stop, rad; left out when 0
+	// (the straight leg), so manifests written before it read the same.
+	StopRad float64 `json:"stop_rad,omitempty"`
 }
 
 // Torso is the torso link, hinged at the hip and pointing up.
@@ -188,7 +191,7 @@ func PlantOf(p plant.Params) *Plant {
 			FootRadiusM: l.FootRadius, ArcOffsetM: l.ArcOffset}
 		if s := l.Shank; s != nil {
 			out.Legs[i].Shank = &Shank{LengthM: s.Length, MassKG: s.Mass, COMM: s.COMDist, InertiaKGM2: s.Inertia,
-				Actuated: s.Actuated, Latch: s.Latch}
+				Actuated: s.Actuated, Latch: s.Latch, StopRad: s.StopAngle}
 		}
 	}
 	if t := p.Torso; t != nil {
@@ -213,7 +216,7 @@ func (p *Plant) Params() plant.Params {
 			FootRadius: l.FootRadiusM, ArcOffset: l.ArcOffsetM}
 		if s := l.Shank; s != nil {
 			out.Legs[i].Shank = &plant.Shank{Length: s.LengthM, Mass: s.MassKG, COMDist: s.COMM, Inertia: s.InertiaKGM2,
-				Actuated: s.Actuated, Latch: s.Latch}
+				Actuated: s.Actuated, Latch: s.Latch, StopAngle: s.StopRad}
 		}
 	}
 	if t := p.Torso; t != nil {

@@ -408,7 +408,7 @@ func (s *Scenario) PlantParams() (plant.Params, error) {
 			FootRadius: l.FootRadiusM, ArcOffset: l.ArcOffsetM}
 		if sh := l.Shank; sh != nil {
 			p.Legs[i].Shank = &plant.Shank{Length: sh.LengthM, Mass: sh.MassKG, COMDist: sh.COMM, Inertia: sh.InertiaKGM2,
-				Actuated: sh.KneeActuated, Latch: sh.KneeLatch}
+				Actuated: sh.KneeActuated, Latch: sh.KneeLatch, StopAngle: sh.KneeStopRad}
 		}
 	}
 	if t := s.Plant.Torso; t != nil {

@@ -153,6 +153,12 @@ type Shank struct {
 	// only pushes, and a stance knee whose stop would have to pull buckles
 	// (the knee_buckle alarm).
 	KneeLatch bool `yaml:"knee_latch"`
+	// KneeStopRad is the knee angle at the knee's stop, rad (knee angle =
+	// shank angle − thigh angle): the knee cannot extend beyond it, a
+	// locked knee holds it, and the knee strikes when it reaches it.
+	// Default 0, the straight leg; negative stops the knee slightly
+	// flexed, positive lets it hyperextend. |knee_stop_rad| < π/2.
+	KneeStopRad float64 `yaml:"knee_stop_rad"`
 }
 
 // ShankOverride replaces single values of the shared shank for one side. A
@@ -170,6 +176,8 @@ type ShankOverride struct {
 	KneeActuated *bool `yaml:"knee_actuated"`
 	// KneeLatch overrides legs.shank.knee_latch.
 	KneeLatch *bool `yaml:"knee_latch"`
+	// KneeStopRad overrides legs.shank.knee_stop_rad, rad.
+	KneeStopRad *float64 `yaml:"knee_stop_rad"`
 }
 
 // LegOverride replaces single values of the shared leg for one side. A field

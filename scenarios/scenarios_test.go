@@ -27,8 +27,12 @@ func TestBrokenFiles(t *testing.T) {
 		}},
 		{"knee-shank-problems.yaml", []string{
 			"knee-shank-problems.yaml:10: plant.legs.shank.length_m: missing required field length_m in plant.legs.shank",
-			"knee-shank-problems.yaml:12: plant.legs.shank.knee_torque_nm: unknown field \"knee_torque_nm\"; allowed here: length_m, mass_kg, com_m, inertia_kgm2, knee_actuated, knee_latch",
+			"knee-shank-problems.yaml:12: plant.legs.shank.knee_torque_nm: unknown field \"knee_torque_nm\"; allowed here: length_m, mass_kg, com_m, inertia_kgm2, knee_actuated, knee_latch, knee_stop_rad",
 			"knee-shank-problems.yaml:15: plant.legs.left.shank.mass_kg: -1 kg is out of range",
+		}},
+		{"knee-stop-out-of-range.yaml", []string{
+			"knee-stop-out-of-range.yaml:14: plant.legs.shank.knee_stop_rad: 2 rad is out of range; allowed |knee_stop_rad| < π/2 (1.5708)",
+			"knee-stop-out-of-range.yaml:17: plant.legs.right.shank.knee_stop_rad: -1.6 rad is out of range",
 		}},
 		{"knee-override-without-shank.yaml", []string{
 			"knee-override-without-shank.yaml:11: plant.legs.right.shank: overrides a shank the legs do not have",
@@ -636,7 +640,8 @@ func BenchmarkRefuse(b *testing.B) {
 }
 
 // TestPlantParamsShanks checks that a shank block becomes plant shanks on
-// both legs, that a side's shank override changes that side only, and that
+// both legs, that a side's shank override changes that side only (the
+// knee stop angle among them), and that
 // actuated knees add their joints after the hips.
 func TestPlantParamsShanks(t *testing.T) {
 	base, err := os.ReadFile(filepath.Join("testdata", "valid-minimal.yaml"))
@@ -645,7 +650,7 @@ func TestPlantParamsShanks(t *testing.T) {
 	}
 	text := strings.Replace(string(base), "    foot_radius_m: 0.27\n",
 		"    foot_radius_m: 0.27\n    shank:\n      length_m: 0.5\n      mass_kg: 1\n      com_m: 0.2\n      inertia_kgm2: 0.01\n      knee_latch: true\n"+
-			"    right:\n      shank:\n        mass_kg: 1.5\n        knee_actuated: true\n", 1)
+			"    right:\n      shank:\n        mass_kg: 1.5\n        knee_actuated: true\n        knee_stop_rad: -0.05\n", 1)
 	s, err := Parse("kneed.yaml", []byte(text))
 	if err != nil {
 		t.Fatal(err)
@@ -661,7 +666,7 @@ func TestPlantParamsShanks(t *testing.T) {
 	if want := (plant.Shank{Length: 0.5, Mass: 1, COMDist: 0.2, Inertia: 0.01, Latch: true}); *l != want {
 		t.Errorf("left shank %+v, want %+v", *l, want)
 	}
-	if want := (plant.Shank{Length: 0.5, Mass: 1.5, COMDist: 0.2, Inertia: 0.01, Actuated: true, Latch: true}); *r != want {
+	if want := (plant.Shank{Length: 0.5, Mass: 1.5, COMDist: 0.2, Inertia: 0.01, Actuated: true, Latch: true, StopAngle: -0.05}); *r != want {
 		t.Errorf("right shank %+v, want %+v", *r, want)
 	}
 	if s.Plant.Legs.Shank.MassKG != 1 || s.Plant.Legs.Shank.KneeActuated {

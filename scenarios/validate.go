@@ -204,6 +204,7 @@ func applyOverride(l Leg, o *LegOverride) Leg {
 			set(&sh.MassKG, o.Shank.MassKG)
 			set(&sh.COMM, o.Shank.COMM)
 			set(&sh.InertiaKGM2, o.Shank.InertiaKGM2)
+			set(&sh.KneeStopRad, o.Shank.KneeStopRad)
 			if o.Shank.KneeActuated != nil {
 				sh.KneeActuated = *o.Shank.KneeActuated
 			}
@@ -302,6 +303,7 @@ func (c *checker) shank(path string, l, shared Leg) bool {
 	}
 	c.num(where("mass_kg"), sh.MassKG, sh.MassKG >= 0 && sh.MassKG <= 1e4, "0 ≤ X ≤ 10000")
 	c.num(where("inertia_kgm2"), sh.InertiaKGM2, sh.InertiaKGM2 >= 0 && sh.InertiaKGM2 <= 1e4, "0 ≤ X ≤ 10000")
+	c.num(where("knee_stop_rad"), sh.KneeStopRad, math.Abs(sh.KneeStopRad) < math.Pi/2, "|X| < π/2 (1.5708)")
 	if !c.has(where("length_m")) {
 		return false // a missing shared length is reported once, in plant.legs.shank
 	}

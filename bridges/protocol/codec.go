@@ -269,7 +269,7 @@ func encodeCommand(p []byte, c *Command) error {
 		return err
 	}
 	p[0] = c.Joints
-	p[1] = 0
+	p[1] = c.KneeUnlock
 	le.PutUint16(p[2:], c.Status)
 	for i := range MaxJoints {
 		t := float32(0)
@@ -468,6 +468,7 @@ func decodeCommand(p []byte, c *Command) error {
 		return err
 	}
 	c.Joints = p[0]
+	c.KneeUnlock = p[1]
 	c.Status = le.Uint16(p[2:])
 	for i := range MaxJoints {
 		if i < int(c.Joints) {

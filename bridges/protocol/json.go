@@ -79,6 +79,11 @@ func AppendJSON(dst []byte, m *Message) ([]byte, error) {
 		c := &m.Command
 		dst = appendUintField(dst, "joints", uint64(c.Joints))
 		dst = appendUintField(dst, "status", uint64(c.Status))
+		if c.KneeUnlock != 0 {
+			// Only a command that unlocks a knee says so, so the JSON of
+			// every other command reads as before.
+			dst = appendUintField(dst, "knee_unlock", uint64(c.KneeUnlock))
+		}
 		dst = appendFloats(dst, "torque", c.Torque[:clampJoints(c.Joints)])
 	case TypeStop:
 		dst = appendUintField(dst, "reason", uint64(m.Stop.Reason))
@@ -179,6 +184,7 @@ type jsonMessage struct {
 	IMUPitch    jsonF32   `json:"imu_pitch"`
 	IMURate     jsonF32   `json:"imu_rate"`
 	Status      uint16    `json:"status"`
+	KneeUnlock  uint8     `json:"knee_unlock"`
 	Torque      []jsonF32 `json:"torque"`
 	Reason      uint8     `json:"reason"`
 	ReasonName  string    `json:"reason_name"`
@@ -247,7 +253,7 @@ func ParseJSON(data []byte, m *Message) error {
 			err = arr("rate", j.Rate, out.State.Rate[:])
 		}
 	case TypeCommand:
-		out.Command = Command{Joints: j.Joints, Status: j.Status}
+		out.Command = Command{Joints: j.Joints, Status: j.Status, KneeUnlock: j.KneeUnlock}
 		err = arr("torque", j.Torque, out.Command.Torque[:])
 	case TypeStop:
 		out.Stop = Stop{Reason: j.Reason, Text: j.Text}

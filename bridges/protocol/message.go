@@ -122,11 +122,25 @@ const (
 	StatusSafeMode uint16 = 1 << 1 // firmware is in its own safe mode
 )
 
+// Knee unlock bits in Command.KneeUnlock: one per leg, as in
+// State.Contacts.
+const (
+	UnlockKneeLeft  uint8 = 1 << 0 // release the left knee's latch now
+	UnlockKneeRight uint8 = 1 << 1 // release the right knee's latch now
+)
+
 // Command is the firmware's answer to a State: the torques to apply.
 type Command struct {
 	Joints uint8              // number of valid entries in Torque
 	Torque [MaxJoints]float32 // N·m, in Config.JointNames order
 	Status uint16             // firmware status bits
+	// KneeUnlock asks the rig to release the latch of a knee before the
+	// tick this command answers is stepped: UnlockKneeLeft, UnlockKneeRight
+	// (docs/protocol.md section 3.4.1). It acts once per command, only on
+	// a knee with a latch and an actuator; a latch that is not engaged is
+	// left as it is. It fills the byte versions 1 and 2 reserved, so a
+	// board that does not know it sends 0 and nothing changes.
+	KneeUnlock uint8
 }
 
 // Stop reason codes. Values are part of the wire format.
