@@ -30,17 +30,20 @@ type Reading struct {
 	Pitch     float64    // IMU link's absolute angle, rad
 	PitchRate float64    // IMU link's absolute rate, rad/s
 	Contacts  uint8      // foot switches: bit 0 left, bit 1 right
-	// OnBelt says the walker is on a treadmill belt and BeltPos is its
-	// place: the hip's distance from the middle of the belt, m, positive
-	// forward (protocol.State.BeltPosition).
-	OnBelt  bool
+	// OnBelt says the walker is on a treadmill belt (BeltPos is valid).
+	OnBelt bool
+	// BeltPos is the walker's place on the belt: the hip's distance from
+	// the middle of the belt, m, positive forward
+	// (protocol.State.BeltPosition); 0 when not OnBelt.
 	BeltPos float64
 	// Knees is the number of actuated knee joints that follow the hips
-	// (knee_left, knee_right): 0 or 2. KneeAngle and KneeRate hold their
-	// angles (θ_shank − θ_thigh: 0 straight at the stop, negative flexed)
-	// and rates, left then right.
-	Knees               int
-	KneeAngle, KneeRate [2]float64
+	// (knee_left, knee_right): 0 or 2.
+	Knees int
+	// KneeAngle holds the knee angles, left then right, rad
+	// (θ_shank − θ_thigh: 0 straight at the stop, negative flexed).
+	KneeAngle [2]float64
+	// KneeRate holds the knee rates, left then right, rad/s.
+	KneeRate [2]float64
 }
 
 // Gains are the constants of the control law. Every one is a plain number
