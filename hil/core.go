@@ -40,6 +40,17 @@ type commandSource interface {
 // pace → sense → send the state → obtain the command → check and apply the
 // torques → step the plant → record → plant events → end conditions.
 func (r *runner) ticks(ctx context.Context, p pacer, src commandSource) {
+	// Every way out gives the tap's readers the last tick stepped, also a
+	// return in the middle of a tick (an abort, a trip while waiting for
+	// the command), so a live view or a scrape ends on what the summary
+	// says, not on the last decimated snapshot.
+	last := false
+	defer func() {
+		if !last {
+			r.pt.latUS = nan // counted in the tap's histograms already
+			r.tap(nil, time.Time{}, true)
+		}
+	}()
 	for !r.done() {
 		wall := p.wait(r.pt.tick)
 		if r.aborted(ctx) {
@@ -67,11 +78,13 @@ func (r *runner) ticks(ctx context.Context, p pacer, src commandSource) {
 		r.advance(wall)
 		if ended {
 			r.tap(p, wall, true)
+			last = true
 			return
 		}
 		if p.overran() {
 			r.deadlineMiss()
 		}
-		r.tap(p, wall, r.done())
+		last = r.done()
+		r.tap(p, wall, last)
 	}
 }

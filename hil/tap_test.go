@@ -9,6 +9,8 @@ import (
 	"testing"
 	"time"
 
+	"gaitrig/bridges"
+	"gaitrig/bridges/protocol"
 	"gaitrig/record"
 )
 
@@ -196,5 +198,34 @@ func BenchmarkTapPerTick(b *testing.B) {
 	}
 	if cfg.Tap.Made() == 0 {
 		b.Fatal("no snapshot made")
+	}
+}
+
+// A run that ends in the middle of a tick (here a watchdog trip while the
+// loop waits for a command that never comes) still leaves its readers the
+// last tick stepped: the final snapshot's tick count and outcome are the
+// summary's, not those of the last decimated snapshot before the trip.
+func TestTapLastSnapshotOnATrip(t *testing.T) {
+	cfg, run := shortRun(t, 400)
+	cfg.Watchdog = 300 * time.Millisecond
+	cfg.pressure = quietHost // a silent firmware on a quiet host: the verdict must not depend on this host's load
+	tap := NewTap(0.05, false)
+	rd := tap.NewReader()
+	cfg.Tap = tap
+	// Silent from state 138 on: the last decimated snapshot (one per 50
+	// ticks) is at tick 100, the trip comes at tick 137.
+	res, _, _ := run(cfg, hooked(func(_ bridges.Conn, seq uint32, _ *protocol.Command) bool { return seq < 138 }, nil))
+	if res.Summary.Outcome != record.Tripped {
+		t.Fatalf("outcome %s (%s), want a watchdog trip", res.Summary.Outcome, res.Summary.Reason)
+	}
+	var snap Snapshot
+	if ok, _ := rd.Latest(&snap); !ok {
+		t.Fatal("the reader has no snapshot")
+	}
+	if snap.Ticks != uint64(res.Summary.Ticks) || snap.Outcome != res.Summary.Outcome {
+		t.Errorf("last snapshot: %d ticks, outcome %q; summary: %d ticks, outcome %q", snap.Ticks, snap.Outcome, res.Summary.Ticks, res.Summary.Outcome)
+	}
+	if res.Summary.Ticks%50 == 0 {
+		t.Fatalf("the trip came at tick %d, a snapshot tick anyway: the test proves nothing", res.Summary.Ticks)
 	}
 }
