@@ -82,7 +82,8 @@ type Watcher struct {
 }
 
 // Watch connects to the broker as monitor.<name> and subscribes to every
-// rig's status, alarm and telemetry topics.
+// rig's status, alarm and telemetry topics; it returns once the broker has
+// acknowledged the subscriptions, so nothing published after it is missed.
 func Watch(cfg Config) (*Watcher, error) {
 	if cfg.Root == "" {
 		cfg.Root = topics.DefaultRoot
@@ -104,6 +105,10 @@ func Watch(cfg Config) (*Watcher, error) {
 		return nil, err
 	}
 	w := &Watcher{cfg: cfg, rigs: map[string]*Rig{}}
+	// Watch returns once the broker has acknowledged the subscriptions, so
+	// a rig that publishes after it (a telemetry document is not retained)
+	// is seen.
+	subscribed := make(chan error, 1)
 	filters := map[string]byte{
 		cfg.Root + "/+/" + string(topics.Status):    topics.Status.QoS(),
 		cfg.Root + "/+/" + string(topics.Alarm):     topics.Alarm.QoS(),
@@ -116,7 +121,14 @@ func Watch(cfg Config) (*Watcher, error) {
 		SetOnConnectHandler(func(c paho.Client) {
 			// A clean session forgets subscriptions: subscribe on every
 			// (re)connection. The retained statuses come with it.
-			c.SubscribeMultiple(filters, w.message)
+			tok := c.SubscribeMultiple(filters, w.message)
+			go func() { // not in the handler: paho runs it on its own goroutine
+				tok.Wait()
+				select {
+				case subscribed <- tok.Error():
+				default: // a later reconnection: nobody waits
+				}
+			}()
 		})
 	w.client = paho.NewClient(opts)
 	tok := w.client.Connect()
@@ -126,6 +138,16 @@ func Watch(cfg Config) (*Watcher, error) {
 	}
 	if err := tok.Error(); err != nil {
 		return nil, fmt.Errorf("fleet: broker %s refused monitor.%s: %w", cfg.Broker, cfg.Name, err)
+	}
+	select {
+	case err := <-subscribed:
+		if err != nil {
+			w.client.Disconnect(0)
+			return nil, fmt.Errorf("fleet: broker %s refused the subscriptions of monitor.%s: %w", cfg.Broker, cfg.Name, err)
+		}
+	case <-time.After(cfg.ConnectTimeout):
+		w.client.Disconnect(0)
+		return nil, fmt.Errorf("fleet: broker %s did not acknowledge the subscriptions of monitor.%s within %v", cfg.Broker, cfg.Name, cfg.ConnectTimeout)
 	}
 	return w, nil
 }
