@@ -172,14 +172,6 @@ func startGoFirmwareProcess(t *testing.T, ctx context.Context) *goFirmwareProces
 	return f
 }
 
-// oneBoardPtyDefect is why the one-board subtest is skipped by default.
-const oneBoardPtyDefect = "known defect: `gaitrig firmware --link pty` serving run after run to one " +
-	"in-process margin search stops answering in the middle of the third or fourth run " +
-	"(the rig's watchdog trips after about 5 s, the firmware ends with \"serial: send queue full\" " +
-	"and its pty disappears, so the later runs are not measured); with no rig on the line it also ends " +
-	"by itself after about 70 s, its unread greetings filling the pty. Separate `gaitrig run` processes " +
-	"against it pass one after another"
-
 var sessionLine = regexp.MustCompile(`(?m)^reference firmware: run (\d+): (.*)$`)
 
 // sessions returns what the process printed at the end of each session.
@@ -261,11 +253,6 @@ func TestMarginsAgainstFirmwareProcesses(t *testing.T) {
 	t.Logf("built-in: %d runs, at most %d at once", builtin.runs.Load(), builtin.most.Load())
 
 	t.Run("go-firmware-process", func(t *testing.T) {
-		if os.Getenv("GAITRIG_ONE_BOARD_PTY") != "1" {
-			// Known defect, found by this test (see oneBoardPtyDefect):
-			// set GAITRIG_ONE_BOARD_PTY=1 to run it.
-			t.Skip(oneBoardPtyDefect)
-		}
 		fw := startGoFirmwareProcess(t, ctx)
 		c := runCounter{log: t.Logf}
 		got, err := envelopeSearch(t.TempDir(), fw.port, c.run).Search(ctx, sc, envelopeAxes)
@@ -276,8 +263,12 @@ func TestMarginsAgainstFirmwareProcesses(t *testing.T) {
 		if m := c.most.Load(); m != 1 {
 			t.Errorf("one firmware process (one board): %d runs were in flight at once, want 1", m)
 		}
-		// One session per run, each ended by the rig's stop: the
-		// firmware greeted every run afresh. The line for the last run
+		// One session per run, each ended by that run's own stop (a
+		// normal end, or an e-stop where the walker failed): the
+		// firmware greeted every run afresh. A stop lost on the way
+		// (the serial link closed with it still queued) left the board
+		// in the old session: the next run then got no greeting and its
+		// stop said "run aborted by a rig error". The line for the last run
 		// is printed after the rig closes, so wait for it (bounded by
 		// the test's context: it comes at once on a working link).
 		n := c.runs.Load()
@@ -290,7 +281,7 @@ func TestMarginsAgainstFirmwareProcesses(t *testing.T) {
 			t.Errorf("the firmware process served %d sessions for %d runs", len(s), n)
 		}
 		for i, e := range s {
-			if e != "the rig ended the run normally" {
+			if e != "the rig ended the run normally" && !strings.Contains(e, "e-stop") {
 				t.Errorf("session %d ended: %s", i+1, e)
 			}
 		}

@@ -542,6 +542,7 @@ func (c *Conn) Up() bool { return c.up.Load() }
 func (c *Conn) Close() error {
 	var err error
 	c.once.Do(func() {
+		c.flush(closeFlushWait)
 		close(c.closed)
 		if box := c.port.Swap(nil); box != nil {
 			err = box.p.Close()
@@ -549,6 +550,23 @@ func (c *Conn) Close() error {
 		c.up.Store(false)
 	})
 	return err
+}
+
+// closeFlushWait bounds how long Close waits for the frames already queued
+// to be written (our choice: many frames' wire time at the slowest common
+// baud rate, and short enough for a person to not notice).
+const closeFlushWait = time.Second
+
+// flush waits, at most max, until the write loop has written every frame
+// queued so far. A stop queued just before Close must reach the peer: a
+// board that never hears it stays in the session, silent, and the next
+// rig on the same port gets no greeting. A link that is down has nothing
+// to write to and is not waited for.
+func (c *Conn) flush(max time.Duration) {
+	deadline := time.Now().Add(max)
+	for len(c.free) < cap(c.free) && c.up.Load() && time.Now().Before(deadline) {
+		time.Sleep(time.Millisecond)
+	}
 }
 
 var (
