@@ -578,3 +578,33 @@ func TestCloseWhileBusy(t *testing.T) {
 		t.Errorf("second Close: %v", err)
 	}
 }
+
+// TestCloseWritesQueuedFrames: frames queued just before Close, the last a
+// stop, all reach the peer. The rig's side is paced at 9600 baud, so the
+// queue is still being written when Close is called (about 30 ms a frame):
+// a Close that dropped the queue would lose the stop, and a board that never
+// hears it stays in the old session and greets no next rig.
+func TestCloseWritesQueuedFrames(t *testing.T) {
+	p := newPair(t, Config{Baud: 9600, Pace: true})
+	all := messages()
+	var stop protocol.Message
+	for _, m := range all {
+		if m.Type == protocol.TypeStop {
+			stop = m
+		}
+	}
+	queued := []protocol.Message{all[2], all[2], all[2], stop}
+	for i := range queued {
+		if err := p.rig.Send(&queued[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := p.rig.Close(); err != nil {
+		t.Fatal(err)
+	}
+	for i, want := range queued {
+		if got := recvMsg(t, p.fw); !same(got, want) {
+			t.Fatalf("frame %d: got %+v, want %+v", i, got, want)
+		}
+	}
+}
