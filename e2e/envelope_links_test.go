@@ -117,9 +117,8 @@ type goFirmwareProcess struct {
 	done   chan struct{}
 }
 
-// startGoFirmwareProcess builds the gaitrig command and starts `gaitrig
-// firmware --link pty`; it returns once the process has printed its port.
-func startGoFirmwareProcess(t *testing.T, ctx context.Context) *goFirmwareProcess {
+// buildGaitrig builds the gaitrig command into a temporary folder.
+func buildGaitrig(t *testing.T, ctx context.Context) string {
 	t.Helper()
 	gobin := requireTool(t, "go")
 	bin := filepath.Join(t.TempDir(), "gaitrig")
@@ -128,6 +127,14 @@ func startGoFirmwareProcess(t *testing.T, ctx context.Context) *goFirmwareProces
 	if out, err := exec.CommandContext(bctx, gobin, "build", "-o", bin, "gaitrig/cmd/gaitrig").CombinedOutput(); err != nil {
 		t.Fatalf("go build gaitrig: %v\n%s", err, out)
 	}
+	return bin
+}
+
+// startGoFirmwareProcess builds the gaitrig command and starts `gaitrig
+// firmware --link pty`; it returns once the process has printed its port.
+func startGoFirmwareProcess(t *testing.T, ctx context.Context) *goFirmwareProcess {
+	t.Helper()
+	bin := buildGaitrig(t, ctx)
 	// --idle: long enough for the built-in search between this process's
 	// runs; the process is ended by the test in any case.
 	f := &goFirmwareProcess{stdout: &syncBuffer{}, done: make(chan struct{})}
@@ -383,5 +390,57 @@ func TestPreflightAgainstTheCFirmware(t *testing.T) {
 	wantGo := allPass && g.Margins[0].Meets && c.RadiusHigh < g.MaxSpectralRadius
 	if res.Go != allPass || (res.Go && g.Go) != wantGo {
 		t.Errorf("verdict %s, but checks pass %v, margin meets %v, radius high %g vs bound %g", verdict, allPass, g.Margins[0].Meets, c.RadiusHigh, g.MaxSpectralRadius)
+	}
+}
+
+// TestMarginsExitsThreeWhenTheBoardIsGone runs the `gaitrig margins`
+// command against a board that goes away after its first run: the C
+// firmware with --once on one end of a socat-linked pair, the rig on the
+// other by path. The scenario as written is measured (the firmware's one
+// session); then the firmware exits, and every grid point finds the port
+// (socat still holds it) but no greeting within the handshake's 5 s, a run
+// that could not be made. The axis is "not measured" (the host, not the
+// firmware), and the command exits 3. Bounded by count: one walk and six
+// handshakes that time out.
+func TestMarginsExitsThreeWhenTheBoardIsGone(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the command; one walk and a dozen failed opens of about 2 s")
+	}
+	b := buildC(t)
+	socat := requireTool(t, "socat")
+	ctx, cancel := context.WithTimeout(context.Background(), 4*time.Minute)
+	defer cancel()
+	bin := buildGaitrig(t, ctx)
+	fwPath, rigPath := socatPair(t, ctx, socat)
+	fw := startFirmware(t, ctx, b.firmware, fwPath)
+
+	dir := t.TempDir()
+	base, err := os.ReadFile("../scenarios/library/level-demo.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(base), "name: level-demo", "name: level-demo-board-gone", 1) +
+		"watchdog_ms: 2000\nmargins:\n  axes: [added_latency]\n  tolerance: 0.1\n"
+	sc := filepath.Join(dir, "board-gone.yaml")
+	if err := os.WriteFile(sc, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cmd := exec.CommandContext(ctx, bin, "margins", "--json", "--retries", "1", "--link", "serial:"+rigPath, "--out", filepath.Join(dir, "out"), sc)
+	out, err := cmd.Output()
+	code := 0
+	if ee, ok := err.(*exec.ExitError); ok {
+		code = ee.ExitCode()
+	} else if err != nil {
+		t.Fatal(err)
+	}
+	if c := fw.wait(t, 10*time.Second); c != 0 {
+		t.Errorf("the C firmware's one run ended with status %d", c)
+	}
+	t.Logf("gaitrig margins exited %d; %d runs not measured", code, strings.Count(string(out), `"not_measured"`))
+	if code != 3 {
+		t.Errorf("exit code %d, want 3 (an axis not measured, nothing missed)", code)
+	}
+	if !strings.Contains(string(out), `"not_measured"`) {
+		t.Errorf("the JSON names no axis as not measured")
 	}
 }
