@@ -1654,32 +1654,7 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 	}
 	// Each attempt links a fresh socat pair to a fresh firmware process.
 	w := retrytest.UntilValid(t, "the C firmware over socat-linked ptys", func(int) (socatWalk, record.Summary) {
-		dir := t.TempDir()
-		fwPath, rigPath := filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
-		relay := exec.CommandContext(ctx, socat,
-			"pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
-		relayErr := &syncBuffer{}
-		relay.Stderr = relayErr
-		relay.WaitDelay = 2 * time.Second
-		if err := relay.Start(); err != nil {
-			t.Fatalf("starting socat: %v", err)
-		}
-		relayDone := make(chan struct{})
-		go func() { _ = relay.Wait(); close(relayDone) }()
-		t.Cleanup(func() {
-			_ = relay.Process.Kill()
-			<-relayDone
-		})
-		for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
-			_, e1 := os.Stat(fwPath)
-			_, e2 := os.Stat(rigPath)
-			if e1 == nil && e2 == nil {
-				break
-			}
-			if time.Now().After(deadline) {
-				t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
-			}
-		}
+		fwPath, rigPath := socatPair(t, ctx, socat)
 
 		fw := startFirmware(t, ctx, b.firmware, fwPath)
 		sc, o := levelDemo(t, "serial:"+rigPath)
@@ -1712,6 +1687,40 @@ func TestCFirmwareWalksOverSerialPort(t *testing.T) {
 		t.Errorf("level-demo: the C firmware over socat ended after %d ticks in q=%v v=%v, the Go reference in-process after %d ticks in q=%v v=%v",
 			res.Summary.Ticks, res.Final.Q, res.Final.V, goRes.Summary.Ticks, goRes.Final.Q, goRes.Final.V)
 	}
+}
+
+// socatPair links two pseudo-terminals with socat, as a cable links a board
+// to the rig, and returns their paths (symbolic links socat makes, and
+// removes when it ends). socat is killed when the test ends.
+func socatPair(t *testing.T, ctx context.Context, socat string) (fwPath, rigPath string) {
+	t.Helper()
+	dir := t.TempDir()
+	fwPath, rigPath = filepath.Join(dir, "firmware-tty"), filepath.Join(dir, "rig-tty")
+	relay := exec.CommandContext(ctx, socat,
+		"pty,raw,echo=0,link="+fwPath, "pty,raw,echo=0,link="+rigPath)
+	relayErr := &syncBuffer{}
+	relay.Stderr = relayErr
+	relay.WaitDelay = 2 * time.Second
+	if err := relay.Start(); err != nil {
+		t.Fatalf("starting socat: %v", err)
+	}
+	relayDone := make(chan struct{})
+	go func() { _ = relay.Wait(); close(relayDone) }()
+	t.Cleanup(func() {
+		_ = relay.Process.Kill()
+		<-relayDone
+	})
+	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+		_, e1 := os.Stat(fwPath)
+		_, e2 := os.Stat(rigPath)
+		if e1 == nil && e2 == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+		}
+	}
+	return fwPath, rigPath
 }
 
 // BenchmarkCFirmwareRoundTrip measures the state-to-command round trip

@@ -160,7 +160,7 @@ func TestServeFirmwareOverPty(t *testing.T) {
 	select {
 	case err := <-served:
 		// serial.Conn.Close writes the rig's final stop before it closes
-		// the port, for at most a bounded time (bridges/serial closeDrain):
+		// the port, for at most a bounded time (bridges/serial closeFlushWait):
 		// a host that starves the writer past it loses the stop, and the
 		// firmware then ends on its idle timeout instead. Either end is
 		// accepted here; anything else is not.

@@ -546,23 +546,14 @@ func (c *Conn) Events() <-chan bridges.LinkEvent { return c.events }
 // Up reports whether the port is currently open.
 func (c *Conn) Up() bool { return c.up.Load() }
 
-// closeDrain bounds how long Close waits for frames already queued to be
-// written: long enough for a rig's last stop to leave on a loaded host,
-// short enough that a peer that stopped reading does not hold Close.
-const closeDrain = 250 * time.Millisecond
-
-// Close writes what Send has already queued (for at most closeDrain, so
-// the rig's last stop is not lost when the port closes right after it),
+// Close writes what Send has already queued (for at most closeFlushWait,
+// so the rig's last stop is not lost when the port closes right after it),
 // then stops the link and closes the port. It is safe to call more than
 // once; Recv and Send then return bridges.ErrClosed.
 func (c *Conn) Close() error {
-	if c.up.Load() && !c.isClosed() {
-		for end := time.Now().Add(closeDrain); len(c.free) < cap(c.free) && time.Now().Before(end); {
-			time.Sleep(100 * time.Microsecond)
-		}
-	}
 	var err error
 	c.once.Do(func() {
+		c.flush(closeFlushWait)
 		close(c.closed)
 		if box := c.port.Swap(nil); box != nil {
 			err = box.p.Close()
@@ -570,6 +561,23 @@ func (c *Conn) Close() error {
 		c.up.Store(false)
 	})
 	return err
+}
+
+// closeFlushWait bounds how long Close waits for the frames already queued
+// to be written (our choice: many frames' wire time at the slowest common
+// baud rate, and short enough for a person to not notice).
+const closeFlushWait = time.Second
+
+// flush waits, at most max, until the write loop has written every frame
+// queued so far. A stop queued just before Close must reach the peer: a
+// board that never hears it stays in the session, silent, and the next
+// rig on the same port gets no greeting. A link that is down has nothing
+// to write to and is not waited for.
+func (c *Conn) flush(max time.Duration) {
+	deadline := time.Now().Add(max)
+	for len(c.free) < cap(c.free) && c.up.Load() && time.Now().Before(deadline) {
+		time.Sleep(time.Millisecond)
+	}
 }
 
 var (

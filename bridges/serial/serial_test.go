@@ -583,43 +583,32 @@ func TestCloseWhileBusy(t *testing.T) {
 	}
 }
 
-// Close writes what Send already queued: a rig that sends its stop and
-// closes the port at once must not lose the stop. The line is paced at
-// 9600 bit/s, so the frame is still queued when Close is called (before,
-// Close dropped it every time).
+// TestCloseWritesQueuedFrames: frames queued just before Close, the last a
+// stop, all reach the peer. The rig's side is paced at 9600 baud, so the
+// queue is still being written when Close is called (about 30 ms a frame):
+// a Close that dropped the queue would lose the stop, and a board that never
+// hears it stays in the old session and greets no next rig.
 func TestCloseWritesQueuedFrames(t *testing.T) {
-	p, err := NewPty()
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer p.Close()
-	rig, err := Open(Config{Port: p.Path, Baud: 9600, Pace: true})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := p.ReleaseFollower(); err != nil {
-		t.Fatal(err)
-	}
-	fw := NewConn(p.Master, "pty master", Config{})
-	defer fw.Close()
-	stop := protocol.Message{Type: protocol.TypeStop, Seq: 7, Stop: protocol.Stop{Reason: protocol.StopEnd, Text: "run finished"}}
-	if err := rig.Send(&stop); err != nil {
-		t.Fatal(err)
-	}
-	t0 := time.Now()
-	rig.Close()
-	t.Logf("Close took %v", time.Since(t0))
-	var got protocol.Message
-	for {
-		err := fw.Recv(time.Now().Add(5*time.Second), &got)
-		if err != nil {
-			t.Fatalf("the firmware end got no stop: %v", err)
-		}
-		if got.Type == protocol.TypeStop {
-			break
+	p := newPair(t, Config{Baud: 9600, Pace: true})
+	all := messages()
+	var stop protocol.Message
+	for _, m := range all {
+		if m.Type == protocol.TypeStop {
+			stop = m
 		}
 	}
-	if !same(got, stop) {
-		t.Errorf("got %+v, want %+v", got, stop)
+	queued := []protocol.Message{all[2], all[2], all[2], stop}
+	for i := range queued {
+		if err := p.rig.Send(&queued[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := p.rig.Close(); err != nil {
+		t.Fatal(err)
+	}
+	for i, want := range queued {
+		if got := recvMsg(t, p.fw); !same(got, want) {
+			t.Fatalf("frame %d: got %+v, want %+v", i, got, want)
+		}
 	}
 }
