@@ -125,7 +125,9 @@ margin, 3 when nothing missed but an axis was not measured.`, stdout, stderr)
 			if a.NotMonotone {
 				note = " NOT MONOTONE"
 			}
-			if !a.Reached {
+			if a.NotMeasured != "" {
+				note += " not measured"
+			} else if !a.Reached && a.Error == "" {
 				note += fmt.Sprintf(" (passed up to the end of the range, %g)", a.Far)
 			}
 			fmt.Fprintf(stdout, "%-20s %12.4g %-6s %10.3g %s\n", a.Axis, a.Limit, a.Unit, a.Tolerance, note)
