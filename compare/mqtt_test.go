@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"fmt"
+	"gaitrig/internal/mqtttest"
 	"os"
 	"path/filepath"
 	"strings"
@@ -36,24 +37,6 @@ func runOver(t *testing.T, o rig.Options, name string) string {
 	})
 }
 
-// mosquittoAddr gives the address of a real Mosquitto broker: the one .ci/run
-// started (GAITRIG_MOSQUITTO_ADDR), or one this test starts.
-func mosquittoAddr(t *testing.T) string {
-	t.Helper()
-	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
-		return a
-	}
-	addr, stop, err := rig.StartMosquitto()
-	if err != nil {
-		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
-			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
-		}
-		t.Skipf("no Mosquitto broker: %v (install the Debian package mosquitto)", err)
-	}
-	t.Cleanup(stop)
-	return addr
-}
-
 // TestCompareRunsOverMQTT compares lockstep runs whose firmware sat on the
 // other side of an MQTT broker: two over the embedded broker, one in-process
 // with one over the embedded broker, then one over the embedded broker with
@@ -72,7 +55,7 @@ func TestCompareRunsOverMQTT(t *testing.T) {
 		sameRuns(t, runOver(t, rig.Options{Link: "builtin"}, "builtin"), a)
 	})
 	t.Run("embedded and Mosquitto", func(t *testing.T) {
-		addr := mosquittoAddr(t)
+		addr := mqtttest.MosquittoAddr(t)
 		sameRuns(t, a, runOver(t, rig.Options{Link: "mqtt:tcp://" + addr, LocalFirmware: true, Rig: fmt.Sprintf("cmp-m-%d", os.Getpid())}, "mosquitto"))
 	})
 }

@@ -2,8 +2,7 @@ package conformance
 
 import (
 	"context"
-	"os"
-	"os/exec"
+	"gaitrig/internal/mqtttest"
 	"sync"
 	"testing"
 	"time"
@@ -20,23 +19,7 @@ import (
 // firmware must see exactly two sessions: the battery's normal end, then its
 // own refusal of the bad config.
 func TestReferenceFirmwareOverMosquitto(t *testing.T) {
-	addr := os.Getenv("GAITRIG_MOSQUITTO_ADDR")
-	if addr == "" {
-		if _, err := exec.LookPath("mosquitto"); err != nil {
-			if _, e := os.Stat("/usr/sbin/mosquitto"); e != nil {
-				if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
-					t.Fatal("mosquitto is required (GAITRIG_REQUIRE_TOOLS=1) but not installed")
-				}
-				t.Skip("mosquitto not installed; set GAITRIG_REQUIRE_TOOLS=1 to make this a failure")
-			}
-		}
-		a, stop, err := rig.StartMosquitto()
-		if err != nil {
-			t.Fatal(err)
-		}
-		t.Cleanup(stop)
-		addr = a
-	}
+	addr := mqtttest.MosquittoAddr(t)
 	link := "mqtt:tcp://" + addr
 	rigID := "conformance-" + t.Name()
 	var mu sync.Mutex

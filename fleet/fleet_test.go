@@ -4,9 +4,8 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
-	"net"
+	"gaitrig/internal/mqtttest"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -25,49 +24,6 @@ import (
 	"gaitrig/scenarios"
 )
 
-// mosquitto returns the address of a Mosquitto broker on loopback:
-// GAITRIG_MOSQUITTO_ADDR when set, else one started for the test (skipped
-// without Mosquitto unless GAITRIG_REQUIRE_TOOLS=1).
-func mosquitto(t *testing.T) string {
-	t.Helper()
-	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
-		return a
-	}
-	bin, err := exec.LookPath("mosquitto")
-	if err != nil {
-		bin = "/usr/sbin/mosquitto"
-	}
-	l, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	addr := l.Addr().String()
-	l.Close()
-	_, port, _ := net.SplitHostPort(addr)
-	conf := filepath.Join(t.TempDir(), "mosquitto.conf")
-	if err := os.WriteFile(conf, []byte("listener "+port+" 127.0.0.1\nallow_anonymous true\npersistence false\n"), 0o600); err != nil {
-		t.Fatal(err)
-	}
-	cmd := exec.Command(bin, "-c", conf)
-	if err := cmd.Start(); err != nil {
-		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
-			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
-		}
-		t.Skipf("no Mosquitto: %v", err)
-	}
-	t.Cleanup(func() { cmd.Process.Kill(); cmd.Wait() })
-	for i := 0; ; i++ {
-		if c, err := net.Dial("tcp", addr); err == nil {
-			c.Close()
-			return addr
-		}
-		if i > 250 {
-			t.Fatalf("Mosquitto did not listen on %s", addr)
-		}
-		time.Sleep(20 * time.Millisecond)
-	}
-}
-
 // TestFleetOfTwoRigsOnMosquitto runs two rigs against the built-in
 // firmware over a real Mosquitto, each held to real time, watches them
 // with the fleet page in headless Chromium, and checks the page lists
@@ -80,7 +36,7 @@ func TestFleetOfTwoRigsOnMosquitto(t *testing.T) {
 		}
 		t.Skip("chromium not found")
 	}
-	addr := mosquitto(t)
+	addr := mqtttest.MosquittoAddr(t)
 	broker := "tcp://" + addr
 	w, err := fleet.Watch(fleet.Config{Broker: broker, Name: "test"})
 	if err != nil {

@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"gaitrig/internal/mqtttest"
 	"image/png"
 	"os"
 	"path/filepath"
@@ -156,28 +157,10 @@ func TestLiveViewOverMQTTInChromium(t *testing.T) {
 		liveViewInChromium(t, rig.Options{Link: "embedded", Rig: fmt.Sprintf("view-emb-%d", os.Getpid())}, "live-view-embedded.png")
 	})
 	t.Run("mosquitto", func(t *testing.T) {
-		addr := mosquittoAddr(t)
+		addr := mqtttest.MosquittoAddr(t)
 		// A rig id of this process alone: a shared Mosquitto may serve others.
 		liveViewInChromium(t, rig.Options{Link: "mqtt:tcp://" + addr, LocalFirmware: true, Rig: fmt.Sprintf("view-mosq-%d", os.Getpid())}, "live-view-mosquitto.png")
 	})
-}
-
-// mosquittoAddr gives the address of a real Mosquitto broker: the one .ci/run
-// started (GAITRIG_MOSQUITTO_ADDR), or one this test starts.
-func mosquittoAddr(t *testing.T) string {
-	t.Helper()
-	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
-		return a
-	}
-	addr, stop, err := rig.StartMosquitto()
-	if err != nil {
-		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
-			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
-		}
-		t.Skipf("no Mosquitto broker: %v (install the Debian package mosquitto)", err)
-	}
-	t.Cleanup(stop)
-	return addr
 }
 
 // liveViewInChromium runs level-demo over the link of base with the live

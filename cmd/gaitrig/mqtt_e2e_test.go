@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"gaitrig/internal/mqtttest"
 	"net"
 	"os"
 	"os/exec"
@@ -13,34 +14,15 @@ import (
 	"time"
 
 	"gaitrig/record"
-	"gaitrig/rig"
 	"gaitrig/scenarios"
 )
-
-// mosquittoAddr gives the address of a real Mosquitto broker: the one .ci/run
-// started (GAITRIG_MOSQUITTO_ADDR), or one this test starts.
-func mosquittoAddr(t *testing.T) string {
-	t.Helper()
-	if a := os.Getenv("GAITRIG_MOSQUITTO_ADDR"); a != "" {
-		return a
-	}
-	addr, stop, err := rig.StartMosquitto()
-	if err != nil {
-		if os.Getenv("GAITRIG_REQUIRE_TOOLS") == "1" {
-			t.Fatalf("Mosquitto is required (GAITRIG_REQUIRE_TOOLS=1): %v", err)
-		}
-		t.Skipf("no Mosquitto broker: %v (install the Debian package mosquitto)", err)
-	}
-	t.Cleanup(stop)
-	return addr
-}
 
 // TestRunOverMosquittoWithFirmwareProcessSide runs the rig and the reference
 // firmware as two clients of a real Mosquitto broker, exactly as a bench
 // with controller code on another machine would, and watches the run's
 // alarm topic with Mosquitto's own mosquitto_sub as an outside client.
 func TestRunOverMosquittoWithFirmwareProcessSide(t *testing.T) {
-	addr := mosquittoAddr(t)
+	addr := mqtttest.MosquittoAddr(t)
 	url := "tcp://" + addr
 	rig := "cmdtest" + strings.ReplaceAll(time.Now().Format("150405.000"), ".", "")
 
