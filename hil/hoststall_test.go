@@ -402,3 +402,54 @@ func TestLockstepStallBetweenWaitsIsTheRigs(t *testing.T) {
 		t.Errorf("host stall %g s counted, want at least the 0.09 s planted", sum.HostStallS)
 	}
 }
+
+// After one slow answer the loop watches the host's pressure from the
+// start of the next watchEarlyTicks exchanges, and then no more: fast
+// answers do not start the count again (each early watch costs a system
+// call on a tick of a quiet run).
+func TestEarlyWatchEndsAfterFastAnswers(t *testing.T) {
+	m, s, cfg := timedDemo(t, 2.5) // 2500 ticks: one slow answer, then 2400 fast
+	cfg.pressure = quietHost
+	// An answer is slow past min(resend, watchdog/4) = 2 s here: one
+	// delayed on purpose by more is slow on any host, and no other answer
+	// is, however busy the host (the test does not depend on its load).
+	cfg.Resend, cfg.Watchdog = 2*time.Second, 10*time.Second
+	rigEnd, fwEnd := inprocPair()
+	defer rigEnd.Close()
+	r, err := newRunner(cfg, m, s, rigEnd, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	done := make(chan error, 1)
+	go func() {
+		// The reference firmware, its answer to state 100 slow.
+		done <- referenceFirmware(&slowAnswer{Conn: fwEnd, seq: 100, delay: r.cfg.Resend + 100*time.Millisecond})
+	}()
+	res, err := r.run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	fwEnd.Close()
+	<-done
+	if res.Summary.Ticks < 2500 {
+		t.Fatalf("run ended %s after %d ticks (%s)", res.Summary.Outcome, res.Summary.Ticks, res.Summary.Reason)
+	}
+	t.Logf("resend %v, watchdog %v, stalls %+v", r.cfg.Resend, r.cfg.Watchdog, r.stalls)
+	if r.stalls.watchEarly != 0 {
+		t.Errorf("%d early watches still to come after 2400 fast answers: a slow answer's count never ran out", r.stalls.watchEarly)
+	}
+}
+
+// slowAnswer delays the firmware's command answering one state.
+type slowAnswer struct {
+	bridges.Conn
+	seq   uint32
+	delay time.Duration
+}
+
+func (c *slowAnswer) Send(m *protocol.Message) error {
+	if m.Type == protocol.TypeCommand && m.Seq == c.seq {
+		time.Sleep(c.delay)
+	}
+	return c.Conn.Send(m)
+}

@@ -109,11 +109,13 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	// start while the host has recently been slow: a reading costs a system
 	// call, too much for every tick of a quiet run, and pressure before the
 	// first reading cannot be credited.
-	watchAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
+	slowAt := start.Add(min(r.cfg.Resend, r.cfg.Watchdog/4))
+	watchAt := slowAt
 	if r.stalls.watchEarly > 0 {
 		r.stalls.watchEarly--
 		watchAt = start
 	}
+	slow := false // this answer is slow: the next watchEarlyTicks watch early
 	for !r.end.set() {
 		if r.aborted(ctx) {
 			return false
@@ -121,6 +123,13 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		now := step()
 		if !busy.tried && !now.Before(watchAt) {
 			busy.start(r.pressure)
+		}
+		if !slow && !now.Before(slowAt) {
+			// Only a slow answer starts the count again; an exchange that
+			// watched early because of an earlier one does not, or one slow
+			// answer would cost a reading on every tick for the rest of
+			// the run.
+			slow = true
 			r.stalls.watchEarly = watchEarlyTicks
 		}
 		// Past the watchdog, read what is already waiting, without
