@@ -240,23 +240,36 @@ func (q *commandRing) put(c *heldCommand) {
 // was sent (seq ≤ maxSeq) is copied to out; the others are superseded and
 // only counted, so their round trips stay out of the latency figures (a
 // stale answer to a resent or older state is not how long the firmware
-// takes to answer the state that was applied). It returns how many were taken (those pushed out since the last
-// call included) and whether out was set; a command for a sequence number
-// never sent is garbage and only counted.
+// takes to answer the state that was applied). It returns how many were
+// taken (those pushed out since the last call included) and whether out
+// was set; a command for a sequence number never sent is garbage and only
+// counted.
+//
+// A knee-unlock request (protocol section 3.4.1) is an event, not a level:
+// the firmware sends it once. The unlock bits of the superseded commands
+// are therefore carried into out, so a request is not lost because a
+// newer command came due in the same tick.
 func (q *commandRing) takeDue(now int64, maxSeq uint32, out *heldCommand) (taken int, ok bool) {
 	taken, q.lost = q.lost, 0
+	var unlock uint8
 	for q.n > 0 {
 		it := &q.items[q.head]
 		if it.release > now {
 			break
 		}
-		if it.seq <= maxSeq && (!ok || it.seq > out.seq) {
-			*out = *it
-			ok = true
+		if it.seq <= maxSeq {
+			unlock |= it.cmd.KneeUnlock
+			if !ok || it.seq > out.seq {
+				*out = *it
+				ok = true
+			}
 		}
 		taken++
 		q.head = (q.head + 1) % len(q.items)
 		q.n--
+	}
+	if ok {
+		out.cmd.KneeUnlock |= unlock
 	}
 	return taken, ok
 }

@@ -256,3 +256,22 @@ func TestWallclockLongLatencyKeepsCommands(t *testing.T) {
 	}
 	t.Logf("%d of %d ticks had a fresh command; outcome %s; %d late ticks; link %+v", fresh, len(ticks), res.Summary.Outcome, res.Summary.LateTicks, res.Link)
 }
+
+// A knee-unlock request in a command that a newer one supersedes in the
+// same tick is not lost: the firmware sends it once (protocol section
+// 3.4.1), so the applied command carries the bits of every command it
+// superseded.
+func TestSupersededCommandKeepsItsKneeUnlock(t *testing.T) {
+	var b mailbox
+	b.put(&heldCommand{seq: 5, cmd: protocol.Command{KneeUnlock: protocol.UnlockKneeLeft}})
+	b.put(&heldCommand{seq: 6})
+	b.put(&heldCommand{seq: 9}) // a state never sent: garbage, its bits ignored
+	b.ring.items[(b.ring.head+2)%len(b.ring.items)].cmd.KneeUnlock = protocol.UnlockKneeRight
+	var out heldCommand
+	if _, ok := b.takeDue(0, 6, &out); !ok || out.seq != 6 {
+		t.Fatalf("applied seq %d (ok %v), want 6", out.seq, ok)
+	}
+	if out.cmd.KneeUnlock != protocol.UnlockKneeLeft {
+		t.Errorf("knee unlock bits %02b, want the left knee's from the superseded command 5 only", out.cmd.KneeUnlock)
+	}
+}
