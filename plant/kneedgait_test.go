@@ -200,18 +200,19 @@ type kneedGaitFixture struct {
 // equations in SymPy, integrates the three-link and two-link phases with
 // SciPy's DOP853 (rtol = atol = 1e-12), applies the knee-strike and
 // heel-strike impulses by its own constraint solve, and finds the fixed
-// point by Newton's method. Two walkers: kneedPair's (arc feet) and the
-// point-foot kneed walker of the later literature. The Go gait finder
-// starts from its own guess, not from SciPy's answer.
+// point by Newton's method, for kneedPair's walker (arc feet). The Go gait
+// finder starts from its own guess, not from SciPy's answer. No published
+// kneed fixed point is compared: the one we could recall comes from a
+// source the project does not use for its checks, so this independent
+// computation is the check.
 func TestKneedGaitMatchesSciPy(t *testing.T) {
 	var fx kneedGaitFixture
 	readFixture(t, "kneed_gait_scipy.json", &fx)
-	if len(fx.Cases) != 2 {
-		t.Fatalf("fixture has %d cases, want 2", len(fx.Cases))
+	if len(fx.Cases) != 1 {
+		t.Fatalf("fixture has %d cases, want 1", len(fx.Cases))
 	}
 	guesses := map[string][4]float64{
-		"passive_kneed":    {0.340277, -0.452020, -1.304869, -0.682743}, // the compass gait of passive_step_scipy.json
-		"point_foot_kneed": {0.1877, -0.2884, -1.1014, -0.0399},         // the published fixed point, from memory
+		"passive_kneed": {0.340277, -0.452020, -1.304869, -0.682743}, // the compass gait of passive_step_scipy.json
 	}
 	for _, c := range fx.Cases {
 		t.Run(c.Name, func(t *testing.T) {
@@ -286,61 +287,6 @@ func TestKneedGaitMatchesSciPy(t *testing.T) {
 				}
 			}
 		})
-	}
-}
-
-// The point-foot kneed walker against its published fixed point, from
-// memory: Hsu Chen 2007 ("Passive dynamic walking with knees: a point
-// foot model", MIT thesis; the Garcia-type kneed model with point masses:
-// hip 0.5 kg, thigh 0.5 kg 0.325 m below the hip, shank 0.05 kg 0.125 m
-// below the knee, 0.5 m links, slope 0.0504 rad) gives just after heel
-// strike q = (0.1877, −0.2884, −0.2884) and q̇ = (−1.1014, −0.0399,
-// −0.0399) (stance leg, swing thigh, swing shank). Our gait, and SciPy's
-// (kneed_gait_scipy.json, to 1e-10), is (0.18819, −0.28899) and
-// (−1.10959, −0.05715): the angles agree to 5e-4 rad and the stance rate to
-// 0.8 %; the swing rate differs by 0.017 rad/s. We explain rather than
-// tune: published kneed fixed points were computed with fixed-step
-// integration whose events fall on step boundaries, and the swing rate
-// just after the heel strike comes out of the impulse map as the smallest
-// of the four numbers, so the same absolute error is largest there
-// relative to it; the recalled digits may also be off. Two independent
-// integrations of our model agree to 1e-10 (TestKneedGaitMatchesSciPy), so
-// the difference lies with the published computation or our memory, not
-// with our integrator. The tolerances are loose accordingly: 2e-3 rad, 2 %
-// on the stance rate, 0.03 rad/s on the swing rate.
-func TestPointFootKneedWalkerFromMemory(t *testing.T) {
-	const gamma = 0.0504
-	leg := Leg{Length: 0.5, Mass: 0.5, COMDist: 0.325,
-		Shank: &Shank{Length: 0.5, Mass: 0.05, COMDist: 0.125, Latch: true}}
-	p := Params{HipMass: 0.5, Gravity: 9.81, Legs: [2]Leg{leg, leg},
-		Terrain: Terrain{Segments: []Segment{{Length: 1, Slope: -gamma, MuStatic: 1, MuKinetic: 1}}}}
-	m, err := New(p, Options{IgnoreScuff: true})
-	if err != nil {
-		t.Fatal(err)
-	}
-	published := [4]float64{0.1877, -0.2884, -1.1014, -0.0399}
-	// Start Newton away from the published point so that the comparison
-	// is not the guess coming back.
-	guess, err := m.Stand(0, 0, [2]float64{0.2, -0.3}, 0, -1.2, -0.1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	g, err := FindGait(m, nil, guess, GaitOptions{})
-	if err != nil || !g.Found {
-		t.Fatalf("FindGait: found %v, %v", g.Found, err)
-	}
-	z := [4]float64{g.Reduced[0], g.Reduced[1], g.Reduced[4], g.Reduced[5]}
-	t.Logf("ours %.5f, published (from memory) %.4f; period %.4f s, eigenvalues %.4f", z, published, g.Period, g.Eigenvalues)
-	for i := 0; i < 2; i++ {
-		if d := math.Abs(z[i] - published[i]); d > 2e-3 {
-			t.Errorf("angle %d: %.5f, published %.4f", i, z[i], published[i])
-		}
-	}
-	if d := math.Abs(z[2] - published[2]); d > 0.02*math.Abs(published[2]) {
-		t.Errorf("stance rate %.5f, published %.4f", z[2], published[2])
-	}
-	if d := math.Abs(z[3] - published[3]); d > 0.03 {
-		t.Errorf("swing rate %.5f, published %.4f", z[3], published[3])
 	}
 }
 

@@ -48,23 +48,17 @@ from kneed_sympy import derive  # noqa: E402
 OUT = os.path.join(HERE, "kneed_gait_scipy.json")
 RTOL = ATOL = 1e-12
 
-# Two walkers: one of our own design (the thigh and shank of a 3 kg leg of
-# 0.9 m, arc feet, 0.04 rad downhill), and the point-foot kneed walker of
-# the later literature with parameters recalled from memory (hip 0.5 kg,
-# thigh 0.5 kg with its centre of mass 0.325 m below the hip, shank 0.05 kg
-# with its centre 0.125 m below the knee, both links 0.5 m, point masses,
-# point feet, 0.0504 rad downhill; Hsu Chen 2007, "Passive dynamic walking
-# with knees: a point foot model", MIT thesis; Garcia-type kneed model).
+# One walker of our own design: the thigh and shank of a 3 kg leg of
+# 0.9 m, arc feet, 0.04 rad downhill. (No published kneed walker is
+# compared: the one fixed point we could recall comes from a source the
+# project does not use for its checks; this independent computation is
+# the check.)
 # The guesses are starting points for Newton only.
 OURS = dict(length=0.45, mass=1.8, com_dist=0.2, inertia=0.03, foot_radius=0.27, arc_offset=0.01,
             shank=dict(length=0.45, mass=1.2, com_dist=0.25, inertia=0.02, actuated=False))
-POINT = dict(length=0.5, mass=0.5, com_dist=0.325, inertia=0.0, foot_radius=0.0, arc_offset=0.0,
-             shank=dict(length=0.5, mass=0.05, com_dist=0.125, inertia=0.0, actuated=False))
 CASES = [
     ({"name": "passive_kneed", "hip_mass": 10.0, "gravity": 9.81, "slope": -0.04, "torso": None,
       "legs": [dict(OURS), dict(OURS)]}, [0.3356, -0.4474, -1.2978, -0.7425]),
-    ({"name": "point_foot_kneed", "hip_mass": 0.5, "gravity": 9.81, "slope": -0.0504, "torso": None,
-      "legs": [dict(POINT), dict(POINT)]}, [0.1877, -0.2884, -1.1014, -0.0399]),
 ]
 SHANK = [4, 5]
 F = {}
