@@ -281,7 +281,7 @@ func tickFieldsLayout(numQ int, joints []string, lay linkLayout) table[Tick] {
 		if sh < 0 || sh >= numQ {
 			continue
 		}
-		c.real("theta_knee_"+f+"_rad", "rad", "", "knee angle of the "+f+" leg, θ_shank − θ_thigh from the plant state: 0 straight (at the stop), negative flexed (derived from the theta columns)",
+		c.real("theta_knee_"+f+"_rad", "rad", "", "knee angle of the "+f+" leg, θ_shank − θ_thigh from the plant state: 0 straight, negative flexed; the stop is at the manifest's shank stop_rad, 0 unless set (derived from the theta columns)",
 			func(t *Tick) float64 { return t.Q[sh] - t.Q[th] }, nil)
 		c.real("omega_knee_"+f+"_radps", "rad/s", "", "knee rate of the "+f+" leg, ω_shank − ω_thigh (derived from the omega columns)",
 			func(t *Tick) float64 { return t.V[sh] - t.V[th] }, nil)

@@ -32,6 +32,11 @@ type KneeGains struct {
 	// Hold is the extension torque on the stance knee, N·m (≥ 0 pushes the
 	// knee into its stop).
 	Hold float64
+	// Stop is the knee angle of the walker's knee stop, rad (the scenario's
+	// knee_stop_rad; 0 straight): late in swing the knee is driven to it,
+	// so it strikes the stop and latches. The firmware cannot read it from
+	// the plant; set it as the walker is built.
+	Stop float64
 }
 
 // DefaultKneeGains are tuned for the kneed demo walker (KneedDemoParams,
@@ -41,7 +46,7 @@ type KneeGains struct {
 //
 //	Flex       -0.9  rad        ExtendLead  0.12  rad
 //	SwingKp     30   N·m/rad    SwingKd     2     N·m·s/rad
-//	Hold        5    N·m
+//	Hold        5    N·m        Stop        0     rad
 func DefaultKneeGains() KneeGains {
 	return KneeGains{Flex: -0.9, ExtendLead: 0.12, SwingKp: 30, SwingKd: 2, Hold: 5}
 }
@@ -53,6 +58,7 @@ var kneeSettings = map[string]func(g *Gains) *float64{
 	"knee_swing_kp":        func(g *Gains) *float64 { return &g.Knee.SwingKp },
 	"knee_swing_kd":        func(g *Gains) *float64 { return &g.Knee.SwingKd },
 	"knee_hold_nm":         func(g *Gains) *float64 { return &g.Knee.Hold },
+	"knee_stop_rad":        func(g *Gains) *float64 { return &g.Knee.Stop },
 }
 
 func init() {
@@ -70,7 +76,7 @@ func init() {
 //	φ* = clamp(StepAngle + StepSpeedGain·e, StepMin, StepMax)   as the hip law
 //	κ_j = KneeAngle[j], κ̇_j = KneeRate[j]                       knee angle and rate
 //	swing target κ* = Knee.Flex   while θ_sw < φ* − Knee.ExtendLead
-//	                  0           after
+//	                  Knee.Stop   after (the stop, 0 straight)
 //	τ_sw = Knee.SwingKp·(κ* − κ_sw) − Knee.SwingKd·κ̇_sw
 //	τ_st = Knee.Hold
 //	both clipped to ±TorqueLimit
@@ -84,7 +90,7 @@ func kneeTorques(g *Gains, r *Reading, hips, st int, e, thSw float64, tau []floa
 	k := &g.Knee
 	sw := 1 - st
 	phi := clamp(g.StepAngle+g.StepSpeedGain*e, g.StepMin, g.StepMax)
-	target := 0.0
+	target := k.Stop
 	if thSw < phi-k.ExtendLead {
 		target = k.Flex
 	}

@@ -1,6 +1,7 @@
 package reference
 
 import (
+	"math"
 	"testing"
 
 	"gaitrig/bridges/protocol"
@@ -189,11 +190,35 @@ func TestServeKnees(t *testing.T) {
 }
 
 func TestKneeSettings(t *testing.T) {
-	g, err := GainsFromSettings(map[string]float64{"knee_flex_rad": -0.5, "knee_extend_lead_rad": 0.2, "knee_swing_kp": 10, "knee_swing_kd": 1, "knee_hold_nm": 2})
+	g, err := GainsFromSettings(map[string]float64{"knee_flex_rad": -0.5, "knee_extend_lead_rad": 0.2, "knee_swing_kp": 10, "knee_swing_kd": 1, "knee_hold_nm": 2, "knee_stop_rad": -0.05})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if want := (KneeGains{Flex: -0.5, ExtendLead: 0.2, SwingKp: 10, SwingKd: 1, Hold: 2}); g.Knee != want {
+	if want := (KneeGains{Flex: -0.5, ExtendLead: 0.2, SwingKp: 10, SwingKd: 1, Hold: 2, Stop: -0.05}); g.Knee != want {
 		t.Errorf("knee gains %+v, want %+v", g.Knee, want)
+	}
+}
+
+// Late in swing the swing knee is driven to the walker's stop (Knee.Stop,
+// the scenario's knee_stop_rad), not to a straight knee: at the stop and
+// at rest it gets no torque, short of it a torque toward it.
+func TestSwingKneeAimsAtTheStop(t *testing.T) {
+	g := DefaultGains()
+	// Stance left, the swing (right) thigh well forward: late swing.
+	r := Reading{Joints: 4, Knees: 2, Pitch: -0.1, Contacts: 1}
+	r.Angle = [2]float64{0.1, 0.7}
+	for _, stop := range []float64{0, -0.08, 0.05} {
+		g.Knee.Stop = stop
+		tau := make([]float64, 4)
+		r.KneeAngle = [2]float64{0, stop}
+		Law(&g, &r, tau)
+		if tau[3] != 0 {
+			t.Errorf("stop %g: swing knee at its stop gets %g N·m, want 0", stop, tau[3])
+		}
+		r.KneeAngle[1] = stop - 0.1
+		Law(&g, &r, tau)
+		if want := g.Knee.SwingKp * 0.1; math.Abs(tau[3]-want) > 1e-9 {
+			t.Errorf("stop %g: swing knee 0.1 rad short of it gets %g N·m, want %g", stop, tau[3], want)
+		}
 	}
 }
