@@ -72,6 +72,9 @@ func TestDemoWalksOverTheEmbeddedBroker(t *testing.T) {
 			t.Errorf("demo output lacks %q:\n%s", want, out)
 		}
 	}
+	if n := strings.Count(out+errOut, "link: "); n != 1 {
+		t.Errorf("the demo names its link %d times on stdout and stderr together, want once:\n%s%s", n, out, errOut)
+	}
 	if !strings.Contains(errOut, "mqtt") && !strings.Contains(out, "mqtt") {
 		// The link name is in the manifest either way; the log line says it too.
 		m, _ := os.ReadFile(filepath.Join(dir, "manifest.json"))

@@ -241,7 +241,7 @@ per step, then the verdict and the path of the run folder with its report.`, std
 	if err != nil {
 		return c.fail(err)
 	}
-	o := rig.Options{Link: "embedded", OutRoot: *out, Report: true, JUnit: true, Log: lineLogger(stderr)}
+	o := rig.Options{Link: "embedded", OutRoot: *out, Report: true, JUnit: true, Log: runLogger(stderr, c.jsonMode())}
 	if !*quiet {
 		o.OnStep = stepPrinter(c.progress())
 	}
