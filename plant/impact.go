@@ -127,17 +127,7 @@ func (m *Model) impact(s *State, i int, heel bool, ev *eval, r *TickResult) bool
 	}
 	s.V = v
 	ke1 := m.kineticOnSurface(s, &s.V, &ev.geom[i])
-	stop := false
-	for f := 0; f < m.nFeet; f++ {
-		if slipSign[f] == 0 {
-			continue
-		}
-		mu := m.terrain[ev.geom[f].sp.seg].muS
-		r.add(Event{Kind: ImpactSlip, T: s.T, Foot: f, Segment: ev.geom[f].sp.seg, Value: demanded[f], Limit: mu})
-		if !m.o.ContinueOnSlip {
-			stop = true
-		}
-	}
+	stop := m.impactSlips(s, ev, &slipSign, &demanded, r)
 	kind := Touchdown
 	if heel {
 		kind = HeelStrike
@@ -299,7 +289,16 @@ func (m *Model) kneeStrike(s *State, i int, ev *eval, r *TickResult) bool {
 	}
 	ke1, _ := m.Energy(s)
 	r.add(Event{Kind: KneeStrike, T: s.T, Foot: i, Segment: -1, Value: closing, EnergyLost: ke0 - ke1})
-	stop := false
+	stop := m.impactSlips(s, ev, &slipSign, &demanded, r)
+	return stop
+}
+
+// impactSlips reports an impact_slip for each foot an impulse left on the
+// friction cone's boundary (slipSign ≠ 0), with the friction the no-slip
+// impulse would have demanded, |Λ_t|/Λ_n, against μ_s; it says whether the
+// run stops there (unless Options.ContinueOnSlip). Heel strike and knee
+// strike report alike.
+func (m *Model) impactSlips(s *State, ev *eval, slipSign, demanded *[2]float64, r *TickResult) (stop bool) {
 	for f := 0; f < m.nFeet; f++ {
 		if slipSign[f] == 0 {
 			continue
