@@ -258,3 +258,24 @@ func BenchmarkTickKneed(b *testing.B) {
 		}
 	}
 }
+
+// A passive step of a walker without knees allocates only its result's
+// event list (and its growth), not a copy of the evaluation per accepted
+// step: the map runs thousands of times in a gait search or a margin
+// sweep. It allocated 24 times per map when every sample was copied for
+// an observer that only a kneed walker needs.
+func TestStepMapAllocations(t *testing.T) {
+	var fx scipyFixture
+	readFixture(t, "passive_step_scipy.json", &fx)
+	m := fixtureModel(t, &fx)
+	fp := fx.FixedPoint
+	s := fixtureState(m, 0, fp.Q, fp.V, fp.Stance)
+	allocs := testing.AllocsPerRun(20, func() {
+		if _, err := m.StepMap(s, nil, GaitOptions{}); err != nil {
+			t.Fatal(err)
+		}
+	})
+	if allocs > 6 {
+		t.Errorf("%.0f allocations per step map, want at most 6 (the event list)", allocs)
+	}
+}

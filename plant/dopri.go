@@ -119,6 +119,7 @@ type stepStats struct {
 	minNormal    float64
 	samples      int
 	onSample     func(s *State, ev *eval) // optional observer of accepted steps
+	scratch      *eval                    // the observer's copy, made once per run
 }
 
 func (st *stepStats) sample(m *Model, s *State, ev *eval) {
@@ -140,9 +141,13 @@ func (st *stepStats) sample(m *Model, s *State, ev *eval) {
 	if st.onSample != nil {
 		// The observer gets a copy: what a function value is handed
 		// escapes, and the integrator's own evaluation must not (a run
-		// without an observer then does not allocate for it).
-		e := *ev
-		st.onSample(s, &e)
+		// without an observer then does not allocate for it). One copy
+		// serves every sample of the run.
+		if st.scratch == nil {
+			st.scratch = new(eval)
+		}
+		*st.scratch = *ev
+		st.onSample(s, st.scratch)
 	}
 }
 

@@ -116,37 +116,43 @@ func (m *Model) stepMap(s State, policy Policy, o GaitOptions, observe func(*Sta
 	var prev State
 	sampled := false
 	kneeRatio := 0.0
-	st := stepStats{onSample: func(s *State, ev *eval) {
-		// A knee strike shows as two samples at the same instant, the
-		// swing knee free in the first and locked in the second.
-		if sampled && prev.T == s.T && s.Mode[s.Stance] != Free {
-			for i := 0; i < m.nFeet; i++ {
-				if m.kneeOf[i] >= 0 && !prev.KneeLocked[i] && s.KneeLocked[i] {
-					kneeRatio = math.Max(kneeRatio, m.groundImpulseRatio(&prev, s, &ev.geom[s.Stance]))
+	var st stepStats
+	// Per sample: the knees' figures and the caller's observer. A walker
+	// without knees and a caller without an observer need none, and then
+	// the map allocates nothing per sample.
+	if m.nKnees > 0 || observe != nil {
+		st.onSample = func(s *State, ev *eval) {
+			// A knee strike shows as two samples at the same instant, the
+			// swing knee free in the first and locked in the second.
+			if sampled && prev.T == s.T && s.Mode[s.Stance] != Free {
+				for i := 0; i < m.nFeet; i++ {
+					if m.kneeOf[i] >= 0 && !prev.KneeLocked[i] && s.KneeLocked[i] {
+						kneeRatio = math.Max(kneeRatio, m.groundImpulseRatio(&prev, s, &ev.geom[s.Stance]))
+					}
 				}
 			}
-		}
-		prev, sampled = *s, true
-		// A swing knee held by its stop alone whose stop would have to pull
-		// is released at this very instant (at the section just after a
-		// heel strike, the trailing knee): the sample before its release
-		// is not a state the walker is in, and the stance knee's torque
-		// jumps when the swing knee goes free, so it is left out.
-		pending := false
-		for i := 0; i < m.nFeet; i++ {
-			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && !s.KneeLatched[i] && s.Mode[i] == Free && ev.knee[i] < 0 {
-				pending = true
+			prev, sampled = *s, true
+			// A swing knee held by its stop alone whose stop would have to pull
+			// is released at this very instant (at the section just after a
+			// heel strike, the trailing knee): the sample before its release
+			// is not a state the walker is in, and the stance knee's torque
+			// jumps when the swing knee goes free, so it is left out.
+			pending := false
+			for i := 0; i < m.nFeet; i++ {
+				if m.kneeOf[i] >= 0 && s.KneeLocked[i] && !s.KneeLatched[i] && s.Mode[i] == Free && ev.knee[i] < 0 {
+					pending = true
+				}
+			}
+			for i := 0; i < m.nFeet && !pending; i++ {
+				if m.kneeOf[i] >= 0 && s.KneeLocked[i] && s.Mode[i] != Free && (!kneeSeen || ev.knee[i] < minKnee) {
+					kneeSeen, minKnee = true, ev.knee[i]
+				}
+			}
+			if observe != nil {
+				observe(s, ev)
 			}
 		}
-		for i := 0; i < m.nFeet && !pending; i++ {
-			if m.kneeOf[i] >= 0 && s.KneeLocked[i] && s.Mode[i] != Free && (!kneeSeen || ev.knee[i] < minKnee) {
-				kneeSeen, minKnee = true, ev.knee[i]
-			}
-		}
-		if observe != nil {
-			observe(s, ev)
-		}
-	}}
+	}
 	why := m.adaptive(&s, policy, s.T+o.MaxTime, o.Tol, o.Tol, true, &res.Events, &st)
 	switch why {
 	case stopTime:
