@@ -77,14 +77,63 @@ func TestServeDropsAnswersTheLinkCannotTake(t *testing.T) {
 	}
 	cfg := protocol.Message{Type: protocol.TypeConfig}
 	cfg.Config = protocol.Config{TickHz: 1000, Lockstep: true, Joints: 2, WatchdogUS: 50000}
-	write(&cfg)
 	st := protocol.Message{Type: protocol.TypeState}
 	st.State = protocol.State{Joints: 2, Angle: [protocol.MaxJoints]float32{0.1, -0.4}, Contacts: protocol.ContactLeft}
+
+	// The rig's reads: while nothing waits, again() is sent every 100 ms,
+	// as a rig resends (a message may meet a firmware that is not ready,
+	// or the draining backlog), within a generous bound for a broken
+	// firmware.
+	var again func()
+	var sentAt, limit time.Time
+	rd := protocol.NewReader(readerFunc(func(b []byte) (int, error) {
+		for {
+			n, err := unix.Read(rigFD, b)
+			if !errors.Is(err, unix.EAGAIN) {
+				return max(n, 0), err
+			}
+			select {
+			case err := <-done:
+				return 0, fmt.Errorf("Serve returned while the rig waited for an answer: %v", err)
+			default:
+			}
+			if time.Now().After(limit) {
+				return 0, errors.New("no answer within 30 s")
+			}
+			if time.Since(sentAt) > 100*time.Millisecond {
+				again()
+				sentAt = time.Now()
+			}
+			time.Sleep(time.Millisecond)
+		}
+	}))
+	awaitCommand := func(seq uint32) {
+		t.Helper()
+		limit = time.Now().Add(30 * time.Second)
+		var m protocol.Message
+		for {
+			frame, err := rd.Next()
+			if err != nil {
+				t.Fatalf("reading the answer to state %d (%d dropped): %v", seq, dropped.Load(), err)
+			}
+			if protocol.Decode(frame, &m) == nil && m.Type == protocol.TypeCommand && m.Seq == seq {
+				return
+			}
+		}
+	}
+
+	// The session first, as a rig opens it: the config and a first state,
+	// sent again until the state is answered, so the flood below meets a
+	// configured firmware (one that never got the config answers nothing,
+	// and nothing would fill).
+	st.Seq = 1
+	again = func() { write(&cfg); write(&st) }
+	awaitCommand(1)
 
 	// Counting, not timing: states go out until the firmware has dropped
 	// some answers (a bound on the count and a generous one on time keep
 	// a broken firmware from hanging the test).
-	var seq uint32
+	seq := uint32(1)
 	for limit := time.Now().Add(30 * time.Second); dropped.Load() == 0; {
 		select {
 		case err := <-done:
@@ -104,44 +153,12 @@ func TestServeDropsAnswersTheLinkCannotTake(t *testing.T) {
 	t.Logf("%d answers dropped after %d states", dropped.Load(), seq)
 
 	// The rig reads again: everything waiting is drained, and a new state
-	// (as the rig's resend would be) gets its own answer. The state goes
-	// out whenever the rig's end is empty, at most every 100 ms, as the
-	// rig's resend would: a copy may itself meet the draining backlog.
+	// (as the rig's resend would be) gets its own answer.
 	want := seq + 1
 	st.Seq = want
-	var sentAt time.Time
-	limit := time.Now().Add(30 * time.Second)
-	rd := protocol.NewReader(readerFunc(func(b []byte) (int, error) {
-		for {
-			n, err := unix.Read(rigFD, b)
-			if !errors.Is(err, unix.EAGAIN) {
-				return max(n, 0), err
-			}
-			select {
-			case err := <-done:
-				return 0, fmt.Errorf("Serve returned while the rig waited for an answer: %v", err)
-			default:
-			}
-			if time.Now().After(limit) {
-				return 0, errors.New("no answer within 30 s")
-			}
-			if time.Since(sentAt) > 100*time.Millisecond {
-				write(&st)
-				sentAt = time.Now()
-			}
-			time.Sleep(time.Millisecond)
-		}
-	}))
-	var m protocol.Message
-	for {
-		frame, err := rd.Next()
-		if err != nil {
-			t.Fatalf("reading the answer to state %d (%d dropped): %v", want, dropped.Load(), err)
-		}
-		if protocol.Decode(frame, &m) == nil && m.Type == protocol.TypeCommand && m.Seq == want {
-			break
-		}
-	}
+	again = func() { write(&st) }
+	sentAt = time.Time{}
+	awaitCommand(want)
 	stop := protocol.Message{Type: protocol.TypeStop, Seq: want, Stop: protocol.Stop{Reason: protocol.StopEnd}}
 	write(&stop)
 	select {
