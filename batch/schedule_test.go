@@ -43,7 +43,10 @@ func TestSchedulerOrderAndSharing(t *testing.T) {
 			calls := make([]int, len(scs))
 			finished := make([]bool, len(scs))
 			inflight, maxInflight := 0, 0
-			started1 := make(chan struct{})
+			// Jobs 0 and 1 each wait, once started, for the other to start:
+			// with two workers they must be in flight together, in whatever
+			// order a busy host starts them.
+			started := [2]chan struct{}{make(chan struct{}), make(chan struct{})}
 			runner := func(ctx context.Context, sc *scenarios.Scenario, o rig.Options) (rig.Result, error) {
 				i, _ := strconv.Atoi(o.RunDir)
 				mu.Lock()
@@ -54,16 +57,16 @@ func TestSchedulerOrderAndSharing(t *testing.T) {
 					t.Errorf("the wall-clock job ran alongside %d others", inflight-1)
 				}
 				mu.Unlock()
-				if i == 1 {
-					close(started1)
+				if i < 2 {
+					close(started[i])
 				}
-				if i == 0 && jobs > 1 {
+				if i < 2 && jobs > 1 {
 					// A bound so a broken scheduler fails instead of hanging;
 					// the assertion is the event, not the time.
 					select {
-					case <-started1:
+					case <-started[1-i]:
 					case <-time.After(time.Minute):
-						t.Error("job 0 never ran alongside job 1")
+						t.Errorf("job %d never ran alongside job %d", i, 1-i)
 					}
 				}
 				mu.Lock()
