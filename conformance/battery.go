@@ -11,6 +11,7 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
+	"gaitrig/internal/hostload"
 	"gaitrig/record"
 )
 
@@ -45,7 +46,23 @@ const (
 	// a link that closed); a required check that was not run withholds a
 	// passing verdict.
 	NotRun Status = "not_run"
+	// HostStall: no answer came, but the host the battery runs on kept its
+	// CPUs contended for all but less than a watchdog of a long wait
+	// (internal/hostload), so the firmware may never have been run. The
+	// check says nothing about the firmware; it withholds a passing
+	// verdict, and the battery should be run again on a quieter host.
+	HostStall Status = "host_stall"
 )
+
+// failOrHost is the status of a check whose answer a did not come as
+// asked: HostStall when the host, not the firmware, is the likely cause,
+// Fail otherwise.
+func failOrHost(a answer) Status {
+	if a.host {
+		return HostStall
+	}
+	return Fail
+}
 
 // Result is one check's outcome.
 type Result struct {
@@ -53,7 +70,7 @@ type Result struct {
 	What     string  `json:"what"`     // what the firmware must do (Spec.What)
 	Section  string  `json:"section"`  // where docs/protocol.md asks for it (Spec.Section)
 	Required bool    `json:"required"` // the check decides the verdict (Spec.Required)
-	Status   Status  `json:"status"`   // pass, fail, skipped or not_run (Pass, Fail, Skipped, NotRun)
+	Status   Status  `json:"status"`   // pass, fail, skipped, not_run or host_stall (Pass, Fail, Skipped, NotRun, HostStall)
 	Seen     string  `json:"seen"`     // what the battery saw, in words
 	Seconds  float64 `json:"seconds"`  // wall time the check took
 }
@@ -65,6 +82,13 @@ type Options struct {
 	Samples int
 	// Log gets a line per check as it finishes; nil for none.
 	Log func(line string)
+
+	// watchdog and host, set by this package's tests only, replace
+	// Watchdog and the host's CPU pressure (hostload.Open), so a test of a
+	// silent firmware does not depend on the load of the machine running
+	// it, and one of a contended host needs no load.
+	watchdog time.Duration
+	host     *hostload.Pressure
 }
 
 // Report is what Run found.
@@ -128,6 +152,13 @@ func Run(ctx context.Context, link string, dial Dialer, o Options) (Report, erro
 	if o.Samples <= 0 {
 		o.Samples = 1000
 	}
+	if o.watchdog <= 0 {
+		o.watchdog = Watchdog
+	}
+	if o.host == nil {
+		o.host = hostload.Open()
+		defer o.host.Close()
+	}
 	b := &battery{ctx: ctx, o: o, rep: Report{Link: link, Caution: record.Caution}}
 	conn, closeLink, err := dial()
 	if err != nil {
@@ -179,7 +210,7 @@ func (b *battery) finish() {
 
 // firstSession: greeting, config, the state checks and the stop.
 func (b *battery) firstSession(conn bridges.Conn) {
-	s := newSession(conn)
+	s := newSession(conn, b.o.watchdog, b.o.host)
 	b.s = s
 	rest := []string{CheckConfig, CheckDuplicate, CheckEveryState, CheckResent, CheckBadCRC, CheckUnknownType,
 		CheckHeartbeat, CheckBeltPlace, CheckStatusBits, CheckRoundTrip, CheckStopsOnStop}
@@ -237,10 +268,17 @@ func (b *battery) firstSession(conn bridges.Conn) {
 
 	// Every state, and the round trips.
 	start = time.Now()
-	bad, worst := 0, time.Duration(0)
-	var first string
+	bad, hostStalls, worst := 0, 0, time.Duration(0)
+	var first, firstHost string
 	for i := 0; i < b.o.Samples && b.ctx.Err() == nil; i++ {
 		a := s.exchange(b.ctx, s.nextState())
+		if a.host {
+			hostStalls++
+			if firstHost == "" {
+				firstHost = fmt.Sprintf("state seq %d: %s", a.seq, a.why)
+			}
+			continue
+		}
 		if p := a.problem(s); p != "" {
 			bad++
 			if first == "" {
@@ -256,10 +294,13 @@ func (b *battery) firstSession(conn bridges.Conn) {
 		worst = max(worst, a.rtt)
 	}
 	b.rep.RoundTrip = b.hist.Summarize()
-	if bad > 0 {
+	switch {
+	case bad > 0:
 		b.record(CheckEveryState, Fail, start, "%d of %d states not answered as asked; first: %s", bad, b.o.Samples, first)
-	} else {
-		b.record(CheckEveryState, Pass, start, "%d states, each answered with its seq; slowest answer %v (watchdog %v)", b.o.Samples, worst, Watchdog)
+	case hostStalls > 0:
+		b.record(CheckEveryState, HostStall, start, "%d of %d states unanswered while the host was contended; first: %s", hostStalls, b.o.Samples, firstHost)
+	default:
+		b.record(CheckEveryState, Pass, start, "%d states, each answered with its seq; slowest answer %v (watchdog %v)", b.o.Samples, worst, s.wd)
 	}
 	if s.gone {
 		b.notRun("the link closed", rest[3:]...)
@@ -310,7 +351,7 @@ func (b *battery) ended(a answer, left []string) bool {
 // judgeAnswer records a check that asks for one right answer to one state.
 func (b *battery) judgeAnswer(name string, start time.Time, a answer) {
 	if p := a.problem(b.s); p != "" {
-		b.record(name, Fail, start, "state seq %d: %s", a.seq, p)
+		b.record(name, failOrHost(a), start, "state seq %d: %s", a.seq, p)
 		return
 	}
 	b.record(name, Pass, start, "state seq %d answered in %v", a.seq, a.rtt)
@@ -324,13 +365,13 @@ func (b *battery) resent() {
 	start := time.Now()
 	a := s.exchange(b.ctx, s.nextState())
 	if p := a.problem(s); p != "" {
-		b.record(CheckResent, Fail, start, "the state before the resend: seq %d: %s", a.seq, p)
+		b.record(CheckResent, failOrHost(a), start, "the state before the resend: seq %d: %s", a.seq, p)
 		return
 	}
 	firstCmd := s.lastCmd
 	again := s.exchange(b.ctx, &s.state) // same seq, same contents
 	if p := again.problem(s); p != "" {
-		b.record(CheckResent, Fail, start, "resent state seq %d: %s", again.seq, p)
+		b.record(CheckResent, failOrHost(again), start, "resent state seq %d: %s", again.seq, p)
 		return
 	}
 	againCmd := s.lastCmd
@@ -341,7 +382,7 @@ func (b *battery) resent() {
 	s.extraFor = math.MaxUint32
 	switch {
 	case next.problem(s) != "":
-		b.record(CheckResent, Fail, start, "the state after the resend: seq %d: %s", next.seq, next.problem(s))
+		b.record(CheckResent, failOrHost(next), start, "the state after the resend: seq %d: %s", next.seq, next.problem(s))
 	case 1+s.extra != ResentAnswers:
 		b.record(CheckResent, Fail, start, "resent state seq %d answered %d times, want %d", again.seq, 1+s.extra, ResentAnswers)
 	case !sameTorque:
@@ -388,7 +429,7 @@ func (b *battery) damaged(name string, corrupt func([]byte), what string) {
 	case s.extra > 0:
 		b.record(name, Fail, start, "answered %s (seq %d) with a command", what, bad.Seq)
 	case a.problem(s) != "":
-		b.record(name, Fail, start, "after %s: state seq %d: %s", what, a.seq, a.problem(s))
+		b.record(name, failOrHost(a), start, "after %s: state seq %d: %s", what, a.seq, a.problem(s))
 	default:
 		b.record(name, Pass, start, "ignored %s; state seq %d answered", what, a.seq)
 	}
@@ -421,7 +462,7 @@ func (b *battery) heartbeat() {
 	got := s.heartbeats - before
 	switch {
 	case a.problem(s) != "":
-		b.record(CheckHeartbeat, Fail, start, "after a heartbeat: state seq %d: %s", a.seq, a.problem(s))
+		b.record(CheckHeartbeat, failOrHost(a), start, "after a heartbeat: state seq %d: %s", a.seq, a.problem(s))
 	case HeartbeatAnswerRequired && got == 0:
 		b.record(CheckHeartbeat, Fail, start, "no heartbeat came back before the next command")
 	default:
@@ -441,12 +482,12 @@ func (b *battery) stop() {
 	}
 	after := s.nextState()
 	_ = s.conn.Send(after) // a link the firmware closed refuses it: that is fine
-	a := s.await(b.ctx, after.Seq, Watchdog)
+	a := s.awaitFor(b.ctx, after.Seq, s.wd)
 	if a.cmd {
 		b.record(CheckStopsOnStop, Fail, start, "answered state seq %d sent after the stop", a.seq)
 		return
 	}
-	b.record(CheckStopsOnStop, Pass, start, "no command within %v after the stop (%s)", Watchdog, a.why)
+	b.record(CheckStopsOnStop, Pass, start, "no command within %v after the stop (%s)", s.wd, a.why)
 }
 
 // secondSession restarts the link: a greeting again, then a config the
@@ -483,7 +524,7 @@ func (b *battery) secondSession(dial Dialer) {
 		return
 	}
 	defer closeLink()
-	s := newSession(conn)
+	s := newSession(conn, b.o.watchdog, b.o.host)
 	g, _, err := s.awaitGreeting(b.ctx, GreetingTimeout)
 	if err != nil {
 		b.record(CheckGreetsAgain, Fail, start, "after the link was opened again: %v", err)
@@ -508,8 +549,9 @@ func (b *battery) secondSession(dial Dialer) {
 		return
 	}
 	st := s.nextState() // a firmware that took the config would answer it
+	sent := time.Now()
 	_ = s.conn.Send(st)
-	a := s.await(b.ctx, st.Seq, Watchdog)
+	a := s.awaitAnswer(b.ctx, st.Seq, sent)
 	switch {
 	case a.stop != nil && a.stop.Reason == RefusalReason:
 		b.record(CheckRefusesBadConf, Pass, start, "a config of %d joints for %d actuators: stop reason %d (%s) %q", bad, n, a.stop.Reason, protocol.StopReasonName(a.stop.Reason), a.stop.Text)
@@ -518,7 +560,7 @@ func (b *battery) secondSession(dial Dialer) {
 	case a.cmd:
 		b.record(CheckRefusesBadConf, Fail, start, "a config of %d joints for %d actuators was taken: state seq %d answered", bad, n, a.seq)
 	default:
-		b.record(CheckRefusesBadConf, Fail, start, "a config of %d joints for %d actuators: no stop within %v (%s)", bad, n, Watchdog, a.why)
+		b.record(CheckRefusesBadConf, failOrHost(a), start, "a config of %d joints for %d actuators: no stop within %v (%s)", bad, n, s.wd, a.why)
 	}
 }
 
@@ -542,7 +584,7 @@ func (b *battery) beltPlace() {
 	st.State.BeltMM = BeltPlaceMM
 	a := s.exchange(b.ctx, st)
 	if p := a.problem(s); p != "" {
-		b.record(CheckBeltPlace, Fail, start, "state seq %d with a belt place of %d mm: %s", a.seq, BeltPlaceMM, p)
+		b.record(CheckBeltPlace, failOrHost(a), start, "state seq %d with a belt place of %d mm: %s", a.seq, BeltPlaceMM, p)
 		return
 	}
 	if s.lastCmd.Status&protocol.StatusFault != 0 {
@@ -551,7 +593,7 @@ func (b *battery) beltPlace() {
 	}
 	next := s.exchange(b.ctx, s.nextState())
 	if p := next.problem(s); p != "" {
-		b.record(CheckBeltPlace, Fail, start, "the plain state after the belt state: seq %d: %s", next.seq, p)
+		b.record(CheckBeltPlace, failOrHost(next), start, "the plain state after the belt state: seq %d: %s", next.seq, p)
 		return
 	}
 	b.record(CheckBeltPlace, Pass, start, "state seq %d with a belt place of %d mm answered in %v, and the next", a.seq, BeltPlaceMM, a.rtt)

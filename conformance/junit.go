@@ -8,8 +8,9 @@ import (
 
 // WriteJUnit writes the report as one JUnit XML suite, one test case per
 // check: a failed check is a failure, a check that does not apply to the
-// link is skipped, and a check that could not run is an error (CI systems
-// tell "the firmware is wrong" from "nothing was checked"). An optional
+// link is skipped, and a check that could not run or could not be judged
+// on a loaded host is an error (CI systems tell "the firmware is wrong"
+// from "nothing was checked"). An optional
 // check that failed is written as a passing case whose output says so, so
 // that it shows without failing the build.
 func (r *Report) WriteJUnit(w io.Writer) error {
@@ -23,7 +24,7 @@ func (r *Report) WriteJUnit(w io.Writer) error {
 			jc.Detail = "optional check failed: " + jc.Detail
 		case c.Status == Skipped:
 			jc.Skipped = c.Seen
-		case c.Status == NotRun:
+		case c.Status == NotRun || c.Status == HostStall:
 			jc.Error = c.Seen
 		}
 		s.Cases = append(s.Cases, jc)

@@ -7,6 +7,7 @@ import (
 
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
+	"gaitrig/internal/hostload"
 )
 
 // RoundTrips is a round-trip measurement with the plant frozen.
@@ -21,6 +22,10 @@ type RoundTrips struct {
 	// Unanswered counts states that got no right answer within the
 	// watchdog (they are not in Samples).
 	Unanswered int
+	// HostStalled counts states left unanswered while the host's CPUs were
+	// contended past the limit (hostload): the firmware may not have been
+	// run, so they are counted apart from Unanswered and not in Samples.
+	HostStalled int
 }
 
 // MeasureRoundTrips greets the firmware dial reaches, configures it as the
@@ -37,7 +42,9 @@ func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, err
 		return RoundTrips{}, err
 	}
 	defer closeLink()
-	s := newSession(conn)
+	host := hostload.Open()
+	defer host.Close()
+	s := newSession(conn, Watchdog, host)
 	g, _, err := s.awaitGreeting(ctx, GreetingTimeout)
 	if err != nil {
 		return RoundTrips{}, err
@@ -55,6 +62,10 @@ func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, err
 		a := s.exchange(ctx, s.nextState())
 		if a.gone {
 			return out, fmt.Errorf("after %d round trips: %s", len(out.Samples), a.why)
+		}
+		if a.host {
+			out.HostStalled++
+			continue
 		}
 		if a.problem(s) != "" {
 			out.Unanswered++

@@ -10,6 +10,7 @@ import (
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
 	"gaitrig/hil"
+	"gaitrig/internal/hostload"
 )
 
 // session is the battery's end of one link: the messages it sends and what
@@ -40,10 +41,19 @@ type session struct {
 	extraFor uint32
 	extra    int
 	gone     bool // the link closed
+
+	// wd is the watchdog answers are judged by (Watchdog; shorter in
+	// tests), and host the CPU pressure of the host the battery runs on
+	// (nil without PSI), by which awaitAnswer tells a starved firmware
+	// from a silent one.
+	wd   time.Duration
+	host *hostload.Pressure
 }
 
-func newSession(conn bridges.Conn) *session {
-	return &session{conn: conn, extraFor: math.MaxUint32, version: protocol.Version}
+// newSession starts a session on conn that judges answers by the watchdog
+// wd on the host whose CPU pressure host reads.
+func newSession(conn bridges.Conn, wd time.Duration, host *hostload.Pressure) *session {
+	return &session{conn: conn, extraFor: math.MaxUint32, version: protocol.Version, wd: wd, host: host}
 }
 
 // configure prepares the config for n joints (sent with sendConfig).
@@ -52,7 +62,7 @@ func (s *session) configure(n int) {
 	c := protocol.Config{TickHz: configTickHz, Lockstep: true, Joints: uint8(n)}
 	if s.version >= 2 {
 		// The watchdog the battery judges answers by (Watchdog).
-		c.WatchdogUS = hil.WatchdogMicros(Watchdog)
+		c.WatchdogUS = hil.WatchdogMicros(s.wd)
 	}
 	for i, name := range jointNames(n) {
 		c.JointNames[i] = name
@@ -87,7 +97,11 @@ type answer struct {
 	stray  int            // commands with other seqs seen meanwhile
 	first  uint32         // the first of them
 	gone   bool           // the link closed
-	why    string         // what happened instead of a command
+	// host: no command came, but the host's CPUs were contended for all
+	// but less than a watchdog of the wait, so the firmware may never have
+	// been run; the answer says nothing about the firmware.
+	host bool
+	why  string // what happened instead of a command
 }
 
 // problem says what is wrong with the answer, "" when nothing.
@@ -105,7 +119,7 @@ func (a answer) problem(s *session) string {
 	return ""
 }
 
-// exchange sends st and waits up to the watchdog for its command.
+// exchange sends st and waits for its command (awaitAnswer).
 func (s *session) exchange(ctx context.Context, st *protocol.Message) answer {
 	t0 := time.Now()
 	if err := s.conn.Send(st); err != nil {
@@ -115,21 +129,104 @@ func (s *session) exchange(ctx context.Context, st *protocol.Message) answer {
 		}
 		return a
 	}
-	a := s.await(ctx, st.Seq, Watchdog)
+	a := s.awaitAnswer(ctx, st.Seq, t0)
 	a.rtt = time.Since(t0)
 	return a
 }
 
-// await takes messages for up to d until the command with seq arrives, a
-// stop arrives or the link closes. Greetings, heartbeats and refused frames
-// are counted on the way.
-func (s *session) await(ctx context.Context, seq uint32, d time.Duration) answer {
+// stallSlack is how much later than its deadline a wait may end before the
+// lateness counts as the battery's own stall: the host did not run the
+// battery, and the answer may have waited in the link's buffer meanwhile.
+// (The rig's lockstep loop uses the same slack, hil's stallSlack.)
+const stallSlack = 5 * time.Millisecond
+
+// awaitAnswer waits for the command with seq to a state sent at sent,
+// charging the firmware's watchdog (s.wd) only with time in which it could
+// have answered, as the rig's lockstep loop does: not the battery's own
+// stalls (waits that ended more than stallSlack late), and not the time
+// the host's CPUs were contended (hostload.Wait). On a quiet host the
+// watchdog holds exactly. While the host is contended it waits on, up to
+// hostload.Limit; if the host never left the firmware a watchdog's worth
+// of CPU by then, the answer is marked host: not the firmware's failure.
+func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time) answer {
 	a := answer{seq: seq}
-	deadline := time.Now().Add(d)
+	var busy hostload.Wait
+	busy.Start(s.host)
+	var own time.Duration
+	charged := func(now time.Time) time.Duration { return now.Sub(sent) - own - busy.Total() }
+	for {
+		now := time.Now()
+		left := s.wd - charged(now)
+		if left <= 0 {
+			busy.Credit(s.host)
+			now = time.Now()
+			if charged(now) < s.wd && now.Sub(sent) < hostload.Limit(s.wd) {
+				// At least a millisecond per look: with the pressure
+				// credited bit by bit the time left may stay tiny.
+				left = max(s.wd-charged(now), time.Millisecond)
+			} else {
+				if charged(now) < s.wd {
+					busy.Settle(s.host)
+				}
+				silent := now.Sub(sent)
+				if c := charged(now); c < s.wd {
+					a.host = true
+					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
+						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
+				} else {
+					a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
+					if silent-s.wd > stallSlack {
+						a.why += fmt.Sprintf(" (waited %v: %v of the battery's own stalls and %v of a contended host not charged)",
+							silent.Round(time.Millisecond), own.Round(time.Millisecond), busy.Total().Round(time.Millisecond))
+					}
+				}
+				a.why += a.strays()
+				return a
+			}
+		}
+		deadline := now.Add(left)
+		if s.await(ctx, &a, deadline) {
+			return a
+		}
+		if late := time.Since(deadline); late > stallSlack {
+			own += late
+		}
+	}
+}
+
+// awaitFor waits up to d, by the wall clock, for the command with seq (or a
+// stop, or the link's end). It is for checks where the firmware must send
+// nothing (a stopped firmware): a loaded host can only hide a command
+// there, never make one up, so the time is not credited.
+func (s *session) awaitFor(ctx context.Context, seq uint32, d time.Duration) answer {
+	a := answer{seq: seq}
+	if !s.await(ctx, &a, time.Now().Add(d)) {
+		a.why = fmt.Sprintf("no command with seq %d within %v", seq, d)
+		a.why += a.strays()
+	}
+	return a
+}
+
+// strays says, for a message, how many commands with other seqs came
+// meanwhile; "" for none.
+func (a *answer) strays() string {
+	if a.stray == 0 {
+		return ""
+	}
+	return fmt.Sprintf(" (%d with other seqs, first %d)", a.stray, a.first)
+}
+
+// await takes messages until deadline, into a, until the command with
+// a.seq arrives, a stop arrives, the link closes or ctx ends (true), or
+// the deadline passes (false: the caller decides what that means).
+// Greetings, heartbeats and refused frames are counted on the way, and
+// commands with other seqs as a's strays.
+func (s *session) await(ctx context.Context, a *answer, deadline time.Time) bool {
+	seq := a.seq
 	for {
 		if err := ctx.Err(); err != nil {
 			a.why = "interrupted"
-			return a
+			return true
 		}
 		err := s.conn.Recv(deadline, &s.in)
 		switch {
@@ -139,17 +236,13 @@ func (s *session) await(ctx context.Context, seq uint32, d time.Duration) answer
 			s.lastFrameErr = s.fe.Reason
 			continue
 		case errors.Is(err, bridges.ErrTimeout):
-			a.why = fmt.Sprintf("no command with seq %d within %v", seq, d)
-			if a.stray > 0 {
-				a.why += fmt.Sprintf(" (%d with other seqs, first %d)", a.stray, a.first)
-			}
-			return a
+			return false
 		case errors.Is(err, bridges.ErrDisconnected):
 			continue // the link may come back; the deadline decides
 		default:
 			a.gone, s.gone = true, true
 			a.why = fmt.Sprintf("the link closed before a command with seq %d came: %v", seq, err)
-			return a
+			return true
 		}
 		m := &s.in
 		switch m.Type {
@@ -177,7 +270,7 @@ func (s *session) await(ctx context.Context, seq uint32, d time.Duration) answer
 			case seq:
 				a.cmd, a.joints = true, m.Command.Joints
 				s.lastCmd = m.Command
-				return a
+				return true
 			case s.extraFor:
 				s.extra++
 			default:
@@ -193,7 +286,7 @@ func (s *session) await(ctx context.Context, seq uint32, d time.Duration) answer
 		case protocol.TypeStop:
 			st := m.Stop
 			a.stop = &st
-			return a
+			return true
 		default:
 			s.wrongWay++
 		}

@@ -6,6 +6,7 @@ import (
 	"math"
 	"time"
 
+	"gaitrig/internal/hostload"
 	"gaitrig/plant"
 )
 
@@ -208,7 +209,7 @@ type Config struct {
 	// pressure file, so the watchdog's credit for a contended host can be
 	// tested without loading the host (and switched off for tests of a
 	// silent firmware, which must not depend on the host's load).
-	pressure *cpuPressure
+	pressure *hostload.Pressure
 	// Tap, when set, receives decimated snapshots of the loop for a live
 	// view or metrics (see NewTap); the tick path neither allocates nor
 	// waits for its reader.

@@ -2,7 +2,6 @@ package hil
 
 import (
 	"context"
-	"math"
 	"runtime"
 	"sync/atomic"
 	"testing"
@@ -10,6 +9,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/hostload"
 	"gaitrig/record"
 )
 
@@ -170,17 +170,17 @@ func TestLockstepHostStallDoesNotTripTheWatchdog(t *testing.T) {
 }
 
 // quietHost is a CPU pressure source that never reports contention.
-var quietHost = &cpuPressure{fake: func() (time.Duration, bool) { return 0, true }}
+var quietHost = hostload.Quiet()
 
 // busyHost reports the host's CPUs contended for the fraction share of the
 // time since it was made, as the host-wide PSI figure would (divided by
 // the CPU count: the loop multiplies it back).
-func busyHost(share float64) *cpuPressure {
+func busyHost(share float64) *hostload.Pressure {
 	t0 := time.Now()
 	n := float64(runtime.NumCPU())
-	return &cpuPressure{fake: func() (time.Duration, bool) {
+	return hostload.Fake(0, func() (time.Duration, bool) {
 		return time.Duration(share * float64(time.Since(t0)) / n), true
-	}}
+	}, nil)
 }
 
 // lateWithStaleConn plays a rig the host did not run while it waited for
@@ -252,16 +252,14 @@ func TestLockstepStallEndingWithAMessageIsTheRigs(t *testing.T) {
 // fakeHost is a host of cpus CPUs, busy of them busy, on which the
 // host-wide PSI "some" figure grows at rate some per second (as
 // /proc/pressure/cpu would report it) since it was made.
-func fakeHost(cpus int, busy, some float64) *cpuPressure {
+func fakeHost(cpus int, busy, some float64) *hostload.Pressure {
 	t0 := time.Now()
-	return &cpuPressure{
-		cpus: cpus,
-		fake: func() (time.Duration, bool) { return time.Duration(some * float64(time.Since(t0))), true },
-		fakeStat: func() (cpuTimes, bool) {
-			ticks := time.Since(t0).Seconds() * userHZ
-			return cpuTimes{nonidle: int64(busy * ticks), all: int64(float64(cpus) * ticks)}, true
-		},
-	}
+	return hostload.Fake(cpus,
+		func() (time.Duration, bool) { return time.Duration(some * float64(time.Since(t0))), true },
+		func() (hostload.CPUTimes, bool) {
+			ticks := time.Since(t0).Seconds() * hostload.UserHZ
+			return hostload.CPUTimes{Nonidle: int64(busy * ticks), All: int64(float64(cpus) * ticks)}, true
+		})
 }
 
 // The verdict on a firmware that stays silent weighs the host's pressure
@@ -273,7 +271,7 @@ func fakeHost(cpus int, busy, some float64) *cpuPressure {
 func TestLockstepVerdictWeighsPressureByBusyCPUs(t *testing.T) {
 	tests := []struct {
 		name string
-		host *cpuPressure
+		host *hostload.Pressure
 		want record.Outcome
 	}{
 		// 64 CPUs, 8 busy, one of them with a task waiting half the time:
@@ -296,33 +294,6 @@ func TestLockstepVerdictWeighsPressureByBusyCPUs(t *testing.T) {
 				t.Fatalf("outcome %s (%s), alarms %v; want %s", sum.Outcome, sum.Reason, sum.Alarms, tc.want)
 			}
 		})
-	}
-}
-
-// busyCPUs against the figures worked out by hand.
-func TestBusyCPUs(t *testing.T) {
-	tests := []struct {
-		d    cpuTimes
-		w    time.Duration
-		want float64
-		ok   bool
-	}{
-		// 1 s = 100 ticks; 64 CPUs (6400 ticks), 800 ticks busy: 8 CPUs,
-		// plus one tick per CPU for rounding: (800+64)/100.
-		{cpuTimes{nonidle: 800, all: 6400}, time.Second, 8.64, true},
-		// 2 CPUs, both busy: (200+2)/100 capped at the 2 CPUs.
-		{cpuTimes{nonidle: 200, all: 200}, time.Second, 2, true},
-		// An idle host: at least 1.
-		{cpuTimes{nonidle: 0, all: 6400}, time.Second, 1, true},
-		// A window shorter than one tick says nothing.
-		{cpuTimes{nonidle: 1, all: 2}, 5 * time.Millisecond, 0, false},
-		{cpuTimes{}, time.Second, 0, false},
-	}
-	for _, tc := range tests {
-		got, ok := busyCPUs(tc.d, tc.w)
-		if ok != tc.ok || math.Abs(got-tc.want) > 1e-9 {
-			t.Errorf("busyCPUs(%+v, %v) = %v %v, want %v %v", tc.d, tc.w, got, ok, tc.want, tc.ok)
-		}
 	}
 }
 

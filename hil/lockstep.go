@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/hostload"
 )
 
 // stallSlack is how late a lockstep wait may end before the loop treats the
@@ -87,10 +88,10 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	start := time.Now()
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
-	var busy hostBusy
+	var busy hostload.Wait
 	var own time.Duration // the rig's own time during this wait: its stalls and its work
 	// charged is the firmware's answer time so far.
-	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.total }
+	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.Total() }
 	// The loop's own code between two readings of the clock takes
 	// microseconds; a gap longer than stallSlack there is the host not
 	// running the rig (preempted, frozen), not the firmware being slow.
@@ -121,8 +122,8 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			return false
 		}
 		now := step()
-		if !busy.tried && !now.Before(watchAt) {
-			busy.start(r.pressure)
+		if !busy.Started() && !now.Before(watchAt) {
+			busy.Start(r.pressure)
 		}
 		if !slow && !now.Before(slowAt) {
 			// Only a slow answer starts the count again; an exchange that
@@ -148,7 +149,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 		if wd.Before(deadline) {
 			deadline = wd
 		}
-		if !busy.tried && watchAt.Before(deadline) && r.pressure != nil {
+		if !busy.Started() && watchAt.Before(deadline) && r.pressure != nil {
 			deadline = watchAt
 		}
 		err := ss.link.Recv(deadline, &ss.msg)
@@ -184,10 +185,10 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			// Before blaming the firmware: time in which the host's CPUs
 			// were contended is time a firmware in another process may
 			// not have been run, so the watchdog does not count it either.
-			busy.credit(r.pressure)
+			busy.Credit(r.pressure)
 			now := step()
 			silent, c := now.Sub(start), charged(now)
-			if c < r.cfg.Watchdog && silent < busy.limit(r.cfg.Watchdog) {
+			if c < r.cfg.Watchdog && silent < hostload.Limit(r.cfg.Watchdog) {
 				// Waiting on: the resend must not wait with it, or a
 				// firmware that lost the state (or the configuration
 				// after a greeting) would never be asked again.
@@ -200,14 +201,14 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			if c < r.cfg.Watchdog {
 				// The verdict: the credit over the whole wait, with the
 				// host's busy CPUs rather than all of them.
-				busy.settle(r.pressure)
+				busy.Settle(r.pressure)
 				c = charged(now)
 			}
 			if c < r.cfg.Watchdog {
 				// The limit passed and the host never left the firmware a
 				// watchdog's worth of CPU: whether it is gone cannot be
 				// told on this host. Not a verdict on the firmware.
-				r.hostBusy(silent, busy.total)
+				r.hostBusy(silent, busy.Total())
 				return false
 			}
 			r.watchdogContended(silent, silent-c)

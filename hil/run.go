@@ -16,6 +16,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/hostload"
 	"gaitrig/plant"
 	"gaitrig/record"
 )
@@ -105,7 +106,7 @@ type runner struct {
 	// PSI), read only while a firmware's answer is late. Wall-clock does
 	// not use it: on a shared host the pressure is high nearly all the
 	// time, and a firmware that is gone would then never be caught.
-	pressure *cpuPressure
+	pressure *hostload.Pressure
 	sens     *sensorBank   // sensors.go: what the board's sensors read
 	act      *actuatorBank // actuators.go: commanded to applied torque
 	al       *alarmer      // alarm.go: the alarm policy and the event log
@@ -215,10 +216,10 @@ func (r *runner) run(ctx context.Context) (Result, error) {
 		} else {
 			r.pressure = r.cfg.pressure
 			if r.pressure == nil {
-				r.pressure = openPressure()
+				r.pressure = hostload.Open()
 			}
 			r.lockstep(ctx)
-			r.pressure.close()
+			r.pressure.Close()
 		}
 	}
 	if err != nil {

@@ -23,8 +23,12 @@ config and a duplicate config, every state answered with its seq within the
 watchdog, a resent state, a frame with a bad CRC and one of an unknown type,
 a heartbeat, the status bits, the round-trip time (p50, p99, max), a stop, a
 greeting after the rig opens the link again, and a config the firmware cannot
-drive. Exit code 0 when every required check passes, 1 when one does not, 2
-when the link cannot be opened. The expectations follow docs/protocol.md.`, stdout, stderr)
+drive. A state is judged by a watchdog that, as in a lockstep run, is charged
+only with time in which the firmware could have answered: not while this
+host's CPUs were contended. Exit code 0 when every required check passes, 1
+when one does not, 2 when the link cannot be opened, 3 when no check failed
+but one could not be judged because the host stayed contended (host_stall:
+run it again on a quieter host). The expectations follow docs/protocol.md.`, stdout, stderr)
 	link := c.String("link", "builtin", rig.LinkHelp())
 	rigID := c.String("rig", "", "MQTT rig `ID` (default bench)")
 	samples := c.Int("samples", 1000, "`N` states whose round trip is measured")
@@ -58,25 +62,38 @@ when the link cannot be opened. The expectations follow docs/protocol.md.`, stdo
 			return exitConfig
 		}
 	}
+	failed, notRun, hostStalled := 0, 0, 0
+	for _, c := range rep.Checks {
+		switch {
+		case c.Required && c.Status == conformance.Fail:
+			failed++
+		case c.Required && c.Status == conformance.NotRun:
+			notRun++
+		case c.Required && c.Status == conformance.HostStall:
+			hostStalled++
+		}
+	}
 	code := exitPass
-	if ctx.Err() != nil || !rep.Passed {
+	switch {
+	case ctx.Err() != nil || failed > 0 || notRun > 0:
+		code = exitFail
+	case hostStalled > 0:
+		code = exitInvalid
+	case !rep.Passed:
 		code = exitFail
 	}
 	if *asJSON {
 		return c.printJSON(rep, code)
 	} else {
 		verdict := "PASS: every required check passed"
-		if !rep.Passed {
-			failed, notRun := 0, 0
-			for _, c := range rep.Checks {
-				switch {
-				case c.Required && c.Status == conformance.Fail:
-					failed++
-				case c.Required && c.Status == conformance.NotRun:
-					notRun++
-				}
-			}
+		switch {
+		case code == exitInvalid:
+			verdict = fmt.Sprintf("NO VERDICT: %d required checks could not be judged on this loaded host (host_stall); run the battery again on a quieter host", hostStalled)
+		case !rep.Passed:
 			verdict = fmt.Sprintf("FAIL: %d required checks failed, %d could not run", failed, notRun)
+			if hostStalled > 0 {
+				verdict += fmt.Sprintf(", %d could not be judged on this loaded host", hostStalled)
+			}
 		}
 		if rt := rep.RoundTrip; rt.Count > 0 {
 			fmt.Fprintf(stdout, "round trip, plant frozen: %d samples, p50 %.0f µs, p99 %.0f µs, max %.0f µs\n", rt.Count, rt.P50, rt.P99, rt.Max)

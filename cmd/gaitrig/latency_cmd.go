@@ -166,12 +166,18 @@ func latencyOfLink(link, rigID string, n int, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stdout, "wire time of a state and a command at %d baud: %.0fµs (a USB virtual serial port ignores the baud rate)\n",
 			l.Baud, float64(w.Wire)/float64(time.Microsecond))
 	}
+	if rt.HostStalled > 0 {
+		fmt.Fprintf(stdout, "%d states unanswered while the host's CPUs were contended: not counted against the firmware; measure again on a quieter host\n", rt.HostStalled)
+	}
 	if err != nil {
 		fmt.Fprintln(stderr, "gaitrig latency:", err)
 		return exitFail
 	}
-	if rt.Unanswered > 0 {
+	switch {
+	case rt.Unanswered > 0:
 		return exitFail
+	case rt.HostStalled > 0:
+		return exitInvalid
 	}
 	return exitPass
 }
