@@ -62,6 +62,25 @@ run it again on a quieter host). The expectations follow docs/protocol.md.`, std
 			return exitConfig
 		}
 	}
+	code, verdict := conformanceVerdict(&rep, ctx.Err() != nil)
+	if *asJSON {
+		return c.printJSON(rep, code)
+	} else {
+		if rt := rep.RoundTrip; rt.Count > 0 {
+			fmt.Fprintf(stdout, "round trip, plant frozen: %d samples, p50 %.0f µs, p99 %.0f µs, max %.0f µs\n", rt.Count, rt.P50, rt.P99, rt.Max)
+		}
+		fmt.Fprintln(stdout, verdict)
+		fmt.Fprintln(stdout, "\n"+safetyCaution)
+	}
+	return code
+}
+
+// conformanceVerdict is the exit code and the closing line of a battery's
+// report: a required check that failed or could not run fails it (as does
+// an interrupt); with none of those, one that could not be judged on a
+// loaded host (host_stall) gives no verdict, exit code 3, as a run the
+// host spoiled does.
+func conformanceVerdict(rep *conformance.Report, interrupted bool) (int, string) {
 	failed, notRun, hostStalled := 0, 0, 0
 	for _, c := range rep.Checks {
 		switch {
@@ -73,35 +92,20 @@ run it again on a quieter host). The expectations follow docs/protocol.md.`, std
 			hostStalled++
 		}
 	}
-	code := exitPass
 	switch {
-	case ctx.Err() != nil || failed > 0 || notRun > 0:
-		code = exitFail
+	case failed > 0 || notRun > 0 || interrupted || (!rep.Passed && hostStalled == 0):
+		v := fmt.Sprintf("FAIL: %d required checks failed, %d could not run", failed, notRun)
+		if interrupted {
+			v += " (interrupted)"
+		}
+		if hostStalled > 0 {
+			v += fmt.Sprintf(", %d could not be judged on this loaded host", hostStalled)
+		}
+		return exitFail, v
 	case hostStalled > 0:
-		code = exitInvalid
-	case !rep.Passed:
-		code = exitFail
+		return exitInvalid, fmt.Sprintf("NO VERDICT: %d required checks could not be judged on this loaded host (host_stall); run the battery again on a quieter host", hostStalled)
 	}
-	if *asJSON {
-		return c.printJSON(rep, code)
-	} else {
-		verdict := "PASS: every required check passed"
-		switch {
-		case code == exitInvalid:
-			verdict = fmt.Sprintf("NO VERDICT: %d required checks could not be judged on this loaded host (host_stall); run the battery again on a quieter host", hostStalled)
-		case !rep.Passed:
-			verdict = fmt.Sprintf("FAIL: %d required checks failed, %d could not run", failed, notRun)
-			if hostStalled > 0 {
-				verdict += fmt.Sprintf(", %d could not be judged on this loaded host", hostStalled)
-			}
-		}
-		if rt := rep.RoundTrip; rt.Count > 0 {
-			fmt.Fprintf(stdout, "round trip, plant frozen: %d samples, p50 %.0f µs, p99 %.0f µs, max %.0f µs\n", rt.Count, rt.P50, rt.P99, rt.Max)
-		}
-		fmt.Fprintln(stdout, verdict)
-		fmt.Fprintln(stdout, "\n"+safetyCaution)
-	}
-	return code
+	return exitPass, "PASS: every required check passed"
 }
 
 func writeConformanceJUnit(path string, rep *conformance.Report) error {

@@ -10,6 +10,7 @@ import (
 	"testing"
 	"time"
 
+	"gaitrig/conformance"
 	"gaitrig/firmware/reference"
 	"gaitrig/rig"
 )
@@ -102,5 +103,37 @@ func TestLatencyOfASerialLink(t *testing.T) {
 		}
 	case <-time.After(15 * time.Second):
 		t.Error("the firmware did not end within 15 s of the rig's stop")
+	}
+}
+
+// The battery's exit code and closing line: a failure or a check not run
+// fails, a host_stall with neither gives no verdict (exit 3, as a run the
+// host spoiled), and only all required checks passed (or not applicable)
+// pass; an optional check's failure does not count.
+func TestConformanceVerdict(t *testing.T) {
+	r := func(st conformance.Status, required bool) conformance.Result {
+		return conformance.Result{Name: "x", Status: st, Required: required}
+	}
+	tests := []struct {
+		name        string
+		checks      []conformance.Result
+		passed      bool
+		interrupted bool
+		code        int
+		prefix      string
+	}{
+		{"all pass", []conformance.Result{r(conformance.Pass, true), r(conformance.Skipped, true)}, true, false, exitPass, "PASS"},
+		{"optional fail", []conformance.Result{r(conformance.Pass, true), r(conformance.Fail, false)}, true, false, exitPass, "PASS"},
+		{"a failure", []conformance.Result{r(conformance.Fail, true), r(conformance.HostStall, true)}, false, false, exitFail, "FAIL: 1 required checks failed, 0 could not run, 1 could not be judged"},
+		{"not run", []conformance.Result{r(conformance.NotRun, true)}, false, false, exitFail, "FAIL: 0 required checks failed, 1 could not run"},
+		{"host stall only", []conformance.Result{r(conformance.Pass, true), r(conformance.HostStall, true)}, false, false, exitInvalid, "NO VERDICT: 1 required checks"},
+		{"interrupted", []conformance.Result{r(conformance.Pass, true)}, true, true, exitFail, "FAIL: 0 required checks failed, 0 could not run (interrupted)"},
+	}
+	for _, tc := range tests {
+		rep := conformance.Report{Checks: tc.checks, Passed: tc.passed}
+		code, v := conformanceVerdict(&rep, tc.interrupted)
+		if code != tc.code || !strings.HasPrefix(v, tc.prefix) {
+			t.Errorf("%s: exit %d %q, want %d and a line starting %q", tc.name, code, v, tc.code, tc.prefix)
+		}
 	}
 }
