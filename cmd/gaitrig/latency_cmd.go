@@ -57,8 +57,11 @@ firmware is greeted and configured, then --ticks states with fixed readings go
 out one at a time, each as soon as the previous one was answered, so the
 figure is the board's compute time plus the wiring, whatever a walker would
 do. For a serial link it also prints the wire time the baud rate alone costs
-(docs/protocol.md section 13). Exit code 0 when every link was measured, 1
-when one could not be, 2 for bad usage.`, stdout, stderr)
+(docs/protocol.md section 13); a state is waited for as the conformance
+battery waits, without charging the firmware for time this host's CPUs were
+contended. Exit code 0 when every link was measured, 1 when one could not be
+(with --link: when a state went unanswered), 2 for bad usage, 3 with --link
+when states went unanswered only while this host stayed contended.`, stdout, stderr)
 	ticks := c.Int("ticks", 10000, "`N` ticks per link (at least 100)")
 	hz := c.Float64("hz", 1000, "tick rate in `HZ`")
 	links := c.String("links", strings.Join(rig.LatencyLinks, ","), "`LINKS` to measure, comma-separated, from: "+strings.Join(rig.LatencyLinks, ", "))
