@@ -37,12 +37,15 @@ func TestReferenceFirmwareOverMosquitto(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-	defer cancel()
-	rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
-	if err != nil {
-		t.Fatal(err)
-	}
+	rep, attempts := untilJudged(t, "the battery over Mosquitto", func() Report {
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+		defer cancel()
+		rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return rep
+	})
 	for _, c := range rep.Checks {
 		if c.Status != Pass {
 			t.Errorf("%s: %s (%s), want pass", c.Name, c.Status, c.Seen)
@@ -64,7 +67,9 @@ func TestReferenceFirmwareOverMosquitto(t *testing.T) {
 	}
 	mu.Lock()
 	defer mu.Unlock()
-	if len(sessions) != 2 || sessions[0] != nil || sessions[1] == nil {
-		t.Errorf("sessions ended with %v; want two: a normal end, then the refusal of the bad config", sessions)
+	// Each attempt the host spoiled ended one session with the battery's
+	// stop (abandonForHost) before the two of the attempt that counted.
+	if n := len(sessions); n != 2+attempts-1 || sessions[n-2] != nil || sessions[n-1] == nil {
+		t.Errorf("sessions ended with %v after %d attempts; want a normal end, then the refusal of the bad config, last", sessions, attempts)
 	}
 }

@@ -22,9 +22,10 @@ type RoundTrips struct {
 	// Unanswered counts states that got no right answer within the
 	// watchdog (they are not in Samples).
 	Unanswered int
-	// HostStalled counts states left unanswered while the host's CPUs were
-	// contended past the limit (hostload): the firmware may not have been
-	// run, so they are counted apart from Unanswered and not in Samples.
+	// HostStalled is 1 when the measurement ended early at a state left
+	// unanswered while the host's CPUs stayed contended to the limit
+	// (hostload): the firmware may not have been run, so it is counted
+	// apart from Unanswered and not in Samples. 0 otherwise.
 	HostStalled int
 }
 
@@ -37,14 +38,20 @@ type RoundTrips struct {
 // means there was nothing to measure (no link, no greeting, a link that
 // closed).
 func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, error) {
+	host := hostload.Open()
+	defer host.Close()
+	return measureRoundTrips(ctx, dial, n, Watchdog, host)
+}
+
+// measureRoundTrips is MeasureRoundTrips judging answers by the watchdog wd
+// on the host whose CPU pressure host reads (tests plant both).
+func measureRoundTrips(ctx context.Context, dial Dialer, n int, wd time.Duration, host *hostload.Pressure) (RoundTrips, error) {
 	conn, closeLink, err := dial()
 	if err != nil {
 		return RoundTrips{}, err
 	}
 	defer closeLink()
-	host := hostload.Open()
-	defer host.Close()
-	s := newSession(conn, Watchdog, host)
+	s := newSession(conn, wd, host)
 	g, _, err := s.awaitGreeting(ctx, GreetingTimeout)
 	if err != nil {
 		return RoundTrips{}, err
@@ -63,9 +70,11 @@ func MeasureRoundTrips(ctx context.Context, dial Dialer, n int) (RoundTrips, err
 		if a.gone {
 			return out, fmt.Errorf("after %d round trips: %s", len(out.Samples), a.why)
 		}
-		if a.host {
+		if a.hostStalled {
+			// Its late answer would come in the next state's wait: stop
+			// here, as the battery does.
 			out.HostStalled++
-			continue
+			break
 		}
 		if a.problem(s) != "" {
 			out.Unanswered++

@@ -97,11 +97,15 @@ type answer struct {
 	stray  int            // commands with other seqs seen meanwhile
 	first  uint32         // the first of them
 	gone   bool           // the link closed
-	// host: no command came, but the host's CPUs were contended for all
-	// but less than a watchdog of the wait, so the firmware may never have
-	// been run; the answer says nothing about the firmware.
-	host bool
-	why  string // what happened instead of a command
+	// hostStalled: no command came, and nothing else from the firmware
+	// either, but the host's CPUs were contended for all but less than a
+	// watchdog of the wait, so the firmware may never have been run; the
+	// answer says nothing about the firmware.
+	hostStalled bool
+	// charged is the part of the wait charged to the firmware's watchdog:
+	// the wait less the battery's own stalls and the contended time.
+	charged time.Duration
+	why     string // what happened instead of a command
 }
 
 // problem says what is wrong with the answer, "" when nothing.
@@ -121,6 +125,10 @@ func (a answer) problem(s *session) string {
 
 // exchange sends st and waits for its command (awaitAnswer).
 func (s *session) exchange(ctx context.Context, st *protocol.Message) answer {
+	// The pressure's first reading comes before the clock starts, so its
+	// system call is not in the round trip.
+	var busy hostload.WaitCredit
+	busy.Start(s.host)
 	t0 := time.Now()
 	if err := s.conn.Send(st); err != nil {
 		a := answer{seq: st.Seq, why: fmt.Sprintf("sending the state: %v", err)}
@@ -129,69 +137,88 @@ func (s *session) exchange(ctx context.Context, st *protocol.Message) answer {
 		}
 		return a
 	}
-	a := s.awaitAnswer(ctx, st.Seq, t0)
+	a := s.awaitAnswer(ctx, st.Seq, t0, &busy)
 	a.rtt = time.Since(t0)
 	return a
 }
 
-// stallSlack is how much later than its deadline a wait may end before the
-// lateness counts as the battery's own stall: the host did not run the
-// battery, and the answer may have waited in the link's buffer meanwhile.
-// (The rig's lockstep loop uses the same slack, hil's stallSlack.)
-const stallSlack = 5 * time.Millisecond
+// finalLooks bounds the messages awaitAnswer reads, past the watchdog,
+// from what is already waiting before it gives its verdict, so a firmware
+// that floods the link cannot hold it there. (The rig's lockstep loop has
+// the same bound, for the same reason.)
+const finalLooks = 64
 
 // awaitAnswer waits for the command with seq to a state sent at sent,
 // charging the firmware's watchdog (s.wd) only with time in which it could
 // have answered, as the rig's lockstep loop does: not the battery's own
-// stalls (waits that ended more than stallSlack late), and not the time
-// the host's CPUs were contended (hostload.Wait). On a quiet host the
-// watchdog holds exactly. While the host is contended it waits on, up to
-// hostload.Limit; if the host never left the firmware a watchdog's worth
-// of CPU by then, the answer is marked host: not the firmware's failure.
-func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time) answer {
+// stalls (waits that ended more than hostload.StallSlack late), and not
+// the time the host's CPUs were contended (busy, started before the state
+// went out). On a quiet host the watchdog holds exactly.
+//
+// Before any verdict it reads what is already waiting, without waiting for
+// more: after a stall of the battery itself the answer may be in the
+// buffer. While the host is contended and nothing at all came from the
+// firmware it waits on, up to hostload.Limit; if the host never left the
+// firmware a watchdog's worth of CPU by then, the answer is marked
+// hostStalled: not the firmware's failure. A firmware that sent commands
+// for other seqs meanwhile was running, and is judged at once.
+func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, busy *hostload.WaitCredit) answer {
 	a := answer{seq: seq}
-	var busy hostload.Wait
-	busy.Start(s.host)
 	var own time.Duration
 	charged := func(now time.Time) time.Duration { return now.Sub(sent) - own - busy.Total() }
+	done := func() answer {
+		a.charged = charged(time.Now())
+		return a
+	}
 	for {
 		now := time.Now()
 		left := s.wd - charged(now)
 		if left <= 0 {
+			if s.lookAtWaiting(ctx, &a) {
+				return done()
+			}
 			busy.Credit(s.host)
 			now = time.Now()
-			if charged(now) < s.wd && now.Sub(sent) < hostload.Limit(s.wd) {
+			silent := now.Sub(sent)
+			if a.stray == 0 && charged(now) < s.wd && silent < hostload.Limit(s.wd) {
 				// At least a millisecond per look: with the pressure
 				// credited bit by bit the time left may stay tiny.
 				left = max(s.wd-charged(now), time.Millisecond)
 			} else {
-				if charged(now) < s.wd {
+				if a.stray == 0 && charged(now) < s.wd {
 					busy.Settle(s.host)
 				}
-				silent := now.Sub(sent)
-				if c := charged(now); c < s.wd {
-					a.host = true
+				if c := charged(now); a.stray == 0 && c < s.wd {
+					a.hostStalled = true
 					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
 						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
-				} else {
-					a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
-					if silent-s.wd > stallSlack {
-						a.why += fmt.Sprintf(" (waited %v: %v of the battery's own stalls and %v of a contended host not charged)",
-							silent.Round(time.Millisecond), own.Round(time.Millisecond), busy.Total().Round(time.Millisecond))
-					}
+					return done()
+				}
+				a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
+				if silent-s.wd > hostload.StallSlack {
+					a.why += fmt.Sprintf(" (waited %v: %v of the battery's own stalls and %v of a contended host not charged)",
+						silent.Round(time.Millisecond), own.Round(time.Millisecond), busy.Total().Round(time.Millisecond))
 				}
 				a.why += a.strays()
-				return a
+				return done()
 			}
 		}
 		deadline := now.Add(left)
 		if s.await(ctx, &a, deadline) {
-			return a
+			return done()
 		}
-		if late := time.Since(deadline); late > stallSlack {
+		if late := time.Since(deadline); late > hostload.StallSlack {
 			own += late
 		}
 	}
+}
+
+// lookAtWaiting reads, into a, up to finalLooks messages that are already
+// waiting, without waiting for more; true when one ends the wait (as
+// await).
+func (s *session) lookAtWaiting(ctx context.Context, a *answer) bool {
+	looks := 0
+	return s.awaitLooks(ctx, a, time.Now(), &looks, finalLooks)
 }
 
 // awaitFor waits up to d, by the wall clock, for the command with seq (or a
@@ -220,13 +247,28 @@ func (a *answer) strays() string {
 // a.seq arrives, a stop arrives, the link closes or ctx ends (true), or
 // the deadline passes (false: the caller decides what that means).
 // Greetings, heartbeats and refused frames are counted on the way, and
-// commands with other seqs as a's strays.
+// commands with other seqs as a's strays. Past the deadline it reads at
+// most finalLooks messages already waiting, so a firmware that floods the
+// link cannot hold it.
 func (s *session) await(ctx context.Context, a *answer, deadline time.Time) bool {
+	looks := 0
+	return s.awaitLooks(ctx, a, deadline, &looks, finalLooks)
+}
+
+// awaitLooks is await, with the count of messages read past the deadline
+// in *looks and its bound limit.
+func (s *session) awaitLooks(ctx context.Context, a *answer, deadline time.Time, looks *int, limit int) bool {
 	seq := a.seq
 	for {
 		if err := ctx.Err(); err != nil {
 			a.why = "interrupted"
 			return true
+		}
+		if !time.Now().Before(deadline) {
+			if *looks >= limit {
+				return false
+			}
+			*looks++
 		}
 		err := s.conn.Recv(deadline, &s.in)
 		switch {

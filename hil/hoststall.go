@@ -23,7 +23,7 @@ const maxStallEvents = 20
 
 // hostStalls is what the loop saw of its own lateness.
 type hostStalls struct {
-	total     time.Duration // time the loop was not running, summed over stalls above stallSlack
+	total     time.Duration // time the loop was not running, summed over stalls above hostload.StallSlack
 	longest   time.Duration
 	count     int
 	lateTicks int // wall-clock ticks that started a whole period or more after they were due

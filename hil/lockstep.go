@@ -14,12 +14,6 @@ import (
 	"gaitrig/internal/hostload"
 )
 
-// stallSlack is how late a lockstep wait may end before the loop treats the
-// lateness as a stall of its own process rather than firmware silence; Go
-// timer wake-ups are late by up to about a millisecond on a busy host
-// (measured here), so 5 ms is well clear of normal lateness.
-const stallSlack = 5 * time.Millisecond
-
 // finalLooks is how many waiting messages the loop reads, past the
 // watchdog, before it trips: after a stall of the rig a stale answer (to a
 // resent state) may sit in the link's buffer ahead of the valid one. The
@@ -88,17 +82,17 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 	start := time.Now()
 	resendAt := start.Add(r.cfg.Resend)
 	looks := 0 // messages read past the watchdog
-	var busy hostload.Wait
+	var busy hostload.WaitCredit
 	var own time.Duration // the rig's own time during this wait: its stalls and its work
 	// charged is the firmware's answer time so far.
 	charged := func(now time.Time) time.Duration { return now.Sub(start) - own - busy.Total() }
 	// The loop's own code between two readings of the clock takes
-	// microseconds; a gap longer than stallSlack there is the host not
+	// microseconds; a gap longer than hostload.StallSlack there is the host not
 	// running the rig (preempted, frozen), not the firmware being slow.
 	mark := start
 	step := func() time.Time {
 		t := time.Now()
-		if gap := t.Sub(mark); gap > stallSlack {
+		if gap := t.Sub(mark); gap > hostload.StallSlack {
 			own += gap
 			r.hostStall(gap)
 		}
@@ -163,7 +157,7 @@ func (l *lockstepSource) exchange(ctx context.Context) bool {
 			due = now // a deadline already past: Recv only looked
 		}
 		stalled := false
-		if late := back.Sub(due); late > stallSlack {
+		if late := back.Sub(due); late > hostload.StallSlack {
 			own += late
 			resendAt = resendAt.Add(late)
 			r.hostStall(late)

@@ -1,6 +1,9 @@
 package hil
 
-import "time"
+import (
+	"gaitrig/internal/hostload"
+	"time"
+)
 
 // spinWindow is how long before a deadline the pacer stops sleeping and
 // spins. A thread woken from clock_nanosleep is late by some tens of
@@ -59,7 +62,7 @@ type realPacer struct {
 	prevWall        time.Time
 	prevCPU, prevBt int64
 	clocks          bool          // the thread clocks can be read
-	stall           time.Duration // stall seen in the interval that ended at the last tick start (0 if below stallSlack)
+	stall           time.Duration // stall seen in the interval that ended at the last tick start (0 if below hostload.StallSlack)
 	late            bool          // the last tick started a whole period or more after it was due
 }
 
@@ -81,7 +84,7 @@ func (p *realPacer) wait(tick int64) time.Time {
 		// No thread clocks: only a late start shows a stall.
 		p.stall = lateness
 	}
-	if p.stall <= stallSlack {
+	if p.stall <= hostload.StallSlack {
 		p.stall = 0
 	}
 	p.prevWall, p.prevCPU, p.prevBt, p.clocks = now, cpu, boot, ok

@@ -14,6 +14,7 @@ import (
 
 	"gaitrig/bridges"
 	"gaitrig/bridges/protocol"
+	"gaitrig/internal/hostload"
 )
 
 // sentRing remembers when each recent state was sent, indexed by sequence
@@ -130,7 +131,7 @@ func (rc *receiver) loop() {
 		case linkTimeout:
 			// Woken long after the deadline: the host did not run the
 			// receiver, so answers could not be read meanwhile.
-			if late := time.Since(deadline); late > stallSlack {
+			if late := time.Since(deadline); late > hostload.StallSlack {
 				rc.stalled.Add(int64(late))
 			}
 			continue

@@ -12,6 +12,7 @@ import (
 	"gaitrig/bridges/protocol"
 	"gaitrig/conformance"
 	"gaitrig/hil"
+	"gaitrig/internal/hostload"
 	"gaitrig/record"
 	"gaitrig/rig"
 )
@@ -153,7 +154,10 @@ func latencyOfLink(link, rigID string, n int, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signalContext()
 	defer stop()
-	ctx, cancel := context.WithTimeout(ctx, time.Duration(n)*conformance.Watchdog+conformance.GreetingTimeout+10*time.Second)
+	// A bound on a firmware that answers slowly: every state may take the
+	// watchdog, and one (the measurement ends there) the contended-host
+	// limit.
+	ctx, cancel := context.WithTimeout(ctx, time.Duration(n)*conformance.Watchdog+hostload.Limit(conformance.Watchdog)+conformance.GreetingTimeout+10*time.Second)
 	defer cancel()
 	rt, err := conformance.MeasureRoundTrips(ctx, dial, n)
 	if err != nil && len(rt.Samples) == 0 {

@@ -37,7 +37,9 @@ const (
 	// exitInvalid: the host, not the firmware, spoiled the run (outcome
 	// invalid, alarm host_stall), or in a batch nothing regressed but the
 	// host spoiled some scenario on every attempt (outcome invalid, a link
-	// that could not be opened): run it again, the build is not to blame.
+	// that could not be opened), or the conformance battery or `latency
+	// --link` could not judge a state on a contended host (host_stall):
+	// run it again, the build is not to blame.
 	exitInvalid = 3
 	// exitKilled: a second SIGINT or SIGTERM ended the process at once
 	// (128 + SIGINT, as a shell reports a process an interrupt ended).

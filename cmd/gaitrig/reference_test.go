@@ -38,7 +38,8 @@ func cliReference() string {
 	b.WriteString("Every command prints this help with `gaitrig COMMAND --help` (on stdout).\n" +
 		"A usage error prints one line on stderr, then where to find the help, and exits with code 2.\n" +
 		"Exit codes: 0 pass, 1 a criterion failed or the run tripped (a regression in a suite,\n" +
-		"NO-GO in preflight), 2 bad usage or configuration.\n\n")
+		"NO-GO in preflight), 2 bad usage or configuration, 3 invalid: the host, not the firmware,\n" +
+		"spoiled the run or left a check unjudged (host_stall; run it again), 130 a second interrupt.\n\n")
 	b.WriteString("With `--json` a command prints one JSON document on stdout and nothing else there\n" +
 		"(progress lines go to stderr): UTF-8 without HTML escaping, numbers that were not\n" +
 		"measured or are not finite as `null`. Its schema is listed under the command. A command\n" +

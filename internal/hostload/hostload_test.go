@@ -96,7 +96,7 @@ func TestReadingsDoNotAllocate(t *testing.T) {
 // exactly.
 func TestNilPressureCreditsNothing(t *testing.T) {
 	var p *Pressure
-	var w Wait
+	var w WaitCredit
 	w.Start(p)
 	if !w.Started() || w.Credit(p) != 0 || w.Settle(p) != 0 || w.Total() != 0 {
 		t.Fatalf("a host without PSI credited %v", w.Total())
@@ -123,7 +123,7 @@ func (h *manualHost) pressure(cpus int) *Pressure {
 func TestWaitCreditAndSettle(t *testing.T) {
 	h := &manualHost{some: time.Second}
 	p := h.pressure(64)
-	var w Wait
+	var w WaitCredit
 	w.Start(p)
 	// 1 ms of PSI on a 64-CPU host is up to 64 ms of one task's waiting,
 	// but no more than the time watched (a few µs here): the cap holds.
@@ -144,7 +144,9 @@ func TestWaitCreditAndSettle(t *testing.T) {
 	h.times = CPUTimes{Nonidle: h.times.Nonidle + 800, All: h.times.All + 6400}
 	w.st0 = w.st0.Add(-time.Second + time.Since(w.st0)) // the CPU times' window: one second
 	got := w.Settle(p)
-	if want := time.Duration(8.64 * float64(time.Millisecond)); math.Abs(float64(got-want)) > float64(20*time.Microsecond) {
+	// The window is read from the clock again inside Settle: a preemption
+	// between here and there widens it a little, so 2 % is allowed.
+	if want := time.Duration(8.64 * float64(time.Millisecond)); math.Abs(float64(got-want)) > 0.02*float64(want) {
 		t.Fatalf("settled credit %v, want %v (8.64 busy CPUs × 1 ms)", got, want)
 	}
 }

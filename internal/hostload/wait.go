@@ -2,8 +2,16 @@ package hostload
 
 import "time"
 
-// Wait follows the host's CPU pressure during one wait for an answer and
-// says how much of the wait to credit, that is, not to charge to the
+// StallSlack is how much later than its deadline a wait may end before the
+// lateness counts as the waiter's own stall (the host did not run the
+// waiter; an answer may have waited in the link's buffer meanwhile), not
+// the firmware's time. Go timer wake-ups are late by up to about a
+// millisecond on a busy host (measured when the rig's lockstep loop was
+// written), so 5 ms is well clear of normal lateness.
+const StallSlack = 5 * time.Millisecond
+
+// WaitCredit follows the host's CPU pressure during one wait for an answer
+// and says how much of the wait to credit, that is, not to charge to the
 // firmware's watchdog. Its zero value is ready; use one per wait.
 //
 // A waiter charges the firmware with the time since the request went out,
@@ -14,7 +22,7 @@ import "time"
 // firmware a watchdog's worth of CPU: whether it is gone cannot be told on
 // this host, and the verdict is the host's (host_stall), not the
 // firmware's.
-type Wait struct {
+type WaitCredit struct {
 	started  bool
 	watching bool
 	p0       time.Duration // pressure reading at Start
@@ -26,14 +34,14 @@ type Wait struct {
 }
 
 // Started reports whether Start was called.
-func (w *Wait) Started() bool { return w.started }
+func (w *WaitCredit) Started() bool { return w.started }
 
 // Total is the pressure credited so far.
-func (w *Wait) Total() time.Duration { return w.total }
+func (w *WaitCredit) Total() time.Duration { return w.total }
 
 // Start takes the first pressure reading; pressure before it cannot be
 // credited. Only the first call counts.
-func (w *Wait) Start(p *Pressure) {
+func (w *WaitCredit) Start(p *Pressure) {
 	if w.started {
 		return
 	}
@@ -45,7 +53,7 @@ func (w *Wait) Start(p *Pressure) {
 
 // Credit returns the pressure time not yet credited since Start, and adds
 // it to Total.
-func (w *Wait) Credit(p *Pressure) time.Duration {
+func (w *WaitCredit) Credit(p *Pressure) time.Duration {
 	if !w.watching {
 		return 0
 	}
@@ -87,7 +95,7 @@ func (w *Wait) Credit(p *Pressure) time.Duration {
 // whether to wait on, but on a large host with some CPUs contended and
 // most idle it would excuse a firmware that is gone. Without /proc/stat
 // the total stands.
-func (w *Wait) Settle(p *Pressure) time.Duration {
+func (w *WaitCredit) Settle(p *Pressure) time.Duration {
 	if !w.watching || !w.statOK {
 		return w.total
 	}
