@@ -146,15 +146,7 @@ func (p *cProc) counter(t *testing.T, key string) string {
 // the battery's stop and its own refusal of the bad config.
 func passesInFull(t *testing.T, p *cProc, link string, dial Dialer) {
 	t.Helper()
-	rep, attempts := untilJudged(t, "the battery against the C firmware", func() Report {
-		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-		defer cancel()
-		rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
-		if err != nil {
-			t.Fatal(err)
-		}
-		return rep
-	})
+	rep, attempts := runUntilJudged(t, link, dial)
 	if !rep.Passed || len(rep.Failed()) > 0 {
 		t.Errorf("verdict %v, failed %v", rep.Passed, rep.Failed())
 	}

@@ -30,15 +30,7 @@ func runOver(t *testing.T, link string) Report {
 	if err != nil {
 		t.Fatal(err)
 	}
-	rep, _ := untilJudged(t, "the battery over "+link, func() Report {
-		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-		defer cancel()
-		rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
-		if err != nil {
-			t.Fatal(err)
-		}
-		return rep
-	})
+	rep, _ := runUntilJudged(t, link, dial)
 	return rep
 }
 

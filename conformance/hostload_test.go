@@ -15,17 +15,23 @@ import (
 	"gaitrig/record"
 )
 
-// untilJudged runs the battery (run) again while the host left a check
-// unjudged (host_stall), as internal/retrytest does a walk the host
-// spoiled: at most retrytest.MaxAttempts times, never retrying a failure
-// away. It returns the report and the number of attempts, for tests that
-// count the firmware's sessions: an abandoned attempt ends one with a stop.
-func untilJudged(t *testing.T, what string, run func() Report) (Report, int) {
+// runUntilJudged runs the battery over link with testSamples states, and
+// runs it again while the host left a check unjudged (host_stall), as
+// internal/retrytest does a walk the host spoiled: at most
+// retrytest.MaxAttempts times, never retrying a failure away. It returns
+// the report and the number of attempts, for tests that count the
+// firmware's sessions: an abandoned attempt ends one with a stop.
+func runUntilJudged(t *testing.T, link string, dial Dialer) (Report, int) {
 	t.Helper()
 	attempts := 0
-	rep := retrytest.UntilValid(t, what, func(n int) (Report, record.Summary) {
+	rep := retrytest.UntilValid(t, "the battery over "+link, func(n int) (Report, record.Summary) {
 		attempts = n
-		rep := run()
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+		defer cancel()
+		rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
+		if err != nil {
+			t.Fatal(err)
+		}
 		for _, c := range rep.Checks {
 			if c.Status == HostStall {
 				return rep, record.Summary{Outcome: record.Invalid, Reason: c.Name + ": " + c.Seen}

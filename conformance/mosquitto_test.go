@@ -1,7 +1,6 @@
 package conformance
 
 import (
-	"context"
 	"gaitrig/internal/mqtttest"
 	"sync"
 	"testing"
@@ -37,15 +36,7 @@ func TestReferenceFirmwareOverMosquitto(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	rep, attempts := untilJudged(t, "the battery over Mosquitto", func() Report {
-		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-		defer cancel()
-		rep, err := Run(ctx, link, dial, Options{Samples: testSamples, Log: func(l string) { t.Log(l) }})
-		if err != nil {
-			t.Fatal(err)
-		}
-		return rep
-	})
+	rep, attempts := runUntilJudged(t, link, dial)
 	for _, c := range rep.Checks {
 		if c.Status != Pass {
 			t.Errorf("%s: %s (%s), want pass", c.Name, c.Status, c.Seen)
