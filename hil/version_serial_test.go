@@ -72,7 +72,7 @@ func TestOtherVersionGreetingOverSerial(t *testing.T) {
 		t.Errorf("outcome %s (%s), alarms %v; want tripped with one version_mismatch", res.Summary.Outcome, res.Summary.Reason, res.Summary.Alarms)
 	}
 	var got protocol.Message
-	for deadline := time.Now().Add(3 * time.Second); ; {
+	for deadline := time.Now().Add(20 * time.Second); ; { // a bound on a hang: the stop was sent before Run returned
 		err := fw.Recv(deadline, &got)
 		if err == nil && got.Type == protocol.TypeStop {
 			break

@@ -80,7 +80,9 @@ func same(a, b protocol.Message) bool {
 	return true
 }
 
-func soon() time.Time { return time.Now().Add(2 * time.Second) }
+// soon is the deadline of a wait for something that will come: a bound on
+// a hang on a busy host, never a timing check.
+func soon() time.Time { return time.Now().Add(20 * time.Second) }
 
 // recvMsg waits for a message, skipping nothing: any error fails the test.
 func recvMsg(t *testing.T, c *Conn) protocol.Message {

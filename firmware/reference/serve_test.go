@@ -83,7 +83,7 @@ func TestServeSpeaksTheProtocol(t *testing.T) {
 				if !errors.Is(err, tc.wantErr) || (tc.wantErr == nil && err != nil) {
 					t.Fatalf("Serve returned %v, want %v", err, tc.wantErr)
 				}
-			case <-time.After(2 * time.Second):
+			case <-time.After(20 * time.Second): // a bound on a hang
 				t.Fatal("Serve did not return after the stop")
 			}
 		})
@@ -128,12 +128,13 @@ func TestServeRefusesAndTimesOut(t *testing.T) {
 		rig, fw := inproc.Pair()
 		defer rig.Close()
 		done := make(chan error, 1)
-		go func() { done <- Serve(fw, Options{IdleTimeout: time.Second}) }()
+		// The idle timeout and the waits bound a hang; none is judged.
+		go func() { done <- Serve(fw, Options{IdleTimeout: 20 * time.Second}) }()
 		var m protocol.Message
-		rig.Recv(time.Now().Add(time.Second), &m)
+		rig.Recv(time.Now().Add(20*time.Second), &m)
 		cfg := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{Joints: 3}}
 		rig.Send(&cfg)
-		if err := rig.Recv(time.Now().Add(time.Second), &m); err != nil || m.Type != protocol.TypeStop || m.Stop.Reason != protocol.StopFirmware {
+		if err := rig.Recv(time.Now().Add(20*time.Second), &m); err != nil || m.Type != protocol.TypeStop || m.Stop.Reason != protocol.StopFirmware {
 			t.Fatalf("want a firmware stop, got %v %+v", err, m)
 		}
 		if err := <-done; err == nil {
@@ -252,10 +253,12 @@ func TestServeRepeatsGreetingUntilConfigured(t *testing.T) {
 	rig, fw := inproc.Pair()
 	defer rig.Close()
 	done := make(chan error, 1)
-	go func() { done <- Serve(fw, Options{IdleTimeout: 2 * time.Second}) }()
+	// The idle timeout and the deadline bound a hang on a busy host; the
+	// test counts greetings, it does not time them.
+	go func() { done <- Serve(fw, Options{IdleTimeout: 20 * time.Second}) }()
 	var m protocol.Message
 	greetings := 0
-	deadline := time.Now().Add(2 * time.Second)
+	deadline := time.Now().Add(20 * time.Second)
 	for greetings < 3 {
 		if err := rig.Recv(deadline, &m); err != nil {
 			t.Fatalf("after %d greetings: %v", greetings, err)
@@ -266,12 +269,21 @@ func TestServeRepeatsGreetingUntilConfigured(t *testing.T) {
 	}
 	cfg := protocol.Message{Type: protocol.TypeConfig, Config: protocol.Config{Joints: 2, TickHz: 1000}}
 	rig.Send(&cfg)
-	// Drain greetings sent before the config landed, then expect silence.
-	time.Sleep(50 * time.Millisecond)
-	for rig.Recv(time.Now(), &m) == nil {
+	// A state's answer shows the config has landed: greetings before it
+	// may have been sent before; after it, silence. (A busy host can only
+	// hide a greeting in that window, never make one up.)
+	st := protocol.Message{Type: protocol.TypeState, Seq: 1, State: protocol.State{Joints: 2}}
+	rig.Send(&st)
+	for {
+		if err := rig.Recv(time.Now().Add(20*time.Second), &m); err != nil {
+			t.Fatalf("no answer to the first state: %v", err)
+		}
+		if m.Type == protocol.TypeCommand {
+			break
+		}
 	}
 	if err := rig.Recv(time.Now().Add(3*GreetEvery), &m); err == nil {
-		t.Fatalf("got a %#x after the configuration, want silence until a state", m.Type)
+		t.Fatalf("got a %#x after the first state was answered, want silence until the next state", m.Type)
 	}
 	stop := protocol.Message{Type: protocol.TypeStop}
 	rig.Send(&stop)
