@@ -214,9 +214,11 @@ func TestJSONDebugMode(t *testing.T) {
 	r := dialT(t, Config{Broker: url, Rig: "b1", Role: RoleRig, JSON: true})
 	f := dialT(t, Config{Broker: url, Rig: "b1", Role: RoleFirmware, JSON: true})
 	s := startSub(t, embeddedPort(t, b), "gaitrig/b1/state", 1)
-	// mosquitto_sub needs a moment to subscribe; resend until it has seen one.
+	// mosquitto_sub needs a moment to subscribe; resend until it has seen
+	// one (at most 200 times, 20 s: a bound on a hang, as a process
+	// starting on a busy host may take seconds).
 	want := state(7)
-	for i := 0; i < 50; i++ {
+	for i := 0; i < 200; i++ {
 		mustSend(t, r, want)
 		got := mustRecv(t, f)
 		if !same(&got, &want) {
@@ -404,9 +406,10 @@ func TestAlarmSeenByMosquittoSub(t *testing.T) {
 			s := startSub(t, port, "gaitrig/b7/alarm", 1)
 			alarm := []byte(`{"kind":"slip","severity":"trip","tick":4211,"t":4.211,"foot":1,"utilization":1.07}`)
 			// The alarm topic is not retained, so publish until
-			// mosquitto_sub, once subscribed, has read one (at most 50).
+			// mosquitto_sub, once subscribed, has read one (at most 200
+			// times, 20 s: a bound on a hang on a busy host).
 			var line string
-			for i := 0; i < 50 && line == ""; i++ {
+			for i := 0; i < 200 && line == ""; i++ {
 				if err := r.PublishAlarm(alarm); err != nil {
 					t.Fatalf("PublishAlarm: %v", err)
 				}
