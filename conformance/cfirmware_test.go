@@ -228,7 +228,7 @@ func TestCFirmwareOnceFailsGreetAgain(t *testing.T) {
 	}
 	select {
 	case <-p.done:
-	case <-time.After(5 * time.Second):
+	case <-time.After(20 * time.Second): // a bound on a hang
 		t.Fatal("the --once firmware did not exit after the battery's stop")
 	}
 	if got := p.counter(t, "end"); got != "stop" {
@@ -265,14 +265,14 @@ func TestCFirmwarePassesOverSerialPort(t *testing.T) {
 		_ = relay.Process.Kill()
 		<-relayDone
 	})
-	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+	for deadline := time.Now().Add(20 * time.Second); ; time.Sleep(10 * time.Millisecond) { // a bound on a hang
 		_, e1 := os.Stat(fwPath)
 		_, e2 := os.Stat(rigPath)
 		if e1 == nil && e2 == nil {
 			break
 		}
 		if time.Now().After(deadline) {
-			t.Fatalf("socat made no linked ptys within 5 s: %v %v\n%s", e1, e2, relayErr.String())
+			t.Fatalf("socat made no linked ptys within 20 s: %v %v\n%s", e1, e2, relayErr.String())
 		}
 	}
 	holder, err := os.OpenFile(rigPath, os.O_RDWR|syscall.O_NOCTTY, 0)

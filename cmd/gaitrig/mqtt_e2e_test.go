@@ -124,7 +124,7 @@ func startMosquittoOn(t *testing.T, port string) func() {
 		}
 		t.Skipf("no Mosquitto: %v", err)
 	}
-	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(20 * time.Millisecond) {
+	for deadline := time.Now().Add(20 * time.Second); ; time.Sleep(20 * time.Millisecond) { // a bound on a hang: a process starting on a busy host
 		if c, err := net.Dial("tcp", "127.0.0.1:"+port); err == nil {
 			c.Close()
 			break
@@ -132,7 +132,7 @@ func startMosquittoOn(t *testing.T, port string) func() {
 		if time.Now().After(deadline) {
 			cmd.Process.Kill()
 			cmd.Wait()
-			t.Fatalf("Mosquitto did not listen on port %s within 5 s", port)
+			t.Fatalf("Mosquitto did not listen on port %s within 20 s", port)
 		}
 	}
 	var once sync.Once
