@@ -48,10 +48,6 @@ type session struct {
 	// from a silent one.
 	wd   time.Duration
 	host *hostload.Pressure
-	// heartbeatsDistrusted is set once a wait reached the limit with the
-	// firmware's heartbeats still saying the state had not come: after
-	// that, heartbeats no longer restart a watchdog in this session.
-	heartbeatsDistrusted bool
 }
 
 // newSession starts a session on conn that judges answers by the watchdog
@@ -176,12 +172,10 @@ const finalLooks = 64
 //
 // While the host is contended, or the firmware keeps saying the state has
 // not come, and nothing but heartbeats came from the firmware, it waits
-// on, up to hostload.Limit. If by then the host never left the firmware a
-// watchdog's worth of CPU, the answer is marked hostStalled: not the
-// firmware's failure. If the firmware still said the state had not come,
-// it fails (the frame was refused or the link lost it), and heartbeats
-// restart no more watchdogs in the session. A firmware that sent commands
-// for other seqs meanwhile was running, and is judged at once.
+// on, up to hostload.Limit; if by then the host never left the firmware a
+// watchdog's worth of CPU, or the state never reached it, the answer is
+// marked hostStalled: not the firmware's failure. A firmware that sent
+// commands for other seqs meanwhile was running, and is judged at once.
 func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, busy *hostload.WaitCredit) answer {
 	a := answer{seq: seq}
 	var own time.Duration
@@ -190,7 +184,7 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 	from := sent
 	charged := func(now time.Time) time.Duration { return now.Sub(from) - own - busy.Total() }
 	restart := func() {
-		if a.behindAt.After(from) && !s.heartbeatsDistrusted {
+		if a.behindAt.After(from) {
 			// The firmware said it had not received the state: the link or
 			// the host held it (a relay or a pty the host did not run),
 			// and the firmware's time starts again from there.
@@ -224,23 +218,15 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 				if a.stray == 0 && charged(now) < s.wd {
 					busy.Settle(s.host)
 				}
-				if c := charged(now); a.stray == 0 && c < s.wd && from != sent {
-					// To the limit the firmware said it had not received the
-					// state. A link that held it that long, or a firmware
-					// that refuses the frame while it heartbeats, cannot be
-					// told apart from here: a failure, named for both. From
-					// now on this session's heartbeats restart nothing, so a
-					// firmware that refuses every state costs one limit, not
-					// one per state.
-					s.heartbeatsDistrusted = true
-					a.why = fmt.Sprintf("no command with seq %d for %v: %v after it was sent the firmware's heartbeats still said seq %d, its latest state; the firmware refused the frame or the link lost it",
-						seq, silent.Round(time.Millisecond), a.behindAt.Sub(sent).Round(time.Millisecond), a.behindSeq)
-					a.why += a.strays()
-					return done()
-				} else if a.stray == 0 && c < s.wd {
+				if c := charged(now); a.stray == 0 && c < s.wd {
 					a.hostStalled = true
-					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
-						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
+					if !a.behindAt.IsZero() {
+						a.why = fmt.Sprintf("no command with seq %d for %v: %v after it was sent the firmware's heartbeats still said seq %d, so the link or this host held the state back; not the firmware's fault",
+							seq, silent.Round(time.Millisecond), a.behindAt.Sub(sent).Round(time.Millisecond), a.behindSeq)
+					} else {
+						a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
+							seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
+					}
 					return done()
 				}
 				a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
