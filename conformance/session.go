@@ -103,16 +103,9 @@ type answer struct {
 	// answer says nothing about the firmware.
 	hostStalled bool
 	// charged is the part of the wait charged to the firmware's watchdog:
-	// the wait less the battery's own stalls, the contended time and the
-	// time the firmware said it had not received the state.
+	// the wait less the battery's own stalls and the contended time.
 	charged time.Duration
-	// behindAt is when the latest heartbeat came whose seq (the latest
-	// state the firmware received, docs/protocol.md section 6 item 4) was
-	// older than this state's, behindSeq that seq: proof that the state
-	// had not reached the firmware then. Zero when none came.
-	behindAt  time.Time
-	behindSeq uint32
-	why       string // what happened instead of a command
+	why     string // what happened instead of a command
 }
 
 // problem says what is wrong with the answer, "" when nothing.
@@ -162,51 +155,28 @@ const finalLooks = 64
 // the time the host's CPUs were contended (busy, started before the state
 // went out). On a quiet host the watchdog holds exactly.
 //
-// A heartbeat during the wait carries the latest state the firmware
-// received (docs/protocol.md section 6 item 4); one older than this state
-// proves the state had not reached it, so the watchdog starts again from
-// that heartbeat: a relay or a pty the host did not run is not the
-// firmware's time. Before any verdict it reads what is already waiting,
-// without waiting for more: after a stall of the battery itself the answer
-// may be in the buffer.
-//
-// While the host is contended, or the firmware keeps saying the state has
-// not come, and nothing but heartbeats came from the firmware, it waits
-// on, up to hostload.Limit; if by then the host never left the firmware a
-// watchdog's worth of CPU, or the state never reached it, the answer is
-// marked hostStalled: not the firmware's failure. A firmware that sent
-// commands for other seqs meanwhile was running, and is judged at once.
+// Before any verdict it reads what is already waiting, without waiting for
+// more: after a stall of the battery itself the answer may be in the
+// buffer. While the host is contended and nothing at all came from the
+// firmware it waits on, up to hostload.Limit; if the host never left the
+// firmware a watchdog's worth of CPU by then, the answer is marked
+// hostStalled: not the firmware's failure. A firmware that sent commands
+// for other seqs meanwhile was running, and is judged at once.
 func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, busy *hostload.WaitCredit) answer {
 	a := answer{seq: seq}
 	var own time.Duration
-	// from is when the firmware's watchdog started: the send, or the
-	// latest heartbeat that said the state had not reached it yet.
-	from := sent
-	charged := func(now time.Time) time.Duration { return now.Sub(from) - own - busy.Total() }
-	restart := func() {
-		if a.behindAt.After(from) {
-			// The firmware said it had not received the state: the link or
-			// the host held it (a relay or a pty the host did not run),
-			// and the firmware's time starts again from there.
-			from, own = a.behindAt, 0
-			*busy = hostload.WaitCredit{}
-			busy.Start(s.host)
-		}
-	}
+	charged := func(now time.Time) time.Duration { return now.Sub(sent) - own - busy.Total() }
 	done := func() answer {
 		a.charged = charged(time.Now())
 		return a
 	}
 	for {
-		restart()
 		now := time.Now()
 		left := s.wd - charged(now)
-		limit := sent.Add(hostload.Limit(s.wd))
-		if left <= 0 || !now.Before(limit) {
+		if left <= 0 {
 			if s.lookAtWaiting(ctx, &a) {
 				return done()
 			}
-			restart()
 			busy.Credit(s.host)
 			now = time.Now()
 			silent := now.Sub(sent)
@@ -220,20 +190,11 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 				}
 				if c := charged(now); a.stray == 0 && c < s.wd {
 					a.hostStalled = true
-					if !a.behindAt.IsZero() {
-						a.why = fmt.Sprintf("no command with seq %d for %v: %v after it was sent the firmware's heartbeats still said seq %d, so the link or this host held the state back; not the firmware's fault",
-							seq, silent.Round(time.Millisecond), a.behindAt.Sub(sent).Round(time.Millisecond), a.behindSeq)
-					} else {
-						a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
-							seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
-					}
+					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
+						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
 					return done()
 				}
 				a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
-				if !a.behindAt.IsZero() {
-					a.why += fmt.Sprintf(" of its reaching the firmware (its heartbeats said seq %d until %v after it was sent)",
-						a.behindSeq, a.behindAt.Sub(sent).Round(time.Millisecond))
-				}
 				if silent-s.wd > hostload.StallSlack {
 					a.why += fmt.Sprintf(" (waited %v: %v of the battery's own stalls and %v of a contended host not charged)",
 						silent.Round(time.Millisecond), own.Round(time.Millisecond), busy.Total().Round(time.Millisecond))
@@ -243,11 +204,6 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 			}
 		}
 		deadline := now.Add(left)
-		if deadline.After(limit) {
-			// Heartbeats that keep saying the state has not come restart
-			// the watchdog, but not the limit.
-			deadline = limit
-		}
 		if s.await(ctx, &a, deadline) {
 			return done()
 		}
@@ -277,10 +233,6 @@ func (s *session) awaitFor(ctx context.Context, seq uint32, d time.Duration) ans
 	}
 	return a
 }
-
-// older reports whether seq a comes before seq b, with wrap-around (seqs
-// wrap from 0xFFFFFFFF to 0, docs/protocol.md section 6 item 3).
-func older(a, b uint32) bool { return a != b && b-a < 1<<31 }
 
 // strays says, for a message, how many commands with other seqs came
 // meanwhile; "" for none.
@@ -373,9 +325,6 @@ func (s *session) awaitLooks(ctx context.Context, a *answer, deadline time.Time,
 			s.greetings++
 		case protocol.TypeHeartbeat:
 			s.heartbeats++
-			if older(m.Seq, seq) {
-				a.behindAt, a.behindSeq = time.Now(), m.Seq
-			}
 		case protocol.TypeStop:
 			st := m.Stop
 			a.stop = &st
