@@ -311,6 +311,7 @@ func (b *battery) firstSession(conn bridges.Conn) {
 		if a.hostStalled {
 			// The firmware's late answer would come in the next state's
 			// wait and be judged a stray: the battery ends here (Run).
+			b.rep.RoundTrip = b.hist.Summarize()
 			b.record(CheckEveryState, HostStall, start, "%d states answered, then state seq %d: %s", i, a.seq, a.why)
 			return
 		}

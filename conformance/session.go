@@ -105,7 +105,13 @@ type answer struct {
 	// charged is the part of the wait charged to the firmware's watchdog:
 	// the wait less the battery's own stalls and the contended time.
 	charged time.Duration
-	why     string // what happened instead of a command
+	// beats counts the heartbeats that came during the wait, lastBeat the
+	// seq of the latest (the latest state the firmware received, docs/
+	// protocol.md section 6 item 4): for the message only, since they
+	// travel the same link as the state and prove nothing about it in time.
+	beats    int
+	lastBeat uint32
+	why      string // what happened instead of a command
 }
 
 // problem says what is wrong with the answer, "" when nothing.
@@ -192,6 +198,7 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 					a.hostStalled = true
 					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
 						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
+					a.why += a.strays()
 					return done()
 				}
 				a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
@@ -234,13 +241,17 @@ func (s *session) awaitFor(ctx context.Context, seq uint32, d time.Duration) ans
 	return a
 }
 
-// strays says, for a message, how many commands with other seqs came
-// meanwhile; "" for none.
+// strays says, for a message, how many commands with other seqs and how
+// many heartbeats came meanwhile; "" for none.
 func (a *answer) strays() string {
-	if a.stray == 0 {
-		return ""
+	out := ""
+	if a.stray > 0 {
+		out += fmt.Sprintf(" (%d with other seqs, first %d)", a.stray, a.first)
 	}
-	return fmt.Sprintf(" (%d with other seqs, first %d)", a.stray, a.first)
+	if a.beats > 0 {
+		out += fmt.Sprintf(" (%d heartbeats meanwhile, the latest with seq %d)", a.beats, a.lastBeat)
+	}
+	return out
 }
 
 // await takes messages until deadline, into a, until the command with
@@ -325,6 +336,8 @@ func (s *session) awaitLooks(ctx context.Context, a *answer, deadline time.Time,
 			s.greetings++
 		case protocol.TypeHeartbeat:
 			s.heartbeats++
+			a.beats++
+			a.lastBeat = m.Seq
 		case protocol.TypeStop:
 			st := m.Stop
 			a.stop = &st
