@@ -97,10 +97,10 @@ type answer struct {
 	stray  int            // commands with other seqs seen meanwhile
 	first  uint32         // the first of them
 	gone   bool           // the link closed
-	// hostStalled: no command came, and nothing else from the firmware
-	// either, but the host's CPUs were contended for all but less than a
-	// watchdog of the wait, so the firmware may never have been run; the
-	// answer says nothing about the firmware.
+	// hostStalled: no command came, not even one for another seq, but the
+	// host's CPUs were contended for all but less than a watchdog of the
+	// wait, so the firmware may never have been run; the answer says
+	// nothing about the firmware.
 	hostStalled bool
 	// charged is the part of the wait charged to the firmware's watchdog:
 	// the wait less the battery's own stalls and the contended time.
@@ -163,7 +163,7 @@ const finalLooks = 64
 //
 // Before any verdict it reads what is already waiting, without waiting for
 // more: after a stall of the battery itself the answer may be in the
-// buffer. While the host is contended and nothing at all came from the
+// buffer. While the host is contended and no command at all came from the
 // firmware it waits on, up to hostload.Limit; if the host never left the
 // firmware a watchdog's worth of CPU by then, the answer is marked
 // hostStalled: not the firmware's failure. A firmware that sent commands
@@ -198,7 +198,7 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 					a.hostStalled = true
 					a.why = fmt.Sprintf("no command with seq %d for %v, %v of it with the host's CPUs contended: the host never left the firmware a watchdog (%v) to answer in; not the firmware's fault, run the battery again on a quieter host",
 						seq, silent.Round(time.Millisecond), busy.Total().Round(time.Millisecond), s.wd)
-					a.why += a.strays()
+					a.why += a.meanwhile()
 					return done()
 				}
 				a.why = fmt.Sprintf("no command with seq %d within %v", seq, s.wd)
@@ -206,7 +206,7 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 					a.why += fmt.Sprintf(" (waited %v: %v of the battery's own stalls and %v of a contended host not charged)",
 						silent.Round(time.Millisecond), own.Round(time.Millisecond), busy.Total().Round(time.Millisecond))
 				}
-				a.why += a.strays()
+				a.why += a.meanwhile()
 				return done()
 			}
 		}
@@ -224,8 +224,7 @@ func (s *session) awaitAnswer(ctx context.Context, seq uint32, sent time.Time, b
 // waiting, without waiting for more; true when one ends the wait (as
 // await).
 func (s *session) lookAtWaiting(ctx context.Context, a *answer) bool {
-	looks := 0
-	return s.awaitLooks(ctx, a, time.Now(), &looks, finalLooks)
+	return s.await(ctx, a, time.Now())
 }
 
 // awaitFor waits up to d, by the wall clock, for the command with seq (or a
@@ -236,14 +235,14 @@ func (s *session) awaitFor(ctx context.Context, seq uint32, d time.Duration) ans
 	a := answer{seq: seq}
 	if !s.await(ctx, &a, time.Now().Add(d)) {
 		a.why = fmt.Sprintf("no command with seq %d within %v", seq, d)
-		a.why += a.strays()
+		a.why += a.meanwhile()
 	}
 	return a
 }
 
-// strays says, for a message, how many commands with other seqs and how
-// many heartbeats came meanwhile; "" for none.
-func (a *answer) strays() string {
+// meanwhile says, for a message, how many commands with other seqs and
+// how many heartbeats came during the wait; "" for none.
+func (a *answer) meanwhile() string {
 	out := ""
 	if a.stray > 0 {
 		out += fmt.Sprintf(" (%d with other seqs, first %d)", a.stray, a.first)
@@ -263,12 +262,6 @@ func (a *answer) strays() string {
 // link cannot hold it.
 func (s *session) await(ctx context.Context, a *answer, deadline time.Time) bool {
 	looks := 0
-	return s.awaitLooks(ctx, a, deadline, &looks, finalLooks)
-}
-
-// awaitLooks is await, with the count of messages read past the deadline
-// in *looks and its bound limit.
-func (s *session) awaitLooks(ctx context.Context, a *answer, deadline time.Time, looks *int, limit int) bool {
 	seq := a.seq
 	for {
 		if err := ctx.Err(); err != nil {
@@ -276,10 +269,10 @@ func (s *session) awaitLooks(ctx context.Context, a *answer, deadline time.Time,
 			return true
 		}
 		if !time.Now().Before(deadline) {
-			if *looks >= limit {
+			if looks >= finalLooks {
 				return false
 			}
-			*looks++
+			looks++
 		}
 		err := s.conn.Recv(deadline, &s.in)
 		switch {
